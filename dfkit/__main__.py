@@ -1,0 +1,5 @@
+import sys
+
+from dfkit.cli import main
+
+sys.exit(main())

@@ -1,0 +1,76 @@
+"""Conventions used everywhere in dfkit, stated once.
+
+* Positions are WGS84 geodetic latitude and longitude in degrees (EPSG:4326 axis
+  meaning, written ``lat``, ``lon``); longitudes are reported in [-180, 180).
+* A *bearing* (azimuth) is in degrees clockwise from **true** north, in [0, 360).
+  Magnetic and grid bearings are converted on reading (see :mod:`dfkit.observations`).
+* Distances and ellipse axes are in metres; areas in square metres.
+* Times are timezone-aware and reported in UTC.
+* Angular units: a NATO mil is 1/6400 of a circle and a grad (gon) 1/400
+  (US Army FM 21-26, *Map Reading and Land Navigation*, ch. 6, section 6-1).
+* Declination D is the angle from true north to magnetic north, positive east:
+  ``true = magnetic + D``. Meridian convergence gamma is the angle from true north
+  to grid north, positive when grid north lies east of true north:
+  ``true = grid + gamma`` (FM 21-26 ch. 6 declination diagram; sign pinned in
+  ``tests/test_coords.py`` against geographiclib).
+"""
+
+from __future__ import annotations
+
+import numpy as np
+
+#: WGS84 semi-major axis [m] and flattening (NIMA TR8350.2, 3rd ed., 2000, table 3.1).
+WGS84_A = 6378137.0
+WGS84_F = 1.0 / 298.257223563
+
+#: Degrees per unit for each angular unit accepted in a sheet.
+DEGREES_PER_UNIT = {
+    "deg": 1.0,
+    "mil": 360.0 / 6400.0,   # NATO mil, FM 21-26 ch. 6 §6-1
+    "grad": 360.0 / 400.0,   # grad / gon, FM 21-26 ch. 6 §6-1c
+}
+#: Full circle in each unit.
+FULL_CIRCLE = {"deg": 360.0, "mil": 6400.0, "grad": 400.0}
+
+#: Spellings accepted in the ``unit`` column, mapped to the canonical unit.
+UNIT_ALIASES = {
+    "deg": "deg", "degree": "deg", "degrees": "deg", "d": "deg", "°": "deg",
+    "mil": "mil", "mils": "mil", "nato mil": "mil",
+    "grad": "grad", "grads": "grad", "gon": "grad", "gons": "grad", "grade": "grad",
+}
+
+#: Spellings accepted in the ``north`` column.
+NORTH_ALIASES = {
+    "true": "true", "t": "true", "tn": "true", "geographic": "true",
+    "magnetic": "magnetic", "mag": "magnetic", "m": "magnetic", "mn": "magnetic", "compass": "magnetic",
+    "grid": "grid", "g": "grid", "gn": "grid",
+}
+
+#: Default time window for grouping unlabelled bearings into fixes [minutes].
+#: Common practice, no single source: bearings of one fix are taken within
+#: about 10-20 min (see e.g. Schmutz & White 1990 on animal movement during a fix).
+DEFAULT_WINDOW_MIN = 20.0
+
+#: Two-bearing fixes crossing at less than this angle (or more than 180 minus it)
+#: are flagged as shallow [degrees]. Common practice, no single source; Chu et al.
+#: (1989, USGS) found larger errors for angles within 20 degrees of parallel.
+SHALLOW_CROSSING_DEG = 20.0
+
+
+def wrap360(angle_deg):
+    """Wrap angles to [0, 360). [°]"""
+    return np.mod(angle_deg, 360.0)
+
+
+def wrap180(angle_deg):
+    """Wrap angles to [-180, 180). [°]"""
+    return np.mod(np.asarray(angle_deg, dtype=float) + 180.0, 360.0) - 180.0
+
+
+def to_degrees(value, unit):
+    """Convert an angle in ``unit`` ('deg', 'mil' or 'grad') to degrees.
+
+    >>> float(to_degrees(1600.0, "mil")), float(to_degrees(100.0, "grad"))
+    (90.0, 90.0)
+    """
+    return np.asarray(value, dtype=float) * DEGREES_PER_UNIT[unit]
