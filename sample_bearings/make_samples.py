@@ -1,0 +1,225 @@
+"""Make the invented sample sheets of dfkit from a known truth kept beside them.
+
+Everything here is invented: the transmitters, the people (team letters only),
+and the positions (an unnamed patch of forest and farmland in central Europe,
+UTM zone 33N). Bearings are computed from the truth with pyproj's WGS84
+geodesics and NOAA's WMM2025 (wmm-calculator), *not* with dfkit, then given
+random errors drawn from a fixed seed. Run from the repository root:
+
+    .venv/bin/python sample_bearings/make_samples.py
+
+Files written (in this folder):
+
+* ``animal_fix.csv``: three compass bearings on one VHF tag from UTM positions;
+* ``hunt.csv``: a club hunt, four teams reporting bearings on two hidden
+  transmitters over an hour (one team reads mils, one bearing is a reflection);
+* ``week_tracking.csv`` + ``week_track.gpx``: a week of tracking three tags;
+  rows have a time but no position, which comes from the GPS track;
+* ``beacon_trials.csv``: bearings to test transmitters at known spots;
+* ``field_sheet_with_mistakes.csv``: a hand-typed sheet with the usual mistakes,
+  for ``dfkit check``;
+* ``truth_*.csv``: the true transmitter positions behind each sheet.
+"""
+
+from __future__ import annotations
+
+import csv
+import os
+import warnings
+from datetime import datetime, timedelta, timezone
+
+import numpy as np
+import pyproj
+
+HERE = os.path.dirname(os.path.abspath(__file__))
+GEOD = pyproj.Geod(ellps="WGS84")
+UTM33 = pyproj.Transformer.from_crs("EPSG:4326", "EPSG:32633", always_xy=True)
+rng = np.random.default_rng(20260503)
+
+BASE_LAT, BASE_LON = 47.862, 15.168   # an unnamed area; nothing here refers to a real site
+
+
+def offset(lat, lon, east_m, north_m):
+    az = np.degrees(np.arctan2(east_m, north_m))
+    lon2, lat2, _ = GEOD.fwd(lon, lat, az, np.hypot(east_m, north_m))
+    return lat2, lon2
+
+
+def azimuth(lat1, lon1, lat2, lon2):
+    az, _, _ = GEOD.inv(lon1, lat1, lon2, lat2)
+    return az % 360.0
+
+
+def declination(lat, lon, when: datetime):
+    from wmm import wmm_calc
+
+    start = datetime(when.year, 1, 1, tzinfo=timezone.utc)
+    end = datetime(when.year + 1, 1, 1, tzinfo=timezone.utc)
+    dyear = when.year + (when - start) / (end - start)
+    m = wmm_calc()
+    with warnings.catch_warnings():
+        warnings.simplefilter("ignore")
+        m.setup_env(np.array([lat]), np.array([lon]), np.array([0.0]), unit="km")
+        m.setup_time(dyear=np.array([dyear]))
+        return float(np.asarray(m.get_all()["dec"])[0])
+
+
+def write(name, header, rows):
+    with open(os.path.join(HERE, name), "w", newline="", encoding="utf-8") as fh:
+        w = csv.writer(fh, lineterminator="\n")
+        w.writerow(header)
+        w.writerows(rows)
+
+
+def iso(t: datetime, tz=timezone.utc):
+    return t.astimezone(tz).isoformat(timespec="seconds").replace("+00:00", "Z")
+
+
+CEST = timezone(timedelta(hours=2))
+
+
+def animal_fix():
+    """Tag 150.412 MHz, one morning fix: three compass bearings from UTM positions."""
+    t_lat, t_lon = offset(BASE_LAT, BASE_LON, 420.0, 610.0)
+    stations = [(-350.0, -280.0), (780.0, -150.0), (960.0, 1150.0)]
+    t0 = datetime(2026, 5, 3, 4, 12, tzinfo=timezone.utc)
+    rows = []
+    for k, (e, n) in enumerate(stations):
+        slat, slon = offset(BASE_LAT, BASE_LON, e, n)
+        when = t0 + timedelta(minutes=4 * k)
+        true_b = azimuth(slat, slon, t_lat, t_lon)
+        mag = (true_b - declination(slat, slon, when) + rng.normal(0.0, 5.0)) % 360.0
+        x, y = UTM33.transform(slon, slat)
+        rows.append(["F001", "150.412", iso(when, CEST), "33N", f"{x:.0f}", f"{y:.0f}", f"{mag:.0f}", "magnetic",
+                     "5", "A", "3-element Yagi", ["steady signal", "", "faint, wind"][k]])
+    write("animal_fix.csv", ["fix", "tag", "time", "utm_zone", "easting", "northing", "bearing", "north", "sd",
+                             "observer", "antenna", "note"], rows)
+    write("truth_animal_fix.csv", ["fix", "tag", "lat", "lon"], [["F001", "150.412", f"{t_lat:.7f}", f"{t_lon:.7f}"]])
+
+
+def hunt():
+    """Two hidden transmitters; four teams report bearings one at a time over an hour."""
+    foxes = {"fox-1": offset(BASE_LAT, BASE_LON, 2300.0, 3100.0), "fox-2": offset(BASE_LAT, BASE_LON, -1800.0, 2600.0)}
+    t0 = datetime(2026, 9, 12, 8, 0, tzinfo=timezone.utc)
+    teams = {"A": (-300.0, 0.0), "B": (1500.0, -400.0), "C": (3400.0, 900.0), "D": (-2500.0, 500.0)}
+    rows = []
+    events = []
+    for fox in foxes:
+        for team, (e, n) in teams.items():
+            for k in range(2):
+                minute = float(rng.uniform(0, 60))
+                events.append((minute, fox, team, e + k * 600.0 + rng.normal(0, 80), n + k * 700.0 + rng.normal(0, 80)))
+    events.sort()
+    reflection_done = False
+    for minute, fox, team, e, n in events:
+        slat, slon = offset(BASE_LAT, BASE_LON, e, n)
+        flat, flon = foxes[fox]
+        b = azimuth(slat, slon, flat, flon) + rng.normal(0.0, 4.0)
+        note = ""
+        if fox == "fox-1" and team == "C" and not reflection_done:
+            b += 38.0   # a reflection off a hillside: the classic wild bearing
+            note = "signal bouncing?"
+            reflection_done = True
+        b %= 360.0
+        unit, value = ("mil", f"{b * 6400 / 360:.0f}") if team == "B" else ("deg", f"{b:.0f}")
+        when = t0 + timedelta(minutes=minute)
+        rows.append([fox, fox, iso(when), f"{slat:.6f}", f"{slon:.6f}", value, unit, "true", "6", team, note])
+    write("hunt.csv", ["fix", "tag", "time", "lat", "lon", "bearing", "unit", "north", "sd", "observer", "note"], rows)
+    write("truth_hunt.csv", ["fix", "tag", "lat", "lon"],
+          [[f, f, f"{la:.7f}", f"{lo:.7f}"] for f, (la, lo) in foxes.items()])
+
+
+def week_tracking():
+    """Three tags, seven days; bearings timed, positions from a GPS track."""
+    tags = {"150.118": (600.0, 900.0), "150.262": (-900.0, 1400.0), "150.731": (1500.0, -200.0)}
+    track = []   # (time, lat, lon)
+    rows = []
+    truth = []
+    start_day = datetime(2026, 6, 1, 5, 30, tzinfo=timezone.utc)
+    for day in range(7):
+        t = start_day + timedelta(days=day)
+        here_e, here_n = 0.0, -1500.0
+        for tag, (ce, cn) in tags.items():
+            ae, an = ce + rng.normal(0, 250), cn + rng.normal(0, 250)   # the animal today
+            alat, alon = offset(BASE_LAT, BASE_LON, ae, an)
+            first_time = None
+            angles = rng.uniform(0, 2 * np.pi) + np.array([0.0, 2.1, 4.2]) + rng.normal(0, 0.25, 3)
+            n_bearings = 2 if (day == 4 and tag == "150.262") else 3
+            for k in range(n_bearings):
+                ang = angles[k] if n_bearings == 3 else [0.0, 0.25][k] + angles[0]  # a shallow pair on day 5
+                r = rng.uniform(500, 1100)
+                se, sn = ae + r * np.sin(ang), an + r * np.cos(ang)
+                # walk from here to the station: a point every 10 s for 5 minutes
+                for s in range(30):
+                    f = (s + 1) / 30
+                    la, lo = offset(BASE_LAT, BASE_LON, here_e + f * (se - here_e), here_n + f * (sn - here_n))
+                    track.append((t, la, lo))
+                    t += timedelta(seconds=10)
+                slat, slon = offset(BASE_LAT, BASE_LON, se, sn)
+                for s in range(9):   # standing for 90 s; the bearing is read in the middle
+                    jit = offset(slat, slon, rng.normal(0, 2), rng.normal(0, 2))
+                    track.append((t + timedelta(seconds=10 * s), *jit))
+                when = t + timedelta(seconds=45)
+                t += timedelta(seconds=90)
+                here_e, here_n = se, sn
+                true_b = azimuth(slat, slon, alat, alon)
+                mag = (true_b - declination(slat, slon, when) + rng.normal(0.0, 5.0)) % 360.0
+                rows.append([tag, iso(when, CEST), f"{mag:.0f}", "magnetic", "5", "B", ""])
+                first_time = first_time or when
+            truth.append([tag, iso(first_time), f"{alat:.7f}", f"{alon:.7f}", n_bearings])
+            t += timedelta(minutes=12)
+    write("week_tracking.csv", ["tag", "time", "bearing", "north", "sd", "observer", "note"], rows)
+    write("truth_week_tracking.csv", ["tag", "first_bearing_time", "lat", "lon", "n_bearings"], truth)
+    with open(os.path.join(HERE, "week_track.gpx"), "w", encoding="utf-8") as fh:
+        fh.write('<?xml version="1.0" encoding="UTF-8"?>\n<gpx version="1.1" creator="dfkit sample maker" '
+                 'xmlns="http://www.topografix.com/GPX/1/1">\n<trk><name>tracking week</name><trkseg>\n')
+        for when, la, lo in track:
+            fh.write(f'<trkpt lat="{la:.7f}" lon="{lo:.7f}"><time>{iso(when)}</time></trkpt>\n')
+        fh.write("</trkseg></trk>\n</gpx>\n")
+
+
+def beacon_trials():
+    """Bearings on test transmitters at known spots, for calibrating the bearing SD and bias."""
+    beacons = {"B1": (300.0, 800.0), "B2": (-700.0, 1200.0), "B3": (1400.0, 300.0)}
+    stations = [(-400.0, -300.0), (900.0, -500.0), (1600.0, 1400.0), (-1200.0, 200.0)]
+    rows, truth = [], []
+    t0 = datetime(2026, 4, 20, 7, 0, tzinfo=timezone.utc)
+    minute = 0
+    for bid, (be, bn) in beacons.items():
+        blat, blon = offset(BASE_LAT, BASE_LON, be, bn)
+        truth.append([bid, f"{blat:.7f}", f"{blon:.7f}"])
+        for se, sn in stations:
+            slat, slon = offset(BASE_LAT, BASE_LON, se, sn)
+            when = t0 + timedelta(minutes=minute)
+            minute += 3
+            b = (azimuth(slat, slon, blat, blon) + 1.0 + rng.normal(0, 4.0)) % 360.0   # 1 deg bias, SD 4
+            rows.append([bid, "trial", iso(when), f"{slat:.6f}", f"{slon:.6f}", f"{b:.0f}", "true",
+                         f"{blat:.7f}", f"{blon:.7f}", "A"])
+    write("beacon_trials.csv", ["fix", "tag", "time", "lat", "lon", "bearing", "north", "beacon_lat", "beacon_lon",
+                                "observer"], rows)
+    write("truth_beacon_trials.csv", ["fix", "lat", "lon"], truth)
+
+
+def mistakes():
+    """A hand-typed sheet with the usual mistakes (for ``dfkit check``)."""
+    rows = [
+        ["M1", "150.412", "2026-05-10T06:02:00+02:00", "47.8581", "15.1631", "52", "", "magnetic", ""],
+        ["M1", "150.412", "2026-05-10T06:07:00+02:00", "47.8602", "15.1802", "412", "", "magnetic", "mils, not degrees"],
+        ["M1", "150.412", "2026-05-10T06:11:00+02:00", "15.1779", "47.8733", "200", "", "magnetic", "lat/lon swapped"],
+        ["M1", "150.412", "2026-05-10 06:15", "47.8712", "15.1611", "118", "", "magnetic", "no UTC offset"],
+        ["M2", "150.412", "2026-05-10T07:30:00+02:00", "47.8590", "15.1650", "1025", "mil", "magnetic", ""],
+        ["M2", "150.412", "2026-05-10T07:34:00+02:00", "47.8611", "15.1822", "", "", "magnetic", "forgot the bearing"],
+        ["M2", "150.412", "2026-05-10T07:38:00+02:00", "47.8745", "15.1760", "205", "deg", "compass", ""],
+        ["M2", "150.412", "2026-05-10T07:41:00+02:00", "47.8705", "15.1625", "121", "degs", "magnetic", "unknown unit"],
+        ["M3", "150.412", "2031-05-10T07:41:00+02:00", "47.8705", "15.1625", "121", "", "magnetic", "past the model"],
+    ]
+    write("field_sheet_with_mistakes.csv", ["fix", "tag", "time", "lat", "lon", "bearing", "unit", "north", "note"], rows)
+
+
+if __name__ == "__main__":
+    animal_fix()
+    hunt()
+    week_tracking()
+    beacon_trials()
+    mistakes()
+    print("sample sheets written to", HERE)
