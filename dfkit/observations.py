@@ -299,7 +299,8 @@ def _positions(table: pd.DataFrame, decimal_comma: bool, col: _Collector, *, sta
     zparse = {}
     for z in set(zone_c[has_utm & ~col.bad].tolist()):
         zparse[z] = coords.parse_utm_zone(z)
-    col.reject(has_utm & np.array([zparse.get(z, ((0, 0), None))[1] is not None for z in zone_c]), "utm_zone",
+    col.reject(has_utm & np.array([zparse.get(z, ((0, 0), None))[1] is not None for z in zone_c], dtype=bool),
+               "utm_zone",
                lambda idx: [zparse[zone_c[i]][1] for i in idx])
     e_swapped = has_utm & (ea > 1.0e6) & (no < 1.0e6)
     col.reject(e_swapped, "easting", lambda idx: [f"{ea[i]:.0f} is too large for an easting and {no[i]:.0f} too "
