@@ -237,8 +237,8 @@ def _parse_declination(cells: np.ndarray, decimal_comma: bool):
     east = s.str.endswith("E").to_numpy()
     stripped = s.str.rstrip("EW").str.strip().to_numpy(dtype=object)
     vals, empty, bad, hints = _numbers(stripped, decimal_comma)
-    vals = np.where(west, -vals, vals)
     bad = bad | ((west | east) & (vals < 0) & ~np.isnan(vals))  # '-3W' is ambiguous
+    vals = np.where(west, -vals, vals)
     return vals, empty, bad, hints
 
 
