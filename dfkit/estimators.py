@@ -303,7 +303,8 @@ def solve(lat, lon, bearing_deg, group, n_groups, sd_deg=None, *, method="mle", 
     var_scale = np.where(known_g, 1.0, s2_est)
     cov = inv * var_scale[:, None, None]
     sd_known_val = np.sqrt(np.bincount(g, np.where(known_b, sd**2, 0.0), m) / np.maximum(counts, 1))
-    sd_out = np.where(known_g, sd_known_val, np.degrees(np.sqrt(s2_est)))
+    with np.errstate(invalid="ignore"):
+        sd_out = np.where(known_g, sd_known_val, np.degrees(np.sqrt(np.where(dof > 0, s2_est, np.nan))))
     sd_out = np.where(known_g | (dof > 0), sd_out, np.nan)
     cov[~(known_g | (dof > 0))] = np.nan
 

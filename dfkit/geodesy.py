@@ -37,8 +37,10 @@ def inverse(lat1, lon1, lat2, lon2):
     dist : ndarray
         Geodesic distance. [m]
     """
-    az12, az21, dist = GEOD.inv(np.asarray(lon1, float), np.asarray(lat1, float),
-                                np.asarray(lon2, float), np.asarray(lat2, float))
+    lat1, lon1, lat2, lon2 = np.broadcast_arrays(*(np.asarray(v, float) for v in (lat1, lon1, lat2, lon2)))
+    az12, az21, dist = GEOD.inv(lon1.ravel(), lat1.ravel(), lon2.ravel(), lat2.ravel())
+    shape = lat1.shape
+    az12, az21, dist = (np.asarray(v).reshape(shape) for v in (az12, az21, dist))
     return np.mod(az12, 360.0), np.mod(az21, 360.0), np.asarray(dist)
 
 

@@ -225,8 +225,9 @@ def _parse_one_time(text: str, zone):
 def _canon(cells: np.ndarray, aliases: dict, default: str):
     low = pd.Series(cells, dtype=object).astype(str).str.strip().str.lower()
     mapped = low.map(aliases)
-    out = mapped.where(low != "", default).to_numpy(dtype=object)
     unknown = (low != "").to_numpy() & mapped.isna().to_numpy()
+    out = mapped.where(low != "", default).to_numpy(dtype=object)
+    out[unknown] = default   # the row is rejected; keep a valid value so later checks stay quiet
     return out, unknown
 
 
@@ -521,9 +522,9 @@ def read_bearings(sheet, options: ReadOptions | None = None, **kwargs) -> Bearin
     col.reject(b_empty, "bearing", "bearing is missing")
     _reject_unparseable(col, b_bad, "bearing", b_c, b_h)
     full = np.array([FULL_CIRCLE.get(u, 360.0) for u in unit])
-    col.reject(b < 0, "bearing", lambda idx: [f"{b[i]:g} is negative; bearings run 0 to {full[i]:g} clockwise "
+    col.reject((b < 0) & ~unit_unknown, "bearing", lambda idx: [f"{b[i]:g} is negative; bearings run 0 to {full[i]:g} clockwise "
                                               f"(write {full[i] + b[i]:g})" for i in idx])
-    col.reject(b > full, "bearing", lambda idx: [_range_hint(b[i], unit[i]) for i in idx])
+    col.reject((b > full) & ~unit_unknown, "bearing", lambda idx: [_range_hint(b[i], unit[i]) for i in idx])
     bearing_deg = b * np.array([DEGREES_PER_UNIT.get(u, 1.0) for u in unit])
 
     # north

@@ -68,6 +68,11 @@ def ellipse_axes(cov_en, k) -> Ellipses:
     cov = np.asarray(cov_en, float).reshape(-1, 2, 2)
     k = np.broadcast_to(np.asarray(k, float), (cov.shape[0],))
     a, b, c = cov[:, 0, 0], cov[:, 0, 1], cov[:, 1, 1]
+    with np.errstate(invalid="ignore"):
+        return _axes(a, b, c, k)
+
+
+def _axes(a, b, c, k) -> Ellipses:
     half_tr = (a + c) / 2.0
     rad = np.sqrt(((a - c) / 2.0) ** 2 + b**2)
     lam1 = half_tr + rad
