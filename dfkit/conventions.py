@@ -59,7 +59,8 @@ SHALLOW_CROSSING_DEG = 20.0
 
 def wrap360(angle_deg):
     """Wrap angles to [0, 360). [°]"""
-    return np.mod(angle_deg, 360.0)
+    with np.errstate(invalid="ignore"):
+        return np.mod(angle_deg, 360.0)
 
 
 def wrap180(angle_deg):
