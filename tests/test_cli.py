@@ -1,0 +1,92 @@
+"""The command line: exit codes, outputs and messages, as a user sees them."""
+
+import json
+import re
+import subprocess
+import sys
+
+import gpxpy
+import pytest
+
+from dfkit.cli import main
+
+from .conftest import ROOT, SAMPLES
+
+GOOD = "fix,lat,lon,bearing,sd\nA,47,15,45,3\nA,47,15.02,315,3\nA,47.02,15.01,180,3\n"
+
+
+def test_check_exit_codes(write_sheet, tmp_path, capsys):
+    assert main(["check", str(write_sheet(GOOD))]) == 0
+    assert main(["check", str(write_sheet(GOOD + "A,47,15,412,3\n"))]) == 1
+    out = capsys.readouterr().out
+    assert "line 5, bearing: 412 is out of range for degrees (mils? set unit to mil)" in out
+    assert main(["check", str(tmp_path / "missing.csv")]) == 2
+    assert main(["check", str(write_sheet(""))]) == 2
+    assert main(["check"]) == 2                        # misuse
+    assert main(["check", str(write_sheet(GOOD)), "--unit", "furlong"]) == 2
+
+
+def test_check_writes_the_normalized_table(write_sheet, tmp_path):
+    out = tmp_path / "n.csv"
+    assert main(["check", str(write_sheet(GOOD + "A,47,15,412,3\n")), "-o", str(out)]) == 1
+    import pandas as pd
+
+    t = pd.read_csv(out)
+    for col in ("line", "fix", "tag", "time", "lat", "lon", "true_bearing", "sd", "declination", "convergence"):
+        assert col in t.columns
+    assert t["line"].tolist() == [2, 3, 4]
+
+
+def test_fix_writes_csv_geojson_gpx(write_sheet, tmp_path, capsys):
+    paths = [tmp_path / "f.csv", tmp_path / "f.geojson", tmp_path / "f.gpx"]
+    args = ["fix", str(write_sheet(GOOD + "B,47,15,45,3\n"))]
+    for p in paths:
+        args += ["-o", str(p)]
+    assert main(args) == 1          # fix B has one bearing: flagged, so exit 1
+    err = capsys.readouterr().err
+    assert re.search(r"2 fixes: 1 ok, 0 flagged, 1 failed", err)
+    assert "not for life-safety search" in err
+    import pandas as pd
+
+    t = pd.read_csv(paths[0])
+    required = ["fix", "tag", "time", "lat", "lon", "n_bearings", "method", "sd_deg", "level", "semi_major_m",
+                "semi_minor_m", "orientation_deg", "area_m2", "status", "reason"]
+    assert all(c in t.columns for c in required)
+    assert t["fix"].tolist() == ["A", "B"] and t["status"].tolist() == ["ok", "too_few"]
+    gj = json.loads(paths[1].read_text())
+    kinds = sorted({f["properties"]["kind"] for f in gj["features"]})
+    assert kinds == ["bearing", "ellipse", "fix", "station"]
+    gpx = gpxpy.parse(paths[2].read_text())
+    assert [w.name for w in gpx.waypoints] == ["A"]
+
+
+def test_geojson_is_split_at_the_antimeridian(write_sheet, tmp_path):
+    sheet = write_sheet("fix,lat,lon,bearing,sd\nA,-17.0,179.98,90,3\nA,-16.98,-179.9999,180,3\n")
+    out = tmp_path / "a.geojson"
+    main(["fix", str(sheet), "-o", str(out)])
+    gj = json.loads(out.read_text())
+    for f in gj["features"]:
+        g = f["geometry"]
+        flat = json.dumps(g["coordinates"])
+        lons = [float(x) for x in re.findall(r"\[(-?[\d.e-]+), -?[\d.e-]+\]", flat)]
+        assert all(-180 <= x <= 180 for x in lons), f["properties"]["kind"]
+    ell = [f for f in gj["features"] if f["properties"]["kind"] == "ellipse"][0]
+    assert ell["geometry"]["type"] == "MultiPolygon"   # the ellipse straddles 180 deg (RFC 7946 3.1.9)
+
+
+def test_python_m_dfkit_and_console_script_run():
+    r = subprocess.run([sys.executable, "-m", "dfkit", "--version"], capture_output=True, text=True)
+    assert r.returncode == 0 and "dfkit" in r.stdout
+
+
+def test_readme_commands_exist():
+    # Every `dfkit ...` command shown in the README parses.
+    text = (ROOT / "README.md").read_text()
+    cmds = re.findall(r"^\s*dfkit (check|fix|map) ", text, flags=re.M)
+    assert len(cmds) >= 3
+    assert "make demo" in text and "make test" in text
+
+
+@pytest.mark.parametrize("name, extra", [("animal_fix.csv", []), ("hunt.csv", ["--window", "90"])])
+def test_sample_sheets_solve_ok(name, extra, tmp_path):
+    assert main(["fix", str(SAMPLES / name), "-o", str(tmp_path / "x.csv")] + extra) == 0
