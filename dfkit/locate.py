@@ -151,6 +151,17 @@ def locate(bearings: Bearings, *, method: str = "mle", level: float = 0.95,
     reasons: list[list[str]] = [[] for _ in range(m)]
     lines_arr = b["line"].to_numpy() if len(b) else np.zeros(0, int)
 
+    # bearings of each fix, without scanning all bearings per fix
+    order = np.argsort(g, kind="stable")
+    starts = np.concatenate(([0], np.cumsum(counts)))
+    abs_res = np.abs(sol.residual_deg) if m else np.zeros(0)
+    wild_b = (abs_res > WILD_SD * sol.sd_deg[g]) if m else np.zeros(0, bool)
+    low_b = (sol.weight < 0.5) if m else np.zeros(0, bool)
+    behind_b = ((np.cos(np.radians(sol.residual_deg)) <= 0) & (sol.weight > 0)) if m else np.zeros(0, bool)
+    notable = np.zeros(m, bool)
+    if m:
+        np.logical_or.at(notable, g, wild_b | low_b)
+
     for i, lab in enumerate(labels):
         rej = bearings.rejected.get(lab, [])
         n = counts[i]
@@ -165,7 +176,8 @@ def locate(bearings: Bearings, *, method: str = "mle", level: float = 0.95,
         elif not sol.converged[i]:
             flags.append(("no_convergence", f"the estimate did not settle after {sol.iterations[i]} iterations"))
         elif sol.behind[i]:
-            sel = np.flatnonzero((g == i) & (np.cos(np.radians(sol.residual_deg)) <= 0) & (sol.weight > 0))
+            sel = order[starts[i]:starts[i + 1]]
+            sel = sel[behind_b[sel]]
             where = ", ".join(f"line {lines_arr[j]}" for j in sel[:3])
             flags.append(("diverging", f"the best point lies behind the observer at {where}: "
                                        "the bearings diverge"))
@@ -183,13 +195,12 @@ def locate(bearings: Bearings, *, method: str = "mle", level: float = 0.95,
         if flags:
             status[i] = flags[0][0]
             reasons[i].extend(text for _, text in flags)
-        if m and status[i] in WITH_POSITION:
-            sel = np.flatnonzero(g == i)
-            wild = sel[np.abs(sol.residual_deg[sel]) > WILD_SD * sol.sd_deg[i]] if np.isfinite(sol.sd_deg[i]) else []
-            for j in wild[:3]:
+        if m and notable[i] and status[i] in WITH_POSITION:
+            sel = order[starts[i]:starts[i + 1]]
+            for j in sel[wild_b[sel]][:3]:
                 reasons[i].append(f"line {lines_arr[j]} misses by {sol.residual_deg[j]:+.1f}° "
                                   f"(more than {WILD_SD:g} SD)")
-            low = sel[sol.weight[sel] < 0.5]
+            low = sel[low_b[sel]]
             for j in low[:3]:
                 reasons[i].append(f"line {lines_arr[j]} down-weighted to {sol.weight[j]:.2f}")
         if rej:

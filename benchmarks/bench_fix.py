@@ -1,0 +1,89 @@
+"""Speed and memory of `dfkit fix` on a season-sized sheet, against a per-fix optimiser loop.
+
+    .venv/bin/python benchmarks/bench_fix.py [--fixes 100000] [--loop-sample 300]
+
+1. Builds a sheet of N fixes x 4 bearings (noise 4 deg) around central Europe with pyproj geodesics.
+2. Times `dfkit fix SHEET -o out.csv` end to end in a subprocess (read, convert, solve, write) and records its
+   peak memory (ru_maxrss of the child).
+3. Times the same fixes solved one by one with scipy.optimize.least_squares on the same geodesic residuals
+   (observed bearing minus pyproj forward azimuth), on a random subsample, and scales per fix.
+Prints both and the ratio. Nothing is asserted: numbers go into notes, not into tests.
+"""
+
+from __future__ import annotations
+
+import argparse
+import os
+import resource
+import subprocess
+import sys
+import tempfile
+import time
+
+import numpy as np
+import pyproj
+
+GEOD = pyproj.Geod(ellps="WGS84")
+
+
+def make_sheet(path, n_fix, rng):
+    lat0 = rng.uniform(46.0, 49.0, n_fix)
+    lon0 = rng.uniform(9.0, 17.0, n_fix)
+    k = 4
+    ang = rng.uniform(0, 360, (n_fix, 1)) + np.arange(k) * 90 + rng.normal(0, 20, (n_fix, k))
+    dist = rng.uniform(400, 2000, (n_fix, k))
+    lon_s, lat_s, back = GEOD.fwd(np.repeat(lon0, k), np.repeat(lat0, k), ang.ravel(), dist.ravel())
+    bearing = (np.asarray(back) + rng.normal(0, 4.0, n_fix * k)) % 360
+    labels = np.repeat(np.arange(n_fix), k)
+    with open(path, "w") as fh:
+        fh.write("fix,lat,lon,bearing,sd\n")
+        for lab, la, lo, b in zip(labels, lat_s, lon_s, bearing):
+            fh.write(f"F{lab},{la:.6f},{lo:.6f},{b:.2f},4\n")
+    return np.asarray(lat_s).reshape(n_fix, k), np.asarray(lon_s).reshape(n_fix, k), bearing.reshape(n_fix, k)
+
+
+def loop_solve(lat, lon, bearing):
+    from scipy.optimize import least_squares
+
+    def resid(p):
+        az, _, _ = GEOD.inv(lon, lat, np.full(len(lat), p[1]), np.full(len(lat), p[0]))
+        return np.radians((bearing - np.asarray(az) + 180) % 360 - 180)
+
+    start = (lat.mean(), lon.mean())
+    return least_squares(resid, start, xtol=1e-12, ftol=1e-12).x
+
+
+def main():
+    ap = argparse.ArgumentParser()
+    ap.add_argument("--fixes", type=int, default=100_000)
+    ap.add_argument("--loop-sample", type=int, default=300)
+    a = ap.parse_args()
+    rng = np.random.default_rng(1)
+    with tempfile.TemporaryDirectory() as tmp:
+        sheet = os.path.join(tmp, "season.csv")
+        t0 = time.perf_counter()
+        lat, lon, b = make_sheet(sheet, a.fixes, rng)
+        print(f"built {a.fixes} fixes / {4 * a.fixes} bearings in {time.perf_counter() - t0:.1f} s")
+
+        t0 = time.perf_counter()
+        r = subprocess.run([sys.executable, "-m", "dfkit", "fix", sheet, "-o", os.path.join(tmp, "out.csv")],
+                           capture_output=True, text=True)
+        t_dfkit = time.perf_counter() - t0
+        peak_mb = resource.getrusage(resource.RUSAGE_CHILDREN).ru_maxrss / 1024
+        print(f"dfkit fix end to end: {t_dfkit:.1f} s ({1e6 * t_dfkit / a.fixes:.1f} us per fix), "
+              f"peak memory {peak_mb:.0f} MB, exit {r.returncode}")
+        print("  " + r.stderr.strip().splitlines()[-2] if r.stderr.strip() else "")
+
+        idx = rng.choice(a.fixes, size=min(a.loop_sample, a.fixes), replace=False)
+        t0 = time.perf_counter()
+        for i in idx:
+            loop_solve(lat[i], lon[i], b[i])
+        per_fix = (time.perf_counter() - t0) / len(idx)
+        print(f"scipy least_squares one fix at a time: {1e6 * per_fix:.0f} us per fix "
+              f"(x {a.fixes} = {per_fix * a.fixes:.0f} s)")
+        print(f"ratio (loop / dfkit, per fix, dfkit end to end incl. reading and writing): "
+              f"{per_fix * a.fixes / t_dfkit:.1f}x")
+
+
+if __name__ == "__main__":
+    main()
