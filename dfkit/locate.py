@@ -209,7 +209,11 @@ def locate(bearings: Bearings, *, method: str = "mle", level: float = 0.95,
 
     has_pos = np.isin(status, WITH_POSITION)
     has_region = has_pos & (status != "no_region") if m else has_pos
-    tags = b.groupby("fix", sort=False)["tag"].agg(lambda s: "/".join(dict.fromkeys(x for x in s if x)))
+    pairs = b.loc[b["tag"] != "", ["fix", "tag"]].drop_duplicates()
+    multi = pairs["fix"].duplicated(keep=False)
+    tags = pairs[~multi].set_index("fix")["tag"].to_dict()
+    if multi.any():
+        tags.update(pairs[multi].groupby("fix", sort=False)["tag"].agg("/".join).to_dict())
     table = pd.DataFrame({
         "fix": labels,
         "tag": [tags.get(lab, "") for lab in labels],

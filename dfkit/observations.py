@@ -165,6 +165,23 @@ _DEC_COMMA = re.compile(r"^[+-]?\d*,\d+$")
 
 def _numbers(cells: np.ndarray, decimal_comma: bool):
     """Parse text cells as floats. Returns (values, empty mask, unparseable mask, hint per cell)."""
+    cells = np.asarray(cells, dtype=object)
+    fast = pd.to_numeric(pd.Series(cells, dtype=object), errors="coerce").to_numpy(dtype=float, copy=True)
+    empty = cells == ""
+    slow = ~np.isfinite(fast) & ~empty
+    if not slow.any():   # the common case: plain numbers and blanks, parsed in C
+        return np.where(empty, np.nan, fast), empty, np.zeros(len(cells), bool), np.full(len(cells), "", object)
+    vals, e2, bad, hints = _numbers_slow(cells[slow], decimal_comma)
+    fast[slow] = vals
+    unparseable = np.zeros(len(cells), bool)
+    unparseable[slow] = bad
+    empty[slow] = e2
+    all_hints = np.full(len(cells), "", object)
+    all_hints[slow] = hints
+    return np.where(empty | unparseable, np.nan, fast), empty, unparseable, all_hints
+
+
+def _numbers_slow(cells: np.ndarray, decimal_comma: bool):
     s = pd.Series(cells, dtype=object).astype(str).str.strip()
     s = s.str.replace("\u2212", "-", regex=False).str.rstrip("°").str.strip()
     empty = (s == "").to_numpy()
