@@ -236,6 +236,12 @@ def solve(lat, lon, bearing_deg, group, n_groups, sd_deg=None, *, method="mle", 
         nonlocal P_lat, P_lon
         active = (counts >= 2) & ~parallel & ~singular
         done = np.zeros(m, bool)
+        # Lenth's fixed-point step can fall into a 2-cycle on some geometries; a fix whose step stops
+        # shrinking gets its steps halved (down to 1/64) until it settles.
+        damp = np.ones(m)
+        last = np.full(m, np.inf)
+        last_x = np.zeros(m)
+        last_y = np.zeros(m)
         for it in range(max_iter):
             act = active & ~done
             if not act.any():
@@ -264,6 +270,13 @@ def solve(lat, lon, bearing_deg, group, n_groups, sd_deg=None, *, method="mle", 
             singular[bad] = True
             upd = act & ~bad
             step = np.hypot(x, y)
+            # a step that turns back on the previous one (dot product < 0) is an oscillation
+            reverse = upd & (x * last_x + y * last_y < 0) & (step >= 0.5 * last)
+            damp[reverse] = np.maximum(damp[reverse] * 0.5, 1.0 / 64.0)
+            last = np.where(upd, step, last)
+            x, y = x * damp, y * damp
+            last_x = np.where(upd, x, last_x)
+            last_y = np.where(upd, y, last_y)
             nl, no = geodesy.from_local(P_lat[upd], P_lon[upd], x[upd], y[upd])
             P_lat = P_lat.copy()
             P_lon = P_lon.copy()

@@ -226,3 +226,19 @@ def test_error_polygon_of_three_lines_contains_their_crossing():
 
     assert Polygon(np.column_stack([ring[1], ring[0]])).contains(Point(tgt[1], tgt[0]))
     assert regions.error_polygon([47.0, 47.0], [15.0, 15.01], [0.0, 0.0], 1.0, 47.01, 15.0) is None
+
+
+def test_lenth_iteration_does_not_settle_into_a_two_cycle():
+    # A benchmark fix on which the plain fixed-point step alternated between two points 273 m apart;
+    # the MLE must agree with a general optimiser (scipy Nelder-Mead on geographiclib azimuths).
+    st = [(47.355029, 13.635625), (47.366142, 13.618487), (47.377346, 13.647251), (47.375887, 13.657846)]
+    obs = np.array([16.05, 71.91, 223.32, 234.24])
+    s = one_fix(st, obs, sd_deg=np.full(4, 4.0))
+
+    def negll(p):
+        return -np.sum(np.cos(np.radians(obs - exact_bearings(st, p))))
+
+    ref = optimize.minimize(negll, [47.37, 13.64], method="Nelder-Mead",
+                            options={"xatol": 1e-10, "fatol": 1e-14, "maxiter": 5000}).x
+    assert s.converged[0]
+    assert WGS.Inverse(ref[0], ref[1], s.lat[0], s.lon[0])["s12"] < 0.01
