@@ -68,16 +68,21 @@ def latlon_to_projected(crs: pyproj.CRS, lat, lon):
 
 def utm_to_latlon(zone, south, easting, northing):
     """UTM (per-row zone and hemisphere) to lat, lon [°]; vectorised by zone."""
-    zone = np.asarray(zone, int)
-    south = np.asarray(south, bool)
     e = np.asarray(easting, float)
     n = np.asarray(northing, float)
     lat = np.full(e.shape, np.nan)
     lon = np.full(e.shape, np.nan)
-    for z, s in set(zip(zone.tolist(), south.tolist())):
-        m = (zone == z) & (south == s)
-        lat[m], lon[m] = projected_to_latlon(utm_crs(z, s), e[m], n[m])
+    for crs, m in _zone_groups(zone, south):
+        lat[m], lon[m] = projected_to_latlon(crs, e[m], n[m])
     return lat, lon
+
+
+def _zone_groups(zone, south):
+    """(UTM CRS, row mask) for each distinct zone and hemisphere among the rows."""
+    zone = np.asarray(zone, int)
+    south = np.asarray(south, bool)
+    for z, s in set(zip(zone.tolist(), south.tolist())):
+        yield utm_crs(z, s), (zone == z) & (south == s)
 
 
 def standard_utm_zone(lat, lon):
@@ -107,14 +112,11 @@ def convergence_deg(crs: pyproj.CRS, lat, lon):
 
 def utm_convergence_deg(zone, south, lat, lon):
     """Convergence [°] of each point in its own (given) UTM zone."""
-    zone = np.asarray(zone, int)
-    south = np.asarray(south, bool)
     lat = np.asarray(lat, float)
     lon = np.asarray(lon, float)
     out = np.full(lat.shape, np.nan)
-    for z, s in set(zip(zone.tolist(), south.tolist())):
-        m = (zone == z) & (south == s)
-        out[m] = convergence_deg(utm_crs(z, s), lat[m], lon[m])
+    for crs, m in _zone_groups(zone, south):
+        out[m] = convergence_deg(crs, lat[m], lon[m])
     return out
 
 
