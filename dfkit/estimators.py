@@ -139,26 +139,8 @@ class _Problem:
         r = np.radians((self.theta[sel] - az_sp + 180.0) % 360.0 - 180.0)
         mu = a + np.pi
         phi = r + mu
-        return dict(g=g, sx=sx, sy=sy, r=r, mu=mu, nx=np.cos(phi), ny=-np.sin(phi), d=np.maximum(d, 1e-9))
-
-
-def _solve_2x2(geo, alpha, lx, ly, m):
-    """Solve sum alpha L n^T P = sum alpha L (n . s) per group; returns x, y, det ratio."""
-    g, nx, ny = geo["g"], geo["nx"], geo["ny"]
-    c = nx * geo["sx"] + ny * geo["sy"]
-    a11 = np.bincount(g, alpha * lx * nx, m)
-    a12 = np.bincount(g, alpha * lx * ny, m)
-    a21 = np.bincount(g, alpha * ly * nx, m)
-    a22 = np.bincount(g, alpha * ly * ny, m)
-    b1 = np.bincount(g, alpha * lx * c, m)
-    b2 = np.bincount(g, alpha * ly * c, m)
-    det = a11 * a22 - a12 * a21
-    scale = (np.abs(a11) + np.abs(a22)) ** 2 / 4.0
-    with np.errstate(divide="ignore", invalid="ignore"):
-        x = (a22 * b1 - a12 * b2) / det
-        y = (a11 * b2 - a21 * b1) / det
-        ratio = np.abs(det) / scale
-    return x, y, ratio
+        return dict(g=g, sx=sx, sy=sy, r=r, mu=mu, phi=phi, nx=np.cos(phi), ny=-np.sin(phi),
+                    d=np.maximum(d, 1e-9))
 
 
 def _robust_weights(method, r, sd_rad, c):
@@ -171,8 +153,132 @@ def _robust_weights(method, r, sd_rad, c):
     return w
 
 
+def _solve2(a11, a12, a21, a22, b1, b2):
+    det = a11 * a22 - a12 * a21
+    scale = (np.abs(a11) + np.abs(a22)) ** 2 / 4.0
+    with np.errstate(divide="ignore", invalid="ignore"):
+        return (a22 * b1 - a12 * b2) / det, (a11 * b2 - a21 * b1) / det, np.abs(det) / scale
+
+
+def _planar_solve(method, geo, m, act, w_rel, sd_rad, robust_c, tol, max_iter):
+    """Solve every active fix in its (fixed) local plane, centred at the current estimate.
+
+    Least squares gives the start in closed form; ``stansfield`` then re-weights by
+    the ranges; ``mle`` takes Newton steps on sum w cos(r) (scoring step:
+    sum w g g^T dP = sum w sin(r) g, g the gradient of the predicted bearing); the
+    robust methods continue with the same steps and iteratively re-computed
+    weights. ``mle`` uses the full Newton matrix of sum w cos(r) where it is
+    positive definite (quadratic convergence), the scoring matrix elsewhere. Returns the planar solution (x, y) per fix, whether it settled,
+    singular fixes, iteration counts, and the final robust weight of each bearing.
+    """
+    gi, sx, sy, nx, ny, phi = geo["g"], geo["sx"], geo["sy"], geo["nx"], geo["ny"], geo["phi"]
+    nb = len(gi)
+    c = nx * sx + ny * sy
+    px, py, ratio = _solve2(*(np.bincount(gi, v, m) for v in (nx * nx, nx * ny, ny * nx, ny * ny, nx * c, ny * c)))
+    singular = act & (~np.isfinite(px) | ~np.isfinite(py) | (ratio < 1e-14))
+    px = np.where(singular, 0.0, px)
+    py = np.where(singular, 0.0, py)
+    iters = np.ones(m, int)
+    wts = np.ones(nb)
+    settled = act & ~singular
+    if method == "lsq":
+        return px, py, settled, singular, iters, wts
+    chain = ["stansfield"] if method == "stansfield" else (["mle"] + ([method] if method in ("huber", "andrews")
+                                                                      else []))
+    for kind in chain:
+        done = ~act | singular
+        # Lenth-type iterations can fall into a 2-cycle on some geometries: a step that turns back on the
+        # previous one is halved (down to 1/64) until the fix settles.
+        damp = np.ones(m)
+        last = np.full(m, np.inf)
+        lx = np.zeros(m)
+        ly = np.zeros(m)
+        near = np.full(m, np.inf)      # distance from the plane's centre to the nearest station
+        np.minimum.at(near, gi, np.hypot(sx, sy))
+        # Work only on fixes still iterating: bearings `idx`, fixes `grp`, compact fix index `cg`.
+        idx = np.arange(nb)
+        grp = np.arange(m)
+        cg = gi
+        for _ in range(max_iter):
+            if done.all():
+                break
+            live = ~done[grp]
+            if live.sum() < 0.7 * len(grp):
+                grp = grp[live]
+                keep = ~done[gi[idx]]
+                idx = idx[keep]
+                cg = np.searchsorted(grp, gi[idx])
+            mg = len(grp)
+            b_sx, b_sy, b_w = sx[idx], sy[idx], w_rel[idx]
+            pxg, pyg = px[grp], py[grp]
+            dx = pxg[cg] - b_sx
+            dy = pyg[cg] - b_sy
+            d2 = np.maximum(dx * dx + dy * dy, 1e-18)
+            if kind == "stansfield":
+                a = b_w / d2
+                bnx, bny, bc = nx[idx], ny[idx], c[idx]
+                nx2, ny2 = a * bnx, a * bny
+                qx, qy, ratio = _solve2(*(np.bincount(cg, v, mg) for v in (nx2 * bnx, nx2 * bny, ny2 * bnx,
+                                                                           ny2 * bny, nx2 * bc, ny2 * bc)))
+                stepx, stepy = qx - pxg, qy - pyg
+            else:
+                r = (phi[idx] - np.arctan2(dx, dy) + np.pi) % (2 * np.pi) - np.pi
+                if kind in ("huber", "andrews"):
+                    scale = np.maximum(1.4826 * _group_median(np.abs(r), cg, mg), np.radians(MIN_SCALE_DEG))
+                    sdr = sd_rad[idx]
+                    wr = _robust_weights(kind, r, np.where(np.isfinite(sdr), sdr, scale[cg]), robust_c)
+                    wts[idx] = wr
+                    a = b_w * wr
+                    cr, sr = np.ones_like(r), np.sin(r)      # iteratively re-weighted scoring steps
+                else:
+                    a = b_w
+                    # Newton steps on sum w cos(r) once close (quadratic convergence); scoring steps before
+                    newton = (last[grp] < 0.01 * near[grp])[cg]
+                    cr, sr = np.where(newton, np.cos(r), 1.0), np.where(newton, np.sin(r), 0.0)
+                gx = dy / d2
+                gy = -dx / d2
+                # -Hessian of sum a cos(r): a [cos r g g^T - sin r dg/dP], dg/dP = [[-2xy, x2-y2], [x2-y2, 2xy]]/d^4
+                k = a * sr / (d2 * d2) if kind == "mle" else np.zeros_like(a)
+                kxy = 2.0 * dx * dy * k
+                kd = (dx * dx - dy * dy) * k
+                acr = a * cr
+                h11 = np.bincount(cg, acr * gx * gx + kxy, mg)
+                h12 = np.bincount(cg, acr * gx * gy - kd, mg)
+                h22 = np.bincount(cg, acr * gy * gy - kxy, mg)
+                ag = a * np.sin(r)
+                b1 = np.bincount(cg, ag * gx, mg)
+                b2 = np.bincount(cg, ag * gy, mg)
+                # where the Newton matrix is not positive definite, take a scoring step instead
+                nonpd = (h11 <= 0) | (h11 * h22 - h12 * h12 <= 0)
+                if nonpd.any():
+                    j11 = np.bincount(cg, a * gx * gx, mg)
+                    j12 = np.bincount(cg, a * gx * gy, mg)
+                    j22 = np.bincount(cg, a * gy * gy, mg)
+                    h11, h12, h22 = (np.where(nonpd, j, h) for j, h in ((j11, h11), (j12, h12), (j22, h22)))
+                stepx, stepy, ratio = _solve2(h11, h12, h12, h22, b1, b2)
+            upd = ~done[grp]
+            bad = upd & (~np.isfinite(stepx) | ~np.isfinite(stepy) | (ratio < 1e-14))
+            singular[grp[bad]] = True
+            upd &= ~bad
+            step = np.hypot(stepx, stepy)
+            dmp, lst = damp[grp], last[grp]
+            with np.errstate(invalid="ignore"):
+                reverse = upd & (stepx * lx[grp] + stepy * ly[grp] < 0) & (step >= 0.5 * lst)
+            dmp = np.where(reverse, np.maximum(dmp * 0.5, 1.0 / 64.0), dmp)
+            damp[grp] = dmp
+            last[grp] = np.where(upd, step, lst)
+            stepx = np.where(upd, stepx * dmp, 0.0)
+            stepy = np.where(upd, stepy * dmp, 0.0)
+            lx[grp], ly[grp] = stepx, stepy
+            px[grp], py[grp] = pxg + stepx, pyg + stepy
+            iters[grp] += upd
+            done[grp] |= bad | (upd & (step < tol))
+        settled = act & ~singular & done
+    return px, py, settled, singular, iters, wts
+
+
 def solve(lat, lon, bearing_deg, group, n_groups, sd_deg=None, *, method="mle", robust_c=ROBUST_C,
-          tol_m=1e-4, max_iter=200) -> Solution:
+          tol_m=1e-4, max_iter=60, max_outer=30) -> Solution:
     """Solve many fixes at once.
 
     Parameters
@@ -194,7 +300,9 @@ def solve(lat, lon, bearing_deg, group, n_groups, sd_deg=None, *, method="mle", 
     tol_m : float
         Convergence: the estimate moved less than this in the last iteration. [m]
     max_iter : int
-        Iterations allowed per phase (start, then the method).
+        Planar iterations allowed per re-centring.
+    max_outer : int
+        Re-centrings of the exact local plane allowed.
 
     Returns
     -------
@@ -230,71 +338,42 @@ def solve(lat, lon, bearing_deg, group, n_groups, sd_deg=None, *, method="mle", 
     spread0 = np.degrees(np.arccos(np.clip(np.hypot(c2, s2) / np.maximum(counts, 1), 0, 1))) / 1.0
     parallel = (spread0 < PARALLEL_DEG) & (counts >= 2)
 
+    base = (counts >= 2) & ~parallel
+    # Per-bearing geometry at the latest estimate of its fix (kept for the final statistics).
+    last_geo = {k: geo0[k].copy() for k in ("r", "mu", "d")}
     weight = np.ones(N)
-
-    def phase(kind):
-        nonlocal P_lat, P_lon
-        active = (counts >= 2) & ~parallel & ~singular
-        done = np.zeros(m, bool)
-        # Lenth's fixed-point step can fall into a 2-cycle on some geometries; a fix whose step stops
-        # shrinking gets its steps halved (down to 1/64) until it settles.
-        damp = np.ones(m)
-        last = np.full(m, np.inf)
-        last_x = np.zeros(m)
-        last_y = np.zeros(m)
-        for it in range(max_iter):
-            act = active & ~done
-            if not act.any():
-                break
-            sel = act[g]
+    done = np.zeros(m, bool)
+    unsettled = np.zeros(m, int)    # re-centrings whose planar solve did not settle
+    geo = geo0
+    for outer in range(max_outer):
+        act = base & ~done & ~singular & (unsettled < 2)
+        if not act.any():
+            break
+        sel = act[g]
+        if outer:
             geo = prob.geometry(P_lat, P_lon, sel)
-            gi = geo["g"]
-            d = geo["d"]
-            if kind == "lsq":
-                alpha, lx, ly = np.ones(len(gi)), geo["nx"], geo["ny"]
-            elif kind == "stansfield":
-                alpha, lx, ly = w_rel[sel] / d**2, geo["nx"], geo["ny"]
-            else:
-                alpha = w_rel[sel] / d**2
-                if kind in ("huber", "andrews"):
-                    sd_rad = np.radians(np.where(known_b[sel], sd[sel], np.nan))
-                    scale = 1.4826 * _group_median(np.abs(geo["r"]), gi, m)
-                    scale = np.maximum(scale, np.radians(MIN_SCALE_DEG))
-                    sd_rad = np.where(np.isfinite(sd_rad), sd_rad, scale[gi])
-                    wr = _robust_weights(kind, geo["r"], sd_rad, robust_c)
-                    weight[sel] = wr
-                    alpha = alpha * wr
-                lx, ly = np.cos(geo["mu"]), -np.sin(geo["mu"])
-            x, y, ratio = _solve_2x2(geo, alpha, lx, ly, m)
-            bad = act & (~np.isfinite(x) | ~np.isfinite(y) | (ratio < 1e-14))
-            singular[bad] = True
-            upd = act & ~bad
-            step = np.hypot(x, y)
-            # a step that turns back on the previous one (dot product < 0) is an oscillation
-            reverse = upd & (x * last_x + y * last_y < 0) & (step >= 0.5 * last)
-            damp[reverse] = np.maximum(damp[reverse] * 0.5, 1.0 / 64.0)
-            last = np.where(upd, step, last)
-            x, y = x * damp, y * damp
-            last_x = np.where(upd, x, last_x)
-            last_y = np.where(upd, y, last_y)
-            nl, no = geodesy.from_local(P_lat[upd], P_lon[upd], x[upd], y[upd])
-            P_lat = P_lat.copy()
-            P_lon = P_lon.copy()
-            P_lat[upd], P_lon[upd] = nl, no
-            iterations[upd] += 1
-            done |= upd & (step < tol_m)
-        return done
+        else:
+            geo = {k: v[sel] for k, v in geo0.items()}
+        for k in ("r", "mu", "d"):
+            last_geo[k][sel] = geo[k]
+        px, py, inner_ok, sing, its, wts = _planar_solve(
+            method, geo, m, act, w_rel[sel], np.radians(np.where(known_b[sel], sd[sel], np.nan)),
+            robust_c, tol_m / 100.0, max_iter)
+        weight[sel] = wts
+        singular |= act & sing
+        iterations += np.where(act, its, 0)
+        move = act & ~sing
+        step = np.hypot(px, py)
+        P_lat = P_lat.copy()
+        P_lon = P_lon.copy()
+        P_lat[move], P_lon[move] = geodesy.from_local(P_lat[move], P_lon[move], px[move], py[move])
+        # Settled when the exact plane about the estimate puts the answer at its centre.
+        done |= move & inner_ok & (step < tol_m)
+        unsettled += act & ~inner_ok
+    converged[:] = done & ~singular & ~parallel & (counts >= 2)
 
-    conv_start = phase("lsq")
-    converged[:] = conv_start
-    if method != "lsq":
-        converged[:] = phase("stansfield" if method == "stansfield" else "mle")
-        if method in ("huber", "andrews"):
-            converged[:] = phase(method)
-    converged &= ~singular & ~parallel & (counts >= 2)
-
-    # Final geometry and covariance.
-    geo = prob.geometry(P_lat, P_lon, np.ones(N, bool))
+    # Final statistics from the geometry at the settled estimate (it moved by less than tol_m since).
+    geo = last_geo
     r = geo["r"]
     d = geo["d"]
     if method not in ("huber", "andrews"):
@@ -321,8 +400,7 @@ def solve(lat, lon, bearing_deg, group, n_groups, sd_deg=None, *, method="mle", 
     sd_out = np.where(known_g | (dof > 0), sd_out, np.nan)
     cov[~(known_g | (dof > 0))] = np.nan
 
-    az_p = geodesy.inverse(P_lat[g], P_lon[g], lat, lon)[0]
-    dirs = np.radians(az_p)
+    dirs = geo["mu"]   # line of sight at the fix (doubled angles ignore its sense)
     c2 = np.bincount(g, used * np.cos(2 * dirs), m)
     s2 = np.bincount(g, used * np.sin(2 * dirs), m)
     crossing = np.degrees(np.arccos(np.clip(np.hypot(c2, s2) / np.maximum(n_used, 1), 0, 1)))
