@@ -131,7 +131,7 @@ def locate(bearings: Bearings, *, method: str = "mle", level: float = 0.95,
     clat, clon = geodesy.group_centroid(lat, lon, g, m)
     spread = np.zeros(m)
     if len(b):
-        _, _, dc = geodesy.inverse(clat[g], clon[g], lat, lon)
+        dc = geodesy.chord_distance_m(clat[g], clon[g], lat, lon)   # only compared with ONE_SPOT_M
         np.maximum.at(spread, g, dc)
     epoch = pd.Timestamp("1970-01-01", tz="UTC")
     t_s = (b["time"] - epoch).dt.total_seconds().to_numpy(float) if len(b) else np.zeros(0)
@@ -162,7 +162,16 @@ def locate(bearings: Bearings, *, method: str = "mle", level: float = 0.95,
     if m:
         np.logical_or.at(notable, g, wild_b | low_b)
 
-    for i, lab in enumerate(labels):
+    # Only fixes with something to say need the (per-fix) wording below; the rest are plain 'ok'.
+    attention = np.zeros(m, bool)
+    if m:
+        with np.errstate(invalid="ignore"):
+            attention = ((counts < 2) | (spread < ONE_SPOT_M) | sol.parallel | ~sol.converged | sol.behind
+                         | (sol.crossing_deg < SHALLOW_CROSSING_DEG) | (span_min > window_min)
+                         | (~sol.sd_known & (sol.dof <= 0)) | notable)
+        attention |= np.isin(np.asarray(labels, dtype=object), list(bearings.rejected))
+    for i in np.flatnonzero(attention):
+        lab = labels[i]
         rej = bearings.rejected.get(lab, [])
         n = counts[i]
         flags = []

@@ -239,17 +239,30 @@ def _parse_one_time(text: str, zone):
     return dt.timestamp(), ""
 
 
+def _per_value(cells: np.ndarray, func):
+    """Apply ``func`` once per distinct cell value (columns like unit or north repeat a few values)."""
+    codes, uniques = pd.factorize(np.asarray(cells, dtype=object))
+    mapped = np.empty(len(uniques), dtype=object)
+    for k, u in enumerate(uniques):
+        mapped[k] = func(u)
+    out = mapped[codes] if len(codes) else np.zeros(0, dtype=object)
+    return out
+
+
 def _canon(cells: np.ndarray, aliases: dict, default: str):
-    low = pd.Series(cells, dtype=object).astype(str).str.strip().str.lower()
-    mapped = low.map(aliases)
-    unknown = (low != "").to_numpy() & mapped.isna().to_numpy()
-    out = mapped.where(low != "", default).to_numpy(dtype=object)
+    low = _per_value(cells, lambda u: str(u).strip().lower())
+    canon = _per_value(low, lambda u: aliases.get(u, default if u == "" else None))
+    unknown = pd.isna(canon).astype(bool) if len(canon) else np.zeros(0, bool)
+    out = canon.copy()
     out[unknown] = default   # the row is rejected; keep a valid value so later checks stay quiet
     return out, unknown
 
 
 def _parse_declination(cells: np.ndarray, decimal_comma: bool):
     """Declination cells: '3.5', '-3.5', '3.5E' or '3.5W' -> degrees east."""
+    if not (np.asarray(cells, dtype=object) != "").any():
+        n = len(cells)
+        return np.full(n, np.nan), np.ones(n, bool), np.zeros(n, bool), np.full(n, "", object)
     s = pd.Series(cells, dtype=object).astype(str).str.strip().str.upper()
     west = s.str.endswith("W").to_numpy()
     east = s.str.endswith("E").to_numpy()
@@ -538,11 +551,11 @@ def read_bearings(sheet, options: ReadOptions | None = None, **kwargs) -> Bearin
     b, b_empty, b_bad, b_h = _numbers(b_c, raw.decimal_comma)
     col.reject(b_empty, "bearing", "bearing is missing")
     _reject_unparseable(col, b_bad, "bearing", b_c, b_h)
-    full = np.array([FULL_CIRCLE.get(u, 360.0) for u in unit])
+    full = _per_value(unit, lambda u: FULL_CIRCLE.get(u, 360.0)).astype(float)
     col.reject((b < 0) & ~unit_unknown, "bearing", lambda idx: [f"{b[i]:g} is negative; bearings run 0 to {full[i]:g} clockwise "
                                               f"(write {full[i] + b[i]:g})" for i in idx])
     col.reject((b > full) & ~unit_unknown, "bearing", lambda idx: [_range_hint(b[i], unit[i]) for i in idx])
-    bearing_deg = b * np.array([DEGREES_PER_UNIT.get(u, 1.0) for u in unit])
+    bearing_deg = b * _per_value(unit, lambda u: DEGREES_PER_UNIT.get(u, 1.0)).astype(float)
 
     # north
     north, north_unknown = _canon(_col(t, "north"), NORTH_ALIASES, opts.north)

@@ -29,7 +29,10 @@ _ROUNDING = {"lat": 7, "lon": 7, "true_bearing": 3, "declination": 3, "convergen
 
 
 def _iso(series: pd.Series) -> pd.Series:
-    return series.dt.strftime("%Y-%m-%dT%H:%M:%SZ").fillna("")
+    """UTC times as ISO 8601 text ending in Z; '' where missing."""
+    values = series.dt.tz_convert("UTC").dt.tz_localize(None).to_numpy(dtype="datetime64[s]")
+    text = np.char.add(np.datetime_as_string(values, unit="s"), "Z")
+    return pd.Series(np.where(np.isnat(values), "", text), index=series.index, dtype=object)
 
 
 def _for_csv(df: pd.DataFrame) -> pd.DataFrame:

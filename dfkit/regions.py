@@ -21,7 +21,6 @@ from __future__ import annotations
 from dataclasses import dataclass
 
 import numpy as np
-from scipy import stats
 
 from dfkit import geodesy
 
@@ -42,13 +41,19 @@ def scale_factor(level, dof=None):
     2.447747
     """
     level = np.asarray(level, float)
+    # Both quantiles have closed forms for 2 numerator degrees of freedom (checked against
+    # scipy.stats in tests/test_estimators.py):
+    #   chi2_2:   P(X <= x) = 1 - exp(-x/2)           =>  x = -2 ln(1 - p)
+    #   F(2, m):  P(X <= x) = 1 - (1 + 2x/m)^(-m/2)   =>  x = (m/2) ((1 - p)^(-2/m) - 1)
+    chi2 = -2.0 * np.log1p(-level)
     if dof is None:
-        return np.sqrt(stats.chi2.ppf(level, 2))
+        return np.sqrt(chi2)
     dof = np.asarray(dof, float)
     known = ~(dof > 0)
-    with np.errstate(invalid="ignore"):
-        f = np.sqrt(2.0 * stats.f.ppf(level, 2, np.where(known, 1.0, dof)))
-    return np.where(known, np.sqrt(stats.chi2.ppf(level, 2)), f)
+    m = np.where(known, 1.0, dof)
+    with np.errstate(invalid="ignore", over="ignore"):
+        f = (m / 2.0) * np.expm1(-(2.0 / m) * np.log1p(-level))
+    return np.where(known, np.sqrt(chi2), np.sqrt(2.0 * f))
 
 
 @dataclass(frozen=True)

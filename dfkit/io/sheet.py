@@ -19,8 +19,10 @@ from __future__ import annotations
 import csv
 import io
 import os
+import re
 from dataclasses import dataclass, field
 
+import numpy as np
 import pandas as pd
 
 from dfkit.problems import Problem, SheetError
@@ -137,6 +139,17 @@ def read_sheet(source, *, name: str | None = None) -> RawSheet:
         raise SheetError(f"{name or 'the sheet'} has only comments or blank lines: no header row")
     delimiter = _sniff_delimiter(lines[header_idx])
 
+    fast = _fast_read(text, lines, header_idx, delimiter)
+    if fast is not None:
+        header = next(csv.reader([lines[header_idx]], delimiter=delimiter))
+        columns = _resolve_header(header, header_idx + 1, name, problems)
+        table, skipped = fast
+        table.columns = ["line"] + columns
+        if not len(table):
+            problems.append(Problem(header_idx + 1, "", "the sheet has a header but no data rows", "warning", name))
+        return RawSheet(table=table, columns=columns, delimiter=delimiter, decimal_comma=delimiter != ",",
+                        problems=problems, skipped_lines=skipped, source=name)
+
     reader = csv.reader(io.StringIO(text, newline=""), delimiter=delimiter, skipinitialspace=False)
     header: list[str] | None = None
     header_line = 0
@@ -188,6 +201,49 @@ def read_sheet(source, *, name: str | None = None) -> RawSheet:
         problems.append(Problem(header_line, "", "the sheet has a header but no data rows", "warning", name))
     return RawSheet(table=table, columns=columns, delimiter=delimiter,
                     decimal_comma=delimiter != ",", problems=problems, skipped_lines=skipped, source=name)
+
+
+_NOT_SIMPLE = re.compile('["\r\x0b\x0c\x1c\x1d\x1e\x85\u2028\u2029]')
+
+
+def _fast_read(text, lines, header_idx, delimiter):
+    """The common case read by pandas' C parser: no quotes and plain line ends, so one physical line is
+    one row and line numbers follow directly. Returns (table, skipped lines) or None for the general path."""
+    if _NOT_SIMPLE.search(text.replace("\r\n", "\n")):
+        return None
+    width = len(next(csv.reader([lines[header_idx]], delimiter=delimiter)))
+    body = "\n".join(lines[header_idx + 1:])
+    if not body.strip():
+        return None
+    try:
+        df = pd.read_csv(io.StringIO(body), sep=delimiter, header=None, dtype=str, na_filter=False,
+                         skip_blank_lines=False, quoting=csv.QUOTE_NONE, engine="c")
+    except (pd.errors.ParserError, ValueError):
+        return None
+    if df.shape[1] != width or len(df) != len(lines) - header_idx - 1:
+        return None
+    cells = [df[c].to_numpy(dtype=object) for c in df.columns]
+    if _has_padding(body, delimiter):
+        cells = [pd.Series(c, dtype=object).str.strip().to_numpy(dtype=object) for c in cells]
+    first = cells[0]
+    blank = np.ones(len(df), bool)
+    for c in cells:
+        blank &= c == ""
+    comment = (pd.Series(first, dtype=object).str.lstrip().str.startswith("#").to_numpy(dtype=bool)
+               if "#" in body else np.zeros(len(first), bool))
+    keep = ~(blank | comment)
+    lines_no = np.arange(header_idx + 2, header_idx + 2 + len(df))
+    table = pd.DataFrame({"line": pd.array(lines_no[keep], dtype="int64")})
+    for j, c in enumerate(cells):
+        table[j] = pd.Series(c[keep], dtype=object)
+    return table, int((~keep).sum())
+
+
+def _has_padding(body, delimiter):
+    """Whether any cell may carry surrounding white space."""
+    if delimiter == "\t":
+        return " " in body
+    return " " in body or "\t" in body
 
 
 def _resolve_header(header, header_line, name, problems) -> list[str]:
