@@ -330,7 +330,7 @@ def _positions(table: pd.DataFrame, decimal_comma: bool, col: _Collector, *, sta
     zparse = {}
     for z in set(zone_c[has_utm & ~col.bad].tolist()):
         zparse[z] = coords.parse_utm_zone(z)
-    col.reject(has_utm & np.array([zparse.get(z, ((0, 0), None))[1] is not None for z in zone_c], dtype=bool),
+    col.reject(has_utm & _per_value(zone_c, lambda z: zparse.get(z, ((0, 0), None))[1] is not None).astype(bool),
                "utm_zone",
                lambda idx: [zparse[zone_c[i]][1] for i in idx])
     e_swapped = has_utm & (ea > 1.0e6) & (no < 1.0e6)
@@ -536,7 +536,7 @@ def read_bearings(sheet, options: ReadOptions | None = None, **kwargs) -> Bearin
 
     fix_c = _col(t, "fix")
     tag_c = _col(t, "tag")
-    labels_in = list(dict.fromkeys(x for x in fix_c if x))
+    labels_in = [x for x in pd.unique(fix_c) if x]
 
     # time
     time_c = _col(t, "time")
@@ -665,7 +665,7 @@ def read_bearings(sheet, options: ReadOptions | None = None, **kwargs) -> Bearin
         label = fix_c[i]
         if label:
             rejected.setdefault(label, []).append(int(lines[i]))
-    labels = list(dict.fromkeys(list(labels_in) + [x for x in table["fix"] if x]))
+    labels = list(dict.fromkeys(labels_in + [x for x in pd.unique(table["fix"].to_numpy(dtype=object)) if x]))
     problems = sorted(col.problems, key=lambda p: (p.source != raw.source, p.line, p.severity != "error"))
     return Bearings(table=table, problems=problems, labels=labels, rejected=rejected, n_rows=n, notes=notes,
                     source=raw.source)
