@@ -7,12 +7,21 @@ distance and azimuth from the estimate, and the observed bearing theta_i (true,
 at the station) becomes the plane direction ``phi_i = r_i + mu_i``, where
 ``r_i = theta_i - alpha_i`` is the residual against the geodesic forward
 azimuth alpha_i from the station to the estimate, and mu_i the plane direction
-from the station to the centre. One planar update is made, the new point is
-carried back to the ellipsoid exactly (direct geodesic problem), the plane is
-re-centred there, and so on. At the fixed point the planar residuals *are* the
-geodesic residuals, so the answer carries no projection error over any
-baseline (tested from 200 m to thousands of km, across the antimeridian and
-near the poles).
+from the station to the centre. The fix is solved in that plane (cheap numpy
+iterations, no geodesics), the answer is carried back to the ellipsoid exactly
+(direct geodesic problem), the plane is re-centred there, and so on until the
+planar answer lies at the centre (typically two re-centrings). At that point the
+planar residuals *are* the geodesic residuals, so the answer carries no
+projection error over any baseline (tested from 200 m to thousands of km,
+across the antimeridian and near the poles).
+
+The estimators are defined by what they optimise; how the optimum is found is
+an implementation matter checked against general optimisers in the tests:
+closed-form least squares for the start, Newton steps on sum w cos(r) for
+``mle`` (scoring steps far from the optimum), iteratively re-weighted scoring
+steps for the robust methods, and re-weighted least squares for ``stansfield``.
+A step that turns back on the previous one is halved, so no fix is left
+oscillating.
 
 Estimators (``method``):
 
@@ -25,10 +34,10 @@ Estimators (``method``):
     fixing", J. IEE Part IIIA 94(15), 762-770, 1947.
 ``mle``
     Maximum likelihood under von Mises bearing errors, maximising
-    sum kappa_i cos(r_i) with Lenth's fixed-point iteration: R. V. Lenth, "On
+    sum kappa_i cos(r_i): R. V. Lenth, "On
     finding the source of a signal", Technometrics 23(2), 149-154, 1981.
 ``huber``, ``andrews``
-    Lenth's (1981) M-estimators: the same iteration with weights psi(t)/t of
+    Lenth's (1981) M-estimators: re-weighted steps with weights psi(t)/t of
     the standardised residual t_i = r_i / sigma (Huber: psi(t) = clip(t, -c, c);
     Andrews: psi(t) = c sin(t/c) for |t| < c pi, else 0), c = 1.5 by default.
     sigma is the given bearing SD or, when unknown, a robust scale
