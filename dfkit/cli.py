@@ -163,6 +163,8 @@ def _solve(a):
 
 def _print_summary(b, fixes) -> None:
     _report_problems(b.problems, sys.stderr)
+    for note in b.notes:
+        print(f"note            {note}", file=sys.stderr)
     s = fixes.summary()
     flagged = fixes.table[fixes.table["status"] != "ok"]
     for _, r in flagged.head(50).iterrows():
