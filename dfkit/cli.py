@@ -133,7 +133,7 @@ def _check(a) -> int:
         print(f"note      {note}")
     n_fix = b.table["fix"].nunique() if len(b.table) else 0
     print(f"{b.source}: {b.n_rows} rows, {len(b.table)} usable, {b.n_rejected} rejected; "
-          f"{n_fix} fixes ({len(b.labels)} labels in the sheet)")
+          f"{n_fix} {'fix' if n_fix == 1 else 'fixes'} ({len(b.labels)} labels in the sheet)")
     if a.output:
         _ensure_dir(a.output)
         write_table(b.table, a.output)
@@ -171,7 +171,8 @@ def _print_summary(b, fixes) -> None:
         print(f"{r['status']:<15} {r['fix']}: {r['reason']}", file=sys.stderr)
     if len(flagged) > 50:
         print(f"... {len(flagged) - 50} more flagged or failed fixes (see the status column)", file=sys.stderr)
-    print(f"{b.source}: {len(fixes.table)} fixes: {s['ok']} ok, {s['flagged']} flagged, {s['failed']} failed; "
+    nf = len(fixes.table)
+    print(f"{b.source}: {nf} {'fix' if nf == 1 else 'fixes'}: {s['ok']} ok, {s['flagged']} flagged, {s['failed']} failed; "
           f"{len(b.table)} of {b.n_rows} rows used, {b.n_rejected} rejected", file=sys.stderr)
     print(CAUTION_LINE, file=sys.stderr)
 

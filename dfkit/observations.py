@@ -786,7 +786,7 @@ def _group(col: _Collector, fix_c, tag_c, times, opts: ReadOptions, notes, raw: 
             n_groups += 1
         fix[i] = label
         grouped_by[i] = "window"
-    notes.append(f"{len(idx)} unlabelled bearings grouped into {n_groups} fixes by tag and a "
+    notes.append(f"{len(idx)} unlabelled bearings grouped into {n_groups} {'fix' if n_groups == 1 else 'fixes'} by tag and a "
                  f"{opts.window_min:g}-minute window (--window)")
     return fix, grouped_by
 
