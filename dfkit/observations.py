@@ -686,14 +686,14 @@ def _check_options(o: ReadOptions):
 
             ZoneInfo(o.tz)
         except Exception:
-            raise SheetError(f"--tz '{o.tz}' is not a known time zone (use a name like Europe/Vienna or UTC)")
+            raise SheetError(f"--tz '{o.tz}' is not a known time zone (use a name like Europe/Vienna or UTC)") from None
     if o.grid_crs:
         try:
             import pyproj
 
             crs = pyproj.CRS.from_user_input(o.grid_crs)
         except Exception:
-            raise SheetError(f"--grid-crs '{o.grid_crs}' is not a CRS PROJ knows (try EPSG:27700)")
+            raise SheetError(f"--grid-crs '{o.grid_crs}' is not a CRS PROJ knows (try EPSG:27700)") from None
         if not crs.is_projected:
             raise SheetError(f"--grid-crs '{o.grid_crs}' is not a projected CRS: it has no grid north")
 

@@ -172,7 +172,7 @@ def read_sheet(source, *, name: str | None = None) -> RawSheet:
             rows.append(row)
             line_numbers.append(start)
     except csv.Error as err:
-        raise SheetError(f"{name or 'the sheet'}: line {reader.line_num}: the CSV structure is broken ({err})")
+        raise SheetError(f"{name or 'the sheet'}: line {reader.line_num}: the CSV structure is broken ({err})") from None
 
     columns = _resolve_header(header, header_line, name, problems)
     width = len(columns)
