@@ -46,16 +46,6 @@ NORTH_ALIASES = {
     "grid": "grid", "g": "grid", "gn": "grid",
 }
 
-#: Default time window for grouping unlabelled bearings into fixes [minutes].
-#: Common practice, no single source: bearings of one fix are taken within
-#: about 10-20 min (see e.g. Schmutz & White 1990 on animal movement during a fix).
-DEFAULT_WINDOW_MIN = 20.0
-
-#: Two-bearing fixes crossing at less than this angle (or more than 180 minus it)
-#: are flagged as shallow [degrees]. Common practice, no single source; Chu et al.
-#: (1989, USGS) found larger errors for angles within 20 degrees of parallel.
-SHALLOW_CROSSING_DEG = 20.0
-
 
 def wrap360(angle_deg):
     """Wrap angles to [0, 360). [°]"""

@@ -109,7 +109,7 @@ def geodesic_path(lat, lon, azi_deg, length_m, n_points=64):
     """Densified geodesic from (lat, lon) along ``azi_deg`` for ``length_m``.
 
     Returns lat, lon arrays of shape (n_points,) (longitudes unwrapped so that the
-    path is continuous; see :func:`dfkit.outputs` for splitting at the antimeridian).
+    path is continuous; see :func:`dfkit.geometry.split_line` for splitting at the antimeridian).
     """
     s = np.linspace(0.0, float(length_m), int(n_points))
     lon2, lat2, _ = GEOD.fwd(np.full(s.shape, float(lon)), np.full(s.shape, float(lat)),

@@ -31,8 +31,8 @@ import numpy as np
 import pandas as pd
 
 from dfkit import estimators, geodesy, regions
-from dfkit.conventions import DEFAULT_WINDOW_MIN, SHALLOW_CROSSING_DEG
 from dfkit.observations import Bearings, ReadOptions, read_bearings
+from dfkit.policy import DEFAULT_WINDOW_MIN, ONE_SPOT_M, SHALLOW_CROSSING_DEG, WILD_SD
 from dfkit.problems import Problem
 
 STATUS_MEANING = {
@@ -48,10 +48,6 @@ STATUS_MEANING = {
 }
 #: Statuses that come with a position.
 WITH_POSITION = ("ok", "no_region", "shallow", "long_span")
-#: Stations closer together than this count as one spot [m].
-ONE_SPOT_M = 1.0
-#: A residual larger than this many SDs is pointed out in the reason.
-WILD_SD = 3.0
 
 FIX_COLUMNS = [
     "fix", "tag", "time", "lat", "lon", "n_bearings", "n_used", "method", "sd_deg", "sd_source", "level",
@@ -285,11 +281,3 @@ def locate_sheet(sheet, *, method="mle", level=0.95, options: ReadOptions | None
     bearings = read_bearings(sheet, options, **read_kwargs)
     window = (options.window_min if options else read_kwargs.get("window_min", DEFAULT_WINDOW_MIN))
     return locate(bearings, method=method, level=level, window_min=window, progress=progress)
-
-
-def ellipse_ring(row, n_vertices=72):
-    """The confidence ellipse of one fix-table row as (lat, lon) arrays, or None."""
-    if not np.isfinite(row["semi_major_m"]):
-        return None
-    return regions.ellipse_polygon(row["lat"], row["lon"], row["semi_major_m"], row["semi_minor_m"],
-                                   row["orientation_deg"], n_vertices)

@@ -21,7 +21,10 @@ import json
 from importlib import resources
 
 from dfkit.locate import Fixes
-from dfkit.outputs import CAUTION, error_polygon_rings, split_ring, to_geojson
+from dfkit.cautions import CAUTION
+from dfkit.export.atomic import atomic_write
+from dfkit.export.geojson import to_geojson
+from dfkit.geometry import error_polygon_rings, split_ring
 
 #: Okabe, M. & Ito, K. (2008), "Color Universal Design" palette, minus yellow (poor on white).
 PALETTE = ["#0072B2", "#D55E00", "#009E73", "#CC79A7", "#E69F00", "#56B4E9", "#000000"]
@@ -70,7 +73,7 @@ class FixMap:
         )
 
     def save(self, path) -> None:
-        with open(path, "w", encoding="utf-8") as fh:
+        with atomic_write(path) as fh:
             fh.write(self.html())
 
     def _repr_html_(self) -> str:

@@ -20,7 +20,6 @@ import pandas as pd
 
 from dfkit import coords, magnetic
 from dfkit.conventions import (
-    DEFAULT_WINDOW_MIN,
     DEGREES_PER_UNIT,
     FULL_CIRCLE,
     NORTH_ALIASES,
@@ -29,13 +28,8 @@ from dfkit.conventions import (
 )
 from dfkit.io.gpx import Track, read_track
 from dfkit.io.sheet import KNOWN_COLUMNS, RawSheet, read_sheet
+from dfkit.policy import DEFAULT_TRACK_GAP_S, DEFAULT_WINDOW_MIN, POSITION_AGREEMENT_M
 from dfkit.problems import Problem, SheetError
-
-#: Largest accepted distance between two position columns of one row that disagree [m].
-POSITION_AGREEMENT_M = 50.0
-#: Default largest time from a bearing to the nearest GPS track point [s]
-#: (common practice, no source: a GPS logging every few seconds leaves no larger gaps).
-DEFAULT_TRACK_GAP_S = 60.0
 
 #: Columns of the normalized table, in order (carried columns follow).
 NORMALIZED_COLUMNS = [

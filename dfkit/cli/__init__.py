@@ -1,0 +1,55 @@
+"""The ``dfkit`` command: a thin shell over the public API.
+
+One module per command (``check``, ``fix``, ``map``, ...); each has
+``add_parser(subparsers)`` and ``run(args) -> int``, and is listed in
+:data:`COMMANDS`. Shared option groups and reporting live in
+:mod:`dfkit.cli.common`. The library speaks Python (``ValueError("sd= ...")``);
+the shell speaks flags (``--sd``).
+
+Exit status (all commands): 0 everything read and every fix ``ok``; 1 done, but
+some rows were rejected or some fixes are flagged or failed (results are still
+written); 2 the input cannot be read at all or the command is misused.
+"""
+
+from __future__ import annotations
+
+import argparse
+import sys
+
+from dfkit import __version__
+from dfkit.cli import check, fix, map as map_cmd
+from dfkit.problems import SheetError
+
+#: The sub-commands, in the order ``dfkit --help`` lists them.
+COMMANDS = [check, fix, map_cmd]
+
+
+def build_parser() -> argparse.ArgumentParser:
+    p = argparse.ArgumentParser(prog="dfkit", description="Radio direction finding: bearings to positions "
+                                "with honest confidence regions on WGS84.")
+    p.add_argument("--version", action="version", version=f"dfkit {__version__}")
+    sub = p.add_subparsers(dest="command", required=True)
+    for cmd in COMMANDS:
+        cmd.add_parser(sub).set_defaults(_run=cmd.run)
+    return p
+
+
+def main(argv=None) -> int:
+    """Run the command line; returns the exit status."""
+    parser = build_parser()
+    try:
+        args = parser.parse_args(argv)
+    except SystemExit as exc:  # argparse: misuse (2) or --help/--version (0)
+        return int(exc.code or 0)
+    try:
+        return args._run(args)
+    except SheetError as err:
+        print(f"dfkit: {err}", file=sys.stderr)
+        return 2
+    except (ValueError, OSError) as err:
+        print(f"dfkit: {err}", file=sys.stderr)
+        return 2
+
+
+if __name__ == "__main__":  # pragma: no cover
+    sys.exit(main())

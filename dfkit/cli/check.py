@@ -1,0 +1,33 @@
+"""``dfkit check SHEET``: every row dfkit cannot use, with line, column and reason."""
+
+from __future__ import annotations
+
+import sys
+
+from dfkit.cli.common import add_read_options, ensure_dir, exit_status, read_kwargs, report_problems
+
+
+def add_parser(sub):
+    c = sub.add_parser("check", help="read a sheet and report every row dfkit cannot use")
+    c.add_argument("sheet")
+    c.add_argument("-o", "--output", default=None, help="write the normalized table (CSV)")
+    add_read_options(c)
+    return c
+
+
+def run(a) -> int:
+    from dfkit.export import write_table
+    from dfkit.observations import read_bearings
+
+    b = read_bearings(a.sheet, **read_kwargs(a))
+    report_problems(b.problems, sys.stdout)
+    for note in b.notes:
+        print(f"note      {note}")
+    n_fix = b.table["fix"].nunique() if len(b.table) else 0
+    print(f"{b.source}: {b.n_rows} rows, {len(b.table)} usable, {b.n_rejected} rejected; "
+          f"{n_fix} {'fix' if n_fix == 1 else 'fixes'} ({len(b.labels)} labels in the sheet)")
+    if a.output:
+        ensure_dir(a.output)
+        write_table(b.table, a.output)
+        print(f"wrote {a.output}")
+    return exit_status(b)

@@ -1,0 +1,109 @@
+"""What the commands share: reading options, solving options, reporting, exit codes."""
+
+from __future__ import annotations
+
+import argparse
+import os
+import sys
+import time
+
+from dfkit.cautions import CAUTION_LINE
+from dfkit.policy import DEFAULT_TRACK_GAP_S, DEFAULT_WINDOW_MIN
+
+
+def add_read_options(p: argparse.ArgumentParser) -> None:
+    g = p.add_argument_group("reading the sheet (a value in the sheet wins)")
+    g.add_argument("--unit", choices=["deg", "mil", "grad"], default="deg", help="bearing unit (default deg)")
+    g.add_argument("--north", choices=["true", "magnetic", "grid"], default="true",
+                   help="bearing reference (default true)")
+    g.add_argument("--sd", type=float, default=None, metavar="DEG",
+                   help="bearing standard deviation in degrees, from beacon trials")
+    g.add_argument("--declination", type=float, default=None, metavar="DEG",
+                   help="declination (degrees east) instead of the magnetic model")
+    g.add_argument("--tz", default=None, metavar="ZONE", help="time zone of times written without an offset")
+    g.add_argument("--window", type=float, default=DEFAULT_WINDOW_MIN, metavar="MIN",
+                   help=f"minutes that group unlabelled bearings into one fix (default {DEFAULT_WINDOW_MIN:g}, "
+                        "common practice)")
+    g.add_argument("--stations", default=None, metavar="FILE", help="stations file (station label + position)")
+    g.add_argument("--track", default=None, metavar="GPX", help="GPS track for rows with a time but no position")
+    g.add_argument("--track-gap", type=float, default=DEFAULT_TRACK_GAP_S, metavar="S",
+                   help=f"largest time from a bearing to a track point (default {DEFAULT_TRACK_GAP_S:g} s)")
+    g.add_argument("--grid-crs", default=None, metavar="CRS", help="projected CRS of 'grid' bearings (EPSG:27700)")
+
+
+def add_fix_options(p: argparse.ArgumentParser) -> None:
+    from dfkit.estimators import METHODS
+
+    g = p.add_argument_group("solving")
+    g.add_argument("--method", choices=METHODS, default="mle",
+                   help="estimator: mle (Lenth, default), huber, andrews (robust), lsq, stansfield")
+    g.add_argument("--level", type=float, default=0.95, help="probability of the confidence ellipses (0.95)")
+
+
+def read_kwargs(a) -> dict:
+    """The :class:`~dfkit.observations.ReadOptions` fields given on the command line."""
+    return dict(unit=a.unit, north=a.north, sd=a.sd, declination=a.declination, tz=a.tz, window_min=a.window,
+                stations=a.stations, track=a.track, track_gap_s=a.track_gap, grid_crs=a.grid_crs)
+
+
+def report_problems(problems, out) -> None:
+    errs = [p for p in problems if p.severity == "error"]
+    warns = [p for p in problems if p.severity != "error"]
+    for p in errs:
+        print(f"rejected  {p}", file=out)
+    for p in warns:
+        print(f"warning   {p}", file=out)
+
+
+def ensure_dir(path) -> None:
+    d = os.path.dirname(os.fspath(path))
+    if d:
+        os.makedirs(d, exist_ok=True)
+
+
+def solve(a):
+    """Read the sheet named on the command line and solve its fixes: (bearings, fixes, progress)."""
+    from dfkit.locate import locate
+    from dfkit.observations import read_bearings
+
+    t0 = time.perf_counter()
+    verbose = getattr(a, "progress", False)
+
+    def progress(text):
+        if verbose:
+            print(f"dfkit: {text} [{time.perf_counter() - t0:.1f} s]", file=sys.stderr, flush=True)
+
+    progress("reading")
+    b = read_bearings(a.sheet, **read_kwargs(a))
+    if len(b.table) > 50_000 and hasattr(a, "progress"):
+        verbose = True
+        progress(f"read {len(b.table)} bearings")
+    fixes = locate(b, method=a.method, level=a.level, window_min=a.window, progress=progress)
+    return b, fixes, progress
+
+
+def print_summary(b, fixes) -> None:
+    report_problems(b.problems, sys.stderr)
+    for note in b.notes:
+        print(f"note            {note}", file=sys.stderr)
+    s = fixes.summary()
+    flagged = fixes.table[fixes.table["status"] != "ok"]
+    for _, r in flagged.head(50).iterrows():
+        print(f"{r['status']:<15} {r['fix']}: {r['reason']}", file=sys.stderr)
+    if len(flagged) > 50:
+        print(f"... {len(flagged) - 50} more flagged or failed fixes (see the status column)", file=sys.stderr)
+    nf = len(fixes.table)
+    print(f"{b.source}: {nf} {'fix' if nf == 1 else 'fixes'}: {s['ok']} ok, {s['flagged']} flagged, "
+          f"{s['failed']} failed; {len(b.table)} of {b.n_rows} rows used, {b.n_rejected} rejected", file=sys.stderr)
+    print(CAUTION_LINE, file=sys.stderr)
+
+
+def exit_status(b, fixes=None) -> int:
+    """0 when every row was used and every fix is ok; 1 otherwise."""
+    if b.n_rejected:
+        return 1
+    if fixes is not None:
+        s = fixes.summary()
+        if s["flagged"] or s["failed"]:
+            return 1
+    return 0
