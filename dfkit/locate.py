@@ -32,7 +32,7 @@ import pandas as pd
 
 from dfkit import estimators, geodesy, regions
 from dfkit.observations import Bearings, ReadOptions, read_bearings
-from dfkit.policy import DEFAULT_WINDOW_MIN, ONE_SPOT_M, SHALLOW_CROSSING_DEG, WILD_SD
+from dfkit.policy import ONE_SPOT_M, SHALLOW_CROSSING_DEG, WILD_SD
 from dfkit.problems import Problem
 
 STATUS_MEANING = {
@@ -87,7 +87,7 @@ class Fixes:
 
 
 def locate(bearings: Bearings, *, method: str = "mle", level: float = 0.95,
-           window_min: float = DEFAULT_WINDOW_MIN, robust_c: float = estimators.ROBUST_C,
+           window_min: float | None = None, robust_c: float = estimators.ROBUST_C,
            progress=None) -> Fixes:
     """Solve every fix of a set of bearings.
 
@@ -99,8 +99,9 @@ def locate(bearings: Bearings, *, method: str = "mle", level: float = 0.95,
         Estimator (see :mod:`dfkit.estimators`).
     level : float
         Probability of the confidence ellipses, in (0, 1).
-    window_min : float
-        Fixes whose bearings span more than this are flagged ``long_span``. [min]
+    window_min : float, optional
+        Fixes whose bearings span more than this are flagged ``long_span``; by
+        default the window the bearings were grouped with. [min]
     progress : callable, optional
         Called with a short text at each stage (the CLI prints it).
     """
@@ -109,11 +110,14 @@ def locate(bearings: Bearings, *, method: str = "mle", level: float = 0.95,
     if not 0.0 < level < 1.0:
         raise ValueError(f"level={level!r} must be a probability between 0 and 1 (e.g. 0.95)")
     say = progress or (lambda text: None)
+    if window_min is None:
+        window_min = bearings.window_min
     b = bearings.table
-    labels = list(bearings.labels)
-    index = {lab: i for i, lab in enumerate(labels)}
+    fix_index = bearings.fix_index
+    labels = fix_index["fix"].tolist()
+    rejected = fix_index["rejected_lines"].tolist()
     m = len(labels)
-    g = b["fix"].map(index).to_numpy(dtype=np.int64) if len(b) else np.zeros(0, np.int64)
+    g = b["fix_id"].to_numpy(dtype=np.int64) if len(b) else np.zeros(0, np.int64)
     counts = np.bincount(g, minlength=m)
 
     say(f"solving {m} fixes from {len(b)} bearings ({method})")
@@ -165,10 +169,9 @@ def locate(bearings: Bearings, *, method: str = "mle", level: float = 0.95,
             attention = ((counts < 2) | (spread < ONE_SPOT_M) | sol.parallel | ~sol.converged | sol.behind
                          | (sol.crossing_deg < SHALLOW_CROSSING_DEG) | (span_min > window_min)
                          | (~sol.sd_known & (sol.dof <= 0)) | notable)
-        attention |= np.isin(np.asarray(labels, dtype=object), list(bearings.rejected))
+        attention |= np.array([len(r) > 0 for r in rejected], bool)
     for i in np.flatnonzero(attention):
-        lab = labels[i]
-        rej = bearings.rejected.get(lab, [])
+        rej = rejected[i]
         n = counts[i]
         flags = []
         if n < 2:
@@ -214,14 +217,9 @@ def locate(bearings: Bearings, *, method: str = "mle", level: float = 0.95,
 
     has_pos = np.isin(status, WITH_POSITION)
     has_region = has_pos & (status != "no_region") if m else has_pos
-    pairs = b.loc[b["tag"] != "", ["fix", "tag"]].drop_duplicates()
-    multi = pairs["fix"].duplicated(keep=False)
-    tags = pairs[~multi].set_index("fix")["tag"].to_dict()
-    if multi.any():
-        tags.update(pairs[multi].groupby("fix", sort=False)["tag"].agg("/".join).to_dict())
     table = pd.DataFrame({
         "fix": labels,
-        "tag": [tags.get(lab, "") for lab in labels],
+        "tag": fix_index["tag"].tolist(),
         "time": pd.to_datetime(tmid, unit="s", utc=True),
         "lat": np.where(has_pos, sol.lat, np.nan) if m else [],
         "lon": np.where(has_pos, sol.lon, np.nan) if m else [],
@@ -244,7 +242,7 @@ def locate(bearings: Bearings, *, method: str = "mle", level: float = 0.95,
         "kappa": np.where(has_pos, sol.kappa, np.nan) if m else [],
         "iterations": sol.iterations if m else [],
         "converged": sol.converged if m else [],
-        "rejected_lines": [" ".join(str(x) for x in bearings.rejected.get(lab, [])) for lab in labels],
+        "rejected_lines": [" ".join(str(x) for x in rej) for rej in rejected],
     })
     table["max_residual_deg"] = np.where(has_pos, table["max_residual_deg"], np.nan) if m else []
 
@@ -279,5 +277,4 @@ def locate_sheet(sheet, *, method="mle", level=0.95, options: ReadOptions | None
     (``north='magnetic'``, ``sd=5``, ``window_min=30``, ``track='t.gpx'`` ...).
     """
     bearings = read_bearings(sheet, options, **read_kwargs)
-    window = (options.window_min if options else read_kwargs.get("window_min", DEFAULT_WINDOW_MIN))
-    return locate(bearings, method=method, level=level, window_min=window, progress=progress)
+    return locate(bearings, method=method, level=level, progress=progress)

@@ -33,7 +33,7 @@ from dfkit.problems import Problem, SheetError
 
 #: Columns of the normalized table, in order (carried columns follow).
 NORMALIZED_COLUMNS = [
-    "line", "fix", "tag", "time", "lat", "lon", "true_bearing", "sd", "declination", "convergence",
+    "line", "fix_id", "fix", "tag", "time", "lat", "lon", "true_bearing", "sd", "sd_source", "declination", "convergence",
     "bearing", "unit", "north", "position_from", "grouped_by", "declination_sd",
 ]
 
@@ -83,35 +83,90 @@ class ReadOptions:
 class Bearings:
     """Usable bearings in one convention, and what could not be used.
 
+    A fix is identified by its tag *and* its label: two tags that both number their
+    fixes 1, 2, 3 ... have different fixes.
+
     Attributes
     ----------
     table : pandas.DataFrame
         One row per usable bearing (columns :data:`NORMALIZED_COLUMNS`, then the
-        sheet's own extra columns).
+        sheet's own extra columns). ``fix_id`` is the row of :attr:`fix_index`
+        the bearing belongs to.
     problems : list of Problem
         Every rejected row (severity 'error') and every warning.
-    labels : list of str
-        Every fix label of the input, in order of first appearance, including
-        labels whose rows were all rejected.
-    rejected : dict
-        Fix label -> line numbers of its rejected rows.
+    fix_index : pandas.DataFrame
+        One row per fix of the input, indexed by ``fix_id`` (0, 1, ...), in order of
+        first appearance, *including* fixes whose rows were all rejected: ``fix``
+        (label), ``tag``, ``rejected_lines`` (list of line numbers).
     n_rows : int
         Data rows read from the sheet.
     notes : list of str
         What dfkit did that the user should know (grouping, models used).
+    window_min : float
+        The grouping window used [min]; :func:`dfkit.locate.locate` flags fixes
+        that span more than it.
     """
 
     table: pd.DataFrame
     problems: list[Problem]
-    labels: list[str]
-    rejected: dict[str, list[int]] = field(default_factory=dict)
+    fix_index: pd.DataFrame
     n_rows: int = 0
     notes: list[str] = field(default_factory=list)
     source: str = ""
+    window_min: float = DEFAULT_WINDOW_MIN
 
     @property
     def n_rejected(self) -> int:
         return len({p.line for p in self.problems if p.severity == "error" and p.line})
+
+    @property
+    def labels(self) -> list[str]:
+        """The fix label of every fix (a label may repeat across tags)."""
+        return self.fix_index["fix"].tolist()
+
+    def select(self, mask=None, *, tags=None, fixes=None) -> "Bearings":
+        """A subset of these bearings, as a new :class:`Bearings`.
+
+        Parameters
+        ----------
+        mask : array_like of bool, optional
+            Rows of :attr:`table` to keep.
+        tags : str or iterable of str, optional
+            Keep the fixes of these tags (including their fixes with no usable bearing).
+        fixes : str or iterable of str, optional
+            Keep the fixes with these labels.
+
+        Fix ids are renumbered; problems are kept for the lines of the kept fixes and
+        for the sheet as a whole.
+        """
+        t = self.table
+        keep_fix = np.ones(len(self.fix_index), bool)
+        if tags is not None:
+            tags = [tags] if isinstance(tags, str) else list(tags)
+            keep_fix &= self.fix_index["tag"].isin(tags).to_numpy()
+        if fixes is not None:
+            fixes = [fixes] if isinstance(fixes, str) else list(fixes)
+            keep_fix &= self.fix_index["fix"].isin(fixes).to_numpy()
+        rows = keep_fix[t["fix_id"].to_numpy(dtype=np.int64)] if len(t) else np.zeros(0, bool)
+        if mask is not None:
+            rows &= np.asarray(mask, bool)
+            has_rows = np.zeros(len(keep_fix), bool)
+            has_rows[t["fix_id"].to_numpy(dtype=np.int64)[rows]] = True
+            keep_fix &= has_rows
+        old_ids = np.flatnonzero(keep_fix)
+        new_id = np.full(len(keep_fix), -1, np.int64)
+        new_id[old_ids] = np.arange(len(old_ids))
+        table = t[rows].copy()
+        table["fix_id"] = new_id[table["fix_id"].to_numpy(dtype=np.int64)]
+        fix_index = self.fix_index.iloc[old_ids].reset_index(drop=True)
+        fix_index.index.name = "fix_id"
+        lines = set(table["line"].tolist())
+        for rl in fix_index["rejected_lines"]:
+            lines.update(rl)
+        problems = [p for p in self.problems if p.line in lines or p.line <= 1 or p.source != self.source]
+        return Bearings(table=table.reset_index(drop=True), problems=problems, fix_index=fix_index,
+                        n_rows=len(table) + sum(len(r) for r in fix_index["rejected_lines"]), notes=list(self.notes),
+                        source=self.source, window_min=self.window_min)
 
 
 # --------------------------------------------------------------------------- helpers
@@ -530,7 +585,6 @@ def read_bearings(sheet, options: ReadOptions | None = None, **kwargs) -> Bearin
 
     fix_c = _col(t, "fix")
     tag_c = _col(t, "tag")
-    labels_in = [x for x in pd.unique(fix_c) if x]
 
     # time
     time_c = _col(t, "time")
@@ -563,8 +617,10 @@ def read_bearings(sheet, options: ReadOptions | None = None, **kwargs) -> Bearin
     _reject_unparseable(col, sd_bad, "sd", sd_c, sd_h)
     col.reject(~sd_empty & ~sd_bad & ((sd <= 0) | (sd >= 90)), "sd",
                lambda idx: [f"{sd[i]:g} is not a usable bearing SD; give degrees between 0 and 90" for i in idx])
+    sd_from = np.where(sd_empty, "", "sheet").astype(object)
     if opts.sd is not None:
         sd = np.where(sd_empty, float(opts.sd), sd)
+        sd_from = np.where(sd_empty, "option", sd_from).astype(object)
 
     # declination given
     d_c = _col(t, "declination")
@@ -635,6 +691,7 @@ def read_bearings(sheet, options: ReadOptions | None = None, **kwargs) -> Bearin
         "lon": pos.lon[keep],
         "true_bearing": true_bearing[keep],
         "sd": sd[keep],
+        "sd_source": sd_from[keep],
         "declination": np.where(magnetic_rows, dec_used, np.nan)[keep],
         "convergence": np.where(north == "grid", conv, np.nan)[keep],
         "bearing": b[keep],
@@ -654,15 +711,38 @@ def read_bearings(sheet, options: ReadOptions | None = None, **kwargs) -> Bearin
             table[c] = ""
     table = table.reset_index(drop=True)
 
-    rejected: dict[str, list[int]] = {}
-    for i in np.flatnonzero(col.bad):
-        label = fix_c[i]
-        if label:
-            rejected.setdefault(label, []).append(int(lines[i]))
-    labels = list(dict.fromkeys(labels_in + [x for x in pd.unique(table["fix"].to_numpy(dtype=object)) if x]))
+    fix_ids, fix_index = _fix_identities(fix, tag_c, col.bad, lines)
+    table.insert(1, "fix_id", fix_ids[keep])
     problems = sorted(col.problems, key=lambda p: (p.source != raw.source, p.line, p.severity != "error"))
-    return Bearings(table=table, problems=problems, labels=labels, rejected=rejected, n_rows=n, notes=notes,
-                    source=raw.source)
+    return Bearings(table=table, problems=problems, fix_index=fix_index, n_rows=n, notes=notes,
+                    source=raw.source, window_min=opts.window_min)
+
+
+def _fix_identities(fix, tag, bad, lines):
+    """Fix id of every row and the fix index: one fix per (tag, label), in order of first appearance.
+
+    Rejected rows with a label still make their fix exist (so it is reported); rows
+    with neither a label nor a group belong to no fix (id -1).
+    """
+    fix = np.asarray(fix, dtype=object)
+    tag = np.asarray(tag, dtype=object)
+    labelled = fix != ""
+    key = pd.Series(tag, dtype=object).str.len().astype(str) + ":" + pd.Series(tag, dtype=object) + "|" + \
+        pd.Series(fix, dtype=object)
+    codes, _ = pd.factorize(key.where(labelled, None).to_numpy(dtype=object))
+    ids = np.asarray(codes, np.int64)
+    m = int(ids.max()) + 1 if len(ids) else 0
+    first = np.full(m, -1, np.int64)
+    valid = np.flatnonzero(ids >= 0)
+    first_pos = pd.Series(valid).groupby(ids[valid]).first().to_numpy() if len(valid) else np.zeros(0, np.int64)
+    first[: len(first_pos)] = first_pos
+    rejected = [[] for _ in range(m)]
+    for i in np.flatnonzero(bad & (ids >= 0)):
+        rejected[ids[i]].append(int(lines[i]))
+    fix_index = pd.DataFrame({"fix": fix[first] if m else [], "tag": tag[first] if m else [],
+                              "rejected_lines": rejected})
+    fix_index.index.name = "fix_id"
+    return ids, fix_index
 
 
 def _check_options(o: ReadOptions):

@@ -123,7 +123,7 @@ def test_too_many_fields_rejects_the_row_but_keeps_its_label(write_sheet):
     b = read_bearings(write_sheet("fix,lat,lon,bearing\nA,47,15,45\nB,47,15,45,9,9\n"))
     (line, col, msg), = errors(b)
     assert line == 3 and "fields" in msg
-    assert "B" in b.labels and b.rejected["B"] == [3]
+    assert "B" in b.labels and b.fix_index.set_index("fix").loc["B", "rejected_lines"] == [3]
 
 
 def test_comments_and_blank_lines_keep_line_numbers(write_sheet):
@@ -177,7 +177,7 @@ def test_station_file(write_sheet, tmp_path):
 
 def test_every_label_is_kept_even_when_all_its_rows_are_rejected(write_sheet):
     b = read_bearings(write_sheet(GOOD + "Z,47,15,999\n"))
-    assert b.labels == ["A", "Z"] and b.rejected == {"Z": [4]}
+    assert b.labels == ["A", "Z"] and b.fix_index["rejected_lines"].tolist() == [[], [4]]
 
 
 def test_sheet_without_labels_or_times_is_one_fix_per_tag(write_sheet):

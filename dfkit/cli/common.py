@@ -78,7 +78,7 @@ def solve(a):
     if len(b.table) > 50_000 and hasattr(a, "progress"):
         verbose = True
         progress(f"read {len(b.table)} bearings")
-    fixes = locate(b, method=a.method, level=a.level, window_min=a.window, progress=progress)
+    fixes = locate(b, method=a.method, level=a.level, progress=progress)
     return b, fixes, progress
 
 
@@ -89,7 +89,8 @@ def print_summary(b, fixes) -> None:
     s = fixes.summary()
     flagged = fixes.table[fixes.table["status"] != "ok"]
     for _, r in flagged.head(50).iterrows():
-        print(f"{r['status']:<15} {r['fix']}: {r['reason']}", file=sys.stderr)
+        who = f"tag {r['tag']}, fix {r['fix']}" if r["tag"] else f"fix {r['fix']}"
+        print(f"{r['status']:<15} {who}: {r['reason']}", file=sys.stderr)
     if len(flagged) > 50:
         print(f"... {len(flagged) - 50} more flagged or failed fixes (see the status column)", file=sys.stderr)
     nf = len(fixes.table)
