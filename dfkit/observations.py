@@ -582,6 +582,8 @@ def read_bearings(sheet, options: ReadOptions | None = None, **kwargs) -> Bearin
     track = opts.track
     if track is not None and not isinstance(track, Track):
         track = read_track(track)
+    if track is not None:
+        col.problems.extend(track.problems)
 
     fix_c = _col(t, "fix")
     tag_c = _col(t, "tag")

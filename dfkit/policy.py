@@ -30,3 +30,7 @@ POSITION_AGREEMENT_M = 50.0
 #: Default largest time from a bearing to the nearest GPS track point [s]
 #: (common practice, no source: a GPS logging every few seconds leaves no larger gaps).
 DEFAULT_TRACK_GAP_S = 60.0
+
+#: Fastest plausible speed between two GPS track points [m/s]. Common practice, no source: faster than a light
+#: aircraft flying a telemetry survey; a point that leaps away and back faster than this is a GPS glitch.
+TRACK_MAX_SPEED_MS = 150.0

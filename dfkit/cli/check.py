@@ -4,7 +4,8 @@ from __future__ import annotations
 
 import sys
 
-from dfkit.cli.common import add_read_options, ensure_dir, exit_status, read_kwargs, report_problems
+from dfkit.cli.common import (add_output_options, add_read_options, ensure_dir, exit_status, read_kwargs,
+                              refuse_unsafe_outputs, report_problems)
 
 
 def add_parser(sub):
@@ -12,6 +13,7 @@ def add_parser(sub):
     c.add_argument("sheet")
     c.add_argument("-o", "--output", default=None, help="write the normalized table (CSV)")
     add_read_options(c)
+    add_output_options(c)
     return c
 
 
@@ -19,6 +21,7 @@ def run(a) -> int:
     from dfkit.export import write_table
     from dfkit.observations import read_bearings
 
+    refuse_unsafe_outputs(a, [("-o", a.output)])
     b = read_bearings(a.sheet, **read_kwargs(a))
     report_problems(b.problems, sys.stdout)
     for note in b.notes:
@@ -28,6 +31,6 @@ def run(a) -> int:
           f"{n_fix} {'fix' if n_fix == 1 else 'fixes'} ({len(b.labels)} labels in the sheet)")
     if a.output:
         ensure_dir(a.output)
-        write_table(b.table, a.output)
+        write_table(b.table, a.output, guard_formulas=not a.verbatim_csv)
         print(f"wrote {a.output}")
     return exit_status(b)

@@ -47,12 +47,54 @@ def read_kwargs(a) -> dict:
 
 
 def report_problems(problems, out) -> None:
-    errs = [p for p in problems if p.severity == "error"]
-    warns = [p for p in problems if p.severity != "error"]
-    for p in errs:
-        print(f"rejected  {p}", file=out)
-    for p in warns:
-        print(f"warning   {p}", file=out)
+    label = {"error": "rejected", "warning": "warning", "note": "note"}
+    for sev in ("error", "warning", "note"):
+        for p in problems:
+            if p.severity == sev or (sev == "warning" and p.severity not in label):
+                print(f"{label[sev]:<9} {str(p).removesuffix(f' [{p.severity}]')}", file=out)
+
+
+def add_output_options(p: argparse.ArgumentParser) -> None:
+    """Options of commands that write CSV tables."""
+    p.add_argument("--verbatim-csv", action="store_true",
+                   help="write CSV text cells exactly as they are; by default a cell starting with =, +, -, @, tab "
+                        "or CR (other than a plain number) gets a leading ' so spreadsheets do not run it as a "
+                        "formula")
+
+
+def refuse_unsafe_outputs(a, outputs) -> None:
+    """Refuse (``ValueError``, exit 2) before any work an output that would overwrite an input or another output.
+
+    ``outputs`` is a list of (option, path). An output is the same file as an input (the sheet, ``--stations``,
+    ``--track``) when :func:`os.path.samefile` says so: this catches ``./sheet.csv``, symbolic links and hard
+    links. An output that is a folder is refused too.
+    """
+    inputs = [(what, getattr(a, attr, None)) for what, attr in
+              (("the sheet", "sheet"), ("the stations file", "stations"), ("the GPS track", "track"))]
+    inputs = [(what, path) for what, path in inputs if path and os.path.exists(path)]
+    seen: list[tuple[str, str]] = []
+    for option, path in outputs:
+        if not path:
+            continue
+        if os.path.isdir(path):
+            raise ValueError(f"{option} '{path}' is a folder; give a file name")
+        if os.path.exists(path):
+            for what, src in inputs:
+                if _same_file(path, src):
+                    raise ValueError(f"{option} '{path}' is {what} '{src}'; dfkit never overwrites its input. "
+                                     "Choose another output name.")
+        for other_option, other in seen:
+            if os.path.realpath(path) == os.path.realpath(other) or _same_file(path, other):
+                raise ValueError(f"{option} '{path}' and {other_option} '{other}' are the same file; give each "
+                                 "output its own name")
+        seen.append((option, path))
+
+
+def _same_file(a, b) -> bool:
+    try:
+        return os.path.samefile(a, b)
+    except OSError:
+        return False
 
 
 def ensure_dir(path) -> None:

@@ -5,7 +5,8 @@ from __future__ import annotations
 import os
 import sys
 
-from dfkit.cli.common import add_fix_options, add_read_options, ensure_dir, exit_status, print_summary, solve
+from dfkit.cli.common import (add_fix_options, add_read_options, ensure_dir, exit_status, print_summary,
+                              refuse_unsafe_outputs, solve)
 
 
 def add_parser(sub):
@@ -22,6 +23,7 @@ def add_parser(sub):
 def run(a) -> int:
     from dfkit.maps import fix_map
 
+    refuse_unsafe_outputs(a, [("-o", a.output)])
     b, fixes, _ = solve(a)
     m = fix_map(fixes, error_polygons=a.error_polygons, title=a.title or os.path.basename(a.sheet))
     ensure_dir(a.output)

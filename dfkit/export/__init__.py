@@ -14,8 +14,8 @@ from dfkit.export.gpx import to_gpx, write_gpx
 from dfkit.locate import Fixes
 
 
-def _write_csv(fixes: Fixes, path) -> None:
-    write_table(fixes.table, path)
+def _write_csv(fixes: Fixes, path, *, guard_formulas: bool = True) -> None:
+    write_table(fixes.table, path, guard_formulas=guard_formulas)
 
 
 #: File extension -> writer of a :class:`~dfkit.locate.Fixes`.
@@ -28,12 +28,15 @@ def output_kind(path) -> str | None:
     return ext if ext in WRITERS else None
 
 
-def write_fixes(fixes: Fixes, path) -> None:
-    """Write fixes by the file's extension (see :data:`WRITERS`)."""
+def write_fixes(fixes: Fixes, path, *, guard_formulas: bool = True) -> None:
+    """Write fixes by the file's extension (see :data:`WRITERS`); ``guard_formulas`` applies to CSV only."""
     ext = output_kind(path)
     if ext is None:
         raise ValueError(f"cannot write '{path}': use one of {', '.join(sorted(WRITERS))}")
-    WRITERS[ext](fixes, path)
+    if ext == ".csv":
+        WRITERS[ext](fixes, path, guard_formulas=guard_formulas)
+    else:
+        WRITERS[ext](fixes, path)
 
 
 __all__ = ["WRITERS", "output_kind", "to_geojson", "to_gpx", "write_fixes", "write_geojson", "write_gpx",

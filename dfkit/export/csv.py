@@ -1,6 +1,20 @@
-"""CSV tables: UTF-8, ISO 8601 UTC times, sensible rounding, empty cells for missing values."""
+"""CSV tables: UTF-8, ISO 8601 UTC times, sensible rounding, empty cells for missing values, and text cells that
+a spreadsheet cannot run as formulas.
+
+Formula guard (on by default): a text cell that starts with ``=``, ``+``, ``-``,
+``@``, a tab or a carriage return is written with a leading ``'``, so that a
+spreadsheet shows it as text instead of evaluating it; this follows the OWASP
+"CSV Injection" guidance (OWASP Foundation, https://owasp.org/www-community/attacks/CSV_Injection, read from
+memory of the page, not re-checked). Numbers stay numbers: numeric columns are
+never touched, nor is a text cell that is a plain number (``-12.5``, ``+3``).
+dfkit's sheet reader removes the ``'`` again (:mod:`dfkit.io.sheet`), so its
+own tables read back unchanged. ``guard_formulas=False`` (``--verbatim-csv``)
+writes every cell exactly as it is.
+"""
 
 from __future__ import annotations
+
+import re
 
 import numpy as np
 import pandas as pd
@@ -12,6 +26,12 @@ _ROUNDING = {"lat": 7, "lon": 7, "true_bearing": 3, "declination": 3, "convergen
              "crossing_deg": 1, "span_min": 1, "max_residual_deg": 2, "kappa": 1, "residual_deg": 3,
              "weight": 3, "range_m": 1}
 
+#: First characters that make a spreadsheet treat a cell as a formula (OWASP CSV Injection guidance).
+FORMULA_STARTS = ("=", "+", "-", "@", "\t", "\r")
+
+_FORMULA_START = re.compile("^[=+\\-@\t\r]")
+_PLAIN_NUMBER = re.compile(r"^[+-]?(\d+\.?\d*|\.\d+)([eE][+-]?\d+)?$")
+
 
 def _iso(series: pd.Series) -> pd.Series:
     """UTC times as ISO 8601 text ending in Z; '' where missing."""
@@ -20,17 +40,57 @@ def _iso(series: pd.Series) -> pd.Series:
     return pd.Series(np.where(np.isnat(values), "", text), index=series.index, dtype=object)
 
 
-def _for_csv(df: pd.DataFrame) -> pd.DataFrame:
+def neutralise_formulas(values: pd.Series) -> pd.Series:
+    """Text cells a spreadsheet would run as a formula, prefixed with ``'``; other cells unchanged.
+
+    Parameters
+    ----------
+    values : pandas.Series
+        A column; only its text cells can change.
+
+    Returns
+    -------
+    pandas.Series
+        The column with ``'`` before every text cell starting with ``=``, ``+``, ``-``,
+        ``@``, tab or carriage return, except plain numbers (``-12.5``).
+
+    >>> neutralise_formulas(pd.Series(["=1+2", "-12.5", "-x", "ok"])).tolist()
+    ["'=1+2", '-12.5', "'-x", 'ok']
+    """
+    risky = values.str.match(_FORMULA_START).fillna(False).to_numpy(dtype=bool)
+    if not risky.any():
+        return values
+    risky = risky & ~values.str.match(_PLAIN_NUMBER).fillna(False).to_numpy(dtype=bool)
+    out = values.copy()
+    out[risky] = "'" + values[risky]
+    return out
+
+
+def _for_csv(df: pd.DataFrame, guard: bool) -> pd.DataFrame:
     out = df.copy()
     for c in out.columns:
         if isinstance(out[c].dtype, pd.DatetimeTZDtype):
             out[c] = _iso(out[c])
         elif c in _ROUNDING:
             out[c] = out[c].astype(float).round(_ROUNDING[c])
+        elif guard and (out[c].dtype == object or pd.api.types.is_string_dtype(out[c].dtype)):
+            out[c] = neutralise_formulas(out[c])
     return out
 
 
-def write_table(df: pd.DataFrame, path) -> None:
-    """A table as UTF-8 CSV: ISO 8601 UTC times, sensible rounding, empty cells for missing values."""
+def write_table(df: pd.DataFrame, path, *, guard_formulas: bool = True) -> None:
+    """A table as UTF-8 CSV, written atomically.
+
+    Parameters
+    ----------
+    df : pandas.DataFrame
+        The table; timezone-aware times become ISO 8601 UTC text ending in ``Z``.
+    path : str or os.PathLike
+        The file to write (replaced whole, or left as it was on failure).
+    guard_formulas : bool
+        Prefix ``'`` to text cells a spreadsheet would run as formulas (see the
+        module docstring). ``False`` writes text exactly as it is.
+    """
+    table = _for_csv(df, guard_formulas)
     with atomic_write(path, newline="") as fh:
-        _for_csv(df).to_csv(fh, index=False, lineterminator="\n")
+        table.to_csv(fh, index=False, lineterminator="\n")
