@@ -64,11 +64,11 @@ def main():
     }
     with tempfile.TemporaryDirectory() as tmp:
         for name, data in cases.items():
-            if a.cases and name not in a.cases.split(","):
-                continue
             path = os.path.join(tmp, f"{name}.csv")
             with open(path, "wb") as fh:
                 fh.write(data)
+            if a.cases and name not in a.cases.split(","):
+                continue
             t_raw, raw = _best(lambda: read_sheet(path), a.repeat)
             t_all, _ = _best(lambda: read_bearings(path), 1)
             print(f"{name:<20} read_sheet {t_raw:6.2f} s   read_bearings {t_all:6.2f} s   "

@@ -28,7 +28,7 @@ def run(a) -> int:
         print(f"note      {note}")
     n_fix = b.table["fix"].nunique() if len(b.table) else 0
     print(f"{b.source}: {b.n_rows} rows, {len(b.table)} usable, {b.n_rejected} rejected; "
-          f"{n_fix} {'fix' if n_fix == 1 else 'fixes'} ({len(b.labels)} labels in the sheet)")
+          f"{n_fix} {'fix' if n_fix == 1 else 'fixes'} ({len(b.labels)} {'label' if len(b.labels) == 1 else 'labels'} in the sheet)")
     if a.output:
         ensure_dir(a.output)
         write_table(b.table, a.output, guard_formulas=not a.verbatim_csv)

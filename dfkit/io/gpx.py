@@ -188,6 +188,7 @@ def read_track(path) -> Track:
     use = ~bad & has_time
     _leaps(t, lat, lon, line, use, bad, problems, name)
     use = ~bad & has_time
+    problems.sort(key=lambda p: p.line)
     if not use.any():
         n_bad = int(bad.sum())
         first = next((p for p in problems if p.severity == "error"), None)
@@ -196,7 +197,6 @@ def read_track(path) -> Track:
         raise SheetError(f"{name}: the GPS track has no usable point with a time{detail}")
     idx = np.flatnonzero(use)
     order = idx[np.argsort(t[idx], kind="stable")]
-    problems.sort(key=lambda p: p.line)
     return Track(t[order], lat[order], lon[order], name, tuple(problems), line[order])
 
 

@@ -82,9 +82,10 @@ _LIST_LINES = 40
 _DELIMITERS = (",", ";", "\t")
 _LINE_END = re.compile(r"\r\n|\r|\n")
 _SURROGATE = re.compile("[\udc80-\udcff]")
-# Control characters that do not occur in a text sheet (NUL is handled per line, not counted here).
+# Control characters that do not occur in a text sheet (NUL is handled per line, not counted here); with
+# invalid UTF-8 they mark a binary file.
 _BINARY = re.compile("[\x01-\x08\x0b\x0c\x0e-\x1f\x7f\ufffd]")
-_GUARDED = re.compile("^'[=+\\-@\t\r]")
+_GUARDED = re.compile("^'+[=+\\-@\t\r\n]")
 
 
 @dataclass
@@ -156,20 +157,23 @@ def _decode(data: bytes, source: str, problems: list[Problem]) -> str:
     out = [None] * (len(parts) + len(ends))
     out[::2] = parts
     out[1::2] = ends
-    return "".join(out)
+    return _not_binary("".join(out), source)
+
+
+def _not_binary(text: str, name: str) -> str:
+    """Text decoded with the Windows-1252 fallback that is full of control characters came from a binary file."""
+    sample = text[:65536].replace("\x00", "")
+    count = len(_BINARY.findall(sample))
+    if count >= 8 and count > 0.05 * len(sample):
+        raise SheetError(f"{name or 'the sheet'} does not look like a text sheet ({count / len(sample):.0%} of its "
+                         "first characters are control bytes and it is not UTF-8): is it a binary file or a "
+                         "workbook? Save the sheet as 'CSV UTF-8'")
+    return text
 
 
 def _check_text(text: str, name: str) -> str:
-    label = name or "the sheet"
-    sample = text[:65536].replace("\x00", "")
-    if "\x00" in text[:65536] and not sample.strip() and not text.replace("\x00", "").strip():
-        raise SheetError(f"{label} holds nothing but NUL bytes (a damaged file?): no header row")
-    if sample:
-        share = len(_BINARY.findall(sample)) / len(sample)
-        if share > 0.05:
-            raise SheetError(f"{label} does not look like a text sheet ({share:.0%} of its first characters are "
-                             "control bytes): is it a binary file, a workbook, or UTF-16 without a byte-order mark? "
-                             "Save the sheet as 'CSV UTF-8'")
+    if "\x00" in text[:65536] and not text.replace("\x00", "").strip():
+        raise SheetError(f"{name or 'the sheet'} holds nothing but NUL bytes (a damaged file?): no header row")
     return text
 
 
@@ -331,13 +335,14 @@ def read_sheet(source, *, name: str | None = None) -> RawSheet:
         header_line = header_line.replace("\x00", "")
     delimiter = _sniff_delimiter(header_line)
     header = _parse_header(header_line, header_idx + 1, delimiter, name, problems)
+    header = [h.strip()[1:] if _GUARDED.match(h.strip()) else h for h in header]
     columns, derived = _resolve_header(header, header_idx + 1, name, problems)
     width = len(columns)
 
     got = _fast_read(text, lines, header_idx, delimiter, width)
     if got is None:
         got = _careful_read(lines, header_idx, delimiter, width, name, problems)
-    line_no, cells, more_comments, more_blanks = got
+    line_no, cells, more_comments, more_blanks, n_unguarded = got
     comments += more_comments
     blanks += more_blanks
 
@@ -349,8 +354,10 @@ def read_sheet(source, *, name: str | None = None) -> RawSheet:
     if derived:
         table = table.drop(columns=[c for c in table.columns if c.startswith("\x00derived_")])
     columns = [c for c in table.columns if c != "line"]
-    if "'" in text:
-        _unguard(table, columns, name, problems)
+    if n_unguarded:
+        problems.append(Problem(0, "", f"{n_unguarded} {'cell' if n_unguarded == 1 else 'cells'} began with ' "
+                                "before =, +, -, @, tab or CR (a guard against spreadsheet formulas, as dfkit "
+                                "writes); read without the '", "note", name))
     _rows_taken_for_comments(lines, comments, header_idx + 1, delimiter, width, name, problems)
     if not len(table):
         problems.append(Problem(header_idx + 1, "", "the sheet has a header but no data rows", "warning", name))
@@ -379,7 +386,7 @@ def _fast_read(text, lines, header_idx, delimiter, width):
         comment = np.fromiter((ln[:1] == "#" for ln in body_lines), bool, n)
         body_lines = [ln for ln, c in zip(body_lines, comment) if not c]
     if not body_lines:
-        return numbers[:0], [np.zeros(0, object)] * width, numbers[comment].tolist(), []
+        return numbers[:0], [np.zeros(0, object)] * width, numbers[comment].tolist(), [], 0
     body = "\n".join(body_lines)
     try:
         df = pd.read_csv(io.StringIO(body), sep=delimiter, header=None, dtype=str, na_filter=False,
@@ -388,23 +395,47 @@ def _fast_read(text, lines, header_idx, delimiter, width):
         return None
     if df.shape[1] != width or len(df) != len(body_lines):
         return None
-    cells = [df[c].to_numpy(dtype=object) for c in df.columns]
-    if _has_padding(body, delimiter):
-        cells = [pd.Series(c, dtype=object).str.strip().to_numpy(dtype=object) for c in cells]
+    cells, n_unguarded = _tidy([df[c].to_numpy(dtype=object) for c in df.columns], _has_padding(body, delimiter),
+                               "'" in body)
     blank = np.ones(len(df), bool)
     for c in cells:
         blank &= c == ""
     numbers_kept = numbers[~comment]
     keep = ~blank
     return (numbers_kept[keep], [c[keep] for c in cells], numbers[comment].tolist(),
-            numbers_kept[blank].tolist())
+            numbers_kept[blank].tolist(), n_unguarded)
+
+
+def _tidy(cells, padded: bool, guarded: bool):
+    """Cells stripped of surrounding white space; a cell that a CSV formula guard wrote as ``'=...`` is read as
+    it was (``=...``: one ``'`` removed before the strip). Returns (cells, how many were unguarded)."""
+    if not (padded or guarded):
+        return cells, 0
+    out = []
+    n = 0
+    for c in cells:
+        s = pd.Series(c, dtype=object)
+        if padded:
+            s = s.str.lstrip()
+        if guarded:
+            hit = s.str.match(_GUARDED).fillna(False).to_numpy(dtype=bool)
+            if hit.any():
+                s = s.copy()
+                s[hit] = s[hit].str.slice(1)
+                n += int(hit.sum())
+        if padded:
+            s = s.str.strip()
+        out.append(s.to_numpy(dtype=object))
+    return out, n
+
+
+_PADDING = re.compile(r"[^\S\n]")        # white space as str.strip() sees it, other than the line end
+_PADDING_TAB = re.compile(r"[^\S\n\t]")
 
 
 def _has_padding(body, delimiter):
-    """Whether any cell may carry surrounding white space."""
-    if delimiter == "\t":
-        return " " in body
-    return " " in body or "\t" in body
+    """Whether any cell may carry surrounding white space (anything str.strip() removes)."""
+    return (_PADDING_TAB if delimiter == "\t" else _PADDING).search(body) is not None
 
 
 class _Lines:
@@ -503,11 +534,21 @@ def _careful_read(lines, header_idx, delimiter, width, name, problems):
         elif len(row) < width:
             row = row + [""] * (width - len(row))
         for j in range(width):
-            cells[j].append(row[j].strip())
+            cells[j].append(row[j])
     cells_arr = [np.asarray(c, dtype=object) if c else np.zeros(0, object) for c in cells]
     order = np.argsort(np.asarray(starts, dtype=np.int64), kind="stable")
-    cells_arr = [c[order] for c in cells_arr]
-    return np.asarray(starts, dtype=np.int64)[order], cells_arr, feed.comments, blanks
+    cells_arr, n_unguarded = _tidy([c[order] for c in cells_arr], True, any("'" in ln for ln in lines))
+    starts_arr = np.asarray(starts, dtype=np.int64)[order]
+    if n_unguarded:     # a row of nothing but guarded white space ('\t) is blank once read
+        blank = np.ones(len(starts_arr), bool)
+        for c in cells_arr:
+            blank &= c == ""
+        blank &= ~np.isin(starts_arr, [p.line for p in problems if p.severity == "error"])
+        if blank.any():
+            blanks = sorted(blanks + starts_arr[blank].tolist())
+            starts_arr = starts_arr[~blank]
+            cells_arr = [c[~blank] for c in cells_arr]
+    return starts_arr, cells_arr, feed.comments, blanks, n_unguarded
 
 
 def _literal(line: str, delimiter: str) -> list[str]:
@@ -551,21 +592,6 @@ def _drop_empty_unnamed(table, columns, header, header_line, name, problems):
         problems.append(Problem(header_line, "", f"{len(empty)} {'column' if len(empty) == 1 else 'columns'} with "
                                 "no name and no values ignored", "note", name))
     return table
-
-
-def _unguard(table, columns, name, problems):
-    """Cells written as ``'=...`` by a CSV formula guard are read as they were (``=...``)."""
-    n = 0
-    for col in columns:
-        s = table[col]
-        hit = s.str.match(_GUARDED).to_numpy(dtype=bool)
-        if hit.any():
-            table.loc[hit, col] = s[hit].str.slice(1)
-            n += int(hit.sum())
-    if n:
-        problems.append(Problem(0, "", f"{n} {'cell' if n == 1 else 'cells'} began with ' before =, +, -, @, tab "
-                                "or CR (a guard against spreadsheet formulas, as dfkit writes); read without the '",
-                                "note", name))
 
 
 def _rows_taken_for_comments(lines, comments, header_line, delimiter, width, name, problems):
