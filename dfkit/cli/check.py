@@ -5,7 +5,7 @@ from __future__ import annotations
 import sys
 
 from dfkit.cli.common import (add_output_options, add_read_options, ensure_dir, exit_status, read_kwargs,
-                              refuse_unsafe_outputs, report_problems)
+                              refuse_unsafe_outputs, rejected_summary, report_problems)
 
 
 def add_parser(sub):
@@ -27,7 +27,7 @@ def run(a) -> int:
     for note in b.notes:
         print(f"note      {note}")
     n_fix = b.table["fix"].nunique() if len(b.table) else 0
-    print(f"{b.source}: {b.n_rows} rows, {len(b.table)} usable, {b.n_rejected} rejected; "
+    print(f"{b.source}: {b.n_rows} rows, {len(b.table)} usable, {rejected_summary(b)}; "
           f"{n_fix} {'fix' if n_fix == 1 else 'fixes'} ({len(b.labels)} {'label' if len(b.labels) == 1 else 'labels'} in the sheet)")
     if a.output:
         ensure_dir(a.output)

@@ -137,8 +137,20 @@ def print_summary(b, fixes) -> None:
         print(f"... {len(flagged) - 50} more flagged or failed fixes (see the status column)", file=sys.stderr)
     nf = len(fixes.table)
     print(f"{b.source}: {nf} {'fix' if nf == 1 else 'fixes'}: {s['ok']} ok, {s['flagged']} flagged, "
-          f"{s['failed']} failed; {len(b.table)} of {b.n_rows} rows used, {b.n_rejected} rejected", file=sys.stderr)
+          f"{s['failed']} failed; {len(b.table)} of {b.n_rows} rows used, {rejected_summary(b)}", file=sys.stderr)
     print(CAUTION_LINE, file=sys.stderr)
+
+
+def rejected_summary(b) -> str:
+    """'2 rejected' for the sheet, plus what was rejected in the other inputs (stations file, GPS track)."""
+    by_source: dict[str, set] = {}
+    for p in b.problems:
+        if p.severity == "error" and p.line:
+            by_source.setdefault(p.source, set()).add(p.line)
+    text = f"{len(by_source.pop(b.source, ()))} rejected"
+    for source, lines in by_source.items():
+        text += f"; {len(lines)} {'entry' if len(lines) == 1 else 'entries'} rejected in {source}"
+    return text
 
 
 def exit_status(b, fixes=None) -> int:

@@ -234,6 +234,7 @@ def _resolve_header(header, header_line, name, problems) -> tuple[list[str], lis
     first_seen: dict[str, int] = {}
     next_copy: dict[str, int] = {}
     derived: list[str] = []
+    copies: dict[str, list[tuple[int, str]]] = {}
     for j, (raw, col) in enumerate(zip(header, canon), start=1):
         if not col:
             col = f"column_{j}"
@@ -257,11 +258,15 @@ def _resolve_header(header, header_line, name, problems) -> tuple[list[str], lis
             while f"{col}_{k}" in first_seen or f"{col}_{k}" in present:
                 k += 1
             next_copy[col] = k + 1
-            problems.append(Problem(header_line, raw.strip(), f"column name repeated; the copy in column {j} "
-                                    f"is kept as '{col}_{k}'", "warning", name))
+            copies.setdefault(col, []).append((j, f"{col}_{k}"))
             col = f"{col}_{k}"
         first_seen[col] = j
         columns.append(col)
+    for col, kept in copies.items():
+        where = ", ".join(f"column {j} as '{new}'" for j, new in kept[:5])
+        more = f" and {len(kept) - 5} more" if len(kept) > 5 else ""
+        problems.append(Problem(header_line, col, f"column name repeated; the {'copy is' if len(kept) == 1 else 'copies are'}"
+                                f" kept: {where}{more}", "warning", name))
     if derived:
         problems.append(Problem(header_line, "", f"{', '.join(derived)}: dfkit's own result "
                                 f"{'column' if len(derived) == 1 else 'columns'}, recomputed from this sheet; "
@@ -572,14 +577,13 @@ def _swallowed(lines, first, last, row, width, delimiter) -> str:
         return (f"a quote in this row runs over {where} and gives {len(row)} fields where the header has {width}; "
                 "the row is not used and the lines after it are read as rows (check the quotes)")
     if width >= 3:
-        for k in range(first, last):
-            try:
-                alone = next(csv.reader([lines[k]], delimiter=delimiter))
-            except (csv.Error, StopIteration):
-                continue
-            if len(alone) >= width:
-                return (f"a quote in this row runs over {where}, and line {k + 1} looks like a row of its own; "
-                        "the row is not used and the lines after it are read as rows (check the quotes)")
+        # A quoted cell may hold line ends (a long note); one holding a line with a row's worth of delimiters
+        # has swallowed rows.
+        for cell in row:
+            for k, part in enumerate(cell.split("\n")[1:], start=1):
+                if part.count(delimiter) >= width - 1:
+                    return (f"a quote in this row runs over {where}, and line {first + k} looks like a row of its "
+                            "own; the row is not used and the lines after it are read as rows (check the quotes)")
     return ""
 
 
