@@ -177,8 +177,7 @@ def column_values(series: pd.Series) -> list:
         out = arr.astype(object)
         out[~np.isfinite(arr)] = None
         return out.tolist()
-    out = series.astype(object).to_numpy()
-    return [None if (v is None or (isinstance(v, float) and v != v)) else str(v) for v in out]
+    return series.to_numpy(dtype=object, na_value=None).tolist()
 
 
 # ------------------------------------------------------------------ geometry blobs

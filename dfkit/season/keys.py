@@ -23,7 +23,7 @@ column of the sheet (``name=value``). Rounding makes the key immune to the
 last-bit noise of coordinate conversions; a change of a millimetre is not a
 change.
 
-Both are BLAKE2b digests (RFC 7693) of a text made of the fields, 16 bytes, hex.
+Both are BLAKE2b digests (RFC 7693) of a text made of the fields, 16 bytes (stored as BLOBs).
 The scheme has a name (:data:`KEY_SCHEME`), stored in the file: a store made
 with another scheme is refused rather than silently treated as all new.
 """
@@ -58,20 +58,33 @@ def _text(values) -> pd.Series:
     return s.where(s.notna(), "").astype(str)
 
 
-def _time_text(series: pd.Series) -> pd.Series:
-    t = pd.to_datetime(series, utc=True)
-    us = t.dt.tz_localize(None).to_numpy(dtype="datetime64[us]")
-    text = us.astype(np.int64).astype(str)
-    return pd.Series(np.where(np.isnat(us), "", text), dtype=object)
-
-
-def _digest(texts) -> np.ndarray:
-    return np.array([hashlib.blake2b(t.encode("utf-8"), digest_size=16).hexdigest() for t in texts], dtype=object)
+def _digest(texts, prefix=None) -> np.ndarray:
+    texts = texts.tolist() if hasattr(texts, "tolist") else texts
+    if prefix is None:
+        return np.array([hashlib.blake2b(t.encode("utf-8"), digest_size=16).digest() for t in texts], dtype=object)
+    return np.array([hashlib.blake2b(p + t.encode("utf-8"), digest_size=16).digest()
+                     for p, t in zip(prefix, texts)], dtype=object)
 
 
 def _join(parts: list[pd.Series]) -> pd.Series:
     first, rest = parts[0], parts[1:]
     return first.str.cat(rest, sep="\x1f") if rest else first
+
+
+def _numeric_bytes(table: pd.DataFrame, time_us: np.ndarray) -> list[bytes]:
+    """The time and the numeric content fields of each row, rounded to integers, as bytes."""
+    n = len(table)
+    missing = np.iinfo(np.int64).min
+    rec = np.full((n, len(_NUMERIC) + 1), missing, np.int64)
+    rec[:, 0] = time_us
+    for k, (c, d) in enumerate(_NUMERIC.items(), start=1):
+        if c in table:
+            arr = pd.to_numeric(table[c], errors="coerce").to_numpy(float)
+            finite = np.isfinite(arr)
+            rec[finite, k] = np.round(arr[finite] * 10.0**d).astype(np.int64)
+    width = rec.shape[1] * 8
+    buf = rec.astype("<i8").tobytes()
+    return [buf[i * width:(i + 1) * width] for i in range(n)]
 
 
 def bearing_keys(table: pd.DataFrame) -> tuple[np.ndarray, np.ndarray]:
@@ -84,32 +97,36 @@ def bearing_keys(table: pd.DataFrame) -> tuple[np.ndarray, np.ndarray]:
 
     Returns
     -------
-    row_key, content_key : ndarray of str
-        32 hex digits each, one per row.
+    row_key, content_key : ndarray of bytes
+        16 bytes each, one per row.
     """
     n = len(table)
     if n == 0:
         return np.zeros(0, dtype=object), np.zeros(0, dtype=object)
     tag = _text(table["tag"])
-    time = _time_text(table["time"])
+    t = pd.to_datetime(table["time"], utc=True)
+    us = t.dt.tz_localize(None).to_numpy(dtype="datetime64[us]")
+    timed = ~np.isnat(us)
+    time_us = np.where(timed, us.astype(np.int64), np.iinfo(np.int64).min)
     observer = _text(table["observer"]) if "observer" in table else pd.Series([""] * n, dtype=object)
-    timed = (time != "").to_numpy()
-    by_time = _join([pd.Series(["t"] * n, dtype=object), tag, time, observer])
-    by_place = _join([pd.Series(["p"] * n, dtype=object), tag, _text(table["fix"]),
-                      _num_text(table["lat"], 6), _num_text(table["lon"], 6)])
-    base = pd.Series(np.where(timed, by_time, by_place), dtype=object)
+    base = _join([pd.Series(np.where(timed, "t", "p"), dtype=object), tag,
+                  pd.Series(time_us.astype(str), dtype=object), observer])
+    if not timed.all():
+        u = ~timed
+        place = _join([pd.Series(["p"] * int(u.sum()), dtype=object), tag[u].reset_index(drop=True),
+                       _text(table["fix"])[u].reset_index(drop=True),
+                       _num_text(table["lat"].to_numpy(float)[u], 6), _num_text(table["lon"].to_numpy(float)[u], 6)])
+        base = base.copy()
+        base[u] = place.to_numpy()
     ordinal = base.groupby(base, sort=False).cumcount().astype(str)
     row_key = _digest(base.str.cat(ordinal, sep="\x1f"))
 
-    parts = [time]
-    parts += [_text(table[c]) if c in table else pd.Series([""] * n, dtype=object) for c in _TEXT]
-    parts += [_num_text(table[c], d) if c in table else pd.Series([""] * n, dtype=object)
-              for c, d in _NUMERIC.items()]
+    parts = [_text(table[c]) if c in table else pd.Series([""] * n, dtype=object) for c in _TEXT]
     known = set(_NUMERIC) | set(_TEXT) | _RUN_COLUMNS | {"time"}
     for c in sorted(col for col in table.columns if col not in known):
         v = _text(table[c])
         parts.append(pd.Series(np.where(v != "", f"{c}=" + v, ""), dtype=object))
-    content_key = _digest(_join(parts))
+    content_key = _digest(_join(parts), _numeric_bytes(table, time_us))
     return row_key, content_key
 
 

@@ -46,13 +46,13 @@ from dfkit.season.rings import ellipse_rings
 #: Layout version of the store; a newer file is refused, an older one migrated (see :data:`_MIGRATIONS`).
 SCHEMA_VERSION = 1
 #: Vertices of each stored ellipse ring.
-RING_VERTICES = 36
+RING_VERTICES = 32
 
 _STORE_FIX_COLUMNS = {"import_id": "INTEGER", "source": "TEXT", "fix_key": "TEXT"}
 #: Fix columns made with the table (they are indexed or filtered on); the others are added as they come.
 _CORE_FIX_COLUMNS = {"fix": "TEXT", "tag": "TEXT", "time": "DATETIME", "status": "TEXT", "n_used": "INTEGER",
                      "area_m2": "REAL"}
-_STORE_BEARING_COLUMNS = {"import_id": "INTEGER", "fix_fid": "INTEGER", "row_key": "TEXT", "content_key": "TEXT"}
+_STORE_BEARING_COLUMNS = {"import_id": "INTEGER", "fix_fid": "INTEGER", "row_key": "BLOB", "content_key": "BLOB"}
 _REGION_COLUMNS = {"fix_fid": "INTEGER", "import_id": "INTEGER", "tag": "TEXT", "fix": "TEXT", "time": "DATETIME",
                    "status": "TEXT", "kind": "TEXT", "level": "REAL", "area_m2": "REAL", "semi_major_m": "REAL",
                    "semi_minor_m": "REAL", "orientation_deg": "REAL"}
@@ -68,11 +68,27 @@ _CHANGE_COLUMNS = {"import_id": "INTEGER", "tag": "TEXT", "fix": "TEXT", "kind":
 #: Column names the store uses itself; sheet columns with these names are stored as ``sheet_<name>``.
 _RESERVED = {"fid", "geom"} | set(_STORE_FIX_COLUMNS) | set(_STORE_BEARING_COLUMNS)
 
+#: Indexes of the store (filters by tag, time, status and import; bearings by identity and fix).
+_INDEXES = {
+    "fixes_tag_time": "CREATE INDEX fixes_tag_time ON fixes (tag, time)",
+    "fixes_time": "CREATE INDEX fixes_time ON fixes (time)",
+    "fixes_status": "CREATE INDEX fixes_status ON fixes (status)",
+    "fixes_import": "CREATE INDEX fixes_import ON fixes (import_id)",
+    "fixes_key": "CREATE INDEX fixes_key ON fixes (fix_key)",
+    "regions_fix": "CREATE INDEX regions_fix ON regions (fix_fid)",
+    "bearings_row_key": "CREATE UNIQUE INDEX bearings_row_key ON bearings (row_key)",
+    "bearings_fix": "CREATE INDEX bearings_fix ON bearings (fix_fid)",
+    "problems_import": "CREATE INDEX problems_import ON problems (import_id)",
+}
+#: An import adding more bearings than this (and than the store holds) rebuilds the indexes once after
+#: inserting instead of updating them row by row (inside the same transaction).
+_REBUILD_INDEXES_ABOVE = 50_000
+
 #: Schema migrations: version -> function(conn) that brings a store from that version to the next.
 _MIGRATIONS: dict = {}
 
 
-class StoreError(Exception):
+class StoreError(ValueError):
     """The file is not a season store dfkit can use (the CLI exits with status 2)."""
 
 
@@ -138,6 +154,7 @@ class SeasonStore:
         try:
             conn = sqlite3.connect(path, isolation_level=None, timeout=30.0)
             conn.execute("PRAGMA foreign_keys = OFF")
+            conn.execute("PRAGMA cache_size = -262144")     # 256 MiB: index inserts of a big import stay in memory
             tables = {r[0] for r in conn.execute("SELECT name FROM sqlite_master WHERE type = 'table'")}
         except sqlite3.DatabaseError as err:
             raise StoreError(f"'{path}' is not a season store (not an SQLite/GeoPackage file: {err})") from None
@@ -175,15 +192,7 @@ class SeasonStore:
             gpkg.create_features(c, "regions", "MULTIPOLYGON", _REGION_COLUMNS, "confidence regions of fixes")
             gpkg.create_features(c, "bearings", "POINT", dict(_STORE_BEARING_COLUMNS),
                                  "bearings at their stations, every input column kept")
-            for stmt in ("CREATE INDEX fixes_tag_time ON fixes (tag, time)",
-                         "CREATE INDEX fixes_time ON fixes (time)",
-                         "CREATE INDEX fixes_status ON fixes (status)",
-                         "CREATE INDEX fixes_import ON fixes (import_id)",
-                         "CREATE INDEX fixes_key ON fixes (fix_key)",
-                         "CREATE INDEX regions_fix ON regions (fix_fid)",
-                         "CREATE UNIQUE INDEX bearings_row_key ON bearings (row_key)",
-                         "CREATE INDEX bearings_fix ON bearings (fix_fid)",
-                         "CREATE INDEX problems_import ON problems (import_id)"):
+            for stmt in _INDEXES.values():
                 c.execute(stmt)
             c.execute("COMMIT")
         except BaseException:
@@ -260,8 +269,8 @@ class SeasonStore:
         row_key, content_key = bearing_keys(bt)
         fix_of = bt["fix_id"].to_numpy(np.int64) if len(bt) else np.zeros(0, np.int64)
         n_in = np.bincount(fix_of, minlength=m)
-        own_key = _fix_keys(table, row_key, fix_of, n_in, file_name)
         empty_key = _empty_keys(table, file_name)
+        own_key = np.where(n_in == 0, empty_key, None)
         report = ImportReport(import_id=0, file_name=file_name, n_rows=n_rows if n_rows is not None else len(bt),
                               n_rejected=len({p.line for p in fixes.problems if p.severity == "error" and p.line}),
                               fixes_in=m, problems=list(fixes.problems), notes=list(fixes.notes), replaced=replace)
@@ -274,10 +283,10 @@ class SeasonStore:
             earlier = c.execute("SELECT import_id, options FROM imports WHERE file_sha256 = ? AND file_sha256 != ''",
                                 (file_sha256,)).fetchall()
             opts_json = json.dumps(options or {}, sort_keys=True, default=str)
-            for imp, old in earlier:
-                if old != opts_json:
-                    report.notes.append(f"this file was imported before (import {imp}) with other options; rows "
-                                        "whose meaning changed are reported as changed")
+            other = [str(imp) for imp, old in earlier if old != opts_json]
+            if other:
+                report.notes.append(f"this file was imported before with other options (import {', '.join(other)});"
+                                    " rows whose meaning changed are reported as changed")
             report.import_id = self._insert_import(file_name, file_path, file_sha256, opts_json)
             iid = report.import_id
             changed = np.flatnonzero(verdict == "changed")
@@ -296,10 +305,19 @@ class SeasonStore:
             report.fixes_known = int((verdict == "same").sum())
             report.bearings_known = int(np.isin(fix_of, np.flatnonzero(verdict == "same")).sum())
             say(f"storing {int(add.sum())} fixes")
+            keep_b = add[fix_of] if len(bt) else np.zeros(0, bool)
+            stored_b = c.execute("SELECT COUNT(*) FROM bearings").fetchone()[0]
+            rebuild = keep_b.sum() > max(_REBUILD_INDEXES_ABOVE, stored_b)
+            if rebuild:
+                for name in _INDEXES:
+                    c.execute(f"DROP INDEX IF EXISTS {name}")
             fids = self._insert_fixes(table, add, iid, file_name, own_key)
             self._insert_regions(table, add, fids, iid)
-            keep_b = add[fix_of] if len(bt) else np.zeros(0, bool)
             self._insert_bearings(bt, keep_b, fids, fix_of, iid, row_key, content_key)
+            if rebuild:
+                say("indexing")
+                for stmt in _INDEXES.values():
+                    c.execute(stmt)
             c.executemany("INSERT INTO problems (import_id, line, column_name, severity, message, source) VALUES "
                           "(?, ?, ?, ?, ?, ?)",
                           [(iid, p.line, p.column, p.severity, p.message, p.source) for p in fixes.problems])
@@ -336,11 +354,12 @@ class SeasonStore:
         if not has_fixes:
             return verdict, touched, details
         # stored fixes with no bearing, known by (file, tag, label)
-        stored_empty = dict(self._lookup("fixes", "fix_key", "fid", list(set(empty_key))))
-        for i in range(m):
-            f = stored_empty.get(empty_key[i])
-            if f is not None:
-                touched[i].add(f)
+        if c.execute("SELECT 1 FROM fixes WHERE fix_key IS NOT NULL LIMIT 1").fetchone() is not None:
+            stored_empty = dict(self._lookup("fixes", "fix_key", "fid", list(set(empty_key))))
+            for i in range(m):
+                f = stored_empty.get(empty_key[i])
+                if f is not None:
+                    touched[i].add(f)
         if has_bearings and len(bt):
             found = pd.DataFrame(self._lookup("bearings", "row_key", "fix_fid, content_key, import_id",
                                               row_key.tolist()),
@@ -528,7 +547,7 @@ class SeasonStore:
     def bearings(self, fix_fids) -> pd.DataFrame:
         """The stored bearings of these fixes."""
         fix_fids = [int(f) for f in fix_fids]
-        cols = [c for c in gpkg.table_columns(self.conn, "bearings") if c not in ("geom",)]
+        cols = [c for c in gpkg.table_columns(self.conn, "bearings") if c not in ("geom", "row_key", "content_key")]
         parts = []
         for s in range(0, len(fix_fids), 500):
             chunk = fix_fids[s:s + 500]
@@ -652,20 +671,8 @@ def _stored_name(col: str) -> str:
     return f"sheet_{col}" if col.lower() in _RESERVED else col
 
 
-def _fix_keys(table, row_key, fix_of, n_in, file_name) -> np.ndarray:
-    """A key per fix: from its bearings' identities, or (no usable bearing) from file, tag and label."""
-    import hashlib
-
-    keys = _empty_keys(table, file_name)
-    if len(row_key):
-        order = np.lexsort((row_key, fix_of))
-        joined = pd.Series(row_key[order]).groupby(fix_of[order]).agg("".join)
-        for i, text in joined.items():
-            keys[int(i)] = hashlib.blake2b(("b\x1f" + text).encode(), digest_size=16).hexdigest()
-    return keys
-
-
 def _empty_keys(table, file_name) -> np.ndarray:
+    """Key of a fix with no usable bearing: its file name, tag and label (nothing else is left of it)."""
     import hashlib
 
     return np.array([hashlib.blake2b(f"e\x1f{file_name}\x1f{t}\x1f{f}".encode(), digest_size=16).hexdigest()
