@@ -17,11 +17,11 @@ import argparse
 import sys
 
 from dfkit import __version__
-from dfkit.cli import check, fix, map as map_cmd, season
+from dfkit.cli import check, fix, map as map_cmd, ranges, season
 from dfkit.problems import SheetError
 
 #: The sub-commands, in the order ``dfkit --help`` lists them.
-COMMANDS = [check, fix, map_cmd, season]
+COMMANDS = [check, fix, map_cmd, season, ranges]
 
 
 def build_parser() -> argparse.ArgumentParser:

@@ -1,0 +1,93 @@
+"""Writing home ranges: GeoJSON (RFC 7946), GeoPackage (layer ``home_ranges``) or CSV (no geometry)."""
+
+from __future__ import annotations
+
+import json
+import os
+import sqlite3
+
+import numpy as np
+import pandas as pd
+
+from dfkit.cautions import CAUTION
+from dfkit.export.atomic import atomic_write
+from dfkit.export.csv import write_table
+from dfkit.season import gpkg
+
+#: Extensions :func:`write_ranges` understands.
+RANGE_KINDS = (".geojson", ".json", ".gpkg", ".csv")
+
+
+def lonlat_parts(geom):
+    """A polygonal geometry with continuous longitudes as a MultiPolygon within ±180 (split at the
+    antimeridian, RFC 7946 section 3.1.9), exterior rings counter-clockwise; None stays None."""
+    import shapely
+    from shapely.geometry.polygon import orient
+
+    if geom is None or geom.is_empty:
+        return None
+    parts = []
+    for k in (-1, 0, 1):
+        piece = shapely.intersection(geom, shapely.box(-180.0 + 360 * k, -90.0, 180.0 + 360 * k, 90.0))
+        if piece.is_empty:
+            continue
+        piece = shapely.transform(piece, lambda xy: xy - np.array([360.0 * k, 0.0]))
+        parts += [orient(p, 1.0) for p in getattr(piece, "geoms", [piece]) if p.geom_type == "Polygon" and p.area > 0]
+    return shapely.MultiPolygon(parts) if parts else None
+
+
+def write_ranges(ranges, path) -> None:
+    """Write :class:`~dfkit.homerange.HomeRanges` by the file's extension (atomically)."""
+    ext = os.path.splitext(os.fspath(path))[1].lower()
+    if ext not in RANGE_KINDS:
+        raise ValueError(f"cannot write home ranges to '{path}': use one of {', '.join(RANGE_KINDS)}")
+    table = ranges.table
+    attrs = table.drop(columns=["geometry"])
+    if ext == ".csv":
+        write_table(attrs, path)
+        return
+    geoms = [lonlat_parts(g) for g in table["geometry"]]
+    if ext == ".gpkg":
+        _write_gpkg(attrs, geoms, path)
+        return
+    import shapely
+
+    feats = []
+    for (_, row), g in zip(attrs.iterrows(), geoms):
+        props = {k: (None if isinstance(v, float) and not np.isfinite(v) else
+                     v.item() if isinstance(v, np.generic) else v) for k, v in row.items()}
+        feats.append({"type": "Feature", "properties": props,
+                      "geometry": None if g is None else json.loads(shapely.to_geojson(g))})
+    with atomic_write(path) as fh:
+        json.dump({"type": "FeatureCollection", "features": feats, "dfkit": {"caution": CAUTION}}, fh,
+                  ensure_ascii=False, allow_nan=False)
+
+
+def _write_gpkg(attrs: pd.DataFrame, geoms, path) -> None:
+    path = os.fspath(path)
+    folder = os.path.dirname(os.path.abspath(path))
+    os.makedirs(folder, exist_ok=True)
+    tmp = os.path.join(folder, f".{os.path.basename(path)}.{os.getpid()}.part")
+    if os.path.exists(tmp):
+        os.unlink(tmp)
+    try:
+        conn = sqlite3.connect(tmp, isolation_level=None)
+        conn.execute("BEGIN")
+        gpkg.initialise(conn)
+        types = {c: gpkg.sql_type(attrs[c]) for c in attrs.columns}
+        gpkg.create_features(conn, "home_ranges", "MULTIPOLYGON", types, "home ranges. " + CAUTION)
+        cols = ["geom"] + list(types)
+        values = [gpkg.geometry_blobs(geoms)] + [gpkg.column_values(attrs[c]) for c in types]
+        conn.executemany(f"INSERT INTO home_ranges ({', '.join(gpkg.quote(c) for c in cols)}) VALUES "
+                         f"({', '.join('?' * len(cols))})", zip(*values))
+        present = [g for g in geoms if g is not None]
+        if present:
+            b = np.array([g.bounds for g in present])
+            gpkg.touch(conn, "home_ranges", [b[:, 0].min(), b[:, 1].min(), b[:, 2].max(), b[:, 3].max()])
+        conn.execute("COMMIT")
+        conn.close()
+        os.replace(tmp, path)
+    except BaseException:
+        if os.path.exists(tmp):
+            os.unlink(tmp)
+        raise
