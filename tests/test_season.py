@@ -461,3 +461,42 @@ def test_season_samples_go_in_and_give_home_ranges(tmp_path):
         true_area = -2 * np.log(0.05) * np.pi * t["sigma_east_m"] * t["sigma_north_m"]
         # the kernel range of located fixes is larger than the true range (kernel width and fix error add)
         assert true_area < f["properties"]["area_m2"] < 4 * true_area
+
+
+def test_season_samples_are_made_by_their_script(tmp_path):
+    import importlib.util
+    import shutil
+
+    shutil.copy(SAMPLES / "make_samples.py", tmp_path / "make_samples.py")
+    spec = importlib.util.spec_from_file_location("make_samples_season", tmp_path / "make_samples.py")
+    mod = importlib.util.module_from_spec(spec)
+    spec.loader.exec_module(mod)
+    mod.season()
+    made = sorted(p.name for p in tmp_path.glob("*.csv"))
+    assert made == ["season_2026_05.csv", "season_2026_06.csv", "truth_season.csv", "truth_season_fixes.csv"]
+    for name in made:
+        assert (tmp_path / name).read_text() == (SAMPLES / name).read_text(), name
+
+
+def test_season_sample_fixes_hold_the_truth_at_the_stated_rate():
+    from geographiclib.geodesic import Geodesic
+
+    from dfkit.locate import locate_sheet
+
+    truth = pd.read_csv(SAMPLES / "truth_season_fixes.csv", dtype={"tag": str})
+    hits = []
+    for sheet in ("season_2026_05.csv", "season_2026_06.csv"):
+        t = locate_sheet(SAMPLES / sheet).table
+        for _, r in t[t["status"] == "ok"].iterrows():
+            stamp = r["fix"].split(" ")[1][:16]
+            m = truth[(truth["tag"] == r["tag"]) & (truth["first_bearing_time"].str[:16] == stamp)]
+            assert len(m) == 1
+            g = Geodesic.WGS84.Inverse(r["lat"], r["lon"], m["lat"].iloc[0], m["lon"].iloc[0])
+            a = np.radians(g["azi1"])
+            x, y = g["s12"] * np.sin(a), g["s12"] * np.cos(a)
+            th = np.radians(r["orientation_deg"])
+            u, v = x * np.sin(th) + y * np.cos(th), x * np.cos(th) - y * np.sin(th)
+            hits.append((u / r["semi_major_m"]) ** 2 + (v / r["semi_minor_m"]) ** 2 <= 1)
+    # ~150 fixes with 95 % ellipses, 2 % of bearings are 30-60 degree reflections: at least 85 % inside
+    # (for a true 95 % region, P(below 85 %) is far under 1 %, binomial)
+    assert len(hits) > 120 and np.mean(hits) >= 0.85
