@@ -10,6 +10,8 @@ $(STAMP): pyproject.toml
 	test -x $(PY) || $(PYTHON) -m venv $(VENV)
 	$(PY) -m pip install --quiet --upgrade pip
 	$(PY) -m pip install --quiet -e '.[test]'
+	# GDAL's GeoPackage validator for the tests; --no-deps, or pip tries to build GDAL from source
+	$(PY) -m pip install --quiet --no-deps gdal-utils
 	touch $(STAMP)
 
 demo: $(STAMP)
