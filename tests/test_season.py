@@ -500,3 +500,49 @@ def test_season_sample_fixes_hold_the_truth_at_the_stated_rate():
     # ~150 fixes with 95 % ellipses, 2 % of bearings are 30-60 degree reflections: at least 85 % inside
     # (for a true 95 % region, P(below 85 %) is far under 1 %, binomial)
     assert len(hits) > 120 and np.mean(hits) >= 0.85
+
+
+def test_review_page_map_and_time_filter_in_a_browser_offline(tmp_path):
+    import re
+    import shutil
+
+    chromium = shutil.which("chromium") or shutil.which("chromium-browser")
+    if chromium is None:
+        pytest.skip("Debian's chromium is not installed (apt-get install chromium); .ci/run installs it")
+    from playwright.sync_api import sync_playwright
+
+    store = tmp_path / "s.gpkg"
+    add(store, SAMPLES / "season_2026_05.csv")
+    out = tmp_path / "review.html"
+    assert main(["season", "show", str(store), "-o", str(out)]) in (0, 1)
+    with SeasonStore.open(store) as s:
+        located = int(s.fixes(SeasonFilter(statuses=("ok", "no_region", "shallow", "long_span"))).shape[0])
+    outside, errors = [], []
+    with sync_playwright() as pw:
+        browser = pw.chromium.launch(executable_path=chromium, args=[
+            "--headless", "--no-sandbox", "--disable-gpu", "--disable-background-networking",
+            "--disable-component-update", "--disable-sync", "--no-first-run", "--disable-quic"])
+        page = browser.new_page(viewport={"width": 1100, "height": 900})
+
+        def route(r):
+            if r.request.url.startswith(("file:", "data:", "about:")):
+                return r.continue_()
+            outside.append(r.request.url)
+            return r.abort()
+
+        page.route("**/*", route)
+        page.on("console", lambda m: errors.append(m.text) if m.type == "error" else None)
+        page.on("pageerror", lambda e: errors.append(str(e)))
+        page.goto(out.as_uri())
+        page.wait_for_selector(".leaflet-overlay-pane canvas, .leaflet-overlay-pane svg", state="attached",
+                               timeout=15000)
+        shown = int(re.search(r"(\d+) fixes", page.locator("#span-text").inner_text()).group(1))
+        page.locator("#t1").evaluate("e => { e.value = 500; e.dispatchEvent(new Event('change')); }")
+        half = int(re.search(r"(\d+) fixes", page.locator("#span-text").inner_text()).group(1))
+        tags_in_control = page.locator(".leaflet-control-layers-overlays label").count()
+        page.screenshot(path=str(tmp_path / "review.png"), full_page=True)
+        browser.close()
+    assert outside == [] and errors == []
+    assert shown == located                     # every located fix is on the map
+    assert 0 < half < shown                     # the time filter keeps the first half of the season
+    assert tags_in_control == 3                 # one switchable layer per tag

@@ -161,8 +161,9 @@ def _histogram_svg(table, colours, width=640, height=220) -> str:
     ok, la = _ok_areas(table)
     if not len(la):
         return "<p>No ok fix has a region.</p>"
-    lo, hi = math.floor(la.min() * 4) / 4, math.ceil(la.max() * 4) / 4 + 0.25
-    edges = np.arange(lo, hi + 1e-9, 0.25)
+    step = 0.1                                   # a tenth of a decade per bar
+    lo, hi = math.floor(la.min() / step) * step, math.ceil(la.max() / step) * step + step
+    edges = np.arange(lo, hi + 1e-9, step)
     tags = sorted(colours)
     counts = {t: np.histogram(la[ok["tag"].astype(str).to_numpy() == t], edges)[0] for t in tags}
     total = sum(counts.values())
@@ -178,11 +179,15 @@ def _histogram_svg(table, colours, width=640, height=220) -> str:
                 out.append(f"<rect x='{pad + k * w_bar:.1f}' y='{y:.1f}' width='{w_bar - 1:.1f}' height='{h:.1f}' "
                            f"fill='{colours[t]}'><title>{_e(t)}: {c}</title></rect>")
         base += counts[t]
-    for e in range(math.ceil(lo), math.floor(edges[-1]) + 1):
-        x = pad + (e - lo) / 0.25 * w_bar
-        out.append(f"<line x1='{x:.1f}' x2='{x:.1f}' y1='{height - 30}' y2='{height - 25}' stroke='#333'/>"
-                   f"<text x='{x:.1f}' y='{height - 12}' text-anchor='middle'>{_area(10.0 ** e)}</text>")
-    out.append(f"<text x='{pad}' y='14'>fixes (highest bar {top})</text></svg>")
+    for e in range(math.floor(lo), math.ceil(edges[-1]) + 1):
+        for mult in (1, 2, 5):
+            v = math.log10(mult) + e
+            if lo <= v <= edges[-1]:
+                x = pad + (v - lo) / step * w_bar
+                out.append(f"<line x1='{x:.1f}' x2='{x:.1f}' y1='{height - 30}' y2='{height - 25}' stroke='#333'/>"
+                           f"<text x='{x:.1f}' y='{height - 12}' text-anchor='middle'>{_area(10.0 ** v)}</text>")
+    out.append(f"<text x='{pad}' y='14'>fixes per tenth of a decade of area (highest bar {top}); "
+               "region area on a logarithmic scale</text></svg>")
     return "".join(out)
 
 
