@@ -20,6 +20,9 @@ demo: $(STAMP)
 	$(PY) -m dfkit fix sample_bearings/hunt.csv --window 90 -o demo_output/hunt.geojson
 	$(PY) -m dfkit fix sample_bearings/week_tracking.csv --track sample_bearings/week_track.gpx -o demo_output/week_fixes.csv -o demo_output/week_fixes.gpx || test $$? -eq 1
 	$(PY) -m dfkit map sample_bearings/week_tracking.csv --track sample_bearings/week_track.gpx -o demo_output/week_map.html || test $$? -eq 1
+	$(PY) -m dfkit season add demo_output/season.gpkg sample_bearings/season_2026_05.csv sample_bearings/season_2026_06.csv || test $$? -eq 1
+	$(PY) -m dfkit season show demo_output/season.gpkg -o demo_output/season_review.html || test $$? -eq 1
+	$(PY) -m dfkit ranges demo_output/season.gpkg --method kde --levels 50,95 -o demo_output/home_ranges.geojson -o demo_output/home_ranges.gpkg
 	@echo "Demo outputs are in demo_output/ (open demo_output/week_map.html in a browser; it works offline)."
 
 test: $(STAMP)
@@ -33,6 +36,7 @@ samples: $(STAMP)
 
 bench: $(STAMP)
 	$(PY) benchmarks/bench_fix.py
+	$(PY) benchmarks/bench_season.py
 
 wheelhouse: $(STAMP)
 	$(PY) -m pip wheel --quiet -w wheelhouse '.[test]'

@@ -110,22 +110,50 @@ def reference_bandwidth(x, y) -> float:
     return sigma * len(x) ** (-1.0 / 6.0)
 
 
+#: Up to this many pairs of fixes LSCV sums over every pair; beyond, over a histogram of their squared
+#: distances (:data:`LSCV_BINS` bins, equal in log d²; their relative width is about 1 %).
+LSCV_EXACT_PAIRS = 2_000_000
+LSCV_BINS = 8000
+
+
 def _pair_d2(x, y):
-    i, j = np.triu_indices(len(x), k=1)
-    return (x[i] - x[j]) ** 2 + (y[i] - y[j]) ** 2
+    """Squared distances of all pairs: (values, counts). Exact for few pairs, else a log-binned histogram."""
+    n = len(x)
+    if n * (n - 1) // 2 <= LSCV_EXACT_PAIRS:
+        i, j = np.triu_indices(n, k=1)
+        d2 = (x[i] - x[j]) ** 2 + (y[i] - y[j]) ** 2
+        return d2, np.ones_like(d2)
+    span = max(float(np.ptp(x)), float(np.ptp(y)), 1e-9)
+    lo, hi = math.log(1e-12 * span * span), math.log(2.0 * span * span)
+    step = (hi - lo) / (LSCV_BINS - 1)
+    counts = np.zeros(LSCV_BINS + 1)                 # bin 0: coincident fixes (d = 0)
+    for s in range(0, n - 1, 1000):
+        rows = np.arange(s, min(s + 1000, n - 1))
+        dx = x[rows, None] - x[None, :]
+        dy = y[rows, None] - y[None, :]
+        d2 = (dx * dx + dy * dy)[np.arange(n)[None, :] > rows[:, None]]
+        with np.errstate(divide="ignore"):
+            idx = np.where(d2 > 0, np.clip((np.log(d2) - lo) / step, 0, LSCV_BINS - 1).astype(np.int64) + 1, 0)
+        counts += np.bincount(idx, minlength=LSCV_BINS + 1)
+    centres = np.concatenate(([0.0], np.exp(lo + (np.arange(LSCV_BINS) + 0.5) * step)))
+    keep = counts > 0
+    return centres[keep], counts[keep]
 
 
-def lscv_score(x, y, h):
-    """LSCV(h) of the normal kernel (see the module docstring), for one or many h [m]."""
+def lscv_score(x, y, h, *, pairs=None):
+    """LSCV(h) of the normal kernel (see the module docstring), for one or many h [m].
+
+    ``pairs`` (from the private pair-distance helper) saves recomputing the distances.
+    """
     x = np.asarray(x, float)
     y = np.asarray(y, float)
     n = len(x)
     h = np.atleast_1d(np.asarray(h, float))
-    d2 = _pair_d2(x, y)
+    d2, w = pairs if pairs is not None else _pair_d2(x, y)
     out = np.empty(len(h))
     for k, hk in enumerate(h):
-        s4 = np.exp(-d2 / (4 * hk * hk)).sum()
-        s2 = np.exp(-d2 / (2 * hk * hk)).sum()
+        s4 = np.exp(-d2 / (4 * hk * hk)) @ w
+        s2 = np.exp(-d2 / (2 * hk * hk)) @ w
         out[k] = (1 / (4 * np.pi * n * hk * hk) + s4 / (2 * np.pi * n * n * hk * hk)
                   - 2 * s2 / (np.pi * n * (n - 1) * hk * hk))
     return out if np.ndim(out) and len(out) > 1 else float(out[0])
@@ -148,14 +176,15 @@ def lscv_bandwidth(x, y) -> tuple[float, str]:
     href = reference_bandwidth(x, y)
     if len(x) < 3 or not href > 0:
         return href, "LSCV needs at least 3 distinct fixes; h_ref used"
+    pairs = _pair_d2(x, y)
     grid = href * np.geomspace(0.02, 4.0, 60)
-    scores = lscv_score(x, y, grid)
+    scores = lscv_score(x, y, grid, pairs=pairs)
     k = int(np.nanargmin(scores))
     if not np.isfinite(scores[k]) or k == 0:
         return href, ("LSCV kept shrinking the bandwidth (repeated or gridded fixes?): no minimum, h_ref used")
     if k == len(grid) - 1:
         return href, "LSCV found no minimum below 4 h_ref; h_ref used"
-    res = minimize_scalar(lambda h: lscv_score(x, y, h), bracket=(grid[k - 1], grid[k], grid[k + 1]),
+    res = minimize_scalar(lambda h: lscv_score(x, y, h, pairs=pairs), bracket=(grid[k - 1], grid[k], grid[k + 1]),
                           method="brent", options={"xtol": 1e-10})
     return float(res.x), ""
 

@@ -94,6 +94,22 @@ def test_lscv_bandwidth_is_the_minimiser_of_the_criterion():
     assert h == pytest.approx(ref.x, abs=0.01)
 
 
+def test_lscv_on_binned_distances_matches_the_exact_sum(monkeypatch):
+    # Many fixes: the pairs' squared distances are binned; the criterion and its minimiser barely move.
+    rng = np.random.default_rng(8)
+    x, y = rng.normal(0, 300, 1200), rng.normal(0, 150, 1200)
+    exact_pairs = hr._pair_d2(x, y)
+    monkeypatch.setattr(hr, "LSCV_EXACT_PAIRS", 1000)
+    binned_pairs = hr._pair_d2(x, y)
+    assert len(binned_pairs[0]) < len(exact_pairs[0]) / 20 and binned_pairs[1].sum() == 1200 * 1199 / 2
+    for h in (10.0, 40.0, 120.0):
+        exact = hr.lscv_score(x, y, h, pairs=exact_pairs)
+        assert hr.lscv_score(x, y, h, pairs=binned_pairs) == pytest.approx(exact, rel=1e-3)
+    h_binned = hr.lscv_bandwidth(x, y)[0]
+    monkeypatch.setattr(hr, "LSCV_EXACT_PAIRS", 10**9)
+    assert h_binned == pytest.approx(hr.lscv_bandwidth(x, y)[0], rel=0.01)
+
+
 def test_lscv_falls_back_to_href_with_a_warning_on_repeated_fixes():
     x = np.repeat([0.0, 100.0, 200.0, 0.0], 10)      # fixes repeated on a few spots: LSCV runs to h -> 0
     y = np.repeat([0.0, 0.0, 50.0, 120.0], 10)
