@@ -546,3 +546,18 @@ def test_review_page_map_and_time_filter_in_a_browser_offline(tmp_path):
     assert shown == located                     # every located fix is on the map
     assert 0 < half < shown                     # the time filter keeps the first half of the season
     assert tags_in_control == 3                 # one switchable layer per tag
+
+
+def test_readme_season_and_ranges_commands_run(tmp_path, monkeypatch):
+    import re
+    import shlex
+
+    text = (ROOT / "README.md").read_text()
+    cmds = re.findall(r"^dfkit ((?:season|ranges) [^#\n]*)", text, flags=re.M)
+    assert len(cmds) >= 5
+    monkeypatch.chdir(tmp_path)
+    assert main(["fix", str(SAMPLES / "season_2026_05.csv"), "-o", "fixes.csv"]) in (0, 1)
+    for cmd in cmds:
+        args = [a.replace("sample_bearings/", f"{SAMPLES}/") for a in shlex.split(cmd)]
+        assert main(args) in (0, 1), cmd
+    assert (tmp_path / "review.html").exists() and (tmp_path / "ranges.gpkg").exists()
