@@ -84,6 +84,20 @@ def _map_classes():
             self.online_layer = online_layer
             self.online_name_json = payload.script_json(ONLINE_NAME)
 
+        def render(self, **kwargs):
+            # Not MacroElement.render: it would compile the rendered page text, user data included, as a
+            # template. Here the macros are rendered once and their output is added as fixed text.
+            from branca.element import CssLink, JavascriptLink
+
+            figure = self.get_root()
+            for name, url in self.default_js:
+                figure.header.add_child(JavascriptLink(url), name=name)
+            for name, url in self.default_css:
+                figure.header.add_child(CssLink(url), name=name)
+            module = self._template.module
+            figure.html.add_child(assets.Raw(str(module.html(self, kwargs))), name=self.get_name())
+            figure.script.add_child(assets.Raw(str(module.script(self, kwargs))), name=self.get_name())
+
     class FixMap(folium.Map):
         """A folium map of fixes that saves as one offline HTML file (see :func:`fix_map`).
 

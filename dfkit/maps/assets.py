@@ -83,8 +83,9 @@ def inline_style(link: str) -> str:
     return f"<style>/* {ASSETS[link][1]} */\n{body}\n</style>"
 
 
-class _Raw:
-    """A header element that renders to fixed text (never through a template engine)."""
+class Raw:
+    """A page element that renders to fixed text, never through a template engine (folium's MacroElement
+    compiles its rendered output as a new template, so text in it that looks like template syntax would run)."""
 
     def __init__(self, html: str):
         self.html = html
@@ -108,7 +109,7 @@ def inline_links(figure) -> list[str]:
             link = ALIASES.get(child.url, child.url)
             if link in ASSETS:
                 inline = inline_script(link) if isinstance(child, JavascriptLink) else inline_style(link)
-                header._children[name] = _Raw(inline)
+                header._children[name] = Raw(inline)
             else:
                 remaining.append(child.url)
     for url in remaining:

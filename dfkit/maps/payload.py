@@ -46,7 +46,8 @@ def script_json(obj) -> str:
 
 
 def _text(values) -> list[str]:
-    return ["" if v is None or (isinstance(v, float) and np.isnan(v)) else str(v) for v in values]
+    s = pd.Series(values, dtype=object) if not isinstance(values, pd.Series) else values.astype(object)
+    return s.where(s.notna(), "").astype(str).tolist()
 
 
 def _codes(values) -> tuple[list[int], list[str]]:
