@@ -8,10 +8,11 @@ property, not one object per feature) and positions are integers:
 * times in seconds from the earliest time of the map (``t0``, seconds since 1970 UTC);
 * labels, tags, observers, notes and statuses as lists of text, referred to by index.
 
-Confidence ellipses are sent as their axes and drawn by the page in the fix's local tangent plane (metres
-to degrees with the WGS84 radii of curvature at the fix): the drawn ring departs from the exact ellipsoidal
-one by about r^3/R^2, under 0.1 m for a 10 km axis. Ellipses larger than :data:`EXACT_RING_M`, likelihood
-regions and error polygons are sent as exact rings computed here (:mod:`dfkit.export.shapes`).
+Confidence ellipses are sent as their axes and drawn by the page (``ellipseRing`` in ``dfkit-map.js``: a
+great circle on the sphere of the prime-vertical radius, latitude change scaled to the meridian radius); the
+browser test holds the drawn vertices within 0.05 m of Karney's geodesics for a 5 km axis and 5 m for 50 km.
+Ellipses larger than :data:`EXACT_RING_M`, likelihood regions and error polygons are sent as exact rings
+computed here (:mod:`dfkit.export.shapes`).
 
 The JSON is safe inside an HTML ``<script>`` element: every ``<``, ``>`` and ``&`` is written as a ``\\u``
 escape, so no user text can end the script or open a comment, and U+2028/U+2029 are escaped too. User text
@@ -30,7 +31,7 @@ from dfkit.export import shapes
 from dfkit.locate import STATUS_MEANING, Fixes
 
 #: Ellipses with a semi-major axis above this are sent as exact rings [m].
-EXACT_RING_M = 50_000.0
+EXACT_RING_M = 20_000.0
 #: Bearing lines start switched off on maps with more bearings than this (they can be switched on).
 BEARINGS_SHOWN_MAX = 5_000
 #: Maps with more drawn shapes than this use one canvas instead of SVG elements (faster in the browser).

@@ -29,16 +29,22 @@
     return "rgb(" + [0, 1, 2].map(function (i) { return Math.round(a[i] + (b[i] - a[i]) * u); }).join(",") + ")";
   }
 
-  /* Ellipse ring in the fix's local tangent plane: x east, y north [m] -> degrees with the WGS84 radii of
-     curvature at the fix (meridian M, prime vertical N). Exact to ~r^3/R^2. */
+  /* Ellipse ring drawn by the page: each vertex (x east, y north [m] in the fix's azimuthal equidistant plane)
+     is the geodesic of length hypot(x, y) at azimuth atan2(x, y), computed as a great circle on the sphere of
+     the prime-vertical radius N at the fix, with the change of latitude scaled by N/M (M: meridian radius).
+     Checked against Karney's geodesics (tests): within 0.02 m for a 5 km axis and 2 m for 50 km; larger
+     ellipses are sent as exact rings. */
   function ellipseRing(lat0, lon0, a, b, orientDeg, n) {
-    var phi = lat0 * Math.PI / 180, s = Math.sin(phi), w = Math.sqrt(1 - E2 * s * s);
+    var phi = lat0 * Math.PI / 180, sp = Math.sin(phi), cp = Math.cos(phi), w = Math.sqrt(1 - E2 * sp * sp);
     var M = WGS84_A * (1 - E2) / (w * w * w), N = WGS84_A / w;
     var az = orientDeg * Math.PI / 180, out = [];
     for (var k = 0; k <= n; k++) {
       var t = 2 * Math.PI * k / n, u = a * Math.cos(t), v = b * Math.sin(t);
       var x = u * Math.sin(az) + v * Math.cos(az), y = u * Math.cos(az) - v * Math.sin(az);
-      out.push([lat0 + (y / M) * 180 / Math.PI, lon0 + (x / (N * Math.cos(phi))) * 180 / Math.PI]);
+      var d = Math.sqrt(x * x + y * y) / N, al = Math.atan2(x, y);
+      var p2 = Math.asin(sp * Math.cos(d) + cp * Math.sin(d) * Math.cos(al));
+      var dl = Math.atan2(Math.sin(al) * Math.sin(d) * cp, Math.cos(d) - sp * Math.sin(p2));
+      out.push([lat0 + (p2 - phi) * (N / M) * 180 / Math.PI, lon0 + dl * 180 / Math.PI]);
     }
     return out;
   }
