@@ -44,8 +44,8 @@ def _records(df: pd.DataFrame) -> list[dict]:
             out[c] = col.astype(object).where(np.isfinite(col.to_numpy(float)), None)
         elif col.dtype.kind in "iub":
             out[c] = col.astype(object)
-        elif col.dtype == object:
-            out[c] = col.where(col.notna(), None)
+        elif col.dtype == object or pd.api.types.is_string_dtype(col.dtype):
+            out[c] = col.astype(object).where(col.notna(), None)
     return out.to_dict("records")
 
 

@@ -113,8 +113,8 @@ def _plain(gdf):
         col = gdf[c]
         if isinstance(col.dtype, pd.DatetimeTZDtype):
             gdf[c] = col.dt.strftime("%Y-%m-%dT%H:%M:%SZ").astype(object).where(col.notna(), None)
-        elif col.dtype == object:
-            gdf[c] = col.map(lambda v: None if v is None or (isinstance(v, float) and np.isnan(v)) else str(v))
+        elif col.dtype == object or pd.api.types.is_string_dtype(col.dtype):
+            gdf[c] = col.astype(object).map(lambda v: None if v is None or (isinstance(v, float) and np.isnan(v)) else str(v))
     return gdf
 
 
@@ -177,7 +177,7 @@ def write_kml(fixes: Fixes, path, options=None) -> None:
         for name, gdf in lay.items():
             gdf = _plain(gdf)
             for c in gdf.columns:
-                if c != gdf.geometry.name and gdf[c].dtype == object:
+                if c != gdf.geometry.name and (gdf[c].dtype == object or pd.api.types.is_string_dtype(gdf[c].dtype)):
                     gdf[c] = gdf[c].map(lambda v: None if v is None else xml_text(v))
             if name == "fixes":
                 gdf.insert(0, "Name", [xml_text(v) for v in t["fix"]])
@@ -198,5 +198,8 @@ def write_fgb(fixes: Fixes, path, options=None) -> None:
     for name, gdf in lay.items():
         target = path if name == "fixes" else f"{stem}.{name}.fgb"
         with _atomic_path(target) as tmp:
+            # FlatGeobuf's spatial index cannot hold null geometries (failed fixes): leave it out then
+            nulls = bool(gdf.geometry.isna().any())
             pyogrio.write_dataframe(_plain(gdf), tmp, layer=name, driver="FlatGeobuf",
-                                    promote_to_multi=name not in ("fixes", "stations"))
+                                    promote_to_multi=name not in ("fixes", "stations"),
+                                    layer_options={"SPATIAL_INDEX": "NO"} if nulls else None)
