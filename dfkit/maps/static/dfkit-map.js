@@ -137,13 +137,13 @@
       for (var x = w; x <= e; x += step) {
         grid.addLayer(L.polyline([[s, x], [n, x]], opts));
         var px = map.latLngToContainerPoint([bb.getNorth(), x]).x;
-        if (px > 60 && px < size.x - 40)
+        if (px > 60 && px < size.x - 70)
           grid.addLayer(label([topLeft.lat, x], (((x + 540) % 360) - 180).toFixed(d) + "\u00b0", [-3, -3]));
       }
       for (var y = s; y <= n; y += step) {
         grid.addLayer(L.polyline([[y, w], [y, e]], opts));
         var py = map.latLngToContainerPoint([y, bb.getWest()]).y;
-        if (py > 90 && py < size.y - 90)
+        if (py > 140 && py < size.y - 90)
           grid.addLayer(label([y, topLeft.lng], y.toFixed(d) + "\u00b0", [-3, 12]));
       }
     }
@@ -231,7 +231,8 @@
     }
     function regionStyle(i) {
       var c = fixColour(i);
-      return { renderer: renderer, color: c, weight: 2, fillColor: c, fillOpacity: 0.12, dashArray: flagged(i) ? "6 4" : null };
+      return { renderer: renderer, color: c, weight: 2, fillColor: c, fillOpacity: 0.12, smoothFactor: 0.3,
+               dashArray: flagged(i) ? "6 4" : null };
     }
     function makeRegion(i) {
       var rings = [];
