@@ -534,18 +534,23 @@ def test_review_page_map_and_time_filter_in_a_browser_offline(tmp_path):
         page.on("console", lambda m: errors.append(m.text) if m.type == "error" else None)
         page.on("pageerror", lambda e: errors.append(str(e)))
         page.goto(out.as_uri())
-        page.wait_for_selector(".leaflet-overlay-pane canvas, .leaflet-overlay-pane svg", state="attached",
-                               timeout=15000)
-        shown = int(re.search(r"(\d+) fixes", page.locator("#span-text").inner_text()).group(1))
-        page.locator("#t1").evaluate("e => { e.value = 500; e.dispatchEvent(new Event('change')); }")
-        half = int(re.search(r"(\d+) fixes", page.locator("#span-text").inner_text()).group(1))
-        tags_in_control = page.locator(".leaflet-control-layers-overlays label").count()
+        frame = page.frame_locator("iframe.season-map")
+        frame.locator("path.dfk-track").first.wait_for(state="attached", timeout=20000)
+        inner = [f for f in page.frames if f != page.main_frame][0]
+        shown = inner.evaluate("window.dfkit.layer.counts.fix")
+        tracks = frame.locator("path.dfk-track").count()
+        vertices = inner.evaluate("window.dfkitTracks.group.getLayers().reduce((n, l) => n + l.getLatLngs().length, 0)")
+        frame.locator("#dfk-time-to").evaluate("e => { e.value = 500; e.dispatchEvent(new Event('change')); }")
+        half = inner.evaluate("window.dfkit.layer.counts.fix")
+        half_vertices = inner.evaluate(
+            "window.dfkitTracks.group.getLayers().reduce((n, l) => n + l.getLatLngs().length, 0)")
         page.screenshot(path=str(tmp_path / "review.png"), full_page=True)
         browser.close()
     assert outside == [] and errors == []
     assert shown == located                     # every located fix is on the map
+    assert tracks == 3 and vertices == located  # one track per tag through every located fix
     assert 0 < half < shown                     # the time filter keeps the first half of the season
-    assert tags_in_control == 3                 # one switchable layer per tag
+    assert half_vertices == half                # and the tracks follow it
 
 
 def test_readme_season_and_ranges_commands_run(tmp_path, monkeypatch):

@@ -12,7 +12,7 @@ from dfkit.cli.common import add_fix_options, add_read_options, read_kwargs, rep
 from dfkit.cli.filters import add_filter_options, filter_from_args
 
 #: What ``season show -o`` can write, by extension.
-SHOW_KINDS = (".csv", ".geojson", ".json", ".gpkg", ".gpx", ".html")
+SHOW_KINDS = (".csv", ".geojson", ".json", ".gpx", ".kml", ".fgb", ".gpkg", ".html")
 
 
 def add_parser(sub):
@@ -33,7 +33,8 @@ def add_parser(sub):
                                    "page), or print a summary")
     w.add_argument("store", help="season file (.gpkg)")
     w.add_argument("-o", "--output", action="append", default=[],
-                   help="output file: " + ", ".join(SHOW_KINDS) + " (.html is the review page; may be repeated)")
+                   help="output file: " + ", ".join(SHOW_KINDS) + " (.gpkg is a season file of the selection, "
+                        ".html the review page; may be repeated)")
     w.add_argument("--title", default=None, help="title of the review page")
     add_filter_options(w)
     w.set_defaults(_season=_run_show)

@@ -18,7 +18,7 @@ import pandas as pd
 
 from dfkit.cautions import CAUTION
 from dfkit.export.atomic import atomic_write
-from dfkit.locate import WITH_POSITION
+from dfkit.locate import WITH_POSITION, Fixes
 from dfkit.season.query import SeasonFilter
 from dfkit.season.review_map import season_map_html, tag_colours
 from dfkit.season.summary import tag_summary
@@ -36,9 +36,10 @@ class ReviewPage:
         The per-tag table (:func:`dfkit.season.summary.tag_summary`).
     """
 
-    def __init__(self, table: pd.DataFrame, *, title: str = "Season review", imports: pd.DataFrame | None = None,
+    def __init__(self, fixes: Fixes, *, title: str = "Season review", imports: pd.DataFrame | None = None,
                  problems: pd.DataFrame | None = None, selection: str = "all fixes"):
-        self.table = table
+        self.fixes = fixes
+        self.table = table = fixes.table
         self.title = title
         self.imports = imports if imports is not None else pd.DataFrame()
         self.problems = problems if problems is not None else pd.DataFrame()
@@ -52,7 +53,7 @@ class ReviewPage:
                  f"<p class='sel'>Fixes shown: {_e(self.selection)}; {len(self.table)} fixes.</p>",
                  f"<p class='caution'>{_e(CAUTION)}</p>",
                  "<h2>Per tag</h2>", self._summary_html(colours),
-                 "<h2>Map</h2>", season_map_html(self.table, colours) if len(self.table) else "<p>No fixes.</p>",
+                 "<h2>Map</h2>", self._map_html(),
                  "<h2>Region areas</h2>",
                  "<p>Area of each fix's confidence region (ok fixes; logarithmic scale). Larger means less "
                  "certain; the daily median shows whether the fixes got better or worse over the season.</p>",
@@ -69,6 +70,12 @@ class ReviewPage:
     def _repr_html_(self) -> str:
         return (f'<iframe srcdoc="{html.escape(self.html(), quote=True)}" style="width:100%;height:900px;'
                 'border:1px solid #ccc" sandbox="allow-scripts"></iframe>')
+
+    def _map_html(self) -> str:
+        if not self.table["status"].isin(WITH_POSITION).any():
+            return "<p>No fix with a position to show.</p>"
+        return ("<p>Each tag's fixes are joined in time order (its track); the panel of the map filters tags, "
+                "time and flagged fixes.</p>" + season_map_html(self.fixes, title=self.title))
 
     def _summary_html(self, colours) -> str:
         s = self.summary
@@ -122,12 +129,13 @@ class ReviewPage:
 def review_page(store, flt: SeasonFilter | None = None, *, title: str = "Season review") -> ReviewPage:
     """The review page of the fixes of a season store that the filter keeps."""
     flt = flt or SeasonFilter()
-    table = store.fixes(flt)
+    fixes = store.select(flt, with_bearings=False)
+    table = fixes.table
     ids = sorted({int(x) for x in table["import_id"]}) if len(table) else []
     imports = store.imports()
     if ids:
         imports = imports[imports["import_id"].isin(ids)]
-    return ReviewPage(table, title=title, imports=imports, problems=store.problems(ids), selection=flt.describe())
+    return ReviewPage(fixes, title=title, imports=imports, problems=store.problems(ids), selection=flt.describe())
 
 
 # ------------------------------------------------------------------ drawing
@@ -233,7 +241,6 @@ table {{ border-collapse: collapse; margin: 0.5em 0; }}
 td, th {{ border-bottom: 1px solid #ddd; padding: 2px 8px; text-align: left; vertical-align: top; }}
 .caution {{ background: #fff4e0; border-left: 4px solid #E69F00; padding: 4px 8px; }}
 .dot {{ display: inline-block; width: 10px; height: 10px; border-radius: 5px; margin-right: 6px; }}
-.timebar {{ margin: 4px 0; }} .timebar input {{ width: 300px; vertical-align: middle; }}
 svg.chart text {{ font-size: 11px; fill: #333; }}
 </style>
 </head>
