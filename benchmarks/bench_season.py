@@ -25,28 +25,23 @@ import time
 
 import numpy as np
 import pandas as pd
-import pyproj
-
-GEOD = pyproj.Geod(ellps="WGS84")
 
 
 def make_sheet(path, n_fix, rng):
-    lat0 = rng.uniform(46.0, 49.0, n_fix)
-    lon0 = rng.uniform(9.0, 17.0, n_fix)
+    """bench_fix's sheet (4 bearings per fix, noise 4 deg), plus a tag, a time and an observer per bearing."""
+    sys.path.insert(0, os.path.dirname(os.path.abspath(__file__)))
+    import bench_fix
+
     k = 4
-    ang = rng.uniform(0, 360, (n_fix, 1)) + np.arange(k) * 90 + rng.normal(0, 20, (n_fix, k))
-    dist = rng.uniform(400, 2000, (n_fix, k))
-    lon_s, lat_s, back = GEOD.fwd(np.repeat(lon0, k), np.repeat(lat0, k), ang.ravel(), dist.ravel())
-    bearing = (np.asarray(back) + rng.normal(0, 4.0, n_fix * k)) % 360
-    start = pd.Timestamp("2026-04-01", tz="UTC")
-    fix_t = start + pd.to_timedelta(np.sort(rng.uniform(0, 180 * 86400, n_fix)), unit="s")
-    t = np.repeat(fix_t.tz_localize(None).to_numpy(), k) + np.tile(np.arange(k) * 240, n_fix).astype("timedelta64[s]")
-    times = pd.DatetimeIndex(t).strftime("%Y-%m-%dT%H:%M:%SZ")
-    tags = np.repeat(np.array([f"T{i:02d}" for i in range(20)])[rng.integers(0, 20, n_fix)], k)
-    labels = np.repeat(np.arange(n_fix), k)
-    pd.DataFrame({"fix": [f"F{x}" for x in labels], "tag": tags, "time": times, "lat": np.round(lat_s, 6),
-                  "lon": np.round(lon_s, 6), "bearing": np.round(bearing, 2), "sd": 4,
-                  "observer": np.where(np.arange(n_fix * k) % 2, "A", "B")}).to_csv(path, index=False)
+    bench_fix.make_sheet(path, n_fix, rng)
+    sheet = pd.read_csv(path, dtype={"fix": str})
+    start = np.datetime64("2026-04-01T00:00:00")
+    fix_t = start + np.sort(rng.uniform(0, 180 * 86400, n_fix)).astype("timedelta64[s]")
+    t = np.repeat(fix_t, k) + np.tile(np.arange(k) * 240, n_fix).astype("timedelta64[s]")
+    sheet.insert(1, "tag", np.repeat(np.array([f"T{i:02d}" for i in range(20)])[rng.integers(0, 20, n_fix)], k))
+    sheet.insert(2, "time", np.char.add(np.datetime_as_string(t, unit="s"), "Z"))
+    sheet["observer"] = np.where(np.arange(n_fix * k) % 2, "A", "B")
+    sheet.to_csv(path, index=False)
 
 
 def run(cmd):

@@ -439,15 +439,23 @@ def home_ranges(fixes: pd.DataFrame, *, method: str = "kde", levels=(0.5, 0.95),
                              "bandwidth_m": h, "bandwidth_from": h_from, "note": why})
                 continue
             area = float(poly.area)
-            geo = shapely.transform(poly, lambda xy: np.column_stack(plane.transform(xy[:, 0], xy[:, 1],
-                                                                                      direction="INVERSE")))
-            geo = shapely.transform(geo, lambda xy: np.column_stack([clon + ((xy[:, 0] - clon + 180) % 360 - 180),
-                                                                     xy[:, 1]]))
+            geo = _to_lonlat(poly, plane, clon)
             rows.append({**base, "level": lv, "area_m2": area, "status": "few_fixes" if few else "ok",
                          "geometry": geo, "bandwidth_m": h, "bandwidth_from": h_from, "note": note})
     cols = ["tag", "method", "level", "area_m2", "n_fixes", "bandwidth_m", "bandwidth_from", "status", "note",
             "centre_lat", "centre_lon", "geometry"]
     return HomeRanges(pd.DataFrame(rows, columns=cols), warnings)
+
+
+def _to_lonlat(poly, plane, clon):
+    """A polygon in the tag's equal-area plane back to longitude/latitude, continuous about ``clon``."""
+    import shapely
+
+    def back(xy):
+        lon, lat = plane.transform(xy[:, 0], xy[:, 1], direction="INVERSE")
+        return np.column_stack([clon + ((np.asarray(lon) - clon + 180) % 360 - 180), lat])
+
+    return shapely.transform(poly, back)
 
 
 def _check_level(level, allow_one=True):

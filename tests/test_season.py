@@ -503,7 +503,6 @@ def test_season_sample_fixes_hold_the_truth_at_the_stated_rate():
 
 
 def test_review_page_map_and_time_filter_in_a_browser_offline(tmp_path):
-    import re
     import shutil
 
     chromium = shutil.which("chromium") or shutil.which("chromium-browser")
@@ -536,7 +535,7 @@ def test_review_page_map_and_time_filter_in_a_browser_offline(tmp_path):
         page.goto(out.as_uri())
         frame = page.frame_locator("iframe.season-map")
         frame.locator("path.dfk-track").first.wait_for(state="attached", timeout=20000)
-        inner = [f for f in page.frames if f != page.main_frame][0]
+        inner = next(f for f in page.frames if f != page.main_frame)
         shown = inner.evaluate("window.dfkit.layer.counts.fix")
         tracks = frame.locator("path.dfk-track").count()
         vertices = inner.evaluate("window.dfkitTracks.group.getLayers().reduce((n, l) => n + l.getLatLngs().length, 0)")

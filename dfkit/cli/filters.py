@@ -37,7 +37,7 @@ def filter_from_args(a):
         before = parse_time(a.end, end=True, tz=a.tz) if a.end else None
     except ValueError as err:
         raise ValueError(f"--from/--to: {err}") from None
-    except Exception:
+    except (KeyError, LookupError, OSError):     # an unknown --tz (zoneinfo's errors)
         raise ValueError(f"--tz '{a.tz}' is not a known time zone (use a name like Europe/Vienna or UTC)") from None
     try:
         statuses = parse_statuses(a.status)

@@ -25,6 +25,8 @@ Nothing here knows about fixes or bearings; :mod:`dfkit.season.store` does.
 
 from __future__ import annotations
 
+import contextlib
+import os
 import sqlite3
 import struct
 
@@ -75,6 +77,29 @@ CREATE TABLE gpkg_geometry_columns (
   CONSTRAINT fk_gc_srs FOREIGN KEY (srs_id) REFERENCES gpkg_spatial_ref_sys (srs_id)
 );
 """
+
+
+@contextlib.contextmanager
+def atomic_database(path):
+    """A temporary file name beside ``path`` to build a database in; on success it replaces ``path``.
+
+    A failure or a kill leaves at most a ``.<name>.<pid>.part`` file, never a half-written result.
+    """
+    path = os.fspath(path)
+    folder = os.path.dirname(os.path.abspath(path))
+    os.makedirs(folder, exist_ok=True)
+    tmp = os.path.join(folder, f".{os.path.basename(path)}.{os.getpid()}.part")
+    for leftover in (tmp, tmp + "-journal"):
+        if os.path.exists(leftover):
+            os.unlink(leftover)
+    try:
+        yield tmp
+        os.replace(tmp, path)
+    except BaseException:
+        for leftover in (tmp, tmp + "-journal"):
+            if os.path.exists(leftover):
+                os.unlink(leftover)
+        raise
 
 
 def quote(name: str) -> str:

@@ -31,7 +31,7 @@ def lonlat_parts(geom):
         piece = shapely.intersection(geom, shapely.box(-180.0 + 360 * k, -90.0, 180.0 + 360 * k, 90.0))
         if piece.is_empty:
             continue
-        piece = shapely.transform(piece, lambda xy: xy - np.array([360.0 * k, 0.0]))
+        piece = shapely.transform(piece, lambda xy, k=k: xy - np.array([360.0 * k, 0.0]))
         parts += [orient(p, 1.0) for p in getattr(piece, "geoms", [piece]) if p.geom_type == "Polygon" and p.area > 0]
     return shapely.MultiPolygon(parts) if parts else None
 
@@ -64,30 +64,21 @@ def write_ranges(ranges, path) -> None:
 
 
 def _write_gpkg(attrs: pd.DataFrame, geoms, path) -> None:
-    path = os.fspath(path)
-    folder = os.path.dirname(os.path.abspath(path))
-    os.makedirs(folder, exist_ok=True)
-    tmp = os.path.join(folder, f".{os.path.basename(path)}.{os.getpid()}.part")
-    if os.path.exists(tmp):
-        os.unlink(tmp)
-    try:
+    with gpkg.atomic_database(path) as tmp:
         conn = sqlite3.connect(tmp, isolation_level=None)
-        conn.execute("BEGIN")
-        gpkg.initialise(conn)
-        types = {c: gpkg.sql_type(attrs[c]) for c in attrs.columns}
-        gpkg.create_features(conn, "home_ranges", "MULTIPOLYGON", types, "home ranges. " + CAUTION)
-        cols = ["geom"] + list(types)
-        values = [gpkg.geometry_blobs(geoms)] + [gpkg.column_values(attrs[c]) for c in types]
-        conn.executemany(f"INSERT INTO home_ranges ({', '.join(gpkg.quote(c) for c in cols)}) VALUES "
-                         f"({', '.join('?' * len(cols))})", zip(*values))
-        present = [g for g in geoms if g is not None]
-        if present:
-            b = np.array([g.bounds for g in present])
-            gpkg.touch(conn, "home_ranges", [b[:, 0].min(), b[:, 1].min(), b[:, 2].max(), b[:, 3].max()])
-        conn.execute("COMMIT")
-        conn.close()
-        os.replace(tmp, path)
-    except BaseException:
-        if os.path.exists(tmp):
-            os.unlink(tmp)
-        raise
+        try:
+            conn.execute("BEGIN")
+            gpkg.initialise(conn)
+            types = {c: gpkg.sql_type(attrs[c]) for c in attrs.columns}
+            gpkg.create_features(conn, "home_ranges", "MULTIPOLYGON", types, "home ranges. " + CAUTION)
+            cols = ["geom"] + list(types)
+            values = [gpkg.geometry_blobs(geoms)] + [gpkg.column_values(attrs[c]) for c in types]
+            conn.executemany(f"INSERT INTO home_ranges ({', '.join(gpkg.quote(c) for c in cols)}) VALUES "
+                             f"({', '.join('?' * len(cols))})", zip(*values))
+            present = [g for g in geoms if g is not None]
+            if present:
+                b = np.array([g.bounds for g in present])
+                gpkg.touch(conn, "home_ranges", [b[:, 0].min(), b[:, 1].min(), b[:, 2].max(), b[:, 3].max()])
+            conn.execute("COMMIT")
+        finally:
+            conn.close()

@@ -623,14 +623,8 @@ class SeasonStore:
     def write_selection(self, path, flt: SeasonFilter | None = None) -> int:
         """Write the fixes the filter keeps, with their regions, bearings, imports and problems, as a new
         season store at ``path`` (replaced atomically). Returns the number of fixes written."""
-        path = os.fspath(path)
-        folder = os.path.dirname(os.path.abspath(path))
-        os.makedirs(folder, exist_ok=True)
-        tmp = os.path.join(folder, f".{os.path.basename(path)}.{os.getpid()}.part")
-        if os.path.exists(tmp):
-            os.unlink(tmp)
         where, params = (flt or SeasonFilter()).where()
-        try:
+        with gpkg.atomic_database(path) as tmp:
             with SeasonStore.open(tmp, create=True) as out:
                 oc = out.conn
                 oc.execute("ATTACH DATABASE ? AS src", (self.path,))
@@ -659,11 +653,6 @@ class SeasonStore:
                                (t, t))
                 oc.execute("COMMIT")
                 oc.execute("DETACH DATABASE src")
-            os.replace(tmp, path)
-        except BaseException:
-            if os.path.exists(tmp):
-                os.unlink(tmp)
-            raise
         return int(n)
 
 
