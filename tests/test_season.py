@@ -201,7 +201,7 @@ def test_changed_rows_are_reported_not_duplicated_then_replaced(store_path, shee
     r = add(store_path, write_sheet(fixed, "week1_fixed.csv"))
     assert r.fixes_added == 0 and r.fixes_known == 1 and r.fixes_changed == 1
     tag, _, detail = r.changed[0]
-    assert tag == "A" and "line 3 differ" in detail and "import 1" in detail
+    assert tag == "A" and "line 3 differs from the stored bearing" in detail and "import 1" in detail
     with SeasonStore.open(store_path) as s:
         assert len(s.fixes()) == 2
         assert s.changes()["kind"].tolist() == ["kept_stored"]

@@ -116,7 +116,8 @@ def _run_show(a) -> int:
             s = tag_summary(table)
             print(s.to_string(index=False, float_format=lambda v: f"{v:.3g}") if len(s) else "  none")
     st = table["status"].astype(str)
-    print(f"{a.store}: {len(table)} fixes chosen ({flt.describe()}): {int((st == 'ok').sum())} ok, "
+    print(f"{a.store}: {len(table)} {'fix' if len(table) == 1 else 'fixes'} chosen ({flt.describe()}): "
+          f"{int((st == 'ok').sum())} ok, "
           f"{int((st != 'ok').sum())} flagged or failed", file=sys.stderr)
     print(CAUTION_LINE, file=sys.stderr)
     return 0 if (st == "ok").all() else 1

@@ -397,7 +397,9 @@ class SeasonStore:
             lines = diff_lines.get(i, [])
             if lines:
                 parts.append("line" + ("s " if len(lines) > 1 else " ") + ", ".join(str(x) for x in lines[:6])
-                             + (" ..." if len(lines) > 6 else "") + " differ from the stored bearings")
+                             + (" ..." if len(lines) > 6 else "")
+                             + (" differ from the stored bearings" if len(lines) > 1 else
+                                " differs from the stored bearing"))
             new_here = int(n_in[i] - n_known[i])
             if new_here and n_known[i]:
                 parts.append(f"{new_here} bearing{'s' if new_here > 1 else ''} not in the stored fix")
