@@ -565,3 +565,28 @@ def test_readme_season_and_ranges_commands_run(tmp_path, monkeypatch):
         args = [a.replace("sample_bearings/", f"{SAMPLES}/") for a in shlex.split(cmd)]
         assert main(args) in (0, 1), cmd
     assert (tmp_path / "review.html").exists() and (tmp_path / "ranges.gpkg").exists()
+
+
+def test_columns_the_fix_table_gains_and_likelihood_regions_are_stored(store_path, sheet):
+    # Solvers may add covariance columns and likelihood regions (fixes.regions: fix_id, geometry, bounded);
+    # the store keeps both without a schema change.
+    import pyogrio
+
+    from dfkit.locate import locate_sheet
+
+    fixes = locate_sheet(sheet)
+    fixes.table["cov_ee_m2"] = [100.0, 200.0]
+    fixes.table["cov_en_m2"] = [10.0, -20.0]
+    fixes.table["cov_nn_m2"] = [50.0, 60.0]
+    r0 = fixes.table.iloc[0]
+    blob = shapely.Point(r0["lon"], r0["lat"]).buffer(0.002)
+    fixes.regions = pd.DataFrame({"fix_id": [0], "geometry": [blob], "bounded": [False]})
+    with SeasonStore.open(store_path, create=True) as s:
+        s.add(fixes, file_name="week1.csv")
+        back = s.fixes()
+        assert back["cov_en_m2"].tolist() == [10.0, -20.0]
+    regions = pyogrio.read_dataframe(store_path, layer="regions")
+    assert sorted(regions["kind"]) == ["ellipse", "ellipse", "likelihood"]
+    lk = regions[regions["kind"] == "likelihood"].iloc[0]
+    assert not lk["bounded"] and lk.geometry.geoms[0].normalize().equals_exact(blob.normalize(), 1e-9)
+    validate(store_path)

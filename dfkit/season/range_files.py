@@ -13,27 +13,10 @@ from dfkit.cautions import CAUTION
 from dfkit.export.atomic import atomic_write
 from dfkit.export.csv import write_table
 from dfkit.season import gpkg
+from dfkit.season.rings import lonlat_parts
 
 #: Extensions :func:`write_ranges` understands.
 RANGE_KINDS = (".geojson", ".json", ".gpkg", ".csv")
-
-
-def lonlat_parts(geom):
-    """A polygonal geometry with continuous longitudes as a MultiPolygon within ±180 (split at the
-    antimeridian, RFC 7946 section 3.1.9), exterior rings counter-clockwise; None stays None."""
-    import shapely
-    from shapely.geometry.polygon import orient
-
-    if geom is None or geom.is_empty:
-        return None
-    parts = []
-    for k in (-1, 0, 1):
-        piece = shapely.intersection(geom, shapely.box(-180.0 + 360 * k, -90.0, 180.0 + 360 * k, 90.0))
-        if piece.is_empty:
-            continue
-        piece = shapely.transform(piece, lambda xy, k=k: xy - np.array([360.0 * k, 0.0]))
-        parts += [orient(p, 1.0) for p in getattr(piece, "geoms", [piece]) if p.geom_type == "Polygon" and p.area > 0]
-    return shapely.MultiPolygon(parts) if parts else None
 
 
 def write_ranges(ranges, path) -> None:

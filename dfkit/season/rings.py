@@ -1,4 +1,5 @@
-"""Confidence-ellipse rings for many fixes at once, for the season store's ``regions`` layer.
+"""Confidence-ellipse rings for many fixes at once, for the season store's ``regions`` layer, and
+polygons split at the antimeridian for writing.
 
 :func:`dfkit.geometry.ellipse_ring` draws one ellipse exactly (the fix's
 azimuthal equidistant plane mapped back with the direct geodesic problem), at
@@ -62,3 +63,21 @@ def ellipse_rings(lat, lon, semi_major_m, semi_minor_m, orientation_deg, n_verti
     out_lat[:, -1] = out_lat[:, 0]
     out_lon[:, -1] = out_lon[:, 0]
     return out_lat, out_lon
+
+
+def lonlat_parts(geom):
+    """A polygonal geometry with continuous longitudes as a MultiPolygon within ±180 (split at the
+    antimeridian, RFC 7946 section 3.1.9), exterior rings counter-clockwise; None stays None."""
+    import shapely
+    from shapely.geometry.polygon import orient
+
+    if geom is None or geom.is_empty:
+        return None
+    parts = []
+    for k in (-1, 0, 1):
+        piece = shapely.intersection(geom, shapely.box(-180.0 + 360 * k, -90.0, 180.0 + 360 * k, 90.0))
+        if piece.is_empty:
+            continue
+        piece = shapely.transform(piece, lambda xy, k=k: xy - np.array([360.0 * k, 0.0]))
+        parts += [orient(p, 1.0) for p in getattr(piece, "geoms", [piece]) if p.geom_type == "Polygon" and p.area > 0]
+    return shapely.MultiPolygon(parts) if parts else None

@@ -9,7 +9,9 @@ Layers (open the file in QGIS or with GDAL/OGR; see :mod:`dfkit.season.gpkg`):
     are kept, with their status and reason.
 ``regions`` (multipolygons)
     The confidence region of each fix that has one (``kind`` 'ellipse'), with
-    ``fix_fid`` pointing at its fix.
+    ``fix_fid`` pointing at its fix; when the fixes carry likelihood regions
+    (``fixes.regions``: ``fix_id``, ``geometry``, ``bounded``) those are stored
+    too, as ``kind`` 'likelihood'.
 ``bearings`` (station points)
     Every usable bearing with every column of the sheet, its residual and
     weight, ``fix_fid``, ``row_key`` and ``content_key`` (see
@@ -41,7 +43,7 @@ from dfkit.problems import Problem
 from dfkit.season import gpkg
 from dfkit.season.keys import KEY_SCHEME, bearing_keys
 from dfkit.season.query import SeasonFilter
-from dfkit.season.rings import ellipse_rings
+from dfkit.season.rings import ellipse_rings, lonlat_parts
 
 #: Layout version of the store; a newer file is refused, an older one migrated (see :data:`_MIGRATIONS`).
 SCHEMA_VERSION = 1
@@ -55,7 +57,7 @@ _CORE_FIX_COLUMNS = {"fix": "TEXT", "tag": "TEXT", "time": "DATETIME", "status":
 _STORE_BEARING_COLUMNS = {"import_id": "INTEGER", "fix_fid": "INTEGER", "row_key": "BLOB", "content_key": "BLOB"}
 _REGION_COLUMNS = {"fix_fid": "INTEGER", "import_id": "INTEGER", "tag": "TEXT", "fix": "TEXT", "time": "DATETIME",
                    "status": "TEXT", "kind": "TEXT", "level": "REAL", "area_m2": "REAL", "semi_major_m": "REAL",
-                   "semi_minor_m": "REAL", "orientation_deg": "REAL"}
+                   "semi_minor_m": "REAL", "orientation_deg": "REAL", "bounded": "BOOLEAN"}
 _IMPORT_COLUMNS = {"file_name": "TEXT", "file_path": "TEXT", "file_sha256": "TEXT", "imported_utc": "DATETIME",
                    "options": "TEXT", "dfkit_version": "TEXT", "key_scheme": "TEXT", "n_rows": "INTEGER",
                    "n_rejected": "INTEGER", "n_fixes_in": "INTEGER", "n_fixes_added": "INTEGER",
@@ -313,6 +315,7 @@ class SeasonStore:
                     c.execute(f"DROP INDEX IF EXISTS {name}")
             fids = self._insert_fixes(table, add, iid, file_name, own_key)
             self._insert_regions(table, add, fids, iid)
+            self._insert_likelihood_regions(fixes, add, fids, iid)
             self._insert_bearings(bt, keep_b, fids, fix_of, iid, row_key, content_key)
             if rebuild:
                 say("indexing")
@@ -505,11 +508,33 @@ class SeasonStore:
             parts = split_ring(la[i], lo[i])
             geoms[i] = shapely.MultiPolygon([shapely.Polygon(p) for p in parts])
         k = len(t)
-        t = t.assign(kind="ellipse")
+        t = t.assign(kind="ellipse", bounded=True)
         cols = {c: c for c in _REGION_COLUMNS if c in t.columns}
         self._insert_rows("regions", t, cols, {"fix_fid": fids[sel].tolist(), "import_id": [iid] * k},
                           gpkg.geometry_blobs(geoms))
         self._grow_bounds("regions", np.clip(lo, -180, 180), la)
+
+    def _insert_likelihood_regions(self, fixes, add, fids, iid) -> None:
+        """Likelihood regions, when the fixes carry them (``fixes.regions``: fix_id, geometry, bounded)."""
+        from dfkit.export.shapes import likelihood_regions
+
+        reg = likelihood_regions(fixes)
+        if reg is None:
+            return
+        reg = reg[add[reg["fix_id"].to_numpy(np.int64)]].reset_index(drop=True)
+        if not len(reg):
+            return
+        t = fixes.table.iloc[reg["fix_id"].to_numpy(np.int64)].reset_index(drop=True)
+        geoms = [lonlat_parts(g) for g in reg["geometry"]]
+        t = t.assign(kind="likelihood", bounded=reg["bounded"].astype(bool).to_numpy(),
+                     area_m2=np.nan if "area_m2" not in reg else reg["area_m2"].to_numpy(float))
+        cols = {c: c for c in _REGION_COLUMNS if c in t.columns and c not in ("semi_major_m", "semi_minor_m",
+                                                                             "orientation_deg")}
+        self._insert_rows("regions", t, cols, {"fix_fid": fids[reg["fix_id"].to_numpy(np.int64)].tolist(),
+                                               "import_id": [iid] * len(t)}, gpkg.geometry_blobs(geoms))
+        b = np.array([g.bounds for g in geoms if g is not None])
+        if len(b):
+            self._grow_bounds("regions", b[:, [0, 2]].ravel(), b[:, [1, 3]].ravel())
 
     def _insert_bearings(self, bt, keep, fids, fix_of, iid, row_key, content_key) -> None:
         if not keep.any():
