@@ -757,11 +757,11 @@ def apply(bearings: Bearings, cal: Calibration) -> Bearings:
     if not parts:
         parts.append("no bearings")
     notes.append("calibration " + (cal.source or "") + ": " + "; ".join(parts))
-    few = usable[usable["status"] == "few"]["group"].tolist() if len(usable) else []
-    used_few = [gname for gname in few if (t["calibration_group"] == gname).any()]
-    if used_few:
-        notes.append(f"calibration: group{'s' if len(used_few) > 1 else ''} {'; '.join(used_few)} rest on few "
-                     "trials: the regions of their fixes are widened for it (F scale)")
+    few = usable[usable["status"] == "few"] if len(usable) else usable
+    for gname, n_trials in zip(few["group"] if len(few) else [], few["n"] if len(few) else []):
+        if (t["calibration_group"] == gname).any():
+            notes.append(f"calibration: {gname} rests on only {n_trials} trials: the regions of its fixes are "
+                         f"widened for it (F(2, {n_trials - 1}) instead of chi-square)")
     if n and hit.any() and (~hit).any():
         g = t["fix_id"].to_numpy(np.int64)
         m = int(g.max()) + 1

@@ -137,14 +137,16 @@ def error_histogram(cal, group=None, *, ax=None):
     width = max(0.5, float(np.round(sd / 2, 1)))
     bins = np.arange(np.floor(lo / width) * width, hi + width, width)
     ax.hist(used, bins=bins, color="#0072B2", alpha=0.8, label=f"used ({len(used)})")
-    if len(wild):
-        ax.hist(np.clip(wild, bins[0], bins[-1]), bins=bins, color="#D55E00", label=f"wild, left out ({len(wild)})")
+    if len(wild):   # marked at their place, or at the edge with their value when off the scale
+        shown = np.clip(wild, bins[0], bins[-1])
+        ax.plot(shown, np.zeros(len(wild)), "v", color="#D55E00", ms=8, clip_on=False,
+                label="wild, left out: " + ", ".join(f"{w:+.0f}°" for w in wild[:5]) + (" ..." if len(wild) > 5 else ""))
     if np.isfinite(row["sd_deg"]) and len(used):
         x = np.linspace(bins[0], bins[-1], 200)
         dens = np.exp(-0.5 * ((x - row["bias_deg"]) / sd) ** 2) / (sd * np.sqrt(2 * np.pi))
-        ax.plot(x, dens * len(used) * width, color="k", lw=1, label=f"normal, sd {sd:.1f}°")
+        ax.plot(x, dens * len(used) * width, color="#555", lw=1, label=f"normal, sd {sd:.1f}°")
     ax.axvline(0, color="#777", lw=0.8, ls=":")
-    ax.axvline(row["bias_deg"], color="#D55E00", lw=1.5, label=f"bias {row['bias_deg']:+.1f}°")
+    ax.axvline(row["bias_deg"], color="k", lw=1.5, ls="--", label=f"bias {row['bias_deg']:+.1f}°")
     ax.set_xlabel("error: observed minus true bearing [°]")
     ax.set_ylabel("trials")
     ax.set_title(f"{group}: error distribution", fontsize=9)
@@ -165,11 +167,14 @@ def error_rose(cal, group=None, *, ax=None, bin_deg=5.0):
         raise ValueError("ax= must be a polar axes (subplot_kw={'projection': 'polar'})")
     edges = np.radians(np.arange(-180.0, 180.0 + bin_deg, bin_deg))
     centres = (edges[:-1] + edges[1:]) / 2
-    for mask, colour, name in ((tr["used"], "#0072B2", "used"), (tr["wild"], "#D55E00", "wild")):
-        e = np.radians(tr.loc[mask, "error_deg"].to_numpy(float))
-        counts, _ = np.histogram(e, bins=edges)
-        if counts.any():
-            ax.bar(centres, counts, width=np.radians(bin_deg), color=colour, alpha=0.85, label=name)
+    counts, _ = np.histogram(np.radians(tr.loc[tr["used"], "error_deg"].to_numpy(float)), bins=edges)
+    ax.bar(centres, counts, width=np.radians(bin_deg), color="#0072B2", alpha=0.85, label="used")
+    wild = np.radians(tr.loc[tr["wild"], "error_deg"].to_numpy(float))
+    if len(wild):   # one wild trial would be an invisible bar: mark each on the rim
+        rim = 1.08 * max(int(counts.max()), 1)
+        ax.plot(wild, np.full(len(wild), rim), "o", color="#D55E00", ms=7, clip_on=False, label="wild, left out")
+        ax.set_ylim(0, rim * 1.02)
+        ax.legend(loc="lower left", bbox_to_anchor=(-0.15, -0.15), fontsize=7)
     ax.set_theta_zero_location("N")
     ax.set_theta_direction(-1)
     ax.set_title(f"{group}: rose of errors ({bin_deg:g}° bins)", fontsize=9)
@@ -189,8 +194,17 @@ def error_vs_distance(cal, group=None, *, ax=None):
     e = tr["error_deg"].to_numpy(float)
     used = tr["used"].to_numpy(bool)
     ax.plot(d[used], e[used], "o", color="#0072B2", ms=3.5, alpha=0.8, label="used")
-    if (~used).any():
-        ax.plot(d[~used], e[~used], "x", color="#D55E00", ms=6, label="wild, left out")
+    sd = row["sd_deg"] if np.isfinite(row["sd_deg"]) else 1.0
+    lo = min(e[used].min() if used.any() else -1.0, row["bias_deg"] - 3 * sd) - sd
+    hi = max(e[used].max() if used.any() else 1.0, row["bias_deg"] + 3 * sd) + sd
+    if (~used).any():   # off-scale wild trials sit on the edge, with their value
+        ew = np.clip(e[~used], lo, hi)
+        ax.plot(d[~used], ew, "x", color="#D55E00", ms=6, clip_on=False, label="wild, left out")
+        for x, y, v in zip(d[~used], ew, e[~used]):
+            if y != v:
+                ax.annotate(f"{v:+.0f}°", (x, y), textcoords="offset points", xytext=(4, -10 if y > 0 else 4),
+                            fontsize=7, color="#D55E00")
+    ax.set_ylim(lo, hi)
     if np.isfinite(row["sd_deg"]):
         ax.axhline(row["bias_deg"], color="#D55E00", lw=1.2)
         ax.axhspan(row["bias_deg"] - 2 * row["sd_deg"], row["bias_deg"] + 2 * row["sd_deg"], color="#D55E00",

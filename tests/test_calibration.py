@@ -503,3 +503,18 @@ def test_sample_field_fixes_with_the_sample_calibration():
     assert len(t) == 60
     # at least the 1 % binomial quantile of 60 fixes at 95 %
     assert inside.sum() >= scipy.stats.binom.ppf(0.01, 60, 0.95)
+
+
+def test_readme_calibration_commands_parse():
+    import shlex
+
+    from dfkit.cli import build_parser
+
+    from .conftest import ROOT
+
+    lines = [ln.split("#")[0] for ln in (ROOT / "README.md").read_text().splitlines()
+             if ln.startswith("dfkit ") and ("calibrat" in ln)]
+    assert len(lines) >= 4
+    for ln in lines:
+        args = build_parser().parse_args(shlex.split(ln)[1:])
+        assert args.command in ("calibrate", "fix", "map")
