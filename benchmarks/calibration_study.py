@@ -14,7 +14,8 @@ For each seed and each error model (normal; von Mises; normal with 3 % wild tria
    residuals, F(2, 1)), with the true bias and SD (an oracle: what the regions themselves achieve), and with the
    right SD but the bias left in. Recorded: how often the 95 % ellipse holds the truth, and the median ellipse
    area; and the calibrated coverage by the antenna's true SD.
-Prints one table. Nothing is asserted: the numbers go into DEVELOPERS.md.
+4. The wild-trial rule on clean normal samples of 5 to 300 trials: how many good trials it flags.
+Prints the tables. Nothing is asserted: the numbers go into DEVELOPERS.md.
 """
 
 from __future__ import annotations
@@ -178,7 +179,20 @@ def main():
     s = pd.DataFrame(by_sd).groupby(["model", "sd_band"]).sum()
     s["coverage"] = s["inside"] / s["n"]
     print("calibrated (sd_deg), by the antenna's true SD:")
-    print(s.round(3).to_string())
+    print(s.round(3).to_string(), "\n")
+    wild_rule_false_flags()
+
+
+def wild_rule_false_flags(n_samples=2000):
+    """Share of clean normal trials the wild-trial rule flags, and of samples with at least one flag."""
+    rng = np.random.default_rng(5)
+    rows = []
+    for n in (5, 8, 12, 20, 30, 50, 100, 300):
+        flags = [calibration._wild_mask(rng.normal(0.0, 5.0, n))[0] for _ in range(n_samples)]
+        rows.append(dict(n=n, trials_flagged=np.mean([f.mean() for f in flags]),
+                         samples_with_a_flag=np.mean([f.any() for f in flags])))
+    print(f"wild-trial rule on clean normal trials (SD 5 deg, {n_samples} samples per n):")
+    print(pd.DataFrame(rows).round(5).to_string(index=False))
 
 
 def read_trials_bytes(text):
