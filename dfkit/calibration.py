@@ -717,11 +717,12 @@ def apply(bearings: Bearings, cal: Calibration) -> Bearings:
             notes.append(f"calibration: the calibration is by {', '.join(cal.by)}, but the sheet has no "
                          f"{' or '.join(absent)} values: no bearing could be matched to it")
         else:
-            lookup = {tuple(_key(v) for v in row): k
-                      for k, row in enumerate(zip(*(usable[b].to_numpy(dtype=object) for b in cal.by)))}
-            cells = zip(*(t[b].to_numpy(dtype=object) for b in cal.by))
-            match = np.array([lookup.get(tuple(_key(v) for v in row), -1) for row in cells], np.int64)
+            match = _match(t, usable, cal.by)
     hit = match >= 0
+    set_aside = np.zeros(n, bool)     # bearings of groups with too few trials to use
+    unused = cal.table[cal.table["status"] == "unusable"] if len(cal.table) else cal.table
+    if n and len(unused) and cal.by and not absent:
+        set_aside = ~hit & (_match(t, unused, cal.by) >= 0)
     src_before = t["sd_source"].to_numpy(dtype=object).copy() if "sd_source" in t.columns else np.full(n, "", object)
     bias = np.full(n, np.nan)
     sd_dof = t["sd_dof"].to_numpy(float).copy() if "sd_dof" in t.columns else np.full(n, np.nan)
@@ -734,8 +735,10 @@ def apply(bearings: Bearings, cal: Calibration) -> Bearings:
         sd_dof[hit] = usable["dof"].to_numpy(float)[g]
     t["bias_removed_deg"] = bias
     t["sd_dof"] = sd_dof
-    t["calibration_group"] = np.where(hit, usable["group"].to_numpy(dtype=object)[np.maximum(match, 0)]
-                                      if len(usable) else "", "")
+    labels = (usable["group"].to_numpy(dtype=object) if "group" in usable.columns else
+              np.array([_group_label(cal.by, row) for row in zip(*(usable[b] for b in cal.by))] if cal.by
+                       else ["all"] * len(usable), dtype=object))
+    t["calibration_group"] = np.where(hit, labels[np.maximum(match, 0)] if len(usable) else "", "")
 
     # what took which path
     parts = []
@@ -750,15 +753,21 @@ def apply(bearings: Bearings, cal: Calibration) -> Bearings:
     kept = ~hit & np.isfinite(sd_now)
     none = ~hit & ~np.isfinite(sd_now)
     if kept.any():
-        parts.append(f"{int(kept.sum())} kept the sheet's sd or --sd (no matching calibration group)")
+        parts.append(f"{int(kept.sum())} kept the sheet's sd or --sd (no usable calibration group)")
+    if (set_aside & none).any():
+        k = int((set_aside & none).sum())
+        parts.append(f"{k} belong{'s' if k == 1 else ''} to a group with too few trials to use and ha"
+                     f"{'s' if k == 1 else 've'} no sd")
+    if (none & ~set_aside).any():
+        k = int((none & ~set_aside).sum())
+        parts.append(f"{k} ha{'ve' if k != 1 else 's'} no matching group and no sd")
     if none.any():
-        parts.append(f"{int(none.sum())} ha{'ve' if none.sum() != 1 else 's'} no matching group and no sd: their "
-                     "fix's SD is estimated from its own residuals")
+        parts.append("a fix with a bearing of unknown SD estimates its SD from its own residuals")
     if not parts:
         parts.append("no bearings")
     notes.append("calibration " + (cal.source or "") + ": " + "; ".join(parts))
-    few = usable[usable["status"] == "few"] if len(usable) else usable
-    for gname, n_trials in zip(few["group"] if len(few) else [], few["n"] if len(few) else []):
+    few = usable["status"].to_numpy() == "few" if len(usable) else np.zeros(0, bool)
+    for gname, n_trials in zip(labels[few], usable["n"].to_numpy()[few]):
         if (t["calibration_group"] == gname).any():
             notes.append(f"calibration: {gname} rests on only {n_trials} trials: the regions of its fixes are "
                          f"widened for it (F(2, {n_trials - 1}) instead of chi-square)")
@@ -769,10 +778,18 @@ def apply(bearings: Bearings, cal: Calibration) -> Bearings:
         n_unknown = np.bincount(g, none.astype(float), m)
         mixed = int(((n_cal > 0) & (n_unknown > 0)).sum())
         if mixed:
-            notes.append(f"calibration: {mixed} fix{'es' if mixed != 1 else ''} mix calibrated bearings with "
+            notes.append(f"calibration: {mixed} fix{'es mix' if mixed != 1 else ' mixes'} calibrated bearings with "
                          "bearings of unknown SD: such a fix estimates its SD from its residuals (calibrate the "
                          "other antennas or give their sd)")
     return replace(bearings, table=t, notes=notes, problems=list(bearings.problems) + list(cal.problems))
+
+
+def _match(t: pd.DataFrame, groups: pd.DataFrame, by) -> np.ndarray:
+    """Row of ``groups`` whose ``by`` values equal each bearing's (ignoring case and spacing), or -1."""
+    lookup = {tuple(_key(v) for v in row): k
+              for k, row in enumerate(zip(*(groups[b].to_numpy(dtype=object) for b in by)))}
+    cells = zip(*(t[b].to_numpy(dtype=object) for b in by))
+    return np.array([lookup.get(tuple(_key(v) for v in row), -1) for row in cells], np.int64)
 
 
 # --------------------------------------------------------------------------- an honest check

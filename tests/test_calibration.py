@@ -253,7 +253,7 @@ def test_apply_paths_are_counted_and_sheet_is_untouched():
     assert "2 bearings calibrated (antenna=Yagi one: 2)" in note
     assert "1 of them had an sd in the sheet" in note
     assert "1 kept the sheet's sd" in note and "1 has no matching group and no sd" in note
-    assert "1 fix mix calibrated bearings with bearings of unknown SD" in note
+    assert "1 fix mixes calibrated bearings with bearings of unknown SD" in note
     assert b.table["true_bearing"].tolist() == pytest.approx([45.0, 315.0, 180.0, 250.0])   # input unchanged
     with pytest.raises(ValueError, match="already calibrated"):
         calibration.apply(out, cal)
@@ -274,6 +274,8 @@ def test_unusable_groups_are_not_applied():
     out = calibration.apply(b, _cal([{"antenna": "y", "n": 3, "bias_deg": 2.0, "sd_deg": 3.0,
                                       "status": "unusable"}]))
     assert (out.table["sd_source"] == "").all()
+    assert (out.table["true_bearing"] == b.table["true_bearing"]).all()
+    assert "3 belong to a group with too few trials to use" in " ".join(out.notes)
 
 
 # --------------------------------------------------------------------------- reading trials
