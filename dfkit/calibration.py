@@ -30,8 +30,8 @@ and each group gets:
 * ``circular_sd_deg`` sqrt(-2 ln R) [1]_ [2]_; ``kappa_mle`` the von Mises maximum-likelihood concentration
   A^-1(R) (A = I1/I0, solved exactly); ``kappa`` the same with Fisher's small-sample correction for n <= 15
   ([1]_ eq. 4.41, from memory): kappa* = max(kappa - 2/(n kappa), 0) when kappa < 2, else
-  (n - 1)^3 kappa / (n^3 + n); ``sd_from_kappa_deg`` the wrapped-normal SD with the same mean resultant length,
-  A(kappa) = exp(-sigma^2 / 2);
+  (n - 1)^3 kappa / (n^3 + n); ``sd_from_kappa_deg`` the wrapped-normal SD with the same mean resultant
+  length, A(kappa) = exp(-sigma^2 / 2);
 * a check whether the error grows (or shrinks) with distance: Spearman's rank correlation of |e - ē| with the
   station-beacon distance (``distance_rho``, ``distance_p``), and the SD of the nearer and farther halves.
 
@@ -74,30 +74,60 @@ from dfkit.problems import Problem, SheetError
 
 #: Beacon position columns of a trials sheet and the station-position column each one stands for.
 BEACON_COLUMNS = {
-    "beacon_lat": "lat", "beacon_lon": "lon", "beacon_utm_zone": "utm_zone", "beacon_easting": "easting",
-    "beacon_northing": "northing", "beacon_mgrs": "mgrs", "beacon": "station",
+    "beacon_lat": "lat",
+    "beacon_lon": "lon",
+    "beacon_utm_zone": "utm_zone",
+    "beacon_easting": "easting",
+    "beacon_northing": "northing",
+    "beacon_mgrs": "mgrs",
+    "beacon": "station",
 }
-#: Other spellings of the beacon columns, read as the canonical name (reported as a warning on the header line).
+#: Other spellings of the beacon columns, read as the canonical name (reported as a warning on the header).
 BEACON_ALIASES = {
-    "beacon_latitude": "beacon_lat", "beacon_longitude": "beacon_lon", "beacon_long": "beacon_lon",
-    "beacon_lng": "beacon_lon", "beacon_zone": "beacon_utm_zone", "beacon_utm": "beacon_utm_zone",
+    "beacon_latitude": "beacon_lat",
+    "beacon_longitude": "beacon_lon",
+    "beacon_long": "beacon_lon",
+    "beacon_lng": "beacon_lon",
+    "beacon_zone": "beacon_utm_zone",
+    "beacon_utm": "beacon_utm_zone",
 }
 #: Columns of a calibration table after the grouping columns.
 CALIBRATION_COLUMNS = [
-    "group", "n", "n_wild", "bias_deg", "bias_se_deg", "bias_lo_deg", "bias_hi_deg", "sd_deg", "dof",
-    "circular_sd_deg", "kappa_mle", "kappa", "sd_from_kappa_deg", "distance_min_m", "distance_max_m",
-    "distance_rho", "distance_p", "sd_near_deg", "sd_far_deg", "status", "warning",
+    "group",
+    "n",
+    "n_wild",
+    "bias_deg",
+    "bias_se_deg",
+    "bias_lo_deg",
+    "bias_hi_deg",
+    "sd_deg",
+    "dof",
+    "circular_sd_deg",
+    "kappa_mle",
+    "kappa",
+    "sd_from_kappa_deg",
+    "distance_min_m",
+    "distance_max_m",
+    "distance_rho",
+    "distance_p",
+    "sd_near_deg",
+    "sd_far_deg",
+    "status",
+    "warning",
 ]
 #: Group statuses: used as stated, used but uncertain, not used.
 GROUP_STATUS = {
     "ok": "enough trials; used as measured",
-    "few": f"fewer than {MIN_TRIALS_TRUST} usable trials; used, with a region widened for the SD's own uncertainty",
-    "unusable": f"fewer than {MIN_TRIALS_USE} usable trials; not used (its bearings keep their sheet SD or none)",
+    "few": f"fewer than {MIN_TRIALS_TRUST} usable trials; used, with a region widened for the SD's "
+    "own uncertainty",
+    "unusable": f"fewer than {MIN_TRIALS_USE} usable trials; not used (its bearings keep their sheet SD "
+    "or none)",
 }
-_Z95 = 1.959963984540054   # standard normal 97.5 % quantile (scipy.special.ndtri(0.975))
+_Z95 = 1.959963984540054  # standard normal 97.5 % quantile (scipy.special.ndtri(0.975))
 
 
 # --------------------------------------------------------------------------- circular statistics
+
 
 @dataclass(frozen=True)
 class CircularSummary:
@@ -131,7 +161,9 @@ def mean_resultant_ratio(kappa):
 
     k = np.asarray(kappa, float)
     with np.errstate(invalid="ignore"):
-        return np.where(np.isinf(k), 1.0, i1e(np.where(np.isinf(k), 1.0, k)) / i0e(np.where(np.isinf(k), 1.0, k)))
+        return np.where(
+            np.isinf(k), 1.0, i1e(np.where(np.isinf(k), 1.0, k)) / i0e(np.where(np.isinf(k), 1.0, k))
+        )
 
 
 def kappa_from_rbar(rbar):
@@ -147,8 +179,11 @@ def kappa_from_rbar(rbar):
     r = np.asarray(rbar, float)
     rc = np.clip(r, 1e-12, 1 - 1e-15)
     with np.errstate(divide="ignore", invalid="ignore"):
-        k = np.where(rc < 0.53, 2 * rc + rc**3 + 5 * rc**5 / 6,
-                     np.where(rc < 0.85, -0.4 + 1.39 * rc + 0.43 / (1 - rc), 1.0 / (rc**3 - 4 * rc**2 + 3 * rc)))
+        k = np.where(
+            rc < 0.53,
+            2 * rc + rc**3 + 5 * rc**5 / 6,
+            np.where(rc < 0.85, -0.4 + 1.39 * rc + 0.43 / (1 - rc), 1.0 / (rc**3 - 4 * rc**2 + 3 * rc)),
+        )
         for _ in range(50):
             a = mean_resultant_ratio(k)
             step = (a - rc) / (1.0 - a / k - a * a)
@@ -161,9 +196,10 @@ def kappa_from_rbar(rbar):
 
 
 def kappa_small_sample(kappa, n):
-    """Fisher's small-sample correction of a von Mises kappa estimate for n <= 15 ([1]_ eq. 4.41, from memory).
+    """Fisher's small-sample correction of a von Mises kappa for n <= 15 ([1]_ eq. 4.41, from memory).
 
-    kappa* = max(kappa - 2/(n kappa), 0) when kappa < 2, else (n - 1)^3 kappa / (n^3 + n); kappa itself for n > 15.
+    kappa* = max(kappa - 2/(n kappa), 0) when kappa < 2, else (n - 1)^3 kappa / (n^3 + n); kappa itself
+    for n > 15.
     """
     k = np.asarray(kappa, float)
     n = np.asarray(n, float)
@@ -174,7 +210,7 @@ def kappa_small_sample(kappa, n):
 
 
 def sd_from_kappa(kappa):
-    """Wrapped-normal SD with the same mean resultant length as a von Mises kappa: sqrt(-2 ln A(kappa)). [°]"""
+    """Wrapped-normal SD with the mean resultant length of a von Mises kappa: sqrt(-2 ln A(kappa)). [°]"""
     a = mean_resultant_ratio(kappa)
     with np.errstate(divide="ignore"):
         return np.degrees(np.sqrt(-2.0 * np.log(a)))
@@ -206,16 +242,24 @@ def circular_summary(errors_deg) -> CircularSummary:
     k = float(kappa_small_sample(k_mle, n))
     deg = np.degrees
     return CircularSummary(
-        n=n, mean_deg=float(deg(mean)), rbar=rbar, rho2=rho2, mean_se_deg=float(deg(se)),
+        n=n,
+        mean_deg=float(deg(mean)),
+        rbar=rbar,
+        rho2=rho2,
+        mean_se_deg=float(deg(se)),
         mean_lo_deg=float(deg(mean - half)) if half < np.pi else float("nan"),
         mean_hi_deg=float(deg(mean + half)) if half < np.pi else float("nan"),
-        sd_deg=float(deg(sd)), circular_sd_deg=float(deg(circ)),
-        angular_deviation_deg=float(deg(np.sqrt(2 * (1 - rbar)))), kappa_mle=k_mle, kappa=k,
+        sd_deg=float(deg(sd)),
+        circular_sd_deg=float(deg(circ)),
+        angular_deviation_deg=float(deg(np.sqrt(2 * (1 - rbar)))),
+        kappa_mle=k_mle,
+        kappa=k,
         sd_from_kappa_deg=float(sd_from_kappa(k)),
     )
 
 
 # --------------------------------------------------------------------------- reading trials
+
 
 @dataclass
 class Trials:
@@ -230,7 +274,8 @@ class Trials:
         station [°]), ``distance_m`` (station to beacon [m]) and ``error_deg`` (observed true bearing minus
         ``azimuth_to_beacon``, wrapped to [-180, 180) [°]).
     bearings : Bearings
-        The same trials as :class:`~dfkit.observations.Bearings` (rows aligned with :attr:`table`), for solving.
+        The same trials as :class:`~dfkit.observations.Bearings` (rows aligned with :attr:`table`), to
+        solve them.
     problems : list of Problem
         Every rejected row (bearing or beacon columns) and every warning.
     n_rows : int
@@ -274,9 +319,12 @@ def _beacon_positions(raw: RawSheet, stations):
     col = _Collector(t["line"].to_numpy(), raw.source)
     pos = _positions(copy, raw.decimal_comma, col, stations=stations, allow_missing=True)
     _swapped_outliers(col, pos)
-    col.reject(~col.bad & (pos.source == ""), "",
-               "no beacon position: give beacon_lat and beacon_lon, beacon_utm_zone/beacon_easting/beacon_northing, "
-               "beacon_mgrs, or a beacon label from the stations file (--stations)")
+    col.reject(
+        ~col.bad & (pos.source == ""),
+        "",
+        "no beacon position: give beacon_lat and beacon_lon, beacon_utm_zone/beacon_easting/beacon_northing, "
+        "beacon_mgrs, or a beacon label from the stations file (--stations)",
+    )
     back = {v: k for k, v in BEACON_COLUMNS.items()}
     problems = []
     for p in col.problems:
@@ -287,19 +335,23 @@ def _beacon_positions(raw: RawSheet, stations):
 
 
 def _beacon_header(raw: RawSheet) -> RawSheet:
-    """Canonical names for the beacon columns (other spellings are reported), or SheetError when there is none."""
+    """Canonical names for the beacon columns (other spellings are reported); SheetError if there is none."""
     header_line = int(raw.table["line"].min()) - 1 if len(raw.table) else 1
     renames = {}
     problems = list(raw.problems)
     for c in raw.columns:
         if c in BEACON_ALIASES and BEACON_ALIASES[c] not in raw.columns:
             renames[c] = BEACON_ALIASES[c]
-            problems.append(Problem(max(header_line, 1), c, f"read as '{BEACON_ALIASES[c]}'", "warning", raw.source))
+            problems.append(
+                Problem(max(header_line, 1), c, f"read as '{BEACON_ALIASES[c]}'", "warning", raw.source)
+            )
     columns = [renames.get(c, c) for c in raw.columns]
     if not any(c in BEACON_COLUMNS for c in columns):
-        raise SheetError(f"{raw.source or 'the sheet'}: a trials sheet needs the beacon's position: beacon_lat and "
-                         "beacon_lon, beacon_utm_zone/beacon_easting/beacon_northing, beacon_mgrs, or a beacon "
-                         "label with --stations")
+        raise SheetError(
+            f"{raw.source or 'the sheet'}: a trials sheet needs the beacon's position: beacon_lat and "
+            "beacon_lon, beacon_utm_zone/beacon_easting/beacon_northing, beacon_mgrs, or a beacon "
+            "label with --stations"
+        )
     return replace(raw, table=raw.table.rename(columns=renames), columns=columns, problems=problems)
 
 
@@ -311,8 +363,8 @@ def read_trials(sheet, options: ReadOptions | None = None, **kwargs) -> Trials:
     sheet : path, bytes, file-like or RawSheet
         A bearing sheet plus the beacon position columns (module docstring).
     options : ReadOptions, optional
-        Reading options, as for :func:`dfkit.read_bearings` (unit, north, declination, tz, stations, track ...);
-        keyword arguments override its fields.
+        Reading options, as for :func:`dfkit.read_bearings` (unit, north, declination, tz, stations,
+        track ...); keyword arguments override its fields.
 
     Returns
     -------
@@ -343,13 +395,24 @@ def read_trials(sheet, options: ReadOptions | None = None, **kwargs) -> Trials:
     dist = np.where(ok, dist, np.nan)
     near = ok & (dist < MIN_TRIAL_DISTANCE_M)
     for i in np.flatnonzero(near):
-        bproblems.append(Problem(int(t["line"].iat[i]), "", f"the station is {dist[i]:.1f} m from the beacon "
-                                 f"(under {MIN_TRIAL_DISTANCE_M:g} m): too close for a bearing to mean anything",
-                                 "error", raw.source))
+        bproblems.append(
+            Problem(
+                int(t["line"].iat[i]),
+                "",
+                f"the station is {dist[i]:.1f} m from the beacon "
+                f"(under {MIN_TRIAL_DISTANCE_M:g} m): too close for a bearing to mean anything",
+                "error",
+                raw.source,
+            )
+        )
     ok &= ~near
 
     sel = bearings.select(ok)
-    label = raw.table["beacon"].to_numpy(dtype=object) if "beacon" in raw.columns else np.full(len(lines), "", object)
+    label = (
+        raw.table["beacon"].to_numpy(dtype=object)
+        if "beacon" in raw.columns
+        else np.full(len(lines), "", object)
+    )
     names = [lab if lab != "" else f"{a:.6f}, {b:.6f}" for lab, a, b in zip(label[r], blat[r], blon[r])]
     table = sel.table.copy()
     table["beacon"] = np.asarray(names, dtype=object)[ok] if len(names) else np.zeros(0, object)
@@ -361,16 +424,20 @@ def read_trials(sheet, options: ReadOptions | None = None, **kwargs) -> Trials:
     table["error_deg"] = wrap180(table["true_bearing"].to_numpy(float) - az[ok])
     table = table.reset_index(drop=True)
 
-    problems = sorted(bearings.problems + bproblems,
-                      key=lambda p: (p.source != raw.source, p.line, p.severity != "error"))
+    problems = sorted(
+        bearings.problems + bproblems, key=lambda p: (p.source != raw.source, p.line, p.severity != "error")
+    )
     notes = list(bearings.notes)
     if "sd" in raw.columns or opts.sd is not None:
         notes.append("the sheet's sd (or --sd) is not used: the calibration measures the SD")
     sel = replace(sel, problems=problems, notes=notes, table=table)
-    return Trials(table=table, bearings=sel, problems=problems, n_rows=len(lines), notes=notes, source=raw.source)
+    return Trials(
+        table=table, bearings=sel, problems=problems, n_rows=len(lines), notes=notes, source=raw.source
+    )
 
 
 # --------------------------------------------------------------------------- calibrating
+
 
 @dataclass
 class Calibration:
@@ -418,7 +485,11 @@ def _resolve_by(table: pd.DataFrame, by) -> tuple:
                 return (name,)
         return ()
     names = [by] if isinstance(by, str) else list(by)
-    names = [" ".join(str(n).strip().lower().split()).replace(" ", "_") for part in names for n in str(part).split(",")]
+    names = [
+        " ".join(str(n).strip().lower().split()).replace(" ", "_")
+        for part in names
+        for n in str(part).split(",")
+    ]
     names = [n for n in names if n]
     if names in ([], ["all"]):
         return ()
@@ -427,7 +498,9 @@ def _resolve_by(table: pd.DataFrame, by) -> tuple:
             have = [c for c in table.columns if c not in ("line", "fix_id")]
             raise ValueError(f"by={n!r}: the trials have no column '{n}'; columns: {', '.join(have)}")
         if n in CALIBRATION_COLUMNS or n == "by":
-            raise ValueError(f"by={n!r} cannot group a calibration: '{n}' is a column of the calibration table")
+            raise ValueError(
+                f"by={n!r} cannot group a calibration: '{n}' is a column of the calibration table"
+            )
     return tuple(dict.fromkeys(names))
 
 
@@ -489,8 +562,13 @@ def calibrate(trials, by=None, *, options: ReadOptions | None = None, **read_kwa
     codes, uniques = pd.factorize(pd.Series(keys, dtype=object)) if n else (np.zeros(0, np.int64), [])
     notes = list(trials.notes)
     rows = []
-    tr = pd.DataFrame({"line": t["line"].to_numpy(), "fix": t["fix"].to_numpy(dtype=object),
-                       "beacon": t["beacon"].to_numpy(dtype=object)})
+    tr = pd.DataFrame(
+        {
+            "line": t["line"].to_numpy(),
+            "fix": t["fix"].to_numpy(dtype=object),
+            "beacon": t["beacon"].to_numpy(dtype=object),
+        }
+    )
     for b in by:
         tr[b] = t[b].to_numpy(dtype=object)
     tr["group"] = ""
@@ -505,8 +583,11 @@ def calibrate(trials, by=None, *, options: ReadOptions | None = None, **read_kwa
         values = spellings[0]
         label = _group_label(by, values)
         if len(spellings) > 1:
-            notes.append(f"{label}: spelled {len(spellings)} ways in the sheet ("
-                         + "; ".join(", ".join(s) for s in spellings[:4]) + "), taken as one group")
+            notes.append(
+                f"{label}: spelled {len(spellings)} ways in the sheet ("
+                + "; ".join(", ".join(s) for s in spellings[:4])
+                + "), taken as one group"
+            )
         e = tr["error_deg"].to_numpy()[idx]
         dist = tr["distance_m"].to_numpy()[idx]
         wild, dev, limit = _wild_mask(e)
@@ -531,46 +612,72 @@ def calibrate(trials, by=None, *, options: ReadOptions | None = None, **read_kwa
             warnings.append(f"only {s.n} usable trials (fewer than {MIN_TRIALS_USE}): not used")
         elif s.n < MIN_TRIALS_TRUST:
             status = "few"
-            warnings.append(f"only {s.n} usable trials (fewer than {MIN_TRIALS_TRUST}): the SD is uncertain by "
-                            f"about {100 / np.sqrt(2 * (s.n - 1)):.0f} %, so fixes use an F(2, {s.n - 1}) region")
+            warnings.append(
+                f"only {s.n} usable trials (fewer than {MIN_TRIALS_TRUST}): the SD is uncertain by "
+                f"about {100 / np.sqrt(2 * (s.n - 1)):.0f} %, so fixes use an F(2, {s.n - 1}) region"
+            )
         if wild.any():
             lines = tr["line"].to_numpy()[idx][wild]
-            warnings.append(f"{int(wild.sum())} wild trial{'s' if wild.sum() > 1 else ''} left out (more than "
-                            f"{limit:.1f}° from the median error): line{'s' if len(lines) > 1 else ''} "
-                            + ", ".join(str(x) for x in lines[:8]) + (" ..." if len(lines) > 8 else ""))
+            warnings.append(
+                f"{int(wild.sum())} wild trial{'s' if wild.sum() > 1 else ''} left out (more than "
+                f"{limit:.1f}° from the median error): line{'s' if len(lines) > 1 else ''} "
+                + ", ".join(str(x) for x in lines[:8])
+                + (" ..." if len(lines) > 8 else "")
+            )
             if wild.mean() > MAX_WILD_FRACTION:
-                warnings.append(f"{100 * wild.mean():.0f} % of the trials are wild: check the site (reflections) "
-                                "and the antenna")
+                warnings.append(
+                    f"{100 * wild.mean():.0f} % of the trials are wild: check the site (reflections) "
+                    "and the antenna"
+                )
         if np.isfinite(p) and p < DISTANCE_CHECK_ALPHA:
             trend = "grows" if rho > 0 else "shrinks"
-            warnings.append(f"the error {trend} with distance (Spearman rho {rho:+.2f}, p = {p:.2g}, SD "
-                            f"{sd_near:.1f}° nearer, {sd_far:.1f}° farther): calibrate at the distances you track "
-                            "at, or group by a distance band")
+            warnings.append(
+                f"the error {trend} with distance (Spearman rho {rho:+.2f}, p = {p:.2g}, SD "
+                f"{sd_near:.1f}° nearer, {sd_far:.1f}° farther): calibrate at the distances you track "
+                "at, or group by a distance band"
+            )
         if s.n >= 2 and np.isfinite(s.sd_deg) and s.sd_deg == 0:
             status = "unusable"
             warnings.append("every trial has the same error: no SD can be measured from these trials")
         row = {"by": "+".join(by)}
         for b, v in zip(by, values):
             row[b] = v
-        row.update({
-            "group": label, "n": s.n, "n_wild": int(wild.sum()), "bias_deg": s.mean_deg,
-            "bias_se_deg": s.mean_se_deg, "bias_lo_deg": s.mean_lo_deg, "bias_hi_deg": s.mean_hi_deg,
-            "sd_deg": s.sd_deg, "dof": s.n - 1, "circular_sd_deg": s.circular_sd_deg, "kappa_mle": s.kappa_mle,
-            "kappa": s.kappa, "sd_from_kappa_deg": s.sd_from_kappa_deg,
-            "distance_min_m": float(d_kept.min()) if len(d_kept) else np.nan,
-            "distance_max_m": float(d_kept.max()) if len(d_kept) else np.nan,
-            "distance_rho": rho, "distance_p": p, "sd_near_deg": sd_near, "sd_far_deg": sd_far,
-            "status": status, "warning": "; ".join(warnings),
-        })
+        row.update(
+            {
+                "group": label,
+                "n": s.n,
+                "n_wild": int(wild.sum()),
+                "bias_deg": s.mean_deg,
+                "bias_se_deg": s.mean_se_deg,
+                "bias_lo_deg": s.mean_lo_deg,
+                "bias_hi_deg": s.mean_hi_deg,
+                "sd_deg": s.sd_deg,
+                "dof": s.n - 1,
+                "circular_sd_deg": s.circular_sd_deg,
+                "kappa_mle": s.kappa_mle,
+                "kappa": s.kappa,
+                "sd_from_kappa_deg": s.sd_from_kappa_deg,
+                "distance_min_m": float(d_kept.min()) if len(d_kept) else np.nan,
+                "distance_max_m": float(d_kept.max()) if len(d_kept) else np.nan,
+                "distance_rho": rho,
+                "distance_p": p,
+                "sd_near_deg": sd_near,
+                "sd_far_deg": sd_far,
+                "status": status,
+                "warning": "; ".join(warnings),
+            }
+        )
         rows.append(row)
     table = pd.DataFrame(rows, columns=["by", *by, *CALIBRATION_COLUMNS])
     if not len(t):
         notes.append("no usable trials: nothing to calibrate")
-    return Calibration(table=table, by=by, trials=tr, problems=list(trials.problems), notes=notes,
-                       source=trials.source)
+    return Calibration(
+        table=table, by=by, trials=tr, problems=list(trials.problems), notes=notes, source=trials.source
+    )
 
 
 # --------------------------------------------------------------------------- reading a calibration back
+
 
 def read_calibration(path) -> Calibration:
     """Read a calibration table written by ``dfkit calibrate -o CAL.csv`` (or by hand).
@@ -612,17 +719,23 @@ def read_calibration(path) -> Calibration:
         records.append((ln, [c.strip() for c in row] + [""] * (len(header) - len(row))))
     missing = [c for c in ("n", "bias_deg", "sd_deg") if c not in header]
     if missing:
-        raise SheetError(f"{name}: line {header_line}: a calibration needs the column(s) {', '.join(missing)}")
+        raise SheetError(
+            f"{name}: line {header_line}: a calibration needs the column(s) {', '.join(missing)}"
+        )
     col = {c: j for j, c in enumerate(header)}
     by_values = {r[col["by"]] for _, r in records} if "by" in col else {""}
     if len(by_values) > 1:
-        raise SheetError(f"{name}: the 'by' column differs between rows ({', '.join(sorted(by_values))}); "
-                         "one calibration groups all its rows the same way")
+        raise SheetError(
+            f"{name}: the 'by' column differs between rows ({', '.join(sorted(by_values))}); "
+            "one calibration groups all its rows the same way"
+        )
     by_text = by_values.pop() if by_values else ""
     by = tuple(b for b in by_text.split("+") if b)
     for b in by:
         if b not in col:
-            raise SheetError(f"{name}: line {header_line}: the calibration is grouped by '{b}' but has no '{b}' column")
+            raise SheetError(
+                f"{name}: line {header_line}: the calibration is grouped by '{b}' but has no '{b}' column"
+            )
     if not by and len(records) > 1:
         raise SheetError(f"{name}: {len(records)} groups but no 'by' column saying what they are grouped by")
     problems: list[Problem] = []
@@ -646,12 +759,18 @@ def read_calibration(path) -> Calibration:
         nn = number(ln, r, "n", 1, np.inf, "number of trials")
         bias = number(ln, r, "bias_deg", -180, 180, "bias (degrees, -180 to 180)")
         sd = number(ln, r, "sd_deg", 1e-9, 90, "bearing SD (degrees, above 0 and below 90)")
-        dof = (number(ln, r, "dof", 1, np.inf, "number of degrees of freedom") if "dof" in col and r[col["dof"]]
-               else (nn - 1 if nn is not None else None))
+        dof = (
+            number(ln, r, "dof", 1, np.inf, "number of degrees of freedom")
+            if "dof" in col and r[col["dof"]]
+            else (nn - 1 if nn is not None else None)
+        )
         status = r[col["status"]].strip().lower() if "status" in col else "ok"
         if status not in GROUP_STATUS:
-            problems.append(Problem(ln, "status", f"unknown status '{status}'; use {', '.join(GROUP_STATUS)}",
-                                    "error", name))
+            problems.append(
+                Problem(
+                    ln, "status", f"unknown status '{status}'; use {', '.join(GROUP_STATUS)}", "error", name
+                )
+            )
             continue
         if None in (nn, bias, sd) or (dof is None) or dof < 1:
             if dof is not None and dof < 1 and nn is not None:
@@ -659,20 +778,40 @@ def read_calibration(path) -> Calibration:
             continue
         key = tuple(_key(v) for v in vals)
         if key in seen:
-            problems.append(Problem(ln, by[0] if by else "", f"group {_group_label(by, vals)} is listed twice "
-                                    f"(first on line {seen[key]}); the first is used", "error", name))
+            problems.append(
+                Problem(
+                    ln,
+                    by[0] if by else "",
+                    f"group {_group_label(by, vals)} is listed twice "
+                    f"(first on line {seen[key]}); the first is used",
+                    "error",
+                    name,
+                )
+            )
             continue
         seen[key] = ln
         row = {"by": "+".join(by)}
         row.update(dict(zip(by, vals)))
-        row.update({"group": _group_label(by, vals), "n": int(nn), "bias_deg": bias, "sd_deg": sd, "dof": dof,
-                    "status": status, "line": ln})
+        row.update(
+            {
+                "group": _group_label(by, vals),
+                "n": int(nn),
+                "bias_deg": bias,
+                "sd_deg": sd,
+                "dof": dof,
+                "status": status,
+                "line": ln,
+            }
+        )
         out.append(row)
-    table = pd.DataFrame(out, columns=["by", *by, "group", "n", "bias_deg", "sd_deg", "dof", "status", "line"])
+    table = pd.DataFrame(
+        out, columns=["by", *by, "group", "n", "bias_deg", "sd_deg", "dof", "status", "line"]
+    )
     return Calibration(table=table, by=by, trials=None, problems=problems, source=name)
 
 
 # --------------------------------------------------------------------------- using a calibration
+
 
 def apply(bearings: Bearings, cal: Calibration) -> Bearings:
     """Bearings with each matching group's bias removed and its SD used as known.
@@ -681,9 +820,9 @@ def apply(bearings: Bearings, cal: Calibration) -> Bearings:
     (ignoring case and repeated spaces; a calibration with no grouping columns matches every bearing). A
     matching bearing gets ``true_bearing`` minus the group's ``bias_deg``, ``sd`` = the group's ``sd_deg``,
     ``sd_source`` = 'calibration', ``sd_dof`` = the group's ``dof`` (the locate step widens the region for it)
-    and ``bias_removed_deg``. Other bearings keep the sheet's ``sd`` (or ``--sd``) or none, in which case their
-    fix's SD is estimated from its residuals. Groups with status 'unusable' are not used. The notes say how many
-    bearings took which path.
+    and ``bias_removed_deg``. Other bearings keep the sheet's ``sd`` (or ``--sd``) or none, in which case
+    their fix's SD is estimated from its residuals. Groups with status 'unusable' are not used. The notes
+    say how many bearings took which path.
 
     Parameters
     ----------
@@ -704,7 +843,9 @@ def apply(bearings: Bearings, cal: Calibration) -> Bearings:
     """
     t = bearings.table.copy()
     if "bias_removed_deg" in t.columns and t["bias_removed_deg"].notna().any():
-        raise ValueError("bearings= are already calibrated: applying a calibration twice would remove the bias twice")
+        raise ValueError(
+            "bearings= are already calibrated: applying a calibration twice would remove the bias twice"
+        )
     n = len(t)
     usable = cal.table[cal.table["status"] != "unusable"] if len(cal.table) else cal.table
     match = np.full(n, -1, np.int64)
@@ -714,16 +855,20 @@ def apply(bearings: Bearings, cal: Calibration) -> Bearings:
         if not cal.by:
             match[:] = 0
         elif absent:
-            notes.append(f"calibration: the calibration is by {', '.join(cal.by)}, but the sheet has no "
-                         f"{' or '.join(absent)} values: no bearing could be matched to it")
+            notes.append(
+                f"calibration: the calibration is by {', '.join(cal.by)}, but the sheet has no "
+                f"{' or '.join(absent)} values: no bearing could be matched to it"
+            )
         else:
             match = _match(t, usable, cal.by)
     hit = match >= 0
-    set_aside = np.zeros(n, bool)     # bearings of groups with too few trials to use
+    set_aside = np.zeros(n, bool)  # bearings of groups with too few trials to use
     unused = cal.table[cal.table["status"] == "unusable"] if len(cal.table) else cal.table
     if n and len(unused) and cal.by and not absent:
         set_aside = ~hit & (_match(t, unused, cal.by) >= 0)
-    src_before = t["sd_source"].to_numpy(dtype=object).copy() if "sd_source" in t.columns else np.full(n, "", object)
+    src_before = (
+        t["sd_source"].to_numpy(dtype=object).copy() if "sd_source" in t.columns else np.full(n, "", object)
+    )
     bias = np.full(n, np.nan)
     sd_dof = t["sd_dof"].to_numpy(float).copy() if "sd_dof" in t.columns else np.full(n, np.nan)
     if hit.any():
@@ -735,17 +880,27 @@ def apply(bearings: Bearings, cal: Calibration) -> Bearings:
         sd_dof[hit] = usable["dof"].to_numpy(float)[g]
     t["bias_removed_deg"] = bias
     t["sd_dof"] = sd_dof
-    labels = (usable["group"].to_numpy(dtype=object) if "group" in usable.columns else
-              np.array([_group_label(cal.by, row) for row in zip(*(usable[b] for b in cal.by))] if cal.by
-                       else ["all"] * len(usable), dtype=object))
+    labels = (
+        usable["group"].to_numpy(dtype=object)
+        if "group" in usable.columns
+        else np.array(
+            [_group_label(cal.by, row) for row in zip(*(usable[b] for b in cal.by))]
+            if cal.by
+            else ["all"] * len(usable),
+            dtype=object,
+        )
+    )
     t["calibration_group"] = np.where(hit, labels[np.maximum(match, 0)] if len(usable) else "", "")
 
     # what took which path
     parts = []
     if hit.any():
         per = pd.Series(t["calibration_group"].to_numpy(dtype=object)[hit]).value_counts(sort=False)
-        parts.append(f"{int(hit.sum())} bearing{'s' if hit.sum() != 1 else ''} calibrated ("
-                     + ", ".join(f"{k}: {v}" for k, v in per.items()) + ")")
+        parts.append(
+            f"{int(hit.sum())} bearing{'s' if hit.sum() != 1 else ''} calibrated ("
+            + ", ".join(f"{k}: {v}" for k, v in per.items())
+            + ")"
+        )
         replaced = int((hit & np.isin(src_before, ["sheet", "option"])).sum())
         if replaced:
             parts.append(f"{replaced} of them had an sd in the sheet or --sd, replaced by the calibration")
@@ -756,8 +911,10 @@ def apply(bearings: Bearings, cal: Calibration) -> Bearings:
         parts.append(f"{int(kept.sum())} kept the sheet's sd or --sd (no usable calibration group)")
     if (set_aside & none).any():
         k = int((set_aside & none).sum())
-        parts.append(f"{k} belong{'s' if k == 1 else ''} to a group with too few trials to use and ha"
-                     f"{'s' if k == 1 else 've'} no sd")
+        parts.append(
+            f"{k} belong{'s' if k == 1 else ''} to a group with too few trials to use and ha"
+            f"{'s' if k == 1 else 've'} no sd"
+        )
     if (none & ~set_aside).any():
         k = int((none & ~set_aside).sum())
         parts.append(f"{k} ha{'ve' if k != 1 else 's'} no matching group and no sd")
@@ -769,8 +926,10 @@ def apply(bearings: Bearings, cal: Calibration) -> Bearings:
     few = usable["status"].to_numpy() == "few" if len(usable) else np.zeros(0, bool)
     for gname, n_trials in zip(labels[few], usable["n"].to_numpy()[few]):
         if (t["calibration_group"] == gname).any():
-            notes.append(f"calibration: {gname} rests on only {n_trials} trials: the regions of its fixes are "
-                         f"widened for it (F(2, {n_trials - 1}) instead of chi-square)")
+            notes.append(
+                f"calibration: {gname} rests on only {n_trials} trials: the regions of its fixes are "
+                f"widened for it (F(2, {n_trials - 1}) instead of chi-square)"
+            )
     if n and hit.any() and (~hit).any():
         g = t["fix_id"].to_numpy(np.int64)
         m = int(g.max()) + 1
@@ -778,21 +937,26 @@ def apply(bearings: Bearings, cal: Calibration) -> Bearings:
         n_unknown = np.bincount(g, none.astype(float), m)
         mixed = int(((n_cal > 0) & (n_unknown > 0)).sum())
         if mixed:
-            notes.append(f"calibration: {mixed} fix{'es mix' if mixed != 1 else ' mixes'} calibrated bearings with "
-                         "bearings of unknown SD: such a fix estimates its SD from its residuals (calibrate the "
-                         "other antennas or give their sd)")
+            notes.append(
+                f"calibration: {mixed} fix{'es mix' if mixed != 1 else ' mixes'} calibrated bearings with "
+                "bearings of unknown SD: such a fix estimates its SD from its residuals (calibrate the "
+                "other antennas or give their sd)"
+            )
     return replace(bearings, table=t, notes=notes, problems=list(bearings.problems) + list(cal.problems))
 
 
 def _match(t: pd.DataFrame, groups: pd.DataFrame, by) -> np.ndarray:
     """Row of ``groups`` whose ``by`` values equal each bearing's (ignoring case and spacing), or -1."""
-    lookup = {tuple(_key(v) for v in row): k
-              for k, row in enumerate(zip(*(groups[b].to_numpy(dtype=object) for b in by)))}
+    lookup = {
+        tuple(_key(v) for v in row): k
+        for k, row in enumerate(zip(*(groups[b].to_numpy(dtype=object) for b in by)))
+    }
     cells = zip(*(t[b].to_numpy(dtype=object) for b in by))
     return np.array([lookup.get(tuple(_key(v) for v in row), -1) for row in cells], np.int64)
 
 
 # --------------------------------------------------------------------------- an honest check
+
 
 @dataclass
 class BeaconCheck:
@@ -801,8 +965,9 @@ class BeaconCheck:
     Attributes
     ----------
     fixes : pandas.DataFrame
-        One row per trial fix: ``beacon``, ``fix``, ``n_bearings``, ``status``, ``calibrated`` (every bearing's
-        SD came from the calibration), ``semi_major_m``, ``semi_minor_m``, ``miss_m`` (fix to beacon [m]),
+        One row per trial fix: ``beacon``, ``fix``, ``n_bearings``, ``status``, ``calibrated`` (every
+        bearing's SD came from the calibration), ``semi_major_m``, ``semi_minor_m``, ``miss_m`` (fix to
+        beacon [m]),
         ``inside`` (the beacon lies in the region; NA without a region).
     by_beacon : pandas.DataFrame
         Per beacon: ``n_fixes``, ``n_with_region`` (calibrated fixes with a region), ``n_inside``.
@@ -829,11 +994,14 @@ class BeaconCheck:
     def summary(self) -> str:
         if not self.n_with_region:
             return "leave-one-beacon-out: no calibrated fix with a region to check" + (
-                f" ({self.notes[0]})" if self.notes else "")
+                f" ({self.notes[0]})" if self.notes else ""
+            )
         lo, hi = self.interval
-        return (f"leave-one-beacon-out: {self.n_inside} of {self.n_with_region} calibrated fixes "
-                f"({100 * self.rate:.0f} %, 95 % interval {100 * lo:.0f}-{100 * hi:.0f} %) hold their beacon in "
-                f"the {100 * self.level:g} % region")
+        return (
+            f"leave-one-beacon-out: {self.n_inside} of {self.n_with_region} calibrated fixes "
+            f"({100 * self.rate:.0f} %, 95 % interval {100 * lo:.0f}-{100 * hi:.0f} %) hold their beacon in "
+            f"the {100 * self.level:g} % region"
+        )
 
 
 def wilson_interval(k, n, level=0.95):
@@ -850,7 +1018,8 @@ def wilson_interval(k, n, level=0.95):
 
 
 def inside_ellipse(fix_lat, fix_lon, semi_major_m, semi_minor_m, orientation_deg, lat, lon):
-    """Whether points lie inside ellipses drawn in the fixes' local azimuthal equidistant planes (NaN-safe: False)."""
+    """Whether points lie inside ellipses drawn in the fixes' local azimuthal equidistant planes, and their
+    distance from the fix [m] (a NaN ellipse holds nothing)."""
     x, y = geodesy.to_local(fix_lat, fix_lon, lat, lon)
     th = np.radians(np.asarray(orientation_deg, float))
     u = x * np.sin(th) + y * np.cos(th)
@@ -868,14 +1037,20 @@ def _trial_fixes(trials: Trials) -> Bearings:
     t["fix_id"] = codes
     t["tag"] = t["beacon"]
     first = pd.Series(np.arange(len(t))).groupby(codes).first().to_numpy() if len(t) else np.zeros(0, int)
-    fix_index = pd.DataFrame({"fix": t["fix"].to_numpy(dtype=object)[first],
-                              "tag": t["beacon"].to_numpy(dtype=object)[first],
-                              "rejected_lines": [[] for _ in first]})
+    fix_index = pd.DataFrame(
+        {
+            "fix": t["fix"].to_numpy(dtype=object)[first],
+            "tag": t["beacon"].to_numpy(dtype=object)[first],
+            "rejected_lines": [[] for _ in first],
+        }
+    )
     fix_index.index.name = "fix_id"
     return replace(trials.bearings, table=t, fix_index=fix_index, problems=[])
 
 
-def leave_one_beacon_out(trials, by=None, *, level=0.95, method="mle", options=None, **read_kwargs) -> BeaconCheck:
+def leave_one_beacon_out(
+    trials, by=None, *, level=0.95, method="mle", options=None, **read_kwargs
+) -> BeaconCheck:
     """Solve each beacon from its own trials, calibrated by the *other* beacons' trials, and count hits.
 
     The trials of one beacon are grouped into fixes by the sheet's fixes (its labels, or its time window),
@@ -905,7 +1080,9 @@ def leave_one_beacon_out(trials, by=None, *, level=0.95, method="mle", options=N
     full = calibrate(trials, by)
     tame = ~full.trials["wild"].to_numpy(bool) if len(trials.table) else np.zeros(0, bool)
     if (~tame).any():
-        notes.append(f"{int((~tame).sum())} wild trial{'s' if (~tame).sum() != 1 else ''} left out of the fixes")
+        notes.append(
+            f"{int((~tame).sum())} wild trial{'s' if (~tame).sum() != 1 else ''} left out of the fixes"
+        )
     if len(beacons) < 2:
         notes.append("needs trials on at least two beacons")
     else:
@@ -919,8 +1096,9 @@ def leave_one_beacon_out(trials, by=None, *, level=0.95, method="mle", options=N
             tb = applied.table
             g = tb["fix_id"].to_numpy(np.int64)
             m = len(fx.table)
-            all_cal = np.bincount(g, (tb["sd_source"] == "calibration").to_numpy(float), m) == np.bincount(g,
-                                                                                                           minlength=m)
+            all_cal = np.bincount(g, (tb["sd_source"] == "calibration").to_numpy(float), m) == np.bincount(
+                g, minlength=m
+            )
             f = fx.table.copy()
             f["beacon"] = name
             f["calibrated"] = all_cal
@@ -930,30 +1108,67 @@ def leave_one_beacon_out(trials, by=None, *, level=0.95, method="mle", options=N
             ins = np.zeros(m, bool)
             miss = np.full(m, np.nan)
             if has_pos.any():
-                i2, d2 = inside_ellipse(f["lat"].to_numpy(float)[has_pos], f["lon"].to_numpy(float)[has_pos],
-                                        f["semi_major_m"].to_numpy(float)[has_pos],
-                                        f["semi_minor_m"].to_numpy(float)[has_pos],
-                                        f["orientation_deg"].to_numpy(float)[has_pos], blat, blon)
+                i2, d2 = inside_ellipse(
+                    f["lat"].to_numpy(float)[has_pos],
+                    f["lon"].to_numpy(float)[has_pos],
+                    f["semi_major_m"].to_numpy(float)[has_pos],
+                    f["semi_minor_m"].to_numpy(float)[has_pos],
+                    f["orientation_deg"].to_numpy(float)[has_pos],
+                    blat,
+                    blon,
+                )
                 ins[has_pos], miss[has_pos] = i2, d2
             region = np.isfinite(f["semi_major_m"].to_numpy(float))
             f["miss_m"] = miss
             f["inside"] = pd.array(np.where(region, ins, False), dtype="boolean")
             f.loc[~region, "inside"] = pd.NA
             parts.append(f)
-    cols = ["beacon", "fix", "n_bearings", "status", "calibrated", "lat", "lon", "semi_major_m", "semi_minor_m",
-            "orientation_deg", "miss_m", "inside"]
+    cols = [
+        "beacon",
+        "fix",
+        "n_bearings",
+        "status",
+        "calibrated",
+        "lat",
+        "lon",
+        "semi_major_m",
+        "semi_minor_m",
+        "orientation_deg",
+        "miss_m",
+        "inside",
+    ]
     fixes = pd.concat(parts, ignore_index=True)[cols] if parts else pd.DataFrame(columns=cols)
-    counted = fixes["calibrated"].astype(bool) & fixes["inside"].notna() if len(fixes) else pd.Series([], dtype=bool)
+    counted = (
+        fixes["calibrated"].astype(bool) & fixes["inside"].notna()
+        if len(fixes)
+        else pd.Series([], dtype=bool)
+    )
     hits = fixes["inside"].fillna(False).astype(bool) & counted if len(fixes) else counted
-    by_beacon = pd.DataFrame({"n_fixes": fixes.groupby("beacon", sort=False).size(),
-                              "n_with_region": counted.groupby(fixes["beacon"], sort=False).sum(),
-                              "n_inside": hits.groupby(fixes["beacon"], sort=False).sum()}) if len(fixes) else \
-        pd.DataFrame(columns=["n_fixes", "n_with_region", "n_inside"])
+    by_beacon = (
+        pd.DataFrame(
+            {
+                "n_fixes": fixes.groupby("beacon", sort=False).size(),
+                "n_with_region": counted.groupby(fixes["beacon"], sort=False).sum(),
+                "n_inside": hits.groupby(fixes["beacon"], sort=False).sum(),
+            }
+        )
+        if len(fixes)
+        else pd.DataFrame(columns=["n_fixes", "n_with_region", "n_inside"])
+    )
     n_reg, n_in = int(counted.sum()), int(hits.sum())
     uncal = int((~fixes["calibrated"].astype(bool)).sum()) if len(fixes) else 0
     if uncal:
-        notes.append(f"{uncal} trial fix{'es' if uncal != 1 else ''} not counted: some bearings had no calibration "
-                     "group among the other beacons' trials")
-    return BeaconCheck(fixes=fixes, by_beacon=by_beacon, level=level, n_with_region=n_reg, n_inside=n_in,
-                       rate=n_in / n_reg if n_reg else float("nan"), interval=wilson_interval(n_in, n_reg),
-                       notes=notes)
+        notes.append(
+            f"{uncal} trial fix{'es' if uncal != 1 else ''} not counted: some bearings had no calibration "
+            "group among the other beacons' trials"
+        )
+    return BeaconCheck(
+        fixes=fixes,
+        by_beacon=by_beacon,
+        level=level,
+        n_with_region=n_reg,
+        n_inside=n_in,
+        rate=n_in / n_reg if n_reg else float("nan"),
+        interval=wilson_interval(n_in, n_reg),
+        notes=notes,
+    )

@@ -110,7 +110,8 @@ def residual_plot(fixes: Fixes, label: str, *, ax=None):
 def _cal_group(cal, group):
     """The trials and the calibration row of one group (the first when ``group`` is None)."""
     if cal.trials is None:
-        raise ValueError("cal= was read from a file and has no trials to draw; draw the result of calibrate()")
+        raise ValueError("cal= was read from a file and has no trials to draw; draw the result of "
+                         "calibrate()")
     groups = cal.table["group"].tolist()
     if not groups:
         raise ValueError("cal= has no groups to draw (no usable trials)")
@@ -140,7 +141,8 @@ def error_histogram(cal, group=None, *, ax=None):
     if len(wild):   # marked at their place, or at the edge with their value when off the scale
         shown = np.clip(wild, bins[0], bins[-1])
         ax.plot(shown, np.zeros(len(wild)), "v", color="#D55E00", ms=8, clip_on=False,
-                label="wild, left out: " + ", ".join(f"{w:+.0f}°" for w in wild[:5]) + (" ..." if len(wild) > 5 else ""))
+                label="wild, left out: " + ", ".join(f"{w:+.0f}°" for w in wild[:5])
+                + (" ..." if len(wild) > 5 else ""))
     if np.isfinite(row["sd_deg"]) and len(used):
         x = np.linspace(bins[0], bins[-1], 200)
         dens = np.exp(-0.5 * ((x - row["bias_deg"]) / sd) ** 2) / (sd * np.sqrt(2 * np.pi))
@@ -155,8 +157,9 @@ def error_histogram(cal, group=None, *, ax=None):
 
 
 def error_rose(cal, group=None, *, ax=None, bin_deg=5.0):
-    """Rose (circular histogram) of one group's errors, clockwise from 0 at the top like a bearing: a spread of
-    a few degrees stays near the top, reflections and 180-degree mistakes stand apart. Returns the Figure."""
+    """Rose (circular histogram) of one group's errors, clockwise from 0 at the top like a bearing: a
+    spread of a few degrees stays near the top, reflections and 180-degree mistakes stand apart. Returns the
+    Figure."""
     plt = _mpl()
     tr, row, group = _cal_group(cal, group)
     if ax is None:
@@ -172,7 +175,8 @@ def error_rose(cal, group=None, *, ax=None, bin_deg=5.0):
     wild = np.radians(tr.loc[tr["wild"], "error_deg"].to_numpy(float))
     if len(wild):   # one wild trial would be an invisible bar: mark each on the rim
         rim = 1.08 * max(int(counts.max()), 1)
-        ax.plot(wild, np.full(len(wild), rim), "o", color="#D55E00", ms=7, clip_on=False, label="wild, left out")
+        ax.plot(wild, np.full(len(wild), rim), "o", color="#D55E00", ms=7, clip_on=False,
+                label="wild, left out")
         ax.set_ylim(0, rim * 1.02)
         ax.legend(loc="lower left", bbox_to_anchor=(-0.15, -0.15), fontsize=7)
     ax.set_theta_zero_location("N")

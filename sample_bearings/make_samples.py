@@ -201,7 +201,8 @@ def beacon_trials():
                 (2500.0, -200.0), (1900.0, 2800.0), (-1600.0, -1300.0)]
     wild = {("B2", "yagi", 2, 1): 41.0, ("B4", "loop", 1, 3): -57.0, ("B6", "loop", 3, 0): 180.0}
     header = ["fix", "tag", "time", "lat", "lon", "bearing", "north", "beacon", "beacon_lat", "beacon_lon",
-              "beacon_utm_zone", "beacon_easting", "beacon_northing", "beacon_mgrs", "observer", "antenna", "note"]
+              "beacon_utm_zone", "beacon_easting", "beacon_northing", "beacon_mgrs", "observer", "antenna",
+              "note"]
     rows, truth = [], []
     t = datetime(2026, 4, 20, 6, 30, tzinfo=timezone.utc)
     to_mgrs = mgrs.MGRS()
@@ -226,16 +227,16 @@ def beacon_trials():
                     t += timedelta(minutes=3)
                     err = rng2.normal(bias, sd) + wild.get((bid, short, rnd, j), 0.0)
                     mag = (azimuth(slat, slon, blat, blon) - declination(slat, slon, t) + err) % 360.0
-                    note = {41.0: "bouncy signal", 180.0: "loop: null both ways?"}.get(wild.get((bid, short, rnd, j)),
-                                                                                     "")
+                    notes = {41.0: "bouncy signal", 180.0: "loop: null both ways?"}
+                    note = notes.get(wild.get((bid, short, rnd, j)), "")
                     rows.append([f"{bid}-{short}-{rnd}", truth[-1][1], iso(t), f"{slat:.6f}", f"{slon:.6f}",
                                  f"{round(mag) % 360:d}", "magnetic", bid, *where, observer, antenna, note])
                 t += timedelta(minutes=6)
     write("beacon_trials.csv", header, rows)
     write("truth_beacon_trials.csv", ["beacon", "tag", "lat", "lon"], truth)
     write("truth_beacon_antennas.csv", ["antenna", "bias_deg", "sd_deg", "note"],
-          [[a, f"{v[2]:g}", f"{v[3]:g}", "error drawn normal(bias, sd), then the compass bearing written to whole "
-            "degrees (adds about 0.3 deg SD)"] for a, v in antennas.items()])
+          [[a, f"{v[2]:g}", f"{v[3]:g}", "error drawn normal(bias, sd), then the compass bearing written to "
+            "whole degrees (adds about 0.3 deg SD)"] for a, v in antennas.items()])
 
     # field fixes with the same antennas, a month later, on two tags
     rows, truth = [], []
@@ -256,9 +257,10 @@ def beacon_trials():
             r = rng2.uniform(400, 1500)
             slat, slon = offset(alat, alon, r * np.sin(np.radians(ang)), r * np.cos(np.radians(ang)))
             t += timedelta(minutes=4)
-            mag = (azimuth(slat, slon, alat, alon) - declination(slat, slon, t) + rng2.normal(bias, sd)) % 360.0
-            rows.append([label, tag, iso(t, CEST), f"{slat:.6f}", f"{slon:.6f}", f"{round(mag) % 360:d}", "magnetic",
-                         observer, antenna])
+            err = rng2.normal(bias, sd)
+            mag = (azimuth(slat, slon, alat, alon) - declination(slat, slon, t) + err) % 360.0
+            rows.append([label, tag, iso(t, CEST), f"{slat:.6f}", f"{slon:.6f}", f"{round(mag) % 360:d}",
+                         "magnetic", observer, antenna])
         t += timedelta(hours=5, minutes=int(rng2.integers(0, 120)))
     write("tracking_after_trials.csv", ["fix", "tag", "time", "lat", "lon", "bearing", "north", "observer",
                                         "antenna"], rows)

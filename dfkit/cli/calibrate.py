@@ -12,19 +12,40 @@ FIGURE_TYPES = (".png", ".pdf", ".svg")
 
 def add_parser(sub):
     c = sub.add_parser("calibrate", help="bearing bias and SD per antenna or observer, from beacon trials")
-    c.add_argument("trials", help="a bearing sheet plus the beacon position (beacon_lat/beacon_lon, beacon UTM, "
-                                  "beacon_mgrs, or a beacon label with --stations)")
-    c.add_argument("--by", default=None, metavar="COLUMN[,COLUMN]",
-                   help="group trials by these columns (default: antenna if present, else observer, else "
-                        "one group; 'all' for one group)")
-    c.add_argument("-o", "--output", default=None, metavar="CAL.csv",
-                   help="write the calibration (use it with dfkit fix/map --calibration)")
-    c.add_argument("--trials-out", default=None, metavar="CSV",
-                   help="also write every trial with its error, distance, group and whether it was wild")
-    c.add_argument("--check-out", default=None, metavar="CSV",
-                   help="also write the leave-one-beacon-out fixes")
-    c.add_argument("--figures", default=None, metavar="FILE",
-                   help="error histogram, rose and error-versus-distance per group (.png, .pdf or .svg)")
+    c.add_argument(
+        "trials",
+        help="a bearing sheet plus the beacon position (beacon_lat/beacon_lon, beacon UTM, "
+        "beacon_mgrs, or a beacon label with --stations)",
+    )
+    c.add_argument(
+        "--by",
+        default=None,
+        metavar="COLUMN[,COLUMN]",
+        help="group trials by these columns (default: antenna if present, else observer, else "
+        "one group; 'all' for one group)",
+    )
+    c.add_argument(
+        "-o",
+        "--output",
+        default=None,
+        metavar="CAL.csv",
+        help="write the calibration (use it with dfkit fix/map --calibration)",
+    )
+    c.add_argument(
+        "--trials-out",
+        default=None,
+        metavar="CSV",
+        help="also write every trial with its error, distance, group and whether it was wild",
+    )
+    c.add_argument(
+        "--check-out", default=None, metavar="CSV", help="also write the leave-one-beacon-out fixes"
+    )
+    c.add_argument(
+        "--figures",
+        default=None,
+        metavar="FILE",
+        help="error histogram, rose and error-versus-distance per group (.png, .pdf or .svg)",
+    )
     g = c.add_argument_group("leave-one-beacon-out check")
     from dfkit.estimators import METHODS
 
@@ -35,20 +56,36 @@ def add_parser(sub):
 
 
 def _fmt(v, spec):
-    return "" if v != v else format(v, spec)   # NaN -> blank
+    return "" if v != v else format(v, spec)  # NaN -> blank
 
 
 def print_groups(cal, out) -> None:
     rows = []
     for _, r in cal.table.iterrows():
-        ci = f"{_fmt(r['bias_lo_deg'], '+.1f')}..{_fmt(r['bias_hi_deg'], '+.1f')}" if r["bias_lo_deg"] == \
-            r["bias_lo_deg"] else "(undefined)"
-        rows.append((r["group"], str(r["n"]), str(r["n_wild"]), _fmt(r["bias_deg"], "+.2f"), ci,
-                     _fmt(r["sd_deg"], ".2f"), _fmt(r["kappa"], ".0f"), r["status"]))
+        ci = (
+            f"{_fmt(r['bias_lo_deg'], '+.1f')}..{_fmt(r['bias_hi_deg'], '+.1f')}"
+            if r["bias_lo_deg"] == r["bias_lo_deg"]
+            else "(undefined)"
+        )
+        rows.append(
+            (
+                r["group"],
+                str(r["n"]),
+                str(r["n_wild"]),
+                _fmt(r["bias_deg"], "+.2f"),
+                ci,
+                _fmt(r["sd_deg"], ".2f"),
+                _fmt(r["kappa"], ".0f"),
+                r["status"],
+            )
+        )
     head = ("group", "n", "wild", "bias°", "bias 95% CI", "sd°", "kappa", "status")
     widths = [max(len(x[i]) for x in rows + [head]) for i in range(len(head))]
     for row in [head] + rows:
-        print("  ".join(v.ljust(w) if i == 0 else v.rjust(w) for i, (v, w) in enumerate(zip(row, widths))), file=out)
+        print(
+            "  ".join(v.ljust(w) if i == 0 else v.rjust(w) for i, (v, w) in enumerate(zip(row, widths))),
+            file=out,
+        )
 
 
 def run(a) -> int:
@@ -58,7 +95,10 @@ def run(a) -> int:
     from dfkit.export import write_table
 
     if a.figures and os.path.splitext(a.figures)[1].lower() not in FIGURE_TYPES:
-        print(f"dfkit: cannot draw figures into '{a.figures}': use one of {', '.join(FIGURE_TYPES)}", file=sys.stderr)
+        print(
+            f"dfkit: cannot draw figures into '{a.figures}': use one of {', '.join(FIGURE_TYPES)}",
+            file=sys.stderr,
+        )
         return 2
     if not 0 < a.level < 1:
         print(f"dfkit: --level {a.level} must be a probability between 0 and 1 (e.g. 0.95)", file=sys.stderr)
@@ -79,9 +119,12 @@ def run(a) -> int:
         for w in filter(None, str(r["warning"]).split("; ")):
             print(f"warning   {r['group']}: {w}", file=sys.stderr)
     for _, w in cal.wild.iterrows():
-        print(f"wild      {trials.source}: line {w['line']}: {w['group']}, beacon {w['beacon']}: error "
-              f"{w['error_deg']:+.1f}°, {w['deviation_deg']:+.1f}° from the group's median: left out "
-              "(a reflection or a misread?)", file=sys.stderr)
+        print(
+            f"wild      {trials.source}: line {w['line']}: {w['group']}, beacon {w['beacon']}: error "
+            f"{w['error_deg']:+.1f}°, {w['deviation_deg']:+.1f}° from the group's median: left out "
+            "(a reflection or a misread?)",
+            file=sys.stderr,
+        )
     print(check.summary())
     for note in check.notes:
         print(f"note      leave-one-beacon-out: {note}", file=sys.stderr)
@@ -89,8 +132,12 @@ def run(a) -> int:
     dishonest = check.n_with_region > 0 and not (lo <= a.level <= hi)
     if dishonest:
         word = "understates" if hi < a.level else "overstates"
-        print(f"warning   the calibration {word} the error of other beacons: check that the beacons stand where "
-              "the animals or transmitters do (terrain, cover, distance)", file=sys.stderr)
+        print(
+            f"warning   the calibration {word} the error of other beacons: check that the beacons stand "
+            "where "
+            "the animals or transmitters do (terrain, cover, distance)",
+            file=sys.stderr,
+        )
     if a.output:
         ensure_dir(a.output)
         write_table(cal.table, a.output)
@@ -108,10 +155,20 @@ def run(a) -> int:
         calibration_figure(cal).savefig(a.figures, dpi=120, bbox_inches="tight")
         print(f"wrote {a.figures}", file=sys.stderr)
     n_groups = len(cal.table)
-    print(f"{trials.source}: {trials.n_rows} rows, {len(trials.table)} usable trials, {trials.n_rejected} rejected, "
-          f"{len(cal.wild)} wild; {n_groups} group{'s' if n_groups != 1 else ''}: "
-          + ", ".join(f"{(cal.table['status'] == s).sum()} {s}" for s in ("ok", "few", "unusable")), file=sys.stderr)
+    print(
+        f"{trials.source}: {trials.n_rows} rows, {len(trials.table)} usable trials, "
+        f"{trials.n_rejected} rejected, "
+        f"{len(cal.wild)} wild; {n_groups} group{'s' if n_groups != 1 else ''}: "
+        + ", ".join(f"{(cal.table['status'] == s).sum()} {s}" for s in ("ok", "few", "unusable")),
+        file=sys.stderr,
+    )
     print(CAUTION_LINE, file=sys.stderr)
-    flagged = (trials.n_rejected or len(cal.wild) or not len(cal.table) or (cal.table["status"] != "ok").any()
-               or (cal.table["warning"] != "").any() or dishonest)
+    flagged = (
+        trials.n_rejected
+        or len(cal.wild)
+        or not len(cal.table)
+        or (cal.table["status"] != "ok").any()
+        or (cal.table["warning"] != "").any()
+        or dishonest
+    )
     return 1 if flagged else 0

@@ -103,7 +103,8 @@ def print_summary(b, fixes) -> None:
     t = fixes.table
     one_dof = int(((t["sd_source"] == "estimated") & (t["n_used"] == 3) & t["semi_major_m"].notna()).sum())
     if one_dof:
-        whose = "fix sizes its region from the SD of its" if one_dof == 1 else "fixes size their regions from the SD of their"
+        whose = ("fix sizes its region from the SD of its" if one_dof == 1
+                 else "fixes size their regions from the SD of their")
         print(f"note            {one_dof} {whose} own 3 bearings (1 degree of freedom, an F(2, 1) scale): such "
               "regions are huge or, by luck, tiny. Measure the SD on beacon trials (dfkit calibrate) and pass "
               "--calibration", file=sys.stderr)
