@@ -121,15 +121,18 @@ def _cal_group(cal, group):
     return cal.trials[cal.trials["group"] == group], cal.table.set_index("group").loc[group], group
 
 
+def _fig_ax(ax, figsize, **subplot_kw):
+    """The given axes and its figure, or a new figure with one axes."""
+    if ax is not None:
+        return ax.figure, ax
+    return _mpl().subplots(figsize=figsize, subplot_kw=subplot_kw or None)
+
+
 def error_histogram(cal, group=None, *, ax=None):
     """Histogram of one group's trial errors [°]: used trials, wild ones apart, the bias and a normal curve
     with the group's bias and SD (a guide to the eye, not a test). Returns the Figure."""
-    plt = _mpl()
     tr, row, group = _cal_group(cal, group)
-    if ax is None:
-        fig, ax = plt.subplots(figsize=(5, 3.2))
-    else:
-        fig = ax.figure
+    fig, ax = _fig_ax(ax, (5, 3.2))
     used = tr.loc[tr["used"], "error_deg"].to_numpy(float)
     wild = tr.loc[tr["wild"], "error_deg"].to_numpy(float)
     sd = row["sd_deg"] if np.isfinite(row["sd_deg"]) else 1.0
@@ -160,12 +163,8 @@ def error_rose(cal, group=None, *, ax=None, bin_deg=5.0):
     """Rose (circular histogram) of one group's errors, clockwise from 0 at the top like a bearing: a
     spread of a few degrees stays near the top, reflections and 180-degree mistakes stand apart. Returns the
     Figure."""
-    plt = _mpl()
     tr, row, group = _cal_group(cal, group)
-    if ax is None:
-        fig, ax = plt.subplots(figsize=(3.6, 3.6), subplot_kw={"projection": "polar"})
-    else:
-        fig = ax.figure
+    fig, ax = _fig_ax(ax, (3.6, 3.6), projection="polar")
     if getattr(ax, "name", "") != "polar":
         raise ValueError("ax= must be a polar axes (subplot_kw={'projection': 'polar'})")
     edges = np.radians(np.arange(-180.0, 180.0 + bin_deg, bin_deg))
@@ -188,12 +187,8 @@ def error_rose(cal, group=None, *, ax=None, bin_deg=5.0):
 def error_vs_distance(cal, group=None, *, ax=None):
     """One group's errors against the station-beacon distance, with the bias and the bias +/- 2 SD band, and
     the rank correlation of the absolute error with distance. Returns the Figure."""
-    plt = _mpl()
     tr, row, group = _cal_group(cal, group)
-    if ax is None:
-        fig, ax = plt.subplots(figsize=(5, 3.2))
-    else:
-        fig = ax.figure
+    fig, ax = _fig_ax(ax, (5, 3.2))
     d = tr["distance_m"].to_numpy(float) / 1000.0
     e = tr["error_deg"].to_numpy(float)
     used = tr["used"].to_numpy(bool)
