@@ -43,7 +43,7 @@ def test_check_set_against_numpy_and_scipy():
     assert s.rbar == pytest.approx(rbar, abs=1e-14)
     assert s.circular_sd_deg == pytest.approx(
         np.degrees(np.sqrt(-2 * np.log(rbar))), rel=1e-12
-    )  # Fisher eq. 2.12
+    )  # circular SD sqrt(-2 ln R) (Fisher 1993; Mardia & Jupp 2000)
     assert s.angular_deviation_deg == pytest.approx(np.degrees(np.sqrt(2 * (1 - rbar))), rel=1e-12)
     assert s.sd_deg == pytest.approx(np.std(CHECK, ddof=1), rel=1e-6)  # errors far from +-180: plain SD
     # von Mises MLE: scipy's fit with the scale fixed at 1 (scipy.stats.vonmises.fit) and brentq on A = I1/I0
@@ -618,3 +618,24 @@ def test_readme_calibration_commands_parse():
     for ln in lines:
         args = build_parser().parse_args(shlex.split(ln)[1:])
         assert args.command in ("calibrate", "fix", "map")
+
+
+def test_trials_take_every_reading_option(write_sheet, tmp_path):
+    # mils, magnetic north with a declination column, local times with --tz, station from a GPS track
+    gpx = tmp_path / "walk.gpx"
+    gpx.write_text(
+        '<?xml version="1.0"?><gpx version="1.1" creator="t" xmlns="http://www.topografix.com/GPX/1/1">'
+        "<trk><trkseg>"
+        '<trkpt lat="46.8" lon="9.9"><time>2026-06-01T05:59:50Z</time></trkpt>'
+        '<trkpt lat="46.8" lon="9.9"><time>2026-06-01T06:00:10Z</time></trkpt>'
+        "</trkseg></trk></gpx>"
+    )
+    sheet = write_sheet(
+        "time,bearing,unit,north,declination,beacon_lat,beacon_lon\n"
+        "2026-06-01T08:00:00,600,mil,magnetic,3.0E,46.81,9.91\n"
+    )
+    tr = calibration.read_trials(sheet, track=str(gpx), tz="Europe/Zurich")
+    assert not [p for p in tr.problems if p.severity == "error"]
+    g = WGS.Inverse(46.8, 9.9, 46.81, 9.91)
+    # 600 mil = 33.75 deg (NATO mil, 6400 to the circle); true = magnetic + declination east
+    assert tr.table["error_deg"].iloc[0] == pytest.approx(600 * 360 / 6400 + 3.0 - g["azi1"], abs=1e-6)
