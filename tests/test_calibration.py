@@ -128,10 +128,9 @@ def trials_sheet(rng, n_per_antenna=300, n_beacons=8, wild=()):
     return "\n".join(lines) + "\n", beacons
 
 
-def field_sheet(rng, n_fix, with_sd=None):
-    """Field fixes of 3 bearings from stations around the target, each fix with one antenna; no sd column
-    unless ``with_sd`` (then each bearing carries its antenna's true SD)."""
-    rows = ["fix,lat,lon,bearing,antenna" + (",sd" if with_sd else "")]
+def field_sheet(rng, n_fix):
+    """Field fixes of 3 bearings from stations around the target, each fix with one antenna, no sd column."""
+    rows = ["fix,lat,lon,bearing,antenna"]
     truth = []
     names = list(ANTENNAS)
     for i in range(n_fix):
@@ -142,9 +141,7 @@ def field_sheet(rng, n_fix, with_sd=None):
             d = WGS.Direct(tgt[0], tgt[1], ang, rng.uniform(500, 1500))
             az = WGS.Inverse(d["lat2"], d["lon2"], tgt[0], tgt[1])["azi1"]
             b = (az + rng.normal(bias, sd)) % 360
-            rows.append(
-                f"F{i},{d['lat2']:.8f},{d['lon2']:.8f},{b:.4f},{antenna}" + (f",{sd}" if with_sd else "")
-            )
+            rows.append(f"F{i},{d['lat2']:.8f},{d['lon2']:.8f},{b:.4f},{antenna}")
         truth.append(tgt)
     return "\n".join(rows) + "\n", np.array(truth)
 
