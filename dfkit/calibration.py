@@ -978,7 +978,7 @@ class BeaconCheck:
         ``n_inside / n_with_region``.
     interval : tuple of float
         95 % Wilson score interval of ``rate`` (E. B. Wilson, "Probable inference, the law of succession, and
-        statistical inference", JASA 22(158), 209-212, 1927).
+        statistical inference", JASA 22(158), 209-212, 1927; volume and pages from memory).
     notes : list of str
     """
 
