@@ -401,7 +401,7 @@ def test_by_default_and_errors(write_sheet):
 # --------------------------------------------------------------------------- leave one beacon out
 
 
-def test_leave_one_beacon_out_uses_only_the_other_beacons(write_sheet):
+def test_leave_one_beacon_out_uses_only_the_other_beacons(write_sheet, capsys):
     # Beacon B0 stands where the antenna reads 12 deg off (a site effect); the others read true. Calibrated by
     # the others, B0's fixes must miss; calibrated by itself the check would have been fooled. Stations stand
     # on one side of each beacon (a 90-degree arc), so a common bias moves the fix instead of cancelling.
@@ -418,7 +418,8 @@ def test_leave_one_beacon_out_uses_only_the_other_beacons(write_sheet):
                     f"r{rnd},{d['lat2']:.8f},{d['lon2']:.8f},{(az + err) % 360:.4f},y,B{b},"
                     f"{blat:.8f},{blon:.8f}"
                 )
-    check = calibration.leave_one_beacon_out(write_sheet("\n".join(lines) + "\n"))
+    path = write_sheet("\n".join(lines) + "\n")
+    check = calibration.leave_one_beacon_out(path)
     per = check.by_beacon
     assert per.loc["B0", "n_fixes"] == 6 and per.loc["B0", "n_with_region"] == 6
     assert per.loc["B0", "n_inside"] <= 1
@@ -431,6 +432,10 @@ def test_leave_one_beacon_out_uses_only_the_other_beacons(write_sheet):
     centre = (p + z * z / (2 * n)) / (1 + z * z / n)
     half = z * np.sqrt(p * (1 - p) / n + z * z / (4 * n * n)) / (1 + z * z / n)
     assert check.interval == pytest.approx((centre - half, centre + half))
+    # the command line says so, and exits 1
+    assert check.interval[1] < 0.95
+    assert main(["calibrate", str(path)]) == 1
+    assert "held their beacon less often than 95 %" in capsys.readouterr().err
 
 
 def test_leave_one_beacon_out_needs_two_beacons(write_sheet):

@@ -131,13 +131,14 @@ def run(a) -> int:
     lo, hi = check.interval
     dishonest = check.n_with_region > 0 and not (lo <= a.level <= hi)
     if dishonest:
-        word = "understates" if hi < a.level else "overstates"
-        print(
-            f"warning   the calibration {word} the error of other beacons: check that the beacons stand "
-            "where "
-            "the animals or transmitters do (terrain, cover, distance)",
-            file=sys.stderr,
-        )
+        if hi < a.level:
+            why = ("the calibration may understate the error away from its own beacons (terrain, cover, "
+                   "distance), or the trial fixes' geometry strains the ellipse; see --check-out")
+        else:
+            why = "the calibration may overstate the error (beacons in worse places than the rest?)"
+        more = "less" if hi < a.level else "more"
+        print(f"warning   leave-one-beacon-out: the regions held their beacon {more} often than "
+              f"{100 * a.level:g} %: {why}", file=sys.stderr)
     if a.output:
         ensure_dir(a.output)
         write_table(cal.table, a.output)
