@@ -507,7 +507,7 @@ def test_cli_calibrate_clean_trials_exit_0_and_fix_uses_it(write_sheet, tmp_path
                 f"y,{blat:.8f},{blon:.8f}"
             )
     trials = write_sheet("\n".join(lines) + "\n", "trials.csv")
-    cal, fig = tmp_path / "out" / "cal.csv", tmp_path / "out" / "cal.png"
+    cal, fig = tmp_path / "out" / "cal.csv", tmp_path / "out" / "figs" / "calibration.png"
     code = main(
         [
             "calibrate",
@@ -515,7 +515,7 @@ def test_cli_calibrate_clean_trials_exit_0_and_fix_uses_it(write_sheet, tmp_path
             "-o",
             str(cal),
             "--figures",
-            str(fig),
+            str(fig.parent),
             "--trials-out",
             str(tmp_path / "t.csv"),
             "--check-out",
@@ -526,6 +526,7 @@ def test_cli_calibrate_clean_trials_exit_0_and_fix_uses_it(write_sheet, tmp_path
     assert code == 0, out.err
     assert "antenna=y" in out.out and "leave-one-beacon-out:" in out.out and "life-safety" in out.err
     assert fig.read_bytes()[:8] == b"\x89PNG\r\n\x1a\n"
+    assert (fig.parent / "group_1_antenna_y.png").read_bytes()[:4] == b"\x89PNG"
     assert len(pd.read_csv(tmp_path / "t.csv")) == 48
     field = write_sheet(
         "fix,lat,lon,bearing,antenna\nA,46.79,9.89,45,Y\nA,46.79,9.92,315,y\nA,46.82,9.905,180,y\n",
@@ -545,12 +546,13 @@ def test_cli_calibrate_misuse_and_unreadable(write_sheet, tmp_path, capsys):
     assert main(["calibrate", str(tmp_path / "none.csv")]) == 2
     assert main(["calibrate", str(write_sheet("fix,lat,lon,bearing\na,47,15,30\n", "nb.csv"))]) == 2
     assert main(["calibrate", str(good), "--by", "mast"]) == 2
+    (tmp_path / "x.gif").write_text("not a folder")
     assert main(["calibrate", str(good), "--figures", str(tmp_path / "x.gif")]) == 2
     assert main(["fix", str(good), "--calibration", str(tmp_path / "none.csv")]) == 2
     err = capsys.readouterr().err
     assert (
         "--by: by='mast'" in err
-        and "cannot draw figures into" in err
+        and "not a folder" in err
         and "cannot read the calibration" in err
     )
 

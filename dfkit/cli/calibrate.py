@@ -7,7 +7,6 @@ import sys
 from dfkit.cautions import CAUTION_LINE
 from dfkit.cli.common import add_read_options, ensure_dir, read_kwargs, report_problems
 
-FIGURE_TYPES = (".png", ".pdf", ".svg")
 
 
 def add_parser(sub):
@@ -43,8 +42,9 @@ def add_parser(sub):
     c.add_argument(
         "--figures",
         default=None,
-        metavar="FILE",
-        help="error histogram, rose and error-versus-distance per group (.png, .pdf or .svg)",
+        metavar="DIR",
+        help="also write figures into DIR (PNG): calibration.png with every group, and one per group "
+        "(error histogram, rose, error versus distance)",
     )
     g = c.add_argument_group("leave-one-beacon-out check")
     from dfkit.estimators import METHODS
@@ -88,17 +88,38 @@ def print_groups(cal, out) -> None:
         )
 
 
+def write_calibration_figures(cal, folder) -> list[str]:
+    """``calibration.png`` (every group) and ``group_<n>_<name>.png`` (one per group) in ``folder``."""
+    import os
+    import re
+
+    from dfkit.figures import calibration_figure
+
+    os.makedirs(folder, exist_ok=True)
+    jobs = [("calibration.png", None)]
+    for i, g in enumerate(cal.table["group"].tolist()):
+        jobs.append((f"group_{i + 1}_{re.sub(r'[^A-Za-z0-9._-]+', '_', g).strip('._')[:50]}.png", [g]))
+    written = []
+    for name, groups in jobs:
+        fig = calibration_figure(cal, groups)
+        path = os.path.join(folder, name)
+        fig.savefig(path, dpi=120, bbox_inches="tight")
+        import matplotlib.pyplot as plt   # already imported by the figure; closing frees its memory
+
+        plt.close(fig)
+        written.append(path)
+    return written
+
+
 def run(a) -> int:
     import os
 
     from dfkit.calibration import calibrate, leave_one_beacon_out, read_trials
     from dfkit.export import write_table
 
-    if a.figures and os.path.splitext(a.figures)[1].lower() not in FIGURE_TYPES:
-        print(
-            f"dfkit: cannot draw figures into '{a.figures}': use one of {', '.join(FIGURE_TYPES)}",
-            file=sys.stderr,
-        )
+    if a.figures and os.path.exists(a.figures) and not os.path.isdir(a.figures):
+        print(f"dfkit: --figures {a.figures}: not a folder (figures are written into a folder)",
+              file=sys.stderr)
         return 2
     if not 0 < a.level < 1:
         print(f"dfkit: --level {a.level} must be a probability between 0 and 1 (e.g. 0.95)", file=sys.stderr)
@@ -149,12 +170,9 @@ def run(a) -> int:
     if a.check_out:
         ensure_dir(a.check_out)
         write_table(check.fixes, a.check_out)
-    if a.figures:
-        from dfkit.figures import calibration_figure
-
-        ensure_dir(a.figures)
-        calibration_figure(cal).savefig(a.figures, dpi=120, bbox_inches="tight")
-        print(f"wrote {a.figures}", file=sys.stderr)
+    if a.figures and len(cal.table):
+        for path in write_calibration_figures(cal, a.figures):
+            print(f"wrote {path}", file=sys.stderr)
     n_groups = len(cal.table)
     print(
         f"{trials.source}: {trials.n_rows} rows, {len(trials.table)} usable trials, "
