@@ -26,14 +26,28 @@ def _mpl():
     return plt
 
 
-def fix_plot(fixes: Fixes, label: str, *, ax=None, error_polygon: bool = False):
+def _fix_rows(fixes: Fixes, label, tag):
+    """The fix-table row and the bearings of the fix ``label`` (of ``tag`` when labels repeat across tags)."""
+    t = fixes.table
+    hit = (t["fix"] == label).to_numpy().copy()
+    if tag is not None:
+        hit &= (t["tag"] == tag).to_numpy()
+    idx = np.flatnonzero(hit)
+    if len(idx) != 1:
+        tags = ", ".join(repr(x) for x in t.loc[hit, "tag"]) if len(idx) else ""
+        raise ValueError(f"fix {label!r} is not in the table" if not len(idx) else
+                         f"fix {label!r} exists for tags {tags}: give tag=")
+    i = int(idx[0])   # row i of the fix table is fix_id i
+    return t.iloc[i], fixes.bearings[fixes.bearings["fix_id"].to_numpy(np.int64) == i]
+
+
+def fix_plot(fixes: Fixes, label: str, *, tag=None, ax=None, error_polygon: bool = False):
     """Bearings, stations, the fix and its ellipse in local metres, with a scale bar and north arrow.
 
-    Returns the matplotlib Figure.
+    ``tag`` picks the fix when two tags use the same label. Returns the matplotlib Figure.
     """
     plt = _mpl()
-    row = fixes.table.set_index("fix").loc[label]
-    b = fixes.bearings[fixes.bearings["fix"] == label]
+    row, b = _fix_rows(fixes, label, tag)
     if ax is None:
         fig, ax = plt.subplots(figsize=(6.5, 6.5))
     else:
@@ -83,11 +97,10 @@ def fix_plot(fixes: Fixes, label: str, *, ax=None, error_polygon: bool = False):
     return fig
 
 
-def residual_plot(fixes: Fixes, label: str, *, ax=None):
+def residual_plot(fixes: Fixes, label: str, *, tag=None, ax=None):
     """Each bearing's residual (observed minus geodesic azimuth to the fix) with its weight."""
     plt = _mpl()
-    b = fixes.bearings[fixes.bearings["fix"] == label]
-    row = fixes.table.set_index("fix").loc[label]
+    row, b = _fix_rows(fixes, label, tag)
     if ax is None:
         fig, ax = plt.subplots(figsize=(6, 3))
     else:
