@@ -23,6 +23,8 @@ demo: $(STAMP)
 	$(PY) -m dfkit season add demo_output/season.gpkg sample_bearings/season_2026_05.csv sample_bearings/season_2026_06.csv || test $$? -eq 1
 	$(PY) -m dfkit season show demo_output/season.gpkg -o demo_output/season_review.html || test $$? -eq 1
 	$(PY) -m dfkit ranges demo_output/season.gpkg --method kde --levels 50,95 -o demo_output/home_ranges.geojson -o demo_output/home_ranges.gpkg
+	$(PY) -m dfkit calibrate sample_bearings/beacon_trials.csv -o demo_output/calibration.csv --figures demo_output/calibration_figures || test $$? -eq 1
+	$(PY) -m dfkit fix sample_bearings/tracking_after_trials.csv --calibration demo_output/calibration.csv -o demo_output/after_trials.csv
 	@echo "Demo outputs are in demo_output/ (open demo_output/week_map.html in a browser; it works offline)."
 
 test: $(STAMP)
@@ -37,6 +39,7 @@ samples: $(STAMP)
 bench: $(STAMP)
 	$(PY) benchmarks/bench_fix.py
 	$(PY) benchmarks/bench_season.py
+	$(PY) benchmarks/calibration_study.py
 	$(PY) benchmarks/bench_map.py run --fixes 20000
 
 wheelhouse: $(STAMP)
