@@ -135,8 +135,10 @@ def plan_map(plan: Plan, *, title: str | None = None, top: int = TOP) -> PlanMap
                          (int(r[c]) if c == "rank" else (float(r[c]) if c != "spot" else str(r[c]))))
                      for c in ("rank", "spot", "expected_area_m2", "area_ratio", "distance_m", "azimuth_deg",
                                "expected_bearing_deg")})
+    unranked = [{"spot": str(r["spot"]), "note": str(r["note"])}
+                for _, r in t[t["rank"].isna()].head(50).iterrows()]
     row = plan.fix_row
-    panel = {"title": title or f"Next bearing for fix {row['fix']}", "fix": str(row["fix"]), "tag": str(row["tag"]),
+    panel = {"unranked": unranked, "title": title or f"Next bearing for fix {row['fix']}", "fix": str(row["fix"]), "tag": str(row["tag"]),
              "status": str(row["status"]), "reason": str(row["reason"]), "notes": meta["notes"],
              "current_area_m2": meta["current_area_m2"], "level": plan.level, "rows": rows, "top": int(top),
              "grid": plan.grid_step_m is not None, "band": bool(plan.bands), "has_ratio": has_ratio,

@@ -170,11 +170,14 @@ def ellipse_area_m2(j_ee, j_en, j_nn, level=0.95):
 @dataclass
 class Spots:
     """Candidate spots: ``table`` (``spot``, ``lat``, ``lon``, ``line``, and the file's own extra
-    columns) and the rows that could not be used (``problems``, each with line, column and reason)."""
+    columns), the rows that could not be used (``problems``, each with line, column and reason) and,
+    of those, the ones with a label (``rejected``: ``spot``, ``line``, ``reason``), so that a plan
+    can list them too."""
 
     table: pd.DataFrame
     problems: list[Problem] = field(default_factory=list)
     source: str = ""
+    rejected: pd.DataFrame = field(default_factory=lambda: pd.DataFrame({"spot": [], "line": [], "reason": []}))
 
 
 def read_spots(path, *, stations=None) -> Spots:
@@ -229,7 +232,14 @@ def read_spots(path, *, stations=None) -> Spots:
         name = f"spot_{c}" if c in RESERVED_COLUMNS else c
         table[name] = t[c].to_numpy(dtype=object)[keep]
     problems = sorted(list(st_problems) + problems + extra, key=lambda p: (p.source != raw.source, p.line))
-    return Spots(table=table.reset_index(drop=True), problems=problems, source=raw.source)
+    first_error = {}
+    for p in problems:
+        if p.severity == "error" and p.source == raw.source and p.line not in first_error:
+            first_error[p.line] = f"line {p.line}" + (f", {p.column}" if p.column else "") + f": {p.message}"
+    out = bad & ~missing
+    rejected = pd.DataFrame({"spot": labels[out].astype(str), "line": lines[out].astype(int),
+                             "reason": [first_error.get(int(x), "rejected") for x in lines[out]]})
+    return Spots(table=table.reset_index(drop=True), problems=problems, source=raw.source, rejected=rejected)
 
 
 def _validate_positions(raw, stations):
@@ -438,11 +448,14 @@ def plan_next_bearing(bearings: Bearings, fix: str, *, tag: str | None = None, s
     fixes = locate(sub, method=method, level=level)
     row = fixes.table.iloc[0]
     fb = fixes.bearings
-    spot_table, spot_problems = _candidate_spots(spots, stations)
-    problems = list(bearings.problems) + spot_problems
+    candidates = _candidate_spots(spots, stations)
+    spot_table = candidates.table
+    problems = list(bearings.problems) + list(candidates.problems)
     if not len(fb):
-        return _empty_plan(fixes, spot_table, around_m, level, problems,
+        plan = _empty_plan(fixes, spot_table, around_m, level, problems,
                            f"fix {fix!r} has no usable bearing (status {row['status']}): nothing to plan from")
+        plan.table = _with_rejected(plan.table, candidates.rejected)
+        return plan
 
     sds = _plan_sds(fb, row, next_sd_deg)
     notes = list(sds.notes)
@@ -455,7 +468,8 @@ def plan_next_bearing(bearings: Bearings, fix: str, *, tag: str | None = None, s
         raise ValueError(f"spots: {len(spot_table)} spots given; at most {MAX_SPOTS} in one plan")
 
     expected, current = _expected_areas(where, spot_table, sds, level)
-    table = _ranked_table(where, spot_table, expected, current, sds, row, level, min_distance_m)
+    table = _with_rejected(_ranked_table(where, spot_table, expected, current, sds, row, level, min_distance_m),
+                           candidates.rejected)
     if len(spot_table) and table["rank"].isna().all():
         notes.append("no spot could be ranked (see the note column)")
     return Plan(table=table, fixes=fixes, basis=where.basis, level=level,
@@ -708,14 +722,13 @@ def _select_fix(bearings: Bearings, fix, tag) -> Bearings:
     return bearings.select(fixes=[fix], tags=[hit["tag"].iloc[0]])
 
 
-def _candidate_spots(spots, stations):
+def _candidate_spots(spots, stations) -> Spots:
     if spots is None:
-        return pd.DataFrame({"spot": [], "lat": [], "lon": [], "line": []}), []
+        return Spots(pd.DataFrame({"spot": [], "lat": [], "lon": [], "line": []}))
     if isinstance(spots, (str, os.PathLike)):
-        s = read_spots(spots, stations=stations)
-        return s.table, list(s.problems)
+        return read_spots(spots, stations=stations)
     if isinstance(spots, Spots):
-        return spots.table, list(spots.problems)
+        return spots
     if isinstance(spots, pd.DataFrame):
         missing = [c for c in ("spot", "lat", "lon") if c not in spots.columns]
         if missing:
@@ -730,7 +743,7 @@ def _candidate_spots(spots, stations):
         t["spot"] = t["spot"].astype(str)
         if "line" not in t.columns:
             t["line"] = pd.NA
-        return t.reset_index(drop=True), []
+        return Spots(t.reset_index(drop=True))
     raise ValueError(f"spots= must be a path to a spots file or a DataFrame, not {type(spots).__name__}")
 
 
@@ -798,6 +811,19 @@ def _last_bearing(fb: pd.DataFrame) -> int:
     if t.notna().any():
         return int(np.flatnonzero((t == t.max()).to_numpy())[-1])
     return int(np.argmax(fb["line"].to_numpy()))
+
+
+def _with_rejected(table: pd.DataFrame, rejected: pd.DataFrame) -> pd.DataFrame:
+    """The plan's table with the rejected spots of the spots file listed last (no position, no rank)."""
+    if not len(rejected):
+        return table
+    extra = pd.DataFrame({"spot": rejected["spot"].to_numpy(dtype=object), "line": rejected["line"].to_numpy(),
+                          "note": ["rejected: " + r for r in rejected["reason"]]})
+    for c in ("fix", "tag", "fix_status", "basis", "level"):
+        extra[c] = table[c].iloc[0] if len(table) else np.nan
+    out = pd.concat([table, extra], ignore_index=True)
+    out["rank"] = out["rank"].astype("Int64")
+    return out
 
 
 def _empty_plan(fixes, spot_table, around_m, level, problems, why) -> Plan:

@@ -371,6 +371,9 @@ def test_bad_spots_are_reported_like_bad_sheet_rows(write_sheet):
     assert "listed twice" in msgs[(5, "spot")]
     assert msgs[(6, "")].startswith("no position")
     assert s.table["spot"].tolist() == ["ok"]
+    # rejected rows that have a label are kept by name, so a plan can list them
+    assert s.rejected["spot"].tolist() == ["swapped", "ok", "nowhere"]
+    assert s.rejected["reason"].iloc[0] == "line 3, lat: " + sheet_msgs[(3, "lat")]
 
 
 def test_spots_file_needs_a_label_column(write_sheet):
@@ -559,13 +562,20 @@ def test_plan_command_misuse_is_exit_2(tmp_path, write_sheet, capsys):
     assert main(["plan", sheet, "--fix", "A", "--spots", str(tmp_path / "none.csv")]) == 2
 
 
-def test_plan_command_with_rejected_spots_is_exit_1(write_sheet, capsys):
+def test_plan_command_with_rejected_spots_is_exit_1(write_sheet, tmp_path, capsys):
     sheet = str(write_sheet("fix,lat,lon,bearing,sd\nA,47,15,45,3\nA,47,15.02,315,3\n"))
     spots = str(write_sheet("spot,lat,lon\ngood,47.03,15.05\nbad,47.0,999\n", name="spots.csv"))
     assert main(["plan", sheet, "--fix", "A", "--spots", spots]) == 1
     out = capsys.readouterr()
     assert "spots.csv: line 3, lon: 999 is outside -180..180" in out.err
-    assert "good" in out.out
+    assert "good" in out.out and "1 of 2 spots ranked (point), 1 spot row rejected" in out.err
+    csv_out, gj_out = tmp_path / "p.csv", tmp_path / "p.geojson"
+    assert main(["plan", sheet, "--fix", "A", "--spots", spots, "-o", str(csv_out), "-o", str(gj_out)]) == 1
+    t = pd.read_csv(csv_out)
+    assert t["spot"].tolist() == ["good", "bad"] and pd.isna(t["rank"].iloc[1])
+    assert t["note"].iloc[1] == "rejected: line 3, lon: 999 is outside -180..180"
+    bad = [f for f in json.loads(gj_out.read_text())["features"] if f["properties"].get("spot") == "bad"]
+    assert len(bad) == 1 and bad[0]["geometry"] is None
 
 
 def test_plan_command_calibration_option(write_sheet, tmp_path, capsys):
@@ -608,11 +618,12 @@ def _open_map(path: pathlib.Path):
         page.wait_for_selector("path.leaflet-interactive", state="attached", timeout=15000)
         n_paths = page.locator("path.leaflet-interactive").count()
         rows = page.locator("#ranks tr").count() - 1
+        unranked = page.locator("#unranked li").count()
         page.locator("#ranks tr").nth(1).dispatch_event("click")
         popup = page.locator(".leaflet-popup-content").count()
         injected = page.locator("img[src='x'], #panel b, .leaflet-popup-content script").count()
         browser.close()
-    return outside, errors, n_paths, rows, popup, injected
+    return outside, errors, n_paths, rows, unranked, popup, injected
 
 
 @pytest.mark.skipif(CHROMIUM is None, reason="Debian's chromium is not installed (apt-get install chromium)")
@@ -623,7 +634,7 @@ def test_plan_map_works_offline_and_escapes_user_text(tmp_path, write_sheet, gri
     sheet = write_sheet('fix,lat,lon,bearing,sd,note\n"</script><b>f</b>",47,15,45,3,"<img src=x onerror=alert(1)>"\n'
                         '"</script><b>f</b>",47,15.02,315,3,\n')
     spots = write_sheet('spot,lat,lon,note\n"<img src=x onerror=alert(1)>",47.01,15.03,"</script><b>x</b>"\n'
-                        'plain,47.02,14.99,\nthird,46.99,15.01,\n', name="spots.csv")
+                        'plain,47.02,14.99,\nthird,46.99,15.01,\n"<b>off</b>",95,15,\n', name="spots.csv")
     b = read_bearings(sheet)
     label = b.labels[0]
     plan = (plan_next_bearing(b, label, around_m=1500.0, step_m=300.0) if grid
@@ -632,8 +643,8 @@ def test_plan_map_works_offline_and_escapes_user_text(tmp_path, write_sheet, gri
     assert "</script><b>" not in m.html()
     out = tmp_path / "plan.html"
     m.save(out)
-    outside, errors, n_paths, rows, popup, injected = _open_map(out)
+    outside, errors, n_paths, rows, unranked, popup, injected = _open_map(out)
     assert outside == [] and errors == []
     assert n_paths == m.n_vectors          # every cell, region, bearing, station and spot drawn is there
     assert rows == m.n_listed == min(10, int(plan.table["rank"].notna().sum()))
-    assert popup == 1 and injected == 0
+    assert unranked == int(plan.table["rank"].isna().sum()) >= 1    # the rejected spot, or the grid's centre    assert popup == 1 and injected == 0

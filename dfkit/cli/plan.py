@@ -134,7 +134,7 @@ def _print_summary(plan, top):
     print(f"{who}: {r['status']}" + (f" ({r['reason']})" if r["reason"] else ""), file=sys.stderr)
     for note in plan.notes:
         print(f"note            {note}", file=sys.stderr)
-    unranked = plan.table[plan.table["rank"].isna()]
+    unranked = plan.table[plan.table["rank"].isna() & ~plan.table["note"].astype(str).str.startswith("rejected:")]
     for _, s in unranked.head(20).iterrows():
         print(f"not ranked      spot {s['spot']}: {s['note']}", file=sys.stderr)
     best = plan.best
@@ -147,7 +147,9 @@ def _print_summary(plan, top):
               f"{best['from_last_m']:.0f} m at {best['from_last_deg']:.0f}° from the last station in a straight line",
               file=sys.stderr)
     n_rank = int(plan.table["rank"].notna().sum())
-    print(f"{plan.fixes.source}: {n_rank} of {len(plan.table)} spots ranked ({plan.basis})", file=sys.stderr)
+    n_rej = len({p.line for p in plan.problems if p.severity == "error" and p.source != plan.fixes.source})
+    rej = f", {n_rej} spot row{'s' if n_rej != 1 else ''} rejected" if n_rej else ""
+    print(f"{plan.fixes.source}: {n_rank} of {len(plan.table)} spots ranked ({plan.basis}){rej}", file=sys.stderr)
     print(f"caution: {PLAN_CAUTION}", file=sys.stderr)
     print(CAUTION_LINE, file=sys.stderr)
 

@@ -5,7 +5,8 @@ The GeoJSON holds the fix as ``dfkit fix`` writes it (``fix``, ``ellipse``,
 with its rank and expected area, a ``cell`` Polygon per grid spot (for shading
 a surface of expected area) and, when there is no estimate yet, a
 ``range_band`` LineString along each bearing over the ranges that were
-considered. The collection's ``dfkit`` member carries the plan's basis, notes
+considered. A spot the spots file gave but that was rejected keeps its
+feature, with a null geometry and the reason in ``note`` (RFC 7946 section 3.2). The collection's ``dfkit`` member carries the plan's basis, notes
 and cautions.
 """
 
@@ -90,8 +91,10 @@ def plan_geojson(plan: Plan) -> dict:
                                                         "tag": plan.fix_row["tag"], "from_m": r0, "to_m": r1},
                       "geometry": geom})
     for _, row in t.iterrows():
-        feats.append({"type": "Feature", "properties": _props(row, "spot"),
-                      "geometry": {"type": "Point", "coordinates": [float(row["lon"]), float(row["lat"])]}})
+        placed = np.isfinite(float(row["lat"])) and np.isfinite(float(row["lon"]))
+        feats.append({"type": "Feature", "properties": _props(row, "spot"),   # a rejected spot: null geometry
+                      "geometry": {"type": "Point", "coordinates": [float(row["lon"]), float(row["lat"])]}
+                      if placed else None})
     gj["dfkit"] = {"caution": CAUTION, "plan_caution": PLAN_CAUTION, "source": plan.fixes.source,
                    "plan": plan_meta(plan)}
     return gj
