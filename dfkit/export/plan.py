@@ -21,7 +21,7 @@ from dfkit import geodesy
 from dfkit.cautions import CAUTION, PLAN_CAUTION
 from dfkit.export.atomic import atomic_write
 from dfkit.export.csv import write_table
-from dfkit.export.geojson import _clean, to_geojson
+from dfkit.export.geojson import to_geojson
 from dfkit.geometry import split_line, split_ring
 from dfkit.planning import Plan
 
@@ -33,10 +33,18 @@ _ROUNDING = {"expected_area_m2": 0, "point_area_m2": 0, "area_ratio": 4, "distan
 
 
 def _value(v):
-    if v is None or v is pd.NA:
+    """A table cell as a JSON value: NaN, NA and NaT as null, numpy scalars as Python ones, times as ISO text."""
+    if v is None or v is pd.NA or v is pd.NaT:
         return None
-    v = _clean(v)
-    return v if v is None or isinstance(v, (str, int, float, bool)) else str(v)
+    if isinstance(v, (bool, np.bool_)):
+        return bool(v)
+    if isinstance(v, (int, np.integer)):
+        return int(v)
+    if isinstance(v, (float, np.floating)):
+        return float(v) if np.isfinite(v) else None
+    if isinstance(v, pd.Timestamp):
+        return v.strftime("%Y-%m-%dT%H:%M:%SZ")
+    return v if isinstance(v, str) else str(v)
 
 
 def _props(row, kind):
