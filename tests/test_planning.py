@@ -603,7 +603,7 @@ def _open_map(path: pathlib.Path):
     outside, errors = [], []
     with sync_playwright() as pw:
         browser = pw.chromium.launch(executable_path=CHROMIUM, args=ARGS)
-        page = browser.new_page()
+        page = browser.new_page(viewport={"width": 1300, "height": 850})
 
         def route(r):
             if r.request.url.startswith(("file:", "data:", "about:")):
@@ -615,15 +615,16 @@ def _open_map(path: pathlib.Path):
         page.on("console", lambda m: errors.append(m.text) if m.type == "error" else None)
         page.on("pageerror", lambda e: errors.append(str(e)))
         page.goto(path.as_uri())
-        page.wait_for_selector("path.leaflet-interactive", state="attached", timeout=15000)
+        page.wait_for_function("window.dfkit && window.dfkit.plan", timeout=20000)
         n_paths = page.locator("path.leaflet-interactive").count()
-        rows = page.locator("#ranks tr").count() - 1
-        unranked = page.locator("#unranked li").count()
-        page.locator("#ranks tr").nth(1).dispatch_event("click")
+        rows = page.locator("#dfk-ranks tr").count() - 1
+        unranked = page.locator("#dfk-unranked li").count()
+        page.locator("#dfk-ranks tr").nth(1).dispatch_event("click")
         popup = page.locator(".leaflet-popup-content").count()
-        injected = page.locator("img[src='x'], #panel b, .leaflet-popup-content script").count()
+        injected = page.locator("img[src='x'], #dfk-panel b, .leaflet-popup-content script").count()
+        first_in_panel = page.evaluate("document.getElementById('dfk-panel').children[1].id")
         browser.close()
-    return outside, errors, n_paths, rows, unranked, popup, injected
+    return outside, errors, n_paths, rows, unranked, popup, injected, first_in_panel
 
 
 @pytest.mark.skipif(CHROMIUM is None, reason="Debian's chromium is not installed (apt-get install chromium)")
@@ -640,11 +641,13 @@ def test_plan_map_works_offline_and_escapes_user_text(tmp_path, write_sheet, gri
     plan = (plan_next_bearing(b, label, around_m=1500.0, step_m=300.0) if grid
             else plan_next_bearing(b, label, spots=str(spots)))
     m = plan_map(plan)
-    assert "</script><b>" not in m.html()
+    page = m.html()
+    assert "</script><b>" not in page and "<img src=x" not in page
     out = tmp_path / "plan.html"
     m.save(out)
-    outside, errors, n_paths, rows, unranked, popup, injected = _open_map(out)
+    outside, errors, n_paths, rows, unranked, popup, injected, first_in_panel = _open_map(out)
     assert outside == [] and errors == []
     assert n_paths == m.n_vectors          # every cell, region, bearing, station and spot drawn is there
     assert rows == m.n_listed == min(10, int(plan.table["rank"].notna().sum()))
     assert unranked == int(plan.table["rank"].isna().sum()) >= 1    # the rejected spot, or the grid's centre    assert popup == 1 and injected == 0
+    assert first_in_panel == "dfk-plan"     # the plan comes first in the panel, above the fix list
