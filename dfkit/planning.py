@@ -454,7 +454,7 @@ def plan_next_bearing(bearings: Bearings, fix: str, *, tag: str | None = None, s
     if not len(fb):
         plan = _empty_plan(fixes, spot_table, around_m, level, problems,
                            f"fix {fix!r} has no usable bearing (status {row['status']}): nothing to plan from")
-        plan.table = _with_rejected(plan.table, candidates.rejected)
+        plan.table = _with_rejected(plan.table, candidates.rejected, row, "none", level)
         return plan
 
     sds = _plan_sds(fb, row, next_sd_deg)
@@ -469,7 +469,7 @@ def plan_next_bearing(bearings: Bearings, fix: str, *, tag: str | None = None, s
 
     expected, current = _expected_areas(where, spot_table, sds, level)
     table = _with_rejected(_ranked_table(where, spot_table, expected, current, sds, row, level, min_distance_m),
-                           candidates.rejected)
+                           candidates.rejected, row, where.basis, level)
     if len(spot_table) and table["rank"].isna().all():
         notes.append("no spot could be ranked (see the note column)")
     return Plan(table=table, fixes=fixes, basis=where.basis, level=level,
@@ -813,15 +813,17 @@ def _last_bearing(fb: pd.DataFrame) -> int:
     return int(np.argmax(fb["line"].to_numpy()))
 
 
-def _with_rejected(table: pd.DataFrame, rejected: pd.DataFrame) -> pd.DataFrame:
+def _with_rejected(table: pd.DataFrame, rejected: pd.DataFrame, row: pd.Series, basis: str,
+                   level: float) -> pd.DataFrame:
     """The plan's table with the rejected spots of the spots file listed last (no position, no rank)."""
     if not len(rejected):
         return table
     extra = pd.DataFrame({"spot": rejected["spot"].to_numpy(dtype=object), "line": rejected["line"].to_numpy(),
                           "note": ["rejected: " + r for r in rejected["reason"]]})
-    for c in ("fix", "tag", "fix_status", "basis", "level"):
-        extra[c] = table[c].iloc[0] if len(table) else np.nan
-    out = pd.concat([table, extra], ignore_index=True)
+    extra["fix"], extra["tag"], extra["fix_status"] = row["fix"], row["tag"], row["status"]
+    extra["basis"], extra["level"] = basis, level
+    out = pd.concat([table, extra], ignore_index=True) if len(table) else extra.reindex(
+        columns=list(dict.fromkeys(list(table.columns) + list(extra.columns))))
     out["rank"] = out["rank"].astype("Int64")
     return out
 

@@ -326,6 +326,15 @@ def test_sample_hunt_spots_are_made_by_their_script(tmp_path):
     assert (tmp_path / "hunt_spots.csv").read_text() == (SAMPLES / "hunt_spots.csv").read_text()
 
 
+def test_plan_sheet_reads_and_plans_in_one_call():
+    from dfkit.planning import plan_sheet
+
+    direct_plan = plan_next_bearing(read_bearings(SAMPLES / "hunt.csv", window_min=90), "fox-2",
+                                    spots=SAMPLES / "hunt_spots.csv")
+    one_call = plan_sheet(SAMPLES / "hunt.csv", "fox-2", read={"window_min": 90}, spots=SAMPLES / "hunt_spots.csv")
+    assert one_call.table["spot"].tolist() == direct_plan.table["spot"].tolist()
+
+
 def test_sample_hunt_plan_picks_the_independent_best_spot():
     b = read_bearings(SAMPLES / "hunt.csv", window_min=90)
     spots = read_spots(SAMPLES / "hunt_spots.csv")
@@ -593,28 +602,17 @@ def test_plan_command_calibration_option(write_sheet, tmp_path, capsys):
 # --------------------------------------------------------------------------- the map
 
 CHROMIUM = shutil.which("chromium") or shutil.which("chromium-browser")
-ARGS = ["--headless", "--no-sandbox", "--disable-gpu", "--disable-background-networking",
-        "--disable-component-update", "--disable-sync", "--no-first-run", "--disable-quic"]
 
 
 def _open_map(path: pathlib.Path):
+    """Open the saved map offline with the fix map's browser helper, then read the plan's part of it."""
     from playwright.sync_api import sync_playwright
 
-    outside, errors = [], []
+    from .test_map_browser import Page
+
     with sync_playwright() as pw:
-        browser = pw.chromium.launch(executable_path=CHROMIUM, args=ARGS)
-        page = browser.new_page(viewport={"width": 1300, "height": 850})
-
-        def route(r):
-            if r.request.url.startswith(("file:", "data:", "about:")):
-                return r.continue_()
-            outside.append(r.request.url)
-            return r.abort()
-
-        page.route("**/*", route)
-        page.on("console", lambda m: errors.append(m.text) if m.type == "error" else None)
-        page.on("pageerror", lambda e: errors.append(str(e)))
-        page.goto(path.as_uri())
+        p = Page(pw, path, viewport=(1300, 850))
+        page = p.page
         page.wait_for_function("window.dfkit && window.dfkit.plan", timeout=20000)
         n_paths = page.locator("path.leaflet-interactive").count()
         rows = page.locator("#dfk-ranks tr").count() - 1
@@ -623,8 +621,8 @@ def _open_map(path: pathlib.Path):
         popup = page.locator(".leaflet-popup-content").count()
         injected = page.locator("img[src='x'], #dfk-panel b, .leaflet-popup-content script").count()
         first_in_panel = page.evaluate("document.getElementById('dfk-panel').children[1].id")
-        browser.close()
-    return outside, errors, n_paths, rows, unranked, popup, injected, first_in_panel
+        p.browser.close()
+    return p.outside, p.errors, n_paths, rows, unranked, popup, injected, first_in_panel
 
 
 @pytest.mark.skipif(CHROMIUM is None, reason="Debian's chromium is not installed (apt-get install chromium)")
