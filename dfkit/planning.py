@@ -513,6 +513,11 @@ def _plan_sds(fb: pd.DataFrame, row: pd.Series, next_sd_deg) -> _SDs:
     if row["sd_source"] == "estimated":
         notes.append(f"the SD is estimated from this fix's own {int(row['n_used'])} bearings "
                      f"({int(row['n_used']) - 2} degrees of freedom): a weak estimate; calibrate or give --sd")
+    dof = fb["sd_dof"].to_numpy(float) if "sd_dof" in fb.columns else np.zeros(0)
+    if row["sd_source"] == "estimated" or np.isfinite(dof).any():
+        notes.append("areas here take the SD as known (chi-square scale); dfkit fix widens its region by an F "
+                     "scale for an SD estimated from the fix or measured on few trials, so its areas are larger "
+                     "(the ranking is the same)")
     return _SDs(sd_i, nsd, known, source, notes)
 
 
@@ -751,9 +756,9 @@ def _bearing_sds(fb: pd.DataFrame, row: pd.Series):
     """Each bearing's SD for the plan, where it came from, and whether any SD is known."""
     sd = fb["sd"].to_numpy(float)
     given = len(sd) and np.isfinite(sd).all()
-    if given and row["sd_source"] in ("given", ""):
+    if given and row["sd_source"] != "estimated":
         kinds = sorted({str(s) for s in fb["sd_source"] if str(s)})
-        words = {"sheet": "the sheet's sd column", "option": "--sd"}
+        words = {"sheet": "the sheet's sd column", "option": "--sd", "calibration": "a beacon calibration"}
         source = ("given: " + ", ".join(words.get(k, k) for k in kinds)) if kinds else "given"
         return sd, source, True
     if row["sd_source"] == "estimated" and np.isfinite(row["sd_deg"]):

@@ -587,16 +587,16 @@ def test_plan_command_with_rejected_spots_is_exit_1(write_sheet, tmp_path, capsy
     assert len(bad) == 1 and bad[0]["geometry"] is None
 
 
-def test_plan_command_calibration_option(write_sheet, tmp_path, capsys):
-    sheet = str(write_sheet("fix,lat,lon,bearing,sd\nA,47,15,45,3\nA,47,15.02,315,3\n"))
-    cal = write_sheet("antenna,bias_deg,sd_deg\nyagi,1.0,4.0\n", name="cal.csv")
-    code = main(["plan", sheet, "--fix", "A", "--around", "500", "--calibration", str(cal)])
-    spec = importlib.util.find_spec("dfkit.calibration")
-    if spec is None:
-        assert code == 2
-        assert "--calibration: this dfkit cannot apply a calibration yet" in capsys.readouterr().err
-    else:   # once calibration exists the option must work like it does for fix and map
-        assert code in (0, 1)
+def test_plan_command_takes_a_calibration_like_fix(tmp_path, capsys):
+    cal = tmp_path / "cal.csv"
+    assert main(["calibrate", str(SAMPLES / "beacon_trials.csv"), "-o", str(cal)]) in (0, 1)
+    out = tmp_path / "p.csv"
+    code = main(["plan", str(SAMPLES / "tracking_after_trials.csv"), "--fix", "A01", "--around", "1000",
+                 "--calibration", str(cal), "-o", str(out)])
+    err = capsys.readouterr().err
+    assert code in (0, 1)
+    assert "a beacon calibration" in err and "F scale" in err
+    assert pd.read_csv(out)["rank"].notna().any()
 
 
 # --------------------------------------------------------------------------- the map

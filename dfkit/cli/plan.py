@@ -7,16 +7,13 @@ import sys
 
 from dfkit.cli.common import add_fix_options, add_read_options, ensure_dir, read_kwargs, report_problems
 from dfkit.policy import DEFAULT_MAX_RANGE_M
-from dfkit.problems import SheetError
 
 #: Output kinds of a plan, by extension.
 OUTPUTS = (".csv", ".geojson", ".json", ".html")
 
 
 def add_parser(sub):
-    # 'resolve': a shared --calibration option defined later in add_read_options takes over this one.
-    p = sub.add_parser("plan", conflict_handler="resolve",
-                       help="rank spots for the next bearing on a fix by the region it is expected to leave")
+    p = sub.add_parser("plan", help="rank spots for the next bearing on a fix by the region it is expected to leave")
     p.add_argument("sheet")
     p.add_argument("--fix", required=True, metavar="LABEL", help="the fix to plan for")
     p.add_argument("--tag", default=None, help="the fix's tag, when several tags use the label")
@@ -28,8 +25,6 @@ def add_parser(sub):
     p.add_argument("--step", type=float, default=None, metavar="METRES", help="grid spacing (default around/10)")
     p.add_argument("--next-sd", type=float, default=None, metavar="DEG",
                    help="SD of the next bearing (default: the fix's SD, given or estimated)")
-    p.add_argument("--calibration", default=None, metavar="CAL.csv",
-                   help="bearing calibration from beacon trials (bias removed, SD used as known)")
     p.add_argument("--basis", choices=["point", "region"], default="point",
                    help="expected area at the estimate (default) or its geometric mean over the current region")
     p.add_argument("--max-range", type=float, default=DEFAULT_MAX_RANGE_M, metavar="METRES",
@@ -45,22 +40,6 @@ def add_parser(sub):
     return p
 
 
-def _apply_calibration(b, a):
-    """Apply ``--calibration`` unless the reading options already did."""
-    path = getattr(a, "calibration", None)
-    if not path or "calibration" in read_kwargs(a):
-        return b
-    try:
-        from dfkit import calibration
-    except ImportError:
-        calibration = None
-    apply = getattr(calibration, "apply_calibration", None)
-    if apply is None:
-        raise SheetError("--calibration: this dfkit cannot apply a calibration yet; give the bearing SD "
-                         "with --sd (from your beacon trials) instead")
-    return apply(b, path)
-
-
 def run(a) -> int:
     from dfkit.observations import read_bearings
     from dfkit.planning import plan_next_bearing
@@ -73,7 +52,10 @@ def run(a) -> int:
         print("dfkit: --step is the spacing of a grid: give --around with it", file=sys.stderr)
         return 2
     b = read_bearings(a.sheet, **read_kwargs(a))
-    b = _apply_calibration(b, a)
+    if a.calibration:          # the same path as fix and map (cli.common.solve)
+        from dfkit.calibration import apply, read_calibration
+
+        b = apply(b, read_calibration(a.calibration))
     try:
         plan = plan_next_bearing(b, a.fix, tag=a.tag, spots=a.spots, around_m=a.around, step_m=a.step,
                                  next_sd_deg=a.next_sd, method=a.method, level=a.level, basis=a.basis,
@@ -132,7 +114,7 @@ def _print_summary(plan, top):
     r = plan.fix_row
     who = f"tag {r['tag']}, fix {r['fix']}" if r["tag"] else f"fix {r['fix']}"
     print(f"{who}: {r['status']}" + (f" ({r['reason']})" if r["reason"] else ""), file=sys.stderr)
-    for note in plan.notes:
+    for note in list(plan.fixes.notes) + list(plan.notes):
         print(f"note            {note}", file=sys.stderr)
     unranked = plan.table[plan.table["rank"].isna() & ~plan.table["note"].astype(str).str.startswith("rejected:")]
     for _, s in unranked.head(20).iterrows():
