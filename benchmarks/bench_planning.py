@@ -1,14 +1,17 @@
 """Planning the next bearing: speed, and whether averaging over the region picks better spots.
 
-    .venv/bin/python benchmarks/bench_planning.py [--hunts 300] [--seed 7] [--skip-study] [--skip-speed]
+    .venv/bin/python benchmarks/bench_planning.py [--hunts 300] [--seed 7] [--skip-study]
+                                                  [--skip-speed]
 
-1. Speed: `plan_next_bearing` on the sample hunt with its 12 spots, and on grids of about 300, 2,800 and 14,000
-   spots, for basis 'point' and 'region' (600 positions); wall time and peak memory (ru_maxrss) of this process.
-2. Study: invented hunts (a transmitter, 2-3 or 3-5 stations at 0.5-4 km, bearings with SD 3, 5 or 8 deg, 10
-   candidate spots at 0.3-6 km). Each basis picks its best spot; each pick is judged by the 95 % area its bearing
-   would give at the *true* position (Fisher information with pyproj geodesics, independent of dfkit's code),
-   as a ratio to the best spot an oracle that knows the truth would pick. Printed: the geometric and arithmetic
-   mean of that ratio, how often the oracle's spot was picked, the 90th percentile, and how often the bases agree.
+1. Speed: `plan_next_bearing` on the sample hunt with its 12 spots, and on grids of about 300, 2,800 and
+   14,000 spots, for basis 'point' and 'region' (600 positions); wall time and peak memory (ru_maxrss) of
+   this process.
+2. Study: invented hunts (a transmitter, 2-3 or 3-5 stations at 0.5-4 km, bearings with SD 3, 5 or 8 deg,
+   10 candidate spots at 0.3-6 km). Each basis picks its best spot; each pick is judged by the 95 % area its
+   bearing would give at the *true* position (Fisher information with pyproj geodesics, independent of
+   dfkit's code), as a ratio to the best spot an oracle that knows the truth would pick. Printed: the
+   geometric and arithmetic mean of that ratio, how often the oracle's spot was picked, the 90th percentile,
+   and how often the bases agree.
 Nothing is asserted: numbers go into DEVELOPERS.md, not into tests.
 """
 
@@ -42,10 +45,12 @@ def peak_mb():
 def speed():
     b = read_bearings(os.path.join(SAMPLES, "hunt.csv"), window_min=90)
     spots = read_spots(os.path.join(SAMPLES, "hunt_spots.csv"))
-    cases = [("12 spots (sample hunt)", dict(spots=spots)),
-             ("grid 3000 m / 300 m", dict(around_m=3000.0, step_m=300.0)),
-             ("grid 3000 m / 100 m", dict(around_m=3000.0, step_m=100.0)),
-             ("grid 4000 m / 60 m", dict(around_m=4000.0, step_m=60.0))]
+    cases = [
+        ("12 spots (sample hunt)", dict(spots=spots)),
+        ("grid 3000 m / 300 m", dict(around_m=3000.0, step_m=300.0)),
+        ("grid 3000 m / 100 m", dict(around_m=3000.0, step_m=100.0)),
+        ("grid 4000 m / 60 m", dict(around_m=4000.0, step_m=60.0)),
+    ]
     print("speed (fox-2 of the sample hunt, 8 bearings)")
     for name, kw in cases:
         for basis in ("point", "region"):
@@ -75,16 +80,20 @@ def study(n_hunts, seed, n_range, spot_range, label):
             tlat, tlon = 47 + rng.uniform(-1, 1), 15 + rng.uniform(-1, 1)
             nb = int(rng.integers(*n_range))
             sd = float(rng.choice([3.0, 5.0, 8.0]))
-            lon_s, lat_s, back = GEOD.fwd(np.full(nb, tlon), np.full(nb, tlat), rng.uniform(0, 360, nb),
-                                          rng.uniform(500, 4000, nb))
-            brg = (np.asarray(back) + rng.normal(0, sd, nb)) % 360.0   # back azimuth: at the station, towards the truth
+            lon_s, lat_s, back = GEOD.fwd(
+                np.full(nb, tlon), np.full(nb, tlat), rng.uniform(0, 360, nb), rng.uniform(500, 4000, nb)
+            )
+            brg = (
+                np.asarray(back) + rng.normal(0, sd, nb)
+            ) % 360.0  # back azimuth: at the station, towards the truth
             with open(path, "w") as fh:
                 fh.write("fix,lat,lon,bearing,sd\n")
                 for la, lo, bb in zip(lat_s, lon_s, brg):
                     fh.write(f"H,{float(la)!r},{float(lo)!r},{float(bb)!r},{sd}\n")
             b = read_bearings(path)
-            slon, slat, _ = GEOD.fwd(np.full(10, tlon), np.full(10, tlat), rng.uniform(0, 360, 10),
-                                     rng.uniform(*spot_range, 10))
+            slon, slat, _ = GEOD.fwd(
+                np.full(10, tlon), np.full(10, tlat), rng.uniform(0, 360, 10), rng.uniform(*spot_range, 10)
+            )
             spots = pd.DataFrame({"spot": [f"s{k}" for k in range(10)], "lat": slat, "lon": slon})
             pp = plan_next_bearing(b, "H", spots=spots, basis="point")
             if pp.fix_row["status"] not in ("ok", "shallow", "long_span"):
@@ -92,7 +101,10 @@ def study(n_hunts, seed, n_range, spot_range, label):
                 continue
             pr = plan_next_bearing(b, "H", spots=spots, basis="region")
             stations = list(zip(lat_s, lon_s))
-            truth = {s: area_at(tlat, tlon, stations + [(la, lo)], sd) for s, la, lo in zip(spots["spot"], slat, slon)}
+            truth = {
+                s: area_at(tlat, tlon, stations + [(la, lo)], sd)
+                for s, la, lo in zip(spots["spot"], slat, slon)
+            }
             res["point"].append(truth[pp.best["spot"]])
             res["region"].append(truth[pr.best["spot"]])
             res["oracle"].append(min(truth.values()))
@@ -100,9 +112,13 @@ def study(n_hunts, seed, n_range, spot_range, label):
     print(f"study: {label}: {len(o)} hunts ({skipped} without a position skipped), seed {seed}")
     for k in ("point", "region"):
         r = np.array(res[k]) / o
-        print(f"  {k:<7} area at the truth / oracle's: geometric mean {np.exp(np.mean(np.log(r))):.3f}, "
-              f"mean {r.mean():.3f}, 90th pct {np.quantile(r, 0.9):.3f}; oracle's spot picked {np.mean(r < 1 + 1e-9):.1%}")
-    print(f"  the two bases pick the same spot in {np.mean(np.array(res['point']) == np.array(res['region'])):.1%}")
+        picked = np.mean(r < 1 + 1e-9)
+        print(
+            f"  {k:<7} area at the truth / oracle's: geometric mean {np.exp(np.mean(np.log(r))):.3f}, "
+            f"mean {r.mean():.3f}, 90th pct {np.quantile(r, 0.9):.3f}; oracle's spot picked {picked:.1%}"
+        )
+    same = np.mean(np.array(res["point"]) == np.array(res["region"]))
+    print(f"  the two bases pick the same spot in {same:.1%}")
 
 
 def main():

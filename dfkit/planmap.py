@@ -35,7 +35,7 @@ def _shade(values):
         return np.full(len(v), -1), []
     edges = np.unique(np.quantile(v[ok], np.linspace(0, 1, len(RAMP) + 1)))
     cls = np.clip(np.searchsorted(edges, v, side="right") - 1, 0, max(len(edges) - 2, 0))
-    cls = np.where(ok, cls, -1)          # no value: the cell is left unshaded
+    cls = np.where(ok, cls, -1)  # no value: the cell is left unshaded
     return cls.astype(int), [(float(edges[i]), float(edges[i + 1])) for i in range(len(edges) - 1)]
 
 
@@ -46,8 +46,9 @@ def _plan_layer_class():
     class PlanLayer(MacroElement):
         """Spots, surface, bands and the panel section of a plan, drawn after dfkit's fix layer."""
 
-        _template = Template(resources.files("dfkit._templates").joinpath("plan_layer.html")
-                             .read_text(encoding="utf-8"))
+        _template = Template(
+            resources.files("dfkit._templates").joinpath("plan_layer.html").read_text(encoding="utf-8")
+        )
 
         def __init__(self, data: dict):
             super().__init__()
@@ -103,11 +104,19 @@ def plan_map(plan: Plan, *, title: str | None = None, top: int = TOP, **map_opti
     t = plan.table
     has_ratio = bool(t["area_ratio"].notna().any())
     if has_ratio:
-        value, what, digits = t["area_ratio"].to_numpy(float), "expected area after the bearing, share of now", 2
+        value, what, digits = (
+            t["area_ratio"].to_numpy(float),
+            "expected area after the bearing, share of now",
+            2,
+        )
     elif t["expected_area_m2"].notna().any():
         value, what, digits = t["expected_area_m2"].to_numpy(float), "expected area after the bearing [m²]", 0
     else:
-        value, what, digits = t["rank"].to_numpy(dtype=float, na_value=np.nan), "rank (no SD known: no areas)", 0
+        value, what, digits = (
+            t["rank"].to_numpy(dtype=float, na_value=np.nan),
+            "rank (no SD known: no areas)",
+            0,
+        )
     cls, edges = _shade(value)
     plan_kinds = ("cell", "spot", "range_band")
     feats = [f for f in gj["features"] if f["properties"]["kind"] in plan_kinds]
@@ -119,19 +128,42 @@ def plan_map(plan: Plan, *, title: str | None = None, top: int = TOP, **map_opti
     meta = plan_meta(plan)
     grid = plan.grid_step_m is not None
     data = {
-        "data": {"type": "FeatureCollection", "features": feats}, "heading": "Where to take the next bearing",
-        "fix": str(row["fix"]), "tag": str(row["tag"]), "status": str(row["status"]), "reason": str(row["reason"]),
-        "notes": meta["notes"], "current_area_m2": meta["current_area_m2"], "level": plan.level,
-        "rows": _rows(t, top), "top": int(top), "grid": grid, "band": bool(plan.bands), "has_ratio": has_ratio,
-        "unranked": [{"spot": str(r["spot"]), "note": str(r["note"])} for _, r in t[t["rank"].isna()].head(50).iterrows()],
-        "ramp": {"colours": RAMP, "title": f"Shading: {what} (best first)",
-                 "labels": [f"{lo:.{digits}f} to {hi:.{digits}f}" for lo, hi in edges] if grid else []},
+        "data": {"type": "FeatureCollection", "features": feats},
+        "heading": "Where to take the next bearing",
+        "fix": str(row["fix"]),
+        "tag": str(row["tag"]),
+        "status": str(row["status"]),
+        "reason": str(row["reason"]),
+        "notes": meta["notes"],
+        "current_area_m2": meta["current_area_m2"],
+        "level": plan.level,
+        "rows": _rows(t, top),
+        "top": int(top),
+        "grid": grid,
+        "band": bool(plan.bands),
+        "has_ratio": has_ratio,
+        "unranked": [
+            {"spot": str(r["spot"]), "note": str(r["note"])}
+            for _, r in t[t["rank"].isna()].head(50).iterrows()
+        ],
+        "ramp": {
+            "colours": RAMP,
+            "title": f"Shading: {what} (best first)",
+            "labels": [f"{lo:.{digits}f} to {hi:.{digits}f}" for lo, hi in edges] if grid else [],
+        },
         "caution": PLAN_CAUTION,
     }
     _plan_layer_class()(data).add_to(m)
-    drawn = [f for f in feats if f["geometry"] is not None and
-             (f["properties"]["kind"] != "spot" or not grid or
-              (f["properties"].get("rank") is not None and f["properties"]["rank"] <= top))]
+    drawn = [
+        f
+        for f in feats
+        if f["geometry"] is not None
+        and (
+            f["properties"]["kind"] != "spot"
+            or not grid
+            or (f["properties"].get("rank") is not None and f["properties"]["rank"] <= top)
+        )
+    ]
     m.plan_data = data
     m.n_vectors += len(drawn)
     m.n_listed = len(data["rows"])

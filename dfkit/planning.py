@@ -101,9 +101,29 @@ MAX_SPOTS = 20_000
 
 #: Columns of :attr:`Plan.table`, in order (the spots file's own extra columns follow).
 PLAN_COLUMNS = [
-    "rank", "spot", "lat", "lon", "expected_area_m2", "area_ratio", "distance_m", "azimuth_deg",
-    "expected_bearing_deg", "crossing_deg", "point_area_m2", "from_last_m", "from_last_deg", "east_m", "north_m",
-    "line", "note", "fix", "tag", "fix_status", "basis", "level", "next_sd_deg",
+    "rank",
+    "spot",
+    "lat",
+    "lon",
+    "expected_area_m2",
+    "area_ratio",
+    "distance_m",
+    "azimuth_deg",
+    "expected_bearing_deg",
+    "crossing_deg",
+    "point_area_m2",
+    "from_last_m",
+    "from_last_deg",
+    "east_m",
+    "north_m",
+    "line",
+    "note",
+    "fix",
+    "tag",
+    "fix_status",
+    "basis",
+    "level",
+    "next_sd_deg",
 ]
 #: Column names a spots file cannot carry under their own name (they become ``spot_<name>``).
 RESERVED_COLUMNS = set(PLAN_COLUMNS) | {"kind", "caution", "score"}
@@ -177,7 +197,9 @@ class Spots:
     table: pd.DataFrame
     problems: list[Problem] = field(default_factory=list)
     source: str = ""
-    rejected: pd.DataFrame = field(default_factory=lambda: pd.DataFrame({"spot": [], "line": [], "reason": []}))
+    rejected: pd.DataFrame = field(
+        default_factory=lambda: pd.DataFrame({"spot": [], "line": [], "reason": []})
+    )
 
 
 def read_spots(path, *, stations=None) -> Spots:
@@ -203,8 +225,10 @@ def read_spots(path, *, stations=None) -> Spots:
     t = raw.table
     label_col = "spot" if "spot" in t.columns else ("name" if "name" in t.columns else None)
     if label_col is None:
-        raise SheetError(f"{raw.source}: a spots file needs a 'spot' column (a label for each spot) and a "
-                         f"position; found columns {', '.join(raw.columns)}")
+        raise SheetError(
+            f"{raw.source}: a spots file needs a 'spot' column (a label for each spot) and a "
+            f"position; found columns {', '.join(raw.columns)}"
+        )
     st_table, st_problems = (None, [])
     if stations is not None:
         st_table, st_problems = read_stations(stations)
@@ -218,12 +242,25 @@ def read_spots(path, *, stations=None) -> Spots:
     bad = bad | missing
     dup = pd.Series(labels).duplicated(keep="first").to_numpy() & ~missing
     for i in np.flatnonzero(dup & ~bad):
-        extra.append(Problem(int(lines[i]), label_col, f"spot '{labels[i]}' is listed twice; the first is used",
-                             "error", raw.source))
+        extra.append(
+            Problem(
+                int(lines[i]),
+                label_col,
+                f"spot '{labels[i]}' is listed twice; the first is used",
+                "error",
+                raw.source,
+            )
+        )
     bad = bad | dup
     keep = ~bad
-    table = pd.DataFrame({"spot": labels[keep].astype(str), "lat": lat[keep], "lon": lon[keep],
-                          "line": lines[keep].astype(int)})
+    table = pd.DataFrame(
+        {
+            "spot": labels[keep].astype(str),
+            "lat": lat[keep],
+            "lon": lon[keep],
+            "line": lines[keep].astype(int),
+        }
+    )
     position_cols = {"lat", "lon", "utm_zone", "easting", "northing", "mgrs", "station"}
     for c in raw.columns:
         if c in (label_col, "line") or c in position_cols or (c in KNOWN_COLUMNS and c != "note"):
@@ -237,8 +274,13 @@ def read_spots(path, *, stations=None) -> Spots:
         if p.severity == "error" and p.source == raw.source and p.line not in first_error:
             first_error[p.line] = f"line {p.line}" + (f", {p.column}" if p.column else "") + f": {p.message}"
     out = bad & ~missing
-    rejected = pd.DataFrame({"spot": labels[out].astype(str), "line": lines[out].astype(int),
-                             "reason": [first_error.get(int(x), "rejected") for x in lines[out]]})
+    rejected = pd.DataFrame(
+        {
+            "spot": labels[out].astype(str),
+            "line": lines[out].astype(int),
+            "reason": [first_error.get(int(x), "rejected") for x in lines[out]],
+        }
+    )
     return Spots(table=table.reset_index(drop=True), problems=problems, source=raw.source, rejected=rejected)
 
 
@@ -287,12 +329,19 @@ def grid_spots(lat0, lon0, around_m, step_m=None) -> pd.DataFrame:
     if not (np.isfinite(step) and step > 0):
         raise ValueError(f"step_m={step_m!r} must be a positive distance in metres")
     n = int(np.floor(around_m / step + 1e-9))
-    rows = np.arange(-n, n + 1) * step     # columns within the disc, row by row
-    count = int(np.sum(2 * np.floor(np.sqrt(np.maximum(around_m**2 * (1 + 1e-9) ** 2 - rows**2, 0.0)) / step) + 1)) \
-        if n < 10**6 else MAX_SPOTS + 1
+    rows = np.arange(-n, n + 1) * step  # columns within the disc, row by row
+    count = (
+        int(
+            np.sum(2 * np.floor(np.sqrt(np.maximum(around_m**2 * (1 + 1e-9) ** 2 - rows**2, 0.0)) / step) + 1)
+        )
+        if n < 10**6
+        else MAX_SPOTS + 1
+    )
     if count > MAX_SPOTS:
-        raise ValueError(f"step_m={step:g} gives {count} spots within {around_m:g} m (at most {MAX_SPOTS}); "
-                         "use a larger step_m")
+        raise ValueError(
+            f"step_m={step:g} gives {count} spots within {around_m:g} m (at most {MAX_SPOTS}); "
+            "use a larger step_m"
+        )
     k = np.arange(-n, n + 1) * step
     x, y = np.meshgrid(k, k[::-1])
     x, y = x.ravel(), y.ravel()
@@ -374,12 +423,23 @@ class Plan:
         return ranked.iloc[0] if len(ranked) else None
 
 
-def plan_next_bearing(bearings: Bearings, fix: str, *, tag: str | None = None, spots=None,
-                      around_m: float | None = None, step_m: float | None = None,
-                      next_sd_deg: float | None = None, method: str = "mle", level: float = 0.95,
-                      basis: str = "point", n_samples: int = N_SAMPLES,
-                      max_range_m: float = DEFAULT_MAX_RANGE_M, min_distance_m: float = 0.0,
-                      stations=None) -> Plan:
+def plan_next_bearing(
+    bearings: Bearings,
+    fix: str,
+    *,
+    tag: str | None = None,
+    spots=None,
+    around_m: float | None = None,
+    step_m: float | None = None,
+    next_sd_deg: float | None = None,
+    method: str = "mle",
+    level: float = 0.95,
+    basis: str = "point",
+    n_samples: int = N_SAMPLES,
+    max_range_m: float = DEFAULT_MAX_RANGE_M,
+    min_distance_m: float = 0.0,
+    stations=None,
+) -> Plan:
     """Rank candidate spots for the next bearing on one fix, best first.
 
     Parameters
@@ -432,7 +492,9 @@ def plan_next_bearing(bearings: Bearings, fix: str, *, tag: str | None = None, s
     if not 0.0 < level < 1.0:
         raise ValueError(f"level={level!r} must be a probability between 0 and 1 (e.g. 0.95)")
     if (spots is None) == (around_m is None):
-        raise ValueError("give either spots= (a spots file or table) or around_m= (a grid around the estimate)")
+        raise ValueError(
+            "give either spots= (a spots file or table) or around_m= (a grid around the estimate)"
+        )
     if step_m is not None and around_m is None:
         raise ValueError("step_m= is the spacing of a grid: give around_m= with it")
     if next_sd_deg is not None and not (0 < next_sd_deg < 90):
@@ -452,8 +514,14 @@ def plan_next_bearing(bearings: Bearings, fix: str, *, tag: str | None = None, s
     spot_table = candidates.table
     problems = list(bearings.problems) + list(candidates.problems)
     if not len(fb):
-        plan = _empty_plan(fixes, spot_table, around_m, level, problems,
-                           f"fix {fix!r} has no usable bearing (status {row['status']}): nothing to plan from")
+        plan = _empty_plan(
+            fixes,
+            spot_table,
+            around_m,
+            level,
+            problems,
+            f"fix {fix!r} has no usable bearing (status {row['status']}): nothing to plan from",
+        )
         plan.table = _with_rejected(plan.table, candidates.rejected, row, "none", level)
         return plan
 
@@ -468,27 +536,41 @@ def plan_next_bearing(bearings: Bearings, fix: str, *, tag: str | None = None, s
         raise ValueError(f"spots: {len(spot_table)} spots given; at most {MAX_SPOTS} in one plan")
 
     expected, current = _expected_areas(where, spot_table, sds, level)
-    table = _with_rejected(_ranked_table(where, spot_table, expected, current, sds, row, level, min_distance_m),
-                           candidates.rejected, row, where.basis, level)
+    table = _with_rejected(
+        _ranked_table(where, spot_table, expected, current, sds, row, level, min_distance_m),
+        candidates.rejected,
+        row,
+        where.basis,
+        level,
+    )
     if len(spot_table) and table["rank"].isna().all():
         notes.append("no spot could be ranked (see the note column)")
-    return Plan(table=table, fixes=fixes, basis=where.basis, level=level,
-                current_area_m2=current if sds.known else np.nan,
-                sd_deg=float(np.sqrt(np.mean(sds.sd_deg**2))) if sds.known else np.nan,
-                sd_source=sds.source if sds.known else "", next_sd_deg=sds.next_sd_deg if sds.known else np.nan,
-                reference_lat=where.ref_lat, reference_lon=where.ref_lon,
-                samples=pd.DataFrame({"lat": where.lat, "lon": where.lon, "weight": where.weight}),
-                grid_step_m=(around_m / 10.0 if step_m is None else float(step_m)) if around_m is not None else None,
-                bands=where.bands, notes=notes, problems=problems)
+    return Plan(
+        table=table,
+        fixes=fixes,
+        basis=where.basis,
+        level=level,
+        current_area_m2=current if sds.known else np.nan,
+        sd_deg=float(np.sqrt(np.mean(sds.sd_deg**2))) if sds.known else np.nan,
+        sd_source=sds.source if sds.known else "",
+        next_sd_deg=sds.next_sd_deg if sds.known else np.nan,
+        reference_lat=where.ref_lat,
+        reference_lon=where.ref_lon,
+        samples=pd.DataFrame({"lat": where.lat, "lon": where.lon, "weight": where.weight}),
+        grid_step_m=(around_m / 10.0 if step_m is None else float(step_m)) if around_m is not None else None,
+        bands=where.bands,
+        notes=notes,
+        problems=problems,
+    )
 
 
 @dataclass(frozen=True, eq=False)
 class _SDs:
-    """Bearing SDs of a plan: each existing bearing's [°], the next bearing's [°], and how they were chosen."""
+    """Bearing SDs of a plan: each existing bearing's [°], the next one's [°], and how they were chosen."""
 
     sd_deg: np.ndarray
     next_sd_deg: float
-    known: bool            # False: nominal SDs, used for ranking only (no areas reported)
+    known: bool  # False: nominal SDs, used for ranking only (no areas reported)
     source: str
     notes: list
 
@@ -504,20 +586,27 @@ def _plan_sds(fb: pd.DataFrame, row: pd.Series, next_sd_deg) -> _SDs:
     elif known:
         nsd, nsd_source = float(np.sqrt(np.mean(sd_i**2))), "the fix's SD"
     if known:
-        notes.append(f"bearing SD {np.sqrt(np.mean(sd_i**2)):.2f}° ({source}); next bearing {nsd:.2f}° "
-                     f"({nsd_source})")
+        notes.append(
+            f"bearing SD {np.sqrt(np.mean(sd_i**2)):.2f}° ({source}); next bearing {nsd:.2f}° ({nsd_source})"
+        )
     else:
         sd_i, nsd = np.full(len(fb), NOMINAL_SD_DEG), NOMINAL_SD_DEG
-        notes.append("no bearing SD is known (no sd in the sheet, no --sd, too few bearings to estimate one): "
-                     "spots are ranked, but areas need an SD (sd column, --sd or --next-sd)")
+        notes.append(
+            "no bearing SD is known (no sd in the sheet, no --sd, too few bearings to estimate one): "
+            "spots are ranked, but areas need an SD (sd column, --sd or --next-sd)"
+        )
     if row["sd_source"] == "estimated":
-        notes.append(f"the SD is estimated from this fix's own {int(row['n_used'])} bearings "
-                     f"({int(row['n_used']) - 2} degrees of freedom): a weak estimate; calibrate or give --sd")
+        notes.append(
+            f"the SD is estimated from this fix's own {int(row['n_used'])} bearings "
+            f"({int(row['n_used']) - 2} degrees of freedom): a weak estimate; calibrate or give --sd"
+        )
     dof = fb["sd_dof"].to_numpy(float) if "sd_dof" in fb.columns else np.zeros(0)
     if row["sd_source"] == "estimated" or np.isfinite(dof).any():
-        notes.append("areas here take the SD as known (chi-square scale); dfkit fix widens its region by an F "
-                     "scale for an SD estimated from the fix or measured on few trials, so its areas are larger "
-                     "(the ranking is the same)")
+        notes.append(
+            "areas here take the SD as known (chi-square scale); dfkit fix widens its region by an F "
+            "scale for an SD estimated from the fix or measured on few trials, so its areas are larger "
+            "(the ranking is the same)"
+        )
     return _SDs(sd_i, nsd, known, source, notes)
 
 
@@ -536,7 +625,7 @@ class _Where:
     st_lon: np.ndarray
     info_w: np.ndarray
     has_estimate: bool
-    last: int              # position of the most recent bearing
+    last: int  # position of the most recent bearing
     bands: list
     notes: list
 
@@ -560,8 +649,10 @@ def _positions_considered(fb, row, sds: _SDs, basis, n_samples, max_range_m) -> 
                 used = "point"
                 notes.append("the current information matrix is singular; areas are taken at the estimate")
             else:
-                notes.append(f"expected areas are geometric means over {len(lat)} positions spread as the "
-                             "estimate's error (normal, its covariance)")
+                notes.append(
+                    f"expected areas are geometric means over {len(lat)} positions spread as the "
+                    "estimate's error (normal, its covariance)"
+                )
         if used == "point":
             lat, lon, wt = np.array([ref_lat]), np.array([ref_lon]), np.array([1.0])
             if basis == "point":
@@ -571,40 +662,62 @@ def _positions_considered(fb, row, sds: _SDs, basis, n_samples, max_range_m) -> 
     else:
         used = "bearing_lines"
         r_min = max_range_m / 20.0
-        lat, lon, wt, bands = _line_samples(st_lat, st_lon, fb["true_bearing"].to_numpy(float), sds.sd_deg,
-                                            r_min, max_range_m, n_samples)
+        lat, lon, wt, bands = _line_samples(
+            st_lat, st_lon, fb["true_bearing"].to_numpy(float), sds.sd_deg, r_min, max_range_m, n_samples
+        )
         c_lat, c_lon = geodesy.group_centroid(lat, lon, np.zeros(len(lat), np.int64), 1, wt)
         ref_lat, ref_lon = float(c_lat[0]), float(c_lon[0])
         n = len(fb)
-        notes.append(f"no estimate yet ({n} usable bearing{'s' if n != 1 else ''}, status '{status}'): spots are "
-                     f"ranked by the expected area (geometric mean) over positions along the bearing "
-                     f"line{'s' if n != 1 else ''} from {r_min:.0f} m to {max_range_m:.0f} m (--max-range; a stated "
-                     "band, not data); distances and azimuths are from the middle of those positions. This is "
-                     "weaker than a plan from a fix.")
+        notes.append(
+            f"no estimate yet ({n} usable bearing{'s' if n != 1 else ''}, status '{status}'): spots are "
+            f"ranked by the expected area (geometric mean) over positions along the bearing "
+            f"line{'s' if n != 1 else ''} from {r_min:.0f} m to {max_range_m:.0f} m (--max-range; a stated "
+            "band, not data); distances and azimuths are from the middle of those positions. This is "
+            "weaker than a plan from a fix."
+        )
         if status != "too_few":
             notes.append(f"the fix is '{status}': {row['reason']}")
-    return _Where(used, ref_lat, ref_lon, lat, lon, wt / wt.sum(), st_lat, st_lon, info_w, has_pos,
-                  _last_bearing(fb), bands, notes)
+    return _Where(
+        used,
+        ref_lat,
+        ref_lon,
+        lat,
+        lon,
+        wt / wt.sum(),
+        st_lat,
+        st_lon,
+        info_w,
+        has_pos,
+        _last_bearing(fb),
+        bands,
+        notes,
+    )
 
 
 def _expected_areas(where: _Where, spot_table, sds: _SDs, level):
     """Expected area after a bearing from each spot, and the current area, on the plan's basis (the
     geometric mean over the positions considered; a single position for basis 'point')."""
-    ex = _terms(*_inverse_pair(where.lat[:, None], where.lon[:, None], where.st_lat[None, :],
-                               where.st_lon[None, :]), where.info_w[None, :])
+    ex = _terms(
+        *_inverse_pair(where.lat[:, None], where.lon[:, None], where.st_lat[None, :], where.st_lon[None, :]),
+        where.info_w[None, :],
+    )
     e11, e12, e22 = (v.sum(axis=1) for v in ex)
     w = where.weight
-    current = float(np.exp(np.sum(w * np.log(ellipse_area_m2(e11, e12, e22, level))))) if where.has_estimate \
+    current = (
+        float(np.exp(np.sum(w * np.log(ellipse_area_m2(e11, e12, e22, level)))))
+        if where.has_estimate
         else np.nan
+    )
     sp_lat = spot_table["lat"].to_numpy(float)
     sp_lon = spot_table["lon"].to_numpy(float)
     next_w = 1.0 / np.radians(sds.next_sd_deg) ** 2
     expected = np.full(len(sp_lat), np.nan)
-    chunk = max(1, 2_000_000 // len(w))          # bounded memory for large grids
+    chunk = max(1, 2_000_000 // len(w))  # bounded memory for large grids
     for a in range(0, len(sp_lat), chunk):
         b = slice(a, a + chunk)
-        c11, c12, c22 = _terms(*_inverse_pair(where.lat[:, None], where.lon[:, None], sp_lat[None, b],
-                                              sp_lon[None, b]), next_w)
+        c11, c12, c22 = _terms(
+            *_inverse_pair(where.lat[:, None], where.lon[:, None], sp_lat[None, b], sp_lon[None, b]), next_w
+        )
         area = ellipse_area_m2(e11[:, None] + c11, e12[:, None] + c12, e22[:, None] + c22, level)
         expected[b] = np.exp(np.sum(w[:, None] * np.log(area), axis=0))
     return expected, current
@@ -623,7 +736,7 @@ def _ranked_table(where: _Where, spot_table, expected, current, sds: _SDs, row, 
     point = ellipse_area_m2(j11 + p11, j12 + p12, j22 + p22, level)
     used = where.info_w > 0
     st_az, _, _ = geodesy.inverse(*ref, where.st_lat[used], where.st_lon[used])
-    at_ref = dist < ONE_SPOT_M     # no direction from a point to itself
+    at_ref = dist < ONE_SPOT_M  # no direction from a point to itself
     diff = np.abs(((az_ref[:, None] - st_az[None, :]) + 90.0) % 180.0 - 90.0)
     crossing = np.where(at_ref, np.nan, diff.min(axis=1)) if diff.shape[1] else np.full(len(sp_lat), np.nan)
     walk_az, _, walk = geodesy.inverse(where.st_lat[where.last], where.st_lon[where.last], sp_lat, sp_lon)
@@ -633,10 +746,13 @@ def _ranked_table(where: _Where, spot_table, expected, current, sds: _SDs, row, 
     if where.has_estimate:
         m2 = j11 * x_ref**2 + 2 * j12 * x_ref * y_ref + j22 * y_ref**2
         for i in np.flatnonzero(m2 <= float(scale_factor(level)) ** 2):
-            note[i].append(f"inside the current {100 * level:g}% region: a bearing here is strong, but you may be "
-                           "near the transmitter, where bearings become unreliable (and animals are disturbed)")
-    near_st = geodesy.chord_distance_m(sp_lat[:, None], sp_lon[:, None], where.st_lat[None, :],
-                                       where.st_lon[None, :])
+            note[i].append(
+                f"inside the current {100 * level:g}% region: a bearing here is strong, but you may be "
+                "near the transmitter, where bearings become unreliable (and animals are disturbed)"
+            )
+    near_st = geodesy.chord_distance_m(
+        sp_lat[:, None], sp_lon[:, None], where.st_lat[None, :], where.st_lon[None, :]
+    )
     for i in np.flatnonzero((near_st < ONE_SPOT_M).any(axis=1)):
         note[i].append("a station of this fix: a repeat bearing from here adds little")
     too_near = dist < min_distance_m
@@ -644,8 +760,10 @@ def _ranked_table(where: _Where, spot_table, expected, current, sds: _SDs, row, 
         note[i].append(f"nearer than {min_distance_m:g} m to the estimate (min_distance_m): not ranked")
     at_point = at_ref & (where.basis == "point")
     for i in np.flatnonzero(at_point & ~too_near):
-        note[i].append("at the estimate itself: a bearing needs some distance to the transmitter (basis 'point'): "
-                       "not ranked")
+        note[i].append(
+            "at the estimate itself: a bearing needs some distance to the transmitter (basis 'point'): "
+            "not ranked"
+        )
     for i in np.flatnonzero(~too_near & ~at_point & ~np.isfinite(expected)):
         note[i].append("a bearing from here runs along the existing ones and adds no crossing: not ranked")
 
@@ -655,34 +773,36 @@ def _ranked_table(where: _Where, spot_table, expected, current, sds: _SDs, row, 
     n_ranked = int(np.isfinite(score).sum())
     rank = pd.array([*range(1, n_ranked + 1)] + [pd.NA] * (len(order) - n_ranked), dtype="Int64")
     hide = np.full(len(sp_lat), np.nan)
-    expected = np.where(at_point, np.nan, expected)      # no direction, no meaningful area
+    expected = np.where(at_point, np.nan, expected)  # no direction, no meaningful area
     point = np.where(at_ref, np.nan, point)
     ratio = expected / current if where.has_estimate and np.isfinite(current) else hide
-    table = pd.DataFrame({
-        "rank": rank,
-        "spot": spot_table["spot"].to_numpy(dtype=object)[order],
-        "lat": sp_lat[order],
-        "lon": sp_lon[order],
-        "expected_area_m2": (expected if sds.known else hide)[order],
-        "area_ratio": ratio[order],
-        "distance_m": dist[order],
-        "azimuth_deg": np.where(at_ref, np.nan, wrap360(az_ref))[order],
-        "expected_bearing_deg": np.where(at_ref, np.nan, wrap360(az_back))[order],
-        "crossing_deg": crossing[order],
-        "point_area_m2": (point if sds.known else hide)[order],
-        "from_last_m": walk[order],
-        "from_last_deg": wrap360(walk_az)[order],
-        "east_m": x_ref[order],
-        "north_m": y_ref[order],
-        "line": spot_table["line"].to_numpy(dtype=object)[order],
-        "note": ["; ".join(note[i]) for i in order],
-        "fix": row["fix"],
-        "tag": row["tag"],
-        "fix_status": row["status"],
-        "basis": where.basis,
-        "level": level,
-        "next_sd_deg": sds.next_sd_deg if sds.known else np.nan,
-    })
+    table = pd.DataFrame(
+        {
+            "rank": rank,
+            "spot": spot_table["spot"].to_numpy(dtype=object)[order],
+            "lat": sp_lat[order],
+            "lon": sp_lon[order],
+            "expected_area_m2": (expected if sds.known else hide)[order],
+            "area_ratio": ratio[order],
+            "distance_m": dist[order],
+            "azimuth_deg": np.where(at_ref, np.nan, wrap360(az_ref))[order],
+            "expected_bearing_deg": np.where(at_ref, np.nan, wrap360(az_back))[order],
+            "crossing_deg": crossing[order],
+            "point_area_m2": (point if sds.known else hide)[order],
+            "from_last_m": walk[order],
+            "from_last_deg": wrap360(walk_az)[order],
+            "east_m": x_ref[order],
+            "north_m": y_ref[order],
+            "line": spot_table["line"].to_numpy(dtype=object)[order],
+            "note": ["; ".join(note[i]) for i in order],
+            "fix": row["fix"],
+            "tag": row["tag"],
+            "fix_status": row["status"],
+            "basis": where.basis,
+            "level": level,
+            "next_sd_deg": sds.next_sd_deg if sds.known else np.nan,
+        }
+    )
     for c in spot_table.columns:
         if c not in table.columns:
             table[c] = spot_table[c].to_numpy(dtype=object)[order]
@@ -719,8 +839,10 @@ def _select_fix(bearings: Bearings, fix, tag) -> Bearings:
         known = fi["fix"].astype(str).tolist()
         listed = ", ".join(repr(x) for x in known[:12]) + (" ..." if len(known) > 12 else "")
         where = f" with tag {tag!r}" if tag is not None else ""
-        raise ValueError(f"fix={fix!r}: no fix of that label{where} in {bearings.source or 'the bearings'}; "
-                         f"the fixes are {listed or 'none'}")
+        raise ValueError(
+            f"fix={fix!r}: no fix of that label{where} in {bearings.source or 'the bearings'}; "
+            f"the fixes are {listed or 'none'}"
+        )
     if len(hit) > 1:
         tags = ", ".join(repr(t) for t in hit["tag"])
         raise ValueError(f"fix={fix!r} is used by tags {tags}: give tag= to say which")
@@ -737,7 +859,9 @@ def _candidate_spots(spots, stations) -> Spots:
     if isinstance(spots, pd.DataFrame):
         missing = [c for c in ("spot", "lat", "lon") if c not in spots.columns]
         if missing:
-            raise ValueError(f"spots= table lacks column{'s' if len(missing) > 1 else ''} {', '.join(missing)}")
+            raise ValueError(
+                f"spots= table lacks column{'s' if len(missing) > 1 else ''} {', '.join(missing)}"
+            )
         t = spots.copy()
         lat = pd.to_numeric(t["lat"], errors="coerce").to_numpy(float)
         lon = pd.to_numeric(t["lon"], errors="coerce").to_numpy(float)
@@ -801,12 +925,14 @@ def _line_samples(st_lat, st_lon, theta_deg, sd_deg, r_min, r_max, n):
     per = max(int(np.ceil(n / nb)), 1)
     j = np.arange(per) + 0.5
     rr = r_min + (r_max - r_min) * j / per
-    offset = ndtri(np.mod(j * (np.sqrt(5.0) - 1.0) / 2.0, 1.0))    # golden-ratio sequence -> normal quantiles
+    offset = ndtri(np.mod(j * (np.sqrt(5.0) - 1.0) / 2.0, 1.0))  # golden-ratio sequence -> normal quantiles
     idx = np.repeat(np.arange(nb), per)
     az = theta_deg[idx] + np.tile(offset, nb) * sd_deg[idx]
     lat, lon = geodesy.forward(st_lat[idx], st_lon[idx], az, np.tile(rr, nb))
-    bands = [(float(st_lat[i]), float(st_lon[i]), float(theta_deg[i]), float(r_min), float(r_max))
-             for i in range(nb)]
+    bands = [
+        (float(st_lat[i]), float(st_lon[i]), float(theta_deg[i]), float(r_min), float(r_max))
+        for i in range(nb)
+    ]
     return lat, lon, np.ones(len(idx)), bands
 
 
@@ -818,17 +944,26 @@ def _last_bearing(fb: pd.DataFrame) -> int:
     return int(np.argmax(fb["line"].to_numpy()))
 
 
-def _with_rejected(table: pd.DataFrame, rejected: pd.DataFrame, row: pd.Series, basis: str,
-                   level: float) -> pd.DataFrame:
+def _with_rejected(
+    table: pd.DataFrame, rejected: pd.DataFrame, row: pd.Series, basis: str, level: float
+) -> pd.DataFrame:
     """The plan's table with the rejected spots of the spots file listed last (no position, no rank)."""
     if not len(rejected):
         return table
-    extra = pd.DataFrame({"spot": rejected["spot"].to_numpy(dtype=object), "line": rejected["line"].to_numpy(),
-                          "note": ["rejected: " + r for r in rejected["reason"]]})
+    extra = pd.DataFrame(
+        {
+            "spot": rejected["spot"].to_numpy(dtype=object),
+            "line": rejected["line"].to_numpy(),
+            "note": ["rejected: " + r for r in rejected["reason"]],
+        }
+    )
     extra["fix"], extra["tag"], extra["fix_status"] = row["fix"], row["tag"], row["status"]
     extra["basis"], extra["level"] = basis, level
-    out = pd.concat([table, extra], ignore_index=True) if len(table) else extra.reindex(
-        columns=list(dict.fromkeys(list(table.columns) + list(extra.columns))))
+    out = (
+        pd.concat([table, extra], ignore_index=True)
+        if len(table)
+        else extra.reindex(columns=list(dict.fromkeys(list(table.columns) + list(extra.columns))))
+    )
     out["rank"] = out["rank"].astype("Int64")
     return out
 
@@ -836,17 +971,41 @@ def _with_rejected(table: pd.DataFrame, rejected: pd.DataFrame, row: pd.Series, 
 def _empty_plan(fixes, spot_table, around_m, level, problems, why) -> Plan:
     t = pd.DataFrame({c: pd.Series(dtype=object) for c in PLAN_COLUMNS})
     if around_m is None and len(spot_table):
-        t = pd.DataFrame({"spot": spot_table["spot"], "lat": spot_table["lat"], "lon": spot_table["lon"],
-                          "line": spot_table["line"]})
+        t = pd.DataFrame(
+            {
+                "spot": spot_table["spot"],
+                "lat": spot_table["lat"],
+                "lon": spot_table["lon"],
+                "line": spot_table["line"],
+            }
+        )
         for c in PLAN_COLUMNS:
             if c not in t.columns:
                 t[c] = np.nan
         t = t[PLAN_COLUMNS]
         t["note"] = why
     row = fixes.table.iloc[0]
-    t["fix"], t["tag"], t["fix_status"], t["basis"], t["level"] = row["fix"], row["tag"], row["status"], "none", level
+    t["fix"], t["tag"], t["fix_status"], t["basis"], t["level"] = (
+        row["fix"],
+        row["tag"],
+        row["status"],
+        "none",
+        level,
+    )
     t["rank"] = pd.array([pd.NA] * len(t), dtype="Int64")
-    return Plan(table=t.reset_index(drop=True), fixes=fixes, basis="none", level=level, current_area_m2=np.nan,
-                sd_deg=np.nan, sd_source="", next_sd_deg=np.nan, reference_lat=np.nan, reference_lon=np.nan,
-                samples=pd.DataFrame({"lat": [], "lon": [], "weight": []}),
-                grid_step_m=None, notes=[why], problems=problems)
+    return Plan(
+        table=t.reset_index(drop=True),
+        fixes=fixes,
+        basis="none",
+        level=level,
+        current_area_m2=np.nan,
+        sd_deg=np.nan,
+        sd_source="",
+        next_sd_deg=np.nan,
+        reference_lat=np.nan,
+        reference_lon=np.nan,
+        samples=pd.DataFrame({"lat": [], "lon": [], "weight": []}),
+        grid_step_m=None,
+        notes=[why],
+        problems=problems,
+    )

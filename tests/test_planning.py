@@ -41,8 +41,8 @@ from dfkit.problems import SheetError
 from .conftest import SAMPLES
 
 G = Geodesic.WGS84
-K2_95 = -2.0 * math.log(0.05)            # chi-square, 2 dof, 95 %
-T = (47.2, 15.3)                          # an invented transmitter position
+K2_95 = -2.0 * math.log(0.05)  # chi-square, 2 dof, 95 %
+T = (47.2, 15.3)  # an invented transmitter position
 
 
 def direct(lat, lon, azi, dist):
@@ -84,8 +84,9 @@ def angle_gap(a, b):
 
 
 def spots_table(points):
-    return pd.DataFrame({"spot": [p[0] for p in points], "lat": [p[1] for p in points],
-                         "lon": [p[2] for p in points]})
+    return pd.DataFrame(
+        {"spot": [p[0] for p in points], "lat": [p[1] for p in points], "lon": [p[2] for p in points]}
+    )
 
 
 # --------------------------------------------------------------------------- closed forms
@@ -101,8 +102,9 @@ def test_two_perpendicular_bearings_information_closed_form():
     assert jee == pytest.approx(1.0 / (1000.0 * s) ** 2, rel=1e-9)
     assert jnn == pytest.approx(1.0 / (2000.0 * s) ** 2, rel=1e-9)
     assert jen == pytest.approx(0.0, abs=1e-9 * jee)
-    assert float(ellipse_area_m2(jee, jen, jnn)) == pytest.approx(math.pi * K2_95 * s**2 * 1000.0 * 2000.0,
-                                                                  rel=1e-9)
+    assert float(ellipse_area_m2(jee, jen, jnn)) == pytest.approx(
+        math.pi * K2_95 * s**2 * 1000.0 * 2000.0, rel=1e-9
+    )
     # a station to the north-east: the line of sight runs NE-SW, so the information lies along NW-SE,
     # u = (cos 45, -sin 45): j_en = -1 / (2 d^2 s^2)
     _, ne_en, _ = bearing_information(*T, *direct(*T, 45.0, 1000.0), sd)
@@ -130,9 +132,13 @@ def test_plan_point_areas_follow_the_information_matrix(tmp_path):
     sd, next_sd = 3.0, 6.0
     stations = [direct(*T, 0.0, 1000.0), direct(*T, 90.0, 2000.0)]
     sheet = sheet_from(tmp_path / "s.csv", stations, T, sd=sd)
-    cands = [("south", *direct(*T, 180.0, 1500.0)), ("west", *direct(*T, 270.0, 800.0)),
-             ("ne far", *direct(*T, 45.0, 3000.0)), ("behind north", *direct(*T, 0.0, 2500.0)),
-             ("sse", *direct(*T, 160.0, 1200.0))]
+    cands = [
+        ("south", *direct(*T, 180.0, 1500.0)),
+        ("west", *direct(*T, 270.0, 800.0)),
+        ("ne far", *direct(*T, 45.0, 3000.0)),
+        ("behind north", *direct(*T, 0.0, 2500.0)),
+        ("sse", *direct(*T, 160.0, 1200.0)),
+    ]
     plan = plan_next_bearing(read_bearings(sheet), "H", spots=spots_table(cands), next_sd_deg=next_sd)
     assert plan.basis == "point" and plan.fix_row["status"] == "ok"
     J0 = sum(info(T, st, sd) for st in stations)
@@ -142,7 +148,7 @@ def test_plan_point_areas_follow_the_information_matrix(tmp_path):
         assert got.loc[name, "expected_area_m2"] == pytest.approx(value, rel=1e-4)
         assert got.loc[name, "area_ratio"] == pytest.approx(value / area(J0), rel=1e-4)
     assert plan.current_area_m2 == pytest.approx(area(J0), rel=1e-4)
-    assert plan.table["spot"].tolist() == sorted(want, key=want.get)          # ranked best first
+    assert plan.table["spot"].tolist() == sorted(want, key=want.get)  # ranked best first
     assert plan.table["rank"].tolist() == [1, 2, 3, 4, 5]
     # distance and azimuth from the estimate, and the bearing to expect from the spot
     for name, la, lo in cands:
@@ -175,12 +181,17 @@ def test_prediction_agrees_in_rank_with_simulated_bearings(tmp_path):
     """Take the next bearing from each candidate many times (simulated, with noise), solve with dfkit,
     and compare the mean region area with the plan's ranking and prediction."""
     sd = 4.0
-    stations = [direct(*T, 200.0, 1200.0), direct(*T, 245.0, 1500.0)]       # a 45-degree crossing
-    cands = [("good", *direct(*T, 330.0, 1000.0)), ("mid", *direct(*T, 300.0, 2000.0)),
-             ("poor", *direct(*T, 15.0, 3000.0))]                         # 'poor' lies almost behind a station
+    stations = [direct(*T, 200.0, 1200.0), direct(*T, 245.0, 1500.0)]  # a 45-degree crossing
+    cands = [
+        ("good", *direct(*T, 330.0, 1000.0)),
+        ("mid", *direct(*T, 300.0, 2000.0)),
+        ("poor", *direct(*T, 15.0, 3000.0)),
+    ]  # 'poor' lies almost behind a station
     plan_sheet = sheet_from(tmp_path / "plan.csv", stations, T, sd=sd)
     b = read_bearings(plan_sheet)
-    predicted = plan_next_bearing(b, "H", spots=spots_table(cands)).table.set_index("spot")["expected_area_m2"]
+    predicted = plan_next_bearing(b, "H", spots=spots_table(cands)).table.set_index("spot")[
+        "expected_area_m2"
+    ]
     order = predicted.sort_values().index.tolist()
     assert predicted[order[1]] > 1.3 * predicted[order[0]] and predicted[order[2]] > 1.3 * predicted[order[1]]
 
@@ -189,7 +200,7 @@ def test_prediction_agrees_in_rank_with_simulated_bearings(tmp_path):
     rows = []
     for name, la, lo in cands:
         for r in range(reps):
-            for (sla, slo) in stations + [(la, lo)]:
+            for sla, slo in stations + [(la, lo)]:
                 brg = (toward(sla, slo, *T) + rng.normal(0.0, sd)) % 360.0
                 rows.append(f"{name}-{r},{sla!r},{slo!r},{brg!r},{sd}")
     sim = tmp_path / "sim.csv"
@@ -215,11 +226,20 @@ def test_region_positions_spread_as_the_estimate_error(tmp_path):
     stations = [direct(*T, 200.0, 1200.0), direct(*T, 225.0, 1500.0)]
     sheet = sheet_from(tmp_path / "s.csv", stations, T, sd=sd)
     spot = [("a", *direct(*T, 300.0, 900.0))]
-    plan = plan_next_bearing(read_bearings(sheet), "H", spots=spots_table(spot), basis="region", n_samples=4000)
+    plan = plan_next_bearing(
+        read_bearings(sheet), "H", spots=spots_table(spot), basis="region", n_samples=4000
+    )
     s = plan.samples
     assert plan.basis == "region" and len(s) == 4000
-    xy = np.array([[G.Inverse(*T, la, lo)["s12"] * f(math.radians(G.Inverse(*T, la, lo)["azi1"]))
-                    for f in (math.sin, math.cos)] for la, lo in zip(s["lat"][::8], s["lon"][::8])])
+    xy = np.array(
+        [
+            [
+                G.Inverse(*T, la, lo)["s12"] * f(math.radians(G.Inverse(*T, la, lo)["azi1"]))
+                for f in (math.sin, math.cos)
+            ]
+            for la, lo in zip(s["lat"][::8], s["lon"][::8])
+        ]
+    )
     w = s["weight"].to_numpy()[::8]
     cov = np.cov(xy.T, aweights=w)
     J = sum(info(T, st, sd) for st in stations)
@@ -233,11 +253,17 @@ def test_region_expected_area_is_the_geometric_mean_over_its_positions(tmp_path)
     stations = [direct(*T, 200.0, 1200.0), direct(*T, 240.0, 1500.0), direct(*T, 300.0, 900.0)]
     sheet = sheet_from(tmp_path / "s.csv", stations, T, sd=sd)
     spot = ("x", *direct(*T, 60.0, 2000.0))
-    plan = plan_next_bearing(read_bearings(sheet), "H", spots=spots_table([spot]), basis="region", n_samples=60)
+    plan = plan_next_bearing(
+        read_bearings(sheet), "H", spots=spots_table([spot]), basis="region", n_samples=60
+    )
     s = plan.samples
-    logs = [math.log(area(sum(info((la, lo), st, sd) for st in stations + [spot[1:]])))
-            for la, lo in zip(s["lat"], s["lon"])]
-    now = [math.log(area(sum(info((la, lo), st, sd) for st in stations))) for la, lo in zip(s["lat"], s["lon"])]
+    logs = [
+        math.log(area(sum(info((la, lo), st, sd) for st in stations + [spot[1:]])))
+        for la, lo in zip(s["lat"], s["lon"])
+    ]
+    now = [
+        math.log(area(sum(info((la, lo), st, sd) for st in stations))) for la, lo in zip(s["lat"], s["lon"])
+    ]
     w = s["weight"].to_numpy() / s["weight"].sum()
     got = plan.table.iloc[0]
     assert got["expected_area_m2"] == pytest.approx(math.exp(np.dot(w, logs)), rel=1e-5)
@@ -254,13 +280,17 @@ def test_one_bearing_ranks_by_the_stated_range_band(tmp_path):
     sheet = tmp_path / "one.csv"
     sheet.write_text(f"fix,lat,lon,bearing,sd\nF,{st[0]},{st[1]},0,5\n")
     mid = direct(*st, 0.0, 2500.0)
-    cands = [("side", *direct(*mid, 90.0, 2500.0)), ("ahead", *direct(*st, 0.0, 6000.0)),
-             ("behind", *direct(*st, 180.0, 1500.0)), ("oblique", *direct(*st, 30.0, 1000.0))]
+    cands = [
+        ("side", *direct(*mid, 90.0, 2500.0)),
+        ("ahead", *direct(*st, 0.0, 6000.0)),
+        ("behind", *direct(*st, 180.0, 1500.0)),
+        ("oblique", *direct(*st, 30.0, 1000.0)),
+    ]
     plan = plan_next_bearing(read_bearings(sheet), "F", spots=spots_table(cands), max_range_m=4000.0)
     assert plan.basis == "bearing_lines" and plan.fix_row["status"] == "too_few"
     assert any("weaker than a plan from a fix" in n and "4000 m" in n for n in plan.notes)
     assert plan.table["spot"].iloc[0] == "side"
-    assert set(plan.table["spot"].iloc[-2:]) == {"ahead", "behind"}       # along the line: no crossing
+    assert set(plan.table["spot"].iloc[-2:]) == {"ahead", "behind"}  # along the line: no crossing
     assert plan.table["area_ratio"].isna().all() and np.isnan(plan.current_area_m2)
     # the positions considered: ranges evenly over [max/20, max], directions N(bearing, sd) across the line
     s = plan.samples
@@ -270,7 +300,7 @@ def test_one_bearing_ranks_by_the_stated_range_band(tmp_path):
     assert rng_m.min() >= 200.0 - 1e-6 and rng_m.max() <= 4000.0 + 1e-6
     assert stats.kstest(rng_m, stats.uniform(loc=200.0, scale=3800.0).cdf).pvalue > 0.01
     assert stats.kstest(off, stats.norm(scale=5.0).cdf).pvalue > 0.01
-    assert plan.reference_lat > st[0]                                      # the band lies north of the station
+    assert plan.reference_lat > st[0]  # the band lies north of the station
 
 
 # --------------------------------------------------------------------------- hunts
@@ -285,12 +315,18 @@ def _independent_pick(stations, bearings, sd, cands):
     lon0 = float(np.mean([s[1] for s in stations]))
 
     def nll(p):
-        return -sum(math.cos(math.radians(b - toward(s[0], s[1], p[0], p[1]))) for s, b in zip(stations, bearings))
+        return -sum(
+            math.cos(math.radians(b - toward(s[0], s[1], p[0], p[1]))) for s, b in zip(stations, bearings)
+        )
 
     best = None
     for start in [(lat0, lon0)] + [direct(lat0, lon0, a, 2500.0) for a in (0, 90, 180, 270)]:
-        r = minimize(nll, np.array(start), method="Nelder-Mead",
-                     options={"xatol": 1e-9, "fatol": 1e-14, "maxiter": 4000})
+        r = minimize(
+            nll,
+            np.array(start),
+            method="Nelder-Mead",
+            options={"xatol": 1e-9, "fatol": 1e-14, "maxiter": 4000},
+        )
         if best is None or r.fun < best.fun:
             best = r
     est = tuple(best.x)
@@ -304,7 +340,9 @@ def test_invented_hunt_top_spot_matches_an_independent_calculation(tmp_path, see
     rng = np.random.default_rng(seed)
     fox = (47.0 + rng.uniform(-0.5, 0.5), 14.0 + rng.uniform(-0.5, 0.5))
     sd = 5.0
-    stations = [direct(*fox, rng.uniform(0, 360), rng.uniform(800, 3500)) for _ in range(int(rng.integers(3, 6)))]
+    stations = [
+        direct(*fox, rng.uniform(0, 360), rng.uniform(800, 3500)) for _ in range(int(rng.integers(3, 6)))
+    ]
     noise = rng.normal(0.0, sd, len(stations))
     sheet = sheet_from(tmp_path / "h.csv", stations, fox, sd=sd, noise=noise)
     bearings = [(toward(*s, *fox) + e) % 360.0 for s, e in zip(stations, noise)]
@@ -329,9 +367,12 @@ def test_sample_hunt_spots_are_made_by_their_script(tmp_path):
 def test_plan_sheet_reads_and_plans_in_one_call():
     from dfkit.planning import plan_sheet
 
-    direct_plan = plan_next_bearing(read_bearings(SAMPLES / "hunt.csv", window_min=90), "fox-2",
-                                    spots=SAMPLES / "hunt_spots.csv")
-    one_call = plan_sheet(SAMPLES / "hunt.csv", "fox-2", read={"window_min": 90}, spots=SAMPLES / "hunt_spots.csv")
+    direct_plan = plan_next_bearing(
+        read_bearings(SAMPLES / "hunt.csv", window_min=90), "fox-2", spots=SAMPLES / "hunt_spots.csv"
+    )
+    one_call = plan_sheet(
+        SAMPLES / "hunt.csv", "fox-2", read={"window_min": 90}, spots=SAMPLES / "hunt_spots.csv"
+    )
     assert one_call.table["spot"].tolist() == direct_plan.table["spot"].tolist()
 
 
@@ -358,24 +399,28 @@ def test_spots_in_every_position_form_agree_with_pyproj_and_mgrs(write_sheet):
     la, lo = direct(47.86, 15.17, 40.0, 2000.0)
     e, n = pyproj.Transformer.from_crs("EPSG:4326", "EPSG:32633", always_xy=True).transform(lo, la)
     code = mgrs.MGRS().toMGRS(la, lo, MGRSPrecision=5)
-    path = write_sheet(f"spot,lat,lon,utm_zone,easting,northing,mgrs,kind\nA,{la!r},{lo!r},,,,,junction\n"
-                       f"B,,,33N,{e:.3f},{n:.3f},,pull-out\nC,,,,,,{code},\n", name="spots.csv")
+    path = write_sheet(
+        f"spot,lat,lon,utm_zone,easting,northing,mgrs,kind\nA,{la!r},{lo!r},,,,,junction\n"
+        f"B,,,33N,{e:.3f},{n:.3f},,pull-out\nC,,,,,,{code},\n",
+        name="spots.csv",
+    )
     s = read_spots(path)
     assert s.problems == []
     assert s.table["spot"].tolist() == ["A", "B", "C"] and s.table["line"].tolist() == [2, 3, 4]
     assert s.table["spot_kind"].tolist() == ["junction", "pull-out", ""]
     for _, r in s.table.iterrows():
-        assert G.Inverse(la, lo, r["lat"], r["lon"])["s12"] < 1.5      # MGRS to 1 m
+        assert G.Inverse(la, lo, r["lat"], r["lon"])["s12"] < 1.5  # MGRS to 1 m
 
 
 def test_bad_spots_are_reported_like_bad_sheet_rows(write_sheet):
-    spots = write_sheet("spot,lat,lon\nok,47.1,15.1\nswapped,95,15\n,47.2,15.2\nok,47.3,15.3\nnowhere,,\n",
-                        name="spots.csv")
+    spots = write_sheet(
+        "spot,lat,lon\nok,47.1,15.1\nswapped,95,15\n,47.2,15.2\nok,47.3,15.3\nnowhere,,\n", name="spots.csv"
+    )
     sheet = write_sheet("fix,lat,lon,bearing\nA,47.1,15.1,10\nA,95,15,20\n", name="sheet.csv")
     s = read_spots(spots)
     msgs = {(p.line, p.column): p.message for p in s.problems if p.severity == "error"}
     sheet_msgs = {(p.line, p.column): p.message for p in read_bearings(sheet).problems}
-    assert msgs[(3, "lat")] == sheet_msgs[(3, "lat")]          # the same check, the same words
+    assert msgs[(3, "lat")] == sheet_msgs[(3, "lat")]  # the same check, the same words
     assert msgs[(4, "spot")] == "spot label is missing"
     assert "listed twice" in msgs[(5, "spot")]
     assert msgs[(6, "")].startswith("no position")
@@ -392,7 +437,9 @@ def test_spots_file_needs_a_label_column(write_sheet):
 
 def test_spots_by_station_label(write_sheet):
     stations = write_sheet("station,lat,lon\nS1,47.1,15.1\n", name="stations.csv")
-    s = read_spots(write_sheet("spot,station\nby the gate,S1\nelsewhere,S9\n", name="spots.csv"), stations=stations)
+    s = read_spots(
+        write_sheet("spot,station\nby the gate,S1\nelsewhere,S9\n", name="spots.csv"), stations=stations
+    )
     assert s.table[["spot", "lat", "lon"]].values.tolist() == [["by the gate", 47.1, 15.1]]
     assert [(p.line, p.column) for p in s.problems] == [(3, "station")]
 
@@ -438,8 +485,10 @@ def test_grid_plan_ranks_spots_around_the_estimate(tmp_path):
 
 
 def test_misuse_is_named(tmp_path, write_sheet):
-    sheet = write_sheet("fix,tag,lat,lon,bearing,sd\nA,t1,47,15,45,3\nA,t1,47,15.02,315,3\n"
-                        "A,t2,47,15,40,3\nA,t2,47,15.02,320,3\n")
+    sheet = write_sheet(
+        "fix,tag,lat,lon,bearing,sd\nA,t1,47,15,45,3\nA,t1,47,15.02,315,3\n"
+        "A,t2,47,15,40,3\nA,t2,47,15.02,320,3\n"
+    )
     b = read_bearings(sheet)
     sp = spots_table([("x", 47.01, 15.01)])
     with pytest.raises(ValueError, match=r"fix='B': no fix of that label .* the fixes are 'A', 'A'"):
@@ -460,7 +509,9 @@ def test_misuse_is_named(tmp_path, write_sheet):
 def test_without_any_sd_spots_are_ranked_but_no_area_is_claimed(tmp_path):
     stations = [direct(*T, 200.0, 1200.0), direct(*T, 245.0, 1500.0)]
     sheet = tmp_path / "nosd.csv"
-    sheet.write_text("fix,lat,lon,bearing\n" + "".join(f"H,{a!r},{o!r},{toward(a, o, *T)!r}\n" for a, o in stations))
+    sheet.write_text(
+        "fix,lat,lon,bearing\n" + "".join(f"H,{a!r},{o!r},{toward(a, o, *T)!r}\n" for a, o in stations)
+    )
     cands = [("good", *direct(*T, 330.0, 1000.0)), ("poor", *direct(*T, 25.0, 2500.0))]
     plan = plan_next_bearing(read_bearings(sheet), "H", spots=spots_table(cands))
     assert plan.fix_row["status"] == "no_region"
@@ -471,15 +522,18 @@ def test_without_any_sd_spots_are_ranked_but_no_area_is_claimed(tmp_path):
     given = plan_next_bearing(read_bearings(sheet), "H", spots=spots_table(cands), next_sd_deg=4.0)
     J0 = sum(info(T, st, 4.0) for st in stations)
     assert given.table.set_index("spot").loc["good", "expected_area_m2"] == pytest.approx(
-        area(J0 + info(T, cands[0][1:], 4.0)), rel=1e-4)
+        area(J0 + info(T, cands[0][1:], 4.0)), rel=1e-4
+    )
 
 
 def test_an_estimated_sd_is_called_weak(tmp_path):
     stations = [direct(*T, a, 1000.0 + 100 * i) for i, a in enumerate((190.0, 240.0, 300.0))]
     sheet = tmp_path / "est.csv"
     noise = [2.0, -3.0, 1.5]
-    sheet.write_text("fix,lat,lon,bearing\n" + "".join(
-        f"H,{a!r},{o!r},{(toward(a, o, *T) + e) % 360!r}\n" for (a, o), e in zip(stations, noise)))
+    sheet.write_text(
+        "fix,lat,lon,bearing\n"
+        + "".join(f"H,{a!r},{o!r},{(toward(a, o, *T) + e) % 360!r}\n" for (a, o), e in zip(stations, noise))
+    )
     plan = plan_next_bearing(read_bearings(sheet), "H", spots=spots_table([("x", *direct(*T, 60.0, 900.0))]))
     assert plan.fix_row["sd_source"] == "estimated"
     assert any("1 degrees of freedom): a weak estimate" in n for n in plan.notes)
@@ -488,7 +542,9 @@ def test_an_estimated_sd_is_called_weak(tmp_path):
 
 def test_every_spot_is_listed_even_when_nothing_can_be_planned(write_sheet):
     sheet = write_sheet("fix,lat,lon,bearing\nA,47,15,999\nA,47,15.1,888\n")
-    plan = plan_next_bearing(read_bearings(sheet), "A", spots=spots_table([("x", 47.01, 15.0), ("y", 47.0, 15.2)]))
+    plan = plan_next_bearing(
+        read_bearings(sheet), "A", spots=spots_table([("x", 47.01, 15.0), ("y", 47.0, 15.2)])
+    )
     assert plan.basis == "none" and plan.best is None
     assert plan.table["spot"].tolist() == ["x", "y"] and plan.table["rank"].isna().all()
     assert plan.table["note"].str.contains("no usable bearing").all()
@@ -531,8 +587,22 @@ def test_plan_command_outputs_and_exit_codes(tmp_path, capsys):
     hunt = str(SAMPLES / "hunt.csv")
     spots = str(SAMPLES / "hunt_spots.csv")
     csv_out, gj_out = tmp_path / "p.csv", tmp_path / "p.geojson"
-    code = main(["plan", hunt, "--fix", "fox-2", "--window", "90", "--spots", spots, "-o", str(csv_out),
-                 "-o", str(gj_out)])
+    code = main(
+        [
+            "plan",
+            hunt,
+            "--fix",
+            "fox-2",
+            "--window",
+            "90",
+            "--spots",
+            spots,
+            "-o",
+            str(csv_out),
+            "-o",
+            str(gj_out),
+        ]
+    )
     assert code == 0
     err = capsys.readouterr().err
     assert "best next spot" in err and "never plan a route across private land" in err
@@ -560,8 +630,8 @@ def test_plan_command_grid_and_one_bearing(tmp_path, write_sheet, capsys):
 
 def test_plan_command_misuse_is_exit_2(tmp_path, write_sheet, capsys):
     sheet = str(write_sheet("fix,lat,lon,bearing,sd\nA,47,15,45,3\nA,47,15.02,315,3\n"))
-    assert main(["plan", sheet, "--around", "100"]) == 2                            # no --fix
-    assert main(["plan", sheet, "--fix", "A"]) == 2                                 # no spots, no grid
+    assert main(["plan", sheet, "--around", "100"]) == 2  # no --fix
+    assert main(["plan", sheet, "--fix", "A"]) == 2  # no spots, no grid
     assert main(["plan", sheet, "--fix", "A", "--around", "100", "--spots", "x.csv"]) == 2
     assert main(["plan", sheet, "--fix", "B", "--around", "100"]) == 2
     assert "--fix 'B': no fix of that label" in capsys.readouterr().err
@@ -591,8 +661,20 @@ def test_plan_command_takes_a_calibration_like_fix(tmp_path, capsys):
     cal = tmp_path / "cal.csv"
     assert main(["calibrate", str(SAMPLES / "beacon_trials.csv"), "-o", str(cal)]) in (0, 1)
     out = tmp_path / "p.csv"
-    code = main(["plan", str(SAMPLES / "tracking_after_trials.csv"), "--fix", "A01", "--around", "1000",
-                 "--calibration", str(cal), "-o", str(out)])
+    code = main(
+        [
+            "plan",
+            str(SAMPLES / "tracking_after_trials.csv"),
+            "--fix",
+            "A01",
+            "--around",
+            "1000",
+            "--calibration",
+            str(cal),
+            "-o",
+            str(out),
+        ]
+    )
     err = capsys.readouterr().err
     assert code in (0, 1)
     assert "a beacon calibration" in err and "F scale" in err
@@ -630,14 +712,22 @@ def _open_map(path: pathlib.Path):
 def test_plan_map_works_offline_and_escapes_user_text(tmp_path, write_sheet, grid):
     from dfkit.planmap import plan_map
 
-    sheet = write_sheet('fix,lat,lon,bearing,sd,note\n"</script><b>f</b>",47,15,45,3,"<img src=x onerror=alert(1)>"\n'
-                        '"</script><b>f</b>",47,15.02,315,3,\n')
-    spots = write_sheet('spot,lat,lon,note\n"<img src=x onerror=alert(1)>",47.01,15.03,"</script><b>x</b>"\n'
-                        'plain,47.02,14.99,\nthird,46.99,15.01,\n"<b>off</b>",95,15,\n', name="spots.csv")
+    sheet = write_sheet(
+        'fix,lat,lon,bearing,sd,note\n"</script><b>f</b>",47,15,45,3,"<img src=x onerror=alert(1)>"\n'
+        '"</script><b>f</b>",47,15.02,315,3,\n'
+    )
+    spots = write_sheet(
+        'spot,lat,lon,note\n"<img src=x onerror=alert(1)>",47.01,15.03,"</script><b>x</b>"\n'
+        'plain,47.02,14.99,\nthird,46.99,15.01,\n"<b>off</b>",95,15,\n',
+        name="spots.csv",
+    )
     b = read_bearings(sheet)
     label = b.labels[0]
-    plan = (plan_next_bearing(b, label, around_m=1500.0, step_m=300.0) if grid
-            else plan_next_bearing(b, label, spots=str(spots)))
+    plan = (
+        plan_next_bearing(b, label, around_m=1500.0, step_m=300.0)
+        if grid
+        else plan_next_bearing(b, label, spots=str(spots))
+    )
     m = plan_map(plan)
     page = m.html()
     assert "</script><b>" not in page and "<img src=x" not in page
@@ -645,7 +735,8 @@ def test_plan_map_works_offline_and_escapes_user_text(tmp_path, write_sheet, gri
     m.save(out)
     outside, errors, n_paths, rows, unranked, popup, injected, first_in_panel = _open_map(out)
     assert outside == [] and errors == []
-    assert n_paths == m.n_vectors          # every cell, region, bearing, station and spot drawn is there
+    assert n_paths == m.n_vectors  # every cell, region, bearing, station and spot drawn is there
     assert rows == m.n_listed == min(10, int(plan.table["rank"].notna().sum()))
-    assert unranked == int(plan.table["rank"].isna().sum()) >= 1    # the rejected spot, or the grid's centre    assert popup == 1 and injected == 0
-    assert first_in_panel == "dfk-plan"     # the plan comes first in the panel, above the fix list
+    assert unranked == int(plan.table["rank"].isna().sum()) >= 1  # the rejected spot, or the grid's centre
+    assert popup == 1 and injected == 0
+    assert first_in_panel == "dfk-plan"  # the plan comes first in the panel, above the fix list
