@@ -58,6 +58,15 @@ def speed():
             p = plan_next_bearing(b, "fox-2", basis=basis, **kw)
             dt = time.perf_counter() - t0
             print(f"  {name:<24} {basis:<7} {len(p.table):>6} spots  {dt:7.3f} s   peak {peak_mb():6.0f} MB")
+    from dfkit.planmap import plan_map
+
+    print("map (plan_map(...).html(), basis 'point')")
+    for name, kw in cases[:3]:
+        p = plan_next_bearing(b, "fox-2", **kw)
+        t0 = time.perf_counter()
+        page = plan_map(p).html()
+        dt = time.perf_counter() - t0
+        print(f"  {name:<24} {len(page) / 1e6:6.2f} MB  {dt:6.2f} s   peak {peak_mb():6.0f} MB")
 
 
 def area_at(lat, lon, stations, sd_deg, k2=-2.0 * np.log(0.05)):
