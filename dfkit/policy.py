@@ -70,3 +70,13 @@ MAX_WILD_FRACTION = 0.10
 #: correlation of the absolute error with distance). 0.01 rather than the usual 0.05 because every group is
 #: tested and a false warning sends people to re-do trials; common practice, no source for the level.
 DISTANCE_CHECK_ALPHA = 0.01
+
+#: With a single bearing there is no estimate; a plan averages over positions along the bearing out to
+#: this range [m]. Common practice, no single source: ground-level VHF and 2 m hunt transmitters are
+#: usually heard over a few kilometres; set it (--max-range) from what your kit reaches.
+DEFAULT_MAX_RANGE_M = 5000.0
+
+#: Bearing SD assumed for the spread of plausible positions when no SD is known at all [°] (a plan then
+#: reports ranks and ratios but no areas). Common practice, no single source: hand-held Yagi bearings are
+#: typically good to a few degrees to about 10 degrees.
+NOMINAL_SD_DEG = 5.0
