@@ -148,9 +148,17 @@ def test_hostile_input(case, tmp_path, capsys):
             assert text not in page, text
 
     if "browser" in case:
-        from .test_map_browser import CHROMIUM, _open
+        from .test_map_browser import CHROMIUM, Page
 
         if CHROMIUM is None:
             pytest.skip("Debian's chromium is not installed")
-        outside, errors, _, panel, _ = _open(out / case["browser"])
-        assert outside == [] and errors == [] and panel == case["browser_fixes"], (errors, panel)
+        from playwright.sync_api import sync_playwright
+
+        with sync_playwright() as pw:
+            page = Page(pw, out / case["browser"])
+            try:
+                assert page.outside == [] and page.errors == [], (page.outside, page.errors)
+                assert page.counts()["fix"] == case["browser_fixes"]
+                assert page.page.locator("#fixes .fix").count() == case["browser_fixes"]
+            finally:
+                page.browser.close()
