@@ -148,3 +148,16 @@ def test_verbatim_option_is_documented():
     sub = next(a for a in p._actions if a.dest == "command")
     sub.choices["fix"].print_help(text)
     assert "--verbatim-csv" in text.getvalue() and "formula" in text.getvalue()
+
+
+def test_fix_table_reads_back_for_home_ranges(write_sheet, tmp_path):
+    # A label starting with '#' and a tag a spreadsheet would run: both survive fix -o and the fix-table reader.
+    from dfkit.io.fixes import read_fix_table
+
+    sheet = write_sheet('fix,tag,lat,lon,bearing,sd\n"#B",=T,47,15,45,3\n"#B",=T,47,15.02,315,3\n'
+                        '"#B",=T,47.02,15.01,180,3\nC,=T,47,15,45,3\nC,=T,47,15.02,315,3\nC,=T,47.02,15.01,180,3\n')
+    out = tmp_path / "f.csv"
+    assert main(["fix", str(sheet), "-o", str(out)]) == 0
+    ft = read_fix_table(out)
+    assert ft.table["fix"].tolist() == ["#B", "C"] and ft.tags == ["=T"]
+    assert ft.n_rejected == 0 and ft.table["lat"].notna().all()

@@ -2,6 +2,7 @@
 
 import json
 import os
+import shutil
 import signal
 import subprocess
 import sys
@@ -85,7 +86,7 @@ def test_an_output_that_is_a_folder_is_refused(inputs, capsys):
 
 
 OUTPUTS = [("check -o", "t.csv"), ("fix -o", "t.csv"), ("fix -o", "t.geojson"), ("fix -o", "t.gpx"),
-           ("fix --bearings-out", "t.csv"), ("map -o", "t.html")]
+           ("fix -o", "t.gpkg"), ("fix -o", "t.kml"), ("fix --bearings-out", "t.csv"), ("map -o", "t.html")]
 
 
 @pytest.mark.parametrize("command, name", OUTPUTS)
@@ -105,13 +106,57 @@ def test_a_failed_write_leaves_the_old_file_and_no_debris(inputs, monkeypatch, c
     assert sorted(p.name for p in inputs.iterdir()) == ["sheet.csv", "stations.csv", name, "track.gpx"]
 
 
+def test_a_failed_figure_leaves_no_partial_png(inputs, monkeypatch, capsys):
+    def no_space(fd):
+        raise OSError(28, "No space left on device (injected)")
+
+    monkeypatch.setattr(os, "fsync", no_space)
+    assert main(["fix", "sheet.csv", "--figures", "figs"]) == 2
+    assert "No space left" in capsys.readouterr().err
+    assert list((inputs / "figs").iterdir()) == []
+
+
+OTHER_COMMANDS = [
+    ("calibrate", ["calibrate", "{trials}", "-o", "{alias}"], "trials"),
+    ("calibrate --trials-out", ["calibrate", "{trials}", "--trials-out", "{alias}"], "trials"),
+    ("plan", ["plan", "sheet.csv", "--fix", "A", "--around", "500", "-o", "{alias}"], "sheet.csv"),
+    ("plan --spots", ["plan", "sheet.csv", "--fix", "A", "--spots", "stations.csv", "-o", "{alias}"], "stations.csv"),
+    ("ranges", ["ranges", "fixes.csv", "-o", "{alias}"], "fixes.csv"),
+]
+
+
+@pytest.mark.parametrize("kind", ["dot", "symlink", "hardlink"])
+@pytest.mark.parametrize("name, args, target", OTHER_COMMANDS, ids=[c[0] for c in OTHER_COMMANDS])
+def test_other_commands_refuse_to_overwrite_their_input(inputs, capsys, kind, name, args, target):
+    from .conftest import SAMPLES
+
+    shutil.copy(SAMPLES / "beacon_trials.csv", inputs / "trials.csv")
+    (inputs / "fixes.csv").write_text("fix,tag,lat,lon,status\nA,T,47,15,ok\n")
+    target = "trials.csv" if target == "trials" else target
+    before = (inputs / target).read_bytes()
+    alias = _alias(inputs, target, kind)
+    argv = [a.replace("{trials}", "trials.csv").replace("{alias}", str(alias)) for a in args]
+    assert main(argv) == 2
+    assert "never overwrites its input" in capsys.readouterr().err
+    assert (inputs / target).read_bytes() == before
+
+
+def test_season_show_refuses_a_hard_link_to_its_store(inputs, capsys):
+    assert main(["season", "add", "season.gpkg", "sheet.csv"]) == 0
+    os.link(inputs / "season.gpkg", inputs / "copy.csv")
+    before = (inputs / "season.gpkg").read_bytes()
+    assert main(["season", "show", "season.gpkg", "-o", "copy.csv"]) == 2
+    assert "is the season file" in capsys.readouterr().err
+    assert (inputs / "season.gpkg").read_bytes() == before
+
+
 KILL_AT_SYNC = ("import os, signal, sys\n"
                 "os.fsync = lambda fd: os.kill(os.getpid(), signal.SIGKILL)\n"
                 "from dfkit.cli import main\n"
                 "sys.exit(main(sys.argv[1:]))\n")
 
 
-@pytest.mark.parametrize("command, name", OUTPUTS)
+@pytest.mark.parametrize("command, name", [o for o in OUTPUTS if o[1] != "t.kml"])
 def test_kill_9_just_before_the_rename_leaves_the_old_file(inputs, command, name):
     # The process is killed (SIGKILL) after every byte is written to the temporary file but before the rename.
     target = inputs / name
@@ -120,8 +165,9 @@ def test_kill_9_just_before_the_rename_leaves_the_old_file(inputs, command, name
                        capture_output=True, text=True, env={**os.environ, "PYTHONPATH": str(ROOT)})
     assert r.returncode == -signal.SIGKILL
     assert target.read_text() == "OLD"
-    debris = sorted(p.name for p in inputs.iterdir() if p.name.startswith(f".{name}."))
-    assert len(debris) == 1 and debris[0].endswith(".part")     # the documented leftover, hidden, never `name`
+    stem = os.path.splitext(name)[0]
+    debris = sorted(p.name for p in inputs.iterdir() if p.name.startswith("."))
+    assert len(debris) == 1 and debris[0].startswith(f".{stem}.") and ".part" in debris[0]   # hidden, documented
 
 
 def _big_sheet(path, n_fix, rng):

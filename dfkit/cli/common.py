@@ -64,16 +64,25 @@ def add_output_options(p: argparse.ArgumentParser) -> None:
                         "formula")
 
 
+#: Command-line arguments that name files read (attribute, how messages call it).
+_INPUTS = (("sheet", "the sheet"), ("sheets", "a sheet"), ("trials", "the trials sheet"), ("source", "the input"),
+           ("store", "the season file"), ("stations", "the stations file"), ("track", "the GPS track"),
+           ("calibration", "the calibration file"), ("spots", "the spots file"))
+
+
 def refuse_unsafe_outputs(a, outputs) -> None:
     """Refuse (``ValueError``, exit 2) before any work an output that would overwrite an input or another output.
 
-    ``outputs`` is a list of (option, path). An output is the same file as an input (the sheet, ``--stations``,
-    ``--track``) when :func:`os.path.samefile` says so: this catches ``./sheet.csv``, symbolic links and hard
-    links. An output that is a folder is refused too.
+    ``outputs`` is a list of (option, path). An output is the same file as an input (the sheet, trials, fixes or
+    season file, ``--stations``, ``--track``, ``--calibration``, ``--spots``) when :func:`os.path.samefile` says
+    so: this catches ``./sheet.csv``, symbolic links and hard links. An output that is a folder is refused too.
     """
-    inputs = [(what, getattr(a, attr, None)) for what, attr in
-              (("the sheet", "sheet"), ("the stations file", "stations"), ("the GPS track", "track"))]
-    inputs = [(what, path) for what, path in inputs if path and os.path.exists(path)]
+    inputs = []
+    for attr, what in _INPUTS:
+        value = getattr(a, attr, None)
+        for path in value if isinstance(value, (list, tuple)) else [value]:
+            if path and os.path.exists(path):
+                inputs.append((what, path))
     seen: list[tuple[str, str]] = []
     for option, path in outputs:
         if not path:

@@ -11,6 +11,7 @@ import sys
 
 from dfkit.cli.common import (add_fix_options, add_read_options, ensure_dir, exit_status, print_summary,
                               refuse_unsafe_outputs, solve)
+from dfkit.export.atomic import save_figure
 
 
 def add_figures_option(p) -> None:
@@ -68,7 +69,7 @@ def write_figures(fixes, folder, progress=None) -> list[str]:
                     source=fixes.source)
         try:
             fig = fix_plot(one, t["fix"].iat[i])
-            fig.savefig(os.path.join(folder, _safe_name(i, label)), dpi=110)
+            save_figure(fig, os.path.join(folder, _safe_name(i, label)), dpi=110)
             import matplotlib.pyplot as plt
 
             plt.close(fig)

@@ -94,3 +94,40 @@ def atomic_write(path, mode="w", *, encoding="utf-8", newline=None):
             os.unlink(tmp)
         raise
     _fsync_folder(folder)
+
+
+@contextlib.contextmanager
+def atomic_path(path):
+    """A temporary path beside ``path`` for writers that need a file name (GDAL, SQLite, matplotlib by name).
+
+    The path keeps the target's extension (so a driver chosen by extension is the same). On success the file is
+    ``fsync``-ed and renamed over ``path``; on failure or a kill ``path`` is left as it was.
+    """
+    path = os.fspath(path)
+    if os.path.isdir(path):
+        raise IsADirectoryError(f"cannot write '{path}': it is a folder")
+    folder = os.path.dirname(os.path.abspath(path))
+    os.makedirs(folder, exist_ok=True)
+    base, ext = os.path.splitext(os.path.basename(path))
+    fd, tmp = tempfile.mkstemp(prefix=f".{base}.", suffix=f".part{ext}", dir=folder)
+    os.close(fd)
+    os.unlink(tmp)        # the writer creates the file itself
+    try:
+        yield tmp
+        with open(tmp, "rb+") as fh:
+            os.fsync(fh.fileno())
+        with contextlib.suppress(OSError):
+            os.chmod(tmp, _mode_for(path))
+        os.replace(tmp, path)
+    except BaseException:
+        with contextlib.suppress(OSError):
+            os.unlink(tmp)
+        raise
+    _fsync_folder(folder)
+
+
+def save_figure(fig, path, **kwargs) -> None:
+    """``fig.savefig(path, **kwargs)``, atomically (the format follows the extension, as matplotlib does)."""
+    ext = os.path.splitext(os.fspath(path))[1].lstrip(".").lower() or "png"
+    with atomic_write(path, "wb") as fh:
+        fig.savefig(fh, format=kwargs.pop("format", ext), **kwargs)

@@ -224,7 +224,7 @@ def _parse_header(line: str, line_no: int, delimiter: str, name: str, problems) 
     return header
 
 
-def _resolve_header(header, header_line, name, problems) -> tuple[list[str], list[str]]:
+def _resolve_header(header, header_line, name, problems, keep_own=False) -> tuple[list[str], list[str]]:
     """Column names for the header cells, and the names of the derived columns that are not read."""
     if header is None:
         raise SheetError(f"{name or 'the sheet'} has no header row")
@@ -238,11 +238,13 @@ def _resolve_header(header, header_line, name, problems) -> tuple[list[str], lis
     for j, (raw, col) in enumerate(zip(header, canon), start=1):
         if not col:
             col = f"column_{j}"
-        if col in COLUMN_ALIASES and COLUMN_ALIASES[col] not in present:
+        if not keep_own and col in COLUMN_ALIASES and COLUMN_ALIASES[col] not in present:
             alias = COLUMN_ALIASES[col]
             problems.append(Problem(header_line, raw.strip(), f"read as '{alias}'", "warning", name))
             col = alias
-        if col in DERIVED_COLUMNS or (col == "line" and "line_in_sheet" in present):
+        if keep_own and col in (*DERIVED_COLUMNS, "line"):
+            col = "line_in_sheet" if col == "line" else col
+        elif col in DERIVED_COLUMNS or (col == "line" and "line_in_sheet" in present):
             derived.append(col)
             col = f"\x00derived_{j}"     # a name no header can produce; the column is dropped after reading
         elif col == "line":
@@ -276,7 +278,7 @@ def _resolve_header(header, header_line, name, problems) -> tuple[list[str], lis
 
 # --------------------------------------------------------------------------- reading
 
-def read_sheet(source, *, name: str | None = None) -> RawSheet:
+def read_sheet(source, *, name: str | None = None, own_results: str = "recompute") -> RawSheet:
     """Read a bearing sheet into text cells.
 
     Parameters
@@ -285,6 +287,11 @@ def read_sheet(source, *, name: str | None = None) -> RawSheet:
         A path, the file's bytes, or an open binary/text file.
     name : str, optional
         Name used in messages (defaults to the file name).
+    own_results : {'recompute', 'keep'}
+        What to do with dfkit's own result columns (:data:`DERIVED_COLUMNS`, ``line``):
+        'recompute' (a bearing sheet) leaves them out with a note and keeps ``line`` as
+        ``line_in_sheet``; 'keep' (a table of results read as such) reads them, and every other
+        column, under its own name (no other spellings are read as known columns).
 
     Returns
     -------
@@ -341,7 +348,9 @@ def read_sheet(source, *, name: str | None = None) -> RawSheet:
     delimiter = _sniff_delimiter(header_line)
     header = _parse_header(header_line, header_idx + 1, delimiter, name, problems)
     header = [h.strip()[1:] if _GUARDED.match(h.strip()) else h for h in header]
-    columns, derived = _resolve_header(header, header_idx + 1, name, problems)
+    if own_results not in ("recompute", "keep"):
+        raise ValueError(f"own_results='{own_results}' must be 'recompute' or 'keep'")
+    columns, derived = _resolve_header(header, header_idx + 1, name, problems, own_results == "keep")
     width = len(columns)
 
     got = _fast_read(text, lines, header_idx, delimiter, width)

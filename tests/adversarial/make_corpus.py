@@ -108,6 +108,9 @@ def corpus() -> dict[str, bytes]:
     f["far_crossing.csv"] = HEAD + "FAR,47.000,15.000,0.5,3,\nFAR,47.000,15.010,0,3,\n" + \
         "DIV,47.000,15.000,359.5,3,\nDIV,47.000,15.010,0,3,\n" + "PAR,47.000,15.000,0,3,\nPAR,47.000,15.010,0,3,\n"
     f["no_sd_column.csv"] = "fix,lat,lon,bearing\n" + "A,47.000,15.000,45\nA,47.000,15.020,315\nA,47.020,15.010,180\n"
+    f["fix_table_hostile.csv"] = ("fix,tag,lat,lon,status\n" + "".join(
+        f'"#{i}",T,{47 + i * 1e-3:.4f},{15 + (i % 3) * 1e-3:.4f},ok\n' for i in range(6))
+        + "X,T,999,15,ok\n" + '"=cmd()",T,47.01,15.01,ok\n').encode() + b"Y,T,47\x00,15,ok\n"
     # -- GPS tracks and stations
     f["track_sheet.csv"] = "fix,time,bearing,sd\n" + "".join(
         f"T,2026-05-03T06:0{m}:05Z,{b:.1f},3\n" for m, b in zip(range(4), _track_bearings()))
