@@ -418,3 +418,29 @@ def test_guarded_cells_are_read_as_they_were(write_sheet):
     assert raw.table["fix"].tolist() == ["=A", "@B"]
     assert raw.table["note"].tolist() == ["'-x", "'x"]
     assert "=col" in raw.columns
+
+
+NOTE_TEXT = st.text(alphabet="abcäöüßéèñ ABC-.", max_size=8)
+
+
+@settings(max_examples=100, deadline=None)
+@given(lines=st.lists(st.tuples(NOTE_TEXT, st.booleans(), st.sampled_from(["\n", "\r\n", "\r"])), min_size=1,
+                      max_size=12))
+def test_each_line_is_decoded_on_its_own(lines):
+    # Python's own codecs are the reference: a line is read as UTF-8 when its bytes are valid UTF-8, otherwise
+    # as Windows-1252; exactly the lines that fell back are named.
+    data = b"fix,note\n"
+    expect, fallback = [], []
+    for k, (note, as_1252, end) in enumerate(lines, start=2):
+        raw = f"A{k},{note}".encode("cp1252" if as_1252 else "utf-8")
+        data += raw + end.encode()
+        try:
+            expect.append(raw.decode("utf-8").split(",", 1)[1].strip())
+        except UnicodeDecodeError:
+            expect.append(raw.decode("cp1252").split(",", 1)[1].strip())
+            fallback.append(k)
+    raw = read_sheet(data, name="mixed.csv")
+    assert raw.table["line"].tolist() == list(range(2, 2 + len(lines)))
+    assert raw.table["note"].tolist() == expect
+    named = sorted(p.line for p in raw.problems if "Windows-1252" in p.message)
+    assert named == (fallback if len(fallback) <= 20 else fallback[:1])

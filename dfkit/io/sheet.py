@@ -139,13 +139,23 @@ def _decode(data: bytes, source: str, problems: list[Problem]) -> str:
     except UnicodeDecodeError:
         pass
     text = data.decode("utf-8", "surrogateescape")
-    parts = _LINE_END.split(text)
-    ends = _LINE_END.findall(text)
-    bad = []
-    for i, part in enumerate(parts):
-        if _SURROGATE.search(part):
-            parts[i] = part.encode("utf-8", "surrogateescape").decode("cp1252", errors="replace")
-            bad.append(i + 1)
+    # Only the lines holding undecodable bytes are re-read; they are found from the bad bytes, not line by line.
+    pieces, bad = [], []
+    done = 0                 # text[:done] is settled
+    counted, line_no = 0, 1  # line_no is the number of the line starting at `counted`
+    for m in _SURROGATE.finditer(text):
+        if m.start() < done:
+            continue         # on a line already re-read
+        start = max(text.rfind("\n", 0, m.start()), text.rfind("\r", 0, m.start())) + 1
+        ends = [k for k in (text.find("\n", m.start()), text.find("\r", m.start())) if k >= 0]
+        end = min(ends) if ends else len(text)
+        line_no += len(_LINE_END.findall(text, counted, start))
+        counted = start
+        pieces.append(text[done:start])
+        pieces.append(text[start:end].encode("utf-8", "surrogateescape").decode("cp1252", errors="replace"))
+        bad.append(line_no)
+        done = end
+    pieces.append(text[done:])
     advice = "save the sheet as 'CSV UTF-8' to be sure of accented text"
     if len(bad) <= 20:
         for line in bad:
@@ -154,10 +164,7 @@ def _decode(data: bytes, source: str, problems: list[Problem]) -> str:
     else:
         problems.append(Problem(bad[0], "", f"{len(bad)} lines are not UTF-8 ({_list_lines(bad)}); each was read "
                                 f"as Windows-1252 ({advice})", "warning", source))
-    out = [None] * (len(parts) + len(ends))
-    out[::2] = parts
-    out[1::2] = ends
-    return _not_binary("".join(out), source)
+    return _not_binary("".join(pieces), source)
 
 
 def _not_binary(text: str, name: str) -> str:
@@ -179,7 +186,7 @@ def _check_text(text: str, name: str) -> str:
 
 def _physical_lines(text: str) -> list[str]:
     """Lines as the csv module counts them (ends: \\r\\n, \\r or \\n), without their ends."""
-    lines = _LINE_END.split(text)
+    lines = text.split("\n") if "\r" not in text else _LINE_END.split(text)
     if lines and lines[-1] == "":
         lines.pop()
     return lines
@@ -355,7 +362,7 @@ def read_sheet(source, *, name: str | None = None, own_results: str = "recompute
 
     got = _fast_read(text, lines, header_idx, delimiter, width)
     if got is None:
-        got = _careful_read(lines, header_idx, delimiter, width, name, problems)
+        got = _careful_read(lines, header_idx, delimiter, width, name, problems, "'" in text)
     line_no, cells, more_comments, more_blanks, n_unguarded = got
     comments += more_comments
     blanks += more_blanks
@@ -381,14 +388,11 @@ def read_sheet(source, *, name: str | None = None, own_results: str = "recompute
                     comment_lines=comments, blank_lines=blanks)
 
 
-_NOT_SIMPLE = re.compile('["\r\x00]')
-
-
 def _fast_read(text, lines, header_idx, delimiter, width):
     """The common case read by pandas' C parser: no quotes, no NUL and plain line ends, so one physical line
     is one row and line numbers follow directly. Returns (lines, cells per column, comment lines, blank
     lines), or None for the careful path."""
-    if _NOT_SIMPLE.search(text.replace("\r\n", "\n") if "\r" in text else text):
+    if '"' in text or "\x00" in text or ("\r" in text and "\r" in text.replace("\r\n", "\n")):
         return None
     body_lines = lines[header_idx + 1:]
     n = len(body_lines)
@@ -449,6 +453,10 @@ _PADDING_TAB = re.compile(r"[^\S\n\t]")
 
 def _has_padding(body, delimiter):
     """Whether any cell may carry surrounding white space (anything str.strip() removes)."""
+    if " " in body or (delimiter != "\t" and "\t" in body):
+        return True
+    if body.isascii():     # the other ASCII white space, found by fast substring searches
+        return any(ch in body for ch in "\x0b\x0c\x1c\x1d\x1e\x1f")
     return (_PADDING_TAB if delimiter == "\t" else _PADDING).search(body) is not None
 
 
@@ -488,7 +496,7 @@ class _Lines:
         raise StopIteration
 
 
-def _careful_read(lines, header_idx, delimiter, width, name, problems):
+def _careful_read(lines, header_idx, delimiter, width, name, problems, guarded):
     """Row by row with the csv module: quoted cells, multi-line cells, stray quotes, NUL bytes, huge cells."""
     feed = _Lines(lines, header_idx + 1)
     reader = csv.reader(feed, delimiter=delimiter)
@@ -529,7 +537,7 @@ def _careful_read(lines, header_idx, delimiter, width, name, problems):
         if len(feed.nul_lines) > n_nul:
             refuse(first, row, "this row holds NUL bytes (a damaged file?); it is not used")
             continue
-        if not row or all(not c.strip() for c in row):
+        if not "".join(row).strip():
             blanks.append(first)
             continue
         if len(row) > width and any(c.strip() for c in row[width:]):
@@ -542,16 +550,23 @@ def _careful_read(lines, header_idx, delimiter, width, name, problems):
         rows.append(row)
 
     cells: list[list[str]] = [[] for _ in range(width)]
+    n_unguarded = 0
     for row in rows:
         if len(row) > width:
             row = row[:width]
         elif len(row) < width:
             row = row + [""] * (width - len(row))
         for j in range(width):
-            cells[j].append(row[j])
+            c = row[j].strip()
+            if guarded and c[:1] == "'":     # as _tidy: one guard ' removed after leading space, then strip
+                raw = row[j].lstrip()
+                if _GUARDED.match(raw):
+                    c = raw[1:].strip()
+                    n_unguarded += 1
+            cells[j].append(c)
     cells_arr = [np.asarray(c, dtype=object) if c else np.zeros(0, object) for c in cells]
     order = np.argsort(np.asarray(starts, dtype=np.int64), kind="stable")
-    cells_arr, n_unguarded = _tidy([c[order] for c in cells_arr], True, any("'" in ln for ln in lines))
+    cells_arr = [c[order] for c in cells_arr]
     starts_arr = np.asarray(starts, dtype=np.int64)[order]
     if n_unguarded:     # a row of nothing but guarded white space ('\t) is blank once read
         blank = np.ones(len(starts_arr), bool)
