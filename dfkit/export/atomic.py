@@ -74,26 +74,12 @@ def atomic_write(path, mode="w", *, encoding="utf-8", newline=None):
     >>> (d / "x.txt").read_text()
     'whole'
     """
-    path = os.fspath(path)
-    if os.path.isdir(path):
-        raise IsADirectoryError(f"cannot write '{path}': it is a folder")
-    folder = os.path.dirname(os.path.abspath(path))
-    os.makedirs(folder, exist_ok=True)
-    fd, tmp = tempfile.mkstemp(prefix=f".{os.path.basename(path)}.", suffix=".part", dir=folder)
-    try:
-        kw = {} if "b" in mode else {"encoding": encoding, "newline": newline}
+    kw = {} if "b" in mode else {"encoding": encoding, "newline": newline}
+    with _beside(path, f".{os.path.basename(os.fspath(path))}.", ".part") as (fd, tmp):
         with os.fdopen(fd, mode, **kw) as fh:
             yield fh
             fh.flush()
             os.fsync(fh.fileno())
-        with contextlib.suppress(OSError):
-            os.chmod(tmp, _mode_for(path))
-        os.replace(tmp, path)
-    except BaseException:
-        with contextlib.suppress(OSError):
-            os.unlink(tmp)
-        raise
-    _fsync_folder(folder)
 
 
 @contextlib.contextmanager
@@ -103,19 +89,27 @@ def atomic_path(path):
     The path keeps the target's extension (so a driver chosen by extension is the same). On success the file is
     ``fsync``-ed and renamed over ``path``; on failure or a kill ``path`` is left as it was.
     """
+    base, ext = os.path.splitext(os.path.basename(os.fspath(path)))
+    with _beside(path, f".{base}.", f".part{ext}") as (fd, tmp):
+        os.close(fd)
+        os.unlink(tmp)        # the writer creates the file itself
+        yield tmp
+        with open(tmp, "rb+") as fh:
+            os.fsync(fh.fileno())
+
+
+@contextlib.contextmanager
+def _beside(path, prefix, suffix):
+    """A new temporary file (fd, name) in the target's folder; renamed over the target when the block succeeds
+    (with the target's permissions, then the folder synced), removed when it fails."""
     path = os.fspath(path)
     if os.path.isdir(path):
         raise IsADirectoryError(f"cannot write '{path}': it is a folder")
     folder = os.path.dirname(os.path.abspath(path))
     os.makedirs(folder, exist_ok=True)
-    base, ext = os.path.splitext(os.path.basename(path))
-    fd, tmp = tempfile.mkstemp(prefix=f".{base}.", suffix=f".part{ext}", dir=folder)
-    os.close(fd)
-    os.unlink(tmp)        # the writer creates the file itself
+    fd, tmp = tempfile.mkstemp(prefix=prefix, suffix=suffix, dir=folder)
     try:
-        yield tmp
-        with open(tmp, "rb+") as fh:
-            os.fsync(fh.fileno())
+        yield fd, tmp
         with contextlib.suppress(OSError):
             os.chmod(tmp, _mode_for(path))
         os.replace(tmp, path)
