@@ -30,3 +30,47 @@ POSITION_AGREEMENT_M = 50.0
 #: Default largest time from a bearing to the nearest GPS track point [s]
 #: (common practice, no source: a GPS logging every few seconds leaves no larger gaps).
 DEFAULT_TRACK_GAP_S = 60.0
+
+# --------------------------------------------------------------------------- reading sheets (issue 7)
+
+#: Unlabelled bearings of one tag form one fix while each follows the previous one within the window:
+#: a fix may still last at most this many windows before it is flagged ``long_span`` (a chain of
+#: bearings 15 min apart for two hours is not one position of a moving animal). Common practice, no source.
+FIX_SPAN_WINDOWS = 3.0
+
+#: Bearings with the same tag and fix label but more than this many hours apart are not one fix: the
+#: label is split into one fix per part (another day, another session) [h]. Common practice, no source:
+#: longer than any hunt or tracking session, shorter than the night between two field days.
+SPLIT_LABEL_GAP_H = 6.0
+
+#: Years dfkit accepts in a time: from the start of GPS time (6 January 1980, IS-GPS-200) to 2100; a
+#: year outside is a typing error (2206, 1026). A plausibility rule of dfkit's own, no source.
+PLAUSIBLE_YEARS = (1980, 2100)
+
+#: A latitude-band letter is consistent with a UTM position within this margin of the band's edges [°]
+#: (about 5.5 km: a position read off a map sheet of the neighbouring band). dfkit's own choice, no source.
+BAND_EDGE_MARGIN_DEG = 0.05
+
+#: A row's lat/lon looks swapped when, as written, it lies farther than the first value from its own
+#: fix's other positions (or the GPS track) while swapped it lies within the second [°]. Common
+#: practice, no source: stations of one fix are a few km apart, so 5° (about 550 km) is a typing error.
+SWAPPED_FAR_DEG = 5.0
+SWAPPED_NEAR_DEG = 0.5
+
+#: A UTM row outside its zone's strip is refused as a likely missing or extra digit when the other
+#: rows of its fix in the same zone lie inside the strip and more than this far from it [m].
+#: dfkit's own rule, no source: stations of one fix are rarely more than tens of km apart.
+OUT_OF_STRIP_TYPO_M = 100_000.0
+
+#: Lowest bearing SD dfkit accepts, in the sheet or as an option [°]. Common practice, no source: the
+#: best fixed DF systems reach a few tenths of a degree; 0.01° (36 arc-seconds) is beyond any DF
+#: antenna, and much smaller values make the ellipse arithmetic underflow (1e-150° gave no ellipse).
+MIN_SD_DEG = 0.01
+
+#: Largest grouping window [min]: longer windows would join bearings that dfkit splits as another
+#: session (:data:`SPLIT_LABEL_GAP_H`).
+MAX_WINDOW_MIN = 60.0 * SPLIT_LABEL_GAP_H
+
+#: Largest --track-gap [s]: a position interpolated over more than an hour of missing track is a guess.
+#: Common practice, no source.
+MAX_TRACK_GAP_S = 3600.0

@@ -4,7 +4,7 @@ import numpy as np
 import pytest
 from geographiclib.geodesic import Geodesic
 
-from dfkit import coords, magnetic, read_bearings
+from dfkit import grids as coords, magnetic, read_bearings
 from dfkit.conventions import to_degrees
 
 # NOAA/CIRES, WMM2025 technical report, test-value table (tests/WMM2025_TEST_VALUE_TABLE_FOR_REPORT.txt

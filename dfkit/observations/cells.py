@@ -1,0 +1,250 @@
+"""Text cells to numbers and angles, as people write them.
+
+Every parser here is vectorised: the common case (plain numbers) is parsed in C by
+pandas, and only the cells that fail go through Python, once per distinct value.
+Each returns :class:`Cells`: values, which cells were empty, and a message for each
+cell that could not be read ('' when fine).
+
+Angles (:func:`angles`) accept decimal degrees and sexagesimal forms with symbols
+or spaces and a hemisphere letter before or after: ``48.9687``, ``-48.9687``,
+``48.9687N``, ``N48.9687``, ``48°58'07.4"N``, ``48°58.123'N``, ``N48 58.123``,
+``48 58 7.4 N``, ``48:58:07.4``, ``48d58'07.4"``. Minutes and seconds must be below
+60 and only the last part may have decimals. These are the forms of the EPSG
+units of measure 9110/9116-9121 (sexagesimal DMS, degrees-minutes with a
+hemisphere before or after; EPSG Geodetic Parameter Dataset) and of the examples
+in GeographicLib's GeoConvert(1) manual ("33d18'N 44d24'E", "E44.4 N33.3",
+"33:18 44:24"). The letter O is not read as west: it means west in Spanish (oeste)
+and east in German (Ost).
+"""
+
+from __future__ import annotations
+
+import re
+from dataclasses import dataclass
+
+import numpy as np
+import pandas as pd
+
+
+@dataclass
+class Cells:
+    """Parsed cells: ``values`` (NaN where empty or unreadable), ``empty`` and ``error``
+    (one message per cell, '' when the cell was read)."""
+
+    values: np.ndarray
+    empty: np.ndarray
+    error: np.ndarray
+
+    @property
+    def bad(self) -> np.ndarray:
+        return self.error != ""
+
+
+def column(table: pd.DataFrame, name: str) -> np.ndarray:
+    """The text cells of a column, or '' everywhere when the table has no such column."""
+    if name in table.columns:
+        return table[name].to_numpy(dtype=object)
+    return np.full(len(table), "", dtype=object)
+
+
+def per_value(cells, func):
+    """Apply ``func`` once per distinct cell value (columns like unit or north repeat a few values)."""
+    codes, uniques = pd.factorize(np.asarray(cells, dtype=object))
+    mapped = np.empty(len(uniques), dtype=object)
+    for k, u in enumerate(uniques):
+        mapped[k] = func(u)
+    return mapped[codes] if len(codes) else np.zeros(0, dtype=object)
+
+
+def canonical(cells, aliases: dict, default: str):
+    """Map spellings to canonical words (``'Mag'`` -> ``'magnetic'``); returns (words, unknown mask).
+    Empty cells take ``default``; unknown ones also get ``default`` (the row is rejected by the caller)."""
+    low = per_value(cells, lambda u: str(u).strip().lower())
+    canon = per_value(low, lambda u: aliases.get(u, default if u == "" else None))
+    unknown = pd.isna(canon).astype(bool) if len(canon) else np.zeros(0, bool)
+    out = canon.copy()
+    out[unknown] = default
+    return out, unknown
+
+
+_DEC_COMMA = re.compile(r"^[+-]?\d*,\d+$")
+_SPELLED_NON_FINITE = {"nan", "inf", "-inf", "+inf", "infinity", "-infinity", "+infinity"}
+
+
+def numbers(cells, decimal_comma: bool = False) -> Cells:
+    """Text cells to floats: plain numbers in C, the rest once per distinct value.
+
+    A trailing degree sign is allowed; a decimal comma is read in sheets that allow it
+    (semicolon- or tab-separated) and explained elsewhere; NaN and infinity are refused.
+    """
+    cells = np.asarray(cells, dtype=object)
+    fast = pd.to_numeric(pd.Series(cells, dtype=object), errors="coerce").to_numpy(dtype=float, copy=True)
+    empty = cells == ""
+    slow = ~np.isfinite(fast) & ~empty
+    error = np.full(len(cells), "", dtype=object)
+    if slow.any():
+        vals = per_value(cells[slow], lambda u: _one_number(u, decimal_comma))
+        fast[slow] = [v for v, _ in vals]
+        error[slow] = [e for _, e in vals]
+        empty[slow] = [e is None for _, e in vals]
+        error[slow] = np.where(error[slow] == None, "", error[slow])  # noqa: E711 (object array)
+    return Cells(np.where(empty | (error != ""), np.nan, fast), empty, error)
+
+
+def _one_number(text, decimal_comma):
+    s = str(text).strip().replace("\u2212", "-").rstrip("°º").strip()
+    if s == "":
+        return np.nan, None
+    if s.lower() in _SPELLED_NON_FINITE:
+        return np.nan, f"'{text}' is not a finite number"
+    is_dc = bool(_DEC_COMMA.match(s))
+    if is_dc and decimal_comma:
+        s = s.replace(",", ".")
+    try:
+        v = float(s)
+    except ValueError:
+        hint = (" (a decimal comma: use a point, or a semicolon-separated sheet)" if is_dc and not decimal_comma
+                else "")
+        return np.nan, f"'{text}' is not a finite number{hint}"
+    if not np.isfinite(v):
+        return np.nan, f"'{text}' is not a finite number"
+    return v, ""
+
+
+# --------------------------------------------------------------------------- angles
+
+_PRIMES = str.maketrans({"\u2032": "'", "\u2019": "'", "\u2018": "'", "\u02b9": "'", "`": "'", "\u00b4": "'",
+                         "\u2033": '"', "\u201d": '"', "\u201c": '"', "\u02ba": '"',
+                         "\u00ba": "°", "\u02da": "°", "\u2070": "°", "\u2212": "-"})
+_HEMI_FIRST = re.compile(r"^([NSEWnsew])\s*(.+)$")
+_HEMI_LAST = re.compile(r"^(.+?)\s*([NSEWnsew])$")
+_PART = re.compile(r"\s*(\d+(?:\.\d*)?|\.\d+)\s*(°|d|deg|'|\"|:)?")
+_MARK = {"°": 0, "d": 0, "deg": 0, "'": 1, '"': 2}
+_SIGN = {"N": 1, "S": -1, "E": 1, "W": -1}
+_AXIS = {"N": "lat", "S": "lat", "E": "lon", "W": "lon"}
+
+
+def parse_angle(text: str, *, decimal_comma: bool = False):
+    """One angle as written to ``(degrees, axis, error)``.
+
+    ``axis`` is 'lat' for an N/S letter, 'lon' for E/W, '' without one; ``error`` is ''
+    when the text was read. See the module docstring for the accepted forms.
+
+    >>> parse_angle("48°58'07.4\\"N")[:2]
+    (48.96872222222222, 'lat')
+    >>> parse_angle("W 3 30.5")[:2]
+    (-3.5083333333333333, 'lon')
+    """
+    raw = str(text)
+    s = raw.strip().translate(_PRIMES).replace("''", '"')
+    if decimal_comma:
+        s = s.replace(",", ".")
+    letter = ""
+    m = _HEMI_FIRST.match(s)
+    if m and not s[:1].isdigit():
+        letter, s = m.group(1).upper(), m.group(2)
+    m2 = _HEMI_LAST.match(s)
+    if m2:
+        if letter:
+            return np.nan, "", f"'{raw}' has two hemisphere letters"
+        letter, s = m2.group(2).upper(), m2.group(1)
+    s = s.strip()
+    sign = 1.0
+    if s[:1] in "+-":
+        sign = -1.0 if s[0] == "-" else 1.0
+        s = s[1:]
+    parts = []
+    pos = 0
+    while pos < len(s):
+        pm = _PART.match(s, pos)
+        if not pm or pm.end() == pos:
+            return np.nan, "", _not_angle(raw)
+        parts.append((pm.group(1), pm.group(2) or ""))
+        pos = pm.end()
+        if pos < len(s) and s[pos] in ",;":
+            return np.nan, "", _not_angle(raw)
+    if not parts or len(parts) > 3:
+        return np.nan, "", _not_angle(raw)
+    slots = [None, None, None]
+    any_mark = any(mk in _MARK for _, mk in parts)
+    last = -1
+    for k, (num, mk) in enumerate(parts):
+        slot = _MARK[mk] if mk in _MARK else (last + 1 if any_mark else k)
+        if slot > 2 or slot <= last:
+            return np.nan, "", _not_angle(raw)
+        slots[slot] = num
+        last = slot
+    filled = [i for i in range(3) if slots[i] is not None]
+    if filled != list(range(len(filled))):
+        return np.nan, "", _not_angle(raw)
+    if any("." in slots[i] for i in filled[:-1]):
+        return np.nan, "", f"'{raw}': only the last part (degrees, minutes or seconds) may have decimals"
+    d, mi, se = (float(slots[i]) if slots[i] is not None else 0.0 for i in range(3))
+    if mi >= 60 or se >= 60:
+        return np.nan, "", f"'{raw}': minutes and seconds must be below 60"
+    if letter and sign < 0:
+        return np.nan, "", f"'{raw}' has both a minus sign and a hemisphere letter; give one of them"
+    value = sign * (d + mi / 60.0 + se / 3600.0) * _SIGN.get(letter, 1)
+    return value, _AXIS.get(letter, ""), ""
+
+
+def _not_angle(raw):
+    return (f"'{raw}' is not a position angle; write decimal degrees (48.9687) or degrees, minutes, seconds "
+            "(48°58'07.4\"N, 48°58.123'N, N48 58.123)")
+
+
+def angles(cells, axis: str, decimal_comma: bool = False) -> Cells:
+    """Latitude or longitude cells (``axis`` 'lat' or 'lon') to signed degrees.
+
+    Plain numbers go the fast way; other cells are read by :func:`parse_angle`. A
+    hemisphere letter of the other axis (E/W in a latitude) is refused: the columns
+    are probably swapped.
+    """
+    cells = np.asarray(cells, dtype=object)
+    fast = pd.to_numeric(pd.Series(cells, dtype=object), errors="coerce").to_numpy(dtype=float, copy=True)
+    empty = cells == ""
+    slow = ~np.isfinite(fast) & ~empty
+    error = np.full(len(cells), "", dtype=object)
+    if slow.any():
+        res = per_value(cells[slow], lambda u: _one_angle(u, axis, decimal_comma))
+        fast[slow] = [v for v, _ in res]
+        error[slow] = [e for _, e in res]
+        empty[slow] = [e is None for _, e in res]
+        error[slow] = np.where(error[slow] == None, "", error[slow])  # noqa: E711
+    return Cells(np.where(empty | (error != ""), np.nan, fast), empty, error)
+
+
+def _one_angle(text, axis, decimal_comma):
+    s = str(text).strip()
+    if s == "":
+        return np.nan, None
+    v, err = _one_number(s, decimal_comma)
+    if err == "":
+        return v, ""
+    if s.lower() in _SPELLED_NON_FINITE or _DEC_COMMA.match(s):
+        return np.nan, err
+    v, got, err = parse_angle(s, decimal_comma=decimal_comma)
+    if err:
+        return np.nan, err
+    if got and got != axis:
+        other = "E/W (a longitude)" if got == "lon" else "N/S (a latitude)"
+        return np.nan, f"'{s}' has the letter {other} in the {axis} column: lat and lon look swapped"
+    return v, ""
+
+
+def declinations(cells, decimal_comma: bool = False) -> Cells:
+    """Declination cells: '3.5', '-3.5', '3.5E' or '3.5W' (also with a degree sign) -> degrees east."""
+    cells = np.asarray(cells, dtype=object)
+    if not (cells != "").any():
+        n = len(cells)
+        return Cells(np.full(n, np.nan), np.ones(n, bool), np.full(n, "", dtype=object))
+    s = pd.Series(cells, dtype=object).astype(str).str.strip().str.upper()
+    west = s.str.endswith("W").to_numpy()
+    east = s.str.endswith("E").to_numpy()
+    stripped = s.str.rstrip("EW").str.strip().to_numpy(dtype=object)
+    c = numbers(stripped, decimal_comma)
+    bad = c.bad | ((west | east) & (c.values < 0))   # '-3W' is ambiguous
+    err = np.full(len(cells), "", dtype=object)
+    err[bad] = [f"'{x}' is not a declination; write degrees east (-3.5) or 3.5W" for x in cells[bad]]
+    vals = np.where(west, -c.values, c.values)
+    return Cells(np.where(bad, np.nan, vals), c.empty, err)
