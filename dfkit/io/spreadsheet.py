@@ -66,7 +66,11 @@ def read_spreadsheet(source, *, worksheet: str | None = None, name: str | None =
     except (CalamineError, ValueError) as err:
         raise SheetError(f"{label}: sheet '{sheet_name}' cannot be read ({_short(err)})") from None
     shown = f"{label} [{sheet_name}]" if worksheet or len(wb.sheet_names) > 1 else label
-    return _to_raw(rows, shown, sheet_name, wb.sheet_names)
+    raw = _to_raw(rows, shown, sheet_name, wb.sheet_names)
+    if worksheet is None and len(wb.sheet_names) > 1:
+        raw.problems.insert(0, Problem(0, "", f"the workbook has sheets {', '.join(wb.sheet_names)}; '{sheet_name}' was "
+                                       "read (--sheet NAME reads another)", "warning", shown))
+    return raw
 
 
 def _short(err) -> str:

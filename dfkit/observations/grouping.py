@@ -93,9 +93,7 @@ def _split_labels(fix, grouped_by, labels, tags, times, timed, split_gap_s, log,
     lab = np.flatnonzero((labels != "") & timed)
     if len(lab) < 2:
         return
-    key = pd.Series(tags[lab], dtype=object).astype(str).str.len().astype(str) + ":" + \
-        pd.Series(tags[lab], dtype=object).astype(str) + "|" + pd.Series(labels[lab], dtype=object).astype(str)
-    codes, _ = pd.factorize(key.to_numpy(dtype=object))
+    codes = pair_codes(tags[lab], labels[lab])
     order = np.lexsort((times[lab], codes))
     rows = lab[order]
     c = codes[order]
@@ -132,24 +130,34 @@ def _split_labels(fix, grouped_by, labels, tags, times, timed, split_gap_s, log,
     notes.append("fix labels split by time are written '<label> (<first bearing, UTC>)'")
 
 
-def fix_identities(fix, tag, bad, lines):
+def pair_codes(tag, fix, mask=None) -> np.ndarray:
+    """One integer per distinct (tag, label) pair, in order of first appearance (-1 where ``mask`` is False)."""
+    ct, _ = pd.factorize(np.asarray(tag, dtype=object))
+    cf, uf = pd.factorize(np.asarray(fix, dtype=object))
+    combined = ct.astype(np.int64) * (len(uf) + 1) + cf
+    keep = np.ones(len(combined), bool) if mask is None else np.asarray(mask, bool)
+    codes = np.full(len(combined), -1, np.int64)
+    codes[keep], _ = pd.factorize(combined[keep])
+    return codes
+
+
+def fix_identities(fix, tag, bad, lines, ids=None):
     """Fix id of every row and the fix index: one fix per (tag, label), in order of first appearance.
 
     Rejected rows with a label still make their fix exist (so it is reported); rows
-    with neither a label nor a group belong to no fix (id -1).
+    with neither a label nor a group belong to no fix (id -1). ``ids`` from an
+    earlier call on the same labels may be passed to skip recomputing them.
     """
     fix = np.asarray(fix, dtype=object)
     tag = np.asarray(tag, dtype=object)
-    labelled = fix != ""
-    key = pd.Series(tag, dtype=object).str.len().astype(str) + ":" + pd.Series(tag, dtype=object) + "|" + \
-        pd.Series(fix, dtype=object)
-    codes, _ = pd.factorize(key.where(labelled, None).to_numpy(dtype=object))
-    ids = np.asarray(codes, np.int64)
+    if ids is None:
+        ids = pair_codes(tag, fix, fix != "")
     m = int(ids.max()) + 1 if len(ids) else 0
     first = np.full(m, -1, np.int64)
     valid = np.flatnonzero(ids >= 0)
-    first_pos = pd.Series(valid).groupby(ids[valid]).first().to_numpy() if len(valid) else np.zeros(0, np.int64)
-    first[: len(first_pos)] = first_pos
+    if len(valid):
+        uniq, pos = np.unique(ids[valid], return_index=True)
+        first[uniq] = valid[pos]
     rejected = [[] for _ in range(m)]
     for i in np.flatnonzero(bad & (ids >= 0)):
         rejected[ids[i]].append(int(lines[i]))

@@ -399,8 +399,8 @@ def _band_mismatch(text, letter, lat):
 
 def _both_readings(text, lat_n, lon_n, lat_s, lon_s):
     return (f"'{text}' can be latitude band S ({_lat(lat_n)}, {_lon(lon_n)}) or the southern hemisphere "
-            f"({_lat(lat_s)}, {_lon(lon_s)}), and nothing in this fix or sheet shows which: write the hemisphere "
-            "as N or S with a band-free sheet, or give --utm-letters band (GPS style) or --utm-letters hemisphere")
+            f"({_lat(lat_s)}, {_lon(lon_s)}), and nothing in this fix or sheet shows which: give --utm-letters band "
+            "(zones written as a GPS shows them) or --utm-letters hemisphere")
 
 
 def _lat(v):
@@ -491,10 +491,10 @@ def _strip_checks(p, r, zone, south, E, N, lat, lon, groups):
     std, _ = grids.standard_utm_zone(lat, lon)
     warn = out & ~log.bad[r]
     log.warn(log.mask(r[warn]), cz, lambda ii: [
-        f"easting {E[_k(r, i)]:.0f} lies {abs(E[_k(r, i)] - 5e5) / 1000:,.0f} km "
+        f"easting {E[_k(r, i)]:.0f} is {abs(E[_k(r, i)] - 5e5) / 1000:,.0f} km "
         f"{'east' if E[_k(r, i)] > 5e5 else 'west'} of zone {zone[_k(r, i)]}'s central meridian, outside its 6° strip "
-        f"(the position is in zone {std[_k(r, i)]}); read as given, accurate to the millimetre (PROJ's transverse "
-        "Mercator holds to 3900 km from the meridian). Check the zone unless you use a country-wide grid" for i in ii])
+        f"(the position is in zone {std[_k(r, i)]}): read as given (the conversion holds far beyond the strip); "
+        "check the zone unless you use a country-wide grid" for i in ii])
 
 
 # --------------------------------------------------------------------------- cross checks and evidence

@@ -23,13 +23,13 @@ from dfkit.observations import north as north_mod
 from dfkit.observations.bearings import Bearings
 from dfkit.observations.cells import canonical, column, declinations, numbers, per_value
 from dfkit.observations.columns import check_columns
-from dfkit.observations.grouping import fix_identities, group_fixes
+from dfkit.observations.grouping import fix_identities, group_fixes, pair_codes
 from dfkit.observations.options import ReadOptions, check_options
 from dfkit.observations.positions import parse_positions, read_places
 from dfkit.observations.rowlog import RowLog
 from dfkit.observations.times import parse_times
 from dfkit.policy import MIN_SD_DEG, SPLIT_LABEL_GAP_H
-from dfkit.problems import Problem
+from dfkit.problems import Problem, SheetError
 
 
 def read_bearings(sheet, options: ReadOptions | None = None, **kwargs) -> Bearings:
@@ -67,7 +67,11 @@ def read_bearings(sheet, options: ReadOptions | None = None, **kwargs) -> Bearin
         opts = replace(opts, **kwargs)
     check_options(opts)
     raw = read_table(sheet, worksheet=opts.worksheet)
-    check_columns(raw.columns, raw.source, stations=opts.stations is not None, track=opts.track is not None)
+    try:
+        check_columns(raw.columns, raw.source, stations=opts.stations is not None, track=opts.track is not None)
+    except SheetError as err:
+        hint = next((p.message for p in raw.problems if "--sheet" in p.message), "")
+        raise SheetError(f"{err} ({hint})" if hint else str(err)) from None
     t = raw.table
     n = len(t)
     lines = t["line"].to_numpy()
@@ -110,7 +114,7 @@ def read_bearings(sheet, options: ReadOptions | None = None, **kwargs) -> Bearin
     fix_c, tag_c = column(t, "fix"), column(t, "tag")
     fix, grouped_by = group_fixes(fix_c, tag_c, times, window_s=opts.window_min * 60.0,
                                   split_gap_s=SPLIT_LABEL_GAP_H * 3600.0, log=log, notes=notes)
-    ids, _ = fix_identities(fix, tag_c, log.bad, lines)
+    ids = pair_codes(tag_c, fix, fix != "")
 
     # positions, judged against each row's own fix and the track
     pos = parse_positions(t, lines=lines, source=raw.source, decimal_comma=raw.decimal_comma, stations=stations,
@@ -130,7 +134,7 @@ def read_bearings(sheet, options: ReadOptions | None = None, **kwargs) -> Bearin
         "line": lines[keep],
         "fix": fix[keep],
         "tag": tag_c[keep],
-        "time": pd.to_datetime(pd.Series(times[keep]), unit="s", utc=True).to_numpy(),
+        "time": pd.to_datetime(times[keep], unit="s", utc=True),
         "lat": pos.lat[keep],
         "lon": pos.lon[keep],
         "true_bearing": true_bearing[keep],
@@ -145,7 +149,6 @@ def read_bearings(sheet, options: ReadOptions | None = None, **kwargs) -> Bearin
         "grouped_by": grouped_by[keep],
         "declination_sd": np.where(magnetic_rows & dec_empty, dec_sd, np.nan)[keep],
     })
-    table["time"] = pd.to_datetime(table["time"], utc=True)
     for c in raw.columns:
         if (c not in KNOWN_COLUMNS or c in ("observer", "antenna", "note")) and c not in table.columns:
             table[c] = t[c].to_numpy(dtype=object)[keep]
@@ -153,7 +156,7 @@ def read_bearings(sheet, options: ReadOptions | None = None, **kwargs) -> Bearin
         if c not in table.columns:
             table[c] = ""
     table = table.reset_index(drop=True)
-    ids, fix_index = fix_identities(fix, tag_c, log.bad, lines)
+    ids, fix_index = fix_identities(fix, tag_c, log.bad, lines, ids)
     table.insert(1, "fix_id", ids[keep])
     problems = sorted(log.problems, key=lambda p: (p.source != raw.source, p.line, p.severity != "error"))
     return Bearings(table=table, problems=problems, fix_index=fix_index, n_rows=n, notes=notes,
