@@ -160,7 +160,9 @@ def parse_positions(table: pd.DataFrame, *, prefix: str = "", station_column: st
     p = _State(n, log, {role: column(table, name) for role, name in cols.items()}, cols)
     groups = None if groups is None else np.asarray(groups, np.int64)
     times = None if times is None else np.asarray(times, float)
-    track_ll = _track_at(track, times, track_gap_s, n) if track is not None and times is not None else None
+    # evidence (swapped lat/lon, UTM letters) may use the track anywhere within its time span: the readings it
+    # decides between are hundreds of km apart; positions taken from the track keep the strict --track-gap
+    track_ll = _track_at(track, times, np.inf, n) if track is not None and times is not None else None
 
     _latlon(p, decimal_comma)
     _mgrs(p)
@@ -169,7 +171,7 @@ def parse_positions(table: pd.DataFrame, *, prefix: str = "", station_column: st
     if groups is not None or track_ll is not None:
         _swapped(p, groups, track_ll)
     if track is not None and times is not None:
-        _from_track(p, track, times, track_ll, track_gap_s)
+        _from_track(p, track, times, track_gap_s)
     if required:
         need = ~log.bad & (p.source == "")
         if "station" in cols and stations is None:
@@ -608,17 +610,17 @@ def _track_at(track: Track, times, gap_s, n):
     ok = np.isfinite(times)
     if ok.any():
         tl, to, gap = interpolate_track(track, times[ok])
-        near = gap <= gap_s
+        near = (gap <= gap_s) & np.isfinite(gap)
         idx = np.flatnonzero(ok)[near]
         lat[idx], lon[idx] = tl[near], to[near]
     return lat, lon
 
 
-def _from_track(p: _State, track, times, track_ll, gap_s):
+def _from_track(p: _State, track, times, gap_s):
     need = ~p.log.bad & (p.source == "") & np.isfinite(times)
     if not need.any():
         return
-    tl, to = track_ll
+    tl, to = _track_at(track, times, gap_s, p.n)
     far = need & ~np.isfinite(tl)
     p.log.reject(far, "time", lambda ii: [_track_message(track, times[i], gap_s) for i in ii])
     ok = np.flatnonzero(need & np.isfinite(tl))
