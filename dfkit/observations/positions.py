@@ -107,7 +107,7 @@ def parse_positions(table: pd.DataFrame, *, prefix: str = "", station_column: st
                     lines=None, source: str = "", decimal_comma: bool = False, stations: pd.DataFrame | None = None,
                     track: Track | None = None, times=None, track_gap_s: float = DEFAULT_TRACK_GAP_S,
                     utm_letters: str = "auto", groups=None, required: bool = True,
-                    log: RowLog | None = None) -> Positions:
+                    log: RowLog | None = None, skip=None) -> Positions:
     """Read the position of every row of a table of text cells.
 
     Parameters
@@ -144,7 +144,10 @@ def parse_positions(table: pd.DataFrame, *, prefix: str = "", station_column: st
     required : bool
         Whether a row without any position is an error.
     log : RowLog, optional
-        Shared row log (rows it already rejects stay rejected).
+        Shared row log: this parser's problems are added to it, and its rejected rows
+        stay rejected (positions are still read on them, as evidence for their fix).
+    skip : array_like of bool, optional
+        Rows not to read at all (already refused by the file reader).
 
     Returns
     -------
@@ -153,9 +156,12 @@ def parse_positions(table: pd.DataFrame, *, prefix: str = "", station_column: st
     n = len(table)
     if lines is None:
         lines = table["line"].to_numpy() if "line" in table.columns else np.arange(2, n + 2)
-    own_log = log is None
-    log = log or RowLog(lines, source)
-    first_problem = len(log.problems)
+    shared = log
+    # Positions are read on every row, even one refused for another column (a bad bearing), so that its position
+    # still serves as evidence for the rest of its fix; rows the reader itself refused (``skip``) are left out.
+    log = RowLog(lines, source)
+    if skip is not None:
+        log.bad |= np.asarray(skip, bool)
     cols = position_columns(table.columns, prefix, station_column)
     p = _State(n, log, {role: column(table, name) for role, name in cols.items()}, cols)
     groups = None if groups is None else np.asarray(groups, np.int64)
@@ -183,10 +189,13 @@ def parse_positions(table: pd.DataFrame, *, prefix: str = "", station_column: st
                f"a station label, or a time with a GPS track (--track)")
         log.reject(need, "", msg)
     bad = log.bad.copy()
+    if shared is not None:
+        shared.problems.extend(log.problems)
+        shared.bad |= bad
+        bad = shared.bad.copy()
     lat = np.where(bad, np.nan, p.lat)
     lon = np.where(bad, np.nan, p.lon)
-    probs = log.problems[first_problem:] if not own_log else log.problems
-    return Positions(lat, lon, np.where(bad, "", p.source).astype(object), p.zone, p.south, bad, list(probs))
+    return Positions(lat, lon, np.where(bad, "", p.source).astype(object), p.zone, p.south, bad, list(log.problems))
 
 
 class _State:
@@ -700,7 +709,8 @@ def read_places(source, label_column: str = "station", *, prefix: str = "", work
     log = RowLog(t["line"].to_numpy(), raw.source)
     log.problems.extend(raw.problems)
     pre = {p.line for p in raw.problems if p.severity == "error" and p.line}
-    log.bad |= np.isin(log.lines, list(pre))
+    refused_by_reader = np.isin(log.lines, list(pre))
+    log.bad |= refused_by_reader
     if label_column not in t.columns:
         raise SheetError(f"{raw.source or 'the file'}: no '{label_column}' column; found "
                          f"{', '.join(raw.columns) or 'no columns'}")
@@ -716,7 +726,8 @@ def read_places(source, label_column: str = "station", *, prefix: str = "", work
     log.reject(dup, label_column, lambda idx: [f"{label_column} '{labels[i]}' is listed twice; the first is used"
                                                for i in idx])
     pos = parse_positions(t, prefix=prefix, station_column=st_col, source=raw.source,
-                          decimal_comma=raw.decimal_comma, stations=stations, utm_letters=utm_letters, log=log)
+                          decimal_comma=raw.decimal_comma, stations=stations, utm_letters=utm_letters, log=log,
+                          skip=refused_by_reader)
     keep = ~pos.rejected
     out = pd.DataFrame({"lat": pos.lat[keep], "lon": pos.lon[keep], "zone": pos.zone[keep],
                         "south": pos.south[keep], "source": pos.source[keep], "line": log.lines[keep]},

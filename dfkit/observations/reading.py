@@ -78,7 +78,8 @@ def read_bearings(sheet, options: ReadOptions | None = None, **kwargs) -> Bearin
     log = RowLog(lines, raw.source)
     log.problems.extend(raw.problems)
     pre = {p.line for p in raw.problems if p.severity == "error" and p.line}   # e.g. too many fields
-    log.bad |= np.isin(lines, list(pre))
+    refused_by_reader = np.isin(lines, list(pre))
+    log.bad |= refused_by_reader
     notes: list[str] = []
 
     stations = None
@@ -119,7 +120,7 @@ def read_bearings(sheet, options: ReadOptions | None = None, **kwargs) -> Bearin
     # positions, judged against each row's own fix and the track
     pos = parse_positions(t, lines=lines, source=raw.source, decimal_comma=raw.decimal_comma, stations=stations,
                           track=track, times=times, track_gap_s=opts.track_gap_s, utm_letters=opts.utm_letters,
-                          groups=ids, log=log)
+                          groups=ids, log=log, skip=refused_by_reader)
 
     # magnetic -> true, grid -> true
     magnetic_rows = north == "magnetic"

@@ -335,8 +335,8 @@ def _finish(text, p, order, conflict, zone, repeated_hour, tz, explicit):
             return np.nan, f"'{text}' is not a valid date"
     if dt.tzinfo is None:
         if zone is None:
-            return np.nan, (f"'{text}' has no UTC offset (spreadsheet date cells never have one); add one (Z or "
-                            "+02:00) or name the time zone with --tz (for example --tz Europe/Vienna or --tz UTC)")
+            return np.nan, (f"'{text}' has no UTC offset; add one (Z or +02:00) or name the time zone with --tz "
+                            "(for example --tz Europe/Vienna or --tz UTC)")
         return _localise(text, dt, zone, repeated_hour, tz)
     return dt.timestamp(), ""
 
