@@ -47,11 +47,15 @@ def make_sheet(path, n, kind, rng):
             tr = pyproj.Transformer.from_crs("EPSG:4326", "EPSG:32633", always_xy=True)
             e, nn = tr.transform(lon, lat)
             fh.write("fix,utm_zone,easting,northing,bearing\n")
-            fh.writelines(f"F{i // 4},33T,{x:.0f},{y:.0f},{v:.1f}\n" for i, (x, y, v) in enumerate(zip(e, nn, b)))
+            band = np.where(lat >= 48.0, "U", "T")   # GPS-style band letters (T: 40-48 N, U: 48-56 N)
+            fh.writelines(f"F{i // 4},33{z},{x:.0f},{y:.0f},{v:.1f}\n"
+                          for i, (z, x, y, v) in enumerate(zip(band, e, nn, b)))
         elif kind == "dms":
             fh.write("fix,lat,lon,bearing\n")
-            fh.writelines(f"F{i // 4},{int(la)}°{(la % 1) * 60:.3f}'N,E{int(lo)} {(lo % 1) * 60:.3f},{x:.1f}\n"
-                          for i, (la, lo, x) in enumerate(zip(lat, lon, b)))
+            la_m = np.floor(lat * 60000) / 1000          # whole thousandths of a minute: never '60.000'
+            lo_m = np.floor(lon * 60000) / 1000
+            fh.writelines(f"F{i // 4},{int(a // 60)}°{a % 60:06.3f}'N,E{int(o // 60)} {o % 60:06.3f},{x:.1f}\n"
+                          for i, (a, o, x) in enumerate(zip(la_m, lo_m, b)))
         else:
             raise SystemExit(f"unknown --kind {kind}")
 

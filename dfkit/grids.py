@@ -9,8 +9,8 @@ user turned it on).
 or, as GPS units and MGRS do, with a latitude-band letter C-X (``33U``, ``30S``)
 (bands of 8° from 80°S, X is 12° tall; I and O are not used: NGA.STND.0037 2.0.0,
 *The Universal Grids and the Transverse Mercator and Polar Stereographic Map
-Projections*, 2014, and DMA TM 8358.1, 1990, the MGRS latitude bands; the table
-below is checked against the ``mgrs`` package in the tests). ``N`` means the
+Projections*, 2014, and DMA TM 8358.1, 1990, the MGRS latitude bands; both cited
+from memory; the band latitudes are checked against the ``mgrs`` package in the tests). ``N`` means the
 northern hemisphere both ways. ``S`` is either band S (32°N to 40°N) or the
 southern hemisphere: :func:`parse_utm_zone` only reads the text;
 :mod:`dfkit.observations.positions` decides with evidence it can state.
@@ -143,26 +143,25 @@ def _zone_groups(zone, south):
         yield utm_crs(z, s), (zone == z) & (south == s)
 
 
+def _per_zone(func, zone, south, a, b):
+    """Apply ``func(crs, a, b) -> (c, d)`` zone by zone over rows with per-row zones."""
+    a = np.asarray(a, float)
+    b = np.asarray(b, float)
+    c = np.full(a.shape, np.nan)
+    d = np.full(a.shape, np.nan)
+    for crs, m in _zone_groups(zone, south):
+        c[m], d[m] = func(crs, a[m], b[m])
+    return c, d
+
+
 def utm_to_latlon(zone, south, easting, northing):
     """UTM (per-row zone and hemisphere) to lat, lon [°]; vectorised by zone."""
-    e = np.asarray(easting, float)
-    n = np.asarray(northing, float)
-    lat = np.full(e.shape, np.nan)
-    lon = np.full(e.shape, np.nan)
-    for crs, m in _zone_groups(zone, south):
-        lat[m], lon[m] = projected_to_latlon(crs, e[m], n[m])
-    return lat, lon
+    return _per_zone(projected_to_latlon, zone, south, easting, northing)
 
 
 def latlon_to_utm(zone, south, lat, lon):
     """lat, lon [°] to easting, northing [m] in the given (per-row) UTM zones."""
-    la = np.asarray(lat, float)
-    lo = np.asarray(lon, float)
-    e = np.full(la.shape, np.nan)
-    n = np.full(la.shape, np.nan)
-    for crs, m in _zone_groups(zone, south):
-        e[m], n[m] = latlon_to_projected(crs, la[m], lo[m])
-    return e, n
+    return _per_zone(latlon_to_projected, zone, south, lat, lon)
 
 
 def utm_round_trip_m(zone, south, easting, northing, lat, lon):

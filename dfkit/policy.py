@@ -43,8 +43,8 @@ FIX_SPAN_WINDOWS = 3.0
 #: longer than any hunt or tracking session, shorter than the night between two field days.
 SPLIT_LABEL_GAP_H = 6.0
 
-#: Years dfkit accepts in a time: from the start of GPS time (6 January 1980, IS-GPS-200) to 2100; a
-#: year outside is a typing error (2206, 1026). A plausibility rule of dfkit's own, no source.
+#: Years dfkit accepts in a time: from the start of GPS time (6 January 1980, IS-GPS-200; from memory)
+#: to 2100; a year outside is a typing error (2206, 1026). A plausibility rule of dfkit's own, no source.
 PLAUSIBLE_YEARS = (1980, 2100)
 
 #: A latitude-band letter is consistent with a UTM position within this margin of the band's edges [°]

@@ -10,8 +10,9 @@ or spaces and a hemisphere letter before or after: ``48.9687``, ``-48.9687``,
 ``48.9687N``, ``N48.9687``, ``48°58'07.4"N``, ``48°58.123'N``, ``N48 58.123``,
 ``48 58 7.4 N``, ``48:58:07.4``, ``48d58'07.4"``. Minutes and seconds must be below
 60 and only the last part may have decimals. These are the forms of the EPSG
-units of measure 9110/9116-9121 (sexagesimal DMS, degrees-minutes with a
-hemisphere before or after; EPSG Geodetic Parameter Dataset) and of the examples
+units of measure 9116-9120 (degree-minute and degree-minute-second with a hemisphere
+letter before or after; EPSG Geodetic Parameter Dataset: 9118 and 9119 checked on
+the registry's pages, the others from memory) and of the examples
 in GeographicLib's GeoConvert(1) manual ("33d18'N 44d24'E", "E44.4 N33.3",
 "33:18 44:24"). The letter O is not read as west: it means west in Spanish (oeste)
 and east in German (Ost).
@@ -77,17 +78,22 @@ def numbers(cells, decimal_comma: bool = False) -> Cells:
     A trailing degree sign is allowed; a decimal comma is read in sheets that allow it
     (semicolon- or tab-separated) and explained elsewhere; NaN and infinity are refused.
     """
+    return _fast_then_slow(cells, lambda u: _one_number(u, decimal_comma))
+
+
+def _fast_then_slow(cells, one) -> Cells:
+    """Plain numbers parsed in C; every other non-empty cell by ``one(text) -> (value, error)`` once per
+    distinct value (``error`` None: the cell is empty after all)."""
     cells = np.asarray(cells, dtype=object)
     fast = pd.to_numeric(pd.Series(cells, dtype=object), errors="coerce").to_numpy(dtype=float, copy=True)
     empty = cells == ""
     slow = ~np.isfinite(fast) & ~empty
     error = np.full(len(cells), "", dtype=object)
     if slow.any():
-        vals = per_value(cells[slow], lambda u: _one_number(u, decimal_comma))
-        fast[slow] = [v for v, _ in vals]
-        error[slow] = [e for _, e in vals]
-        empty[slow] = [e is None for _, e in vals]
-        error[slow] = np.where(error[slow] == None, "", error[slow])  # noqa: E711 (object array)
+        res = per_value(cells[slow], one)
+        fast[slow] = [v for v, _ in res]
+        empty[slow] = [e is None for _, e in res]
+        error[slow] = ["" if e is None else e for _, e in res]
     return Cells(np.where(empty | (error != ""), np.nan, fast), empty, error)
 
 
@@ -196,22 +202,59 @@ def _not_angle(raw):
 def angles(cells, axis: str, decimal_comma: bool = False) -> Cells:
     """Latitude or longitude cells (``axis`` 'lat' or 'lon') to signed degrees.
 
-    Plain numbers go the fast way; other cells are read by :func:`parse_angle`. A
-    hemisphere letter of the other axis (E/W in a latitude) is refused: the columns
-    are probably swapped.
+    Plain numbers go the fast way; the common sexagesimal forms are read for the whole
+    column at once (:func:`_common_angles`); the rest by :func:`parse_angle`, once per
+    distinct value. A hemisphere letter of the other axis (E/W in a latitude) is
+    refused: the columns are probably swapped.
     """
     cells = np.asarray(cells, dtype=object)
-    fast = pd.to_numeric(pd.Series(cells, dtype=object), errors="coerce").to_numpy(dtype=float, copy=True)
-    empty = cells == ""
-    slow = ~np.isfinite(fast) & ~empty
-    error = np.full(len(cells), "", dtype=object)
-    if slow.any():
-        res = per_value(cells[slow], lambda u: _one_angle(u, axis, decimal_comma))
-        fast[slow] = [v for v, _ in res]
-        error[slow] = [e for _, e in res]
-        empty[slow] = [e is None for _, e in res]
-        error[slow] = np.where(error[slow] == None, "", error[slow])  # noqa: E711
-    return Cells(np.where(empty | (error != ""), np.nan, fast), empty, error)
+    out = _fast_then_slow(cells, lambda u: (np.nan, "?"))
+    pending = out.error == "?"
+    if pending.any():
+        vals, ok = _common_angles(cells[pending], axis, decimal_comma)
+        idx = np.flatnonzero(pending)
+        out.values[idx[ok]] = vals[ok]
+        out.error[idx[ok]] = ""
+        rest = idx[~ok]
+        if len(rest):
+            res = per_value(cells[rest], lambda u: _one_angle(u, axis, decimal_comma))
+            out.values[rest] = [v for v, _ in res]
+            out.empty[rest] = [e is None for _, e in res]
+            out.error[rest] = ["" if e is None else e for _, e in res]
+    out.values[out.empty | (out.error != "")] = np.nan
+    return out
+
+
+# Degrees, then minutes, then seconds, each part marked (° d ' ") or separated by a space or colon, with a
+# hemisphere letter before or after: the forms GPS units and hand-typed sheets use. Anything else is left to
+# parse_angle, which also explains what is wrong.
+_COMMON = re.compile(r"^(?P<h1>[NSEW])?\s*(?P<d>\d{1,3}(?:\.\d+)?)(?:\s*(?:°|d)\s*|\s+|:)?"
+                     r"(?:(?P<m>\d{1,2}(?:\.\d+)?)(?:\s*'\s*|\s+|:)?)?"
+                     r"(?:(?P<s>\d{1,2}(?:\.\d+)?)\s*\"?)?\s*(?P<h2>[NSEW])?$")
+
+
+def _common_angles(cells, axis, decimal_comma):
+    """Vectorised reading of the common sexagesimal forms: (values, read mask); unread cells go the slow way."""
+    t = pd.Series(cells, dtype=object).astype(str).str.strip().str.translate(_PRIMES).str.replace("''", '"')
+    if decimal_comma:
+        t = t.str.replace(",", ".")
+    parts = t.str.upper().str.extract(_COMMON)
+    d = pd.to_numeric(parts["d"], errors="coerce").to_numpy(float)
+    m = pd.to_numeric(parts["m"], errors="coerce").to_numpy(float)
+    sec = pd.to_numeric(parts["s"], errors="coerce").to_numpy(float)
+    h1 = parts["h1"].fillna("").to_numpy(dtype=object)
+    h2 = parts["h2"].fillna("").to_numpy(dtype=object)
+    letter = np.where(h1 != "", h1, h2)
+    has_m, has_s = np.isfinite(m), np.isfinite(sec)
+    frac_d = parts["d"].fillna("").str.contains(".", regex=False).to_numpy(bool)
+    frac_m = parts["m"].fillna("").str.contains(".", regex=False).to_numpy(bool)
+    want = "NS" if axis == "lat" else "EW"
+    ok = (np.isfinite(d) & ((h1 == "") | (h2 == "")) & np.isin(letter, ["", *want])
+          & (~has_s | has_m) & (~frac_d | ~has_m) & (~frac_m | ~has_s)
+          & (np.nan_to_num(m) < 60) & (np.nan_to_num(sec) < 60))
+    sign = np.where(np.isin(letter, ["S", "W"]), -1.0, 1.0)
+    vals = sign * (d + np.nan_to_num(m) / 60.0 + np.nan_to_num(sec) / 3600.0)
+    return vals, ok
 
 
 def _one_angle(text, axis, decimal_comma):

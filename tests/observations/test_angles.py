@@ -2,6 +2,8 @@
 letter before or after; every expected value is worked out here by hand (d + m/60 + s/3600)."""
 
 import pytest
+from hypothesis import given, settings
+from hypothesis import strategies as st
 
 from dfkit import read_bearings
 from dfkit.observations.cells import angles, parse_angle
@@ -59,3 +61,30 @@ def test_decimal_comma_minutes_in_a_semicolon_sheet(write_sheet):
     b = read_bearings(write_sheet("fix;lat;lon;bearing\nA;48°58,5'N;15°10,25'E;45\nA;48,98;15,18;315\n"))
     assert [p for p in b.problems if p.severity == "error"] == []
     assert b.table["lat"][0] == pytest.approx(dms(48, 58.5)) and b.table["lon"][0] == pytest.approx(dms(15, 10.25))
+
+
+@settings(max_examples=300, deadline=None)
+@given(d=st.integers(0, 180), m=st.one_of(st.none(), st.integers(0, 61), st.floats(0, 61, allow_nan=False)),
+       s=st.one_of(st.none(), st.integers(0, 61), st.floats(0, 61, allow_nan=False)),
+       marks=st.sampled_from(["dms", "space", "colon", "d"]), letter=st.sampled_from(["", "N", "S", "E", "W"]),
+       before=st.booleans())
+def test_the_column_reader_agrees_with_the_one_cell_reader(d, m, s, marks, letter, before):
+    # The fast, whole-column reading of common forms must give exactly what parse_angle gives cell by cell
+    # (value or refusal); both are checked against the hand formula in the tests above.
+    parts = [str(d)] + ([f"{m:.3f}" if isinstance(m, float) else str(m)] if m is not None else []) + \
+        ([f"{s:.2f}" if isinstance(s, float) else str(s)] if s is not None and m is not None else [])
+    if marks == "dms":
+        text = "".join(p + sym for p, sym in zip(parts, ["°", "'", '"']))
+    elif marks == "d":
+        text = "".join(p + sym for p, sym in zip(parts, ["d", "'", '"']))
+    else:
+        text = (" " if marks == "space" else ":").join(parts)
+    text = (letter + text) if before else (text + (" " if letter and marks == "space" else "") + letter)
+    for axis in ("lat", "lon"):
+        col = angles([text], axis)
+        v, got_axis, err = parse_angle(text)
+        wrong_axis = got_axis and got_axis != axis
+        if err or wrong_axis:
+            assert col.error[0] != "", text
+        else:
+            assert col.error[0] == "" and col.values[0] == pytest.approx(v, abs=1e-12), text

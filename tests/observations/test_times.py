@@ -1,6 +1,6 @@
 """Times as people write them; every expected instant is computed here with the standard library (datetime,
-zoneinfo), and the daylight-saving dates come from the EU rule (Directive 2000/84/EC: summer time from 01:00 UTC
-on the last Sunday of March to 01:00 UTC on the last Sunday of October)."""
+zoneinfo), and the daylight-saving dates come from the EU rule (Directive 2000/84/EC, from memory: summer time from
+01:00 UTC on the last Sunday of March to 01:00 UTC on the last Sunday of October), the Sundays checked below."""
 
 from datetime import datetime, timedelta, timezone
 from zoneinfo import ZoneInfo

@@ -8,8 +8,8 @@ import pytest
 from dfkit import grids, read_bearings
 
 # Latitude bands of the MGRS/UTM grid: 8 degrees each from 80 S, letters C-X without I and O, X 12 degrees tall
-# (NGA.STND.0037_2.0.0_GRIDS, 2014, and DMA TM 8358.1, 1990). Checked here against the `mgrs` package, an
-# implementation of the same standard (GeoTrans), not against dfkit.
+# (NGA.STND.0037_2.0.0_GRIDS, 2014, and DMA TM 8358.1, 1990; cited from memory). Checked here against the `mgrs`
+# package, an implementation of the same standard (GeoTrans), not against dfkit.
 BANDS = "CDEFGHJKLMNPQRSTUVWX"
 
 
