@@ -534,7 +534,7 @@ def _km(lat1, lon1, lat2, lon2):
 
 def _group_reference(groups, lat, lon, valid):
     """Median lat/lon and count of the valid positions of each group (indexed by group id)."""
-    m = int(groups.max()) + 1 if len(groups) and groups.max() >= 0 else 0
+    m = max(int(groups.max()) + 1 if len(groups) else 0, 1)   # at least one slot: callers index group 0
     ref_lat = np.full(m, np.nan)
     ref_lon = np.full(m, np.nan)
     cnt = np.zeros(m, np.int64)
@@ -593,19 +593,22 @@ def _swapped_pairs(p, groups, valid, pairs):
     firsts = order[:-1][g[:-1] == g[1:]]
     seconds = order[1:][g[:-1] == g[1:]]
     lat, lon = p.lat, p.lon
-    for a, b in zip(firsts, seconds):
-        if _deg_dist(lat[a], lon[a], lat[b], lon[b]) <= SWAPPED_FAR_DEG:
-            continue
-        swap_a = p.source[a] == "lat/lon" and _deg_dist(lon[a], lat[a], lat[b], lon[b]) < SWAPPED_NEAR_DEG
-        swap_b = p.source[b] == "lat/lon" and _deg_dist(lon[b], lat[b], lat[a], lon[a]) < SWAPPED_NEAR_DEG
+    with np.errstate(invalid="ignore"):
+        far = _deg_dist(lat[firsts], lon[firsts], lat[seconds], lon[seconds]) > SWAPPED_FAR_DEG
+        swap_a = far & (p.source[firsts] == "lat/lon") & \
+            (_deg_dist(lon[firsts], lat[firsts], lat[seconds], lon[seconds]) < SWAPPED_NEAR_DEG)
+        swap_b = far & (p.source[seconds] == "lat/lon") & \
+            (_deg_dist(lon[seconds], lat[seconds], lat[firsts], lon[firsts]) < SWAPPED_NEAR_DEG)
+    for k in np.flatnonzero(swap_a | swap_b):
+        a, b = firsts[k], seconds[k]
         la, lb = p.log.lines[a], p.log.lines[b]
-        if swap_a and swap_b:
+        if swap_a[k] and swap_b[k]:
             for i, other in ((a, lb), (b, la)):
                 p.log.reject(p.log.mask([i]), p.name("lat"), f"{lat[i]:g}, {lon[i]:g} and line {other} of the same fix "
                              "are far apart, and swapping lat and lon of either makes them meet: one of the two has lat "
                              "and lon swapped; check both")
-        elif swap_a or swap_b:
-            i, other = (a, lb) if swap_a else (b, la)
+        else:
+            i, other = (a, lb) if swap_a[k] else (b, la)
             p.log.reject(p.log.mask([i]), p.name("lat"), f"{lat[i]:g}, {lon[i]:g} is far from line {other} of the same "
                          "fix, but swapped it fits: lat and lon look swapped")
 

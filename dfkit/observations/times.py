@@ -207,6 +207,9 @@ def _split(text, pattern):
         return {"dt": dt}
     except ValueError:
         pass
+    if _TIME_ONLY.match(text):
+        return {"error": f"'{text}' is a time of day without a date: add a 'date' column, or write the date too "
+                         f"(2026-05-03 {text})"}
     if re.fullmatch(r"[+-]?\d+(\.\d+)?", text):
         v = float(text)
         if 20000 <= v <= 80000:
@@ -324,8 +327,9 @@ def _finish(text, p, order, conflict, zone, repeated_hour, tz, explicit):
             elif conflict:
                 return np.nan, f"'{text}': {conflict}"
             else:
+                dots = " (dates written with dots are usually day-first)" if "." in text.split()[0] else ""
                 return np.nan, (f"'{text}' could be {_day_month(a, b)} or {_day_month(b, a)}; nothing in the sheet "
-                                "says which: give --date-format dmy (day first) or mdy (month first)")
+                                f"says which: give --date-format dmy (day first) or mdy (month first){dots}")
         else:
             mo, d = p["mo"], p["d"]
         hh, mm, ss, micro = p["clock"]

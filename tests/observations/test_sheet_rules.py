@@ -150,3 +150,11 @@ def test_many_fixes_far_apart_are_fast_enough_to_check_by_fix(write_sheet):
             enumerate(zip(np.repeat(lat[:500], 4), np.repeat(lon[:500], 4)))]
     b = read_bearings(write_sheet("fix,lat,lon,bearing\n" + "\n".join(rows) + "\n"))
     assert errors(b) == {}
+
+
+def test_unlabelled_rows_whose_times_all_fail_are_reported_not_a_crash(write_sheet):
+    # regression: no fix at all (every time refused) used to index an empty per-fix table
+    b = read_bearings(write_sheet("time,lat,lon,bearing\n12.09.2026 10:05,47.87,15.16,42\n"
+                                  "12.09.2026 10:07,47.86,15.19,149\n"))
+    assert set(errors(b)) == {2, 3} and "usually day-first" in errors(b)[2]
+    assert len(b.fix_index) == 0 and len(b.table) == 0
