@@ -18,6 +18,8 @@ demo: $(STAMP)
 	$(PY) -m dfkit fix sample_bearings/hunt.csv --window 90 -o demo_output/hunt.geojson
 	$(PY) -m dfkit fix sample_bearings/week_tracking.csv --track sample_bearings/week_track.gpx -o demo_output/week_fixes.csv -o demo_output/week_fixes.gpx -o demo_output/week_fixes.gpkg -o demo_output/week_fixes.kml || test $$? -eq 1
 	$(PY) -m dfkit map sample_bearings/week_tracking.csv --track sample_bearings/week_track.gpx -o demo_output/week_map.html || test $$? -eq 1
+	$(PY) -m dfkit calibrate sample_bearings/beacon_trials.csv -o demo_output/calibration.csv --figures demo_output/calibration_figures || test $$? -eq 1
+	$(PY) -m dfkit fix sample_bearings/tracking_after_trials.csv --calibration demo_output/calibration.csv -o demo_output/after_trials.csv
 	@echo "Demo outputs are in demo_output/ (open demo_output/week_map.html in a browser; it works offline)."
 
 test: $(STAMP)
@@ -31,6 +33,7 @@ samples: $(STAMP)
 
 bench: $(STAMP)
 	$(PY) benchmarks/bench_fix.py
+	$(PY) benchmarks/calibration_study.py
 	$(PY) benchmarks/bench_map.py run --fixes 20000
 
 wheelhouse: $(STAMP)

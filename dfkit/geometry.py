@@ -94,10 +94,11 @@ def error_polygon_rings(fixes: Fixes):
     """(fix label, (lat, lon)) of the +/-1 SD error polygon of each fix that has one."""
     out = []
     b = fixes.bearings
-    for _, row in fixes.table.iterrows():
+    g = b["fix_id"].to_numpy(np.int64)
+    for i, (_, row) in enumerate(fixes.table.iterrows()):   # row i of the fix table is fix_id i
         if row["status"] not in WITH_POSITION or not np.isfinite(row["sd_deg"]):
             continue
-        sel = b[b["fix"] == row["fix"]]
+        sel = b[g == i]
         sd = sel["sd"].to_numpy(float)
         sd = np.where(np.isfinite(sd), sd, row["sd_deg"])
         ring = regions.error_polygon(sel["lat"], sel["lon"], sel["true_bearing"], sd, row["lat"], row["lon"])

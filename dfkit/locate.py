@@ -151,7 +151,11 @@ def locate(bearings: Bearings, *, method: str = "mle", level: float = 0.95,
         tmid = np.where(np.isfinite(tmin), (tmin + tmax) / 2.0, np.nan)
 
     if m:
-        k = regions.scale_factor(level, np.where(sol.sd_known, 0, sol.dof))
+        # an SD measured on a finite number of beacon trials (sd_dof, dfkit.calibration) widens the region
+        cal_dof = np.full(m, np.inf)
+        np.minimum.at(cal_dof, g, b["sd_dof"].fillna(np.inf).to_numpy(float) if "sd_dof" in b else np.inf)
+        known_dof = np.where(np.isfinite(cal_dof), cal_dof, 0)
+        k = regions.scale_factor(level, np.where(sol.sd_known, known_dof, sol.dof))
         ell = regions.ellipse_axes(sol.cov_en, k)
     status = np.full(m, "ok", dtype=object)
     reasons: list[list[str]] = [[] for _ in range(m)]
@@ -235,7 +239,9 @@ def locate(bearings: Bearings, *, method: str = "mle", level: float = 0.95,
         "n_used": sol.n_used if m else [],
         "method": method,
         "sd_deg": np.where(has_pos, sol.sd_deg, np.nan) if m else [],
-        "sd_source": np.where(~has_pos, "", np.where(sol.sd_known, "given",
+        "sd_source": np.where(~has_pos, "", np.where(sol.sd_known, np.where(  # every bearing calibrated?
+            np.bincount(g, (b["sd_source"] == "calibration").to_numpy(float), m) == counts,
+            "calibration", "given"),
                                                       np.where(sol.dof > 0, "estimated", ""))) if m else [],
         "level": level,
         "semi_major_m": np.where(has_region, ell.semi_major_m, np.nan) if m else [],

@@ -63,7 +63,8 @@ def write_figures(fixes, folder, progress=None) -> list[str]:
         if len(rows) == 0:
             problems.append(f"no figure for fix {label}: it has no usable bearing")
             continue
-        one = Fixes(table=t.iloc[[i]].reset_index(drop=True), bearings=b.iloc[rows], source=fixes.source)
+        one = Fixes(table=t.iloc[[i]].reset_index(drop=True), bearings=b.iloc[rows].assign(fix_id=0),
+                    source=fixes.source)
         try:
             fig = fix_plot(one, t["fix"].iat[i])
             fig.savefig(os.path.join(folder, _safe_name(i, label)), dpi=110)

@@ -178,12 +178,12 @@ def parse_positions(table: pd.DataFrame, *, prefix: str = "", station_column: st
         _swapped(p, groups, track_ll)
     if track is not None and times is not None:
         _from_track(p, track, times, track_gap_s)
+    if "station" in cols and stations is None:
+        log.reject(~log.bad & (p.source == "") & (p.cells["station"] != ""), cols["station"],
+                   lambda idx: [f"{cols['station']} '{p.cells['station'][i]}' given but no stations file "
+                                "(--stations FILE)" for i in idx])
     if required:
         need = ~log.bad & (p.source == "")
-        if "station" in cols and stations is None:
-            log.reject(need & (p.cells["station"] != ""), cols["station"],
-                       lambda idx: [f"station '{p.cells['station'][i]}' given but no stations file (--stations FILE)"
-                                    for i in idx])
         msg = ("no position and no time to look up on the GPS track" if track is not None else
                f"no position: give {prefix}lat and {prefix}lon, {prefix}utm_zone/easting/northing, {prefix}mgrs, "
                f"a station label, or a time with a GPS track (--track)")
@@ -241,7 +241,7 @@ def _latlon(p: _State, decimal_comma):
     a, o = la.values, lo.values
     with np.errstate(invalid="ignore"):
         log.reject(has & (np.abs(a) > 90) & (np.abs(o) <= 90), cl,
-                   lambda idx: [f"{a[i]:g} is not a latitude, but {o[i]:g} could be: lat and lon look swapped"
+                   lambda idx: [f"{a[i]:g} is not a latitude, but {o[i]:g} could be: {cl} and {cn} look swapped"
                                 for i in idx])
         log.reject(has & (np.abs(a) > 90), cl, lambda idx: [f"{a[i]:g} is outside -90..90" for i in idx])
         log.reject(has & ((o < -180) | (o > 360)), cn, lambda idx: [f"{o[i]:g} is outside -180..180" for i in idx])
@@ -274,7 +274,7 @@ def _station(p: _State, stations):
         return
     known = np.isin(cells[idx], stations.index.to_numpy(dtype=object))
     p.log.reject(p.log.mask(idx[~known]), p.name("station"),
-                 lambda ii: [f"station '{cells[i]}' is not in the stations file" for i in ii])
+                 lambda ii: [f"{p.name('station')} '{cells[i]}' is not in the stations file" for i in ii])
     ok = idx[known]
     rows = stations.loc[cells[ok]]
     p.take(ok, rows["lat"].to_numpy(float), rows["lon"].to_numpy(float), "station",
