@@ -7,7 +7,6 @@ easting's distance from the meridian, and the geodesic distance (pyproj.Geod) be
 converted to zone 33 and back. Nothing is asserted.
 """
 
-import numpy as np
 import pyproj
 
 G = pyproj.Geod(ellps="WGS84")

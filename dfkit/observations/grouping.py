@@ -42,7 +42,6 @@ def group_fixes(labels, tags, times, *, window_s: float, split_gap_s: float, log
     labels = np.asarray(labels, dtype=object)
     tags = np.asarray(tags, dtype=object)
     times = np.asarray(times, float)
-    n = len(labels)
     fix = labels.copy()
     grouped_by = np.where(labels != "", "label", "").astype(object)
     timed = np.isfinite(times)

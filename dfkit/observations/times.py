@@ -219,7 +219,7 @@ def _split(text, pattern):
     m = _NUM_DATE.match(text)
     kind = ""
     if m:
-        a, sep, b, c = m.group(1), m.group(2), m.group(3), m.group(4)
+        a, b, c = m.group(1), m.group(3), m.group(4)
         rest = text[m.end():]
         if len(a) == 4:
             y, mo, d, kind = int(a), int(b), int(c), "ymd"
