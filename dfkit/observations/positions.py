@@ -273,8 +273,14 @@ def _station(p: _State, stations):
     if not len(idx) or stations is None:
         return
     known = np.isin(cells[idx], stations.index.to_numpy(dtype=object))
-    p.log.reject(p.log.mask(idx[~known]), p.name("station"),
-                 lambda ii: [f"{p.name('station')} '{cells[i]}' is not in the stations file" for i in ii])
+    refused = stations.attrs.get("refused", {})
+
+    def why(label):
+        if label in refused:
+            return f"{p.name('station')} '{label}' has no usable position in the stations file (its line {refused[label]})"
+        return f"{p.name('station')} '{label}' is not in the stations file"
+
+    p.log.reject(p.log.mask(idx[~known]), p.name("station"), lambda ii: [why(cells[i]) for i in ii])
     ok = idx[known]
     rows = stations.loc[cells[ok]]
     p.take(ok, rows["lat"].to_numpy(float), rows["lon"].to_numpy(float), "station",
@@ -696,6 +702,7 @@ def read_places(source, label_column: str = "station", *, prefix: str = "", work
     places : pandas.DataFrame
         Indexed by label: ``lat``, ``lon`` [°], ``zone``, ``south``, ``source``,
         ``line``. Only usable rows; a label listed twice keeps its first row.
+        ``places.attrs['refused']`` maps labels whose rows were all refused to a line.
     problems : list of Problem
         Rejected rows and warnings, with line numbers.
 
@@ -735,6 +742,9 @@ def read_places(source, label_column: str = "station", *, prefix: str = "", work
     out = pd.DataFrame({"lat": pos.lat[keep], "lon": pos.lon[keep], "zone": pos.zone[keep],
                         "south": pos.south[keep], "source": pos.source[keep], "line": log.lines[keep]},
                        index=pd.Index(labels[keep], name=label_column))
+    kept = set(labels[keep].tolist())
+    out.attrs["refused"] = {lab: int(ln) for lab, ln in zip(labels[~keep], log.lines[~keep])
+                            if lab and lab not in kept}
     return out, log.problems
 
 

@@ -47,3 +47,15 @@ def test_read_places_needs_its_label_column(write_sheet):
 
     with pytest.raises(SheetError, match="no 'spot' column"):
         read_places(write_sheet("name,lat,lon\nA,47,15\n"), label_column="spot")
+
+
+def test_a_station_refused_in_its_file_is_named_as_such(write_sheet, tmp_path):
+    from dfkit import read_bearings
+
+    st = tmp_path / "stations.csv"
+    st.write_text("station,utm_zone,easting,northing\nR1,33T,512300,5301200\nR2,33T,514300,5301000\n"
+                  "R3,33U,513300,5303200\n")
+    b = read_bearings(write_sheet("fix,station,bearing\nA,R1,30\nA,R2,330\nA,R3,200\nA,R9,100\n"), stations=st)
+    errs = {p.line: p.message for p in b.problems if p.severity == "error" and p.source.endswith("sheet.csv")}
+    assert "no usable position in the stations file (its line 4)" in errs[4]
+    assert "is not in the stations file" in errs[5]
