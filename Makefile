@@ -20,6 +20,8 @@ demo: $(STAMP)
 	$(PY) -m dfkit map sample_bearings/week_tracking.csv --track sample_bearings/week_track.gpx -o demo_output/week_map.html || test $$? -eq 1
 	$(PY) -m dfkit calibrate sample_bearings/beacon_trials.csv -o demo_output/calibration.csv --figures demo_output/calibration_figures || test $$? -eq 1
 	$(PY) -m dfkit fix sample_bearings/tracking_after_trials.csv --calibration demo_output/calibration.csv -o demo_output/after_trials.csv
+	$(PY) -m dfkit plan sample_bearings/hunt.csv --window 90 --fix fox-2 --spots sample_bearings/hunt_spots.csv -o demo_output/hunt_plan_fox2.csv -o demo_output/hunt_plan_fox2.html
+	$(PY) -m dfkit plan sample_bearings/hunt.csv --window 90 --method andrews --fix fox-1 --around 3000 --step 250 -o demo_output/hunt_plan_fox1_grid.html
 	@echo "Demo outputs are in demo_output/ (open demo_output/week_map.html in a browser; it works offline)."
 
 test: $(STAMP)
@@ -35,6 +37,7 @@ bench: $(STAMP)
 	$(PY) benchmarks/bench_fix.py
 	$(PY) benchmarks/calibration_study.py
 	$(PY) benchmarks/bench_map.py run --fixes 20000
+	$(PY) benchmarks/bench_planning.py
 
 wheelhouse: $(STAMP)
 	$(PY) -m pip wheel --quiet -w wheelhouse '.[test]'

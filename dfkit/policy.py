@@ -110,3 +110,13 @@ MAX_WINDOW_MIN = 60.0 * SPLIT_LABEL_GAP_H
 #: Largest --track-gap [s]: a position interpolated over more than an hour of missing track is a guess.
 #: Common practice, no source.
 MAX_TRACK_GAP_S = 3600.0
+
+#: With a single bearing there is no estimate; a plan averages over positions along the bearing out to
+#: this range [m]. Common practice, no single source: ground-level VHF and 2 m hunt transmitters are
+#: usually heard over a few kilometres; set it (--max-range) from what your kit reaches.
+DEFAULT_MAX_RANGE_M = 5000.0
+
+#: Bearing SD assumed for the spread of plausible positions when no SD is known at all [°] (a plan then
+#: reports ranks and ratios but no areas). Common practice, no single source: hand-held Yagi bearings are
+#: typically good to a few degrees to about 10 degrees.
+NOMINAL_SD_DEG = 5.0

@@ -20,6 +20,8 @@ Files written (in this folder):
 * ``field_sheet_with_mistakes.csv``: a hand-typed sheet with the usual mistakes and
   the usual ways of writing (GPS-style UTM zones, degrees and minutes, day-first
   dates, a label used again another day), for ``dfkit check``;
+* ``hunt_spots.csv``: trail junctions and road pull-outs of the hunt's area, the
+  candidate spots for ``dfkit plan`` (positions written as lat/lon, UTM and MGRS);
 * ``truth_*.csv``: the true transmitter positions behind each sheet.
 """
 
@@ -332,10 +334,49 @@ def mistakes():
     write("field_sheet_with_mistakes.csv", header, rows)
 
 
+def hunt_spots():
+    """Places in the hunt's area a team can reach and take a bearing from (for ``dfkit plan``).
+
+    Chosen by hand (no random numbers), in metres east and north of the same base
+    as the hunt; a few are written in UTM or MGRS, as read off a map or a GPS.
+    """
+    import mgrs
+
+    spots = [  # label, kind, east m, north m, form, note
+        ("J-brook", "trail junction", 400.0, 1500.0, "latlon", "footbridge over the brook"),
+        ("J-beech", "trail junction", 1700.0, 2300.0, "latlon", ""),
+        ("J-saddle", "trail junction", -600.0, 3900.0, "utm", "steep last 200 m"),
+        ("J-ridge", "trail junction", 1200.0, 4300.0, "latlon", ""),
+        ("J-spring", "trail junction", 3600.0, 4000.0, "mgrs", ""),
+        ("J-meadow", "trail junction", -2200.0, 4000.0, "latlon", "grazing: ask the farmer first"),
+        ("J-hut", "trail junction", 2900.0, 5200.0, "utm", ""),
+        ("P-quarry", "road pull-out", 4300.0, 2200.0, "latlon", "room for two cars"),
+        ("P-bridge", "road pull-out", 2600.0, 700.0, "utm", ""),
+        ("P-sawmill", "road pull-out", -2900.0, 2200.0, "mgrs", "weekdays: lorries"),
+        ("P-crossroads", "road pull-out", -1000.0, 1100.0, "latlon", ""),
+        ("P-layby", "road pull-out", 800.0, 2800.0, "latlon", ""),
+    ]
+    to_mgrs = mgrs.MGRS()
+    rows = []
+    for label, kind, e, n, form, note in spots:
+        lat, lon = offset(BASE_LAT, BASE_LON, e, n)
+        row = [label, kind, "", "", "", "", "", "", note]
+        if form == "latlon":
+            row[2:4] = [f"{lat:.6f}", f"{lon:.6f}"]
+        elif form == "utm":
+            x, y = UTM33.transform(lon, lat)
+            row[4:7] = ["33N", f"{x:.0f}", f"{y:.0f}"]
+        else:
+            row[7] = to_mgrs.toMGRS(lat, lon, MGRSPrecision=5)
+        rows.append(row)
+    write("hunt_spots.csv", ["spot", "kind", "lat", "lon", "utm_zone", "easting", "northing", "mgrs", "note"], rows)
+
+
 if __name__ == "__main__":
     animal_fix()
     hunt()
     week_tracking()
     beacon_trials()
     mistakes()
+    hunt_spots()
     print("sample sheets written to", HERE)
