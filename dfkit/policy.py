@@ -7,9 +7,10 @@ report. Values that come from a publication name it (from memory where marked).
 
 from __future__ import annotations
 
-#: Default time window for grouping unlabelled bearings into fixes [minutes].
-#: Common practice, no single source: bearings of one fix are taken within
-#: about 10-20 min (see e.g. Schmutz & White 1990 on animal movement during a fix).
+#: Default grouping window [minutes]: the largest gap between successive bearings of one fix (unlabelled
+#: bearings of a tag are chained while each follows the last within it; a labelled fix with a longer gap is
+#: flagged). Common practice, no single source: bearings of one fix are taken a few to about 20 min apart
+#: (see e.g. Schmutz & White 1990, J. Wildl. Manage. 54: 506-510 [from memory], on animal movement during a fix).
 DEFAULT_WINDOW_MIN = 20.0
 
 #: Two-bearing fixes crossing at less than this angle (or more than 180 minus it)
