@@ -291,3 +291,45 @@ def declinations(cells, decimal_comma: bool = False) -> Cells:
     err[bad] = [f"'{x}' is not a declination; write degrees east (-3.5) or 3.5W" for x in cells[bad]]
     vals = np.where(west, -c.values, c.values)
     return Cells(np.where(bad, np.nan, vals), c.empty, err)
+
+
+def split_position(text: str, *, decimal_comma: bool = False):
+    """One cell holding a whole position to ``(lat_text, lon_text, error)``.
+
+    Latitude comes first unless hemisphere letters say otherwise, as in GeographicLib's
+    GeoConvert(1) manual, whose examples "33.3 44.4", "E44.4 N33.3", "33d18'N 44d24'E",
+    "44d24 33d18N" and "33:18 44:24" all name the same point. The two parts may be
+    separated by a comma or semicolon (``47.8581, 15.1631``, as map apps copy a
+    position) or by spaces; when more than one way of splitting the spaces reads as
+    two angles, the cell is refused as ambiguous.
+    """
+    raw = str(text).strip()
+    for sep in (";", ","):
+        if sep in raw and not (sep == "," and decimal_comma):
+            parts = [x.strip() for x in raw.split(sep)]
+            if len(parts) == 2 and all(parts):
+                return _order(raw, parts[0], parts[1])
+    tokens = raw.split()
+    found = []
+    for k in range(1, len(tokens)):
+        a, b = " ".join(tokens[:k]), " ".join(tokens[k:])
+        ra, rb = parse_angle(a, decimal_comma=decimal_comma), parse_angle(b, decimal_comma=decimal_comma)
+        if not ra[2] and not rb[2]:
+            found.append((a, b))
+    if len(found) == 1:
+        return _order(raw, *found[0])
+    if not found:
+        return "", "", (f"'{raw}' is not a position; write latitude and longitude in one cell like "
+                        "'47.8581, 15.1631' or 'N47 51.486 E15 09.786', or use lat and lon columns")
+    return "", "", (f"'{raw}' can be split into latitude and longitude in more than one way; separate them with a "
+                    "comma or use lat and lon columns")
+
+
+def _order(raw, a, b, decimal_comma=False):
+    axis_a = parse_angle(a, decimal_comma=decimal_comma)[1]
+    axis_b = parse_angle(b, decimal_comma=decimal_comma)[1]
+    if axis_a == "lon" or axis_b == "lat":
+        if axis_a == "lat" or axis_b == "lon":
+            return "", "", f"'{raw}' has two latitudes or two longitudes"
+        return b, a, ""
+    return a, b, ""

@@ -38,7 +38,7 @@ def check_columns(columns, source: str, *, stations: bool, track: bool) -> None:
     utm = [k for k in ("utm_zone", "easting", "northing") if k in pos]
     if utm and ("easting" in pos) != ("northing" in pos) or (("easting" in pos) and "utm_zone" not in pos):
         raise SheetError(f"{name}: UTM positions need utm_zone, easting and northing columns; found {', '.join(utm)}")
-    complete = {"lat", "lon"} <= set(pos) or "mgrs" in pos or "utm_zone" in pos or \
+    complete = {"lat", "lon"} <= set(pos) or "mgrs" in pos or "utm_zone" in pos or "position" in pos or \
         ("station" in pos and stations) or (track and "time" in cols)
     if complete:
         return
@@ -48,5 +48,6 @@ def check_columns(columns, source: str, *, stations: bool, track: bool) -> None:
     if track:
         raise SheetError(f"{name}: a GPS track was given, but the sheet has no time column to look positions up. "
                          f"Found: {found}")
-    raise SheetError(f"{name}: no position columns. Found: {found}. Expected lat and lon, utm_zone with easting and "
-                     "northing, mgrs, station (with --stations FILE), or time (with --track FILE.gpx)")
+    raise SheetError(f"{name}: no position columns. Found: {found}. Expected lat and lon (or both in one position "
+                     "column), utm_zone with easting and northing, mgrs, station (with --stations FILE), or time (with "
+                     "--track FILE.gpx)")

@@ -32,7 +32,7 @@ import pandas as pd
 
 from dfkit import grids
 from dfkit.io.gpx import Track
-from dfkit.observations.cells import angles, column, numbers, per_value
+from dfkit.observations.cells import angles, column, numbers, per_value, split_position
 from dfkit.observations.rowlog import RowLog
 from dfkit.policy import (
     BAND_EDGE_MARGIN_DEG, DEFAULT_TRACK_GAP_S, OUT_OF_STRIP_TYPO_M, POSITION_AGREEMENT_M, SWAPPED_FAR_DEG,
@@ -48,6 +48,7 @@ POSITION_COLUMNS = {
     "easting": ("easting", "east", "utm_easting", "x"),
     "northing": ("northing", "north_m", "utm_northing", "y"),
     "mgrs": ("mgrs", "usng"),
+    "position": ("position", "coordinates", "coords", "latlon", "lat_lon", "lat/lon", "lat,lon"),
 }
 
 #: Where a row's position came from.
@@ -99,7 +100,7 @@ def position_columns(columns, prefix: str = "", station_column: str | None = Non
 def has_position_columns(columns, prefix: str = "", station_column: str | None = None) -> bool:
     """Whether a table has at least one complete way of giving a position."""
     f = position_columns(columns, prefix, station_column)
-    return ({"lat", "lon"} <= set(f) or "mgrs" in f or "station" in f
+    return ({"lat", "lon"} <= set(f) or "mgrs" in f or "station" in f or "position" in f
             or {"utm_zone", "easting", "northing"} <= set(f) or ("utm_zone" in f and "easting" not in f))
 
 
@@ -170,6 +171,7 @@ def parse_positions(table: pd.DataFrame, *, prefix: str = "", station_column: st
     # decides between are hundreds of km apart; positions taken from the track keep the strict --track-gap
     track_ll = _track_at(track, times, np.inf, n) if track is not None and times is not None else None
 
+    _combined(p, decimal_comma)
     _latlon(p, decimal_comma)
     _mgrs(p)
     _station(p, stations)
@@ -203,7 +205,7 @@ class _State:
         self.n = n
         self.log = log
         self.cells = {role: cells.get(role, np.full(n, "", dtype=object))
-                      for role in ("lat", "lon", "utm_zone", "easting", "northing", "mgrs", "station")}
+                      for role in ("lat", "lon", "utm_zone", "easting", "northing", "mgrs", "station", "position")}
         self.cols = cols
         self.lat = np.full(n, np.nan)
         self.lon = np.full(n, np.nan)
@@ -225,6 +227,24 @@ class _State:
         later = idx[~first]
         if len(later):
             _cross_check(self, later, np.asarray(lat)[~first], np.asarray(lon)[~first], what)
+
+
+def _combined(p: _State, decimal_comma):
+    """A ``position`` cell holding latitude and longitude: split into the lat/lon cells of rows that have none."""
+    cells = p.cells["position"]
+    rows = np.flatnonzero((cells != "") & (p.cells["lat"] == "") & (p.cells["lon"] == ""))
+    if not len(rows):
+        return
+    parts = per_value(cells[rows], lambda u: split_position(u, decimal_comma=decimal_comma))
+    err = np.array([e for _, _, e in parts], dtype=object)
+    p.log.reject(p.log.mask(rows[err != ""]), p.name("position"), err[err != ""])
+    ok = err == ""
+    lat_c, lon_c = p.cells["lat"].copy(), p.cells["lon"].copy()
+    lat_c[rows[ok]] = [a for a, _, _ in parts[ok]]
+    lon_c[rows[ok]] = [b for _, b, _ in parts[ok]]
+    p.cells["lat"], p.cells["lon"] = lat_c, lon_c
+    if "lat" not in p.cols and "lon" not in p.cols:   # messages about these cells name the sheet's column
+        p.cols = {**p.cols, "lat": p.cols["position"], "lon": p.cols["position"]}
 
 
 def _latlon(p: _State, decimal_comma):

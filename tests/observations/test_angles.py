@@ -88,3 +88,23 @@ def test_the_column_reader_agrees_with_the_one_cell_reader(d, m, s, marks, lette
             assert col.error[0] != "", text
         else:
             assert col.error[0] == "" and col.values[0] == pytest.approx(v, abs=1e-12), text
+
+
+@pytest.mark.parametrize("cell", [
+    # GeographicLib, GeoConvert(1) manual, "GEOGRAPHIC COORDINATES": these name one point, 33.3 N 44.4 E
+    "33.3 44.4", "E44.4 N33.3", "33d18'N 44d24'E", "44d24 33d18N", "33:18 44:24",
+    # as map apps and GPS units copy a position
+    '"33.3, 44.4"', "N33 18.000 E44 24.000", "33 18 0 N 44 24 0 E",
+])
+def test_a_whole_position_in_one_cell(write_sheet, cell):
+    b = read_bearings(write_sheet(f"fix,position,bearing\nA,{cell},45\n"))
+    assert [p for p in b.problems if p.severity == "error"] == []
+    assert (b.table["lat"][0], b.table["lon"][0]) == pytest.approx((dms(33, 18), dms(44, 24)), abs=1e-12)
+
+
+@pytest.mark.parametrize("cell, words", [("48 58 15 10", "more than one way"), ("N47 N15", "two latitudes"),
+                                         ("near the hut", "not a position")])
+def test_a_position_cell_that_cannot_be_split_is_refused(write_sheet, cell, words):
+    b = read_bearings(write_sheet(f"fix,coordinates,bearing\nA,{cell},45\n"))
+    (p,) = [p for p in b.problems if p.severity == "error"]
+    assert p.column == "coordinates" and words in p.message
