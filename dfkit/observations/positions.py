@@ -237,7 +237,9 @@ def _combined(p: _State, decimal_comma):
         return
     parts = per_value(cells[rows], lambda u: split_position(u, decimal_comma=decimal_comma))
     err = np.array([e for _, _, e in parts], dtype=object)
-    p.log.reject(p.log.mask(rows[err != ""]), p.name("position"), err[err != ""])
+    full = np.full(p.n, "", dtype=object)
+    full[rows] = err
+    p.log.reject(full != "", p.name("position"), full)
     ok = err == ""
     lat_c, lon_c = p.cells["lat"].copy(), p.cells["lon"].copy()
     lat_c[rows[ok]] = [a for a, _, _ in parts[ok]]
@@ -412,8 +414,14 @@ def _utm(p: _State, decimal_comma, utm_letters, groups, track_ll):
             log.reject(log.mask(rows[undecided]), cz, lambda ii: [
                 _both_readings(zc[i], lat_n[_k(rows, i)], lon_n[_k(rows, i)], lat_s[_k(rows, i)], lon_s[_k(rows, i)])
                 for i in ii])
-            told = amb & decided
-            log.warn(log.mask(rows[told]), cz, lambda ii: [why[_k(rows, i)] for i in ii])
+            told = np.flatnonzero(amb & decided)
+            # one warning per distinct reason, on its first row, naming how many rows it covers
+            texts = pd.Series(why[told])
+            for text, ks in texts.groupby(texts, sort=False).groups.items():
+                ks = told[np.asarray(ks)]
+                more = f" (the same for {len(ks) - 1} more rows, to line {log.lines[rows[ks[-1]]]})" if len(ks) > 1 \
+                    else ""
+                log.warn(log.mask([rows[ks[0]]]), cz, text + more)
     keep = decided & ~log.bad[rows]
     r = rows[keep]
     lat = np.where(south, lat_s, lat_n)[keep]

@@ -13,7 +13,7 @@ from dfkit import SheetError, read_bearings
 from tests.test_sheet import CELL
 
 OPTIONAL = ["fix", "tag", "time", "utm_zone", "easting", "northing", "mgrs", "unit", "north", "sd", "declination",
-            "date", "note"]
+            "date", "note", "position"]
 OPTIONS = st.fixed_dictionaries({}, optional={"tz": st.sampled_from(["UTC", "Europe/Vienna", "America/Santiago"]),
                                               "utm_letters": st.sampled_from(["band", "hemisphere", "auto"]),
                                               "date_format": st.sampled_from(["dmy", "mdy"]),
