@@ -32,6 +32,10 @@ POSITION_AGREEMENT_M = 50.0
 #: (common practice, no source: a GPS logging every few seconds leaves no larger gaps).
 DEFAULT_TRACK_GAP_S = 60.0
 
+#: Home ranges from fewer fixes than this are computed but flagged 'few_fixes'. Common practice; Seaman
+#: et al. (1999, J. Wildl. Manage. 63(2) 739-747 [from memory]) advise at least 30 fixes per animal
+#: for kernel estimates.
+MIN_RANGE_FIXES = 30
 # --- beacon calibration (dfkit.calibration)
 
 #: A trial whose error lies farther than this many robust SDs (1.4826 x the median absolute deviation) from its

@@ -20,6 +20,9 @@ Files written (in this folder):
 * ``field_sheet_with_mistakes.csv``: a hand-typed sheet with the usual mistakes and
   the usual ways of writing (GPS-style UTM zones, degrees and minutes, day-first
   dates, a label used again another day), for ``dfkit check``;
+* ``season_2026_05.csv``, ``season_2026_06.csv``: two months of tracking three tags
+  whose true home ranges are known (``truth_season.csv``), for ``dfkit season``
+  and ``dfkit ranges``;
 * ``hunt_spots.csv``: trail junctions and road pull-outs of the hunt's area, the
   candidate spots for ``dfkit plan`` (positions written as lat/lon, UTM and MGRS);
 * ``truth_*.csv``: the true transmitter positions behind each sheet.
@@ -334,6 +337,49 @@ def mistakes():
     write("field_sheet_with_mistakes.csv", header, rows)
 
 
+def season():
+    """Two monthly sheets of a tracking season on three tags whose true home ranges are known.
+
+    Each animal's daily position is drawn from a bivariate normal (its true utilisation
+    distribution, whose 95 % isopleth has the area -2 ln(0.05) pi sigma_e sigma_n); most days
+    it gets one fix of three compass bearings. The June sheet begins with the last three days
+    of May, as a cumulative export would. Uses its own random generator, so the other samples
+    do not change when this scenario does.
+    """
+    g = np.random.default_rng(20260815)
+    tags = {"151.040": (-800.0, 600.0, 300.0, 200.0), "151.310": (900.0, 1100.0, 450.0, 250.0),
+            "151.620": (300.0, -900.0, 250.0, 350.0)}
+    rows, fixes = [], []
+    start = datetime(2026, 5, 1, 5, 0, tzinfo=timezone.utc)
+    for day in range(61):
+        t = start + timedelta(days=day)
+        for tag, (ce, cn, se_, sn_) in tags.items():
+            t += timedelta(minutes=int(g.integers(20, 50)))
+            if g.random() > 0.85:
+                continue                                   # not found that day
+            ae, an = ce + g.normal(0, se_), cn + g.normal(0, sn_)
+            alat, alon = offset(BASE_LAT, BASE_LON, ae, an)
+            angles = g.uniform(0, 2 * np.pi) + np.array([0.0, 2.1, 4.2]) + g.normal(0, 0.3, 3)
+            first = None
+            for k in range(3):
+                r = g.uniform(500, 1200)
+                slat, slon = offset(BASE_LAT, BASE_LON, ae + r * np.sin(angles[k]), an + r * np.cos(angles[k]))
+                when = t + timedelta(minutes=5 * k)
+                err = g.normal(0.0, 4.0) if g.random() > 0.02 else g.uniform(30, 60)   # now and then a reflection
+                mag = (azimuth(slat, slon, alat, alon) - declination(slat, slon, when) + err) % 360.0
+                rows.append([day, tag, iso(when, CEST), f"{slat:.6f}", f"{slon:.6f}", f"{mag:.0f}", "magnetic", "4",
+                             "KL"[k % 2], ""])
+                first = first or when
+            fixes.append([tag, iso(first), f"{alat:.7f}", f"{alon:.7f}"])
+    rows[100][5] = str(int(rows[100][5]) * 10 + 7)           # a slip of the pen: dfkit rejects the row
+    rows[100][9] = "typed in the evening"
+    header = ["tag", "time", "lat", "lon", "bearing", "north", "sd", "observer", "note"]
+    write("season_2026_05.csv", header, [r[1:] for r in rows if r[0] <= 30])
+    write("season_2026_06.csv", header, [r[1:] for r in rows if r[0] >= 28])
+    write("truth_season.csv", ["tag", "centre_lat", "centre_lon", "sigma_east_m", "sigma_north_m"],
+          [[tag, *(f"{v:.7f}" for v in offset(BASE_LAT, BASE_LON, ce, cn)), f"{se_:g}", f"{sn_:g}"]
+           for tag, (ce, cn, se_, sn_) in tags.items()])
+    write("truth_season_fixes.csv", ["tag", "first_bearing_time", "lat", "lon"], fixes)
 def hunt_spots():
     """Places in the hunt's area a team can reach and take a bearing from (for ``dfkit plan``).
 
@@ -378,5 +424,6 @@ if __name__ == "__main__":
     week_tracking()
     beacon_trials()
     mistakes()
+    season()
     hunt_spots()
     print("sample sheets written to", HERE)

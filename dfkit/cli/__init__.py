@@ -17,13 +17,13 @@ import argparse
 import sys
 
 from dfkit import __version__
-from dfkit.cli import calibrate, check, fix, map as map_cmd, plan
+from dfkit.cli import calibrate, check, fix, map as map_cmd, plan, ranges, season
 from dfkit.cli.common import option_message
 from dfkit.observations.options import OptionError
 from dfkit.problems import SheetError
 
 #: The sub-commands, in the order ``dfkit --help`` lists them.
-COMMANDS = [check, fix, map_cmd, calibrate, plan]
+COMMANDS = [check, fix, map_cmd, calibrate, plan, season, ranges]
 
 
 def build_parser() -> argparse.ArgumentParser:
