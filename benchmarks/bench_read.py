@@ -1,86 +1,84 @@
-"""Speed of reading sheets and writing tables, on the common case and on the awkward ones.
+"""Speed of reading and checking a season-sized sheet (`read_bearings` alone: no solving, no writing).
 
-    .venv/bin/python benchmarks/bench_read.py [--rows 400000] [--repeat 3]
+    .venv/bin/python benchmarks/bench_read.py [--rows 400000] [--kind plain|timed|utm|dms] [--repeat 3]
 
-Cases (each the best of --repeat runs, in process):
+Builds one sheet of the chosen kind in a temporary folder and times `dfkit.read_bearings` on it in process
+(best and median of --repeat runs). Kinds:
 
-* ``plain``: a quote-free UTF-8 sheet (the fast path, pandas' C parser);
-* ``quoted``: the same sheet with one quoted note (the careful per-row path);
-* ``one_cp1252_line``: the plain sheet with one Windows-1252 byte (per-line decoding);
-* ``comments``: the plain sheet with a comment line every 100 lines;
-* ``wide_header_empty``: a header of 50,000 empty columns and a few rows (must stay linear);
-* ``write_table``: writing the normalized table of the plain sheet as CSV, with and without the formula guard.
+* ``plain``: fix, lat, lon, bearing, sd (decimal degrees, labelled fixes);
+* ``timed``: tag, time (ISO 8601 with offset), lat, lon, bearing: unlabelled, grouped by the window;
+* ``utm``: fix, utm_zone (band letters), easting, northing, bearing;
+* ``dms``: fix, lat, lon written as degrees-decimal-minutes with hemisphere letters, bearing.
 
-Nothing is asserted: numbers go into DEVELOPERS.md, not into tests.
+Nothing is asserted; numbers go into DEVELOPERS.md with the command that produced them.
 """
 
 from __future__ import annotations
 
 import argparse
 import os
+import statistics
+import sys
 import tempfile
 import time
 
 import numpy as np
 
 
-def _plain(n, rng):
-    lat = 47 + rng.uniform(0, 0.1, n)
-    lon = 15 + rng.uniform(0, 0.1, n)
+def make_sheet(path, n, kind, rng):
+    lat = rng.uniform(46.0, 49.0, n)
+    lon = rng.uniform(12.0, 18.0, n)
     b = rng.uniform(0, 360, n)
-    rows = [f"F{i // 4},{la:.6f},{lo:.6f},{bb:.2f},4,ok" for i, (la, lo, bb) in enumerate(zip(lat, lon, b))]
-    return "fix,lat,lon,bearing,sd,note\n" + "\n".join(rows) + "\n"
+    with open(path, "w") as fh:
+        if kind == "plain":
+            fh.write("fix,lat,lon,bearing,sd\n")
+            fh.writelines(f"F{i // 4},{la:.6f},{lo:.6f},{x:.1f},4\n" for i, (la, lo, x) in enumerate(zip(lat, lon, b)))
+        elif kind == "timed":
+            fh.write("tag,time,lat,lon,bearing\n")
+            t0 = np.datetime64("2026-05-01T00:00:00")
+            secs = np.sort(rng.uniform(0, 150 * 86400, n)).astype("int64")
+            stamps = (t0 + secs.astype("timedelta64[s]")).astype(str)
+            tags = rng.integers(0, 40, n)
+            fh.writelines(f"{150 + t / 1000:.3f},{s}+02:00,{la:.6f},{lo:.6f},{x:.1f}\n"
+                          for t, s, la, lo, x in zip(tags, stamps, lat, lon, b))
+        elif kind == "utm":
+            import pyproj
 
-
-def _best(func, repeat):
-    best = float("inf")
-    out = None
-    for _ in range(repeat):
-        t0 = time.perf_counter()
-        out = func()
-        best = min(best, time.perf_counter() - t0)
-    return best, out
+            tr = pyproj.Transformer.from_crs("EPSG:4326", "EPSG:32633", always_xy=True)
+            e, nn = tr.transform(lon, lat)
+            fh.write("fix,utm_zone,easting,northing,bearing\n")
+            band = np.where(lat >= 48.0, "U", "T")   # GPS-style band letters (T: 40-48 N, U: 48-56 N)
+            fh.writelines(f"F{i // 4},33{z},{x:.0f},{y:.0f},{v:.1f}\n"
+                          for i, (z, x, y, v) in enumerate(zip(band, e, nn, b)))
+        elif kind == "dms":
+            fh.write("fix,lat,lon,bearing\n")
+            la_m = np.floor(lat * 60000) / 1000          # whole thousandths of a minute: never '60.000'
+            lo_m = np.floor(lon * 60000) / 1000
+            fh.writelines(f"F{i // 4},{int(a // 60)}°{a % 60:06.3f}'N,E{int(o // 60)} {o % 60:06.3f},{x:.1f}\n"
+                          for i, (a, o, x) in enumerate(zip(la_m, lo_m, b)))
+        else:
+            raise SystemExit(f"unknown --kind {kind}")
 
 
 def main():
-    from dfkit.export.csv import write_table
-    from dfkit.io.sheet import read_sheet
-    from dfkit.observations import read_bearings
-
     ap = argparse.ArgumentParser()
     ap.add_argument("--rows", type=int, default=400_000)
+    ap.add_argument("--kind", default="plain")
     ap.add_argument("--repeat", type=int, default=3)
-    ap.add_argument("--cases", default="", help="comma-separated case names (default: all)")
     a = ap.parse_args()
-    rng = np.random.default_rng(1)
-    plain = _plain(a.rows, rng)
-    lines = plain.split("\n")
-    cases = {
-        "plain": plain.encode(),
-        "quoted": plain.replace(",ok\n", ',"a, b"\n', 1).encode(),
-        "one_cp1252_line": plain.encode().replace(b",ok\n", b",B\xf6schung\n", 1),
-        "comments": "\n".join("# checked" if i % 100 == 50 else ln for i, ln in enumerate(lines)).encode(),
-        "wide_header_empty": ("fix,lat,lon,bearing" + "," * 50_000 + "\nA,47,15,45\nA,47,15.02,315\n").encode(),
-    }
+    sys.path.insert(0, os.path.join(os.path.dirname(__file__), ".."))
+    import dfkit
+
     with tempfile.TemporaryDirectory() as tmp:
-        for name, data in cases.items():
-            path = os.path.join(tmp, f"{name}.csv")
-            with open(path, "wb") as fh:
-                fh.write(data)
-            if a.cases and name not in a.cases.split(","):
-                continue
-            t_raw, raw = _best(lambda: read_sheet(path), a.repeat)
-            t_all, _ = _best(lambda: read_bearings(path), 1)
-            print(f"{name:<20} read_sheet {t_raw:6.2f} s   read_bearings {t_all:6.2f} s   "
-                  f"({len(raw.table)} rows, {len(raw.columns)} columns)")
-        b = read_bearings(os.path.join(tmp, "plain.csv"))
-        out = os.path.join(tmp, "out.csv")
-        t_g, _ = _best(lambda: write_table(b.table, out), a.repeat)
-        try:
-            t_v, _ = _best(lambda: write_table(b.table, out, guard_formulas=False), a.repeat)
-        except TypeError:
-            t_v = float("nan")
-        print(f"{'write_table':<20} guarded {t_g:6.2f} s   verbatim {t_v:6.2f} s   ({len(b.table)} rows)")
+        path = os.path.join(tmp, "sheet.csv")
+        make_sheet(path, a.rows, a.kind, np.random.default_rng(1))
+        times = []
+        for _ in range(a.repeat):
+            t0 = time.perf_counter()
+            b = dfkit.read_bearings(path)
+            times.append(time.perf_counter() - t0)
+        print(f"{a.kind}: {a.rows} rows, {len(b.table)} usable, {b.n_rejected} rejected; read_bearings "
+              f"best {min(times):.2f} s, median {statistics.median(times):.2f} s over {a.repeat} runs")
 
 
 if __name__ == "__main__":

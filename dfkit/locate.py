@@ -13,8 +13,9 @@ ok               yes        position and confidence region can be trusted as sta
 no_region        yes        two bearings and no known SD: nothing to size a region with
 shallow          yes        the bearing lines cross at less than 20 degrees (common
                             practice limit): the position is weak along the bearings
-long_span        yes        the bearings span more time than the window: the
-                            transmitter may have moved between them
+long_span        yes        two successive bearings are further apart than the window,
+                            or the fix lasts more than 3 windows: the transmitter
+                            may have moved between them
 too_few          no         fewer than two usable bearings
 one_spot         no         all bearings taken from one spot: they cannot cross
 parallel         no         the bearings are (nearly) parallel and do not cross
@@ -32,14 +33,14 @@ import pandas as pd
 
 from dfkit import estimators, geodesy, regions
 from dfkit.observations import Bearings, ReadOptions, read_bearings
-from dfkit.policy import ONE_SPOT_M, SHALLOW_CROSSING_DEG, WILD_SD
+from dfkit.policy import FIX_SPAN_WINDOWS, ONE_SPOT_M, SHALLOW_CROSSING_DEG, WILD_SD
 from dfkit.problems import Problem
 
 STATUS_MEANING = {
     "ok": "position and confidence region can be trusted as stated",
     "no_region": "a position, but no known bearing SD to size a region with",
     "shallow": "the bearing lines cross at a shallow angle; the position is weak along them",
-    "long_span": "the bearings span more time than the window; the transmitter may have moved",
+    "long_span": "the bearings are too far apart in time; the transmitter may have moved",
     "too_few": "fewer than two usable bearings",
     "one_spot": "all bearings were taken from one spot",
     "parallel": "the bearings are parallel and do not cross",
@@ -141,6 +142,11 @@ def locate(bearings: Bearings, *, method: str = "mle", level: float = 0.95,
     np.minimum.at(tmin, g[has_t], t_s[has_t])
     np.maximum.at(tmax, g[has_t], t_s[has_t])
     span_min = np.where(np.isfinite(tmin), (tmax - tmin) / 60.0, np.nan)
+    # A fix goes on while each bearing follows the last within the window (dfkit.observations.grouping):
+    # flag a gap longer than the window, or a chain lasting more than FIX_SPAN_WINDOWS windows.
+    gap_min = bearings.fix_timing()["max_gap_min"].to_numpy(float) if m else np.zeros(0)
+    with np.errstate(invalid="ignore"):
+        long_span = (gap_min > window_min) | (span_min > FIX_SPAN_WINDOWS * window_min)
     with np.errstate(invalid="ignore"):
         tmid = np.where(np.isfinite(tmin), (tmin + tmax) / 2.0, np.nan)
 
@@ -171,7 +177,7 @@ def locate(bearings: Bearings, *, method: str = "mle", level: float = 0.95,
     if m:
         with np.errstate(invalid="ignore"):
             attention = ((counts < 2) | (spread < ONE_SPOT_M) | sol.parallel | ~sol.converged | sol.behind
-                         | (sol.crossing_deg < SHALLOW_CROSSING_DEG) | (span_min > window_min)
+                         | (sol.crossing_deg < SHALLOW_CROSSING_DEG) | long_span
                          | (~sol.sd_known & (sol.dof <= 0)) | notable)
         attention |= np.array([len(r) > 0 for r in rejected], bool)
     for i in np.flatnonzero(attention):
@@ -198,9 +204,11 @@ def locate(bearings: Bearings, *, method: str = "mle", level: float = 0.95,
                 what = "the two bearings cross" if sol.n_used[i] == 2 else "the bearing lines spread only"
                 flags.append(("shallow", f"{what} at {sol.crossing_deg[i]:.0f}° (common-practice limit "
                                          f"{SHALLOW_CROSSING_DEG:.0f}°); the position is weak along the bearings"))
-            if np.isfinite(span_min[i]) and span_min[i] > window_min:
-                flags.append(("long_span", f"bearings span {span_min[i]:.0f} min, more than the "
-                                           f"{window_min:g}-min window; the transmitter may have moved"))
+            if long_span[i]:
+                what = (f"{gap_min[i]:.0f} min pass between two of its bearings, more than the {window_min:g}-min "
+                        "window" if gap_min[i] > window_min else f"its bearings span {span_min[i]:.0f} min, more "
+                        f"than {FIX_SPAN_WINDOWS:g} windows of {window_min:g} min")
+                flags.append(("long_span", f"{what}; the transmitter may have moved"))
             if not sol.sd_known[i] and sol.dof[i] <= 0:
                 flags.append(("no_region", "two bearings and no known SD: a position but no confidence "
                                            "region (give sd in the sheet or --sd)"))

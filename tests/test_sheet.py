@@ -217,9 +217,13 @@ CELL = st.one_of(st.text(alphabet=st.characters(blacklist_categories=("Cs",)), m
                  st.text(alphabet='#"\'=,;\t \r\n\x00ab1-', max_size=6),
                  st.floats(allow_nan=True, allow_infinity=True).map(str),
                  st.sampled_from(["", "nan", "inf", "47,5", "1e400", "-0", "33N", "Z", "mil", "magnetic", "#B",
-                                  '"', "\x00"]))
+                                  '"', "\x00", "30S", "33T", "33U 512300 5301200", "48°58.1'N", "N48 58 7",
+                                  "15 10 30 E", "E15", "-0 30 W", "03.10.2026 16:05", "25.10.2026 06:00",
+                                  "2026-10-25T02:30:00", "2026-03-29 02:30", "2026-05-03T06:12Z", "06:12", "46145.5",
+                                  "2206-01-01T00:00Z", "5301200", "-32254", "512300", "47.8", "15.1", "0", "90", "180",
+                                  "359.9"]))
 COLUMNS = ["fix", "tag", "time", "lat", "lon", "utm_zone", "easting", "northing", "mgrs", "bearing", "unit",
-           "north", "sd", "declination", "note"]
+           "north", "sd", "declination", "note", "date", "station"]
 _BREAK = re.compile(r"\r\n|\r|\n")
 
 
@@ -251,8 +255,12 @@ def _as_read(cell):
 @settings(max_examples=300, deadline=None, suppress_health_check=[HealthCheck.function_scoped_fixture])
 @given(cols=st.lists(st.sampled_from(COLUMNS), min_size=1, max_size=8, unique=True),
        rows=st.lists(st.lists(CELL, min_size=8, max_size=8), min_size=0, max_size=6),
-       delimiter=st.sampled_from([",", ";", "\t"]))
-def test_reader_never_crashes_and_nothing_vanishes(tmp_path, cols, rows, delimiter):
+       delimiter=st.sampled_from([",", ";", "\t"]),
+       options=st.fixed_dictionaries({}, optional={"tz": st.sampled_from(["UTC", "Europe/Vienna"]),
+                                                   "utm_letters": st.sampled_from(["band", "hemisphere"]),
+                                                   "date_format": st.sampled_from(["dmy", "mdy"]),
+                                                   "repeated_hour": st.sampled_from(["earlier", "later"])}))
+def test_reader_never_crashes_and_nothing_vanishes(tmp_path, cols, rows, delimiter, options):
     # The model of the format (README, "The bearing sheet"): a row written by Python's csv module is a comment
     # when its text starts with '#', blank when every cell is white space, and otherwise data; data rows are
     # used, or rejected with a problem on the line where they start. Nothing else may happen to a row.
@@ -263,7 +271,7 @@ def test_reader_never_crashes_and_nothing_vanishes(tmp_path, cols, rows, delimit
     p.write_text(text, encoding="utf-8")
     try:
         raw = read_sheet(p)
-        b = read_bearings(p)
+        b = read_bearings(p, **options)
     except SheetError as err:
         assert str(err).startswith(str(p)), err     # one message naming the file (exit 2 in the CLI)
         return
