@@ -81,6 +81,7 @@ MAX_COLUMNS = 1000
 _LIST_LINES = 40
 
 _DELIMITERS = (",", ";", "\t")
+_OWN = "\x00own_result_"     # reserved column name prefix for dfkit's own result columns (never read)
 _LINE_END = re.compile(r"\r\n|\r|\n")
 _SURROGATE = re.compile("[\udc80-\udcff]")
 # Control characters that do not occur in a text sheet (NUL is handled per line, not counted here); with
@@ -108,6 +109,12 @@ class RawSheet:
     source: str = ""
     comment_lines: list[int] = field(default_factory=list)
     blank_lines: list[int] = field(default_factory=list)
+
+    def __post_init__(self):
+        own = [c for c in self.table.columns if str(c).startswith(_OWN)]
+        if own:   # dfkit's own result columns, recomputed from the sheet (a note says so)
+            self.table = self.table.drop(columns=own)
+            self.columns = [c for c in self.columns if not str(c).startswith(_OWN)]
 
 
 # --------------------------------------------------------------------------- bytes -> text
@@ -232,8 +239,9 @@ def _parse_header(line: str, line_no: int, delimiter: str, name: str, problems) 
     return header
 
 
-def _resolve_header(header, header_line, name, problems, keep_own=False) -> tuple[list[str], list[str]]:
-    """Column names for the header cells, and the names of the derived columns that are not read."""
+def _resolve_header(header, header_line, name, problems, keep_own=False) -> list[str]:
+    """Column names for the header cells. dfkit's own result columns get a reserved name (:data:`_OWN`) and
+    :class:`RawSheet` leaves them out, whichever reader built it (CSV, spreadsheet, DataFrame)."""
     if header is None:
         raise SheetError(f"{name or 'the sheet'} has no header row")
     canon = [_canonical(raw) for raw in header]
@@ -254,7 +262,7 @@ def _resolve_header(header, header_line, name, problems, keep_own=False) -> tupl
             col = "line_in_sheet" if col == "line" else col
         elif col in DERIVED_COLUMNS or (col == "line" and "line_in_sheet" in present):
             derived.append(col)
-            col = f"\x00derived_{j}"     # a name no header can produce; the column is dropped after reading
+            col = f"{_OWN}{j}"     # a name no header can produce
         elif col == "line":
             # 'line' is dfkit's line number in outputs; keep the user's under another name.
             problems.append(Problem(header_line, "line", "kept as 'line_in_sheet' ('line' is dfkit's line number)",
@@ -281,7 +289,7 @@ def _resolve_header(header, header_line, name, problems, keep_own=False) -> tupl
         problems.append(Problem(header_line, "", f"{', '.join(derived)}: dfkit's own result "
                                 f"{'column' if len(derived) == 1 else 'columns'}, recomputed from this sheet; "
                                 "the values in the file are not read", "note", name))
-    return columns, derived
+    return columns
 
 
 # --------------------------------------------------------------------------- reading
@@ -358,7 +366,7 @@ def read_sheet(source, *, name: str | None = None, own_results: str = "recompute
     header = [h.strip()[1:] if _GUARDED.match(h.strip()) else h for h in header]
     if own_results not in ("recompute", "keep"):
         raise ValueError(f"own_results='{own_results}' must be 'recompute' or 'keep'")
-    columns, derived = _resolve_header(header, header_idx + 1, name, problems, own_results == "keep")
+    columns = _resolve_header(header, header_idx + 1, name, problems, own_results == "keep")
     width = len(columns)
 
     got = _fast_read(text, lines, header_idx, delimiter, width)
@@ -373,8 +381,6 @@ def read_sheet(source, *, name: str | None = None, own_results: str = "recompute
         data[col] = c
     table = pd.DataFrame(data)
     table = _drop_empty_unnamed(table, columns, header, header_idx + 1, name, problems)
-    if derived:
-        table = table.drop(columns=[c for c in table.columns if c.startswith("\x00derived_")])
     columns = [c for c in table.columns if c != "line"]
     if n_unguarded:
         problems.append(Problem(0, "", f"{n_unguarded} {'cell' if n_unguarded == 1 else 'cells'} began with ' "

@@ -90,7 +90,7 @@ def corpus() -> dict[str, bytes]:
     f["wide_header_named.csv"] = "fix,lat,lon,bearing,sd," + ",".join(f"c{i}" for i in range(1500)) + "\n" + \
         rows("A").replace(",\n", "\n")
     f["repeated_known_column.csv"] = "fix,lat,lon,bearing,bearing\nA,47,15,45,46\n"
-    f["many_repeated_unknown_columns.csv"] = HEAD.strip() + "," + ",".join(["x"] * 800) + "\n" + rows("A")
+    f["many_repeated_unknown_columns.csv"] = HEAD.strip() + "," + ",".join(["extra"] * 800) + "\n" + rows("A")
     # -- hostile labels and notes
     f["formula_labels.csv"] = HEAD + rows('"=HYPERLINK(""http://example.invalid"",""x"")"', "@SUM(A1:A9)") + \
         rows("+1-1", "-2+3") + rows("-7", "\tcmd") + rows("ok", "-12.5")
