@@ -161,3 +161,22 @@ def test_fix_table_reads_back_for_home_ranges(write_sheet, tmp_path):
     ft = read_fix_table(out)
     assert ft.table["fix"].tolist() == ["#B", "C"] and ft.tags == ["=T"]
     assert ft.n_rejected == 0 and ft.table["lat"].notna().all()
+
+
+def test_dfkits_own_tables_read_back_as_dataframes(write_sheet):
+    # A normalized table handed back from Python: dfkit's result columns are recomputed, not read (and not
+    # carried twice), and the labels, bearings and positions are those of the first reading.
+    first = read_bearings(write_sheet("fix,lat,lon,bearing,sd\n=A,47,15,45,3\n=A,47,15.02,315,3\n"))
+    again = read_bearings(first.table.drop(columns="time"))      # (missing times: see the next test)
+    assert list(again.table.columns).count("fix_id") == 1
+    assert again.table["fix"].tolist() == ["=A", "=A"]
+    np.testing.assert_allclose(again.table["true_bearing"], first.table["true_bearing"])
+    assert any("dfkit's own result" in p.message for p in again.problems)
+
+
+@pytest.mark.xfail(strict=True, reason="issue 7: a DataFrame's tz-aware time column with NaT is read as the text "
+                   "'NaT' and each row is rejected (io/typed.column_text)")
+def test_a_dataframe_with_missing_times_reads_back(write_sheet):
+    first = read_bearings(write_sheet("fix,lat,lon,bearing,sd\nA,47,15,45,3\nA,47,15.02,315,3\n"))
+    again = read_bearings(first.table)
+    assert [p for p in again.problems if p.severity == "error"] == []
