@@ -15,7 +15,7 @@ $(STAMP): pyproject.toml
 demo: $(STAMP)
 	$(PY) -m dfkit check sample_bearings/field_sheet_with_mistakes.csv -o demo_output/mistakes_normalized.csv || test $$? -eq 1
 	$(PY) -m dfkit fix sample_bearings/animal_fix.csv -o demo_output/animal_fix.csv
-	$(PY) -m dfkit fix sample_bearings/hunt.csv --window 90 -o demo_output/hunt.geojson
+	$(PY) -m dfkit fix sample_bearings/hunt.csv --window 90 --method andrews -o demo_output/hunt.geojson
 	$(PY) -m dfkit fix sample_bearings/week_tracking.csv --track sample_bearings/week_track.gpx -o demo_output/week_fixes.csv -o demo_output/week_fixes.gpx || test $$? -eq 1
 	$(PY) -m dfkit map sample_bearings/week_tracking.csv --track sample_bearings/week_track.gpx -o demo_output/week_map.html || test $$? -eq 1
 	@echo "Demo outputs are in demo_output/ (open demo_output/week_map.html in a browser; it works offline)."

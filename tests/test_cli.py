@@ -87,6 +87,6 @@ def test_readme_commands_exist():
     assert "make demo" in text and "make test" in text
 
 
-@pytest.mark.parametrize("name, extra", [("animal_fix.csv", []), ("hunt.csv", ["--window", "90"])])
+@pytest.mark.parametrize("name, extra", [("animal_fix.csv", []), ("hunt.csv", ["--window", "90", "--method", "andrews"])])
 def test_sample_sheets_solve_ok(name, extra, tmp_path):
     assert main(["fix", str(SAMPLES / name), "-o", str(tmp_path / "x.csv")] + extra) == 0
