@@ -55,7 +55,7 @@ def test_fix_writes_csv_geojson_gpx(write_sheet, tmp_path, capsys):
     assert t["fix"].tolist() == ["A", "B"] and t["status"].tolist() == ["ok", "too_few"]
     gj = json.loads(paths[1].read_text())
     kinds = sorted({f["properties"]["kind"] for f in gj["features"]})
-    assert kinds == ["bearing", "ellipse", "fix", "station"]
+    assert kinds == ["bearing", "ellipse", "fix", "region", "station"]
     gpx = gpxpy.parse(paths[2].read_text())
     assert [w.name for w in gpx.waypoints] == ["A"]
 

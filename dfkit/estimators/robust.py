@@ -130,15 +130,25 @@ def trimmed_sum(owner, r2, counts_of_owner, n_owner):
     return out
 
 
+#: Floor of the trimmed scale as a fraction of the classical scale of all bearings at the start: with
+#: four bearings the trimmed scale has one degree of freedom and can be tiny, which would down-weight
+#: every bearing. Chosen by simulation (benchmarks/coverage.py).
+TRIM_FLOOR = 0.3
+
+
 def start_scale(r, g, m, counts):
     """Residual scale from the start, leaving out the worst-fitting bearing (radians, per fix).
 
-    sqrt(sum of the h smallest u^2 / (h - 2)), u = 2 sin(r/2), * TRIM_SCALE_FACTOR, h = :func:`trim_count`;
+    sqrt(sum of the h smallest u^2 / (h - 2)), u = 2 sin(r/2), * TRIM_SCALE_FACTOR, h = :func:`trim_count`,
+    at least TRIM_FLOOR times the classical scale of all bearings;
     within [MIN_SCALE, MAX_SCALE]; MAX_SCALE (no down-weighting) where h <= 2.
     """
     h = trim_count(counts)
     u = chord(r)
     ss = trimmed_sum(g, u * u, counts, m)
+    counts = np.asarray(counts)
     with np.errstate(divide="ignore", invalid="ignore"):
         s = np.sqrt(ss / (h - 2)) * TRIM_SCALE_FACTOR
+        classical = np.sqrt(gsum(g, u * u, m) / (counts - 2))
+    s = np.where(counts > 2, np.fmax(s, TRIM_FLOOR * classical), s)
     return np.clip(np.where(h > 2, s, MAX_SCALE), MIN_SCALE, MAX_SCALE)

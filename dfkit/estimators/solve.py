@@ -78,8 +78,8 @@ class Solution:
     ``weight`` (robust weight, 1 for the other methods), ``range_m`` distance
     from the station to the fix [m], ``azimuth_from_fix_deg`` geodesic azimuth
     from the fix to the station [°], ``region_weight`` the weight of the bearing
-    in the fix's likelihood [rad⁻²] (1/SD² times the robust weight; the robust
-    weight alone when the SD is unknown).
+    in the fix's likelihood [rad⁻²] (1/SD² times the robust weight; 1 for every
+    kept bearing when the SD is unknown).
     """
 
     lat: np.ndarray
@@ -434,7 +434,9 @@ def _finish(ctx, counts, geo, P_lat, P_lon, ending, verified, known_b, known_g, 
     with np.errstate(invalid="ignore", divide="ignore"):
         crossing = np.degrees(np.arccos(np.clip(np.hypot(c2, s2) / n_used, 0, 1)))
     behind = gsum(g, (used & (np.cos(r) <= 0)).astype(float), m) > 0
-    region_weight = np.where(known_b, weight / np.where(known_b, sd_rad, 1.0) ** 2, weight)
+    # The likelihood region weighs each bearing by 1/SD^2 times its robust weight when the SD is known;
+    # with an estimated SD every kept bearing counts alike, as in the classical scale of the covariance.
+    region_weight = np.where(known_b, weight / np.where(known_b, sd_rad, 1.0) ** 2, used.astype(float))
     scale = np.full(m, np.nan)
     if spec.robust:
         np.fmax.at(scale, g, np.degrees(s_b))

@@ -38,8 +38,9 @@ def _props(row: pd.Series, kind: str) -> dict:
 def to_geojson(fixes: Fixes, *, lines=True, stations=True, error_polygons=False) -> dict:
     """Fixes, ellipses, bearing lines and stations as a GeoJSON FeatureCollection (RFC 7946).
 
-    Every feature has a ``kind`` property: ``fix``, ``ellipse``, ``bearing``,
-    ``station`` or ``error_polygon``; the other properties are the table columns.
+    Every feature has a ``kind`` property: ``fix``, ``ellipse``, ``region`` (the
+    likelihood-ratio region, with ``fix``, ``tag``, ``bounded``, ``area_m2``),
+    ``bearing``, ``station`` or ``error_polygon``; the other properties are the table columns.
     """
     feats = []
     for _, row in fixes.table.iterrows():
@@ -52,6 +53,19 @@ def to_geojson(fixes: Fixes, *, lines=True, stations=True, error_polygons=False)
             geom = ({"type": "Polygon", "coordinates": [parts[0]]} if len(parts) == 1 else
                     {"type": "MultiPolygon", "coordinates": [[p] for p in parts]})
             feats.append({"type": "Feature", "properties": _props(row, "ellipse"), "geometry": geom})
+    for i, ring in fixes.region_rings():       # likelihood-ratio regions (dfkit.regions)
+        row = fixes.table.iloc[i]
+        parts = split_ring(*ring)
+        geom = ({"type": "Polygon", "coordinates": [parts[0]]} if len(parts) == 1 else
+                {"type": "MultiPolygon", "coordinates": [[p] for p in parts]})
+        bounded = bool(row["region_bounded"])
+        props = {"kind": "region", "fix": _clean(row["fix"]), "tag": _clean(row["tag"]), "status": row["status"],
+                 "level": _clean(row["level"]), "bounded": bounded, "area_m2": _clean(row["region_area_m2"]),
+                 "reach_m": _clean(row["region_reach_m"])}
+        if not bounded:
+            props["drawn_to_m"] = _clean(float(fixes.regions.draw_range_m[i]))
+            props["note"] = "open region: it continues beyond the drawn range"
+        feats.append({"type": "Feature", "properties": props, "geometry": geom})
     if error_polygons:
         for fix_label, ring in error_polygon_rings(fixes):
             parts = split_ring(*ring)

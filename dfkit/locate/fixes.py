@@ -139,6 +139,15 @@ class Fixes:
             return None
         return self.regions.ring(self._row(fix, tag), n_vertices)
 
+    def region_rings(self, *, n_vertices=None):
+        """Every fix's likelihood region: a list of (row number, (lat, lon) ring), for fixes with a position
+        and a region (see :meth:`region_ring`)."""
+        if self.regions is None:
+            return []
+        has_pos = self.table["status"].isin(WITH_POSITION).to_numpy()
+        return [(int(i), self.regions.ring(int(i), n_vertices))
+                for i in np.flatnonzero(has_pos & self.regions.has_region)]
+
     def contains(self, lat, lon, *, kind="region"):
         """Whether each fix's confidence region holds a point (one point per fix, or one for all).
 

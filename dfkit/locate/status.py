@@ -47,10 +47,17 @@ def _lines_text(lines):
 
 
 def consistency(sol, g, m):
-    """Per fix: the weighted residual sum S = sum W (r/sd)^2 of a known-SD fix and its chi-square p-value
-    on n_used - 2 degrees of freedom (NaN where the SD is estimated or dof < 1)."""
+    """Per fix with a known SD: S = sum (r/sd)^2 over the bearings the fit uses, at full weight, and its
+    chi-square p-value on n_used - 2 degrees of freedom (NaN where the SD is estimated or dof < 1).
+
+    A bearing a robust fit merely down-weights still counts in full: the question is whether the
+    bearings behind the answer agree with their SD, not whether the fit could discount one.
+    """
     r = np.radians(sol.residual_deg)
-    S = np.bincount(g, sol.region_weight * r * r, m)
+    w = sol.weight
+    with np.errstate(divide="ignore", invalid="ignore"):
+        inv_var = np.where(w > 0, sol.region_weight / np.where(w > 0, w, 1.0), 0.0)
+    S = np.bincount(g, inv_var * r * r, m)
     dof = sol.dof
     p = np.where(sol.sd_known & (dof >= 1), chi2_sf(S, np.maximum(dof, 1)), np.nan)
     return S, p
