@@ -33,8 +33,9 @@ DEFAULT_TRACK_GAP_S = 60.0
 
 #: With a known bearing SD, a fix whose residuals' chi-square (n_used - 2 degrees of freedom) has a
 #: p-value below this is flagged ``inconsistent``: the bearings disagree more than their SD allows.
-#: A conventional significance level (our choice; 1 clean fix in 1000 is flagged).
-INCONSISTENT_P = 0.001
+#: A conventional significance level (our choice, checked by benchmarks/coverage.py: about 1 clean fix in
+#: 100 is flagged, while 1 in 1000 let a third of the three-bearing fixes with a wild bearing through).
+INCONSISTENT_P = 0.01
 
 #: With the SD estimated from the fix itself, an estimate above this is flagged ``inconsistent`` [°].
 #: Common practice, no single source: published beacon trials report bearing errors of a few degrees
@@ -49,3 +50,8 @@ REVERSED_DEG = 150.0
 #: The ellipse is called a poor summary of a fix's likelihood region when their areas differ by more
 #: than this factor (our choice, for the reason text only).
 ELLIPSE_MISMATCH = 1.5
+
+#: A fix closer to an observer than this fraction of its farthest observer's range (or whose region reaches
+#: an observer) is flagged ``near_observer``: that bearing hardly constrains it, and a wild bearing can
+#: make a false crossing there look consistent. Our choice, checked by benchmarks/coverage.py.
+NEAR_OBSERVER = 0.05

@@ -286,6 +286,23 @@ class LikelihoodRegions:
         lon = self.fix_lon[i] + (lon - self.fix_lon[i] + 180.0) % 360.0 - 180.0
         return np.append(lat, lat[0]), np.append(lon, lon[0])
 
+    def reaches(self, g, range_m, azimuth_from_fix_deg):
+        """Whether the drawn region of fix ``g[k]`` reaches a point given by its distance [m] and azimuth
+        [°] from the fix (plane geometry about the fix; used for the stations, where S is singular)."""
+        g = np.asarray(g, np.int64)
+        a = np.radians(np.asarray(azimuth_from_fix_deg, float))
+        d = np.asarray(range_m, float)
+        px = d * np.sin(a) - self.centre_x[g]
+        py = d * np.cos(a) - self.centre_y[g]
+        ang = np.arctan2(px, py) % _TWO_PI
+        K = self.radius_m.shape[1]
+        step = _TWO_PI / K
+        k0 = np.floor(ang / step).astype(np.int64) % K
+        t = ang / step - np.floor(ang / step)
+        rad = self.radius_m[g, k0] * (1 - t) + self.radius_m[g, (k0 + 1) % K] * t
+        with np.errstate(invalid="ignore"):
+            return self.has_region[g] & (np.hypot(px, py) < rad)
+
     def statistic(self, lat, lon):
         """S(x) - threshold at one point per fix (arrays of length m), with exact geodesic residuals.
 

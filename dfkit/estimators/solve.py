@@ -164,7 +164,8 @@ def solve(lat, lon, bearing_deg, group, n_groups, sd_deg=None, *, method="mle", 
         raise ValueError(f"robust_c={robust_c!r} must be a positive number (e.g. 1.5)")
     lat = np.asarray(lat, float).ravel()
     lon = np.asarray(lon, float).ravel()
-    theta = np.mod(np.asarray(bearing_deg, float).ravel(), 360.0)
+    with np.errstate(invalid="ignore"):
+        theta = np.mod(np.asarray(bearing_deg, float).ravel(), 360.0)
     g = np.asarray(group).ravel().astype(np.int64)
     m = int(n_groups)
     N = len(lat)
@@ -422,7 +423,7 @@ def _finish(ctx, counts, geo, P_lat, P_lon, ending, verified, known_b, known_g, 
     n_used = gsum(g, used.astype(float), m).astype(int)
     # A robust fit must keep enough bearings to check them against each other: after dropping any it
     # keeps at least three (two bearings always "agree").
-    collapsed = verified & (counts >= 2) & ((n_used < np.where(known_g, 2, 3)) | ((n_used < counts) & (n_used < 3)))
+    collapsed = verified & (n_used < counts) & (n_used < 3)
     if spec.robust:
         ending[collapsed] = COLLAPSED
         verified = verified & ~collapsed

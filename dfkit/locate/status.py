@@ -13,7 +13,7 @@ from dataclasses import dataclass
 import numpy as np
 
 from dfkit.estimators import ENDINGS
-from dfkit.policy import (ELLIPSE_MISMATCH, INCONSISTENT_P, ONE_SPOT_M, PLAUSIBLE_SD_DEG, REVERSED_DEG,
+from dfkit.policy import (ELLIPSE_MISMATCH, INCONSISTENT_P, NEAR_OBSERVER, ONE_SPOT_M, PLAUSIBLE_SD_DEG, REVERSED_DEG,
                           SHALLOW_CROSSING_DEG, WILD_SD)
 from dfkit.regions import chi2_sf
 
@@ -41,6 +41,8 @@ class FixFacts:
 
 def _lines_text(lines):
     lines = list(lines)
+    if not lines:
+        return "no line"
     if len(lines) == 1:
         return f"line {lines[0]}"
     return "lines " + ", ".join(str(x) for x in lines[:-1]) + f" and {lines[-1]}"
@@ -92,7 +94,14 @@ def classify(f: FixFacts):
     with np.errstate(invalid="ignore"):
         inconsistent = np.where(sol.sd_known, p < INCONSISTENT_P, sd_fix > PLAUSIBLE_SD_DEG) & (sol.dof >= 1)
         no_cov = ~(np.isfinite(sol.cov_en).all(axis=(1, 2)) & (f.ellipse_minor > 0) & (f.ellipse_area > 0))
-        attention = ((f.counts < 2) | (f.spread_m < ONE_SPOT_M) | (ending != _E["optimum"]) | sol.behind
+        far = np.zeros(m)
+        np.maximum.at(far, g, np.where(used, sol.range_m, 0.0))
+        near_b = used & (sol.range_m < NEAR_OBSERVER * far[g])
+        if regions is not None:
+            near_b |= used & regions.reaches(g, sol.range_m, sol.azimuth_from_fix_deg)
+        near_obs = np.zeros(m, bool)
+        np.logical_or.at(near_obs, g, near_b)
+        attention = near_obs | ((f.counts < 2) | (f.spread_m < ONE_SPOT_M) | (ending != _E["optimum"]) | sol.behind
                      | ~sol.converged | inconsistent | ~bounded | ~has_region | no_cov
                      | (sol.crossing_deg < SHALLOW_CROSSING_DEG) | (f.span_min > f.window_min) | notable)
     attention |= np.array([len(r) > 0 for r in f.rejected], bool)
@@ -159,6 +168,13 @@ def classify(f: FixFacts):
                                   f"the bearings miss each other widely: their SD is estimated at "
                                   f"{sd_fix[i]:.0f}°, more than the {PLAUSIBLE_SD_DEG:g}° a directional "
                                   "antenna plausibly gives"))
+            if near_obs[i]:
+                j = sel[near_b[sel]][0]
+                flags.append(("near_observer", f"the fix lies {sol.range_m[j]:.0f} m from the observer at line "
+                                               f"{f.lines[j]}, so close that this bearing hardly constrains it "
+                                               "(near its own station a bearing fits almost any point): check "
+                                               "that the transmitter is beside that observer, or take another "
+                                               "bearing"))
             if sol.crossing_deg[i] < SHALLOW_CROSSING_DEG:
                 what = "the two bearings cross" if sol.n_used[i] == 2 else "the bearing lines spread only"
                 flags.append(("shallow", f"{what} at {sol.crossing_deg[i]:.0f}° (common-practice limit "
