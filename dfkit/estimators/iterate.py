@@ -41,7 +41,7 @@ class _Compact:
             self.cg = np.searchsorted(self.grp, self.cg_all[self.idx])
 
 
-def optimise(terms, geo, cg, mg, x, y, w, s, c, tol, max_iter, r_run):
+def optimise(terms, objective, geo, cg, mg, x, y, w, s, c, tol, max_iter, r_run):
     """Minimise sum f(r_i) for every fix from (x, y): Newton steps where the Newton matrix is
     positive definite, scoring (re-weighted) steps elsewhere; a step is accepted only if it
     lowers the objective enough (Armijo), else it is halved.
@@ -52,8 +52,11 @@ def optimise(terms, geo, cg, mg, x, y, w, s, c, tol, max_iter, r_run):
     y = np.array(y, float)
     ending = np.zeros(mg, np.int8)
     iters = np.zeros(mg, np.int64)
-    r, dx, dy, d2 = residuals(geo.phi, geo.sx, geo.sy, x[cg], y[cg])
-    F = gsum(cg, terms(r, w, s, c)[0], mg)
+    if not (x.any() or y.any()):          # at the plane's centre the residuals are the geodesic ones
+        r, dx, dy, d2 = geo.r.copy(), -geo.sx, -geo.sy, geo.d * geo.d
+    else:
+        r, dx, dy, d2 = residuals(geo.sp, geo.cp, geo.sx, geo.sy, x[cg], y[cg])
+    F = gsum(cg, objective(r, w, s, c), mg)
     box = _Compact(cg, mg)
     for _ in range(max_iter):
         running = ending == RUNNING
@@ -88,17 +91,18 @@ def optimise(terms, geo, cg, mg, x, y, w, s, c, tol, max_iter, r_run):
         lam = np.ones(n_g)
         searching = live.copy()
         accepted = np.zeros(n_g, bool)
+        # the fixes still searching (compact numbers sel_g) and their bearings (positions bsub in idx)
+        sel_g = np.flatnonzero(searching)
+        bsub = np.flatnonzero(searching[bcg])
+        local = np.searchsorted(sel_g, bcg[bsub])
         for _h in range(MAX_HALVINGS):
-            if not searching.any():
+            if not len(sel_g):
                 break
-            sel_g = np.flatnonzero(searching)
-            bsel = searching[bcg]
-            bidx = idx[bsel]
+            bidx = idx[bsub]
             xt = x[grp[sel_g]] + lam[sel_g] * sx_[sel_g]
             yt = y[grp[sel_g]] + lam[sel_g] * sy_[sel_g]
-            local = np.searchsorted(sel_g, bcg[bsel])
-            rt, dxt, dyt, d2t = residuals(geo.phi[bidx], geo.sx[bidx], geo.sy[bidx], xt[local], yt[local])
-            Ft = gsum(local, terms(rt, w[bidx], s[bidx], c)[0], len(sel_g))
+            rt, dxt, dyt, d2t = residuals(geo.sp[bidx], geo.cp[bidx], geo.sx[bidx], geo.sy[bidx], xt[local], yt[local])
+            Ft = gsum(local, objective(rt, w[bidx], s[bidx], c), len(sel_g))
             Fo = F[grp[sel_g]]
             tiny = lam[sel_g] * step_len[sel_g] < tol
             ok = (Ft <= Fo + ARMIJO * lam[sel_g] * slope[sel_g]) | (tiny & (Ft <= Fo + 1e-12 * np.abs(Fo)))
@@ -113,10 +117,16 @@ def optimise(terms, geo, cg, mg, x, y, w, s, c, tol, max_iter, r_run):
                 accepted[acc_g] = True
             # a step already below the tolerance that does not lower the objective: we are at the floor
             floor = ~ok & tiny
-            searching[sel_g[ok | floor]] = False
             accepted[sel_g[floor]] = True
             lam[sel_g[floor]] = 0.0
-            lam[searching] *= 0.5
+            keep = ~(ok | floor)
+            searching[sel_g[~keep]] = False
+            lam[sel_g[keep]] *= 0.5
+            if not keep.all():
+                kb = keep[local]
+                bsub = bsub[kb]
+                local = (np.cumsum(keep) - 1)[local[kb]]
+                sel_g = sel_g[keep]
         stalled = searching
         ending[grp[stalled]] = STALLED
         moved = lam * step_len

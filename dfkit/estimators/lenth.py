@@ -24,6 +24,11 @@ def terms(r, w, s, c):
     return 2.0 * w * np.sin(0.5 * r) ** 2, w * np.sin(r), w, w * cr
 
 
+def objective(r, w, s, c):
+    """The objective alone, w (1 - cos r) = 2 w sin^2(r/2) per bearing."""
+    return 2.0 * w * np.sin(0.5 * r) ** 2
+
+
 def weights(r, s, c):
     """Lenth's estimator keeps every bearing at full weight."""
     return np.ones_like(r)

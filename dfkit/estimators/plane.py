@@ -37,7 +37,8 @@ class PlaneGeometry:
 
     ``sx``, ``sy`` station in the plane; ``phi`` observed bearing as a plane direction;
     ``r`` residual at the centre (exact geodesic residual); ``az`` azimuth from the
-    centre to the station; ``d`` distance from the centre to the station.
+    centre to the station; ``d`` distance from the centre to the station; ``sp``,
+    ``cp`` sin and cos of ``phi``.
     """
 
     sx: np.ndarray
@@ -46,12 +47,16 @@ class PlaneGeometry:
     r: np.ndarray
     az: np.ndarray
     d: np.ndarray
+    sp: np.ndarray
+    cp: np.ndarray
+
+    _FIELDS = ("sx", "sy", "phi", "r", "az", "d", "sp", "cp")
 
     def take(self, sel) -> "PlaneGeometry":
-        return PlaneGeometry(*(getattr(self, k)[sel] for k in ("sx", "sy", "phi", "r", "az", "d")))
+        return PlaneGeometry(*(getattr(self, k)[sel] for k in self._FIELDS))
 
     def put(self, sel, other: "PlaneGeometry") -> None:
-        for k in ("sx", "sy", "phi", "r", "az", "d"):
+        for k in self._FIELDS:
             getattr(self, k)[sel] = getattr(other, k)
 
 
@@ -61,18 +66,22 @@ def geometry(station_lat, station_lon, theta_deg, centre_lat, centre_lon) -> Pla
     a = np.radians(az_cs)
     r = wrap_pi(np.radians(theta_deg - az_sc))
     mu = a + np.pi
-    return PlaneGeometry(sx=d * np.sin(a), sy=d * np.cos(a), phi=r + mu, r=r, az=a, d=np.maximum(d, 1e-9))
+    phi = r + mu
+    return PlaneGeometry(sx=d * np.sin(a), sy=d * np.cos(a), phi=phi, r=r, az=a, d=np.maximum(d, 1e-9),
+                         sp=np.sin(phi), cp=np.cos(phi))
 
 
-def residuals(phi, sx, sy, x, y):
+def residuals(sp, cp, sx, sy, x, y):
     """Plane residuals of bearings at points (x, y), with the offsets and squared distances.
 
-    Returns r [rad], dx, dy [m] (point minus station) and d2 [m^2].
+    ``sp``, ``cp`` are sin and cos of the observed plane directions. Returns r [rad],
+    dx, dy [m] (point minus station) and d2 [m^2].
     """
     dx = x - sx
     dy = y - sy
     d2 = np.maximum(dx * dx + dy * dy, 1e-18)
-    return wrap_pi(phi - np.arctan2(dx, dy)), dx, dy, d2
+    # the signed angle from (dx, dy) to the direction phi, in (-pi, pi], without wrapping
+    return np.arctan2(sp * dy - cp * dx, sp * dx + cp * dy), dx, dy, d2
 
 
 def bearing_gradient(dx, dy, d2):

@@ -21,7 +21,8 @@ class Method:
     """An estimator: its name, family, how it is solved, and what it minimises.
 
     ``terms(r, w, s, c)`` returns per-bearing (f, f', scoring curvature, f'') of the
-    objective for optimisers; ``weights(r, s, c)`` the weight each bearing ends with.
+    objective for optimisers, ``objective(r, w, s, c)`` f alone; ``weights(r, s, c)``
+    the weight each bearing ends with.
     """
 
     name: str
@@ -29,21 +30,22 @@ class Method:
     kind: str
     summary: str
     terms: Callable | None = None
+    objective: Callable | None = None
     weights: Callable | None = None
     robust: bool = False
     default_c: float | None = None
 
 
-_huber_terms, _huber_weights = robust.make_terms("huber")
-_andrews_terms, _andrews_weights = robust.make_terms("andrews")
+_huber_terms, _huber_objective, _huber_weights = robust.make_terms("huber")
+_andrews_terms, _andrews_objective, _andrews_weights = robust.make_terms("andrews")
 
 REGISTRY: dict[str, Method] = {
     "mle": Method("mle", "lenth", "optimiser", "maximum likelihood, von Mises bearing errors (Lenth 1981)",
-                  lenth.terms, lenth.weights),
+                  lenth.terms, lenth.objective, lenth.weights),
     "huber": Method("huber", "robust", "optimiser", "Huber M-estimator: large residuals count linearly",
-                    _huber_terms, _huber_weights, robust=True, default_c=robust.ROBUST_C["huber"]),
+                    _huber_terms, _huber_objective, _huber_weights, robust=True, default_c=robust.ROBUST_C["huber"]),
     "andrews": Method("andrews", "robust", "optimiser", "Andrews M-estimator: wild bearings get weight 0",
-                      _andrews_terms, _andrews_weights, robust=True, default_c=robust.ROBUST_C["andrews"]),
+                      _andrews_terms, _andrews_objective, _andrews_weights, robust=True, default_c=robust.ROBUST_C["andrews"]),
     "lsq": Method("lsq", "lsq", "closed", "least squares on the perpendicular distances to the lines"),
     "stansfield": Method("stansfield", "stansfield", "fixed_point",
                          "least squares weighted by 1/(range x SD)^2 (Stansfield 1947)"),

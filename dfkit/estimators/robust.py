@@ -101,10 +101,14 @@ def make_terms(kind):
         return (w * s * s * rho(t, c), w * s * ps * ch, w * weight_function(kind, t, c),
                 w * (dpsi(t, c) * ch * ch - 0.5 * s * ps * sh))
 
+    def objective(r, w, s, c):
+        """The objective alone, w s^2 rho(2 sin(r/2) / s) per bearing."""
+        return w * s * s * rho(2.0 * np.sin(0.5 * r) / s, c)
+
     def weights(r, s, c):
         return weight_function(kind, chord(r) / s, c)
 
-    return terms, weights
+    return terms, objective, weights
 
 
 def trim_count(n):

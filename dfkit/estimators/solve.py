@@ -46,6 +46,8 @@ NEAR_STATION = 0.01
 #: Level of the test that confirms a dropped bearing when the SD is unknown (per fix, Bonferroni).
 #: Chosen by measured coverage (benchmarks/coverage.py): clean fixes rarely lose a good bearing.
 OUTLIER_LEVEL = 0.01
+#: At the least-squares start, a residual beyond this marks a fix whose candidate starts must be ranked [°].
+CLEAN_START_DEG = 20.0
 #: Starts tried per fix: the best candidate first, the next ones only when a fit fails.
 MAX_STARTS = 3
 
@@ -193,31 +195,29 @@ def solve(lat, lon, bearing_deg, group, n_groups, sd_deg=None, *, method="mle", 
     base = (counts >= 2) & ~parallel
 
     # Starts, and the scale of the robust weights: the SD when known, else the trimmed scale at the
-    # best start, held fixed from then on.
+    # start, held fixed from then on.
     s_b = np.where(known_b, sd_rad, np.nan)
-    x0 = np.zeros((m, MAX_STARTS))
-    y0 = np.zeros((m, MAX_STARTS))
+    x0 = np.full((m, MAX_STARTS), np.nan)
+    y0 = np.full((m, MAX_STARTS), np.nan)
     n_starts = np.where(base, 1, 0)
+    searched = np.zeros(m, bool)            # fixes whose candidate starts were ranked
     if spec.kind != "closed":
-        # Candidates ranked by the trimmed sum of squares (the worst bearing left out), or, for a
-        # robust method with a known SD, by its own objective, which is already robust.
-        trimmed = base & ~(known_g & spec.robust)
-        if trimmed.any():
-            xt, yt = choose(geo0, g, m, counts, trimmed, trimmed_score(w, counts, g), spread, MAX_STARTS)
-            x0[trimmed], y0[trimmed] = xt[trimmed], yt[trimmed]
+        # The least-squares point is the start wherever it looks clean; elsewhere the candidates are
+        # ranked (and for clean fixes too, later, should the first fit fail).
+        lx, ly, ratio = planar_point(g, m, geo0.sx, geo0.sy, geo0.phi, np.ones(N))
+        has_lsq = base & np.isfinite(lx) & np.isfinite(ly) & (ratio > 1e-12)
+        r_l = residuals(geo0.sp, geo0.cp, geo0.sx, geo0.sy, np.nan_to_num(lx[g]), np.nan_to_num(ly[g]))[0]
+        clean = has_lsq & _looks_clean(r_l, g, m, counts, known_b, sd_rad)
+        x0[clean, 0], y0[clean, 0] = lx[clean], ly[clean]
+        starter = _Starter(spec, geo0, g, m, counts, w, s_b, c, spread, known_g)
+        starter.fill(base & ~clean, x0, y0, n_starts, searched)
         if spec.robust:
             unknown = base & ~known_g
             if unknown.any():
-                r_start = residuals(geo0.phi, geo0.sx, geo0.sy, np.nan_to_num(x0[g, 0]), np.nan_to_num(y0[g, 0]))[0]
-                s_b = np.where(known_b, s_b, start_scale(r_start, g, m, counts)[g])
-            kn = base & known_g
-            if kn.any():
-                xk, yk = choose(geo0, g, m, counts, kn, objective_score(spec.terms, w, s_b, c), spread, MAX_STARTS)
-                x0[kn], y0[kn] = xk[kn], yk[kn]
-        found = np.isfinite(x0)
-        n_starts = np.where(base, np.maximum(found.sum(axis=1), 1), 0)
-        x0 = np.where(found, x0, 0.0)
-        y0 = np.where(found, y0, 0.0)
+                r_start = residuals(geo0.sp, geo0.cp, geo0.sx, geo0.sy, np.nan_to_num(x0[g, 0]), np.nan_to_num(y0[g, 0]))[0]
+                s_b[:] = np.where(known_b, s_b, start_scale(r_start, g, m, counts)[g])
+    else:
+        starter = None
 
     ending = np.where(counts < 2, TOO_FEW, np.where(parallel, PARALLEL, OPTIMUM)).astype(np.int8)
     P_lat, P_lon = centre_lat.copy(), centre_lon.copy()
@@ -228,7 +228,8 @@ def solve(lat, lon, bearing_deg, group, n_groups, sd_deg=None, *, method="mle", 
                spread=spread, centre_lat=centre_lat, centre_lon=centre_lon, geo0=geo0, tol_m=tol_m,
                max_iter=max_iter, max_outer=max_outer)
     state = dict(P_lat=P_lat, P_lon=P_lon, ending=ending, iterations=iterations, geo=geo, verified=verified)
-    _attempts(ctx, state, base, n_starts, x0, y0)
+    more = None if starter is None else (lambda which: starter.fill(which & ~searched, x0, y0, n_starts, searched))
+    _attempts(ctx, state, base, n_starts, x0, y0, more)
     if spec.robust and (base & ~known_g).any():
         # With the SD unknown, a bearing is dropped only when the others show it to be wild: an
         # unconfirmed drop is undone by solving again with no bearing down-weighted to zero.
@@ -242,20 +243,28 @@ def solve(lat, lon, bearing_deg, group, n_groups, sd_deg=None, *, method="mle", 
             ctx["soft"] = undo
             state["verified"][undo] = False
             state["iterations"][undo] = 0
-            _attempts(ctx_soft, state, undo, n_starts, x0, y0)
+            _attempts(ctx_soft, state, undo, n_starts, x0, y0, more)
     return _finish(ctx, counts, state["geo"], state["P_lat"], state["P_lon"], state["ending"], state["verified"],
                    known_b, known_g, sd_rad, parallel, state["iterations"])
 
 
-def _attempts(ctx, state, which, n_starts, x0, y0):
-    """Solve the fixes ``which`` from their best start, then from the next ones while a fit fails."""
+def _attempts(ctx, state, which, n_starts, x0, y0, more=None):
+    """Solve the fixes ``which`` from their first start, then from the next ones while a fit fails.
+
+    ``more(mask)`` ranks candidate starts for fixes that have only their least-squares start.
+    """
     g = ctx["g"]
     verified = state["verified"]
-    for attempt in range(MAX_STARTS):
+    for attempt in range(MAX_STARTS + 1):
         todo = which & ~verified & (n_starts > attempt)
+        if attempt == 1 and more is not None:
+            failed = which & ~verified & (n_starts == 1)
+            if failed.any():
+                more(failed)
+                todo = which & ~verified & (n_starts > attempt)
         if not todo.any():
             break
-        res = _run(ctx, todo, x0[:, attempt], y0[:, attempt])
+        res = _run(ctx, todo, np.nan_to_num(x0[:, attempt % MAX_STARTS]), np.nan_to_num(y0[:, attempt % MAX_STARTS]))
         ok = _verify(ctx, todo, res)
         take = todo & (ok | (attempt == 0))
         state["P_lat"][take], state["P_lon"][take] = res["lat"][take], res["lon"][take]
@@ -264,6 +273,51 @@ def _attempts(ctx, state, which, n_starts, x0, y0):
         state["geo"].put(tb, res["geo"].take(tb))
         state["iterations"][todo] += res["iterations"][todo]
         verified |= todo & ok
+
+
+def _looks_clean(r, g, m, counts, known_b, sd_rad):
+    """Fixes whose residuals at the least-squares point show no wild bearing: none beyond CLEAN_START_DEG,
+    none beyond 4 SDs (SD known), and (SD unknown, four or more bearings) no squared chord residual above
+    nine times the mean of the others."""
+    u2 = (2.0 * np.sin(0.5 * r)) ** 2
+    with np.errstate(invalid="ignore", divide="ignore"):
+        big = (np.abs(r) > np.radians(CLEAN_START_DEG)) | (known_b & (np.sqrt(u2) > 4.0 * sd_rad))
+    bad = np.zeros(m, bool)
+    np.logical_or.at(bad, g, big)
+    top = np.zeros(m)
+    np.maximum.at(top, g, u2)
+    rest = (gsum(g, u2, m) - top) / np.maximum(counts - 1, 1)
+    known_g = np.zeros(m, bool)
+    known_g[g[known_b]] = True
+    bad |= ~known_g & (counts >= 4) & (top > 9.0 * rest)
+    return ~bad
+
+
+class _Starter:
+    """Ranks candidate starts (:mod:`dfkit.estimators.starts`) for chosen fixes, on demand."""
+
+    def __init__(self, spec, geo0, g, m, counts, w, s_b, c, spread, known_g):
+        self.args = (spec, geo0, g, m, counts, w, s_b, c, spread, known_g)
+
+    def fill(self, which, x0, y0, n_starts, searched):
+        spec, geo0, g, m, counts, w, s_b, c, spread, known_g = self.args
+        if not which.any():
+            return
+        # ranked by the trimmed sum of squares (the worst bearing left out), or, for a robust method with
+        # a known SD, by its own objective, which is already robust
+        by_objective = which & known_g & spec.robust
+        by_trim = which & ~by_objective
+        for sel, score in ((by_trim, lambda: trimmed_score(w, counts, g)),
+                           (by_objective, lambda: objective_score(spec.objective, w, s_b, c))):
+            if sel.any():
+                xs, ys = choose(geo0, g, m, counts, sel, score(), spread, MAX_STARTS)
+                had = np.isfinite(x0[:, 0]) & sel
+                # keep a least-squares start already tried as the first; the candidates follow
+                x0[sel] = np.where(had[sel, None], np.column_stack([x0[sel, :1], xs[sel, :-1]]), xs[sel])
+                y0[sel] = np.where(had[sel, None], np.column_stack([y0[sel, :1], ys[sel, :-1]]), ys[sel])
+        found = np.isfinite(x0[which]).sum(axis=1)
+        n_starts[which] = np.maximum(found, 1)
+        searched |= which
 
 
 def _unconfirmed_drops(g, m, geo, weight, candidates, counts):
@@ -338,7 +392,7 @@ def _run(ctx, todo, x0, y0):
             px, py, end, its = iterate.fixed_point(gs, cg, len(fixes), sx0, sy0, w[sel], tol_in,
                                                    ctx["max_iter"], r_run[fixes])
         else:
-            px, py, end, its = iterate.optimise(spec.terms, gs, cg, len(fixes), sx0, sy0, w[sel], s_b[sel], c,
+            px, py, end, its = iterate.optimise(spec.terms, spec.objective, gs, cg, len(fixes), sx0, sy0, w[sel], s_b[sel], c,
                                                 tol_in, ctx["max_iter"], r_run[fixes])
         iterations[fixes] += its
         bad = end != iterate.SETTLED

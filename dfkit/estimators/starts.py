@@ -105,7 +105,7 @@ def choose(geo, g, m, counts, active, score, spread, k=1):
     order = np.argsort(g, kind="stable")
     offsets = np.concatenate(([0], np.cumsum(counts)[:-1]))
     owner, member = expand(counts[cg], offsets[cg], order)
-    r, dx, dy, d2 = residuals(geo.phi[member], geo.sx[member], geo.sy[member], cx[owner], cy[owner])
+    r, dx, dy, d2 = residuals(geo.sp[member], geo.cp[member], geo.sx[member], geo.sy[member], cx[owner], cy[owner])
     s = score(owner, member, r, len(cg))
     near = group_min(owner, d2, len(cg)) < (NEAR_STATION * spread[cg]) ** 2
     s = np.where(near, np.inf, s)
@@ -116,10 +116,10 @@ def choose(geo, g, m, counts, active, score, spread, k=1):
     return x, y
 
 
-def objective_score(terms, w, s, c):
+def objective_score(objective, w, s, c):
     """Score candidates by the method's objective sum f(r)."""
     def score(owner, member, r, n):
-        return gsum(owner, terms(r, w[member], s[member], c)[0], n)
+        return gsum(owner, objective(r, w[member], s[member], c), n)
     return score
 
 
