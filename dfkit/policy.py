@@ -51,7 +51,7 @@ REVERSED_DEG = 150.0
 #: than this factor (our choice, for the reason text only).
 ELLIPSE_MISMATCH = 1.5
 
-#: A fix closer to an observer than this fraction of its farthest observer's range (or whose region reaches
-#: an observer) is flagged ``near_observer``: that bearing hardly constrains it, and a wild bearing can
-#: make a false crossing there look consistent. Our choice, checked by benchmarks/coverage.py.
+#: A fix closer to an observer than this fraction of its farthest observer's range is flagged
+#: ``near_observer``: that bearing hardly constrains it, and a wild bearing can make a false crossing there
+#: look consistent. Our choice, checked by benchmarks/coverage.py.
 NEAR_OBSERVER = 0.05

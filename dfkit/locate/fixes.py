@@ -10,8 +10,8 @@ status           position   meaning
 ok               yes        position and confidence region can be trusted as stated
 inconsistent     yes        the bearings disagree more than their SD allows (a wild
                             bearing, or an SD too small for this fix)
-near_observer    yes        the region reaches an observer, where that bearing fits
-                            any direction: the fix leans on the other bearings
+near_observer    yes        the fix lies beside an observer, where that bearing fits
+                            almost any point: the fix leans on the other bearings
 unbounded        yes        the confidence region is open: it reaches past the
                             stated drawing range along the bearings
 no_region        yes        two bearings and no known SD (or a degenerate
@@ -48,7 +48,7 @@ from dfkit.regions import LikelihoodRegions
 STATUS_MEANING = {
     "ok": "position and confidence region can be trusted as stated",
     "inconsistent": "the bearings disagree more than their SD allows",
-    "near_observer": "the confidence region reaches an observer's own station",
+    "near_observer": "the fix lies beside an observer, whose bearing hardly constrains it",
     "unbounded": "the confidence region is open along the bearings",
     "no_region": "a position, but nothing to size a confidence region with",
     "shallow": "the bearing lines cross at a shallow angle; the position is weak along them",

@@ -48,18 +48,22 @@ def _lines_text(lines):
     return "lines " + ", ".join(str(x) for x in lines[:-1]) + f" and {lines[-1]}"
 
 
-def consistency(sol, g, m):
+def consistency(sol, g, m, regions=None):
     """Per fix with a known SD: S = sum (r/sd)^2 over the bearings the fit uses, at full weight, and its
     chi-square p-value on n_used - 2 degrees of freedom (NaN where the SD is estimated or dof < 1).
 
-    A bearing a robust fit merely down-weights still counts in full: the question is whether the
-    bearings behind the answer agree with their SD, not whether the fit could discount one.
+    S is the smallest value over all points (the likelihood region's S_min) when the regions are given
+    and the method is not robust, so that an inefficient estimator (least squares) is not taken for
+    disagreeing bearings. A bearing a robust fit merely down-weights still counts in full, at the fix:
+    the question is whether the bearings behind the answer agree with their SD.
     """
     r = np.radians(sol.residual_deg)
     w = sol.weight
     with np.errstate(divide="ignore", invalid="ignore"):
         inv_var = np.where(w > 0, sol.region_weight / np.where(w > 0, w, 1.0), 0.0)
     S = np.bincount(g, inv_var * r * r, m)
+    if regions is not None and sol.method in ("mle", "lsq", "stansfield"):
+        S = np.where(regions.has_region & np.isfinite(regions.s_min), np.minimum(S, regions.s_min), S)
     dof = sol.dof
     p = np.where(sol.sd_known & (dof >= 1), chi2_sf(S, np.maximum(dof, 1)), np.nan)
     return S, p
@@ -73,7 +77,7 @@ def classify(f: FixFacts):
     reasons: list[list[str]] = [[] for _ in range(m)]
     if not m:
         return status, reasons
-    S, p = consistency(sol, g, m)
+    S, p = consistency(sol, g, m, f.regions)
     ending = sol.ending
     order = np.argsort(g, kind="stable")
     starts = np.concatenate(([0], np.cumsum(f.counts)))
@@ -97,8 +101,6 @@ def classify(f: FixFacts):
         far = np.zeros(m)
         np.maximum.at(far, g, np.where(used, sol.range_m, 0.0))
         near_b = used & (sol.range_m < NEAR_OBSERVER * far[g])
-        if regions is not None:
-            near_b |= used & regions.reaches(g, sol.range_m, sol.azimuth_from_fix_deg)
         near_obs = np.zeros(m, bool)
         np.logical_or.at(near_obs, g, near_b)
         attention = near_obs | ((f.counts < 2) | (f.spread_m < ONE_SPOT_M) | (ending != _E["optimum"]) | sol.behind
