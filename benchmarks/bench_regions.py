@@ -1,6 +1,11 @@
 """Cost of each stage of locating a season: the solver, the likelihood regions, statuses and hints.
 
-    .venv/bin/python benchmarks/bench_regions.py [--fixes 100000] [--bearings 4] [--method mle]
+    .venv/bin/python benchmarks/bench_regions.py [--fixes 100000] [--bearings 4] [--method mle] [--unknown-sd]
+                                                 [--solve-only] [--repeat 3]
+
+To compare the solver with another version, run it with that version first on the path, e.g.
+``git archive main | tar -x -C /tmp/dfkit-main`` then
+``PYTHONPATH=/tmp/dfkit-main .venv/bin/python benchmarks/bench_regions.py --solve-only``.
 
 Builds N fixes x k bearings (noise 4 deg, SD given) around central Europe with pyproj geodesics, like
 bench_fix.py, and times in process, as CPU seconds (time.process_time, steadier than wall time on a
@@ -28,10 +33,15 @@ def season(n_fix, k, rng, sd=4.0):
     return np.asarray(lat_s), np.asarray(lon_s), (np.asarray(back) + rng.normal(0, sd, n_fix * k)) % 360
 
 
-def timed(label, fn):
-    c0, w0 = time.process_time(), time.perf_counter()
-    out = fn()
-    print(f"{label:<34} {time.process_time() - c0:6.2f} s CPU  {time.perf_counter() - w0:6.2f} s wall")
+def timed(label, fn, repeat=1):
+    """Run fn ``repeat`` times; print the smallest CPU and wall times."""
+    cpu, wall = [], []
+    for _ in range(repeat):
+        c0, w0 = time.process_time(), time.perf_counter()
+        out = fn()
+        cpu.append(time.process_time() - c0)
+        wall.append(time.perf_counter() - w0)
+    print(f"{label:<34} {min(cpu):6.2f} s CPU  {min(wall):6.2f} s wall  (min of {repeat})")
     return out
 
 
@@ -40,15 +50,25 @@ def main():
     ap.add_argument("--fixes", type=int, default=100_000)
     ap.add_argument("--bearings", type=int, default=4)
     ap.add_argument("--method", default="mle")
+    ap.add_argument("--unknown-sd", action="store_true", help="give no SD (estimated from each fix)")
+    ap.add_argument("--solve-only", action="store_true", help="time estimators.solve alone")
+    ap.add_argument("--repeat", type=int, default=3)
     a = ap.parse_args()
-    from dfkit import estimators, regions
+    from dfkit import estimators
 
     rng = np.random.default_rng(1)
     lat, lon, b = season(a.fixes, a.bearings, rng)
     g = np.repeat(np.arange(a.fixes), a.bearings)
-    sd = np.full(len(g), 4.0)
-    print(f"{a.fixes} fixes x {a.bearings} bearings, method {a.method}")
-    sol = timed("estimators.solve", lambda: estimators.solve(lat, lon, b, g, a.fixes, sd, method=a.method))
+    sd = np.full(len(g), np.nan if a.unknown_sd else 4.0)
+    print(f"{a.fixes} fixes x {a.bearings} bearings, method {a.method}, SD {'unknown' if a.unknown_sd else 'given'}; "
+          f"dfkit from {estimators.__file__}")
+    sol = timed("estimators.solve", lambda: estimators.solve(lat, lon, b, g, a.fixes, sd, method=a.method),
+                a.repeat)
+    print(f"  {int(sol.converged.sum())} of {a.fixes} converged")
+    if a.solve_only:
+        return
+    from dfkit import regions
+
     timed("regions.likelihood_regions", lambda: regions.likelihood_regions(
         sol.lat, sol.lon, g, lat, lon, b, sol.range_m, sol.azimuth_from_fix_deg, sol.residual_deg,
         sol.region_weight, sol.sd_known, sol.dof, 0.95, valid=sol.converged))
