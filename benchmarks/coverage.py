@@ -98,7 +98,7 @@ def cell(method, known, n, sd, n_fix, rng, *, crossing=None, outlier=False):
     t = fx.table
     status = t["status"].to_numpy()
     with_pos = np.isin(status, WITH_POSITION)
-    has_region = with_pos & fx.regions.has_region
+    has_region = with_pos & fx.likelihood.has_region
     has_ellipse = with_pos & np.isfinite(t["semi_major_m"].to_numpy(float))
     in_region = fx.contains(sc["tlat"], sc["tlon"])
     in_ellipse = fx.contains(sc["tlat"], sc["tlon"], kind="ellipse")

@@ -40,31 +40,7 @@ def _lon(x):
     return float(((x + 180.0) % 360.0) - 180.0) if abs(x) > 180.0 else float(x)
 
 
-def split_ring(lat, lon):
-    """Split a polygon ring with continuous longitudes at the antimeridian.
-
-    Returns a list of rings ([lon, lat] lists, counter-clockwise, closed).
-    """
-    from shapely.geometry import Polygon, box
-    from shapely.geometry.polygon import orient
-
-    poly = Polygon(np.column_stack([lon, lat]))
-    if not poly.is_valid:
-        poly = poly.buffer(0)
-    rings = []
-    for k in range(-2, 3):
-        part = poly.intersection(box(-180.0 + 360 * k, -90.0, 180.0 + 360 * k, 90.0))
-        if part.is_empty:
-            continue
-        geoms = getattr(part, "geoms", [part])
-        for gpart in geoms:
-            if gpart.geom_type != "Polygon" or gpart.area == 0:
-                continue
-            gpart = orient(gpart, 1.0)
-            coords = np.asarray(gpart.exterior.coords)
-            coords[:, 0] -= 360 * k
-            rings.append([[float(x), float(y)] for x, y in coords])
-    return rings
+split_ring = regions.split_ring     # lives with the regions it mostly splits (a fix's package uses it)
 
 
 def bearing_line_length(range_m, spread_m):
@@ -94,10 +70,11 @@ def error_polygon_rings(fixes: Fixes):
     """(fix label, (lat, lon)) of the +/-1 SD error polygon of each fix that has one."""
     out = []
     b = fixes.bearings
-    for _, row in fixes.table.iterrows():
+    g = b["fix_id"].to_numpy(np.int64)
+    for i, (_, row) in enumerate(fixes.table.iterrows()):   # row i of the fix table is fix_id i
         if row["status"] not in WITH_POSITION or not np.isfinite(row["sd_deg"]):
             continue
-        sel = b[b["fix"] == row["fix"]]
+        sel = b[g == i]
         sd = sel["sd"].to_numpy(float)
         sd = np.where(np.isfinite(sd), sd, row["sd_deg"])
         ring = regions.error_polygon(sel["lat"], sel["lon"], sel["true_bearing"], sd, row["lat"], row["lon"])

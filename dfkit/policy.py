@@ -55,3 +55,53 @@ ELLIPSE_MISMATCH = 1.5
 #: ``near_observer``: that bearing hardly constrains it, and a wild bearing can make a false crossing there
 #: look consistent. Our choice, checked by benchmarks/coverage.py.
 NEAR_OBSERVER = 0.05
+
+#: Home ranges from fewer fixes than this are computed but flagged 'few_fixes'. Common practice; Seaman
+#: et al. (1999, J. Wildl. Manage. 63(2) 739-747 [from memory]) advise at least 30 fixes per animal
+#: for kernel estimates.
+MIN_RANGE_FIXES = 30
+# --- beacon calibration (dfkit.calibration)
+
+#: A trial whose error lies farther than this many robust SDs (1.4826 x the median absolute deviation) from its
+#: group's median error is *wild* (a reflection, a 180-degree ambiguity, a misread) and is left out of the
+#: calibration. This is Hampel's identifier (F. R. Hampel, "The influence curve and its role in robust
+#: estimation", JASA 69(346), 383-393, 1974 [from memory]), usually run with 3; 4 is used here so that a clean
+#: normal sample of a few hundred trials loses no good trial (P(|z| > 4) = 6.3e-5). Common practice, no single
+#: source for the value.
+WILD_TRIAL_MADS = 4.0
+
+#: Smallest robust SD the wild-trial rule uses [°]: bearings are read to whole degrees, so a tight group whose
+#: median absolute deviation is 0 must not call every 1-degree miss wild (common practice, no source).
+WILD_TRIAL_MIN_SCALE_DEG = 1.0
+
+#: Groups with fewer usable trials than this are flagged 'few' (used, with an F(2, n - 1) region that carries the
+#: SD's own uncertainty). The relative standard error of an SD from n normal trials is about 1/sqrt(2(n - 1)),
+#: 13 % at n = 30 (a derivation); the threshold itself is common practice, no single source.
+MIN_TRIALS_TRUST = 30
+
+#: Groups with fewer usable trials than this are not used at all ('unusable'): the wild-trial rule and the SD
+#: mean little on fewer (common practice, no source).
+MIN_TRIALS_USE = 5
+
+#: A trial whose station is closer to the beacon than this is rejected [m]: within a few wavelengths of a VHF
+#: transmitter (2 m at 150 MHz) a bearing is not a far-field bearing (common practice, no source).
+MIN_TRIAL_DISTANCE_M = 10.0
+
+#: A group with more than this fraction of wild trials is flagged: the site or the antenna needs a look
+#: (common practice, no source).
+MAX_WILD_FRACTION = 0.10
+
+#: Significance level of the check whether a group's error grows (or shrinks) with distance (Spearman rank
+#: correlation of the absolute error with distance). 0.01 rather than the usual 0.05 because every group is
+#: tested and a false warning sends people to re-do trials; common practice, no source for the level.
+DISTANCE_CHECK_ALPHA = 0.01
+
+#: With a single bearing there is no estimate; a plan averages over positions along the bearing out to
+#: this range [m]. Common practice, no single source: ground-level VHF and 2 m hunt transmitters are
+#: usually heard over a few kilometres; set it (--max-range) from what your kit reaches.
+DEFAULT_MAX_RANGE_M = 5000.0
+
+#: Bearing SD assumed for the spread of plausible positions when no SD is known at all [°] (a plan then
+#: reports ranks and ratios but no areas). Common practice, no single source: hand-held Yagi bearings are
+#: typically good to a few degrees to about 10 degrees.
+NOMINAL_SD_DEG = 5.0

@@ -203,6 +203,33 @@ def error_polygon(station_lat, station_lon, bearing_deg, sd_deg, fix_lat, fix_lo
     return plat, plon
 
 
+def split_ring(lat, lon):
+    """Split a polygon ring with continuous longitudes at the antimeridian (RFC 7946 section 3.1.9).
+
+    Returns a list of rings ([lon, lat] lists, counter-clockwise, closed).
+    """
+    from shapely.geometry import Polygon, box
+    from shapely.geometry.polygon import orient
+
+    poly = Polygon(np.column_stack([lon, lat]))
+    if not poly.is_valid:
+        poly = poly.buffer(0)
+    rings = []
+    for k in range(-2, 3):
+        part = poly.intersection(box(-180.0 + 360 * k, -90.0, 180.0 + 360 * k, 90.0))
+        if part.is_empty:
+            continue
+        geoms = getattr(part, "geoms", [part])
+        for gpart in geoms:
+            if gpart.geom_type != "Polygon" or gpart.area == 0:
+                continue
+            gpart = orient(gpart, 1.0)
+            coords = np.asarray(gpart.exterior.coords)
+            coords[:, 0] -= 360 * k
+            rings.append([[float(x), float(y)] for x, y in coords])
+    return rings
+
+
 # --------------------------------------------------------------------------------------------------
 # Likelihood-ratio regions
 
@@ -286,22 +313,19 @@ class LikelihoodRegions:
         lon = self.fix_lon[i] + (lon - self.fix_lon[i] + 180.0) % 360.0 - 180.0
         return np.append(lat, lat[0]), np.append(lon, lon[0])
 
-    def reaches(self, g, range_m, azimuth_from_fix_deg):
-        """Whether the drawn region of fix ``g[k]`` reaches a point given by its distance [m] and azimuth
-        [°] from the fix (plane geometry about the fix; used for the stations, where S is singular)."""
-        g = np.asarray(g, np.int64)
-        a = np.radians(np.asarray(azimuth_from_fix_deg, float))
-        d = np.asarray(range_m, float)
-        px = d * np.sin(a) - self.centre_x[g]
-        py = d * np.cos(a) - self.centre_y[g]
-        ang = np.arctan2(px, py) % _TWO_PI
-        K = self.radius_m.shape[1]
-        step = _TWO_PI / K
-        k0 = np.floor(ang / step).astype(np.int64) % K
-        t = ang / step - np.floor(ang / step)
-        rad = self.radius_m[g, k0] * (1 - t) + self.radius_m[g, (k0 + 1) % K] * t
-        with np.errstate(invalid="ignore"):
-            return self.has_region[g] & (np.hypot(px, py) < rad)
+    def rings(self, rows):
+        """Regions of fixes ``rows`` as closed rings, vectorised: (rows, lat, lon) with lat, lon of shape
+        (len(rows), n_rays + 1) [°], longitudes unwrapped about each fix."""
+        rows = np.asarray(rows, np.int64)
+        psi = np.radians(self.ray_azimuth_deg)[None, :]
+        rho = self.radius_m[rows]
+        x = self.centre_x[rows, None] + rho * np.sin(psi)
+        y = self.centre_y[rows, None] + rho * np.cos(psi)
+        lat0 = self.fix_lat[rows, None]
+        lon0 = self.fix_lon[rows, None]
+        lat, lon = geodesy.forward(lat0, lon0, np.degrees(np.arctan2(x, y)), np.hypot(x, y))
+        lon = lon0 + (lon - lon0 + 180.0) % 360.0 - 180.0
+        return rows, np.concatenate([lat, lat[:, :1]], axis=1), np.concatenate([lon, lon[:, :1]], axis=1)
 
     def statistic(self, lat, lon):
         """S(x) - threshold at one point per fix (arrays of length m), with exact geodesic residuals.
@@ -329,19 +353,35 @@ class LikelihoodRegions:
             return np.nan_to_num(self.statistic(lat, lon), nan=1.0) <= 0.0
 
 
-def region_threshold(s_min, known, dof, level):
-    """The region's bound on S: S_min + chi2_2(level) with a known SD, else S_min (1 + 2 F / dof)."""
+def _f2(level, dof):
+    """The level quantile of F(2, dof), closed form (module scale_factor); dof > 0."""
+    with np.errstate(invalid="ignore", over="ignore", divide="ignore"):
+        return (dof / 2.0) * np.expm1(-(2.0 / dof) * np.log1p(-level))
+
+
+def region_threshold(s_min, known, dof, level, known_dof=None):
+    """The region's bound on S.
+
+    S_min + chi2_2(level) with a known SD; S_min + 2 F(2, known_dof; level) when the known SD was itself
+    measured with ``known_dof`` degrees of freedom (a calibration on a finite number of trials: then
+    (S - S_min)/2 over the SD's own chi-square is F-distributed); S_min (1 + 2 F(2, dof) / dof) when the SD
+    is estimated from the fix (dof = n - 2).
+    """
     level = float(level)
     chi2 = -2.0 * np.log1p(-level)
     dof = np.asarray(dof, float)
     m = np.where(dof > 0, dof, 1.0)
-    with np.errstate(invalid="ignore", over="ignore"):
-        f = (m / 2.0) * np.expm1(-(2.0 / m) * np.log1p(-level))
-    return np.where(known, s_min + chi2, np.where(dof > 0, s_min * (1.0 + 2.0 * f / m), np.nan))
+    f = _f2(level, m)
+    known_bound = np.full(np.shape(s_min), chi2)
+    if known_dof is not None:
+        kd = np.asarray(known_dof, float)
+        fin = np.isfinite(kd) & (kd > 0)
+        known_bound = np.where(fin, 2.0 * _f2(level, np.where(fin, kd, 1.0)), chi2)
+    return np.where(known, s_min + known_bound, np.where(dof > 0, s_min * (1.0 + 2.0 * f / m), np.nan))
 
 
 def likelihood_regions(fix_lat, fix_lon, g, station_lat, station_lon, bearing_deg, range_m, azimuth_from_fix_deg,
-                       residual_deg, weight, known, dof, level, *, valid=None, n_rays=N_RAYS,
+                       residual_deg, weight, known, dof, level, *, known_dof=None, valid=None, n_rays=N_RAYS,
                        chunk=20_000) -> LikelihoodRegions:
     """Likelihood-ratio regions of many fixes (module docstring), vectorised.
 
@@ -365,6 +405,8 @@ def likelihood_regions(fix_lat, fix_lon, g, station_lat, station_lon, bearing_de
         Residual degrees of freedom of an estimated SD (n_used - 2).
     level : float
         Probability in (0, 1).
+    known_dof : array_like, shape (m,), optional
+        Degrees of freedom of a known SD measured on finitely many trials (inf or NaN: exact).
     valid : array_like of bool, shape (m,), optional
         Fixes to compute (default: all with a finite position and at least two weighted bearings).
     n_rays : int
@@ -384,6 +426,7 @@ def likelihood_regions(fix_lat, fix_lon, g, station_lat, station_lon, bearing_de
     r0 = np.radians(np.asarray(residual_deg, float))
     known = np.asarray(known, bool)
     dof = np.asarray(dof)
+    kdof = np.full(m, np.inf) if known_dof is None else np.asarray(known_dof, float)
     n_w = np.bincount(g, (weight > 0).astype(float), m)
     ok = np.isfinite(fix_lat) & np.isfinite(fix_lon) & (n_w >= 2) & (known | (dof > 0))
     if valid is not None:
@@ -411,7 +454,8 @@ def likelihood_regions(fix_lat, fix_lon, g, station_lat, station_lon, bearing_de
             fx = fixes_n[k0:k0 + step]
             idx = order[offsets[fx][:, None] + np.arange(n)[None, :]]       # (M, n)
             res = _march(d[idx] * np.sin(az[idx]), d[idx] * np.cos(az[idx]), r0[idx] + az[idx] + np.pi,
-                         weight[idx], known[fx], dof[fx], float(level), psi, draw[fx], fix_lat[fx], fix_lon[fx],
+                         weight[idx], known[fx], dof[fx], kdof[fx], float(level), psi, draw[fx], fix_lat[fx],
+                         fix_lon[fx],
                          station_lat=slat_all[idx], station_lon=slon_all[idx], theta=theta_all[idx],
                          spread=spread[fx])
             for key, val in res.items():
@@ -522,11 +566,11 @@ def _ray_f(phi, sx, sy, v, cx, cy, rho, ux, uy, T, derivative=True):
     return f, -2.0 * (vr * dbeta).sum(1)
 
 
-def _march(sx, sy, phi, v, known, dof, level, psi, draw, fix_lat, fix_lon, *, station_lat, station_lon, theta,
-           spread):
+def _march(sx, sy, phi, v, known, dof, kdof, level, psi, draw, fix_lat, fix_lon, *, station_lat, station_lon,
+           theta, spread):
     M = phi.shape[0]
     cx, cy, s_min, j11, j12, j22 = _minimum(phi, sx, sy, v)
-    T = region_threshold(s_min, known, dof, level)
+    T = region_threshold(s_min, known, dof, level, kdof)
     ux, uy = np.sin(psi)[None, :], np.cos(psi)[None, :]
     # the full Hessian where it is positive definite (a better first guess), else Gauss-Newton's
     h11, h12, h22 = _hessian(phi, sx, sy, v, cx, cy)

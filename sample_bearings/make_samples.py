@@ -15,9 +15,15 @@ Files written (in this folder):
   transmitters over an hour (one team reads mils, one bearing is a reflection);
 * ``week_tracking.csv`` + ``week_track.gpx``: a week of tracking three tags;
   rows have a time but no position, which comes from the GPS track;
-* ``beacon_trials.csv``: bearings to test transmitters at known spots;
+* ``beacon_trials.csv``: bearings on test transmitters (beacons) at known spots with three antennas, and
+  ``tracking_after_trials.csv``: field fixes taken with the same antennas (for ``dfkit calibrate``);
 * ``field_sheet_with_mistakes.csv``: a hand-typed sheet with the usual mistakes,
   for ``dfkit check``;
+* ``season_2026_05.csv``, ``season_2026_06.csv``: two months of tracking three tags
+  whose true home ranges are known (``truth_season.csv``), for ``dfkit season``
+  and ``dfkit ranges``;
+* ``hunt_spots.csv``: trail junctions and road pull-outs of the hunt's area, the
+  candidate spots for ``dfkit plan`` (positions written as lat/lon, UTM and MGRS);
 * ``truth_*.csv``: the true transmitter positions behind each sheet.
 """
 
@@ -179,25 +185,91 @@ def week_tracking():
 
 
 def beacon_trials():
-    """Bearings on test transmitters at known spots, for calibrating the bearing SD and bias."""
-    beacons = {"B1": (300.0, 800.0), "B2": (-700.0, 1200.0), "B3": (1400.0, 300.0)}
-    stations = [(-400.0, -300.0), (900.0, -500.0), (1600.0, 1400.0), (-1200.0, 200.0)]
+    """Beacon trials with two antennas (and a borrowed third), then field fixes taken with the same antennas.
+
+    Each antenna has its own bias and SD (``truth_beacon_antennas.csv``); bearings are read on a compass and
+    written to whole degrees. Beacons stand at known spots (``truth_beacon_trials.csv``), given in the sheet as
+    lat/lon, UTM or MGRS; three trials are wild (two reflections, one loop read the wrong way round). The field
+    sheet ``tracking_after_trials.csv`` (no ``sd`` column) has fixes taken with the same antennas on two tags,
+    whose true positions are in ``truth_tracking_after_trials.csv``. Uses its own random stream, so the other
+    samples do not depend on it.
+    """
+    import mgrs
+
+    rng2 = np.random.default_rng(20260420)
+    antennas = {"3-element Yagi": ("yagi", "A", 2.0, 3.5), "hand loop": ("loop", "B", -3.0, 7.0),
+                "2-element (borrowed)": ("two", "C", 0.5, 5.0)}
+    # beacons stand where the animals live, inside the ring of the usual tracking spots
+    beacons = {"B1": (300.0, 800.0), "B2": (-700.0, 1200.0), "B3": (1400.0, 300.0), "B4": (-900.0, -400.0),
+               "B5": (700.0, 1800.0), "B6": (2000.0, 1300.0)}
+    stations = [(-400.0, -300.0), (900.0, -500.0), (1600.0, 1400.0), (-1200.0, 200.0), (200.0, 2600.0),
+                (2500.0, -200.0), (1900.0, 2800.0), (-1600.0, -1300.0)]
+    wild = {("B2", "yagi", 2, 1): 41.0, ("B4", "loop", 1, 3): -57.0, ("B6", "loop", 3, 0): 180.0}
+    header = ["fix", "tag", "time", "lat", "lon", "bearing", "north", "beacon", "beacon_lat", "beacon_lon",
+              "beacon_utm_zone", "beacon_easting", "beacon_northing", "beacon_mgrs", "observer", "antenna",
+              "note"]
     rows, truth = [], []
-    t0 = datetime(2026, 4, 20, 7, 0, tzinfo=timezone.utc)
-    minute = 0
-    for bid, (be, bn) in beacons.items():
+    t = datetime(2026, 4, 20, 6, 30, tzinfo=timezone.utc)
+    to_mgrs = mgrs.MGRS()
+    for k, (bid, (be, bn)) in enumerate(beacons.items()):
         blat, blon = offset(BASE_LAT, BASE_LON, be, bn)
-        truth.append([bid, f"{blat:.7f}", f"{blon:.7f}"])
-        for se, sn in stations:
-            slat, slon = offset(BASE_LAT, BASE_LON, se, sn)
-            when = t0 + timedelta(minutes=minute)
-            minute += 3
-            b = (azimuth(slat, slon, blat, blon) + 1.0 + rng.normal(0, 4.0)) % 360.0   # 1 deg bias, SD 4
-            rows.append([bid, "trial", iso(when), f"{slat:.6f}", f"{slon:.6f}", f"{b:.0f}", "true",
-                         f"{blat:.7f}", f"{blon:.7f}", "A"])
-    write("beacon_trials.csv", ["fix", "tag", "time", "lat", "lon", "bearing", "north", "beacon_lat", "beacon_lon",
-                                "observer"], rows)
-    write("truth_beacon_trials.csv", ["fix", "lat", "lon"], truth)
+        truth.append([bid, f"150.{k * 20 + 40:03d}", f"{blat:.7f}", f"{blon:.7f}"])
+        where = ["", "", "", "", "", ""]
+        if bid == "B5":
+            x, y = UTM33.transform(blon, blat)
+            where[2:5] = ["33N", f"{x:.0f}", f"{y:.0f}"]
+        elif bid == "B6":
+            where[5] = to_mgrs.toMGRS(blat, blon, MGRSPrecision=5)
+        else:
+            where[0:2] = [f"{blat:.6f}", f"{blon:.6f}"]
+        for antenna, (short, observer, bias, sd) in antennas.items():
+            rounds = 3 if short != "two" else (1 if bid in ("B2", "B5", "B6") else 0)
+            for rnd in range(1, rounds + 1):
+                spots = rng2.choice(len(stations), 4, replace=False)
+                for j, s_idx in enumerate(spots):
+                    se, sn = stations[s_idx]
+                    slat, slon = offset(BASE_LAT, BASE_LON, se + rng2.normal(0, 15), sn + rng2.normal(0, 15))
+                    t += timedelta(minutes=3)
+                    err = rng2.normal(bias, sd) + wild.get((bid, short, rnd, j), 0.0)
+                    mag = (azimuth(slat, slon, blat, blon) - declination(slat, slon, t) + err) % 360.0
+                    notes = {41.0: "bouncy signal", 180.0: "loop: null both ways?"}
+                    note = notes.get(wild.get((bid, short, rnd, j)), "")
+                    rows.append([f"{bid}-{short}-{rnd}", truth[-1][1], iso(t), f"{slat:.6f}", f"{slon:.6f}",
+                                 f"{round(mag) % 360:d}", "magnetic", bid, *where, observer, antenna, note])
+                t += timedelta(minutes=6)
+    write("beacon_trials.csv", header, rows)
+    write("truth_beacon_trials.csv", ["beacon", "tag", "lat", "lon"], truth)
+    write("truth_beacon_antennas.csv", ["antenna", "bias_deg", "sd_deg", "note"],
+          [[a, f"{v[2]:g}", f"{v[3]:g}", "error drawn normal(bias, sd), then the compass bearing written to "
+            "whole degrees (adds about 0.3 deg SD)"] for a, v in antennas.items()])
+
+    # field fixes with the same antennas, a month later, on two tags
+    rows, truth = [], []
+    t = datetime(2026, 5, 18, 4, 40, tzinfo=timezone.utc)
+    names = list(antennas)
+    for k in range(60):
+        tag = ("150.318", "150.544")[k % 2]
+        antenna = names[0] if k % 5 < 3 else names[1]
+        if k in (17, 38, 51):
+            antenna = names[2]
+        short, observer, bias, sd = antennas[antenna]
+        ae, an = rng2.uniform(-1500, 2500), rng2.uniform(-1000, 2500)
+        alat, alon = offset(BASE_LAT, BASE_LON, ae, an)
+        label = f"{'AB'[k % 2]}{k // 2 + 1:02d}"
+        truth.append([label, tag, f"{alat:.7f}", f"{alon:.7f}"])
+        angles = rng2.uniform(0, 360) + np.array([0.0, 120.0, 240.0]) + rng2.normal(0, 20, 3)
+        for ang in angles:
+            r = rng2.uniform(400, 1500)
+            slat, slon = offset(alat, alon, r * np.sin(np.radians(ang)), r * np.cos(np.radians(ang)))
+            t += timedelta(minutes=4)
+            err = rng2.normal(bias, sd)
+            mag = (azimuth(slat, slon, alat, alon) - declination(slat, slon, t) + err) % 360.0
+            rows.append([label, tag, iso(t, CEST), f"{slat:.6f}", f"{slon:.6f}", f"{round(mag) % 360:d}",
+                         "magnetic", observer, antenna])
+        t += timedelta(hours=5, minutes=int(rng2.integers(0, 120)))
+    write("tracking_after_trials.csv", ["fix", "tag", "time", "lat", "lon", "bearing", "north", "observer",
+                                        "antenna"], rows)
+    write("truth_tracking_after_trials.csv", ["fix", "tag", "lat", "lon"], truth)
 
 
 def mistakes():
@@ -216,10 +288,93 @@ def mistakes():
     write("field_sheet_with_mistakes.csv", ["fix", "tag", "time", "lat", "lon", "bearing", "unit", "north", "note"], rows)
 
 
+def season():
+    """Two monthly sheets of a tracking season on three tags whose true home ranges are known.
+
+    Each animal's daily position is drawn from a bivariate normal (its true utilisation
+    distribution, whose 95 % isopleth has the area -2 ln(0.05) pi sigma_e sigma_n); most days
+    it gets one fix of three compass bearings. The June sheet begins with the last three days
+    of May, as a cumulative export would. Uses its own random generator, so the other samples
+    do not change when this scenario does.
+    """
+    g = np.random.default_rng(20260815)
+    tags = {"151.040": (-800.0, 600.0, 300.0, 200.0), "151.310": (900.0, 1100.0, 450.0, 250.0),
+            "151.620": (300.0, -900.0, 250.0, 350.0)}
+    rows, fixes = [], []
+    start = datetime(2026, 5, 1, 5, 0, tzinfo=timezone.utc)
+    for day in range(61):
+        t = start + timedelta(days=day)
+        for tag, (ce, cn, se_, sn_) in tags.items():
+            t += timedelta(minutes=int(g.integers(20, 50)))
+            if g.random() > 0.85:
+                continue                                   # not found that day
+            ae, an = ce + g.normal(0, se_), cn + g.normal(0, sn_)
+            alat, alon = offset(BASE_LAT, BASE_LON, ae, an)
+            angles = g.uniform(0, 2 * np.pi) + np.array([0.0, 2.1, 4.2]) + g.normal(0, 0.3, 3)
+            first = None
+            for k in range(3):
+                r = g.uniform(500, 1200)
+                slat, slon = offset(BASE_LAT, BASE_LON, ae + r * np.sin(angles[k]), an + r * np.cos(angles[k]))
+                when = t + timedelta(minutes=5 * k)
+                err = g.normal(0.0, 4.0) if g.random() > 0.02 else g.uniform(30, 60)   # now and then a reflection
+                mag = (azimuth(slat, slon, alat, alon) - declination(slat, slon, when) + err) % 360.0
+                rows.append([day, tag, iso(when, CEST), f"{slat:.6f}", f"{slon:.6f}", f"{mag:.0f}", "magnetic", "4",
+                             "KL"[k % 2], ""])
+                first = first or when
+            fixes.append([tag, iso(first), f"{alat:.7f}", f"{alon:.7f}"])
+    rows[100][5] = str(int(rows[100][5]) * 10 + 7)           # a slip of the pen: dfkit rejects the row
+    rows[100][9] = "typed in the evening"
+    header = ["tag", "time", "lat", "lon", "bearing", "north", "sd", "observer", "note"]
+    write("season_2026_05.csv", header, [r[1:] for r in rows if r[0] <= 30])
+    write("season_2026_06.csv", header, [r[1:] for r in rows if r[0] >= 28])
+    write("truth_season.csv", ["tag", "centre_lat", "centre_lon", "sigma_east_m", "sigma_north_m"],
+          [[tag, *(f"{v:.7f}" for v in offset(BASE_LAT, BASE_LON, ce, cn)), f"{se_:g}", f"{sn_:g}"]
+           for tag, (ce, cn, se_, sn_) in tags.items()])
+    write("truth_season_fixes.csv", ["tag", "first_bearing_time", "lat", "lon"], fixes)
+def hunt_spots():
+    """Places in the hunt's area a team can reach and take a bearing from (for ``dfkit plan``).
+
+    Chosen by hand (no random numbers), in metres east and north of the same base
+    as the hunt; a few are written in UTM or MGRS, as read off a map or a GPS.
+    """
+    import mgrs
+
+    spots = [  # label, kind, east m, north m, form, note
+        ("J-brook", "trail junction", 400.0, 1500.0, "latlon", "footbridge over the brook"),
+        ("J-beech", "trail junction", 1700.0, 2300.0, "latlon", ""),
+        ("J-saddle", "trail junction", -600.0, 3900.0, "utm", "steep last 200 m"),
+        ("J-ridge", "trail junction", 1200.0, 4300.0, "latlon", ""),
+        ("J-spring", "trail junction", 3600.0, 4000.0, "mgrs", ""),
+        ("J-meadow", "trail junction", -2200.0, 4000.0, "latlon", "grazing: ask the farmer first"),
+        ("J-hut", "trail junction", 2900.0, 5200.0, "utm", ""),
+        ("P-quarry", "road pull-out", 4300.0, 2200.0, "latlon", "room for two cars"),
+        ("P-bridge", "road pull-out", 2600.0, 700.0, "utm", ""),
+        ("P-sawmill", "road pull-out", -2900.0, 2200.0, "mgrs", "weekdays: lorries"),
+        ("P-crossroads", "road pull-out", -1000.0, 1100.0, "latlon", ""),
+        ("P-layby", "road pull-out", 800.0, 2800.0, "latlon", ""),
+    ]
+    to_mgrs = mgrs.MGRS()
+    rows = []
+    for label, kind, e, n, form, note in spots:
+        lat, lon = offset(BASE_LAT, BASE_LON, e, n)
+        row = [label, kind, "", "", "", "", "", "", note]
+        if form == "latlon":
+            row[2:4] = [f"{lat:.6f}", f"{lon:.6f}"]
+        elif form == "utm":
+            x, y = UTM33.transform(lon, lat)
+            row[4:7] = ["33N", f"{x:.0f}", f"{y:.0f}"]
+        else:
+            row[7] = to_mgrs.toMGRS(lat, lon, MGRSPrecision=5)
+        rows.append(row)
+    write("hunt_spots.csv", ["spot", "kind", "lat", "lon", "utm_zone", "easting", "northing", "mgrs", "note"], rows)
+
+
 if __name__ == "__main__":
     animal_fix()
     hunt()
     week_tracking()
     beacon_trials()
     mistakes()
+    season()
+    hunt_spots()
     print("sample sheets written to", HERE)

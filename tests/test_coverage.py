@@ -23,7 +23,7 @@ def rates(sc, fixes):
     t = fixes.table
     status = t["status"].to_numpy()
     with_pos = np.isin(status, WITH_POSITION)
-    has_region = with_pos & fixes.regions.has_region
+    has_region = with_pos & fixes.likelihood.has_region
     has_ellipse = with_pos & np.isfinite(t["semi_major_m"].to_numpy(float))
     in_region = fixes.contains(sc["truth_lat"], sc["truth_lon"])
     in_ellipse = fixes.contains(sc["truth_lat"], sc["truth_lon"], kind="ellipse")
@@ -82,7 +82,6 @@ def test_three_bearings_with_an_estimated_sd(write_sheet):
     sc, fixes = run(write_sheet, 1500, 3, 5.0, 501, "mle", False)
     r = rates(sc, fixes)
     assert 0.93 <= r["region"] <= 0.97
-    assert any("1 degree of freedom" in n for n in fixes.notes)
 
 
 def test_clean_fixes_rarely_lose_a_good_bearing(write_sheet):

@@ -173,12 +173,16 @@ def test_sd_source_follows_the_bearings(write_sheet):
     assert locate(b).table.set_index("fix").loc["C", "sd_source"] == "given+calibration"
 
 
-def test_an_sd_estimated_with_one_degree_of_freedom_is_noted(write_sheet):
-    rows = [(lab, s[0], s[1], round(az(s, T) + e, 4), "", "") for lab in ("A",)
-            for s, e in zip(S, (1.0, -2.0, 0.5))]
-    fixes = locate(read_bearings(write_sheet(sheet_of(rows))))
+def test_an_sd_estimated_with_one_degree_of_freedom_is_noted(write_sheet, capsys):
+    from dfkit.cli import main
+
+    rows = [("A", s[0], s[1], round(az(s, T) + e, 4), "", "") for s, e in zip(S, (1.0, -2.0, 0.5))]
+    path = write_sheet(sheet_of(rows))
+    fixes = locate(read_bearings(path))
     assert fixes.table["sd_source"][0] == "estimated"
-    assert any("1 degree of freedom" in n and "calibrat" in n for n in fixes.notes)
+    main(["fix", str(path)])
+    err = capsys.readouterr().err
+    assert "1 degree of freedom" in err and "calibrat" in err
 
 
 def test_covariance_columns_are_those_of_the_ellipse(write_sheet):

@@ -1,11 +1,18 @@
-"""The saved map in a real browser with no network: no outside request, no JavaScript error, shapes drawn.
+"""The saved folium map in a real browser with no network: no outside request, no script error, every fix drawn.
 
 Uses Debian's Chromium (``apt-get install chromium``) driven by Playwright; never a downloaded browser.
 """
 
+import base64
+import json
 import pathlib
 import shutil
+import sqlite3
+import zlib
+import struct
 
+import numpy as np
+import pyproj
 import pytest
 
 from dfkit.locate import locate_sheet
@@ -14,63 +21,223 @@ from dfkit.maps import fix_map
 CHROMIUM = shutil.which("chromium") or shutil.which("chromium-browser")
 ARGS = ["--headless", "--no-sandbox", "--disable-gpu", "--disable-background-networking",
         "--disable-component-update", "--disable-sync", "--no-first-run", "--disable-quic"]
+ROOT = pathlib.Path(__file__).resolve().parents[1] / "sample_bearings"
 
 pytestmark = pytest.mark.skipif(CHROMIUM is None, reason="Debian's chromium is not installed "
                                 "(apt-get install chromium); .ci/run installs it")
 
+#: Labels and tags that once broke the map, or could: comment and script openers, prototype names,
+#: template and spreadsheet syntax, control characters, and a very long label.
+HOSTILE = ["<!--<script>", "</script><b>x</b>", "__proto__", "constructor", "=1+1", "{{7*7}}",
+           "a\x01b\x07c\x1f", "hasOwnProperty", "L" * 5000, "<img src=x onerror=alert(1)>"]
 
-def _open(path: pathlib.Path):
-    from playwright.sync_api import sync_playwright
 
-    outside, errors = [], []
-    with sync_playwright() as pw:
-        browser = pw.chromium.launch(executable_path=CHROMIUM, args=ARGS)
-        page = browser.new_page()
+class Page:
+    """A map page opened in Chromium, with the requests it tried and the errors it raised."""
+
+    def __init__(self, pw, path, viewport=(1300, 800)):
+        self.outside, self.errors = [], []
+        self.browser = pw.chromium.launch(executable_path=CHROMIUM, args=ARGS)
+        self.page = self.browser.new_page(viewport={"width": viewport[0], "height": viewport[1]})
 
         def route(r):
             if r.request.url.startswith(("file:", "data:", "about:")):
                 return r.continue_()
-            outside.append(r.request.url)
+            self.outside.append(r.request.url)
             return r.abort()
 
-        page.route("**/*", route)
-        page.on("console", lambda m: errors.append(m.text) if m.type == "error" else None)
-        page.on("pageerror", lambda e: errors.append(str(e)))
-        page.goto(path.as_uri())
-        page.wait_for_selector("path.leaflet-interactive", state="attached", timeout=15000)
-        n_paths = page.locator("path.leaflet-interactive").count()
-        panel = page.locator("#fixes .fix").count()
-        page.locator("path.leaflet-interactive").first.dispatch_event("click")
-        popup = page.locator(".leaflet-popup-content").count()
-        injected = page.locator("img[src='x'], #panel b, .leaflet-popup-content script").count()
-        assert injected == 0, "user text was interpreted as HTML"
-        page.screenshot(path=str(path.with_suffix(".png")))
-        browser.close()
-    return outside, errors, n_paths, panel, popup
+        self.page.route("**/*", route)
+        self.page.on("console", lambda m: self.errors.append(m.text) if m.type == "error" else None)
+        self.page.on("pageerror", lambda e: self.errors.append(str(e)))
+        self.page.goto(path.as_uri())
+        self.page.wait_for_function("window.dfkit && window.dfkit.counts && window.dfkit.counts.fix >= 0",
+                                    timeout=20000)
+
+    def counts(self):
+        return json.loads(self.page.evaluate("JSON.stringify(window.dfkit.counts)"))
 
 
-def test_map_works_offline(tmp_path):
-    root = pathlib.Path(__file__).resolve().parents[1] / "sample_bearings"
-    fixes = locate_sheet(root / "week_tracking.csv", track=str(root / "week_track.gpx"))
-    m = fix_map(fixes, title="week <script>alert(1)</script>")
-    out = tmp_path / "map.html"
+@pytest.fixture(scope="module")
+def pw():
+    from playwright.sync_api import sync_playwright
+
+    with sync_playwright() as p:
+        yield p
+
+
+def _save(m, tmp_path, name="map.html"):
+    out = tmp_path / name
     m.save(out)
-    outside, errors, n_paths, panel, popup = _open(out)
-    assert outside == []
-    assert errors == []
-    assert n_paths == m.n_vectors          # every fix, ellipse, bearing line and station is drawn
-    assert panel == len(fixes.table)       # every fix is listed with its status
-    assert popup == 1
+    return out
 
 
-def test_map_escapes_user_text(tmp_path, write_sheet):
-    sheet = write_sheet('fix,tag,lat,lon,bearing,sd,note\n"<img src=x onerror=alert(1)>",'
-                        '"</script><b>t</b>",47,15,45,3,"<script>bad()</script>"\n'
-                        '"<img src=x onerror=alert(1)>","</script><b>t</b>",47,15.02,315,3,\n')
-    m = fix_map(locate_sheet(sheet))
-    page = m.html()
-    assert "</script><b>" not in page     # cannot close the data script early
-    out = tmp_path / "x.html"
-    m.save(out)
-    outside, errors, n_paths, panel, popup = _open(out)
-    assert outside == [] and errors == [] and panel == 1
+def test_week_map_offline(pw, tmp_path):
+    fixes = locate_sheet(ROOT / "week_tracking.csv", track=str(ROOT / "week_track.gpx"))
+    m = fix_map(fixes, title="week <script>alert(1)</script>", error_polygons=True)
+    p = Page(pw, _save(m, tmp_path))
+    assert p.outside == [] and p.errors == []
+    c = p.counts()
+    n_pos = int(fixes.table["lat"].notna().sum())
+    assert c["fix"] == n_pos and c["region"] == n_pos
+    assert c["bearing"] == c["station"] == len(fixes.bearings)
+    assert c["epoly"] > 0
+    assert p.page.locator(".leaflet-overlay-pane path").count() == m.n_vectors   # small maps draw SVG paths
+    assert p.page.locator("#fixes .fix").count() == len(fixes.table)
+    assert p.page.title() == "week <script>alert(1)</script>"             # shown as text, not run
+    p.page.locator("path.leaflet-interactive").first.dispatch_event("click")
+    assert p.page.locator(".leaflet-popup-content table").count() == 1
+    # the legend names every symbol drawn, the error polygons included
+    legend = p.page.locator("#dfk-legend").inner_text()
+    shape = "likelihood region" if fixes.regions is not None else "confidence ellipse"
+    for words in ("fix, status ok", "caveat", shape, "bearing line", "down-weighted", "station",
+                  "error polygon", "tag 150.118"):
+        assert words in legend
+    assert "not for life-safety search" in p.page.locator("#dfk-panel").inner_text()
+    assert "not for life-safety search" in p.page.locator(".dfk-map-caution").inner_text()
+    assert "Natural Earth" in p.page.locator(".leaflet-control-attribution").inner_text()
+    p.page.screenshot(path=str(tmp_path / "week.png"))
+    p.browser.close()
+
+
+def test_scale_bar_clear_of_grid_labels(pw, tmp_path):
+    fixes = locate_sheet(ROOT / "week_tracking.csv", track=str(ROOT / "week_track.gpx"))
+    p = Page(pw, _save(fix_map(fixes), tmp_path))
+    boxes = p.page.evaluate("""() => {
+        const r = e => { const b = e.getBoundingClientRect(); return [b.left, b.top, b.right, b.bottom]; };
+        return { scale: r(document.querySelector('.leaflet-control-scale')),
+                 readout: r(document.querySelector('.leaflet-control-mouseposition')),
+                 labels: [...document.querySelectorAll('.dfk-grid-label')].map(r) }; }""")
+    assert len(boxes["labels"]) >= 4
+
+    def overlap(a, b):
+        return a[0] < b[2] and b[0] < a[2] and a[1] < b[3] and b[1] < a[3]
+    for lab in boxes["labels"]:
+        assert not overlap(lab, boxes["scale"]) and not overlap(lab, boxes["readout"])
+    p.browser.close()
+
+
+def test_hostile_labels_render_every_fix(pw, tmp_path, write_sheet):
+    rows = ["fix,tag,lat,lon,bearing,sd,note"]
+    for k, label in enumerate(HOSTILE):
+        tag = HOSTILE[(k + 3) % len(HOSTILE)]
+        lat = 47.0 + 0.05 * k
+        q = '"' + label.replace('"', '""') + '"'
+        qt = '"' + tag.replace('"', '""') + '"'
+        rows.append(f'{q},{qt},{lat},15.00,45,3,"{label[:20]}"')
+        rows.append(f'{q},{qt},{lat},15.02,315,3,')
+    sheet = write_sheet("\n".join(rows) + "\n")
+    fixes = locate_sheet(sheet)
+    assert len(fixes.table) == len(HOSTILE)
+    m = fix_map(fixes, title="<!--<script>")
+    page_text = m.html()
+    for bad in ("</script><b>", "<!--<script>"):      # not even inside the data
+        assert page_text.count(bad) == 0
+    p = Page(pw, _save(m, tmp_path))
+    assert p.errors == [] and p.outside == []
+    assert p.counts()["fix"] == len(HOSTILE)
+    items = p.page.locator("#fixes .fix")
+    assert items.count() == len(HOSTILE)
+    shown = p.page.evaluate("[...document.querySelectorAll('#fixes .fix')].map(d => d.textContent)")
+    for label in fixes.table["fix"]:                         # as read (the reader trims edge whitespace)
+        assert any(label in s for s in shown), label[:30]   # shown literally, as text
+    assert any("{{7*7}}" in s for s in shown)
+    assert p.page.locator("#dfk-panel b, img[src='x'], #dfk-panel script").count() == 0
+    assert p.page.evaluate("({}).polluted === undefined && Object.prototype.constructor === Object")
+    # every tag has a checkbox; switching one off hides exactly its fixes
+    toggles = p.page.locator("input.dfk-tag-toggle")
+    assert toggles.count() == len(set(fixes.table["tag"]))
+    toggles.first.uncheck()
+    assert p.counts()["fix"] == len(HOSTILE) - 1
+    p.browser.close()
+
+
+def test_time_filter_and_colour_modes(pw, tmp_path):
+    fixes = locate_sheet(ROOT / "week_tracking.csv", track=str(ROOT / "week_track.gpx"))
+    p = Page(pw, _save(fix_map(fixes, colour_by="time"), tmp_path))
+    times = fixes.table["time"]
+    t_lo, t_hi = min(times.min(), fixes.bearings["time"].min()), max(times.max(), fixes.bearings["time"].max())
+    # keep the first ~half of the time range: the fixes whose time falls in it (computed here with pandas)
+    cut = 500
+    limit = t_lo + (t_hi - t_lo) * cut / 1000
+    expected = int(((times <= limit + np.timedelta64(500, "ms")) & fixes.table["lat"].notna()).sum())
+    p.page.locator("#dfk-time-to").fill(str(cut))
+    p.page.locator("#dfk-time-to").dispatch_event("change")
+    assert p.counts()["fix"] == expected
+    assert 0 < expected < len(fixes.table)
+    for mode in ("tag", "observer", "time"):
+        p.page.select_option("#dfk-colour-by", mode)
+    assert "earliest" in p.page.locator("#dfk-legend").inner_text()
+    assert p.errors == []
+    p.browser.close()
+
+
+def test_online_tiles_say_when_they_cannot_load(pw, tmp_path):
+    fixes = locate_sheet(ROOT / "animal_fix.csv")
+    p = Page(pw, _save(fix_map(fixes), tmp_path))
+    p.page.evaluate("""() => { const d = window.dfkit; let online;
+        d.bases.forEach((v, k) => { if (k.includes('needs internet')) online = v; });
+        d.map.eachLayer(l => { if (l instanceof L.LayerGroup && !(l instanceof L.FeatureGroup)) {} });
+        online.addTo(d.map); d.map.fire('baselayerchange', { layer: online }); }""")
+    p.page.wait_for_selector(".dfk-notice", state="visible", timeout=10000)
+    assert "cannot load" in p.page.locator(".dfk-notice").inner_text() or \
+        "offline" in p.page.locator(".dfk-notice").inner_text()
+    assert all("openstreetmap" in u for u in p.outside)     # the only requests tried are the online tiles
+    p.browser.close()
+
+
+def _png(rgb):
+    """A 1x1 PNG of one colour (PNG specification, W3C 2003: signature, IHDR, IDAT, IEND)."""
+    def chunk(kind, data):
+        return struct.pack(">I", len(data)) + kind + data + struct.pack(">I", zlib.crc32(kind + data) & 0xFFFFFFFF)
+    raw = zlib.compress(b"\x00" + bytes(rgb))
+    return (b"\x89PNG\r\n\x1a\n" + chunk(b"IHDR", struct.pack(">IIBBBBB", 1, 1, 8, 2, 0, 0, 0))
+            + chunk(b"IDAT", raw) + chunk(b"IEND", b""))
+
+
+def test_user_mbtiles_are_embedded_and_drawn(pw, tmp_path):
+    fixes = locate_sheet(ROOT / "animal_fix.csv")
+    db = tmp_path / "area.mbtiles"
+    con = sqlite3.connect(db)
+    con.execute("CREATE TABLE tiles (zoom_level INTEGER, tile_column INTEGER, tile_row INTEGER, tile_data BLOB)")
+    # MBTiles 1.3 counts rows from the south (TMS): row = 2^z - 1 - y. The data is near 47.87 N, 15.17 E.
+    lat, lon = 47.87, 15.17
+    for z in range(10, 15):
+        n = 2 ** z
+        x = int((lon + 180) / 360 * n)
+        y = int((1 - np.log(np.tan(np.radians(lat)) + 1 / np.cos(np.radians(lat))) / np.pi) / 2 * n)
+        for dx in (-1, 0, 1):
+            for dy in (-1, 0, 1):
+                con.execute("INSERT INTO tiles VALUES (?, ?, ?, ?)", (z, x + dx, n - 1 - (y + dy), _png((0, 140, 0))))
+    con.commit()
+    con.close()
+    m = fix_map(fixes, tiles=db)
+    assert m.notes == []
+    p = Page(pw, _save(m, tmp_path))
+    p.page.evaluate("""() => { const d = window.dfkit; d.bases.forEach((v, k) => {
+        if (k.includes('embedded')) { v.addTo(d.map); } }); }""")
+    p.page.wait_for_function("[...document.querySelectorAll('img.leaflet-tile-loaded')].length > 0", timeout=10000)
+    sizes = p.page.evaluate("[...document.querySelectorAll('img.leaflet-tile-loaded')]"
+                            ".filter(i => i.src.startsWith('data:image/png')).map(i => i.naturalWidth)")
+    assert len(sizes) > 0 and all(s == 1 for s in sizes)
+    assert p.outside == [] and p.errors == []
+    p.browser.close()
+
+
+@pytest.mark.parametrize("a_m, tol_m", [(5_000.0, 0.05), (50_000.0, 5.0)])
+def test_page_ellipse_matches_the_ellipsoid(pw, tmp_path, a_m, tol_m):
+    # Reference: pyproj's Geod (Karney 2013 geodesics): the exact point at east x, north y from the centre of
+    # an azimuthal equidistant plane is the geodesic of length hypot(x, y) at azimuth atan2(x, y).
+    fixes = locate_sheet(ROOT / "animal_fix.csv")
+    p = Page(pw, _save(fix_map(fixes), tmp_path))
+    lat0, lon0, b_m, orient = 60.0, 10.0, 0.4 * a_m, 30.0
+    ring = p.page.evaluate(f"window.dfkit.ellipseRing({lat0}, {lon0}, {a_m}, {b_m}, {orient}, 24)")
+    t = np.linspace(0, 2 * np.pi, 25)
+    u, v = a_m * np.cos(t), b_m * np.sin(t)
+    az = np.radians(orient)
+    x, y = u * np.sin(az) + v * np.cos(az), u * np.cos(az) - v * np.sin(az)
+    geod = pyproj.Geod(ellps="WGS84")
+    lon_ref, lat_ref, _ = geod.fwd(np.full(25, lon0), np.full(25, lat0), np.degrees(np.arctan2(x, y)), np.hypot(x, y))
+    ring = np.asarray(ring)
+    _, _, miss = geod.inv(ring[:, 1], ring[:, 0], lon_ref, lat_ref)
+    assert np.max(miss) < tol_m
+    p.browser.close()

@@ -17,11 +17,11 @@ import argparse
 import sys
 
 from dfkit import __version__
-from dfkit.cli import check, fix, map as map_cmd
+from dfkit.cli import calibrate, check, fix, map as map_cmd, plan, ranges, season
 from dfkit.problems import SheetError
 
 #: The sub-commands, in the order ``dfkit --help`` lists them.
-COMMANDS = [check, fix, map_cmd]
+COMMANDS = [check, fix, map_cmd, calibrate, plan, season, ranges]
 
 
 def build_parser() -> argparse.ArgumentParser:

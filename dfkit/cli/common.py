@@ -38,6 +38,8 @@ def add_fix_options(p: argparse.ArgumentParser) -> None:
     g.add_argument("--method", choices=METHODS, default="mle",
                    help="estimator: mle (Lenth, default), huber, andrews (robust), lsq, stansfield")
     g.add_argument("--level", type=float, default=0.95, help="probability of the confidence ellipses (0.95)")
+    g.add_argument("--calibration", default=None, metavar="CAL.csv",
+                   help="bias and SD per antenna/observer from 'dfkit calibrate': removes the bias, uses the SD")
 
 
 def read_kwargs(a) -> dict:
@@ -78,6 +80,11 @@ def solve(a):
     if len(b.table) > 50_000 and hasattr(a, "progress"):
         verbose = True
         progress(f"read {len(b.table)} bearings")
+    if getattr(a, "calibration", None):
+        from dfkit.calibration import apply, read_calibration
+
+        progress("applying the calibration")
+        b = apply(b, read_calibration(a.calibration))
     fixes = locate(b, method=a.method, level=a.level, progress=progress)
     return b, fixes, progress
 
@@ -93,6 +100,14 @@ def print_summary(b, fixes) -> None:
         print(f"{r['status']:<15} {who}: {r['reason']}", file=sys.stderr)
     if len(flagged) > 50:
         print(f"... {len(flagged) - 50} more flagged or failed fixes (see the status column)", file=sys.stderr)
+    t = fixes.table
+    one_dof = int(((t["sd_source"] == "estimated") & (t["n_used"] == 3) & t["semi_major_m"].notna()).sum())
+    if one_dof:
+        whose = ("fix sizes its region from the SD of its" if one_dof == 1
+                 else "fixes size their regions from the SD of their")
+        print(f"note            {one_dof} {whose} own 3 bearings (1 degree of freedom, an F(2, 1) scale): such "
+              "regions are huge or, by luck, tiny. Measure the SD on beacon trials (dfkit calibrate) and pass "
+              "--calibration", file=sys.stderr)
     nf = len(fixes.table)
     print(f"{b.source}: {nf} {'fix' if nf == 1 else 'fixes'}: {s['ok']} ok, {s['flagged']} flagged, "
           f"{s['failed']} failed; {len(b.table)} of {b.n_rows} rows used, {b.n_rejected} rejected", file=sys.stderr)

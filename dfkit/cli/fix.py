@@ -5,6 +5,7 @@ from __future__ import annotations
 import sys
 
 from dfkit.cli.common import add_fix_options, add_read_options, ensure_dir, exit_status, print_summary, solve
+from dfkit.cli.map import add_figures_option, write_figures
 
 
 def add_parser(sub):
@@ -15,23 +16,47 @@ def add_parser(sub):
     f.add_argument("--bearings-out", default=None, metavar="CSV",
                    help="also write every bearing with its residual and weight")
     f.add_argument("--progress", action="store_true", help="print progress (automatic on large sheets)")
+    o = f.add_argument_group("output files")
+    o.add_argument("--utm", action="store_true", help="CSV: add utm_zone, easting, northing columns")
+    o.add_argument("--gpx-name-length", type=int, default=None, metavar="N",
+                   help="GPX: cut waypoint names to N characters (hand-held receivers show few), kept unique")
+    o.add_argument("--gpx-tz", default=None, metavar="ZONE", help="GPX: waypoint times in this time zone, not UTC")
+    o.add_argument("--error-polygons", action="store_true",
+                   help="GeoJSON/GIS files: also write error polygons (no probability meaning)")
+    add_figures_option(o)
     add_read_options(f)
     add_fix_options(f)
     return f
 
 
 def run(a) -> int:
-    from dfkit.export import WRITERS, output_kind, write_fixes, write_table
+    from dfkit.export import WRITERS, WriteOptions, output_kind, write_fixes, write_table
 
     for path in a.output:
         if output_kind(path) is None:
             print(f"dfkit: cannot write '{path}': use one of {', '.join(sorted(WRITERS))}", file=sys.stderr)
             return 2
+    if a.gpx_name_length is not None and a.gpx_name_length < 3:
+        print(f"dfkit: --gpx-name-length {a.gpx_name_length}: must be at least 3", file=sys.stderr)
+        return 2
+    if a.gpx_tz is not None:
+        import zoneinfo
+
+        try:
+            zoneinfo.ZoneInfo(a.gpx_tz)
+        except (zoneinfo.ZoneInfoNotFoundError, ValueError):
+            print(f"dfkit: --gpx-tz {a.gpx_tz!r} is not a time zone name (e.g. Europe/Vienna)", file=sys.stderr)
+            return 2
+    opts = WriteOptions(utm=a.utm, gpx_name_length=a.gpx_name_length, gpx_tz=a.gpx_tz,
+                        error_polygons=a.error_polygons)
     b, fixes, progress = solve(a)
     for path in a.output:
         progress(f"writing {path}")
         ensure_dir(path)
-        write_fixes(fixes, path)
+        write_fixes(fixes, path, opts)
+    if a.figures:
+        for p in write_figures(fixes, a.figures, progress):
+            print(f"warning   {p}", file=sys.stderr)
     if a.bearings_out:
         ensure_dir(a.bearings_out)
         write_table(fixes.bearings, a.bearings_out)

@@ -79,7 +79,8 @@ def residuals(sp, cp, sx, sy, x, y):
     """
     dx = x - sx
     dy = y - sy
-    d2 = np.maximum(dx * dx + dy * dy, 1e-18)
+    with np.errstate(over="ignore"):
+        d2 = np.maximum(dx * dx + dy * dy, 1e-18)
     # the signed angle from (dx, dy) to the direction phi, in (-pi, pi], without wrapping
     return np.arctan2(sp * dy - cp * dx, sp * dx + cp * dy), dx, dy, d2
 

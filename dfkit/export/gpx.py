@@ -1,8 +1,19 @@
-"""GPX 1.1 waypoints: one per fix that has a position, to walk to with a hand-held GPS."""
+"""GPX 1.1 waypoints, written with gpxpy: one per fix that has a position, to walk to with a hand-held GPS.
+
+Options (:class:`~dfkit.export.WriteOptions`):
+
+* ``gpx_name_length``: hand-held receivers show only the first few characters of a waypoint name (how many
+  depends on the model: common practice, no single source). With a length, each name is cut to it and made
+  unique with a ``~2``, ``~3`` ... ending; the full fix label and tag stay in the comment.
+* ``gpx_tz``: write waypoint times in this time zone (ISO 8601 with its offset, e.g. ``+02:00``) instead of UTC.
+
+Any label becomes valid XML: characters XML 1.0 does not allow (control characters, lone surrogates) are
+written as a visible ``\\xNN`` / ``\\uNNNN`` escape, never dropped silently.
+"""
 
 from __future__ import annotations
 
-from xml.sax.saxutils import escape
+import re
 
 import numpy as np
 import pandas as pd
@@ -11,31 +22,71 @@ from dfkit.cautions import CAUTION
 from dfkit.export.atomic import atomic_write
 from dfkit.locate import WITH_POSITION, Fixes
 
-
-def to_gpx(fixes: Fixes) -> str:
-    """GPX 1.1 with one waypoint per fix that has a position (to walk to it with a hand-held GPS)."""
-    out = ['<?xml version="1.0" encoding="UTF-8"?>',
-           '<gpx version="1.1" creator="dfkit" xmlns="http://www.topografix.com/GPX/1/1">',
-           f"<metadata><desc>{escape(CAUTION)}</desc></metadata>"]
-    for _, r in fixes.table.iterrows():
-        if r["status"] not in WITH_POSITION:
-            continue
-        desc = f"status {r['status']}; {r['n_bearings']} bearings; method {r['method']}"
-        if np.isfinite(r["semi_major_m"]):
-            desc += (f"; {r['level'] * 100:g}% ellipse {r['semi_major_m']:.0f} x {r['semi_minor_m']:.0f} m "
-                     f"at {r['orientation_deg']:.0f} deg")
-        if r["reason"]:
-            desc += f"; {r['reason']}"
-        out.append(f'<wpt lat="{r["lat"]:.7f}" lon="{r["lon"]:.7f}">')
-        if pd.notna(r["time"]):
-            out.append(f"<time>{r['time'].strftime('%Y-%m-%dT%H:%M:%SZ')}</time>")
-        out.append(f"<name>{escape(str(r['fix']))}</name><desc>{escape(desc)}</desc>"
-                   f"<type>{escape(r['status'])}</type></wpt>")
-    out.append("</gpx>")
-    return "\n".join(out) + "\n"
+# Characters outside XML 1.0's Char production (W3C XML 1.0, 5th ed., section 2.2).
+_NOT_XML = re.compile("[^\u0009\u000a\u000d\u0020-\ud7ff\ue000-\ufffd\U00010000-\U0010ffff]")
 
 
-def write_gpx(fixes: Fixes, path) -> None:
-    """Write :func:`to_gpx` to ``path`` (atomically)."""
+def xml_text(value) -> str:
+    """Text that XML 1.0 can carry: disallowed characters become a visible escape (``\\x07``)."""
+    text = "" if value is None or (isinstance(value, float) and not np.isfinite(value)) else str(value)
+    return _NOT_XML.sub(lambda m: f"\\x{ord(m.group()):02x}" if ord(m.group()) < 256 else f"\\u{ord(m.group()):04x}",
+                        text)
+
+
+def short_names(labels, length: int) -> list[str]:
+    """Labels cut to ``length`` characters and made unique with a ``~k`` ending."""
+    if length < 3:
+        raise ValueError(f"gpx_name_length={length!r} must be at least 3 characters")
+    out, seen = [], set()
+    for lab in labels:
+        name = lab[:length]
+        k = 2
+        while name in seen:
+            end = f"~{k}"
+            name = lab[:length - len(end)] + end
+            k += 1
+        seen.add(name)
+        out.append(name)
+    return out
+
+
+def _description(r) -> str:
+    desc = f"status {r['status']}; {r['n_bearings']} bearings; method {r['method']}"
+    if np.isfinite(r["semi_major_m"]):
+        desc += (f"; {r['level'] * 100:g}% ellipse {r['semi_major_m']:.0f} x {r['semi_minor_m']:.0f} m "
+                 f"at {r['orientation_deg']:.0f} deg")
+    if r["reason"]:
+        desc += f"; {r['reason']}"
+    return desc
+
+
+def to_gpx(fixes: Fixes, options=None) -> str:
+    """GPX 1.1 text with one waypoint per fix that has a position."""
+    import gpxpy.gpx
+
+    name_length = getattr(options, "gpx_name_length", None)
+    tz = getattr(options, "gpx_tz", None)
+    t = fixes.table[fixes.table["status"].isin(WITH_POSITION)]
+    labels = [xml_text(v) for v in t["fix"]]
+    names = short_names(labels, int(name_length)) if name_length else labels
+    times = t["time"]
+    if tz:
+        times = times.dt.tz_convert(tz)
+    gpx = gpxpy.gpx.GPX()
+    gpx.creator = "dfkit"
+    gpx.description = CAUTION
+    for (_, r), name, label, when in zip(t.iterrows(), names, labels, times):
+        tag = xml_text(r["tag"])
+        w = gpxpy.gpx.GPXWaypoint(latitude=round(float(r["lat"]), 7), longitude=round(float(r["lon"]), 7),
+                                  name=name, description=xml_text(_description(r)), type=xml_text(r["status"]),
+                                  time=None if pd.isna(when) else when.to_pydatetime(),
+                                  comment=f"fix {label}" + (f", tag {tag}" if tag else ""))
+        gpx.waypoints.append(w)
+    return gpx.to_xml(version="1.1")
+
+
+def write_gpx(fixes: Fixes, path, options=None) -> None:
+    """Write :func:`to_gpx` to ``path`` atomically."""
+    text = to_gpx(fixes, options)
     with atomic_write(path) as fh:
-        fh.write(to_gpx(fixes))
+        fh.write(text)

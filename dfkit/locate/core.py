@@ -63,14 +63,19 @@ def locate(bearings: Bearings, *, method: str = "mle", level: float = 0.95, wind
 
     say(f"solving {m} fixes from {len(b)} bearings ({method})")
     sol = estimators.solve(lat, lon, theta, g, m, sd, method=method, robust_c=robust_c)
-    k = regions.scale_factor(level, np.where(sol.sd_known, 0, sol.dof))
+    # an SD measured on a finite number of beacon trials (per-bearing sd_dof, dfkit.calibration) widens the
+    # regions: F(2, sd_dof) instead of chi-square
+    cal_dof = np.full(m, np.inf)
+    if "sd_dof" in b and len(b):
+        np.minimum.at(cal_dof, g, b["sd_dof"].astype(float).fillna(np.inf).to_numpy(float))
+    k = regions.scale_factor(level, np.where(sol.sd_known, np.where(np.isfinite(cal_dof), cal_dof, 0), sol.dof))
     ell = regions.ellipse_axes(sol.cov_en, k)
     lik = None
     if with_regions:
         say("likelihood regions")
         lik = regions.likelihood_regions(sol.lat, sol.lon, g, lat, lon, theta, sol.range_m, sol.azimuth_from_fix_deg,
                                          sol.residual_deg, sol.region_weight, sol.sd_known, sol.dof, level,
-                                         valid=sol.converged)
+                                         known_dof=cal_dof, valid=sol.converged)
 
     say("statuses")
     clat, clon = geodesy.group_centroid(lat, lon, g, m)
@@ -99,9 +104,9 @@ def locate(bearings: Bearings, *, method: str = "mle", level: float = 0.95, wind
     else:
         for c in ("residual_deg", "weight", "range_m", "fix_status"):
             bt[c] = []
-    notes = list(bearings.notes) + _notes(sol, has_pos, m)
+    notes = list(bearings.notes)
     return Fixes(table=table, bearings=bt, problems=list(bearings.problems), notes=notes, source=bearings.source,
-                 regions=lik)
+                 likelihood=lik)
 
 
 def _time_span(b, g, m):
@@ -184,17 +189,6 @@ def _table(bearings, sol, ell, lik, status, reasons, counts, span_min, tmid, met
         "rejected_lines": [" ".join(str(x) for x in rej) for rej in fix_index["rejected_lines"].tolist()],
     })
     return table[FIX_COLUMNS]
-
-
-def _notes(sol, has_pos, m):
-    notes = []
-    one = has_pos & ~sol.sd_known & (sol.dof == 1)
-    if one.any():
-        k = int(one.sum())
-        notes.append(f"{k} {'fix has' if k == 1 else 'fixes have'} a bearing SD estimated from its own three "
-                     "bearings (1 degree of freedom): such regions are very wide; give the SD (sheet sd, --sd) "
-                     "or calibrate it with beacon trials")
-    return notes
 
 
 def locate_sheet(sheet, *, method="mle", level=0.95, options: ReadOptions | None = None, progress=None,

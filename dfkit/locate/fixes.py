@@ -99,8 +99,14 @@ class Fixes:
         What dfkit did that the user should know.
     source : str
         Where the bearings came from.
-    regions : LikelihoodRegions or None
-        Each fix's likelihood-ratio region, in the rows' order (None when not computed).
+    likelihood : LikelihoodRegions or None
+        Each fix's likelihood-ratio region, in the rows' order (None when not computed): rays,
+        bounds and the exact test behind :meth:`contains`.
+    regions : pandas.DataFrame or None
+        The same regions as drawable shapes, built on first use (the hook exports, maps and the
+        season store read): ``fix_id`` (the row), ``geometry`` (a shapely Polygon, or MultiPolygon
+        when split at the antimeridian, in longitude/latitude), ``bounded``, ``area_m2``
+        (NaN when open), ``reach_m`` and ``drawn_to_m`` (how far an open region is drawn).
     """
 
     table: pd.DataFrame
@@ -108,7 +114,37 @@ class Fixes:
     problems: list[Problem] = field(default_factory=list)
     notes: list[str] = field(default_factory=list)
     source: str = ""
-    regions: LikelihoodRegions | None = None
+    likelihood: LikelihoodRegions | None = None
+    _regions: pd.DataFrame | None = field(default=None, repr=False)
+
+    @property
+    def regions(self) -> pd.DataFrame | None:
+        if self._regions is None and self.likelihood is not None:
+            self._regions = self._region_table()
+        return self._regions
+
+    @regions.setter
+    def regions(self, value) -> None:
+        self._regions = value
+
+    def _region_table(self) -> pd.DataFrame:
+        from shapely.geometry import MultiPolygon, Polygon
+
+        from dfkit.regions import split_ring
+
+        L = self.likelihood
+        rows, lat, lon = L.rings(self._region_rows())
+        geoms = []
+        for la, lo in zip(lat, lon):
+            parts = [Polygon(p) for p in split_ring(la, lo)]
+            geoms.append(parts[0] if len(parts) == 1 else MultiPolygon(parts))
+        return pd.DataFrame({"fix_id": rows, "geometry": geoms, "bounded": L.bounded[rows],
+                             "area_m2": L.area_m2[rows], "reach_m": L.reach_m[rows],
+                             "drawn_to_m": np.where(L.bounded[rows], np.nan, L.draw_range_m[rows])})
+
+    def _region_rows(self) -> np.ndarray:
+        has_pos = self.table["status"].isin(WITH_POSITION).to_numpy()
+        return np.flatnonzero(has_pos & self.likelihood.has_region)
 
     def summary(self) -> dict[str, int]:
         """Counts of fixes that are ok, flagged (position, with a caveat) and failed (no position)."""
@@ -138,18 +174,16 @@ class Fixes:
         :func:`dfkit.geometry.split_ring`). None when the fix has no region. An unbounded
         region is drawn to its ``draw_range_m``.
         """
-        if self.regions is None:
+        if self.likelihood is None:
             return None
-        return self.regions.ring(self._row(fix, tag), n_vertices)
+        return self.likelihood.ring(self._row(fix, tag), n_vertices)
 
     def region_rings(self, *, n_vertices=None):
         """Every fix's likelihood region: a list of (row number, (lat, lon) ring), for fixes with a position
         and a region (see :meth:`region_ring`)."""
-        if self.regions is None:
+        if self.likelihood is None:
             return []
-        has_pos = self.table["status"].isin(WITH_POSITION).to_numpy()
-        return [(int(i), self.regions.ring(int(i), n_vertices))
-                for i in np.flatnonzero(has_pos & self.regions.has_region)]
+        return [(int(i), self.likelihood.ring(int(i), n_vertices)) for i in self._region_rows()]
 
     def contains(self, lat, lon, *, kind="region"):
         """Whether each fix's confidence region holds a point (one point per fix, or one for all).
@@ -172,28 +206,22 @@ class Fixes:
         lon = np.broadcast_to(np.asarray(lon, float), (m,))
         has_pos = t["status"].isin(WITH_POSITION).to_numpy()
         if kind == "region":
-            if self.regions is None:
-                raise ValueError("kind='region': these fixes were located without regions (regions=False)")
-            return self.regions.contains(lat, lon) & has_pos
+            if self.likelihood is None:
+                raise ValueError("kind='region': these fixes were located without regions (with_regions=False)")
+            return self.likelihood.contains(lat, lon) & has_pos
         if kind != "ellipse":
             raise ValueError(f"kind={kind!r} is not one of 'region', 'ellipse'")
         from dfkit import geodesy
 
-        ok = has_pos & np.isfinite(t["cov_ee_m2"].to_numpy(float))
+        a = t["semi_major_m"].to_numpy(float)
+        ok = has_pos & np.isfinite(a) & (a > 0)
         out = np.zeros(m, bool)
         if ok.any():
             x, y = geodesy.to_local(t["lat"].to_numpy(float)[ok], t["lon"].to_numpy(float)[ok], lat[ok], lon[ok])
-            a, b, c = (t[k].to_numpy(float)[ok] for k in ("cov_ee_m2", "cov_en_m2", "cov_nn_m2"))
-            det = a * c - b * b
-            q = (c * x * x - 2 * b * x * y + a * y * y) / det
-            k = _ellipse_k(t["level"].to_numpy(float)[ok], t["sd_source"].to_numpy()[ok],
-                           t["n_used"].to_numpy(float)[ok])
-            out[ok] = q <= k * k
+            th = np.radians(t["orientation_deg"].to_numpy(float)[ok])
+            u = x * np.sin(th) + y * np.cos(th)            # along the major axis
+            v = x * np.cos(th) - y * np.sin(th)
+            out[ok] = (u / a[ok]) ** 2 + (v / t["semi_minor_m"].to_numpy(float)[ok]) ** 2 <= 1.0
         return out
 
 
-def _ellipse_k(level, sd_source, n_used):
-    from dfkit.regions import scale_factor
-
-    dof = np.where(sd_source == "estimated", n_used - 2, 0)
-    return scale_factor(level, dof)

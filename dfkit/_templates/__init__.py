@@ -1,0 +1,1 @@
+"""HTML templates shipped as package data (read with importlib.resources)."""
