@@ -6,7 +6,7 @@ STAMP := $(VENV)/.installed
 
 .PHONY: demo test test-fast bench wheelhouse clean samples
 
-$(STAMP): pyproject.toml
+$(STAMP): pyproject.toml Makefile
 	test -x $(PY) || $(PYTHON) -m venv $(VENV)
 	$(PY) -m pip install --quiet --upgrade pip
 	$(PY) -m pip install --quiet -e '.[test]'

@@ -51,7 +51,6 @@ from __future__ import annotations
 import csv
 import io
 import os
-import re
 from dataclasses import dataclass, field, replace
 
 import numpy as np
@@ -59,7 +58,8 @@ import pandas as pd
 
 from dfkit import geodesy
 from dfkit.conventions import wrap180, wrap360
-from dfkit.io.sheet import RawSheet, read_sheet
+from dfkit.io import read_table
+from dfkit.io.sheet import RawSheet
 from dfkit.observations import Bearings, ReadOptions, read_bearings, read_stations
 from dfkit.policy import (
     DISTANCE_CHECK_ALPHA,
@@ -296,42 +296,27 @@ class Trials:
         return len({p.line for p in self.problems if p.severity == "error" and p.line})
 
 
-_WORD = re.compile(r"\b(lat|lon|utm_zone|easting|northing|mgrs)\b")
-
-
 def _beacon_positions(raw: RawSheet, stations):
     """Beacon positions from the ``beacon_*`` columns, by the sheet's own position rules.
 
-    The beacon columns are renamed onto a copy of the raw table (``beacon_lat`` -> ``lat`` ... ``beacon`` ->
-    ``station``) and run through the station-position validation of :mod:`dfkit.observations`, so a beacon
-    position is read exactly like a station position (same checks, same line numbers); the problems are then
-    worded for the beacon columns. Kept in this one function so it can be pointed at a public position parser.
+    Read by :func:`dfkit.observations.parse_positions` with ``prefix='beacon_'`` (and the ``beacon`` label
+    looked up in the stations file), so a beacon position is read exactly like a station position: same forms,
+    same checks, messages naming the beacon columns and the sheet's line numbers.
 
     Returns (lat, lon, source, rejected mask, problems), one entry per raw row.
     """
-    from dfkit.observations import _Collector, _positions, _swapped_outliers
+    from dfkit.observations import parse_positions
 
-    t = raw.table
-    copy = pd.DataFrame({"line": t["line"].to_numpy()})
-    for beacon_col, station_col in BEACON_COLUMNS.items():
-        if beacon_col in t.columns:
-            copy[station_col] = t[beacon_col].to_numpy(dtype=object)
-    col = _Collector(t["line"].to_numpy(), raw.source)
-    pos = _positions(copy, raw.decimal_comma, col, stations=stations, allow_missing=True)
-    _swapped_outliers(col, pos)
-    col.reject(
-        ~col.bad & (pos.source == ""),
-        "",
-        "no beacon position: give beacon_lat and beacon_lon, beacon_utm_zone/beacon_easting/beacon_northing, "
-        "beacon_mgrs, or a beacon label from the stations file (--stations)",
-    )
-    back = {v: k for k, v in BEACON_COLUMNS.items()}
-    problems = []
-    for p in col.problems:
-        msg = _WORD.sub(lambda m: f"beacon_{m.group(1)}", p.message)
-        msg = msg.replace("station '", "beacon '")
-        problems.append(replace(p, column=back.get(p.column, p.column), message=msg))
-    return pos.lat, pos.lon, pos.source, col.bad, problems
+    pos = parse_positions(raw.table, prefix="beacon_", station_column="beacon", source=raw.source,
+                          decimal_comma=raw.decimal_comma, stations=stations, required=False)
+    problems = list(pos.problems)
+    missing = ~pos.rejected & (pos.source == "")
+    lines = raw.table["line"].to_numpy()
+    for i in np.flatnonzero(missing):
+        problems.append(Problem(int(lines[i]), "", "no beacon position: give beacon_lat and beacon_lon, "
+                                "beacon_utm_zone/beacon_easting/beacon_northing, beacon_mgrs, or a beacon label from "
+                                "the stations file (--stations)", "error", raw.source))
+    return pos.lat, pos.lon, pos.source, pos.rejected | missing, problems
 
 
 def _beacon_header(raw: RawSheet) -> RawSheet:
@@ -378,7 +363,7 @@ def read_trials(sheet, options: ReadOptions | None = None, **kwargs) -> Trials:
     opts = options or ReadOptions()
     if kwargs:
         opts = replace(opts, **kwargs)
-    raw = sheet if isinstance(sheet, RawSheet) else read_sheet(sheet)
+    raw = sheet if isinstance(sheet, RawSheet) else read_table(sheet, worksheet=opts.worksheet)
     raw = _beacon_header(raw)
     bearings = read_bearings(raw, opts)
     stations = read_stations(opts.stations)[0] if opts.stations is not None else None

@@ -14,13 +14,7 @@ from dfkit.locate import Fixes
 
 
 def _mpl():
-    import matplotlib
-
-    if matplotlib.get_backend().lower() not in ("agg", "module://matplotlib_inline.backend_inline"):
-        try:
-            import IPython  # noqa: F401  (in a notebook keep the inline backend)
-        except ImportError:
-            matplotlib.use("Agg")
+    # The backend is the user's choice: dfkit never calls matplotlib.use (without a display matplotlib picks Agg).
     import matplotlib.pyplot as plt
 
     return plt

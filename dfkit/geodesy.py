@@ -19,7 +19,6 @@ import pyproj
 
 from dfkit.conventions import WGS84_A, wrap180
 
-pyproj.network.set_network_enabled(False)
 
 #: The WGS84 geodesic engine (stateless; safe to share).
 GEOD = pyproj.Geod(ellps="WGS84")

@@ -85,7 +85,8 @@ import pandas as pd
 from dfkit import geodesy
 from dfkit.cautions import PLAN_CAUTION
 from dfkit.conventions import wrap360
-from dfkit.io.sheet import KNOWN_COLUMNS, read_sheet
+from dfkit.io import read_table
+from dfkit.io.sheet import KNOWN_COLUMNS
 from dfkit.locate import WITH_POSITION, Fixes, locate
 from dfkit.observations import Bearings, read_stations
 from dfkit.policy import DEFAULT_MAX_RANGE_M, NOMINAL_SD_DEG, ONE_SPOT_M
@@ -221,7 +222,7 @@ def read_spots(path, *, stations=None) -> Spots:
     SheetError
         The file cannot be read, or has no ``spot`` (or ``name``) column.
     """
-    raw = read_sheet(path)
+    raw = read_table(path)
     t = raw.table
     label_col = "spot" if "spot" in t.columns else ("name" if "name" in t.columns else None)
     if label_col is None:
@@ -285,20 +286,20 @@ def read_spots(path, *, stations=None) -> Spots:
 
 
 def _validate_positions(raw, stations):
-    """The sheet's own position validation, applied to a spots file.
+    """The sheet's own position rules, applied to a spots file (the public position parser of
+    :mod:`dfkit.observations`): same forms, same checks and messages as a bearing sheet."""
+    from dfkit.observations import parse_positions
+    from dfkit.observations.rowlog import RowLog
 
-    This adapter reaches into :mod:`dfkit.observations` so that spots are read with
-    exactly the checks and messages of a bearing sheet; it is the one place to
-    change when the position parser becomes public.
-    """
-    from dfkit.observations import _Collector, _positions
-
-    col = _Collector(raw.table["line"].to_numpy(), raw.source)
-    col.problems.extend(raw.problems)
+    lines = raw.table["line"].to_numpy()
+    log = RowLog(lines, raw.source)
+    log.problems.extend(raw.problems)
     pre = {p.line for p in raw.problems if p.severity == "error" and p.line}
-    col.bad |= np.isin(raw.table["line"].to_numpy(), list(pre))
-    pos = _positions(raw.table, raw.decimal_comma, col, stations=stations)
-    return pos.lat, pos.lon, col.bad.copy(), list(col.problems)
+    skip = np.isin(lines, list(pre))
+    log.bad |= skip
+    pos = parse_positions(raw.table, source=raw.source, decimal_comma=raw.decimal_comma, stations=stations,
+                          log=log, skip=skip)
+    return pos.lat, pos.lon, log.bad.copy(), list(log.problems)
 
 
 def grid_spots(lat0, lon0, around_m, step_m=None) -> pd.DataFrame:

@@ -7,9 +7,10 @@ report. Values that come from a publication name it (from memory where marked).
 
 from __future__ import annotations
 
-#: Default time window for grouping unlabelled bearings into fixes [minutes].
-#: Common practice, no single source: bearings of one fix are taken within
-#: about 10-20 min (see e.g. Schmutz & White 1990 on animal movement during a fix).
+#: Default grouping window [minutes]: the largest gap between successive bearings of one fix (unlabelled
+#: bearings of a tag are chained while each follows the last within it; a labelled fix with a longer gap is
+#: flagged). Common practice, no single source: bearings of one fix are taken a few to about 20 min apart
+#: (see e.g. Schmutz & White 1990, J. Wildl. Manage. 54: 506-510 [from memory], on animal movement during a fix).
 DEFAULT_WINDOW_MIN = 20.0
 
 #: Two-bearing fixes crossing at less than this angle (or more than 180 minus it)
@@ -95,6 +96,50 @@ MAX_WILD_FRACTION = 0.10
 #: correlation of the absolute error with distance). 0.01 rather than the usual 0.05 because every group is
 #: tested and a false warning sends people to re-do trials; common practice, no source for the level.
 DISTANCE_CHECK_ALPHA = 0.01
+
+# --------------------------------------------------------------------------- reading sheets (issue 7)
+
+#: Unlabelled bearings of one tag form one fix while each follows the previous one within the window:
+#: a fix may still last at most this many windows before it is flagged ``long_span`` (a chain of
+#: bearings 15 min apart for two hours is not one position of a moving animal). Common practice, no source.
+FIX_SPAN_WINDOWS = 3.0
+
+#: Bearings with the same tag and fix label but more than this many hours apart are not one fix: the
+#: label is split into one fix per part (another day, another session) [h]. Common practice, no source:
+#: longer than any hunt or tracking session, shorter than the night between two field days.
+SPLIT_LABEL_GAP_H = 6.0
+
+#: Years dfkit accepts in a time: from the start of GPS time (6 January 1980, IS-GPS-200; from memory)
+#: to 2100; a year outside is a typing error (2206, 1026). A plausibility rule of dfkit's own, no source.
+PLAUSIBLE_YEARS = (1980, 2100)
+
+#: A latitude-band letter is consistent with a UTM position within this margin of the band's edges [°]
+#: (about 5.5 km: a position read off a map sheet of the neighbouring band). dfkit's own choice, no source.
+BAND_EDGE_MARGIN_DEG = 0.05
+
+#: A row's lat/lon looks swapped when, as written, it lies farther than the first value from its own
+#: fix's other positions (or the GPS track) while swapped it lies within the second [°]. Common
+#: practice, no source: stations of one fix are a few km apart, so 5° (about 550 km) is a typing error.
+SWAPPED_FAR_DEG = 5.0
+SWAPPED_NEAR_DEG = 0.5
+
+#: A UTM row outside its zone's strip is refused as a likely missing or extra digit when the other
+#: rows of its fix in the same zone lie inside the strip and more than this far from it [m].
+#: dfkit's own rule, no source: stations of one fix are rarely more than tens of km apart.
+OUT_OF_STRIP_TYPO_M = 100_000.0
+
+#: Lowest bearing SD dfkit accepts, in the sheet or as an option [°]. Common practice, no source: the
+#: best fixed DF systems reach a few tenths of a degree; 0.01° (36 arc-seconds) is beyond any DF
+#: antenna, and much smaller values make the ellipse arithmetic underflow (1e-150° gave no ellipse).
+MIN_SD_DEG = 0.01
+
+#: Largest grouping window [min]: longer windows would join bearings that dfkit splits as another
+#: session (:data:`SPLIT_LABEL_GAP_H`).
+MAX_WINDOW_MIN = 60.0 * SPLIT_LABEL_GAP_H
+
+#: Largest --track-gap [s]: a position interpolated over more than an hour of missing track is a guess.
+#: Common practice, no source.
+MAX_TRACK_GAP_S = 3600.0
 
 #: With a single bearing there is no estimate; a plan averages over positions along the bearing out to
 #: this range [m]. Common practice, no single source: ground-level VHF and 2 m hunt transmitters are

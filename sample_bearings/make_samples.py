@@ -17,8 +17,9 @@ Files written (in this folder):
   rows have a time but no position, which comes from the GPS track;
 * ``beacon_trials.csv``: bearings on test transmitters (beacons) at known spots with three antennas, and
   ``tracking_after_trials.csv``: field fixes taken with the same antennas (for ``dfkit calibrate``);
-* ``field_sheet_with_mistakes.csv``: a hand-typed sheet with the usual mistakes,
-  for ``dfkit check``;
+* ``field_sheet_with_mistakes.csv``: a hand-typed sheet with the usual mistakes and
+  the usual ways of writing (GPS-style UTM zones, degrees and minutes, day-first
+  dates, a label used again another day), for ``dfkit check``;
 * ``season_2026_05.csv``, ``season_2026_06.csv``: two months of tracking three tags
   whose true home ranges are known (``truth_season.csv``), for ``dfkit season``
   and ``dfkit ranges``;
@@ -272,20 +273,68 @@ def beacon_trials():
     write("truth_tracking_after_trials.csv", ["fix", "tag", "lat", "lon"], truth)
 
 
+UTM32 = pyproj.Transformer.from_crs("EPSG:4326", "EPSG:32632", always_xy=True)
+
+
+def _dms(value, pos, neg, style):
+    """An angle written by hand: 'dms' 47°51'43.2"N, 'ddm' N47 51.720, 'spaced' 47 51 43 N."""
+    letter = pos if value >= 0 else neg
+    v = abs(value)
+    d = int(v)
+    m = (v - d) * 60.0
+    if style == "dms":
+        s_ = (m - int(m)) * 60.0
+        return f"{d}°{int(m):02d}'{s_:04.1f}\"{letter}"
+    if style == "ddm":
+        return f"{letter}{d} {m:06.3f}"
+    return f"{d} {int(m)} {round((m - int(m)) * 60.0):d} {letter}"
+
+
 def mistakes():
-    """A hand-typed sheet with the usual mistakes (for ``dfkit check``)."""
+    """A hand-typed sheet with the usual mistakes and the usual ways of writing (for ``dfkit check``)."""
+    header = ["fix", "tag", "time", "lat", "lon", "utm_zone", "easting", "northing", "bearing", "unit", "north", "note"]
+
+    def ll(fix, time, lat, lon, bearing, unit="", north="magnetic", note=""):
+        return [fix, "150.412", time, lat, lon, "", "", "", bearing, unit, north, note]
+
+    def grid(fix, time, zone, e_m, n_m, bearing, note, crs=UTM33):
+        lat, lon = offset(BASE_LAT, BASE_LON, e_m, n_m)
+        x, y = crs.transform(lon, lat)
+        return [fix, "150.412", time, "", "", zone, f"{x:.0f}", f"{y:.0f}", bearing, "", "magnetic", note]
+
+    def hand(fix, time, e_m, n_m, style, bearing, note="", swap=False):
+        lat, lon = offset(BASE_LAT, BASE_LON, e_m, n_m)
+        a, b = _dms(lat, "N", "S", style), _dms(lon, "E", "W", style)
+        return ll(fix, time, b if swap else a, a if swap else b, bearing, note=note)
+
     rows = [
-        ["M1", "150.412", "2026-05-10T06:02:00+02:00", "47.8581", "15.1631", "52", "", "magnetic", ""],
-        ["M1", "150.412", "2026-05-10T06:07:00+02:00", "47.8602", "15.1802", "412", "", "magnetic", "mils, not degrees"],
-        ["M1", "150.412", "2026-05-10T06:11:00+02:00", "15.1779", "47.8733", "200", "", "magnetic", "lat/lon swapped"],
-        ["M1", "150.412", "2026-05-10 06:15", "47.8712", "15.1611", "118", "", "magnetic", "no UTC offset"],
-        ["M2", "150.412", "2026-05-10T07:30:00+02:00", "47.8590", "15.1650", "1025", "mil", "magnetic", ""],
-        ["M2", "150.412", "2026-05-10T07:34:00+02:00", "47.8611", "15.1822", "", "", "magnetic", "forgot the bearing"],
-        ["M2", "150.412", "2026-05-10T07:38:00+02:00", "47.8745", "15.1760", "205", "deg", "compass", ""],
-        ["M2", "150.412", "2026-05-10T07:41:00+02:00", "47.8705", "15.1625", "121", "degs", "magnetic", "unknown unit"],
-        ["M3", "150.412", "2031-05-10T07:41:00+02:00", "47.8705", "15.1625", "121", "", "magnetic", "past the model"],
+        ll("M1", "2026-05-10T06:02:00+02:00", "47.8581", "15.1631", "52"),
+        ll("M1", "2026-05-10T06:07:00+02:00", "47.8602", "15.1802", "412", note="mils, not degrees"),
+        ll("M1", "2026-05-10T06:11:00+02:00", "15.1779", "47.8733", "200", note="lat/lon swapped"),
+        ll("M1", "2026-05-10 06:15", "47.8712", "15.1611", "118", note="no UTC offset"),
+        ll("M2", "2026-05-10T07:30:00+02:00", "47.8590", "15.1650", "1025", "mil"),
+        ll("M2", "2026-05-10T07:34:00+02:00", "47.8611", "15.1822", "", note="forgot the bearing"),
+        ll("M2", "2026-05-10T07:38:00+02:00", "47.8745", "15.1760", "205", "deg", "compass"),
+        ll("M2", "2026-05-10T07:41:00+02:00", "47.8705", "15.1625", "121", "degs", note="unknown unit"),
+        ll("M3", "2031-05-10T07:41:00+02:00", "47.8705", "15.1625", "121", note="past the model"),
+        # UTM as a GPS shows it: the letter is the latitude band (T = 40-48 N), not the hemisphere
+        grid("M4", "2026-05-11T06:00:00+02:00", "33T", -300.0, -200.0, "40", "zone as the GPS shows it"),
+        grid("M4", "2026-05-11T06:06:00+02:00", "33T", 700.0, -100.0, "331", ""),
+        grid("M4", "2026-05-11T06:12:00+02:00", "33U", 900.0, 1000.0, "243", "band letter U: this is band T"),
+        grid("M4", "2026-05-11T06:18:00+02:00", "32T", -200.0, 900.0, "118", "copied off a zone-32 map", UTM32),
+        # positions read off a GPS in degrees and minutes, or typed in degrees, minutes and seconds
+        hand("M5", "11.05.2026 07:05 +02:00", -250.0, 150.0, "dms", "61"),
+        hand("M5", "11.05.2026 07:12 +02:00", 650.0, 300.0, "ddm", "302"),
+        hand("M5", "11.05.2026 07:20 +02:00", 400.0, 1100.0, "spaced", "196"),
+        hand("M5", "11.05.2026 07:26 +02:00", 100.0, 700.0, "ddm", "150", "columns swapped", swap=True),
+        # day-first dates: 13.05 shows the column is day.month.year
+        ll("M6", "13.05.2026 07:00 +02:00", "47.8650", "15.1700", "75"),
+        ll("M6", "2206-05-13T07:10:00+02:00", "47.8690", "15.1580", "130", note="year typed wrong"),
+        # the label M1 used again two days later: another fix
+        ll("M1", "2026-05-12T06:02:00+02:00", "47.8580", "15.1633", "49", note="M1 again, another day"),
+        ll("M1", "2026-05-12T06:09:00+02:00", "47.8604", "15.1800", "318"),
     ]
-    write("field_sheet_with_mistakes.csv", ["fix", "tag", "time", "lat", "lon", "bearing", "unit", "north", "note"], rows)
+    write("field_sheet_with_mistakes.csv", header, rows)
 
 
 def season():

@@ -4,7 +4,7 @@ import numpy as np
 import pytest
 from geographiclib.geodesic import Geodesic
 
-from dfkit import coords, magnetic, read_bearings
+from dfkit import grids, magnetic, read_bearings
 from dfkit.conventions import to_degrees
 
 # NOAA/CIRES, WMM2025 technical report, test-value table (tests/WMM2025_TEST_VALUE_TABLE_FOR_REPORT.txt
@@ -81,11 +81,11 @@ def test_magnetic_without_time_or_declination_is_refused(write_sheet):
 def test_convergence_value_and_sign_against_geographiclib():
     # Sign: walk 1 m towards grid north in UTM 18N from (40.5 N, 73.5 W) and measure the true azimuth of that
     # step with geographiclib (Karney 2013). true = grid + gamma, so the azimuth of grid north is gamma.
-    crs = coords.utm_crs(18, False)
-    x, y = coords.latlon_to_projected(crs, [40.5], [-73.5])
-    lat2, lon2 = coords.projected_to_latlon(crs, x, y + 1.0)
+    crs = grids.utm_crs(18, False)
+    x, y = grids.latlon_to_projected(crs, [40.5], [-73.5])
+    lat2, lon2 = grids.projected_to_latlon(crs, x, y + 1.0)
     az = Geodesic.WGS84.Inverse(40.5, -73.5, float(lat2[0]), float(lon2[0]))["azi1"]
-    gamma = coords.convergence_deg(crs, [40.5], [-73.5])[0]
+    gamma = grids.convergence_deg(crs, [40.5], [-73.5])[0]
     assert gamma == pytest.approx(az, abs=1e-5)
     # Spherical approximation gamma = atan(tan(dlon) sin(lat)) (Snyder 1987, PP 1395) to 1e-5 deg.
     assert gamma == pytest.approx(np.degrees(np.arctan(np.tan(np.radians(1.5)) * np.sin(np.radians(40.5)))),
@@ -96,7 +96,7 @@ def test_convergence_value_and_sign_against_geographiclib():
 def test_grid_bearing_is_corrected(write_sheet):
     b = read_bearings(write_sheet("fix,utm_zone,easting,northing,bearing,north\nA,18N,627106,4484124,100,grid\n"))
     lat, lon = b.table["lat"][0], b.table["lon"][0]
-    gamma = coords.convergence_deg(coords.utm_crs(18, False), [lat], [lon])[0]
+    gamma = grids.convergence_deg(grids.utm_crs(18, False), [lat], [lon])[0]
     assert b.table["true_bearing"][0] == pytest.approx(100 + gamma)
     assert b.table["convergence"][0] == pytest.approx(gamma)
     assert 0.9 < gamma < 1.1
@@ -108,14 +108,14 @@ def test_snyder_transverse_mercator_example():
     import pyproj
 
     crs = pyproj.CRS.from_proj4("+proj=tmerc +a=6378206.4 +rf=294.978698214 +lon_0=-75 +k_0=0.9996 +units=m")
-    x, y = coords.latlon_to_projected(crs, [40.5], [-73.5])
+    x, y = grids.latlon_to_projected(crs, [40.5], [-73.5])
     assert (x[0], y[0]) == pytest.approx((127106.5, 4484124.4), abs=0.06)
 
 
 def test_utm_definition_points():
     # UTM definitions (DMA TM 8358.2): the central meridian has easting 500000; the equator has northing 0
     # in the north and 10 000 000 in the south.
-    lat, lon = coords.utm_to_latlon([33, 33], [False, True], [500000, 500000], [0, 10_000_000])
+    lat, lon = grids.utm_to_latlon([33, 33], [False, True], [500000, 500000], [0, 10_000_000])
     assert lat == pytest.approx([0, 0], abs=1e-9) and lon == pytest.approx([15, 15], abs=1e-9)
 
 
@@ -123,18 +123,18 @@ def test_mgrs_reference_is_the_centre_of_its_square():
     # 33UXP0500444997: zone 33, 100 km square XP. By the MGRS lettering (NGA.STND.0037), column X in zone 33
     # is the 600 km easting; row P with this band puts the square's northing at 5 300 km. A 10-digit reference
     # names a 1 m square: centre = +0.5 m.
-    lat, lon, zone, south, prec = coords.parse_mgrs("33UXP0500444997")[0]
-    rlat, rlon = coords.projected_to_latlon(coords.utm_crs(33, False), [605004.5], [5344997.5])
+    lat, lon, zone, south, prec = grids.parse_mgrs("33UXP0500444997")[0]
+    rlat, rlon = grids.projected_to_latlon(grids.utm_crs(33, False), [605004.5], [5344997.5])
     assert (lat, lon) == pytest.approx((rlat[0], rlon[0]), abs=1e-9)
     assert (zone, south, prec) == (33, False, 1.0)
-    lat, lon, *_ = coords.parse_mgrs("33U XP 05 44")[0]    # 4-digit: 1 km square, centre +500 m
-    rlat, rlon = coords.projected_to_latlon(coords.utm_crs(33, False), [605500.0], [5344500.0])
+    lat, lon, *_ = grids.parse_mgrs("33U XP 05 44")[0]    # 4-digit: 1 km square, centre +500 m
+    rlat, rlon = grids.projected_to_latlon(grids.utm_crs(33, False), [605500.0], [5344500.0])
     assert (lat, lon) == pytest.approx((rlat[0], rlon[0]), abs=1e-9)
 
 
 @pytest.mark.parametrize("text", ["33UXP050044499", "hello", "33UXP05004449977"])
 def test_bad_mgrs(text):
-    res, msg = coords.parse_mgrs(text)
+    res, msg = grids.parse_mgrs(text)
     assert res is None and "MGRS" in msg
 
 

@@ -210,16 +210,24 @@ def test_check_sheet_returns_dataframe_and_problems(write_sheet):
 
 CELL = st.one_of(st.text(alphabet=st.characters(blacklist_categories=("Cs",)), max_size=12),
                  st.floats(allow_nan=True, allow_infinity=True).map(str),
-                 st.sampled_from(["", "nan", "inf", "47,5", "1e400", "-0", "33N", "Z", "mil", "magnetic"]))
+                 st.sampled_from(["", "nan", "inf", "47,5", "1e400", "-0", "33N", "Z", "mil", "magnetic", "30S", "33T",
+                                  "33U 512300 5301200", "48°58.1'N", "N48 58 7", "15 10 30 E", "E15", "-0 30 W",
+                                  "03.10.2026 16:05", "25.10.2026 06:00", "2026-10-25T02:30:00", "2026-03-29 02:30",
+                                  "2026-05-03T06:12Z", "06:12", "46145.5", "2206-01-01T00:00Z", "5301200", "-32254",
+                                  "512300", "47.8", "15.1", "0", "90", "180", "359.9"]))
 COLUMNS = ["fix", "tag", "time", "lat", "lon", "utm_zone", "easting", "northing", "mgrs", "bearing", "unit",
-           "north", "sd", "declination", "note"]
+           "north", "sd", "declination", "note", "date", "station"]
 
 
-@settings(max_examples=150, deadline=None, suppress_health_check=[HealthCheck.function_scoped_fixture])
+@settings(max_examples=300, deadline=None, suppress_health_check=[HealthCheck.function_scoped_fixture])
 @given(cols=st.lists(st.sampled_from(COLUMNS), min_size=1, max_size=8, unique=True),
        rows=st.lists(st.lists(CELL, min_size=8, max_size=8), min_size=0, max_size=6),
-       delimiter=st.sampled_from([",", ";", "\t"]))
-def test_reader_never_crashes_and_nothing_vanishes(tmp_path, cols, rows, delimiter):
+       delimiter=st.sampled_from([",", ";", "\t"]),
+       options=st.fixed_dictionaries({}, optional={"tz": st.sampled_from(["UTC", "Europe/Vienna"]),
+                                                   "utm_letters": st.sampled_from(["band", "hemisphere"]),
+                                                   "date_format": st.sampled_from(["dmy", "mdy"]),
+                                                   "repeated_hour": st.sampled_from(["earlier", "later"])}))
+def test_reader_never_crashes_and_nothing_vanishes(tmp_path, cols, rows, delimiter, options):
     import csv
     import io
 
@@ -231,7 +239,7 @@ def test_reader_never_crashes_and_nothing_vanishes(tmp_path, cols, rows, delimit
     p = tmp_path / "fuzz.csv"
     p.write_text(buf.getvalue(), encoding="utf-8")
     try:
-        b = read_bearings(p)
+        b = read_bearings(p, **options)
     except SheetError:
         return
     used = set(b.table["line"].tolist())

@@ -18,6 +18,8 @@ import sys
 
 from dfkit import __version__
 from dfkit.cli import calibrate, check, fix, map as map_cmd, plan, ranges, season
+from dfkit.cli.common import option_message
+from dfkit.observations.options import OptionError
 from dfkit.problems import SheetError
 
 #: The sub-commands, in the order ``dfkit --help`` lists them.
@@ -43,6 +45,9 @@ def main(argv=None) -> int:
         return int(exc.code or 0)
     try:
         return args._run(args)
+    except OptionError as err:   # the library names the parameter; the shell names the flag
+        print(f"dfkit: {option_message(err)}", file=sys.stderr)
+        return 2
     except SheetError as err:
         print(f"dfkit: {err}", file=sys.stderr)
         return 2

@@ -8,27 +8,53 @@ import sys
 import time
 
 from dfkit.cautions import CAUTION_LINE
-from dfkit.policy import DEFAULT_TRACK_GAP_S, DEFAULT_WINDOW_MIN
+from dfkit.policy import DEFAULT_TRACK_GAP_S, DEFAULT_WINDOW_MIN, MAX_TRACK_GAP_S, MAX_WINDOW_MIN, MIN_SD_DEG
+
+
+#: The command-line flag of each reading option (the library names the parameter, the shell the flag).
+FLAGS = {"unit": "--unit", "north": "--north", "sd": "--sd", "declination": "--declination", "tz": "--tz",
+         "date_format": "--date-format", "repeated_hour": "--repeated-hour", "window_min": "--window",
+         "stations": "--stations", "track": "--track", "track_gap_s": "--track-gap", "grid_crs": "--grid-crs",
+         "utm_letters": "--utm-letters", "worksheet": "--sheet", "level": "--level"}
+
+
+def option_message(err) -> str:
+    """An :class:`~dfkit.observations.OptionError` in the shell's words: ``--sd 1e-150 is not ...``."""
+    v = err.value
+    shown = f"{v:g}" if isinstance(v, float) else str(v)
+    return f"{FLAGS.get(err.param, err.param)} {shown} {err.reason}"
 
 
 def add_read_options(p: argparse.ArgumentParser) -> None:
     g = p.add_argument_group("reading the sheet (a value in the sheet wins)")
+    g.add_argument("--sheet", default=None, metavar="NAME", dest="worksheet",
+                   help="which sheet of a spreadsheet file (.xlsx, .xls, .ods) to read (default: the first)")
     g.add_argument("--unit", choices=["deg", "mil", "grad"], default="deg", help="bearing unit (default deg)")
     g.add_argument("--north", choices=["true", "magnetic", "grid"], default="true",
                    help="bearing reference (default true)")
     g.add_argument("--sd", type=float, default=None, metavar="DEG",
-                   help="bearing standard deviation in degrees, from beacon trials")
+                   help=f"bearing standard deviation in degrees, from beacon trials ({MIN_SD_DEG:g} to below 90)")
     g.add_argument("--declination", type=float, default=None, metavar="DEG",
-                   help="declination (degrees east) instead of the magnetic model")
-    g.add_argument("--tz", default=None, metavar="ZONE", help="time zone of times written without an offset")
+                   help="declination (degrees east, -180..180) instead of the magnetic model")
+    g.add_argument("--tz", default=None, metavar="ZONE",
+                   help="time zone of times written without an offset (Europe/Vienna, UTC)")
+    g.add_argument("--date-format", default=None, metavar="ORDER",
+                   help="dmy or mdy for numeric dates the sheet leaves ambiguous (03.10.2026), or a strptime "
+                        "pattern like '%%d.%%m.%%Y %%H:%%M'")
+    g.add_argument("--repeated-hour", choices=["earlier", "later"], default=None,
+                   help="which reading of a local time that occurs twice when clocks go back (default: refuse)")
     g.add_argument("--window", type=float, default=DEFAULT_WINDOW_MIN, metavar="MIN",
-                   help=f"minutes that group unlabelled bearings into one fix (default {DEFAULT_WINDOW_MIN:g}, "
-                        "common practice)")
+                   help=f"a fix goes on while each unlabelled bearing of a tag follows the last within this many "
+                        f"minutes (default {DEFAULT_WINDOW_MIN:g}, common practice; at most {MAX_WINDOW_MIN:g})")
     g.add_argument("--stations", default=None, metavar="FILE", help="stations file (station label + position)")
     g.add_argument("--track", default=None, metavar="GPX", help="GPS track for rows with a time but no position")
     g.add_argument("--track-gap", type=float, default=DEFAULT_TRACK_GAP_S, metavar="S",
-                   help=f"largest time from a bearing to a track point (default {DEFAULT_TRACK_GAP_S:g} s)")
+                   help=f"largest time from a bearing to a track point (default {DEFAULT_TRACK_GAP_S:g} s, at most "
+                        f"{MAX_TRACK_GAP_S:g})")
     g.add_argument("--grid-crs", default=None, metavar="CRS", help="projected CRS of 'grid' bearings (EPSG:27700)")
+    g.add_argument("--utm-letters", choices=["auto", "band", "hemisphere"], default="auto",
+                   help="UTM zone letters: latitude bands as GPS units write them (30S = 32-40N), hemispheres "
+                        "(30S = south), or auto: decide from the sheet and refuse rows it cannot (default)")
 
 
 def add_fix_options(p: argparse.ArgumentParser) -> None:
@@ -45,7 +71,9 @@ def add_fix_options(p: argparse.ArgumentParser) -> None:
 def read_kwargs(a) -> dict:
     """The :class:`~dfkit.observations.ReadOptions` fields given on the command line."""
     return dict(unit=a.unit, north=a.north, sd=a.sd, declination=a.declination, tz=a.tz, window_min=a.window,
-                stations=a.stations, track=a.track, track_gap_s=a.track_gap, grid_crs=a.grid_crs)
+                stations=a.stations, track=a.track, track_gap_s=a.track_gap, grid_crs=a.grid_crs,
+                date_format=a.date_format, repeated_hour=a.repeated_hour, utm_letters=a.utm_letters,
+                worksheet=a.worksheet)
 
 
 def report_problems(problems, out) -> None:
@@ -66,8 +94,9 @@ def ensure_dir(path) -> None:
 def solve(a):
     """Read the sheet named on the command line and solve its fixes: (bearings, fixes, progress)."""
     from dfkit.locate import locate
-    from dfkit.observations import read_bearings
+    from dfkit.observations import check_level, read_bearings
 
+    check_level(a.level)
     t0 = time.perf_counter()
     verbose = getattr(a, "progress", False)
 

@@ -43,7 +43,7 @@ class WriteOptions:
 
 def with_utm(table: pd.DataFrame) -> pd.DataFrame:
     """The fix table with ``utm_zone`` (e.g. ``33N``), ``easting`` and ``northing`` [m] after ``lon``."""
-    from dfkit import coords
+    from dfkit import grids as coords
 
     lat = table["lat"].to_numpy(float)
     lon = table["lon"].to_numpy(float)

@@ -37,10 +37,11 @@ KNOWN_COLUMNS = (
 COLUMN_ALIASES = {
     "latitude": "lat", "longitude": "lon", "long": "lon", "lng": "lon",
     "zone": "utm_zone", "utm": "utm_zone",
-    "azimuth": "bearing", "az": "bearing",
+    "azimuth": "bearing", "az": "bearing", "brg": "bearing", "bearing_deg": "bearing", "azimuth_deg": "bearing",
     "datetime": "time", "timestamp": "time", "date_time": "time",
     "sd_deg": "sd", "sigma": "sd", "declination_deg": "declination",
     "label": "fix", "fix_label": "fix", "notes": "note", "comment": "note",
+    "frequency": "tag", "freq": "tag", "tag_id": "tag",
 }
 
 _DELIMITERS = (",", ";", "\t")

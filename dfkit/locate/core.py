@@ -83,7 +83,11 @@ def locate(bearings: Bearings, *, method: str = "mle", level: float = 0.95, wind
     if len(b):
         np.maximum.at(spread, g, geodesy.chord_distance_m(clat[g], clon[g], lat, lon))
     span_min, tmid = _time_span(b, g, m)
-    facts = FixFacts(sol=sol, g=g, counts=counts, spread_m=spread, span_min=span_min, window_min=window_min,
+    # A fix goes on while each bearing follows the last within the window (dfkit.observations.grouping):
+    # a gap longer than the window, or a chain lasting more than FIX_SPAN_WINDOWS windows, is flagged.
+    gap_min = bearings.fix_timing()["max_gap_min"].to_numpy(float) if m else np.zeros(0)
+    facts = FixFacts(sol=sol, g=g, counts=counts, spread_m=spread, span_min=span_min, gap_min=gap_min,
+                     window_min=window_min,
                      lines=lines, rejected=fix_index["rejected_lines"].tolist(), ellipse_area=ell.area_m2,
                      ellipse_minor=ell.semi_minor_m, regions=lik, level=float(level), hints={})
     status, reasons = classify(facts)

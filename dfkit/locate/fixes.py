@@ -18,8 +18,9 @@ no_region        yes        two bearings and no known SD (or a degenerate
                             covariance): nothing to size a region with
 shallow          yes        the bearing lines cross at less than 20 degrees (common
                             practice limit): the position is weak along them
-long_span        yes        the bearings span more time than the window: the
-                            transmitter may have moved between them
+long_span        yes        two successive bearings are further apart than the window,
+                            or the fix lasts more than 3 windows: the transmitter
+                            may have moved between them
 too_few          no         fewer than two usable bearings
 one_spot         no         all bearings taken from one spot: they cannot cross
 parallel         no         the bearing lines are parallel and do not cross
@@ -52,7 +53,7 @@ STATUS_MEANING = {
     "unbounded": "the confidence region is open along the bearings",
     "no_region": "a position, but nothing to size a confidence region with",
     "shallow": "the bearing lines cross at a shallow angle; the position is weak along them",
-    "long_span": "the bearings span more time than the window; the transmitter may have moved",
+    "long_span": "the bearings are too far apart in time; the transmitter may have moved",
     "too_few": "fewer than two usable bearings",
     "one_spot": "all bearings were taken from one spot",
     "parallel": "the bearing lines are parallel and do not cross",

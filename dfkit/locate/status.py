@@ -13,7 +13,7 @@ from dataclasses import dataclass
 import numpy as np
 
 from dfkit.estimators import ENDINGS
-from dfkit.policy import (ELLIPSE_MISMATCH, INCONSISTENT_P, NEAR_OBSERVER, ONE_SPOT_M, PLAUSIBLE_SD_DEG, REVERSED_DEG,
+from dfkit.policy import (ELLIPSE_MISMATCH, FIX_SPAN_WINDOWS, INCONSISTENT_P, NEAR_OBSERVER, ONE_SPOT_M, PLAUSIBLE_SD_DEG, REVERSED_DEG,
                           SHALLOW_CROSSING_DEG, WILD_SD)
 from dfkit.regions import chi2_sf
 
@@ -29,6 +29,7 @@ class FixFacts:
     counts: np.ndarray          # bearings per fix
     spread_m: np.ndarray        # largest distance of a station from the stations' centroid [m]
     span_min: np.ndarray        # time spanned by the bearings [min]
+    gap_min: np.ndarray         # longest time between two successive bearings [min]
     window_min: float
     lines: np.ndarray           # input line of each bearing
     rejected: list              # rejected input lines per fix
@@ -103,9 +104,10 @@ def classify(f: FixFacts):
         near_b = used & (sol.range_m < NEAR_OBSERVER * far[g])
         near_obs = np.zeros(m, bool)
         np.logical_or.at(near_obs, g, near_b)
-        attention = near_obs | ((f.counts < 2) | (f.spread_m < ONE_SPOT_M) | (ending != _E["optimum"]) | sol.behind
-                     | ~sol.converged | inconsistent | ~bounded | ~has_region | no_cov
-                     | (sol.crossing_deg < SHALLOW_CROSSING_DEG) | (f.span_min > f.window_min) | notable)
+        long_span = (f.gap_min > f.window_min) | (f.span_min > FIX_SPAN_WINDOWS * f.window_min)
+        attention = (near_obs | long_span | (f.counts < 2) | (f.spread_m < ONE_SPOT_M) | (ending != _E["optimum"])
+                     | sol.behind | ~sol.converged | inconsistent | ~bounded | ~has_region | no_cov
+                     | (sol.crossing_deg < SHALLOW_CROSSING_DEG) | notable)
     attention |= np.array([len(r) > 0 for r in f.rejected], bool)
     attention |= np.isin(np.arange(m), list(f.hints))
     if regions is not None:
@@ -185,9 +187,12 @@ def classify(f: FixFacts):
                 flags.append(("unbounded", f"the {100 * f.level:g}% region is open: it reaches past "
                                            f"{_km(regions.draw_range_m[i])} along the bearings (drawn to "
                                            "there), so a transmitter far along them is not ruled out"))
-            if np.isfinite(f.span_min[i]) and f.span_min[i] > f.window_min:
-                flags.append(("long_span", f"bearings span {f.span_min[i]:.0f} min, more than the "
-                                           f"{f.window_min:g}-min window; the transmitter may have moved"))
+            if long_span[i]:
+                what = (f"{f.gap_min[i]:.0f} min pass between two of its bearings, more than the "
+                        f"{f.window_min:g}-min window" if f.gap_min[i] > f.window_min else
+                        f"its bearings span {f.span_min[i]:.0f} min, more than {FIX_SPAN_WINDOWS:g} windows of "
+                        f"{f.window_min:g} min")
+                flags.append(("long_span", f"{what}; the transmitter may have moved"))
             if not sol.sd_known[i] and sol.dof[i] <= 0:
                 flags.append(("no_region", "two bearings and no known SD: a position but no confidence "
                                            "region (give sd in the sheet or --sd)"))

@@ -1,0 +1,146 @@
+"""Reading a bearing sheet from a spreadsheet file (.xlsx, .xlsm, .xls, .ods) into text cells.
+
+Read with python-calamine (one reader for all three formats, no spreadsheet program
+needed). The first worksheet is read unless one is named (``--sheet NAME``). Line
+numbers are the row numbers the spreadsheet shows (the header is usually row 1).
+Date and time cells arrive as dates (ISO 8601 text without an offset: give
+``--tz``), numbers as numbers. The header is the first row with a value; rows above
+it holding a single cell (a title) are skipped with a warning. Empty rows are
+skipped and counted. Formulas are read as their last computed value; a formula a
+program never computed reads as empty.
+"""
+
+from __future__ import annotations
+
+import io
+import os
+
+import numpy as np
+import pandas as pd
+
+from dfkit.io.sheet import RawSheet, _resolve_header
+from dfkit.io.typed import cell_text
+from dfkit.problems import Problem, SheetError
+
+#: File name endings read as spreadsheets.
+SPREADSHEET_SUFFIXES = (".xlsx", ".xlsm", ".xlsb", ".xls", ".ods")
+
+
+def read_spreadsheet(source, *, worksheet: str | None = None, name: str | None = None) -> RawSheet:
+    """Read one worksheet of a spreadsheet file into text cells with row numbers.
+
+    Parameters
+    ----------
+    source : str, os.PathLike, bytes or binary file-like
+        The spreadsheet file.
+    worksheet : str, optional
+        Name of the sheet to read (default: the first visible worksheet).
+    name : str, optional
+        Name used in messages (defaults to the file name).
+
+    Raises
+    ------
+    SheetError
+        The file cannot be opened as a spreadsheet, the named sheet does not exist,
+        or the sheet is empty.
+    """
+    from python_calamine import CalamineError, CalamineWorkbook
+
+    if isinstance(source, (str, os.PathLike)):
+        name = name or os.fspath(source)
+    label = name or "the spreadsheet"
+    try:
+        if isinstance(source, (str, os.PathLike)):
+            wb = CalamineWorkbook.from_path(os.fspath(source))
+        else:
+            data = source if isinstance(source, bytes) else source.read()
+            wb = CalamineWorkbook.from_filelike(io.BytesIO(data))
+    except OSError as err:
+        raise SheetError(f"{label}: cannot read the file ({err.strerror or err})") from None
+    except (CalamineError, ValueError) as err:
+        raise SheetError(f"{label}: not a readable spreadsheet ({_short(err)}); is it damaged or "
+                         "password-protected? Save it again, or as CSV") from None
+    sheet_name = _choose(wb, worksheet, label)
+    try:
+        rows = wb.get_sheet_by_name(sheet_name).to_python(skip_empty_area=False)
+    except (CalamineError, ValueError) as err:
+        raise SheetError(f"{label}: sheet '{sheet_name}' cannot be read ({_short(err)})") from None
+    shown = f"{label} [{sheet_name}]" if worksheet or len(wb.sheet_names) > 1 else label
+    raw = _to_raw(rows, shown, sheet_name, wb.sheet_names)
+    if worksheet is None and len(wb.sheet_names) > 1:
+        raw.problems.insert(0, Problem(0, "", f"the workbook has sheets {', '.join(wb.sheet_names)}; '{sheet_name}' was "
+                                       "read (--sheet NAME reads another)", "warning", shown))
+    return raw
+
+
+def _short(err) -> str:
+    return str(err).strip().splitlines()[0][:200] if str(err).strip() else type(err).__name__
+
+
+def _choose(wb, worksheet, label):
+    names = list(wb.sheet_names)
+    if not names:
+        raise SheetError(f"{label}: the workbook has no sheets")
+    if worksheet is None:
+        try:
+            visible = [m.name for m in wb.sheets_metadata
+                       if str(getattr(m, "visible", "")).lower().endswith("visible")
+                       and "work" in str(getattr(m, "typ", "worksheet")).lower()]
+        except Exception:   # older python-calamine without metadata
+            visible = []
+        return visible[0] if visible else names[0]
+    if worksheet in names:
+        return worksheet
+    folded = [n for n in names if n.casefold() == str(worksheet).casefold()]
+    if len(folded) == 1:
+        return folded[0]
+    raise SheetError(f"{label}: no sheet named '{worksheet}'; the sheets are: {', '.join(names)}")
+
+
+def _to_raw(rows, label, sheet_name, all_names) -> RawSheet:
+    problems: list[Problem] = []
+    text = [[cell_text(v) for v in r] for r in rows]
+    filled = [sum(1 for c in r if c) for r in text]
+    first = next((i for i, k in enumerate(filled) if k), None)
+    if first is None:
+        raise SheetError(f"{label}: the sheet '{sheet_name}' is empty (other sheets: "
+                         f"{', '.join(n for n in all_names if n != sheet_name) or 'none'}; choose one with --sheet)")
+    header_i = first
+    # title rows: single cells above a wider row within the next few rows
+    while filled[header_i] == 1:
+        nxt = next((j for j in range(header_i + 1, min(header_i + 6, len(text))) if filled[j] > 1), None)
+        if nxt is None:
+            break
+        problems.append(Problem(header_i + 1, "", f"row {header_i + 1} ('{next(c for c in text[header_i] if c)}') "
+                                "read as a title, not the header", "warning", label))
+        header_i = nxt
+    header = text[header_i]
+    last = max((j for j, c in enumerate(header) if c), default=-1)
+    header = header[: last + 1]
+    columns = _resolve_header(header, header_i + 1, label, problems)
+    width = len(columns)
+    body = text[header_i + 1:]
+    line_no = np.arange(header_i + 2, header_i + 2 + len(body))
+    keep = np.array([any(r[:width]) for r in body], bool) if body else np.zeros(0, bool)
+    skipped = int((~keep).sum())
+    beyond = [(line_no[k], j) for k, r in enumerate(body) for j in range(width, len(r)) if r[j]]
+    if beyond:
+        ln, j = beyond[0]
+        problems.append(Problem(int(ln), "", f"{len(beyond)} cell(s) right of the header's last column (first at row "
+                                f"{ln}, column {_col_letter(j)}) have no column name and were not read", "warning", label))
+    table = pd.DataFrame({"line": pd.array(line_no[keep], dtype="int64")})
+    for j, col in enumerate(columns):
+        table[col] = pd.Series([(r[j] if j < len(r) else "") for r, k in zip(body, keep) if k], dtype=object)
+    if not len(table):
+        problems.append(Problem(header_i + 1, "", "the sheet has a header but no data rows", "warning", label))
+    return RawSheet(table=table, columns=columns, delimiter="", decimal_comma=False, problems=problems,
+                    skipped_lines=skipped, source=label)
+
+
+def _col_letter(j: int) -> str:
+    s = ""
+    j += 1
+    while j:
+        j, r = divmod(j - 1, 26)
+        s = chr(65 + r) + s
+    return s

@@ -1,0 +1,335 @@
+"""Text cells to numbers and angles, as people write them.
+
+Every parser here is vectorised: the common case (plain numbers) is parsed in C by
+pandas, and only the cells that fail go through Python, once per distinct value.
+Each returns :class:`Cells`: values, which cells were empty, and a message for each
+cell that could not be read ('' when fine).
+
+Angles (:func:`angles`) accept decimal degrees and sexagesimal forms with symbols
+or spaces and a hemisphere letter before or after: ``48.9687``, ``-48.9687``,
+``48.9687N``, ``N48.9687``, ``48°58'07.4"N``, ``48°58.123'N``, ``N48 58.123``,
+``48 58 7.4 N``, ``48:58:07.4``, ``48d58'07.4"``. Minutes and seconds must be below
+60 and only the last part may have decimals. These are the forms of the EPSG
+units of measure 9116-9120 (degree-minute and degree-minute-second with a hemisphere
+letter before or after; EPSG Geodetic Parameter Dataset: 9118 and 9119 checked on
+the registry's pages, the others from memory) and of the examples
+in GeographicLib's GeoConvert(1) manual ("33d18'N 44d24'E", "E44.4 N33.3",
+"33:18 44:24"). The letter O is not read as west: it means west in Spanish (oeste)
+and east in German (Ost).
+"""
+
+from __future__ import annotations
+
+import re
+from dataclasses import dataclass
+
+import numpy as np
+import pandas as pd
+
+
+@dataclass
+class Cells:
+    """Parsed cells: ``values`` (NaN where empty or unreadable), ``empty`` and ``error``
+    (one message per cell, '' when the cell was read)."""
+
+    values: np.ndarray
+    empty: np.ndarray
+    error: np.ndarray
+
+    @property
+    def bad(self) -> np.ndarray:
+        return self.error != ""
+
+
+def column(table: pd.DataFrame, name: str) -> np.ndarray:
+    """The text cells of a column, or '' everywhere when the table has no such column."""
+    if name in table.columns:
+        return table[name].to_numpy(dtype=object)
+    return np.full(len(table), "", dtype=object)
+
+
+def per_value(cells, func):
+    """Apply ``func`` once per distinct cell value (columns like unit or north repeat a few values)."""
+    codes, uniques = pd.factorize(np.asarray(cells, dtype=object))
+    mapped = np.empty(len(uniques), dtype=object)
+    for k, u in enumerate(uniques):
+        mapped[k] = func(u)
+    return mapped[codes] if len(codes) else np.zeros(0, dtype=object)
+
+
+def canonical(cells, aliases: dict, default: str):
+    """Map spellings to canonical words (``'Mag'`` -> ``'magnetic'``); returns (words, unknown mask).
+    Empty cells take ``default``; unknown ones also get ``default`` (the row is rejected by the caller)."""
+    low = per_value(cells, lambda u: str(u).strip().lower())
+    canon = per_value(low, lambda u: aliases.get(u, default if u == "" else None))
+    unknown = pd.isna(canon).astype(bool) if len(canon) else np.zeros(0, bool)
+    out = canon.copy()
+    out[unknown] = default
+    return out, unknown
+
+
+_DEC_COMMA = re.compile(r"^[+-]?\d*,\d+$")
+_SPELLED_NON_FINITE = {"nan", "inf", "-inf", "+inf", "infinity", "-infinity", "+infinity"}
+
+
+def numbers(cells, decimal_comma: bool = False) -> Cells:
+    """Text cells to floats: plain numbers in C, the rest once per distinct value.
+
+    A trailing degree sign is allowed; a decimal comma is read in sheets that allow it
+    (semicolon- or tab-separated) and explained elsewhere; NaN and infinity are refused.
+    """
+    return _fast_then_slow(cells, lambda u: _one_number(u, decimal_comma))
+
+
+def _fast_then_slow(cells, one) -> Cells:
+    """Plain numbers parsed in C; every other non-empty cell by ``one(text) -> (value, error)`` once per
+    distinct value (``error`` None: the cell is empty after all)."""
+    cells = np.asarray(cells, dtype=object)
+    fast = pd.to_numeric(pd.Series(cells, dtype=object), errors="coerce").to_numpy(dtype=float, copy=True)
+    empty = cells == ""
+    slow = ~np.isfinite(fast) & ~empty
+    error = np.full(len(cells), "", dtype=object)
+    if slow.any():
+        res = per_value(cells[slow], one)
+        fast[slow] = [v for v, _ in res]
+        empty[slow] = [e is None for _, e in res]
+        error[slow] = ["" if e is None else e for _, e in res]
+    return Cells(np.where(empty | (error != ""), np.nan, fast), empty, error)
+
+
+def _one_number(text, decimal_comma):
+    s = str(text).strip().replace("\u2212", "-").rstrip("°º").strip()
+    if s == "":
+        return np.nan, None
+    if s.lower() in _SPELLED_NON_FINITE:
+        return np.nan, f"'{text}' is not a finite number"
+    is_dc = bool(_DEC_COMMA.match(s))
+    if is_dc and decimal_comma:
+        s = s.replace(",", ".")
+    try:
+        v = float(s)
+    except ValueError:
+        hint = (" (a decimal comma: use a point, or a semicolon-separated sheet)" if is_dc and not decimal_comma
+                else "")
+        return np.nan, f"'{text}' is not a finite number{hint}"
+    if not np.isfinite(v):
+        return np.nan, f"'{text}' is not a finite number"
+    return v, ""
+
+
+# --------------------------------------------------------------------------- angles
+
+_PRIMES = str.maketrans({"\u2032": "'", "\u2019": "'", "\u2018": "'", "\u02b9": "'", "`": "'", "\u00b4": "'",
+                         "\u2033": '"', "\u201d": '"', "\u201c": '"', "\u02ba": '"',
+                         "\u00ba": "°", "\u02da": "°", "\u2070": "°", "\u2212": "-"})
+_HEMI_FIRST = re.compile(r"^([NSEWnsew])\s*(.+)$")
+_HEMI_LAST = re.compile(r"^(.+?)\s*([NSEWnsew])$")
+_PART = re.compile(r"\s*(\d+(?:\.\d*)?|\.\d+)\s*(°|d|deg|'|\"|:)?")
+_MARK = {"°": 0, "d": 0, "deg": 0, "'": 1, '"': 2}
+_SIGN = {"N": 1, "S": -1, "E": 1, "W": -1}
+_AXIS = {"N": "lat", "S": "lat", "E": "lon", "W": "lon"}
+
+
+def parse_angle(text: str, *, decimal_comma: bool = False):
+    """One angle as written to ``(degrees, axis, error)``.
+
+    ``axis`` is 'lat' for an N/S letter, 'lon' for E/W, '' without one; ``error`` is ''
+    when the text was read. See the module docstring for the accepted forms.
+
+    >>> parse_angle("48°58'07.4\\"N")[:2]
+    (48.96872222222222, 'lat')
+    >>> parse_angle("W 3 30.5")[:2]
+    (-3.5083333333333333, 'lon')
+    """
+    raw = str(text)
+    s = raw.strip().translate(_PRIMES).replace("''", '"')
+    if decimal_comma:
+        s = s.replace(",", ".")
+    letter = ""
+    m = _HEMI_FIRST.match(s)
+    if m and not s[:1].isdigit():
+        letter, s = m.group(1).upper(), m.group(2)
+    m2 = _HEMI_LAST.match(s)
+    if m2:
+        if letter:
+            return np.nan, "", f"'{raw}' has two hemisphere letters"
+        letter, s = m2.group(2).upper(), m2.group(1)
+    s = s.strip()
+    sign = 1.0
+    if s[:1] in "+-":
+        sign = -1.0 if s[0] == "-" else 1.0
+        s = s[1:]
+    parts = []
+    pos = 0
+    while pos < len(s):
+        pm = _PART.match(s, pos)
+        if not pm or pm.end() == pos:
+            return np.nan, "", _not_angle(raw)
+        parts.append((pm.group(1), pm.group(2) or ""))
+        pos = pm.end()
+        if pos < len(s) and s[pos] in ",;":
+            return np.nan, "", _not_angle(raw)
+    if not parts or len(parts) > 3:
+        return np.nan, "", _not_angle(raw)
+    slots = [None, None, None]
+    any_mark = any(mk in _MARK for _, mk in parts)
+    last = -1
+    for k, (num, mk) in enumerate(parts):
+        slot = _MARK[mk] if mk in _MARK else (last + 1 if any_mark else k)
+        if slot > 2 or slot <= last:
+            return np.nan, "", _not_angle(raw)
+        slots[slot] = num
+        last = slot
+    filled = [i for i in range(3) if slots[i] is not None]
+    if filled != list(range(len(filled))):
+        return np.nan, "", _not_angle(raw)
+    if any("." in slots[i] for i in filled[:-1]):
+        return np.nan, "", f"'{raw}': only the last part (degrees, minutes or seconds) may have decimals"
+    d, mi, se = (float(slots[i]) if slots[i] is not None else 0.0 for i in range(3))
+    if mi >= 60 or se >= 60:
+        return np.nan, "", f"'{raw}': minutes and seconds must be below 60"
+    if letter and sign < 0:
+        return np.nan, "", f"'{raw}' has both a minus sign and a hemisphere letter; give one of them"
+    value = sign * (d + mi / 60.0 + se / 3600.0) * _SIGN.get(letter, 1)
+    return value, _AXIS.get(letter, ""), ""
+
+
+def _not_angle(raw):
+    return (f"'{raw}' is not a position angle; write decimal degrees (48.9687) or degrees, minutes, seconds "
+            "(48°58'07.4\"N, 48°58.123'N, N48 58.123)")
+
+
+def angles(cells, axis: str, decimal_comma: bool = False) -> Cells:
+    """Latitude or longitude cells (``axis`` 'lat' or 'lon') to signed degrees.
+
+    Plain numbers go the fast way; the common sexagesimal forms are read for the whole
+    column at once (:func:`_common_angles`); the rest by :func:`parse_angle`, once per
+    distinct value. A hemisphere letter of the other axis (E/W in a latitude) is
+    refused: the columns are probably swapped.
+    """
+    cells = np.asarray(cells, dtype=object)
+    out = _fast_then_slow(cells, lambda u: (np.nan, "?"))
+    pending = out.error == "?"
+    if pending.any():
+        vals, ok = _common_angles(cells[pending], axis, decimal_comma)
+        idx = np.flatnonzero(pending)
+        out.values[idx[ok]] = vals[ok]
+        out.error[idx[ok]] = ""
+        rest = idx[~ok]
+        if len(rest):
+            res = per_value(cells[rest], lambda u: _one_angle(u, axis, decimal_comma))
+            out.values[rest] = [v for v, _ in res]
+            out.empty[rest] = [e is None for _, e in res]
+            out.error[rest] = ["" if e is None else e for _, e in res]
+    out.values[out.empty | (out.error != "")] = np.nan
+    return out
+
+
+# Degrees, then minutes, then seconds, each part marked (° d ' ") or separated by a space or colon, with a
+# hemisphere letter before or after: the forms GPS units and hand-typed sheets use. Anything else is left to
+# parse_angle, which also explains what is wrong.
+_COMMON = re.compile(r"^(?P<h1>[NSEW])?\s*(?P<d>\d{1,3}(?:\.\d+)?)(?:\s*(?:°|d)\s*|\s+|:)?"
+                     r"(?:(?P<m>\d{1,2}(?:\.\d+)?)(?:\s*'\s*|\s+|:)?)?"
+                     r"(?:(?P<s>\d{1,2}(?:\.\d+)?)\s*\"?)?\s*(?P<h2>[NSEW])?$")
+
+
+def _common_angles(cells, axis, decimal_comma):
+    """Vectorised reading of the common sexagesimal forms: (values, read mask); unread cells go the slow way."""
+    t = pd.Series(cells, dtype=object).astype(str).str.strip().str.translate(_PRIMES).str.replace("''", '"')
+    if decimal_comma:
+        t = t.str.replace(",", ".")
+    parts = t.str.upper().str.extract(_COMMON)
+    d = pd.to_numeric(parts["d"], errors="coerce").to_numpy(float)
+    m = pd.to_numeric(parts["m"], errors="coerce").to_numpy(float)
+    sec = pd.to_numeric(parts["s"], errors="coerce").to_numpy(float)
+    h1 = parts["h1"].fillna("").to_numpy(dtype=object)
+    h2 = parts["h2"].fillna("").to_numpy(dtype=object)
+    letter = np.where(h1 != "", h1, h2)
+    has_m, has_s = np.isfinite(m), np.isfinite(sec)
+    frac_d = parts["d"].fillna("").str.contains(".", regex=False).to_numpy(bool)
+    frac_m = parts["m"].fillna("").str.contains(".", regex=False).to_numpy(bool)
+    want = "NS" if axis == "lat" else "EW"
+    ok = (np.isfinite(d) & ((h1 == "") | (h2 == "")) & np.isin(letter, ["", *want])
+          & (~has_s | has_m) & (~frac_d | ~has_m) & (~frac_m | ~has_s)
+          & (np.nan_to_num(m) < 60) & (np.nan_to_num(sec) < 60))
+    sign = np.where(np.isin(letter, ["S", "W"]), -1.0, 1.0)
+    vals = sign * (d + np.nan_to_num(m) / 60.0 + np.nan_to_num(sec) / 3600.0)
+    return vals, ok
+
+
+def _one_angle(text, axis, decimal_comma):
+    s = str(text).strip()
+    if s == "":
+        return np.nan, None
+    v, err = _one_number(s, decimal_comma)
+    if err == "":
+        return v, ""
+    if s.lower() in _SPELLED_NON_FINITE or _DEC_COMMA.match(s):
+        return np.nan, err
+    v, got, err = parse_angle(s, decimal_comma=decimal_comma)
+    if err:
+        return np.nan, err
+    if got and got != axis:
+        other = "E/W (a longitude)" if got == "lon" else "N/S (a latitude)"
+        return np.nan, f"'{s}' has the letter {other} in the {axis} column: lat and lon look swapped"
+    return v, ""
+
+
+def declinations(cells, decimal_comma: bool = False) -> Cells:
+    """Declination cells: '3.5', '-3.5', '3.5E' or '3.5W' (also with a degree sign) -> degrees east."""
+    cells = np.asarray(cells, dtype=object)
+    if not (cells != "").any():
+        n = len(cells)
+        return Cells(np.full(n, np.nan), np.ones(n, bool), np.full(n, "", dtype=object))
+    s = pd.Series(cells, dtype=object).astype(str).str.strip().str.upper()
+    west = s.str.endswith("W").to_numpy()
+    east = s.str.endswith("E").to_numpy()
+    stripped = s.str.rstrip("EW").str.strip().to_numpy(dtype=object)
+    c = numbers(stripped, decimal_comma)
+    bad = c.bad | ((west | east) & (c.values < 0))   # '-3W' is ambiguous
+    err = np.full(len(cells), "", dtype=object)
+    err[bad] = [f"'{x}' is not a declination; write degrees east (-3.5) or 3.5W" for x in cells[bad]]
+    vals = np.where(west, -c.values, c.values)
+    return Cells(np.where(bad, np.nan, vals), c.empty, err)
+
+
+def split_position(text: str, *, decimal_comma: bool = False):
+    """One cell holding a whole position to ``(lat_text, lon_text, error)``.
+
+    Latitude comes first unless hemisphere letters say otherwise, as in GeographicLib's
+    GeoConvert(1) manual, whose examples "33.3 44.4", "E44.4 N33.3", "33d18'N 44d24'E",
+    "44d24 33d18N" and "33:18 44:24" all name the same point. The two parts may be
+    separated by a comma or semicolon (``47.8581, 15.1631``, as map apps copy a
+    position) or by spaces; when more than one way of splitting the spaces reads as
+    two angles, the cell is refused as ambiguous.
+    """
+    raw = str(text).strip()
+    for sep in (";", ","):
+        if sep in raw and not (sep == "," and decimal_comma):
+            parts = [x.strip() for x in raw.split(sep)]
+            if len(parts) == 2 and all(parts):
+                return _order(raw, parts[0], parts[1])
+    tokens = raw.split()
+    found = []
+    for k in range(1, len(tokens)):
+        a, b = " ".join(tokens[:k]), " ".join(tokens[k:])
+        ra, rb = parse_angle(a, decimal_comma=decimal_comma), parse_angle(b, decimal_comma=decimal_comma)
+        if not ra[2] and not rb[2]:
+            found.append((a, b))
+    if len(found) == 1:
+        return _order(raw, *found[0])
+    if not found:
+        return "", "", (f"'{raw}' is not a position; write latitude and longitude in one cell like "
+                        "'47.8581, 15.1631' or 'N47 51.486 E15 09.786', or use lat and lon columns")
+    return "", "", (f"'{raw}' can be split into latitude and longitude in more than one way; separate them with a "
+                    "comma or use lat and lon columns")
+
+
+def _order(raw, a, b, decimal_comma=False):
+    axis_a = parse_angle(a, decimal_comma=decimal_comma)[1]
+    axis_b = parse_angle(b, decimal_comma=decimal_comma)[1]
+    if axis_a == "lon" or axis_b == "lat":
+        if axis_a == "lat" or axis_b == "lon":
+            return "", "", f"'{raw}' has two latitudes or two longitudes"
+        return b, a, ""
+    return a, b, ""

@@ -1,0 +1,227 @@
+"""read_bearings: a sheet in, every bearing in one convention out (or refused with a reason).
+
+The steps, in order: read the file (:func:`dfkit.io.read_table`), check the columns
+(:mod:`~dfkit.observations.columns`), read times (:mod:`~dfkit.observations.times`),
+bearings, units, north, SDs and declinations (:mod:`~dfkit.observations.cells`),
+group rows into fixes (:mod:`~dfkit.observations.grouping`), read positions judged
+against each row's own fix (:mod:`~dfkit.observations.positions`), turn magnetic and
+grid bearings to true (:mod:`~dfkit.observations.north`).
+"""
+
+from __future__ import annotations
+
+from dataclasses import fields, replace
+
+import numpy as np
+import pandas as pd
+
+from dfkit.conventions import DEGREES_PER_UNIT, FULL_CIRCLE, NORTH_ALIASES, UNIT_ALIASES, wrap360
+from dfkit.io import read_table
+from dfkit.io.gpx import Track, read_track
+from dfkit.io.sheet import KNOWN_COLUMNS
+from dfkit.observations import north as north_mod
+from dfkit.observations.bearings import Bearings
+from dfkit.observations.cells import canonical, column, declinations, numbers, per_value
+from dfkit.observations.columns import check_columns
+from dfkit.observations.grouping import fix_identities, group_fixes, pair_codes
+from dfkit.observations.options import ReadOptions, check_options
+from dfkit.observations.positions import parse_positions, read_places
+from dfkit.observations.rowlog import RowLog
+from dfkit.observations.times import parse_times
+from dfkit.policy import MIN_SD_DEG, SPLIT_LABEL_GAP_H
+from dfkit.problems import Problem, SheetError
+
+
+def read_bearings(sheet, options: ReadOptions | None = None, **kwargs) -> Bearings:
+    """Read, validate and convert a bearing sheet.
+
+    Parameters
+    ----------
+    sheet : path, bytes, file-like, pandas.DataFrame or RawSheet
+        The bearing sheet: a CSV file, a spreadsheet (.xlsx, .xlsm, .xls, .ods), or a
+        DataFrame with the same columns (its rows are numbered as lines 2, 3, ...,
+        as in the CSV ``to_csv(index=False)`` would write). See the README for the columns.
+    options : ReadOptions, optional
+        Sheet-wide defaults; keyword arguments override its fields
+        (``read_bearings("s.csv", north="magnetic", sd=5)``).
+
+    Returns
+    -------
+    Bearings
+
+    Raises
+    ------
+    SheetError
+        The sheet (or the stations file or the track) cannot be read at all, or has no
+        bearing or position column.
+    OptionError
+        An option (a ``ValueError``) dfkit cannot use, naming the parameter (``sd=``).
+    """
+    opts = options or ReadOptions()
+    if kwargs:
+        known = {f.name for f in fields(ReadOptions)}
+        unknown = sorted(set(kwargs) - known)
+        if unknown:
+            raise TypeError(f"read_bearings() got unknown option(s) {', '.join(map(repr, unknown))}; the options are "
+                            f"{', '.join(sorted(known))}")
+        opts = replace(opts, **kwargs)
+    check_options(opts)
+    raw = read_table(sheet, worksheet=opts.worksheet)
+    try:
+        check_columns(raw.columns, raw.source, stations=opts.stations is not None, track=opts.track is not None)
+    except SheetError as err:
+        hint = next((p.message for p in raw.problems if "--sheet" in p.message), "")
+        raise SheetError(f"{err} ({hint})" if hint else str(err)) from None
+    t = raw.table
+    n = len(t)
+    lines = t["line"].to_numpy()
+    log = RowLog(lines, raw.source)
+    log.problems.extend(raw.problems)
+    pre = {p.line for p in raw.problems if p.severity == "error" and p.line}   # e.g. too many fields
+    refused_by_reader = np.isin(lines, list(pre))
+    log.bad |= refused_by_reader
+    notes: list[str] = []
+
+    stations = None
+    if opts.stations is not None:
+        stations, st_problems = read_places(opts.stations, "station")
+        log.problems.extend(st_problems)
+    track = opts.track
+    if track is not None and not isinstance(track, Track):
+        track = read_track(track)
+
+    # times
+    time_c = column(t, "time")
+    tm = parse_times(time_c, tz=opts.tz, date_format=opts.date_format, repeated_hour=opts.repeated_hour,
+                     dates=column(t, "date") if "date" in t.columns else None)
+    log.reject(tm.error != "", "time", tm.error)
+    notes.extend(tm.notes)
+    times = tm.seconds
+
+    # bearing and unit
+    bearing_deg, b = _bearings(t, opts, raw.decimal_comma, log)
+    unit_c = column(t, "unit")
+    unit, _ = canonical(unit_c, UNIT_ALIASES, opts.unit)
+
+    # north, sd, declination
+    north, north_unknown = canonical(column(t, "north"), NORTH_ALIASES, opts.north)
+    ncells = column(t, "north")
+    log.reject(north_unknown, "north", lambda idx: [f"unknown north '{ncells[i]}'; use true, magnetic or grid"
+                                                     for i in idx])
+    sd, sd_from = _sds(t, opts, raw.decimal_comma, log)
+    dec, dec_empty = _declinations(t, opts, raw.decimal_comma, log, north, n)
+
+    # fixes: by tag and label, labels split by time, unlabelled rows by the window
+    fix_c, tag_c = column(t, "fix"), column(t, "tag")
+    fix, grouped_by = group_fixes(fix_c, tag_c, times, window_s=opts.window_min * 60.0,
+                                  split_gap_s=SPLIT_LABEL_GAP_H * 3600.0, log=log, notes=notes)
+    ids = pair_codes(tag_c, fix, fix != "")
+
+    # positions, judged against each row's own fix and the track
+    pos = parse_positions(t, lines=lines, source=raw.source, decimal_comma=raw.decimal_comma, stations=stations,
+                          track=track, times=times, track_gap_s=opts.track_gap_s, utm_letters=opts.utm_letters,
+                          groups=ids, log=log, skip=refused_by_reader)
+
+    # magnetic -> true, grid -> true
+    magnetic_rows = north == "magnetic"
+    model_dec, dec_sd = north_mod.magnetic_declination(log, magnetic_rows & dec_empty, times, time_c, pos.lat,
+                                                       pos.lon, notes)
+    dec_used = np.where(magnetic_rows, np.where(dec_empty, model_dec, dec), 0.0)
+    conv = north_mod.grid_convergence(log, north == "grid", pos.zone, pos.south, pos.lat, pos.lon, opts.grid_crs)
+    true_bearing = wrap360(bearing_deg + dec_used + conv)
+
+    keep = ~log.bad
+    table = pd.DataFrame({
+        "line": lines[keep],
+        "fix": fix[keep],
+        "tag": tag_c[keep],
+        "time": pd.to_datetime(times[keep], unit="s", utc=True),
+        "lat": pos.lat[keep],
+        "lon": pos.lon[keep],
+        "true_bearing": true_bearing[keep],
+        "sd": sd[keep],
+        "sd_source": sd_from[keep],
+        "declination": np.where(magnetic_rows, dec_used, np.nan)[keep],
+        "convergence": np.where(north == "grid", conv, np.nan)[keep],
+        "bearing": b[keep],
+        "unit": unit[keep],
+        "north": north[keep],
+        "position_from": pos.source[keep],
+        "grouped_by": grouped_by[keep],
+        "declination_sd": np.where(magnetic_rows & dec_empty, dec_sd, np.nan)[keep],
+    })
+    for c in raw.columns:
+        if (c not in KNOWN_COLUMNS or c in ("observer", "antenna", "note")) and c not in table.columns:
+            table[c] = t[c].to_numpy(dtype=object)[keep]
+    for c in ("observer", "antenna", "note"):
+        if c not in table.columns:
+            table[c] = ""
+    table = table.reset_index(drop=True)
+    ids, fix_index = fix_identities(fix, tag_c, log.bad, lines, ids)
+    table.insert(1, "fix_id", ids[keep])
+    problems = sorted(log.problems, key=lambda p: (p.source != raw.source, p.line, p.severity != "error"))
+    return Bearings(table=table, problems=problems, fix_index=fix_index, n_rows=n, notes=notes,
+                    source=raw.source, window_min=float(opts.window_min))
+
+
+def _bearings(t, opts, decimal_comma, log: RowLog):
+    unit_c = column(t, "unit")
+    unit, unit_unknown = canonical(unit_c, UNIT_ALIASES, opts.unit)
+    log.reject(unit_unknown, "unit", lambda idx: [f"unknown unit '{unit_c[i]}'; use deg, mil or grad" for i in idx])
+    b_c = column(t, "bearing")
+    c = numbers(b_c, decimal_comma)
+    log.reject(c.empty, "bearing", "bearing is missing")
+    log.reject(c.bad, "bearing", c.error)
+    b = c.values
+    full = per_value(unit, lambda u: FULL_CIRCLE.get(u, 360.0)).astype(float)
+    with np.errstate(invalid="ignore"):
+        log.reject((b < 0) & ~unit_unknown, "bearing", lambda idx: [
+            f"{b[i]:g} is negative; bearings run 0 to {full[i]:g} clockwise (write {full[i] + b[i]:g})" for i in idx])
+        log.reject((b > full) & ~unit_unknown, "bearing", lambda idx: [_range_hint(b[i], unit[i]) for i in idx])
+    return b * per_value(unit, lambda u: DEGREES_PER_UNIT.get(u, 1.0)).astype(float), b
+
+
+def _sds(t, opts, decimal_comma, log: RowLog):
+    c = numbers(column(t, "sd"), decimal_comma)
+    log.reject(c.bad, "sd", c.error)
+    sd = c.values
+    with np.errstate(invalid="ignore"):
+        log.reject(~c.empty & ~c.bad & ((sd < MIN_SD_DEG) | (sd >= 90)), "sd", lambda idx: [
+            f"{sd[i]:g} is not a usable bearing SD; give degrees from {MIN_SD_DEG:g} to below 90" for i in idx])
+    sd_from = np.where(c.empty, "", "sheet").astype(object)
+    if opts.sd is not None:
+        sd = np.where(c.empty, float(opts.sd), sd)
+        sd_from = np.where(c.empty, "option", sd_from).astype(object)
+    return sd, sd_from
+
+
+def _declinations(t, opts, decimal_comma, log: RowLog, north, n):
+    c = declinations(column(t, "declination"), decimal_comma)
+    log.reject(c.bad, "declination", c.error)
+    dec = c.values
+    with np.errstate(invalid="ignore"):
+        log.reject(np.abs(np.nan_to_num(dec)) > 180, "declination",
+                   lambda idx: [f"{dec[i]:g} is outside -180..180" for i in idx])
+    empty = c.empty
+    if opts.declination is not None:
+        dec = np.where(empty, float(opts.declination), dec)
+        empty = np.zeros(n, bool)
+    log.warn(~c.empty & (north != "magnetic"), "declination",
+             "declination given for a bearing that is not magnetic; it was not applied")
+    return dec, empty
+
+
+def _range_hint(value, unit):
+    if unit == "deg":
+        if value <= 400:
+            return f"{value:g} is out of range for degrees (grads? set unit to grad)"
+        if value <= 6400:
+            return f"{value:g} is out of range for degrees (mils? set unit to mil)"
+        return f"{value:g} is out of range for degrees"
+    return f"{value:g} is out of range for {unit}s (0 to {FULL_CIRCLE[unit]:g})"
+
+
+def check_sheet(sheet, options: ReadOptions | None = None, **kwargs) -> tuple[pd.DataFrame, list[Problem]]:
+    """The Python form of ``dfkit check``: the normalized table and the problems."""
+    b = read_bearings(sheet, options, **kwargs)
+    return b.table, b.problems
