@@ -484,13 +484,17 @@ def _residual(phi, dx, dy):
     return np.arctan2(sp * dy - cp * dx, sp * dx + cp * dy)
 
 
-def _s_and_grad(phi, sx, sy, v, px, py):
-    """S at one point per fix (px, py), with the Gauss-Newton gradient terms. Bearings are (M, n)."""
+def _at(phi, sx, sy, px, py):
+    """Offsets, squared distances, residuals and bearing gradients at one point per fix (bearings (M, n))."""
     dx = px[:, None] - sx
     dy = py[:, None] - sy
     d2 = np.maximum(dx * dx + dy * dy, 1e-18)
-    r = _residual(phi, dx, dy)
-    gx, gy = dy / d2, -dx / d2
+    return dx, dy, d2, _residual(phi, dx, dy), dy / d2, -dx / d2
+
+
+def _s_and_grad(phi, sx, sy, v, px, py):
+    """S at one point per fix (px, py), with the Gauss-Newton gradient terms. Bearings are (M, n)."""
+    _, _, _, r, gx, gy = _at(phi, sx, sy, px, py)
     vr = v * r
     return ((vr * r).sum(1), (vr * gx).sum(1), (vr * gy).sum(1), (v * gx * gx).sum(1), (v * gx * gy).sum(1),
             (v * gy * gy).sum(1))
@@ -498,11 +502,7 @@ def _s_and_grad(phi, sx, sy, v, px, py):
 
 def _hessian(phi, sx, sy, v, px, py):
     """Half the Hessian of S at (px, py): sum v (g g^T - r dg/dP), dg/dP = [[-2xy, x2-y2], [x2-y2, 2xy]]/d^4."""
-    dx = px[:, None] - sx
-    dy = py[:, None] - sy
-    d2 = np.maximum(dx * dx + dy * dy, 1e-18)
-    r = _residual(phi, dx, dy)
-    gx, gy = dy / d2, -dx / d2
+    dx, dy, d2, r, gx, gy = _at(phi, sx, sy, px, py)
     k = v * r / (d2 * d2)
     return ((v * gx * gx + 2 * k * dx * dy).sum(1), (v * gx * gy - k * (dx * dx - dy * dy)).sum(1),
             (v * gy * gy - 2 * k * dx * dy).sum(1))

@@ -40,6 +40,15 @@ class _Compact:
             self.idx = self.idx[running[self.cg_all[self.idx]]]
             self.cg = np.searchsorted(self.grp, self.cg_all[self.idx])
 
+    def rounds(self, ending, max_iter):
+        """Up to ``max_iter`` rounds while any fix is running: yields (bearings, fixes, their compact fix index)."""
+        for _ in range(max_iter):
+            running = ending == RUNNING
+            if not running.any():
+                return
+            self.refresh(running)
+            yield self.idx, self.grp, self.cg
+
 
 def optimise(terms, objective, geo, cg, mg, x, y, w, s, c, tol, max_iter, r_run):
     """Minimise sum f(r_i) for every fix from (x, y): Newton steps where the Newton matrix is
@@ -57,13 +66,8 @@ def optimise(terms, objective, geo, cg, mg, x, y, w, s, c, tol, max_iter, r_run)
     else:
         r, dx, dy, d2 = residuals(geo.sp, geo.cp, geo.sx, geo.sy, x[cg], y[cg])
     F = gsum(cg, objective(r, w, s, c), mg)
-    box = _Compact(cg, mg)
-    for _ in range(max_iter):
+    for idx, grp, bcg in _Compact(cg, mg).rounds(ending, max_iter):
         running = ending == RUNNING
-        if not running.any():
-            break
-        box.refresh(running)
-        idx, grp, bcg = box.idx, box.grp, box.cg
         n_g = len(grp)
         f, f1, a, f2 = terms(r[idx], w[idx], s[idx], c)
         gx, gy = dy[idx] / d2[idx], -dx[idx] / d2[idx]
@@ -153,13 +157,8 @@ def fixed_point(geo, cg, mg, x, y, w, tol, max_iter, r_run):
     last = np.full(mg, np.inf)
     lx = np.zeros(mg)
     ly = np.zeros(mg)
-    box = _Compact(cg, mg)
-    for _ in range(max_iter):
+    for idx, grp, bcg in _Compact(cg, mg).rounds(ending, max_iter):
         running = ending == RUNNING
-        if not running.any():
-            break
-        box.refresh(running)
-        idx, grp, bcg = box.idx, box.grp, box.cg
         qx, qy, ratio = stansfield.step(bcg, len(grp), geo.sx[idx], geo.sy[idx], geo.phi[idx], w[idx],
                                         x[grp], y[grp])
         live = running[grp]
