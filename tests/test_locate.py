@@ -227,3 +227,15 @@ def test_unknown_method_and_bad_level_are_named(write_sheet):
         locate(b, method="lenth")
     with pytest.raises(ValueError, match=r"level=1.5 must be a probability"):
         locate(b, level=1.5)
+
+
+def test_nearly_parallel_lines_are_not_called_parallel(write_sheet):
+    # 0.5 degrees apart from stations 760 m apart: converging they meet ~87 km ahead (a far, shallow crossing);
+    # diverging they meet only behind the observers. Neither is parallel; bearings of 0 and 0 are.
+    rows = [("FAR", 47.0, 15.0, 0.5, 3, ""), ("FAR", 47.0, 15.01, 0.0, 3, ""),
+            ("DIV", 47.0, 15.0, 359.5, 3, ""), ("DIV", 47.0, 15.01, 0.0, 3, ""),
+            ("PAR", 47.0, 15.0, 0.0, 3, ""), ("PAR", 47.0, 15.01, 0.0, 3, "")]
+    fixes = locate(read_bearings(write_sheet(sheet_of(rows))))
+    assert status_of(fixes, "FAR")[0] == "shallow" and "cross at" in status_of(fixes, "FAR")[1]
+    assert status_of(fixes, "DIV")[0] == "diverging" and "parallel" not in status_of(fixes, "DIV")[1].split(":")[0]
+    assert status_of(fixes, "PAR")[0] == "parallel"

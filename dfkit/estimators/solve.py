@@ -29,8 +29,15 @@ from dfkit.estimators.plane import geometry, residuals
 from dfkit.estimators.robust import MAX_SCALE, start_scale
 from dfkit.estimators.starts import choose, objective_score, trimmed_score
 
-#: Observed bearing lines whose doubled-angle spread is below this are parallel [°].
-PARALLEL_DEG = 0.5
+#: Observed bearing lines whose doubled-angle spread is below this are parallel [°]: two lines this close
+#: to parallel would meet about 1/0.0035 = 290 station spreads away, beyond the runaway limit below (two
+#: bearings of 0° taken 1.5 km apart at 47°N are parallel here, though their meridians meet at the pole).
+#: Lines a little less parallel are solved, and end as far crossings (flagged) or as lines that do not meet
+#: in front of the observers (diverging).
+PARALLEL_DEG = 0.2
+#: Smallest bearing SD accepted [°]: far below any direction finder, and keeps 1/SD^2 well inside floating
+#: point range.
+MIN_SD_DEG = 1e-4
 #: An estimate farther than this many times the stations' spread from their centroid has run away
 #: (the lines do not meet). A numerical limit, not a field rule: two lines at the 0.5-degree
 #: parallel limit meet about 115 spreads away.
@@ -122,9 +129,10 @@ def _check_inputs(lat, lon, theta, g, m, sd):
         raise ValueError("lat= must be within -90..90 degrees")
     if n and ((g < 0).any() or (g >= m).any()):
         raise ValueError(f"group= must hold fix indices 0..n_groups-1 (n_groups={m})")
-    bad_sd = ~np.isnan(sd) & ~((sd > 0) & np.isfinite(sd))
+    bad_sd = ~np.isnan(sd) & ~((sd >= MIN_SD_DEG) & np.isfinite(sd))
     if bad_sd.any():
-        raise ValueError(f"sd_deg= must be positive and finite, or NaN where unknown (found {sd[bad_sd][:3]})")
+        raise ValueError(f"sd_deg= must be positive and finite (at least {MIN_SD_DEG:g} degrees), or NaN where "
+                         f"unknown (found {sd[bad_sd][:3]})")
 
 
 def solve(lat, lon, bearing_deg, group, n_groups, sd_deg=None, *, method="mle", robust_c=None,

@@ -132,8 +132,9 @@ def classify(f: FixFacts):
         elif end == "parallel":
             flags.append(("parallel", _parallel_text(sol, sel)))
         elif end in ("runaway", "singular"):
-            flags.append(("diverging", "the bearing lines do not meet in front of the observers: the best point "
-                                       "runs off along the bearings"))
+            flags.append(("diverging", "the bearing lines do not meet in front of the observers within reach: "
+                                       "the best point runs off along the bearings (they point apart, or are so "
+                                       "nearly parallel that they meet only very far away)"))
         elif end == "at_station":
             near = sel[np.argmin(sol.range_m[sel])]
             flags.append(("on_station", f"the best point creeps onto the observer at line {f.lines[near]}: that "
@@ -201,8 +202,9 @@ def classify(f: FixFacts):
         if flags:
             status[i] = flags[0][0]
             reasons[i].extend(text for _, text in flags)
-        # what each bearing says about the fix
-        if n >= 2 and end not in ("too_few", "parallel"):
+        # what each bearing says about the fix (only where the fix is a verified optimum: elsewhere the
+        # residuals are taken at an arbitrary point)
+        if n >= 2 and sol.converged[i]:
             for j in sel[reversed_b[sel]][:3]:
                 reasons[i].append(f"line {f.lines[j]} looks reversed by 180°: it misses by {res[j]:+.0f}° "
                                   "(read from the back of the antenna?); check it and enter it turned by 180°")
