@@ -149,3 +149,39 @@ def test_threshold_matches_scipy_quantiles():
 def test_level_is_checked():
     with pytest.raises(ValueError, match=r"level=0 must be a probability"):
         regions.likelihood_regions([0.0], [0.0], [], [], [], [], [], [], [], [], [True], [0], 0)
+
+
+def test_regions_that_are_not_star_shaped_are_said_so_and_drawn_as_their_envelope():
+    # Fixes with a wild bearing sometimes have a region that a ray leaves and re-enters. Such regions are
+    # flagged, and each ray is drawn to its last exit: with geographiclib residuals, S is at the bound there,
+    # above it just beyond, and above it somewhere inside along at least one ray (the gap).
+    from .simulation import scenario
+
+    sc = scenario(400, 3, 5.0, np.random.default_rng(31), outlier=True)
+    n_fix = 400
+    g = np.repeat(np.arange(n_fix), 3)
+    lat, lon, b = sc["lat"].ravel(), sc["lon"].ravel(), sc["bearing"].ravel()
+    s = estimators.solve(lat, lon, b, g, n_fix, np.full(3 * n_fix, 5.0))
+    L = regions.likelihood_regions(s.lat, s.lon, g, lat, lon, b, s.range_m, s.azimuth_from_fix_deg, s.residual_deg,
+                                   s.region_weight, s.sd_known, s.dof, 0.95, valid=s.converged)
+    odd = np.flatnonzero(L.has_region & ~L.star_shaped & L.bounded)
+    assert len(odd) >= 1
+    i = odd[0]
+    st = np.column_stack([sc["lat"][i], sc["lon"][i]])
+    w = np.full(3, 1.0 / np.radians(5.0) ** 2)
+    T = L.threshold[i]
+    psi = np.radians(L.ray_azimuth_deg)
+
+    def S_along(k, rho):
+        x = L.centre_x[i] + rho * np.sin(psi[k])
+        y = L.centre_y[i] + rho * np.cos(psi[k])
+        d = WGS.Direct(L.fix_lat[i], L.fix_lon[i], np.degrees(np.arctan2(x, y)), np.hypot(x, y))
+        return S_exact(st, sc["bearing"][i], w, (d["lat2"], d["lon2"]))
+
+    gaps = 0
+    for k in range(len(psi)):
+        rho = L.radius_m[i, k]
+        assert S_along(k, rho) == pytest.approx(T, rel=1e-3)
+        assert S_along(k, rho * 1.01) > T
+        gaps += any(S_along(k, f * rho) > T for f in np.linspace(0.05, 0.95, 19))
+    assert gaps >= 1

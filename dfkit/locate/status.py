@@ -105,7 +105,8 @@ def classify(f: FixFacts):
         near_obs = np.zeros(m, bool)
         np.logical_or.at(near_obs, g, near_b)
         long_span = (f.gap_min > f.window_min) | (f.span_min > FIX_SPAN_WINDOWS * f.window_min)
-        attention = (near_obs | long_span | (f.counts < 2) | (f.spread_m < ONE_SPOT_M) | (ending != _E["optimum"])
+        star = regions.star_shaped | ~regions.has_region if regions is not None else np.ones(m, bool)
+        attention = (~star | near_obs | long_span | (f.counts < 2) | (f.spread_m < ONE_SPOT_M) | (ending != _E["optimum"])
                      | sol.behind | ~sol.converged | inconsistent | ~bounded | ~has_region | no_cov
                      | (sol.crossing_deg < SHALLOW_CROSSING_DEG) | notable)
     attention |= np.array([len(r) > 0 for r in f.rejected], bool)
@@ -222,6 +223,9 @@ def classify(f: FixFacts):
                 else:
                     reasons[i].append(f"line {f.lines[j]} down-weighted to {w[j]:.2f}")
         reasons[i].extend(f.hints.get(i, []))
+        if regions is not None and has_region[i] and not regions.star_shaped[i]:
+            reasons[i].append("the region is not star-shaped about its centre: a ray leaves it and comes back; "
+                              "it is drawn as its outer envelope")
         if mismatch[i] and status[i] in ("ok", "shallow", "long_span", "inconsistent"):
             reasons[i].append(f"the ellipse is a poor summary here: the likelihood region is {ratio[i]:.1f}x its "
                               "area (use the region)")
