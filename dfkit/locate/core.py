@@ -13,11 +13,12 @@ import pandas as pd
 from dfkit import estimators, geodesy, regions
 from dfkit.locate.fixes import FIX_COLUMNS, WITH_POSITION, Fixes
 from dfkit.locate.hints import one_bearing_hints
-from dfkit.locate.status import FixFacts, classify
+from dfkit.locate.status import FixFacts, classify, consistency
+
+#: Inconsistent fixes with a chi-square p-value at least this are not searched for one bad line.
+HINT_P = 1e-3
 from dfkit.observations import Bearings, ReadOptions, read_bearings
 
-#: Per-bearing SD sources that count as given by the user.
-_GIVEN = {"sheet": "given", "option": "given", "given": "given", "calibration": "calibration"}
 
 
 def locate(bearings: Bearings, *, method: str = "mle", level: float = 0.95, window_min: float | None = None,
@@ -91,7 +92,11 @@ def locate(bearings: Bearings, *, method: str = "mle", level: float = 0.95, wind
                      lines=lines, rejected=fix_index["rejected_lines"].tolist(), ellipse_area=ell.area_m2,
                      ellipse_minor=ell.semi_minor_m, regions=lik, level=float(level), hints={})
     status, reasons = classify(facts)
-    hints = one_bearing_hints(lat, lon, theta, sd, g, counts, lines, status, method, robust_c)
+    # a fix only mildly inconsistent (1 clean fix in 100 is) is not worth a search for the one bad line
+    _, p = consistency(sol, g, m, lik)
+    with np.errstate(invalid="ignore"):
+        mild = (status == "inconsistent") & (p >= HINT_P)
+    hints = one_bearing_hints(lat, lon, theta, sd, g, counts, lines, np.where(mild, "", status), method, robust_c)
     if hints:
         facts.hints = hints
         status, reasons = classify(facts)
@@ -132,9 +137,8 @@ def _sd_source(b, g, m, sol, has_pos):
     out = np.full(m, "", dtype=object)
     if not len(b):
         return out
-    src = b["sd_source"].astype(str).map(lambda s: _GIVEN.get(s, "given")).to_numpy() if "sd_source" in b \
-        else np.full(len(b), "given", dtype=object)
-    cal = np.bincount(g, (src == "calibration").astype(float), m)
+    is_cal = (b["sd_source"].to_numpy(dtype=object) == "calibration") if "sd_source" in b else np.zeros(len(b), bool)
+    cal = np.bincount(g, is_cal.astype(float), m)
     n = np.bincount(g, minlength=m)
     given = np.where(cal == n, "calibration", np.where(cal == 0, "given", "given+calibration"))
     out[:] = np.where(sol.sd_known, given, np.where(sol.dof > 0, "estimated", ""))
