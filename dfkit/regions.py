@@ -382,7 +382,7 @@ def region_threshold(s_min, known, dof, level, known_dof=None):
 
 def likelihood_regions(fix_lat, fix_lon, g, station_lat, station_lon, bearing_deg, range_m, azimuth_from_fix_deg,
                        residual_deg, weight, known, dof, level, *, known_dof=None, valid=None, n_rays=N_RAYS,
-                       chunk=20_000) -> LikelihoodRegions:
+                       chunk=5_000) -> LikelihoodRegions:
     """Likelihood-ratio regions of many fixes (module docstring), vectorised.
 
     Parameters
@@ -584,7 +584,7 @@ def _march(sx, sy, phi, v, known, dof, kdof, level, psi, draw, fix_lat, fix_lon,
     # Where S is close to its quadratic model at the first guess's edge, one evaluation settles the edge
     # (the quadratic correction of rho is then within 3e-5 of the root); elsewhere a safeguarded Newton
     # search follows. With bearing SDs of a few degrees the edge is typically 5 % off the quadratic
-    # model, so most rays take two or three Newton steps.
+    # model, so most rays take one or two Newton steps.
     f0, _ = _ray_f(phi, sx, sy, v, cx, cy, rho, ux, uy, T, derivative=False)
     gap = (T - s_min)[:, None]
     with np.errstate(divide="ignore", invalid="ignore"):
@@ -606,8 +606,8 @@ def _march(sx, sy, phi, v, known, dof, kdof, level, psi, draw, fix_lat, fix_lon,
         neg = f < 0
         lo_l = np.where(neg, np.maximum(lo_l, r_l), lo_l)
         hi_l = np.where(~neg, np.minimum(hi_l, r_l), hi_l)
-        # |f| within 1e-4 of the gap T - S_min: the radius within about 5e-5 of the root
-        conv = (np.abs(f) <= 1e-4 * (T[live] - s_min[live])[:, None]) | (hi_l - lo_l <= 1e-5 * r_l)
+        # |f| within 1e-3 of the gap T - S_min: the radius within about 5e-4 of the root, the area 1e-3
+        conv = (np.abs(f) <= 1e-3 * (T[live] - s_min[live])[:, None]) | (hi_l - lo_l <= 1e-5 * r_l)
         done = conv | (neg & (r_l >= R_l))
         with np.errstate(divide="ignore", invalid="ignore"):
             newton = r_l - f / df
