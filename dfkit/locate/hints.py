@@ -89,8 +89,9 @@ def one_bearing_hints(lat, lon, bearing, sd, g, counts, lines, status, method, r
             r_new = sol.residual_deg[sel_v]
             if np.all(np.abs(r_new) <= max(WILD_SD * float(sol.sd_deg[v]), 1e-9)) or len(flips) == 1:
                 out.setdefault(int(i), []).append(
-                    f"with line {lines[j]} turned by 180° ({(bearing[j] + 180.0) % 360.0:.1f}°) the bearings agree: "
-                    f"it looks reversed; check it and enter it turned")
+                    f"line {lines[j]} looks reversed by 180°: with line {lines[j]} turned by 180° "
+                    f"({(bearing[j] + 180.0) % 360.0:.1f}°) the bearings agree; check it (read from the back of "
+                    "the antenna?) and enter it turned")
                 said = True
         if not said and drops:
             best = drops[0]

@@ -206,7 +206,10 @@ def classify(f: FixFacts):
         # what each bearing says about the fix (only where the fix is a verified optimum: elsewhere the
         # residuals are taken at an arbitrary point)
         if n >= 2 and sol.converged[i]:
+            hinted = " ".join(f.hints.get(i, []))
             for j in sel[reversed_b[sel]][:3]:
+                if f"line {f.lines[j]} turned by 180°" in hinted:
+                    continue             # the hint says it, with the bearing that fits
                 reasons[i].append(f"line {f.lines[j]} looks reversed by 180°: it misses by {res[j]:+.0f}° "
                                   "(read from the back of the antenna?); check it and enter it turned by 180°")
             shown = set(sel[reversed_b[sel]][:3].tolist())
