@@ -40,31 +40,7 @@ def _lon(x):
     return float(((x + 180.0) % 360.0) - 180.0) if abs(x) > 180.0 else float(x)
 
 
-def split_ring(lat, lon):
-    """Split a polygon ring with continuous longitudes at the antimeridian.
-
-    Returns a list of rings ([lon, lat] lists, counter-clockwise, closed).
-    """
-    from shapely.geometry import Polygon, box
-    from shapely.geometry.polygon import orient
-
-    poly = Polygon(np.column_stack([lon, lat]))
-    if not poly.is_valid:
-        poly = poly.buffer(0)
-    rings = []
-    for k in range(-2, 3):
-        part = poly.intersection(box(-180.0 + 360 * k, -90.0, 180.0 + 360 * k, 90.0))
-        if part.is_empty:
-            continue
-        geoms = getattr(part, "geoms", [part])
-        for gpart in geoms:
-            if gpart.geom_type != "Polygon" or gpart.area == 0:
-                continue
-            gpart = orient(gpart, 1.0)
-            coords = np.asarray(gpart.exterior.coords)
-            coords[:, 0] -= 360 * k
-            rings.append([[float(x), float(y)] for x, y in coords])
-    return rings
+split_ring = regions.split_ring     # lives with the regions it mostly splits (a fix's package uses it)
 
 
 def bearing_line_length(range_m, spread_m):

@@ -36,6 +36,31 @@ DEFAULT_TRACK_GAP_S = 60.0
 #: aircraft flying a telemetry survey; a point that leaps away and back faster than this is a GPS glitch.
 TRACK_MAX_SPEED_MS = 150.0
 
+#: With a known bearing SD, a fix whose residuals' chi-square (n_used - 2 degrees of freedom) has a
+#: p-value below this is flagged ``inconsistent``: the bearings disagree more than their SD allows.
+#: A conventional significance level (our choice, checked by benchmarks/coverage.py: about 1 clean fix in
+#: 100 is flagged, while 1 in 1000 let a third of the three-bearing fixes with a wild bearing through).
+INCONSISTENT_P = 0.01
+
+#: With the SD estimated from the fix itself, an estimate above this is flagged ``inconsistent`` [°].
+#: Common practice, no single source: published beacon trials report bearing errors of a few degrees
+#: (SD 1.6° in Podruzny 1996, MSc thesis, Montana State Univ.; 4.9-9.9° at 900 m in Grovenburg et al.
+#: 2013, Wildlife Biology 19(1) [abstracts]); twice the larger is taken as the limit of plausible.
+PLAUSIBLE_SD_DEG = 20.0
+
+#: A bearing missing its fix by more than this looks reversed by 180 degrees (read from the back of the
+#: antenna) [°]. Common practice, no single source.
+REVERSED_DEG = 150.0
+
+#: The ellipse is called a poor summary of a fix's likelihood region when their areas differ by more
+#: than this factor (our choice, for the reason text only).
+ELLIPSE_MISMATCH = 1.5
+
+#: A fix closer to an observer than this fraction of its farthest observer's range is flagged
+#: ``near_observer``: that bearing hardly constrains it, and a wild bearing can make a false crossing there
+#: look consistent. Our choice, checked by benchmarks/coverage.py.
+NEAR_OBSERVER = 0.05
+
 #: Home ranges from fewer fixes than this are computed but flagged 'few_fixes'. Common practice; Seaman
 #: et al. (1999, J. Wildl. Manage. 63(2) 739-747 [from memory]) advise at least 30 fixes per animal
 #: for kernel estimates.

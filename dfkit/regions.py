@@ -1,4 +1,24 @@
-"""Confidence regions: error ellipses at a stated probability, and error polygons.
+"""Confidence regions: likelihood-ratio regions, error ellipses at a stated probability, and error polygons.
+
+Likelihood-ratio region (the honest one; :func:`likelihood_regions`): with
+S(x) = sum_i v_i r_i(x)^2, r_i(x) the geodesic residual of bearing i at a
+candidate point x and v_i = 1/sigma_i^2 (times the robust weight),
+
+* SD known: R = { x : S(x) - S_min <= chi2_2(level) };
+* SD estimated from n >= 3 bearings (v_i the robust weights alone):
+  R = { x : S(x) <= S_min (1 + 2/(n - 2) F(2, n - 2; level)) }
+
+(E. M. L. Beale, "Confidence regions in non-linear estimation", J. R. Statist.
+Soc. B 22(1), 41-88, 1960; D. M. Bates & D. G. Watts, *Nonlinear Regression
+Analysis and Its Applications*, Wiley, 1988, sec. 6.1 [section from memory]).
+With two bearings and a known SD, S at the true point is exactly chi-square with
+2 degrees of freedom under Gaussian bearing errors and S_min = 0 where the lines
+cross in front of both stations, so the region's coverage is exact; it may be
+unbounded (nearly parallel lines), which is said, and it is then drawn to a
+stated range. It is traced by marching rays from the minimum of S in the fix's
+exact local plane, vectorised over all fixes; rays are checked for
+star-shapedness, and fixes spanning hundreds of kilometres are refined with
+exact geodesic residuals.
 
 Ellipse: the region (P - P^)^T Cov^-1 (P - P^) <= k^2 in the local east/north
 plane of the fix, drawn on the ellipsoid through the exact azimuthal
@@ -54,6 +74,46 @@ def scale_factor(level, dof=None):
     with np.errstate(invalid="ignore", over="ignore"):
         f = (m / 2.0) * np.expm1(-(2.0 / m) * np.log1p(-level))
     return np.where(known, np.sqrt(chi2), np.sqrt(2.0 * f))
+
+
+def chi2_sf(x, dof):
+    """Upper tail P(X > x) of chi-square with integer ``dof`` degrees of freedom (arrays).
+
+    Exact finite series for dof <= 200 (Abramowitz & Stegun 1964, eq. 26.4.4 and 26.4.5 [from
+    memory]; checked against scipy.stats.chi2 in the tests), the Wilson-Hilferty cube-root
+    approximation above (E. B. Wilson & M. M. Hilferty, Proc. Natl. Acad. Sci. 17, 684-688, 1931).
+    NaN where dof < 1.
+    """
+    from math import erfc, sqrt
+
+    x = np.asarray(x, float)
+    dof = np.asarray(dof)
+    x, dof = np.broadcast_arrays(x, dof)
+    out = np.full(x.shape, np.nan)
+    h = np.maximum(x, 0.0) / 2.0
+    for k in np.unique(dof[(dof >= 1) & (dof <= 200)]):
+        sel = dof == k
+        hx = h[sel]
+        if k % 2 == 0:
+            term = np.exp(-hx)
+            acc = term.copy()
+            for j in range(1, int(k) // 2):
+                term = term * hx / j
+                acc += term
+        else:
+            rx = np.sqrt(2.0 * hx)
+            acc = np.array([erfc(v / sqrt(2.0)) for v in rx])
+            term = np.sqrt(4.0 * hx / np.pi) * np.exp(-hx)
+            for j in range(1, (int(k) + 1) // 2):
+                acc += term
+                term = term * 2.0 * hx / (2 * j + 1)
+        out[sel] = np.clip(acc, 0.0, 1.0)
+    big = dof > 200
+    if big.any():
+        kk = dof[big].astype(float)
+        z = ((x[big] / kk) ** (1.0 / 3.0) - (1.0 - 2.0 / (9.0 * kk))) / np.sqrt(2.0 / (9.0 * kk))
+        out[big] = np.array([0.5 * erfc(v / sqrt(2.0)) for v in z])
+    return out
 
 
 @dataclass(frozen=True)
@@ -141,3 +201,503 @@ def error_polygon(station_lat, station_lon, bearing_deg, sd_deg, fix_lat, fix_lo
     plat, plon = geodesy.from_local(fix_lat, fix_lon, x, y)
     plon = fix_lon + (plon - fix_lon + 180.0) % 360.0 - 180.0
     return plat, plon
+
+
+def split_ring(lat, lon):
+    """Split a polygon ring with continuous longitudes at the antimeridian (RFC 7946 section 3.1.9).
+
+    Returns a list of rings ([lon, lat] lists, counter-clockwise, closed).
+    """
+    from shapely.geometry import Polygon, box
+    from shapely.geometry.polygon import orient
+
+    poly = Polygon(np.column_stack([lon, lat]))
+    if not poly.is_valid:
+        poly = poly.buffer(0)
+    rings = []
+    for k in range(-2, 3):
+        part = poly.intersection(box(-180.0 + 360 * k, -90.0, 180.0 + 360 * k, 90.0))
+        if part.is_empty:
+            continue
+        geoms = getattr(part, "geoms", [part])
+        for gpart in geoms:
+            if gpart.geom_type != "Polygon" or gpart.area == 0:
+                continue
+            gpart = orient(gpart, 1.0)
+            coords = np.asarray(gpart.exterior.coords)
+            coords[:, 0] -= 360 * k
+            rings.append([[float(x), float(y)] for x, y in coords])
+    return rings
+
+
+# --------------------------------------------------------------------------------------------------
+# Likelihood-ratio regions
+
+#: Rays per region: the area uses the trapezoid rule on rho^2, exact to high order for smooth rings.
+N_RAYS = 32
+#: Regions are drawn (and called unbounded) out to this many times the largest station range [m].
+DRAW_RANGE_FACTOR = 20.0
+#: Bounds of the drawing range [m].
+DRAW_RANGE_MIN_M = 5_000.0
+DRAW_RANGE_MAX_M = 2_000_000.0
+#: A ray whose S at the covariance ellipse's edge is within this fraction of the threshold gap is
+#: settled by the quadratic correction alone (its error is about a quarter of the square of that fraction).
+NEAR_QUADRATIC = 1e-2
+#: Fixes whose plane residuals may differ from geodesic ones by more than this fraction of a bearing SD
+#: at the region's edge are refined with exact geodesic residuals.
+PLANE_TOLERANCE = 0.01
+_EARTH_R = 6_371_000.0
+_TWO_PI = 2.0 * np.pi
+
+
+def _wrap(a):
+    return (a + np.pi) % _TWO_PI - np.pi
+
+
+@dataclass
+class LikelihoodRegions:
+    """Likelihood-ratio regions of many fixes (see the module docstring).
+
+    Per fix (length m): ``fix_lat``, ``fix_lon`` the fix [°]; ``has_region``;
+    ``centre_x``, ``centre_y`` the minimum of S in the fix's plane [m east/north
+    of the fix]; ``radius_m`` (m, n_rays) distance from that centre to the edge
+    along each ray; ``bounded``; ``area_m2`` (NaN when unbounded); ``reach_m``
+    farthest distance from the fix to the edge (the drawing range when
+    unbounded); ``draw_range_m``; ``star_shaped`` (every ray leaves the region
+    once); ``s_min`` and ``threshold`` (the region is S <= threshold).
+    ``ray_azimuth_deg`` (n_rays,) the rays' azimuths [°].
+
+    The bearings (grouped by ``g``) are kept so that :meth:`contains` can test
+    any point exactly with geodesic residuals.
+    """
+
+    fix_lat: np.ndarray
+    fix_lon: np.ndarray
+    has_region: np.ndarray
+    centre_x: np.ndarray
+    centre_y: np.ndarray
+    radius_m: np.ndarray
+    ray_azimuth_deg: np.ndarray
+    bounded: np.ndarray
+    area_m2: np.ndarray
+    reach_m: np.ndarray
+    draw_range_m: np.ndarray
+    star_shaped: np.ndarray
+    s_min: np.ndarray
+    threshold: np.ndarray
+    level: float
+    g: np.ndarray
+    station_lat: np.ndarray
+    station_lon: np.ndarray
+    bearing_deg: np.ndarray
+    weight: np.ndarray
+
+    def __len__(self) -> int:
+        return len(self.fix_lat)
+
+    def ring(self, i, n_vertices=None):
+        """The region of fix ``i`` as a closed ring of (lat, lon) arrays (longitudes unwrapped),
+        or None when it has none. ``n_vertices`` resamples the rays (default: the rays themselves)."""
+        if not self.has_region[i]:
+            return None
+        rho = self.radius_m[i]
+        psi = np.radians(self.ray_azimuth_deg)
+        if n_vertices and n_vertices != len(psi):
+            # periodic linear interpolation of the radius in azimuth
+            t = np.linspace(0.0, _TWO_PI, int(n_vertices), endpoint=False)
+            rho = np.interp(t, np.append(psi, _TWO_PI), np.append(rho, rho[0]))
+            psi = t
+        x = self.centre_x[i] + rho * np.sin(psi)
+        y = self.centre_y[i] + rho * np.cos(psi)
+        lat, lon = geodesy.from_local(self.fix_lat[i], self.fix_lon[i], x, y)
+        lon = self.fix_lon[i] + (lon - self.fix_lon[i] + 180.0) % 360.0 - 180.0
+        return np.append(lat, lat[0]), np.append(lon, lon[0])
+
+    def rings(self, rows):
+        """Regions of fixes ``rows`` as closed rings, vectorised: (rows, lat, lon) with lat, lon of shape
+        (len(rows), n_rays + 1) [°], longitudes unwrapped about each fix."""
+        rows = np.asarray(rows, np.int64)
+        psi = np.radians(self.ray_azimuth_deg)[None, :]
+        rho = self.radius_m[rows]
+        x = self.centre_x[rows, None] + rho * np.sin(psi)
+        y = self.centre_y[rows, None] + rho * np.cos(psi)
+        lat0 = self.fix_lat[rows, None]
+        lon0 = self.fix_lon[rows, None]
+        lat, lon = geodesy.forward(lat0, lon0, np.degrees(np.arctan2(x, y)), np.hypot(x, y))
+        lon = lon0 + (lon - lon0 + 180.0) % 360.0 - 180.0
+        return rows, np.concatenate([lat, lat[:, :1]], axis=1), np.concatenate([lon, lon[:, :1]], axis=1)
+
+    def statistic(self, lat, lon):
+        """S(x) - threshold at one point per fix (arrays of length m), with exact geodesic residuals.
+
+        Negative or zero inside the region; NaN for fixes without a region.
+        """
+        lat = np.broadcast_to(np.asarray(lat, float), self.fix_lat.shape)
+        lon = np.broadcast_to(np.asarray(lon, float), self.fix_lat.shape)
+        m = len(self.fix_lat)
+        ok = np.isfinite(lat) & np.isfinite(lon)
+        sel = ok[self.g]
+        az, _, _ = geodesy.inverse(self.station_lat[sel], self.station_lon[sel], lat[self.g[sel]],
+                                   lon[self.g[sel]])
+        r = _wrap(np.radians(self.bearing_deg[sel] - az))
+        s = np.bincount(self.g[sel], self.weight[sel] * r * r, m)
+        return np.where(self.has_region & ok, s - self.threshold, np.nan)
+
+    def contains(self, lat, lon):
+        """Whether each fix's region holds the point (lat[i], lon[i]) (bool array; False without a region).
+
+        Exact: the likelihood-ratio criterion with geodesic residuals, not the drawn ring, so it
+        also answers for unbounded regions beyond their drawing range.
+        """
+        with np.errstate(invalid="ignore"):
+            return np.nan_to_num(self.statistic(lat, lon), nan=1.0) <= 0.0
+
+
+def _f2(level, dof):
+    """The level quantile of F(2, dof), closed form (module scale_factor); dof > 0."""
+    with np.errstate(invalid="ignore", over="ignore", divide="ignore"):
+        return (dof / 2.0) * np.expm1(-(2.0 / dof) * np.log1p(-level))
+
+
+def region_threshold(s_min, known, dof, level, known_dof=None):
+    """The region's bound on S.
+
+    S_min + chi2_2(level) with a known SD; S_min + 2 F(2, known_dof; level) when the known SD was itself
+    measured with ``known_dof`` degrees of freedom (a calibration on a finite number of trials: then
+    (S - S_min)/2 over the SD's own chi-square is F-distributed); S_min (1 + 2 F(2, dof) / dof) when the SD
+    is estimated from the fix (dof = n - 2).
+    """
+    level = float(level)
+    chi2 = -2.0 * np.log1p(-level)
+    dof = np.asarray(dof, float)
+    m = np.where(dof > 0, dof, 1.0)
+    f = _f2(level, m)
+    known_bound = np.full(np.shape(s_min), chi2)
+    if known_dof is not None:
+        kd = np.asarray(known_dof, float)
+        fin = np.isfinite(kd) & (kd > 0)
+        known_bound = np.where(fin, 2.0 * _f2(level, np.where(fin, kd, 1.0)), chi2)
+    return np.where(known, s_min + known_bound, np.where(dof > 0, s_min * (1.0 + 2.0 * f / m), np.nan))
+
+
+def likelihood_regions(fix_lat, fix_lon, g, station_lat, station_lon, bearing_deg, range_m, azimuth_from_fix_deg,
+                       residual_deg, weight, known, dof, level, *, known_dof=None, valid=None, n_rays=N_RAYS,
+                       chunk=5_000) -> LikelihoodRegions:
+    """Likelihood-ratio regions of many fixes (module docstring), vectorised.
+
+    Parameters
+    ----------
+    fix_lat, fix_lon : array_like, shape (m,)
+        The fixes. [°]
+    g : array_like of int, shape (N,)
+        Fix of each bearing.
+    station_lat, station_lon, bearing_deg : array_like, shape (N,)
+        Stations [°] and observed true bearings [°].
+    range_m, azimuth_from_fix_deg, residual_deg : array_like, shape (N,)
+        Geodesic distance [m] and azimuth [°] from the fix to each station, and each bearing's
+        residual at the fix [°] (as :class:`dfkit.estimators.Solution` gives them).
+    weight : array_like, shape (N,)
+        Each bearing's weight in S [rad⁻²]: 1/SD² (times a robust weight) with a known SD,
+        the robust weight (1 for other methods) when the SD is estimated; 0 leaves it out.
+    known : array_like of bool, shape (m,)
+        Whether the fix's SD is known (chi-square bound) or estimated (F bound).
+    dof : array_like of int, shape (m,)
+        Residual degrees of freedom of an estimated SD (n_used - 2).
+    level : float
+        Probability in (0, 1).
+    known_dof : array_like, shape (m,), optional
+        Degrees of freedom of a known SD measured on finitely many trials (inf or NaN: exact).
+    valid : array_like of bool, shape (m,), optional
+        Fixes to compute (default: all with a finite position and at least two weighted bearings).
+    n_rays : int
+        Rays per region.
+    chunk : int
+        Fixes per vectorised batch (bounds the memory).
+    """
+    if not 0.0 < float(level) < 1.0:
+        raise ValueError(f"level={level!r} must be a probability between 0 and 1 (e.g. 0.95)")
+    fix_lat = np.asarray(fix_lat, float)
+    fix_lon = np.asarray(fix_lon, float)
+    m = len(fix_lat)
+    g = np.asarray(g, np.int64)
+    weight = np.nan_to_num(np.asarray(weight, float))
+    d = np.asarray(range_m, float)
+    az = np.radians(np.asarray(azimuth_from_fix_deg, float))
+    r0 = np.radians(np.asarray(residual_deg, float))
+    known = np.asarray(known, bool)
+    dof = np.asarray(dof)
+    kdof = np.full(m, np.inf) if known_dof is None else np.asarray(known_dof, float)
+    n_w = np.bincount(g, (weight > 0).astype(float), m)
+    ok = np.isfinite(fix_lat) & np.isfinite(fix_lon) & (n_w >= 2) & (known | (dof > 0))
+    if valid is not None:
+        ok &= np.asarray(valid, bool)
+    finite_b = np.isfinite(d) & np.isfinite(az) & np.isfinite(r0)
+    ok &= np.bincount(g, (~finite_b).astype(float), m) == 0
+    psi = np.arange(n_rays) * (_TWO_PI / n_rays)
+    out = dict(centre_x=np.full(m, np.nan), centre_y=np.full(m, np.nan), radius_m=np.full((m, n_rays), np.nan),
+               bounded=np.zeros(m, bool), star_shaped=np.ones(m, bool), s_min=np.full(m, np.nan),
+               threshold=np.full(m, np.nan), draw_range_m=np.full(m, np.nan))
+    spread = np.zeros(m)
+    np.maximum.at(spread, g, np.where(np.isfinite(d), d, 0.0))
+    draw = np.clip(DRAW_RANGE_FACTOR * spread, DRAW_RANGE_MIN_M, DRAW_RANGE_MAX_M)
+    order = np.argsort(g, kind="stable")
+    counts = np.bincount(g, minlength=m)
+    offsets = np.concatenate(([0], np.cumsum(counts)[:-1]))
+    slat_all = np.asarray(station_lat, float)
+    slon_all = np.asarray(station_lon, float)
+    theta_all = np.radians(np.asarray(bearing_deg, float))
+    # Fixes with the same number of bearings are marched together as (fixes, bearings, rays) arrays.
+    for n in np.unique(counts[ok]):
+        fixes_n = np.flatnonzero(ok & (counts == n))
+        step = max(1, chunk * 4 // int(n))
+        for k0 in range(0, len(fixes_n), step):
+            fx = fixes_n[k0:k0 + step]
+            idx = order[offsets[fx][:, None] + np.arange(n)[None, :]]       # (M, n)
+            res = _march(d[idx] * np.sin(az[idx]), d[idx] * np.cos(az[idx]), r0[idx] + az[idx] + np.pi,
+                         weight[idx], known[fx], dof[fx], kdof[fx], float(level), psi, draw[fx], fix_lat[fx],
+                         fix_lon[fx],
+                         station_lat=slat_all[idx], station_lon=slon_all[idx], theta=theta_all[idx],
+                         spread=spread[fx])
+            for key, val in res.items():
+                out[key][fx] = val
+            out["draw_range_m"][fx] = draw[fx]
+    rad = out["radius_m"]
+    with np.errstate(invalid="ignore"):
+        area = 0.5 * np.sum(rad * rad, axis=1) * (_TWO_PI / n_rays)
+        reach = np.max(np.hypot(out["centre_x"][:, None] + rad * np.sin(psi),
+                                out["centre_y"][:, None] + rad * np.cos(psi)), axis=1)
+    has = ok & np.isfinite(rad).all(axis=1)
+    bounded = has & out["bounded"]
+    return LikelihoodRegions(
+        fix_lat=fix_lat, fix_lon=fix_lon, has_region=has, centre_x=out["centre_x"], centre_y=out["centre_y"],
+        radius_m=rad, ray_azimuth_deg=np.degrees(psi), bounded=bounded,
+        area_m2=np.where(bounded, area, np.nan), reach_m=np.where(has, reach, np.nan),
+        draw_range_m=out["draw_range_m"], star_shaped=out["star_shaped"] & has, s_min=out["s_min"],
+        threshold=out["threshold"], level=float(level), g=g, station_lat=np.asarray(station_lat, float),
+        station_lon=np.asarray(station_lon, float), bearing_deg=np.asarray(bearing_deg, float),
+        weight=np.where(ok[g], weight, 0.0))
+
+
+def _residual(phi, dx, dy):
+    """Signed angle from the direction (dx, dy) to the observed direction phi [rad], without wrapping."""
+    sp, cp = np.sin(phi), np.cos(phi)
+    return np.arctan2(sp * dy - cp * dx, sp * dx + cp * dy)
+
+
+def _at(phi, sx, sy, px, py):
+    """Offsets, squared distances, residuals and bearing gradients at one point per fix (bearings (M, n))."""
+    dx = px[:, None] - sx
+    dy = py[:, None] - sy
+    d2 = np.maximum(dx * dx + dy * dy, 1e-18)
+    return dx, dy, d2, _residual(phi, dx, dy), dy / d2, -dx / d2
+
+
+def _s_and_grad(phi, sx, sy, v, px, py):
+    """S at one point per fix (px, py), with the Gauss-Newton gradient terms. Bearings are (M, n)."""
+    _, _, _, r, gx, gy = _at(phi, sx, sy, px, py)
+    vr = v * r
+    return ((vr * r).sum(1), (vr * gx).sum(1), (vr * gy).sum(1), (v * gx * gx).sum(1), (v * gx * gy).sum(1),
+            (v * gy * gy).sum(1))
+
+
+def _hessian(phi, sx, sy, v, px, py):
+    """Half the Hessian of S at (px, py): sum v (g g^T - r dg/dP), dg/dP = [[-2xy, x2-y2], [x2-y2, 2xy]]/d^4."""
+    dx, dy, d2, r, gx, gy = _at(phi, sx, sy, px, py)
+    k = v * r / (d2 * d2)
+    return ((v * gx * gx + 2 * k * dx * dy).sum(1), (v * gx * gy - k * (dx * dx - dy * dy)).sum(1),
+            (v * gy * gy - 2 * k * dx * dy).sum(1))
+
+
+def _minimum(phi, sx, sy, v, iterations=20):
+    """Gauss-Newton on S from the fix (the origin), each step accepted only if S does not grow."""
+    M = phi.shape[0]
+    x = np.zeros(M)
+    y = np.zeros(M)
+    S, b1, b2, j11, j12, j22 = _s_and_grad(phi, sx, sy, v, x, y)
+    J = np.stack([j11, j12, j22], 1)
+    live = np.arange(M)
+    for _ in range(iterations):
+        if not len(live):
+            break
+        b1l, b2l, jl = b1[live], b2[live], J[live]
+        det = jl[:, 0] * jl[:, 2] - jl[:, 1] ** 2
+        with np.errstate(divide="ignore", invalid="ignore"):
+            stx = (jl[:, 2] * b1l - jl[:, 1] * b2l) / det
+            sty = (jl[:, 0] * b2l - jl[:, 1] * b1l) / det
+        stx = np.where(np.isfinite(stx), stx, 0.0)
+        sty = np.where(np.isfinite(sty), sty, 0.0)
+        lam = np.ones(len(live))
+        trying = np.arange(len(live))
+        accepted = np.zeros(len(live), bool)
+        for _h in range(30):
+            if not len(trying):
+                break
+            rows = live[trying]
+            out = _s_and_grad(phi[rows], sx[rows], sy[rows], v[rows], x[rows] + lam[trying] * stx[trying],
+                              y[rows] + lam[trying] * sty[trying])
+            ok = out[0] <= S[rows] * (1 + 1e-12) + 1e-300
+            acc = trying[ok]
+            ra = live[acc]
+            x[ra] += lam[acc] * stx[acc]
+            y[ra] += lam[acc] * sty[acc]
+            S[ra], b1[ra], b2[ra] = out[0][ok], out[1][ok], out[2][ok]
+            J[ra] = np.stack([o[ok] for o in out[3:]], 1)
+            accepted[acc] = True
+            trying = trying[~ok]
+            lam[trying] *= 0.5
+        moved = np.where(accepted, lam * np.hypot(stx, sty), 0.0)
+        live = live[accepted & (moved > 1e-6)]
+    return x, y, S, J[:, 0], J[:, 1], J[:, 2]
+
+
+def _ray_f(phi, sx, sy, v, cx, cy, rho, ux, uy, T, derivative=True):
+    """f = S - T along every ray, shape (M, K), and its derivative in rho. Bearings are (M, n)."""
+    px = (cx[:, None] + rho * ux)[:, None, :]
+    py = (cy[:, None] + rho * uy)[:, None, :]
+    dx = px - sx[:, :, None]
+    dy = py - sy[:, :, None]
+    r = _residual(phi[:, :, None], dx, dy)
+    vr = v[:, :, None] * r
+    f = (vr * r).sum(1) - T[:, None]
+    if not derivative:
+        return f, None
+    d2 = np.maximum(dx * dx + dy * dy, 1e-18)
+    dbeta = (dy * ux[:, None, :] - dx * uy[:, None, :]) / d2
+    return f, -2.0 * (vr * dbeta).sum(1)
+
+
+def _march(sx, sy, phi, v, known, dof, kdof, level, psi, draw, fix_lat, fix_lon, *, station_lat, station_lon,
+           theta, spread):
+    M = phi.shape[0]
+    cx, cy, s_min, j11, j12, j22 = _minimum(phi, sx, sy, v)
+    T = region_threshold(s_min, known, dof, level, kdof)
+    ux, uy = np.sin(psi)[None, :], np.cos(psi)[None, :]
+    # the full Hessian where it is positive definite (a better first guess), else Gauss-Newton's
+    h11, h12, h22 = _hessian(phi, sx, sy, v, cx, cy)
+    pd = ((h11 > 0) & (h11 * h22 - h12 * h12 > 0))[:, None]
+    quad = np.where(pd, h11[:, None] * ux * ux + 2 * h12[:, None] * ux * uy + h22[:, None] * uy * uy,
+                    j11[:, None] * ux * ux + 2 * j12[:, None] * ux * uy + j22[:, None] * uy * uy)
+    with np.errstate(divide="ignore", invalid="ignore"):
+        rho = np.sqrt((T - s_min)[:, None] / quad)
+    R = draw[:, None] * np.ones((1, len(psi)))
+    rho = np.where(np.isfinite(rho) & (rho > 0), np.minimum(rho, 0.5 * R), 0.5 * R)
+    # Where S is close to its quadratic model at the first guess's edge, one evaluation settles the edge
+    # (the quadratic correction of rho is then within 3e-5 of the root); elsewhere a safeguarded Newton
+    # search follows. With bearing SDs of a few degrees the edge is typically 5 % off the quadratic
+    # model, so most rays take one or two Newton steps.
+    f0, _ = _ray_f(phi, sx, sy, v, cx, cy, rho, ux, uy, T, derivative=False)
+    gap = (T - s_min)[:, None]
+    with np.errstate(divide="ignore", invalid="ignore"):
+        quad_rho = rho * np.sqrt(gap / (f0 + gap))
+        near = (np.abs(f0) <= NEAR_QUADRATIC * gap) & np.isfinite(quad_rho)
+    rho = np.where(near, quad_rho, rho)
+    f_all = np.where(near, 0.0, f0)
+    lo = np.where(f0 < 0, np.where(near, 0.0, rho), 0.0)
+    hi = np.where(f0 >= 0, rho, np.inf)
+    rho = np.where(near | ~np.isfinite(quad_rho) | (quad_rho >= R), rho, quad_rho)
+    # Safeguarded Newton on f(rho) = S - T, keeping a bracket [lo, hi] with f(lo) < 0 < f(hi).
+    live = np.flatnonzero(~near.all(axis=1))
+    for _ in range(60):
+        if not len(live):
+            break
+        f, df = _ray_f(phi[live], sx[live], sy[live], v[live], cx[live], cy[live], rho[live], ux, uy, T[live])
+        f_all[live] = f
+        r_l, lo_l, hi_l, R_l = rho[live], lo[live], hi[live], R[live]
+        neg = f < 0
+        lo_l = np.where(neg, np.maximum(lo_l, r_l), lo_l)
+        hi_l = np.where(~neg, np.minimum(hi_l, r_l), hi_l)
+        # |f| within 1e-3 of the gap T - S_min: the radius within about 5e-4 of the root, the area 1e-3
+        conv = (np.abs(f) <= 1e-3 * (T[live] - s_min[live])[:, None]) | (hi_l - lo_l <= 1e-5 * r_l)
+        done = conv | (neg & (r_l >= R_l))
+        with np.errstate(divide="ignore", invalid="ignore"):
+            newton = r_l - f / df
+        inside = np.isfinite(newton) & (newton > lo_l) & (newton < np.minimum(hi_l, R_l))
+        bis = np.where(np.isfinite(hi_l), 0.5 * (lo_l + hi_l), np.minimum(2.0 * r_l, R_l))
+        rho[live] = np.where(done, r_l, np.where(inside, newton, bis))
+        lo[live], hi[live] = lo_l, hi_l
+        live = live[~done.all(axis=1)]
+    f = f_all
+    open_ray = (f < 0) & (rho >= R * (1 - 1e-9))
+    rho = np.where(open_ray, R, rho)
+    # Star-shapedness: S must stay above T beyond the edge found; if not, the ray's far part is kept.
+    star = np.ones(M, bool)
+    for factor in (3.0,):
+        probe = np.minimum(rho * factor, R)
+        fp, _ = _ray_f(phi, sx, sy, v, cx, cy, probe, ux, uy, T, derivative=False)
+        back = (fp < 0) & ~open_ray & (probe > rho * 1.0001)
+        if back.any():
+            star &= ~back.any(axis=1)
+            rows = np.flatnonzero(back.any(axis=1))
+            sub = (phi[rows], sx[rows], sy[rows], v[rows], cx[rows], cy[rows])
+            new, still_open = _last_crossing(*sub, probe[rows], R[rows], ux, uy, T[rows])
+            b = back[rows]
+            rho[rows] = np.where(b, new, rho[rows])
+            open_ray[rows] |= b & still_open
+    # Open at infinity: the plane limit of S far along direction psi is sum v wrap(phi - psi)^2.
+    c = (v * np.cos(phi)).sum(1)
+    s = (v * np.sin(phi)).sum(1)
+    dirs = np.concatenate([np.broadcast_to(psi, (M, len(psi))), np.arctan2(s, c)[:, None]], axis=1)
+    r_inf = _wrap(phi[:, :, None] - dirs[:, None, :])
+    s_inf = (v[:, :, None] * r_inf * r_inf).sum(1).min(axis=1)
+    bounded = ~open_ray.any(axis=1) & (s_inf >= T)
+    res = dict(centre_x=cx, centre_y=cy, radius_m=rho, bounded=bounded, star_shaped=star, s_min=s_min,
+               threshold=T)
+    _refine_large(res, sx, sy, phi, v, psi, spread, known, dof, fix_lat, fix_lon, station_lat, station_lon, theta,
+                  R, open_ray)
+    return res
+
+
+def _last_crossing(phi, sx, sy, v, cx, cy, probe, R, ux, uy, T):
+    """Where S climbs back above T beyond ``probe`` (bisection up to the drawing range)."""
+    lo = probe.copy()
+    hi = R.copy()
+    fR, _ = _ray_f(phi, sx, sy, v, cx, cy, hi, ux, uy, T, derivative=False)
+    for _ in range(40):
+        mid = 0.5 * (lo + hi)
+        fm, _ = _ray_f(phi, sx, sy, v, cx, cy, mid, ux, uy, T, derivative=False)
+        lo = np.where(fm < 0, mid, lo)
+        hi = np.where(fm < 0, hi, mid)
+    still_open = fR < 0
+    return np.where(still_open, R, hi), still_open
+
+
+def _refine_large(res, sx, sy, phi, v, psi, spread, known, dof, fix_lat, fix_lon, station_lat, station_lon,
+                  theta, R, open_ray):
+    """Fixes spanning hundreds of kilometres: redo the edge with exact geodesic residuals (secant steps)."""
+    rho = res["radius_m"]
+    with np.errstate(invalid="ignore", divide="ignore"):
+        sd = np.where(known, 1.0 / np.sqrt(np.maximum(v.max(axis=1), 1e-300)),
+                      np.sqrt(res["s_min"] / np.maximum(dof, 1)))
+        err = np.nanmax(np.where(open_ray, 0.0, rho), axis=1) * spread / _EARTH_R**2
+        need = np.isfinite(rho).all(axis=1) & (err > PLANE_TOLERANCE * sd)
+    if not need.any():
+        return
+    K = len(psi)
+    n = phi.shape[1]
+    for i in np.flatnonzero(need):
+        slat, slon, th, vv = station_lat[i], station_lon[i], theta[i], v[i]
+
+        def f_exact(rr):
+            x = res["centre_x"][i] + rr * np.sin(psi)
+            y = res["centre_y"][i] + rr * np.cos(psi)
+            plat, plon = geodesy.from_local(fix_lat[i], fix_lon[i], x, y)
+            a, _, _ = geodesy.inverse(np.repeat(slat, K), np.repeat(slon, K), np.tile(plat, n), np.tile(plon, n))
+            r = _wrap(th.repeat(K) - np.radians(a))
+            return (vv.repeat(K) * r * r).reshape(n, K).sum(axis=0) - res["threshold"][i]
+
+        closed = ~open_ray[i]
+        rr = rho[i].copy()
+        f0 = f_exact(rr)
+        r1 = rr * np.where(f0 > 0, 0.99, 1.01)
+        f1 = f_exact(r1)
+        for _ in range(8):
+            with np.errstate(divide="ignore", invalid="ignore"):
+                r2 = r1 - f1 * (r1 - rr) / (f1 - f0)
+            good = closed & np.isfinite(r2) & (r2 > 0)
+            r2 = np.where(good, np.minimum(r2, R[i]), r1)
+            rr, f0 = r1, f1
+            r1 = r2
+            f1 = f_exact(r1)
+            if np.all(np.abs(f1[closed]) <= 1e-6 * res["threshold"][i]):
+                break
+        rho[i] = np.where(closed, r1, rho[i])

@@ -55,7 +55,7 @@ def test_fix_writes_csv_geojson_gpx(write_sheet, tmp_path, capsys):
     assert t["fix"].tolist() == ["A", "B"] and t["status"].tolist() == ["ok", "too_few"]
     gj = json.loads(paths[1].read_text())
     kinds = sorted({f["properties"]["kind"] for f in gj["features"]})
-    assert kinds == ["bearing", "ellipse", "fix", "station"]
+    assert kinds == ["bearing", "fix", "region", "station"]      # likelihood regions in place of ellipses
     gpx = gpxpy.parse(paths[2].read_text())
     assert [w.name for w in gpx.waypoints] == ["A"]
 
@@ -70,8 +70,8 @@ def test_geojson_is_split_at_the_antimeridian(write_sheet, tmp_path):
         flat = json.dumps(g["coordinates"])
         lons = [float(x) for x in re.findall(r"\[(-?[\d.e-]+), -?[\d.e-]+\]", flat)]
         assert all(-180 <= x <= 180 for x in lons), f["properties"]["kind"]
-    ell = [f for f in gj["features"] if f["properties"]["kind"] == "ellipse"][0]
-    assert ell["geometry"]["type"] == "MultiPolygon"   # the ellipse straddles 180 deg (RFC 7946 3.1.9)
+    reg = [f for f in gj["features"] if f["properties"]["kind"] == "region"][0]
+    assert reg["geometry"]["type"] == "MultiPolygon"   # the region straddles 180 deg (RFC 7946 3.1.9)
 
 
 def test_python_m_dfkit_and_console_script_run():
@@ -87,6 +87,6 @@ def test_readme_commands_exist():
     assert "make demo" in text and "make test" in text
 
 
-@pytest.mark.parametrize("name, extra", [("animal_fix.csv", []), ("hunt.csv", ["--window", "90"])])
+@pytest.mark.parametrize("name, extra", [("animal_fix.csv", []), ("hunt.csv", ["--window", "90", "--method", "andrews"])])
 def test_sample_sheets_solve_ok(name, extra, tmp_path):
     assert main(["fix", str(SAMPLES / name), "-o", str(tmp_path / "x.csv")] + extra) == 0

@@ -1,4 +1,4 @@
-"""Fix statuses: fixes with no honest answer are named, never dropped, never faked."""
+"""Fix statuses: fixes with no honest answer are named, never dropped, never faked; reasons say what happened."""
 
 import numpy as np
 import pytest
@@ -22,8 +22,8 @@ T = (47.01, 15.01)
 S = [(47.0, 15.0), (47.0, 15.02), (47.02, 15.02)]
 
 
-def good_rows(label, sd="", times=("", "", "")):
-    return [(label, s[0], s[1], round(az(s, T), 3), sd, t) for s, t in zip(S, times)]
+def good_rows(label, sd="", times=("", "", ""), target=T, stations=S):
+    return [(label, s[0], s[1], round(az(s, target), 4), sd, t) for s, t in zip(stations, times)]
 
 
 def status_of(fixes, label):
@@ -36,15 +36,20 @@ def test_each_kind_of_bad_geometry_is_named(write_sheet):
     rows += [("few", 47.0, 15.0, 45, "", "")]
     rows += [("spot", 47.0, 15.0, 45, "", ""), ("spot", 47.0, 15.0, 50, "", ""), ("spot", 47.0, 15.0, 55, "", "")]
     rows += [("par", 47.0, 15.0, 0, "", ""), ("par", 47.0, 15.02, 0, "", "")]
+    # two stations on one parallel, each pointing at the other (90 and 270 degrees): one line, no crossing
+    rows += [("facing", 47.0, 15.0, round(az((47.0, 15.0), (47.0, 15.02)), 4), "", ""),
+             ("facing", 47.0, 15.02, round(az((47.0, 15.02), (47.0, 15.0)), 4), "", "")]
     rows += [("div", 47.0, 15.0, 300, "", ""), ("div", 47.0, 15.02, 60, "", "")]
-    rows += [("shal", 47.0, 15.0, round(az((47.0, 15.0), T), 3), 3, ""),
-             ("shal", 47.0005, 15.0003, round(az((47.0005, 15.0003), T), 3), 3, "")]
-    rows += [("two", 47.0, 15.0, round(az(S[0], T), 3), "", ""), ("two", 47.0, 15.02, round(az(S[1], T), 3), "", "")]
+    # an 8-degree crossing with a 0.5-degree SD: shallow, but its region closes
+    far = (47.06, 15.01)
+    rows += [("shal", 47.0, 15.004, round(az((47.0, 15.004), far), 4), 0.5, ""),
+             ("shal", 47.0, 15.0166, round(az((47.0, 15.0166), far), 4), 0.5, "")]
+    rows += [("two", 47.0, 15.0, round(az(S[0], T), 4), "", ""), ("two", 47.0, 15.02, round(az(S[1], T), 4), "", "")]
     rows += good_rows("slow", times=("2026-05-03T06:00:00Z", "2026-05-03T06:10:00Z", "2026-05-03T07:30:00Z"))
     rows += [("bad", 47.0, 15.0, 999, "", "")]
     fixes = locate(read_bearings(write_sheet(sheet_of(rows))), window_min=20)
-    expect = {"ok": "ok", "few": "too_few", "spot": "one_spot", "par": "parallel", "div": "diverging",
-              "shal": "shallow", "two": "no_region", "slow": "long_span", "bad": "too_few"}
+    expect = {"ok": "ok", "few": "too_few", "spot": "one_spot", "par": "parallel", "facing": "parallel",
+              "div": "diverging", "shal": "shallow", "two": "no_region", "slow": "long_span", "bad": "too_few"}
     assert list(fixes.table["fix"]) == list(expect)            # every label, in input order
     for label, status in expect.items():
         got, reason, row = status_of(fixes, label)
@@ -54,21 +59,146 @@ def test_each_kind_of_bad_geometry_is_named(write_sheet):
         assert has_pos == (status in WITH_POSITION), label
     _, reason, row = status_of(fixes, "two")
     assert "no confidence region" in reason and not np.isfinite(row["semi_major_m"])
-    _, reason, _ = status_of(fixes, "bad")
-    assert "rejected input line 13" in reason or "rejected input line" in reason
-    assert fixes.summary() == {"ok": 1, "flagged": 3, "failed": 5}
+    assert "point at each other" in status_of(fixes, "facing")[1]
+    assert "do not cross" in status_of(fixes, "par")[1]
+    assert "do not meet in front" in status_of(fixes, "div")[1] or "behind" in status_of(fixes, "div")[1]
+    _, reason, row = status_of(fixes, "shal")
+    crossing = abs(az(far, (47.0, 15.004)) - az(far, (47.0, 15.0166)))      # seen from the transmitter
+    assert row["region_bounded"] and f"cross at {crossing:.0f}°" in reason
+    assert f"rejected input line {len(rows) + 1}" in status_of(fixes, "bad")[1]     # the header is line 1
+    assert fixes.summary() == {"ok": 1, "flagged": 3, "failed": 6}
+
+
+def test_an_open_region_is_said_to_be_open(write_sheet):
+    # Two bearings crossing at 25 degrees with a 10-degree SD: the lines' directions differ by less than
+    # sd * sqrt(2 * chi2_2(0.95)) = 34.6 degrees, so far along them S stays below the bound (region open).
+    far = (47.02, 15.0067)
+    a, b = (47.0, 15.0), (47.0, 15.0134)
+    rows = [("open", *a, round(az(a, far), 4), 10, ""), ("open", *b, round(az(b, far), 4), 10, "")]
+    fixes = locate(read_bearings(write_sheet(sheet_of(rows))))
+    status, reason, row = status_of(fixes, "open")
+    assert 20 < row["crossing_deg"] < 30
+    assert status == "unbounded" and "region is open" in reason
+    assert not row["region_bounded"] and not np.isfinite(row["region_area_m2"])
+    assert row["region_reach_m"] > 5000            # drawn to the stated range
+    # the exact criterion still answers beyond the drawing range: 200 km along the bisector is inside
+    pa, pb = np.radians(az(a, far)), np.radians(az(b, far))
+    mean = np.degrees(np.arctan2(np.sin(pa) + np.sin(pb), np.cos(pa) + np.cos(pb)))
+    mid = WGS.Direct(*far, mean, 200_000.0)
+    assert fixes.contains(mid["lat2"], mid["lon2"])[0]
+
+
+def test_ok_fixes_carry_a_finite_positive_region():
+    # A batch of simulated fixes (seeded), every method: an ok fix always has a finite, positive ellipse,
+    # a bounded likelihood region with finite positive area, and a positive definite covariance.
+    from .simulation import scenario, sheet_text
+
+    sc = scenario(60, 4, 4.0, np.random.default_rng(5))
+    import tempfile, pathlib  # noqa: E401
+
+    with tempfile.TemporaryDirectory() as d:
+        p = pathlib.Path(d) / "s.csv"
+        p.write_text(sheet_text(sc, 4.0))
+        b = read_bearings(p)
+        for method in ("mle", "huber", "andrews", "lsq", "stansfield"):
+            t = locate(b, method=method).table
+            ok = t[t["status"] == "ok"]
+            assert len(ok) > 0
+            for c in ("semi_major_m", "semi_minor_m", "area_m2", "region_area_m2"):
+                assert (np.isfinite(ok[c]) & (ok[c] > 0)).all(), (method, c)
+            assert ok["region_bounded"].all()
+            det = ok["cov_ee_m2"] * ok["cov_nn_m2"] - ok["cov_en_m2"] ** 2
+            assert ((ok["cov_ee_m2"] > 0) & (det > 0)).all()
+            # no fix is called parallel unless its lines are (these lines all cross at 30 degrees or more)
+            assert not (t["status"] == "parallel").any()
+
+
+def _five(write_sheet, wild_index, wild_deg, sd=2.0, label="W"):
+    tgt = (47.01, 15.01)
+    st = [(47.0, 15.0), (47.0, 15.02), (47.02, 15.02), (47.02, 15.0), (47.025, 15.01)]
+    rows = []
+    for k, s in enumerate(st):
+        b = az(s, tgt) + (wild_deg if k == wild_index else 0.0) + [0.8, -1.1, 0.5, -0.4, 1.0][k]
+        rows.append((label, s[0], s[1], round(b % 360, 4), sd, ""))
+    return write_sheet(sheet_of(rows))
+
+
+def test_a_reversed_bearing_is_named_by_line(write_sheet):
+    # One of five bearings turned by 180 degrees (read from the back of the antenna): line 4 of the sheet.
+    path = _five(write_sheet, 2, 180.0)
+    for method in ("mle", "andrews"):
+        status, reason, _ = status_of(locate(read_bearings(path), method=method), "W")
+        assert "line 4 looks reversed by 180°" in reason, (method, reason)
+        if method == "mle":
+            assert status != "ok"
+        else:
+            assert status == "ok" and "line 4 dropped by the robust fit" in reason
+
+
+def test_one_wild_bearing_is_named_and_a_robust_method_suggested(write_sheet):
+    path = _five(write_sheet, 3, 60.0)          # line 5 is a reflection 60 degrees off
+    status, reason, _ = status_of(locate(read_bearings(path)), "W")
+    assert status == "inconsistent"
+    assert "without line 5 the other bearings agree" in reason and "--method andrews" in reason
+    status, reason, row = status_of(locate(read_bearings(path), method="andrews"), "W")
+    assert status == "ok" and "line 5 dropped by the robust fit" in reason
+
+
+def test_bearings_that_miss_each_other_widely_are_not_called_parallel(write_sheet):
+    # Three lines crossing pairwise far apart (a big triangle) with a 1-degree SD: inconsistent, not parallel.
+    tgt = (47.01, 15.01)
+    st = [(47.0, 15.0), (47.0, 15.02), (47.02, 15.01)]
+    rows = [("tri", s[0], s[1], round((az(s, tgt) + off) % 360, 4), 1, "") for s, off in zip(st, (25, -25, 30))]
+    for method in ("mle", "huber", "andrews", "lsq", "stansfield"):
+        status, reason, _ = status_of(locate(read_bearings(write_sheet(sheet_of(rows))), method=method), "tri")
+        assert status not in ("parallel", "ok"), (method, reason)
+        assert "parallel" not in reason, (method, reason)
 
 
 def test_truth_is_recovered_without_noise(write_sheet):
     fixes = locate(read_bearings(write_sheet(sheet_of(good_rows("A", sd=2)))))
     r = fixes.table.iloc[0]
-    assert WGS.Inverse(r["lat"], r["lon"], *T)["s12"] < 0.5   # bearings rounded to 1e-3 deg
+    assert WGS.Inverse(r["lat"], r["lon"], *T)["s12"] < 0.5   # bearings rounded to 1e-4 deg
     assert r["sd_source"] == "given" and r["status"] == "ok"
 
 
+def test_sd_source_follows_the_bearings(write_sheet):
+    b = read_bearings(write_sheet(sheet_of(good_rows("A", sd=2) + good_rows("B") + good_rows("C", sd=3))))
+    b.table.loc[b.table["fix"] == "C", "sd_source"] = "calibration"
+    t = locate(b).table.set_index("fix")
+    assert t.loc["A", "sd_source"] == "given"
+    assert t.loc["B", "sd_source"] == "estimated"
+    assert t.loc["C", "sd_source"] == "calibration"
+    b.table.loc[b.table.index[-1], "sd_source"] = "sheet"
+    assert locate(b).table.set_index("fix").loc["C", "sd_source"] == "given+calibration"
+
+
+def test_an_sd_estimated_with_one_degree_of_freedom_is_noted(write_sheet, capsys):
+    from dfkit.cli import main
+
+    rows = [("A", s[0], s[1], round(az(s, T) + e, 4), "", "") for s, e in zip(S, (1.0, -2.0, 0.5))]
+    path = write_sheet(sheet_of(rows))
+    fixes = locate(read_bearings(path))
+    assert fixes.table["sd_source"][0] == "estimated"
+    main(["fix", str(path)])
+    err = capsys.readouterr().err
+    assert "1 degree of freedom" in err and "calibrat" in err
+
+
+def test_covariance_columns_are_those_of_the_ellipse(write_sheet):
+    # The ellipse's semi-axes are k * sqrt(eigenvalues) of the east/north covariance, k = sqrt(chi2_2(0.95))
+    # for a known SD (bivariate normal; computed here with numpy, independently of dfkit's closed form).
+    rows = [("A", s[0], s[1], round(az(s, T) + e, 4), 2, "") for s, e in zip(S, (1.0, -2.0, 0.5))]
+    r = locate(read_bearings(write_sheet(sheet_of(rows)))).table.iloc[0]
+    cov = np.array([[r["cov_ee_m2"], r["cov_en_m2"]], [r["cov_en_m2"], r["cov_nn_m2"]]])
+    lam = np.linalg.eigvalsh(cov)
+    k = np.sqrt(-2 * np.log(0.05))
+    assert (r["semi_minor_m"], r["semi_major_m"]) == pytest.approx(tuple(k * np.sqrt(lam)), rel=1e-9)
+
+
 def test_two_bearings_with_known_sd_have_a_chi_square_region(write_sheet):
-    # METHODS.md section 11 [OWN]: two stations at 1000 m crossing at 90 deg, sd 5 deg: the 95% ellipse is a circle
-    # of radius 213.606 m. Derivation: sd per axis = 1000 m * 5 deg in rad = 87.2665 m; k = 2.447747.
+    # Two stations at 1000 m crossing at 90 deg, sd 5 deg: Cramer-Rao (Stansfield 1947) gives sd per axis
+    # 1000 m * 5 deg in rad = 87.2665 m; the 95% ellipse is a circle of radius k * 87.2665, k = sqrt(-2 ln 0.05).
     tgt = (47.0, 15.0)
     s1 = WGS.Direct(*tgt, 180.0, 1000.0)
     s2 = WGS.Direct(*tgt, 270.0, 1000.0)
@@ -77,18 +207,35 @@ def test_two_bearings_with_known_sd_have_a_chi_square_region(write_sheet):
             ("A", s2["lat2"], s2["lon2"], (s2["azi2"] + 180) % 360, 5, "")]
     rows = [(a, f"{b:.10f}", f"{c:.10f}", f"{d:.8f}", e, f) for a, b, c, d, e, f in rows]
     r = locate(read_bearings(write_sheet(sheet_of(rows)))).table.iloc[0]
+    radius = np.sqrt(-2 * np.log(0.05)) * 1000.0 * np.radians(5.0)
     assert r["status"] == "ok"
-    assert r["semi_major_m"] == pytest.approx(213.606, rel=2e-3)
-    assert r["semi_minor_m"] == pytest.approx(213.606, rel=2e-3)
+    assert r["semi_major_m"] == pytest.approx(radius, rel=2e-3)
+    assert r["semi_minor_m"] == pytest.approx(radius, rel=2e-3)
 
 
 def test_locate_sheet_python_api(write_sheet):
     fixes = locate_sheet(write_sheet(sheet_of(good_rows("A", sd=2))), method="huber", level=0.5)
     assert fixes.table["method"][0] == "huber" and fixes.table["level"][0] == 0.5
     assert {"residual_deg", "weight", "range_m", "fix_status"} <= set(fixes.bearings.columns)
+    lat, lon = fixes.region_ring("A")
+    assert lat[0] == lat[-1] and lon[0] == lon[-1] and len(lat) > 16
 
 
-def test_unknown_method_lists_the_choices(write_sheet):
+def test_unknown_method_and_bad_level_are_named(write_sheet):
     b = read_bearings(write_sheet(sheet_of(good_rows("A"))))
     with pytest.raises(ValueError, match=r"method='lenth'.*'mle', 'huber', 'andrews', 'lsq', 'stansfield'"):
         locate(b, method="lenth")
+    with pytest.raises(ValueError, match=r"level=1.5 must be a probability"):
+        locate(b, level=1.5)
+
+
+def test_nearly_parallel_lines_are_not_called_parallel(write_sheet):
+    # 0.5 degrees apart from stations 760 m apart: converging they meet ~87 km ahead (a far, shallow crossing);
+    # diverging they meet only behind the observers. Neither is parallel; bearings of 0 and 0 are.
+    rows = [("FAR", 47.0, 15.0, 0.5, 3, ""), ("FAR", 47.0, 15.01, 0.0, 3, ""),
+            ("DIV", 47.0, 15.0, 359.5, 3, ""), ("DIV", 47.0, 15.01, 0.0, 3, ""),
+            ("PAR", 47.0, 15.0, 0.0, 3, ""), ("PAR", 47.0, 15.01, 0.0, 3, "")]
+    fixes = locate(read_bearings(write_sheet(sheet_of(rows))))
+    assert status_of(fixes, "FAR")[0] == "shallow" and "cross at" in status_of(fixes, "FAR")[1]
+    assert status_of(fixes, "DIV")[0] == "diverging" and "parallel" not in status_of(fixes, "DIV")[1].split(":")[0]
+    assert status_of(fixes, "PAR")[0] == "parallel"

@@ -88,7 +88,8 @@ def test_week_map_offline(pw, tmp_path):
     assert p.page.locator(".leaflet-popup-content table").count() == 1
     # the legend names every symbol drawn, the error polygons included
     legend = p.page.locator("#dfk-legend").inner_text()
-    for words in ("fix, status ok", "caveat", "confidence ellipse", "bearing line", "down-weighted", "station",
+    shape = "likelihood region" if fixes.regions is not None else "confidence ellipse"
+    for words in ("fix, status ok", "caveat", shape, "bearing line", "down-weighted", "station",
                   "error polygon", "tag 150.118"):
         assert words in legend
     assert "not for life-safety search" in p.page.locator("#dfk-panel").inner_text()

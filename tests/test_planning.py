@@ -612,7 +612,7 @@ def test_plan_command_outputs_and_exit_codes(tmp_path, capsys):
     assert t["rank"].tolist() == list(range(1, 13)) and "caution" in t.columns
     gj = json.loads(gj_out.read_text())
     kinds = {f["properties"]["kind"] for f in gj["features"]}
-    assert {"fix", "ellipse", "bearing", "station", "spot"} <= kinds
+    assert {"fix", "region", "bearing", "station", "spot"} <= kinds
     assert "terrain" in gj["dfkit"]["plan_caution"] and gj["dfkit"]["plan"]["basis"] == "point"
     spot_feats = [f for f in gj["features"] if f["properties"]["kind"] == "spot"]
     assert [f["properties"]["rank"] for f in spot_feats] == list(range(1, 13))

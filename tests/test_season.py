@@ -17,6 +17,7 @@ import pytest
 import shapely
 
 from dfkit.cli import main
+from dfkit.locate import WITH_POSITION
 from dfkit.geometry import ellipse_ring
 from dfkit.season import SeasonFilter, SeasonStore, StoreError, add_sheet
 from dfkit.season.keys import bearing_keys
@@ -142,7 +143,8 @@ def test_gdal_reads_every_layer_back(store_path, sheet):
         assert col in bearings.columns
     assert sorted(bearings["weather"].fillna("")) == ["", "dry", "dry", "wet", "wet", "wet"]
     regions = pyogrio.read_dataframe(store_path, layer="regions")
-    assert len(regions) == 2 and set(regions["kind"]) == {"ellipse"}
+    assert len(regions) == 4 and set(regions["kind"]) == {"ellipse", "likelihood"}    # each fix has both
+    regions = regions[regions["kind"] == "ellipse"]
     # each region polygon holds its fix and has the area of its ellipse (pi a b), within the polygon's
     # shortfall for 32 vertices: n/(2 pi) sin(2 pi/n) = 0.9936
     for _, r in regions.iterrows():
@@ -515,7 +517,7 @@ def test_review_page_map_and_time_filter_in_a_browser_offline(tmp_path):
     out = tmp_path / "review.html"
     assert main(["season", "show", str(store), "-o", str(out)]) in (0, 1)
     with SeasonStore.open(store) as s:
-        located = int(s.fixes(SeasonFilter(statuses=("ok", "no_region", "shallow", "long_span"))).shape[0])
+        located = int(s.fixes(SeasonFilter(statuses=WITH_POSITION)).shape[0])
     outside, errors = [], []
     with sync_playwright() as pw:
         browser = pw.chromium.launch(executable_path=chromium, args=[

@@ -171,7 +171,7 @@ def solve(a):
 
 def print_summary(b, fixes) -> None:
     report_problems(b.problems, sys.stderr)
-    for note in b.notes:
+    for note in fixes.notes:      # the reading notes, then the solving ones
         print(f"note            {note}", file=sys.stderr)
     s = fixes.summary()
     flagged = fixes.table[fixes.table["status"] != "ok"]

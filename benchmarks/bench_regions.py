@@ -1,0 +1,94 @@
+"""Cost of each stage of locating a season: the solver, the likelihood regions, statuses and hints.
+
+    .venv/bin/python benchmarks/bench_regions.py [--fixes 100000] [--bearings 4] [--method mle] [--unknown-sd]
+                                                 [--solve-only] [--repeat 3]
+
+To compare the solver with another version, run it with that version first on the path, e.g.
+``git archive main | tar -x -C /tmp/dfkit-main`` then
+``PYTHONPATH=/tmp/dfkit-main .venv/bin/python benchmarks/bench_regions.py --solve-only``.
+
+Builds N fixes x k bearings (noise 4 deg, SD given) around central Europe with pyproj geodesics, like
+bench_fix.py, and times in process, as CPU seconds (time.process_time, steadier than wall time on a
+shared machine) and wall seconds: ``estimators.solve``, ``regions.likelihood_regions`` and the whole
+``locate`` (solve + regions + statuses + hints + table). Nothing is asserted.
+"""
+
+from __future__ import annotations
+
+import argparse
+import time
+
+import numpy as np
+import pyproj
+
+GEOD = pyproj.Geod(ellps="WGS84")
+
+
+def season(n_fix, k, rng, sd=4.0):
+    lat0 = rng.uniform(46.0, 49.0, n_fix)
+    lon0 = rng.uniform(9.0, 17.0, n_fix)
+    ang = rng.uniform(0, 360, (n_fix, 1)) + np.arange(k) * 360.0 / k + rng.normal(0, 20, (n_fix, k))
+    dist = rng.uniform(400, 2000, (n_fix, k))
+    lon_s, lat_s, back = GEOD.fwd(np.repeat(lon0, k), np.repeat(lat0, k), ang.ravel(), dist.ravel())
+    return np.asarray(lat_s), np.asarray(lon_s), (np.asarray(back) + rng.normal(0, sd, n_fix * k)) % 360
+
+
+def timed(label, fn, repeat=1):
+    """Run fn ``repeat`` times; print the smallest CPU and wall times."""
+    cpu, wall = [], []
+    for _ in range(repeat):
+        c0, w0 = time.process_time(), time.perf_counter()
+        out = fn()
+        cpu.append(time.process_time() - c0)
+        wall.append(time.perf_counter() - w0)
+    print(f"{label:<34} {min(cpu):6.2f} s CPU  {min(wall):6.2f} s wall  (min of {repeat})")
+    return out
+
+
+def main():
+    ap = argparse.ArgumentParser()
+    ap.add_argument("--fixes", type=int, default=100_000)
+    ap.add_argument("--bearings", type=int, default=4)
+    ap.add_argument("--method", default="mle")
+    ap.add_argument("--unknown-sd", action="store_true", help="give no SD (estimated from each fix)")
+    ap.add_argument("--solve-only", action="store_true", help="time estimators.solve alone")
+    ap.add_argument("--repeat", type=int, default=3)
+    a = ap.parse_args()
+    from dfkit import estimators
+
+    rng = np.random.default_rng(1)
+    lat, lon, b = season(a.fixes, a.bearings, rng)
+    g = np.repeat(np.arange(a.fixes), a.bearings)
+    sd = np.full(len(g), np.nan if a.unknown_sd else 4.0)
+    print(f"{a.fixes} fixes x {a.bearings} bearings, method {a.method}, SD {'unknown' if a.unknown_sd else 'given'}; "
+          f"dfkit from {estimators.__file__}")
+    sol = timed("estimators.solve", lambda: estimators.solve(lat, lon, b, g, a.fixes, sd, method=a.method),
+                a.repeat)
+    print(f"  {int(sol.converged.sum())} of {a.fixes} converged")
+    if a.solve_only:
+        return
+    from dfkit import regions
+
+    timed("regions.likelihood_regions", lambda: regions.likelihood_regions(
+        sol.lat, sol.lon, g, lat, lon, b, sol.range_m, sol.azimuth_from_fix_deg, sol.residual_deg,
+        sol.region_weight, sol.sd_known, sol.dof, 0.95, valid=sol.converged))
+    import pandas as pd
+
+    from dfkit.locate import locate
+    from dfkit.observations import Bearings
+
+    # A Bearings as read_bearings would give it (reading is timed by bench_fix.py, not here).
+    table = pd.DataFrame({"line": np.arange(len(g)) + 2, "fix_id": g, "fix": [f"F{i}" for i in g], "tag": "",
+                          "time": pd.NaT, "lat": lat, "lon": lon, "true_bearing": b, "sd": sd,
+                          "sd_source": "sheet"})
+    table["time"] = pd.to_datetime(table["time"], utc=True)
+    index = pd.DataFrame({"fix": [f"F{i}" for i in range(a.fixes)], "tag": "",
+                          "rejected_lines": [[] for _ in range(a.fixes)]})
+    bearings = Bearings(table=table, problems=[], fix_index=index, n_rows=len(g))
+    fixes = timed("locate (with regions)", lambda: locate(bearings, method=a.method))
+    timed("locate (with_regions=False)", lambda: locate(bearings, method=a.method, with_regions=False))
+    print(fixes.summary())
+
+
+if __name__ == "__main__":
+    main()

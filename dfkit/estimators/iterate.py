@@ -1,0 +1,197 @@
+"""Planar iterations for many fixes at once, each in its own (fixed) plane.
+
+All fixes still moving iterate together with ``np.bincount`` sums; finished
+fixes drop out of the arrays, so a few slow fixes never cost a pass over all.
+Every loop reports how each fix ended (:data:`SETTLED` ... :data:`MAX_ITER`).
+"""
+
+from __future__ import annotations
+
+import numpy as np
+
+from dfkit.estimators import stansfield
+from dfkit.estimators.groups import gsum, solve2
+from dfkit.estimators.lsq import planar_point
+from dfkit.estimators.plane import residuals
+
+#: How a planar iteration ended, per fix.
+RUNNING, SETTLED, RUNAWAY, SINGULAR, STALLED, MAX_ITER = range(6)
+#: Matrices whose |det| / (trace/2)^2 is below this are singular (the lines of sight are parallel).
+SINGULAR_RATIO = 1e-14
+#: Armijo's sufficient-decrease constant and the most step halvings tried (J. Nocedal & S. J. Wright,
+#: *Numerical Optimization*, 2nd ed., Springer, 2006, ch. 3, backtracking line search [from memory]).
+ARMIJO = 1e-4
+MAX_HALVINGS = 40
+
+
+class _Compact:
+    """The fixes still running and their bearings, re-packed when many have finished."""
+
+    def __init__(self, cg, mg):
+        self.cg_all = cg
+        self.grp = np.arange(mg)
+        self.idx = np.arange(len(cg))
+        self.cg = cg
+
+    def refresh(self, running):
+        live = running[self.grp]
+        if live.sum() < 0.7 * len(self.grp):
+            self.grp = self.grp[live]
+            self.idx = self.idx[running[self.cg_all[self.idx]]]
+            self.cg = np.searchsorted(self.grp, self.cg_all[self.idx])
+
+    def rounds(self, ending, max_iter):
+        """Up to ``max_iter`` rounds while any fix is running: yields (bearings, fixes, their compact fix index)."""
+        for _ in range(max_iter):
+            running = ending == RUNNING
+            if not running.any():
+                return
+            self.refresh(running)
+            yield self.idx, self.grp, self.cg
+
+
+def optimise(terms, objective, geo, cg, mg, x, y, w, s, c, tol, max_iter, r_run):
+    """Minimise sum f(r_i) for every fix from (x, y): Newton steps where the Newton matrix is
+    positive definite, scoring (re-weighted) steps elsewhere; a step is accepted only if it
+    lowers the objective enough (Armijo), else it is halved.
+
+    Returns x, y, ending, iterations (per fix).
+    """
+    x = np.array(x, float)
+    y = np.array(y, float)
+    ending = np.zeros(mg, np.int8)
+    iters = np.zeros(mg, np.int64)
+    if not (x.any() or y.any()):          # at the plane's centre the residuals are the geodesic ones
+        r, dx, dy, d2 = geo.r.copy(), -geo.sx, -geo.sy, geo.d * geo.d
+    else:
+        r, dx, dy, d2 = residuals(geo.sp, geo.cp, geo.sx, geo.sy, x[cg], y[cg])
+    F = gsum(cg, objective(r, w, s, c), mg)
+    for idx, grp, bcg in _Compact(cg, mg).rounds(ending, max_iter):
+        running = ending == RUNNING
+        n_g = len(grp)
+        f, f1, a, f2 = terms(r[idx], w[idx], s[idx], c)
+        gx, gy = dy[idx] / d2[idx], -dx[idx] / d2[idx]
+        b1, b2 = gsum(bcg, f1 * gx, n_g), gsum(bcg, f1 * gy, n_g)
+        # Newton matrix of sum f(r): f'' g g^T - f' dg/dP, dg/dP = [[-2xy, x2-y2], [x2-y2, 2xy]] / d^4
+        k = f1 / (d2[idx] * d2[idx])
+        kxy = 2.0 * dx[idx] * dy[idx] * k
+        kd = (dx[idx] ** 2 - dy[idx] ** 2) * k
+        h11 = gsum(bcg, f2 * gx * gx + kxy, n_g)
+        h12 = gsum(bcg, f2 * gx * gy - kd, n_g)
+        h22 = gsum(bcg, f2 * gy * gy - kxy, n_g)
+        nonpd = ~((h11 > 0) & (h11 * h22 - h12 * h12 > 0))
+        if nonpd.any():
+            j11, j12, j22 = (gsum(bcg, a * t, n_g) for t in (gx * gx, gx * gy, gy * gy))
+            h11, h12, h22 = (np.where(nonpd, j, h) for j, h in ((j11, h11), (j12, h12), (j22, h22)))
+        sx_, sy_, ratio = solve2(h11, h12, h22, b1, b2)
+        live = running[grp]
+        singular = live & (~np.isfinite(sx_) | ~np.isfinite(sy_) | (ratio < SINGULAR_RATIO))
+        ending[grp[singular]] = SINGULAR
+        live &= ~singular
+        sx_ = np.where(live, sx_, 0.0)
+        sy_ = np.where(live, sy_, 0.0)
+        slope = -(b1 * sx_ + b2 * sy_)          # directional derivative of the objective along the step
+        step_len = np.hypot(sx_, sy_)
+        lam = np.ones(n_g)
+        searching = live.copy()
+        accepted = np.zeros(n_g, bool)
+        # the fixes still searching (compact numbers sel_g) and their bearings (positions bsub in idx)
+        sel_g = np.flatnonzero(searching)
+        bsub = np.flatnonzero(searching[bcg])
+        local = np.searchsorted(sel_g, bcg[bsub])
+        for _h in range(MAX_HALVINGS):
+            if not len(sel_g):
+                break
+            bidx = idx[bsub]
+            xt = x[grp[sel_g]] + lam[sel_g] * sx_[sel_g]
+            yt = y[grp[sel_g]] + lam[sel_g] * sy_[sel_g]
+            rt, dxt, dyt, d2t = residuals(geo.sp[bidx], geo.cp[bidx], geo.sx[bidx], geo.sy[bidx], xt[local], yt[local])
+            Ft = gsum(local, objective(rt, w[bidx], s[bidx], c), len(sel_g))
+            Fo = F[grp[sel_g]]
+            tiny = lam[sel_g] * step_len[sel_g] < tol
+            ok = (Ft <= Fo + ARMIJO * lam[sel_g] * slope[sel_g]) | (tiny & (Ft <= Fo + 1e-12 * np.abs(Fo)))
+            acc_g = sel_g[ok]
+            if len(acc_g):
+                fixes = grp[acc_g]
+                x[fixes] = xt[ok]
+                y[fixes] = yt[ok]
+                F[fixes] = Ft[ok]
+                bok = ok[local]
+                r[bidx[bok]], dx[bidx[bok]], dy[bidx[bok]], d2[bidx[bok]] = rt[bok], dxt[bok], dyt[bok], d2t[bok]
+                accepted[acc_g] = True
+            # a step already below the tolerance that does not lower the objective: we are at the floor
+            floor = ~ok & tiny
+            accepted[sel_g[floor]] = True
+            lam[sel_g[floor]] = 0.0
+            keep = ~(ok | floor)
+            searching[sel_g[~keep]] = False
+            lam[sel_g[keep]] *= 0.5
+            if not keep.all():
+                kb = keep[local]
+                bsub = bsub[kb]
+                local = (np.cumsum(keep) - 1)[local[kb]]
+                sel_g = sel_g[keep]
+        stalled = searching
+        ending[grp[stalled]] = STALLED
+        moved = lam * step_len
+        settled = accepted & (moved < tol)
+        ending[grp[settled]] = SETTLED
+        iters[grp[live]] += 1
+        far = accepted & ~settled & (np.hypot(x[grp], y[grp]) > r_run[grp])
+        ending[grp[far]] = RUNAWAY
+    ending[ending == RUNNING] = MAX_ITER
+    return x, y, ending, iters
+
+
+def fixed_point(geo, cg, mg, x, y, w, tol, max_iter, r_run):
+    """Stansfield's re-weighted least squares from (x, y) until the point stops moving.
+
+    A step that turns back on the previous one is halved (down to 1/64), so no fix is
+    left alternating between two points. Returns x, y, ending, iterations.
+    """
+    x = np.array(x, float)
+    y = np.array(y, float)
+    ending = np.zeros(mg, np.int8)
+    iters = np.zeros(mg, np.int64)
+    damp = np.ones(mg)
+    last = np.full(mg, np.inf)
+    lx = np.zeros(mg)
+    ly = np.zeros(mg)
+    for idx, grp, bcg in _Compact(cg, mg).rounds(ending, max_iter):
+        running = ending == RUNNING
+        qx, qy, ratio = stansfield.step(bcg, len(grp), geo.sx[idx], geo.sy[idx], geo.phi[idx], w[idx],
+                                        x[grp], y[grp])
+        live = running[grp]
+        singular = live & (~np.isfinite(qx) | ~np.isfinite(qy) | (ratio < SINGULAR_RATIO))
+        ending[grp[singular]] = SINGULAR
+        live &= ~singular
+        stepx = np.where(live, qx - x[grp], 0.0)
+        stepy = np.where(live, qy - y[grp], 0.0)
+        step = np.hypot(stepx, stepy)
+        with np.errstate(invalid="ignore"):
+            reverse = live & (stepx * lx[grp] + stepy * ly[grp] < 0) & (step >= 0.5 * last[grp])
+        damp[grp] = np.where(reverse, np.maximum(damp[grp] * 0.5, 1.0 / 64.0), damp[grp])
+        last[grp] = np.where(live, step, last[grp])
+        stepx *= damp[grp]
+        stepy *= damp[grp]
+        lx[grp], ly[grp] = stepx, stepy
+        x[grp] += stepx
+        y[grp] += stepy
+        iters[grp[live]] += 1
+        ending[grp[live & (step < tol)]] = SETTLED
+        far = live & (step >= tol) & (np.hypot(x[grp], y[grp]) > r_run[grp])
+        ending[grp[far]] = RUNAWAY
+    ending[ending == RUNNING] = MAX_ITER
+    return x, y, ending, iters
+
+
+def closed_form(geo, cg, mg, r_run):
+    """The least-squares point of every fix in its plane. Returns x, y, ending, iterations."""
+    x, y, ratio = planar_point(cg, mg, geo.sx, geo.sy, geo.phi, np.ones(len(cg)))
+    ending = np.full(mg, SETTLED, np.int8)
+    singular = ~np.isfinite(x) | ~np.isfinite(y) | (ratio < SINGULAR_RATIO)
+    ending[singular] = SINGULAR
+    x = np.where(singular, 0.0, x)
+    y = np.where(singular, 0.0, y)
+    ending[~singular & (np.hypot(x, y) > r_run)] = RUNAWAY
+    return x, y, ending, np.ones(mg, np.int64)

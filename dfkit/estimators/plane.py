@@ -1,0 +1,90 @@
+"""The exact local plane of a fix, and residuals in it.
+
+Every fix is solved in its own plane: the ellipsoidal azimuthal equidistant
+projection centred at the fix's current estimate (built from the geodesic
+inverse problem, :mod:`dfkit.geodesy`). In that plane a station S_i lies at its
+exact geodesic distance and azimuth from the centre, and its observed bearing
+theta_i (true, at the station) becomes the plane direction
+``phi_i = r_i + mu_i``: ``r_i = theta_i - alpha_i`` is the residual against the
+geodesic azimuth alpha_i from the station to the centre, ``mu_i`` the plane
+direction from the station to the centre. At the centre the plane residuals
+*are* the geodesic residuals; away from it they are within about
+rho d / R^2 radians of them (rho the distance from the centre, d the station's
+range, R the Earth's radius), which the solver removes by re-centring.
+
+Angles here are compass angles in radians (clockwise from north; x east, y north).
+"""
+
+from __future__ import annotations
+
+from dataclasses import dataclass
+
+import numpy as np
+
+from dfkit import geodesy
+
+TWO_PI = 2.0 * np.pi
+
+
+def wrap_pi(a):
+    """Wrap angles to [-pi, pi). [rad]"""
+    return (a + np.pi) % TWO_PI - np.pi
+
+
+@dataclass
+class PlaneGeometry:
+    """Bearings about the centres of their fixes (one entry per bearing, radians and metres).
+
+    ``sx``, ``sy`` station in the plane; ``phi`` observed bearing as a plane direction;
+    ``r`` residual at the centre (exact geodesic residual); ``az`` azimuth from the
+    centre to the station; ``d`` distance from the centre to the station; ``sp``,
+    ``cp`` sin and cos of ``phi``.
+    """
+
+    sx: np.ndarray
+    sy: np.ndarray
+    phi: np.ndarray
+    r: np.ndarray
+    az: np.ndarray
+    d: np.ndarray
+    sp: np.ndarray
+    cp: np.ndarray
+
+    _FIELDS = ("sx", "sy", "phi", "r", "az", "d", "sp", "cp")
+
+    def take(self, sel) -> "PlaneGeometry":
+        return PlaneGeometry(*(getattr(self, k)[sel] for k in self._FIELDS))
+
+    def put(self, sel, other: "PlaneGeometry") -> None:
+        for k in self._FIELDS:
+            getattr(self, k)[sel] = getattr(other, k)
+
+
+def geometry(station_lat, station_lon, theta_deg, centre_lat, centre_lon) -> PlaneGeometry:
+    """Exact plane geometry of bearings about a centre (arrays of equal length)."""
+    az_cs, az_sc, d = geodesy.inverse(centre_lat, centre_lon, station_lat, station_lon)
+    a = np.radians(az_cs)
+    r = wrap_pi(np.radians(theta_deg - az_sc))
+    mu = a + np.pi
+    phi = r + mu
+    return PlaneGeometry(sx=d * np.sin(a), sy=d * np.cos(a), phi=phi, r=r, az=a, d=np.maximum(d, 1e-9),
+                         sp=np.sin(phi), cp=np.cos(phi))
+
+
+def residuals(sp, cp, sx, sy, x, y):
+    """Plane residuals of bearings at points (x, y), with the offsets and squared distances.
+
+    ``sp``, ``cp`` are sin and cos of the observed plane directions. Returns r [rad],
+    dx, dy [m] (point minus station) and d2 [m^2].
+    """
+    dx = x - sx
+    dy = y - sy
+    with np.errstate(over="ignore"):
+        d2 = np.maximum(dx * dx + dy * dy, 1e-18)
+    # the signed angle from (dx, dy) to the direction phi, in (-pi, pi], without wrapping
+    return np.arctan2(sp * dy - cp * dx, sp * dx + cp * dy), dx, dy, d2
+
+
+def bearing_gradient(dx, dy, d2):
+    """Gradient of the predicted bearing atan2(dx, dy) with respect to the point [rad/m]."""
+    return dy / d2, -dx / d2

@@ -1,0 +1,514 @@
+"""Solve many fixes at once, exactly on the ellipsoid: the re-centred plane loop.
+
+Each fix starts in the exact plane about its stations' centroid from the best
+candidate start (:mod:`dfkit.estimators.starts`), is solved in that plane
+(:mod:`dfkit.estimators.iterate`), carried back to the ellipsoid with the direct
+geodesic problem, and the plane is re-centred there, until the planar answer
+lies at the centre (typically two re-centrings). There the plane residuals are
+the geodesic residuals, so the answer carries no projection error over any
+baseline. At the end every fix is checked: a *verified optimum* is a point
+where one more step from the exact plane moves less than :data:`VERIFY_M` and,
+for the optimisers, the Newton matrix of the objective is positive definite
+(a strict local minimum, not a saddle or a flat valley).
+"""
+
+from __future__ import annotations
+
+from dataclasses import dataclass
+
+import numpy as np
+
+from dfkit import geodesy
+from dfkit.conventions import wrap180
+from dfkit.estimators import iterate, registry, stansfield
+from dfkit.estimators.covariance import position_covariance
+from dfkit.estimators.groups import gsum, solve2
+from dfkit.estimators.lenth import kappa_from_sd
+from dfkit.estimators.lsq import planar_point
+from dfkit.estimators.plane import geometry, residuals
+from dfkit.estimators.robust import MAX_SCALE, start_scale
+from dfkit.estimators.starts import choose, objective_score, trimmed_score
+
+#: Observed bearing lines whose doubled-angle spread is below this are parallel [°]: two lines this close
+#: to parallel would meet about 1/0.0035 = 290 station spreads away, beyond the runaway limit below (two
+#: bearings of 0° taken 1.5 km apart at 47°N are parallel here, though their meridians meet at the pole).
+#: Lines a little less parallel are solved, and end as far crossings (flagged) or as lines that do not meet
+#: in front of the observers (diverging).
+PARALLEL_DEG = 0.2
+#: Smallest bearing SD accepted [°]: far below any direction finder, and keeps 1/SD^2 well inside floating
+#: point range.
+MIN_SD_DEG = 1e-4
+#: An estimate farther than this many times the stations' spread from their centroid has run away
+#: (the lines do not meet). A numerical limit, not a field rule: two lines at the 0.5-degree
+#: parallel limit meet about 115 spreads away.
+RUNAWAY_FACTOR = 300.0
+#: Bounds of the runaway distance [m] (the upper one keeps the plane well inside a hemisphere).
+RUNAWAY_MIN_M = 20_000.0
+RUNAWAY_MAX_M = 5_000_000.0
+#: A verified optimum moves less than this in one more step from its exact plane [m].
+VERIFY_M = 0.01
+#: A point closer to a station than this fraction of the stations' spread is "on the station": the
+#: likelihood of a bearing grows without bound towards its own observer, so it is never an answer.
+NEAR_STATION = 0.01
+#: Level of the test that confirms a dropped bearing when the SD is unknown (per fix, Bonferroni).
+#: Chosen by measured coverage (benchmarks/coverage.py): clean fixes rarely lose a good bearing.
+OUTLIER_LEVEL = 0.01
+#: At the least-squares start, a residual beyond this marks a fix whose candidate starts must be ranked [°].
+CLEAN_START_DEG = 20.0
+#: Starts tried per fix: the best candidate first, the next ones only when a fit fails.
+MAX_STARTS = 3
+
+#: How each fit ended (``Solution.ending``), as names.
+ENDINGS = ("optimum", "too_few", "parallel", "runaway", "singular", "stalled", "max_iter", "not_optimum",
+           "collapsed", "at_station")
+(OPTIMUM, TOO_FEW, PARALLEL, RUNAWAY, SINGULAR, STALLED, MAX_ITER, NOT_OPTIMUM, COLLAPSED,
+ AT_STATION) = range(len(ENDINGS))
+_FROM_PLANAR = {iterate.RUNAWAY: RUNAWAY, iterate.SINGULAR: SINGULAR, iterate.STALLED: STALLED,
+                iterate.MAX_ITER: MAX_ITER}
+
+
+@dataclass
+class Solution:
+    """Raw numerical result for ``m`` fixes of ``N`` bearings (arrays).
+
+    Per fix: ``lat``, ``lon`` [°]; ``cov_en`` (m, 2, 2) east/north covariance
+    [m²] (NaN where it cannot be sized); ``sd_deg`` bearing SD used [°];
+    ``sd_known`` (given, not estimated); ``dof`` residual degrees of freedom
+    (n_used - 2); ``n_used`` bearings with non-zero weight; ``kappa`` von Mises
+    concentration matching ``sd_deg``; ``iterations``; ``converged`` (a verified
+    optimum: see :data:`ENDINGS` ``ending`` for how the others ended);
+    ``parallel`` (the observed lines are parallel); ``behind`` (a used bearing
+    points away from the fix: cos r <= 0); ``crossing_deg`` spread of the used
+    lines of sight at the fix [°, 0..90] (for two bearings, their crossing
+    angle); ``scale_deg`` the scale the robust weights were computed with [°]
+    (the SD when known); ``method``.
+
+    Per bearing: ``residual_deg`` observed minus geodesic azimuth [°],
+    ``weight`` (robust weight, 1 for the other methods), ``range_m`` distance
+    from the station to the fix [m], ``azimuth_from_fix_deg`` geodesic azimuth
+    from the fix to the station [°], ``region_weight`` the weight of the bearing
+    in the fix's likelihood [rad⁻²] (1/SD² times the robust weight; 1 for every
+    kept bearing when the SD is unknown).
+    """
+
+    lat: np.ndarray
+    lon: np.ndarray
+    cov_en: np.ndarray
+    sd_deg: np.ndarray
+    sd_known: np.ndarray
+    dof: np.ndarray
+    n_used: np.ndarray
+    kappa: np.ndarray
+    iterations: np.ndarray
+    converged: np.ndarray
+    parallel: np.ndarray
+    behind: np.ndarray
+    crossing_deg: np.ndarray
+    residual_deg: np.ndarray
+    weight: np.ndarray
+    range_m: np.ndarray
+    ending: np.ndarray = None
+    scale_deg: np.ndarray = None
+    azimuth_from_fix_deg: np.ndarray = None
+    region_weight: np.ndarray = None
+    method: str = "mle"
+
+    def ending_name(self, i) -> str:
+        return ENDINGS[int(self.ending[i])]
+
+
+def _check_inputs(lat, lon, theta, g, m, sd):
+    n = len(lat)
+    for name, v in (("lon", lon), ("bearing_deg", theta), ("group", g), ("sd_deg", sd)):
+        if len(v) != n:
+            raise ValueError(f"{name}= has {len(v)} values but lat= has {n}")
+    for name, v in (("lat", lat), ("lon", lon), ("bearing_deg", theta)):
+        if n and not np.isfinite(v).all():
+            raise ValueError(f"{name}= must be finite (found {v[~np.isfinite(v)][:3]})")
+    if n and (np.abs(lat) > 90).any():
+        raise ValueError("lat= must be within -90..90 degrees")
+    if n and ((g < 0).any() or (g >= m).any()):
+        raise ValueError(f"group= must hold fix indices 0..n_groups-1 (n_groups={m})")
+    bad_sd = ~np.isnan(sd) & ~((sd >= MIN_SD_DEG) & np.isfinite(sd))
+    if bad_sd.any():
+        raise ValueError(f"sd_deg= must be positive and finite (at least {MIN_SD_DEG:g} degrees), or NaN where "
+                         f"unknown (found {sd[bad_sd][:3]})")
+
+
+def solve(lat, lon, bearing_deg, group, n_groups, sd_deg=None, *, method="mle", robust_c=None,
+          tol_m=1e-4, max_iter=60, max_outer=30) -> Solution:
+    """Solve many fixes at once.
+
+    Parameters
+    ----------
+    lat, lon : array_like, shape (N,)
+        Station positions, WGS84. [°]
+    bearing_deg : array_like, shape (N,)
+        Observed bearings, clockwise from true north. [°]
+    group : array_like of int, shape (N,)
+        Fix index 0..n_groups-1 of each bearing.
+    n_groups : int
+        Number of fixes.
+    sd_deg : array_like, shape (N,), optional
+        Bearing SD; NaN where unknown. A fix uses given SDs only when all its
+        bearings have one; otherwise its SD is estimated from its residuals. [°]
+    method : str
+        One of :data:`dfkit.estimators.METHODS` ('mle', 'huber', 'andrews', 'lsq', 'stansfield').
+    robust_c : float, optional
+        Tuning constant of the Huber and Andrews weights (default: the method's,
+        :data:`dfkit.estimators.robust.ROBUST_C`).
+    tol_m : float
+        Convergence: the estimate moved less than this in the last step. [m]
+    max_iter : int
+        Planar iterations allowed per re-centring.
+    max_outer : int
+        Re-centrings of the exact local plane allowed.
+
+    Returns
+    -------
+    Solution
+    """
+    spec = registry.get(method)
+    c = float(spec.default_c if robust_c is None else robust_c) if spec.robust else 0.0
+    if spec.robust and not (np.isfinite(c) and c > 0):
+        raise ValueError(f"robust_c={robust_c!r} must be a positive number (e.g. 1.5)")
+    lat = np.asarray(lat, float).ravel()
+    lon = np.asarray(lon, float).ravel()
+    with np.errstate(invalid="ignore"):
+        theta = np.mod(np.asarray(bearing_deg, float).ravel(), 360.0)
+    g = np.asarray(group).ravel().astype(np.int64)
+    m = int(n_groups)
+    N = len(lat)
+    sd = np.full(N, np.nan) if sd_deg is None else np.broadcast_to(np.asarray(sd_deg, float), (N,)).copy()
+    _check_inputs(lat, lon, theta, g, m, sd)
+
+    counts = np.bincount(g, minlength=m)
+    known_g = (gsum(g, np.isfinite(sd).astype(float), m) == counts) & (counts > 0)
+    known_b = known_g[g]
+    sd_rad = np.radians(np.where(known_b, sd, np.nan))
+    w = np.where(known_b, 1.0 / np.where(known_b, sd_rad, 1.0) ** 2, 1.0)
+    w = w / (gsum(g, w, m) / np.maximum(counts, 1))[g]          # O(1) within each fix
+
+    centre_lat, centre_lon = geodesy.group_centroid(lat, lon, g, m)
+    geo0 = geometry(lat, lon, theta, centre_lat[g], centre_lon[g])
+    spread = np.zeros(m)
+    np.maximum.at(spread, g, geo0.d)
+    r_run = np.clip(RUNAWAY_FACTOR * spread, RUNAWAY_MIN_M, RUNAWAY_MAX_M)
+
+    # Parallel observed lines: the doubled-angle resultant of their directions is (nearly) 1.
+    c2 = gsum(g, np.cos(2 * geo0.phi), m)
+    s2 = gsum(g, np.sin(2 * geo0.phi), m)
+    spread0 = np.degrees(np.arccos(np.clip(np.hypot(c2, s2) / np.maximum(counts, 1), 0, 1)))
+    parallel = (spread0 < PARALLEL_DEG) & (counts >= 2)
+    base = (counts >= 2) & ~parallel
+
+    # Starts, and the scale of the robust weights: the SD when known, else the trimmed scale at the
+    # start, held fixed from then on.
+    s_b = np.where(known_b, sd_rad, np.nan)
+    x0 = np.full((m, MAX_STARTS), np.nan)
+    y0 = np.full((m, MAX_STARTS), np.nan)
+    n_starts = np.where(base, 1, 0)
+    searched = np.zeros(m, bool)            # fixes whose candidate starts were ranked
+    if spec.kind != "closed":
+        # The least-squares point is the start wherever it looks clean; elsewhere the candidates are
+        # ranked (and for clean fixes too, later, should the first fit fail).
+        lx, ly, ratio = planar_point(g, m, geo0.sx, geo0.sy, geo0.phi, np.ones(N))
+        has_lsq = base & np.isfinite(lx) & np.isfinite(ly) & (ratio > 1e-12)
+        r_l = residuals(geo0.sp, geo0.cp, geo0.sx, geo0.sy, np.nan_to_num(lx[g]), np.nan_to_num(ly[g]))[0]
+        clean = has_lsq & _looks_clean(r_l, g, m, counts, known_b, sd_rad)
+        x0[clean, 0], y0[clean, 0] = lx[clean], ly[clean]
+        starter = _Starter(spec, geo0, g, m, counts, w, s_b, c, spread, known_g)
+        starter.fill(base & ~clean, x0, y0, n_starts, searched)
+        if spec.robust:
+            unknown = base & ~known_g
+            if unknown.any():
+                r_start = residuals(geo0.sp, geo0.cp, geo0.sx, geo0.sy, np.nan_to_num(x0[g, 0]), np.nan_to_num(y0[g, 0]))[0]
+                s_b[:] = np.where(known_b, s_b, start_scale(r_start, g, m, counts)[g])
+    else:
+        starter = None
+
+    ending = np.where(counts < 2, TOO_FEW, np.where(parallel, PARALLEL, OPTIMUM)).astype(np.int8)
+    P_lat, P_lon = centre_lat.copy(), centre_lon.copy()
+    iterations = np.zeros(m, np.int64)
+    geo = geo0.take(slice(None))
+    verified = np.zeros(m, bool)
+    ctx = dict(spec=spec, c=c, g=g, m=m, lat=lat, lon=lon, theta=theta, w=w, s_b=s_b, r_run=r_run,
+               spread=spread, centre_lat=centre_lat, centre_lon=centre_lon, geo0=geo0, tol_m=tol_m,
+               max_iter=max_iter, max_outer=max_outer)
+    state = dict(P_lat=P_lat, P_lon=P_lon, ending=ending, iterations=iterations, geo=geo, verified=verified)
+    more = None if starter is None else (lambda which: starter.fill(which & ~searched, x0, y0, n_starts, searched))
+    _attempts(ctx, state, base, n_starts, x0, y0, more)
+    if spec.robust and (base & ~known_g).any():
+        # With the SD unknown, a bearing is dropped only when the others show it to be wild: an
+        # unconfirmed drop is undone by solving again with no bearing down-weighted to zero.
+        weight = spec.weights(state["geo"].r, s_b, c)
+        undo = _unconfirmed_drops(g, m, state["geo"], weight, base & ~known_g & state["verified"], counts)
+        if undo.any() and spec.name == "andrews":
+            # Andrews' fix falls back to Huber's weights at the same scale: the doubtful bearing is
+            # down-weighted, never dropped.
+            soft = registry.REGISTRY["huber"]
+            ctx_soft = dict(ctx, spec=soft, c=soft.default_c)
+            ctx["soft"] = undo
+            state["verified"][undo] = False
+            state["iterations"][undo] = 0
+            _attempts(ctx_soft, state, undo, n_starts, x0, y0, more)
+    return _finish(ctx, counts, state["geo"], state["P_lat"], state["P_lon"], state["ending"], state["verified"],
+                   known_b, known_g, sd_rad, parallel, state["iterations"])
+
+
+def _attempts(ctx, state, which, n_starts, x0, y0, more=None):
+    """Solve the fixes ``which`` from their first start, then from the next ones while a fit fails.
+
+    ``more(mask)`` ranks candidate starts for fixes that have only their least-squares start.
+    """
+    g = ctx["g"]
+    verified = state["verified"]
+    for attempt in range(MAX_STARTS + 1):
+        todo = which & ~verified & (n_starts > attempt)
+        if attempt == 1 and more is not None:
+            failed = which & ~verified & (n_starts == 1)
+            if failed.any():
+                more(failed)
+                todo = which & ~verified & (n_starts > attempt)
+        if not todo.any():
+            break
+        res = _run(ctx, todo, np.nan_to_num(x0[:, attempt % MAX_STARTS]), np.nan_to_num(y0[:, attempt % MAX_STARTS]))
+        ok = _verify(ctx, todo, res)
+        take = todo & (ok | (attempt == 0))
+        state["P_lat"][take], state["P_lon"][take] = res["lat"][take], res["lon"][take]
+        state["ending"][take] = res["ending"][take]
+        tb = take[g]
+        state["geo"].put(tb, res["geo"].take(tb))
+        state["iterations"][todo] += res["iterations"][todo]
+        verified |= todo & ok
+
+
+def _looks_clean(r, g, m, counts, known_b, sd_rad):
+    """Fixes whose residuals at the least-squares point show no wild bearing: none beyond CLEAN_START_DEG,
+    none beyond 4 SDs (SD known), and (SD unknown, four or more bearings) no squared chord residual above
+    nine times the mean of the others."""
+    u2 = (2.0 * np.sin(0.5 * r)) ** 2
+    with np.errstate(invalid="ignore", divide="ignore"):
+        big = (np.abs(r) > np.radians(CLEAN_START_DEG)) | (known_b & (np.sqrt(u2) > 4.0 * sd_rad))
+    bad = np.zeros(m, bool)
+    np.logical_or.at(bad, g, big)
+    top = np.zeros(m)
+    np.maximum.at(top, g, u2)
+    rest = (gsum(g, u2, m) - top) / np.maximum(counts - 1, 1)
+    known_g = np.zeros(m, bool)
+    known_g[g[known_b]] = True
+    bad |= ~known_g & (counts >= 4) & (top > 9.0 * rest)
+    return ~bad
+
+
+class _Starter:
+    """Ranks candidate starts (:mod:`dfkit.estimators.starts`) for chosen fixes, on demand."""
+
+    def __init__(self, spec, geo0, g, m, counts, w, s_b, c, spread, known_g):
+        self.args = (spec, geo0, g, m, counts, w, s_b, c, spread, known_g)
+
+    def fill(self, which, x0, y0, n_starts, searched):
+        spec, geo0, g, m, counts, w, s_b, c, spread, known_g = self.args
+        if not which.any():
+            return
+        # ranked by the trimmed sum of squares (the worst bearing left out), or, for a robust method with
+        # a known SD, by its own objective, which is already robust
+        by_objective = which & known_g & spec.robust
+        by_trim = which & ~by_objective
+        for sel, score in ((by_trim, lambda: trimmed_score(w, counts, g)),
+                           (by_objective, lambda: objective_score(spec.objective, w, s_b, c))):
+            if sel.any():
+                xs, ys = choose(geo0, g, m, counts, sel, score(), spread, MAX_STARTS)
+                had = np.isfinite(x0[:, 0]) & sel
+                # keep a least-squares start already tried as the first; the candidates follow
+                x0[sel] = np.where(had[sel, None], np.column_stack([x0[sel, :1], xs[sel, :-1]]), xs[sel])
+                y0[sel] = np.where(had[sel, None], np.column_stack([y0[sel, :1], ys[sel, :-1]]), ys[sel])
+        found = np.isfinite(x0[which]).sum(axis=1)
+        n_starts[which] = np.maximum(found, 1)
+        searched |= which
+
+
+def _unconfirmed_drops(g, m, geo, weight, candidates, counts):
+    """Fixes (SD unknown) whose zero-weighted bearings the kept ones do not show to be wild.
+
+    A dropped bearing j is confirmed when its externally studentised residual
+    t_j = u_j / (s_K sqrt(1 + h_j)) (u_j = 2 sin(r_j/2); s_K the classical scale of the kept
+    bearings K with n_K - 2 degrees of freedom; h_j = g_j^T (sum_K g g^T)^-1 g_j) exceeds the
+    Student-t quantile t(1 - OUTLIER_LEVEL / (2 n); n_K - 2), a Bonferroni bound over the fix's n
+    bearings (e.g. S. Weisberg, *Applied Linear Regression*, 3rd ed., Wiley, 2005, sec. 9.1.1, the
+    outlier test [from memory]). With the level below, at most about 1 % of clean fixes lose a bearing.
+    A dropped bearing that points away from the fix (residual beyond 90 degrees) is confirmed
+    whatever the scale: a directional antenna does not read a transmitter behind it except by a
+    reversal (common practice, no single source).
+    """
+    dropped = (weight <= 0) & candidates[g]
+    if not dropped.any():
+        return np.zeros(m, bool)
+    kept = weight > 0
+    gx, gy = _gradients(geo)
+    n_k = gsum(g, kept.astype(float), m)
+    with np.errstate(divide="ignore", invalid="ignore"):
+        s2 = gsum(g, np.where(kept, geo.r ** 2, 0.0), m) / (n_k - 2)
+    j11, j12, j22 = (gsum(g, np.where(kept, t, 0.0), m) for t in (gx * gx, gx * gy, gy * gy))
+    det = j11 * j22 - j12 * j12
+    gi = g[dropped]
+    ax, ay = gx[dropped], gy[dropped]
+    with np.errstate(divide="ignore", invalid="ignore"):
+        h = (j22[gi] * ax * ax - 2 * j12[gi] * ax * ay + j11[gi] * ay * ay) / det[gi]
+        t = np.abs(2.0 * np.sin(0.5 * geo.r[dropped])) / np.sqrt(s2[gi] * (1.0 + h))
+    from scipy.special import stdtrit   # only needed here; scipy.special is slow to import
+
+    dof = n_k[gi] - 2
+    with np.errstate(invalid="ignore"):
+        crit = np.where(dof >= 1, stdtrit(np.maximum(dof, 1), 1.0 - OUTLIER_LEVEL / (2.0 * counts[gi])), np.inf)
+        # a bearing that points away from the fix (|r| > 90 degrees) cannot be a reading of it
+        weak = ~(t > crit) & (np.cos(geo.r[dropped]) > 0)
+    undo = np.zeros(m, bool)
+    undo[gi[weak]] = True
+    return undo & candidates
+
+
+def _run(ctx, todo, x0, y0):
+    """Solve the fixes ``todo`` from planar starts (x0, y0) in their first plane."""
+    spec, g, m, lat, lon, theta = ctx["spec"], ctx["g"], ctx["m"], ctx["lat"], ctx["lon"], ctx["theta"]
+    w, s_b, c, r_run, tol_m = ctx["w"], ctx["s_b"], ctx["c"], ctx["r_run"], ctx["tol_m"]
+    P_lat, P_lon = ctx["centre_lat"].copy(), ctx["centre_lon"].copy()
+    ending = np.full(m, OPTIMUM, np.int8)
+    iterations = np.zeros(m, np.int64)
+    done = np.zeros(m, bool)
+    failed = ~todo
+    last = ctx["geo0"].take(slice(None))
+    tol_in = tol_m / 100.0
+    for outer in range(ctx["max_outer"]):
+        act = todo & ~done & ~failed
+        if not act.any():
+            break
+        sel = act[g]
+        fixes = np.flatnonzero(act)
+        cg = np.searchsorted(fixes, g[sel])
+        if outer:
+            gs = geometry(lat[sel], lon[sel], theta[sel], P_lat[g[sel]], P_lon[g[sel]])
+            last.put(sel, gs)
+            sx0 = np.zeros(len(fixes))
+            sy0 = np.zeros(len(fixes))
+        else:
+            gs = ctx["geo0"].take(sel)
+            sx0, sy0 = x0[fixes], y0[fixes]
+        if spec.kind == "closed":
+            px, py, end, its = iterate.closed_form(gs, cg, len(fixes), r_run[fixes])
+        elif spec.kind == "fixed_point":
+            px, py, end, its = iterate.fixed_point(gs, cg, len(fixes), sx0, sy0, w[sel], tol_in,
+                                                   ctx["max_iter"], r_run[fixes])
+        else:
+            px, py, end, its = iterate.optimise(spec.terms, spec.objective, gs, cg, len(fixes), sx0, sy0, w[sel], s_b[sel], c,
+                                                tol_in, ctx["max_iter"], r_run[fixes])
+        iterations[fixes] += its
+        bad = end != iterate.SETTLED
+        for code, name in _FROM_PLANAR.items():
+            ending[fixes[end == code]] = name
+        if (end == iterate.SINGULAR).any():
+            # a singular step next to a station: the fit crept onto the station
+            sing = end == iterate.SINGULAR
+            dmin = np.full(len(fixes), np.inf)
+            dd = np.hypot(px[cg] - gs.sx, py[cg] - gs.sy)
+            np.minimum.at(dmin, cg, dd)
+            on = sing & (dmin < NEAR_STATION * ctx["spread"][fixes])
+            ending[fixes[on]] = AT_STATION
+        failed[fixes[bad]] = True
+        ok = ~bad
+        mv = fixes[ok]
+        step = np.hypot(px[ok], py[ok])
+        P_lat[mv], P_lon[mv] = geodesy.from_local(P_lat[mv], P_lon[mv], px[ok], py[ok])
+        far = geodesy.chord_distance_m(ctx["centre_lat"][mv], ctx["centre_lon"][mv], P_lat[mv], P_lon[mv]) > r_run[mv]
+        ending[mv[far]] = RUNAWAY
+        failed[mv[far]] = True
+        done[mv[~far & (step < tol_m)]] = True
+    ending[todo & ~done & ~failed] = MAX_ITER
+    # Fixes that moved in their last round keep the geometry of their last centre, within tol_m of the answer.
+    return dict(lat=P_lat, lon=P_lon, ending=ending, iterations=iterations, geo=last, done=done)
+
+
+def _gradients(geo):
+    d = geo.d
+    return -geo.sy / (d * d), geo.sx / (d * d)      # at the centre: point minus station = -S
+
+
+def _verify(ctx, todo, res):
+    """Whether each fix of ``todo`` ended at a verified optimum (updates ``res['ending']``)."""
+    spec, g, m, w, s_b, c = ctx["spec"], ctx["g"], ctx["m"], ctx["w"], ctx["s_b"], ctx["c"]
+    geo = res["geo"]
+    ending = res["ending"]
+    verified = todo & res["done"]
+    r, d = geo.r, geo.d
+    gx, gy = _gradients(geo)
+    if spec.kind == "optimiser":
+        f, f1, a, f2 = spec.terms(r, w, s_b, c)
+        b1, b2 = gsum(g, f1 * gx, m), gsum(g, f1 * gy, m)
+        dx, dy = -geo.sx, -geo.sy
+        k = f1 / (d ** 4)
+        kxy = 2.0 * dx * dy * k
+        kd = (dx * dx - dy * dy) * k
+        h11 = gsum(g, f2 * gx * gx + kxy, m)
+        h12 = gsum(g, f2 * gx * gy - kd, m)
+        h22 = gsum(g, f2 * gy * gy - kxy, m)
+        pd = (h11 > 0) & (h11 * h22 - h12 * h12 > 0)
+        j11, j12, j22 = (gsum(g, a * t, m) for t in (gx * gx, gx * gy, gy * gy))
+        sx_, sy_, _ = solve2(j11, j12, j22, b1, b2)
+        with np.errstate(invalid="ignore"):
+            good = pd & (np.hypot(sx_, sy_) < VERIFY_M)
+    else:
+        if spec.kind == "closed":
+            sx_, sy_, ratio = planar_point(g, m, geo.sx, geo.sy, geo.phi, np.ones(len(r)))
+        else:
+            sx_, sy_, ratio = stansfield.step(g, m, geo.sx, geo.sy, geo.phi, w, np.zeros(m), np.zeros(m))
+        with np.errstate(invalid="ignore"):
+            good = (np.hypot(sx_, sy_) < VERIFY_M) & (ratio > iterate.SINGULAR_RATIO)
+    dmin = np.full(m, np.inf)
+    np.minimum.at(dmin, g, d)
+    on_station = verified & (dmin < NEAR_STATION * ctx["spread"])
+    ending[verified & ~good] = NOT_OPTIMUM
+    ending[on_station] = AT_STATION
+    return verified & good & ~on_station
+
+
+def _finish(ctx, counts, geo, P_lat, P_lon, ending, verified, known_b, known_g, sd_rad, parallel,
+            iterations) -> Solution:
+    spec, g, m, s_b, c = ctx["spec"], ctx["g"], ctx["m"], ctx["s_b"], ctx["c"]
+    r, d = geo.r, geo.d
+    gx, gy = _gradients(geo)
+    weight = spec.weights(r, s_b, c) if spec.robust else np.ones(len(r))
+    if "soft" in ctx:
+        soft = registry.REGISTRY["huber"]
+        weight = np.where(ctx["soft"][g], soft.weights(r, s_b, soft.default_c), weight)
+    weight = np.where(np.isfinite(weight), weight, 0.0)
+    used = weight > 0
+    n_used = gsum(g, used.astype(float), m).astype(int)
+    # A robust fit must keep enough bearings to check them against each other: after dropping any it
+    # keeps at least three (two bearings always "agree").
+    collapsed = verified & (n_used < counts) & (n_used < 3)
+    if spec.robust:
+        ending[collapsed] = COLLAPSED
+        verified = verified & ~collapsed
+    cov, sd_fix, dof = position_covariance(spec.family, g, m, gx, gy, d, r, weight, known_b, known_g, sd_rad)
+    sd_fix_deg = np.degrees(sd_fix)
+    dirs = geo.az                                     # line of sight at the fix (doubled angles ignore its sense)
+    c2 = gsum(g, used * np.cos(2 * dirs), m)
+    s2 = gsum(g, used * np.sin(2 * dirs), m)
+    with np.errstate(invalid="ignore", divide="ignore"):
+        crossing = np.degrees(np.arccos(np.clip(np.hypot(c2, s2) / n_used, 0, 1)))
+    behind = gsum(g, (used & (np.cos(r) <= 0)).astype(float), m) > 0
+    # The likelihood region weighs each bearing by 1/SD^2 times its robust weight when the SD is known;
+    # with an estimated SD every kept bearing counts alike, as in the classical scale of the covariance.
+    region_weight = np.where(known_b, weight / np.where(known_b, sd_rad, 1.0) ** 2, used.astype(float))
+    scale = np.full(m, np.nan)
+    if spec.robust:
+        np.fmax.at(scale, g, np.degrees(s_b))
+    else:
+        scale = np.where(known_g, sd_fix_deg, np.nan)
+    return Solution(
+        lat=P_lat, lon=wrap180(P_lon), cov_en=cov, sd_deg=sd_fix_deg, sd_known=known_g, dof=dof, n_used=n_used,
+        kappa=kappa_from_sd(sd_fix_deg), iterations=iterations, converged=verified, parallel=parallel,
+        behind=behind, crossing_deg=crossing, residual_deg=np.degrees(r), weight=weight, range_m=d,
+        ending=ending, scale_deg=scale, azimuth_from_fix_deg=np.degrees(geo.az) % 360.0,
+        region_weight=region_weight, method=spec.name,
+    )

@@ -1,0 +1,210 @@
+"""From usable bearings to a table of fixes, each with a status, a plain reason and its region.
+
+This is where dfkit decides what is honest to report. Every fix of the input
+gets a row. A position is given only when it means something, and a region
+only when its probability statement holds (statuses: :mod:`dfkit.locate.fixes`).
+"""
+
+from __future__ import annotations
+
+import numpy as np
+import pandas as pd
+
+from dfkit import estimators, geodesy, regions
+from dfkit.locate.fixes import FIX_COLUMNS, WITH_POSITION, Fixes
+from dfkit.locate.hints import one_bearing_hints
+from dfkit.locate.status import FixFacts, classify, consistency
+
+#: Inconsistent fixes with a chi-square p-value at least this are not searched for one bad line.
+HINT_P = 1e-3
+from dfkit.observations import Bearings, ReadOptions, read_bearings
+
+
+
+def locate(bearings: Bearings, *, method: str = "mle", level: float = 0.95, window_min: float | None = None,
+           robust_c: float | None = None, with_regions: bool = True, progress=None) -> Fixes:
+    """Solve every fix of a set of bearings.
+
+    Parameters
+    ----------
+    bearings : Bearings
+        From :func:`dfkit.read_bearings`.
+    method : str
+        Estimator, one of :data:`dfkit.estimators.METHODS` (see :mod:`dfkit.estimators`).
+    level : float
+        Probability of the confidence regions and ellipses, in (0, 1).
+    window_min : float, optional
+        Fixes whose bearings span more than this are flagged ``long_span``; by
+        default the window the bearings were grouped with. [min]
+    robust_c : float, optional
+        Tuning constant of the Huber and Andrews weights (default: the method's).
+    with_regions : bool
+        Compute each fix's likelihood-ratio region (default). Without them a fix can still be
+        ``ok`` on its covariance ellipse, and :meth:`Fixes.contains` answers only for ellipses.
+    progress : callable, optional
+        Called with a short text at each stage (the CLI prints it).
+    """
+    if method not in estimators.METHODS:
+        raise ValueError(f"method={method!r} is not one of {', '.join(repr(m) for m in estimators.METHODS)}")
+    if not (isinstance(level, (int, float, np.floating)) and 0.0 < float(level) < 1.0):
+        raise ValueError(f"level={level!r} must be a probability between 0 and 1 (e.g. 0.95)")
+    say = progress or (lambda text: None)
+    if window_min is None:
+        window_min = bearings.window_min
+    b = bearings.table
+    fix_index = bearings.fix_index
+    m = len(fix_index)
+    g = b["fix_id"].to_numpy(dtype=np.int64) if len(b) else np.zeros(0, np.int64)
+    counts = np.bincount(g, minlength=m)
+    lat = b["lat"].to_numpy(float)
+    lon = b["lon"].to_numpy(float)
+    theta = b["true_bearing"].to_numpy(float)
+    sd = b["sd"].to_numpy(float)
+    lines = b["line"].to_numpy() if len(b) else np.zeros(0, int)
+
+    say(f"solving {m} fixes from {len(b)} bearings ({method})")
+    sol = estimators.solve(lat, lon, theta, g, m, sd, method=method, robust_c=robust_c)
+    # an SD measured on a finite number of beacon trials (per-bearing sd_dof, dfkit.calibration) widens the
+    # regions: F(2, sd_dof) instead of chi-square
+    cal_dof = np.full(m, np.inf)
+    if "sd_dof" in b and len(b):
+        np.minimum.at(cal_dof, g, b["sd_dof"].astype(float).fillna(np.inf).to_numpy(float))
+    k = regions.scale_factor(level, np.where(sol.sd_known, np.where(np.isfinite(cal_dof), cal_dof, 0), sol.dof))
+    ell = regions.ellipse_axes(sol.cov_en, k)
+    lik = None
+    if with_regions:
+        say("likelihood regions")
+        lik = regions.likelihood_regions(sol.lat, sol.lon, g, lat, lon, theta, sol.range_m, sol.azimuth_from_fix_deg,
+                                         sol.residual_deg, sol.region_weight, sol.sd_known, sol.dof, level,
+                                         known_dof=cal_dof, valid=sol.converged)
+
+    say("statuses")
+    clat, clon = geodesy.group_centroid(lat, lon, g, m)
+    spread = np.zeros(m)
+    if len(b):
+        np.maximum.at(spread, g, geodesy.chord_distance_m(clat[g], clon[g], lat, lon))
+    span_min, tmid = _time_span(b, g, m)
+    # A fix goes on while each bearing follows the last within the window (dfkit.observations.grouping):
+    # a gap longer than the window, or a chain lasting more than FIX_SPAN_WINDOWS windows, is flagged.
+    gap_min = bearings.fix_timing()["max_gap_min"].to_numpy(float) if m else np.zeros(0)
+    facts = FixFacts(sol=sol, g=g, counts=counts, spread_m=spread, span_min=span_min, gap_min=gap_min,
+                     window_min=window_min,
+                     lines=lines, rejected=fix_index["rejected_lines"].tolist(), ellipse_area=ell.area_m2,
+                     ellipse_minor=ell.semi_minor_m, regions=lik, level=float(level), hints={})
+    status, reasons = classify(facts)
+    # a fix only mildly inconsistent (1 clean fix in 100 is) is not worth a search for the one bad line
+    _, p = consistency(sol, g, m, lik)
+    with np.errstate(invalid="ignore"):
+        mild = (status == "inconsistent") & (p >= HINT_P)
+    hints = one_bearing_hints(lat, lon, theta, sd, g, counts, lines, np.where(mild, "", status), method, robust_c)
+    if hints:
+        facts.hints = hints
+        status, reasons = classify(facts)
+
+    table = _table(bearings, sol, ell, lik, status, reasons, counts, span_min, tmid, method, level)
+    bt = b.copy()
+    has_pos = np.isin(status, WITH_POSITION)
+    if len(b):
+        pos_b = has_pos[g]
+        bt["residual_deg"] = np.where(pos_b, sol.residual_deg, np.nan)
+        bt["weight"] = np.where(pos_b, sol.weight, np.nan)
+        bt["range_m"] = np.where(pos_b, sol.range_m, np.nan)
+        bt["fix_status"] = status[g]
+    else:
+        for c in ("residual_deg", "weight", "range_m", "fix_status"):
+            bt[c] = []
+    notes = list(bearings.notes)
+    return Fixes(table=table, bearings=bt, problems=list(bearings.problems), notes=notes, source=bearings.source,
+                 likelihood=lik)
+
+
+def _time_span(b, g, m):
+    epoch = pd.Timestamp("1970-01-01", tz="UTC")
+    t_s = (b["time"] - epoch).dt.total_seconds().to_numpy(float) if len(b) else np.zeros(0)
+    has_t = np.isfinite(t_s)
+    tmin = np.full(m, np.inf)
+    tmax = np.full(m, -np.inf)
+    np.minimum.at(tmin, g[has_t], t_s[has_t])
+    np.maximum.at(tmax, g[has_t], t_s[has_t])
+    span_min = np.where(np.isfinite(tmin), (tmax - tmin) / 60.0, np.nan)
+    with np.errstate(invalid="ignore"):
+        tmid = np.where(np.isfinite(tmin), (tmin + tmax) / 2.0, np.nan)
+    return span_min, tmid
+
+
+def _sd_source(b, g, m, sol, has_pos):
+    """'given', 'calibration' or 'given+calibration' when every bearing has an SD; 'estimated' otherwise."""
+    out = np.full(m, "", dtype=object)
+    if not len(b):
+        return out
+    is_cal = (b["sd_source"].to_numpy(dtype=object) == "calibration") if "sd_source" in b else np.zeros(len(b), bool)
+    cal = np.bincount(g, is_cal.astype(float), m)
+    n = np.bincount(g, minlength=m)
+    given = np.where(cal == n, "calibration", np.where(cal == 0, "given", "given+calibration"))
+    out[:] = np.where(sol.sd_known, given, np.where(sol.dof > 0, "estimated", ""))
+    return np.where(has_pos, out, "")
+
+
+def _table(bearings, sol, ell, lik, status, reasons, counts, span_min, tmid, method, level):
+    b = bearings.table
+    fix_index = bearings.fix_index
+    m = len(fix_index)
+    g = b["fix_id"].to_numpy(dtype=np.int64) if len(b) else np.zeros(0, np.int64)
+    has_pos = np.isin(status, WITH_POSITION)
+    has_region = has_pos & np.isfinite(ell.area_m2) & (ell.semi_minor_m > 0)
+    if lik is not None:
+        has_lik = has_pos & lik.has_region
+    else:
+        has_lik = np.zeros(m, bool)
+    cov = sol.cov_en
+    pos = lambda v: np.where(has_pos, v, np.nan)  # noqa: E731
+    reg = lambda v: np.where(has_region, v, np.nan)  # noqa: E731
+    max_res = np.full(m, np.nan)
+    if len(b):
+        tmp = np.zeros(m)
+        np.maximum.at(tmp, g, np.abs(sol.residual_deg))
+        max_res = np.where(counts > 0, tmp, np.nan)
+    table = pd.DataFrame({
+        "fix": fix_index["fix"].tolist(),
+        "tag": fix_index["tag"].tolist(),
+        "time": pd.to_datetime(tmid, unit="s", utc=True),
+        "lat": pos(sol.lat),
+        "lon": pos(sol.lon),
+        "n_bearings": counts,
+        "n_used": sol.n_used,
+        "method": method,
+        "sd_deg": pos(sol.sd_deg),
+        "sd_source": _sd_source(b, g, m, sol, has_pos),
+        "level": float(level),
+        "semi_major_m": reg(ell.semi_major_m),
+        "semi_minor_m": reg(ell.semi_minor_m),
+        "orientation_deg": reg(ell.orientation_deg),
+        "area_m2": reg(ell.area_m2),
+        "region_area_m2": np.where(has_lik, lik.area_m2, np.nan) if lik is not None else np.full(m, np.nan),
+        "region_bounded": has_lik & (lik.bounded if lik is not None else False),
+        "region_reach_m": np.where(has_lik, lik.reach_m, np.nan) if lik is not None else np.full(m, np.nan),
+        "cov_ee_m2": reg(cov[:, 0, 0]),
+        "cov_en_m2": reg(cov[:, 0, 1]),
+        "cov_nn_m2": reg(cov[:, 1, 1]),
+        "status": status,
+        "reason": ["; ".join(r) for r in reasons],
+        "crossing_deg": np.where(counts >= 2, sol.crossing_deg, np.nan),
+        "span_min": span_min,
+        "max_residual_deg": pos(max_res),
+        "kappa": pos(sol.kappa),
+        "iterations": sol.iterations,
+        "converged": sol.converged,
+        "rejected_lines": [" ".join(str(x) for x in rej) for rej in fix_index["rejected_lines"].tolist()],
+    })
+    return table[FIX_COLUMNS]
+
+
+def locate_sheet(sheet, *, method="mle", level=0.95, options: ReadOptions | None = None, progress=None,
+                 **read_kwargs) -> Fixes:
+    """Read a sheet and solve its fixes: the Python form of ``dfkit fix``.
+
+    ``read_kwargs`` are :class:`~dfkit.observations.ReadOptions` fields
+    (``north='magnetic'``, ``sd=5``, ``window_min=30``, ``track='t.gpx'`` ...).
+    """
+    bearings = read_bearings(sheet, options, **read_kwargs)
+    return locate(bearings, method=method, level=level, progress=progress)

@@ -1,0 +1,261 @@
+"""Each fix's status word and a plain reason that says what actually happened.
+
+The solver reports how each fit ended (:data:`dfkit.estimators.ENDINGS`); this
+module turns that, the geometry, the fit's consistency and the likelihood
+region into one status (:data:`dfkit.locate.fixes.STATUS_MEANING`) and reasons
+a user can act on, naming input lines.
+"""
+
+from __future__ import annotations
+
+from dataclasses import dataclass
+
+import numpy as np
+
+from dfkit.estimators import ENDINGS
+from dfkit.policy import (ELLIPSE_MISMATCH, FIX_SPAN_WINDOWS, INCONSISTENT_P, NEAR_OBSERVER, ONE_SPOT_M, PLAUSIBLE_SD_DEG, REVERSED_DEG,
+                          SHALLOW_CROSSING_DEG, WILD_SD)
+from dfkit.regions import chi2_sf
+
+_E = {name: i for i, name in enumerate(ENDINGS)}
+
+
+@dataclass
+class FixFacts:
+    """Everything the classification looks at (arrays over fixes or bearings)."""
+
+    sol: object                 # dfkit.estimators.Solution
+    g: np.ndarray               # fix of each bearing
+    counts: np.ndarray          # bearings per fix
+    spread_m: np.ndarray        # largest distance of a station from the stations' centroid [m]
+    span_min: np.ndarray        # time spanned by the bearings [min]
+    gap_min: np.ndarray         # longest time between two successive bearings [min]
+    window_min: float
+    lines: np.ndarray           # input line of each bearing
+    rejected: list              # rejected input lines per fix
+    ellipse_area: np.ndarray    # covariance-ellipse area [m^2]
+    ellipse_minor: np.ndarray   # semi-minor axis [m]
+    regions: object             # dfkit.regions.LikelihoodRegions or None
+    level: float
+    hints: dict                 # fix index -> list of extra reason texts
+
+
+def _lines_text(lines):
+    lines = list(lines)
+    if not lines:
+        return "no line"
+    if len(lines) == 1:
+        return f"line {lines[0]}"
+    return "lines " + ", ".join(str(x) for x in lines[:-1]) + f" and {lines[-1]}"
+
+
+def consistency(sol, g, m, regions=None):
+    """Per fix with a known SD: S = sum (r/sd)^2 over the bearings the fit uses, at full weight, and its
+    chi-square p-value on n_used - 2 degrees of freedom (NaN where the SD is estimated or dof < 1).
+
+    S is the smallest value over all points (the likelihood region's S_min) when the regions are given
+    and the method is not robust, so that an inefficient estimator (least squares) is not taken for
+    disagreeing bearings. A bearing a robust fit merely down-weights still counts in full, at the fix:
+    the question is whether the bearings behind the answer agree with their SD.
+    """
+    r = np.radians(sol.residual_deg)
+    w = sol.weight
+    with np.errstate(divide="ignore", invalid="ignore"):
+        inv_var = np.where(w > 0, sol.region_weight / np.where(w > 0, w, 1.0), 0.0)
+    S = np.bincount(g, inv_var * r * r, m)
+    if regions is not None and sol.method in ("mle", "lsq", "stansfield"):
+        S = np.where(regions.has_region & np.isfinite(regions.s_min), np.minimum(S, regions.s_min), S)
+    dof = sol.dof
+    p = np.where(sol.sd_known & (dof >= 1), chi2_sf(S, np.maximum(dof, 1)), np.nan)
+    return S, p
+
+
+def classify(f: FixFacts):
+    """Status word and reasons of every fix: (status array, list of reason lists)."""
+    sol, g = f.sol, f.g
+    m = len(f.counts)
+    status = np.full(m, "ok", dtype=object)
+    reasons: list[list[str]] = [[] for _ in range(m)]
+    if not m:
+        return status, reasons
+    S, p = consistency(sol, g, m, f.regions)
+    ending = sol.ending
+    order = np.argsort(g, kind="stable")
+    starts = np.concatenate(([0], np.cumsum(f.counts)))
+    res = sol.residual_deg
+    w = sol.weight
+    used = w > 0
+    behind_b = used & (np.cos(np.radians(res)) <= 0)
+    sd_fix = sol.sd_deg
+    with np.errstate(invalid="ignore"):
+        wild_b = used & (np.abs(res) > WILD_SD * sd_fix[g])
+        reversed_b = np.abs(res) > REVERSED_DEG
+        low_b = w < 0.5
+    notable = np.zeros(m, bool)
+    np.logical_or.at(notable, g, wild_b | low_b | reversed_b)
+    regions = f.regions
+    bounded = regions.bounded if regions is not None else np.ones(m, bool)
+    has_region = regions.has_region if regions is not None else np.ones(m, bool)
+    with np.errstate(invalid="ignore"):
+        inconsistent = np.where(sol.sd_known, p < INCONSISTENT_P, sd_fix > PLAUSIBLE_SD_DEG) & (sol.dof >= 1)
+        no_cov = ~(np.isfinite(sol.cov_en).all(axis=(1, 2)) & (f.ellipse_minor > 0) & (f.ellipse_area > 0))
+        far = np.zeros(m)
+        np.maximum.at(far, g, np.where(used, sol.range_m, 0.0))
+        near_b = used & (sol.range_m < NEAR_OBSERVER * far[g])
+        near_obs = np.zeros(m, bool)
+        np.logical_or.at(near_obs, g, near_b)
+        long_span = (f.gap_min > f.window_min) | (f.span_min > FIX_SPAN_WINDOWS * f.window_min)
+        star = regions.star_shaped | ~regions.has_region if regions is not None else np.ones(m, bool)
+        attention = (~star | near_obs | long_span | (f.counts < 2) | (f.spread_m < ONE_SPOT_M) | (ending != _E["optimum"])
+                     | sol.behind | ~sol.converged | inconsistent | ~bounded | ~has_region | no_cov
+                     | (sol.crossing_deg < SHALLOW_CROSSING_DEG) | notable)
+    attention |= np.array([len(r) > 0 for r in f.rejected], bool)
+    attention |= np.isin(np.arange(m), list(f.hints))
+    if regions is not None:
+        with np.errstate(invalid="ignore", divide="ignore"):
+            ratio = regions.area_m2 / f.ellipse_area
+        mismatch = np.isfinite(ratio) & ((ratio > ELLIPSE_MISMATCH) | (ratio < 1.0 / ELLIPSE_MISMATCH))
+        attention |= mismatch
+    else:
+        ratio = np.full(m, np.nan)
+        mismatch = np.zeros(m, bool)
+
+    for i in np.flatnonzero(attention):
+        sel = order[starts[i]:starts[i + 1]]
+        n = f.counts[i]
+        end = ENDINGS[ending[i]]
+        flags: list[tuple[str, str]] = []
+        if n < 2:
+            flags.append(("too_few", f"{n} usable bearing{'s' if n != 1 else ''}; a fix needs at least 2"))
+        elif f.spread_m[i] < ONE_SPOT_M:
+            flags.append(("one_spot", f"all {n} bearings were taken from one spot; bearings from one place "
+                                      "cannot cross"))
+        elif end == "parallel":
+            flags.append(("parallel", _parallel_text(sol, sel)))
+        elif end in ("runaway", "singular"):
+            flags.append(("diverging", "the bearing lines do not meet in front of the observers within reach: "
+                                       "the best point runs off along the bearings (they point apart, or are so "
+                                       "nearly parallel that they meet only very far away)"))
+        elif end == "at_station":
+            near = sel[np.argmin(sol.range_m[sel])]
+            flags.append(("on_station", f"the best point creeps onto the observer at line {f.lines[near]}: that "
+                                        "bearing fits only if the transmitter sits on its station, so another "
+                                        "bearing disagrees badly"))
+        elif end in ("stalled", "max_iter"):
+            flags.append(("no_convergence", f"the estimate did not settle after {sol.iterations[i]} iterations"))
+        elif end == "not_optimum":
+            flags.append(("no_optimum", "the fit settled on a point that is not a maximum of the likelihood "
+                                        "(a saddle or a flat valley): the bearings do not pin down a point"))
+        elif end == "collapsed":
+            kept = sel[used[sel]]
+            dropped = sel[~used[sel]]
+            flags.append(("collapsed", f"the robust weights kept only {_lines_text(f.lines[kept])} and dropped "
+                                       f"{_lines_text(f.lines[dropped])}: too few bearings agree to fix a point"))
+        elif sol.behind[i]:
+            back = sel[behind_b[sel]]
+            if sol.n_used[i] == 2:
+                flags.append(("diverging", f"the two lines cross only behind the observer at "
+                                           f"{_lines_text(f.lines[back])}: the bearings point apart"))
+            else:
+                j = back[np.argmax(np.abs(res[back]))]
+                flags.append(("behind", f"the best point lies behind the observer at line {f.lines[j]}: its "
+                                        f"bearing points away from it (misses by {res[j]:+.0f}°)"))
+        elif not sol.converged[i]:
+            flags.append(("no_convergence", f"the estimate did not settle after {sol.iterations[i]} iterations"))
+        else:
+            if inconsistent[i]:
+                if sol.sd_known[i]:
+                    flags.append(("inconsistent",
+                                  f"the bearings disagree more than their SD of {sd_fix[i]:.3g}° allows "
+                                  f"(chi-square {S[i]:.1f} on {sol.dof[i]} degree{'s' if sol.dof[i] != 1 else ''} "
+                                  f"of freedom, p = {p[i]:.1g}): a bearing is wild or the SD is too small"))
+                else:
+                    flags.append(("inconsistent",
+                                  f"the bearings miss each other widely: their SD is estimated at "
+                                  f"{sd_fix[i]:.0f}°, more than the {PLAUSIBLE_SD_DEG:g}° a directional "
+                                  "antenna plausibly gives"))
+            if near_obs[i]:
+                j = sel[near_b[sel]][0]
+                flags.append(("near_observer", f"the fix lies {sol.range_m[j]:.0f} m from the observer at line "
+                                               f"{f.lines[j]}, so close that this bearing hardly constrains it "
+                                               "(near its own station a bearing fits almost any point): check "
+                                               "that the transmitter is beside that observer, or take another "
+                                               "bearing"))
+            if sol.crossing_deg[i] < SHALLOW_CROSSING_DEG:
+                what = "the two bearings cross" if sol.n_used[i] == 2 else "the bearing lines spread only"
+                flags.append(("shallow", f"{what} at {sol.crossing_deg[i]:.0f}° (common-practice limit "
+                                         f"{SHALLOW_CROSSING_DEG:.0f}°); the position is weak along the bearings"))
+            if regions is not None and has_region[i] and not bounded[i]:
+                flags.append(("unbounded", f"the {100 * f.level:g}% region is open: it reaches past "
+                                           f"{_km(regions.draw_range_m[i])} along the bearings (drawn to "
+                                           "there), so a transmitter far along them is not ruled out"))
+            if long_span[i]:
+                what = (f"{f.gap_min[i]:.0f} min pass between two of its bearings, more than the "
+                        f"{f.window_min:g}-min window" if f.gap_min[i] > f.window_min else
+                        f"its bearings span {f.span_min[i]:.0f} min, more than {FIX_SPAN_WINDOWS:g} windows of "
+                        f"{f.window_min:g} min")
+                flags.append(("long_span", f"{what}; the transmitter may have moved"))
+            if not sol.sd_known[i] and sol.dof[i] <= 0:
+                flags.append(("no_region", "two bearings and no known SD: a position but no confidence "
+                                           "region (give sd in the sheet or --sd)"))
+            elif no_cov[i] or (regions is not None and not has_region[i]):
+                flags.append(("no_region", "the covariance of this fix is degenerate: no region can be sized"))
+        if flags:
+            status[i] = flags[0][0]
+            reasons[i].extend(text for _, text in flags)
+        # what each bearing says about the fix (only where the fix is a verified optimum: elsewhere the
+        # residuals are taken at an arbitrary point)
+        if n >= 2 and sol.converged[i]:
+            hinted = " ".join(f.hints.get(i, []))
+            for j in sel[reversed_b[sel]][:3]:
+                if f"line {f.lines[j]} turned by 180°" in hinted:
+                    continue             # the hint says it, with the bearing that fits
+                reasons[i].append(f"line {f.lines[j]} looks reversed by 180°: it misses by {res[j]:+.0f}° "
+                                  "(read from the back of the antenna?); check it and enter it turned by 180°")
+            shown = set(sel[reversed_b[sel]][:3].tolist())
+            for j in sel[wild_b[sel] & ~reversed_b[sel]][:3]:
+                if sol.sd_known[i] or sol.dof[i] >= 1:
+                    reasons[i].append(f"line {f.lines[j]} misses by {res[j]:+.1f}° (more than {WILD_SD:g} SD)")
+                    shown.add(j)
+            for j in sel[low_b[sel]][:3]:
+                if w[j] <= 0:
+                    if j not in shown:
+                        reasons[i].append(f"line {f.lines[j]} dropped by the robust fit (misses by {res[j]:+.0f}°)")
+                    else:
+                        reasons[i].append(f"line {f.lines[j]} dropped by the robust fit")
+                else:
+                    reasons[i].append(f"line {f.lines[j]} down-weighted to {w[j]:.2f}")
+        reasons[i].extend(f.hints.get(i, []))
+        if regions is not None and has_region[i] and not regions.star_shaped[i]:
+            reasons[i].append("the region is not star-shaped about its centre: a ray leaves it and comes back; "
+                              "it is drawn as its outer envelope")
+        if mismatch[i] and status[i] in ("ok", "shallow", "long_span", "inconsistent"):
+            reasons[i].append(f"the ellipse is a poor summary here: the likelihood region is {ratio[i]:.1f}x its "
+                              "area (use the region)")
+        rej = f.rejected[i]
+        if rej:
+            reasons[i].append("rejected input line" + ("s " if len(rej) > 1 else " ")
+                              + ", ".join(str(x) for x in rej[:8]) + (" ..." if len(rej) > 8 else ""))
+        reasons[i] = [r for r in reasons[i] if r]
+    return status, reasons
+
+
+def _km(m_):
+    return f"{m_ / 1000:.0f} km" if m_ >= 10_000 else f"{m_ / 1000:.1f} km"
+
+
+def _parallel_text(sol, sel):
+    # geometry about the stations' centroid (where a parallel fix stays): stations and observed directions
+    az = np.radians(sol.azimuth_from_fix_deg[sel])
+    d = sol.range_m[sel]
+    sx, sy = d * np.sin(az), d * np.cos(az)
+    obs = np.radians(sol.residual_deg[sel]) + az + np.pi
+    c, s = np.cos(obs).mean(), np.sin(obs).mean()
+    if np.hypot(c, s) < 0.5:       # they point opposite ways
+        nx, ny = np.cos(obs[0]), -np.sin(obs[0])
+        off = np.abs(nx * (sx - sx[0]) + ny * (sy - sy[0]))
+        if off.max() <= 0.02 * max(np.hypot(sx - sx[0], sy - sy[0]).max(), 1e-9):
+            return ("the bearings point at each other along one line: the transmitter could be anywhere on it; "
+                    "take a bearing from another place")
+        return "the bearing lines are parallel, pointing opposite ways: they do not cross"
+    return "the bearing lines are parallel: they do not cross; take a bearing from another place"

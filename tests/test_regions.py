@@ -1,0 +1,189 @@
+"""Likelihood-ratio regions against an outside computation: geographiclib residuals, scipy quantiles and optimisers."""
+
+import numpy as np
+import pytest
+from geographiclib.geodesic import Geodesic
+from scipy import optimize, stats
+
+from dfkit import estimators, regions
+
+WGS = Geodesic.WGS84
+
+
+def S_exact(stations, bearings, weights, p):
+    """S(x) = sum w_i r_i^2 with geographiclib residuals r_i (radians) at the point p = (lat, lon)."""
+    az = np.array([WGS.Inverse(a, b, p[0], p[1])["azi1"] for a, b in stations])
+    r = np.radians((np.asarray(bearings) - az + 180.0) % 360.0 - 180.0)
+    return float(np.sum(np.asarray(weights) * r * r))
+
+
+def solve_and_regions(stations, bearings, sd=None, method="mle", level=0.95, **kw):
+    st = np.asarray(stations, float)
+    g = np.zeros(len(st), int)
+    s = estimators.solve(st[:, 0], st[:, 1], bearings, g, 1, None if sd is None else np.full(len(st), sd),
+                         method=method)
+    L = regions.likelihood_regions(s.lat, s.lon, g, st[:, 0], st[:, 1], bearings, s.range_m,
+                                   s.azimuth_from_fix_deg, s.residual_deg, s.region_weight, s.sd_known, s.dof,
+                                   level, **kw)
+    return s, L
+
+
+def reference_threshold(stations, bearings, weights, fix, known, n, level=0.95):
+    """S_min by Nelder-Mead on geographiclib residuals, and the region's bound from scipy.stats
+    (Beale 1960; Bates & Watts 1988): S_min + chi2_2(level) for a known SD, S_min (1 + 2 F / (n - 2)) else."""
+    x0 = np.array(fix)
+    simplex = np.array([x0, x0 + [2e-4, 0], x0 + [0, 2e-4]])
+    res = optimize.minimize(lambda p: S_exact(stations, bearings, weights, p), x0, method="Nelder-Mead",
+                            options={"xatol": 1e-9, "fatol": 1e-13, "maxiter": 3000, "initial_simplex": simplex})
+    s_min = min(res.fun, S_exact(stations, bearings, weights, fix))
+    if known:
+        return s_min + stats.chi2.ppf(level, 2)
+    return s_min * (1 + 2 * stats.f.ppf(level, 2, n - 2) / (n - 2))
+
+
+TGT = (47.01, 15.01)
+
+
+def bearings_to(stations, target, noise):
+    return np.array([WGS.Inverse(a, b, *target)["azi1"] % 360 for a, b in stations]) + np.asarray(noise)
+
+
+CASES = {
+    "two at 90 degrees, known SD": ([(47.0, 15.01), (47.01, 14.995)], [1.0, -2.0], 3.0),
+    "three, known SD": ([(47.0, 15.0), (47.0, 15.02), (47.02, 15.02)], [1.5, -2.0, 1.0], 2.0),
+    "four, SD estimated": ([(47.0, 15.0), (47.0, 15.02), (47.02, 15.02), (47.02, 15.0)], [2.0, -3.0, 1.0, 2.5],
+                           None),
+    "two at 25 degrees, known SD (open)": ([(47.0, 15.0), (47.0, 15.0134)], [2.0, -1.0], 10.0),
+}
+
+
+@pytest.mark.parametrize("name", CASES)
+def test_region_edge_is_where_the_likelihood_ratio_reaches_its_bound(name):
+    st, noise, sd = CASES[name]
+    target = (47.02, 15.0067) if "open" in name else TGT
+    b = bearings_to(st, target, noise) % 360
+    s, L = solve_and_regions(st, b, sd)
+    w = np.full(len(st), 1.0 if sd is None else 1.0 / np.radians(sd) ** 2)
+    T = reference_threshold(st, b, w, (s.lat[0], s.lon[0]), sd is not None, len(st))
+    assert L.threshold[0] == pytest.approx(T, rel=1e-6, abs=1e-9)
+    lat, lon = L.ring(0)
+    closed = L.radius_m[0] < L.draw_range_m[0] * (1 - 1e-9)
+    gap = T - L.s_min[0]
+    for la, lo in list(zip(lat[:-1], lon[:-1]))[::3]:
+        k = np.argmin(np.abs(lat[:-1] - la) + np.abs(lon[:-1] - lo))
+        if closed[k]:
+            # the edge is searched to 1e-3 of the gap T - S_min (the radius to about 5e-4)
+            assert abs(S_exact(st, b, w, (la, lo)) - T) <= 1.5e-3 * gap
+        else:
+            assert S_exact(st, b, w, (la, lo)) < T      # an open ray is drawn to the range, still inside
+    assert L.bounded[0] == ("open" not in name)
+    assert L.star_shaped[0]
+
+
+def test_region_area_matches_the_geodesic_polygon_area():
+    # The area from 32 rays (trapezoid rule on rho^2) against Karney's geodesic polygon area of the same
+    # region traced with 720 rays (geographiclib PolygonArea).
+    st, noise, sd = CASES["three, known SD"]
+    b = bearings_to(st, TGT, noise) % 360
+    _, L = solve_and_regions(st, b, sd)
+    _, fine = solve_and_regions(st, b, sd, n_rays=720)
+    lat, lon = fine.ring(0)
+    poly = WGS.Polygon()
+    for la, lo in zip(lat[:-1], lon[:-1]):
+        poly.AddPoint(la, lo)
+    _, _, area = poly.Compute(False, True)
+    assert L.area_m2[0] == pytest.approx(abs(area), rel=2e-3)
+
+
+def test_contains_is_the_exact_criterion():
+    st, noise, sd = CASES["three, known SD"]
+    b = bearings_to(st, TGT, noise) % 360
+    s, L = solve_and_regions(st, b, sd)
+    w = np.full(3, 1.0 / np.radians(sd) ** 2)
+    T = L.threshold[0]
+    rng = np.random.default_rng(4)
+    for _ in range(30):
+        d = WGS.Direct(s.lat[0], s.lon[0], rng.uniform(0, 360), rng.uniform(0, 2.0 * L.reach_m[0]))
+        p = (d["lat2"], d["lon2"])
+        assert bool(L.contains(*p)[0]) == (S_exact(st, b, w, p) <= T)
+
+
+def test_long_baselines_use_geodesic_residuals():
+    # A 2000-km network: the plane approximation would be off by ~ rho d / R^2; the region's edge must
+    # still satisfy the exact bound with geodesic residuals.
+    st = [(48.0, 2.0), (41.0, 12.5), (52.5, 21.0), (60.0, 11.0)]
+    b = bearings_to(st, (50.0, 8.0), [1.0, -1.5, 0.8, 2.0]) % 360
+    s, L = solve_and_regions(st, b, 2.0)
+    w = np.full(4, 1.0 / np.radians(2.0) ** 2)
+    lat, lon = L.ring(0)
+    vals = [S_exact(st, b, w, p) for p in zip(lat[:-1], lon[:-1])]
+    assert vals == pytest.approx([L.threshold[0]] * len(vals), rel=1e-3)
+
+
+def test_across_the_antimeridian():
+    st = [(-17.0, 179.6), (-17.4, -179.5), (-16.5, -179.8)]
+    target = (-17.05, 179.95)
+    b = bearings_to(st, target, [1.0, -1.0, 0.5]) % 360
+    s, L = solve_and_regions(st, b, 2.0)
+    assert L.bounded[0] and L.contains(*target)[0]
+    lat, lon = L.ring(0)
+    assert np.ptp(lon) < 10      # unwrapped: continuous across 180
+
+
+@pytest.mark.parametrize("dof", [1, 2, 3, 4, 7, 10, 33, 150, 400])
+def test_chi_square_tail_matches_scipy(dof):
+    x = np.array([0.01, 0.5, 1.0, 3.0, 7.5, 16.0, 40.0, 120.0, 500.0])
+    got = regions.chi2_sf(x, dof)
+    ref = stats.chi2.sf(x, dof)
+    assert got == pytest.approx(ref, rel=1e-6 if dof <= 200 else 2e-2, abs=1e-300)
+
+
+def test_threshold_matches_scipy_quantiles():
+    s_min = np.array([0.0, 2.0, 2.0, 5.0])
+    known = np.array([True, True, False, False])
+    dof = np.array([0, 3, 1, 4])
+    got = regions.region_threshold(s_min, known, dof, 0.9)
+    ref = [stats.chi2.ppf(0.9, 2), 2.0 + stats.chi2.ppf(0.9, 2), 2.0 * (1 + 2 * stats.f.ppf(0.9, 2, 1) / 1),
+           5.0 * (1 + 2 * stats.f.ppf(0.9, 2, 4) / 4)]
+    assert got == pytest.approx(ref, rel=1e-9)
+
+
+def test_level_is_checked():
+    with pytest.raises(ValueError, match=r"level=0 must be a probability"):
+        regions.likelihood_regions([0.0], [0.0], [], [], [], [], [], [], [], [], [True], [0], 0)
+
+
+def test_regions_that_are_not_star_shaped_are_said_so_and_drawn_as_their_envelope():
+    # Fixes with a wild bearing sometimes have a region that a ray leaves and re-enters. Such regions are
+    # flagged, and each ray is drawn to its last exit: with geographiclib residuals, S is at the bound there,
+    # above it just beyond, and above it somewhere inside along at least one ray (the gap).
+    from .simulation import scenario
+
+    sc = scenario(400, 3, 5.0, np.random.default_rng(31), outlier=True)
+    n_fix = 400
+    g = np.repeat(np.arange(n_fix), 3)
+    lat, lon, b = sc["lat"].ravel(), sc["lon"].ravel(), sc["bearing"].ravel()
+    s = estimators.solve(lat, lon, b, g, n_fix, np.full(3 * n_fix, 5.0))
+    L = regions.likelihood_regions(s.lat, s.lon, g, lat, lon, b, s.range_m, s.azimuth_from_fix_deg, s.residual_deg,
+                                   s.region_weight, s.sd_known, s.dof, 0.95, valid=s.converged)
+    odd = np.flatnonzero(L.has_region & ~L.star_shaped & L.bounded)
+    assert len(odd) >= 1
+    i = odd[0]
+    st = np.column_stack([sc["lat"][i], sc["lon"][i]])
+    w = np.full(3, 1.0 / np.radians(5.0) ** 2)
+    T = L.threshold[i]
+    psi = np.radians(L.ray_azimuth_deg)
+
+    def S_along(k, rho):
+        x = L.centre_x[i] + rho * np.sin(psi[k])
+        y = L.centre_y[i] + rho * np.cos(psi[k])
+        d = WGS.Direct(L.fix_lat[i], L.fix_lon[i], np.degrees(np.arctan2(x, y)), np.hypot(x, y))
+        return S_exact(st, sc["bearing"][i], w, (d["lat2"], d["lon2"]))
+
+    gaps = 0
+    for k in range(len(psi)):
+        rho = L.radius_m[i, k]
+        assert abs(S_along(k, rho) - T) <= 1.5e-3 * (T - L.s_min[i])
+        assert S_along(k, rho * 1.01) > T
+        gaps += any(S_along(k, f * rho) > T for f in np.linspace(0.05, 0.95, 19))
+    assert gaps >= 1
