@@ -174,8 +174,6 @@ def test_dfkits_own_tables_read_back_as_dataframes(write_sheet):
     assert any("dfkit's own result" in p.message for p in again.problems)
 
 
-@pytest.mark.xfail(strict=True, reason="issue 7: a DataFrame's tz-aware time column with NaT is read as the text "
-                   "'NaT' and each row is rejected (io/typed.column_text)")
 def test_a_dataframe_with_missing_times_reads_back(write_sheet):
     first = read_bearings(write_sheet("fix,lat,lon,bearing,sd\nA,47,15,45,3\nA,47,15.02,315,3\n"))
     again = read_bearings(first.table)
