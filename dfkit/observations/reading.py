@@ -31,6 +31,10 @@ from dfkit.observations.times import parse_times
 from dfkit.policy import MIN_SD_DEG, SPLIT_LABEL_GAP_H
 from dfkit.problems import Problem, SheetError
 
+#: Columns of plain numbers that the CSV reader may hand over as floats (every cell a finite plain number):
+#: the common case is then parsed once, in C, with no text kept; anything else is read as text, as before.
+NUMERIC_COLUMNS = ("lat", "lon", "easting", "northing", "bearing", "sd")
+
 
 def read_bearings(sheet, options: ReadOptions | None = None, **kwargs) -> Bearings:
     """Read, validate and convert a bearing sheet.
@@ -66,7 +70,7 @@ def read_bearings(sheet, options: ReadOptions | None = None, **kwargs) -> Bearin
                             f"{', '.join(sorted(known))}")
         opts = replace(opts, **kwargs)
     check_options(opts)
-    raw = read_table(sheet, worksheet=opts.worksheet)
+    raw = read_table(sheet, worksheet=opts.worksheet, numeric=NUMERIC_COLUMNS)
     try:
         check_columns(raw.columns, raw.source, stations=opts.stations is not None, track=opts.track is not None)
     except SheetError as err:
