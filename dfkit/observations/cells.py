@@ -68,6 +68,9 @@ def per_value(cells, func):
 def canonical(cells, aliases: dict, default: str):
     """Map spellings to canonical words (``'Mag'`` -> ``'magnetic'``); returns (words, unknown mask).
     Empty cells take ``default``; unknown ones also get ``default`` (the row is rejected by the caller)."""
+    cells = np.asarray(cells, dtype=object)
+    if "" not in aliases and not (cells != "").any():        # an empty or absent column: the default everywhere
+        return np.full(len(cells), default, dtype=object), np.zeros(len(cells), bool)
     low = per_value(cells, lambda u: str(u).strip().lower())
     canon = per_value(low, lambda u: aliases.get(u, default if u == "" else None))
     unknown = pd.isna(canon).astype(bool) if len(canon) else np.zeros(0, bool)
@@ -226,7 +229,8 @@ def angles(cells, axis: str, decimal_comma: bool = False) -> Cells:
     distinct value. A hemisphere letter of the other axis (E/W in a latitude) is
     refused: the columns are probably swapped.
     """
-    cells = np.asarray(cells, dtype=object)
+    if not (isinstance(cells, np.ndarray) and cells.dtype.kind == "f"):     # floats: read by the sheet reader
+        cells = np.asarray(cells, dtype=object)
     out = _fast_then_slow(cells, lambda u: (np.nan, "?"))
     pending = out.error == "?"
     if pending.any():

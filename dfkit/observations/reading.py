@@ -105,9 +105,7 @@ def read_bearings(sheet, options: ReadOptions | None = None, **kwargs) -> Bearin
     times = tm.seconds
 
     # bearing and unit
-    bearing_deg, b = _bearings(t, opts, raw.decimal_comma, log)
-    unit_c = column(t, "unit")
-    unit, _ = canonical(unit_c, UNIT_ALIASES, opts.unit)
+    bearing_deg, b, unit = _bearings(t, opts, raw.decimal_comma, log)
 
     # north, sd, declination
     north, north_unknown = canonical(column(t, "north"), NORTH_ALIASES, opts.north)
@@ -184,7 +182,7 @@ def _bearings(t, opts, decimal_comma, log: RowLog):
         log.reject((b < 0) & ~unit_unknown, "bearing", lambda idx: [
             f"{b[i]:g} is negative; bearings run 0 to {full[i]:g} clockwise (write {full[i] + b[i]:g})" for i in idx])
         log.reject((b > full) & ~unit_unknown, "bearing", lambda idx: [_range_hint(b[i], unit[i]) for i in idx])
-    return b * per_value(unit, lambda u: DEGREES_PER_UNIT.get(u, 1.0)).astype(float), b
+    return b * per_value(unit, lambda u: DEGREES_PER_UNIT.get(u, 1.0)).astype(float), b, unit
 
 
 def _sds(t, opts, decimal_comma, log: RowLog):
