@@ -110,7 +110,7 @@ def locate(bearings: Bearings, *, method: str = "mle", level: float = 0.95, wind
         status, reasons = classify(facts)
 
     table = _table(bearings, sol, ell, lik, status, reasons, counts, span_min, tmid, method, level)
-    bt = b.copy()
+    bt = b.copy(deep=False)   # new columns only; the bearings table itself is not copied (copy-on-write)
     has_pos = np.isin(status, WITH_POSITION)
     if len(b):
         pos_b = has_pos[g]
