@@ -130,20 +130,20 @@ def write_table(df: pd.DataFrame, path, *, guard_formulas: bool = True) -> None:
         (first.dtype == object or pd.api.types.is_string_dtype(first.dtype))
         and bool(first.astype(str).str.startswith("#").any()))
     quoting = csv.QUOTE_NONNUMERIC if hashed else csv.QUOTE_MINIMAL
-    cells = _text_columns(table) if quoting == csv.QUOTE_MINIMAL and table.shape[1] >= 2 else None
+    fast = quoting == csv.QUOTE_MINIMAL and table.shape[1] >= 2 and _formats_all(table)
     with atomic_write(path, newline="") as fh:
-        if cells is None:      # what the fast writer does not do: pandas writes it
+        if not fast:      # what the fast writer does not do: pandas writes it
             table.to_csv(fh, index=False, header=header, lineterminator="\n", quoting=quoting)
             return
         fh.write(",".join(_quoted(header)) + "\n")
         for start in range(0, len(table), _ROWS_PER_WRITE):
-            part = [c[start:start + _ROWS_PER_WRITE] for c in cells]
-            fh.write("\n".join(map(",".join, zip(*part))))
+            cells = _text_columns(table.iloc[start:start + _ROWS_PER_WRITE])
+            fh.write("\n".join(map(",".join, zip(*cells))))
             fh.write("\n")
 
 
-#: Rows formatted into one piece of text before it is written (bounds the memory of a long table).
-_ROWS_PER_WRITE = 50_000
+#: Rows formatted into text at a time (bounds the memory a long table's text takes: about 2 MB per column).
+_ROWS_PER_WRITE = 20_000
 
 # What makes the csv module quote a cell under QUOTE_MINIMAL with ',' and '\n': the delimiter, the quote
 # character and line-end characters (CPython's Modules/_csv.c, join_append_data; '\r' counted in too).
@@ -161,9 +161,24 @@ def _quoted(cells: list) -> list:
     return out
 
 
+def _formats_all(table: pd.DataFrame) -> bool:
+    """Whether :func:`_text_columns` formats every column: float64, integers, booleans, and text columns holding
+    only str cells or missing values (anything else is left to pandas)."""
+    for name in table.columns:
+        col = table[name]
+        if isinstance(col.dtype, np.dtype) and (col.dtype.kind in "iub" or col.dtype == np.float64):
+            continue
+        if not (col.dtype == object or pd.api.types.is_string_dtype(col.dtype)):
+            return False
+        values = col.to_numpy(dtype=object)
+        if not set(map(type, values[~pd.isna(values)].tolist())) <= {str}:
+            return False
+    return True
+
+
 def _text_columns(table: pd.DataFrame):
-    """Every column as a list of the text pandas' ``to_csv`` writes for it (QUOTE_MINIMAL, ``na_rep=''``), or
-    None when a column is of a kind only pandas formats (then pandas writes the table).
+    """Every column as a list of the text pandas' ``to_csv`` writes for it (QUOTE_MINIMAL, ``na_rep=''``), for a
+    table :func:`_formats_all` accepts.
 
     pandas turns float64 columns into text with numpy's ``astype(str)``, the shortest text that reads back
     as the same float, which is Python's ``repr`` (checked in tests/test_csv_writer.py against pandas
@@ -183,9 +198,6 @@ def _text_columns(table: pd.DataFrame):
         elif col.dtype == object or pd.api.types.is_string_dtype(col.dtype):
             values = col.to_numpy(dtype=object)
             missing = pd.isna(values)
-            kinds = set(map(type, values[~missing].tolist())) if len(values) else set()
-            if not kinds <= {str}:
-                return None
             if missing.any():
                 values = values.copy()
                 values[missing] = ""
