@@ -261,6 +261,8 @@ def _latlon(p: _State, decimal_comma):
     log.reject(has & la.empty, cl, f"{cl} is missing ({cn} is given)")
     log.reject(has & lo.empty, cn, f"{cn} is missing ({cl} is given)")
     a, o = la.values, lo.values
+    for c, cells, name in ((la, la_c, cl), (lo, lo_c, cn)):
+        _note_packed(log, c, cells, name)
     with np.errstate(invalid="ignore"):
         log.reject(has & (np.abs(a) > 90) & (np.abs(o) <= 90), cl,
                    lambda idx: [f"{a[i]:g} is not a latitude, but {o[i]:g} could be: {cl} and {cn} look swapped"
@@ -273,6 +275,20 @@ def _latlon(p: _State, decimal_comma):
     log.reject(has & (a == 0) & (o == 0), cl, "0, 0 is almost certainly a missing position (it is at sea)")
     ok = np.flatnonzero(has & ~log.bad)
     p.take(ok, a[ok], o[ok], "lat/lon")
+
+
+def _note_packed(log: RowLog, c, cells, name):
+    """One warning per column whose cells were read as packed degrees-minutes(-seconds) (``4751.6N``)."""
+    if c.packed is None:
+        return
+    rows = np.flatnonzero(c.packed & ~log.bad)
+    if not len(rows):
+        return
+    i = rows[0]
+    more = f" (and {len(rows) - 1} more {name} cells, to line {log.lines[rows[-1]]})" if len(rows) > 1 else ""
+    log.warn(log.mask([i]), name, f"'{cells[i]}' read as a packed angle (degrees, minutes and maybe seconds without "
+                                  f"separators, as NMEA 0183 and GPS exports write them): {c.values[i]:.6f}°{more}; "
+                                  "check that this is what was meant")
 
 
 def _mgrs(p: _State):

@@ -31,9 +31,10 @@ from dfkit.observations.times import parse_times
 from dfkit.policy import MIN_SD_DEG, SPLIT_LABEL_GAP_H
 from dfkit.problems import Problem, SheetError
 
-#: Columns of plain numbers that the CSV reader may hand over as floats (every cell a finite plain number):
-#: the common case is then parsed once, in C, with no text kept; anything else is read as text, as before.
-NUMERIC_COLUMNS = ("lat", "lon", "easting", "northing", "bearing", "sd")
+#: Columns of plain numbers that the CSV reader may hand over as floats (every cell a finite plain number, no
+#: larger than the bound): the common case is then parsed once, in C, with no text kept; anything else is read
+#: as text, as before. A latitude or longitude beyond degrees may be a packed angle (``4751.6``): its text is kept.
+NUMERIC_COLUMNS = {"lat": 90.0, "lon": 360.0, "easting": None, "northing": None, "bearing": None, "sd": None}
 
 
 def read_bearings(sheet, options: ReadOptions | None = None, **kwargs) -> Bearings:
