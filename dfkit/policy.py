@@ -132,6 +132,14 @@ SWAPPED_NEAR_DEG = 0.5
 #: dfkit's own rule, no source: stations of one fix are rarely more than tens of km apart.
 OUT_OF_STRIP_TYPO_M = 100_000.0
 
+#: An MGRS reference names a square, and dfkit uses its centre, up to half the square's diagonal from the station.
+#: References naming squares of at least the first size [m] (2 digits: 10 km; none: 100 km) are refused: the
+#: station could be 7 km or more off, farther than VHF bearings usually reach. Squares of at least the second size
+#: (4 digits: 1 km, up to 707 m off) are read with a warning: the fix's region does not carry that error.
+#: dfkit's own rule, no source (MGRS precision by digit count: NGA.STND.0037, from memory).
+MGRS_REFUSED_SQUARE_M = 10_000.0
+MGRS_WARNED_SQUARE_M = 1_000.0
+
 #: Lowest bearing SD dfkit accepts, in the sheet or as an option [°]. Common practice, no source: the
 #: best fixed DF systems reach a few tenths of a degree; 0.01° (36 arc-seconds) is beyond any DF
 #: antenna, and much smaller values make the ellipse arithmetic underflow (1e-150° gave no ellipse).

@@ -132,6 +132,37 @@ def test_mgrs_reference_is_the_centre_of_its_square():
     assert (lat, lon) == pytest.approx((rlat[0], rlon[0]), abs=1e-9)
 
 
+@pytest.mark.parametrize("ref, square_m", [("33TYP", 100_000.0), ("33T YP", 100_000.0), ("33TYP00", 10_000.0),
+                                           ("33TYP0803", 1_000.0), ("33TYP081034", 100.0)])
+def test_mgrs_square_size_follows_its_digits(ref, square_m):
+    # The size of the square an MGRS reference names, checked with the mgrs package (GeoTrans), which returns
+    # the centre of a reduced-precision square: half a square from the square's grid lines.
+    import mgrs
+
+    _, _, e, n = mgrs.MGRS().MGRSToUTM(ref.replace(" ", ""))
+    assert (e - square_m / 2) % square_m == 0 and (n - square_m / 2) % square_m == 0
+    assert grids.parse_mgrs(ref)[0][4] == square_m
+
+
+@pytest.mark.parametrize("ref, refused, warned", [("33TYP", "100 km square", None), ("33T WN", "100 km square", None),
+                                                  ("33TYP00", "10 km square", None),
+                                                  ("33TYP0803", None, "1 km square"), ("33TYP081034", None, None)])
+def test_coarse_mgrs_squares_are_refused_or_warned(write_sheet, ref, refused, warned):
+    # issue 7 trial: coarse references were read silently and the fix failed as 'inconsistent'. Half the diagonal
+    # of a 1 km square is 1000 / sqrt(2) = 707 m; of a 10 km square 7 km.
+    b = read_bearings(write_sheet(f"fix,mgrs,bearing\nA,{ref},10\n"))
+    errs = [p.message for p in b.problems if p.severity == "error"]
+    warns = [p.message for p in b.problems if p.severity == "warning"]
+    if refused:
+        assert len(errs) == 1 and refused in errs[0] and "6 digits" in errs[0] and len(b.table) == 0
+    else:
+        assert errs == [] and len(b.table) == 1
+    if warned:
+        assert len(warns) == 1 and warned in warns[0] and "707 m" in warns[0] and "centre was used" in warns[0]
+    elif not refused:
+        assert warns == []
+
+
 @pytest.mark.parametrize("text", ["33UXP050044499", "hello", "33UXP05004449977"])
 def test_bad_mgrs(text):
     res, msg = grids.parse_mgrs(text)

@@ -35,8 +35,8 @@ from dfkit.io.gpx import Track
 from dfkit.observations.cells import angles, column, numbers, per_value, split_position
 from dfkit.observations.rowlog import RowLog
 from dfkit.policy import (
-    BAND_EDGE_MARGIN_DEG, DEFAULT_TRACK_GAP_S, OUT_OF_STRIP_TYPO_M, POSITION_AGREEMENT_M, SWAPPED_FAR_DEG,
-    SWAPPED_NEAR_DEG,
+    BAND_EDGE_MARGIN_DEG, DEFAULT_TRACK_GAP_S, MGRS_REFUSED_SQUARE_M, MGRS_WARNED_SQUARE_M, OUT_OF_STRIP_TYPO_M,
+    POSITION_AGREEMENT_M, SWAPPED_FAR_DEG, SWAPPED_NEAR_DEG,
 )
 from dfkit.problems import Problem
 
@@ -299,10 +299,25 @@ def _mgrs(p: _State):
     parsed = per_value(cells[idx], grids.parse_mgrs)
     ok = np.array([r[0] is not None for r in parsed], bool)
     p.log.reject(p.log.mask(idx[~ok]), p.name("mgrs"), lambda ii: [parsed[np.searchsorted(idx, i)][1] for i in ii])
-    good = idx[ok]
-    res = [r[0] for r in parsed[ok]]
+    square = np.array([r[0][4] if r[0] is not None else np.nan for r in parsed], float)
+    coarse = ok & (square >= MGRS_REFUSED_SQUARE_M)
+    p.log.reject(p.log.mask(idx[coarse]), p.name("mgrs"), lambda ii: [
+        f"'{cells[i]}' names a {_square(square[_k(idx, i)])} square: its centre could be "
+        f"{square[_k(idx, i)] / np.sqrt(2) / 1000:,.0f} km from the place meant, farther than bearings usually reach; "
+        "give at least 6 digits (a 100 m square)" for i in ii])
+    p.log.warn(p.log.mask(idx[ok & ~coarse & (square >= MGRS_WARNED_SQUARE_M)]), p.name("mgrs"), lambda ii: [
+        f"'{cells[i]}' names a {_square(square[_k(idx, i)])} square: its centre was used, which may be up to "
+        f"{square[_k(idx, i)] / np.sqrt(2):,.0f} m from the place meant, and the fix's region does not include that; "
+        "give 6 digits or more (a 100 m square) where you can" for i in ii])
+    keep = ok & ~coarse
+    good = idx[keep]
+    res = [r[0] for r in parsed[keep]]
     if len(good):
         p.take(good, [r[0] for r in res], [r[1] for r in res], "mgrs", [r[2] for r in res], [r[3] for r in res])
+
+
+def _square(size_m):
+    return f"{size_m / 1000:g} km" if size_m >= 1000 else f"{size_m:g} m"
 
 
 def _station(p: _State, stations):
