@@ -72,7 +72,7 @@ def test_a_run_on_dms_is_not_split_into_degrees_minutes_seconds():
 
 
 def test_the_trial_sheet_with_packed_positions(write_sheet):
-    b = read_bearings(write_sheet("fix,lat,lon,bearing\nA,075136N,0800512W,10\nA,475136N,0150936E,10\n"
+    b = read_bearings(write_sheet("fix,lat,lon,bearing\nA,075136N,0800512W,10\nB,475136N,0150936E,10\n"
                                   "A,N0751.6,W08005.2,10\n"))
     assert errors(b) == []
     assert b.table["lat"].tolist() == pytest.approx([dms(7, 51, 36), dms(47, 51, 36), dms(7, 51.6)])
