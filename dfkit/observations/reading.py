@@ -5,7 +5,8 @@ The steps, in order: read the file (:func:`dfkit.io.read_table`), check the colu
 bearings, units, north, SDs and declinations (:mod:`~dfkit.observations.cells`),
 group rows into fixes (:mod:`~dfkit.observations.grouping`), read positions judged
 against each row's own fix (:mod:`~dfkit.observations.positions`), turn magnetic and
-grid bearings to true (:mod:`~dfkit.observations.north`).
+grid bearings to true (:mod:`~dfkit.observations.north`), and use a repeated row once
+(:mod:`~dfkit.observations.repeats`).
 """
 
 from __future__ import annotations
@@ -26,6 +27,7 @@ from dfkit.observations.columns import check_columns
 from dfkit.observations.grouping import fix_identities, group_fixes, pair_codes
 from dfkit.observations.options import ReadOptions, check_options
 from dfkit.observations.positions import parse_positions, read_places
+from dfkit.observations.repeats import repeated_rows
 from dfkit.observations.rowlog import RowLog
 from dfkit.observations.times import parse_times
 from dfkit.policy import MIN_SD_DEG, SPLIT_LABEL_GAP_H
@@ -135,6 +137,15 @@ def read_bearings(sheet, options: ReadOptions | None = None, **kwargs) -> Bearin
     conv = north_mod.grid_convergence(log, north == "grid", pos.zone, pos.south, pos.lat, pos.lon, opts.grid_crs)
     true_bearing = wrap360(bearing_deg + dec_used + conv)
 
+    # a row written twice is one bearing
+    others = [c for c in raw.columns if c not in _COMPARED_AS_READ and c not in ("note", "line_in_sheet")]
+    extra = [north, dec_used, sd] + [column(t, c) for c in others]
+    rep, first = repeated_rows(ids, times, pos.lat, pos.lon, bearing_deg, usable=~log.bad, extra=extra)
+    log.reject(rep, "", lambda idx: [
+        f"repeats line {lines[first[i]]} (same fix, {'time, ' if np.isfinite(times[i]) else ''}position and bearing"
+        f"{'' if np.isfinite(times[i]) else '; no time'}): a repeated bearing adds no information, so this copy "
+        "is not used" for i in idx])
+
     keep = ~log.bad
     table = pd.DataFrame({
         "line": lines[keep],
@@ -167,6 +178,12 @@ def read_bearings(sheet, options: ReadOptions | None = None, **kwargs) -> Bearin
     problems = sorted(log.problems, key=lambda p: (p.source != raw.source, p.line, p.severity != "error"))
     return Bearings(table=table, problems=problems, fix_index=fix_index, n_rows=n, notes=notes,
                     source=raw.source, window_min=float(opts.window_min))
+
+
+#: Columns a repeated row is compared on through their values as read (fix and tag through the fix, times,
+#: positions, bearings); every other column but the note is compared as written (see dfkit.observations.repeats).
+_COMPARED_AS_READ = ("fix", "tag", "time", "date", "lat", "lon", "utm_zone", "easting", "northing", "mgrs", "station",
+                     "position", "bearing", "unit", "north", "sd", "declination")
 
 
 def _bearings(t, opts, decimal_comma, log: RowLog):
