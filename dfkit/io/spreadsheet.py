@@ -7,7 +7,10 @@ Date and time cells arrive as dates (ISO 8601 text without an offset: give
 ``--tz``), numbers as numbers. The header is the first row with a value; rows above
 it holding a single cell (a title) are skipped with a warning. Empty rows are
 skipped and counted. Formulas are read as their last computed value; a formula a
-program never computed reads as empty.
+program never computed reads as empty. Cells merged over several rows (.xlsx, .xls:
+python-calamine reports the merges) are read as their value on every row of the merge,
+with a warning; python-calamine does not report merges in .ods files, where the fill-down
+of fix labels (:func:`dfkit.observations.grouping.fill_down`) reads such a sheet.
 """
 
 from __future__ import annotations
@@ -62,15 +65,43 @@ def read_spreadsheet(source, *, worksheet: str | None = None, name: str | None =
                          "password-protected? Save it again, or as CSV") from None
     sheet_name = _choose(wb, worksheet, label)
     try:
-        rows = wb.get_sheet_by_name(sheet_name).to_python(skip_empty_area=False)
+        sheet = wb.get_sheet_by_name(sheet_name)
+        rows = sheet.to_python(skip_empty_area=False)
     except (CalamineError, ValueError) as err:
         raise SheetError(f"{label}: sheet '{sheet_name}' cannot be read ({_short(err)})") from None
     shown = f"{label} [{sheet_name}]" if worksheet or len(wb.sheet_names) > 1 else label
+    merged = _fill_merged(rows, getattr(sheet, "merged_cell_ranges", None))
     raw = _to_raw(rows, shown, sheet_name, wb.sheet_names)
+    if merged:
+        raw.problems.append(Problem(merged[0][0], "", f"cells merged over several rows ({_merge_list(merged)}) were "
+                                    "read as their value on every row of the merge", "warning", shown))
     if worksheet is None and len(wb.sheet_names) > 1:
         raw.problems.insert(0, Problem(0, "", f"the workbook has sheets {', '.join(wb.sheet_names)}; '{sheet_name}' was "
                                        "read (--sheet NAME reads another)", "warning", shown))
     return raw
+
+
+def _fill_merged(rows, ranges):
+    """Cells merged over several rows hold their value in the top cell only: copy it down the merge's first column
+    (a merge across columns only, such as a title, is left alone). Returns the merges filled as (first row, last
+    row, column), row numbers as the spreadsheet shows them."""
+    done = []
+    for (r0, c0), (r1, _c1) in ranges or []:
+        if r1 <= r0 or r0 >= len(rows) or c0 >= len(rows[r0]):
+            continue
+        value = rows[r0][c0]
+        if value is None or value == "":
+            continue
+        for r in range(r0 + 1, min(r1, len(rows) - 1) + 1):
+            if c0 < len(rows[r]) and rows[r][c0] in ("", None):
+                rows[r][c0] = value
+        done.append((r0 + 1, r1 + 1, c0))
+    return sorted(done)
+
+
+def _merge_list(merged) -> str:
+    shown = [f"{_col_letter(c)}{a}:{_col_letter(c)}{b}" for a, b, c in merged[:3]]
+    return ", ".join(shown) + (f" and {len(merged) - 3} more" if len(merged) > 3 else "")
 
 
 def _short(err) -> str:

@@ -24,7 +24,7 @@ from dfkit.observations import north as north_mod
 from dfkit.observations.bearings import Bearings
 from dfkit.observations.cells import canonical, column, declinations, numbers, per_value
 from dfkit.observations.columns import check_columns
-from dfkit.observations.grouping import fix_identities, group_fixes, pair_codes
+from dfkit.observations.grouping import fill_down, fix_identities, group_fixes, pair_codes
 from dfkit.observations.options import ReadOptions, check_options
 from dfkit.observations.positions import parse_positions, read_places
 from dfkit.observations.repeats import repeated_rows
@@ -118,10 +118,13 @@ def read_bearings(sheet, options: ReadOptions | None = None, **kwargs) -> Bearin
     sd, sd_from = _sds(t, opts, raw.decimal_comma, log)
     dec, dec_empty = _declinations(t, opts, raw.decimal_comma, log, north, n)
 
-    # fixes: by tag and label, labels split by time, unlabelled rows by the window
+    # fixes: labels written only where a fix starts filled down; by tag and label, labels split by time,
+    # unlabelled rows by the window
     fix_c, tag_c = column(t, "fix"), column(t, "tag")
+    fix_c, tag_c, filled, hints = fill_down(fix_c, tag_c, times, enabled=opts.fill_labels, log=log, notes=notes)
     fix, grouped_by = group_fixes(fix_c, tag_c, times, window_s=opts.window_min * 60.0,
-                                  split_gap_s=SPLIT_LABEL_GAP_H * 3600.0, log=log, notes=notes)
+                                  split_gap_s=SPLIT_LABEL_GAP_H * 3600.0, log=log, notes=notes, filled=filled,
+                                  hints=hints)
     ids = pair_codes(tag_c, fix, fix != "")
 
     # positions, judged against each row's own fix and the track
