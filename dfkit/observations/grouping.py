@@ -117,11 +117,13 @@ def fill_down(labels, tags, times, *, enabled: bool, log: RowLog, notes: list[st
 
 
 def group_fixes(labels, tags, times, *, window_s: float, split_gap_s: float, log: RowLog, notes: list[str],
-                filled=None, hints=None):
+                filled=None, hints=None, date_only=None):
     """Fix label of every row (after splitting and time grouping) and how it was grouped.
 
     ``filled`` marks rows whose label was filled down (:func:`fill_down`); ``hints`` adds a reason to the
-    refusal of unlabelled rows without a time.
+    refusal of unlabelled rows without a time. ``date_only`` marks times that give only a date (12:00 UTC
+    of it): they place a labelled bearing on its day (splits) but group no unlabelled bearing by time; in
+    a sheet without labels and without times of day, the bearings of a tag on one date form one fix.
 
     Returns
     -------
@@ -138,8 +140,10 @@ def group_fixes(labels, tags, times, *, window_s: float, split_gap_s: float, log
     grouped_by = np.where(labels != "", "label", "").astype(object)
     if filled is not None:
         grouped_by[np.asarray(filled, bool)] = "filled"
+    days = np.zeros(len(labels), bool) if date_only is None else np.asarray(date_only, bool)
     timed = np.isfinite(times)
-    _split_labels(fix, grouped_by, labels, tags, times, timed, split_gap_s, log, notes)
+    _split_labels(fix, grouped_by, labels, tags, times, timed, split_gap_s, log, notes, days)
+    timed &= ~days                      # a date alone groups no unlabelled bearing by time
 
     unl = labels == ""
     if not unl.any():
@@ -147,17 +151,21 @@ def group_fixes(labels, tags, times, *, window_s: float, split_gap_s: float, log
     usable = ~log.bad
     if not (timed & usable).any() and not (labels != "").any():
         who = unl & usable
-        fix[who] = np.where(tags[who] != "", tags[who], "fix")
+        day = np.array([_stamp(x)[:10] if d else "" for x, d in zip(times[who], days[who])], dtype=object)
+        fix[who] = np.where(tags[who] != "", tags[who], "fix") + np.where(day != "", " " + day, "")
         grouped_by[who] = "sheet"
         if who.any():
-            notes.append("no fix labels and no times: all bearings of each tag were taken as one fix")
-            log.warn(log.mask([np.flatnonzero(who)[0]]), "fix",
-                     "no fix labels and no times in the sheet: all bearings of each tag form one fix")
+            each = " on each date" if days[who].any() else ""
+            notes.append(f"no fix labels and no times of day: all bearings of each tag{each} were taken as one fix")
+            log.warn(log.mask([np.flatnonzero(who)[0]]), "fix", f"no fix labels and no times of day in the sheet: "
+                                                               f"all bearings of each tag{each} form one fix")
         return fix, grouped_by
     base_msg = "no fix label and no time: dfkit cannot tell which bearings belong together"
+    day_msg = ("no fix label and only a date, no time of day: dfkit cannot tell which bearings of that day belong "
+               "together; add the time of day or a fix label")
     hints = np.full(len(labels), "", dtype=object) if hints is None else np.asarray(hints, dtype=object)
-    log.reject(unl & ~timed & usable, "fix", lambda ii: [base_msg + (f" ({hints[i]})" if hints[i] else "")
-                                                         for i in ii])
+    log.reject(unl & ~timed & usable, "fix", lambda ii: [(day_msg if days[i] else base_msg)
+                                                         + (f" ({hints[i]})" if hints[i] else "") for i in ii])
     idx = np.flatnonzero(unl & timed)
     if not len(idx):
         return fix, grouped_by
@@ -192,7 +200,7 @@ def group_fixes(labels, tags, times, *, window_s: float, split_gap_s: float, log
     return fix, grouped_by
 
 
-def _split_labels(fix, grouped_by, labels, tags, times, timed, split_gap_s, log, notes):
+def _split_labels(fix, grouped_by, labels, tags, times, timed, split_gap_s, log, notes, days):
     lab = np.flatnonzero((labels != "") & timed)
     if len(lab) < 2:
         return
@@ -211,8 +219,10 @@ def _split_labels(fix, grouped_by, labels, tags, times, timed, split_gap_s, log,
     part_start[1:] = (c[1:] != c[:-1]) | brk[1:]
     part = np.cumsum(part_start) - 1
     first_t = t[part_start]
+    first_day = days[rows][part_start]
     sel = rows[in_split]
-    fix[sel] = [f"{labels[i]} ({_stamp(first_t[p])})" for i, p in zip(sel, part[in_split])]
+    fix[sel] = [f"{labels[i]} ({_stamp(first_t[p])[:10] if first_day[p] else _stamp(first_t[p])})"
+                for i, p in zip(sel, part[in_split])]
     grouped_by[sel] = "split"
     for k in split_keys:
         kk = np.flatnonzero(c == k)

@@ -106,6 +106,11 @@ def read_bearings(sheet, options: ReadOptions | None = None, **kwargs) -> Bearin
     log.reject(tm.error != "", "time", tm.error)
     notes.extend(tm.notes)
     times = tm.seconds
+    days = tm.date_only & ~log.bad
+    if days.any():
+        notes.append(f"{int(days.sum())} {'bearing has' if days.sum() == 1 else 'bearings have'} a date and no time "
+                     "of day: taken as 12:00 UTC of that date, which is enough to tell days apart and for the "
+                     "magnetic model, not to group unlabelled bearings or to look positions up on a GPS track")
 
     # bearing and unit
     bearing_deg, b, unit = _bearings(t, opts, raw.decimal_comma, log)
@@ -124,13 +129,13 @@ def read_bearings(sheet, options: ReadOptions | None = None, **kwargs) -> Bearin
     fix_c, tag_c, filled, hints = fill_down(fix_c, tag_c, times, enabled=opts.fill_labels, log=log, notes=notes)
     fix, grouped_by = group_fixes(fix_c, tag_c, times, window_s=opts.window_min * 60.0,
                                   split_gap_s=SPLIT_LABEL_GAP_H * 3600.0, log=log, notes=notes, filled=filled,
-                                  hints=hints)
+                                  hints=hints, date_only=days)
     ids = pair_codes(tag_c, fix, fix != "")
 
     # positions, judged against each row's own fix and the track
     pos = parse_positions(t, lines=lines, source=raw.source, decimal_comma=raw.decimal_comma, stations=stations,
-                          track=track, times=times, track_gap_s=opts.track_gap_s, utm_letters=opts.utm_letters,
-                          groups=ids, log=log, skip=refused_by_reader)
+                          track=track, times=np.where(days, np.nan, times), track_gap_s=opts.track_gap_s,
+                          utm_letters=opts.utm_letters, groups=ids, log=log, skip=refused_by_reader)
 
     # magnetic -> true, grid -> true
     magnetic_rows = north == "magnetic"
