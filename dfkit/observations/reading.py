@@ -30,7 +30,7 @@ from dfkit.observations.positions import parse_positions, read_places
 from dfkit.observations.repeats import repeated_rows
 from dfkit.observations.rowlog import RowLog
 from dfkit.observations.times import parse_times
-from dfkit.policy import MIN_SD_DEG, SPLIT_LABEL_GAP_H
+from dfkit.policy import MIN_SD_DEG, PLAUSIBLE_SD_DEG, SPLIT_LABEL_GAP_H
 from dfkit.problems import Problem, SheetError
 
 #: Columns of plain numbers that the CSV reader may hand over as floats (every cell a finite plain number, no
@@ -120,8 +120,8 @@ def read_bearings(sheet, options: ReadOptions | None = None, **kwargs) -> Bearin
     ncells = column(t, "north")
     log.reject(north_unknown, "north", lambda idx: [f"unknown north '{ncells[i]}'; use true, magnetic or grid"
                                                      for i in idx])
-    sd, sd_from = _sds(t, opts, raw.decimal_comma, log)
-    dec, dec_empty = _declinations(t, opts, raw.decimal_comma, log, north, n)
+    sd, sd_from = _sds(t, opts, raw.decimal_comma, log, unit, notes)
+    dec, dec_empty = _declinations(t, opts, raw.decimal_comma, log, north, n, notes)
 
     # fixes: labels written only where a fix starts filled down; by tag and label, labels split by time,
     # unlabelled rows by the window
@@ -211,21 +211,42 @@ def _bearings(t, opts, decimal_comma, log: RowLog):
     return b * per_value(unit, lambda u: DEGREES_PER_UNIT.get(u, 1.0)).astype(float), b, unit
 
 
-def _sds(t, opts, decimal_comma, log: RowLog):
+def _sds(t, opts, decimal_comma, log: RowLog, unit, notes):
+    """The SD of each row [°]. SDs are always in degrees, whatever the bearing's unit: on a mil row an SD
+    above :data:`dfkit.policy.PLAUSIBLE_SD_DEG` (beyond any usable bearing) that would be a usual SD read as
+    mils is pointed out; on grad rows the two readings differ by a tenth and cannot be told apart (a note)."""
     c = numbers(column(t, "sd"), decimal_comma)
     log.reject(c.bad, "sd", c.error)
     sd = c.values
+    mil = unit == "mil"
+    per_mil = DEGREES_PER_UNIT["mil"]
     with np.errstate(invalid="ignore"):
         log.reject(~c.empty & ~c.bad & ((sd < MIN_SD_DEG) | (sd >= 90)), "sd", lambda idx: [
-            f"{sd[i]:g} is not a usable bearing SD; give degrees from {MIN_SD_DEG:g} to below 90" for i in idx])
+            f"{sd[i]:g} is not a usable bearing SD; give degrees from {MIN_SD_DEG:g} to below 90"
+            + (f" (sd is in degrees on mil rows too: {sd[i]:g} mil would be {sd[i] * per_mil:.2g}°)"
+               if mil[i] and sd[i] >= 90 else "") for i in idx])
+        big = np.flatnonzero(mil & ~c.empty & ~log.bad & (sd > PLAUSIBLE_SD_DEG))
+    if len(big):       # one warning for the sheet, on the first such row
+        i = big[0]
+        more = f" (and {len(big) - 1} more mil rows, to line {log.lines[big[-1]]})" if len(big) > 1 else ""
+        log.warn(log.mask([i]), "sd", f"sd {sd[i]:g} on a mil row{more}: sd is in degrees whatever the bearing's "
+                                      f"unit, and {sd[i]:g}° is beyond any usable bearing SD (dfkit's limit of "
+                                      f"plausible: {PLAUSIBLE_SD_DEG:g}°); if it is in mils, write "
+                                      f"{sd[i] * per_mil:.2g} ({sd[i]:g} mil in degrees)")
     sd_from = np.where(c.empty, "", "sheet").astype(object)
     if opts.sd is not None:
         sd = np.where(c.empty, float(opts.sd), sd)
         sd_from = np.where(c.empty, "option", sd_from).astype(object)
+        if float(opts.sd) > PLAUSIBLE_SD_DEG and (mil & c.empty & ~log.bad).any():
+            notes.append(f"--sd {float(opts.sd):g} is in degrees, also for the mil bearings it is given to; if it "
+                         f"is in mils, give --sd {float(opts.sd) * per_mil:.2g}")
+    if ((unit == "grad") & ~c.empty & ~log.bad).any():
+        notes.append("sd is read in degrees on grad rows too (1 grad = 0.9°: an SD written in grads reads a tenth "
+                     "too large; the two cannot be told apart by size)")
     return sd, sd_from
 
 
-def _declinations(t, opts, decimal_comma, log: RowLog, north, n):
+def _declinations(t, opts, decimal_comma, log: RowLog, north, n, notes):
     c = declinations(column(t, "declination"), decimal_comma)
     log.reject(c.bad, "declination", c.error)
     dec = c.values
@@ -238,6 +259,9 @@ def _declinations(t, opts, decimal_comma, log: RowLog, north, n):
         empty = np.zeros(n, bool)
     log.warn(~c.empty & (north != "magnetic"), "declination",
              "declination given for a bearing that is not magnetic; it was not applied")
+    if opts.declination is not None and not (north == "magnetic").any():
+        notes.append(f"--declination {float(opts.declination):g} was given, but no bearing is magnetic (north "
+                     "column or --north magnetic): it was not used")
     return dec, empty
 
 
