@@ -7,7 +7,9 @@ Date and time cells arrive as dates (ISO 8601 text without an offset: give
 ``--tz``), numbers as numbers. The header is the first row with a value; rows above
 it holding a single cell (a title) are skipped with a warning. Empty rows are
 skipped and counted. Formulas are read as their last computed value; a formula a
-program never computed reads as empty. Cells merged over several rows (.xlsx, .xls:
+program never computed reads as empty. Numbers in label columns (a tag 151.040 in a
+cell formatted ``0.000``) are read as the spreadsheet shows them (:mod:`dfkit.io.formats`).
+Cells merged over several rows (.xlsx, .xls:
 python-calamine reports the merges) are read as their value on every row of the merge,
 with a warning; python-calamine does not report merges in .ods files, where the fill-down
 of fix labels (:func:`dfkit.observations.grouping.fill_down`) reads such a sheet.
@@ -21,6 +23,7 @@ import os
 import numpy as np
 import pandas as pd
 
+from dfkit.io.formats import LABEL_COLUMNS, differs, shown_texts
 from dfkit.io.sheet import RawSheet, _resolve_header
 from dfkit.io.typed import cell_text
 from dfkit.problems import Problem, SheetError
@@ -71,7 +74,8 @@ def read_spreadsheet(source, *, worksheet: str | None = None, name: str | None =
         raise SheetError(f"{label}: sheet '{sheet_name}' cannot be read ({_short(err)})") from None
     shown = f"{label} [{sheet_name}]" if worksheet or len(wb.sheet_names) > 1 else label
     merged = _fill_merged(rows, getattr(sheet, "merged_cell_ranges", None))
-    raw = _to_raw(rows, shown, sheet_name, wb.sheet_names)
+    file = source if isinstance(source, (str, os.PathLike)) else data
+    raw = _to_raw(rows, shown, sheet_name, wb.sheet_names, lambda cells: shown_texts(file, sheet_name, cells))
     if merged:
         raw.problems.append(Problem(merged[0][0], "", f"cells merged over several rows ({_merge_list(merged)}) were "
                                     "read as their value on every row of the merge", "warning", shown))
@@ -128,7 +132,7 @@ def _choose(wb, worksheet, label):
     raise SheetError(f"{label}: no sheet named '{worksheet}'; the sheets are: {', '.join(names)}")
 
 
-def _to_raw(rows, label, sheet_name, all_names) -> RawSheet:
+def _to_raw(rows, label, sheet_name, all_names, shown=None) -> RawSheet:
     problems: list[Problem] = []
     text = [[cell_text(v) for v in r] for r in rows]
     filled = [sum(1 for c in r if c) for r in text]
@@ -150,6 +154,8 @@ def _to_raw(rows, label, sheet_name, all_names) -> RawSheet:
     header = header[: last + 1]
     columns = _resolve_header(header, header_i + 1, label, problems)
     width = len(columns)
+    if shown is not None:
+        _labels_as_shown(rows, text, columns, header_i, shown, label, problems)
     body = text[header_i + 1:]
     line_no = np.arange(header_i + 2, header_i + 2 + len(body))
     keep = np.array([any(r[:width]) for r in body], bool) if body else np.zeros(0, bool)
@@ -166,6 +172,42 @@ def _to_raw(rows, label, sheet_name, all_names) -> RawSheet:
         problems.append(Problem(header_i + 1, "", "the sheet has a header but no data rows", "warning", label))
     return RawSheet(table=table, columns=columns, delimiter="", decimal_comma=False, problems=problems,
                     skipped_lines=skipped, source=label)
+
+
+def _labels_as_shown(rows, text, columns, header_i, shown, label, problems):
+    """Numbers in label columns (tag, fix, station, observer, antenna) read as the spreadsheet shows them
+    (:mod:`dfkit.io.formats`); one warning per column where that differs from the value or is unknown."""
+    for j, col in enumerate(columns):
+        if col not in LABEL_COLUMNS:
+            continue
+        cells = {(i, j): float(r[j]) for i, r in enumerate(rows[header_i + 1:], start=header_i + 1)
+                 if j < len(r) and isinstance(r[j], (int, float)) and not isinstance(r[j], bool)}
+        if not cells:
+            continue
+        got = shown(cells)
+        changed, unknown = [], []
+        for (i, jj), value in sorted(cells.items()):
+            txt, how = got.get((i, jj), (None, ""))
+            if txt is not None:
+                if differs(value, txt):
+                    changed.append((i, value, txt, how))
+                text[i][jj] = txt
+            elif got or not float(value).is_integer():
+                unknown.append((i, value, how))
+        if changed:
+            i, value, txt, how = changed[0]
+            more = f" and {len(changed) - 1} more" if len(changed) > 1 else ""
+            problems.append(Problem(i + 1, col, f"{col} cells are numbers shown with a number format ({how}): read "
+                                    f"as shown, '{txt}' (the value {cell_text(value)}){more}; a text cell "
+                                    f"'{cell_text(value)}' would be another {col}", "warning", label))
+        if unknown:
+            i, value, how = unknown[0]
+            more = f" and {len(unknown) - 1} more" if len(unknown) > 1 else ""
+            why = (f"{how}" if got else "this kind of file keeps how numbers are shown in a form dfkit does not read")
+            problems.append(Problem(i + 1, col, f"{col} cells are numbers and how they are shown is unknown ({why}): "
+                                    f"read as the value {cell_text(value)}{more}; if the sheet shows them otherwise "
+                                    f"(trailing zeros), format the column as text or save as .xlsx or .ods",
+                                    "warning", label))
 
 
 def _col_letter(j: int) -> str:
