@@ -73,9 +73,16 @@ def read_spreadsheet(source, *, worksheet: str | None = None, name: str | None =
     except (CalamineError, ValueError) as err:
         raise SheetError(f"{label}: sheet '{sheet_name}' cannot be read ({_short(err)})") from None
     shown = f"{label} [{sheet_name}]" if worksheet or len(wb.sheet_names) > 1 else label
-    merged = _fill_merged(rows, getattr(sheet, "merged_cell_ranges", None))
+    origin: dict = {}
+    merged = _fill_merged(rows, getattr(sheet, "merged_cell_ranges", None), origin)
     file = source if isinstance(source, (str, os.PathLike)) else data
-    raw = _to_raw(rows, shown, sheet_name, wb.sheet_names, lambda cells: shown_texts(file, sheet_name, cells))
+
+    def as_shown(cells):     # a cell filled from a merge is shown as the merge's top cell
+        top = {origin.get(k, k): v for k, v in cells.items()}
+        got = shown_texts(file, sheet_name, top)
+        return {k: got.get(origin.get(k, k), (None, "")) for k in cells} if got else {}
+
+    raw = _to_raw(rows, shown, sheet_name, wb.sheet_names, as_shown)
     if merged:
         raw.problems.append(Problem(merged[0][0], "", f"cells merged over several rows ({_merge_list(merged)}) were "
                                     "read as their value on every row of the merge", "warning", shown))
@@ -85,10 +92,10 @@ def read_spreadsheet(source, *, worksheet: str | None = None, name: str | None =
     return raw
 
 
-def _fill_merged(rows, ranges):
+def _fill_merged(rows, ranges, origin):
     """Cells merged over several rows hold their value in the top cell only: copy it down the merge's first column
     (a merge across columns only, such as a title, is left alone). Returns the merges filled as (first row, last
-    row, column), row numbers as the spreadsheet shows them."""
+    row, column), row numbers as the spreadsheet shows them; ``origin`` gets the top cell of each filled cell."""
     done = []
     for (r0, c0), (r1, _c1) in ranges or []:
         if r1 <= r0 or r0 >= len(rows) or c0 >= len(rows[r0]):
@@ -99,6 +106,7 @@ def _fill_merged(rows, ranges):
         for r in range(r0 + 1, min(r1, len(rows) - 1) + 1):
             if c0 < len(rows[r]) and rows[r][c0] in ("", None):
                 rows[r][c0] = value
+                origin[(r, c0)] = (r0, c0)
         done.append((r0 + 1, r1 + 1, c0))
     return sorted(done)
 
