@@ -68,6 +68,7 @@ def _run_add(a) -> int:
         return 2
     status = 0
     with SeasonStore.open(a.store, create=True) as store:
+        _say_migrated(store)
         for sheet in a.sheets:
             r = add_sheet(store, sheet, method=a.method, level=a.level, replace=a.replace, progress=progress,
                           **read_kwargs(a))
@@ -79,12 +80,18 @@ def _run_add(a) -> int:
                 print(f"{what}  tag {tag}, fix {fix}: {detail}", file=sys.stderr)
             if len(r.changed) > 50:
                 print(f"... {len(r.changed) - 50} more changed fixes (see the 'changes' table)", file=sys.stderr)
+            for tag, fix, detail in r.beside[:50]:
+                print(f"beside    tag {tag}, fix {fix}: {detail}", file=sys.stderr)
+            if len(r.beside) > 50:
+                print(f"... {len(r.beside) - 50} more fixes added beside stored ones (see the 'changes' table)",
+                      file=sys.stderr)
             s = r.added_status
             kept = "" if r.replaced or not r.changed else " (kept as stored; --replace to replace them)"
-            print(f"{r.file_name}: import {r.import_id}: {r.fixes_in} fixes in the sheet: {r.fixes_added} added "
+            print(f"{r.file_name}: import {r.import_id}: {_count(r.fixes_in, 'fix', 'fixes')} in the sheet: "
+                  f"{r.fixes_added} added "
                   f"({s.get('ok', 0)} ok, {s.get('flagged', 0)} flagged, {s.get('failed', 0)} failed), "
-                  f"{r.fixes_known} already stored, {r.fixes_changed} changed{kept}; {r.n_rows} rows, "
-                  f"{r.n_rejected} rejected", file=sys.stderr)
+                  f"{r.fixes_known} already stored, {r.fixes_changed} changed{kept}; "
+                  f"{_count(r.n_rows, 'row', 'rows')}, {r.n_rejected} rejected", file=sys.stderr)
             if r.n_rejected or s.get("flagged") or s.get("failed") or (r.changed and not r.replaced):
                 status = 1
     print(f"stored in {a.store}", file=sys.stderr)
@@ -103,6 +110,7 @@ def _run_show(a) -> int:
     refuse_unsafe_outputs(a, [("-o", p) for p in a.output])
     flt = filter_from_args(a)
     with SeasonStore.open(a.store) as store:
+        _say_migrated(store)
         table = store.fixes(flt)
         for path in a.output:
             _write(store, flt, table, path, a.title)
@@ -122,6 +130,15 @@ def _run_show(a) -> int:
           f"{int((st != 'ok').sum())} flagged or failed", file=sys.stderr)
     print(CAUTION_LINE, file=sys.stderr)
     return 0 if (st == "ok").all() else 1
+
+
+def _count(n: int, one: str, many: str) -> str:
+    return f"{n} {one if n == 1 else many}"
+
+
+def _say_migrated(store) -> None:
+    for line in store.migrated:
+        print(f"note      the season file was migrated: {line}", file=sys.stderr)
 
 
 def _write(store, flt, table, path, title) -> None:
