@@ -49,32 +49,20 @@ def _safe_name(i: int, label: str) -> str:
 
 def write_figures(fixes, folder, progress=None) -> list[str]:
     """A PNG per fix in ``folder`` (named ``00001_<label>.png``); returns the problems met (none crash the run)."""
-    from dfkit.figures import fix_plot
-    from dfkit.locate import Fixes
+    import matplotlib.pyplot as plt
+
+    from dfkit.figures import fix_figures
 
     os.makedirs(folder, exist_ok=True)
-    say = progress or (lambda text: None)
-    t, b = fixes.table, fixes.bearings
     problems = []
-    by_fix = b.groupby("fix_id").indices if len(b) else {}
-    for i in range(len(t)):
-        if i % 500 == 0:
-            say(f"figures {i}/{len(t)}")
-        rows = by_fix.get(i, [])
-        label = str(t["fix"].iat[i])
-        if len(rows) == 0:
-            problems.append(f"no figure for fix {label}: it has no usable bearing")
+    for i, fig, problem in fix_figures(fixes, progress=progress):
+        if fig is None:
+            problems.append(problem)
             continue
-        one = Fixes(table=t.iloc[[i]].reset_index(drop=True), bearings=b.iloc[rows].assign(fix_id=0),
-                    source=fixes.source)
         try:
-            fig = fix_plot(one, t["fix"].iat[i])
-            save_figure(fig, os.path.join(folder, _safe_name(i, label)), dpi=110)
-            import matplotlib.pyplot as plt
-
+            save_figure(fig, os.path.join(folder, _safe_name(i, str(fixes.table["fix"].iat[i]))), dpi=110)
+        finally:
             plt.close(fig)
-        except (ValueError, KeyError, IndexError) as err:
-            problems.append(f"no figure for fix {label}: {err}")
     return problems
 
 
