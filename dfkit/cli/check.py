@@ -4,14 +4,15 @@ from __future__ import annotations
 
 import sys
 
-from dfkit.cli.common import (add_output_options, add_read_options, ensure_dir, exit_status, read_kwargs,
-                              refuse_unsafe_outputs, rejected_summary, report_problems)
+from dfkit.cli.common import (CSV_KINDS, add_output_options, add_read_options, ensure_dir, exit_status, read_kwargs,
+                              refuse_unsafe_outputs, refuse_wrong_kinds, rejected_summary, report_problems,
+                              sheet_help)
 
 
 def add_parser(sub):
     c = sub.add_parser("check", help="read a sheet and report every row dfkit cannot use")
-    c.add_argument("sheet")
-    c.add_argument("-o", "--output", default=None, help="write the normalized table (CSV)")
+    c.add_argument("sheet", help=sheet_help())
+    c.add_argument("-o", "--output", default=None, metavar="CSV", help="write the normalized table (.csv)")
     add_read_options(c)
     add_output_options(c)
     return c
@@ -21,6 +22,7 @@ def run(a) -> int:
     from dfkit.export import write_table
     from dfkit.observations import read_bearings
 
+    refuse_wrong_kinds([("-o", a.output, CSV_KINDS)])
     refuse_unsafe_outputs(a, [("-o", a.output)])
     b = read_bearings(a.sheet, **read_kwargs(a))
     report_problems(b.problems, sys.stdout)

@@ -9,21 +9,23 @@ import os
 import re
 import sys
 
-from dfkit.cli.common import (add_fix_options, add_read_options, ensure_dir, exit_status, print_summary,
-                              refuse_unsafe_outputs, solve)
+from dfkit.cli.common import (HTML_KINDS, add_fix_options, add_read_options, ensure_dir, exit_status, kinds_text,
+                              print_summary, refuse_unsafe_outputs, refuse_wrong_kinds, sheet_help, solve)
 from dfkit.export.atomic import save_figure
 
 
 def add_figures_option(p) -> None:
     p.add_argument("--figures", default=None, metavar="DIR",
-                   help="also write a figure per fix (PNG: bearings, fix and region in local metres) into DIR")
+                   help="also write a figure per fix into DIR (PNG: bearings, fix and its likelihood region in "
+                        "local metres)")
 
 
 def add_parser(sub):
     m = sub.add_parser("map", help="an offline HTML map of bearings, fixes and regions")
-    m.add_argument("sheet")
-    m.add_argument("-o", "--output", required=True, help="HTML file to write")
-    m.add_argument("--title", default=None)
+    m.add_argument("sheet", help=sheet_help())
+    m.add_argument("-o", "--output", required=True, metavar="HTML",
+                   help=f"the map page to write ({kinds_text(HTML_KINDS)}; one file, works offline)")
+    m.add_argument("--title", default=None, help="title of the page (default: the sheet's file name)")
     g = m.add_argument_group("map")
     g.add_argument("--error-polygons", action="store_true", help="also draw error polygons (no probability meaning)")
     g.add_argument("--colour-by", choices=["tag", "time", "observer"], default="tag",
@@ -75,6 +77,7 @@ def run(a) -> int:
     if not a.tiles_budget > 0:
         print(f"dfkit: --tiles-budget {a.tiles_budget}: must be a positive number of megabytes", file=sys.stderr)
         return 2
+    refuse_wrong_kinds([("-o", a.output, HTML_KINDS)])
     refuse_unsafe_outputs(a, [("-o", a.output)])
     b, fixes, progress = solve(a)
     progress("building the map")

@@ -8,11 +8,14 @@ import sys
 import time
 
 from dfkit.cautions import CAUTION_LINE
-from dfkit.cli.common import add_fix_options, add_read_options, read_kwargs, refuse_unsafe_outputs, report_problems
+from dfkit.cli.common import (add_fix_options, add_read_options, kinds_text, read_kwargs, refuse_unsafe_outputs,
+                              refuse_wrong_kinds, report_problems, sheet_help)
 from dfkit.cli.filters import add_filter_options, filter_from_args
+from dfkit.export import WRITERS
 
-#: What ``season show -o`` can write, by extension.
-SHOW_KINDS = (".csv", ".geojson", ".json", ".gpx", ".kml", ".fgb", ".gpkg", ".html")
+#: What ``season show -o`` can write, by extension: every fix writer (.gpkg is a season file of the selection
+#: there) and the review page.
+SHOW_KINDS = tuple(WRITERS) + (".html",)
 
 
 def add_parser(sub):
@@ -21,7 +24,7 @@ def add_parser(sub):
 
     a = ss.add_parser("add", help="solve sheets and store them (importing the same rows again adds nothing)")
     a.add_argument("store", help="season file (.gpkg); made when it does not exist")
-    a.add_argument("sheets", nargs="+", metavar="SHEET", help="bearing sheets; each is one import")
+    a.add_argument("sheets", nargs="+", metavar="SHEET", help=sheet_help("bearing sheets") + "; each is one import")
     a.add_argument("--replace", action="store_true",
                    help="replace stored fixes that a sheet changes (default: report them and keep the stored ones)")
     a.add_argument("--progress", action="store_true", help="print progress (automatic on large sheets)")
@@ -33,8 +36,8 @@ def add_parser(sub):
                                    "page), or print a summary")
     w.add_argument("store", help="season file (.gpkg)")
     w.add_argument("-o", "--output", action="append", default=[],
-                   help="output file: " + ", ".join(SHOW_KINDS) + " (.gpkg is a season file of the selection, "
-                        ".html the review page; may be repeated)")
+                   help=f"output file, its kind by extension: {kinds_text(SHOW_KINDS)} (.gpkg is a season file of "
+                        "the selection, .html the review page; may be repeated)")
     w.add_argument("--title", default=None, help="title of the review page")
     add_filter_options(w)
     w.set_defaults(_season=_run_show)
@@ -103,10 +106,7 @@ def _run_show(a) -> int:
     from dfkit.season import SeasonStore
     from dfkit.season.summary import tag_summary
 
-    for path in a.output:
-        if os.path.splitext(path)[1].lower() not in SHOW_KINDS:
-            print(f"dfkit: cannot write '{path}': use one of {', '.join(SHOW_KINDS)}", file=sys.stderr)
-            return 2
+    refuse_wrong_kinds([("-o", p, SHOW_KINDS) for p in a.output])
     refuse_unsafe_outputs(a, [("-o", p) for p in a.output])
     flt = filter_from_args(a)
     with SeasonStore.open(a.store) as store:
