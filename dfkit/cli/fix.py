@@ -21,7 +21,9 @@ def add_parser(sub):
                    help="also write every bearing with its residual and weight (.csv)")
     f.add_argument("--progress", action="store_true", help="print progress (automatic on large sheets)")
     o = f.add_argument_group("output files")
-    o.add_argument("--utm", action="store_true", help="CSV: add utm_zone, easting, northing columns")
+    o.add_argument("--utm", action="store_true",
+                   help="CSV: add utm_zone (number), utm_hemisphere (north/south), utm_band (letter), easting, "
+                        "northing columns")
     o.add_argument("--gpx-name-length", type=int, default=None, metavar="N",
                    help="GPX: cut waypoint names to N characters (hand-held receivers show few), kept unique")
     o.add_argument("--gpx-tz", default=None, metavar="ZONE", help="GPX: waypoint times in this time zone, not UTC")
