@@ -163,3 +163,14 @@ def test_north_and_unit_options_take_the_spellings_a_sheet_takes(write_sheet, ca
     assert main(["check", sheet, "--unit", "degrees"]) == 0
     assert main(["check", sheet, "--north", "up"]) == 2
     assert "'up' is not one of grid, magnetic, true" in capsys.readouterr().err
+
+
+def test_a_date_without_a_time_column_is_reported_against_the_date_column(write_sheet, capsys):
+    sheet = write_sheet("fix,tag,date,lat,lon,bearing,sd\n1,150.1,2026-05-03,47.85,15.15,20,3\n")
+    assert main(["check", str(sheet)]) == 1
+    out = capsys.readouterr().out
+    assert "line 2, date: '2026-05-03' is a date with no time of day" in out
+    assert "time column is empty" not in out
+    both = write_sheet("fix,date,time,lat,lon,bearing\n1,2026-05-03,,47.85,15.15,20\n", "both.csv")
+    assert main(["check", str(both)]) == 1
+    assert "line 2, time: '2026-05-03' is a date with no time of day" in capsys.readouterr().out

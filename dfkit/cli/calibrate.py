@@ -5,7 +5,7 @@ from __future__ import annotations
 import sys
 
 from dfkit.cautions import CAUTION_LINE
-from dfkit.cli.common import (CSV_KINDS, add_read_options, ensure_dir, read_kwargs, refuse_unsafe_outputs,
+from dfkit.cli.common import (CSV_KINDS, add_read_options, count_text, ensure_dir, read_kwargs, refuse_unsafe_outputs,
                               refuse_wrong_kinds, report_problems, sheet_help)
 from dfkit.export.atomic import save_figure
 
@@ -180,7 +180,7 @@ def run(a) -> int:
             print(f"wrote {path}", file=sys.stderr)
     n_groups = len(cal.table)
     print(
-        f"{trials.source}: {trials.n_rows} rows, {len(trials.table)} usable trials, "
+        f"{trials.source}: {count_text(trials.n_rows, 'row')}, {count_text(len(trials.table), 'usable trial')}, "
         f"{trials.n_rejected} rejected, "
         f"{len(cal.wild)} wild; {n_groups} group{'s' if n_groups != 1 else ''}: "
         + ", ".join(f"{(cal.table['status'] == s).sum()} {s}" for s in ("ok", "few", "unusable")),

@@ -4,7 +4,8 @@ from __future__ import annotations
 
 import sys
 
-from dfkit.cli.common import (CSV_KINDS, add_output_options, add_read_options, ensure_dir, exit_status, read_kwargs,
+from dfkit.cli.common import (CSV_KINDS, add_output_options, add_read_options, count_text, ensure_dir, exit_status,
+                              read_kwargs,
                               refuse_unsafe_outputs, refuse_wrong_kinds, rejected_summary, report_problems,
                               sheet_help)
 
@@ -29,7 +30,7 @@ def run(a) -> int:
     for note in b.notes:
         print(f"note      {note}")
     n_fix = b.table["fix"].nunique() if len(b.table) else 0
-    print(f"{b.source}: {b.n_rows} rows, {len(b.table)} usable, {rejected_summary(b)}; "
+    print(f"{b.source}: {count_text(b.n_rows, 'row')}, {len(b.table)} usable, {rejected_summary(b)}; "
           f"{n_fix} {'fix' if n_fix == 1 else 'fixes'} ({len(b.labels)} {'label' if len(b.labels) == 1 else 'labels'} in the sheet)")
     if a.output:
         ensure_dir(a.output)

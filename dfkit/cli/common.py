@@ -19,6 +19,11 @@ FLAGS = {"unit": "--unit", "north": "--north", "sd": "--sd", "declination": "--d
          "utm_letters": "--utm-letters", "worksheet": "--sheet", "level": "--level"}
 
 
+def count_text(n: int, one: str, many: str | None = None) -> str:
+    """``1 row``, ``2 rows`` (``many`` for irregular plurals: ``count_text(n, 'fix', 'fixes')``)."""
+    return f"{n} {one if n == 1 else (many or one + 's')}"
+
+
 def kinds_text(exts, last: str = "or") -> str:
     """Extensions for a help text or message: ``.csv, .geojson or .gpx``."""
     exts = list(dict.fromkeys(exts))
@@ -241,7 +246,8 @@ def print_summary(b, fixes) -> None:
               "--calibration", file=sys.stderr)
     nf = len(fixes.table)
     print(f"{b.source}: {nf} {'fix' if nf == 1 else 'fixes'}: {s['ok']} ok, {s['flagged']} flagged, "
-          f"{s['failed']} failed; {len(b.table)} of {b.n_rows} rows used, {rejected_summary(b)}", file=sys.stderr)
+          f"{s['failed']} failed; {len(b.table)} of {count_text(b.n_rows, 'row')} used, {rejected_summary(b)}",
+          file=sys.stderr)
     print(CAUTION_LINE, file=sys.stderr)
 
 

@@ -5,7 +5,7 @@ from __future__ import annotations
 import os
 import sys
 
-from dfkit.cli.common import (add_fix_options, add_read_options, ensure_dir, kinds_text, read_kwargs,
+from dfkit.cli.common import (add_fix_options, add_read_options, count_text, ensure_dir, kinds_text, read_kwargs,
                               refuse_unsafe_outputs, refuse_wrong_kinds, report_problems, sheet_help)
 from dfkit.policy import DEFAULT_MAX_RANGE_M
 
@@ -213,7 +213,7 @@ def _print_summary(plan, top):
     n_rej = len({p.line for p in plan.problems if p.severity == "error" and p.source != plan.fixes.source})
     rej = f", {n_rej} spot row{'s' if n_rej != 1 else ''} rejected" if n_rej else ""
     print(
-        f"{plan.fixes.source}: {n_rank} of {len(plan.table)} spots ranked ({plan.basis}){rej}",
+        f"{plan.fixes.source}: {n_rank} of {count_text(len(plan.table), 'spot')} ranked ({plan.basis}){rej}",
         file=sys.stderr,
     )
     print(f"caution: {PLAN_CAUTION}", file=sys.stderr)

@@ -8,8 +8,8 @@ import sys
 import time
 
 from dfkit.cautions import CAUTION_LINE
-from dfkit.cli.common import (add_fix_options, add_read_options, kinds_text, read_kwargs, refuse_unsafe_outputs,
-                              refuse_wrong_kinds, report_problems, sheet_help)
+from dfkit.cli.common import (add_fix_options, add_read_options, count_text, kinds_text, read_kwargs,
+                              refuse_unsafe_outputs, refuse_wrong_kinds, report_problems, sheet_help)
 from dfkit.cli.filters import add_filter_options, filter_from_args
 from dfkit.export import WRITERS
 
@@ -90,11 +90,11 @@ def _run_add(a) -> int:
                       file=sys.stderr)
             s = r.added_status
             kept = "" if r.replaced or not r.changed else " (kept as stored; --replace to replace them)"
-            print(f"{r.file_name}: import {r.import_id}: {_count(r.fixes_in, 'fix', 'fixes')} in the sheet: "
+            print(f"{r.file_name}: import {r.import_id}: {count_text(r.fixes_in, 'fix', 'fixes')} in the sheet: "
                   f"{r.fixes_added} added "
                   f"({s.get('ok', 0)} ok, {s.get('flagged', 0)} flagged, {s.get('failed', 0)} failed), "
                   f"{r.fixes_known} already stored, {r.fixes_changed} changed{kept}; "
-                  f"{_count(r.n_rows, 'row', 'rows')}, {r.n_rejected} rejected", file=sys.stderr)
+                  f"{count_text(r.n_rows, 'row', 'rows')}, {r.n_rejected} rejected", file=sys.stderr)
             if r.n_rejected or s.get("flagged") or s.get("failed") or (r.changed and not r.replaced):
                 status = 1
     print(f"stored in {a.store}", file=sys.stderr)
@@ -130,10 +130,6 @@ def _run_show(a) -> int:
           f"{int((st != 'ok').sum())} flagged or failed", file=sys.stderr)
     print(CAUTION_LINE, file=sys.stderr)
     return 0 if (st == "ok").all() else 1
-
-
-def _count(n: int, one: str, many: str) -> str:
-    return f"{n} {one if n == 1 else many}"
 
 
 def _say_migrated(store) -> None:
