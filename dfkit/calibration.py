@@ -900,9 +900,9 @@ def apply(bearings: Bearings, cal: Calibration) -> Bearings:
     kept = ~hit & np.isfinite(sd_now)
     none = ~hit & ~np.isfinite(sd_now)
     if kept.any():
+        which = _unmatched(t, kept & ~set_aside, usable, cal.by) if cal.by and not absent else ""
         parts.append(f"{int(kept.sum())} kept the sheet's sd or --sd (no usable calibration group"
-                     + (": " + _unmatched(t, kept & ~set_aside, usable, cal.by) if cal.by and not absent else "")
-                     + ")")
+                     + (": " + which if which else "") + ")")
     if (set_aside & none).any():
         k = int((set_aside & none).sum())
         parts.append(
@@ -911,8 +911,8 @@ def apply(bearings: Bearings, cal: Calibration) -> Bearings:
         )
     if (none & ~set_aside).any():
         k = int((none & ~set_aside).sum())
-        parts.append(f"{k} ha{'ve' if k != 1 else 's'} no matching group and no sd"
-                     + (": " + _unmatched(t, none & ~set_aside, usable, cal.by) if cal.by and not absent else ""))
+        which = _unmatched(t, none & ~set_aside, usable, cal.by) if cal.by and not absent else ""
+        parts.append(f"{k} ha{'ve' if k != 1 else 's'} no matching group and no sd" + (": " + which if which else ""))
     if none.any():
         parts.append("a fix with a bearing of unknown SD estimates its SD from its own residuals")
     if not parts:

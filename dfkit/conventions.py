@@ -45,9 +45,9 @@ _NORTH_WORDS = {
     "magnetic": "magnetic", "mag": "magnetic", "mag.": "magnetic", "compass": "magnetic",
     "grid": "grid",
 }
-#: Spellings accepted in the ``north`` column (compared in lower case): the words above with or without "north"
-#: after them, and the usual abbreviations. "map north" is refused: a map may be drawn to grid or to true north,
-#: so the words do not say which.
+#: Spellings accepted in the ``north`` column (compared in lower case): the words above with or without
+#: "north" after them, and the usual abbreviations. "map north" is refused: a map may be drawn to grid or to
+#: true north, so the words do not say which.
 NORTH_ALIASES = {
     **_NORTH_WORDS,
     **{f"{w}{sep}north": n for w, n in _NORTH_WORDS.items() for sep in (" ", "-")},

@@ -46,7 +46,7 @@ def _fix_rows(fixes: Fixes, label, tag):
 
 
 def _region(fixes: Fixes, i: int, row):
-    """The likelihood region of row ``i`` as (lat, lon) ring, or None (no position, no region, not computed)."""
+    """The likelihood region of row ``i`` as a (lat, lon) ring, or None (no position or region)."""
     if fixes.likelihood is None or row["status"] not in WITH_POSITION:
         return None
     return fixes.likelihood.ring(i)
@@ -78,7 +78,7 @@ def _length_text(m: float) -> str:
 
 
 def fix_plot(fixes: Fixes, label, *, tag=None, ax=None, error_polygon: bool = False, ellipse: bool = True):
-    """Bearings, stations, the fix and its likelihood region in local metres, with a scale bar and north arrow.
+    """Bearings, stations, the fix and its likelihood region in local metres, with scale bar and north arrow.
 
     The confidence region drawn is the likelihood-ratio region (:attr:`dfkit.locate.Fixes.regions`); an open
     region (one that goes on along the bearings) is drawn dashed to the range dfkit computed it to and marked
@@ -161,7 +161,8 @@ def _draw_fix(ax, row, b, ring, *, error_polygon=False, ellipse=True) -> None:
     if has_pos:
         clat, clon = float(row["lat"]), float(row["lon"])
     else:
-        clat, clon = geodesy.group_centroid(b["lat"].to_numpy(), b["lon"].to_numpy(), np.zeros(len(b), int), 1)
+        clat, clon = geodesy.group_centroid(b["lat"].to_numpy(), b["lon"].to_numpy(), np.zeros(len(b), int),
+                                            1)
         clat, clon = float(np.atleast_1d(clat)[0]), float(np.atleast_1d(clon)[0])
     sx, sy = geodesy.to_local(clat, clon, b["lat"].to_numpy(), b["lon"].to_numpy())
     near = max(float(np.max(np.hypot(sx, sy))) if len(b) else 1.0, 50.0)

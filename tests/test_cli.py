@@ -146,8 +146,8 @@ def test_csv_and_html_outputs_refuse_other_kinds_before_any_work(write_sheet, tm
         bad = tmp_path / argv[-1]
         assert main(argv[:-1] + [str(bad)]) == 2, argv
         err = capsys.readouterr().err
-        assert f"cannot write '{bad}': {argv[-2]} writes" in err and not bad.exists()
-    assert "writes .html or .htm" in (main(["map", sheet, "-o", str(tmp_path / "m.png")]), capsys.readouterr().err)[1]
+        assert f"cannot write '{bad}': use one of" in err and f"for {argv[-2]}" in err and not bad.exists()
+    assert "use one of .html or .htm for -o" in (main(["map", sheet, "-o", str(tmp_path / "m.png")]), capsys.readouterr().err)[1]
     for h in (_option_help("check", dest="output"), _option_help("calibrate", dest="output")):
         assert "CSV" in h or ".csv" in h
     assert ".xlsx" in _option_help("fix", dest="sheet") and ".ods" in _option_help("season", "add", dest="sheets")

@@ -536,7 +536,7 @@ def test_an_estimated_sd_is_called_weak(tmp_path):
     )
     plan = plan_next_bearing(read_bearings(sheet), "H", spots=spots_table([("x", *direct(*T, 60.0, 900.0))]))
     assert plan.fix_row["sd_source"] == "estimated"
-    assert any("1 degrees of freedom): a weak estimate" in n for n in plan.notes)
+    assert any("1 degree of freedom): a weak estimate" in n for n in plan.notes)
     assert np.isfinite(plan.table["expected_area_m2"].iloc[0])
 
 
@@ -740,12 +740,3 @@ def test_plan_map_works_offline_and_escapes_user_text(tmp_path, write_sheet, gri
     assert unranked == int(plan.table["rank"].isna().sum()) >= 1  # the rejected spot, or the grid's centre
     assert popup == 1 and injected == 0
     assert first_in_panel == "dfk-plan"  # the plan comes first in the panel, above the fix list
-
-
-def test_notes_count_one_degree_of_freedom_in_the_singular(tmp_path):
-    # three bearings, no SD: the SD is estimated with n - 2 = 1 degree of freedom
-    stations = [direct(*T, 0.0, 1000.0), direct(*T, 100.0, 1500.0), direct(*T, 230.0, 1200.0)]
-    sheet = sheet_from(tmp_path / "s.csv", stations, T, sd="", noise=[1.0, -2.0, 1.5])
-    plan = plan_next_bearing(read_bearings(sheet), "H", around_m=500.0)
-    text = " ".join(plan.notes)
-    assert "own 3 bearings (1 degree of freedom)" in text and "1 degrees" not in text

@@ -5,8 +5,8 @@ from __future__ import annotations
 import sys
 
 from dfkit.cautions import CAUTION_LINE
-from dfkit.cli.common import (CSV_KINDS, add_read_options, count_text, ensure_dir, read_kwargs, refuse_unsafe_outputs,
-                              refuse_wrong_kinds, report_problems, sheet_help)
+from dfkit.cli.common import (CSV_KINDS, add_read_options, count_text, ensure_dir, read_kwargs,
+                              refuse_unsafe_outputs, refuse_wrong_kinds, report_problems, sheet_help)
 from dfkit.export.atomic import save_figure
 
 
@@ -123,9 +123,9 @@ def run(a) -> int:
         print(f"dfkit: --figures {a.figures}: not a folder (figures are written into a folder)",
               file=sys.stderr)
         return 2
+    refuse_unsafe_outputs(a, [("-o", a.output), ("--trials-out", a.trials_out), ("--check-out", a.check_out)])
     refuse_wrong_kinds([("-o", a.output, CSV_KINDS), ("--trials-out", a.trials_out, CSV_KINDS),
                         ("--check-out", a.check_out, CSV_KINDS)])
-    refuse_unsafe_outputs(a, [("-o", a.output), ("--trials-out", a.trials_out), ("--check-out", a.check_out)])
     if not 0 < a.level < 1:
         print(f"dfkit: --level {a.level} must be a probability between 0 and 1 (e.g. 0.95)", file=sys.stderr)
         return 2
@@ -180,7 +180,8 @@ def run(a) -> int:
             print(f"wrote {path}", file=sys.stderr)
     n_groups = len(cal.table)
     print(
-        f"{trials.source}: {count_text(trials.n_rows, 'row')}, {count_text(len(trials.table), 'usable trial')}, "
+        f"{trials.source}: {count_text(trials.n_rows, 'row')}, "
+        f"{count_text(len(trials.table), 'usable trial')}, "
         f"{trials.n_rejected} rejected, "
         f"{len(cal.wild)} wild; {n_groups} group{'s' if n_groups != 1 else ''}: "
         + ", ".join(f"{(cal.table['status'] == s).sum()} {s}" for s in ("ok", "few", "unusable")),

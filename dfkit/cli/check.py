@@ -4,8 +4,8 @@ from __future__ import annotations
 
 import sys
 
-from dfkit.cli.common import (CSV_KINDS, add_output_options, add_read_options, count_text, ensure_dir, exit_status,
-                              read_kwargs,
+from dfkit.cli.common import (CSV_KINDS, add_output_options, add_read_options, count_text, ensure_dir,
+                              exit_status, read_kwargs,
                               refuse_unsafe_outputs, refuse_wrong_kinds, rejected_summary, report_problems,
                               sheet_help)
 
@@ -23,8 +23,8 @@ def run(a) -> int:
     from dfkit.export import write_table
     from dfkit.observations import read_bearings
 
-    refuse_wrong_kinds([("-o", a.output, CSV_KINDS)])
     refuse_unsafe_outputs(a, [("-o", a.output)])
+    refuse_wrong_kinds([("-o", a.output, CSV_KINDS)])
     b = read_bearings(a.sheet, **read_kwargs(a))
     report_problems(b.problems, sys.stdout)
     for note in b.notes:

@@ -45,13 +45,14 @@ def sheet_help(what: str = "the bearing sheet") -> str:
 
 
 def refuse_wrong_kinds(outputs) -> None:
-    """Refuse (``ValueError``, exit 2) before any work an output whose extension its option cannot write.
+    """Refuse (``ValueError``, exit 2) before any work an output whose extension its option cannot write
+    (after :func:`refuse_unsafe_outputs`: an output that would overwrite an input is named as such first).
 
     ``outputs`` is a list of (option, path, accepted extensions); a path of None is skipped.
     """
     for option, path, kinds in outputs:
         if path and os.path.splitext(os.fspath(path))[1].lower() not in kinds:
-            raise ValueError(f"cannot write '{path}': {option} writes {kinds_text(kinds)}")
+            raise ValueError(f"cannot write '{path}': use one of {kinds_text(kinds)} for {option}")
 
 
 def option_message(err) -> str:
@@ -66,8 +67,8 @@ def _spelling(flag: str, aliases: dict):
     def read(text: str) -> str:
         word = aliases.get(" ".join(str(text).split()).lower())
         if word is None:
-            raise argparse.ArgumentTypeError(f"{text!r} is not one of {', '.join(sorted(set(aliases.values())))} "
-                                             f"(or their usual spellings)")
+            words = ", ".join(sorted(set(aliases.values())))
+            raise argparse.ArgumentTypeError(f"{text!r} is not one of {words} (or their usual spellings)")
         return word
     read.__name__ = flag
     return read
@@ -77,13 +78,14 @@ def add_read_options(p: argparse.ArgumentParser) -> None:
     g = p.add_argument_group("reading the sheet (a value in the sheet wins)")
     g.add_argument("--sheet", default=None, metavar="NAME", dest="worksheet",
                    help="which sheet of a spreadsheet file (.xlsx, .xls, .ods) to read (default: the first)")
-    g.add_argument("--unit", choices=["deg", "mil", "grad"], default="deg", type=_spelling("--unit", UNIT_ALIASES),
-                   help="bearing unit where the sheet has no unit column (default deg; also 'degrees', 'mils', "
-                        "'gon' ...)")
+    g.add_argument("--unit", choices=["deg", "mil", "grad"], default="deg",
+                   type=_spelling("--unit", UNIT_ALIASES),
+                   help="bearing unit where the sheet has no unit column (default deg; also 'degrees', "
+                        "'mils', 'gon' ...)")
     g.add_argument("--north", choices=["true", "magnetic", "grid"], default="true",
                    type=_spelling("--north", NORTH_ALIASES),
-                   help="bearing reference where the sheet has no north column (default true; also 'true north', "
-                        "'magnetic north', 'mag', 'grid north', 'GN' ...)")
+                   help="bearing reference where the sheet has no north column (default true; also "
+                        "'true north', 'magnetic north', 'mag', 'grid north', 'GN' ...)")
     g.add_argument("--sd", type=float, default=None, metavar="DEG",
                    help=f"bearing standard deviation in degrees, from beacon trials ({MIN_SD_DEG:g} to below 90)")
     g.add_argument("--declination", type=float, default=None, metavar="DEG",
@@ -246,7 +248,8 @@ def print_summary(b, fixes) -> None:
               "--calibration", file=sys.stderr)
     nf = len(fixes.table)
     print(f"{b.source}: {nf} {'fix' if nf == 1 else 'fixes'}: {s['ok']} ok, {s['flagged']} flagged, "
-          f"{s['failed']} failed; {len(b.table)} of {count_text(b.n_rows, 'row')} used, {rejected_summary(b)}",
+          f"{s['failed']} failed; {len(b.table)} of {count_text(b.n_rows, 'row')} used, "
+          f"{rejected_summary(b)}",
           file=sys.stderr)
     print(CAUTION_LINE, file=sys.stderr)
 

@@ -5,8 +5,8 @@ from __future__ import annotations
 import sys
 
 from dfkit.cli.common import (CSV_KINDS, add_fix_options, add_output_options, add_read_options, ensure_dir,
-                              exit_status, kinds_text, print_summary, refuse_unsafe_outputs, refuse_wrong_kinds,
-                              sheet_help, solve)
+                              exit_status, kinds_text, print_summary, refuse_unsafe_outputs,
+                              refuse_wrong_kinds, sheet_help, solve)
 from dfkit.cli.map import add_figures_option, write_figures
 
 
@@ -22,8 +22,8 @@ def add_parser(sub):
     f.add_argument("--progress", action="store_true", help="print progress (automatic on large sheets)")
     o = f.add_argument_group("output files")
     o.add_argument("--utm", action="store_true",
-                   help="CSV: add utm_zone (number), utm_hemisphere (north/south), utm_band (letter), easting, "
-                        "northing columns")
+                   help="CSV: add utm_zone (number), utm_hemisphere (north/south), utm_band (letter), "
+                        "easting, northing columns")
     o.add_argument("--gpx-name-length", type=int, default=None, metavar="N",
                    help="GPX: cut waypoint names to N characters (hand-held receivers show few), kept unique")
     o.add_argument("--gpx-tz", default=None, metavar="ZONE", help="GPX: waypoint times in this time zone, not UTC")
@@ -39,8 +39,9 @@ def add_parser(sub):
 def run(a) -> int:
     from dfkit.export import WRITERS, WriteOptions, write_fixes, write_table
 
-    refuse_wrong_kinds([("-o", p, tuple(WRITERS)) for p in a.output] + [("--bearings-out", a.bearings_out, CSV_KINDS)])
     refuse_unsafe_outputs(a, [("-o", p) for p in a.output] + [("--bearings-out", a.bearings_out)])
+    refuse_wrong_kinds([("-o", p, tuple(WRITERS)) for p in a.output]
+                       + [("--bearings-out", a.bearings_out, CSV_KINDS)])
     if a.gpx_name_length is not None and a.gpx_name_length < 3:
         print(f"dfkit: --gpx-name-length {a.gpx_name_length}: must be at least 3", file=sys.stderr)
         return 2

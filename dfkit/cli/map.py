@@ -9,15 +9,16 @@ import os
 import re
 import sys
 
-from dfkit.cli.common import (HTML_KINDS, add_fix_options, add_read_options, ensure_dir, exit_status, kinds_text,
-                              print_summary, refuse_unsafe_outputs, refuse_wrong_kinds, sheet_help, solve)
+from dfkit.cli.common import (HTML_KINDS, add_fix_options, add_read_options, ensure_dir, exit_status,
+                              kinds_text, print_summary, refuse_unsafe_outputs, refuse_wrong_kinds, sheet_help,
+                              solve)
 from dfkit.export.atomic import save_figure
 
 
 def add_figures_option(p) -> None:
     p.add_argument("--figures", default=None, metavar="DIR",
-                   help="also write a figure per fix into DIR (PNG: bearings, fix and its likelihood region in "
-                        "local metres)")
+                   help="also write a figure per fix into DIR (PNG: bearings, fix and its likelihood "
+                        "region in local metres)")
 
 
 def add_parser(sub):
@@ -77,8 +78,8 @@ def run(a) -> int:
     if not a.tiles_budget > 0:
         print(f"dfkit: --tiles-budget {a.tiles_budget}: must be a positive number of megabytes", file=sys.stderr)
         return 2
-    refuse_wrong_kinds([("-o", a.output, HTML_KINDS)])
     refuse_unsafe_outputs(a, [("-o", a.output)])
+    refuse_wrong_kinds([("-o", a.output, HTML_KINDS)])
     b, fixes, progress = solve(a)
     progress("building the map")
     m = fix_map(fixes, error_polygons=a.error_polygons, title=a.title or os.path.basename(a.sheet), tiles=a.tiles,

@@ -5,8 +5,9 @@ from __future__ import annotations
 import os
 import sys
 
-from dfkit.cli.common import (add_fix_options, add_read_options, count_text, ensure_dir, kinds_text, read_kwargs,
-                              refuse_unsafe_outputs, refuse_wrong_kinds, report_problems, sheet_help)
+from dfkit.cli.common import (add_fix_options, add_read_options, count_text, ensure_dir, kinds_text,
+                              read_kwargs, refuse_unsafe_outputs, refuse_wrong_kinds, report_problems,
+                              sheet_help)
 from dfkit.policy import DEFAULT_MAX_RANGE_M
 
 #: Output kinds of a plan, by extension.
@@ -24,7 +25,8 @@ def add_parser(sub):
     where.add_argument(
         "--spots",
         metavar="FILE",
-        help="candidate spots: a 'spot' label and a position (lat/lon, UTM, MGRS or station), CSV or spreadsheet",
+        help="candidate spots: a 'spot' label and a position (lat/lon, UTM, MGRS or station), CSV or "
+        "spreadsheet",
     )
     where.add_argument(
         "--around",
@@ -83,8 +85,8 @@ def run(a) -> int:
     from dfkit.observations import read_bearings
     from dfkit.planning import plan_next_bearing
 
-    refuse_wrong_kinds([("-o", p, OUTPUTS) for p in a.output])
     refuse_unsafe_outputs(a, [("-o", p) for p in a.output])
+    refuse_wrong_kinds([("-o", p, OUTPUTS) for p in a.output])
     if a.step is not None and a.around is None:
         print("dfkit: --step is the spacing of a grid: give --around with it", file=sys.stderr)
         return 2

@@ -6,7 +6,8 @@ import os
 import sys
 
 from dfkit.cautions import CAUTION_LINE
-from dfkit.cli.common import ensure_dir, kinds_text, refuse_unsafe_outputs, refuse_wrong_kinds, report_problems
+from dfkit.cli.common import (ensure_dir, kinds_text, refuse_unsafe_outputs, refuse_wrong_kinds,
+                              report_problems)
 from dfkit.cli.filters import add_filter_options, filter_from_args
 
 
@@ -17,8 +18,8 @@ def add_parser(sub):
 
     r.add_argument("source", help="fixes (.csv, as dfkit fix writes them) or a season file (.gpkg)")
     r.add_argument("-o", "--output", action="append", default=[],
-                   help=f"output, its kind by extension: {kinds_text(RANGE_KINDS)} (.csv: areas only); may be "
-                        "repeated")
+                   help=f"output, its kind by extension: {kinds_text(RANGE_KINDS)} (.csv: areas only); "
+                        "may be repeated")
     r.add_argument("--method", choices=["mcp", "kde"], default="kde",
                    help="mcp: minimum convex polygon; kde: fixed kernel (default)")
     r.add_argument("--levels", default="50,95", metavar="LIST",
@@ -45,8 +46,8 @@ def run(a) -> int:
     from dfkit.homerange import home_ranges
     from dfkit.season.range_files import RANGE_KINDS, write_ranges
 
-    refuse_wrong_kinds([("-o", p, RANGE_KINDS) for p in a.output])
     refuse_unsafe_outputs(a, [("-o", p) for p in a.output])
+    refuse_wrong_kinds([("-o", p, RANGE_KINDS) for p in a.output])
     levels = _levels(a.levels)
     for lv in levels:
         if not (0 < lv < 1 or (lv == 1 and a.method == "mcp")):

@@ -24,7 +24,8 @@ def add_parser(sub):
 
     a = ss.add_parser("add", help="solve sheets and store them (importing the same rows again adds nothing)")
     a.add_argument("store", help="season file (.gpkg); made when it does not exist")
-    a.add_argument("sheets", nargs="+", metavar="SHEET", help=sheet_help("bearing sheets") + "; each is one import")
+    a.add_argument("sheets", nargs="+", metavar="SHEET",
+                   help=sheet_help("bearing sheets") + "; each is one import")
     a.add_argument("--replace", action="store_true",
                    help="replace stored fixes that a sheet changes (default: report them and keep the stored ones)")
     a.add_argument("--progress", action="store_true", help="print progress (automatic on large sheets)")
@@ -36,8 +37,8 @@ def add_parser(sub):
                                    "page), or print a summary")
     w.add_argument("store", help="season file (.gpkg)")
     w.add_argument("-o", "--output", action="append", default=[],
-                   help=f"output file, its kind by extension: {kinds_text(SHOW_KINDS)} (.gpkg is a season file of "
-                        "the selection, .html the review page; may be repeated)")
+                   help=f"output file, its kind by extension: {kinds_text(SHOW_KINDS)} (.gpkg is a season "
+                        "file of the selection, .html the review page; may be repeated)")
     w.add_argument("--title", default=None, help="title of the review page")
     add_filter_options(w)
     w.set_defaults(_season=_run_show)
@@ -86,12 +87,12 @@ def _run_add(a) -> int:
             for tag, fix, detail in r.beside[:50]:
                 print(f"beside    tag {tag}, fix {fix}: {detail}", file=sys.stderr)
             if len(r.beside) > 50:
-                print(f"... {len(r.beside) - 50} more fixes added beside stored ones (see the 'changes' table)",
-                      file=sys.stderr)
+                print(f"... {len(r.beside) - 50} more fixes added beside stored ones (see the 'changes' "
+                      "table)", file=sys.stderr)
             s = r.added_status
             kept = "" if r.replaced or not r.changed else " (kept as stored; --replace to replace them)"
-            print(f"{r.file_name}: import {r.import_id}: {count_text(r.fixes_in, 'fix', 'fixes')} in the sheet: "
-                  f"{r.fixes_added} added "
+            print(f"{r.file_name}: import {r.import_id}: {count_text(r.fixes_in, 'fix', 'fixes')} in the "
+                  f"sheet: {r.fixes_added} added "
                   f"({s.get('ok', 0)} ok, {s.get('flagged', 0)} flagged, {s.get('failed', 0)} failed), "
                   f"{r.fixes_known} already stored, {r.fixes_changed} changed{kept}; "
                   f"{count_text(r.n_rows, 'row', 'rows')}, {r.n_rejected} rejected", file=sys.stderr)
@@ -106,8 +107,8 @@ def _run_show(a) -> int:
     from dfkit.season import SeasonStore
     from dfkit.season.summary import tag_summary
 
-    refuse_wrong_kinds([("-o", p, SHOW_KINDS) for p in a.output])
     refuse_unsafe_outputs(a, [("-o", p) for p in a.output])
+    refuse_wrong_kinds([("-o", p, SHOW_KINDS) for p in a.output])
     flt = filter_from_args(a)
     with SeasonStore.open(a.store) as store:
         _say_migrated(store)

@@ -54,9 +54,9 @@ def with_utm(table: pd.DataFrame) -> pd.DataFrame:
 
     ``utm_zone`` the zone number (1-60, with the Norway and Svalbard exceptions), ``utm_hemisphere``
     ``north`` or ``south`` (which false northing the northing has), ``utm_band`` the latitude band letter
-    (C-X, as GPS receivers and MGRS write it: ``33T``), ``easting`` and ``northing`` [m]. A zone and one letter
-    (``30S``) is not written: it reads as the southern hemisphere to some and as band S, north of the equator,
-    to others. Fixes without a position (or beyond UTM's 80°S-84°N) have these cells empty. dfkit reads the
+    (C-X, as GPS receivers and MGRS write it: ``33T``), ``easting`` and ``northing`` [m]. A zone and one
+    letter (``30S``) is not written: it reads as the southern hemisphere to some and as band S, north of the
+    equator, to others. Fixes without a position (or beyond UTM's 80°S-84°N) have these cells empty. dfkit reads the
     columns back (a zone number with a ``utm_hemisphere`` column is a complete zone).
     """
     from dfkit import grids
@@ -120,5 +120,6 @@ def write_fixes(fixes: Fixes, path, options: WriteOptions | None = None) -> None
     WRITERS[ext](fixes, path, options or WriteOptions())
 
 
-__all__ = ["UTM_COLUMNS", "WRITERS", "WriteOptions", "output_kind", "to_geojson", "to_gpx", "with_utm", "write_fixes",
+__all__ = ["UTM_COLUMNS", "WRITERS", "WriteOptions", "output_kind", "to_geojson", "to_gpx", "with_utm",
+           "write_fixes",
            "write_geojson", "write_gpx", "write_table"]

@@ -53,7 +53,7 @@ def _unique(names: list[str], length: int | None) -> list[str]:
 
 
 def short_names(labels, length: int) -> list[str]:
-    """Labels cut to ``length`` characters (spaces at the cut trimmed) and made unique with a ``~k`` ending."""
+    """Labels cut to ``length`` characters (spaces at the cut trimmed), made unique with a ``~k`` ending."""
     if length < 3:
         raise ValueError(f"gpx_name_length={length!r} must be at least 3 characters")
     return _unique([lab.strip()[:length].rstrip() for lab in labels], length)
@@ -66,8 +66,8 @@ def waypoint_names(labels, tags) -> list[str]:
     tags_of: dict = {}
     for lab, tag in zip(labels, tags):
         tags_of.setdefault(lab, set()).add(tag)
-    return _unique([f"{tag} {lab}" if len(tags_of[lab]) > 1 and tag else lab for lab, tag in zip(labels, tags)],
-                   None)
+    return _unique([f"{tag} {lab}" if len(tags_of[lab]) > 1 and tag else lab
+                    for lab, tag in zip(labels, tags)], None)
 
 
 def _description(r) -> str:

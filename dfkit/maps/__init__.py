@@ -198,8 +198,9 @@ def fix_map(fixes: Fixes, *, error_polygons: bool = False, title: str = "dfkit f
     FixLayer(data, world_geojson() if world else None, spec, online).add_to(m)
     OfflineMeasure(position="topleft", primary_length_unit="meters", secondary_length_unit="kilometers",
                    primary_area_unit="hectares").add_to(m)
+    # empty until a pointer moves: the page shows the map centre there
     OfflineMousePosition(position="bottomleft", separator=", ", num_digits=6, prefix="lat, lon",
-                         empty_string="").add_to(m)       # the page shows the map centre until a pointer moves
+                         empty_string="").add_to(m)
     m.data = data
     m.notes = notes
     o = data["options"]

@@ -206,8 +206,8 @@ class _State:
         self.n = n
         self.log = log
         self.cells = {role: cells.get(role, np.full(n, "", dtype=object))
-                      for role in ("lat", "lon", "utm_zone", "utm_hemisphere", "easting", "northing", "mgrs", "station",
-                                   "position")}
+                      for role in ("lat", "lon", "utm_zone", "utm_hemisphere", "easting", "northing", "mgrs",
+                                   "station", "position")}
         self.cols = cols
         self.lat = np.full(n, np.nan)
         self.lon = np.full(n, np.nan)
@@ -331,9 +331,10 @@ def _zone_and_hemisphere(p: _State):
     """A zone number with its hemisphere in a column of its own (``utm_zone`` 56, ``utm_hemisphere`` south, as
     ``dfkit fix --utm`` writes it): read as the zone '56 south'."""
     z, h = p.cells["utm_zone"], p.cells["utm_hemisphere"]
-    rows = np.flatnonzero((h != "") & pd.Series(z, dtype=object).str.fullmatch(r"\s*\d{1,2}\s*").to_numpy(bool))
-    word = np.array([{"N": "north", "S": "south"}.get(grids._WORDS.get(h[i].strip().lower(), ""), "") for i in rows],
-                    dtype=object)
+    bare = pd.Series(z, dtype=object).str.fullmatch(r"\s*\d{1,2}\s*").to_numpy(bool)
+    rows = np.flatnonzero((h != "") & bare)
+    full = {"N": "north", "S": "south"}
+    word = np.array([full.get(grids._WORDS.get(h[i].strip().lower(), ""), "") for i in rows], dtype=object)
     p.log.reject(p.log.mask(rows[word == ""]), p.name("utm_hemisphere"),
                  lambda ii: [f"'{h[i]}' is not a hemisphere: write north or south (N or S)" for i in ii])
     z[rows[word != ""]] = [f"{z[i].strip()} {w}" for i, w in zip(rows, word) if w]

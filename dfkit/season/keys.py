@@ -106,12 +106,12 @@ class BearingKeys(NamedTuple):
     moment_key: np.ndarray
 
 
-#: The suffix :mod:`dfkit.observations.grouping` gives a label split by time: ``"<label> (2026-06-01T06:00Z)"``.
+#: The suffix :mod:`dfkit.observations.grouping` gives a label split by time: ``"S (2026-06-01T06:00Z)"``.
 _SPLIT_SUFFIX = re.compile(r" \(\d{4}-\d\d-\d\dT\d\d:\d\dZ\)$")
 
 
 def _given_labels(table: pd.DataFrame, n: int) -> pd.Series:
-    """The fix label as the sheet gave it: '' where dfkit made the label (a time window, one fix per sheet)."""
+    """The fix label as the sheet gave it: '' where dfkit made it (a time window, one fix per sheet)."""
     fix = _text(table["fix"]) if "fix" in table else pd.Series([""] * n, dtype=object)
     how = _text(table["grouped_by"]) if "grouped_by" in table else pd.Series(["label"] * n, dtype=object)
     split = how == "split"

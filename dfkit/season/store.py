@@ -61,8 +61,8 @@ _STORE_FIX_COLUMNS = {"import_id": "INTEGER", "source": "TEXT", "fix_key": "TEXT
 #: Fix columns made with the table (they are indexed or filtered on); the others are added as they come.
 _CORE_FIX_COLUMNS = {"fix": "TEXT", "tag": "TEXT", "time": "DATETIME", "status": "TEXT", "n_used": "INTEGER",
                      "area_m2": "REAL"}
-_STORE_BEARING_COLUMNS = {"import_id": "INTEGER", "fix_fid": "INTEGER", "row_key": "BLOB", "content_key": "BLOB",
-                          "moment_key": "BLOB"}
+_STORE_BEARING_COLUMNS = {"import_id": "INTEGER", "fix_fid": "INTEGER", "row_key": "BLOB",
+                          "content_key": "BLOB", "moment_key": "BLOB"}
 _REGION_COLUMNS = {"fix_fid": "INTEGER", "import_id": "INTEGER", "tag": "TEXT", "fix": "TEXT", "time": "DATETIME",
                    "status": "TEXT", "kind": "TEXT", "level": "REAL", "area_m2": "REAL", "semi_major_m": "REAL",
                    "semi_minor_m": "REAL", "orientation_deg": "REAL", "bounded": "BOOLEAN"}
@@ -208,7 +208,8 @@ class SeasonStore:
             conn.execute("PRAGMA cache_size = -262144")     # 256 MiB: index inserts of a big import stay in memory
             tables = {r[0] for r in conn.execute("SELECT name FROM sqlite_master WHERE type = 'table'")}
         except sqlite3.OperationalError as err:
-            raise StoreError(f"'{path}' could not be opened ({err}): is another program writing to it?") from None
+            raise StoreError(f"'{path}' could not be opened ({err}): is another program writing to "
+                             "it?") from None
         except sqlite3.DatabaseError as err:
             raise StoreError(f"'{path}' is not a season store (not an SQLite/GeoPackage file: {err})") from None
         store = cls(conn, path)
@@ -281,7 +282,8 @@ class SeasonStore:
             try:
                 what = _MIGRATIONS[version](c)
                 c.execute("UPDATE dfkit_meta SET value = ? WHERE key = 'schema_version'", (str(version + 1),))
-                line = (f"store schema {version} -> {version + 1} on {_now_text()} by dfkit {_version()}: {what}")
+                line = (f"store schema {version} -> {version + 1} on {_now_text()} by dfkit {_version()}: "
+                        f"{what}")
                 c.execute("INSERT INTO dfkit_meta (key, value) VALUES (?, ?)",
                           (f"migrated_{version}_to_{version + 1}", line))
                 gpkg.touch(c, "dfkit_meta")
@@ -497,7 +499,7 @@ class SeasonStore:
         if not np.any(sel) or self.conn.execute("SELECT 1 FROM bearings LIMIT 1").fetchone() is None:
             return {}
         stored: dict = {}
-        for key, fid in self._lookup("bearings", "moment_key", "fix_fid", list(set(moment_key[sel].tolist()))):
+        for key, fid in self._lookup("bearings", "moment_key", "fix_fid", sorted(set(moment_key[sel].tolist()))):
             if fid not in gone:
                 stored.setdefault(key, set()).add(int(fid))
         hits: dict = {}
@@ -512,9 +514,9 @@ class SeasonStore:
         out = {}
         for i, fids in sorted(hits.items()):
             which = ", ".join(f"'{names[f][0]}' (import {names[f][1]})" for f in sorted(fids) if f in names)
-            out[i] = (fids, f"has bearings at the tag, time and observer of stored fix {which} but from other "
-                            "stations or under another label: both are kept (two crews at once; if this sheet "
-                            "corrects that fix's stations, the store now holds both)")
+            out[i] = (fids, f"has bearings at the tag, time and observer of stored fix {which} but from "
+                            "other stations or under another label: both are kept (two crews at once; if "
+                            "this sheet corrects that fix's stations, the store now holds both)")
         return out
 
     def _lookup(self, table, key_col, value_cols, keys, group=False):
