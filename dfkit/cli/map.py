@@ -9,9 +9,9 @@ import os
 import re
 import sys
 
-from dfkit.cli.common import (HTML_KINDS, add_fix_options, add_read_options, ensure_dir, exit_status,
-                              kinds_text, print_summary, refuse_unsafe_outputs, refuse_wrong_kinds, sheet_help,
-                              solve)
+from dfkit.cli.common import (HTML_KINDS, add_fix_options, add_jobs_option, add_read_options, ensure_dir,
+                              exit_status, kinds_text, print_summary, refuse_unsafe_outputs, refuse_wrong_kinds,
+                              sheet_help, solve)
 from dfkit.export.atomic import save_figure
 
 
@@ -42,6 +42,7 @@ def add_parser(sub):
     m.add_argument("--progress", action="store_true", help="print progress (automatic on large sheets)")
     add_read_options(m)
     add_fix_options(m)
+    add_jobs_option(m)
     return m
 
 

@@ -8,8 +8,9 @@ import sys
 import time
 
 from dfkit.cautions import CAUTION_LINE
-from dfkit.cli.common import (add_fix_options, add_read_options, count_text, kinds_text, read_kwargs,
-                              refuse_unsafe_outputs, refuse_wrong_kinds, report_problems, sheet_help)
+from dfkit.cli.common import (add_fix_options, add_jobs_option, add_read_options, check_jobs, count_text,
+                              kinds_text, read_kwargs, refuse_unsafe_outputs, refuse_wrong_kinds, report_problems,
+                              sheet_help)
 from dfkit.cli.filters import add_filter_options, filter_from_args
 from dfkit.export import WRITERS
 
@@ -31,6 +32,7 @@ def add_parser(sub):
     a.add_argument("--progress", action="store_true", help="print progress (automatic on large sheets)")
     add_read_options(a)
     add_fix_options(a)
+    add_jobs_option(a)
     a.set_defaults(_season=_run_add)
 
     w = ss.add_parser("show", help="choose fixes of a season and write them (CSV, GeoJSON, GeoPackage, GPX, review "
@@ -70,12 +72,13 @@ def _run_add(a) -> int:
     if os.path.splitext(a.store)[1].lower() != ".gpkg":
         print(f"dfkit: the season file must end in .gpkg (got '{a.store}')", file=sys.stderr)
         return 2
+    check_jobs(a)
     status = 0
     with SeasonStore.open(a.store, create=True) as store:
         _say_migrated(store)
         for sheet in a.sheets:
             r = add_sheet(store, sheet, method=a.method, level=a.level, replace=a.replace, progress=progress,
-                          **read_kwargs(a))
+                          jobs=a.jobs, **read_kwargs(a))
             report_problems(r.problems, sys.stderr)
             for note in r.notes:
                 print(f"note      {note}", file=sys.stderr)
