@@ -57,13 +57,6 @@ _NUMERIC = {"lat": 7, "lon": 7, "true_bearing": 6, "sd": 6, "declination": 6, "c
 _TEXT = ["fix", "tag", "sd_source", "unit", "north", "position_from", "grouped_by"]
 
 
-def _num_text(values, decimals: int) -> pd.Series:
-    arr = np.asarray(values, float)
-    finite = np.isfinite(arr)
-    scaled = np.where(finite, np.round(arr * 10.0**decimals), 0).astype(np.int64).astype(str)
-    return pd.Series(np.where(finite, scaled, ""), dtype=object)
-
-
 def _text(values) -> pd.Series:
     s = pd.Series(values, dtype=object).reset_index(drop=True)
     return s.where(s.notna(), "").astype(str)
@@ -128,6 +121,21 @@ def _time_us(table: pd.DataFrame) -> tuple[np.ndarray, np.ndarray]:
     return np.where(timed, us.astype(np.int64), np.iinfo(np.int64).min), timed
 
 
+def _int_rows(columns) -> list[bytes]:
+    """Integer columns as one little-endian byte string per row."""
+    rec = np.ascontiguousarray(np.stack(columns, axis=1).astype("<i8"))
+    width = rec.shape[1] * 8
+    buf = rec.tobytes()
+    return [buf[i * width:(i + 1) * width] for i in range(rec.shape[0])]
+
+
+def _scaled(values, decimals: int) -> np.ndarray:
+    arr = np.asarray(values, float)
+    finite = np.isfinite(arr)
+    return np.where(finite, np.round(np.where(finite, arr, 0.0) * 10.0**decimals), np.iinfo(np.int64).min
+                    ).astype(np.int64)
+
+
 def identity_keys(table: pd.DataFrame, group=None) -> tuple[np.ndarray, np.ndarray]:
     """Identity and moment keys of every bearing (see the module's description).
 
@@ -148,18 +156,20 @@ def identity_keys(table: pd.DataFrame, group=None) -> tuple[np.ndarray, np.ndarr
     n = len(table)
     if n == 0:
         return np.zeros(0, dtype=object), np.zeros(0, dtype=object)
-    tag = _text(table["tag"])
+    tag = _text(table["tag"]).tolist()
     time_us, timed = _time_us(table)
-    observer = _text(table["observer"]) if "observer" in table else pd.Series([""] * n, dtype=object)
-    lat = _num_text(table["lat"].to_numpy(float), 6)
-    lon = _num_text(table["lon"].to_numpy(float), 6)
-    t_text = pd.Series(np.where(timed, time_us.astype(str), ""), dtype=object)
-    label = pd.Series(np.where(timed, _given_labels(table, n), _text(table["fix"])), dtype=object)
-    base = _join([pd.Series(np.where(timed, "t", "p"), dtype=object), tag, t_text, observer, lat, lon, label])
-    keys = base if group is None else _join([_text(np.asarray(group)), base])
-    ordinal = keys.groupby(keys, sort=False).cumcount().astype(str)
-    row_key = _digest(base.str.cat(ordinal, sep="\x1f"))
-    moment = _digest(_join([pd.Series(["m"] * n, dtype=object), tag, t_text, observer]))
+    observer = _text(table["observer"]).tolist() if "observer" in table else [""] * n
+    label = np.where(timed, _given_labels(table, n), _text(table["fix"])).tolist()
+    # identity: (timed?, time, station to 1e-6 deg) as integers, then tag, observer and label as text
+    ints = _int_rows([timed.astype(np.int64), time_us, _scaled(table["lat"], 6), _scaled(table["lon"], 6)])
+    base = _digest([f"{a}\x1f{b}\x1f{c}" for a, b, c in zip(tag, observer, label)], ints)
+    # a bearing read twice in one sheet (or import) is numbered: 0 keeps the base key, k > 0 hashes it with k
+    groups = pd.Series(base) if group is None else pd.Series(list(zip(np.asarray(group).tolist(), base)))
+    ordinal = groups.groupby(groups, sort=False).cumcount().to_numpy()
+    row_key = base.copy()
+    for i in np.flatnonzero(ordinal):
+        row_key[i] = hashlib.blake2b(base[i] + b"\x1f%d" % ordinal[i], digest_size=16).digest()
+    moment = _digest([f"m\x1f{a}\x1f{b}" for a, b in zip(tag, observer)], _int_rows([time_us]))
     moment_key = np.where(timed, moment, None)
     return row_key, moment_key
 
