@@ -675,7 +675,8 @@ class SeasonStore:
     def bearings(self, fix_fids) -> pd.DataFrame:
         """The stored bearings of these fixes."""
         fix_fids = [int(f) for f in fix_fids]
-        cols = [c for c in gpkg.table_columns(self.conn, "bearings") if c not in ("geom", "row_key", "content_key")]
+        keys = ("geom", "row_key", "content_key", "moment_key")
+        cols = [c for c in gpkg.table_columns(self.conn, "bearings") if c not in keys]
         parts = []
         for s in range(0, len(fix_fids), 500):
             chunk = fix_fids[s:s + 500]
