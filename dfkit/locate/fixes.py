@@ -54,6 +54,7 @@ STATUS_MEANING = {
     "no_region": "a position, but nothing to size a confidence region with",
     "shallow": "the bearing lines cross at a shallow angle; the position is weak along them",
     "long_span": "the bearings are too far apart in time; the transmitter may have moved",
+    "ambiguous": "another set of the bearings fits as well at another place, outside the region",
     "too_few": "fewer than two usable bearings",
     "one_spot": "all bearings were taken from one spot",
     "parallel": "the bearing lines are parallel and do not cross",
@@ -65,7 +66,7 @@ STATUS_MEANING = {
     "no_convergence": "the estimate did not settle",
 }
 #: Statuses that come with a position.
-WITH_POSITION = ("ok", "inconsistent", "near_observer", "unbounded", "no_region", "shallow", "long_span")
+WITH_POSITION = ("ok", "ambiguous", "inconsistent", "near_observer", "unbounded", "no_region", "shallow", "long_span")
 
 FIX_COLUMNS = [
     "fix", "tag", "time", "lat", "lon", "n_bearings", "n_used", "method", "sd_deg", "sd_source", "level",

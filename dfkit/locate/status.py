@@ -38,6 +38,7 @@ class FixFacts:
     regions: object             # dfkit.regions.LikelihoodRegions or None
     level: float
     hints: dict                 # fix index -> list of extra reason texts
+    rivals: dict = None         # fix index -> dfkit.locate.rivals.Rival (competing explanations)
 
 
 def _lines_text(lines):
@@ -111,6 +112,8 @@ def classify(f: FixFacts):
                      | (sol.crossing_deg < SHALLOW_CROSSING_DEG) | notable)
     attention |= np.array([len(r) > 0 for r in f.rejected], bool)
     attention |= np.isin(np.arange(m), list(f.hints))
+    rivals = f.rivals or {}
+    attention |= np.isin(np.arange(m), list(rivals))
     if regions is not None:
         with np.errstate(invalid="ignore", divide="ignore"):
             ratio = regions.area_m2 / f.ellipse_area
@@ -195,6 +198,8 @@ def classify(f: FixFacts):
                         f"its bearings span {f.span_min[i]:.0f} min, more than {FIX_SPAN_WINDOWS:g} windows of "
                         f"{f.window_min:g} min")
                 flags.append(("long_span", f"{what}; the transmitter may have moved"))
+            if i in rivals:
+                flags.append(("ambiguous", _rival_text(rivals[i], f.lines, sol, i)))
             if not sol.sd_known[i] and sol.dof[i] <= 0:
                 flags.append(("no_region", "two bearings and no known SD: a position but no confidence "
                                            "region (give sd in the sheet or --sd)"))
@@ -238,6 +243,18 @@ def classify(f: FixFacts):
                               + ", ".join(str(x) for x in rej[:8]) + (" ..." if len(rej) > 8 else ""))
         reasons[i] = [r for r in reasons[i] if r]
     return status, reasons
+
+
+def _rival_text(rv, lines, sol, i):
+    where = f"{rv.lat:.5f}, {rv.lon:.5f}, {rv.distance_m:.0f} m away"
+    fit = (f"p = {rv.p:.2g}" if sol.sd_known[i] else f"SD {rv.sd_deg:.1f}°")
+    if rv.left_out >= 0:
+        return (f"two answers fit: this one, and without line {lines[rv.left_out]} the other bearings agree at {where} "
+                f"({fit}), where line {lines[rv.left_out]} misses by {rv.miss_deg:+.0f}°; the region holds only one "
+                f"of them: check line {lines[rv.left_out]} (a reflection?) or take another bearing")
+    return (f"two answers fit: this one without {_lines_text(lines[rv.dropped])}, and all bearings together at {where} "
+            f"({fit}); the region holds only one of them: check {_lines_text(lines[rv.dropped])} or take another "
+            "bearing")
 
 
 def _km(m_):

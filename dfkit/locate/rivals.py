@@ -1,0 +1,176 @@
+"""Competing explanations: when another set of bearings fits just as well somewhere else.
+
+A fix that looks consistent can still be wrong: a wild bearing can make a false
+crossing where every line fits, or pull the answer onto its own station, and a
+robust fit can drop a good bearing and keep the wild one. The data then hold two
+explanations: "these bearings are good" and "those bearings are good", each with its
+own answer. dfkit tries the alternatives of every fix that would be ``ok``:
+
+* each subset that leaves out one bearing (the bearing is wild), and
+* all bearings at full weight, where the fit dropped one (the bearing is good),
+
+solves each with Lenth's likelihood (:mod:`dfkit.estimators`) and calls the fix
+``ambiguous`` when an alternative is
+
+1. plausible by the fix's own rule (known SD: its chi-square test is passed at
+   :data:`dfkit.policy.INCONSISTENT_P`; SD estimated: at least one degree of freedom
+   and an SD within :data:`dfkit.policy.PLAUSIBLE_SD_DEG`), and
+2. incompatible with the fix: its answer lies outside the fix's region *and* the
+   fix lies outside the alternative's region (both likelihood-ratio regions at the
+   same level, :func:`dfkit.regions.region_threshold`).
+
+The double condition is a test of the left-out bearing that counts only when the
+bearing matters. In a linear model, with h the bearing's leverage in the fit that
+uses it and T its externally studentised residual (R. D. Cook & S. Weisberg,
+*Residuals and Influence in Regression*, Chapman & Hall, 1982, ch. 2 [from memory]),
+the fix lies outside the alternative's region exactly when h T^2 exceeds the
+region's bound (5.99 at 95 % with a known SD): so a clean fix is called ambiguous
+only when one bearing both disagrees (|T| > 2.45 at the very least) and carries
+much of the fix. Its measured rate in clean data is in DEVELOPERS.md.
+"""
+
+from __future__ import annotations
+
+from dataclasses import dataclass
+
+import numpy as np
+
+from dfkit import estimators, geodesy
+from dfkit.estimators import subsets
+from dfkit.locate.status import consistency
+from dfkit.policy import INCONSISTENT_P, PLAUSIBLE_SD_DEG
+from dfkit.regions import region_threshold
+
+
+#: An alternative with as many bearings as the fix (another bearing is the wild one), or one more (the dropped
+#: bearing is good), competes when the fix's explanation is not at least this many times as likely: with equal
+#: prior odds the alternative then has a posterior probability of at least 1/3. Our choice, by measured
+#: coverage (benchmarks/coverage.py): with one wild bearing in four (SD known) a ratio of 1 left ok fixes
+#: holding the truth 91.5 % of the time, 2 gave 94 %, and 8 (R. Royall, *Statistical Evidence*, Chapman &
+#: Hall, 1997: "fairly strong" evidence [from memory]) 94.7 % but flagged 2.7 % of five-bearing fixes
+#: instead of 1.5 %.
+EVIDENCE_RATIO = 2.0
+
+
+@dataclass
+class Rival:
+    """The strongest competing explanation of one fix.
+
+    ``left_out``: index (into the bearings) of the bearing the alternative leaves out, or -1 when the
+    alternative keeps every bearing; ``dropped``: bearings the fix itself left out; ``lat``, ``lon``
+    the alternative's answer [°]; ``distance_m`` from the fix; ``miss_deg`` how far the left-out bearing
+    misses the alternative's answer [°] (NaN when none is left out); ``p`` its chi-square p-value
+    (known SD) or ``sd_deg`` its estimated SD.
+    """
+
+    left_out: int
+    dropped: list
+    lat: float
+    lon: float
+    distance_m: float
+    miss_deg: float
+    p: float
+    sd_deg: float
+
+
+def find_rivals(lat, lon, theta, sd, g, counts, sol, lik, level, examine, known_dof=None):
+    """Competing explanations of the fixes ``examine`` (see the module docstring).
+
+    Parameters
+    ----------
+    lat, lon, theta, sd : ndarray, shape (N,)
+        Stations [°], observed true bearings [°] and bearing SDs [°, NaN when unknown].
+    g, counts : ndarray
+        Fix of each bearing; bearings per fix.
+    sol : dfkit.estimators.Solution
+        The fixes as solved.
+    lik : dfkit.regions.LikelihoodRegions or None
+        Their regions (when None, each fix's S_min is taken at its answer).
+    level : float
+        Probability of the regions.
+    examine : ndarray of bool, shape (m,)
+        Fixes to look at (those that would be ``ok``).
+    known_dof : ndarray, optional
+        Degrees of freedom of a measured known SD, per fix (inf: exact).
+
+    Returns
+    -------
+    dict
+        fix index -> :class:`Rival`, for the fixes with a plausible, incompatible alternative.
+    """
+    m = len(counts)
+    kdof = np.full(m, np.inf) if known_dof is None else np.asarray(known_dof, float)
+    used = sol.weight > 0
+    n_used = np.bincount(g, used.astype(float), m)
+    look = examine & (counts >= 3)
+    if not look.any():
+        return {}
+    # Alternatives: each fix without each bearing in turn (but not the one set the fit itself uses), and
+    # whole where the fit dropped bearings.
+    alone = ~used & (n_used[g] == counts[g] - 1)
+    var = subsets.variants(g, counts, np.flatnonzero(look), np.flatnonzero(look & (n_used < counts)), skip=alone)
+    k = len(var)
+    if not k:
+        return {}
+    v_fix, v_out, mo, mb = var.fix, var.left_out, var.owner, var.member
+    alt = estimators.solve(lat[mb], lon[mb], theta[mb], mo, k, sd[mb], method="mle")
+    _, p = consistency(alt, mo, k)
+    with np.errstate(invalid="ignore"):
+        plausible = alt.converged & ~alt.behind & np.where(
+            alt.sd_known, (alt.dof < 1) | (p >= INCONSISTENT_P), (alt.dof >= 1) & (alt.sd_deg <= PLAUSIBLE_SD_DEG))
+    if not plausible.any():
+        return {}
+    # The fix's S at each alternative's answer (exact geodesic residuals of all its bearings, weighted as in its
+    # region), against the fix's bound.
+    whole = subsets.variants(g, counts, [], v_fix)
+    ao, ab = whole.owner, whole.member
+    az, _, _ = geodesy.inverse(lat[ab], lon[ab], alt.lat[ao], alt.lon[ao])
+    r = np.radians(((theta[ab] - az + 180.0) % 360.0) - 180.0)
+    S_fix_at_alt = np.bincount(ao, sol.region_weight[ab] * r * r, k)
+    r_fix = np.radians(sol.residual_deg)
+    S_fix_min = np.bincount(g, sol.region_weight * r_fix * r_fix, m)
+    if lik is not None:
+        S_fix_min = np.where(lik.has_region & np.isfinite(lik.s_min), np.minimum(lik.s_min, S_fix_min), S_fix_min)
+    T_fix = region_threshold(S_fix_min, sol.sd_known, sol.dof, level, kdof)[v_fix]
+    # The alternative's S at the fix's answer against the alternative's bound.
+    S_alt_at_fix = np.bincount(mo, alt.region_weight * r_fix[mb] ** 2, k)
+    r_alt = np.radians(alt.residual_deg)
+    S_alt_min = np.bincount(mo, alt.region_weight * r_alt * r_alt, k)
+    T_alt = region_threshold(S_alt_min, alt.sd_known, alt.dof, level, kdof[v_fix])
+    # An alternative with as many bearings as the fix, or one more, competes only when the fix's explanation is
+    # not favoured by EVIDENCE_RATIO or more: -2 log of the likelihood ratio (estimated SD: of the profile
+    # likelihoods, n log(S / dof)) below 2 log EVIDENCE_RATIO. One with fewer bearings always has the better
+    # likelihood; it competes through the conflict test alone.
+    n_alt = np.bincount(mo, minlength=k)
+    with np.errstate(invalid="ignore", divide="ignore"):
+        S_fix_used = np.bincount(g, np.where(used, sol.region_weight * r_fix * r_fix, 0.0), m)[v_fix]
+        lr = np.where(alt.sd_known, S_alt_min - S_fix_used,
+                      n_alt * np.log(S_alt_min / (n_alt - 2)) - n_used[v_fix] * np.log(S_fix_used / (n_used[v_fix] - 2)))
+        close = ~(lr >= 2.0 * np.log(EVIDENCE_RATIO)) | (n_alt < n_used[v_fix])
+        same = n_alt == n_used[v_fix]
+
+        conflict = plausible & close & (S_fix_at_alt > T_fix) & ((S_alt_at_fix > T_alt) | same)
+    if not conflict.any():
+        return {}
+    # per fix, the alternative that fits best (highest p, or smallest SD)
+    score = np.where(alt.sd_known, -np.nan_to_num(p, nan=1.0), alt.sd_deg)
+    cand = np.flatnonzero(conflict)
+    cand = cand[np.lexsort((score[cand], v_fix[cand]))]
+    first = np.ones(len(cand), bool)
+    first[1:] = v_fix[cand[1:]] != v_fix[cand[:-1]]
+    best = cand[first]
+    fx, j = v_fix[best], v_out[best]
+    _, _, dist = geodesy.inverse(sol.lat[fx], sol.lon[fx], alt.lat[best], alt.lon[best])
+    jj = np.maximum(j, 0)
+    a_j, _, _ = geodesy.inverse(lat[jj], lon[jj], alt.lat[best], alt.lon[best])
+    miss = np.where(j >= 0, ((theta[jj] - a_j + 180.0) % 360.0) - 180.0, np.nan)
+    order = np.argsort(g, kind="stable")
+    offsets = np.concatenate(([0], np.cumsum(counts)))
+    out = {}
+    for k_, i in enumerate(fx.tolist()):
+        sel = order[offsets[i]:offsets[i + 1]]
+        v = best[k_]
+        out[i] = Rival(left_out=int(j[k_]), dropped=sel[~used[sel]].tolist(), lat=float(alt.lat[v]),
+                       lon=float(alt.lon[v]), distance_m=float(dist[k_]), miss_deg=float(miss[k_]),
+                       p=float(p[v]), sd_deg=float(alt.sd_deg[v]))
+    return out
