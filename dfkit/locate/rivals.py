@@ -1,32 +1,41 @@
-"""Competing explanations: when another set of bearings fits just as well somewhere else.
+"""Competing explanations: when another set of the bearings fits as well somewhere else.
 
 A fix that looks consistent can still be wrong: a wild bearing can make a false
-crossing where every line fits, or pull the answer onto its own station, and a
-robust fit can drop a good bearing and keep the wild one. The data then hold two
-explanations: "these bearings are good" and "those bearings are good", each with its
-own answer. dfkit tries the alternatives of every fix that would be ``ok``:
+crossing where every line fits, or pull the answer towards its own station, and a
+robust fit can drop a good bearing and keep the wild one. The bearings then hold two
+explanations, "these bearings are good" and "those are", each with its own answer.
+dfkit tries the alternatives of every fix that would be ``ok``:
 
-* each subset that leaves out one bearing (the bearing is wild), and
-* all bearings at full weight, where the fit dropped one (the bearing is good),
+* the fix without each bearing in turn ("that bearing is wild"), and
+* all its bearings at full weight where the fit dropped one ("it is good"),
 
-solves each with Lenth's likelihood (:mod:`dfkit.estimators`) and calls the fix
-``ambiguous`` when an alternative is
+solves each with Lenth's likelihood (:mod:`dfkit.estimators`, one vectorised call)
+and calls the fix ``ambiguous`` when an alternative is
 
-1. plausible by the fix's own rule (known SD: its chi-square test is passed at
-   :data:`dfkit.policy.INCONSISTENT_P`; SD estimated: at least one degree of freedom
-   and an SD within :data:`dfkit.policy.PLAUSIBLE_SD_DEG`), and
-2. incompatible with the fix: its answer lies outside the fix's region *and* the
-   fix lies outside the alternative's region (both likelihood-ratio regions at the
-   same level, :func:`dfkit.regions.region_threshold`).
+1. *plausible* by the fix's own rule: known SD, its chi-square test passed at
+   :data:`dfkit.policy.INCONSISTENT_P` (always, with no degree of freedom left);
+   SD estimated, at least one degree of freedom and an SD within
+   :data:`dfkit.policy.PLAUSIBLE_SD_DEG`;
+2. *competitive*: with as many bearings as the fix, or one more, the fix's
+   explanation is not :data:`EVIDENCE_RATIO` times as likely (profile likelihoods,
+   the SD's too when it is estimated); one with fewer bearings always fits better and
+   is judged by the next condition alone;
+3. *incompatible*: its answer lies outside the fix's region and, for an alternative
+   with fewer bearings and a known SD, the fix lies outside the alternative's region
+   (likelihood-ratio regions at the same level, :func:`dfkit.regions.region_threshold`).
 
-The double condition is a test of the left-out bearing that counts only when the
-bearing matters. In a linear model, with h the bearing's leverage in the fit that
-uses it and T its externally studentised residual (R. D. Cook & S. Weisberg,
-*Residuals and Influence in Regression*, Chapman & Hall, 1982, ch. 2 [from memory]),
-the fix lies outside the alternative's region exactly when h T^2 exceeds the
-region's bound (5.99 at 95 % with a known SD): so a clean fix is called ambiguous
-only when one bearing both disagrees (|T| > 2.45 at the very least) and carries
-much of the fix. Its measured rate in clean data is in DEVELOPERS.md.
+The two-sided test in 3 is a test of the left-out bearing that counts only when the
+bearing matters. In a linear model with a known SD, with h the bearing's leverage in
+the fit that uses it and T its externally studentised residual (R. D. Cook &
+S. Weisberg, *Residuals and Influence in Regression*, Chapman & Hall, 1982, ch. 2
+[from memory]), the fix lies outside the alternative's region exactly when h T^2
+exceeds the region's bound (5.99 at 95 %), and the alternative outside the fix's when
+h T^2 / (1 - h) does: so a clean fix is called ambiguous only when one bearing both
+disagrees (|T| > 2.45 at the very least) and carries much of it. With the SD
+estimated, the alternative's own region (an F region on n - 3 degrees of freedom) is
+so wide that it holds nearly every nearby point, and only the fix's region is tested.
+The measured rates (clean data: 0.1-0.3 % of fixes with a known SD, 0.2-1.2 % with
+an estimated one) are in DEVELOPERS.md.
 """
 
 from __future__ import annotations
@@ -108,7 +117,11 @@ def find_rivals(lat, lon, theta, sd, g, counts, sol, lik, level, examine, known_
     # Alternatives: each fix without each bearing in turn (but not the one set the fit itself uses), and
     # whole where the fit dropped bearings.
     alone = ~used & (n_used[g] == counts[g] - 1)
-    var = subsets.variants(g, counts, np.flatnonzero(look), np.flatnonzero(look & (n_used < counts)), skip=alone)
+    # Where the fit uses every bearing, leaving one out gives an alternative with fewer bearings; only those
+    # that could be incompatible are solved (_could_conflict).
+    full = look & (n_used == counts)
+    skip = alone | (full[g] & ~_could_conflict(g, m, sol, used, level, kdof))
+    var = subsets.variants(g, counts, np.flatnonzero(look), np.flatnonzero(look & (n_used < counts)), skip=skip)
     k = len(var)
     if not k:
         return {}
@@ -147,7 +160,7 @@ def find_rivals(lat, lon, theta, sd, g, counts, sol, lik, level, examine, known_
         lr = np.where(alt.sd_known, S_alt_min - S_fix_used,
                       n_alt * np.log(S_alt_min / (n_alt - 2)) - n_used[v_fix] * np.log(S_fix_used / (n_used[v_fix] - 2)))
         close = ~(lr >= 2.0 * np.log(EVIDENCE_RATIO)) | (n_alt < n_used[v_fix])
-        same = n_alt == n_used[v_fix]
+        same = (n_alt == n_used[v_fix]) | ~sol.sd_known[v_fix]
 
         conflict = plausible & close & (S_fix_at_alt > T_fix) & ((S_alt_at_fix > T_alt) | same)
     if not conflict.any():
@@ -174,3 +187,41 @@ def find_rivals(lat, lon, theta, sd, g, counts, sol, lik, level, examine, known_
                        lon=float(alt.lon[v]), distance_m=float(dist[k_]), miss_deg=float(miss[k_]),
                        p=float(p[v]), sd_deg=float(alt.sd_deg[v]))
     return out
+
+
+
+#: With the SD estimated, a bearing is left out and the rest solved only when a linear model says its absence
+#: could move the answer out of the fix's region, within a factor SCREEN_LINEAR (on the squared miss), or when
+#: it carries so much of the fix (leverage above SCREEN_LEVERAGE) that the linear model is not to be trusted.
+#: Our choice, by measurement: no incompatible alternative in benchmarks/coverage.py had a ratio below 0.5 or
+#: a leverage below 0.7, and the screen leaves 10-20 % of the bearings to solve.
+SCREEN_LINEAR = 0.2
+SCREEN_LEVERAGE = 0.7
+
+
+def _could_conflict(g, m, sol, used, level, kdof):
+    """Per bearing: whether the fix without it could be an incompatible alternative (see find_rivals).
+
+    Known SD, exact: the fix must lie outside the alternative's region, S_without(fix) - S_without(alt) above
+    the region's bound, so S_without at the fix alone must exceed that bound. Estimated SD: the linear screen
+    (SCREEN_LINEAR, SCREEN_LEVERAGE): in a linear model the bearing misses the leave-one-out answer by
+    r / (1 - h) (r its residual at the fix, h its leverage), and the fix's S there exceeds its bound only if
+    that squared miss exceeds the bound's gap plus r^2.
+    """
+    d = sol.range_m
+    az = np.radians(sol.azimuth_from_fix_deg)
+    gx, gy = -np.cos(az) / d, np.sin(az) / d          # gradient of the predicted bearing [rad/m]
+    v = np.where(used, sol.region_weight, 0.0)
+    r = np.radians(sol.residual_deg)
+    S = np.bincount(g, v * r * r, m)
+    j11, j12, j22 = (np.bincount(g, v * t, m) for t in (gx * gx, gx * gy, gy * gy))
+    with np.errstate(divide="ignore", invalid="ignore"):
+        h = v * (j22[g] * gx * gx - 2 * j12[g] * gx * gy + j11[g] * gy * gy) / (j11 * j22 - j12 * j12)[g]
+        # known SD: the alternative's bound over its minimum (chi-square, or F for a measured SD), with its
+        # bearings at full weight 1/SD^2 (a robust fit's own weights may be smaller)
+        gap_alt = region_threshold(np.zeros(m), np.ones(m, bool), sol.dof, level, kdof)
+        full = np.where(used, sol.region_weight / np.where(used, sol.weight, 1.0), 0.0) * r * r
+        known = (np.bincount(g, full, m)[g] - full) > gap_alt[g]
+        gap_fix = (region_threshold(S, sol.sd_known, sol.dof, level, kdof) - S)[g]
+        linear = (v * r * r / (1.0 - h) ** 2 > SCREEN_LINEAR * (gap_fix + v * r * r)) | (h > SCREEN_LEVERAGE)
+    return np.where(sol.sd_known[g], known, linear)
