@@ -55,6 +55,9 @@ NEAR_STATION = 0.01
 CLEAN_START_DEG = 20.0
 #: Starts tried per fix: the best candidate first, the next ones only when a fit fails.
 MAX_STARTS = 3
+#: Starts tried per fix by Stansfield's fixed point, whose re-weighting can stall at a point that is no fixed
+#: point (a local minimum of |T(x) - x|) from a start that the optimisers would leave.
+FIXED_POINT_STARTS = 6
 
 #: How each fit ended (``Solution.ending``), as names.
 ENDINGS = ("optimum", "too_few", "parallel", "runaway", "singular", "stalled", "max_iter", "not_optimum",
@@ -134,7 +137,7 @@ def _check_inputs(lat, lon, theta, g, m, sd):
 
 
 def solve(lat, lon, bearing_deg, group, n_groups, sd_deg=None, *, method="mle", robust_c=None,
-          tol_m=1e-4, max_iter=60, max_outer=30) -> Solution:
+          tol_m=1e-4, max_iter=100, max_outer=30) -> Solution:
     """Solve many fixes at once.
 
     Parameters
@@ -203,8 +206,9 @@ def solve(lat, lon, bearing_deg, group, n_groups, sd_deg=None, *, method="mle", 
     # Starts, and the scale of the robust weights: the SD when known, else the trimmed scale at the
     # start, held fixed from then on.
     s_b = np.where(known_b, sd_rad, np.nan)
-    x0 = np.full((m, MAX_STARTS), np.nan)
-    y0 = np.full((m, MAX_STARTS), np.nan)
+    k_starts = FIXED_POINT_STARTS if spec.kind == "fixed_point" else MAX_STARTS
+    x0 = np.full((m, k_starts), np.nan)
+    y0 = np.full((m, k_starts), np.nan)
     n_starts = np.where(base, 1, 0)
     searched = np.zeros(m, bool)            # fixes whose candidate starts were ranked
     if spec.kind != "closed":
@@ -249,7 +253,8 @@ def _attempts(ctx, state, which, n_starts, x0, y0, more=None):
     """
     g = ctx["g"]
     verified = state["verified"]
-    for attempt in range(MAX_STARTS + 1):
+    k_starts = x0.shape[1]
+    for attempt in range(k_starts):
         todo = which & ~verified & (n_starts > attempt)
         if attempt == 1 and more is not None:
             failed = which & ~verified & (n_starts == 1)
@@ -258,7 +263,7 @@ def _attempts(ctx, state, which, n_starts, x0, y0, more=None):
                 todo = which & ~verified & (n_starts > attempt)
         if not todo.any():
             break
-        res = _run(ctx, todo, np.nan_to_num(x0[:, attempt % MAX_STARTS]), np.nan_to_num(y0[:, attempt % MAX_STARTS]))
+        res = _run(ctx, todo, np.nan_to_num(x0[:, attempt]), np.nan_to_num(y0[:, attempt]))
         ok = _verify(ctx, todo, res)
         take = todo & (ok | (attempt == 0))
         state["P_lat"][take], state["P_lon"][take] = res["lat"][take], res["lon"][take]
@@ -304,7 +309,7 @@ class _Starter:
         for sel, score in ((by_trim, lambda: trimmed_score(w, counts, g)),
                            (by_objective, lambda: objective_score(spec.objective, w, s_b, c))):
             if sel.any():
-                xs, ys = choose(geo0, g, m, counts, sel, score(), spread, MAX_STARTS)
+                xs, ys = choose(geo0, g, m, counts, sel, score(), spread, x0.shape[1])
                 had = np.isfinite(x0[:, 0]) & sel
                 # keep a least-squares start already tried as the first; the candidates follow
                 x0[sel] = np.where(had[sel, None], np.column_stack([x0[sel, :1], xs[sel, :-1]]), xs[sel])

@@ -144,7 +144,14 @@ def classify(f: FixFacts):
             flags.append(("on_station", f"the best point creeps onto the observer at line {f.lines[near]}: that "
                                         "bearing fits only if the transmitter sits on its station, so another "
                                         "bearing disagrees badly"))
-        elif end in ("stalled", "max_iter"):
+        elif end == "stalled" and sol.method == "stansfield":
+            flags.append(("no_convergence", "Stansfield's re-weighting comes to rest nowhere near these bearings "
+                                            f"(it stalled from every start tried, {sol.iterations[i]} iterations): "
+                                            "they disagree too much for this method; try --method andrews"))
+        elif end == "stalled":
+            flags.append(("no_convergence", "the fit stalled: no step from its last point improves it "
+                                            f"({sol.iterations[i]} iterations, from every start tried)"))
+        elif end == "max_iter":
             flags.append(("no_convergence", f"the estimate did not settle after {sol.iterations[i]} iterations"))
         elif end == "not_optimum":
             flags.append(("no_optimum", "the fit settled on a point that is not a maximum of the likelihood "
