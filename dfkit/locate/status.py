@@ -253,15 +253,25 @@ def classify(f: FixFacts):
 
 
 def _rival_text(rv, lines, sol, i):
-    where = f"{rv.lat:.5f}, {rv.lon:.5f}, {rv.distance_m:.0f} m away"
-    fit = (f"p = {rv.p:.2g}" if sol.sd_known[i] else f"SD {rv.sd_deg:.1f}°")
+    """The reason of an ``ambiguous`` fix: both answers, and which lines decide between them."""
+    where = f"{rv.lat:.5f}, {rv.lon:.5f} ({rv.distance_m:.0f} m away)"
+    fit = f"p = {rv.p:.2g}" if sol.sd_known[i] else f"SD {rv.sd_deg:.1f}°"
+    tail = "" if sol.sd_known[i] else ("; with the bearing SD known (sheet sd, --sd or a calibration) dfkit can test "
+                                       "the bearings more sharply")
+    if rv.left_out >= 0 and rv.dropped:
+        j, k = _lines_text(lines[rv.dropped]), lines[rv.left_out]
+        return (f"two answers fit: this one, which leaves out {j}, and {where}, which leaves out line {k} instead "
+                f"({fit}; line {k} misses it by {rv.miss_deg:+.0f}°); this region does not reach the other answer: "
+                f"check {j} and line {k}, or take another bearing{tail}")
     if rv.left_out >= 0:
-        return (f"two answers fit: this one, and without line {lines[rv.left_out]} the other bearings agree at {where} "
-                f"({fit}), where line {lines[rv.left_out]} misses by {rv.miss_deg:+.0f}°; the region holds only one "
-                f"of them: check line {lines[rv.left_out]} (a reflection?) or take another bearing")
-    return (f"two answers fit: this one without {_lines_text(lines[rv.dropped])}, and all bearings together at {where} "
-            f"({fit}); the region holds only one of them: check {_lines_text(lines[rv.dropped])} or take another "
-            "bearing")
+        k = lines[rv.left_out]
+        return (f"two answers fit: this one, and {where}, where all bearings but line {k} agree ({fit}) and line "
+                f"{k} misses by {rv.miss_deg:+.0f}°; this region does not reach the other answer, so if line {k} is "
+                f"a reflection the region is wrong: check line {k}, or take another bearing{tail}")
+    j = _lines_text(lines[rv.dropped])
+    return (f"two answers fit: this one, which leaves out {j}, and {where}, where all the bearings agree together "
+            f"({fit}); this region does not reach the other answer: {j} may be good; check it, or take another "
+            f"bearing{tail}")
 
 
 def _km(m_):
