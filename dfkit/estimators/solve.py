@@ -532,9 +532,10 @@ def _finish(ctx, counts, geo, P_lat, P_lon, ending, verified, known_b, known_g, 
     used = weight > 0
     n_used = gsum(g, used.astype(float), m).astype(int)
     # A robust fit must keep enough bearings to check them against each other: after dropping any it
-    # keeps at least three (two bearings always "agree"). A fit whose steps turned singular after its
-    # weights dropped bearings has collapsed the same way (it is not a question of lines that do not meet).
-    collapsed = (verified | (ending == SINGULAR)) & (n_used < counts) & (n_used < 3)
+    # keeps at least three (two bearings always "agree"). A fit of three or more whose steps turned singular
+    # after its weights dropped bearings has collapsed the same way (not a question of lines that do not meet;
+    # with two bearings it is: they diverge).
+    collapsed = (verified | ((ending == SINGULAR) & (counts >= 3))) & (n_used < counts) & (n_used < 3)
     if spec.robust:
         ending[collapsed] = COLLAPSED
         verified = verified & ~collapsed

@@ -145,8 +145,20 @@ def find_rivals(lat, lon, theta, sd, g, counts, sol, lik, level, examine, known_
     if lik is not None:
         S_fix_min = np.where(lik.has_region & np.isfinite(lik.s_min), np.minimum(lik.s_min, S_fix_min), S_fix_min)
     T_fix = region_threshold(S_fix_min, sol.sd_known, sol.dof, level, kdof)[v_fix]
-    # The alternative's S at the fix's answer against the alternative's bound.
-    S_alt_at_fix = np.bincount(mo, alt.region_weight * r_fix[mb] ** 2, k)
+    # The alternative's S at the fix against the alternative's bound: at the centre of the fix's region (its
+    # minimum of S), which is the fix's answer for Lenth's fit but not for an inefficient one (least squares).
+    r_centre = r_fix
+    if lik is not None:
+        tried = np.zeros(m, bool)
+        tried[v_fix] = True
+        has = tried[g] & lik.has_region[g] & np.isfinite(lik.centre_x[g]) & np.isfinite(lik.centre_y[g])
+        if has.any():
+            clat, clon = geodesy.from_local(sol.lat[g[has]], sol.lon[g[has]], lik.centre_x[g[has]],
+                                            lik.centre_y[g[has]])
+            a_c, _, _ = geodesy.inverse(lat[has], lon[has], clat, clon)
+            r_centre = r_fix.copy()
+            r_centre[has] = np.radians(((theta[has] - a_c + 180.0) % 360.0) - 180.0)
+    S_alt_at_fix = np.bincount(mo, alt.region_weight * r_centre[mb] ** 2, k)
     r_alt = np.radians(alt.residual_deg)
     S_alt_min = np.bincount(mo, alt.region_weight * r_alt * r_alt, k)
     T_alt = region_threshold(S_alt_min, alt.sd_known, alt.dof, level, kdof[v_fix])
