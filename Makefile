@@ -31,6 +31,7 @@ demo: $(STAMP)
 
 test: $(STAMP)
 	$(PY) -m pytest tests notebooks --nbmake
+	$(PY) -m pytest --doctest-modules dfkit -q
 
 test-fast: $(STAMP)
 	$(PY) -m pytest tests -x -q

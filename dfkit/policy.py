@@ -32,6 +32,10 @@ POSITION_AGREEMENT_M = 50.0
 #: (common practice, no source: a GPS logging every few seconds leaves no larger gaps).
 DEFAULT_TRACK_GAP_S = 60.0
 
+#: Fastest plausible speed between two GPS track points [m/s]. Common practice, no source: faster than a light
+#: aircraft flying a telemetry survey; a point that leaps away and back faster than this is a GPS glitch.
+TRACK_MAX_SPEED_MS = 150.0
+
 #: With a known bearing SD, a fix whose residuals' chi-square (n_used - 2 degrees of freedom) has a
 #: p-value below this is flagged ``inconsistent``: the bearings disagree more than their SD allows.
 #: A conventional significance level (our choice, checked by benchmarks/coverage.py: about 1 clean fix in

@@ -1,5 +1,9 @@
 """The sheet reader and validator: bad input is reported with line, column and reason, never dropped."""
 
+import csv
+import io
+import re
+
 import numpy as np
 import pytest
 from hypothesis import HealthCheck, given, settings
@@ -7,6 +11,7 @@ from hypothesis import strategies as st
 
 import dfkit
 from dfkit import SheetError, read_bearings
+from dfkit.io.sheet import read_sheet
 
 GOOD = "fix,lat,lon,bearing\nA,47.0,15.0,45\nA,47.0,15.02,315\n"
 
@@ -209,14 +214,42 @@ def test_check_sheet_returns_dataframe_and_problems(write_sheet):
 
 
 CELL = st.one_of(st.text(alphabet=st.characters(blacklist_categories=("Cs",)), max_size=12),
+                 st.text(alphabet='#"\'=,;\t \r\n\x00ab1-', max_size=6),
                  st.floats(allow_nan=True, allow_infinity=True).map(str),
-                 st.sampled_from(["", "nan", "inf", "47,5", "1e400", "-0", "33N", "Z", "mil", "magnetic", "30S", "33T",
-                                  "33U 512300 5301200", "48°58.1'N", "N48 58 7", "15 10 30 E", "E15", "-0 30 W",
-                                  "03.10.2026 16:05", "25.10.2026 06:00", "2026-10-25T02:30:00", "2026-03-29 02:30",
-                                  "2026-05-03T06:12Z", "06:12", "46145.5", "2206-01-01T00:00Z", "5301200", "-32254",
-                                  "512300", "47.8", "15.1", "0", "90", "180", "359.9"]))
+                 st.sampled_from(["", "nan", "inf", "47,5", "1e400", "-0", "33N", "Z", "mil", "magnetic", "#B",
+                                  '"', "\x00", "30S", "33T", "33U 512300 5301200", "48°58.1'N", "N48 58 7",
+                                  "15 10 30 E", "E15", "-0 30 W", "03.10.2026 16:05", "25.10.2026 06:00",
+                                  "2026-10-25T02:30:00", "2026-03-29 02:30", "2026-05-03T06:12Z", "06:12", "46145.5",
+                                  "2206-01-01T00:00Z", "5301200", "-32254", "512300", "47.8", "15.1", "0", "90", "180",
+                                  "359.9"]))
 COLUMNS = ["fix", "tag", "time", "lat", "lon", "utm_zone", "easting", "northing", "mgrs", "bearing", "unit",
            "north", "sd", "declination", "note", "date", "station"]
+_BREAK = re.compile(r"\r\n|\r|\n")
+
+
+def _written(cols, rows, delimiter):
+    """The sheet text as Python's csv writer makes it, and for each row: (first line, text of the row)."""
+    buf = io.StringIO()
+    w = csv.writer(buf, delimiter=delimiter, lineterminator="\r\n")   # quotes any cell holding \r or \n
+    w.writerow(cols)
+    line = 1 + len(_BREAK.findall(buf.getvalue()))
+    starts = []
+    for r in rows:
+        before = buf.tell()
+        w.writerow(r[: len(cols)])
+        text = buf.getvalue()[before:]
+        starts.append((line, text))
+        line += len(_BREAK.findall(text))
+    return buf.getvalue(), starts
+
+
+def _as_read(cell):
+    """A cell as the README says it is read: line ends inside it become \\n, a guard ' before = + - @ tab CR LF
+    is removed (after leading white space), and surrounding white space is stripped."""
+    cell = _BREAK.sub("\n", cell).lstrip()
+    if re.match("^'+[=+\\-@\t\r\n]", cell):
+        cell = cell[1:]
+    return cell.strip()
 
 
 @settings(max_examples=300, deadline=None, suppress_health_check=[HealthCheck.function_scoped_fixture])
@@ -228,31 +261,194 @@ COLUMNS = ["fix", "tag", "time", "lat", "lon", "utm_zone", "easting", "northing"
                                                    "date_format": st.sampled_from(["dmy", "mdy"]),
                                                    "repeated_hour": st.sampled_from(["earlier", "later"])}))
 def test_reader_never_crashes_and_nothing_vanishes(tmp_path, cols, rows, delimiter, options):
-    import csv
-    import io
-
-    buf = io.StringIO()
-    w = csv.writer(buf, delimiter=delimiter, lineterminator="\n")
-    w.writerow(cols)
-    for r in rows:
-        w.writerow(r[: len(cols)])
+    # The model of the format (README, "The bearing sheet"): a row written by Python's csv module is a comment
+    # when its text starts with '#', blank when every cell is white space, and otherwise data; data rows are
+    # used, or rejected with a problem on the line where they start. Nothing else may happen to a row.
+    if len(cols) == 1:
+        delimiter = ","     # a one-column header shows no delimiter; the reader then takes the comma
+    text, starts = _written(cols, rows, delimiter)
     p = tmp_path / "fuzz.csv"
-    p.write_text(buf.getvalue(), encoding="utf-8")
+    p.write_text(text, encoding="utf-8")
     try:
+        raw = read_sheet(p)
         b = read_bearings(p, **options)
-    except SheetError:
+    except SheetError as err:
+        assert str(err).startswith(str(p)), err     # one message naming the file (exit 2 in the CLI)
         return
+    table_lines = raw.table["line"].tolist()
+    refused = {pr.line for pr in raw.problems if pr.severity == "error"}
+    assert len(table_lines) == len(set(table_lines))
+    for (line, row_text), cells in zip(starts, rows):
+        cells = cells[: len(cols)]
+        if row_text.startswith("#"):
+            assert line in raw.comment_lines, (line, row_text)
+        elif "\x00" in row_text:
+            assert line in table_lines and line in refused, (line, row_text)
+        elif all(not _as_read(c) for c in cells):
+            assert line in raw.blank_lines, (line, row_text)
+        else:
+            assert line in table_lines, (line, row_text)
+            if line not in refused:
+                got = raw.table.loc[raw.table["line"] == line, raw.columns[0]].iloc[0]
+                assert got == _as_read(cells[0])
     used = set(b.table["line"].tolist())
-    rejected = {pr.line for pr in b.problems if pr.severity == "error"}
-    data_lines = set(range(2, 2 + len(rows)))
-    blank = {i + 2 for i, r in enumerate(rows) if all(not c.strip() for c in r[: len(cols)])
-             or r[0].lstrip().startswith("#")}
+    rejected = {pr.line for pr in b.problems if pr.severity == "error" and pr.source == b.source}
     assert used.isdisjoint(rejected)
-    assert data_lines - blank <= used | rejected | _shifted(rows, cols)
+    assert set(table_lines) == used | rejected
     assert np.isfinite(b.table["true_bearing"]).all()
     assert ((b.table["true_bearing"] >= 0) & (b.table["true_bearing"] < 360)).all()
 
 
-def _shifted(rows, cols):
-    # Quoted newlines inside cells move later rows down; the reader's own numbering is then authoritative.
-    return set(range(2, 2 + 3 * len(rows))) if any("\n" in c or "\r" in c for r in rows for c in r) else set()
+@settings(max_examples=200, deadline=None)
+@given(data=st.binary(max_size=400))
+def test_any_bytes_are_read_or_refused_with_a_message(data):
+    # Whatever the bytes, the reader returns rows or raises SheetError (exit 2 with one message): nothing else.
+    try:
+        raw = read_sheet(data, name="bytes.csv")
+        b = read_bearings(raw)
+    except SheetError as err:
+        assert str(err)
+        return
+    lines = raw.table["line"].tolist()
+    assert lines == sorted(set(lines))
+    assert set(b.table["line"]) <= set(lines)
+
+
+# --------------------------------------------------------------------------- nothing lost, nothing swallowed
+
+def test_only_unquoted_lines_starting_with_hash_are_comments(write_sheet):
+    raw = read_sheet(write_sheet('# field sheet\nfix,lat,lon,bearing,note\n"#B",47,15,45,x\n#C,47,15,45,y\n'
+                                 "A,47,15.02,315,#2 antenna\n  # indented,47,15,45,\n"))
+    assert raw.comment_lines == [1, 4]
+    assert raw.table["line"].tolist() == [3, 5, 6]
+    assert raw.table["fix"].tolist() == ["#B", "A", "# indented"]
+    assert raw.table["note"].tolist()[1] == "#2 antenna"
+    notes = [p.message for p in raw.problems if p.severity == "note"]
+    assert any("2 comment lines (lines 1, 4)" in m for m in notes), notes
+    # The skipped line 4 has as many fields as the header: the user is told how to keep it as a row.
+    assert any(p.line == 4 and "quote its first cell" in p.message for p in raw.problems)
+
+
+def test_blank_lines_are_listed(write_sheet):
+    raw = read_sheet(write_sheet("fix,lat,lon,bearing\n\nA,47,15,45\n,,,\n   \nA,47,15.02,315\n"))
+    assert raw.blank_lines == [2, 4, 5]
+    assert raw.table["line"].tolist() == [3, 6]
+
+
+@pytest.mark.parametrize("tail", ["", 'A,47.01,15.03,200,closed later"\n'])
+def test_unbalanced_quote_is_reported_where_it_opens_and_swallows_nothing(write_sheet, tail):
+    text = ('fix,lat,lon,bearing,note\nA,47,15,45,"open quote\nA,47,15.02,315,ok\nB,47.01,15.01,200,fine\n' + tail)
+    b = read_bearings(write_sheet(text))
+    (line, col, msg), = errors(b)
+    assert line == 2 and "quote" in msg
+    expect = [3, 4, 5] if tail else [3, 4]
+    assert b.table["line"].tolist() == expect
+    assert "A" in b.labels and "B" in b.labels
+
+
+def test_a_real_multi_line_note_is_one_row(write_sheet):
+    b = read_bearings(write_sheet('fix,lat,lon,bearing,note\nA,47,15,45,"first line\nsecond, line"\n'
+                                  "A,47,15.02,315,\n"))
+    assert errors(b) == [] and b.table["line"].tolist() == [2, 4]
+    assert b.table["note"][0] == "first line\nsecond, line"
+
+
+def test_one_windows_1252_line_falls_back_alone(write_sheet):
+    utf8 = "fix,lat,lon,bearing,note\nA,47,15,45,Böschung\n".encode()
+    cp = "A,47,15.02,315,Böschung\n".encode("cp1252")
+    b = read_bearings(write_sheet(utf8 + cp + "A,47.01,15.01,200,Straße\n".encode()))
+    assert b.table["note"].tolist() == ["Böschung", "Böschung", "Straße"]
+    warned = [p for p in b.problems if "Windows-1252" in p.message]
+    assert [p.line for p in warned] == [3]
+
+
+@pytest.mark.parametrize("encoding", ["utf-16", "utf-16-be", "utf-16-le"])
+def test_utf16_sheets(write_sheet, encoding):
+    text = "fix,lat,lon,bearing,note\nA,47,15,45,Böschung\nA,47,15.02,315,\n"
+    data = text.encode(encoding)
+    if encoding == "utf-16-be":
+        data = b"\xfe\xff" + data
+    b = read_bearings(write_sheet(data))
+    assert errors(b) == [] and b.table["note"][0] == "Böschung"
+
+
+def test_a_row_of_only_nul_bytes_is_rejected_not_dropped(write_sheet):
+    b = read_bearings(write_sheet(b"fix,lat,lon,bearing\nA,47,15,45\n\x00\nA,47,15.02,315\n\x00\x00B,47,15,9\x00\n"))
+    nul = [(line, col) for line, col, msg in errors(b) if "NUL" in msg]
+    assert nul == [(3, ""), (5, "")]
+    assert {line for line, _, _ in errors(b)} == {3, 5}
+    assert b.table["line"].tolist() == [2, 4]
+    assert "B" in b.labels          # the damaged row's label still reaches the output
+
+
+@pytest.mark.parametrize("content, match", [
+    (b"\x00" * 5000, "NUL bytes"),
+    (bytes(range(256)) * 4, "not look like a text sheet"),
+    (b"PK\x03\x04" + b"\x00" * 40, "workbook"),
+    (b"fix,lat,lon,bearing,\"" + b"n" * 200_000 + b"\"\nA,47,15,45,x\n", "header has a field longer"),
+    (("fix,lat,lon,bearing," + ",".join(f"c{i}" for i in range(2000)) + "\n").encode(), "at most 1000"),
+])
+def test_limits_are_one_message(write_sheet, content, match):
+    with pytest.raises(SheetError, match=match):
+        read_sheet(write_sheet(content))
+
+
+@pytest.mark.parametrize("quote", ['"', ""])
+def test_huge_cell_rejects_its_row_only(write_sheet, quote):
+    big = quote + "x" * 200_000 + quote
+    b = read_bearings(write_sheet(f"fix,lat,lon,bearing,note\nA,47,15,45,{big}\nA,47,15.02,315,\nA,47.01,15.01,200,\n"))
+    (line, col, msg), = errors(b)
+    assert line == 2 and "longer than 131072" in msg
+    assert b.table["line"].tolist() == [3, 4]
+
+
+def test_header_of_many_empty_columns_is_cut_not_crawled(write_sheet):
+    # 50,000 empty names after four real ones (this took minutes when each column was handled one by one).
+    raw = read_sheet(write_sheet("fix,lat,lon,bearing" + "," * 50_000 + "\nA,47,15,45\nA,47,15.02,315\n"))
+    assert raw.columns == ["fix", "lat", "lon", "bearing"] and len(raw.table) == 2
+    assert any("empty column names" in p.message for p in raw.problems)
+
+
+def test_unnamed_empty_columns_are_dropped_with_a_note(write_sheet):
+    raw = read_sheet(write_sheet("fix,lat,lon,bearing,,\nA,47,15,45,,\nA,47,15.02,315,,\n"))
+    assert raw.columns == ["fix", "lat", "lon", "bearing"]
+    assert any("no name and no values" in p.message for p in raw.problems)
+
+
+def test_many_repeated_column_names_get_distinct_names(write_sheet):
+    raw = read_sheet(write_sheet("fix,lat,lon,bearing," + ",".join(["x"] * 500) + "\nA,47,15,45\n"))
+    assert len(set(raw.columns)) == len(raw.columns) == 504
+
+
+def test_guarded_cells_are_read_as_they_were(write_sheet):
+    # OWASP CSV-injection guard: a leading ' before = + - @ tab CR; one ' is removed when read back.
+    raw = read_sheet(write_sheet("fix,lat,lon,bearing,note,'=col\n'=A,47,15,45,''-x,1\n'@B,47,15.02,315,'x,2\n"))
+    assert raw.table["fix"].tolist() == ["=A", "@B"]
+    assert raw.table["note"].tolist() == ["'-x", "'x"]
+    assert "=col" in raw.columns
+
+
+NOTE_TEXT = st.text(alphabet="abcäöüßéèñ ABC-.", max_size=8)
+
+
+@settings(max_examples=100, deadline=None)
+@given(lines=st.lists(st.tuples(NOTE_TEXT, st.booleans(), st.sampled_from(["\n", "\r\n", "\r"])), min_size=1,
+                      max_size=12))
+def test_each_line_is_decoded_on_its_own(lines):
+    # Python's own codecs are the reference: a line is read as UTF-8 when its bytes are valid UTF-8, otherwise
+    # as Windows-1252; exactly the lines that fell back are named.
+    data = b"fix,note\n"
+    expect, fallback = [], []
+    for k, (note, as_1252, end) in enumerate(lines, start=2):
+        raw = f"A{k},{note}".encode("cp1252" if as_1252 else "utf-8")
+        data += raw + end.encode()
+        try:
+            expect.append(raw.decode("utf-8").split(",", 1)[1].strip())
+        except UnicodeDecodeError:
+            expect.append(raw.decode("cp1252").split(",", 1)[1].strip())
+            fallback.append(k)
+    raw = read_sheet(data, name="mixed.csv")
+    assert raw.table["line"].tolist() == list(range(2, 2 + len(lines)))
+    assert raw.table["note"].tolist() == expect
+    named = sorted(p.line for p in raw.problems if "Windows-1252" in p.message)
+    assert named == (fallback if len(fallback) <= 20 else fallback[:1])

@@ -5,7 +5,8 @@ from __future__ import annotations
 import sys
 
 from dfkit.cautions import CAUTION_LINE
-from dfkit.cli.common import add_read_options, ensure_dir, read_kwargs, report_problems
+from dfkit.cli.common import add_read_options, ensure_dir, read_kwargs, refuse_unsafe_outputs, report_problems
+from dfkit.export.atomic import save_figure
 
 
 
@@ -103,7 +104,7 @@ def write_calibration_figures(cal, folder) -> list[str]:
     for name, groups in jobs:
         fig = calibration_figure(cal, groups)
         path = os.path.join(folder, name)
-        fig.savefig(path, dpi=120, bbox_inches="tight")
+        save_figure(fig, path, dpi=120, bbox_inches="tight")
         import matplotlib.pyplot as plt   # already imported by the figure; closing frees its memory
 
         plt.close(fig)
@@ -121,6 +122,7 @@ def run(a) -> int:
         print(f"dfkit: --figures {a.figures}: not a folder (figures are written into a folder)",
               file=sys.stderr)
         return 2
+    refuse_unsafe_outputs(a, [("-o", a.output), ("--trials-out", a.trials_out), ("--check-out", a.check_out)])
     if not 0 < a.level < 1:
         print(f"dfkit: --level {a.level} must be a probability between 0 and 1 (e.g. 0.95)", file=sys.stderr)
         return 2

@@ -4,7 +4,8 @@ from __future__ import annotations
 
 import sys
 
-from dfkit.cli.common import add_read_options, ensure_dir, exit_status, read_kwargs, report_problems
+from dfkit.cli.common import (add_output_options, add_read_options, ensure_dir, exit_status, read_kwargs,
+                              refuse_unsafe_outputs, rejected_summary, report_problems)
 
 
 def add_parser(sub):
@@ -12,6 +13,7 @@ def add_parser(sub):
     c.add_argument("sheet")
     c.add_argument("-o", "--output", default=None, help="write the normalized table (CSV)")
     add_read_options(c)
+    add_output_options(c)
     return c
 
 
@@ -19,15 +21,16 @@ def run(a) -> int:
     from dfkit.export import write_table
     from dfkit.observations import read_bearings
 
+    refuse_unsafe_outputs(a, [("-o", a.output)])
     b = read_bearings(a.sheet, **read_kwargs(a))
     report_problems(b.problems, sys.stdout)
     for note in b.notes:
         print(f"note      {note}")
     n_fix = b.table["fix"].nunique() if len(b.table) else 0
-    print(f"{b.source}: {b.n_rows} rows, {len(b.table)} usable, {b.n_rejected} rejected; "
-          f"{n_fix} {'fix' if n_fix == 1 else 'fixes'} ({len(b.labels)} labels in the sheet)")
+    print(f"{b.source}: {b.n_rows} rows, {len(b.table)} usable, {rejected_summary(b)}; "
+          f"{n_fix} {'fix' if n_fix == 1 else 'fixes'} ({len(b.labels)} {'label' if len(b.labels) == 1 else 'labels'} in the sheet)")
     if a.output:
         ensure_dir(a.output)
-        write_table(b.table, a.output)
+        write_table(b.table, a.output, guard_formulas=not a.verbatim_csv)
         print(f"wrote {a.output}")
     return exit_status(b)

@@ -77,12 +77,63 @@ def read_kwargs(a) -> dict:
 
 
 def report_problems(problems, out) -> None:
-    errs = [p for p in problems if p.severity == "error"]
-    warns = [p for p in problems if p.severity != "error"]
-    for p in errs:
-        print(f"rejected  {p}", file=out)
-    for p in warns:
-        print(f"warning   {p}", file=out)
+    label = {"error": "rejected", "warning": "warning", "note": "note"}
+    for sev in ("error", "warning", "note"):
+        for p in problems:
+            if p.severity == sev or (sev == "warning" and p.severity not in label):
+                print(f"{label[sev]:<9} {str(p).removesuffix(f' [{p.severity}]')}", file=out)
+
+
+def add_output_options(p: argparse.ArgumentParser) -> None:
+    """Options of commands that write CSV tables."""
+    p.add_argument("--verbatim-csv", action="store_true",
+                   help="write CSV text cells exactly as they are; by default a cell starting with =, +, -, @, tab "
+                        "or CR (other than a plain number) gets a leading ' so spreadsheets do not run it as a "
+                        "formula")
+
+
+#: Command-line arguments that name files read (attribute, how messages call it).
+_INPUTS = (("sheet", "the sheet"), ("sheets", "a sheet"), ("trials", "the trials sheet"), ("source", "the input"),
+           ("store", "the season file"), ("stations", "the stations file"), ("track", "the GPS track"),
+           ("calibration", "the calibration file"), ("spots", "the spots file"))
+
+
+def refuse_unsafe_outputs(a, outputs) -> None:
+    """Refuse (``ValueError``, exit 2) before any work an output that would overwrite an input or another output.
+
+    ``outputs`` is a list of (option, path). An output is the same file as an input (the sheet, trials, fixes or
+    season file, ``--stations``, ``--track``, ``--calibration``, ``--spots``) when :func:`os.path.samefile` says
+    so: this catches ``./sheet.csv``, symbolic links and hard links. An output that is a folder is refused too.
+    """
+    inputs = []
+    for attr, what in _INPUTS:
+        value = getattr(a, attr, None)
+        for path in value if isinstance(value, (list, tuple)) else [value]:
+            if path and os.path.exists(path):
+                inputs.append((what, path))
+    seen: list[tuple[str, str]] = []
+    for option, path in outputs:
+        if not path:
+            continue
+        if os.path.isdir(path):
+            raise ValueError(f"{option} '{path}' is a folder; give a file name")
+        if os.path.exists(path):
+            for what, src in inputs:
+                if _same_file(path, src):
+                    raise ValueError(f"{option} '{path}' is {what} '{src}'; dfkit never overwrites its input. "
+                                     "Choose another output name.")
+        for other_option, other in seen:
+            if os.path.realpath(path) == os.path.realpath(other) or _same_file(path, other):
+                raise ValueError(f"{option} '{path}' and {other_option} '{other}' are the same file; give each "
+                                 "output its own name")
+        seen.append((option, path))
+
+
+def _same_file(a, b) -> bool:
+    try:
+        return os.path.samefile(a, b)
+    except OSError:
+        return False
 
 
 def ensure_dir(path) -> None:
@@ -139,8 +190,20 @@ def print_summary(b, fixes) -> None:
               "--calibration", file=sys.stderr)
     nf = len(fixes.table)
     print(f"{b.source}: {nf} {'fix' if nf == 1 else 'fixes'}: {s['ok']} ok, {s['flagged']} flagged, "
-          f"{s['failed']} failed; {len(b.table)} of {b.n_rows} rows used, {b.n_rejected} rejected", file=sys.stderr)
+          f"{s['failed']} failed; {len(b.table)} of {b.n_rows} rows used, {rejected_summary(b)}", file=sys.stderr)
     print(CAUTION_LINE, file=sys.stderr)
+
+
+def rejected_summary(b) -> str:
+    """'2 rejected' for the sheet, plus what was rejected in the other inputs (stations file, GPS track)."""
+    by_source: dict[str, set] = {}
+    for p in b.problems:
+        if p.severity == "error" and p.line:
+            by_source.setdefault(p.source, set()).add(p.line)
+    text = f"{len(by_source.pop(b.source, ()))} rejected"
+    for source, lines in by_source.items():
+        text += f"; {len(lines)} {'entry' if len(lines) == 1 else 'entries'} rejected in {source}"
+    return text
 
 
 def exit_status(b, fixes=None) -> int:

@@ -4,7 +4,8 @@ from __future__ import annotations
 
 import sys
 
-from dfkit.cli.common import add_fix_options, add_read_options, ensure_dir, exit_status, print_summary, solve
+from dfkit.cli.common import (add_fix_options, add_output_options, add_read_options, ensure_dir, exit_status,
+                              print_summary, refuse_unsafe_outputs, solve)
 from dfkit.cli.map import add_figures_option, write_figures
 
 
@@ -26,6 +27,7 @@ def add_parser(sub):
     add_figures_option(o)
     add_read_options(f)
     add_fix_options(f)
+    add_output_options(f)
     return f
 
 
@@ -36,6 +38,7 @@ def run(a) -> int:
         if output_kind(path) is None:
             print(f"dfkit: cannot write '{path}': use one of {', '.join(sorted(WRITERS))}", file=sys.stderr)
             return 2
+    refuse_unsafe_outputs(a, [("-o", p) for p in a.output] + [("--bearings-out", a.bearings_out)])
     if a.gpx_name_length is not None and a.gpx_name_length < 3:
         print(f"dfkit: --gpx-name-length {a.gpx_name_length}: must be at least 3", file=sys.stderr)
         return 2
@@ -48,7 +51,7 @@ def run(a) -> int:
             print(f"dfkit: --gpx-tz {a.gpx_tz!r} is not a time zone name (e.g. Europe/Vienna)", file=sys.stderr)
             return 2
     opts = WriteOptions(utm=a.utm, gpx_name_length=a.gpx_name_length, gpx_tz=a.gpx_tz,
-                        error_polygons=a.error_polygons)
+                        error_polygons=a.error_polygons, guard_formulas=not a.verbatim_csv)
     b, fixes, progress = solve(a)
     for path in a.output:
         progress(f"writing {path}")
@@ -59,7 +62,7 @@ def run(a) -> int:
             print(f"warning   {p}", file=sys.stderr)
     if a.bearings_out:
         ensure_dir(a.bearings_out)
-        write_table(fixes.bearings, a.bearings_out)
+        write_table(fixes.bearings, a.bearings_out, guard_formulas=not a.verbatim_csv)
     if not a.output:
         cols = ["fix", "lat", "lon", "n_bearings", "semi_major_m", "semi_minor_m", "status"]
         print(fixes.table[cols].to_string(index=False, float_format=lambda v: f"{v:.6g}"))

@@ -9,7 +9,9 @@ import os
 import re
 import sys
 
-from dfkit.cli.common import add_fix_options, add_read_options, ensure_dir, exit_status, print_summary, solve
+from dfkit.cli.common import (add_fix_options, add_read_options, ensure_dir, exit_status, print_summary,
+                              refuse_unsafe_outputs, solve)
+from dfkit.export.atomic import save_figure
 
 
 def add_figures_option(p) -> None:
@@ -67,7 +69,7 @@ def write_figures(fixes, folder, progress=None) -> list[str]:
                     source=fixes.source)
         try:
             fig = fix_plot(one, t["fix"].iat[i])
-            fig.savefig(os.path.join(folder, _safe_name(i, label)), dpi=110)
+            save_figure(fig, os.path.join(folder, _safe_name(i, label)), dpi=110)
             import matplotlib.pyplot as plt
 
             plt.close(fig)
@@ -85,6 +87,7 @@ def run(a) -> int:
     if not a.tiles_budget > 0:
         print(f"dfkit: --tiles-budget {a.tiles_budget}: must be a positive number of megabytes", file=sys.stderr)
         return 2
+    refuse_unsafe_outputs(a, [("-o", a.output)])
     b, fixes, progress = solve(a)
     progress("building the map")
     m = fix_map(fixes, error_polygons=a.error_polygons, title=a.title or os.path.basename(a.sheet), tiles=a.tiles,

@@ -5,7 +5,8 @@ from __future__ import annotations
 import os
 import sys
 
-from dfkit.cli.common import add_fix_options, add_read_options, ensure_dir, read_kwargs, report_problems
+from dfkit.cli.common import (add_fix_options, add_read_options, ensure_dir, read_kwargs, refuse_unsafe_outputs,
+                              report_problems)
 from dfkit.policy import DEFAULT_MAX_RANGE_M
 
 #: Output kinds of a plan, by extension.
@@ -85,6 +86,7 @@ def run(a) -> int:
         if os.path.splitext(path)[1].lower() not in OUTPUTS:
             print(f"dfkit: cannot write '{path}': use one of {', '.join(OUTPUTS)}", file=sys.stderr)
             return 2
+    refuse_unsafe_outputs(a, [("-o", p) for p in a.output])
     if a.step is not None and a.around is None:
         print("dfkit: --step is the spacing of a grid: give --around with it", file=sys.stderr)
         return 2

@@ -6,7 +6,7 @@ import os
 import sys
 
 from dfkit.cautions import CAUTION_LINE
-from dfkit.cli.common import ensure_dir, report_problems
+from dfkit.cli.common import ensure_dir, refuse_unsafe_outputs, report_problems
 from dfkit.cli.filters import add_filter_options, filter_from_args
 
 
@@ -46,6 +46,7 @@ def run(a) -> int:
         if os.path.splitext(path)[1].lower() not in RANGE_KINDS:
             print(f"dfkit: cannot write '{path}': use one of {', '.join(RANGE_KINDS)}", file=sys.stderr)
             return 2
+    refuse_unsafe_outputs(a, [("-o", p) for p in a.output])
     levels = _levels(a.levels)
     for lv in levels:
         if not (0 < lv < 1 or (lv == 1 and a.method == "mcp")):

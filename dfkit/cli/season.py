@@ -8,7 +8,7 @@ import sys
 import time
 
 from dfkit.cautions import CAUTION_LINE
-from dfkit.cli.common import add_fix_options, add_read_options, read_kwargs, report_problems
+from dfkit.cli.common import add_fix_options, add_read_options, read_kwargs, refuse_unsafe_outputs, report_problems
 from dfkit.cli.filters import add_filter_options, filter_from_args
 
 #: What ``season show -o`` can write, by extension.
@@ -100,6 +100,7 @@ def _run_show(a) -> int:
         if os.path.splitext(path)[1].lower() not in SHOW_KINDS:
             print(f"dfkit: cannot write '{path}': use one of {', '.join(SHOW_KINDS)}", file=sys.stderr)
             return 2
+    refuse_unsafe_outputs(a, [("-o", p) for p in a.output])
     flt = filter_from_args(a)
     with SeasonStore.open(a.store) as store:
         table = store.fixes(flt)

@@ -33,12 +33,15 @@ class WriteOptions:
         GPX: write times in this IANA time zone (``Europe/Vienna``) instead of UTC.
     error_polygons : bool
         GeoJSON and GIS files: also write the +/-1 SD error polygons (no probability meaning).
+    guard_formulas : bool
+        CSV: prefix ``'`` to text cells a spreadsheet would run as formulas (see :mod:`dfkit.export.csv`).
     """
 
     utm: bool = False
     gpx_name_length: int | None = None
     gpx_tz: str | None = None
     error_polygons: bool = False
+    guard_formulas: bool = True
 
 
 def with_utm(table: pd.DataFrame) -> pd.DataFrame:
@@ -67,7 +70,7 @@ def with_utm(table: pd.DataFrame) -> pd.DataFrame:
 
 def _write_csv(fixes: Fixes, path, options=None) -> None:
     table = with_utm(fixes.table) if getattr(options, "utm", False) else fixes.table
-    write_table(table, path)
+    write_table(table, path, guard_formulas=getattr(options, "guard_formulas", True))
 
 
 def _gis(name):

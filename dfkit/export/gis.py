@@ -23,16 +23,15 @@ target and renamed into place, so a failed run leaves no partial file under the 
 
 from __future__ import annotations
 
-import contextlib
 import html
 import os
-import tempfile
 
 import numpy as np
 import pandas as pd
 
 from dfkit.cautions import CAUTION
 from dfkit.export import shapes
+from dfkit.export.atomic import atomic_path
 from dfkit.export.gpx import xml_text
 from dfkit.geometry import split_line, split_ring
 from dfkit.locate import Fixes
@@ -118,33 +117,12 @@ def _plain(gdf):
     return gdf
 
 
-@contextlib.contextmanager
-def _atomic_path(path):
-    """A temporary path beside ``path`` (same extension, so GDAL picks the same driver); renamed on success."""
-    path = os.fspath(path)
-    folder = os.path.dirname(os.path.abspath(path))
-    os.makedirs(folder, exist_ok=True)
-    base, ext = os.path.splitext(os.path.basename(path))
-    fd, tmp = tempfile.mkstemp(prefix=f".{base}.", suffix=f".part{ext}", dir=folder)
-    os.close(fd)
-    os.unlink(tmp)        # GDAL creates the file itself
-    try:
-        yield tmp
-        with open(tmp, "rb+") as fh:
-            os.fsync(fh.fileno())
-        os.replace(tmp, path)
-    except BaseException:
-        with contextlib.suppress(OSError):
-            os.unlink(tmp)
-        raise
-
-
 def write_gpkg(fixes: Fixes, path, options=None) -> None:
     """A GeoPackage with layers ``fixes``, ``regions``, ``bearings``, ``stations`` (and ``error_polygons``)."""
     import pyogrio
 
     lay = layers(fixes, error_polygons=bool(getattr(options, "error_polygons", False)))
-    with _atomic_path(path) as tmp:
+    with atomic_path(path) as tmp:
         for name, gdf in lay.items():
             pyogrio.write_dataframe(_plain(gdf), tmp, layer=name, driver="GPKG", promote_to_multi=name != "fixes"
                                     and name != "stations", layer_options={"DESCRIPTION": CAUTION})
@@ -173,7 +151,7 @@ def write_kml(fixes: Fixes, path, options=None) -> None:
 
     lay = layers(fixes, error_polygons=bool(getattr(options, "error_polygons", False)))
     t = fixes.table
-    with _atomic_path(path) as tmp:
+    with atomic_path(path) as tmp:
         for name, gdf in lay.items():
             gdf = _plain(gdf)
             for c in gdf.columns:
@@ -197,7 +175,7 @@ def write_fgb(fixes: Fixes, path, options=None) -> None:
     stem = os.path.splitext(os.fspath(path))[0]
     for name, gdf in lay.items():
         target = path if name == "fixes" else f"{stem}.{name}.fgb"
-        with _atomic_path(target) as tmp:
+        with atomic_path(target) as tmp:
             # FlatGeobuf's spatial index cannot hold null geometries (failed fixes): leave it out then
             nulls = bool(gdf.geometry.isna().any())
             pyogrio.write_dataframe(_plain(gdf), tmp, layer=name, driver="FlatGeobuf",

@@ -10,13 +10,12 @@ column and reason; rows of failed fixes (no position) are kept as they are.
 
 from __future__ import annotations
 
-import csv
-import os
 from dataclasses import dataclass, field
 
 import numpy as np
 import pandas as pd
 
+from dfkit.io.sheet import read_sheet
 from dfkit.problems import Problem, SheetError
 
 #: Fix statuses that come with a position (as :data:`dfkit.locate.WITH_POSITION`; io reads, locate decides).
@@ -49,34 +48,17 @@ def read_fix_table(path) -> FixTable:
     SheetError
         The file cannot be read, or has no ``lat``/``lon`` columns.
     """
-    name = os.fspath(path)
-    problems: list[Problem] = []
-    try:
-        with open(path, encoding="utf-8-sig", newline="") as fh:
-            lines, rows, header = [], [], None
-            reader = csv.reader(fh)
-            for row in reader:
-                if not row or all(not c.strip() for c in row) or row[0].lstrip().startswith("#"):
-                    continue
-                if header is None:
-                    header = [c.strip().lower() for c in row]
-                    continue
-                lines.append(reader.line_num)
-                rows.append([c.strip() for c in row[:len(header)]] + [""] * (len(header) - len(row)))
-                if len(row) > len(header) and any(c.strip() for c in row[len(header):]):
-                    problems.append(Problem(reader.line_num, "", f"the row has {len(row)} fields but the header "
-                                            f"has {len(header)}", "error", name))
-    except (OSError, UnicodeDecodeError, csv.Error) as err:
-        raise SheetError(f"{name}: cannot read the fix table ({err})") from None
-    if header is None:
-        raise SheetError(f"{name} is empty: expected a header row with lat and lon")
+    # The sheet reader gives line numbers, comments, quoted cells, encodings and formula guards as for bearings.
+    raw = read_sheet(path, own_results="keep")
+    name = raw.source
+    problems: list[Problem] = list(raw.problems)
+    header = raw.columns
     missing = [c for c in ("lat", "lon") if c not in header]
     if missing:
         raise SheetError(f"{name}: no {' or '.join(missing)} column: a fix table needs lat and lon (WGS84 degrees)")
-    out = pd.DataFrame(rows, columns=header, dtype=object) if rows else pd.DataFrame(columns=header, dtype=object)
-    out.insert(0, "line", np.asarray(lines, dtype=np.int64))
+    out = raw.table.copy()
     t = out
-    bad = out["line"].isin({p.line for p in problems}).to_numpy().copy()
+    bad = out["line"].isin({p.line for p in problems if p.severity == "error"}).to_numpy().copy()
     if "status" not in header:
         out["status"] = "ok"
         problems.append(Problem(1, "status", "no status column: every row with a position is taken as an ok fix",

@@ -5,13 +5,30 @@ about what the values mean; :mod:`dfkit.observations` validates and converts.
 
 The format (documented in the README, "The bearing sheet"):
 
-* UTF-8 (a byte-order mark is fine), one header row, one row per bearing;
-* comma-, semicolon- or tab-separated (detected from the header line); in a
-  semicolon- or tab-separated sheet numbers may use a decimal comma;
-* blank lines and lines starting with ``#`` are skipped (and counted);
+* UTF-8 (a byte-order mark is fine); UTF-16 with a byte-order mark; a line that
+  is not UTF-8 is read alone as Windows-1252, with a warning naming it;
+* one header row, one row per bearing; comma-, semicolon- or tab-separated
+  (detected from the header line); in a semicolon- or tab-separated sheet
+  numbers may use a decimal comma;
+* a comment is a line whose very first character is ``#``; it is skipped, as are
+  blank lines, and both are listed by line number in a note. A quoted cell is
+  always data (``"#B"`` is a fix label);
+* a quote that is never closed, or that swallows lines which look like rows of
+  their own, is reported on the line where it opened; that row is not used and
+  the following lines are read as rows;
 * column names are case-insensitive; a few common spellings are accepted and
-  reported (``latitude`` is read as ``lat``);
-* columns dfkit does not know are kept and carried to the outputs.
+  reported (``latitude`` is read as ``lat``); columns dfkit does not know are
+  kept and carried to the outputs; dfkit's own result columns (``true_bearing``,
+  ``fix_id``...) are recomputed, not read;
+* a cell that dfkit's CSV writer guarded against spreadsheet formulas (``'=A1``)
+  is read back as it was (``=A1``).
+
+Limits (errors, never tracebacks): a cell longer than :data:`MAX_CELL_CHARS`
+rejects its row; a header naming more than :data:`MAX_COLUMNS` columns, a file
+that is not text, or a file holding nothing but NUL bytes cannot be read
+(:class:`~dfkit.problems.SheetError`). A line holding NUL bytes (a damaged
+file) rejects its row. The common case (no quotes, UTF-8) is read by pandas'
+C parser; the careful row-by-row path runs only where it is needed.
 """
 
 from __future__ import annotations
@@ -44,7 +61,33 @@ COLUMN_ALIASES = {
     "frequency": "tag", "freq": "tag", "tag_id": "tag",
 }
 
+#: Columns dfkit computes and writes into its own tables (``check -o``, ``--bearings-out``). When such a table is
+#: read back they are recomputed from the sheet's own columns, so the copies in the file are not read (a note
+#: says so). ``line`` is kept as ``line_in_sheet`` (the line of the original field sheet) unless that exists.
+DERIVED_COLUMNS = (
+    "fix_id", "true_bearing", "sd_source", "convergence", "position_from", "grouped_by", "declination_sd",
+    "residual_deg", "weight", "range_m",
+)
+
+#: Longest cell read [characters]: Python's csv module's default field limit, kept so that dfkit never changes
+#: that module's global setting. A row with a longer cell is rejected (a stray quote usually causes it).
+MAX_CELL_CHARS = 131_072
+
+#: Most named columns a sheet may have (a limit of ours, no source: a bearing sheet has a few dozen). Empty
+#: column names at the end of a wider header (a spreadsheet's export artefact) are dropped first.
+MAX_COLUMNS = 1000
+
+#: Lines listed by number in one note before the rest are only counted.
+_LIST_LINES = 40
+
 _DELIMITERS = (",", ";", "\t")
+_OWN = "\x00own_result_"     # reserved column name prefix for dfkit's own result columns (never read)
+_LINE_END = re.compile(r"\r\n|\r|\n")
+_SURROGATE = re.compile("[\udc80-\udcff]")
+# Control characters that do not occur in a text sheet (NUL is handled per line, not counted here); with
+# invalid UTF-8 they mark a binary file.
+_BINARY = re.compile("[\x01-\x08\x0b\x0c\x0e-\x1f\x7f\ufffd]")
+_GUARDED = re.compile("^'+[=+\\-@\t\r\n]")
 
 
 @dataclass
@@ -52,8 +95,9 @@ class RawSheet:
     """A sheet as text cells.
 
     ``table`` has one row per data row, a ``line`` column (physical line number in
-    the file, header = 1) and one column per header name (canonical names for known
-    columns), every cell a stripped string ('' when empty).
+    the file, header = 1, where the row starts) and one column per header name
+    (canonical names for known columns), every cell a stripped string ('' when
+    empty). ``comment_lines`` and ``blank_lines`` list the skipped lines by number.
     """
 
     table: pd.DataFrame
@@ -63,22 +107,100 @@ class RawSheet:
     problems: list[Problem] = field(default_factory=list)
     skipped_lines: int = 0
     source: str = ""
+    comment_lines: list[int] = field(default_factory=list)
+    blank_lines: list[int] = field(default_factory=list)
 
+    def __post_init__(self):
+        own = [c for c in self.table.columns if str(c).startswith(_OWN)]
+        if own:   # dfkit's own result columns, recomputed from the sheet (a note says so)
+            self.table = self.table.drop(columns=own)
+            self.columns = [c for c in self.columns if not str(c).startswith(_OWN)]
+
+
+# --------------------------------------------------------------------------- bytes -> text
 
 def _decode(data: bytes, source: str, problems: list[Problem]) -> str:
-    if b"\x00" in data[:4096] and (data.startswith(b"\xff\xfe") or data.startswith(b"\xfe\xff")):
+    """Bytes to text: BOM-declared UTF-16 or UTF-8; a line that is not UTF-8 is read alone as Windows-1252."""
+    label = source or "the sheet"
+    if data.startswith(b"PK\x03\x04"):
+        raise SheetError(f"{label} is a ZIP archive (an .xlsx or .ods workbook?): save the sheet as 'CSV UTF-8'")
+    if data.startswith(b"\xd0\xcf\x11\xe0"):
+        raise SheetError(f"{label} is an old-style Office file (an .xls workbook?): save the sheet as 'CSV UTF-8'")
+    if data.startswith((b"\xff\xfe", b"\xfe\xff")):
         try:
             return data.decode("utf-16")
+        except UnicodeDecodeError as err:
+            raise SheetError(f"{label} starts with a UTF-16 byte-order mark but is not valid UTF-16 "
+                             f"(byte {err.start}): save the sheet as 'CSV UTF-8'") from None
+    if len(data) >= 4 and data[1] == 0 and data[3] == 0 and data[0] and data[2]:
+        try:   # UTF-16 little-endian without a byte-order mark ('f\0i\0x\0...')
+            text = data.decode("utf-16-le")
+            problems.append(Problem(0, "", "read as UTF-16 (little-endian) without a byte-order mark", "warning",
+                                    source))
+            return text
         except UnicodeDecodeError:
             pass
+    if data.startswith(b"\xef\xbb\xbf"):
+        data = data[3:]
     try:
-        return data.decode("utf-8-sig")
-    except UnicodeDecodeError as err:
-        line = data[: err.start].count(b"\n") + 1
-        problems.append(Problem(line, "", "the file is not UTF-8; it was read as Windows-1252 "
-                                "(save it as 'CSV UTF-8' to be sure of accented text)", "warning", source))
-        return data.decode("cp1252", errors="replace")
+        return data.decode("utf-8")
+    except UnicodeDecodeError:
+        pass
+    text = data.decode("utf-8", "surrogateescape")
+    # Only the lines holding undecodable bytes are re-read; they are found from the bad bytes, not line by line.
+    pieces, bad = [], []
+    done = 0                 # text[:done] is settled
+    counted, line_no = 0, 1  # line_no is the number of the line starting at `counted`
+    for m in _SURROGATE.finditer(text):
+        if m.start() < done:
+            continue         # on a line already re-read
+        start = max(text.rfind("\n", 0, m.start()), text.rfind("\r", 0, m.start())) + 1
+        ends = [k for k in (text.find("\n", m.start()), text.find("\r", m.start())) if k >= 0]
+        end = min(ends) if ends else len(text)
+        line_no += len(_LINE_END.findall(text, counted, start))
+        counted = start
+        pieces.append(text[done:start])
+        pieces.append(text[start:end].encode("utf-8", "surrogateescape").decode("cp1252", errors="replace"))
+        bad.append(line_no)
+        done = end
+    pieces.append(text[done:])
+    advice = "save the sheet as 'CSV UTF-8' to be sure of accented text"
+    if len(bad) <= 20:
+        for line in bad:
+            problems.append(Problem(line, "", f"this line is not UTF-8; it alone was read as Windows-1252 ({advice})",
+                                    "warning", source))
+    else:
+        problems.append(Problem(bad[0], "", f"{len(bad)} lines are not UTF-8 ({_list_lines(bad)}); each was read "
+                                f"as Windows-1252 ({advice})", "warning", source))
+    return _not_binary("".join(pieces), source)
 
+
+def _not_binary(text: str, name: str) -> str:
+    """Text decoded with the Windows-1252 fallback that is full of control characters came from a binary file."""
+    sample = text[:65536].replace("\x00", "")
+    count = len(_BINARY.findall(sample))
+    if count >= 8 and count > 0.05 * len(sample):
+        raise SheetError(f"{name or 'the sheet'} does not look like a text sheet ({count / len(sample):.0%} of its "
+                         "first characters are control bytes and it is not UTF-8): is it a binary file or a "
+                         "workbook? Save the sheet as 'CSV UTF-8'")
+    return text
+
+
+def _check_text(text: str, name: str) -> str:
+    if "\x00" in text[:65536] and not text.replace("\x00", "").strip():
+        raise SheetError(f"{name or 'the sheet'} holds nothing but NUL bytes (a damaged file?): no header row")
+    return text
+
+
+def _physical_lines(text: str) -> list[str]:
+    """Lines as the csv module counts them (ends: \\r\\n, \\r or \\n), without their ends."""
+    lines = text.split("\n") if "\r" not in text else _LINE_END.split(text)
+    if lines and lines[-1] == "":
+        lines.pop()
+    return lines
+
+
+# --------------------------------------------------------------------------- header
 
 def _sniff_delimiter(header_line: str) -> str:
     counts = {}
@@ -95,7 +217,84 @@ def _canonical(name: str) -> str:
     return " ".join(name.replace("\ufeff", "").strip().lower().split()).replace(" ", "_")
 
 
-def read_sheet(source, *, name: str | None = None) -> RawSheet:
+def _parse_header(line: str, line_no: int, delimiter: str, name: str, problems) -> list[str]:
+    label = name or "the sheet"
+    if len(line) > MAX_CELL_CHARS and max(len(c) for c in line.split(delimiter)) > MAX_CELL_CHARS:
+        raise SheetError(f"{label}: line {line_no}: the header has a field longer than {MAX_CELL_CHARS} "
+                         "characters: this is not a bearing sheet's header")
+    try:
+        header = next(csv.reader([line], delimiter=delimiter))
+    except csv.Error as err:
+        raise SheetError(f"{label}: line {line_no}: the header cannot be read ({err})") from None
+    named = len(header)
+    while named and not header[named - 1].strip():
+        named -= 1
+    if named > MAX_COLUMNS:
+        raise SheetError(f"{label}: line {line_no}: the header names {named} columns; dfkit reads at most "
+                         f"{MAX_COLUMNS} (is this a bearing sheet?)")
+    if len(header) > MAX_COLUMNS:
+        problems.append(Problem(line_no, "", f"the header ends in {len(header) - named} empty column names; they "
+                                "were ignored", "warning", name))
+        header = header[:named]
+    return header
+
+
+def _resolve_header(header, header_line, name, problems, keep_own=False) -> list[str]:
+    """Column names for the header cells. dfkit's own result columns get a reserved name (:data:`_OWN`) and
+    :class:`RawSheet` leaves them out, whichever reader built it (CSV, spreadsheet, DataFrame)."""
+    if header is None:
+        raise SheetError(f"{name or 'the sheet'} has no header row")
+    canon = [_canonical(raw) for raw in header]
+    present = set(canon)
+    columns: list[str] = []
+    first_seen: dict[str, int] = {}
+    next_copy: dict[str, int] = {}
+    derived: list[str] = []
+    copies: dict[str, list[tuple[int, str]]] = {}
+    for j, (raw, col) in enumerate(zip(header, canon), start=1):
+        if not col:
+            col = f"column_{j}"
+        if not keep_own and col in COLUMN_ALIASES and COLUMN_ALIASES[col] not in present:
+            alias = COLUMN_ALIASES[col]
+            problems.append(Problem(header_line, raw.strip(), f"read as '{alias}'", "warning", name))
+            col = alias
+        if keep_own and col in (*DERIVED_COLUMNS, "line"):
+            col = "line_in_sheet" if col == "line" else col
+        elif col in DERIVED_COLUMNS or (col == "line" and "line_in_sheet" in present):
+            derived.append(col)
+            col = f"{_OWN}{j}"     # a name no header can produce
+        elif col == "line":
+            # 'line' is dfkit's line number in outputs; keep the user's under another name.
+            problems.append(Problem(header_line, "line", "kept as 'line_in_sheet' ('line' is dfkit's line number)",
+                                    "warning", name))
+            col = "line_in_sheet"
+        if col in first_seen:
+            if col in KNOWN_COLUMNS:
+                raise SheetError(f"{name or 'the sheet'}: line {header_line}: columns {first_seen[col]} and {j} "
+                                 f"are both '{col}'; dfkit cannot tell which one to trust. Rename or remove one.")
+            k = next_copy.get(col, 2)
+            while f"{col}_{k}" in first_seen or f"{col}_{k}" in present:
+                k += 1
+            next_copy[col] = k + 1
+            copies.setdefault(col, []).append((j, f"{col}_{k}"))
+            col = f"{col}_{k}"
+        first_seen[col] = j
+        columns.append(col)
+    for col, kept in copies.items():
+        where = ", ".join(f"column {j} as '{new}'" for j, new in kept[:5])
+        more = f" and {len(kept) - 5} more" if len(kept) > 5 else ""
+        problems.append(Problem(header_line, col, f"column name repeated; the {'copy is' if len(kept) == 1 else 'copies are'}"
+                                f" kept: {where}{more}", "warning", name))
+    if derived:
+        problems.append(Problem(header_line, "", f"{', '.join(derived)}: dfkit's own result "
+                                f"{'column' if len(derived) == 1 else 'columns'}, recomputed from this sheet; "
+                                "the values in the file are not read", "note", name))
+    return columns
+
+
+# --------------------------------------------------------------------------- reading
+
+def read_sheet(source, *, name: str | None = None, own_results: str = "recompute") -> RawSheet:
     """Read a bearing sheet into text cells.
 
     Parameters
@@ -104,12 +303,24 @@ def read_sheet(source, *, name: str | None = None) -> RawSheet:
         A path, the file's bytes, or an open binary/text file.
     name : str, optional
         Name used in messages (defaults to the file name).
+    own_results : {'recompute', 'keep'}
+        What to do with dfkit's own result columns (:data:`DERIVED_COLUMNS`, ``line``):
+        'recompute' (a bearing sheet) leaves them out with a note and keeps ``line`` as
+        ``line_in_sheet``; 'keep' (a table of results read as such) reads them, and every other
+        column, under its own name (no other spellings are read as known columns).
+
+    Returns
+    -------
+    RawSheet
+        Text cells with line numbers, the problems found (rows refused by the reader are
+        kept as rows with an error, so their fix label still reaches the output), and the
+        skipped comment and blank lines.
 
     Raises
     ------
     SheetError
-        The file cannot be read as a sheet at all: it is missing or empty, has no
-        header row, or names a known column twice.
+        The file cannot be read as a sheet at all: it is missing, empty, not text, has no
+        header row, names a known column twice, or has an absurdly wide header.
     """
     problems: list[Problem] = []
     if isinstance(source, (str, os.PathLike)):
@@ -120,162 +331,341 @@ def read_sheet(source, *, name: str | None = None) -> RawSheet:
         except OSError as err:
             raise SheetError(f"{name}: cannot read the file ({err.strerror or err})") from None
         text = _decode(data, name, problems)
-    elif isinstance(source, bytes):
-        text = _decode(source, name or "", problems)
+    elif isinstance(source, (bytes, bytearray)):
+        text = _decode(bytes(source), name or "", problems)
     else:
         got = source.read()
         text = _decode(got, name or "", problems) if isinstance(got, bytes) else got.lstrip("\ufeff")
     name = name or ""
-
-    if "\x00" in text:
-        problems.append(Problem(0, "", "the file contains NUL bytes; they were removed", "warning", name))
-        text = text.replace("\x00", "")
-    if not text.strip():
+    text = _check_text(text, name)
+    if not text.replace("\x00", "").strip():
         raise SheetError(f"{name or 'the sheet'} is empty: expected a header row such as "
                          "'fix,lat,lon,bearing' and one row per bearing")
 
-    lines = text.splitlines()
-    header_idx = next((i for i, ln in enumerate(lines) if ln.strip() and not ln.lstrip().startswith("#")), None)
+    lines = _physical_lines(text)
+    comments: list[int] = []
+    blanks: list[int] = []
+    header_idx = None
+    for i, ln in enumerate(lines):
+        if ln.startswith("#"):
+            comments.append(i + 1)
+        elif not ln.replace("\x00", "").strip():
+            blanks.append(i + 1)
+        else:
+            header_idx = i
+            break
     if header_idx is None:
         raise SheetError(f"{name or 'the sheet'} has only comments or blank lines: no header row")
-    delimiter = _sniff_delimiter(lines[header_idx])
-
-    fast = _fast_read(text, lines, header_idx, delimiter)
-    if fast is not None:
-        header = next(csv.reader([lines[header_idx]], delimiter=delimiter))
-        columns = _resolve_header(header, header_idx + 1, name, problems)
-        table, skipped = fast
-        table.columns = ["line"] + columns
-        if not len(table):
-            problems.append(Problem(header_idx + 1, "", "the sheet has a header but no data rows", "warning", name))
-        return RawSheet(table=table, columns=columns, delimiter=delimiter, decimal_comma=delimiter != ",",
-                        problems=problems, skipped_lines=skipped, source=name)
-
-    reader = csv.reader(io.StringIO(text, newline=""), delimiter=delimiter, skipinitialspace=False)
-    header: list[str] | None = None
-    header_line = 0
-    rows: list[list[str]] = []
-    line_numbers: list[int] = []
-    skipped = 0
-    try:
-        while True:
-            start = reader.line_num + 1
-            try:
-                row = next(reader)
-            except StopIteration:
-                break
-            if not row or all(not c.strip() for c in row) or row[0].lstrip().startswith("#"):
-                skipped += 1 if header is not None else 0
-                continue
-            if header is None:
-                header, header_line = row, start
-                continue
-            rows.append(row)
-            line_numbers.append(start)
-    except csv.Error as err:
-        raise SheetError(f"{name or 'the sheet'}: line {reader.line_num}: the CSV structure is broken ({err})") from None
-
-    columns = _resolve_header(header, header_line, name, problems)
+    header_line = lines[header_idx]
+    if "\x00" in header_line:
+        problems.append(Problem(header_idx + 1, "", "the header holds NUL bytes (a damaged file?); they were "
+                                "removed", "warning", name))
+        header_line = header_line.replace("\x00", "")
+    delimiter = _sniff_delimiter(header_line)
+    header = _parse_header(header_line, header_idx + 1, delimiter, name, problems)
+    header = [h.strip()[1:] if _GUARDED.match(h.strip()) else h for h in header]
+    if own_results not in ("recompute", "keep"):
+        raise ValueError(f"own_results='{own_results}' must be 'recompute' or 'keep'")
+    columns = _resolve_header(header, header_idx + 1, name, problems, own_results == "keep")
     width = len(columns)
-    cells: list[list[str]] = [[] for _ in range(width)]
-    kept_lines = []
-    for row, line in zip(rows, line_numbers):
-        if len(row) > width:
-            extra = [c for c in row[width:] if c.strip()]
-            if extra:
-                hint = (" (decimal commas in a comma-separated sheet? use a semicolon-separated sheet "
-                        "or decimal points)" if delimiter == "," else " (a stray delimiter?)")
-                problems.append(Problem(line, "", f"the row has {len(row)} fields but the header has "
-                                        f"{width}{hint}", "error", name))
-                # Kept as a row so its fix label still reaches the output; validation skips it.
-            row = row[:width]
-        elif len(row) < width:
-            row = row + [""] * (width - len(row))
-        for j in range(width):
-            cells[j].append(row[j].strip())
-        kept_lines.append(line)
 
-    table = pd.DataFrame({"line": pd.array(kept_lines, dtype="int64")})
-    for j, col in enumerate(columns):
-        table[col] = pd.Series(cells[j], dtype=object)
+    got = _fast_read(text, lines, header_idx, delimiter, width)
+    if got is None:
+        got = _careful_read(lines, header_idx, delimiter, width, name, problems, "'" in text)
+    line_no, cells, more_comments, more_blanks, n_unguarded = got
+    comments += more_comments
+    blanks += more_blanks
+
+    data = {"line": pd.array(line_no, dtype="int64")}
+    for col, c in zip(columns, cells):
+        data[col] = c
+    table = pd.DataFrame(data)
+    table = _drop_empty_unnamed(table, columns, header, header_idx + 1, name, problems)
+    columns = [c for c in table.columns if c != "line"]
+    if n_unguarded:
+        problems.append(Problem(0, "", f"{n_unguarded} {'cell' if n_unguarded == 1 else 'cells'} began with ' "
+                                "before =, +, -, @, tab or CR (a guard against spreadsheet formulas, as dfkit "
+                                "writes); read without the '", "note", name))
+    _rows_taken_for_comments(lines, comments, header_idx + 1, delimiter, width, name, problems)
     if not len(table):
-        problems.append(Problem(header_line, "", "the sheet has a header but no data rows", "warning", name))
-    return RawSheet(table=table, columns=columns, delimiter=delimiter,
-                    decimal_comma=delimiter != ",", problems=problems, skipped_lines=skipped, source=name)
+        problems.append(Problem(header_idx + 1, "", "the sheet has a header but no data rows", "warning", name))
+    _note_skipped(comments, blanks, name, problems)
+    return RawSheet(table=table, columns=columns, delimiter=delimiter, decimal_comma=delimiter != ",",
+                    problems=problems, skipped_lines=len(comments) + len(blanks), source=name,
+                    comment_lines=comments, blank_lines=blanks)
 
 
-_NOT_SIMPLE = re.compile('["\r\x0b\x0c\x1c\x1d\x1e\x85\u2028\u2029]')
-
-
-def _fast_read(text, lines, header_idx, delimiter):
-    """The common case read by pandas' C parser: no quotes and plain line ends, so one physical line is
-    one row and line numbers follow directly. Returns (table, skipped lines) or None for the general path."""
-    if _NOT_SIMPLE.search(text.replace("\r\n", "\n")):
+def _fast_read(text, lines, header_idx, delimiter, width):
+    """The common case read by pandas' C parser: no quotes, no NUL and plain line ends, so one physical line
+    is one row and line numbers follow directly. Returns (lines, cells per column, comment lines, blank
+    lines), or None for the careful path."""
+    if '"' in text or "\x00" in text or ("\r" in text and "\r" in text.replace("\r\n", "\n")):
         return None
-    width = len(next(csv.reader([lines[header_idx]], delimiter=delimiter)))
-    body = "\n".join(lines[header_idx + 1:])
-    if not body.strip():
+    body_lines = lines[header_idx + 1:]
+    n = len(body_lines)
+    if not n or len(text) > MAX_CELL_CHARS and max(map(len, body_lines)) > MAX_CELL_CHARS:
         return None
+    numbers = np.arange(header_idx + 2, header_idx + 2 + n)
+    comment = np.zeros(n, bool)
+    if "\n#" in text:
+        comment = np.fromiter((ln[:1] == "#" for ln in body_lines), bool, n)
+        body_lines = [ln for ln, c in zip(body_lines, comment) if not c]
+    if not body_lines:
+        return numbers[:0], [np.zeros(0, object)] * width, numbers[comment].tolist(), [], 0
+    body = "\n".join(body_lines)
     try:
         df = pd.read_csv(io.StringIO(body), sep=delimiter, header=None, dtype=str, na_filter=False,
                          skip_blank_lines=False, quoting=csv.QUOTE_NONE, engine="c")
     except (pd.errors.ParserError, ValueError):
         return None
-    if df.shape[1] != width or len(df) != len(lines) - header_idx - 1:
+    if df.shape[1] != width or len(df) != len(body_lines):
         return None
-    cells = [df[c].to_numpy(dtype=object) for c in df.columns]
-    if _has_padding(body, delimiter):
-        cells = [pd.Series(c, dtype=object).str.strip().to_numpy(dtype=object) for c in cells]
-    first = cells[0]
+    cells, n_unguarded = _tidy([df[c].to_numpy(dtype=object) for c in df.columns], _has_padding(body, delimiter),
+                               "'" in body)
     blank = np.ones(len(df), bool)
     for c in cells:
         blank &= c == ""
-    comment = (pd.Series(first, dtype=object).str.lstrip().str.startswith("#").to_numpy(dtype=bool)
-               if "#" in body else np.zeros(len(first), bool))
-    keep = ~(blank | comment)
-    lines_no = np.arange(header_idx + 2, header_idx + 2 + len(df))
-    table = pd.DataFrame({"line": pd.array(lines_no[keep], dtype="int64")})
-    for j, c in enumerate(cells):
-        table[j] = pd.Series(c[keep], dtype=object)
-    return table, int((~keep).sum())
+    numbers_kept = numbers[~comment]
+    keep = ~blank
+    return (numbers_kept[keep], [c[keep] for c in cells], numbers[comment].tolist(),
+            numbers_kept[blank].tolist(), n_unguarded)
+
+
+def _tidy(cells, padded: bool, guarded: bool):
+    """Cells stripped of surrounding white space; a cell that a CSV formula guard wrote as ``'=...`` is read as
+    it was (``=...``: one ``'`` removed before the strip). Returns (cells, how many were unguarded)."""
+    if not (padded or guarded):
+        return cells, 0
+    out = []
+    n = 0
+    for c in cells:
+        s = pd.Series(c, dtype=object)
+        if padded:
+            s = s.str.lstrip()
+        if guarded:
+            hit = s.str.match(_GUARDED).fillna(False).to_numpy(dtype=bool)
+            if hit.any():
+                s = s.copy()
+                s[hit] = s[hit].str.slice(1)
+                n += int(hit.sum())
+        if padded:
+            s = s.str.strip()
+        out.append(s.to_numpy(dtype=object))
+    return out, n
+
+
+_PADDING = re.compile(r"[^\S\n]")        # white space as str.strip() sees it, other than the line end
+_PADDING_TAB = re.compile(r"[^\S\n\t]")
 
 
 def _has_padding(body, delimiter):
-    """Whether any cell may carry surrounding white space."""
-    if delimiter == "\t":
-        return " " in body
-    return " " in body or "\t" in body
+    """Whether any cell may carry surrounding white space (anything str.strip() removes)."""
+    if " " in body or (delimiter != "\t" and "\t" in body):
+        return True
+    if body.isascii():     # the other ASCII white space, found by fast substring searches
+        return any(ch in body for ch in "\x0b\x0c\x1c\x1d\x1e\x1f")
+    return (_PADDING_TAB if delimiter == "\t" else _PADDING).search(body) is not None
 
 
-def _resolve_header(header, header_line, name, problems) -> list[str]:
-    if header is None:
-        raise SheetError(f"{name or 'the sheet'} has no header row")
-    columns: list[str] = []
-    first_seen: dict[str, int] = {}
-    for j, raw in enumerate(header, start=1):
-        col = _canonical(raw)
-        if not col:
-            col = f"column_{j}"
-        if col in COLUMN_ALIASES and COLUMN_ALIASES[col] not in [_canonical(h) for h in header]:
-            canon = COLUMN_ALIASES[col]
-            problems.append(Problem(header_line, raw.strip(), f"read as '{canon}'", "warning", name))
-            col = canon
-        if col in first_seen:
-            if col in KNOWN_COLUMNS:
-                raise SheetError(f"{name or 'the sheet'}: line {header_line}: columns {first_seen[col]} and {j} "
-                                 f"are both '{col}'; dfkit cannot tell which one to trust. Rename or remove one.")
-            k = 2
-            while f"{col}_{k}" in first_seen:
-                k += 1
-            problems.append(Problem(header_line, raw.strip(), f"column name repeated; the copy in column {j} "
-                                    f"is kept as '{col}_{k}'", "warning", name))
-            col = f"{col}_{k}"
-        first_seen[col] = j
-        columns.append(col)
-    if "line" in first_seen:
-        # 'line' is dfkit's own column in outputs; keep the user's under another name.
-        idx = columns.index("line")
-        columns[idx] = "line_in_sheet"
-        problems.append(Problem(header_line, "line", "kept as 'line_in_sheet' ('line' is dfkit's line number)",
-                                "warning", name))
-    return columns
+class _Lines:
+    """The physical lines handed to the csv module one at a time.
+
+    At the start of a row it skips comment lines (first character ``#``) and notes
+    them; inside a quoted cell nothing is a comment. It removes NUL bytes and
+    notes the lines that held them, and it can be rewound to re-read lines.
+    """
+
+    def __init__(self, lines, start):
+        self.lines = lines
+        self.pos = start          # index of the next line to hand out
+        self.at_start = True
+        self.first = 0            # line number where the current row starts
+        self.comments: list[int] = []
+        self.nul_lines: list[int] = []
+
+    def __iter__(self):
+        return self
+
+    def __next__(self):
+        while self.pos < len(self.lines):
+            ln = self.lines[self.pos]
+            self.pos += 1
+            if self.at_start:
+                if ln.startswith("#"):
+                    self.comments.append(self.pos)
+                    continue
+                self.at_start = False
+                self.first = self.pos
+            if "\x00" in ln:
+                self.nul_lines.append(self.pos)
+                ln = ln.replace("\x00", "")
+            return ln + "\n"
+        raise StopIteration
+
+
+def _careful_read(lines, header_idx, delimiter, width, name, problems, guarded):
+    """Row by row with the csv module: quoted cells, multi-line cells, stray quotes, NUL bytes, huge cells."""
+    feed = _Lines(lines, header_idx + 1)
+    reader = csv.reader(feed, delimiter=delimiter)
+    starts: list[int] = []
+    rows: list[list[str]] = []
+    blanks: list[int] = []
+
+    def refuse(first, row, message):
+        problems.append(Problem(first, "", message, "error", name))
+        starts.append(first)
+        rows.append(row)
+
+    while True:
+        feed.at_start = True
+        n_nul = len(feed.nul_lines)
+        try:
+            row = next(reader)
+        except StopIteration:
+            break
+        except csv.Error:
+            first = feed.first
+            if feed.pos > first:      # the cell ran over several lines: a stray quote
+                refuse(first, _literal(lines[first - 1], delimiter),
+                       f"a quote opened in this row is not closed within {MAX_CELL_CHARS} characters; the row is "
+                       f"not used and the lines after it are read as rows (check the quotes)")
+                feed.pos = first
+            else:
+                refuse(first, [c if len(c) <= MAX_CELL_CHARS else "" for c in _literal(lines[first - 1], delimiter)],
+                       f"a cell is longer than {MAX_CELL_CHARS} characters; the row is not used")
+            continue
+        first, last = feed.first, feed.pos
+        if last > first:
+            why = _swallowed(lines, first, last, row, width, delimiter)
+            if why:
+                refuse(first, _literal(lines[first - 1], delimiter), why)
+                feed.pos = first
+                continue
+        if len(feed.nul_lines) > n_nul:
+            refuse(first, row, "this row holds NUL bytes (a damaged file?); it is not used")
+            continue
+        if not "".join(row).strip():
+            blanks.append(first)
+            continue
+        if len(row) > width and any(c.strip() for c in row[width:]):
+            hint = (" (decimal commas in a comma-separated sheet? use a semicolon-separated sheet "
+                    "or decimal points)" if delimiter == "," else " (a stray delimiter?)")
+            # Kept as a row so its fix label still reaches the output; validation skips it.
+            problems.append(Problem(first, "", f"the row has {len(row)} fields but the header has {width}{hint}",
+                                    "error", name))
+        starts.append(first)
+        rows.append(row)
+
+    cells: list[list[str]] = [[] for _ in range(width)]
+    n_unguarded = 0
+    for row in rows:
+        if len(row) > width:
+            row = row[:width]
+        elif len(row) < width:
+            row = row + [""] * (width - len(row))
+        for j in range(width):
+            c = row[j].strip()
+            if guarded and c[:1] == "'":     # as _tidy: one guard ' removed after leading space, then strip
+                raw = row[j].lstrip()
+                if _GUARDED.match(raw):
+                    c = raw[1:].strip()
+                    n_unguarded += 1
+            cells[j].append(c)
+    cells_arr = [np.asarray(c, dtype=object) if c else np.zeros(0, object) for c in cells]
+    order = np.argsort(np.asarray(starts, dtype=np.int64), kind="stable")
+    cells_arr = [c[order] for c in cells_arr]
+    starts_arr = np.asarray(starts, dtype=np.int64)[order]
+    if n_unguarded:     # a row of nothing but guarded white space ('\t) is blank once read
+        blank = np.ones(len(starts_arr), bool)
+        for c in cells_arr:
+            blank &= c == ""
+        blank &= ~np.isin(starts_arr, [p.line for p in problems if p.severity == "error"])
+        if blank.any():
+            blanks = sorted(blanks + starts_arr[blank].tolist())
+            starts_arr = starts_arr[~blank]
+            cells_arr = [c[~blank] for c in cells_arr]
+    return starts_arr, cells_arr, feed.comments, blanks, n_unguarded
+
+
+def _literal(line: str, delimiter: str) -> list[str]:
+    """A line split at every delimiter, quotes kept as written (for a row whose quoting is broken)."""
+    return line.replace("\x00", "").split(delimiter)
+
+
+def _swallowed(lines, first, last, row, width, delimiter) -> str:
+    """Why a row spanning lines first..last looks like a stray quote swallowing rows ('' if it looks fine)."""
+    joined = "\n".join(lines[first - 1:last]) + "\n"
+    try:
+        list(csv.reader(io.StringIO(joined, newline=""), delimiter=delimiter, strict=True))
+        closed = True
+    except csv.Error:
+        closed = False
+    where = f"lines {first + 1}-{last}" if last > first + 1 else f"line {first + 1}"
+    if not closed:
+        return (f"a quote opened in this row is never closed, so {where} (to the end of the file) would be read "
+                "as one cell; the row is not used and the lines after it are read as rows (check the quotes)")
+    if len(row) > width:
+        return (f"a quote in this row runs over {where} and gives {len(row)} fields where the header has {width}; "
+                "the row is not used and the lines after it are read as rows (check the quotes)")
+    if width >= 3:
+        # A quoted cell may hold line ends (a long note); one holding a line with a row's worth of delimiters
+        # has swallowed rows.
+        for cell in row:
+            for k, part in enumerate(cell.split("\n")[1:], start=1):
+                if part.count(delimiter) >= width - 1:
+                    return (f"a quote in this row runs over {where}, and line {first + k} looks like a row of its "
+                            "own; the row is not used and the lines after it are read as rows (check the quotes)")
+    return ""
+
+
+def _drop_empty_unnamed(table, columns, header, header_line, name, problems):
+    """Columns with no name in the header and no value in any row carry nothing: drop them (noted)."""
+    empty = [col for col, raw in zip(columns, header) if not raw.strip() and col.startswith("column_")
+             and not (table[col] != "").any()]
+    if empty and len(empty) < len(columns):
+        table = table.drop(columns=empty)
+        problems.append(Problem(header_line, "", f"{len(empty)} {'column' if len(empty) == 1 else 'columns'} with "
+                                "no name and no values ignored", "note", name))
+    return table
+
+
+def _rows_taken_for_comments(lines, comments, header_line, delimiter, width, name, problems):
+    """A comment line after the header with as many fields as the header is probably a row whose label starts
+    with '#': say so (it is still skipped: only quoted cells are data)."""
+    if width < 3:
+        return
+    for k in comments:
+        if k > header_line and lines[k - 1].count(delimiter) >= width - 1:
+            first = lines[k - 1].split(delimiter, 1)[0]
+            problems.append(Problem(k, "", f"starts with '#', so it was skipped as a comment, but it has as many "
+                                    f"fields as the header: if it is a row, quote its first cell (\"{first}\")",
+                                    "warning", name))
+
+
+def _note_skipped(comments, blanks, name, problems):
+    parts = []
+    if comments:
+        parts.append(f"{len(comments)} comment {'line' if len(comments) == 1 else 'lines'} "
+                     f"({_list_lines(comments)})")
+    if blanks:
+        parts.append(f"{len(blanks)} blank {'line' if len(blanks) == 1 else 'lines'} ({_list_lines(blanks)})")
+    if parts:
+        problems.append(Problem(0, "", "skipped " + " and ".join(parts), "note", name))
+
+
+def _list_lines(numbers) -> str:
+    """'3, 5-9, 12' (runs joined), at most :data:`_LIST_LINES` items, then how many more."""
+    nums = sorted(numbers)
+    runs: list[str] = []
+    i = 0
+    while i < len(nums):
+        j = i
+        while j + 1 < len(nums) and nums[j + 1] == nums[j] + 1:
+            j += 1
+        runs.append(str(nums[i]) if i == j else f"{nums[i]}-{nums[j]}")
+        i = j + 1
+    word = "line" if len(nums) == 1 and len(runs) == 1 and "-" not in runs[0] else "lines"
+    if len(runs) > _LIST_LINES:
+        rest = len(runs) - _LIST_LINES
+        return f"{word} {', '.join(runs[:_LIST_LINES])} and {rest} more runs"
+    return f"{word} {', '.join(runs)}"

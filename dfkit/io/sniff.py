@@ -40,8 +40,11 @@ def sniff(head: bytes, whole: bytes | None = None) -> str:
         return "html"
     if text.startswith(b"<?xml") and b"<gpx" in text[:2000] or text.startswith(b"<gpx"):
         return "gpx"
-    control = sum(1 for b in head[:8192] if b < 9 or 13 < b < 32 and b != 27)
-    if control > 0.1 * min(len(head), 8192):
+    # NUL bytes are left to the sheet reader, which reports them line by line (a damaged file, or UTF-16 written
+    # without a byte-order mark); the other control bytes mark a binary file.
+    sample = head[:8192].replace(b"\x00", b"")
+    control = sum(1 for b in sample if b < 9 or 13 < b < 32 and b != 27)
+    if control > 0.1 * len(sample):
         return "binary"
     return "text"
 

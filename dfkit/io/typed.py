@@ -20,7 +20,7 @@ def cell_text(v) -> str:
     >>> [cell_text(x) for x in (1.0, 0.25, None, True, datetime(2026, 5, 3, 6, 12))]
     ['1', '0.25', '', 'TRUE', '2026-05-03T06:12:00']
     """
-    if v is None:
+    if v is None or v is pd.NaT:   # NaT is a datetime subclass: test it before the datetime branches
         return ""
     if isinstance(v, str):
         return v.strip()
@@ -43,7 +43,7 @@ def cell_text(v) -> str:
         return v.isoformat()
     if isinstance(v, timedelta):
         return str(v)
-    if v is pd.NaT or (not isinstance(v, (list, tuple, dict)) and pd.isna(v) is True):
+    if not isinstance(v, (list, tuple, dict)) and pd.isna(v) is True:
         return ""
     return str(v).strip()
 

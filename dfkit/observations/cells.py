@@ -136,10 +136,12 @@ def parse_angle(text: str, *, decimal_comma: bool = False):
     ``axis`` is 'lat' for an N/S letter, 'lon' for E/W, '' without one; ``error`` is ''
     when the text was read. See the module docstring for the accepted forms.
 
-    >>> parse_angle("48°58'07.4\\"N")[:2]
-    (48.96872222222222, 'lat')
-    >>> parse_angle("W 3 30.5")[:2]
-    (-3.5083333333333333, 'lon')
+    >>> deg, axis, _ = parse_angle("48°58'07.4\\"N")
+    >>> round(deg, 9), axis        # 48 + 58/60 + 7.4/3600
+    (48.968722222, 'lat')
+    >>> deg, axis, _ = parse_angle("W 3 30.5")
+    >>> round(deg, 9), axis        # -(3 + 30.5/60)
+    (-3.508333333, 'lon')
     """
     raw = str(text)
     s = raw.strip().translate(_PRIMES).replace("''", '"')

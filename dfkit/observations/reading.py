@@ -89,6 +89,8 @@ def read_bearings(sheet, options: ReadOptions | None = None, **kwargs) -> Bearin
     track = opts.track
     if track is not None and not isinstance(track, Track):
         track = read_track(track)
+    if track is not None:
+        log.problems.extend(track.problems)
 
     # times
     time_c = column(t, "time")
