@@ -270,6 +270,11 @@ def test_two_answers_that_fit_equally_are_called_ambiguous(write_sheet):
     other = Q if at_t < at_q else T
     assert f"{other[0]:.5f}, {other[1]:.5f}" in reason          # and the reason gives the other
     assert row["region_bounded"] and not fixes.contains(*other)[0]
+    # Lenth's fit keeps all four: inconsistent, and the reason says that either C or D may be the wild one, the two
+    # answers being T and Q, 700 m apart by construction
+    status, reason, _ = status_of(locate(read_bearings(write_sheet(sheet_of(rows), "mle.csv"))), "X")
+    assert status == "inconsistent"
+    assert "without line 4, or without line 5, the other bearings agree, at two places 700 m apart" in reason
     # the same bearings without D have one answer, T: ok
     alone = locate(read_bearings(write_sheet(sheet_of(rows[:3]), "three.csv")), method="andrews")
     assert status_of(alone, "X")[0] == "ok"

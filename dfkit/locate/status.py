@@ -262,7 +262,7 @@ def _rival_text(rv, lines, sol, i):
         j, k = _lines_text(lines[rv.dropped]), lines[rv.left_out]
         return (f"two answers fit: this one, which leaves out {j}, and {where}, which leaves out line {k} instead "
                 f"({fit}; line {k} misses it by {rv.miss_deg:+.0f}°); this region does not reach the other answer: "
-                f"check {j} and line {k}, or take another bearing{tail}")
+                f"check {_lines_text(np.append(lines[rv.dropped], k))}, or take another bearing{tail}")
     if rv.left_out >= 0:
         k = lines[rv.left_out]
         return (f"two answers fit: this one, and {where}, where all bearings but line {k} agree ({fit}) and line "
