@@ -68,6 +68,20 @@ def add_fix_options(p: argparse.ArgumentParser) -> None:
                    help="bias and SD per antenna/observer from 'dfkit calibrate': removes the bias, uses the SD")
 
 
+def add_jobs_option(p: argparse.ArgumentParser) -> None:
+    """``--jobs N``: solve the fixes in chunks on N threads (the results are those of one)."""
+    p.add_argument("--jobs", type=int, default=1, metavar="N",
+                   help="solve large sheets on N processors at once (0: all; default 1); the results are the "
+                        "same as with one")
+
+
+def check_jobs(a) -> None:
+    """Refuse a ``--jobs`` below 0 before any work (``ValueError``, exit 2)."""
+    jobs = getattr(a, "jobs", 1)
+    if jobs < 0:
+        raise ValueError(f"--jobs {jobs}: give a number of processors, at least 1 (0: all)")
+
+
 def read_kwargs(a) -> dict:
     """The :class:`~dfkit.observations.ReadOptions` fields given on the command line."""
     return dict(unit=a.unit, north=a.north, sd=a.sd, declination=a.declination, tz=a.tz, window_min=a.window,
@@ -148,6 +162,7 @@ def solve(a):
     from dfkit.observations import check_level, read_bearings
 
     check_level(a.level)
+    check_jobs(a)
     t0 = time.perf_counter()
     verbose = getattr(a, "progress", False)
 
@@ -165,7 +180,7 @@ def solve(a):
 
         progress("applying the calibration")
         b = apply(b, read_calibration(a.calibration))
-    fixes = locate(b, method=a.method, level=a.level, progress=progress)
+    fixes = locate(b, method=a.method, level=a.level, progress=progress, jobs=getattr(a, "jobs", 1))
     return b, fixes, progress
 
 

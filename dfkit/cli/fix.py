@@ -4,8 +4,8 @@ from __future__ import annotations
 
 import sys
 
-from dfkit.cli.common import (add_fix_options, add_output_options, add_read_options, ensure_dir, exit_status,
-                              print_summary, refuse_unsafe_outputs, solve)
+from dfkit.cli.common import (add_fix_options, add_jobs_option, add_output_options, add_read_options, ensure_dir,
+                              exit_status, print_summary, refuse_unsafe_outputs, solve)
 from dfkit.cli.map import add_figures_option, write_figures
 
 
@@ -27,6 +27,7 @@ def add_parser(sub):
     add_figures_option(o)
     add_read_options(f)
     add_fix_options(f)
+    add_jobs_option(f)
     add_output_options(f)
     return f
 

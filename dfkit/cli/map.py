@@ -9,7 +9,7 @@ import os
 import re
 import sys
 
-from dfkit.cli.common import (add_fix_options, add_read_options, ensure_dir, exit_status, print_summary,
+from dfkit.cli.common import (add_fix_options, add_jobs_option, add_read_options, ensure_dir, exit_status, print_summary,
                               refuse_unsafe_outputs, solve)
 from dfkit.export.atomic import save_figure
 
@@ -39,6 +39,7 @@ def add_parser(sub):
     m.add_argument("--progress", action="store_true", help="print progress (automatic on large sheets)")
     add_read_options(m)
     add_fix_options(m)
+    add_jobs_option(m)
     return m
 
 

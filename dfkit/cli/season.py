@@ -8,7 +8,8 @@ import sys
 import time
 
 from dfkit.cautions import CAUTION_LINE
-from dfkit.cli.common import add_fix_options, add_read_options, read_kwargs, refuse_unsafe_outputs, report_problems
+from dfkit.cli.common import (add_fix_options, add_jobs_option, add_read_options, check_jobs, read_kwargs,
+                              refuse_unsafe_outputs, report_problems)
 from dfkit.cli.filters import add_filter_options, filter_from_args
 
 #: What ``season show -o`` can write, by extension.
@@ -27,6 +28,7 @@ def add_parser(sub):
     a.add_argument("--progress", action="store_true", help="print progress (automatic on large sheets)")
     add_read_options(a)
     add_fix_options(a)
+    add_jobs_option(a)
     a.set_defaults(_season=_run_add)
 
     w = ss.add_parser("show", help="choose fixes of a season and write them (CSV, GeoJSON, GeoPackage, GPX, review "
@@ -66,11 +68,12 @@ def _run_add(a) -> int:
     if os.path.splitext(a.store)[1].lower() != ".gpkg":
         print(f"dfkit: the season file must end in .gpkg (got '{a.store}')", file=sys.stderr)
         return 2
+    check_jobs(a)
     status = 0
     with SeasonStore.open(a.store, create=True) as store:
         for sheet in a.sheets:
             r = add_sheet(store, sheet, method=a.method, level=a.level, replace=a.replace, progress=progress,
-                          **read_kwargs(a))
+                          jobs=a.jobs, **read_kwargs(a))
             report_problems(r.problems, sys.stderr)
             for note in r.notes:
                 print(f"note      {note}", file=sys.stderr)

@@ -21,7 +21,7 @@ __all__ = ["KNOWN_COLUMNS", "RawSheet", "read_frame", "read_sheet", "read_spread
            "sniff"]
 
 
-def read_table(source, *, worksheet: str | None = None, name: str | None = None) -> RawSheet:
+def read_table(source, *, worksheet: str | None = None, name: str | None = None, numeric=()) -> RawSheet:
     """Read any tabular input into text cells with line numbers.
 
     Parameters
@@ -33,6 +33,9 @@ def read_table(source, *, worksheet: str | None = None, name: str | None = None)
         The sheet of a spreadsheet file to read (default: the first).
     name : str, optional
         Name used in messages.
+    numeric : collection of str
+        Columns a CSV sheet may hand over as floats when every cell is a finite plain number
+        (see :func:`read_sheet`); spreadsheets and DataFrames are always read as text.
 
     Raises
     ------
@@ -58,7 +61,7 @@ def read_table(source, *, worksheet: str | None = None, name: str | None = None)
         got = source.read()
         label = name or getattr(source, "name", "") or ""
         if isinstance(got, str):
-            return read_sheet(got.encode("utf-8"), name=label)
+            return read_sheet(got.encode("utf-8"), name=label, numeric=numeric)
         data = got
     kind = sniff(data[:8192], data)
     suffix = os.path.splitext(os.fspath(source))[1].lower() if isinstance(source, (str, os.PathLike)) else ""
@@ -75,4 +78,4 @@ def read_table(source, *, worksheet: str | None = None, name: str | None = None)
         raise SheetError(f"{label or 'the input'} {NOT_A_SHEET[kind]}")
     if worksheet is not None:
         raise SheetError(f"{label or 'the input'}: --sheet names a worksheet, but this is a CSV file, not a spreadsheet")
-    return read_sheet(data, name=label)
+    return read_sheet(data, name=label, numeric=numeric)

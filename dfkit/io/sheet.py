@@ -97,7 +97,10 @@ class RawSheet:
     ``table`` has one row per data row, a ``line`` column (physical line number in
     the file, header = 1, where the row starts) and one column per header name
     (canonical names for known columns), every cell a stripped string ('' when
-    empty). ``comment_lines`` and ``blank_lines`` list the skipped lines by number.
+    empty), except the columns listed in ``numeric``: those hold float64, because the
+    reader was asked to read them as numbers (``read_sheet(numeric=...)``) and every
+    cell was a finite plain number. ``comment_lines`` and ``blank_lines`` list the
+    skipped lines by number.
     """
 
     table: pd.DataFrame
@@ -109,6 +112,7 @@ class RawSheet:
     source: str = ""
     comment_lines: list[int] = field(default_factory=list)
     blank_lines: list[int] = field(default_factory=list)
+    numeric: tuple[str, ...] = ()
 
     def __post_init__(self):
         own = [c for c in self.table.columns if str(c).startswith(_OWN)]
@@ -294,7 +298,7 @@ def _resolve_header(header, header_line, name, problems, keep_own=False) -> list
 
 # --------------------------------------------------------------------------- reading
 
-def read_sheet(source, *, name: str | None = None, own_results: str = "recompute") -> RawSheet:
+def read_sheet(source, *, name: str | None = None, own_results: str = "recompute", numeric=()) -> RawSheet:
     """Read a bearing sheet into text cells.
 
     Parameters
@@ -308,6 +312,11 @@ def read_sheet(source, *, name: str | None = None, own_results: str = "recompute
         'recompute' (a bearing sheet) leaves them out with a note and keeps ``line`` as
         ``line_in_sheet``; 'keep' (a table of results read as such) reads them, and every other
         column, under its own name (no other spellings are read as known columns).
+    numeric : collection of str
+        Columns (canonical names) to read straight into floats when every cell of the column is a
+        finite plain number (``48.9687``, ``-3``, ``1e5``; the values Python's ``float`` gives). Such
+        columns are listed in ``RawSheet.numeric``; any other column, and every column of a sheet that
+        takes the careful path, stays text, so the validator's messages are those of the text cells.
 
     Returns
     -------
@@ -369,7 +378,8 @@ def read_sheet(source, *, name: str | None = None, own_results: str = "recompute
     columns = _resolve_header(header, header_idx + 1, name, problems, own_results == "keep")
     width = len(columns)
 
-    got = _fast_read(text, lines, header_idx, delimiter, width)
+    want = [j for j, c in enumerate(columns) if c in set(numeric)]
+    got = _fast_read(text, lines, header_idx, delimiter, width, want)
     if got is None:
         got = _careful_read(lines, header_idx, delimiter, width, name, problems, "'" in text)
     line_no, cells, more_comments, more_blanks, n_unguarded = got
@@ -382,6 +392,7 @@ def read_sheet(source, *, name: str | None = None, own_results: str = "recompute
     table = pd.DataFrame(data)
     table = _drop_empty_unnamed(table, columns, header, header_idx + 1, name, problems)
     columns = [c for c in table.columns if c != "line"]
+    held = tuple(c for c in columns if table[c].dtype.kind == "f")    # read as numbers (``numeric``)
     if n_unguarded:
         problems.append(Problem(0, "", f"{n_unguarded} {'cell' if n_unguarded == 1 else 'cells'} began with ' "
                                 "before =, +, -, @, tab or CR (a guard against spreadsheet formulas, as dfkit "
@@ -392,13 +403,14 @@ def read_sheet(source, *, name: str | None = None, own_results: str = "recompute
     _note_skipped(comments, blanks, name, problems)
     return RawSheet(table=table, columns=columns, delimiter=delimiter, decimal_comma=delimiter != ",",
                     problems=problems, skipped_lines=len(comments) + len(blanks), source=name,
-                    comment_lines=comments, blank_lines=blanks)
+                    comment_lines=comments, blank_lines=blanks, numeric=held)
 
 
-def _fast_read(text, lines, header_idx, delimiter, width):
+def _fast_read(text, lines, header_idx, delimiter, width, want=()):
     """The common case read by pandas' C parser: no quotes, no NUL and plain line ends, so one physical line
-    is one row and line numbers follow directly. Returns (lines, cells per column, comment lines, blank
-    lines), or None for the careful path."""
+    is one row and line numbers follow directly. Columns ``want`` (indices) come back as float arrays when
+    every cell is a finite plain number (:func:`_as_numbers`), as text otherwise. Returns (lines, cells per
+    column, comment lines, blank lines, cells unguarded), or None for the careful path."""
     if '"' in text or "\x00" in text or ("\r" in text and "\r" in text.replace("\r\n", "\n")):
         return None
     body_lines = lines[header_idx + 1:]
@@ -413,22 +425,52 @@ def _fast_read(text, lines, header_idx, delimiter, width):
     if not body_lines:
         return numbers[:0], [np.zeros(0, object)] * width, numbers[comment].tolist(), [], 0
     body = "\n".join(body_lines)
+    kw = dict(sep=delimiter, header=None, na_filter=False, skip_blank_lines=False, quoting=csv.QUOTE_NONE,
+              engine="c")
+    want = [j for j in want if j < width]
     try:
-        df = pd.read_csv(io.StringIO(body), sep=delimiter, header=None, dtype=str, na_filter=False,
-                         skip_blank_lines=False, quoting=csv.QUOTE_NONE, engine="c")
+        df = pd.read_csv(io.StringIO(body), dtype={j: str for j in range(width) if j not in want} if want else str,
+                         **kw)
     except (pd.errors.ParserError, ValueError):
         return None
     if df.shape[1] != width or len(df) != len(body_lines):
         return None
-    cells, n_unguarded = _tidy([df[c].to_numpy(dtype=object) for c in df.columns], _has_padding(body, delimiter),
-                               "'" in body)
-    blank = np.ones(len(df), bool)
-    for c in cells:
+    raw = [df[c] for c in df.columns]
+    del df
+    floats = {}
+    for j in want:
+        floats[j] = _as_numbers(raw[j])
+        if floats[j] is None:        # some cell is not a plain finite number: the column is read as text
+            del floats[j]
+            if raw[j].dtype != object:
+                raw[j] = pd.read_csv(io.StringIO(body), usecols=[j], dtype=str, **kw)[j]
+    texts = [j for j in range(width) if j not in floats]
+    tidy, n_unguarded = _tidy([raw[j].to_numpy(dtype=object) for j in texts], _has_padding(body, delimiter),
+                              "'" in body)
+    cells = [floats.get(j) for j in range(width)]
+    for j, c in zip(texts, tidy):
+        cells[j] = c
+    blank = np.ones(len(raw[0]), bool) if not floats else np.zeros(len(raw[0]), bool)
+    for c in tidy:
         blank &= c == ""
     numbers_kept = numbers[~comment]
     keep = ~blank
     return (numbers_kept[keep], [c[keep] for c in cells], numbers[comment].tolist(),
             numbers_kept[blank].tolist(), n_unguarded)
+
+
+def _as_numbers(col: pd.Series):
+    """A column the C parser read as numbers, as float64; None when it holds text or a value that is not a
+    finite number (NaN, infinity: the validator words those), or an integer too large for a float to hold."""
+    if col.dtype.kind == "f":
+        values = col.to_numpy(dtype=float)
+    elif col.dtype.kind in "iu":
+        values = col.to_numpy(dtype=float)
+        if len(values) and np.abs(values).max() >= 2.0 ** 53:
+            return None
+    else:
+        return None
+    return values if np.isfinite(values).all() else None
 
 
 def _tidy(cells, padded: bool, guarded: bool):

@@ -23,7 +23,7 @@ from dfkit.observations import Bearings, ReadOptions, read_bearings
 
 
 def locate(bearings: Bearings, *, method: str = "mle", level: float = 0.95, window_min: float | None = None,
-           robust_c: float | None = None, with_regions: bool = True, progress=None) -> Fixes:
+           robust_c: float | None = None, with_regions: bool = True, progress=None, jobs: int = 1) -> Fixes:
     """Solve every fix of a set of bearings.
 
     Parameters
@@ -44,7 +44,15 @@ def locate(bearings: Bearings, *, method: str = "mle", level: float = 0.95, wind
         ``ok`` on its covariance ellipse, and :meth:`Fixes.contains` answers only for ellipses.
     progress : callable, optional
         Called with a short text at each stage (the CLI prints it).
+    jobs : int
+        Solve the fixes in chunks on this many threads (0: one per processor); the results are
+        those of one job (:mod:`dfkit.locate.parallel`).
     """
+    if jobs != 1:
+        from dfkit.locate.parallel import locate_in_chunks
+
+        return locate_in_chunks(bearings, jobs=jobs, method=method, level=level, window_min=window_min,
+                                robust_c=robust_c, with_regions=with_regions, progress=progress)
     if method not in estimators.METHODS:
         raise ValueError(f"method={method!r} is not one of {', '.join(repr(m) for m in estimators.METHODS)}")
     if not (isinstance(level, (int, float, np.floating)) and 0.0 < float(level) < 1.0):
@@ -107,7 +115,7 @@ def locate(bearings: Bearings, *, method: str = "mle", level: float = 0.95, wind
         status, reasons = classify(facts)
 
     table = _table(bearings, sol, ell, lik, status, reasons, counts, span_min, tmid, method, level)
-    bt = b.copy()
+    bt = b.copy(deep=False)   # new columns only; the bearings table itself is not copied (copy-on-write)
     has_pos = np.isin(status, WITH_POSITION)
     if len(b):
         pos_b = has_pos[g]

@@ -141,11 +141,11 @@ class Fixes:
 
         L = self.likelihood
         rows, lat, lon = L.rings(self._region_rows())
-        geoms = []
-        for la, lo in zip(lat, lon):
-            parts = [Polygon(p) for p in split_ring(la, lo)]
-            geoms.append(parts[0] if len(parts) == 1 else MultiPolygon(parts))
-        return pd.DataFrame({"fix_id": rows, "geometry": geoms, "bounded": L.bounded[rows],
+        geoms = _simple_regions(lat, lon)       # most rings at once; the rest (antimeridian, invalid) one by one
+        for i in np.flatnonzero(pd.isna(geoms)):
+            parts = [Polygon(p) for p in split_ring(lat[i], lon[i])]
+            geoms[i] = parts[0] if len(parts) == 1 else MultiPolygon(parts)
+        return pd.DataFrame({"fix_id": rows, "geometry": list(geoms), "bounded": L.bounded[rows],
                              "area_m2": L.area_m2[rows], "reach_m": L.reach_m[rows],
                              "drawn_to_m": np.where(L.bounded[rows], np.nan, L.draw_range_m[rows])})
 
@@ -231,4 +231,24 @@ class Fixes:
             out[ok] = (u / a[ok]) ** 2 + (v / t["semi_minor_m"].to_numpy(float)[ok]) ** 2 <= 1.0
         return out
 
+
+def _simple_regions(lat, lon):
+    """What :func:`dfkit.regions.split_ring` gives, for the rings that lie within (-180, 180) and are valid,
+    computed for all of them at once by the same GEOS operations (intersection with the world box, then
+    counter-clockwise orientation, exterior kept); None for the other rings."""
+    import shapely
+
+    out = np.full(len(lat), None, dtype=object)
+    if not len(lat):
+        return out
+    inside = (lon.max(axis=1) < 180.0) & (lon.min(axis=1) > -180.0)
+    idx = np.flatnonzero(inside)
+    polys = shapely.polygons(np.stack([lon[idx], lat[idx]], axis=-1))
+    ok = shapely.is_valid(polys)
+    idx, polys = idx[ok], polys[ok]
+    part = shapely.intersection(polys, shapely.box(-180.0, -90.0, 180.0, 90.0))
+    ok = (shapely.get_type_id(part) == 3) & (shapely.area(part) > 0)        # one polygon
+    part = shapely.orient_polygons(part[ok], exterior_cw=False)
+    out[idx[ok]] = shapely.polygons(shapely.get_exterior_ring(part))
+    return out
 

@@ -42,9 +42,17 @@ class Cells:
 
 
 def column(table: pd.DataFrame, name: str) -> np.ndarray:
-    """The text cells of a column, or '' everywhere when the table has no such column."""
+    """The text cells of a column, or '' everywhere when the table has no such column.
+
+    A column the sheet reader already read as numbers (``RawSheet.numeric``: every cell a finite plain
+    number) comes back as its float array; :func:`numbers` and :func:`angles` take it as it is, and it
+    compares unequal to '' everywhere (no cell is empty).
+    """
     if name in table.columns:
-        return table[name].to_numpy(dtype=object)
+        col = table[name]
+        if col.dtype.kind == "f":
+            return col.to_numpy(dtype=float)
+        return col.to_numpy(dtype=object)
     return np.full(len(table), "", dtype=object)
 
 
@@ -60,6 +68,9 @@ def per_value(cells, func):
 def canonical(cells, aliases: dict, default: str):
     """Map spellings to canonical words (``'Mag'`` -> ``'magnetic'``); returns (words, unknown mask).
     Empty cells take ``default``; unknown ones also get ``default`` (the row is rejected by the caller)."""
+    cells = np.asarray(cells, dtype=object)
+    if "" not in aliases and not (cells != "").any():        # an empty or absent column: the default everywhere
+        return np.full(len(cells), default, dtype=object), np.zeros(len(cells), bool)
     low = per_value(cells, lambda u: str(u).strip().lower())
     canon = per_value(low, lambda u: aliases.get(u, default if u == "" else None))
     unknown = pd.isna(canon).astype(bool) if len(canon) else np.zeros(0, bool)
@@ -83,7 +94,16 @@ def numbers(cells, decimal_comma: bool = False) -> Cells:
 
 def _fast_then_slow(cells, one) -> Cells:
     """Plain numbers parsed in C; every other non-empty cell by ``one(text) -> (value, error)`` once per
-    distinct value (``error`` None: the cell is empty after all)."""
+    distinct value (``error`` None: the cell is empty after all). Cells already read as floats by the sheet
+    reader (see :func:`column`) are taken as they are: NaN as empty, infinity refused."""
+    if isinstance(cells, np.ndarray) and cells.dtype.kind == "f":
+        values = cells.astype(float, copy=True)
+        empty = np.isnan(values)
+        error = np.full(len(values), "", dtype=object)
+        inf = np.isinf(values)
+        error[inf] = [f"'{v}' is not a finite number" for v in values[inf]]
+        values[inf] = np.nan
+        return Cells(values, empty, error)
     cells = np.asarray(cells, dtype=object)
     fast = pd.to_numeric(pd.Series(cells, dtype=object), errors="coerce").to_numpy(dtype=float, copy=True)
     empty = cells == ""
@@ -209,7 +229,8 @@ def angles(cells, axis: str, decimal_comma: bool = False) -> Cells:
     distinct value. A hemisphere letter of the other axis (E/W in a latitude) is
     refused: the columns are probably swapped.
     """
-    cells = np.asarray(cells, dtype=object)
+    if not (isinstance(cells, np.ndarray) and cells.dtype.kind == "f"):     # floats: read by the sheet reader
+        cells = np.asarray(cells, dtype=object)
     out = _fast_then_slow(cells, lambda u: (np.nan, "?"))
     pending = out.error == "?"
     if pending.any():

@@ -31,6 +31,10 @@ from dfkit.observations.times import parse_times
 from dfkit.policy import MIN_SD_DEG, SPLIT_LABEL_GAP_H
 from dfkit.problems import Problem, SheetError
 
+#: Columns of plain numbers that the CSV reader may hand over as floats (every cell a finite plain number):
+#: the common case is then parsed once, in C, with no text kept; anything else is read as text, as before.
+NUMERIC_COLUMNS = ("lat", "lon", "easting", "northing", "bearing", "sd")
+
 
 def read_bearings(sheet, options: ReadOptions | None = None, **kwargs) -> Bearings:
     """Read, validate and convert a bearing sheet.
@@ -66,7 +70,7 @@ def read_bearings(sheet, options: ReadOptions | None = None, **kwargs) -> Bearin
                             f"{', '.join(sorted(known))}")
         opts = replace(opts, **kwargs)
     check_options(opts)
-    raw = read_table(sheet, worksheet=opts.worksheet)
+    raw = read_table(sheet, worksheet=opts.worksheet, numeric=NUMERIC_COLUMNS)
     try:
         check_columns(raw.columns, raw.source, stations=opts.stations is not None, track=opts.track is not None)
     except SheetError as err:
@@ -101,9 +105,7 @@ def read_bearings(sheet, options: ReadOptions | None = None, **kwargs) -> Bearin
     times = tm.seconds
 
     # bearing and unit
-    bearing_deg, b = _bearings(t, opts, raw.decimal_comma, log)
-    unit_c = column(t, "unit")
-    unit, _ = canonical(unit_c, UNIT_ALIASES, opts.unit)
+    bearing_deg, b, unit = _bearings(t, opts, raw.decimal_comma, log)
 
     # north, sd, declination
     north, north_unknown = canonical(column(t, "north"), NORTH_ALIASES, opts.north)
@@ -180,7 +182,7 @@ def _bearings(t, opts, decimal_comma, log: RowLog):
         log.reject((b < 0) & ~unit_unknown, "bearing", lambda idx: [
             f"{b[i]:g} is negative; bearings run 0 to {full[i]:g} clockwise (write {full[i] + b[i]:g})" for i in idx])
         log.reject((b > full) & ~unit_unknown, "bearing", lambda idx: [_range_hint(b[i], unit[i]) for i in idx])
-    return b * per_value(unit, lambda u: DEGREES_PER_UNIT.get(u, 1.0)).astype(float), b
+    return b * per_value(unit, lambda u: DEGREES_PER_UNIT.get(u, 1.0)).astype(float), b, unit
 
 
 def _sds(t, opts, decimal_comma, log: RowLog):

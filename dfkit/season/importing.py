@@ -12,7 +12,8 @@ from dfkit.season.store import ImportReport, SeasonStore
 
 
 def add_sheet(store: SeasonStore, sheet, options: ReadOptions | None = None, *, method: str = "mle",
-              level: float = 0.95, replace: bool = False, progress=None, **read_kwargs) -> ImportReport:
+              level: float = 0.95, replace: bool = False, progress=None, jobs: int = 1,
+              **read_kwargs) -> ImportReport:
     """Read a sheet, solve its fixes and store them as one import: the Python form of ``dfkit season add``.
 
     Parameters
@@ -27,6 +28,8 @@ def add_sheet(store: SeasonStore, sheet, options: ReadOptions | None = None, *, 
         As for :func:`dfkit.locate.locate`.
     replace : bool
         Replace stored fixes that this sheet changes (otherwise they are reported and kept).
+    jobs : int
+        Processes to solve the fixes on (as :func:`dfkit.locate.locate`).
 
     Returns
     -------
@@ -38,7 +41,7 @@ def add_sheet(store: SeasonStore, sheet, options: ReadOptions | None = None, *, 
         opts = dataclasses.replace(opts, **read_kwargs)
     say("reading")
     bearings = read_bearings(sheet, opts)
-    fixes = locate(bearings, method=method, level=level, progress=progress)
+    fixes = locate(bearings, method=method, level=level, progress=progress, jobs=jobs)
     record = {k: v for k, v in dataclasses.asdict(opts).items()}
     for name in ("stations", "track"):
         value = record.get(name)

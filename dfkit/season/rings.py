@@ -81,3 +81,30 @@ def lonlat_parts(geom):
         piece = shapely.transform(piece, lambda xy, k=k: xy - np.array([360.0 * k, 0.0]))
         parts += [orient(p, 1.0) for p in getattr(piece, "geoms", [piece]) if p.geom_type == "Polygon" and p.area > 0]
     return shapely.MultiPolygon(parts) if parts else None
+
+
+def lonlat_parts_many(geoms) -> list:
+    """:func:`lonlat_parts` of many geometries: polygons strictly within (-180, 180) all at once, by the same
+    GEOS operations (intersection with the world box, counter-clockwise orientation); the rest one by one."""
+    import shapely
+
+    geoms = np.asarray(list(geoms), dtype=object)
+    out = np.full(len(geoms), None, dtype=object)
+    if not len(geoms):
+        return []
+    have = np.array([g is not None for g in geoms], bool)
+    poly = np.zeros(len(geoms), bool)
+    poly[have] = shapely.get_type_id(geoms[have]) == 3
+    idx = np.flatnonzero(poly)
+    if len(idx):
+        b = shapely.bounds(geoms[idx])
+        idx = idx[(b[:, 0] > -180.0) & (b[:, 2] < 180.0) & ~shapely.is_empty(geoms[idx])]
+        piece = shapely.intersection(geoms[idx], shapely.box(-180.0, -90.0, 180.0, 90.0))
+        ok = (shapely.get_type_id(piece) == 3) & (shapely.area(piece) > 0)
+        out[idx[ok]] = shapely.multipolygons(shapely.orient_polygons(piece[ok], exterior_cw=False)[:, None])
+        poly[:] = False
+        poly[idx[ok]] = True
+    for i in np.flatnonzero(~poly):
+        out[i] = lonlat_parts(geoms[i])
+    return out.tolist()
+

@@ -43,7 +43,7 @@ from dfkit.problems import Problem
 from dfkit.season import gpkg
 from dfkit.season.keys import KEY_SCHEME, bearing_keys
 from dfkit.season.query import SeasonFilter
-from dfkit.season.rings import ellipse_rings, lonlat_parts
+from dfkit.season.rings import ellipse_rings, lonlat_parts_many
 
 #: Layout version of the store; a newer file is refused, an older one migrated (see :data:`_MIGRATIONS`).
 SCHEMA_VERSION = 1
@@ -525,7 +525,7 @@ class SeasonStore:
         if not len(reg):
             return
         t = fixes.table.iloc[reg["fix_id"].to_numpy(np.int64)].reset_index(drop=True)
-        geoms = [lonlat_parts(g) for g in reg["geometry"]]
+        geoms = lonlat_parts_many(reg["geometry"])
         t = t.assign(kind="likelihood", bounded=reg["bounded"].astype(bool).to_numpy(),
                      area_m2=np.nan if "area_m2" not in reg else reg["area_m2"].to_numpy(float))
         cols = {c: c for c in _REGION_COLUMNS if c in t.columns and c not in ("semi_major_m", "semi_minor_m",

@@ -1,0 +1,90 @@
+"""dfkit's CSV writer writes byte for byte what pandas' ``DataFrame.to_csv`` writes for the same prepared table.
+
+The reference is pandas itself (``to_csv(index=False, lineterminator="\\n")`` under QUOTE_MINIMAL, as dfkit
+wrote its tables before it formatted the cells itself), on tables with the awkward cells: NaN, -0.0,
+infinity, huge and tiny floats, missing times, text needing quotes, line ends, formula-looking text, booleans,
+integers, and columns repeating few values (formatted once per value).
+"""
+
+from __future__ import annotations
+
+import csv
+import io
+
+import numpy as np
+import pandas as pd
+import pytest
+
+from dfkit.export import csv as dcsv
+from dfkit.export.csv import write_table
+
+
+def _pandas_bytes(df, guard=True):
+    """What write_table wrote when pandas formatted every table (the prepared table, the same header)."""
+    table = dcsv._for_csv(df, guard)
+    header = dcsv.neutralise_formulas(pd.Series([str(c) for c in table.columns], dtype=object), guard=guard).tolist()
+    first = table.iloc[:, 0]
+    hashed = header[0].startswith("#") or ((first.dtype == object or pd.api.types.is_string_dtype(first.dtype))
+                                           and bool(first.astype(str).str.startswith("#").any()))
+    buf = io.StringIO()
+    table.to_csv(buf, index=False, header=header, lineterminator="\n",
+                 quoting=csv.QUOTE_NONNUMERIC if hashed else csv.QUOTE_MINIMAL)
+    return buf.getvalue().encode("utf-8")
+
+
+def _varied(n, rng):
+    floats = rng.normal(0, 1, n) * 10.0 ** rng.integers(-30, 30, n)
+    floats[::7] = np.nan
+    floats[1::11] = -0.0
+    floats[2::13] = np.inf
+    floats[3::17] = -np.inf
+    floats[4::19] = 1e16
+    floats[5::23] = 1e-5
+    text = np.array(["plain", "", "a,b", 'say "hi"', "two\nlines", "cr\rhere", "crlf\r\nhere", "=1+2", "-x", "+3",
+                     "-12.5", "@home", "\ttab", "'=A1", "Grüße ✓", " padded ", "#not first"], dtype=object)
+    times = pd.Series(pd.to_datetime(rng.integers(1.7e9, 1.8e9, n), unit="s", utc=True))
+    times[::5] = pd.NaT
+    return pd.DataFrame({
+        "fix": [f"F{i}" for i in range(n)],
+        "lat": rng.uniform(-90, 90, n),                      # rounded to 7 decimals by the writer
+        "lon": rng.uniform(-180, 180, n),
+        "cov_en_m2": rng.normal(0, 1e-3, n),                 # rounds to -0.0 and 0.0 often
+        "raw": floats,
+        "few": rng.choice([0.0, -0.0, 0.1, 2.5, np.nan, 1e300], n),   # few distinct values
+        "count": rng.integers(-5, 10**12, n),
+        "small": rng.integers(0, 3, n),
+        "flag": rng.random(n) < 0.5,
+        "time": times,
+        "note": rng.choice(text, n),
+        "status": rng.choice(["ok", "flagged", "failed"], n),
+        "maybe": pd.Series(rng.choice(np.array(["x", None, "y,z"], dtype=object), n), dtype=object),
+    })
+
+
+@pytest.mark.parametrize("n", [3, 1500, 45_000])      # 45,000 rows: written in three pieces
+@pytest.mark.parametrize("guard", [True, False])
+def test_same_bytes_as_pandas(tmp_path, n, guard):
+    df = _varied(n, np.random.default_rng(n))
+    out = tmp_path / "t.csv"
+    write_table(df, out, guard_formulas=guard)
+    assert dcsv._formats_all(dcsv._for_csv(df, guard))                       # the fast writer did the work
+    assert out.read_bytes() == _pandas_bytes(df, guard)
+
+
+def test_header_needing_quotes_and_empty_table(tmp_path):
+    df = pd.DataFrame({"a,b": [1.5, np.nan], 'say "x"': ["q", ""], "=sum": [True, False]})
+    write_table(df, tmp_path / "h.csv")
+    assert (tmp_path / "h.csv").read_bytes() == _pandas_bytes(df)
+    empty = df.iloc[:0]
+    write_table(empty, tmp_path / "e.csv")
+    assert (tmp_path / "e.csv").read_bytes() == _pandas_bytes(empty)
+
+
+def test_tables_the_fast_writer_leaves_to_pandas(tmp_path):
+    # a first column that could start with '#' (quoted throughout), a single column, mixed-type cells
+    for df in (pd.DataFrame({"fix": ["#1", "2"], "lat": [1.0, 2.0]}),
+               pd.DataFrame({"only": ["", "x"]}),
+               pd.DataFrame({"fix": ["a", "b"], "mixed": pd.Series([1.5, "x"], dtype=object)})):
+        assert df.shape[1] < 2 or df["fix"].str.startswith("#").any() or not dcsv._formats_all(df)
+        write_table(df, tmp_path / "p.csv")
+        assert (tmp_path / "p.csv").read_bytes() == _pandas_bytes(df)

@@ -1,0 +1,35 @@
+"""`dfkit fix` to CSV loads only what it uses: no plotting, mapping, GIS or scipy modules (they cost start-up time
+and memory on every run; they are imported inside the functions that need them)."""
+
+from __future__ import annotations
+
+import subprocess
+import sys
+
+HEAVY = ("scipy", "matplotlib", "folium", "branca", "jinja2", "geopandas", "shapely", "pyogrio", "tqdm",
+         "python_calamine", "openpyxl", "pyarrow")
+
+PROBE = """
+import sys
+from dfkit.cli import main
+try:
+    main(sys.argv[1:])
+except SystemExit:
+    pass
+print(" ".join(sorted({m.split(".")[0] for m in sys.modules})))
+"""
+
+
+def _loaded(args, cwd):
+    r = subprocess.run([sys.executable, "-c", PROBE, *args], capture_output=True, text=True, cwd=cwd, check=True)
+    return set(r.stdout.split())
+
+
+def test_fix_help_and_a_csv_fix_load_no_heavy_module(tmp_path):
+    sheet = tmp_path / "s.csv"
+    sheet.write_text("fix,lat,lon,bearing,sd\nA,47.0,15.0,45,3\nA,47.0,15.02,315,3\nA,46.99,15.01,0,3\n")
+    for args in (["fix", "--help"], ["fix", str(sheet), "-o", str(tmp_path / "out.csv")]):
+        loaded = _loaded(args, tmp_path)
+        assert "dfkit" in loaded and "pandas" in loaded          # the probe ran
+        assert not loaded & set(HEAVY), (args, sorted(loaded & set(HEAVY)))
+    assert (tmp_path / "out.csv").exists()
