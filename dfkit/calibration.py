@@ -409,16 +409,23 @@ def read_trials(sheet, options: ReadOptions | None = None, **kwargs) -> Trials:
     table["error_deg"] = wrap180(table["true_bearing"].to_numpy(float) - az[ok])
     table = table.reset_index(drop=True)
 
+    # Trials are not grouped into fixes: the reader's word on how it grouped a sheet without fix labels and
+    # times ("all bearings of each tag form one fix") means nothing here.
     problems = sorted(
-        bearings.problems + bproblems, key=lambda p: (p.source != raw.source, p.line, p.severity != "error")
+        [p for p in bearings.problems if not (p.column == "fix" and p.message.startswith(_ONE_FIX_WORDS))]
+        + bproblems, key=lambda p: (p.source != raw.source, p.line, p.severity != "error")
     )
-    notes = list(bearings.notes)
+    notes = [n for n in bearings.notes if not n.startswith(_ONE_FIX_WORDS)]
     if "sd" in raw.columns or opts.sd is not None:
         notes.append("the sheet's sd (or --sd) is not used: the calibration measures the SD")
     sel = replace(sel, problems=problems, notes=notes, table=table)
     return Trials(
         table=table, bearings=sel, problems=problems, n_rows=len(lines), notes=notes, source=raw.source
     )
+
+
+#: How :mod:`dfkit.observations.grouping` begins its word on a sheet without fix labels and times.
+_ONE_FIX_WORDS = "no fix labels and no times"
 
 
 # --------------------------------------------------------------------------- calibrating
@@ -893,7 +900,9 @@ def apply(bearings: Bearings, cal: Calibration) -> Bearings:
     kept = ~hit & np.isfinite(sd_now)
     none = ~hit & ~np.isfinite(sd_now)
     if kept.any():
-        parts.append(f"{int(kept.sum())} kept the sheet's sd or --sd (no usable calibration group)")
+        which = _unmatched(t, kept & ~set_aside, usable, cal.by) if cal.by and not absent else ""
+        parts.append(f"{int(kept.sum())} kept the sheet's sd or --sd (no usable calibration group"
+                     + (": " + which if which else "") + ")")
     if (set_aside & none).any():
         k = int((set_aside & none).sum())
         parts.append(
@@ -902,7 +911,8 @@ def apply(bearings: Bearings, cal: Calibration) -> Bearings:
         )
     if (none & ~set_aside).any():
         k = int((none & ~set_aside).sum())
-        parts.append(f"{k} ha{'ve' if k != 1 else 's'} no matching group and no sd")
+        which = _unmatched(t, none & ~set_aside, usable, cal.by) if cal.by and not absent else ""
+        parts.append(f"{k} ha{'ve' if k != 1 else 's'} no matching group and no sd" + (": " + which if which else ""))
     if none.any():
         parts.append("a fix with a bearing of unknown SD estimates its SD from its own residuals")
     if not parts:
@@ -928,6 +938,42 @@ def apply(bearings: Bearings, cal: Calibration) -> Bearings:
                 "other antennas or give their sd)"
             )
     return replace(bearings, table=t, notes=notes, problems=list(bearings.problems) + list(cal.problems))
+
+
+def _unmatched(t: pd.DataFrame, rows, groups: pd.DataFrame, by) -> str:
+    """Which group values of ``rows`` found no calibration group, on which lines, and the group a value was
+    probably meant to be (the same letters and digits: 'H adcock' for 'H-adcock')."""
+    import difflib
+
+    rows = np.asarray(rows, bool)
+    if not rows.any():
+        return ""
+    known = [tuple(str(v) for v in row) for row in zip(*(groups[b].to_numpy(dtype=object) for b in by))]
+
+    def loose(values):
+        return "|".join("".join(ch for ch in str(v).casefold() if ch.isalnum()) for v in values)
+
+    by_loose = {loose(k): k for k in known}
+    values = list(zip(*(t[b].to_numpy(dtype=object)[rows] for b in by)))
+    lines = t["line"].to_numpy()[rows] if "line" in t.columns else np.zeros(int(rows.sum()), int)
+    seen: dict = {}
+    for v, ln in zip(values, lines):
+        seen.setdefault(tuple(str(x) for x in v), []).append(int(ln))
+    parts = []
+    for v, lns in list(seen.items())[:5]:
+        where = f"line{'s' if len(lns) > 1 else ''} {', '.join(str(x) for x in lns[:6])}" + (
+            " ..." if len(lns) > 6 else "")
+        guess = by_loose.get(loose(v))
+        if guess is None:
+            close = difflib.get_close_matches(loose(v), list(by_loose), n=1, cutoff=0.8)
+            guess = by_loose[close[0]] if close else None
+        text = " ".join(f"{b} '{x}'" if x != "" else f"{b} (blank)" for b, x in zip(by, v)) + f" ({where}"
+        text += (f": did you mean {' '.join(repr(x) for x in guess)}?)" if guess else ")")
+        parts.append(text)
+    if len(seen) > 5:
+        parts.append(f"{len(seen) - 5} more values")
+    groups_text = ", ".join(" ".join(k) for k in known[:8]) + (" ..." if len(known) > 8 else "")
+    return ", ".join(parts) + (f"; the calibration has {'+'.join(by)} {groups_text}" if known else "")
 
 
 def _match(t: pd.DataFrame, groups: pd.DataFrame, by) -> np.ndarray:

@@ -599,7 +599,8 @@ def _plan_sds(fb: pd.DataFrame, row: pd.Series, next_sd_deg) -> _SDs:
     if row["sd_source"] == "estimated":
         notes.append(
             f"the SD is estimated from this fix's own {int(row['n_used'])} bearings "
-            f"({int(row['n_used']) - 2} degrees of freedom): a weak estimate; calibrate or give --sd"
+            f"({int(row['n_used']) - 2} degree{'' if int(row['n_used']) == 3 else 's'} of freedom): a weak "
+            "estimate; calibrate or give --sd"
         )
     dof = fb["sd_dof"].to_numpy(float) if "sd_dof" in fb.columns else np.zeros(0)
     if row["sd_source"] == "estimated" or np.isfinite(dof).any():

@@ -536,7 +536,7 @@ def test_an_estimated_sd_is_called_weak(tmp_path):
     )
     plan = plan_next_bearing(read_bearings(sheet), "H", spots=spots_table([("x", *direct(*T, 60.0, 900.0))]))
     assert plan.fix_row["sd_source"] == "estimated"
-    assert any("1 degrees of freedom): a weak estimate" in n for n in plan.notes)
+    assert any("1 degree of freedom): a weak estimate" in n for n in plan.notes)
     assert np.isfinite(plan.table["expected_area_m2"].iloc[0])
 
 
