@@ -710,7 +710,7 @@ def _open_map(path: pathlib.Path):
 @pytest.mark.skipif(CHROMIUM is None, reason="Debian's chromium is not installed (apt-get install chromium)")
 @pytest.mark.parametrize("grid", [False, True])
 def test_plan_map_works_offline_and_escapes_user_text(tmp_path, write_sheet, grid):
-    from dfkit.planmap import plan_map
+    from dfkit.maps.plan import plan_map
 
     sheet = write_sheet(
         'fix,lat,lon,bearing,sd,note\n"</script><b>f</b>",47,15,45,3,"<img src=x onerror=alert(1)>"\n'

@@ -154,7 +154,7 @@ def _write(plan, path):
     elif ext in (".geojson", ".json"):
         write_plan_geojson(plan, path)
     else:
-        from dfkit.planmap import plan_map
+        from dfkit.maps.plan import plan_map
 
         plan_map(plan).save(path)
         print(f"wrote {path} (works offline)", file=sys.stderr)
