@@ -353,3 +353,80 @@ def test_bad_arguments_name_the_parameter():
         one_fix(st, b, method="andrews", robust_c=0)
     with pytest.raises(ValueError, match=r"method='x' is not one of 'mle', 'huber'"):
         one_fix(st, b, method="x")
+
+
+# Two fixes of five bearings, one a reflection, on which Stansfield's plain re-weighting crawls (the first) or
+# circles (the second) for hundreds of rounds: (station lat, lon, observed true bearing), SD 5 degrees.
+STANSFIELD_HARD = [
+    [(47.036011, 8.371727, 7.8), (47.034161, 8.362700, 357.0), (47.039122, 8.354902, 89.2),
+     (47.044888, 8.354925, 139.9), (47.045321, 8.368119, 208.2)],
+    [(47.918189, 7.733815, 141.4), (47.928125, 7.753990, 217.2), (47.910575, 7.757935, 286.3),
+     (47.902858, 7.744491, 272.3), (47.913012, 7.731400, 92.5)],
+]
+
+
+@pytest.mark.parametrize("rows", STANSFIELD_HARD)
+def test_stansfield_reaches_its_fixed_point_with_a_wild_bearing(rows):
+    st = np.array(rows)
+    s = one_fix(st[:, :2], st[:, 2], method="stansfield", sd_deg=np.full(len(st), 5.0))
+    assert s.converged[0] and s.ending_name(0) == "optimum"
+    # Stansfield (1947): the answer is the least-squares point of the bearing lines weighted by 1/(d sigma)^2,
+    # with the ranges d from the answer itself. Check it independently in the answer's azimuthal equidistant
+    # plane built with geographiclib: station i at distance d_i and azimuth a_i from the answer; its line runs
+    # through it in the direction of the station-to-answer direction (a_i + 180) turned by the residual r_i
+    # (observed bearing minus the geodesic azimuth from the station to the answer).
+    A = np.zeros((2, 2))
+    rhs = np.zeros(2)
+    for la, lo, th in rows:
+        inv = WGS.Inverse(s.lat[0], s.lon[0], la, lo)
+        a, d = np.radians(inv["azi1"]), inv["s12"]
+        r = np.radians((th - WGS.Inverse(la, lo, s.lat[0], s.lon[0])["azi1"] + 180.0) % 360.0 - 180.0)
+        phi = a + np.pi + r
+        n = np.array([np.cos(phi), -np.sin(phi)])             # unit normal of the line (x east, y north)
+        v = 1.0 / d**2
+        A += v * np.outer(n, n)
+        rhs += v * n * (n @ (d * np.array([np.sin(a), np.cos(a)])))
+    step = np.linalg.solve(A, rhs)                           # the re-weighted point, from the answer [m]
+    assert np.hypot(*step) < 0.01
+
+
+def _five_around(truth, errors_deg, ranges=(900.0, 1400.0, 1100.0, 1600.0, 1000.0)):
+    """Five stations around ``truth`` (72 degrees apart), observing it with the given errors (geographiclib)."""
+    st, b = [], []
+    for k, (err, rng) in enumerate(zip(errors_deg, ranges)):
+        d = WGS.Direct(truth[0], truth[1], 10.0 + 72.0 * k, rng)
+        st.append((d["lat2"], d["lon2"]))
+        b.append((d["azi2"] + 180.0 + err) % 360.0)        # azi2 points away from the truth
+    return np.array(st), np.array(b)
+
+
+def test_andrews_drops_a_wild_bearing_the_others_cannot_test_when_all_together_are_implausible():
+    # SD unknown: four bearings a few degrees off and a reflection 60 degrees off. The kept four (2 degrees of
+    # freedom) are far too few to prove the fifth wild by an outlier test, but all five together would need an
+    # SD far above any directional antenna's: the reflection is dropped and the fix is the four's.
+    truth = (47.2, 8.6)
+    st, b = _five_around(truth, [3.0, -4.0, 2.0, -3.0, 60.0])
+    s = one_fix(st, b, method="andrews")
+    assert s.converged[0]
+    assert s.weight[4] == 0.0 and (s.weight[:4] > 0).all()
+
+    # Lenth's likelihood of the four good bearings, maximised by scipy on geographiclib azimuths
+    def negll(p):
+        return -sum(np.cos(np.radians(bb - WGS.Inverse(la, lo, p[0], p[1])["azi1"])) for (la, lo), bb in
+                    zip(st[:4], b[:4]))
+    ref = optimize.minimize(negll, [truth[0], truth[1]], method="Nelder-Mead",
+                            options={"xatol": 1e-10, "fatol": 1e-14, "maxiter": 4000}).x
+    cov = s.cov_en[0]
+    dist = WGS.Inverse(ref[0], ref[1], s.lat[0], s.lon[0])["s12"]
+    # Andrews' weights of the kept four differ a little from 1: the fix is a small part of its SD from the MLE
+    assert dist < 0.25 * np.sqrt(np.linalg.eigvalsh(cov).min())
+    assert s.sd_deg[0] < 10.0 and s.dof[0] == 2
+
+
+def test_andrews_keeps_a_doubtful_bearing_down_weighted_when_all_together_are_plausible():
+    # SD unknown: a bearing 25 degrees off among five that agree within a few degrees. All five together would
+    # still fit with a plausible SD (below 20 degrees), so it is not dropped, only down-weighted.
+    st, b = _five_around((47.2, 8.6), [3.0, -4.0, 2.0, -3.0, 25.0])
+    s = one_fix(st, b, method="andrews")
+    assert s.converged[0]
+    assert (s.weight > 0).all() and s.weight[4] < 1.0

@@ -239,3 +239,42 @@ def test_nearly_parallel_lines_are_not_called_parallel(write_sheet):
     assert status_of(fixes, "FAR")[0] == "shallow" and "cross at" in status_of(fixes, "FAR")[1]
     assert status_of(fixes, "DIV")[0] == "diverging" and "parallel" not in status_of(fixes, "DIV")[1].split(":")[0]
     assert status_of(fixes, "PAR")[0] == "parallel"
+
+
+def test_two_answers_that_fit_equally_are_called_ambiguous(write_sheet):
+    # Stations A and B stand on one geodesic through two points T and Q, 700 m apart, so both their lines pass
+    # through both; C points exactly at T and D exactly at Q (geographiclib). Leaving out C or D, the other three
+    # meet exactly, at Q or at T: two answers that fit equally well. Andrews (SD known) drops one of C and D; the
+    # fix must not be ok, and the reason must name both lines.
+    T = (47.0, 8.0)
+    south = WGS.Direct(T[0], T[1], 180.0, 1200.0)
+    a = (south["lat2"], south["lon2"])
+    line = WGS.Inverse(a[0], a[1], T[0], T[1])
+    Q = WGS.Direct(a[0], a[1], line["azi1"], line["s12"] + 700.0)
+    Q = (Q["lat2"], Q["lon2"])
+    far = WGS.Direct(a[0], a[1], line["azi1"], line["s12"] + 2000.0)
+    b = (far["lat2"], far["lon2"])
+    c = WGS.Direct(T[0], T[1], 90.0, 1000.0)
+    c = (c["lat2"], c["lon2"])
+    d = WGS.Direct(Q[0], Q[1], 270.0, 900.0)
+    d = (d["lat2"], d["lon2"])
+    rows = [("X", *a, round(az(a, T), 6), 3, ""), ("X", *b, round(az(b, T), 6), 3, ""),
+            ("X", *c, round(az(c, T), 6), 3, ""), ("X", *d, round(az(d, Q), 6), 3, "")]
+    fixes = locate(read_bearings(write_sheet(sheet_of(rows))), method="andrews")
+    status, reason, row = status_of(fixes, "X")
+    assert status == "ambiguous", reason
+    assert "line 4" in reason and "line 5" in reason            # C and D (the header is line 1)
+    at_t = WGS.Inverse(row["lat"], row["lon"], *T)["s12"]
+    at_q = WGS.Inverse(row["lat"], row["lon"], *Q)["s12"]
+    assert min(at_t, at_q) < 1.0                               # the fix is one of the two exact answers
+    other = Q if at_t < at_q else T
+    assert f"{other[0]:.5f}, {other[1]:.5f}" in reason          # and the reason gives the other
+    assert row["region_bounded"] and not fixes.contains(*other)[0]
+    # Lenth's fit keeps all four: inconsistent, and the reason says that either C or D may be the wild one, the two
+    # answers being T and Q, 700 m apart by construction
+    status, reason, _ = status_of(locate(read_bearings(write_sheet(sheet_of(rows), "mle.csv"))), "X")
+    assert status == "inconsistent"
+    assert "without line 4, or without line 5, the other bearings agree, at two places 700 m apart" in reason
+    # the same bearings without D have one answer, T: ok
+    alone = locate(read_bearings(write_sheet(sheet_of(rows[:3]), "three.csv")), method="andrews")
+    assert status_of(alone, "X")[0] == "ok"

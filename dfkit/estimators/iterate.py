@@ -143,11 +143,23 @@ def optimise(terms, objective, geo, cg, mg, x, y, w, s, c, tol, max_iter, r_run)
     return x, y, ending, iters
 
 
+#: Plain re-weighting rounds before Stansfield's fixed point is searched by Newton's method on T(x) - x.
+PLAIN_ROUNDS = 8
+#: Newton rounds in a row that fail to shrink |T(x) - x| before a fixed-point search is called stalled (it sits
+#: at a local minimum of |T(x) - x| that is no fixed point).
+STALL_ROUNDS = 6
+
+
 def fixed_point(geo, cg, mg, x, y, w, tol, max_iter, r_run):
     """Stansfield's re-weighted least squares from (x, y) until the point stops moving.
 
-    A step that turns back on the previous one is halved (down to 1/64), so no fix is
-    left alternating between two points. Returns x, y, ending, iterations.
+    The fixed point is x = T(x), T the weighted least-squares point with ranges from x
+    (:func:`dfkit.estimators.stansfield.step`). The plain iteration x <- T(x) converges only
+    linearly, and with a wild bearing it can crawl (rates near 1) or circle a fixed point it
+    never reaches; so after :data:`PLAIN_ROUNDS` rounds a fix still moving takes Newton steps on
+    G(x) = T(x) - x (Jacobian by forward differences), each accepted only if it shrinks |G|, and a
+    step of the plain iteration otherwise. A plain step that turns back on the previous one is halved
+    (down to 1/64). Returns x, y, ending, iterations.
     """
     x = np.array(x, float)
     y = np.array(y, float)
@@ -157,10 +169,16 @@ def fixed_point(geo, cg, mg, x, y, w, tol, max_iter, r_run):
     last = np.full(mg, np.inf)
     lx = np.zeros(mg)
     ly = np.zeros(mg)
-    for idx, grp, bcg in _Compact(cg, mg).rounds(ending, max_iter):
+    failed_newton = np.zeros(mg, np.int64)
+    for rnd, (idx, grp, bcg) in enumerate(_Compact(cg, mg).rounds(ending, max_iter)):
         running = ending == RUNNING
-        qx, qy, ratio = stansfield.step(bcg, len(grp), geo.sx[idx], geo.sy[idx], geo.phi[idx], w[idx],
-                                        x[grp], y[grp])
+        n_g = len(grp)
+        sx_b, sy_b, phi_b, w_b = geo.sx[idx], geo.sy[idx], geo.phi[idx], w[idx]
+
+        def T(px, py):
+            return stansfield.step(bcg, n_g, sx_b, sy_b, phi_b, w_b, px, py)
+
+        qx, qy, ratio = T(x[grp], y[grp])
         live = running[grp]
         singular = live & (~np.isfinite(qx) | ~np.isfinite(qy) | (ratio < SINGULAR_RATIO))
         ending[grp[singular]] = SINGULAR
@@ -168,12 +186,17 @@ def fixed_point(geo, cg, mg, x, y, w, tol, max_iter, r_run):
         stepx = np.where(live, qx - x[grp], 0.0)
         stepy = np.where(live, qy - y[grp], 0.0)
         step = np.hypot(stepx, stepy)
+        newton = np.zeros(n_g, bool)
+        if rnd >= PLAIN_ROUNDS and live.any():
+            nx_, ny_, ok = _newton_fixed_point(T, x[grp], y[grp], stepx, stepy, step, r_run[grp])
+            newton = live & ok
+            failed_newton[grp] = np.where(live & ~ok, failed_newton[grp] + 1, 0)
         with np.errstate(invalid="ignore"):
-            reverse = live & (stepx * lx[grp] + stepy * ly[grp] < 0) & (step >= 0.5 * last[grp])
+            reverse = live & ~newton & (stepx * lx[grp] + stepy * ly[grp] < 0) & (step >= 0.5 * last[grp])
         damp[grp] = np.where(reverse, np.maximum(damp[grp] * 0.5, 1.0 / 64.0), damp[grp])
         last[grp] = np.where(live, step, last[grp])
-        stepx *= damp[grp]
-        stepy *= damp[grp]
+        stepx = np.where(newton, nx_ if newton.any() else 0.0, stepx * damp[grp])
+        stepy = np.where(newton, ny_ if newton.any() else 0.0, stepy * damp[grp])
         lx[grp], ly[grp] = stepx, stepy
         x[grp] += stepx
         y[grp] += stepy
@@ -181,8 +204,36 @@ def fixed_point(geo, cg, mg, x, y, w, tol, max_iter, r_run):
         ending[grp[live & (step < tol)]] = SETTLED
         far = live & (step >= tol) & (np.hypot(x[grp], y[grp]) > r_run[grp])
         ending[grp[far]] = RUNAWAY
+        ending[grp[live & (step >= tol) & ~far & (failed_newton[grp] >= STALL_ROUNDS)]] = STALLED
     ending[ending == RUNNING] = MAX_ITER
     return x, y, ending, iters
+
+
+def _newton_fixed_point(T, x, y, gx, gy, gnorm, r_run):
+    """Newton steps for G(x) = T(x) - x at (x, y) with G = (gx, gy), backtracked (1, 1/2, 1/4) until |G|
+    shrinks: the steps and whether one was found."""
+    h = np.maximum(1e-7 * r_run, 1e-4)                       # forward-difference step [m]
+    tx1, ty1, _ = T(x + h, y)
+    tx2, ty2, _ = T(x, y + h)
+    # Jacobian of G: dT/dx - I
+    a11 = (tx1 - x - h - gx) / h
+    a21 = (ty1 - y - gy) / h
+    a12 = (tx2 - x - gx) / h
+    a22 = (ty2 - y - h - gy) / h
+    det = a11 * a22 - a12 * a21
+    with np.errstate(divide="ignore", invalid="ignore"):
+        dx = -(a22 * gx - a12 * gy) / det
+        dy = -(-a21 * gx + a11 * gy) / det
+    good = np.isfinite(dx) & np.isfinite(dy)
+    dx = np.where(good, dx, 0.0)
+    dy = np.where(good, dy, 0.0)
+    lam = np.zeros(len(x))
+    for step in (0.25, 0.5, 1.0):                          # the largest step that shrinks |G| wins
+        qx, qy, _ = T(x + step * dx, y + step * dy)
+        with np.errstate(invalid="ignore"):
+            shrinks = good & (np.hypot(qx - x - step * dx, qy - y - step * dy) < (1.0 - ARMIJO * step) * gnorm)
+        lam = np.where(shrinks, step, lam)
+    return lam * dx, lam * dy, lam > 0
 
 
 def closed_form(geo, cg, mg, r_run):

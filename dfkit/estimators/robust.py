@@ -21,6 +21,9 @@ once from the start (a trimmed scale that leaves out the worst bearing, see
 :func:`start_scale`) and then held fixed, so it cannot shrink onto the good
 bearings as the fit proceeds; the region then uses the classical n - 2 scale
 of the bearings that keep their weight (:mod:`dfkit.estimators.covariance`).
+Whether a bearing Andrews' weights drop stays dropped is decided without that
+scale, by whether all the bearings together could be right
+(:func:`dfkit.estimators.solve._settle_unknown_sd`).
 
 Tuning constants: c = 1.5 is the value usually quoted with Lenth (1981) for both
 (from memory, unconfirmed against the paper); dfkit's defaults were chosen by

@@ -20,14 +20,15 @@ import numpy as np
 
 from dfkit import geodesy
 from dfkit.conventions import wrap180
-from dfkit.estimators import iterate, registry, stansfield
+from dfkit.estimators import iterate, registry, stansfield, subsets
 from dfkit.estimators.covariance import position_covariance
-from dfkit.estimators.groups import gsum, solve2
+from dfkit.estimators.groups import best_in_group, gsum, solve2
 from dfkit.estimators.lenth import kappa_from_sd
 from dfkit.estimators.lsq import planar_point
 from dfkit.estimators.plane import geometry, residuals
-from dfkit.estimators.robust import MAX_SCALE, start_scale
+from dfkit.estimators.robust import MAX_SCALE, chord, start_scale
 from dfkit.estimators.starts import choose, objective_score, trimmed_score
+from dfkit.policy import PLAUSIBLE_SD_DEG
 
 #: Observed bearing lines whose doubled-angle spread is below this are parallel [°]: two lines this close
 #: to parallel would meet about 1/0.0035 = 290 station spreads away, beyond the runaway limit below (two
@@ -50,13 +51,13 @@ VERIFY_M = 0.01
 #: A point closer to a station than this fraction of the stations' spread is "on the station": the
 #: likelihood of a bearing grows without bound towards its own observer, so it is never an answer.
 NEAR_STATION = 0.01
-#: Level of the test that confirms a dropped bearing when the SD is unknown (per fix, Bonferroni).
-#: Chosen by measured coverage (benchmarks/coverage.py): clean fixes rarely lose a good bearing.
-OUTLIER_LEVEL = 0.01
 #: At the least-squares start, a residual beyond this marks a fix whose candidate starts must be ranked [°].
 CLEAN_START_DEG = 20.0
 #: Starts tried per fix: the best candidate first, the next ones only when a fit fails.
 MAX_STARTS = 3
+#: Starts tried per fix by Stansfield's fixed point, whose re-weighting can stall at a point that is no fixed
+#: point (a local minimum of |T(x) - x|) from a start that the optimisers would leave.
+FIXED_POINT_STARTS = 6
 
 #: How each fit ended (``Solution.ending``), as names.
 ENDINGS = ("optimum", "too_few", "parallel", "runaway", "singular", "stalled", "max_iter", "not_optimum",
@@ -136,7 +137,7 @@ def _check_inputs(lat, lon, theta, g, m, sd):
 
 
 def solve(lat, lon, bearing_deg, group, n_groups, sd_deg=None, *, method="mle", robust_c=None,
-          tol_m=1e-4, max_iter=60, max_outer=30) -> Solution:
+          tol_m=1e-4, max_iter=100, max_outer=30) -> Solution:
     """Solve many fixes at once.
 
     Parameters
@@ -205,8 +206,9 @@ def solve(lat, lon, bearing_deg, group, n_groups, sd_deg=None, *, method="mle", 
     # Starts, and the scale of the robust weights: the SD when known, else the trimmed scale at the
     # start, held fixed from then on.
     s_b = np.where(known_b, sd_rad, np.nan)
-    x0 = np.full((m, MAX_STARTS), np.nan)
-    y0 = np.full((m, MAX_STARTS), np.nan)
+    k_starts = FIXED_POINT_STARTS if spec.kind == "fixed_point" else MAX_STARTS
+    x0 = np.full((m, k_starts), np.nan)
+    y0 = np.full((m, k_starts), np.nan)
     n_starts = np.where(base, 1, 0)
     searched = np.zeros(m, bool)            # fixes whose candidate starts were ranked
     if spec.kind != "closed":
@@ -238,20 +240,8 @@ def solve(lat, lon, bearing_deg, group, n_groups, sd_deg=None, *, method="mle", 
     state = dict(P_lat=P_lat, P_lon=P_lon, ending=ending, iterations=iterations, geo=geo, verified=verified)
     more = None if starter is None else (lambda which: starter.fill(which & ~searched, x0, y0, n_starts, searched))
     _attempts(ctx, state, base, n_starts, x0, y0, more)
-    if spec.robust and (base & ~known_g).any():
-        # With the SD unknown, a bearing is dropped only when the others show it to be wild: an
-        # unconfirmed drop is undone by solving again with no bearing down-weighted to zero.
-        weight = spec.weights(state["geo"].r, s_b, c)
-        undo = _unconfirmed_drops(g, m, state["geo"], weight, base & ~known_g & state["verified"], counts)
-        if undo.any() and spec.name == "andrews":
-            # Andrews' fix falls back to Huber's weights at the same scale: the doubtful bearing is
-            # down-weighted, never dropped.
-            soft = registry.REGISTRY["huber"]
-            ctx_soft = dict(ctx, spec=soft, c=soft.default_c)
-            ctx["soft"] = undo
-            state["verified"][undo] = False
-            state["iterations"][undo] = 0
-            _attempts(ctx_soft, state, undo, n_starts, x0, y0, more)
+    if (base & ~known_g).any():
+        _settle_unknown_sd(ctx, state, base & ~known_g, counts, n_starts, x0, y0, more)
     return _finish(ctx, counts, state["geo"], state["P_lat"], state["P_lon"], state["ending"], state["verified"],
                    known_b, known_g, sd_rad, parallel, state["iterations"])
 
@@ -263,7 +253,8 @@ def _attempts(ctx, state, which, n_starts, x0, y0, more=None):
     """
     g = ctx["g"]
     verified = state["verified"]
-    for attempt in range(MAX_STARTS + 1):
+    k_starts = x0.shape[1]
+    for attempt in range(k_starts):
         todo = which & ~verified & (n_starts > attempt)
         if attempt == 1 and more is not None:
             failed = which & ~verified & (n_starts == 1)
@@ -272,7 +263,7 @@ def _attempts(ctx, state, which, n_starts, x0, y0, more=None):
                 todo = which & ~verified & (n_starts > attempt)
         if not todo.any():
             break
-        res = _run(ctx, todo, np.nan_to_num(x0[:, attempt % MAX_STARTS]), np.nan_to_num(y0[:, attempt % MAX_STARTS]))
+        res = _run(ctx, todo, np.nan_to_num(x0[:, attempt]), np.nan_to_num(y0[:, attempt]))
         ok = _verify(ctx, todo, res)
         take = todo & (ok | (attempt == 0))
         state["P_lat"][take], state["P_lon"][take] = res["lat"][take], res["lon"][take]
@@ -318,7 +309,7 @@ class _Starter:
         for sel, score in ((by_trim, lambda: trimmed_score(w, counts, g)),
                            (by_objective, lambda: objective_score(spec.objective, w, s_b, c))):
             if sel.any():
-                xs, ys = choose(geo0, g, m, counts, sel, score(), spread, MAX_STARTS)
+                xs, ys = choose(geo0, g, m, counts, sel, score(), spread, x0.shape[1])
                 had = np.isfinite(x0[:, 0]) & sel
                 # keep a least-squares start already tried as the first; the candidates follow
                 x0[sel] = np.where(had[sel, None], np.column_stack([x0[sel, :1], xs[sel, :-1]]), xs[sel])
@@ -328,44 +319,98 @@ class _Starter:
         searched |= which
 
 
-def _unconfirmed_drops(g, m, geo, weight, candidates, counts):
-    """Fixes (SD unknown) whose zero-weighted bearings the kept ones do not show to be wild.
+def _settle_unknown_sd(ctx, state, which, counts, n_starts, x0, y0, more):
+    """Andrews' fits with the SD unknown: a bearing is dropped only where the bearings together cannot be right.
 
-    A dropped bearing j is confirmed when its externally studentised residual
-    t_j = u_j / (s_K sqrt(1 + h_j)) (u_j = 2 sin(r_j/2); s_K the classical scale of the kept
-    bearings K with n_K - 2 degrees of freedom; h_j = g_j^T (sum_K g g^T)^-1 g_j) exceeds the
-    Student-t quantile t(1 - OUTLIER_LEVEL / (2 n); n_K - 2), a Bonferroni bound over the fix's n
-    bearings (e.g. S. Weisberg, *Applied Linear Regression*, 3rd ed., Wiley, 2005, sec. 9.1.1, the
-    outlier test [from memory]). With the level below, at most about 1 % of clean fixes lose a bearing.
-    A dropped bearing that points away from the fix (residual beyond 90 degrees) is confirmed
-    whatever the scale: a directional antenna does not read a transmitter behind it except by a
-    reversal (common practice, no single source).
+    The weights of a robust fit come from a scale estimated from the same few bearings; a drop confirmed
+    by comparing a bearing with that scale (an outlier test) happens mostly when the kept bearings agree
+    closely by chance, and the region drawn from them is then too small. dfkit decides instead by whether
+    all the bearings together could be right, which does not lean on the kept bearings' spread:
+
+    * a drop stands when the dropped bearings point away from the fix, or when Lenth's fit of *all* the
+      bearings is implausible (estimated SD above :data:`dfkit.policy.PLAUSIBLE_SD_DEG`, or no verified
+      optimum with every bearing in front); otherwise the fix falls back to Huber's weights at the same
+      scale (the doubtful bearing is down-weighted, never dropped);
+    * where the fit keeps every bearing but their spread is implausible, or the fit failed, the fix is
+      solved without the one bearing whose absence leaves the most plausible rest (the smallest SD within
+      the limit; four bearings or more), when there is one.
     """
-    dropped = (weight <= 0) & candidates[g]
-    if not dropped.any():
-        return np.zeros(m, bool)
-    kept = weight > 0
-    gx, gy = _gradients(geo)
-    n_k = gsum(g, kept.astype(float), m)
-    with np.errstate(divide="ignore", invalid="ignore"):
-        s2 = gsum(g, np.where(kept, geo.r ** 2, 0.0), m) / (n_k - 2)
-    j11, j12, j22 = (gsum(g, np.where(kept, t, 0.0), m) for t in (gx * gx, gx * gy, gy * gy))
-    det = j11 * j22 - j12 * j12
-    gi = g[dropped]
-    ax, ay = gx[dropped], gy[dropped]
-    with np.errstate(divide="ignore", invalid="ignore"):
-        h = (j22[gi] * ax * ax - 2 * j12[gi] * ax * ay + j11[gi] * ay * ay) / det[gi]
-        t = np.abs(2.0 * np.sin(0.5 * geo.r[dropped])) / np.sqrt(s2[gi] * (1.0 + h))
-    from scipy.special import stdtrit   # only needed here; scipy.special is slow to import
+    spec, g, m, s_b, c = ctx["spec"], ctx["g"], ctx["m"], ctx["s_b"], ctx["c"]
+    if spec.name != "andrews":
+        return
+    limit = np.radians(PLAUSIBLE_SD_DEG)
+    geo = state["geo"]
+    ver = which & state["verified"]
+    weight = spec.weights(geo.r, s_b, c)
+    dropped = (weight <= 0) & ver[g]
+    has_drop = np.zeros(m, bool)
+    np.logical_or.at(has_drop, g, dropped)
+    toward = np.zeros(m, bool)            # a dropped bearing that points towards the fix
+    np.logical_or.at(toward, g, dropped & (np.cos(geo.r) > 0))
+    check = has_drop & toward
+    implausible = np.zeros(m, bool)
+    if check.any():
+        var = subsets.variants(g, counts, [], np.flatnonzero(check))
+        alt = solve(ctx["lat"][var.member], ctx["lon"][var.member], ctx["theta"][var.member], var.owner, len(var),
+                    None, method="mle")
+        implausible[var.fix] = ~_plausible(alt)
+    undo = check & ~implausible
+    force = (which & ~state["verified"]) | (ver & ~has_drop & (_spread(geo.r, g, m, counts) > limit))
+    if undo.any():
+        soft = registry.REGISTRY["huber"]
+        ctx["soft"] = undo
+        state["verified"][undo] = False
+        state["iterations"][undo] = 0
+        _attempts(dict(ctx, spec=soft, c=soft.default_c), state, undo, n_starts, x0, y0, more)
+        # the soft fit's own spread may still be implausible (Lenth's fit had the smaller one), or it failed
+        force |= undo & (~state["verified"] | (_spread(state["geo"].r, g, m, counts) > limit))
+    force &= counts >= 4
+    if force.any():
+        _drop_the_worst(ctx, state, np.flatnonzero(force), counts)
 
-    dof = n_k[gi] - 2
+
+def _spread(r, g, m, counts):
+    """The classical scale of all of each fix's bearings, sqrt(sum r^2 / (n - 2)) [rad], as the covariance
+    (:mod:`dfkit.estimators.covariance`) estimates it."""
+    with np.errstate(invalid="ignore", divide="ignore"):
+        return np.sqrt(gsum(g, r * r, m) / (counts - 2))
+
+
+def _plausible(sol):
+    """Fits of Lenth's likelihood with an estimated SD that could be right: a verified optimum, every bearing
+    in front, at least one degree of freedom and an SD within the plausible limit."""
     with np.errstate(invalid="ignore"):
-        crit = np.where(dof >= 1, stdtrit(np.maximum(dof, 1), 1.0 - OUTLIER_LEVEL / (2.0 * counts[gi])), np.inf)
-        # a bearing that points away from the fix (|r| > 90 degrees) cannot be a reading of it
-        weak = ~(t > crit) & (np.cos(geo.r[dropped]) > 0)
-    undo = np.zeros(m, bool)
-    undo[gi[weak]] = True
-    return undo & candidates
+        return sol.converged & ~sol.behind & (sol.dof >= 1) & (sol.sd_deg <= PLAUSIBLE_SD_DEG)
+
+
+def _drop_the_worst(ctx, state, fixes, counts):
+    """Solve ``fixes`` without the one bearing whose absence leaves the most plausible rest (Lenth's fit,
+    SD estimated); fixes where no such rest is plausible are left as they are."""
+    g, m = ctx["g"], ctx["m"]
+    var = subsets.variants(g, counts, fixes)
+    alt = solve(ctx["lat"][var.member], ctx["lon"][var.member], ctx["theta"][var.member], var.owner, len(var),
+                None, method="mle")
+    score = np.where(_plausible(alt), alt.sd_deg, np.inf)
+    best = best_in_group(var.fix, score, m)
+    chosen = best[fixes]
+    chosen = chosen[(chosen >= 0)]
+    chosen = chosen[np.isfinite(score[chosen])]
+    if not len(chosen):
+        return
+    fx = var.fix[chosen]
+    out = np.zeros(len(g), bool)
+    out[var.left_out[chosen]] = True
+    state["P_lat"][fx], state["P_lon"][fx] = alt.lat[chosen], alt.lon[chosen]
+    sel = np.isin(g, fx)
+    state["geo"].put(sel, geometry(ctx["lat"][sel], ctx["lon"][sel], ctx["theta"][sel], state["P_lat"][g[sel]],
+                                   state["P_lon"][g[sel]]))
+    state["ending"][fx] = OPTIMUM
+    state["verified"][fx] = True
+    state["iterations"][fx] += alt.iterations[chosen]
+    forced = np.zeros(m, bool)
+    forced[fx] = True
+    ctx["forced"] = forced
+    ctx["forced_out"] = out
 
 
 def _run(ctx, todo, x0, y0):
@@ -480,12 +525,17 @@ def _finish(ctx, counts, geo, P_lat, P_lon, ending, verified, known_b, known_g, 
     if "soft" in ctx:
         soft = registry.REGISTRY["huber"]
         weight = np.where(ctx["soft"][g], soft.weights(r, s_b, soft.default_c), weight)
+    if "forced" in ctx:
+        # solved without one bearing by Lenth's likelihood: the others at full weight
+        weight = np.where(ctx["forced"][g], np.where(ctx["forced_out"], 0.0, 1.0), weight)
     weight = np.where(np.isfinite(weight), weight, 0.0)
     used = weight > 0
     n_used = gsum(g, used.astype(float), m).astype(int)
     # A robust fit must keep enough bearings to check them against each other: after dropping any it
-    # keeps at least three (two bearings always "agree").
-    collapsed = verified & (n_used < counts) & (n_used < 3)
+    # keeps at least three (two bearings always "agree"). A fit of three or more whose steps turned singular
+    # after its weights dropped bearings has collapsed the same way (not a question of lines that do not meet;
+    # with two bearings it is: they diverge).
+    collapsed = (verified | ((ending == SINGULAR) & (counts >= 3))) & (n_used < counts) & (n_used < 3)
     if spec.robust:
         ending[collapsed] = COLLAPSED
         verified = verified & ~collapsed

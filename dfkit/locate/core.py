@@ -13,6 +13,7 @@ import pandas as pd
 from dfkit import estimators, geodesy, regions
 from dfkit.locate.fixes import FIX_COLUMNS, WITH_POSITION, Fixes
 from dfkit.locate.hints import one_bearing_hints
+from dfkit.locate.rivals import find_rivals
 from dfkit.locate.status import FixFacts, classify, consistency
 
 #: Inconsistent fixes with a chi-square p-value at least this are not searched for one bad line.
@@ -107,6 +108,10 @@ def locate(bearings: Bearings, *, method: str = "mle", level: float = 0.95, wind
     hints = one_bearing_hints(lat, lon, theta, sd, g, counts, lines, np.where(mild, "", status), method, robust_c)
     if hints:
         facts.hints = hints
+        status, reasons = classify(facts)
+    rivals = find_rivals(lat, lon, theta, sd, g, counts, sol, lik, level, status == "ok", cal_dof)
+    if rivals:
+        facts.rivals = rivals
         status, reasons = classify(facts)
 
     table = _table(bearings, sol, ell, lik, status, reasons, counts, span_min, tmid, method, level)

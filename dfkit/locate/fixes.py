@@ -2,12 +2,16 @@
 
 Statuses (``status`` column). A fix is ``ok`` only at a verified optimum of its
 method, with every bearing it uses in front of it, a finite positive
-covariance and a bounded likelihood region. The others say what happened:
+covariance, a bounded likelihood region, and no competing explanation
+(:mod:`dfkit.locate.rivals`). The others say what happened:
 
 ===============  =========  ==========================================================
 status           position   meaning
 ===============  =========  ==========================================================
 ok               yes        position and confidence region can be trusted as stated
+ambiguous        yes        another set of the bearings fits as well at another place
+                            that the region does not reach (one of the lines named
+                            is wild, but the bearings cannot tell which)
 inconsistent     yes        the bearings disagree more than their SD allows (a wild
                             bearing, or an SD too small for this fix)
 near_observer    yes        the fix lies beside an observer, where that bearing fits
@@ -32,7 +36,8 @@ on_station       no         the best point creeps onto an observer's own station
 collapsed        no         the robust weights left too few bearings to fix a point
 no_optimum       no         the fit settled on a saddle or a flat valley, not a
                             maximum of the likelihood
-no_convergence   no         the estimate did not settle
+no_convergence   no         the estimate did not settle (or stalled at a point that
+                            is no solution, from every start tried)
 ===============  =========  ==========================================================
 """
 
@@ -54,6 +59,7 @@ STATUS_MEANING = {
     "no_region": "a position, but nothing to size a confidence region with",
     "shallow": "the bearing lines cross at a shallow angle; the position is weak along them",
     "long_span": "the bearings are too far apart in time; the transmitter may have moved",
+    "ambiguous": "another set of the bearings fits as well at another place, outside the region",
     "too_few": "fewer than two usable bearings",
     "one_spot": "all bearings were taken from one spot",
     "parallel": "the bearing lines are parallel and do not cross",
@@ -65,7 +71,7 @@ STATUS_MEANING = {
     "no_convergence": "the estimate did not settle",
 }
 #: Statuses that come with a position.
-WITH_POSITION = ("ok", "inconsistent", "near_observer", "unbounded", "no_region", "shallow", "long_span")
+WITH_POSITION = ("ok", "ambiguous", "inconsistent", "near_observer", "unbounded", "no_region", "shallow", "long_span")
 
 FIX_COLUMNS = [
     "fix", "tag", "time", "lat", "lon", "n_bearings", "n_used", "method", "sd_deg", "sd_source", "level",

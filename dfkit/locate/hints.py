@@ -13,7 +13,7 @@ from __future__ import annotations
 
 import numpy as np
 
-from dfkit import estimators
+from dfkit import estimators, geodesy
 from dfkit.locate.status import consistency
 from dfkit.policy import INCONSISTENT_P, PLAUSIBLE_SD_DEG, WILD_SD
 
@@ -100,6 +100,15 @@ def one_bearing_hints(lat, lon, bearing, sd, g, counts, lines, status, method, r
                 _, _, j, v = best
                 out.setdefault(int(i), []).append(
                     f"without line {lines[j]} the other bearings agree: line {lines[j]} looks wild; {tip}")
+                said = True
+            else:
+                # two lines either of which could be the wild one: the bearings cannot tell, so say both
+                (_, _, j, v), (_, _, k, w) = drops[0], drops[1]
+                _, _, apart = geodesy.inverse(sol.lat[v], sol.lon[v], sol.lat[w], sol.lon[w])
+                out.setdefault(int(i), []).append(
+                    f"without line {lines[j]}, or without line {lines[k]}, the other bearings agree, at two places "
+                    f"{float(apart):.0f} m apart: one of the two lines looks wild and the bearings cannot tell which; "
+                    "check both, or take another bearing")
                 said = True
         if not said and counts[i] == 3 and status[i] in ("inconsistent", "behind", "on_station", "diverging"):
             out.setdefault(int(i), []).append(

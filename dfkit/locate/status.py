@@ -38,6 +38,7 @@ class FixFacts:
     regions: object             # dfkit.regions.LikelihoodRegions or None
     level: float
     hints: dict                 # fix index -> list of extra reason texts
+    rivals: dict = None         # fix index -> dfkit.locate.rivals.Rival (competing explanations)
 
 
 def _lines_text(lines):
@@ -111,6 +112,8 @@ def classify(f: FixFacts):
                      | (sol.crossing_deg < SHALLOW_CROSSING_DEG) | notable)
     attention |= np.array([len(r) > 0 for r in f.rejected], bool)
     attention |= np.isin(np.arange(m), list(f.hints))
+    rivals = f.rivals or {}
+    attention |= np.isin(np.arange(m), list(rivals))
     if regions is not None:
         with np.errstate(invalid="ignore", divide="ignore"):
             ratio = regions.area_m2 / f.ellipse_area
@@ -141,7 +144,14 @@ def classify(f: FixFacts):
             flags.append(("on_station", f"the best point creeps onto the observer at line {f.lines[near]}: that "
                                         "bearing fits only if the transmitter sits on its station, so another "
                                         "bearing disagrees badly"))
-        elif end in ("stalled", "max_iter"):
+        elif end == "stalled" and sol.method == "stansfield":
+            flags.append(("no_convergence", "Stansfield's re-weighting comes to rest nowhere near these bearings "
+                                            f"(it stalled from every start tried, {sol.iterations[i]} iterations): "
+                                            "they disagree too much for this method; try --method andrews"))
+        elif end == "stalled":
+            flags.append(("no_convergence", "the fit stalled: no step from its last point improves it "
+                                            f"({sol.iterations[i]} iterations, from every start tried)"))
+        elif end == "max_iter":
             flags.append(("no_convergence", f"the estimate did not settle after {sol.iterations[i]} iterations"))
         elif end == "not_optimum":
             flags.append(("no_optimum", "the fit settled on a point that is not a maximum of the likelihood "
@@ -195,6 +205,8 @@ def classify(f: FixFacts):
                         f"its bearings span {f.span_min[i]:.0f} min, more than {FIX_SPAN_WINDOWS:g} windows of "
                         f"{f.window_min:g} min")
                 flags.append(("long_span", f"{what}; the transmitter may have moved"))
+            if i in rivals:
+                flags.append(("ambiguous", _rival_text(rivals[i], f.lines, sol, i)))
             if not sol.sd_known[i] and sol.dof[i] <= 0:
                 flags.append(("no_region", "two bearings and no known SD: a position but no confidence "
                                            "region (give sd in the sheet or --sd)"))
@@ -238,6 +250,28 @@ def classify(f: FixFacts):
                               + ", ".join(str(x) for x in rej[:8]) + (" ..." if len(rej) > 8 else ""))
         reasons[i] = [r for r in reasons[i] if r]
     return status, reasons
+
+
+def _rival_text(rv, lines, sol, i):
+    """The reason of an ``ambiguous`` fix: both answers, and which lines decide between them."""
+    where = f"{rv.lat:.5f}, {rv.lon:.5f} ({rv.distance_m:.0f} m away)"
+    fit = f"p = {rv.p:.2g}" if sol.sd_known[i] else f"SD {rv.sd_deg:.1f}°"
+    tail = "" if sol.sd_known[i] else ("; with the bearing SD known (sheet sd, --sd or a calibration) dfkit can test "
+                                       "the bearings more sharply")
+    if rv.left_out >= 0 and rv.dropped:
+        j, k = _lines_text(lines[rv.dropped]), lines[rv.left_out]
+        return (f"two answers fit: this one, which leaves out {j}, and {where}, which leaves out line {k} instead "
+                f"({fit}; line {k} misses it by {rv.miss_deg:+.0f}°); this region does not reach the other answer: "
+                f"check {_lines_text(np.append(lines[rv.dropped], k))}, or take another bearing{tail}")
+    if rv.left_out >= 0:
+        k = lines[rv.left_out]
+        return (f"two answers fit: this one, and {where}, where all bearings but line {k} agree ({fit}) and line "
+                f"{k} misses by {rv.miss_deg:+.0f}°; this region does not reach the other answer, so if line {k} is "
+                f"a reflection the region is wrong: check line {k}, or take another bearing{tail}")
+    j = _lines_text(lines[rv.dropped])
+    return (f"two answers fit: this one, which leaves out {j}, and {where}, where all the bearings agree together "
+            f"({fit}); this region does not reach the other answer: {j} may be good; check it, or take another "
+            f"bearing{tail}")
 
 
 def _km(m_):

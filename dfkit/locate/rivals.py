@@ -1,0 +1,241 @@
+"""Competing explanations: when another set of the bearings fits as well somewhere else.
+
+A fix that looks consistent can still be wrong: a wild bearing can make a false
+crossing where every line fits, or pull the answer towards its own station, and a
+robust fit can drop a good bearing and keep the wild one. The bearings then hold two
+explanations, "these bearings are good" and "those are", each with its own answer.
+dfkit tries the alternatives of every fix that would be ``ok``:
+
+* the fix without each bearing in turn ("that bearing is wild"), and
+* all its bearings at full weight where the fit dropped one ("it is good"),
+
+solves each with Lenth's likelihood (:mod:`dfkit.estimators`, one vectorised call)
+and calls the fix ``ambiguous`` when an alternative is
+
+1. *plausible* by the fix's own rule: known SD, its chi-square test passed at
+   :data:`dfkit.policy.INCONSISTENT_P` (always, with no degree of freedom left);
+   SD estimated, at least one degree of freedom and an SD within
+   :data:`dfkit.policy.PLAUSIBLE_SD_DEG`;
+2. *competitive*: with as many bearings as the fix, or one more, the fix's
+   explanation is not :data:`EVIDENCE_RATIO` times as likely (profile likelihoods,
+   the SD's too when it is estimated); one with fewer bearings always fits better and
+   is judged by the next condition alone;
+3. *incompatible*: its answer lies outside the fix's region and, for an alternative
+   with fewer bearings and a known SD, the fix lies outside the alternative's region
+   (likelihood-ratio regions at the same level, :func:`dfkit.regions.region_threshold`).
+
+The two-sided test in 3 is a test of the left-out bearing that counts only when the
+bearing matters. In a linear model with a known SD, with h the bearing's leverage in
+the fit that uses it and T its externally studentised residual (R. D. Cook &
+S. Weisberg, *Residuals and Influence in Regression*, Chapman & Hall, 1982, ch. 2
+[from memory]), the fix lies outside the alternative's region exactly when h T^2
+exceeds the region's bound (5.99 at 95 %), and the alternative outside the fix's when
+h T^2 / (1 - h) does: so a clean fix is called ambiguous only when one bearing both
+disagrees (|T| > 2.45 at the very least) and carries much of it. With the SD
+estimated, the alternative's own region (an F region on n - 3 degrees of freedom) is
+so wide that it holds nearly every nearby point, and only the fix's region is tested.
+Measured on clean data (benchmarks/coverage.py, DEVELOPERS.md): 0.05-0.3 % of fixes
+are called ambiguous with a known SD, up to 0.85 % with an estimated one.
+"""
+
+from __future__ import annotations
+
+from dataclasses import dataclass
+
+import numpy as np
+
+from dfkit import estimators, geodesy
+from dfkit.estimators import subsets
+from dfkit.locate.status import consistency
+from dfkit.policy import INCONSISTENT_P, PLAUSIBLE_SD_DEG
+from dfkit.regions import region_threshold
+
+
+#: An alternative with as many bearings as the fix (another bearing is the wild one), or one more (the dropped
+#: bearing is good), competes when the fix's explanation is not at least this many times as likely: with equal
+#: prior odds the alternative then has a posterior probability of at least 1/3. Our choice, by measured
+#: coverage (benchmarks/coverage.py): with one wild bearing in four (SD known) a ratio of 1 left ok fixes
+#: holding the truth 91.5 % of the time, 2 gave 94 %, and 8 (R. Royall, *Statistical Evidence*, Chapman &
+#: Hall, 1997: "fairly strong" evidence [from memory]) 94.7 % but flagged 2.7 % of five-bearing fixes
+#: instead of 1.5 %.
+EVIDENCE_RATIO = 2.0
+
+
+@dataclass
+class Rival:
+    """The strongest competing explanation of one fix.
+
+    ``left_out``: index (into the bearings) of the bearing the alternative leaves out, or -1 when the
+    alternative keeps every bearing; ``dropped``: bearings the fix itself left out; ``lat``, ``lon``
+    the alternative's answer [°]; ``distance_m`` from the fix; ``miss_deg`` how far the left-out bearing
+    misses the alternative's answer [°] (NaN when none is left out); ``p`` its chi-square p-value
+    (known SD) or ``sd_deg`` its estimated SD.
+    """
+
+    left_out: int
+    dropped: list
+    lat: float
+    lon: float
+    distance_m: float
+    miss_deg: float
+    p: float
+    sd_deg: float
+
+
+def find_rivals(lat, lon, theta, sd, g, counts, sol, lik, level, examine, known_dof=None):
+    """Competing explanations of the fixes ``examine`` (see the module docstring).
+
+    Parameters
+    ----------
+    lat, lon, theta, sd : ndarray, shape (N,)
+        Stations [°], observed true bearings [°] and bearing SDs [°, NaN when unknown].
+    g, counts : ndarray
+        Fix of each bearing; bearings per fix.
+    sol : dfkit.estimators.Solution
+        The fixes as solved.
+    lik : dfkit.regions.LikelihoodRegions or None
+        Their regions (when None, each fix's S_min is taken at its answer).
+    level : float
+        Probability of the regions.
+    examine : ndarray of bool, shape (m,)
+        Fixes to look at (those that would be ``ok``).
+    known_dof : ndarray, optional
+        Degrees of freedom of a measured known SD, per fix (inf: exact).
+
+    Returns
+    -------
+    dict
+        fix index -> :class:`Rival`, for the fixes with a plausible, incompatible alternative.
+    """
+    m = len(counts)
+    kdof = np.full(m, np.inf) if known_dof is None else np.asarray(known_dof, float)
+    used = sol.weight > 0
+    n_used = np.bincount(g, used.astype(float), m)
+    look = examine & (counts >= 3)
+    if not look.any():
+        return {}
+    # Alternatives: each fix without each bearing in turn (but not the one set the fit itself uses), and
+    # whole where the fit dropped bearings.
+    alone = ~used & (n_used[g] == counts[g] - 1)
+    # Where the fit uses every bearing, leaving one out gives an alternative with fewer bearings; only those
+    # that could be incompatible are solved (_could_conflict).
+    full = look & (n_used == counts)
+    skip = alone | (full[g] & ~_could_conflict(g, m, sol, used, level, kdof))
+    var = subsets.variants(g, counts, np.flatnonzero(look), np.flatnonzero(look & (n_used < counts)), skip=skip)
+    k = len(var)
+    if not k:
+        return {}
+    v_fix, v_out, mo, mb = var.fix, var.left_out, var.owner, var.member
+    alt = estimators.solve(lat[mb], lon[mb], theta[mb], mo, k, sd[mb], method="mle")
+    _, p = consistency(alt, mo, k)
+    with np.errstate(invalid="ignore"):
+        plausible = alt.converged & ~alt.behind & np.where(
+            alt.sd_known, (alt.dof < 1) | (p >= INCONSISTENT_P), (alt.dof >= 1) & (alt.sd_deg <= PLAUSIBLE_SD_DEG))
+    if not plausible.any():
+        return {}
+    # The fix's S at each alternative's answer (exact geodesic residuals of all its bearings, weighted as in its
+    # region), against the fix's bound.
+    whole = subsets.variants(g, counts, [], v_fix)
+    ao, ab = whole.owner, whole.member
+    az, _, _ = geodesy.inverse(lat[ab], lon[ab], alt.lat[ao], alt.lon[ao])
+    r = np.radians(((theta[ab] - az + 180.0) % 360.0) - 180.0)
+    S_fix_at_alt = np.bincount(ao, sol.region_weight[ab] * r * r, k)
+    r_fix = np.radians(sol.residual_deg)
+    S_fix_min = np.bincount(g, sol.region_weight * r_fix * r_fix, m)
+    if lik is not None:
+        S_fix_min = np.where(lik.has_region & np.isfinite(lik.s_min), np.minimum(lik.s_min, S_fix_min), S_fix_min)
+    T_fix = region_threshold(S_fix_min, sol.sd_known, sol.dof, level, kdof)[v_fix]
+    # The alternative's S at the fix against the alternative's bound: at the centre of the fix's region (its
+    # minimum of S), which is the fix's answer for Lenth's fit but not for an inefficient one (least squares).
+    r_centre = r_fix
+    if lik is not None:
+        tried = np.zeros(m, bool)
+        tried[v_fix] = True
+        has = tried[g] & lik.has_region[g] & np.isfinite(lik.centre_x[g]) & np.isfinite(lik.centre_y[g])
+        if has.any():
+            clat, clon = geodesy.from_local(sol.lat[g[has]], sol.lon[g[has]], lik.centre_x[g[has]],
+                                            lik.centre_y[g[has]])
+            a_c, _, _ = geodesy.inverse(lat[has], lon[has], clat, clon)
+            r_centre = r_fix.copy()
+            r_centre[has] = np.radians(((theta[has] - a_c + 180.0) % 360.0) - 180.0)
+    S_alt_at_fix = np.bincount(mo, alt.region_weight * r_centre[mb] ** 2, k)
+    r_alt = np.radians(alt.residual_deg)
+    S_alt_min = np.bincount(mo, alt.region_weight * r_alt * r_alt, k)
+    T_alt = region_threshold(S_alt_min, alt.sd_known, alt.dof, level, kdof[v_fix])
+    # An alternative with as many bearings as the fix, or one more, competes only when the fix's explanation is
+    # not favoured by EVIDENCE_RATIO or more: -2 log of the likelihood ratio (estimated SD: of the profile
+    # likelihoods, n log(S / dof)) below 2 log EVIDENCE_RATIO. One with fewer bearings always has the better
+    # likelihood; it competes through the conflict test alone.
+    n_alt = np.bincount(mo, minlength=k)
+    with np.errstate(invalid="ignore", divide="ignore"):
+        S_fix_used = np.bincount(g, np.where(used, sol.region_weight * r_fix * r_fix, 0.0), m)[v_fix]
+        lr = np.where(alt.sd_known, S_alt_min - S_fix_used,
+                      n_alt * np.log(S_alt_min / (n_alt - 2)) - n_used[v_fix] * np.log(S_fix_used / (n_used[v_fix] - 2)))
+        close = ~(lr >= 2.0 * np.log(EVIDENCE_RATIO)) | (n_alt < n_used[v_fix])
+        same = (n_alt == n_used[v_fix]) | ~sol.sd_known[v_fix]
+
+        conflict = plausible & close & (S_fix_at_alt > T_fix) & ((S_alt_at_fix > T_alt) | same)
+    if not conflict.any():
+        return {}
+    # per fix, the alternative that fits best (highest p, or smallest SD)
+    score = np.where(alt.sd_known, -np.nan_to_num(p, nan=1.0), alt.sd_deg)
+    cand = np.flatnonzero(conflict)
+    cand = cand[np.lexsort((score[cand], v_fix[cand]))]
+    first = np.ones(len(cand), bool)
+    first[1:] = v_fix[cand[1:]] != v_fix[cand[:-1]]
+    best = cand[first]
+    fx, j = v_fix[best], v_out[best]
+    _, _, dist = geodesy.inverse(sol.lat[fx], sol.lon[fx], alt.lat[best], alt.lon[best])
+    jj = np.maximum(j, 0)
+    a_j, _, _ = geodesy.inverse(lat[jj], lon[jj], alt.lat[best], alt.lon[best])
+    miss = np.where(j >= 0, ((theta[jj] - a_j + 180.0) % 360.0) - 180.0, np.nan)
+    order = np.argsort(g, kind="stable")
+    offsets = np.concatenate(([0], np.cumsum(counts)))
+    out = {}
+    for k_, i in enumerate(fx.tolist()):
+        sel = order[offsets[i]:offsets[i + 1]]
+        v = best[k_]
+        out[i] = Rival(left_out=int(j[k_]), dropped=sel[~used[sel]].tolist(), lat=float(alt.lat[v]),
+                       lon=float(alt.lon[v]), distance_m=float(dist[k_]), miss_deg=float(miss[k_]),
+                       p=float(p[v]), sd_deg=float(alt.sd_deg[v]))
+    return out
+
+
+
+#: With the SD estimated, a bearing is left out and the rest solved only when a linear model says its absence
+#: could move the answer out of the fix's region, within a factor SCREEN_LINEAR (on the squared miss), or when
+#: it carries so much of the fix (leverage above SCREEN_LEVERAGE) that the linear model is not to be trusted.
+#: Our choice, by measurement: of the 92 incompatible alternatives found without the screen in six cells of
+#: benchmarks/coverage.py with an estimated SD (n = 4-6, clean and with a wild bearing, 2000 fixes each), the
+#: screen keeps 91 (the one lost, from a Huber fit, had a ratio of 0.19 and a leverage of 0.69), and it leaves
+#: 11-18 % of the bearings to solve.
+SCREEN_LINEAR = 0.3
+SCREEN_LEVERAGE = 0.8
+
+
+def _could_conflict(g, m, sol, used, level, kdof):
+    """Per bearing: whether the fix without it could be an incompatible alternative (see find_rivals).
+
+    Known SD, exact: the fix must lie outside the alternative's region, S_without(fix) - S_without(alt) above
+    the region's bound, so S_without at the fix alone must exceed that bound. Estimated SD: the linear screen
+    (SCREEN_LINEAR, SCREEN_LEVERAGE): in a linear model the bearing misses the leave-one-out answer by
+    r / (1 - h) (r its residual at the fix, h its leverage), and the fix's S there exceeds its bound only if
+    that squared miss exceeds the bound's gap plus r^2.
+    """
+    d = sol.range_m
+    az = np.radians(sol.azimuth_from_fix_deg)
+    gx, gy = -np.cos(az) / d, np.sin(az) / d          # gradient of the predicted bearing [rad/m]
+    v = np.where(used, sol.region_weight, 0.0)
+    r = np.radians(sol.residual_deg)
+    S = np.bincount(g, v * r * r, m)
+    j11, j12, j22 = (np.bincount(g, v * t, m) for t in (gx * gx, gx * gy, gy * gy))
+    with np.errstate(divide="ignore", invalid="ignore"):
+        h = v * (j22[g] * gx * gx - 2 * j12[g] * gx * gy + j11[g] * gy * gy) / (j11 * j22 - j12 * j12)[g]
+        # known SD: the alternative's bound over its minimum (chi-square, or F for a measured SD), with its
+        # bearings at full weight 1/SD^2 (a robust fit's own weights may be smaller)
+        gap_alt = region_threshold(np.zeros(m), np.ones(m, bool), sol.dof, level, kdof)
+        full = np.where(used, sol.region_weight / np.where(used, sol.weight, 1.0), 0.0) * r * r
+        known = (np.bincount(g, full, m)[g] - full) > gap_alt[g]
+        gap_fix = (region_threshold(S, sol.sd_known, sol.dof, level, kdof) - S)[g]
+        linear = (v * r * r / (1.0 - h) ** 2 > SCREEN_LINEAR * (gap_fix + v * r * r)) | (h > SCREEN_LEVERAGE)
+    return np.where(sol.sd_known[g], known, linear)
