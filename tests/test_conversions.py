@@ -199,14 +199,16 @@ def test_north_written_out_is_read_like_its_abbreviation(write_sheet):
     rows = [("grid", "grid north"), ("grid", "Grid North"), ("grid", "GN"), ("grid", "grid-north"),
             ("magnetic", "magnetic north"), ("magnetic", "Mag North"), ("magnetic", "mag. north"),
             ("magnetic", "MN"), ("true", "true north"), ("true", "TN"), ("true", "Geographic North")]
+    # one fix per row: the same bearing at the same moment in one fix would be one bearing written twice
     text = "fix,time,lat,lon,bearing,north\n" + "".join(
-        f"A,2026-05-03T06:00:00Z,47.85,15.15,20,{cell}\n" for _, cell in rows) + \
+        f"A{k},2026-05-03T06:00:00Z,47.85,15.15,20,{cell}\n" for k, (_, cell) in enumerate(rows)) + \
         "A,2026-05-03T06:00:00Z,47.85,15.15,20,map north\n"
     b = read_bearings(write_sheet(text), grid_crs="EPSG:32633")
     got = dict(zip(b.table["line"], b.table["north"]))
     assert [got[i + 2] for i in range(len(rows))] == [n for n, _ in rows]
     plain = read_bearings(write_sheet("fix,time,lat,lon,bearing,north\n" + "".join(
-        f"A,2026-05-03T06:00:00Z,47.85,15.15,20,{n}\n" for n in ("grid", "magnetic", "true"))), grid_crs="EPSG:32633")
+        f"A,2026-05-03T06:00:00Z,47.85,15.15,20,{n}\n" for n in ("grid", "magnetic", "true")), "plain.csv"),
+        grid_crs="EPSG:32633")
     want = dict(zip(plain.table["north"], plain.table["true_bearing"]))
     for (north, _), tb in zip(rows, b.table["true_bearing"]):
         assert tb == pytest.approx(want[north], abs=1e-12)
