@@ -127,10 +127,27 @@ BAND_EDGE_MARGIN_DEG = 0.05
 SWAPPED_FAR_DEG = 5.0
 SWAPPED_NEAR_DEG = 0.5
 
+#: A station farther than both of these from the middle of the other stations of its own fix (3 or more
+#: stations) is refused as a likely position mistake (a lost minus sign, a wrong leading digit, a missing digit):
+#: [km], and times the fix's spread (the median distance of its stations from their middle). The bearings of one
+#: fix are taken within walking or driving reach in a few minutes (a car covers about 30 km in the default
+#: 20-minute window), and the spread factor leaves wide networks whose stations are all far apart alone.
+#: dfkit's own rule, no source.
+FAR_STATION_KM = 50.0
+FAR_STATION_SPREADS = 20.0
+
 #: A UTM row outside its zone's strip is refused as a likely missing or extra digit when the other
 #: rows of its fix in the same zone lie inside the strip and more than this far from it [m].
 #: dfkit's own rule, no source: stations of one fix are rarely more than tens of km apart.
 OUT_OF_STRIP_TYPO_M = 100_000.0
+
+#: An MGRS reference names a square, and dfkit uses its centre, up to half the square's diagonal from the station.
+#: References naming squares of at least the first size [m] (2 digits: 10 km; none: 100 km) are refused: the
+#: station could be 7 km or more off, farther than VHF bearings usually reach. Squares of at least the second size
+#: (4 digits: 1 km, up to 707 m off) are read with a warning: the fix's region does not carry that error.
+#: dfkit's own rule, no source (MGRS precision by digit count: NGA.STND.0037, from memory).
+MGRS_REFUSED_SQUARE_M = 10_000.0
+MGRS_WARNED_SQUARE_M = 1_000.0
 
 #: Lowest bearing SD dfkit accepts, in the sheet or as an option [°]. Common practice, no source: the
 #: best fixed DF systems reach a few tenths of a degree; 0.01° (36 arc-seconds) is beyond any DF

@@ -166,11 +166,11 @@ def test_north_and_unit_options_take_the_spellings_a_sheet_takes(write_sheet, ca
 
 
 def test_a_date_without_a_time_column_is_reported_against_the_date_column(write_sheet, capsys):
-    sheet = write_sheet("fix,tag,date,lat,lon,bearing,sd\n1,150.1,2026-05-03,47.85,15.15,20,3\n")
+    # a date alone is a coarse time (issue 7); a date that does not exist is refused, against the date column
+    sheet = write_sheet("fix,tag,date,lat,lon,bearing,sd\n1,150.1,2026-02-30,47.85,15.15,20,3\n")
     assert main(["check", str(sheet)]) == 1
     out = capsys.readouterr().out
-    assert "line 2, date: '2026-05-03' is a date with no time of day" in out
-    assert "time column is empty" not in out
-    both = write_sheet("fix,date,time,lat,lon,bearing\n1,2026-05-03,,47.85,15.15,20\n", "both.csv")
+    assert "line 2, date: '2026-02-30' is not a valid date" in out
+    both = write_sheet("fix,date,time,lat,lon,bearing\n1,2026-02-30,,47.85,15.15,20\n", "both.csv")
     assert main(["check", str(both)]) == 1
-    assert "line 2, time: '2026-05-03' is a date with no time of day" in capsys.readouterr().out
+    assert "line 2, time: '2026-02-30' is not a valid date" in capsys.readouterr().out

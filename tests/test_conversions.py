@@ -132,6 +132,37 @@ def test_mgrs_reference_is_the_centre_of_its_square():
     assert (lat, lon) == pytest.approx((rlat[0], rlon[0]), abs=1e-9)
 
 
+@pytest.mark.parametrize("ref, square_m", [("33TYP", 100_000.0), ("33T YP", 100_000.0), ("33TYP00", 10_000.0),
+                                           ("33TYP0803", 1_000.0), ("33TYP081034", 100.0)])
+def test_mgrs_square_size_follows_its_digits(ref, square_m):
+    # The size of the square an MGRS reference names, checked with the mgrs package (GeoTrans), which returns
+    # the centre of a reduced-precision square: half a square from the square's grid lines.
+    import mgrs
+
+    _, _, e, n = mgrs.MGRS().MGRSToUTM(ref.replace(" ", ""))
+    assert (e - square_m / 2) % square_m == 0 and (n - square_m / 2) % square_m == 0
+    assert grids.parse_mgrs(ref)[0][4] == square_m
+
+
+@pytest.mark.parametrize("ref, refused, warned", [("33TYP", "100 km square", None), ("33T WN", "100 km square", None),
+                                                  ("33TYP00", "10 km square", None),
+                                                  ("33TYP0803", None, "1 km square"), ("33TYP081034", None, None)])
+def test_coarse_mgrs_squares_are_refused_or_warned(write_sheet, ref, refused, warned):
+    # issue 7 trial: coarse references were read silently and the fix failed as 'inconsistent'. Half the diagonal
+    # of a 1 km square is 1000 / sqrt(2) = 707 m; of a 10 km square 7 km.
+    b = read_bearings(write_sheet(f"fix,mgrs,bearing\nA,{ref},10\n"))
+    errs = [p.message for p in b.problems if p.severity == "error"]
+    warns = [p.message for p in b.problems if p.severity == "warning"]
+    if refused:
+        assert len(errs) == 1 and refused in errs[0] and "6 digits" in errs[0] and len(b.table) == 0
+    else:
+        assert errs == [] and len(b.table) == 1
+    if warned:
+        assert len(warns) == 1 and warned in warns[0] and "707 m" in warns[0] and "centre was used" in warns[0]
+    elif not refused:
+        assert warns == []
+
+
 @pytest.mark.parametrize("text", ["33UXP050044499", "hello", "33UXP05004449977"])
 def test_bad_mgrs(text):
     res, msg = grids.parse_mgrs(text)
@@ -168,14 +199,16 @@ def test_north_written_out_is_read_like_its_abbreviation(write_sheet):
     rows = [("grid", "grid north"), ("grid", "Grid North"), ("grid", "GN"), ("grid", "grid-north"),
             ("magnetic", "magnetic north"), ("magnetic", "Mag North"), ("magnetic", "mag. north"),
             ("magnetic", "MN"), ("true", "true north"), ("true", "TN"), ("true", "Geographic North")]
+    # one fix per row: the same bearing at the same moment in one fix would be one bearing written twice
     text = "fix,time,lat,lon,bearing,north\n" + "".join(
-        f"A,2026-05-03T06:00:00Z,47.85,15.15,20,{cell}\n" for _, cell in rows) + \
+        f"A{k},2026-05-03T06:00:00Z,47.85,15.15,20,{cell}\n" for k, (_, cell) in enumerate(rows)) + \
         "A,2026-05-03T06:00:00Z,47.85,15.15,20,map north\n"
     b = read_bearings(write_sheet(text), grid_crs="EPSG:32633")
     got = dict(zip(b.table["line"], b.table["north"]))
     assert [got[i + 2] for i in range(len(rows))] == [n for n, _ in rows]
     plain = read_bearings(write_sheet("fix,time,lat,lon,bearing,north\n" + "".join(
-        f"A,2026-05-03T06:00:00Z,47.85,15.15,20,{n}\n" for n in ("grid", "magnetic", "true"))), grid_crs="EPSG:32633")
+        f"A,2026-05-03T06:00:00Z,47.85,15.15,20,{n}\n" for n in ("grid", "magnetic", "true")), "plain.csv"),
+        grid_crs="EPSG:32633")
     want = dict(zip(plain.table["north"], plain.table["true_bearing"]))
     for (north, _), tb in zip(rows, b.table["true_bearing"]):
         assert tb == pytest.approx(want[north], abs=1e-12)

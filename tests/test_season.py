@@ -373,9 +373,11 @@ def test_a_schema_1_store_is_migrated_and_matches_its_sheets_again(tmp_path):
     with SeasonStore.open(old) as s:
         assert s.migrated == []                                        # once
     validate(old)
-    for name in ("teamA.csv", "week1.csv", "labels.csv"):
+    # week1.csv line 5 repeats line 4: the dfkit of schema 1 used both; this one names the copy and leaves it out,
+    # so fix A's result is different now and is reported as changed (never stored twice)
+    for name, changed_fixes in (("teamA.csv", 0), ("week1.csv", 1), ("labels.csv", 0)):
         r = add(old, V1 / name)
-        assert (name, r.fixes_added, r.fixes_changed, r.bearings_added) == (name, 0, 0, 0)
+        assert (name, r.fixes_added, r.fixes_changed, r.bearings_added) == (name, 0, changed_fixes, 0)
     r = add(old, V1 / "teamB2.csv")
     assert r.fixes_added == 1 and "'F1' (import 1)" in r.beside[0][2]
     changed = tmp_path / "week1.csv"

@@ -16,7 +16,7 @@ from dfkit.policy import DEFAULT_TRACK_GAP_S, DEFAULT_WINDOW_MIN, MAX_TRACK_GAP_
 FLAGS = {"unit": "--unit", "north": "--north", "sd": "--sd", "declination": "--declination", "tz": "--tz",
          "date_format": "--date-format", "repeated_hour": "--repeated-hour", "window_min": "--window",
          "stations": "--stations", "track": "--track", "track_gap_s": "--track-gap", "grid_crs": "--grid-crs",
-         "utm_letters": "--utm-letters", "worksheet": "--sheet", "level": "--level"}
+         "utm_letters": "--utm-letters", "worksheet": "--sheet", "level": "--level", "fill_labels": "--no-fill-labels"}
 
 
 def count_text(n: int, one: str, many: str | None = None) -> str:
@@ -112,6 +112,9 @@ def add_read_options(p: argparse.ArgumentParser) -> None:
     g.add_argument("--utm-letters", choices=["auto", "band", "hemisphere"], default="auto",
                    help="UTM zone letters: latitude bands as GPS units write them (30S = 32-40N), hemispheres "
                         "(30S = south), or auto: decide from the sheet and refuse rows it cannot (default)")
+    g.add_argument("--no-fill-labels", action="store_false", dest="fill_labels",
+                   help="read rows without a fix label as unlabelled even where the sheet writes labels only "
+                        "where a fix starts (by default such labels are filled down, with a warning)")
 
 
 def add_fix_options(p: argparse.ArgumentParser) -> None:
@@ -145,7 +148,7 @@ def read_kwargs(a) -> dict:
     return dict(unit=a.unit, north=a.north, sd=a.sd, declination=a.declination, tz=a.tz, window_min=a.window,
                 stations=a.stations, track=a.track, track_gap_s=a.track_gap, grid_crs=a.grid_crs,
                 date_format=a.date_format, repeated_hour=a.repeated_hour, utm_letters=a.utm_letters,
-                worksheet=a.worksheet)
+                worksheet=a.worksheet, fill_labels=a.fill_labels)
 
 
 def report_problems(problems, out) -> None:

@@ -312,11 +312,13 @@ def read_sheet(source, *, name: str | None = None, own_results: str = "recompute
         'recompute' (a bearing sheet) leaves them out with a note and keeps ``line`` as
         ``line_in_sheet``; 'keep' (a table of results read as such) reads them, and every other
         column, under its own name (no other spellings are read as known columns).
-    numeric : collection of str
+    numeric : collection of str, or mapping of str to float or None
         Columns (canonical names) to read straight into floats when every cell of the column is a
-        finite plain number (``48.9687``, ``-3``, ``1e5``; the values Python's ``float`` gives). Such
-        columns are listed in ``RawSheet.numeric``; any other column, and every column of a sheet that
-        takes the careful path, stays text, so the validator's messages are those of the text cells.
+        finite plain number (``48.9687``, ``-3``, ``1e5``; the values Python's ``float`` gives) and, for a
+        mapping, no larger in size than the column's bound (``{'lat': 90.0}``: a latitude column holding
+        ``4751.6`` stays text, so a packed angle keeps its leading zeros). Such columns are listed in
+        ``RawSheet.numeric``; any other column, and every column of a sheet that takes the careful path,
+        stays text, so the validator's messages are those of the text cells.
 
     Returns
     -------
@@ -378,7 +380,8 @@ def read_sheet(source, *, name: str | None = None, own_results: str = "recompute
     columns = _resolve_header(header, header_idx + 1, name, problems, own_results == "keep")
     width = len(columns)
 
-    want = [j for j, c in enumerate(columns) if c in set(numeric)]
+    bounds = dict(numeric) if isinstance(numeric, dict) else dict.fromkeys(numeric)
+    want = {j: bounds[c] for j, c in enumerate(columns) if c in bounds}
     got = _fast_read(text, lines, header_idx, delimiter, width, want)
     if got is None:
         got = _careful_read(lines, header_idx, delimiter, width, name, problems, "'" in text)
@@ -406,10 +409,10 @@ def read_sheet(source, *, name: str | None = None, own_results: str = "recompute
                     comment_lines=comments, blank_lines=blanks, numeric=held)
 
 
-def _fast_read(text, lines, header_idx, delimiter, width, want=()):
+def _fast_read(text, lines, header_idx, delimiter, width, want=None):
     """The common case read by pandas' C parser: no quotes, no NUL and plain line ends, so one physical line
-    is one row and line numbers follow directly. Columns ``want`` (indices) come back as float arrays when
-    every cell is a finite plain number (:func:`_as_numbers`), as text otherwise. Returns (lines, cells per
+    is one row and line numbers follow directly. Columns ``want`` (index -> bound or None) come back as float
+    arrays when every cell is a finite plain number (:func:`_as_numbers`) within the bound, as text otherwise. Returns (lines, cells per
     column, comment lines, blank lines, cells unguarded), or None for the careful path."""
     if '"' in text or "\x00" in text or ("\r" in text and "\r" in text.replace("\r\n", "\n")):
         return None
@@ -427,7 +430,7 @@ def _fast_read(text, lines, header_idx, delimiter, width, want=()):
     body = "\n".join(body_lines)
     kw = dict(sep=delimiter, header=None, na_filter=False, skip_blank_lines=False, quoting=csv.QUOTE_NONE,
               engine="c")
-    want = [j for j in want if j < width]
+    want = {j: bound for j, bound in (want or {}).items() if j < width}
     try:
         df = pd.read_csv(io.StringIO(body), dtype={j: str for j in range(width) if j not in want} if want else str,
                          **kw)
@@ -438,8 +441,8 @@ def _fast_read(text, lines, header_idx, delimiter, width, want=()):
     raw = [df[c] for c in df.columns]
     del df
     floats = {}
-    for j in want:
-        floats[j] = _as_numbers(raw[j])
+    for j, bound in want.items():
+        floats[j] = _as_numbers(raw[j], bound)
         if floats[j] is None:        # some cell is not a plain finite number: the column is read as text
             del floats[j]
             if raw[j].dtype != object:
@@ -459,9 +462,10 @@ def _fast_read(text, lines, header_idx, delimiter, width, want=()):
             numbers_kept[blank].tolist(), n_unguarded)
 
 
-def _as_numbers(col: pd.Series):
+def _as_numbers(col: pd.Series, bound=None):
     """A column the C parser read as numbers, as float64; None when it holds text or a value that is not a
-    finite number (NaN, infinity: the validator words those), or an integer too large for a float to hold."""
+    finite number (NaN, infinity: the validator words those), an integer too large for a float to hold, or
+    a value larger in size than ``bound``."""
     if col.dtype.kind == "f":
         values = col.to_numpy(dtype=float)
     elif col.dtype.kind in "iu":
@@ -470,7 +474,11 @@ def _as_numbers(col: pd.Series):
             return None
     else:
         return None
-    return values if np.isfinite(values).all() else None
+    if not np.isfinite(values).all():
+        return None
+    if bound is not None and len(values) and np.abs(values).max() > bound:
+        return None
+    return values
 
 
 def _tidy(cells, padded: bool, guarded: bool):

@@ -16,6 +16,12 @@ the registry's pages, the others from memory) and of the examples
 in GeographicLib's GeoConvert(1) manual ("33d18'N 44d24'E", "E44.4 N33.3",
 "33:18 44:24"). The letter O is not read as west: it means west in Spanish (oeste)
 and east in German (Ost).
+
+**Packed** degrees and minutes (``4751.6N``, ``01509.6E``) and degrees, minutes and
+seconds (``475136N``, ``0800512W``), without separators, as NMEA 0183 writes
+positions (latitude ``ddmm.mmmm`` and longitude ``dddmm.mmmm``, the hemisphere in its
+own field: NMEA 0183 v4.10, sentence GGA/RMC [from memory]), are read by
+:func:`packed_angle`, never as decimal degrees: see its docstring for the rule.
 """
 
 from __future__ import annotations
@@ -35,6 +41,7 @@ class Cells:
     values: np.ndarray
     empty: np.ndarray
     error: np.ndarray
+    packed: np.ndarray | None = None    # angles only: cells read as packed degrees-minutes(-seconds)
 
     @property
     def bad(self) -> np.ndarray:
@@ -227,9 +234,13 @@ def angles(cells, axis: str, decimal_comma: bool = False) -> Cells:
     Plain numbers go the fast way; the common sexagesimal forms are read for the whole
     column at once (:func:`_common_angles`); the rest by :func:`parse_angle`, once per
     distinct value. A hemisphere letter of the other axis (E/W in a latitude) is
-    refused: the columns are probably swapped.
+    refused: the columns are probably swapped. Packed degrees-minutes(-seconds)
+    (:func:`packed_angle`) are found among all of them: a value beyond the degrees of
+    its axis, or an integer part wider than degrees are written; ``Cells.packed`` marks
+    the cells read that way.
     """
-    if not (isinstance(cells, np.ndarray) and cells.dtype.kind == "f"):     # floats: read by the sheet reader
+    is_float = isinstance(cells, np.ndarray) and cells.dtype.kind == "f"     # read as floats by the sheet reader
+    if not is_float:
         cells = np.asarray(cells, dtype=object)
     out = _fast_then_slow(cells, lambda u: (np.nan, "?"))
     pending = out.error == "?"
@@ -241,19 +252,161 @@ def angles(cells, axis: str, decimal_comma: bool = False) -> Cells:
         rest = idx[~ok]
         if len(rest):
             res = per_value(cells[rest], lambda u: _one_angle(u, axis, decimal_comma))
-            out.values[rest] = [v for v, _ in res]
-            out.empty[rest] = [e is None for _, e in res]
-            out.error[rest] = ["" if e is None else e for _, e in res]
+            out.values[rest] = [v for v, _, _ in res]
+            out.empty[rest] = [e is None for _, e, _ in res]
+            out.error[rest] = ["" if e is None else e for _, e, _ in res]
+            out.packed = np.zeros(len(cells), bool)
+            out.packed[rest] = [p for _, _, p in res]
+    # plain numbers that may be packed: beyond the degrees of the axis, or (text) wider than degrees are written
+    read = ~out.empty & (out.error == "")
+    with np.errstate(invalid="ignore"):
+        cand = read & (np.abs(out.values) > _DECIMAL_LIMIT[axis])
+    if not is_float and read.any():
+        cand |= read & ~pending & (_integer_digits(cells, _DEGREE_DIGITS[axis]) > _DEGREE_DIGITS[axis])
+    if cand.any():
+        idx = np.flatnonzero(cand)
+        text = cells[idx] if not is_float else np.array([_float_text(v) for v in cells[idx]], dtype=object)
+        res = per_value(text, lambda u: packed_angle(u, axis, decimal_comma=decimal_comma))
+        hit = np.array([r is not None for r in res], bool)
+        k = idx[hit]
+        out.values[k] = [r[0] for r in res[hit]]
+        out.error[k] = [r[1] for r in res[hit]]
+        if out.packed is None:
+            out.packed = np.zeros(len(cells), bool)
+        out.packed[k] = [r[1] == "" for r in res[hit]]
     out.values[out.empty | (out.error != "")] = np.nan
     return out
 
 
-# Degrees, then minutes, then seconds, each part marked (° d ' ") or separated by a space or colon, with a
-# hemisphere letter before or after: the forms GPS units and hand-typed sheets use. Anything else is left to
+#: Largest value read as decimal degrees (longitudes 180-360 are read as east of 180, with a warning).
+_DECIMAL_LIMIT = {"lat": 90.0, "lon": 360.0}
+#: Digits of whole degrees (latitude 0-90, longitude 0-180) as packed forms write them.
+_DEGREE_DIGITS = {"lat": 2, "lon": 3}
+_DEGREE_LIMIT = {"lat": 90.0, "lon": 180.0}
+
+
+def _integer_digits(cells, at_most: int) -> np.ndarray:
+    """How many digits each text cell's integer part has after an optional sign, counted up to ``at_most + 1``
+    (vectorised: only the first characters of each cell are looked at, so a huge cell costs nothing)."""
+    u = np.asarray(cells, dtype=object).astype(f"U{at_most + 2}")
+    if not len(u):
+        return np.zeros(0, int)
+    codes = u.view(np.uint32).reshape(len(u), -1)
+    lead = (codes[:, 0] == ord("+")) | (codes[:, 0] == ord("-"))
+    digit = (codes >= ord("0")) & (codes <= ord("9"))
+    digit[lead, 0] = True
+    width = codes.shape[1]
+    first_other = np.where(digit.all(axis=1), width, np.argmin(digit, axis=1))
+    return first_other - lead.astype(int)
+
+
+_PACKED = re.compile(r"^([NSEW])?\s*([+-])?(\d+)(\.\d*)?\s*,?\s*([NSEW])?$")
+
+
+def packed_angle(text, axis: str, *, decimal_comma: bool = False):
+    """A packed angle (degrees, minutes and maybe seconds written without separators) to ``(degrees, error)``,
+    or None when the text is not one (decimal degrees or another form).
+
+    Minutes and seconds always take two digits and the degrees the digits before them: latitude
+    ``DDMM.m`` / ``DDMMSS.s``, longitude ``DDDMM.m`` / ``DDDMMSS.s``, as NMEA 0183 writes
+    positions (``4751.6000`` = 47°51.6', ``01509.6000`` = 15°09.6'). Degrees may be written with fewer
+    digits only without a leading zero (``751.6N`` = 7°51.6', ``1509.6E`` = 15°09.6'). A text is packed
+    when its integer part is wider than degrees are written (2 digits for latitude, 3 for longitude) or
+    its value is beyond them as decimal degrees (90 for latitude, 360 for longitude); a zero-padded
+    latitude (``045.5``) stays decimal, and a bare latitude cell that could be a longitude (``147.5``) is
+    left to the swapped-columns check. When both packings fit (``15036E``: 150°36' or 1°50'36") the text
+    is refused with both readings. A packed angle needs its hemisphere letter (NMEA keeps it in its own
+    field, so a bare ``4751.6`` has lost it) or a sign; without one it is refused with its reading.
+
+    >>> packed_angle("4751.6N", "lat")     # 47 + 51.6/60
+    (47.86, '')
+    >>> round(packed_angle("0800512W", "lon")[0], 9)     # -(80 + 5/60 + 12/3600)
+    -80.086666667
+    >>> packed_angle("47.86", "lat") is None
+    True
+    """
+    raw = str(text).strip()
+    s = raw.upper().replace(",", ".") if decimal_comma and raw.count(",") == 1 and "." not in raw else raw.upper()
+    m = _PACKED.match(s)
+    if not m:
+        return None
+    h1, sign, digits, frac, h2 = m.groups()
+    if h1 and h2:
+        return None                     # parse_angle words it
+    letter = h1 or h2 or ""
+    frac = frac if frac and frac != "." else ""
+    width, limit = _DEGREE_DIGITS[axis], _DEGREE_LIMIT[axis]
+    k = len(digits)
+    value = float(digits + frac)
+    if k <= width and value <= _DECIMAL_LIMIT[axis]:
+        return None
+    if axis == "lat" and k == 3 and digits[0] == "0" and value <= 90.0:
+        return None                     # zero-padded decimal degrees
+    if axis == "lat" and not (letter or sign) and k <= 3 and value <= 180.0:
+        return None                     # a longitude in the latitude column? the swap check words it
+    readings = []
+    for n_deg, with_seconds in ((k - 2, False), (k - 4, True)):
+        if not 1 <= n_deg <= width or (n_deg < width and digits[0] == "0"):
+            continue
+        d = int(digits[:n_deg])
+        if with_seconds:
+            mi, se = float(digits[n_deg:n_deg + 2]), float(digits[n_deg + 2:] + frac)
+        else:
+            mi, se = float(digits[n_deg:] + frac), 0.0
+        v = d + mi / 60.0 + se / 3600.0
+        if mi >= 60 or se >= 60 or v > limit:
+            continue
+        readings.append((v, _shown(d, mi, se, with_seconds, digits[n_deg:], frac), with_seconds))
+    if not readings:
+        if k <= 3:
+            return None                 # a number out of range (999): the range check words it
+        return np.nan, (f"'{raw}' is neither decimal degrees (too many digits before the point) nor packed degrees "
+                        f"and minutes ({_form(axis, False)}) or degrees, minutes and seconds ({_form(axis, True)}) "
+                        "with minutes and seconds below 60")
+    if len(readings) == 2:
+        return np.nan, (f"'{raw}' can be packed degrees and minutes ({readings[0][1]}) or degrees, minutes and "
+                        f"seconds ({readings[1][1]}); write it with symbols or spaces (like 48°58'07\")")
+    v, shown, with_seconds = readings[0]
+    form = _form(axis, with_seconds)
+    if letter and _AXIS[letter] != axis:
+        other = "E/W (a longitude)" if _AXIS[letter] == "lon" else "N/S (a latitude)"
+        return np.nan, f"'{raw}' has the letter {other} in the {axis} column: lat and lon look swapped"
+    if letter and sign:
+        return np.nan, f"'{raw}' has both a sign and a hemisphere letter; give one of them"
+    if not letter and not sign:
+        pos, neg = ("N", "S") if axis == "lat" else ("E", "W")
+        what = "degrees, minutes and seconds" if with_seconds else "degrees and minutes"
+        nmea = "" if with_seconds else ", as NMEA 0183 writes positions"
+        return np.nan, (f"'{raw}' looks like packed {what} ({form}{nmea}): {shown}, but its hemisphere letter is "
+                        f"missing; write {raw}{pos} or {raw}{neg}")
+    negative = sign == "-" or letter in ("S", "W")
+    return (-v if negative else v), ""
+
+
+def _float_text(v) -> str:
+    """A number the sheet reader handed over as a float, as it was most likely written (shortest form)."""
+    v = float(v)
+    return str(int(v)) if v.is_integer() and abs(v) < 1e15 else repr(v)
+
+
+def _form(axis, with_seconds):
+    deg = "DD" if axis == "lat" else "DDD"
+    return f"{deg}MMSS" if with_seconds else f"{deg}MM.mmm"
+
+
+def _shown(d, mi, se, with_seconds, rest, frac):
+    if with_seconds:
+        return f"{d}°{rest[:2]}'{rest[2:]}{frac}\""
+    return f"{d}°{rest}{frac}'"
+
+
+# Degrees, then minutes, then seconds, each part marked (° ' ") or separated by a space or colon, with a
+# hemisphere letter before or after: the forms GPS units and hand-typed sheets use. Digits that run on without a
+# mark or separator are not split here (``075136N`` is packed, not 75°13'6"). Anything else is left to
 # parse_angle, which also explains what is wrong.
-_COMMON = re.compile(r"^(?P<h1>[NSEW])?\s*(?P<d>\d{1,3}(?:\.\d+)?)(?:\s*(?:°|d)\s*|\s+|:)?"
-                     r"(?:(?P<m>\d{1,2}(?:\.\d+)?)(?:\s*'\s*|\s+|:)?)?"
-                     r"(?:(?P<s>\d{1,2}(?:\.\d+)?)\s*\"?)?\s*(?P<h2>[NSEW])?$")
+_COMMON = re.compile(r"^(?P<h1>[NSEW])?\s*(?P<d>\d{1,3}(?:\.\d+)?)(?P<dm>\s*[°D])?"
+                     r"(?:(?:(?<=[°D])\s*|\s+|:)(?P<m>\d{1,2}(?:\.\d+)?)(?P<mm>\s*')?)?"
+                     r"(?:(?:(?<=')\s*|\s+|:)(?P<s>\d{1,2}(?:\.\d+)?)\s*\"?)?\s*(?P<h2>[NSEW])?$")
 
 
 def _common_angles(cells, axis, decimal_comma):
@@ -272,30 +425,36 @@ def _common_angles(cells, axis, decimal_comma):
     frac_d = parts["d"].fillna("").str.contains(".", regex=False).to_numpy(bool)
     frac_m = parts["m"].fillna("").str.contains(".", regex=False).to_numpy(bool)
     want = "NS" if axis == "lat" else "EW"
-    ok = (np.isfinite(d) & ((h1 == "") | (h2 == "")) & np.isin(letter, ["", *want])
-          & (~has_s | has_m) & (~frac_d | ~has_m) & (~frac_m | ~has_s)
-          & (np.nan_to_num(m) < 60) & (np.nan_to_num(sec) < 60))
     sign = np.where(np.isin(letter, ["S", "W"]), -1.0, 1.0)
     vals = sign * (d + np.nan_to_num(m) / 60.0 + np.nan_to_num(sec) / 3600.0)
+    with np.errstate(invalid="ignore"):
+        ok = (np.isfinite(d) & ((h1 == "") | (h2 == "")) & np.isin(letter, ["", *want])
+              & (~has_s | has_m) & (~frac_d | ~has_m) & (~frac_m | ~has_s)
+              & (np.nan_to_num(m) < 60) & (np.nan_to_num(sec) < 60)
+              & (np.abs(vals) <= _DECIMAL_LIMIT[axis]))       # beyond: packed? (the slow path decides)
     return vals, ok
 
 
 def _one_angle(text, axis, decimal_comma):
+    """One cell to ``(degrees, error or None when empty, read as packed)``."""
     s = str(text).strip()
     if s == "":
-        return np.nan, None
+        return np.nan, None, False
     v, err = _one_number(s, decimal_comma)
     if err == "":
-        return v, ""
+        return v, "", False
     if s.lower() in _SPELLED_NON_FINITE or _DEC_COMMA.match(s):
-        return np.nan, err
+        return np.nan, err, False
+    packed = packed_angle(s, axis, decimal_comma=decimal_comma)
+    if packed is not None:
+        return packed[0], packed[1], packed[1] == ""
     v, got, err = parse_angle(s, decimal_comma=decimal_comma)
     if err:
-        return np.nan, err
+        return np.nan, err, False
     if got and got != axis:
         other = "E/W (a longitude)" if got == "lon" else "N/S (a latitude)"
-        return np.nan, f"'{s}' has the letter {other} in the {axis} column: lat and lon look swapped"
-    return v, ""
+        return np.nan, f"'{s}' has the letter {other} in the {axis} column: lat and lon look swapped", False
+    return v, "", False
 
 
 def declinations(cells, decimal_comma: bool = False) -> Cells:
@@ -316,6 +475,9 @@ def declinations(cells, decimal_comma: bool = False) -> Cells:
     return Cells(np.where(bad, np.nan, vals), c.empty, err)
 
 
+_NMEA_POSITION = re.compile(r"^(\d+(?:\.\d+)?)\s*,\s*([NSns])\s*,\s*(\d+(?:\.\d+)?)\s*,\s*([EWew])$")
+
+
 def split_position(text: str, *, decimal_comma: bool = False):
     """One cell holding a whole position to ``(lat_text, lon_text, error)``.
 
@@ -324,9 +486,13 @@ def split_position(text: str, *, decimal_comma: bool = False):
     "44d24 33d18N" and "33:18 44:24" all name the same point. The two parts may be
     separated by a comma or semicolon (``47.8581, 15.1631``, as map apps copy a
     position) or by spaces; when more than one way of splitting the spaces reads as
-    two angles, the cell is refused as ambiguous.
+    two angles, the cell is refused as ambiguous. The four fields of an NMEA 0183
+    position (``4751.6000,N,01509.6000,E``) are read as packed angles.
     """
     raw = str(text).strip()
+    nmea = _NMEA_POSITION.match(raw)
+    if nmea:            # 4751.6000,N,01509.6000,E: the four fields of an NMEA 0183 position
+        return _order(raw, nmea.group(1) + nmea.group(2), nmea.group(3) + nmea.group(4))
     for sep in (";", ","):
         if sep in raw and not (sep == "," and decimal_comma):
             parts = [x.strip() for x in raw.split(sep)]

@@ -12,6 +12,16 @@
   common practice, no single source), so a walk from station to station with
   bearings 11-12 minutes apart stays one fix. Such a fix is labelled
   ``"<tag> <first time, UTC>"``.
+  A labelled bearing of the tag between two unlabelled ones ends the chain: it
+  belongs to a fix of its own.
+* **Labels written only where a fix starts** (a label, then rows without one, as
+  merged cells or a hand-written sheet leave them) are filled down
+  (:func:`fill_down`): each unlabelled row takes the label of the nearest labelled
+  row of its tag above it. The sheet must show the habit: some labelled row is
+  followed by unlabelled rows of its tag, and no label is written on two successive
+  rows of a tag (a sheet that labels every row, with a few labels forgotten, is not
+  filled: its unlabelled rows are grouped by time, or refused without times, with a
+  hint). A warning says so; ``fill_labels=False`` (``--no-fill-labels``) turns it off.
 * A sheet with neither labels nor times makes one fix per tag.
 """
 
@@ -29,23 +39,111 @@ def _stamp(t: float) -> str:
     return datetime.fromtimestamp(float(t), timezone.utc).strftime("%Y-%m-%dT%H:%MZ")
 
 
-def group_fixes(labels, tags, times, *, window_s: float, split_gap_s: float, log: RowLog, notes: list[str]):
+def fill_down(labels, tags, times, *, enabled: bool, log: RowLog, notes: list[str]):
+    """Labels (and tags) written only where a fix starts, filled down (see the module docstring).
+
+    Parameters
+    ----------
+    labels, tags : array_like of str
+        The sheet's ``fix`` and ``tag`` cells ('' when empty).
+    times : array_like of float
+        Each row's time [s since 1970 UTC], NaN without one (for the wording only).
+    enabled : bool
+        Whether to fill (``fill_labels``); when False, a sheet showing the habit gets a warning.
+
+    Returns
+    -------
+    labels, tags : ndarray of str
+        Filled where the sheet shows the habit (an empty tag takes its label's tag too).
+    filled : ndarray of bool
+        The rows that took the label above them.
+    hints : ndarray of str
+        For unlabelled rows that were not filled, why (for their message), else ''.
+    """
+    labels = np.asarray(labels, dtype=object)
+    tags = np.asarray(tags, dtype=object)
+    n = len(labels)
+    filled = np.zeros(n, bool)
+    hints = np.full(n, "", dtype=object)
+    lab = labels != ""
+    if lab.all() or not lab.any():
+        return labels, tags, filled, hints
+    idx = np.arange(n, dtype=float)
+    at_label = pd.Series(np.where(lab, idx, np.nan))
+    head_any = at_label.ffill().to_numpy()
+    head_tag = at_label.groupby(pd.Series(tags, dtype=object)).ffill().to_numpy()
+    untagged = tags == ""
+    head = np.where(untagged, head_any, head_tag)
+    cont = ~lab & np.isfinite(head)
+    if not cont.any():
+        return labels, tags, filled, hints
+    h = np.where(cont, head, 0).astype(np.int64)
+    tag_eff = np.where(cont & untagged, tags[h], tags).astype(object)
+    prev = pd.Series(np.arange(n)).groupby(pd.Series(tag_eff, dtype=object)).shift(1).to_numpy()
+    has_prev = np.isfinite(prev)
+    p = np.where(has_prev, prev, 0).astype(np.int64)
+    twice = lab & has_prev & (labels[p] == labels)
+    first = int(np.flatnonzero(cont)[0])
+    start = h[first]
+    run = int(np.sum(cont & (h == start)))
+    where = (f"line {log.lines[start]} '{labels[start]}'" + (f" of tag '{tags[start]}'" if tags[start] else "")
+             + f" has {run} {'row' if run == 1 else 'rows'} without a label below it")
+    if not twice.any() and enabled:
+        labels = np.where(cont, labels[h], labels).astype(object)
+        tags = tag_eff
+        filled = cont
+        k = int(cont.sum())
+        log.warn(log.mask([first]), "fix", f"fix labels are written only where a fix starts ({where}): {k} "
+                                           f"unlabelled {'row' if k == 1 else 'rows'} took the label of the row above "
+                                           "(--no-fill-labels reads them as unlabelled)", rejected_too=True)
+        notes.append(f"fix labels filled down: {k} unlabelled {'row' if k == 1 else 'rows'} took the label of the "
+                     "nearest labelled row of their tag above them (the sheet writes a label only where a fix starts)")
+        return labels, tags, filled, hints
+    if twice.any():
+        j = int(np.flatnonzero(twice)[0])
+        why = (f"the row above it, line {{line}}, is labelled '{{label}}', but labels were not filled down: this sheet "
+               f"also writes a label on successive rows (lines {log.lines[p[j]]} and {log.lines[j]}, '{labels[j]}'); "
+               "write the label on every row of a fix")
+    else:
+        why = ("the row above it, line {line}, is labelled '{label}': labels look written only where a fix starts, "
+               "but --no-fill-labels is given")
+    hints[cont] = [why.format(line=log.lines[h[i]], label=labels[h[i]]) for i in np.flatnonzero(cont)]
+    timed = np.isfinite(np.asarray(times, float))
+    if (cont & timed).any():
+        i = int(np.flatnonzero(cont & timed)[0])
+        log.warn(log.mask([i]), "fix", f"no fix label; {hints[i]}. The unlabelled rows were grouped by time",
+                 rejected_too=True)
+    return labels, tags, filled, hints
+
+
+def group_fixes(labels, tags, times, *, window_s: float, split_gap_s: float, log: RowLog, notes: list[str],
+                filled=None, hints=None, date_only=None):
     """Fix label of every row (after splitting and time grouping) and how it was grouped.
+
+    ``filled`` marks rows whose label was filled down (:func:`fill_down`); ``hints`` adds a reason to the
+    refusal of unlabelled rows without a time. ``date_only`` marks times that give only a date (12:00 UTC
+    of it): they place a labelled bearing on its day (splits) but group no unlabelled bearing by time; in
+    a sheet without labels and without times of day, the bearings of a tag on one date form one fix.
 
     Returns
     -------
     fix : ndarray of str
         The fix label of each row ('' for rows in no fix).
     grouped_by : ndarray of str
-        'label', 'split' (a label split by time), 'window', 'sheet' or ''.
+        'label', 'filled' (the label of the row above), 'split' (a label split by time), 'window',
+        'sheet' or ''.
     """
     labels = np.asarray(labels, dtype=object)
     tags = np.asarray(tags, dtype=object)
     times = np.asarray(times, float)
     fix = labels.copy()
     grouped_by = np.where(labels != "", "label", "").astype(object)
+    if filled is not None:
+        grouped_by[np.asarray(filled, bool)] = "filled"
+    days = np.zeros(len(labels), bool) if date_only is None else np.asarray(date_only, bool)
     timed = np.isfinite(times)
-    _split_labels(fix, grouped_by, labels, tags, times, timed, split_gap_s, log, notes)
+    _split_labels(fix, grouped_by, labels, tags, times, timed, split_gap_s, log, notes, days)
+    timed &= ~days                      # a date alone groups no unlabelled bearing by time
 
     unl = labels == ""
     if not unl.any():
@@ -53,22 +151,35 @@ def group_fixes(labels, tags, times, *, window_s: float, split_gap_s: float, log
     usable = ~log.bad
     if not (timed & usable).any() and not (labels != "").any():
         who = unl & usable
-        fix[who] = np.where(tags[who] != "", tags[who], "fix")
+        day = np.array([_stamp(x)[:10] if d else "" for x, d in zip(times[who], days[who])], dtype=object)
+        fix[who] = np.where(tags[who] != "", tags[who], "fix") + np.where(day != "", " " + day, "")
         grouped_by[who] = "sheet"
         if who.any():
-            notes.append("no fix labels and no times: all bearings of each tag were taken as one fix")
-            log.warn(log.mask([np.flatnonzero(who)[0]]), "fix",
-                     "no fix labels and no times in the sheet: all bearings of each tag form one fix")
+            each = " on each date" if days[who].any() else ""
+            notes.append(f"no fix labels and no times of day: all bearings of each tag{each} were taken as one fix")
+            log.warn(log.mask([np.flatnonzero(who)[0]]), "fix", f"no fix labels and no times of day in the sheet: "
+                                                               f"all bearings of each tag{each} form one fix")
         return fix, grouped_by
-    log.reject(unl & ~timed & usable, "fix", "no fix label and no time: dfkit cannot tell which bearings belong together")
+    base_msg = "no fix label and no time: dfkit cannot tell which bearings belong together"
+    day_msg = ("no fix label and only a date, no time of day: dfkit cannot tell which bearings of that day belong "
+               "together; add the time of day or a fix label")
+    hints = np.full(len(labels), "", dtype=object) if hints is None else np.asarray(hints, dtype=object)
+    log.reject(unl & ~timed & usable, "fix", lambda ii: [(day_msg if days[i] else base_msg)
+                                                         + (f" ({hints[i]})" if hints[i] else "") for i in ii])
     idx = np.flatnonzero(unl & timed)
     if not len(idx):
         return fix, grouped_by
-    order = idx[np.lexsort((times[idx], tags[idx].astype(str)))]
-    t = times[order]
-    g_tag = tags[order]
-    new = np.ones(len(order), bool)
-    new[1:] = (g_tag[1:] != g_tag[:-1]) | (np.diff(t) > window_s)
+    # labelled bearings of the tag take part in the time order only to end a chain that runs past them
+    stops = np.flatnonzero(~unl & timed)
+    every = np.concatenate([idx, stops])
+    every = every[np.lexsort((every, times[every], tags[every].astype(str)))]
+    stop = ~unl[every]
+    t = times[every]
+    g_tag = tags[every]
+    new_all = np.ones(len(every), bool)
+    new_all[1:] = (g_tag[1:] != g_tag[:-1]) | (np.diff(t) > window_s) | stop[:-1]
+    order = every[~stop]
+    new = new_all[~stop]
     gid = np.cumsum(new) - 1
     starts = order[new]
     used = set(labels[labels != ""].tolist()) | set(fix[fix != ""].tolist())
@@ -84,11 +195,12 @@ def group_fixes(labels, tags, times, *, window_s: float, split_gap_s: float, log
     grouped_by[order] = "window"
     ng = len(starts)
     notes.append(f"{len(idx)} unlabelled bearings grouped into {ng} {'fix' if ng == 1 else 'fixes'} by tag: a fix goes "
-                 f"on while each bearing follows the previous one within {window_s / 60:g} min (--window)")
+                 f"on while each bearing follows the previous one within {window_s / 60:g} min (--window) and no "
+                 "labelled bearing of the tag comes between")
     return fix, grouped_by
 
 
-def _split_labels(fix, grouped_by, labels, tags, times, timed, split_gap_s, log, notes):
+def _split_labels(fix, grouped_by, labels, tags, times, timed, split_gap_s, log, notes, days):
     lab = np.flatnonzero((labels != "") & timed)
     if len(lab) < 2:
         return
@@ -107,8 +219,10 @@ def _split_labels(fix, grouped_by, labels, tags, times, timed, split_gap_s, log,
     part_start[1:] = (c[1:] != c[:-1]) | brk[1:]
     part = np.cumsum(part_start) - 1
     first_t = t[part_start]
+    first_day = days[rows][part_start]
     sel = rows[in_split]
-    fix[sel] = [f"{labels[i]} ({_stamp(first_t[p])})" for i, p in zip(sel, part[in_split])]
+    fix[sel] = [f"{labels[i]} ({_stamp(first_t[p])[:10] if first_day[p] else _stamp(first_t[p])})"
+                for i, p in zip(sel, part[in_split])]
     grouped_by[sel] = "split"
     for k in split_keys:
         kk = np.flatnonzero(c == k)

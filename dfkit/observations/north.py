@@ -23,7 +23,8 @@ def magnetic_declination(log: RowLog, need, times, time_cells, lat, lon, notes):
     dec_sd = np.zeros(n)
     need = need & ~log.bad
     log.reject(need & ~np.isfinite(times), "time",
-               f"a magnetic bearing needs a time (for {magnetic.MODEL_NAME}) or a declination column")
+               f"a magnetic bearing needs a time (for {magnetic.MODEL_NAME}), a declination column, or the "
+               "declination option (--declination)")
     need &= ~log.bad
     if not need.any():
         return dec, dec_sd

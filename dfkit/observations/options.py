@@ -10,6 +10,8 @@ from __future__ import annotations
 import math
 from dataclasses import dataclass
 
+import numpy as np
+
 from dfkit.conventions import DEGREES_PER_UNIT
 from dfkit.observations.times import DATE_ORDERS, REPEATED_HOUR
 from dfkit.policy import (
@@ -82,6 +84,9 @@ class ReadOptions:
         rows where there is none.
     worksheet : str, optional
         Which sheet of a spreadsheet file to read (default: the first).
+    fill_labels : bool
+        Whether fix labels written only where a fix starts are filled down (when the
+        sheet shows that habit; see :mod:`dfkit.observations.grouping`).
     """
 
     unit: str = "deg"
@@ -98,6 +103,7 @@ class ReadOptions:
     grid_crs: str | None = None
     utm_letters: str = "auto"
     worksheet: str | None = None
+    fill_labels: bool = True
 
 
 def _number(param, value):
@@ -120,6 +126,8 @@ def check_options(o: ReadOptions) -> None:
     _choice("unit", o.unit, tuple(DEGREES_PER_UNIT))
     _choice("north", o.north, ("true", "magnetic", "grid"))
     _choice("utm_letters", o.utm_letters, UTM_LETTERS)
+    if not isinstance(o.fill_labels, (bool, np.bool_)):
+        raise OptionError("fill_labels", o.fill_labels, "must be True or False")
     if o.sd is not None:
         v = _number("sd", o.sd)
         if not MIN_SD_DEG <= v < 90:

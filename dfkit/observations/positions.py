@@ -19,7 +19,12 @@ the GPS track, never against the whole sheet, which may span continents:
   readings;
 * a UTM position outside its zone's strip is converted (with a warning) when the
   conversion is sound (:mod:`dfkit.grids`), unless the other rows of its fix sit
-  inside the strip far away (a missing digit).
+  inside the strip far away (a missing digit);
+* a station far from the other stations of its own fix (more than
+  :data:`dfkit.policy.FAR_STATION_KM` and :data:`~dfkit.policy.FAR_STATION_SPREADS`
+  times the fix's own spread) is refused as a likely position mistake, naming the
+  corrections that would bring it back (a sign, two digits swapped, a digit changed,
+  missing or too many, the decimal point: :mod:`dfkit.observations.typos`).
 """
 
 from __future__ import annotations
@@ -34,9 +39,10 @@ from dfkit import grids
 from dfkit.io.gpx import Track
 from dfkit.observations.cells import angles, column, numbers, per_value, split_position
 from dfkit.observations.rowlog import RowLog
+from dfkit.observations.typos import describe, variants
 from dfkit.policy import (
-    BAND_EDGE_MARGIN_DEG, DEFAULT_TRACK_GAP_S, OUT_OF_STRIP_TYPO_M, POSITION_AGREEMENT_M, SWAPPED_FAR_DEG,
-    SWAPPED_NEAR_DEG,
+    BAND_EDGE_MARGIN_DEG, DEFAULT_TRACK_GAP_S, FAR_STATION_KM, FAR_STATION_SPREADS, MGRS_REFUSED_SQUARE_M, MGRS_WARNED_SQUARE_M, OUT_OF_STRIP_TYPO_M,
+    POSITION_AGREEMENT_M, SWAPPED_FAR_DEG, SWAPPED_NEAR_DEG,
 )
 from dfkit.problems import Problem
 
@@ -179,6 +185,8 @@ def parse_positions(table: pd.DataFrame, *, prefix: str = "", station_column: st
     _utm(p, decimal_comma, utm_letters, groups, track_ll)
     if groups is not None or track_ll is not None:
         _swapped(p, groups, track_ll)
+    if groups is not None:
+        _far_from_fix(p, groups)
     if track is not None and times is not None:
         _from_track(p, track, times, track_gap_s)
     if "station" in cols and stations is None:
@@ -263,6 +271,8 @@ def _latlon(p: _State, decimal_comma):
     log.reject(has & la.empty, cl, f"{cl} is missing ({cn} is given)")
     log.reject(has & lo.empty, cn, f"{cn} is missing ({cl} is given)")
     a, o = la.values, lo.values
+    for c, cells, name in ((la, la_c, cl), (lo, lo_c, cn)):
+        _note_packed(log, c, cells, name)
     with np.errstate(invalid="ignore"):
         log.reject(has & (np.abs(a) > 90) & (np.abs(o) <= 90), cl,
                    lambda idx: [f"{a[i]:g} is not a latitude, but {o[i]:g} could be: {cl} and {cn} look swapped"
@@ -277,6 +287,20 @@ def _latlon(p: _State, decimal_comma):
     p.take(ok, a[ok], o[ok], "lat/lon")
 
 
+def _note_packed(log: RowLog, c, cells, name):
+    """One warning per column whose cells were read as packed degrees-minutes(-seconds) (``4751.6N``)."""
+    if c.packed is None:
+        return
+    rows = np.flatnonzero(c.packed & ~log.bad)
+    if not len(rows):
+        return
+    i = rows[0]
+    more = f" (and {len(rows) - 1} more {name} cells, to line {log.lines[rows[-1]]})" if len(rows) > 1 else ""
+    log.warn(log.mask([i]), name, f"'{cells[i]}' read as a packed angle (degrees, minutes and maybe seconds without "
+                                  f"separators, as NMEA 0183 and GPS exports write them): {c.values[i]:.6f}°{more}; "
+                                  "check that this is what was meant")
+
+
 def _mgrs(p: _State):
     cells = p.cells["mgrs"]
     idx = np.flatnonzero((cells != "") & ~p.log.bad)
@@ -285,10 +309,25 @@ def _mgrs(p: _State):
     parsed = per_value(cells[idx], grids.parse_mgrs)
     ok = np.array([r[0] is not None for r in parsed], bool)
     p.log.reject(p.log.mask(idx[~ok]), p.name("mgrs"), lambda ii: [parsed[np.searchsorted(idx, i)][1] for i in ii])
-    good = idx[ok]
-    res = [r[0] for r in parsed[ok]]
+    square = np.array([r[0][4] if r[0] is not None else np.nan for r in parsed], float)
+    coarse = ok & (square >= MGRS_REFUSED_SQUARE_M)
+    p.log.reject(p.log.mask(idx[coarse]), p.name("mgrs"), lambda ii: [
+        f"'{cells[i]}' names a {_square(square[_k(idx, i)])} square: its centre could be "
+        f"{square[_k(idx, i)] / np.sqrt(2) / 1000:,.0f} km from the place meant, farther than bearings usually reach; "
+        "give at least 6 digits (a 100 m square)" for i in ii])
+    p.log.warn(p.log.mask(idx[ok & ~coarse & (square >= MGRS_WARNED_SQUARE_M)]), p.name("mgrs"), lambda ii: [
+        f"'{cells[i]}' names a {_square(square[_k(idx, i)])} square: its centre was used, which may be up to "
+        f"{square[_k(idx, i)] / np.sqrt(2):,.0f} m from the place meant, and the fix's region does not include that; "
+        "give 6 digits or more (a 100 m square) where you can" for i in ii])
+    keep = ok & ~coarse
+    good = idx[keep]
+    res = [r[0] for r in parsed[keep]]
     if len(good):
         p.take(good, [r[0] for r in res], [r[1] for r in res], "mgrs", [r[2] for r in res], [r[3] for r in res])
+
+
+def _square(size_m):
+    return f"{size_m / 1000:g} km" if size_m >= 1000 else f"{size_m:g} m"
 
 
 def _station(p: _State, stations):
@@ -633,6 +672,112 @@ def _swapped(p: _State, groups, track_ll):
                 _swapped_pairs(p, groups, valid, pairs)
     log.reject(suspect, p.name("lat"), lambda idx: [
         f"{lat[i]:g}, {lon[i]:g} is far from {where[i]}, but swapped it fits: lat and lon look swapped" for i in idx])
+
+
+def _far_from_fix(p: _State, groups):
+    """Refuse stations far from the other stations of their own fix (3 or more positions), naming the corrections
+    of a typing slip that would bring them back; warn on both rows of a two-station fix that far apart."""
+    log = p.log
+    valid = (p.source != "") & ~log.bad & (groups >= 0)
+    if not valid.any():
+        return
+    ref_lat, ref_lon, cnt = _group_reference(groups, p.lat, p.lon, valid)
+    g = np.maximum(groups, 0)
+    sel = valid & (cnt[g] >= 2)
+    if not sel.any():
+        return
+    d = np.full(p.n, np.nan)
+    d[sel] = _km(ref_lat[g[sel]], ref_lon[g[sel]], p.lat[sel], p.lon[sel])
+    spread = np.zeros(len(cnt))
+    med = pd.Series(d[sel]).groupby(groups[sel]).median()
+    spread[med.index.to_numpy()] = med.to_numpy()
+    with np.errstate(invalid="ignore"):
+        far = sel & (cnt[g] >= 3) & (p.source != "track") & \
+            (d > np.maximum(FAR_STATION_SPREADS * spread[g], FAR_STATION_KM))
+        pair = sel & (cnt[g] == 2) & (2.0 * d > FAR_STATION_KM)
+    for i in np.flatnonzero(far):
+        near = valid & ~far & (groups == groups[i])
+        others = _km(ref_lat[g[i]], ref_lon[g[i]], p.lat[near], p.lon[near])
+        reach = float(others.max()) if len(others) else 0.0
+        col, fits = _corrections(p, i, ref_lat[g[i]], ref_lon[g[i]], max(3.0 * reach, 2.0))
+        fix = f" It would fit with {describe(fits)}." if fits else ""
+        log.reject(log.mask([i]), col,
+                   f"this station is {d[i]:,.0f} km from the other stations of its fix (they lie within {reach:,.1f} km "
+                   f"of their middle; a fix's bearings are taken within walking or driving reach): a position "
+                   f"mistake? Not used.{fix}")
+    if pair.any():
+        order = np.flatnonzero(pair)
+        first = {}
+        for i in order:
+            first.setdefault(groups[i], i)
+        for i in order:
+            j = first[groups[i]]
+            if j == i:
+                j = next(k for k in order if groups[k] == groups[i] and k != i)
+            log.warn(log.mask([i]), _position_column(p, i),
+                     f"this station and line {log.lines[j]}, the only other station of its fix, are {2 * d[i]:,.0f} km "
+                     "apart: one of the two positions is probably mistyped")
+
+
+def _position_column(p: _State, i) -> str:
+    src = p.source[i]
+    if src == "utm":
+        return p.name("easting")
+    if src in ("mgrs", "station"):
+        return p.name(src)
+    return p.name("lat")
+
+
+def _corrections(p: _State, i, ref_lat, ref_lon, radius_km):
+    """(column to blame, [(column, corrected text, kind)...]) for a row whose position is far from its fix:
+    the typing slips (one per cell) that bring the row within ``radius_km`` of the fix's reference, nearest first."""
+    src = p.source[i]
+    found = []
+    if src == "lat/lon":
+        for role, axis in (("lat", "lat"), ("lon", "lon")):
+            text = p.cells[role][i]
+            text = _float_text(text) if not isinstance(text, str) else text
+            cands = variants(text)
+            if not cands:
+                continue
+            vals = np.array([float(c) for c, _ in cands])
+            ok = np.abs(vals) <= (90.0 if axis == "lat" else 180.0)
+            la = np.where(ok, vals, np.nan) if axis == "lat" else np.full(len(vals), p.lat[i])
+            lo = np.where(ok, vals, np.nan) if axis == "lon" else np.full(len(vals), p.lon[i])
+            with np.errstate(invalid="ignore"):
+                dist = _km(ref_lat, ref_lon, la, lo)
+            found += [(dist[k], p.name(role), cands[k][0], cands[k][1]) for k in np.flatnonzero(dist <= radius_km)]
+    elif src == "utm":
+        e_t, n_t = p.cells["easting"][i], p.cells["northing"][i]
+        e_t = _float_text(e_t) if not isinstance(e_t, str) else e_t
+        n_t = _float_text(n_t) if not isinstance(n_t, str) else n_t
+        try:
+            e0, n0 = float(e_t), float(n_t)
+        except ValueError:
+            return _position_column(p, i), []
+        for role, text in (("easting", e_t), ("northing", n_t)):
+            cands = [(c, k) for c, k in variants(text, point=False) if k != "sign"]
+            if not cands:
+                continue
+            vals = np.array([float(c) for c, _ in cands])
+            E = vals if role == "easting" else np.full(len(vals), e0)
+            N = vals if role == "northing" else np.full(len(vals), n0)
+            ok = (np.abs(E - 5e5) <= grids.MAX_FROM_CM_M) & (N >= 0) & (N <= 1e7)
+            if not ok.any():
+                continue
+            la, lo = grids.utm_to_latlon(np.full(ok.sum(), p.zone[i]), np.full(ok.sum(), p.south[i]), E[ok], N[ok])
+            dist = np.full(len(vals), np.inf)
+            dist[ok] = _km(ref_lat, ref_lon, la, lo)
+            found += [(dist[k], p.name(role), cands[k][0], cands[k][1]) for k in np.flatnonzero(dist <= radius_km)]
+    found.sort(key=lambda f: f[0])
+    fits = [(col, text, kind) for _, col, text, kind in found]
+    col = fits[0][0] if fits else _position_column(p, i)
+    return col, fits
+
+
+def _float_text(v) -> str:
+    v = float(v)
+    return str(int(v)) if v.is_integer() and abs(v) < 1e15 else repr(v)
 
 
 def _swapped_pairs(p, groups, valid, pairs):

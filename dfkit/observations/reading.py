@@ -5,7 +5,8 @@ The steps, in order: read the file (:func:`dfkit.io.read_table`), check the colu
 bearings, units, north, SDs and declinations (:mod:`~dfkit.observations.cells`),
 group rows into fixes (:mod:`~dfkit.observations.grouping`), read positions judged
 against each row's own fix (:mod:`~dfkit.observations.positions`), turn magnetic and
-grid bearings to true (:mod:`~dfkit.observations.north`).
+grid bearings to true (:mod:`~dfkit.observations.north`), and use a repeated row once
+(:mod:`~dfkit.observations.repeats`).
 """
 
 from __future__ import annotations
@@ -23,17 +24,19 @@ from dfkit.observations import north as north_mod
 from dfkit.observations.bearings import Bearings
 from dfkit.observations.cells import canonical, column, declinations, numbers, per_value
 from dfkit.observations.columns import check_columns
-from dfkit.observations.grouping import fix_identities, group_fixes, pair_codes
+from dfkit.observations.grouping import fill_down, fix_identities, group_fixes, pair_codes
 from dfkit.observations.options import ReadOptions, check_options
 from dfkit.observations.positions import parse_positions, read_places
+from dfkit.observations.repeats import repeated_rows
 from dfkit.observations.rowlog import RowLog
 from dfkit.observations.times import parse_times
-from dfkit.policy import MIN_SD_DEG, SPLIT_LABEL_GAP_H
+from dfkit.policy import MIN_SD_DEG, PLAUSIBLE_SD_DEG, SPLIT_LABEL_GAP_H
 from dfkit.problems import Problem, SheetError
 
-#: Columns of plain numbers that the CSV reader may hand over as floats (every cell a finite plain number):
-#: the common case is then parsed once, in C, with no text kept; anything else is read as text, as before.
-NUMERIC_COLUMNS = ("lat", "lon", "easting", "northing", "bearing", "sd")
+#: Columns of plain numbers that the CSV reader may hand over as floats (every cell a finite plain number, no
+#: larger than the bound): the common case is then parsed once, in C, with no text kept; anything else is read
+#: as text, as before. A latitude or longitude beyond degrees may be a packed angle (``4751.6``): its text is kept.
+NUMERIC_COLUMNS = {"lat": 90.0, "lon": 360.0, "easting": None, "northing": None, "bearing": None, "sd": None}
 
 
 def read_bearings(sheet, options: ReadOptions | None = None, **kwargs) -> Bearings:
@@ -103,6 +106,11 @@ def read_bearings(sheet, options: ReadOptions | None = None, **kwargs) -> Bearin
     log.reject(tm.error != "", "time" if "time" in t.columns or "date" not in t.columns else "date", tm.error)
     notes.extend(tm.notes)
     times = tm.seconds
+    days = tm.date_only & ~log.bad
+    if days.any():
+        notes.append(f"{int(days.sum())} {'bearing has' if days.sum() == 1 else 'bearings have'} a date and no time "
+                     "of day: taken as 12:00 UTC of that date, which is enough to tell days apart and for the "
+                     "magnetic model, not to group unlabelled bearings or to look positions up on a GPS track")
 
     # bearing and unit
     bearing_deg, b, unit = _bearings(t, opts, raw.decimal_comma, log)
@@ -112,19 +120,22 @@ def read_bearings(sheet, options: ReadOptions | None = None, **kwargs) -> Bearin
     ncells = column(t, "north")
     log.reject(north_unknown, "north", lambda idx: [f"unknown north '{ncells[i]}'; use true, magnetic or grid"
                                                      for i in idx])
-    sd, sd_from = _sds(t, opts, raw.decimal_comma, log)
-    dec, dec_empty = _declinations(t, opts, raw.decimal_comma, log, north, n)
+    sd, sd_from = _sds(t, opts, raw.decimal_comma, log, unit, notes)
+    dec, dec_empty = _declinations(t, opts, raw.decimal_comma, log, north, n, notes)
 
-    # fixes: by tag and label, labels split by time, unlabelled rows by the window
+    # fixes: labels written only where a fix starts filled down; by tag and label, labels split by time,
+    # unlabelled rows by the window
     fix_c, tag_c = column(t, "fix"), column(t, "tag")
+    fix_c, tag_c, filled, hints = fill_down(fix_c, tag_c, times, enabled=opts.fill_labels, log=log, notes=notes)
     fix, grouped_by = group_fixes(fix_c, tag_c, times, window_s=opts.window_min * 60.0,
-                                  split_gap_s=SPLIT_LABEL_GAP_H * 3600.0, log=log, notes=notes)
+                                  split_gap_s=SPLIT_LABEL_GAP_H * 3600.0, log=log, notes=notes, filled=filled,
+                                  hints=hints, date_only=days)
     ids = pair_codes(tag_c, fix, fix != "")
 
     # positions, judged against each row's own fix and the track
     pos = parse_positions(t, lines=lines, source=raw.source, decimal_comma=raw.decimal_comma, stations=stations,
-                          track=track, times=times, track_gap_s=opts.track_gap_s, utm_letters=opts.utm_letters,
-                          groups=ids, log=log, skip=refused_by_reader)
+                          track=track, times=np.where(days, np.nan, times), track_gap_s=opts.track_gap_s,
+                          utm_letters=opts.utm_letters, groups=ids, log=log, skip=refused_by_reader)
 
     # magnetic -> true, grid -> true
     magnetic_rows = north == "magnetic"
@@ -133,6 +144,15 @@ def read_bearings(sheet, options: ReadOptions | None = None, **kwargs) -> Bearin
     dec_used = np.where(magnetic_rows, np.where(dec_empty, model_dec, dec), 0.0)
     conv = north_mod.grid_convergence(log, north == "grid", pos.zone, pos.south, pos.lat, pos.lon, opts.grid_crs)
     true_bearing = wrap360(bearing_deg + dec_used + conv)
+
+    # a row written twice is one bearing
+    others = [c for c in raw.columns if c not in _COMPARED_AS_READ and c not in ("note", "line_in_sheet")]
+    extra = [north, dec_used, sd] + [column(t, c) for c in others]
+    rep, first = repeated_rows(ids, times, pos.lat, pos.lon, bearing_deg, usable=~log.bad, extra=extra)
+    log.reject(rep, "", lambda idx: [
+        f"repeats line {lines[first[i]]} (same fix, {'time, ' if np.isfinite(times[i]) else ''}position and bearing"
+        f"{'' if np.isfinite(times[i]) else '; no time'}): a repeated bearing adds no information, so this copy "
+        "is not used" for i in idx])
 
     keep = ~log.bad
     table = pd.DataFrame({
@@ -168,6 +188,12 @@ def read_bearings(sheet, options: ReadOptions | None = None, **kwargs) -> Bearin
                     source=raw.source, window_min=float(opts.window_min))
 
 
+#: Columns a repeated row is compared on through their values as read (fix and tag through the fix, times,
+#: positions, bearings); every other column but the note is compared as written (see dfkit.observations.repeats).
+_COMPARED_AS_READ = ("fix", "tag", "time", "date", "lat", "lon", "utm_zone", "easting", "northing", "mgrs", "station",
+                     "position", "bearing", "unit", "north", "sd", "declination")
+
+
 def _bearings(t, opts, decimal_comma, log: RowLog):
     unit_c = column(t, "unit")
     unit, unit_unknown = canonical(unit_c, UNIT_ALIASES, opts.unit)
@@ -185,21 +211,42 @@ def _bearings(t, opts, decimal_comma, log: RowLog):
     return b * per_value(unit, lambda u: DEGREES_PER_UNIT.get(u, 1.0)).astype(float), b, unit
 
 
-def _sds(t, opts, decimal_comma, log: RowLog):
+def _sds(t, opts, decimal_comma, log: RowLog, unit, notes):
+    """The SD of each row [°]. SDs are always in degrees, whatever the bearing's unit: on a mil row an SD
+    above :data:`dfkit.policy.PLAUSIBLE_SD_DEG` (beyond any usable bearing) that would be a usual SD read as
+    mils is pointed out; on grad rows the two readings differ by a tenth and cannot be told apart (a note)."""
     c = numbers(column(t, "sd"), decimal_comma)
     log.reject(c.bad, "sd", c.error)
     sd = c.values
+    mil = unit == "mil"
+    per_mil = DEGREES_PER_UNIT["mil"]
     with np.errstate(invalid="ignore"):
         log.reject(~c.empty & ~c.bad & ((sd < MIN_SD_DEG) | (sd >= 90)), "sd", lambda idx: [
-            f"{sd[i]:g} is not a usable bearing SD; give degrees from {MIN_SD_DEG:g} to below 90" for i in idx])
+            f"{sd[i]:g} is not a usable bearing SD; give degrees from {MIN_SD_DEG:g} to below 90"
+            + (f" (sd is in degrees on mil rows too: {sd[i]:g} mil would be {sd[i] * per_mil:.2g}°)"
+               if mil[i] and sd[i] >= 90 else "") for i in idx])
+        big = np.flatnonzero(mil & ~c.empty & ~log.bad & (sd > PLAUSIBLE_SD_DEG))
+    if len(big):       # one warning for the sheet, on the first such row
+        i = big[0]
+        more = f" (and {len(big) - 1} more mil rows, to line {log.lines[big[-1]]})" if len(big) > 1 else ""
+        log.warn(log.mask([i]), "sd", f"sd {sd[i]:g} on a mil row{more}: sd is in degrees whatever the bearing's "
+                                      f"unit, and {sd[i]:g}° is beyond any usable bearing SD (dfkit's limit of "
+                                      f"plausible: {PLAUSIBLE_SD_DEG:g}°); if it is in mils, write "
+                                      f"{sd[i] * per_mil:.2g} ({sd[i]:g} mil in degrees)")
     sd_from = np.where(c.empty, "", "sheet").astype(object)
     if opts.sd is not None:
         sd = np.where(c.empty, float(opts.sd), sd)
         sd_from = np.where(c.empty, "option", sd_from).astype(object)
+        if float(opts.sd) > PLAUSIBLE_SD_DEG and (mil & c.empty & ~log.bad).any():
+            notes.append(f"--sd {float(opts.sd):g} is in degrees, also for the mil bearings it is given to; if it "
+                         f"is in mils, give --sd {float(opts.sd) * per_mil:.2g}")
+    if ((unit == "grad") & ~c.empty & ~log.bad).any():
+        notes.append("sd is read in degrees on grad rows too (1 grad = 0.9°: an SD written in grads reads a tenth "
+                     "too large; the two cannot be told apart by size)")
     return sd, sd_from
 
 
-def _declinations(t, opts, decimal_comma, log: RowLog, north, n):
+def _declinations(t, opts, decimal_comma, log: RowLog, north, n, notes):
     c = declinations(column(t, "declination"), decimal_comma)
     log.reject(c.bad, "declination", c.error)
     dec = c.values
@@ -212,6 +259,9 @@ def _declinations(t, opts, decimal_comma, log: RowLog, north, n):
         empty = np.zeros(n, bool)
     log.warn(~c.empty & (north != "magnetic"), "declination",
              "declination given for a bearing that is not magnetic; it was not applied")
+    if opts.declination is not None and not (north == "magnetic").any():
+        notes.append(f"--declination {float(opts.declination):g} was given, but no bearing is magnetic (north "
+                     "column or --north magnetic): it was not used")
     return dec, empty
 
 

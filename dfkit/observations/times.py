@@ -16,6 +16,13 @@ Accepted (documented in the README, "The bearing sheet"):
 * Any form by an explicit ``strptime`` pattern (``date_format='%d.%m.%Y %H:%M'``).
 * A separate ``date`` column with a time of day in ``time`` (``06:12``).
 * Spreadsheet date cells arrive as ISO text without an offset.
+* **A date alone** (``2026-05-03``, ``03.05.2026``, ``3 May 2026``, or a ``date``
+  column whose ``time`` is empty) is a coarse time: the day, taken as 12:00 UTC of
+  that date (within the same date in every time zone from UTC-12 to UTC+11), with no
+  time zone needed. It places a labelled bearing on its day (which fix of a label used
+  on several days, the declination of the magnetic model, which changes by about a
+  tenth of a degree a year) but cannot group unlabelled bearings or look a position up
+  on a GPS track (:attr:`Times.date_only` marks such rows).
 
 A time without an offset is local time in ``tz`` (an IANA name); without ``tz`` it
 is refused, never taken as UTC. A local time that does not exist (clocks jumped
@@ -61,13 +68,15 @@ _CLOCK = re.compile(r"^[\sT,]*(\d{1,2}):(\d{2})(?::(\d{2})(?:[.,](\d+))?)?\s*([A
 @dataclass
 class Times:
     """Parsed time cells: ``seconds`` since 1970-01-01 UTC (NaN where empty or refused),
-    ``empty``, ``error`` (a message per refused cell, else ''), and ``notes`` (what was
-    decided for the whole column, e.g. day-first dates)."""
+    ``empty``, ``error`` (a message per refused cell, else ''), ``notes`` (what was
+    decided for the whole column, e.g. day-first dates) and ``date_only`` (cells that give
+    a date and no time of day, read as 12:00 UTC of that date)."""
 
     seconds: np.ndarray
     empty: np.ndarray
     error: np.ndarray
     notes: list[str] = field(default_factory=list)
+    date_only: np.ndarray | None = None
 
 
 def parse_times(cells, *, tz: str | None = None, date_format: str | None = None,
@@ -120,10 +129,12 @@ def parse_times(cells, *, tz: str | None = None, date_format: str | None = None,
             out[idx[naive][ok]] = secs[ok]
             todo[idx[naive][ok]] = False
     notes: list[str] = []
+    date_only = np.zeros(n, bool)
     if todo.any():
-        secs, errs, notes = _slow(text[todo], zone, date_format, pattern, repeated_hour, tz)
+        secs, errs, notes, days = _slow(text[todo], zone, date_format, pattern, repeated_hour, tz)
         out[todo] = secs
         error[todo] = errs
+        date_only[todo] = days
     lo, hi = PLAUSIBLE_YEARS
     t_lo = datetime(lo, 1, 1, tzinfo=timezone.utc).timestamp()
     t_hi = datetime(hi + 1, 1, 1, tzinfo=timezone.utc).timestamp()
@@ -133,7 +144,8 @@ def parse_times(cells, *, tz: str | None = None, date_format: str | None = None,
         year = datetime.fromtimestamp(0, timezone.utc) + timedelta(seconds=float(out[i]))
         error[i] = f"'{text[i]}': the year {year.year} is not plausible (dfkit reads years {lo} to {hi})"
     out[error != ""] = np.nan
-    return Times(out, empty, error, notes)
+    date_only &= error == ""
+    return Times(out, empty, error, notes, date_only)
 
 
 def _epoch(t) -> np.ndarray:
@@ -167,8 +179,7 @@ def _combine_dates(times, dates):
     join = has_d & clock
     out[join] = [f"{a} {b}" for a, b in zip(d[join], times[join])]
     no_clock = has_d & (times == "")
-    err[no_clock] = [f"'{x}' is a date with no time of day: give the time in a time column, or date and "
-                     "time in one cell" for x in d[no_clock]]
+    out[no_clock] = d[no_clock]                 # a date alone: a coarse time (the module docstring)
     lone_clock = ~has_d & clock
     err[lone_clock] = [f"'{x}' is a time of day without a date (the date column is empty)" for x in times[lone_clock]]
     return out, err
@@ -183,13 +194,15 @@ def _slow(cells, zone, date_format, pattern, repeated_hour, tz):
     order, notes, conflict = _date_order(parts, date_format)
     secs = np.full(len(cells), np.nan)
     errs = np.full(len(cells), "", dtype=object)
+    days = np.zeros(len(cells), bool)
     memo: dict = {}
     for i, p in enumerate(parts):
         key = cells[i]
         if key not in memo:
             memo[key] = _finish(cells[i], p, order, conflict, zone, repeated_hour, tz, date_format)
         secs[i], errs[i] = memo[key]
-    return secs, errs, notes
+        days[i] = isinstance(p, dict) and p.get("clock", 0) is None
+    return secs, errs, notes, days
 
 
 def _split(text, pattern):
@@ -199,12 +212,14 @@ def _split(text, pattern):
             dt = datetime.strptime(text, pattern)
         except ValueError:
             return {"error": f"'{text}' does not match the date format '{pattern}'"}
+        if not re.search(r"%[HIMSXcTRrp]", pattern):        # a pattern of dates alone
+            return {"kind": "ymd", "y": dt.year, "mo": dt.month, "d": dt.day, "clock": None}
         return {"dt": dt}
     iso = text[:-1] + "+00:00" if text.endswith(("z", "Z")) else text
     try:
         dt = datetime.fromisoformat(iso)
         if len(text) < 11 and ":" not in text:
-            return {"error": f"'{text}' is a date with no time of day; add the time (2026-05-03T06:12)"}
+            return {"kind": "ymd", "y": dt.year, "mo": dt.month, "d": dt.day, "clock": None}
         return {"dt": dt}
     except ValueError:
         pass
@@ -245,8 +260,10 @@ def _split(text, pattern):
         first = second = 0
     c = _CLOCK.match(rest)
     if not c:
-        if rest.strip() == "":
-            return {"error": f"'{text}' is a date with no time of day; add the time (like {text} 06:12)"}
+        if rest.strip() == "":          # a date alone
+            if kind == "?":
+                return {"kind": "?", "y": y, "a": first, "b": second, "clock": None}
+            return {"kind": kind, "y": y, "mo": mo, "d": d, "clock": None}
         return {"error": _not_a_time(text)}
     hh, mm = int(c.group(1)), int(c.group(2))
     ss = int(c.group(3) or 0)
@@ -333,6 +350,11 @@ def _finish(text, p, order, conflict, zone, repeated_hour, tz, explicit):
                                 f"says which: give --date-format dmy (day first) or mdy (month first){dots}")
         else:
             mo, d = p["mo"], p["d"]
+        if p["clock"] is None:          # a date alone: 12:00 UTC of that date
+            try:
+                return datetime(p["y"], mo, d, 12, tzinfo=timezone.utc).timestamp(), ""
+            except ValueError:
+                return np.nan, f"'{text}' is not a valid date"
         hh, mm, ss, micro = p["clock"]
         try:
             dt = datetime(p["y"], mo, d, hh, mm, ss, micro, tzinfo=p["offset"])

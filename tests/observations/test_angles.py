@@ -86,6 +86,10 @@ def test_the_column_reader_agrees_with_the_one_cell_reader(d, m, s, marks, lette
         wrong_axis = got_axis and got_axis != axis
         if err or wrong_axis:
             assert col.error[0] != "", text
+        elif abs(v) > {"lat": 90, "lon": 360}[axis]:
+            # beyond decimal degrees: read as a packed angle (test_packed_angles), refused, or handed on as
+            # written for the range check of the sheet reader
+            assert col.error[0] != "" or col.packed[0] or col.values[0] == pytest.approx(v, abs=1e-12), text
         else:
             assert col.error[0] == "" and col.values[0] == pytest.approx(v, abs=1e-12), text
 

@@ -16,7 +16,7 @@ ROWS = [  # header on row 3 under a title; an empty row 5 between two bearings
     ["Fix", "Tag", "Time", "Latitude", "Longitude", "Azimuth", "Note"],
     [1, 150.412, dt.datetime(2026, 5, 3, 6, 12), 47.0, 15.0, 45, "steady"],
     [],
-    [1, 150.412, dt.datetime(2026, 5, 3, 6, 20), "48°58.123'N", 15.02, 315.5, None],
+    [1, 150.412, dt.datetime(2026, 5, 3, 6, 20), "47°00.600'N", 15.02, 315.5, None],
     [1, 150.412, dt.datetime(2026, 5, 3, 6, 31), 47.02, 15.01, "x", None],
 ]
 
@@ -89,7 +89,7 @@ def test_spreadsheets_keep_row_numbers_and_dates(tmp_path, suffix, writer):
     assert b.table["line"].tolist() == [4, 6]                              # rows 4 and 6 as the spreadsheet shows
     assert b.table["fix"].tolist() == ["1", "1"] and b.table["tag"].tolist() == ["150.412", "150.412"]
     assert b.table["time"][0].to_pydatetime() == dt.datetime(2026, 5, 3, 6, 12, tzinfo=VIENNA)
-    assert b.table["lat"][1] == pytest.approx(48 + 58.123 / 60)
+    assert b.table["lat"][1] == pytest.approx(47 + 0.6 / 60)
     assert b.table["note"][0] == "steady"
 
 

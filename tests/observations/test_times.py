@@ -100,7 +100,7 @@ def test_a_repeated_local_time_is_refused_unless_told_which(write_sheet):
 
 @pytest.mark.parametrize("text, words", [
     ("2206-05-03T06:12Z", "not plausible"), ("1926-05-03T06:12Z", "not plausible"),
-    ("03/10/26 10:00", "two-digit year"), ("2026-05-03", "no time of day"), ("46145.26", "spreadsheet date number"),
+    ("03/10/26 10:00", "two-digit year"), ("46145.26", "spreadsheet date number"),
     ("tomorrow", "not a time"), ("2026-02-30T06:00Z", "not"), ("2026-05-03T25:00Z", "not"),
 ])
 def test_bad_times_are_refused_per_row(write_sheet, text, words):
@@ -120,8 +120,9 @@ def test_a_separate_date_column(write_sheet):
             "A,2026-05-03,,47,15.01,200\n"
     b = read_bearings(write_sheet(sheet), tz="Europe/Vienna")
     errs = errors(b)
-    assert set(errs) == {3, 4}       # 03.05.2026 alone is ambiguous; a date without a time is refused
+    assert set(errs) == {3}          # 03.05.2026 alone is ambiguous; a date without a time is a coarse time
     assert b.table["time"][0].to_pydatetime() == datetime(2026, 5, 3, 6, 12, tzinfo=VIENNA)
+    assert b.table["time"][1].to_pydatetime() == utc(2026, 5, 3, 12, 0)
 
 
 def test_cli_options_for_times(write_sheet, capsys):
@@ -130,3 +131,65 @@ def test_cli_options_for_times(write_sheet, capsys):
     assert main(["check", sheet, "--tz", "UTC", "--date-format", "dmy"]) == 0
     assert main(["check", sheet, "--date-format", "ydm-ish"]) == 2
     assert "--date-format ydm-ish" in capsys.readouterr().err
+
+
+# --------------------------------------------------------------------------- a date alone (issue 7, field trial)
+
+@pytest.mark.parametrize("text, order", [("2026-05-03", None), ("03.05.2026", "dmy"), ("05/03/2026", "mdy"),
+                                         ("3 May 2026", None), ('"May 3, 2026"', None), ("2026/05/03", None)])
+def test_a_date_alone_is_noon_utc_of_that_date(write_sheet, text, order):
+    # a numeric date whose order the column does not show needs --date-format, as with times of day
+    b = read_bearings(write_sheet(sheet_of([text, "2026-05-04"])), date_format=order)
+    assert errors(b) == {}
+    assert [t.to_pydatetime() for t in b.table["time"]] == [utc(2026, 5, 3, 12), utc(2026, 5, 4, 12)]
+    assert any("date and no time of day" in n for n in b.notes)
+
+
+def test_the_trial_sheet_with_a_date_column_and_no_times(write_sheet):
+    # dateonly.csv: every row was refused, though the fixes are labelled and on true north
+    b = read_bearings(write_sheet("fix,tag,date,lat,lon,bearing,sd\n1,150.1,2026-05-03,47.8473227,15.1531455,19.995,3\n"
+                                  "1,150.1,2026-05-03,47.8581248,15.1757928,280.012,3\n"
+                                  "1,150.1,2026-05-04,47.8740193,15.1479690,149.991,3\n"
+                                  "1,150.1,2026-05-04,47.8473227,15.1531455,25.0,3\n"))
+    assert errors(b) == {}
+    # the label is used on two dates: two fixes, named by their date
+    assert b.table["fix"].tolist() == ["1 (2026-05-03)"] * 2 + ["1 (2026-05-04)"] * 2
+
+
+def test_a_date_alone_does_not_group_unlabelled_bearings(write_sheet):
+    sheet = "fix,time,lat,lon,bearing\nA,2026-05-03,47,15,45\nA,2026-05-03,47,15.02,315\n,2026-05-03,47,15.01,200\n"
+    errs = errors(read_bearings(write_sheet(sheet)))
+    assert set(errs) == {4} and "only a date, no time of day" in errs[4]
+
+
+def test_without_labels_a_date_makes_one_fix_per_tag_and_day(write_sheet):
+    sheet = ("tag,time,lat,lon,bearing\n1,2026-05-03,47,15,45\n1,2026-05-03,47,15.02,315\n1,2026-05-04,47,15.01,200\n"
+             "1,2026-05-04,47,15.03,100\n")
+    b = read_bearings(write_sheet(sheet))
+    assert errors(b) == {}
+    assert b.table["fix"].tolist() == ["1 2026-05-03"] * 2 + ["1 2026-05-04"] * 2
+
+
+def test_a_magnetic_bearing_dated_by_day_gets_the_model_declination(write_sheet):
+    # WMM2025 at noon UTC of the date; pygeomag (J. Myers) is an independent WMM2025 implementation. A day moves
+    # the declination by about 0.0003 deg (0.1 deg a year), far below a compass's reading.
+    from pygeomag import GeoMag
+
+    b = read_bearings(write_sheet("fix,date,lat,lon,bearing,north\nA,2026-05-03,47.0,15.0,45,magnetic\n"
+                                  "A,2026-05-03,47.0,15.02,315,magnetic\n"))
+    assert errors(b) == {}
+    noon = utc(2026, 5, 3, 12)
+    start, end = utc(2026, 1, 1), utc(2027, 1, 1)
+    year = 2026 + (noon - start) / (end - start)
+    ref = GeoMag().calculate(glat=47.0, glon=15.0, alt=0, time=year).d
+    assert b.table["declination"][0] == pytest.approx(ref, abs=1e-6)
+
+
+def test_a_date_alone_does_not_look_up_the_track(write_sheet, tmp_path):
+    gpx = tmp_path / "t.gpx"
+    gpx.write_text('<?xml version="1.0"?><gpx version="1.1" creator="test" xmlns="http://www.topografix.com/GPX/1/1">'
+                   '<trk><trkseg><trkpt lat="47.0" lon="15.0"><time>2026-05-03T11:59:50Z</time></trkpt>'
+                   '<trkpt lat="47.0" lon="15.001"><time>2026-05-03T12:00:10Z</time></trkpt></trkseg></trk></gpx>')
+    b = read_bearings(write_sheet("fix,time,bearing\nA,2026-05-03,45\n"), track=gpx)
+    errs = errors(b)
+    assert set(errs) == {2} and "no time" in errs[2]
