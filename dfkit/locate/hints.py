@@ -24,8 +24,8 @@ EXAMINED = ("diverging", "behind", "on_station", "inconsistent", "no_convergence
 MAX_EXAMINED = 20_000
 
 
-def one_bearing_hints(lat, lon, bearing, sd, g, counts, lines, status, method, robust_c):
-    """Extra reason texts per fix index: {fix: [text, ...]}."""
+def one_bearing_hints(lat, lon, bearing, sd, g, counts, lines, status, method, robust_c, sd_floor=None):
+    """Extra reason texts per fix index: {fix: [text, ...]}. ``sd_floor``: each bearing's SD floor [°]."""
     m = len(counts)
     out: dict[int, list[str]] = {}
     look = np.flatnonzero(np.isin(status, EXAMINED) & (counts >= 2))[:MAX_EXAMINED]
@@ -34,7 +34,8 @@ def one_bearing_hints(lat, lon, bearing, sd, g, counts, lines, status, method, r
     robust = estimators.REGISTRY[method].robust
     order = np.argsort(g, kind="stable")
     starts = np.concatenate(([0], np.cumsum(counts)))
-    v_lat, v_lon, v_b, v_sd, v_g = [], [], [], [], []
+    floor = np.zeros(len(g)) if sd_floor is None else np.asarray(sd_floor, float)
+    v_lat, v_lon, v_b, v_sd, v_fl, v_g = [], [], [], [], [], []
     meta = []      # (fix, kind, bearing index)
     k = 0
     for i in look:
@@ -55,6 +56,7 @@ def one_bearing_hints(lat, lon, bearing, sd, g, counts, lines, status, method, r
             v_lon.append(lon[keep])
             v_b.append(b)
             v_sd.append(sd[keep])
+            v_fl.append(floor[keep])
             v_g.append(np.full(len(keep), k))
             meta.append((i, kind, j))
             k += 1
@@ -62,7 +64,7 @@ def one_bearing_hints(lat, lon, bearing, sd, g, counts, lines, status, method, r
         return out
     vg = np.concatenate(v_g)
     sol = estimators.solve(np.concatenate(v_lat), np.concatenate(v_lon), np.concatenate(v_b), vg, k,
-                           np.concatenate(v_sd), method=method, robust_c=robust_c)
+                           np.concatenate(v_sd), method=method, robust_c=robust_c, sd_floor_deg=np.concatenate(v_fl))
     S, p = consistency(sol, vg, k)
     with np.errstate(invalid="ignore"):
         agree = sol.converged & ~sol.behind & np.where(
