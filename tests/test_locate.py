@@ -324,3 +324,56 @@ def test_a_repeated_row_does_not_make_an_sd_of_zero(write_sheet):
     status, reason, row = status_of(locate(read_bearings(write_sheet(sheet_of(rows)))), "dup")
     assert row["sd_deg"] >= 1.0 and row["semi_minor_m"] > 50 and row["region_area_m2"] > 1e4
     assert "one degree of freedom" in reason
+
+
+def _from_truth(target, az_from_target, dist):
+    """A station ``dist`` m from the target along the azimuth ``az_from_target``, and the geodesic bearing from it
+    to the target (geographiclib)."""
+    d = WGS.Direct(target[0], target[1], az_from_target, dist)
+    return (d["lat2"], d["lon2"]), (d["azi2"] + 180.0) % 360.0
+
+
+def _sheet(write_sheet, label, stations, bearings, sds):
+    rows = [(label, round(s[0], 7), round(s[1], 7), round(b % 360, 3), sd, "") for s, b, sd in zip(stations, bearings, sds)]
+    return read_bearings(write_sheet(sheet_of(rows)))
+
+
+def test_a_reversal_hint_is_given_only_when_it_is_the_clear_explanation(write_sheet):
+    # Three bearings: line 2 is 2 degrees off, line 3 a 12-degree outlier (SD 3.3), line 4 from 520 m. Turning
+    # line 2 by 180 degrees makes the three agree, but so does leaving line 3 out: the bearings cannot tell
+    # which, and entering line 2 turned would move the fix 1.7 km from the truth. dfkit must say both.
+    tgt = (46.512, 7.431)
+    made = [_from_truth(tgt, az_, d) for az_, d in ((50.0, 1300.0), (205.0, 2200.0), (210.0, 520.0))]
+    stations = [s for s, _ in made]
+    b = [made[0][1] - 2.0, made[1][1] + 12.0, made[2][1] + 1.0]
+    status, reason, _ = status_of(locate(_sheet(write_sheet, "R", stations, b, (3.3, 3.3, 6.0))), "R")
+    assert "looks reversed" not in reason
+    assert "either line 2 is reversed by 180°" in reason and "line 3 is wild" in reason
+    # the alternative it names is the truth's side: the fit without line 3, where the other two lines cross
+    lat, lon = (float(v) for v in reason.split("without it the others meet at ")[1].split(",")[:2])
+    assert WGS.Inverse(lat, lon, *tgt)["s12"] < 200
+
+
+def test_clean_bearings_beside_an_observer_are_not_called_reversed(write_sheet):
+    # The transmitter is 600 m south of observer A; the far observers' bearings (2.4 and 5.4 degrees off, SD 5)
+    # cross 300 m beyond A, so A's bearing turned by 180 degrees fits, but so do all three as read with the
+    # transmitter near A. No bearing is reversed: dfkit must not say one is.
+    tgt = (47.0, 15.0)
+    a, b_a = _from_truth(tgt, 0.0, 600.0)
+    beyond = WGS.Direct(*tgt, 0.0, 900.0)
+    far = [_from_truth(tgt, az_, d)[0] for az_, d in ((190.0, 2800.0), (165.0, 1600.0))]
+    b = [b_a + 1.0] + [WGS.Inverse(s[0], s[1], beyond["lat2"], beyond["lon2"])["azi1"] for s in far]
+    status, reason, _ = status_of(locate(_sheet(write_sheet, "N", [a] + far, b, (5, 5, 5))), "N")
+    assert "looks reversed" not in reason
+    assert "either line 2 is reversed" in reason and "close to the observer at line 2" in reason
+
+
+@pytest.mark.parametrize("sd", [5, ""])
+def test_a_reversed_bearing_among_three_is_still_named(write_sheet, sd):
+    # A clear reversal (the transmitter well inside the triangle of observers): turning it explains the
+    # bearings far better than anything else, SD known or estimated.
+    tgt = (47.0, 15.0)
+    made = [_from_truth(tgt, az_, d) for az_, d in ((10.0, 1500.0), (130.0, 1800.0), (250.0, 1200.0))]
+    b = [made[0][1] + 1.5, made[1][1] + 180.0 - 2.0, made[2][1] + 1.0]
+    status, reason, _ = status_of(locate(_sheet(write_sheet, "V", [s for s, _ in made], b, (sd,) * 3)), "V")
+    assert status != "ok" and "line 3 looks reversed by 180°" in reason and "either" not in reason

@@ -225,8 +225,8 @@ def classify(f: FixFacts):
         if n >= 2 and sol.converged[i]:
             hinted = " ".join(f.hints.get(i, []))
             for j in sel[reversed_b[sel]][:3]:
-                if f"line {f.lines[j]} turned by 180°" in hinted:
-                    continue             # the hint says it, with the bearing that fits
+                if "180°" in hinted:
+                    continue             # the hint weighed turning a line against the other explanations
                 reasons[i].append(f"line {f.lines[j]} looks reversed by 180°: it misses by {res[j]:+.0f}° "
                                   "(read from the back of the antenna?); check it and enter it turned by 180°")
             shown = set(sel[reversed_b[sel]][:3].tolist())
