@@ -58,7 +58,7 @@ def speed():
             p = plan_next_bearing(b, "fox-2", basis=basis, **kw)
             dt = time.perf_counter() - t0
             print(f"  {name:<24} {basis:<7} {len(p.table):>6} spots  {dt:7.3f} s   peak {peak_mb():6.0f} MB")
-    from dfkit.planmap import plan_map
+    from dfkit.maps.plan import plan_map
 
     print("map (plan_map(...).html(), basis 'point')")
     for name, kw in cases[:3]:

@@ -247,7 +247,7 @@ def wild_rule_false_flags(n_samples=2000):
     rng = np.random.default_rng(5)
     rows = []
     for n in (5, 8, 12, 20, 30, 50, 100, 300):
-        flags = [calibration._wild_mask(rng.normal(0.0, 5.0, n))[0] for _ in range(n_samples)]
+        flags = [calibration.groups._wild_mask(rng.normal(0.0, 5.0, n))[0] for _ in range(n_samples)]
         rows.append(
             dict(
                 n=n,

@@ -39,11 +39,21 @@ UNIT_ALIASES = {
     "grad": "grad", "grads": "grad", "gon": "grad", "gons": "grad", "grade": "grad",
 }
 
-#: Spellings accepted in the ``north`` column.
+#: Words for each north, alone or followed by "north" ("grid", "grid north", "Mag. North"...).
+_NORTH_WORDS = {
+    "true": "true", "geographic": "true", "geographical": "true",
+    "magnetic": "magnetic", "mag": "magnetic", "mag.": "magnetic", "compass": "magnetic",
+    "grid": "grid",
+}
+#: Spellings accepted in the ``north`` column (compared in lower case): the words above with or without
+#: "north" after them, and the usual abbreviations. "map north" is refused: a map may be drawn to grid or to
+#: true north, so the words do not say which.
 NORTH_ALIASES = {
-    "true": "true", "t": "true", "tn": "true", "geographic": "true",
-    "magnetic": "magnetic", "mag": "magnetic", "m": "magnetic", "mn": "magnetic", "compass": "magnetic",
-    "grid": "grid", "g": "grid", "gn": "grid",
+    **_NORTH_WORDS,
+    **{f"{w}{sep}north": n for w, n in _NORTH_WORDS.items() for sep in (" ", "-")},
+    "t": "true", "tn": "true", "t.n.": "true",
+    "m": "magnetic", "mn": "magnetic", "m.n.": "magnetic",
+    "g": "grid", "gn": "grid", "g.n.": "grid",
 }
 
 

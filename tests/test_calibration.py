@@ -304,6 +304,28 @@ def test_apply_without_the_grouping_column_matches_nothing_and_says_so():
     assert (every.table["sd_source"] == "calibration").all()
 
 
+def test_unmatched_group_values_are_named_with_their_lines_and_the_likely_group():
+    b = read_bearings(b"fix,lat,lon,bearing,antenna\nA,47,15,45,H adcock\nA,47,15.02,315,Y\n"
+                      b"A,47.02,15.01,180,H adcock\nB,47.1,15,45,Q\nB,47.1,15.02,315,Y\nB,47.12,15.01,180,\n")
+    cal = _cal([{"antenna": "H-adcock", "n": 40, "bias_deg": 1.0, "sd_deg": 4.0},
+                {"antenna": "Y", "n": 40, "bias_deg": 2.0, "sd_deg": 5.0}])
+    note = " ".join(calibration.apply(b, cal).notes)
+    assert ("4 have no matching group and no sd: antenna 'H adcock' (lines 2, 4: did you mean 'H-adcock'?), "
+            "antenna 'Q' (line 5), antenna (blank) (line 7); the calibration has antenna H-adcock, Y") in note
+
+
+def test_trials_get_no_word_about_grouping_fixes(tmp_path):
+    # A trials sheet has neither fix labels nor times; the reader's "all bearings of each tag form one fix"
+    # is about fixes, which trials are not.
+    trials = calibration.read_trials(b"antenna,lat,lon,bearing,beacon_lat,beacon_lon\n"
+                                     b"Yagi,47.869,15.174,234.2,47.86,15.16\nYagi,47.906,15.102,191.2,47.9,15.1\n")
+    assert len(trials.table) == 2
+    words = [p.message for p in trials.problems] + trials.notes
+    assert not any("no fix labels and no times" in w for w in words)
+    plain = read_bearings(b"lat,lon,bearing\n47,15,45\n47,15.02,315\n")     # the words it would have had
+    assert any("no fix labels and no times" in w for w in [p.message for p in plain.problems] + plain.notes)
+
+
 def test_unusable_groups_are_not_applied():
     b = read_bearings(b"fix,lat,lon,bearing,antenna\nA,47,15,45,y\nA,47,15.02,315,y\nA,47.02,15.01,180,y\n")
     out = calibration.apply(

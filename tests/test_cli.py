@@ -90,3 +90,87 @@ def test_readme_commands_exist():
 @pytest.mark.parametrize("name, extra", [("animal_fix.csv", []), ("hunt.csv", ["--window", "90", "--method", "andrews"])])
 def test_sample_sheets_solve_ok(name, extra, tmp_path):
     assert main(["fix", str(SAMPLES / name), "-o", str(tmp_path / "x.csv")] + extra) == 0
+
+
+# ----------------------------------------------------------------------- help says what each option accepts
+
+def _option_help(*path, dest):
+    """The help text of option ``dest`` of the (sub)command ``path`` (``"season", "show"``)."""
+    import argparse
+
+    from dfkit.cli import build_parser
+
+    p = build_parser()
+    for name in path:
+        sub = next(a for a in p._actions if isinstance(a, argparse._SubParsersAction))
+        p = sub.choices[name]
+    return next(a.help for a in p._actions if a.dest == dest)
+
+
+def _extensions(text):
+    return re.findall(r"(?<![\w.])\.[a-z]+\b", text)
+
+
+def test_fix_output_help_lists_exactly_what_it_writes_and_each_is_written(write_sheet, tmp_path, capsys):
+    from dfkit.export import WRITERS
+
+    kinds = _extensions(_option_help("fix", dest="output"))
+    assert sorted(kinds) == sorted(WRITERS) and {".gpkg", ".kml", ".fgb", ".json"} <= set(kinds)
+    sheet = write_sheet(GOOD)
+    for ext in kinds:
+        out = tmp_path / f"out{ext}"
+        assert main(["fix", str(sheet), "-o", str(out)]) == 0, ext
+        assert out.stat().st_size > 0
+    assert main(["fix", str(sheet), "-o", str(tmp_path / "out.xlsx")]) == 2
+    assert "cannot write" in capsys.readouterr().err and not (tmp_path / "out.xlsx").exists()
+
+
+@pytest.mark.parametrize("path, dest, module_constant", [
+    (("plan",), "output", ("dfkit.cli.plan", "OUTPUTS")),
+    (("season", "show"), "output", ("dfkit.cli.season", "SHOW_KINDS")),
+    (("ranges",), "output", ("dfkit.season.range_files", "RANGE_KINDS")),
+])
+def test_output_help_of_every_command_names_what_it_accepts(path, dest, module_constant):
+    import importlib
+
+    accepted = getattr(importlib.import_module(module_constant[0]), module_constant[1])
+    assert set(_extensions(_option_help(*path, dest=dest))) == set(accepted)
+
+
+def test_csv_and_html_outputs_refuse_other_kinds_before_any_work(write_sheet, tmp_path, capsys):
+    sheet = str(write_sheet(GOOD))
+    trials = str(SAMPLES / "beacon_trials.csv")
+    for argv in (["check", sheet, "-o", "n.xlsx"], ["fix", sheet, "--bearings-out", "b.geojson"],
+                 ["map", sheet, "-o", "m.csv"], ["calibrate", trials, "-o", "cal.json"],
+                 ["calibrate", trials, "--trials-out", "t.xlsx"], ["calibrate", trials, "--check-out", "c.gpx"]):
+        bad = tmp_path / argv[-1]
+        assert main(argv[:-1] + [str(bad)]) == 2, argv
+        err = capsys.readouterr().err
+        assert f"cannot write '{bad}': use one of" in err and f"for {argv[-2]}" in err and not bad.exists()
+    assert "use one of .html or .htm for -o" in (main(["map", sheet, "-o", str(tmp_path / "m.png")]), capsys.readouterr().err)[1]
+    for h in (_option_help("check", dest="output"), _option_help("calibrate", dest="output")):
+        assert "CSV" in h or ".csv" in h
+    assert ".xlsx" in _option_help("fix", dest="sheet") and ".ods" in _option_help("season", "add", dest="sheets")
+    assert "regions" in _option_help("fix", dest="level")
+
+
+def test_north_and_unit_options_take_the_spellings_a_sheet_takes(write_sheet, capsys):
+    sheet = str(write_sheet(GOOD))
+    for spelling in ("grid north", "Grid North", "GN", "grid"):
+        assert main(["check", sheet, "--north", spelling, "--grid-crs", "EPSG:32633"]) == 0, spelling
+    for spelling in ("magnetic north", "mag north", "Mag", "true north", "TN"):
+        assert main(["check", sheet, "--north", spelling, "--declination", "4.5"]) == 0, spelling
+    assert main(["check", sheet, "--unit", "degrees"]) == 0
+    assert main(["check", sheet, "--north", "up"]) == 2
+    assert "'up' is not one of grid, magnetic, true" in capsys.readouterr().err
+
+
+def test_a_date_without_a_time_column_is_reported_against_the_date_column(write_sheet, capsys):
+    sheet = write_sheet("fix,tag,date,lat,lon,bearing,sd\n1,150.1,2026-05-03,47.85,15.15,20,3\n")
+    assert main(["check", str(sheet)]) == 1
+    out = capsys.readouterr().out
+    assert "line 2, date: '2026-05-03' is a date with no time of day" in out
+    assert "time column is empty" not in out
+    both = write_sheet("fix,date,time,lat,lon,bearing\n1,2026-05-03,,47.85,15.15,20\n", "both.csv")
+    assert main(["check", str(both)]) == 1
+    assert "line 2, time: '2026-05-03' is a date with no time of day" in capsys.readouterr().out

@@ -160,3 +160,25 @@ def test_position_from_gps_track(write_sheet, tmp_path):
     msgs = {p.line: p.message for p in b.problems if p.severity == "error"}
     assert "no GPS track point within 60 s" in msgs[3]
     assert "outside the GPS track" in msgs[4]
+
+
+def test_north_written_out_is_read_like_its_abbreviation(write_sheet):
+    # "grid north", "magnetic north", "true north" are how field forms and compasses name the three norths; a
+    # sheet that writes them out must read as one that writes "grid", "magnetic", "true" (or GN, MN, TN).
+    rows = [("grid", "grid north"), ("grid", "Grid North"), ("grid", "GN"), ("grid", "grid-north"),
+            ("magnetic", "magnetic north"), ("magnetic", "Mag North"), ("magnetic", "mag. north"),
+            ("magnetic", "MN"), ("true", "true north"), ("true", "TN"), ("true", "Geographic North")]
+    text = "fix,time,lat,lon,bearing,north\n" + "".join(
+        f"A,2026-05-03T06:00:00Z,47.85,15.15,20,{cell}\n" for _, cell in rows) + \
+        "A,2026-05-03T06:00:00Z,47.85,15.15,20,map north\n"
+    b = read_bearings(write_sheet(text), grid_crs="EPSG:32633")
+    got = dict(zip(b.table["line"], b.table["north"]))
+    assert [got[i + 2] for i in range(len(rows))] == [n for n, _ in rows]
+    plain = read_bearings(write_sheet("fix,time,lat,lon,bearing,north\n" + "".join(
+        f"A,2026-05-03T06:00:00Z,47.85,15.15,20,{n}\n" for n in ("grid", "magnetic", "true"))), grid_crs="EPSG:32633")
+    want = dict(zip(plain.table["north"], plain.table["true_bearing"]))
+    for (north, _), tb in zip(rows, b.table["true_bearing"]):
+        assert tb == pytest.approx(want[north], abs=1e-12)
+    bad = [p for p in b.problems if p.severity == "error"]
+    assert [(p.line, p.column) for p in bad] == [(len(rows) + 2, "north")]
+    assert "unknown north 'map north'" in bad[0].message

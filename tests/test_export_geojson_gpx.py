@@ -100,3 +100,43 @@ def test_short_names_are_unique():
     assert names[0] == "abcd" and len(set(names)) == 4 and all(len(n) <= 4 for n in names)
     with pytest.raises(ValueError, match="gpx_name_length"):
         short_names(["a"], 2)
+
+
+# Two tags whose crews both call their den fix "Fuchsbau-1" (from the field trial).
+TWO_TAGS = ("fix,tag,lat,lon,bearing,sd\n"
+            "Fuchsbau-1,150.5,47.00,15.00,45,3\nFuchsbau-1,150.5,47.00,15.02,315,3\n"
+            "Fuchsbau-1,151.2,47.10,15.00,45,3\nFuchsbau-1,151.2,47.10,15.02,315,3\n"
+            "Dachs,151.2,47.20,15.00,45,3\nDachs,151.2,47.20,15.02,315,3\n")
+
+
+def _waypoints(path):
+    ET.fromstring(path.read_bytes())
+    return gpxpy.parse(path.read_text(encoding="utf-8")).waypoints
+
+
+def test_gpx_names_are_unique_when_tags_share_a_label(write_sheet, tmp_path):
+    out = tmp_path / "f.gpx"
+    write_fixes(locate_sheet(write_sheet(TWO_TAGS)), out)
+    names = [w.name for w in _waypoints(out)]
+    assert names == ["150.5 Fuchsbau-1", "151.2 Fuchsbau-1", "Dachs"]     # a label one tag uses stays as it is
+
+
+def test_gpx_names_are_unique_regardless_of_case(write_sheet, tmp_path):
+    f = locate_sheet(write_sheet("fix,lat,lon,bearing,sd\nden,47,15,45,3\nden,47,15.02,315,3\n"
+                                 "DEN,47.1,15,45,3\nDEN,47.1,15.02,315,3\n"))
+    out = tmp_path / "f.gpx"
+    write_fixes(f, out)
+    names = [w.name for w in _waypoints(out)]
+    assert len({n.casefold() for n in names}) == 2 and names[0] == "den"
+
+
+def test_gpx_short_names_are_trimmed_and_unique(write_sheet, tmp_path):
+    f = locate_sheet(write_sheet('fix,lat,lon,bearing,sd\n"A&B <x>",47,15,45,3\n"A&B <x>",47,15.02,315,3\n'
+                                 '"A&B <y>",47.1,15,45,3\n"A&B <y>",47.1,15.02,315,3\n'))
+    out = tmp_path / "f.gpx"
+    write_fixes(f, out, WriteOptions(gpx_name_length=4))
+    wpts = _waypoints(out)
+    names = [w.name for w in wpts]
+    assert names[0] == "A&B" and all(n == n.strip() and len(n) <= 4 for n in names) and len(set(names)) == 2
+    assert [w.comment for w in wpts] == ["fix A&B <x>", "fix A&B <y>"]
+    assert short_names(["ab  cdef", "ab  cdeX"], 4) == ["ab", "ab~2"]

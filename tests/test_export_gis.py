@@ -85,11 +85,82 @@ def test_csv_utm_columns_match_pyproj(fixes, tmp_path):
     write_fixes(fixes, out, WriteOptions(utm=True))
     import pandas as pd
 
-    t = pd.read_csv(out, keep_default_na=False)
+    t = pd.read_csv(out, keep_default_na=False, dtype=str)
     ok = t[t["lat"] != ""]
     tr = pyproj.Transformer.from_crs("EPSG:4326", "EPSG:32633", always_xy=True)
     e, n = tr.transform(ok["lon"].astype(float), ok["lat"].astype(float))
-    assert (ok["utm_zone"] == "33N").all()
+    assert list(t.columns[t.columns.get_loc("lon") + 1:][:5]) == ["utm_zone", "utm_hemisphere", "utm_band",
+                                                                   "easting", "northing"]
+    assert (ok["utm_zone"] == "33").all() and (ok["utm_hemisphere"] == "north").all()
+    assert (ok["utm_band"] == "T").all()                   # 47 N: band T (40-48 N)
     assert np.allclose(ok["easting"].astype(float), e, atol=0.01)
     assert np.allclose(ok["northing"].astype(float), n, atol=0.01)
-    assert (t.loc[t["lat"] == "", "utm_zone"] == "").all()
+    failed = t[t["lat"] == ""]
+    assert len(failed) == 1 and (failed[["utm_zone", "utm_hemisphere", "utm_band", "easting"]] == "").all(axis=None)
+
+
+# Places chosen for the zone letters they show: a zone and one letter would be misread at most of them.
+PLACES = [("Sydney", -33.8688, 151.2093),        # band H, southern hemisphere ('56S' would read as band S)
+          ("Granada", 37.1773, -3.5986),         # band S, northern hemisphere ('30S' would read as south)
+          ("Bergen", 60.3913, 5.3221),           # zone 32 by the Norway exception
+          ("Longyearbyen", 78.2232, 15.6267),    # zone 33 by the Svalbard exception, band X
+          ("Quito", -0.1807, -78.4678),          # band M, just south of the equator
+          ("Libreville", 0.4162, 9.4673)]        # band N, just north of it ('32N' reads right either way)
+
+
+def test_utm_columns_agree_with_the_mgrs_package_and_pyproj():
+    import mgrs
+    import pandas as pd
+
+    from dfkit.export import with_utm
+
+    t = pd.DataFrame({"fix": [p[0] for p in PLACES], "lat": [p[1] for p in PLACES], "lon": [p[2] for p in PLACES]})
+    u = with_utm(t)
+    for (_, lat, lon), (_, row) in zip(PLACES, u.iterrows()):
+        ref = mgrs.MGRS().toMGRS(lat, lon)              # e.g. '56HLH3436850948': zone 56, band H
+        zone, band = int(ref[:2]), ref[2]
+        assert (row["utm_zone"], row["utm_band"]) == (zone, band), ref
+        assert row["utm_hemisphere"] == ("south" if lat < 0 else "north")
+        epsg = (32700 if lat < 0 else 32600) + zone     # EPSG's WGS 84 / UTM zones
+        e, n = pyproj.Transformer.from_crs("EPSG:4326", f"EPSG:{epsg}", always_xy=True).transform(lon, lat)
+        assert (row["easting"], row["northing"]) == pytest.approx((e, n), abs=0.01)
+        # MGRS's 1 m digits are the easting and northing within their 100 km square
+        assert int(ref[5:10]) == int(row["easting"]) % 100_000 and int(ref[10:15]) == int(row["northing"]) % 100_000
+
+
+def _bearings_to(lat, lon, label):
+    """Three bearings on a transmitter at (lat, lon) from stations 1.5 km away (exact pyproj geodesics)."""
+    rows = []
+    for az in (10.0, 130.0, 250.0):
+        slon, slat, back = GEOD.fwd(lon, lat, az, 1500.0)
+        rows.append(f"{label},{slat:.8f},{slon:.8f},{back % 360:.4f},2")
+    return rows
+
+
+def test_utm_output_is_read_back_by_dfkit(write_sheet, tmp_path):
+    import pandas as pd
+
+    from dfkit.observations import read_bearings, read_places
+
+    sheet = write_sheet("fix,lat,lon,bearing,sd\n" + "\n".join(
+        r for name, lat, lon in PLACES for r in _bearings_to(lat, lon, name)) + "\n")
+    out = tmp_path / "fixes.csv"
+    assert main(["fix", str(sheet), "-o", str(out), "--utm"]) == 0
+    t = pd.read_csv(out, keep_default_na=False, dtype=str)
+    # with lat/lon beside the UTM columns: both read, they agree, nothing refused
+    places, problems = read_places(out, label_column="fix")
+    assert [p for p in problems if p.severity == "error"] == [] and len(places) == len(PLACES)
+    # the UTM columns alone give back the fixes' positions
+    utm_only = t.drop(columns=["lat", "lon"])
+    places, problems = read_places(utm_only, label_column="fix")
+    assert [p for p in problems if p.severity == "error"] == [] and len(places) == len(PLACES)
+    _, _, miss = GEOD.inv(places["lon"].to_numpy(float), places["lat"].to_numpy(float),
+                          t["lon"].astype(float).to_numpy(), t["lat"].astype(float).to_numpy())
+    assert np.max(miss) < 0.02                            # the easting/northing are written to 1 cm
+    # as station positions of a new bearing sheet, copied column by column
+    again = utm_only[["fix", "utm_zone", "utm_hemisphere", "utm_band", "easting", "northing"]].assign(bearing="90")
+    b = read_bearings(again)
+    assert [p for p in b.problems if p.severity == "error"] == [] and len(b.table) == len(PLACES)
+    bad = again.assign(utm_hemisphere=["up"] + list(again["utm_hemisphere"][1:]))
+    errs = [p for p in read_bearings(bad).problems if p.severity == "error"]
+    assert (errs[0].line, errs[0].column) == (2, "utm_hemisphere") and "'up' is not a hemisphere" in errs[0].message

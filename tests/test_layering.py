@@ -8,7 +8,7 @@ import dfkit
 # The flow, first to last (modules not yet written are listed where they belong).
 ORDER = ["conventions", "policy", "cautions", "problems", "io", "coords", "grids", "magnetic", "observations",
          "geodesy", "estimators", "regions", "locate", "fixes", "calibration", "homerange", "planning", "geometry",
-         "export", "figures", "maps", "planmap", "reports", "season", "cli", "__init__", "__main__"]
+         "export", "figures", "maps", "reports", "season", "cli", "__init__", "__main__"]
 
 
 def test_imports_flow_one_way():

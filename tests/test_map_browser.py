@@ -6,6 +6,7 @@ Uses Debian's Chromium (``apt-get install chromium``) driven by Playwright; neve
 import base64
 import json
 import pathlib
+import re
 import shutil
 import sqlite3
 import zlib
@@ -213,9 +214,12 @@ def test_user_mbtiles_are_embedded_and_drawn(pw, tmp_path):
     m = fix_map(fixes, tiles=db)
     assert m.notes == []
     p = Page(pw, _save(m, tmp_path))
-    p.page.evaluate("""() => { const d = window.dfkit; d.bases.forEach((v, k) => {
-        if (k.includes('embedded')) { v.addTo(d.map); } }); }""")
+    # the map opens on the user's tiles, with nothing to click
+    assert p.page.evaluate("window.dfkit.base()") == "area.mbtiles (embedded tiles, offline)"
     p.page.wait_for_function("[...document.querySelectorAll('img.leaflet-tile-loaded')].length > 0", timeout=10000)
+    # the land of the world outline is not painted over the tiles
+    assert p.page.evaluate("""() => { let op = []; window.dfkit.overlays.forEach((v, k) => {
+        if (k.startsWith('World')) v.eachLayer(l => op.push(l.options.fillOpacity)); }); return [...new Set(op)]; }""") == [0]
     sizes = p.page.evaluate("[...document.querySelectorAll('img.leaflet-tile-loaded')]"
                             ".filter(i => i.src.startsWith('data:image/png')).map(i => i.naturalWidth)")
     assert len(sizes) > 0 and all(s == 1 for s in sizes)
@@ -240,4 +244,44 @@ def test_page_ellipse_matches_the_ellipsoid(pw, tmp_path, a_m, tol_m):
     ring = np.asarray(ring)
     _, _, miss = geod.inv(ring[:, 1], ring[:, 0], lon_ref, lat_ref)
     assert np.max(miss) < tol_m
+    p.browser.close()
+
+
+def test_without_own_tiles_the_map_opens_on_the_plain_background(pw, tmp_path):
+    p = Page(pw, _save(fix_map(locate_sheet(ROOT / "animal_fix.csv")), tmp_path))
+    assert p.page.evaluate("window.dfkit.base()") == "Plain background (offline)"
+    p.browser.close()
+
+
+def test_coordinate_readout_shows_the_map_centre_until_a_pointer_is_on_the_map(pw, tmp_path):
+    p = Page(pw, _save(fix_map(locate_sheet(ROOT / "animal_fix.csv")), tmp_path))
+    box = p.page.locator(".leaflet-control-mouseposition")
+    p.page.wait_for_function("document.querySelector('.leaflet-control-mouseposition').textContent.length > 0")
+
+    def shown():
+        text = box.inner_text()
+        return text, [float(v) for v in re.findall(r"-?\d+\.\d+", text)]
+
+    def centre():
+        return p.page.evaluate("(() => { const c = window.dfkit.map.getCenter(); return [c.lat, c.lng]; })()")
+
+    text, (lat, lon) = shown()
+    assert "Unavailable" not in text and text.startswith("map centre")
+    assert (lat, lon) == pytest.approx(centre(), abs=1e-6)
+    p.page.evaluate("window.dfkit.map.panBy([200, 100], {animate: false})")
+    p.page.wait_for_function("!document.querySelector('.leaflet-control-mouseposition').textContent"
+                             f".includes('{text.split()[-1]}')")
+    assert shown()[1] == pytest.approx(centre(), abs=1e-6)
+    # a pointer over the map: its own position (not the centre); off the map: the centre again
+    r = p.page.locator("#" + p.page.evaluate("window.dfkit.map.getContainer().id")).bounding_box()
+    p.page.mouse.move(r["x"] + 0.3 * r["width"], r["y"] + 0.6 * r["height"])
+    text, (lat, lon) = shown()
+    assert text.startswith("lat, lon")
+    pointer = p.page.evaluate(f"(() => {{ const q = window.dfkit.map.containerPointToLatLng([{0.3 * r['width']}, "
+                              f"{0.6 * r['height']}]); return [q.lat, q.lng]; }})()")
+    assert (lat, lon) == pytest.approx(pointer, abs=1e-5)
+    p.page.mouse.move(r["x"] + r["width"] + 50, r["y"] + 10)
+    p.page.wait_for_function("document.querySelector('.leaflet-control-mouseposition').textContent"
+                             ".startsWith('map centre')", timeout=5000)
+    assert p.errors == []
     p.browser.close()

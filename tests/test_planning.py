@@ -536,7 +536,7 @@ def test_an_estimated_sd_is_called_weak(tmp_path):
     )
     plan = plan_next_bearing(read_bearings(sheet), "H", spots=spots_table([("x", *direct(*T, 60.0, 900.0))]))
     assert plan.fix_row["sd_source"] == "estimated"
-    assert any("1 degrees of freedom): a weak estimate" in n for n in plan.notes)
+    assert any("1 degree of freedom): a weak estimate" in n for n in plan.notes)
     assert np.isfinite(plan.table["expected_area_m2"].iloc[0])
 
 
@@ -710,7 +710,7 @@ def _open_map(path: pathlib.Path):
 @pytest.mark.skipif(CHROMIUM is None, reason="Debian's chromium is not installed (apt-get install chromium)")
 @pytest.mark.parametrize("grid", [False, True])
 def test_plan_map_works_offline_and_escapes_user_text(tmp_path, write_sheet, grid):
-    from dfkit.planmap import plan_map
+    from dfkit.maps.plan import plan_map
 
     sheet = write_sheet(
         'fix,lat,lon,bearing,sd,note\n"</script><b>f</b>",47,15,45,3,"<img src=x onerror=alert(1)>"\n'

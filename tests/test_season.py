@@ -257,15 +257,168 @@ def test_identity_keys_do_not_depend_on_line_numbers_or_file_but_content_keys_se
     from dfkit.observations import read_bearings
 
     b = read_bearings(SHEET.encode()).table
-    rk, ck = bearing_keys(b)
+    rk, ck, _ = bearing_keys(b)
     moved = b.assign(line=b["line"] + 100)
-    rk2, ck2 = bearing_keys(moved)
+    rk2, ck2, _ = bearing_keys(moved)
     assert list(rk) == list(rk2) and list(ck) == list(ck2)
     changed = b.copy()
     changed.loc[1, "true_bearing"] += 0.01
-    rk3, ck3 = bearing_keys(changed)
+    rk3, ck3, _ = bearing_keys(changed)
     assert list(rk3) == list(rk) and ck3[1] != ck[1] and list(ck3[[0, 2, 3, 4, 5]]) == list(ck[[0, 2, 3, 4, 5]])
     assert len(set(rk)) == 6
+
+
+# Two hunt teams (or two tracking crews) on one tag in the same minutes, no observer column: the sheets of the
+# field trial, each team at its own stations.
+TEAM_A = """fix,tag,time,lat,lon,bearing,sd
+F1,150.5,2026-05-03T06:12:00+02:00,47.8473227,15.1531455,19.995,3
+F1,150.5,2026-05-03T06:15:00+02:00,47.8581248,15.1757928,280.012,3
+F1,150.5,2026-05-03T06:18:00+02:00,47.8740193,15.1479690,149.991,3
+"""
+TEAM_B = """fix,tag,time,lat,lon,bearing,sd
+B1,150.5,2026-05-03T06:12:00+02:00,47.8500000,15.1700000,330.0,3
+B1,150.5,2026-05-03T06:15:00+02:00,47.8650000,15.1400000,120.0,3
+B1,150.5,2026-05-03T06:18:00+02:00,47.8700000,15.1750000,225.0,3
+"""
+
+
+def test_two_teams_on_one_tag_at_the_same_times_are_two_fixes(store_path, write_sheet):
+    a, b = write_sheet(TEAM_A, "teamA.csv"), write_sheet(TEAM_B, "teamB.csv")
+    assert add(store_path, a).fixes_added == 1
+    r = add(store_path, b)
+    assert (r.fixes_added, r.bearings_added, r.fixes_changed) == (1, 3, 0)
+    assert [(t, f) for t, f, _ in r.beside] == [("150.5", "B1")] and "'F1' (import 1)" in r.beside[0][2]
+    # --replace has nothing to replace: team A's fix stays
+    r = add(store_path, b, replace=True)
+    assert (r.fixes_added, r.fixes_known, r.fixes_changed, r.beside) == (0, 1, 0, [])
+    assert add(store_path, a, replace=True).fixes_known == 1
+    with SeasonStore.open(store_path) as s:
+        assert sorted(s.fixes()["fix"]) == ["B1", "F1"]
+        stored = s.bearings(s.fixes()["fid"])
+        assert len(stored) == 6 and not {"row_key", "content_key", "moment_key"} & set(stored.columns)
+        ch = s.changes()
+        assert ch["kind"].tolist() == ["added_beside"] and ch["fix"].tolist() == ["B1"]
+
+
+def test_the_command_keeps_both_teams_and_says_so(store_path, write_sheet, capsys):
+    a, b = write_sheet(TEAM_A, "teamA.csv"), write_sheet(TEAM_B, "teamB.csv")
+    main(["season", "add", str(store_path), str(a), str(b), "--replace"])
+    err = capsys.readouterr().err
+    assert "teamB.csv: import 2: 1 fix in the sheet: 1 added" in err
+    assert "beside    tag 150.5, fix B1: has bearings at the tag, time and observer of stored fix 'F1'" in err
+    assert "replaced" not in err
+    with SeasonStore.open(store_path) as s:
+        assert sorted(s.fixes()["fix"]) == ["B1", "F1"]
+
+
+def test_a_corrected_bearing_sd_or_station_is_a_change_of_the_stored_fix(store_path, write_sheet):
+    add(store_path, write_sheet(TEAM_A, "teamA.csv"))
+    for name, text, says in [
+            ("bearing.csv", TEAM_A.replace("280.012,3", "281.012,3"), "line 3 differs from the stored bearing"),
+            ("sd.csv", TEAM_A.replace("149.991,3", "149.991,5"), "line 4 differs from the stored bearing"),
+            ("station.csv", TEAM_A.replace("47.8581248,15.1757928", "47.8581248,15.1767928"),
+             "1 bearing not in the stored fix; 1 stored bearing not in this sheet")]:
+        r = add(store_path, write_sheet(text, name))
+        assert (name, r.fixes_added, r.fixes_changed) == (name, 0, 1) and says in r.changed[0][2], r.changed
+
+
+def test_a_relabelled_fix_is_kept_beside_the_stored_one_and_said(store_path, write_sheet):
+    add(store_path, write_sheet(TEAM_A, "teamA.csv"))
+    r = add(store_path, write_sheet(TEAM_A.replace("F1,", "G1,"), "relabelled.csv"))
+    assert r.fixes_added == 1 and [f for _, f, _ in r.beside] == ["G1"]
+
+
+def test_identity_includes_station_and_given_label_but_not_labels_dfkit_made():
+    from dfkit.observations import read_bearings
+
+    b = read_bearings(TEAM_A.encode()).table
+    rk, _, mk = bearing_keys(b)
+    other_place = b.assign(lat=b["lat"] + 1e-5)
+    other_label = b.assign(fix="G1")
+    assert set(bearing_keys(other_place).row_key).isdisjoint(rk)
+    assert set(bearing_keys(other_label).row_key).isdisjoint(rk)
+    assert list(bearing_keys(other_place).moment_key) == list(mk)          # same tag, time and observer
+    near = b.assign(lat=b["lat"] + 1e-8)                                   # 1 mm: the same station
+    assert list(bearing_keys(near).row_key) == list(rk)
+    windowed = read_bearings(SHEET.encode()).table                         # labels made from time windows
+    assert list(bearing_keys(windowed.assign(fix="another name")).row_key) == list(bearing_keys(windowed).row_key)
+    untimed = read_bearings(b"fix,tag,lat,lon,bearing\nU,C,47,15,45\nU,C,47,15.02,315\n").table
+    assert all(k is None for k in bearing_keys(untimed).moment_key)
+
+
+def test_a_label_split_by_time_keeps_the_identity_it_had_before_the_split(store_path, write_sheet):
+    day1 = "fix,tag,time,lat,lon,bearing,sd\nS,D,2026-06-01T06:00Z,47,15,45,3\nS,D,2026-06-01T06:05Z,47,15.02,315,3\n"
+    both = day1 + "S,D,2026-06-03T06:00Z,47,15,50,3\nS,D,2026-06-03T06:05Z,47,15.02,310,3\n"
+    from dfkit.observations import read_bearings
+
+    k1 = bearing_keys(read_bearings(day1.encode()).table).row_key
+    k2 = bearing_keys(read_bearings(both.encode()).table).row_key
+    assert list(k2[:2]) == list(k1)
+
+
+V1 = ROOT / "tests" / "season_v1"
+
+
+def test_a_schema_1_store_is_migrated_and_matches_its_sheets_again(tmp_path):
+    # store_v1.gpkg was written by the dfkit of store schema 1 (see tests/season_v1/make_store.py)
+    old = tmp_path / "old.gpkg"
+    old.write_bytes((V1 / "store_v1.gpkg").read_bytes())
+    conn = sqlite3.connect(old)
+    meta = dict(conn.execute("SELECT key, value FROM dfkit_meta").fetchall())
+    n_fixes = conn.execute("SELECT COUNT(*) FROM fixes").fetchone()[0]
+    conn.close()
+    assert meta["schema_version"] == "1" and meta["key_scheme"] == "dfkit-bearing-keys-1" and n_fixes == 7
+    with SeasonStore.open(old) as s:
+        assert s.schema_version == 2 and len(s.migrated) == 1 and "17 bearing keys" in s.migrated[0]
+    with SeasonStore.open(old) as s:
+        assert s.migrated == []                                        # once
+    validate(old)
+    for name in ("teamA.csv", "week1.csv", "labels.csv"):
+        r = add(old, V1 / name)
+        assert (name, r.fixes_added, r.fixes_changed, r.bearings_added) == (name, 0, 0, 0)
+    r = add(old, V1 / "teamB2.csv")
+    assert r.fixes_added == 1 and "'F1' (import 1)" in r.beside[0][2]
+    changed = tmp_path / "week1.csv"
+    changed.write_text((V1 / "week1.csv").read_text().replace(",45,3,", ",46,3,"))
+    assert add(old, changed).fixes_changed == 1
+    conn = sqlite3.connect(old)
+    meta = dict(conn.execute("SELECT key, value FROM dfkit_meta").fetchall())
+    assert meta["key_scheme"] == "dfkit-bearing-keys-2" and "store schema 1 -> 2" in meta["migrated_1_to_2"]
+    assert conn.execute("SELECT COUNT(*) FROM fixes").fetchone()[0] == n_fixes + 1
+
+
+def test_a_schema_1_store_that_cannot_be_migrated_is_refused_clearly_and_left_as_it_was(tmp_path, monkeypatch):
+    from dfkit.season import store as store_module
+
+    old = tmp_path / "old.gpkg"
+    data = (V1 / "store_v1.gpkg").read_bytes()
+    old.write_bytes(data)
+    monkeypatch.setattr(store_module, "BUSY_TIMEOUT_S", 0.2)
+    other = sqlite3.connect(old, isolation_level=None)
+    other.execute("BEGIN IMMEDIATE")                     # another program is writing to the file
+    with pytest.raises(StoreError, match="has store schema 1; this dfkit must migrate it to schema 2, which writes"):
+        SeasonStore.open(old)
+    other.execute("ROLLBACK")
+    other.close()
+
+    def broken(conn):                                    # the migration fails half way
+        conn.execute("UPDATE bearings SET row_key = NULL")
+        raise sqlite3.OperationalError("disk I/O error")
+
+    monkeypatch.setitem(store_module._MIGRATIONS, 1, broken)
+    with pytest.raises(StoreError, match="could not be migrated to 2 .disk I/O error.; the file is unchanged"):
+        SeasonStore.open(old)
+    conn = sqlite3.connect(old)
+    assert conn.execute("SELECT COUNT(*) FROM bearings WHERE row_key IS NULL").fetchone()[0] == 0
+    assert conn.execute("SELECT value FROM dfkit_meta WHERE key = 'schema_version'").fetchone()[0] == "1"
+    conn.close()
+
+
+def test_the_command_says_it_migrated_the_store(tmp_path, capsys):
+    old = tmp_path / "old.gpkg"
+    old.write_bytes((V1 / "store_v1.gpkg").read_bytes())
+    assert main(["season", "show", str(old)]) == 1               # fix Z of the sheet is too_few
+    assert "the season file was migrated: store schema 1 -> 2" in capsys.readouterr().err
 
 
 def test_a_store_from_elsewhere_is_refused(tmp_path):

@@ -5,7 +5,8 @@ from __future__ import annotations
 import sys
 
 from dfkit.cautions import CAUTION_LINE
-from dfkit.cli.common import add_read_options, ensure_dir, read_kwargs, refuse_unsafe_outputs, report_problems
+from dfkit.cli.common import (CSV_KINDS, add_read_options, count_text, ensure_dir, read_kwargs,
+                              refuse_unsafe_outputs, refuse_wrong_kinds, report_problems, sheet_help)
 from dfkit.export.atomic import save_figure
 
 
@@ -14,8 +15,8 @@ def add_parser(sub):
     c = sub.add_parser("calibrate", help="bearing bias and SD per antenna or observer, from beacon trials")
     c.add_argument(
         "trials",
-        help="a bearing sheet plus the beacon position (beacon_lat/beacon_lon, beacon UTM, "
-        "beacon_mgrs, or a beacon label with --stations)",
+        help=sheet_help("the trials") + ": a bearing sheet plus the beacon position (beacon_lat/beacon_lon, "
+        "beacon UTM, beacon_mgrs, or a beacon label with --stations)",
     )
     c.add_argument(
         "--by",
@@ -29,16 +30,16 @@ def add_parser(sub):
         "--output",
         default=None,
         metavar="CAL.csv",
-        help="write the calibration (use it with dfkit fix/map --calibration)",
+        help="write the calibration (.csv; use it with dfkit fix/map/plan --calibration)",
     )
     c.add_argument(
         "--trials-out",
         default=None,
         metavar="CSV",
-        help="also write every trial with its error, distance, group and whether it was wild",
+        help="also write every trial with its error, distance, group and whether it was wild (.csv)",
     )
     c.add_argument(
-        "--check-out", default=None, metavar="CSV", help="also write the leave-one-beacon-out fixes"
+        "--check-out", default=None, metavar="CSV", help="also write the leave-one-beacon-out fixes (.csv)"
     )
     c.add_argument(
         "--figures",
@@ -123,6 +124,8 @@ def run(a) -> int:
               file=sys.stderr)
         return 2
     refuse_unsafe_outputs(a, [("-o", a.output), ("--trials-out", a.trials_out), ("--check-out", a.check_out)])
+    refuse_wrong_kinds([("-o", a.output, CSV_KINDS), ("--trials-out", a.trials_out, CSV_KINDS),
+                        ("--check-out", a.check_out, CSV_KINDS)])
     if not 0 < a.level < 1:
         print(f"dfkit: --level {a.level} must be a probability between 0 and 1 (e.g. 0.95)", file=sys.stderr)
         return 2
@@ -177,7 +180,8 @@ def run(a) -> int:
             print(f"wrote {path}", file=sys.stderr)
     n_groups = len(cal.table)
     print(
-        f"{trials.source}: {trials.n_rows} rows, {len(trials.table)} usable trials, "
+        f"{trials.source}: {count_text(trials.n_rows, 'row')}, "
+        f"{count_text(len(trials.table), 'usable trial')}, "
         f"{trials.n_rejected} rejected, "
         f"{len(cal.wild)} wild; {n_groups} group{'s' if n_groups != 1 else ''}: "
         + ", ".join(f"{(cal.table['status'] == s).sum()} {s}" for s in ("ok", "few", "unusable")),

@@ -4,14 +4,16 @@ from __future__ import annotations
 
 import sys
 
-from dfkit.cli.common import (add_output_options, add_read_options, ensure_dir, exit_status, read_kwargs,
-                              refuse_unsafe_outputs, rejected_summary, report_problems)
+from dfkit.cli.common import (CSV_KINDS, add_output_options, add_read_options, count_text, ensure_dir,
+                              exit_status, read_kwargs,
+                              refuse_unsafe_outputs, refuse_wrong_kinds, rejected_summary, report_problems,
+                              sheet_help)
 
 
 def add_parser(sub):
     c = sub.add_parser("check", help="read a sheet and report every row dfkit cannot use")
-    c.add_argument("sheet")
-    c.add_argument("-o", "--output", default=None, help="write the normalized table (CSV)")
+    c.add_argument("sheet", help=sheet_help())
+    c.add_argument("-o", "--output", default=None, metavar="CSV", help="write the normalized table (.csv)")
     add_read_options(c)
     add_output_options(c)
     return c
@@ -22,12 +24,13 @@ def run(a) -> int:
     from dfkit.observations import read_bearings
 
     refuse_unsafe_outputs(a, [("-o", a.output)])
+    refuse_wrong_kinds([("-o", a.output, CSV_KINDS)])
     b = read_bearings(a.sheet, **read_kwargs(a))
     report_problems(b.problems, sys.stdout)
     for note in b.notes:
         print(f"note      {note}")
     n_fix = b.table["fix"].nunique() if len(b.table) else 0
-    print(f"{b.source}: {b.n_rows} rows, {len(b.table)} usable, {rejected_summary(b)}; "
+    print(f"{b.source}: {count_text(b.n_rows, 'row')}, {len(b.table)} usable, {rejected_summary(b)}; "
           f"{n_fix} {'fix' if n_fix == 1 else 'fixes'} ({len(b.labels)} {'label' if len(b.labels) == 1 else 'labels'} in the sheet)")
     if a.output:
         ensure_dir(a.output)

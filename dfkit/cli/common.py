@@ -8,6 +8,7 @@ import sys
 import time
 
 from dfkit.cautions import CAUTION_LINE
+from dfkit.conventions import NORTH_ALIASES, UNIT_ALIASES
 from dfkit.policy import DEFAULT_TRACK_GAP_S, DEFAULT_WINDOW_MIN, MAX_TRACK_GAP_S, MAX_WINDOW_MIN, MIN_SD_DEG
 
 
@@ -18,6 +19,42 @@ FLAGS = {"unit": "--unit", "north": "--north", "sd": "--sd", "declination": "--d
          "utm_letters": "--utm-letters", "worksheet": "--sheet", "level": "--level"}
 
 
+def count_text(n: int, one: str, many: str | None = None) -> str:
+    """``1 row``, ``2 rows`` (``many`` for irregular plurals: ``count_text(n, 'fix', 'fixes')``)."""
+    return f"{n} {one if n == 1 else (many or one + 's')}"
+
+
+def kinds_text(exts, last: str = "or") -> str:
+    """Extensions for a help text or message: ``.csv, .geojson or .gpx``."""
+    exts = list(dict.fromkeys(exts))
+    return exts[0] if len(exts) == 1 else f"{', '.join(exts[:-1])} {last} {exts[-1]}"
+
+
+#: Extensions the table writers give a CSV (``-o`` of check and calibrate, ``--bearings-out`` ...).
+CSV_KINDS = (".csv",)
+#: Extensions of a map page.
+HTML_KINDS = (".html", ".htm")
+
+
+def sheet_help(what: str = "the bearing sheet") -> str:
+    """Help of a sheet argument, from what the reader accepts (it decides by content, not by name)."""
+    from dfkit.io.sniff import SPREADSHEET_KINDS
+
+    return (f"{what}: CSV or other delimited text (comma, semicolon, tab), or a spreadsheet "
+            f"({kinds_text(['.' + k for k in SPREADSHEET_KINDS])}); the kind is found from the content")
+
+
+def refuse_wrong_kinds(outputs) -> None:
+    """Refuse (``ValueError``, exit 2) before any work an output whose extension its option cannot write
+    (after :func:`refuse_unsafe_outputs`: an output that would overwrite an input is named as such first).
+
+    ``outputs`` is a list of (option, path, accepted extensions); a path of None is skipped.
+    """
+    for option, path, kinds in outputs:
+        if path and os.path.splitext(os.fspath(path))[1].lower() not in kinds:
+            raise ValueError(f"cannot write '{path}': use one of {kinds_text(kinds)} for {option}")
+
+
 def option_message(err) -> str:
     """An :class:`~dfkit.observations.OptionError` in the shell's words: ``--sd 1e-150 is not ...``."""
     v = err.value
@@ -25,13 +62,30 @@ def option_message(err) -> str:
     return f"{FLAGS.get(err.param, err.param)} {shown} {err.reason}"
 
 
+def _spelling(flag: str, aliases: dict):
+    """An argparse type that reads the spellings a sheet accepts (``'grid north'`` -> ``'grid'``)."""
+    def read(text: str) -> str:
+        word = aliases.get(" ".join(str(text).split()).lower())
+        if word is None:
+            words = ", ".join(sorted(set(aliases.values())))
+            raise argparse.ArgumentTypeError(f"{text!r} is not one of {words} (or their usual spellings)")
+        return word
+    read.__name__ = flag
+    return read
+
+
 def add_read_options(p: argparse.ArgumentParser) -> None:
     g = p.add_argument_group("reading the sheet (a value in the sheet wins)")
     g.add_argument("--sheet", default=None, metavar="NAME", dest="worksheet",
                    help="which sheet of a spreadsheet file (.xlsx, .xls, .ods) to read (default: the first)")
-    g.add_argument("--unit", choices=["deg", "mil", "grad"], default="deg", help="bearing unit (default deg)")
+    g.add_argument("--unit", choices=["deg", "mil", "grad"], default="deg",
+                   type=_spelling("--unit", UNIT_ALIASES),
+                   help="bearing unit where the sheet has no unit column (default deg; also 'degrees', "
+                        "'mils', 'gon' ...)")
     g.add_argument("--north", choices=["true", "magnetic", "grid"], default="true",
-                   help="bearing reference (default true)")
+                   type=_spelling("--north", NORTH_ALIASES),
+                   help="bearing reference where the sheet has no north column (default true; also "
+                        "'true north', 'magnetic north', 'mag', 'grid north', 'GN' ...)")
     g.add_argument("--sd", type=float, default=None, metavar="DEG",
                    help=f"bearing standard deviation in degrees, from beacon trials ({MIN_SD_DEG:g} to below 90)")
     g.add_argument("--declination", type=float, default=None, metavar="DEG",
@@ -46,8 +100,11 @@ def add_read_options(p: argparse.ArgumentParser) -> None:
     g.add_argument("--window", type=float, default=DEFAULT_WINDOW_MIN, metavar="MIN",
                    help=f"a fix goes on while each unlabelled bearing of a tag follows the last within this many "
                         f"minutes (default {DEFAULT_WINDOW_MIN:g}, common practice; at most {MAX_WINDOW_MIN:g})")
-    g.add_argument("--stations", default=None, metavar="FILE", help="stations file (station label + position)")
-    g.add_argument("--track", default=None, metavar="GPX", help="GPS track for rows with a time but no position")
+    g.add_argument("--stations", default=None, metavar="FILE",
+                   help="stations file: a 'station' label and a position (lat/lon, UTM or MGRS), CSV or "
+                        "spreadsheet")
+    g.add_argument("--track", default=None, metavar="GPX",
+                   help="GPS track (GPX file) giving positions to rows with a time but no position")
     g.add_argument("--track-gap", type=float, default=DEFAULT_TRACK_GAP_S, metavar="S",
                    help=f"largest time from a bearing to a track point (default {DEFAULT_TRACK_GAP_S:g} s, at most "
                         f"{MAX_TRACK_GAP_S:g})")
@@ -63,7 +120,8 @@ def add_fix_options(p: argparse.ArgumentParser) -> None:
     g = p.add_argument_group("solving")
     g.add_argument("--method", choices=METHODS, default="mle",
                    help="estimator: mle (Lenth, default), huber, andrews (robust), lsq, stansfield")
-    g.add_argument("--level", type=float, default=0.95, help="probability of the confidence ellipses (0.95)")
+    g.add_argument("--level", type=float, default=0.95,
+                   help="probability of the confidence regions and ellipses (default 0.95)")
     g.add_argument("--calibration", default=None, metavar="CAL.csv",
                    help="bias and SD per antenna/observer from 'dfkit calibrate': removes the bias, uses the SD")
 
@@ -205,7 +263,9 @@ def print_summary(b, fixes) -> None:
               "--calibration", file=sys.stderr)
     nf = len(fixes.table)
     print(f"{b.source}: {nf} {'fix' if nf == 1 else 'fixes'}: {s['ok']} ok, {s['flagged']} flagged, "
-          f"{s['failed']} failed; {len(b.table)} of {b.n_rows} rows used, {rejected_summary(b)}", file=sys.stderr)
+          f"{s['failed']} failed; {len(b.table)} of {count_text(b.n_rows, 'row')} used, "
+          f"{rejected_summary(b)}",
+          file=sys.stderr)
     print(CAUTION_LINE, file=sys.stderr)
 
 

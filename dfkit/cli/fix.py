@@ -4,21 +4,26 @@ from __future__ import annotations
 
 import sys
 
-from dfkit.cli.common import (add_fix_options, add_jobs_option, add_output_options, add_read_options, ensure_dir,
-                              exit_status, print_summary, refuse_unsafe_outputs, solve)
+from dfkit.cli.common import (CSV_KINDS, add_fix_options, add_jobs_option, add_output_options, add_read_options,
+                              ensure_dir, exit_status, kinds_text, print_summary, refuse_unsafe_outputs,
+                              refuse_wrong_kinds, sheet_help, solve)
 from dfkit.cli.map import add_figures_option, write_figures
 
 
 def add_parser(sub):
     f = sub.add_parser("fix", help="positions and confidence regions for every fix of a sheet")
-    f.add_argument("sheet")
+    from dfkit.export import WRITERS
+
+    f.add_argument("sheet", help=sheet_help())
     f.add_argument("-o", "--output", action="append", default=[],
-                   help="output file: .csv, .geojson or .gpx (may be repeated)")
+                   help=f"output file, its kind by extension: {kinds_text(WRITERS)} (may be repeated)")
     f.add_argument("--bearings-out", default=None, metavar="CSV",
-                   help="also write every bearing with its residual and weight")
+                   help="also write every bearing with its residual and weight (.csv)")
     f.add_argument("--progress", action="store_true", help="print progress (automatic on large sheets)")
     o = f.add_argument_group("output files")
-    o.add_argument("--utm", action="store_true", help="CSV: add utm_zone, easting, northing columns")
+    o.add_argument("--utm", action="store_true",
+                   help="CSV: add utm_zone (number), utm_hemisphere (north/south), utm_band (letter), "
+                        "easting, northing columns")
     o.add_argument("--gpx-name-length", type=int, default=None, metavar="N",
                    help="GPX: cut waypoint names to N characters (hand-held receivers show few), kept unique")
     o.add_argument("--gpx-tz", default=None, metavar="ZONE", help="GPX: waypoint times in this time zone, not UTC")
@@ -33,13 +38,11 @@ def add_parser(sub):
 
 
 def run(a) -> int:
-    from dfkit.export import WRITERS, WriteOptions, output_kind, write_fixes, write_table
+    from dfkit.export import WRITERS, WriteOptions, write_fixes, write_table
 
-    for path in a.output:
-        if output_kind(path) is None:
-            print(f"dfkit: cannot write '{path}': use one of {', '.join(sorted(WRITERS))}", file=sys.stderr)
-            return 2
     refuse_unsafe_outputs(a, [("-o", p) for p in a.output] + [("--bearings-out", a.bearings_out)])
+    refuse_wrong_kinds([("-o", p, tuple(WRITERS)) for p in a.output]
+                       + [("--bearings-out", a.bearings_out, CSV_KINDS)])
     if a.gpx_name_length is not None and a.gpx_name_length < 3:
         print(f"dfkit: --gpx-name-length {a.gpx_name_length}: must be at least 3", file=sys.stderr)
         return 2

@@ -9,21 +9,24 @@ import os
 import re
 import sys
 
-from dfkit.cli.common import (add_fix_options, add_jobs_option, add_read_options, ensure_dir, exit_status, print_summary,
-                              refuse_unsafe_outputs, solve)
+from dfkit.cli.common import (HTML_KINDS, add_fix_options, add_jobs_option, add_read_options, ensure_dir,
+                              exit_status, kinds_text, print_summary, refuse_unsafe_outputs, refuse_wrong_kinds,
+                              sheet_help, solve)
 from dfkit.export.atomic import save_figure
 
 
 def add_figures_option(p) -> None:
     p.add_argument("--figures", default=None, metavar="DIR",
-                   help="also write a figure per fix (PNG: bearings, fix and region in local metres) into DIR")
+                   help="also write a figure per fix into DIR (PNG: bearings, fix and its likelihood "
+                        "region in local metres)")
 
 
 def add_parser(sub):
     m = sub.add_parser("map", help="an offline HTML map of bearings, fixes and regions")
-    m.add_argument("sheet")
-    m.add_argument("-o", "--output", required=True, help="HTML file to write")
-    m.add_argument("--title", default=None)
+    m.add_argument("sheet", help=sheet_help())
+    m.add_argument("-o", "--output", required=True, metavar="HTML",
+                   help=f"the map page to write ({kinds_text(HTML_KINDS)}; one file, works offline)")
+    m.add_argument("--title", default=None, help="title of the page (default: the sheet's file name)")
     g = m.add_argument_group("map")
     g.add_argument("--error-polygons", action="store_true", help="also draw error polygons (no probability meaning)")
     g.add_argument("--colour-by", choices=["tag", "time", "observer"], default="tag",
@@ -50,32 +53,20 @@ def _safe_name(i: int, label: str) -> str:
 
 def write_figures(fixes, folder, progress=None) -> list[str]:
     """A PNG per fix in ``folder`` (named ``00001_<label>.png``); returns the problems met (none crash the run)."""
-    from dfkit.figures import fix_plot
-    from dfkit.locate import Fixes
+    import matplotlib.pyplot as plt
+
+    from dfkit.figures import fix_figures
 
     os.makedirs(folder, exist_ok=True)
-    say = progress or (lambda text: None)
-    t, b = fixes.table, fixes.bearings
     problems = []
-    by_fix = b.groupby("fix_id").indices if len(b) else {}
-    for i in range(len(t)):
-        if i % 500 == 0:
-            say(f"figures {i}/{len(t)}")
-        rows = by_fix.get(i, [])
-        label = str(t["fix"].iat[i])
-        if len(rows) == 0:
-            problems.append(f"no figure for fix {label}: it has no usable bearing")
+    for i, fig, problem in fix_figures(fixes, progress=progress):
+        if fig is None:
+            problems.append(problem)
             continue
-        one = Fixes(table=t.iloc[[i]].reset_index(drop=True), bearings=b.iloc[rows].assign(fix_id=0),
-                    source=fixes.source)
         try:
-            fig = fix_plot(one, t["fix"].iat[i])
-            save_figure(fig, os.path.join(folder, _safe_name(i, label)), dpi=110)
-            import matplotlib.pyplot as plt
-
+            save_figure(fig, os.path.join(folder, _safe_name(i, str(fixes.table["fix"].iat[i]))), dpi=110)
+        finally:
             plt.close(fig)
-        except (ValueError, KeyError, IndexError) as err:
-            problems.append(f"no figure for fix {label}: {err}")
     return problems
 
 
@@ -89,6 +80,7 @@ def run(a) -> int:
         print(f"dfkit: --tiles-budget {a.tiles_budget}: must be a positive number of megabytes", file=sys.stderr)
         return 2
     refuse_unsafe_outputs(a, [("-o", a.output)])
+    refuse_wrong_kinds([("-o", a.output, HTML_KINDS)])
     b, fixes, progress = solve(a)
     progress("building the map")
     m = fix_map(fixes, error_polygons=a.error_polygons, title=a.title or os.path.basename(a.sheet), tiles=a.tiles,

@@ -5,8 +5,9 @@ from __future__ import annotations
 import os
 import sys
 
-from dfkit.cli.common import (add_fix_options, add_read_options, ensure_dir, read_kwargs, refuse_unsafe_outputs,
-                              report_problems)
+from dfkit.cli.common import (add_fix_options, add_read_options, count_text, ensure_dir, kinds_text,
+                              read_kwargs, refuse_unsafe_outputs, refuse_wrong_kinds, report_problems,
+                              sheet_help)
 from dfkit.policy import DEFAULT_MAX_RANGE_M
 
 #: Output kinds of a plan, by extension.
@@ -17,14 +18,15 @@ def add_parser(sub):
     p = sub.add_parser(
         "plan", help="rank spots for the next bearing on a fix by the region it is expected to leave"
     )
-    p.add_argument("sheet")
+    p.add_argument("sheet", help=sheet_help())
     p.add_argument("--fix", required=True, metavar="LABEL", help="the fix to plan for")
     p.add_argument("--tag", default=None, help="the fix's tag, when several tags use the label")
     where = p.add_mutually_exclusive_group(required=True)
     where.add_argument(
         "--spots",
-        metavar="CSV",
-        help="candidate spots: a 'spot' label and a position (lat/lon, UTM, MGRS or station)",
+        metavar="FILE",
+        help="candidate spots: a 'spot' label and a position (lat/lon, UTM, MGRS or station), CSV or "
+        "spreadsheet",
     )
     where.add_argument(
         "--around",
@@ -71,7 +73,8 @@ def add_parser(sub):
         "--output",
         action="append",
         default=[],
-        help="output file: .csv, .geojson or .html (may be repeated)",
+        help=f"output file, its kind by extension: {kinds_text(OUTPUTS)} (.html: a map of the plan; may be "
+        "repeated)",
     )
     add_read_options(p)
     add_fix_options(p)
@@ -82,11 +85,8 @@ def run(a) -> int:
     from dfkit.observations import read_bearings
     from dfkit.planning import plan_next_bearing
 
-    for path in a.output:
-        if os.path.splitext(path)[1].lower() not in OUTPUTS:
-            print(f"dfkit: cannot write '{path}': use one of {', '.join(OUTPUTS)}", file=sys.stderr)
-            return 2
     refuse_unsafe_outputs(a, [("-o", p) for p in a.output])
+    refuse_wrong_kinds([("-o", p, OUTPUTS) for p in a.output])
     if a.step is not None and a.around is None:
         print("dfkit: --step is the spacing of a grid: give --around with it", file=sys.stderr)
         return 2
@@ -154,7 +154,7 @@ def _write(plan, path):
     elif ext in (".geojson", ".json"):
         write_plan_geojson(plan, path)
     else:
-        from dfkit.planmap import plan_map
+        from dfkit.maps.plan import plan_map
 
         plan_map(plan).save(path)
         print(f"wrote {path} (works offline)", file=sys.stderr)
@@ -215,7 +215,7 @@ def _print_summary(plan, top):
     n_rej = len({p.line for p in plan.problems if p.severity == "error" and p.source != plan.fixes.source})
     rej = f", {n_rej} spot row{'s' if n_rej != 1 else ''} rejected" if n_rej else ""
     print(
-        f"{plan.fixes.source}: {n_rank} of {len(plan.table)} spots ranked ({plan.basis}){rej}",
+        f"{plan.fixes.source}: {n_rank} of {count_text(len(plan.table), 'spot')} ranked ({plan.basis}){rej}",
         file=sys.stderr,
     )
     print(f"caution: {PLAN_CAUTION}", file=sys.stderr)

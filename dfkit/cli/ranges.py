@@ -6,16 +6,20 @@ import os
 import sys
 
 from dfkit.cautions import CAUTION_LINE
-from dfkit.cli.common import ensure_dir, refuse_unsafe_outputs, report_problems
+from dfkit.cli.common import (ensure_dir, kinds_text, refuse_unsafe_outputs, refuse_wrong_kinds,
+                              report_problems)
 from dfkit.cli.filters import add_filter_options, filter_from_args
 
 
 def add_parser(sub):
     r = sub.add_parser("ranges", help="home ranges per tag (minimum convex polygon or kernel) from fixes or a "
                                       "season file")
+    from dfkit.season.range_files import RANGE_KINDS
+
     r.add_argument("source", help="fixes (.csv, as dfkit fix writes them) or a season file (.gpkg)")
     r.add_argument("-o", "--output", action="append", default=[],
-                   help="output: .geojson, .gpkg or .csv (areas only); may be repeated")
+                   help=f"output, its kind by extension: {kinds_text(RANGE_KINDS)} (.csv: areas only); "
+                        "may be repeated")
     r.add_argument("--method", choices=["mcp", "kde"], default="kde",
                    help="mcp: minimum convex polygon; kde: fixed kernel (default)")
     r.add_argument("--levels", default="50,95", metavar="LIST",
@@ -42,11 +46,8 @@ def run(a) -> int:
     from dfkit.homerange import home_ranges
     from dfkit.season.range_files import RANGE_KINDS, write_ranges
 
-    for path in a.output:
-        if os.path.splitext(path)[1].lower() not in RANGE_KINDS:
-            print(f"dfkit: cannot write '{path}': use one of {', '.join(RANGE_KINDS)}", file=sys.stderr)
-            return 2
     refuse_unsafe_outputs(a, [("-o", p) for p in a.output])
+    refuse_wrong_kinds([("-o", p, RANGE_KINDS) for p in a.output])
     levels = _levels(a.levels)
     for lv in levels:
         if not (0 < lv < 1 or (lv == 1 and a.method == "mcp")):

@@ -8,12 +8,15 @@ import sys
 import time
 
 from dfkit.cautions import CAUTION_LINE
-from dfkit.cli.common import (add_fix_options, add_jobs_option, add_read_options, check_jobs, read_kwargs,
-                              refuse_unsafe_outputs, report_problems)
+from dfkit.cli.common import (add_fix_options, add_jobs_option, add_read_options, check_jobs, count_text,
+                              kinds_text, read_kwargs, refuse_unsafe_outputs, refuse_wrong_kinds, report_problems,
+                              sheet_help)
 from dfkit.cli.filters import add_filter_options, filter_from_args
+from dfkit.export import WRITERS
 
-#: What ``season show -o`` can write, by extension.
-SHOW_KINDS = (".csv", ".geojson", ".json", ".gpx", ".kml", ".fgb", ".gpkg", ".html")
+#: What ``season show -o`` can write, by extension: every fix writer (.gpkg is a season file of the selection
+#: there) and the review page.
+SHOW_KINDS = tuple(WRITERS) + (".html",)
 
 
 def add_parser(sub):
@@ -22,7 +25,8 @@ def add_parser(sub):
 
     a = ss.add_parser("add", help="solve sheets and store them (importing the same rows again adds nothing)")
     a.add_argument("store", help="season file (.gpkg); made when it does not exist")
-    a.add_argument("sheets", nargs="+", metavar="SHEET", help="bearing sheets; each is one import")
+    a.add_argument("sheets", nargs="+", metavar="SHEET",
+                   help=sheet_help("bearing sheets") + "; each is one import")
     a.add_argument("--replace", action="store_true",
                    help="replace stored fixes that a sheet changes (default: report them and keep the stored ones)")
     a.add_argument("--progress", action="store_true", help="print progress (automatic on large sheets)")
@@ -35,8 +39,8 @@ def add_parser(sub):
                                    "page), or print a summary")
     w.add_argument("store", help="season file (.gpkg)")
     w.add_argument("-o", "--output", action="append", default=[],
-                   help="output file: " + ", ".join(SHOW_KINDS) + " (.gpkg is a season file of the selection, "
-                        ".html the review page; may be repeated)")
+                   help=f"output file, its kind by extension: {kinds_text(SHOW_KINDS)} (.gpkg is a season "
+                        "file of the selection, .html the review page; may be repeated)")
     w.add_argument("--title", default=None, help="title of the review page")
     add_filter_options(w)
     w.set_defaults(_season=_run_show)
@@ -71,6 +75,7 @@ def _run_add(a) -> int:
     check_jobs(a)
     status = 0
     with SeasonStore.open(a.store, create=True) as store:
+        _say_migrated(store)
         for sheet in a.sheets:
             r = add_sheet(store, sheet, method=a.method, level=a.level, replace=a.replace, progress=progress,
                           jobs=a.jobs, **read_kwargs(a))
@@ -82,12 +87,18 @@ def _run_add(a) -> int:
                 print(f"{what}  tag {tag}, fix {fix}: {detail}", file=sys.stderr)
             if len(r.changed) > 50:
                 print(f"... {len(r.changed) - 50} more changed fixes (see the 'changes' table)", file=sys.stderr)
+            for tag, fix, detail in r.beside[:50]:
+                print(f"beside    tag {tag}, fix {fix}: {detail}", file=sys.stderr)
+            if len(r.beside) > 50:
+                print(f"... {len(r.beside) - 50} more fixes added beside stored ones (see the 'changes' "
+                      "table)", file=sys.stderr)
             s = r.added_status
             kept = "" if r.replaced or not r.changed else " (kept as stored; --replace to replace them)"
-            print(f"{r.file_name}: import {r.import_id}: {r.fixes_in} fixes in the sheet: {r.fixes_added} added "
+            print(f"{r.file_name}: import {r.import_id}: {count_text(r.fixes_in, 'fix', 'fixes')} in the "
+                  f"sheet: {r.fixes_added} added "
                   f"({s.get('ok', 0)} ok, {s.get('flagged', 0)} flagged, {s.get('failed', 0)} failed), "
-                  f"{r.fixes_known} already stored, {r.fixes_changed} changed{kept}; {r.n_rows} rows, "
-                  f"{r.n_rejected} rejected", file=sys.stderr)
+                  f"{r.fixes_known} already stored, {r.fixes_changed} changed{kept}; "
+                  f"{count_text(r.n_rows, 'row', 'rows')}, {r.n_rejected} rejected", file=sys.stderr)
             if r.n_rejected or s.get("flagged") or s.get("failed") or (r.changed and not r.replaced):
                 status = 1
     print(f"stored in {a.store}", file=sys.stderr)
@@ -99,13 +110,11 @@ def _run_show(a) -> int:
     from dfkit.season import SeasonStore
     from dfkit.season.summary import tag_summary
 
-    for path in a.output:
-        if os.path.splitext(path)[1].lower() not in SHOW_KINDS:
-            print(f"dfkit: cannot write '{path}': use one of {', '.join(SHOW_KINDS)}", file=sys.stderr)
-            return 2
     refuse_unsafe_outputs(a, [("-o", p) for p in a.output])
+    refuse_wrong_kinds([("-o", p, SHOW_KINDS) for p in a.output])
     flt = filter_from_args(a)
     with SeasonStore.open(a.store) as store:
+        _say_migrated(store)
         table = store.fixes(flt)
         for path in a.output:
             _write(store, flt, table, path, a.title)
@@ -125,6 +134,11 @@ def _run_show(a) -> int:
           f"{int((st != 'ok').sum())} flagged or failed", file=sys.stderr)
     print(CAUTION_LINE, file=sys.stderr)
     return 0 if (st == "ok").all() else 1
+
+
+def _say_migrated(store) -> None:
+    for line in store.migrated:
+        print(f"note      the season file was migrated: {line}", file=sys.stderr)
 
 
 def _write(store, flt, table, path, title) -> None:

@@ -26,7 +26,8 @@ class WriteOptions:
     Attributes
     ----------
     utm : bool
-        CSV: add ``utm_zone``, ``easting`` and ``northing`` columns [m] (the fix's standard UTM zone).
+        CSV: add ``utm_zone`` (number), ``utm_hemisphere`` (north/south), ``utm_band`` (letter), ``easting``
+        and ``northing`` [m]: the fix's standard UTM position (see :func:`with_utm`).
     gpx_name_length : int, optional
         GPX: cut waypoint names to this many characters, unique (see :mod:`dfkit.export.gpx`).
     gpx_tz : str, optional
@@ -44,27 +45,45 @@ class WriteOptions:
     guard_formulas: bool = True
 
 
+#: Columns :func:`with_utm` adds after ``lon``.
+UTM_COLUMNS = ("utm_zone", "utm_hemisphere", "utm_band", "easting", "northing")
+
+
 def with_utm(table: pd.DataFrame) -> pd.DataFrame:
-    """The fix table with ``utm_zone`` (e.g. ``33N``), ``easting`` and ``northing`` [m] after ``lon``."""
-    from dfkit import grids as coords
+    """The fix table with its standard UTM position after ``lon``, in columns no one can misread.
+
+    ``utm_zone`` the zone number (1-60, with the Norway and Svalbard exceptions), ``utm_hemisphere``
+    ``north`` or ``south`` (which false northing the northing has), ``utm_band`` the latitude band letter
+    (C-X, as GPS receivers and MGRS write it: ``33T``), ``easting`` and ``northing`` [m]. A zone and one
+    letter (``30S``) is not written: it reads as the southern hemisphere to some and as band S, north of the
+    equator, to others. Fixes without a position (or beyond UTM's 80°S-84°N) have these cells empty. dfkit reads the
+    columns back (a zone number with a ``utm_hemisphere`` column is a complete zone).
+    """
+    from dfkit import grids
 
     lat = table["lat"].to_numpy(float)
     lon = table["lon"].to_numpy(float)
-    ok = np.isfinite(lat) & np.isfinite(lon)
-    e = np.full(len(table), np.nan)
-    n = np.full(len(table), np.nan)
-    zone_text = np.full(len(table), "", dtype=object)
+    ok = np.isfinite(lat) & np.isfinite(lon) & (lat >= -80.0) & (lat <= 84.0)
+    m = len(table)
+    e = np.full(m, np.nan)
+    n = np.full(m, np.nan)
+    zone_no = pd.array([pd.NA] * m, dtype="Int64")
+    hemi = np.full(m, "", dtype=object)
+    band = np.full(m, "", dtype=object)
     if ok.any():
-        zone, south = coords.standard_utm_zone(lat[ok], lon[ok])
+        zone, south = grids.standard_utm_zone(lat[ok], lon[ok])
         idx = np.flatnonzero(ok)
-        for crs, m in coords._zone_groups(zone, south):
-            e[idx[m]], n[idx[m]] = coords.latlon_to_projected(crs, lat[ok][m], lon[ok][m])
-        zone_text[idx] = [f"{z}{'S' if s else 'N'}" for z, s in zip(zone, south)]
+        for crs, sel in grids._zone_groups(zone, south):
+            e[idx[sel]], n[idx[sel]] = grids.latlon_to_projected(crs, lat[ok][sel], lon[ok][sel])
+        zone_no[idx] = zone
+        hemi[idx] = np.where(south, "south", "north")
+        k = np.clip(np.floor((lat[ok] + 80.0) / 8.0).astype(int), 0, len(grids.BAND_LETTERS) - 1)   # X: 72-84
+        band[idx] = np.array(list(grids.BAND_LETTERS), dtype=object)[k]
     out = table.copy()
     at = list(out.columns).index("lon") + 1
-    out.insert(at, "utm_zone", zone_text)
-    out.insert(at + 1, "easting", np.round(e, 2))
-    out.insert(at + 2, "northing", np.round(n, 2))
+    for name, values in zip(UTM_COLUMNS, (zone_no, hemi, band, np.round(e, 2), np.round(n, 2))):
+        out.insert(at, name, values)
+        at += 1
     return out
 
 
@@ -101,5 +120,6 @@ def write_fixes(fixes: Fixes, path, options: WriteOptions | None = None) -> None
     WRITERS[ext](fixes, path, options or WriteOptions())
 
 
-__all__ = ["WRITERS", "WriteOptions", "output_kind", "to_geojson", "to_gpx", "with_utm", "write_fixes",
+__all__ = ["UTM_COLUMNS", "WRITERS", "WriteOptions", "output_kind", "to_geojson", "to_gpx", "with_utm",
+           "write_fixes",
            "write_geojson", "write_gpx", "write_table"]

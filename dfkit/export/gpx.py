@@ -2,9 +2,13 @@
 
 Options (:class:`~dfkit.export.WriteOptions`):
 
+* Waypoint names are unique (a receiver may keep only one of two waypoints with one name, and some compare
+  names without regard to case: common practice, no single source): a fix label that several tags use is
+  written ``<tag> <label>``; any name still taken gets a ``~2``, ``~3`` ... ending. Names never start or end
+  with a space.
 * ``gpx_name_length``: hand-held receivers show only the first few characters of a waypoint name (how many
-  depends on the model: common practice, no single source). With a length, each name is cut to it and made
-  unique with a ``~2``, ``~3`` ... ending; the full fix label and tag stay in the comment.
+  depends on the model: common practice, no single source). With a length, each label is cut to it (spaces at
+  the cut trimmed) and made unique the same way; the full fix label and tag stay in the comment.
 * ``gpx_tz``: write waypoint times in this time zone (ISO 8601 with its offset, e.g. ``+02:00``) instead of UTC.
 
 Any label becomes valid XML: characters XML 1.0 does not allow (control characters, lone surrogates) are
@@ -33,21 +37,37 @@ def xml_text(value) -> str:
                         text)
 
 
+def _unique(names: list[str], length: int | None) -> list[str]:
+    """Names made unique (compared without regard to case) with a ``~k`` ending, within ``length``."""
+    out, seen = [], set()
+    for name in names:
+        base = name.strip() or "fix"
+        cand, k = base, 2
+        while cand.casefold() in seen:
+            end = f"~{k}"
+            cand = (base[:length - len(end)] if length else base).rstrip() + end
+            k += 1
+        seen.add(cand.casefold())
+        out.append(cand)
+    return out
+
+
 def short_names(labels, length: int) -> list[str]:
-    """Labels cut to ``length`` characters and made unique with a ``~k`` ending."""
+    """Labels cut to ``length`` characters (spaces at the cut trimmed), made unique with a ``~k`` ending."""
     if length < 3:
         raise ValueError(f"gpx_name_length={length!r} must be at least 3 characters")
-    out, seen = [], set()
-    for lab in labels:
-        name = lab[:length]
-        k = 2
-        while name in seen:
-            end = f"~{k}"
-            name = lab[:length - len(end)] + end
-            k += 1
-        seen.add(name)
-        out.append(name)
-    return out
+    return _unique([lab.strip()[:length].rstrip() for lab in labels], length)
+
+
+def waypoint_names(labels, tags) -> list[str]:
+    """Unique waypoint names: the fix label, ``<tag> <label>`` where several tags use that label."""
+    labels = [lab.strip() for lab in labels]
+    tags = [t.strip() for t in tags]
+    tags_of: dict = {}
+    for lab, tag in zip(labels, tags):
+        tags_of.setdefault(lab, set()).add(tag)
+    return _unique([f"{tag} {lab}" if len(tags_of[lab]) > 1 and tag else lab
+                    for lab, tag in zip(labels, tags)], None)
 
 
 def _description(r) -> str:
@@ -68,7 +88,8 @@ def to_gpx(fixes: Fixes, options=None) -> str:
     tz = getattr(options, "gpx_tz", None)
     t = fixes.table[fixes.table["status"].isin(WITH_POSITION)]
     labels = [xml_text(v) for v in t["fix"]]
-    names = short_names(labels, int(name_length)) if name_length else labels
+    names = (short_names(labels, int(name_length)) if name_length else
+             waypoint_names(labels, [xml_text(v) for v in t["tag"]]))
     times = t["time"]
     if tz:
         times = times.dt.tz_convert(tz)

@@ -14,8 +14,9 @@ What the map shows (our own visual language):
 * a panel with a legend for every symbol, filters (kinds, tags, a time range, only fixes that are not ok),
   every fix with its status and reason (fixes without a position included), and the cautions;
 * an offline background (Natural Earth 1:110m land and borders, public domain), a latitude/longitude grid,
-  a scale bar, a coordinate readout and a distance/area measuring tool; optionally the user's own tiles
-  (embedded) and online tiles, which say so when they cannot load.
+  a scale bar, a coordinate readout (the pointer's position, or the map centre while no pointer is over the
+  map) and a distance/area measuring tool; optionally the user's own tiles (embedded; the map opens on them)
+  and online tiles, which say so when they cannot load.
 
 Everything the page runs is inlined from package data (:mod:`dfkit.maps.assets`): no request leaves the page.
 """
@@ -197,7 +198,9 @@ def fix_map(fixes: Fixes, *, error_polygons: bool = False, title: str = "dfkit f
     FixLayer(data, world_geojson() if world else None, spec, online).add_to(m)
     OfflineMeasure(position="topleft", primary_length_unit="meters", secondary_length_unit="kilometers",
                    primary_area_unit="hectares").add_to(m)
-    OfflineMousePosition(position="bottomleft", separator=", ", num_digits=6, prefix="lat, lon").add_to(m)
+    # empty until a pointer moves: the page shows the map centre there
+    OfflineMousePosition(position="bottomleft", separator=", ", num_digits=6, prefix="lat, lon",
+                         empty_string="").add_to(m)
     m.data = data
     m.notes = notes
     o = data["options"]

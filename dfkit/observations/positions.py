@@ -45,6 +45,7 @@ POSITION_COLUMNS = {
     "lat": ("lat", "latitude"),
     "lon": ("lon", "longitude", "long", "lng"),
     "utm_zone": ("utm_zone", "zone", "utm"),
+    "utm_hemisphere": ("utm_hemisphere", "hemisphere"),
     "easting": ("easting", "east", "utm_easting", "x"),
     "northing": ("northing", "north_m", "utm_northing", "y"),
     "mgrs": ("mgrs", "usng"),
@@ -205,7 +206,8 @@ class _State:
         self.n = n
         self.log = log
         self.cells = {role: cells.get(role, np.full(n, "", dtype=object))
-                      for role in ("lat", "lon", "utm_zone", "easting", "northing", "mgrs", "station", "position")}
+                      for role in ("lat", "lon", "utm_zone", "utm_hemisphere", "easting", "northing", "mgrs",
+                                   "station", "position")}
         self.cols = cols
         self.lat = np.full(n, np.nan)
         self.lon = np.full(n, np.nan)
@@ -325,6 +327,19 @@ def _split_combined(p: _State):
             z[i], e[i], nn[i] = zone_txt, toks[-2].rstrip("mE").rstrip(), toks[-1].rstrip("mN").rstrip()
 
 
+def _zone_and_hemisphere(p: _State):
+    """A zone number with its hemisphere in a column of its own (``utm_zone`` 56, ``utm_hemisphere`` south, as
+    ``dfkit fix --utm`` writes it): read as the zone '56 south'."""
+    z, h = p.cells["utm_zone"], p.cells["utm_hemisphere"]
+    bare = pd.Series(z, dtype=object).str.fullmatch(r"\s*\d{1,2}\s*").to_numpy(bool)
+    rows = np.flatnonzero((h != "") & bare)
+    full = {"N": "north", "S": "south"}
+    word = np.array([full.get(grids._WORDS.get(h[i].strip().lower(), ""), "") for i in rows], dtype=object)
+    p.log.reject(p.log.mask(rows[word == ""]), p.name("utm_hemisphere"),
+                 lambda ii: [f"'{h[i]}' is not a hemisphere: write north or south (N or S)" for i in ii])
+    z[rows[word != ""]] = [f"{z[i].strip()} {w}" for i, w in zip(rows, word) if w]
+
+
 def _utm(p: _State, decimal_comma, utm_letters, groups, track_ll):
     log = p.log
     if not ((p.cells["utm_zone"] != "") | (p.cells["easting"] != "") | (p.cells["northing"] != "")).any():
@@ -333,6 +348,7 @@ def _utm(p: _State, decimal_comma, utm_letters, groups, track_ll):
     for k in ("utm_zone", "easting", "northing"):
         p.cells[k] = p.cells[k].copy()
     _split_combined(p)
+    _zone_and_hemisphere(p)
     zc, ec, nc = p.cells["utm_zone"], p.cells["easting"], p.cells["northing"]
     cz, ce, cn = p.name("utm_zone"), p.name("easting"), p.name("northing")
     has = (zc != "") | (ec != "") | (nc != "")

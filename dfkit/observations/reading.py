@@ -100,7 +100,7 @@ def read_bearings(sheet, options: ReadOptions | None = None, **kwargs) -> Bearin
     time_c = column(t, "time")
     tm = parse_times(time_c, tz=opts.tz, date_format=opts.date_format, repeated_hour=opts.repeated_hour,
                      dates=column(t, "date") if "date" in t.columns else None)
-    log.reject(tm.error != "", "time", tm.error)
+    log.reject(tm.error != "", "time" if "time" in t.columns or "date" not in t.columns else "date", tm.error)
     notes.extend(tm.notes)
     times = tm.seconds
 

@@ -167,7 +167,8 @@ def _combine_dates(times, dates):
     join = has_d & clock
     out[join] = [f"{a} {b}" for a, b in zip(d[join], times[join])]
     no_clock = has_d & (times == "")
-    err[no_clock] = [f"'{x}' is a date with no time of day (the time column is empty)" for x in d[no_clock]]
+    err[no_clock] = [f"'{x}' is a date with no time of day: give the time in a time column, or date and "
+                     "time in one cell" for x in d[no_clock]]
     lone_clock = ~has_d & clock
     err[lone_clock] = [f"'{x}' is a time of day without a date (the date column is empty)" for x in times[lone_clock]]
     return out, err

@@ -174,7 +174,7 @@ class SeasonFilter:
         if self.max_area_m2 is not None:
             parts.append(f"region at most {self.max_area_m2:g} m²")
         if self.min_bearings is not None:
-            parts.append(f"at least {self.min_bearings} bearings")
+            parts.append(f"at least {self.min_bearings} bearing{'' if self.min_bearings == 1 else 's'}")
         if self.import_ids is not None:
             parts.append("import " + ", ".join(str(i) for i in self.import_ids))
         return "; ".join(parts) if parts else "all fixes"

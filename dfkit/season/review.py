@@ -50,7 +50,8 @@ class ReviewPage:
         """The complete page."""
         colours = tag_colours(self.table["tag"]) if len(self.table) else {}
         parts = [f"<h1>{_e(self.title)}</h1>",
-                 f"<p class='sel'>Fixes shown: {_e(self.selection)}; {len(self.table)} fixes.</p>",
+                 f"<p class='sel'>Fixes shown: {_e(self.selection)}; "
+                 f"{len(self.table)} {'fix' if len(self.table) == 1 else 'fixes'}.</p>",
                  f"<p class='caution'>{_e(CAUTION)}</p>",
                  "<h2>Per tag</h2>", self._summary_html(colours),
                  "<h2>Map</h2>", self._map_html(),

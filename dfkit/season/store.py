@@ -14,13 +14,18 @@ Layers (open the file in QGIS or with GDAL/OGR; see :mod:`dfkit.season.gpkg`):
     too, as ``kind`` 'likelihood'.
 ``bearings`` (station points)
     Every usable bearing with every column of the sheet, its residual and
-    weight, ``fix_fid``, ``row_key`` and ``content_key`` (see
+    weight, ``fix_fid``, ``row_key``, ``content_key`` and ``moment_key`` (see
     :mod:`dfkit.season.keys`).
 
 Tables: ``imports`` (file name, SHA-256 of its bytes, time, options, dfkit
 version, counts), ``problems`` (every rejected row and warning of each import,
 with line, column and reason), ``changes`` (fixes that differed from what was
-stored, and what was done), ``dfkit_meta`` (schema version, key scheme).
+stored, and what was done; and fixes added beside a stored fix of the same tag
+and times), ``dfkit_meta`` (schema version, key scheme, migrations).
+
+Store schema 2 (this version) identifies a bearing by its station and label too
+(key scheme 2); a schema-1 store is migrated when opened: its identity keys are
+computed again from the stored bearings, in one transaction.
 
 Each import is one SQLite transaction (``BEGIN IMMEDIATE`` ... ``COMMIT``, with
 the default rollback journal): a killed import leaves the store as it was
@@ -41,12 +46,14 @@ import pandas as pd
 from dfkit.locate import WITH_POSITION, Fixes
 from dfkit.problems import Problem
 from dfkit.season import gpkg
-from dfkit.season.keys import KEY_SCHEME, bearing_keys
+from dfkit.season.keys import KEY_SCHEME, OLD_KEY_SCHEMES, bearing_keys, identity_keys
 from dfkit.season.query import SeasonFilter
 from dfkit.season.rings import ellipse_rings, lonlat_parts_many
 
 #: Layout version of the store; a newer file is refused, an older one migrated (see :data:`_MIGRATIONS`).
-SCHEMA_VERSION = 1
+SCHEMA_VERSION = 2
+#: How long to wait for another program that is writing to the store [s].
+BUSY_TIMEOUT_S = 30.0
 #: Vertices of each stored ellipse ring.
 RING_VERTICES = 32
 
@@ -54,7 +61,8 @@ _STORE_FIX_COLUMNS = {"import_id": "INTEGER", "source": "TEXT", "fix_key": "TEXT
 #: Fix columns made with the table (they are indexed or filtered on); the others are added as they come.
 _CORE_FIX_COLUMNS = {"fix": "TEXT", "tag": "TEXT", "time": "DATETIME", "status": "TEXT", "n_used": "INTEGER",
                      "area_m2": "REAL"}
-_STORE_BEARING_COLUMNS = {"import_id": "INTEGER", "fix_fid": "INTEGER", "row_key": "BLOB", "content_key": "BLOB"}
+_STORE_BEARING_COLUMNS = {"import_id": "INTEGER", "fix_fid": "INTEGER", "row_key": "BLOB",
+                          "content_key": "BLOB", "moment_key": "BLOB"}
 _REGION_COLUMNS = {"fix_fid": "INTEGER", "import_id": "INTEGER", "tag": "TEXT", "fix": "TEXT", "time": "DATETIME",
                    "status": "TEXT", "kind": "TEXT", "level": "REAL", "area_m2": "REAL", "semi_major_m": "REAL",
                    "semi_minor_m": "REAL", "orientation_deg": "REAL", "bounded": "BOOLEAN"}
@@ -80,14 +88,49 @@ _INDEXES = {
     "regions_fix": "CREATE INDEX regions_fix ON regions (fix_fid)",
     "bearings_row_key": "CREATE UNIQUE INDEX bearings_row_key ON bearings (row_key)",
     "bearings_fix": "CREATE INDEX bearings_fix ON bearings (fix_fid)",
+    "bearings_moment_key": "CREATE INDEX bearings_moment_key ON bearings (moment_key)",
     "problems_import": "CREATE INDEX problems_import ON problems (import_id)",
 }
 #: An import adding more bearings than this (and than the store holds) rebuilds the indexes once after
 #: inserting instead of updating them row by row (inside the same transaction).
 _REBUILD_INDEXES_ABOVE = 50_000
 
-#: Schema migrations: version -> function(conn) that brings a store from that version to the next.
-_MIGRATIONS: dict = {}
+
+
+def _migrate_1_to_2(conn) -> str:
+    """Schema 1 -> 2: bearing identity gains the station and the label (key scheme 1 -> 2), and a moment key.
+
+    The keys are computed from the stored bearings (tag, time, observer, station, label, how they were
+    grouped), numbering repeated rows within each import as an import of that sheet would.
+    """
+    have = {c.lower(): c for c in gpkg.table_columns(conn, "bearings")}
+    want = [c for c in ("fid", "import_id", "tag", "time", "lat", "lon", "fix", "observer", "grouped_by")
+            if c in have]
+    df = pd.read_sql_query(f"SELECT {', '.join(gpkg.quote(have[c]) for c in want)} FROM bearings "
+                           "ORDER BY import_id, fid", conn)
+    df.columns = want
+    df["time"] = pd.to_datetime(df["time"], utc=True, format="ISO8601")
+    for col in ("tag", "fix", "observer", "grouped_by"):
+        if col in df:
+            df[col] = df[col].astype(object).where(df[col].notna(), "").astype(str)
+    row_key, moment_key = identity_keys(df, group=df["import_id"].to_numpy())
+    if len(set(row_key.tolist())) < len(row_key):      # repeated rows split over imports: number store-wide
+        row_key, moment_key = identity_keys(df)
+    conn.execute("DROP INDEX IF EXISTS bearings_row_key")
+    if "moment_key" not in have:
+        conn.execute("ALTER TABLE bearings ADD COLUMN moment_key BLOB")
+    conn.executemany("UPDATE bearings SET row_key = ?, moment_key = ? WHERE fid = ?",
+                     zip(row_key.tolist(), moment_key.tolist(), df["fid"].astype(int).tolist()))
+    conn.execute(_INDEXES["bearings_row_key"])
+    conn.execute(_INDEXES["bearings_moment_key"])
+    conn.execute("UPDATE dfkit_meta SET value = ? WHERE key = 'key_scheme'", (KEY_SCHEME,))
+    gpkg.touch(conn, "bearings")
+    return f"{len(df)} bearing keys computed again (key scheme {KEY_SCHEME})"
+
+
+#: Schema migrations: version -> function(conn) that brings a store from that version to the next and says
+#: what it did (recorded in ``dfkit_meta``).
+_MIGRATIONS: dict = {1: _migrate_1_to_2}
 
 
 class StoreError(ValueError):
@@ -100,7 +143,10 @@ class ImportReport:
 
     ``changed`` lists, for each fix that differs from what the store holds,
     (tag, fix label, what differs); those fixes were replaced when ``replaced``
-    is true, otherwise left as stored.
+    is true, otherwise left as stored. ``beside`` lists, for each added fix
+    that has bearings at the same tag, time and observer as a stored fix but at
+    other stations or under another label (two crews at once, or a corrected
+    position), (tag, fix label, which stored fix): both are kept.
     """
 
     import_id: int
@@ -117,6 +163,7 @@ class ImportReport:
     added_status: dict[str, int] = field(default_factory=dict)
     problems: list[Problem] = field(default_factory=list)
     notes: list[str] = field(default_factory=list)
+    beside: list[tuple[str, str, str]] = field(default_factory=list)
 
     @property
     def fixes_changed(self) -> int:
@@ -133,6 +180,8 @@ class SeasonStore:
     def __init__(self, conn: sqlite3.Connection, path: str):
         self.conn = conn
         self.path = path
+        #: What opening the file migrated: one line per schema step (empty when nothing was migrated).
+        self.migrated: list[str] = []
 
     # ------------------------------------------------------------ opening
 
@@ -154,10 +203,13 @@ class SeasonStore:
         if os.path.isdir(path):
             raise StoreError(f"'{path}' is a folder, not a season store")
         try:
-            conn = sqlite3.connect(path, isolation_level=None, timeout=30.0)
+            conn = sqlite3.connect(path, isolation_level=None, timeout=BUSY_TIMEOUT_S)
             conn.execute("PRAGMA foreign_keys = OFF")
             conn.execute("PRAGMA cache_size = -262144")     # 256 MiB: index inserts of a big import stay in memory
             tables = {r[0] for r in conn.execute("SELECT name FROM sqlite_master WHERE type = 'table'")}
+        except sqlite3.OperationalError as err:
+            raise StoreError(f"'{path}' could not be opened ({err}): is another program writing to "
+                             "it?") from None
         except sqlite3.DatabaseError as err:
             raise StoreError(f"'{path}' is not a season store (not an SQLite/GeoPackage file: {err})") from None
         store = cls(conn, path)
@@ -214,21 +266,37 @@ class SeasonStore:
         if version > SCHEMA_VERSION:
             raise StoreError(f"'{self.path}' was written by a newer dfkit (store schema {version}; this dfkit "
                              f"reads up to {SCHEMA_VERSION}): upgrade dfkit")
-        if meta.get("key_scheme") != KEY_SCHEME:
-            raise StoreError(f"'{self.path}' identifies bearings with key scheme {meta.get('key_scheme')!r}, "
+        scheme = meta.get("key_scheme")
+        if scheme != KEY_SCHEME and not (version < SCHEMA_VERSION and scheme in OLD_KEY_SCHEMES):
+            raise StoreError(f"'{self.path}' identifies bearings with key scheme {scheme!r}, "
                              f"this dfkit with {KEY_SCHEME!r}: imports could not be matched")
         while version < SCHEMA_VERSION:
             if version not in _MIGRATIONS:
                 raise StoreError(f"'{self.path}' has store schema {version}, which this dfkit cannot migrate")
-            c.execute("BEGIN IMMEDIATE")
             try:
-                _MIGRATIONS[version](c)
-                version += 1
-                c.execute("UPDATE dfkit_meta SET value = ? WHERE key = 'schema_version'", (str(version),))
+                c.execute("BEGIN IMMEDIATE")
+            except sqlite3.OperationalError as err:
+                raise StoreError(f"'{self.path}' has store schema {version}; this dfkit must migrate it to "
+                                 f"schema {SCHEMA_VERSION}, which writes to the file, and it cannot ({err}): "
+                                 "make the file writable, or use the dfkit that made it") from None
+            try:
+                what = _MIGRATIONS[version](c)
+                c.execute("UPDATE dfkit_meta SET value = ? WHERE key = 'schema_version'", (str(version + 1),))
+                line = (f"store schema {version} -> {version + 1} on {_now_text()} by dfkit {_version()}: "
+                        f"{what}")
+                c.execute("INSERT INTO dfkit_meta (key, value) VALUES (?, ?)",
+                          (f"migrated_{version}_to_{version + 1}", line))
+                gpkg.touch(c, "dfkit_meta")
                 c.execute("COMMIT")
+            except sqlite3.OperationalError as err:
+                c.execute("ROLLBACK")
+                raise StoreError(f"'{self.path}' has store schema {version} and could not be migrated to "
+                                 f"{version + 1} ({err}); the file is unchanged") from None
             except BaseException:
                 c.execute("ROLLBACK")
                 raise
+            self.migrated.append(line)
+            version += 1
 
     @property
     def schema_version(self) -> int:
@@ -268,7 +336,7 @@ class SeasonStore:
         table = fixes.table
         bt = fixes.bearings
         m = len(table)
-        row_key, content_key = bearing_keys(bt)
+        row_key, content_key, moment_key = bearing_keys(bt)
         fix_of = bt["fix_id"].to_numpy(np.int64) if len(bt) else np.zeros(0, np.int64)
         n_in = np.bincount(fix_of, minlength=m)
         empty_key = _empty_keys(table, file_name)
@@ -295,15 +363,20 @@ class SeasonStore:
             for i in changed:
                 report.changed.append((str(table["tag"].iat[i]), str(table["fix"].iat[i]), details[i]))
             add = verdict == "new"
+            gone = sorted({f for i in changed for f in touched[i]}) if replace else []
+            beside = self._beside(table, add, moment_key, fix_of, set(gone))
+            for i, (fids_b, detail) in beside.items():
+                report.beside.append((str(table["tag"].iat[i]), str(table["fix"].iat[i]), detail))
             if replace and len(changed):
-                gone = sorted({f for i in changed for f in touched[i]})
                 self._delete_fixes(gone)
                 add[changed] = True
             c.executemany("INSERT INTO changes (import_id, tag, fix, kind, stored_fix_fids, detail) VALUES "
                           "(?, ?, ?, ?, ?, ?)",
                           [(iid, r[0], r[1], "replaced" if replace else "kept_stored",
                             " ".join(str(f) for f in sorted(touched[i])), r[2])
-                           for i, r in zip(changed, report.changed)])
+                           for i, r in zip(changed, report.changed)]
+                          + [(iid, str(table["tag"].iat[i]), str(table["fix"].iat[i]), "added_beside",
+                              " ".join(str(f) for f in sorted(fb)), d) for i, (fb, d) in beside.items()])
             report.fixes_known = int((verdict == "same").sum())
             report.bearings_known = int(np.isin(fix_of, np.flatnonzero(verdict == "same")).sum())
             say(f"storing {int(add.sum())} fixes")
@@ -316,7 +389,7 @@ class SeasonStore:
             fids = self._insert_fixes(table, add, iid, file_name, own_key)
             self._insert_regions(table, add, fids, iid)
             self._insert_likelihood_regions(fixes, add, fids, iid)
-            self._insert_bearings(bt, keep_b, fids, fix_of, iid, row_key, content_key)
+            self._insert_bearings(bt, keep_b, fids, fix_of, iid, row_key, content_key, moment_key)
             if rebuild:
                 say("indexing")
                 for stmt in _INDEXES.values():
@@ -418,6 +491,33 @@ class SeasonStore:
                 parts.append("stored by import " + ", ".join(str(x) for x in imps))
             details[i] = "; ".join(parts)
         return verdict, touched, details
+
+    def _beside(self, table, new_fix, moment_key, fix_of, gone) -> dict:
+        """New fixes with bearings at the tag, time and observer of a stored bearing (but another station or
+        label): fix index -> (stored fix fids, what to tell)."""
+        sel = new_fix[fix_of] & np.array([k is not None for k in moment_key], bool) if len(fix_of) else []
+        if not np.any(sel) or self.conn.execute("SELECT 1 FROM bearings LIMIT 1").fetchone() is None:
+            return {}
+        stored: dict = {}
+        for key, fid in self._lookup("bearings", "moment_key", "fix_fid", sorted(set(moment_key[sel].tolist()))):
+            if fid not in gone:
+                stored.setdefault(key, set()).add(int(fid))
+        hits: dict = {}
+        for b in np.flatnonzero(sel):
+            fids = stored.get(moment_key[b])
+            if fids:
+                hits.setdefault(int(fix_of[b]), set()).update(fids)
+        if not hits:
+            return {}
+        names = {int(r[0]): r[1:] for r in self._lookup("fixes", "fid", "fix, import_id",
+                                                         sorted({f for v in hits.values() for f in v}))}
+        out = {}
+        for i, fids in sorted(hits.items()):
+            which = ", ".join(f"'{names[f][0]}' (import {names[f][1]})" for f in sorted(fids) if f in names)
+            out[i] = (fids, f"has bearings at the tag, time and observer of stored fix {which} but from "
+                            "other stations or under another label: both are kept (two crews at once; if "
+                            "this sheet corrects that fix's stations, the store now holds both)")
+        return out
 
     def _lookup(self, table, key_col, value_cols, keys, group=False):
         """Rows of ``table`` whose ``key_col`` is one of ``keys``: (key, values...) tuples."""
@@ -536,7 +636,7 @@ class SeasonStore:
         if len(b):
             self._grow_bounds("regions", b[:, [0, 2]].ravel(), b[:, [1, 3]].ravel())
 
-    def _insert_bearings(self, bt, keep, fids, fix_of, iid, row_key, content_key) -> None:
+    def _insert_bearings(self, bt, keep, fids, fix_of, iid, row_key, content_key, moment_key) -> None:
         if not keep.any():
             return
         b = bt[keep].reset_index(drop=True)
@@ -544,7 +644,8 @@ class SeasonStore:
         k = len(b)
         self._insert_rows("bearings", b, names,
                           {"import_id": [iid] * k, "fix_fid": fids[fix_of[keep]].tolist(),
-                           "row_key": list(row_key[keep]), "content_key": list(content_key[keep])},
+                           "row_key": list(row_key[keep]), "content_key": list(content_key[keep]),
+                           "moment_key": list(moment_key[keep])},
                           gpkg.point_blobs(b["lon"].to_numpy(float), b["lat"].to_numpy(float)))
         self._grow_bounds("bearings", b["lon"].to_numpy(float), b["lat"].to_numpy(float))
 
@@ -574,7 +675,8 @@ class SeasonStore:
     def bearings(self, fix_fids) -> pd.DataFrame:
         """The stored bearings of these fixes."""
         fix_fids = [int(f) for f in fix_fids]
-        cols = [c for c in gpkg.table_columns(self.conn, "bearings") if c not in ("geom", "row_key", "content_key")]
+        keys = ("geom", "row_key", "content_key", "moment_key")
+        cols = [c for c in gpkg.table_columns(self.conn, "bearings") if c not in keys]
         parts = []
         for s in range(0, len(fix_fids), 500):
             chunk = fix_fids[s:s + 500]

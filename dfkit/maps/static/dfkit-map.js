@@ -333,8 +333,8 @@
     F.status.forEach(function (s) { counts.set(s, (counts.get(s) || 0) + 1); });
     var parts = [];
     counts.forEach(function (n, s) { parts.push(n + " " + D.statuses[s]); });
-    root.appendChild(el("p", "dfk-counts", F.label.length + " fixes: " + parts.join(", ") +
-      (O.n_bearings ? "; " + O.n_bearings + " bearings" : "")));
+    root.appendChild(el("p", "dfk-counts", count(F.label.length, "fix", "fixes") + ": " + parts.join(", ") +
+      (O.n_bearings ? "; " + count(O.n_bearings, "bearing", "bearings") : "")));
     D.messages.forEach(function (m) { root.appendChild(el("p", "dfk-message", m)); });
 
     // controls
@@ -457,6 +457,27 @@
     root.appendChild(el("p", "caution", D.caution));
   }
 
+  function count(n, one, many) { return n + " " + (n === 1 ? one : many); }
+
+  /* ---------------------------------------------------------------- coordinate readout */
+
+  // The pointer readout (Leaflet.MousePosition) has nothing to show until a pointer moves over the map, and
+  // phones never move one: while no pointer is over the map it shows the map centre, kept up to date.
+  function centreReadout(map) {
+    var over = false;
+    function show() {
+      var box = map.getContainer().querySelector(".leaflet-control-mouseposition");
+      if (!box || over) return;
+      var c = map.getCenter().wrap();
+      box.textContent = "map centre: lat, lon " + L.Util.formatNum(c.lat, 6) + ", " + L.Util.formatNum(c.lng, 6);
+    }
+    map.on("mousemove", function () { over = true; });
+    map.on("mouseout", function () { over = false; show(); });
+    map.on("moveend", show);
+    setTimeout(show, 0);     // the readout control is added after this script
+    return show;
+  }
+
   /* ---------------------------------------------------------------- entry point */
 
   window.dfkitDraw = function (map, D, env) {
@@ -464,13 +485,22 @@
     map.createPane("dfkBackground").style.zIndex = 250;
     map.createPane("dfkGrid").style.zIndex = 350;
     map.getPane("dfkGrid").style.pointerEvents = "none";
-    var plain = L.layerGroup().addTo(map);
+    var plain = L.layerGroup();
     var bases = new Map(), overlays = new Map();
     bases.set("Plain background (offline)", plain);
-    if (env.userTiles) bases.set(env.userTiles.name + " (embedded tiles, offline)", embeddedTiles(env.userTiles));
+    // the map opens on the user's own tiles when they were given, else on the plain background
+    var first = plain;
+    if (env.userTiles) {
+      first = embeddedTiles(env.userTiles);
+      bases.set(env.userTiles.name + " (embedded tiles, offline)", first);
+    }
     if (env.online) bases.set(env.onlineName, env.online);
     var world = env.world ? addWorld(map, env.world, "dfkBackground") : null;
-    if (world) { world.addTo(map); overlays.set("World outline (Natural Earth 1:110m)", world); }
+    if (world) {
+      world.addTo(map);
+      world.setStyle({ fillOpacity: first === plain ? 1 : 0 });   // land drawn over tiles would hide them
+      overlays.set("World outline (Natural Earth 1:110m)", world);
+    }
     var grid = addGrid(map, "dfkGrid");
     grid.addTo(map);
     overlays.set("Latitude / longitude grid", grid);
@@ -507,11 +537,15 @@
     var layer = FixLayer(map, D, env);
     var b = layer.bounds();
     if (b.isValid()) map.fitBounds(b.pad(0.15), { maxZoom: 17 }); else map.setView([20, 0], 2);
+    first.addTo(map);          // once the map has a view: tiles are chosen for it
     var root = document.getElementById(env.panelId || "dfk-panel");
     if (root) buildPanel(root, D, layer, map);
     grid.redraw();
+    var readout = centreReadout(map);
     window.dfkit = { map: map, layer: layer, counts: layer.counts, notice: notice, bases: bases, overlays: overlays,
-                     ellipseRing: ellipseRing };
+                     ellipseRing: ellipseRing, base: function () { var on = null;
+                       bases.forEach(function (v, k) { if (map.hasLayer(v)) on = k; }); return on; },
+                     readout: readout };
     return layer;
   };
 })();

@@ -5,7 +5,7 @@ stations, the offline background, grid, scale, measuring tool and panel) and add
 :func:`dfkit.export.plan.plan_geojson` holds for the plan: the candidate spots (the best ones numbered), for a
 grid a surface of the expected area after the next bearing (darker is better), and without an estimate the
 range band along the bearing; the panel gets a section with the ranked spots, what the plan rests on and its
-caution. The layer's script is package data (``dfkit/_templates/plan_layer.html``); the plan goes in as
+caution. The layer's script is package data (``dfkit/maps/templates/plan_layer.html``); the plan goes in as
 script-safe JSON and user text reaches the page through ``textContent`` only.
 """
 
@@ -47,7 +47,7 @@ def _plan_layer_class():
         """Spots, surface, bands and the panel section of a plan, drawn after dfkit's fix layer."""
 
         _template = Template(
-            resources.files("dfkit._templates").joinpath("plan_layer.html").read_text(encoding="utf-8")
+            resources.files("dfkit.maps").joinpath("templates", "plan_layer.html").read_text(encoding="utf-8")
         )
 
         def __init__(self, data: dict):

@@ -1,1 +1,0 @@
-"""HTML templates shipped as package data (read with importlib.resources)."""
