@@ -39,14 +39,27 @@ import pyproj
 GEOD = pyproj.Geod(ellps="WGS84")
 
 
-def simulate(n_fix, n, sd, rng, *, crossing=None, outlier=False):
+#: Station layouts around the transmitter for three or more bearings: azimuths from it [°] and ranges [m].
+GEOMETRIES = {
+    "spread": "360/n apart +- 15°, 500-2000 m",
+    "random": "azimuths uniform at random, 500-3000 m",
+    "arc": "azimuths uniform within a 120° arc (observers along one side), 500-2000 m",
+}
+
+
+def simulate(n_fix, n, sd, rng, *, crossing=None, outlier=False, geometry="spread"):
     lat0 = rng.uniform(46.0, 48.0, n_fix)
     lon0 = rng.uniform(7.0, 10.0, n_fix)
+    ranges = (500, 3000) if geometry == "random" else (500, 2000)
     if crossing is not None:
         ang = rng.uniform(0, 360, (n_fix, 1)) + np.linspace(0, crossing, n)[None, :]
+    elif geometry == "random":
+        ang = rng.uniform(0, 360, (n_fix, n))
+    elif geometry == "arc":
+        ang = rng.uniform(0, 360, (n_fix, 1)) + rng.uniform(0, 120, (n_fix, n))
     else:
         ang = rng.uniform(0, 360, (n_fix, 1)) + np.arange(n)[None, :] * 360.0 / n + rng.normal(0, 15, (n_fix, n))
-    dist = rng.uniform(500, 2000, (n_fix, n))
+    dist = rng.uniform(*ranges, (n_fix, n))
     lon_s, lat_s, back = GEOD.fwd(np.repeat(lon0, n), np.repeat(lat0, n), ang.ravel(), dist.ravel())
     true_b = (np.asarray(back) % 360.0).reshape(n_fix, n)     # back azimuth at the station = towards the target
     obs = true_b + rng.normal(0, sd, (n_fix, n))
@@ -59,8 +72,9 @@ def simulate(n_fix, n, sd, rng, *, crossing=None, outlier=False):
                 bearing=obs % 360.0, tlat=lat0, tlon=lon0, bad=bad)
 
 
-def read(sc, sd, keep=None):
-    """The scenario as Bearings, through a sheet file like a user's (``keep`` masks bearings)."""
+def read(sc, sd, keep=None, decimals=6):
+    """The scenario as Bearings, through a sheet file like a user's (``keep`` masks bearings; bearings written
+    with ``decimals`` decimals, 0 for whole degrees as read off a compass)."""
     import dfkit
 
     n_fix, n = sc["lat"].shape
@@ -72,7 +86,8 @@ def read(sc, sd, keep=None):
             for i in range(n_fix):
                 for j in range(n):
                     if keep[i, j]:
-                        fh.write(f"F{i},{sc['lat'][i, j]:.9f},{sc['lon'][i, j]:.9f},{sc['bearing'][i, j]:.6f}"
+                        b = round(float(sc["bearing"][i, j]), decimals) % 360.0
+                        fh.write(f"F{i},{sc['lat'][i, j]:.9f},{sc['lon'][i, j]:.9f},{b:.{decimals}f}"
                                  + (f",{sd}" if sd else "") + "\n")
         return dfkit.read_bearings(path)
 
@@ -87,11 +102,11 @@ def errors_m(t, sc):
     return err
 
 
-def cell(method, known, n, sd, n_fix, rng, *, crossing=None, outlier=False):
+def cell(method, known, n, sd, n_fix, rng, *, crossing=None, outlier=False, geometry="spread", decimals=6):
     from dfkit.locate import WITH_POSITION, locate
 
-    sc = simulate(n_fix, n, sd, rng, crossing=crossing, outlier=outlier)
-    b = read(sc, sd if known else None)
+    sc = simulate(n_fix, n, sd, rng, crossing=crossing, outlier=outlier, geometry=geometry)
+    b = read(sc, sd if known else None, decimals=decimals)
     t0 = time.process_time()
     fx = locate(b, method=method)
     cpu = time.process_time() - t0
@@ -104,7 +119,8 @@ def cell(method, known, n, sd, n_fix, rng, *, crossing=None, outlier=False):
     in_ellipse = fx.contains(sc["tlat"], sc["tlon"], kind="ellipse")
     err = errors_m(t, sc)
     row = dict(method=method, sd="known" if known else "estimated", n=n,
-               data="outlier" if outlier else "clean", geometry="spread" if crossing is None else f"{crossing}°",
+               data=("outlier" if outlier else "clean") + (" (whole °)" if decimals == 0 else ""),
+               geometry=geometry if crossing is None else f"{crossing}°",
                region=in_region[has_region].mean() if has_region.any() else np.nan,
                ellipse=in_ellipse[has_ellipse].mean() if has_ellipse.any() else np.nan,
                ok=(status == "ok").mean(), no_region=1 - has_region.mean(),
@@ -114,7 +130,7 @@ def cell(method, known, n, sd, n_fix, rng, *, crossing=None, outlier=False):
     if outlier:
         keep = np.ones(sc["lat"].shape, bool)
         keep[np.arange(n_fix), sc["bad"]] = False
-        ref = locate(read(sc, sd if known else None, keep), method="mle").table
+        ref = locate(read(sc, sd if known else None, keep, decimals), method="mle").table
         row["oracle"] = np.nanmedian(errors_m(ref, sc))
     return row
 

@@ -171,3 +171,15 @@ DEFAULT_MAX_RANGE_M = 5000.0
 #: reports ranks and ratios but no areas). Common practice, no single source: hand-held Yagi bearings are
 #: typically good to a few degrees to about 10 degrees.
 NOMINAL_SD_DEG = 5.0
+
+# --------------------------------------------------------------------------- estimated SDs (field trial)
+
+#: An SD estimated from a fix's own residuals is never taken below this [°] (nor below the rounding SD of the
+#: step its bearings were written with: dfkit.locate.resolution); a given or calibrated SD is used as given.
+#: Common practice, no single source: bearings taken by hand are not better than about a degree (the smallest
+#: SD in the beacon trials cited at PLAUSIBLE_SD_DEG is 1.6°, Podruzny 1996 [abstract]). Checked by
+#: benchmarks/coverage.py (DEVELOPERS.md): with three bearings an estimate has one degree of freedom and falls
+#: below a tenth of the true SD in 8 % of fixes; those tiny regions were most of the misses among ok fixes
+#: (true SD 5°: ok fixes held the truth 85-94 % without the floor, 100 % with it; true SD 10°: 72-93 % and
+#: 95-98 %).
+MIN_ESTIMATED_SD_DEG = 1.0

@@ -6,7 +6,9 @@ candidate point x and v_i = 1/sigma_i^2 (times the robust weight),
 
 * SD known: R = { x : S(x) - S_min <= chi2_2(level) };
 * SD estimated from n >= 3 bearings (v_i the robust weights alone):
-  R = { x : S(x) <= S_min (1 + 2/(n - 2) F(2, n - 2; level)) }
+  R = { x : S(x) <= S_min (1 + 2/(n - 2) F(2, n - 2; level)) }, i.e.
+  S_min + 2 s^2 F(2, n - 2; level) with s^2 = S_min / (n - 2); s is never taken below
+  the fix's SD floor (:mod:`dfkit.locate.resolution`), which only widens the region
 
 (E. M. L. Beale, "Confidence regions in non-linear estimation", J. R. Statist.
 Soc. B 22(1), 41-88, 1960; D. M. Bates & D. G. Watts, *Nonlinear Regression
@@ -359,13 +361,13 @@ def _f2(level, dof):
         return (dof / 2.0) * np.expm1(-(2.0 / dof) * np.log1p(-level))
 
 
-def region_threshold(s_min, known, dof, level, known_dof=None):
+def region_threshold(s_min, known, dof, level, known_dof=None, sd_floor_rad=None):
     """The region's bound on S.
 
     S_min + chi2_2(level) with a known SD; S_min + 2 F(2, known_dof; level) when the known SD was itself
     measured with ``known_dof`` degrees of freedom (a calibration on a finite number of trials: then
-    (S - S_min)/2 over the SD's own chi-square is F-distributed); S_min (1 + 2 F(2, dof) / dof) when the SD
-    is estimated from the fix (dof = n - 2).
+    (S - S_min)/2 over the SD's own chi-square is F-distributed); S_min + 2 s^2 F(2, dof) when the SD
+    is estimated from the fix (dof = n - 2, s^2 = S_min / dof, but at least ``sd_floor_rad``^2 where given).
     """
     level = float(level)
     chi2 = -2.0 * np.log1p(-level)
@@ -377,12 +379,15 @@ def region_threshold(s_min, known, dof, level, known_dof=None):
         kd = np.asarray(known_dof, float)
         fin = np.isfinite(kd) & (kd > 0)
         known_bound = np.where(fin, 2.0 * _f2(level, np.where(fin, kd, 1.0)), chi2)
-    return np.where(known, s_min + known_bound, np.where(dof > 0, s_min * (1.0 + 2.0 * f / m), np.nan))
+    s2 = s_min / m
+    if sd_floor_rad is not None:
+        s2 = np.fmax(s2, np.asarray(sd_floor_rad, float) ** 2)
+    return np.where(known, s_min + known_bound, np.where(dof > 0, s_min + 2.0 * f * s2, np.nan))
 
 
 def likelihood_regions(fix_lat, fix_lon, g, station_lat, station_lon, bearing_deg, range_m, azimuth_from_fix_deg,
-                       residual_deg, weight, known, dof, level, *, known_dof=None, valid=None, n_rays=N_RAYS,
-                       chunk=5_000) -> LikelihoodRegions:
+                       residual_deg, weight, known, dof, level, *, known_dof=None, sd_floor_deg=None, valid=None,
+                       n_rays=N_RAYS, chunk=5_000) -> LikelihoodRegions:
     """Likelihood-ratio regions of many fixes (module docstring), vectorised.
 
     Parameters
@@ -407,6 +412,8 @@ def likelihood_regions(fix_lat, fix_lon, g, station_lat, station_lon, bearing_de
         Probability in (0, 1).
     known_dof : array_like, shape (m,), optional
         Degrees of freedom of a known SD measured on finitely many trials (inf or NaN: exact).
+    sd_floor_deg : array_like, shape (m,), optional
+        Smallest SD an estimated SD may take (:func:`region_threshold`; default 0). [°]
     valid : array_like of bool, shape (m,), optional
         Fixes to compute (default: all with a finite position and at least two weighted bearings).
     n_rays : int
@@ -427,6 +434,7 @@ def likelihood_regions(fix_lat, fix_lon, g, station_lat, station_lon, bearing_de
     known = np.asarray(known, bool)
     dof = np.asarray(dof)
     kdof = np.full(m, np.inf) if known_dof is None else np.asarray(known_dof, float)
+    floor = np.zeros(m) if sd_floor_deg is None else np.radians(np.broadcast_to(np.asarray(sd_floor_deg, float), (m,)))
     n_w = np.bincount(g, (weight > 0).astype(float), m)
     ok = np.isfinite(fix_lat) & np.isfinite(fix_lon) & (n_w >= 2) & (known | (dof > 0))
     if valid is not None:
@@ -454,7 +462,7 @@ def likelihood_regions(fix_lat, fix_lon, g, station_lat, station_lon, bearing_de
             fx = fixes_n[k0:k0 + step]
             idx = order[offsets[fx][:, None] + np.arange(n)[None, :]]       # (M, n)
             res = _march(d[idx] * np.sin(az[idx]), d[idx] * np.cos(az[idx]), r0[idx] + az[idx] + np.pi,
-                         weight[idx], known[fx], dof[fx], kdof[fx], float(level), psi, draw[fx], fix_lat[fx],
+                         weight[idx], known[fx], dof[fx], kdof[fx], floor[fx], float(level), psi, draw[fx], fix_lat[fx],
                          fix_lon[fx],
                          station_lat=slat_all[idx], station_lon=slon_all[idx], theta=theta_all[idx],
                          spread=spread[fx])
@@ -566,11 +574,11 @@ def _ray_f(phi, sx, sy, v, cx, cy, rho, ux, uy, T, derivative=True):
     return f, -2.0 * (vr * dbeta).sum(1)
 
 
-def _march(sx, sy, phi, v, known, dof, kdof, level, psi, draw, fix_lat, fix_lon, *, station_lat, station_lon,
+def _march(sx, sy, phi, v, known, dof, kdof, floor, level, psi, draw, fix_lat, fix_lon, *, station_lat, station_lon,
            theta, spread):
     M = phi.shape[0]
     cx, cy, s_min, j11, j12, j22 = _minimum(phi, sx, sy, v)
-    T = region_threshold(s_min, known, dof, level, kdof)
+    T = region_threshold(s_min, known, dof, level, kdof, floor)
     ux, uy = np.sin(psi)[None, :], np.cos(psi)[None, :]
     # the full Hessian where it is positive definite (a better first guess), else Gauss-Newton's
     h11, h12, h22 = _hessian(phi, sx, sy, v, cx, cy)
@@ -642,7 +650,7 @@ def _march(sx, sy, phi, v, known, dof, kdof, level, psi, draw, fix_lat, fix_lon,
     bounded = ~open_ray.any(axis=1) & (s_inf >= T)
     res = dict(centre_x=cx, centre_y=cy, radius_m=rho, bounded=bounded, star_shaped=star, s_min=s_min,
                threshold=T)
-    _refine_large(res, sx, sy, phi, v, psi, spread, known, dof, fix_lat, fix_lon, station_lat, station_lon, theta,
+    _refine_large(res, sx, sy, phi, v, psi, spread, known, dof, floor, fix_lat, fix_lon, station_lat, station_lon, theta,
                   R, open_ray)
     return res
 
@@ -661,13 +669,13 @@ def _last_crossing(phi, sx, sy, v, cx, cy, probe, R, ux, uy, T):
     return np.where(still_open, R, hi), still_open
 
 
-def _refine_large(res, sx, sy, phi, v, psi, spread, known, dof, fix_lat, fix_lon, station_lat, station_lon,
+def _refine_large(res, sx, sy, phi, v, psi, spread, known, dof, floor, fix_lat, fix_lon, station_lat, station_lon,
                   theta, R, open_ray):
     """Fixes spanning hundreds of kilometres: redo the edge with exact geodesic residuals (secant steps)."""
     rho = res["radius_m"]
     with np.errstate(invalid="ignore", divide="ignore"):
         sd = np.where(known, 1.0 / np.sqrt(np.maximum(v.max(axis=1), 1e-300)),
-                      np.sqrt(res["s_min"] / np.maximum(dof, 1)))
+                      np.fmax(np.sqrt(res["s_min"] / np.maximum(dof, 1)), floor))
         err = np.nanmax(np.where(open_ray, 0.0, rho), axis=1) * spread / _EARTH_R**2
         need = np.isfinite(rho).all(axis=1) & (err > PLANE_TOLERANCE * sd)
     if not need.any():

@@ -13,16 +13,22 @@ from geographiclib.geodesic import Geodesic
 WGS = Geodesic.WGS84
 
 
-def scenario(n_fix, n, sd_deg, rng, *, crossing_deg=None, outlier=False, ranges=(500.0, 2000.0)):
+def scenario(n_fix, n, sd_deg, rng, *, crossing_deg=None, outlier=False, ranges=(500.0, 2000.0), layout="spread"):
     """Arrays (n_fix, n) of station lat/lon and observed bearings, the truth, and the wild bearing's index.
 
     ``crossing_deg``: the stations' azimuths from the transmitter span this angle (for two
-    bearings, their crossing angle); otherwise they are spread around it.
+    bearings, their crossing angle); otherwise they are spread around it (``layout`` "spread",
+    360/n apart +- 15 degrees), uniform at random ("random"), or uniform within a 120-degree
+    arc ("arc": observers along one side).
     """
     lat0 = rng.uniform(46.0, 48.0, n_fix)
     lon0 = rng.uniform(7.0, 10.0, n_fix)
     if crossing_deg is not None:
         ang = rng.uniform(0, 360, (n_fix, 1)) + np.linspace(0, crossing_deg, n)[None, :]
+    elif layout == "random":
+        ang = rng.uniform(0, 360, (n_fix, n))
+    elif layout == "arc":
+        ang = rng.uniform(0, 360, (n_fix, 1)) + rng.uniform(0, 120, (n_fix, n))
     else:
         ang = rng.uniform(0, 360, (n_fix, 1)) + np.arange(n)[None, :] * 360.0 / n + rng.normal(0, 15, (n_fix, n))
     dist = rng.uniform(*ranges, (n_fix, n))

@@ -112,10 +112,24 @@ def test_two_bearing_regions_with_a_known_sd(write_sheet, crossing):
 
 
 def test_three_bearings_with_an_estimated_sd(write_sheet):
-    # one degree of freedom: F(2, 1) regions are wide, often open, and still hold their 95 %
+    # one degree of freedom: F(2, 1) regions are wide, often open, and hold at least their 95 % (more, where an
+    # estimate below the plausibility floor is raised to it)
     sc, fixes = run(write_sheet, 1500, 3, 5.0, 501, "mle", False)
     r = rates(sc, fixes)
-    assert 0.93 <= r["region"] <= 0.97
+    assert r["region"] >= 0.945
+
+
+@pytest.mark.parametrize("sd, seed", [(5.0, 503), (10.0, 504)])
+def test_ok_three_bearing_fixes_with_an_estimated_sd_keep_their_promise(write_sheet, sd, seed):
+    # Calling a fix ok only when its region is bounded selects the fixes whose SD estimate (one degree of
+    # freedom) came out small: in a linear model the ok fixes hold the truth 1 - 0.05 / P(bounded) of the time
+    # (the misses sit among the smallest estimates), 91-92 % with observers in random directions 500-3000 m
+    # away and a 5 degree SD, 87 % with 10 degrees, before estimates were kept above a plausible floor.
+    sc, fixes = run(write_sheet, 1500, 3, sd, seed, "mle", False, layout="random", ranges=(500.0, 3000.0))
+    r = rates(sc, fixes)
+    ok = fixes.table["status"] == "ok"
+    assert ok.sum() >= 400                       # enough ok fixes for the rate to mean something (SE <= 1.1 %)
+    assert r["ok_region"] >= 0.945
 
 
 def test_clean_fixes_rarely_lose_a_good_bearing(write_sheet):

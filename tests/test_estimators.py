@@ -175,6 +175,31 @@ def test_estimated_sd_uses_n_minus_2_degrees_of_freedom():
     assert not s.sd_known[0] and s.dof[0] == 2
 
 
+def test_an_estimated_sd_is_never_below_its_floor():
+    # Bearings that meet almost exactly: the estimate from the residuals is tiny, the SD used is the floor, and
+    # the covariance is the inverse information (sum g g^T)^-1 (Stansfield 1947) scaled by the floor squared.
+    st, _ = _plane_example()
+    target = (WGS.Direct(0.0, 0.0, 30.0, 900.0)["lat2"], WGS.Direct(0.0, 0.0, 30.0, 900.0)["lon2"])
+    b = np.array([WGS.Inverse(a, c, *target)["azi1"] % 360 for a, c in st]) + [0.001, -0.002, 0.0, 0.001]
+    free = one_fix(st, b, method="mle")
+    held = one_fix(st, b, method="mle", sd_floor_deg=np.full(4, 0.5))
+    assert free.sd_deg[0] < 0.01 and held.sd_deg[0] == pytest.approx(0.5)
+    assert held.sd_estimate_deg[0] == pytest.approx(free.sd_deg[0])
+    assert held.sd_floor_deg[0] == 0.5 and held.lat[0] == free.lat[0] and held.lon[0] == free.lon[0]
+    g = []
+    for (a, c) in st:
+        inv = WGS.Inverse(held.lat[0], held.lon[0], a, c)
+        t = np.radians(inv["azi1"])
+        g.append([np.cos(t) / inv["s12"], -np.sin(t) / inv["s12"]])     # d(predicted bearing)/d(east, north)
+    g = np.array(g)
+    assert held.cov_en[0] == pytest.approx(np.linalg.inv(g.T @ g) * np.radians(0.5) ** 2, rel=1e-4)
+    # a floor below the estimate changes nothing; a known SD is used as given, whatever the floor
+    loose = one_fix(st, b + [1.0, -2.0, 0.5, 1.5], method="mle", sd_floor_deg=np.full(4, 0.5))
+    assert loose.sd_deg[0] == pytest.approx(loose.sd_estimate_deg[0]) and loose.sd_deg[0] > 0.5
+    known = one_fix(st, b, method="mle", sd_deg=np.full(4, 0.2), sd_floor_deg=np.full(4, 0.5))
+    assert known.sd_deg[0] == pytest.approx(0.2) and known.sd_floor_deg[0] == 0
+
+
 def test_robust_andrews_ignores_a_wild_bearing_and_huber_reduces_it():
     st, b = _plane_example()
     d5 = WGS.Direct(0.0, 0.0, np.degrees(np.arctan2(800.0, -600.0)), 1000.0)     # 800 m east, 600 m south

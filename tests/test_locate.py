@@ -32,7 +32,7 @@ def status_of(fixes, label):
 
 
 def test_each_kind_of_bad_geometry_is_named(write_sheet):
-    rows = good_rows("ok")
+    rows = good_rows("ok", sd=2)     # (an SD estimated from three bearings is said in the reason of an ok fix)
     rows += [("few", 47.0, 15.0, 45, "", "")]
     rows += [("spot", 47.0, 15.0, 45, "", ""), ("spot", 47.0, 15.0, 50, "", ""), ("spot", 47.0, 15.0, 55, "", "")]
     rows += [("par", 47.0, 15.0, 0, "", ""), ("par", 47.0, 15.02, 0, "", "")]
@@ -278,3 +278,102 @@ def test_two_answers_that_fit_equally_are_called_ambiguous(write_sheet):
     # the same bearings without D have one answer, T: ok
     alone = locate(read_bearings(write_sheet(sheet_of(rows[:3]), "three.csv")), method="andrews")
     assert status_of(alone, "X")[0] == "ok"
+
+
+def test_the_written_step_of_a_bearing_is_its_last_decimal():
+    from dfkit.locate.resolution import SHEPPARD, written_step
+
+    # counted by hand: 23 -> 1, 276.5 -> 0.1, 223.82 -> 0.01, 47.1234 -> 1e-4; whole multiples of 5 and 10;
+    # 1610 mils -> 10 mils of 360/6400 degrees; 97 grads -> 1 grad of 0.9 degrees
+    got = written_step([23.0, 276.5, 223.82, 47.1234, 35.0, 280.0, 0.1 + 0.2, 1610.0, 97.0],
+                       ["deg"] * 7 + ["mil", "grad"])
+    assert got == pytest.approx([1, 0.1, 0.01, 1e-4, 5, 10, 0.1, 10 * 360 / 6400, 0.9], rel=1e-12)
+    assert np.isnan(written_step([1 / 3])[0])          # no decimal step up to 6 decimals: taken as written
+    assert SHEPPARD == pytest.approx(1 / np.sqrt(12))  # a uniform rounding error's SD per step (Sheppard 1898)
+
+
+def test_an_estimated_sd_is_never_below_the_step_bearings_were_written_with(write_sheet):
+    # Whole-degree bearings that happen to meet in one point (here read to the nearest 10 degrees): their
+    # residuals give an SD of a few thousandths of a degree and, before, an ok region of about a square metre.
+    # A bearing written to a step h carries a rounding error of SD h / sqrt(12) (Sheppard 1898), so no SD
+    # estimated from them can be smaller.
+    st = [(47.8473227, 15.1531455), (47.8581248, 15.1757928), (47.8740193, 15.1479690), (47.8740193, 15.1479690)]
+    rows = [("tens", *s, b, "", "") for s, b in zip(st, (20, 280, 150, 150))]
+    # the same stations and bearings written to 4 decimals that meet: the plausibility floor (1 degree)
+    tgt = (47.86, 15.16)
+    rows += [("fine", *s, round(az(s, tgt), 4), "", "") for s in st[:3]]
+    fixes = locate(read_bearings(write_sheet(sheet_of(rows))))
+    status, reason, row = status_of(fixes, "tens")
+    assert row["sd_deg"] == pytest.approx(10 / np.sqrt(12), rel=1e-3)
+    assert "steps of 10°" in reason and "rounding error of SD 2.9°" in reason
+    status, reason, row = status_of(fixes, "fine")
+    assert row["sd_deg"] == pytest.approx(1.0) and "plausibly" in reason and "--calibration" in reason
+    # the region is sized with that SD: its F(2, 1) bound reached with geographiclib residuals at its far edge
+    from scipy import stats
+
+    T = 2 * stats.f.ppf(0.95, 2, 1) * np.radians(1.0) ** 2
+    L = fixes.likelihood
+    assert L.threshold[1] == pytest.approx(L.s_min[1] + T, rel=1e-9)
+    assert row["semi_minor_m"] > 100
+
+
+def test_a_repeated_row_does_not_make_an_sd_of_zero(write_sheet):
+    # One bearing entered twice: the two copies agree exactly, and three bearings then "fit" with an SD of 0.
+    a, b = (47.8473227, 15.1531455), (47.8581248, 15.1757928)
+    rows = [("dup", *a, "23.0", "", ""), ("dup", *b, "276.0", "", ""), ("dup", *b, "276.0", "", "")]
+    status, reason, row = status_of(locate(read_bearings(write_sheet(sheet_of(rows)))), "dup")
+    assert row["sd_deg"] >= 1.0 and row["semi_minor_m"] > 50 and row["region_area_m2"] > 1e4
+    assert "one degree of freedom" in reason
+
+
+def _from_truth(target, az_from_target, dist):
+    """A station ``dist`` m from the target along the azimuth ``az_from_target``, and the geodesic bearing from it
+    to the target (geographiclib)."""
+    d = WGS.Direct(target[0], target[1], az_from_target, dist)
+    return (d["lat2"], d["lon2"]), (d["azi2"] + 180.0) % 360.0
+
+
+def _sheet(write_sheet, label, stations, bearings, sds):
+    rows = [(label, round(s[0], 7), round(s[1], 7), round(b % 360, 3), sd, "") for s, b, sd in zip(stations, bearings, sds)]
+    return read_bearings(write_sheet(sheet_of(rows)))
+
+
+def test_a_reversal_hint_is_given_only_when_it_is_the_clear_explanation(write_sheet):
+    # Three bearings: line 2 is 2 degrees off, line 3 a 12-degree outlier (SD 3.3), line 4 from 520 m. Turning
+    # line 2 by 180 degrees makes the three agree, but so does leaving line 3 out: the bearings cannot tell
+    # which, and entering line 2 turned would move the fix 1.7 km from the truth. dfkit must say both.
+    tgt = (46.512, 7.431)
+    made = [_from_truth(tgt, az_, d) for az_, d in ((50.0, 1300.0), (205.0, 2200.0), (210.0, 520.0))]
+    stations = [s for s, _ in made]
+    b = [made[0][1] - 2.0, made[1][1] + 12.0, made[2][1] + 1.0]
+    status, reason, _ = status_of(locate(_sheet(write_sheet, "R", stations, b, (3.3, 3.3, 6.0))), "R")
+    assert "looks reversed" not in reason
+    assert "either line 2 is reversed by 180°" in reason and "line 3 is wild" in reason
+    # the alternative it names is the truth's side: the fit without line 3, where the other two lines cross
+    lat, lon = (float(v) for v in reason.split("without it the others meet at ")[1].split(",")[:2])
+    assert WGS.Inverse(lat, lon, *tgt)["s12"] < 200
+
+
+def test_clean_bearings_beside_an_observer_are_not_called_reversed(write_sheet):
+    # The transmitter is 600 m south of observer A; the far observers' bearings (2.4 and 5.4 degrees off, SD 5)
+    # cross 300 m beyond A, so A's bearing turned by 180 degrees fits, but so do all three as read with the
+    # transmitter near A. No bearing is reversed: dfkit must not say one is.
+    tgt = (47.0, 15.0)
+    a, b_a = _from_truth(tgt, 0.0, 600.0)
+    beyond = WGS.Direct(*tgt, 0.0, 900.0)
+    far = [_from_truth(tgt, az_, d)[0] for az_, d in ((190.0, 2800.0), (165.0, 1600.0))]
+    b = [b_a + 1.0] + [WGS.Inverse(s[0], s[1], beyond["lat2"], beyond["lon2"])["azi1"] for s in far]
+    status, reason, _ = status_of(locate(_sheet(write_sheet, "N", [a] + far, b, (5, 5, 5))), "N")
+    assert "looks reversed" not in reason
+    assert "either line 2 is reversed" in reason and "close to the observer at line 2" in reason
+
+
+@pytest.mark.parametrize("sd", [5, ""])
+def test_a_reversed_bearing_among_three_is_still_named(write_sheet, sd):
+    # A clear reversal (the transmitter well inside the triangle of observers): turning it explains the
+    # bearings far better than anything else, SD known or estimated.
+    tgt = (47.0, 15.0)
+    made = [_from_truth(tgt, az_, d) for az_, d in ((10.0, 1500.0), (130.0, 1800.0), (250.0, 1200.0))]
+    b = [made[0][1] + 1.5, made[1][1] + 180.0 - 2.0, made[2][1] + 1.0]
+    status, reason, _ = status_of(locate(_sheet(write_sheet, "V", [s for s, _ in made], b, (sd,) * 3)), "V")
+    assert status != "ok" and "line 3 looks reversed by 180°" in reason and "either" not in reason

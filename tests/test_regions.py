@@ -148,6 +148,34 @@ def test_threshold_matches_scipy_quantiles():
     assert got == pytest.approx(ref, rel=1e-9)
 
 
+def test_threshold_with_an_sd_floor_matches_scipy_quantiles():
+    # an estimated SD raised to its floor f: S_min + 2 F(2, dof; level) max(S_min / dof, f^2)
+    s_min = np.array([0.0, 1e-6, 2.0, 2.0])
+    known = np.array([False, False, False, True])
+    dof = np.array([1, 2, 1, 1])
+    floor = np.radians([1.0, 1.0, 1.0, 1.0])
+    got = regions.region_threshold(s_min, known, dof, 0.95, sd_floor_rad=floor)
+    f2 = np.radians(1.0) ** 2
+    ref = [2 * stats.f.ppf(0.95, 2, 1) * f2, 1e-6 + 2 * stats.f.ppf(0.95, 2, 2) * f2,
+           2.0 * (1 + 2 * stats.f.ppf(0.95, 2, 1)), 2.0 + stats.chi2.ppf(0.95, 2)]
+    assert got == pytest.approx(ref, rel=1e-9)
+
+
+def test_bearings_that_meet_exactly_still_have_a_region():
+    # Three bearings through one point leave S_min = 0: without a floor the region would be that point.
+    st, _, _ = CASES["three, known SD"]
+    b = bearings_to(st, TGT, [0.0, 0.0, 0.0]) % 360
+    s, L = solve_and_regions(st, b, sd_floor_deg=np.full(1, 1.0))
+    assert L.s_min[0] < 1e-10 and L.bounded[0]
+    # the edge lies where S reaches 2 F(2, 1) (1 degree)^2, with geographiclib residuals
+    T = 2 * stats.f.ppf(0.95, 2, 1) * np.radians(1.0) ** 2
+    assert L.threshold[0] == pytest.approx(T, rel=1e-6)
+    lat, lon = L.ring(0)
+    vals = [S_exact(st, b, np.ones(3), p) for p in list(zip(lat[:-1], lon[:-1]))[::4]]
+    assert vals == pytest.approx([T] * len(vals), rel=2e-3)
+    assert L.contains(*TGT)[0]
+
+
 def test_level_is_checked():
     with pytest.raises(ValueError, match=r"level=0 must be a probability"):
         regions.likelihood_regions([0.0], [0.0], [], [], [], [], [], [], [], [], [True], [0], 0)

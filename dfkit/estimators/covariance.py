@@ -23,6 +23,8 @@ would be useless with 3 bearings).
 With the SD unknown, sigma^2 is estimated from the fix's residuals with n_used - 2
 degrees of freedom, sum over the bearings kept (W_i > 0) of r_i^2 / (n_used - 2) (not
 weighted: down-weighting would shrink it in clean data), and regions use F(2, n_used - 2).
+The estimate is never taken below the fix's floor (:mod:`dfkit.locate.resolution`: the rounding
+of bearings written to a coarse step, and the plausibility limit of hand-held bearings).
 """
 
 from __future__ import annotations
@@ -42,7 +44,7 @@ def _stack(c11, c12, c22):
     return np.stack([np.stack([c11, c12], -1), np.stack([c12, c22], -1)], -2)
 
 
-def position_covariance(family, g, m, gx, gy, d, r, weight, known_b, known_g, sd_rad):
+def position_covariance(family, g, m, gx, gy, d, r, weight, known_b, known_g, sd_rad, floor_rad=None):
     """Covariance of each fix, the SD behind it and the residual degrees of freedom.
 
     Parameters
@@ -61,15 +63,20 @@ def position_covariance(family, g, m, gx, gy, d, r, weight, known_b, known_g, sd
         Whether the SD is known, per bearing and per fix.
     sd_rad : ndarray
         Known bearing SD (NaN where unknown). [rad]
+    floor_rad : ndarray, shape (m,), optional
+        Smallest SD an estimate may take, per fix (default 0). [rad]
 
     Returns
     -------
     cov : ndarray, shape (m, 2, 2)
         East/north covariance [m^2]; NaN where it cannot be sized.
     sd_rad_fix : ndarray
-        The fix's bearing SD: RMS of the known SDs, or the estimate. [rad]
+        The fix's bearing SD: RMS of the known SDs, or the estimate raised to its floor. [rad]
     dof : ndarray of int
         n_used - 2.
+    sd_estimate : ndarray
+        The estimate from the residuals alone, before the floor (NaN where the SD is known or
+        dof < 1). [rad]
     """
     used = weight > 0
     n_used = gsum(g, used.astype(float), m).astype(int)
@@ -78,6 +85,9 @@ def position_covariance(family, g, m, gx, gy, d, r, weight, known_b, known_g, sd
     with np.errstate(divide="ignore", invalid="ignore"):
         s2_est = gsum(g, np.where(used, r * r, 0.0), m) / dof
     s2_est = np.where(dof > 0, s2_est, np.nan)
+    s2_raw = s2_est
+    if floor_rad is not None:
+        s2_est = np.fmax(s2_est, np.where(dof > 0, np.asarray(floor_rad, float) ** 2, np.nan))
     inv_var = np.where(known_b, 1.0 / np.where(known_b, sd_rad, 1.0) ** 2, 1.0)
     if family == "lsq":
         v = d * d
@@ -101,4 +111,4 @@ def position_covariance(family, g, m, gx, gy, d, r, weight, known_b, known_g, sd
     sd_fix = np.where(known_g, sd_known, np.sqrt(s2_est))
     bad = ~(np.isfinite(cov).all(axis=(1, 2)))
     cov[bad] = np.nan
-    return cov, sd_fix, dof
+    return cov, sd_fix, dof, np.where(known_g, np.nan, np.sqrt(s2_raw))

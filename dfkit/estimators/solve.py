@@ -112,15 +112,17 @@ class Solution:
     scale_deg: np.ndarray = None
     azimuth_from_fix_deg: np.ndarray = None
     region_weight: np.ndarray = None
+    sd_floor_deg: np.ndarray = None
+    sd_estimate_deg: np.ndarray = None
     method: str = "mle"
 
     def ending_name(self, i) -> str:
         return ENDINGS[int(self.ending[i])]
 
 
-def _check_inputs(lat, lon, theta, g, m, sd):
+def _check_inputs(lat, lon, theta, g, m, sd, floor):
     n = len(lat)
-    for name, v in (("lon", lon), ("bearing_deg", theta), ("group", g), ("sd_deg", sd)):
+    for name, v in (("lon", lon), ("bearing_deg", theta), ("group", g), ("sd_deg", sd), ("sd_floor_deg", floor)):
         if len(v) != n:
             raise ValueError(f"{name}= has {len(v)} values but lat= has {n}")
     for name, v in (("lat", lat), ("lon", lon), ("bearing_deg", theta)):
@@ -134,9 +136,12 @@ def _check_inputs(lat, lon, theta, g, m, sd):
     if bad_sd.any():
         raise ValueError(f"sd_deg= must be positive and finite (at least {MIN_SD_DEG:g} degrees), or NaN where "
                          f"unknown (found {sd[bad_sd][:3]})")
+    bad_floor = ~((floor >= 0) & (floor < 90))
+    if bad_floor.any():
+        raise ValueError(f"sd_floor_deg= must be at least 0 and below 90 degrees (found {floor[bad_floor][:3]})")
 
 
-def solve(lat, lon, bearing_deg, group, n_groups, sd_deg=None, *, method="mle", robust_c=None,
+def solve(lat, lon, bearing_deg, group, n_groups, sd_deg=None, *, method="mle", robust_c=None, sd_floor_deg=None,
           tol_m=1e-4, max_iter=100, max_outer=30) -> Solution:
     """Solve many fixes at once.
 
@@ -158,6 +163,11 @@ def solve(lat, lon, bearing_deg, group, n_groups, sd_deg=None, *, method="mle", 
     robust_c : float, optional
         Tuning constant of the Huber and Andrews weights (default: the method's,
         :data:`dfkit.estimators.robust.ROBUST_C`).
+    sd_floor_deg : array_like, shape (N,), optional
+        Smallest SD an estimate from a fix's residuals may take; a fix takes the smallest
+        floor of its bearings (default 0: none). It bounds the estimated SD behind the
+        covariance and the scale of the robust weights; a known SD is used as given.
+        (:mod:`dfkit.locate.resolution` gives each bearing its fix's floor.) [°]
     tol_m : float
         Convergence: the estimate moved less than this in the last step. [m]
     max_iter : int
@@ -181,9 +191,13 @@ def solve(lat, lon, bearing_deg, group, n_groups, sd_deg=None, *, method="mle", 
     m = int(n_groups)
     N = len(lat)
     sd = np.full(N, np.nan) if sd_deg is None else np.broadcast_to(np.asarray(sd_deg, float), (N,)).copy()
-    _check_inputs(lat, lon, theta, g, m, sd)
+    floor_b = np.zeros(N) if sd_floor_deg is None else np.broadcast_to(np.asarray(sd_floor_deg, float), (N,)).copy()
+    _check_inputs(lat, lon, theta, g, m, sd, floor_b)
 
     counts = np.bincount(g, minlength=m)
+    floor_g = np.full(m, np.inf)
+    np.minimum.at(floor_g, g, floor_b)
+    floor_g = np.where(np.isfinite(floor_g), floor_g, 0.0)
     known_g = (gsum(g, np.isfinite(sd).astype(float), m) == counts) & (counts > 0)
     known_b = known_g[g]
     sd_rad = np.radians(np.where(known_b, sd, np.nan))
@@ -225,7 +239,8 @@ def solve(lat, lon, bearing_deg, group, n_groups, sd_deg=None, *, method="mle", 
             unknown = base & ~known_g
             if unknown.any():
                 r_start = residuals(geo0.sp, geo0.cp, geo0.sx, geo0.sy, np.nan_to_num(x0[g, 0]), np.nan_to_num(y0[g, 0]))[0]
-                s_b[:] = np.where(known_b, s_b, start_scale(r_start, g, m, counts)[g])
+                # never below the floor: a bearing is not wild for missing by its own rounding
+                s_b[:] = np.where(known_b, s_b, np.fmax(start_scale(r_start, g, m, counts), np.radians(floor_g))[g])
     else:
         starter = None
 
@@ -234,7 +249,8 @@ def solve(lat, lon, bearing_deg, group, n_groups, sd_deg=None, *, method="mle", 
     iterations = np.zeros(m, np.int64)
     geo = geo0.take(slice(None))
     verified = np.zeros(m, bool)
-    ctx = dict(spec=spec, c=c, g=g, m=m, lat=lat, lon=lon, theta=theta, w=w, s_b=s_b, r_run=r_run,
+    ctx = dict(spec=spec, c=c, g=g, m=m, lat=lat, lon=lon, theta=theta, floor_b=floor_b, floor_g=floor_g, w=w,
+               s_b=s_b, r_run=r_run,
                spread=spread, centre_lat=centre_lat, centre_lon=centre_lon, geo0=geo0, tol_m=tol_m,
                max_iter=max_iter, max_outer=max_outer)
     state = dict(P_lat=P_lat, P_lon=P_lon, ending=ending, iterations=iterations, geo=geo, verified=verified)
@@ -352,7 +368,7 @@ def _settle_unknown_sd(ctx, state, which, counts, n_starts, x0, y0, more):
     if check.any():
         var = subsets.variants(g, counts, [], np.flatnonzero(check))
         alt = solve(ctx["lat"][var.member], ctx["lon"][var.member], ctx["theta"][var.member], var.owner, len(var),
-                    None, method="mle")
+                    None, method="mle", sd_floor_deg=ctx["floor_b"][var.member])
         implausible[var.fix] = ~_plausible(alt)
     undo = check & ~implausible
     force = (which & ~state["verified"]) | (ver & ~has_drop & (_spread(geo.r, g, m, counts) > limit))
@@ -389,8 +405,8 @@ def _drop_the_worst(ctx, state, fixes, counts):
     g, m = ctx["g"], ctx["m"]
     var = subsets.variants(g, counts, fixes)
     alt = solve(ctx["lat"][var.member], ctx["lon"][var.member], ctx["theta"][var.member], var.owner, len(var),
-                None, method="mle")
-    score = np.where(_plausible(alt), alt.sd_deg, np.inf)
+                None, method="mle", sd_floor_deg=ctx["floor_b"][var.member])
+    score = np.where(_plausible(alt), alt.sd_estimate_deg, np.inf)
     best = best_in_group(var.fix, score, m)
     chosen = best[fixes]
     chosen = chosen[(chosen >= 0)]
@@ -539,7 +555,9 @@ def _finish(ctx, counts, geo, P_lat, P_lon, ending, verified, known_b, known_g, 
     if spec.robust:
         ending[collapsed] = COLLAPSED
         verified = verified & ~collapsed
-    cov, sd_fix, dof = position_covariance(spec.family, g, m, gx, gy, d, r, weight, known_b, known_g, sd_rad)
+    floor_g = ctx["floor_g"]
+    cov, sd_fix, dof, sd_est = position_covariance(spec.family, g, m, gx, gy, d, r, weight, known_b, known_g, sd_rad,
+                                                   np.radians(floor_g))
     sd_fix_deg = np.degrees(sd_fix)
     dirs = geo.az                                     # line of sight at the fix (doubled angles ignore its sense)
     c2 = gsum(g, used * np.cos(2 * dirs), m)
@@ -560,5 +578,6 @@ def _finish(ctx, counts, geo, P_lat, P_lon, ending, verified, known_b, known_g, 
         kappa=kappa_from_sd(sd_fix_deg), iterations=iterations, converged=verified, parallel=parallel,
         behind=behind, crossing_deg=crossing, residual_deg=np.degrees(r), weight=weight, range_m=d,
         ending=ending, scale_deg=scale, azimuth_from_fix_deg=np.degrees(geo.az) % 360.0,
-        region_weight=region_weight, method=spec.name,
+        region_weight=region_weight, sd_floor_deg=np.where(known_g, 0.0, floor_g), sd_estimate_deg=np.degrees(sd_est),
+        method=spec.name,
     )

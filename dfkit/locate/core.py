@@ -13,6 +13,7 @@ import pandas as pd
 from dfkit import estimators, geodesy, regions
 from dfkit.locate.fixes import FIX_COLUMNS, WITH_POSITION, Fixes
 from dfkit.locate.hints import one_bearing_hints
+from dfkit.locate.resolution import fix_steps, sd_floors
 from dfkit.locate.rivals import find_rivals
 from dfkit.locate.status import FixFacts, classify, consistency
 
@@ -71,8 +72,12 @@ def locate(bearings: Bearings, *, method: str = "mle", level: float = 0.95, wind
     sd = b["sd"].to_numpy(float)
     lines = b["line"].to_numpy() if len(b) else np.zeros(0, int)
 
+    # the smallest SD an estimate from a fix's residuals may take: its bearings' rounding, a plausibility limit
+    step = fix_steps(b, g, m)
+    floor = sd_floors(step)[g] if len(b) else np.zeros(0)
+
     say(f"solving {m} fixes from {len(b)} bearings ({method})")
-    sol = estimators.solve(lat, lon, theta, g, m, sd, method=method, robust_c=robust_c)
+    sol = estimators.solve(lat, lon, theta, g, m, sd, method=method, robust_c=robust_c, sd_floor_deg=floor)
     # an SD measured on a finite number of beacon trials (per-bearing sd_dof, dfkit.calibration) widens the
     # regions: F(2, sd_dof) instead of chi-square
     cal_dof = np.full(m, np.inf)
@@ -85,7 +90,7 @@ def locate(bearings: Bearings, *, method: str = "mle", level: float = 0.95, wind
         say("likelihood regions")
         lik = regions.likelihood_regions(sol.lat, sol.lon, g, lat, lon, theta, sol.range_m, sol.azimuth_from_fix_deg,
                                          sol.residual_deg, sol.region_weight, sol.sd_known, sol.dof, level,
-                                         known_dof=cal_dof, valid=sol.converged)
+                                         known_dof=cal_dof, sd_floor_deg=sol.sd_floor_deg, valid=sol.converged)
 
     say("statuses")
     clat, clon = geodesy.group_centroid(lat, lon, g, m)
@@ -99,17 +104,18 @@ def locate(bearings: Bearings, *, method: str = "mle", level: float = 0.95, wind
     facts = FixFacts(sol=sol, g=g, counts=counts, spread_m=spread, span_min=span_min, gap_min=gap_min,
                      window_min=window_min,
                      lines=lines, rejected=fix_index["rejected_lines"].tolist(), ellipse_area=ell.area_m2,
-                     ellipse_minor=ell.semi_minor_m, regions=lik, level=float(level), hints={})
+                     ellipse_minor=ell.semi_minor_m, regions=lik, level=float(level), hints={}, step_deg=step)
     status, reasons = classify(facts)
     # a fix only mildly inconsistent (1 clean fix in 100 is) is not worth a search for the one bad line
     _, p = consistency(sol, g, m, lik)
     with np.errstate(invalid="ignore"):
         mild = (status == "inconsistent") & (p >= HINT_P)
-    hints = one_bearing_hints(lat, lon, theta, sd, g, counts, lines, np.where(mild, "", status), method, robust_c)
+    hints = one_bearing_hints(lat, lon, theta, sd, g, counts, lines, np.where(mild, "", status), method, robust_c,
+                              floor)
     if hints:
         facts.hints = hints
         status, reasons = classify(facts)
-    rivals = find_rivals(lat, lon, theta, sd, g, counts, sol, lik, level, status == "ok", cal_dof)
+    rivals = find_rivals(lat, lon, theta, sd, g, counts, sol, lik, level, status == "ok", cal_dof, floor)
     if rivals:
         facts.rivals = rivals
         status, reasons = classify(facts)

@@ -82,7 +82,7 @@ class Rival:
     sd_deg: float
 
 
-def find_rivals(lat, lon, theta, sd, g, counts, sol, lik, level, examine, known_dof=None):
+def find_rivals(lat, lon, theta, sd, g, counts, sol, lik, level, examine, known_dof=None, sd_floor=None):
     """Competing explanations of the fixes ``examine`` (see the module docstring).
 
     Parameters
@@ -101,6 +101,8 @@ def find_rivals(lat, lon, theta, sd, g, counts, sol, lik, level, examine, known_
         Fixes to look at (those that would be ``ok``).
     known_dof : ndarray, optional
         Degrees of freedom of a measured known SD, per fix (inf: exact).
+    sd_floor : ndarray, shape (N,), optional
+        Each bearing's SD floor [°] (:mod:`dfkit.locate.resolution`).
 
     Returns
     -------
@@ -126,7 +128,8 @@ def find_rivals(lat, lon, theta, sd, g, counts, sol, lik, level, examine, known_
     if not k:
         return {}
     v_fix, v_out, mo, mb = var.fix, var.left_out, var.owner, var.member
-    alt = estimators.solve(lat[mb], lon[mb], theta[mb], mo, k, sd[mb], method="mle")
+    fl = None if sd_floor is None else np.asarray(sd_floor, float)[mb]
+    alt = estimators.solve(lat[mb], lon[mb], theta[mb], mo, k, sd[mb], method="mle", sd_floor_deg=fl)
     _, p = consistency(alt, mo, k)
     with np.errstate(invalid="ignore"):
         plausible = alt.converged & ~alt.behind & np.where(
@@ -144,7 +147,8 @@ def find_rivals(lat, lon, theta, sd, g, counts, sol, lik, level, examine, known_
     S_fix_min = np.bincount(g, sol.region_weight * r_fix * r_fix, m)
     if lik is not None:
         S_fix_min = np.where(lik.has_region & np.isfinite(lik.s_min), np.minimum(lik.s_min, S_fix_min), S_fix_min)
-    T_fix = region_threshold(S_fix_min, sol.sd_known, sol.dof, level, kdof)[v_fix]
+    fix_floor = _floor_rad(sol)
+    T_fix = region_threshold(S_fix_min, sol.sd_known, sol.dof, level, kdof, fix_floor)[v_fix]
     # The alternative's S at the fix against the alternative's bound: at the centre of the fix's region (its
     # minimum of S), which is the fix's answer for Lenth's fit but not for an inefficient one (least squares).
     r_centre = r_fix
@@ -161,16 +165,18 @@ def find_rivals(lat, lon, theta, sd, g, counts, sol, lik, level, examine, known_
     S_alt_at_fix = np.bincount(mo, alt.region_weight * r_centre[mb] ** 2, k)
     r_alt = np.radians(alt.residual_deg)
     S_alt_min = np.bincount(mo, alt.region_weight * r_alt * r_alt, k)
-    T_alt = region_threshold(S_alt_min, alt.sd_known, alt.dof, level, kdof[v_fix])
+    T_alt = region_threshold(S_alt_min, alt.sd_known, alt.dof, level, kdof[v_fix], _floor_rad(alt))
     # An alternative with as many bearings as the fix, or one more, competes only when the fix's explanation is
     # not favoured by EVIDENCE_RATIO or more: -2 log of the likelihood ratio (estimated SD: of the profile
-    # likelihoods, n log(S / dof)) below 2 log EVIDENCE_RATIO. One with fewer bearings always has the better
-    # likelihood; it competes through the conflict test alone.
+    # likelihoods, n log(S / dof), the SD no smaller than its floor) below 2 log EVIDENCE_RATIO. One with fewer
+    # bearings always has the better likelihood; it competes through the conflict test alone.
     n_alt = np.bincount(mo, minlength=k)
     with np.errstate(invalid="ignore", divide="ignore"):
         S_fix_used = np.bincount(g, np.where(used, sol.region_weight * r_fix * r_fix, 0.0), m)[v_fix]
+        f2_alt, f2_fix = _floor_rad(alt) ** 2, (fix_floor ** 2)[v_fix]
         lr = np.where(alt.sd_known, S_alt_min - S_fix_used,
-                      n_alt * np.log(S_alt_min / (n_alt - 2)) - n_used[v_fix] * np.log(S_fix_used / (n_used[v_fix] - 2)))
+                      n_alt * np.log(np.fmax(S_alt_min / (n_alt - 2), f2_alt))
+                      - n_used[v_fix] * np.log(np.fmax(S_fix_used / (n_used[v_fix] - 2), f2_fix)))
         close = ~(lr >= 2.0 * np.log(EVIDENCE_RATIO)) | (n_alt < n_used[v_fix])
         same = (n_alt == n_used[v_fix]) | ~sol.sd_known[v_fix]
 
@@ -213,6 +219,11 @@ SCREEN_LINEAR = 0.3
 SCREEN_LEVERAGE = 0.8
 
 
+def _floor_rad(sol):
+    """Each fix's SD floor [rad] (0 where the solution has none)."""
+    return np.radians(np.zeros(len(sol.lat)) if sol.sd_floor_deg is None else sol.sd_floor_deg)
+
+
 def _could_conflict(g, m, sol, used, level, kdof):
     """Per bearing: whether the fix without it could be an incompatible alternative (see find_rivals).
 
@@ -236,6 +247,6 @@ def _could_conflict(g, m, sol, used, level, kdof):
         gap_alt = region_threshold(np.zeros(m), np.ones(m, bool), sol.dof, level, kdof)
         full = np.where(used, sol.region_weight / np.where(used, sol.weight, 1.0), 0.0) * r * r
         known = (np.bincount(g, full, m)[g] - full) > gap_alt[g]
-        gap_fix = (region_threshold(S, sol.sd_known, sol.dof, level, kdof) - S)[g]
+        gap_fix = (region_threshold(S, sol.sd_known, sol.dof, level, kdof, _floor_rad(sol)) - S)[g]
         linear = (v * r * r / (1.0 - h) ** 2 > SCREEN_LINEAR * (gap_fix + v * r * r)) | (h > SCREEN_LEVERAGE)
     return np.where(sol.sd_known[g], known, linear)

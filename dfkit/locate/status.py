@@ -13,6 +13,8 @@ from dataclasses import dataclass
 import numpy as np
 
 from dfkit.estimators import ENDINGS
+from dfkit.locate.fixes import WITH_POSITION
+from dfkit.locate.resolution import SHEPPARD
 from dfkit.policy import (ELLIPSE_MISMATCH, FIX_SPAN_WINDOWS, INCONSISTENT_P, NEAR_OBSERVER, ONE_SPOT_M, PLAUSIBLE_SD_DEG, REVERSED_DEG,
                           SHALLOW_CROSSING_DEG, WILD_SD)
 from dfkit.regions import chi2_sf
@@ -39,6 +41,7 @@ class FixFacts:
     level: float
     hints: dict                 # fix index -> list of extra reason texts
     rivals: dict = None         # fix index -> dfkit.locate.rivals.Rival (competing explanations)
+    step_deg: np.ndarray = None  # the step each fix's bearings were written to [°] (dfkit.locate.resolution)
 
 
 def _lines_text(lines):
@@ -110,6 +113,8 @@ def classify(f: FixFacts):
         attention = (~star | near_obs | long_span | (f.counts < 2) | (f.spread_m < ONE_SPOT_M) | (ending != _E["optimum"])
                      | sol.behind | ~sol.converged | inconsistent | ~bounded | ~has_region | no_cov
                      | (sol.crossing_deg < SHALLOW_CROSSING_DEG) | notable)
+    floored = _floored(sol)
+    attention |= floored
     attention |= np.array([len(r) > 0 for r in f.rejected], bool)
     attention |= np.isin(np.arange(m), list(f.hints))
     rivals = f.rivals or {}
@@ -220,8 +225,8 @@ def classify(f: FixFacts):
         if n >= 2 and sol.converged[i]:
             hinted = " ".join(f.hints.get(i, []))
             for j in sel[reversed_b[sel]][:3]:
-                if f"line {f.lines[j]} turned by 180°" in hinted:
-                    continue             # the hint says it, with the bearing that fits
+                if "180°" in hinted:
+                    continue             # the hint weighed turning a line against the other explanations
                 reasons[i].append(f"line {f.lines[j]} looks reversed by 180°: it misses by {res[j]:+.0f}° "
                                   "(read from the back of the antenna?); check it and enter it turned by 180°")
             shown = set(sel[reversed_b[sel]][:3].tolist())
@@ -238,6 +243,8 @@ def classify(f: FixFacts):
                 else:
                     reasons[i].append(f"line {f.lines[j]} down-weighted to {w[j]:.2f}")
         reasons[i].extend(f.hints.get(i, []))
+        if floored[i]:
+            reasons[i].append(_floor_text(sol, i, f.step_deg))
         if regions is not None and has_region[i] and not regions.star_shaped[i]:
             reasons[i].append("the region is not star-shaped about its centre: a ray leaves it and comes back; "
                               "it is drawn as its outer envelope")
@@ -249,7 +256,39 @@ def classify(f: FixFacts):
             reasons[i].append("rejected input line" + ("s " if len(rej) > 1 else " ")
                               + ", ".join(str(x) for x in rej[:8]) + (" ..." if len(rej) > 8 else ""))
         reasons[i] = [r for r in reasons[i] if r]
+    # an SD estimated from three bearings: the region allows for it, but a measured SD gives a far smaller one
+    with np.errstate(invalid="ignore"):
+        one_dof = ~sol.sd_known & (sol.dof == 1) & np.isin(status, WITH_POSITION) & (status != "no_region")
+    for i in np.flatnonzero(one_dof):
+        reasons[i].append(ONE_DOF_TEXT)
     return status, reasons
+
+
+#: Said of every fix whose SD is estimated from its own three bearings.
+ONE_DOF_TEXT = ("its SD is estimated from its own three bearings (one degree of freedom), so the region is sized with "
+                "an F(2, 1) scale that allows for how little they tell; an SD measured on beacon trials (dfkit "
+                "calibrate, then --calibration) gives a region about eight times narrower for the same SD")
+
+
+def _floored(sol):
+    """Fixes whose estimated SD was raised to its floor (:mod:`dfkit.locate.resolution`)."""
+    if sol.sd_floor_deg is None or sol.sd_estimate_deg is None:
+        return np.zeros(len(sol.lat), bool)
+    with np.errstate(invalid="ignore"):
+        return ~sol.sd_known & (sol.dof >= 1) & (sol.sd_estimate_deg < sol.sd_floor_deg)
+
+
+def _floor_text(sol, i, step_deg):
+    """Why a fix's region uses a larger SD than its residuals give."""
+    est, floor = sol.sd_estimate_deg[i], sol.sd_floor_deg[i]
+    step = np.nan if step_deg is None else step_deg[i]
+    said = f"the bearings agree more closely (estimated SD {est:.2g}°) than "
+    if np.isfinite(step) and step * SHEPPARD >= floor * (1 - 1e-9):
+        written = "whole degrees" if abs(step - 1.0) < 1e-12 else f"steps of {step:g}°"
+        return (said + f"they were written: to {written} a bearing carries a rounding error of SD {floor:.2g}° "
+                f"(the step over √12), and the region uses that")
+    return (said + f"bearings taken by hand plausibly are; the region uses {floor:g}° (if yours are that good, "
+            "give their SD: sd column, --sd or --calibration)")
 
 
 def _rival_text(rv, lines, sol, i):
