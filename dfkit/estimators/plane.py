@@ -56,6 +56,11 @@ class PlaneGeometry:
         """Rows ``sel`` (a view for a slice, a copy for a mask or indices)."""
         return PlaneGeometry(*(getattr(self, k)[sel] for k in self._FIELDS))
 
+    def share(self, other: "PlaneGeometry") -> None:
+        """Take all of ``other``'s rows by holding its arrays (``put`` of every row, without the copy)."""
+        for k in self._FIELDS:
+            setattr(self, k, getattr(other, k))
+
     def copy(self) -> "PlaneGeometry":
         return PlaneGeometry(*(getattr(self, k).copy() for k in self._FIELDS))
 

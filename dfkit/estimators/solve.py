@@ -458,21 +458,26 @@ def _run(ctx, todo, x0, y0, into=None):
         sel = act[g]
         fixes = np.flatnonzero(act)
         cg = np.searchsorted(fixes, g[sel])
+        # every bearing active (the common first rounds): the arrays themselves, not copies of all their rows
+        rows = slice(None) if sel.all() else sel
         if outer:
-            gs = geometry(lat[sel], lon[sel], theta[sel], P_lat[g[sel]], P_lon[g[sel]])
-            last.put(sel, gs)
+            gs = geometry(lat[rows], lon[rows], theta[rows], P_lat[g[rows]], P_lon[g[rows]])
+            if rows is sel:
+                last.put(sel, gs)
+            else:
+                last.share(gs)                  # gs is only read from here on
             sx0 = np.zeros(len(fixes))
             sy0 = np.zeros(len(fixes))
         else:
-            gs = ctx["geo0"].take(sel)
+            gs = ctx["geo0"].take(rows)          # read only by the planar iterations
             sx0, sy0 = x0[fixes], y0[fixes]
         if spec.kind == "closed":
             px, py, end, its = iterate.closed_form(gs, cg, len(fixes), r_run[fixes])
         elif spec.kind == "fixed_point":
-            px, py, end, its = iterate.fixed_point(gs, cg, len(fixes), sx0, sy0, w[sel], tol_in,
+            px, py, end, its = iterate.fixed_point(gs, cg, len(fixes), sx0, sy0, w[rows], tol_in,
                                                    ctx["max_iter"], r_run[fixes])
         else:
-            px, py, end, its = iterate.optimise(spec.terms, spec.objective, gs, cg, len(fixes), sx0, sy0, w[sel], s_b[sel], c,
+            px, py, end, its = iterate.optimise(spec.terms, spec.objective, gs, cg, len(fixes), sx0, sy0, w[rows], s_b[rows], c,
                                                 tol_in, ctx["max_iter"], r_run[fixes])
         iterations[fixes] += its
         bad = end != iterate.SETTLED
