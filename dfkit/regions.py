@@ -643,12 +643,17 @@ def _march(sx, sy, phi, v, known, dof, kdof, floor, level, psi, draw, fix_lat, f
     k = np.tile(np.arange(K), len(first))
     Rf, rhof, lof, hif, ff = R.ravel(), rho.ravel(), lo.ravel(), hi.ravel(), f_all.ravel()
     gapf = np.broadcast_to(gap, R.shape).ravel()
-    for _ in range(60):
+    for rnd in range(60):
         if not len(j):
             break
         flat = j * K + k
         r_l, lo_l, hi_l, R_l = rhof[flat], lof[flat], hif[flat], Rf[flat]
-        f, df = rays.f(j, k, r_l)
+        if rnd == 0:            # whole fixes: (fixes, bearings, rays) arrays, no gathering of single rays
+            f, df = _ray_f(_rows(trig, first), sx[first], sy[first], v[first], cx[first], cy[first],
+                           r_l.reshape(-1, K), ux, uy, T[first])
+            f, df = f.ravel(), df.ravel()
+        else:
+            f, df = rays.f(j, k, r_l)
         ff[flat] = f
         neg = f < 0
         lo_l = np.where(neg, np.maximum(lo_l, r_l), lo_l)
@@ -684,7 +689,8 @@ def _march(sx, sy, phi, v, known, dof, kdof, floor, level, psi, draw, fix_lat, f
     c = (v * trig[1]).sum(1)
     s = (v * trig[0]).sum(1)
     dirs = np.concatenate([np.broadcast_to(psi, (M, len(psi))), np.arctan2(s, c)[:, None]], axis=1)
-    r_inf = _wrap(phi[:, :, None] - dirs[:, None, :])
+    r_inf = phi[:, :, None] - dirs[:, None, :]
+    r_inf -= _TWO_PI * np.rint(r_inf * (1.0 / _TWO_PI))        # wrapped to [-pi, pi] (only its square is used)
     s_inf = (v[:, :, None] * r_inf * r_inf).sum(1).min(axis=1)
     bounded = ~open_ray.any(axis=1) & (s_inf >= T)
     res = dict(centre_x=cx, centre_y=cy, radius_m=rho, bounded=bounded, star_shaped=star, s_min=s_min,
