@@ -318,9 +318,12 @@ def test_an_estimated_sd_is_never_below_the_step_bearings_were_written_with(writ
 
 
 def test_a_repeated_row_does_not_make_an_sd_of_zero(write_sheet):
-    # One bearing entered twice: the two copies agree exactly, and three bearings then "fit" with an SD of 0.
+    # One bearing entered twice: the two copies agree exactly, and three bearings then "fit" with an SD of 0. (An
+    # exact repeat is left out by the reader; here the copy's position differs by a centimetre, so the estimator
+    # must stand on its own.)
     a, b = (47.8473227, 15.1531455), (47.8581248, 15.1757928)
-    rows = [("dup", *a, "23.0", "", ""), ("dup", *b, "276.0", "", ""), ("dup", *b, "276.0", "", "")]
+    b2 = (b[0] + 1e-7, b[1])
+    rows = [("dup", *a, "23.0", "", ""), ("dup", *b, "276.0", "", ""), ("dup", *b2, "276.0", "", "")]
     status, reason, row = status_of(locate(read_bearings(write_sheet(sheet_of(rows)))), "dup")
     assert row["sd_deg"] >= 1.0 and row["semi_minor_m"] > 50 and row["region_area_m2"] > 1e4
     assert "one degree of freedom" in reason
