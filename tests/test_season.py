@@ -23,6 +23,7 @@ from dfkit.season import SeasonFilter, SeasonStore, StoreError, add_sheet
 from dfkit.season.keys import bearing_keys
 from dfkit.season.rings import ellipse_rings
 
+from .browser import needs_chromium
 from .conftest import ROOT, SAMPLES
 
 GEOD = pyproj.Geod(ellps="WGS84")
@@ -659,13 +660,11 @@ def test_season_sample_fixes_hold_the_truth_at_the_stated_rate():
     assert len(hits) > 120 and np.mean(hits) >= 0.85
 
 
+@needs_chromium
 def test_review_page_map_and_time_filter_in_a_browser_offline(tmp_path):
-    import shutil
-
-    chromium = shutil.which("chromium") or shutil.which("chromium-browser")
-    if chromium is None:
-        pytest.skip("Debian's chromium is not installed (apt-get install chromium); .ci/run installs it")
     from playwright.sync_api import sync_playwright
+
+    from .browser import OfflinePage
 
     store = tmp_path / "s.gpkg"
     add(store, SAMPLES / "season_2026_05.csv")
@@ -673,23 +672,9 @@ def test_review_page_map_and_time_filter_in_a_browser_offline(tmp_path):
     assert main(["season", "show", str(store), "-o", str(out)]) in (0, 1)
     with SeasonStore.open(store) as s:
         located = int(s.fixes(SeasonFilter(statuses=WITH_POSITION)).shape[0])
-    outside, errors = [], []
     with sync_playwright() as pw:
-        browser = pw.chromium.launch(executable_path=chromium, args=[
-            "--headless", "--no-sandbox", "--disable-gpu", "--disable-background-networking",
-            "--disable-component-update", "--disable-sync", "--no-first-run", "--disable-quic"])
-        page = browser.new_page(viewport={"width": 1100, "height": 900})
-
-        def route(r):
-            if r.request.url.startswith(("file:", "data:", "about:")):
-                return r.continue_()
-            outside.append(r.request.url)
-            return r.abort()
-
-        page.route("**/*", route)
-        page.on("console", lambda m: errors.append(m.text) if m.type == "error" else None)
-        page.on("pageerror", lambda e: errors.append(str(e)))
-        page.goto(out.as_uri())
+        p = OfflinePage(pw, out, viewport=(1100, 900))
+        page = p.page
         frame = page.frame_locator("iframe.season-map")
         frame.locator("path.dfk-track").first.wait_for(state="attached", timeout=20000)
         inner = next(f for f in page.frames if f != page.main_frame)
@@ -701,8 +686,8 @@ def test_review_page_map_and_time_filter_in_a_browser_offline(tmp_path):
         half_vertices = inner.evaluate(
             "window.dfkitTracks.group.getLayers().reduce((n, l) => n + l.getLatLngs().length, 0)")
         page.screenshot(path=str(tmp_path / "review.png"), full_page=True)
-        browser.close()
-    assert outside == [] and errors == []
+        p.close()
+    assert p.outside == [] and p.errors == []
     assert shown == located                     # every located fix is on the map
     assert tracks == 3 and vertices == located  # one track per tag through every located fix
     assert 0 < half < shown                     # the time filter keeps the first half of the season
