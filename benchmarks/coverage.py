@@ -2,6 +2,7 @@
 
     .venv/bin/python benchmarks/coverage.py [--fixes 2000] [--sd 5] [--seed 1] [--methods mle,andrews]
                                             [--n 2,3,4,5,6] [--only clean|outlier] [--out table.md]
+                                            [--geometries spread,random,arc] [--decimals 6]
 
 For every method x SD known/estimated x n = 2..6 bearings x clean/one outlier x crossing
 geometry it simulates ``--fixes`` fixes with a known truth (stations 500-2000 m from the
@@ -157,8 +158,15 @@ def main(argv=None):
     ap.add_argument("--n", default="2,3,4,5,6")
     ap.add_argument("--sd-kinds", default="known,estimated")
     ap.add_argument("--only", choices=["clean", "outlier"], default=None)
+    ap.add_argument("--geometries", default="spread",
+                    help="station layouts for n >= 3, comma-separated: " + "; ".join(f"{k}: {v}" for k, v in GEOMETRIES.items()))
+    ap.add_argument("--decimals", type=int, default=6,
+                    help="decimals the bearings are written with (0: whole degrees, as read off a compass)")
     ap.add_argument("--out", default=None, help="also write the table to this file")
     a = ap.parse_args(argv)
+    for g in a.geometries.split(","):
+        if g not in GEOMETRIES:
+            ap.error(f"--geometries: unknown layout {g!r} (choose from {', '.join(GEOMETRIES)})")
     rows = []
     t0 = time.process_time()
     for method in a.methods.split(","):
@@ -169,13 +177,14 @@ def main(argv=None):
                 if n == 2:
                     cells = [dict(crossing=c) for c in (30, 90, 150)] if a.only != "outlier" else []
                 else:
-                    if a.only != "outlier":
-                        cells.append(dict())
-                    if a.only != "clean":
-                        cells.append(dict(outlier=True))
+                    for g in a.geometries.split(","):
+                        if a.only != "outlier":
+                            cells.append(dict(geometry=g))
+                        if a.only != "clean":
+                            cells.append(dict(outlier=True, geometry=g))
                 for kw in cells:
                     rng = np.random.default_rng([a.seed, n, len(rows)])
-                    r = cell(method, known, n, a.sd, a.fixes, rng, **kw)
+                    r = cell(method, known, n, a.sd, a.fixes, rng, decimals=a.decimals, **kw)
                     rows.append(r)
                     print(fmt([r]).splitlines()[-1], file=sys.stderr, flush=True)
     table = fmt(rows)

@@ -256,11 +256,15 @@ def classify(f: FixFacts):
             reasons[i].append("rejected input line" + ("s " if len(rej) > 1 else " ")
                               + ", ".join(str(x) for x in rej[:8]) + (" ..." if len(rej) > 8 else ""))
         reasons[i] = [r for r in reasons[i] if r]
-    # an SD estimated from three bearings: the region allows for it, but a measured SD gives a far smaller one
+    # an SD estimated from three or four bearings: the region allows for it, but a measured SD gives a far smaller
+    # one, and with four the bounded regions (the ok fixes) are the ones whose estimate came out small
     with np.errstate(invalid="ignore"):
-        one_dof = ~sol.sd_known & (sol.dof == 1) & np.isin(status, WITH_POSITION) & (status != "no_region")
+        few_dof = ~sol.sd_known & np.isin(status, WITH_POSITION) & (status != "no_region")
+        one_dof, two_dof = few_dof & (sol.dof == 1), few_dof & (sol.dof == 2)
     for i in np.flatnonzero(one_dof):
         reasons[i].append(ONE_DOF_TEXT)
+    for i in np.flatnonzero(two_dof):
+        reasons[i].append(TWO_DOF_TEXT)
     return status, reasons
 
 
@@ -268,6 +272,14 @@ def classify(f: FixFacts):
 ONE_DOF_TEXT = ("its SD is estimated from its own three bearings (one degree of freedom), so the region is sized with "
                 "an F(2, 1) scale that allows for how little they tell; an SD measured on beacon trials (dfkit "
                 "calibrate, then --calibration) gives a region about eight times narrower for the same SD")
+
+#: Said of every fix whose SD is estimated from its own four bearings. The figures are from
+#: benchmarks/coverage.py --n 4 --sd-kinds estimated --only clean --geometries random,arc at SD 5 and 10 degrees
+#: (DEVELOPERS.md, coverage study).
+TWO_DOF_TEXT = ("its SD is estimated from its own four bearings (two degrees of freedom): a region that comes out "
+                "bounded often rests on an estimate on the small side, and in simulations with every observer on one "
+                "side of the transmitter and a 10° bearing SD such regions held it only 90-92 % of the time; an SD "
+                "measured on beacon trials (dfkit calibrate, then --calibration) makes the region dependable")
 
 
 def _floored(sol):
