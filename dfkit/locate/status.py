@@ -270,9 +270,13 @@ def classify(f: FixFacts):
 
 #: Said of every fix whose SD is estimated from its own three bearings.
 ONE_DOF_TEXT = ("its SD is estimated from its own three bearings (one degree of freedom), so the region is sized with "
-                "an F(2, 1) scale that allows for how little they tell; an SD measured on beacon trials (dfkit "
-                "calibrate, then --calibration) gives a region about eight times narrower for the same SD")
+                "an F(2, 1) scale that allows for how little they tell; with the SD measured on beacon trials (dfkit "
+                "calibrate, then --calibration) the region of such a fix is far smaller: in simulations at a 5° SD "
+                "the median ok region covered 13-21 times the area of the same fixes' regions with the SD known "
+                "(observers around the transmitter or in random directions), 7 times with the observers along one "
+                "side")
 
+#: The area figures are from benchmarks/coverage.py --areas (DEVELOPERS.md, coverage study).
 #: Said of every fix whose SD is estimated from its own four bearings. The figures are from
 #: benchmarks/coverage.py --n 4 --sd-kinds estimated --only clean --geometries random,arc at SD 5 and 10 degrees
 #: (DEVELOPERS.md, coverage study).
