@@ -131,3 +131,11 @@ def test_the_turned_bearing_is_said_in_the_sheets_unit_and_north(tmp_path, unit,
     shown = {"mil": " mil", "deg": "°"}[unit]
     expected = f"enter {(written[1] + full // 2) % full}{shown} ({written[1]}{shown} turned, magnetic north)"
     assert expected in reason, reason
+
+
+def test_an_ok_three_bearing_fix_says_that_three_check_one_another_weakly(tmp_path):
+    sc, fx = _three(tmp_path, 5.0, 5, 23, n_fix=40)
+    t = fx.table
+    ok = t[t["status"] == "ok"]
+    assert len(ok) > 30
+    assert ok["reason"].str.contains("three bearings check one another only weakly").all()

@@ -35,7 +35,6 @@ from __future__ import annotations
 from dataclasses import dataclass
 
 import numpy as np
-from scipy import stats
 
 #: Columns whose values name who or what took a bearing (their lower-cased names, as the sheet writes them).
 GROUP_COLUMNS = ("observer", "team", "antenna", "receiver")
@@ -191,6 +190,8 @@ def fix_offsets(table, g, m, sol) -> dict[int, str]:
                      min_group=MIN_GROUP)
     if st is None or not len(st.fix):
         return {}
+    from scipy import stats     # only for sheets that name observers (dfkit fix on a plain sheet loads no scipy)
+
     known = sol.sd_known[st.fix]
     with np.errstate(invalid="ignore", divide="ignore"):
         z = st.U / np.sqrt(st.V)
@@ -257,7 +258,11 @@ def sheet_offsets(table, bearings, with_position) -> list[SheetOffset]:
     flat, flon = table["lat"].to_numpy(float), table["lon"].to_numpy(float)
     az, _, _ = geodesy.inverse(flat[g], flon[g], b["lat"].to_numpy(float), b["lon"].to_numpy(float))
     known = table["sd_source"].isin(["given", "calibration", "given+calibration"]).to_numpy()
-    sigma = np.where(known[g], b["sd"].to_numpy(float), table["sd_deg"].to_numpy(float)[g])
+    # an estimated SD is one value for the whole sheet (the fixes' median): weighting each fix by its own estimate
+    # would down-weight the fixes where the offset shows most (it inflates their estimate) and bias the pooled offset
+    est = table["sd_deg"].to_numpy(float)[~known & with_position]
+    est_sd = float(np.nanmedian(est)) if np.isfinite(est).any() else np.nan
+    sigma = np.where(known[g], b["sd"].to_numpy(float), est_sd)
     r = b["residual_deg"].to_numpy(float)
     with np.errstate(invalid="ignore"):
         use = (with_position[g] & (b["weight"].to_numpy(float) > 0) & (np.abs(r) <= WILD_SD * sigma)
@@ -265,6 +270,8 @@ def sheet_offsets(table, bearings, with_position) -> list[SheetOffset]:
     st = group_stats(b, g, m, r, az, b["range_m"].to_numpy(float), sigma, use, min_group=1)
     if st is None or not len(st.fix):
         return []
+    from scipy import stats
+
     key = st.column * (10 ** 9) + np.unique(st.label, return_inverse=True)[1]
     labels, inv = np.unique(key, return_inverse=True)
     L = len(labels)

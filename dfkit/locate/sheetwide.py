@@ -27,7 +27,6 @@ from __future__ import annotations
 from dataclasses import replace
 
 import numpy as np
-from scipy import stats
 
 from dfkit.locate.fixes import WITH_POSITION
 from dfkit.locate.offsets import sheet_offsets
@@ -100,6 +99,8 @@ def fix_misfits(table, bearings):
 
 def suggested_factor(S, dof) -> float:
     """k with median F_dof(S / k^2) = 1/2 (module docstring): by how much the SD looks too small."""
+    from scipy import stats
+
     lo, hi = np.log(1e-3), np.log(1e3)
     for _ in range(60):
         mid = (lo + hi) / 2
@@ -120,6 +121,7 @@ def sd_checks(table, bearings, has_pos) -> list[dict]:
     out = []
     if have.sum() < MIN_SD_FIXES:
         return out
+    from scipy import stats     # only for sheets with enough fixes of a known SD
     keys = np.array([f"{s}|{v:.3g}" for s, v in zip(src, sd)], dtype=object)
     for key in dict.fromkeys(keys[have]):
         sel = np.flatnonzero(have & (keys == key))
