@@ -54,7 +54,8 @@ def test_each_kind_of_bad_geometry_is_named(write_sheet):
     for label, status in expect.items():
         got, reason, row = status_of(fixes, label)
         assert got == status, (label, reason)
-        assert (reason != "") == (status != "ok")
+        # a flagged fix says why; an ok one says nothing but the caveat every ok three-bearing fix carries
+        assert (reason != "") == (status != "ok") or reason.startswith("three bearings check one another only weakly")
         has_pos = np.isfinite(row["lat"])
         assert has_pos == (status in WITH_POSITION), label
     _, reason, row = status_of(fixes, "two")

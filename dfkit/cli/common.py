@@ -249,6 +249,8 @@ def print_summary(b, fixes) -> None:
     report_problems(b.problems, sys.stderr)
     for note in fixes.notes:      # the reading notes, then the solving ones
         print(f"note            {note}", file=sys.stderr)
+    for warning in getattr(fixes, "warnings", []):    # what the whole sheet shows (dfkit.locate.sheetwide)
+        print(f"warning   sheet: {warning}", file=sys.stderr)
     s = fixes.summary()
     flagged = fixes.table[fixes.table["status"] != "ok"]
     for _, r in flagged.head(50).iterrows():

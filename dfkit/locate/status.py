@@ -265,14 +265,29 @@ def classify(f: FixFacts):
         reasons[i].append(ONE_DOF_TEXT)
     for i in np.flatnonzero(two_dof):
         reasons[i].append(TWO_DOF_TEXT)
+    with np.errstate(invalid="ignore"):
+        three = sol.sd_known & (sol.n_used == 3) & (status == "ok")
+    for i in np.flatnonzero(three):
+        reasons[i].append(THREE_TEXT)
     return status, reasons
+
+
+#: Said of every ok fix from three bearings with a known SD. Measured with benchmarks/coverage.py --n 3 --only
+#: outlier --sd-kinds known --wild 30-60 (and 40-120) --geometries walk,random,spread,arc (DEVELOPERS.md).
+THREE_TEXT = ("three bearings check one another only weakly: one wild bearing that passes near where the other two "
+              "cross goes unseen (in simulations with one bearing 30-60° off, 10-21 % of such fixes came out ok, and 2-9 % "
+              "with one 40-120° off, none holding the transmitter); a fourth bearing from another direction makes the fix testable")
 
 
 #: Said of every fix whose SD is estimated from its own three bearings.
 ONE_DOF_TEXT = ("its SD is estimated from its own three bearings (one degree of freedom), so the region is sized with "
-                "an F(2, 1) scale that allows for how little they tell; an SD measured on beacon trials (dfkit "
-                "calibrate, then --calibration) gives a region about eight times narrower for the same SD")
+                "an F(2, 1) scale that allows for how little they tell; with the SD measured on beacon trials (dfkit "
+                "calibrate, then --calibration) the region of such a fix is far smaller: in simulations at a 5° SD "
+                "the median ok region covered 13-21 times the area of the same fixes' regions with the SD known "
+                "(observers around the transmitter or in random directions), 7 times with the observers along one "
+                "side")
 
+#: The area figures are from benchmarks/coverage.py --areas (DEVELOPERS.md, coverage study).
 #: Said of every fix whose SD is estimated from its own four bearings. The figures are from
 #: benchmarks/coverage.py --n 4 --sd-kinds estimated --only clean --geometries random,arc at SD 5 and 10 degrees
 #: (DEVELOPERS.md, coverage study).
