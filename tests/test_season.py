@@ -707,3 +707,63 @@ def test_columns_the_fix_table_gains_and_likelihood_regions_are_stored(store_pat
     lk = regions[regions["kind"] == "likelihood"].iloc[0]
     assert not lk["bounded"] and lk.geometry.geoms[0].normalize().equals_exact(blob.normalize(), 1e-9)
     validate(store_path)
+
+
+def daily_label_sheet(days=4, labels=8, bad_line_after=None):
+    """Two tags whose fix labels restart every day (1, 2, ... each morning), as a season's monthly sheet numbers
+    them; three exact bearings per fix from stations around each transmitter (pyproj geodesics)."""
+    rows = ["fix,tag,time,lat,lon,bearing,sd"]
+    for day in range(1, days + 1):
+        for tag in ("150.210", "150.430"):
+            for k in range(1, labels + 1):
+                tlat, tlon = 61.2 + 0.01 * k, 24.9 + (0.02 if tag == "150.430" else 0.0)
+                for j, az in enumerate((20.0, 140.0, 260.0)):
+                    lon, lat, _ = GEOD.fwd(tlon, tlat, az, 1500.0)
+                    b, _, _ = GEOD.inv(lon, lat, tlon, tlat)
+                    rows.append(f"{k},{tag},2026-06-{day:02d}T{6 + k:02d}:{3 * j:02d}:00Z,{lat:.6f},{lon:.6f},"
+                                f"{b % 360:.1f},5")
+    rows.insert(7, "3,150.210,2026-06-01T09:09:00Z,61.23,24.9,3O5,5")   # a mistyped bearing on line 8
+    return "\n".join(rows) + "\n"
+
+
+def test_daily_labels_give_one_warning_and_every_rejected_row(tmp_path, capsys):
+    """Labels restarting every day were one warning and one note per label per sheet (about 1,100 of 1,120 lines
+    of a season's import log); now one warning and one note per sheet, and the rejected row is still named."""
+    sheet = tmp_path / "june.csv"
+    sheet.write_text(daily_label_sheet())
+    store_path = tmp_path / "s.gpkg"
+    assert main(["season", "add", str(store_path), str(sheet)]) == 1
+    err = capsys.readouterr().err.splitlines()
+    rejected = [e for e in err if e.startswith("rejected")]
+    assert len(rejected) == 1 and "line 8, bearing: '3O5'" in rejected[0]
+    splits = [e for e in err if e.startswith(("warning", "note")) and "split" in e]
+    assert len(splits) <= 3, splits
+    assert any("16 fix labels start again" in e and "fix '1' of tag '150.210' at line" in e for e in splits)
+    with SeasonStore.open(store_path) as store:
+        assert len(store.fixes()) == 2 * 8 * 4           # every day's fix is its own
+
+
+def test_few_reused_labels_are_still_said_one_by_one():
+    from dfkit import read_bearings
+
+    b = read_bearings(daily_label_sheet(days=2, labels=1).replace("3O5", "305").encode())
+    said = [p for p in b.problems if p.column == "fix" and "starts again here" in p.message]
+    assert len(said) == 2 and {"fix '1' of tag '150.210'", "fix '1' of tag '150.430'"} == \
+        {p.message.split(" starts")[0] for p in said}
+
+
+def test_many_warnings_of_one_kind_print_as_a_few_and_a_count(tmp_path, capsys):
+    """A declination on 12 true-north rows: 12 warnings of one kind print as three and one line counting nine."""
+    rows = ["fix,time,lat,lon,bearing,sd,north,declination"]
+    for k in range(4):
+        for j, (lat, lon, b) in enumerate(((46.4, -84.3, 45), (46.4, -84.28, 315), (46.42, -84.29, 180))):
+            rows.append(f"F{k},2026-05-0{k + 1}T06:0{j}:00Z,{lat},{lon},{b},5,true,3")
+    rows.append("F3,2026-05-04T06:09:00Z,46.42,-84.29,999,5,true,3")
+    sheet = tmp_path / "s.csv"
+    sheet.write_text("\n".join(rows) + "\n")
+    assert main(["check", str(sheet)]) == 1
+    out = capsys.readouterr().out.splitlines()
+    dec = [o for o in out if "declination" in o and o.startswith("warning")]
+    assert len(dec) == 4 and "... 9 more warnings like line 4's on declination (lines 5 to 13)" in dec[-1]
+    assert [o for o in out if o.startswith("rejected")] == [o for o in out if "999" in o]
+    assert len([o for o in out if o.startswith("rejected")]) == 1
