@@ -2,6 +2,7 @@
 
     .venv/bin/python benchmarks/coverage.py [--fixes 2000] [--sd 5] [--seed 1] [--methods mle,andrews]
                                             [--n 2,3,4,5,6] [--only clean|outlier] [--out table.md]
+                                            [--geometries spread,random,arc] [--decimals 6]
 
 For every method x SD known/estimated x n = 2..6 bearings x clean/one outlier x crossing
 geometry it simulates ``--fixes`` fixes with a known truth (stations 500-2000 m from the
@@ -44,17 +45,26 @@ GEOMETRIES = {
     "spread": "360/n apart +- 15°, 500-2000 m",
     "random": "azimuths uniform at random, 500-3000 m",
     "arc": "azimuths uniform within a 120° arc (observers along one side), 500-2000 m",
+    "walk": "each observer 40-140° on from the last (walking round the transmitter), 400-2500 m",
 }
 
 
-def simulate(n_fix, n, sd, rng, *, crossing=None, outlier=False, geometry="spread"):
+#: How far off the one wild bearing of an outlier cell is [°] (``--wild``): reflections 40-120°, or a bad reading
+#: 30-60°.
+WILD_RANGES = {"40-120": (40.0, 120.0), "30-60": (30.0, 60.0)}
+
+
+def simulate(n_fix, n, sd, rng, *, crossing=None, outlier=False, geometry="spread", wild=(40.0, 120.0)):
     lat0 = rng.uniform(46.0, 48.0, n_fix)
     lon0 = rng.uniform(7.0, 10.0, n_fix)
-    ranges = (500, 3000) if geometry == "random" else (500, 2000)
+    ranges = {"random": (500, 3000), "walk": (400, 2500)}.get(geometry, (500, 2000))
     if crossing is not None:
         ang = rng.uniform(0, 360, (n_fix, 1)) + np.linspace(0, crossing, n)[None, :]
     elif geometry == "random":
         ang = rng.uniform(0, 360, (n_fix, n))
+    elif geometry == "walk":
+        ang = rng.uniform(0, 360, (n_fix, 1)) + np.cumsum(
+            np.concatenate([np.zeros((n_fix, 1)), rng.uniform(40, 140, (n_fix, n - 1))], axis=1), axis=1)
     elif geometry == "arc":
         ang = rng.uniform(0, 360, (n_fix, 1)) + rng.uniform(0, 120, (n_fix, n))
     else:
@@ -66,7 +76,7 @@ def simulate(n_fix, n, sd, rng, *, crossing=None, outlier=False, geometry="sprea
     bad = np.full(n_fix, -1)
     if outlier:
         bad = rng.integers(0, n, n_fix)
-        off = rng.uniform(40, 120, n_fix) * rng.choice([-1, 1], n_fix)
+        off = rng.uniform(*wild, n_fix) * rng.choice([-1, 1], n_fix)
         obs[np.arange(n_fix), bad] = true_b[np.arange(n_fix), bad] + off
     return dict(lat=np.asarray(lat_s).reshape(n_fix, n), lon=np.asarray(lon_s).reshape(n_fix, n),
                 bearing=obs % 360.0, tlat=lat0, tlon=lon0, bad=bad)
@@ -102,13 +112,16 @@ def errors_m(t, sc):
     return err
 
 
-def cell(method, known, n, sd, n_fix, rng, *, crossing=None, outlier=False, geometry="spread", decimals=6):
+def cell(method, known, n, sd, n_fix, rng, *, crossing=None, outlier=False, geometry="spread", decimals=6,
+         wild="40-120"):
     from dfkit.locate import WITH_POSITION, locate
 
-    sc = simulate(n_fix, n, sd, rng, crossing=crossing, outlier=outlier, geometry=geometry)
+    sc = simulate(n_fix, n, sd, rng, crossing=crossing, outlier=outlier, geometry=geometry, wild=WILD_RANGES[wild])
     b = read(sc, sd if known else None, decimals=decimals)
     t0 = time.process_time()
-    fx = locate(b, method=method)
+    # a sheet where every fix has a wild bearing trips the sheet-wide SD check (dfkit.locate.sheetwide) and every
+    # fix is then flagged; the outlier cells measure each fix on its own, as in a sheet where wild bearings are few
+    fx = locate(b, method=method, sheet_checks=not outlier)
     cpu = time.process_time() - t0
     t = fx.table
     status = t["status"].to_numpy()
@@ -119,7 +132,7 @@ def cell(method, known, n, sd, n_fix, rng, *, crossing=None, outlier=False, geom
     in_ellipse = fx.contains(sc["tlat"], sc["tlon"], kind="ellipse")
     err = errors_m(t, sc)
     row = dict(method=method, sd="known" if known else "estimated", n=n,
-               data=("outlier" if outlier else "clean") + (" (whole °)" if decimals == 0 else ""),
+               data=(f"outlier {wild}°" if outlier else "clean") + (" (whole °)" if decimals == 0 else ""),
                geometry=geometry if crossing is None else f"{crossing}°",
                region=in_region[has_region].mean() if has_region.any() else np.nan,
                ellipse=in_ellipse[has_ellipse].mean() if has_ellipse.any() else np.nan,
@@ -157,8 +170,22 @@ def main(argv=None):
     ap.add_argument("--n", default="2,3,4,5,6")
     ap.add_argument("--sd-kinds", default="known,estimated")
     ap.add_argument("--only", choices=["clean", "outlier"], default=None)
+    ap.add_argument("--geometries", default="spread",
+                    help="station layouts for n >= 3, comma-separated: " + "; ".join(f"{k}: {v}" for k, v in GEOMETRIES.items()))
+    ap.add_argument("--decimals", type=int, default=6,
+                    help="decimals the bearings are written with (0: whole degrees, as read off a compass)")
+    ap.add_argument("--wild", choices=list(WILD_RANGES), default="40-120",
+                    help="how far off the wild bearing of outlier cells is, in degrees (default 40-120)")
+    ap.add_argument("--areas", action="store_true",
+                    help="instead of the table: median region area of ok fixes with the SD estimated against the "
+                         "same fixes with the true SD given, per n and layout")
     ap.add_argument("--out", default=None, help="also write the table to this file")
     a = ap.parse_args(argv)
+    for g in a.geometries.split(","):
+        if g not in GEOMETRIES:
+            ap.error(f"--geometries: unknown layout {g!r} (choose from {', '.join(GEOMETRIES)})")
+    if a.areas:
+        return areas(a)
     rows = []
     t0 = time.process_time()
     for method in a.methods.split(","):
@@ -169,13 +196,14 @@ def main(argv=None):
                 if n == 2:
                     cells = [dict(crossing=c) for c in (30, 90, 150)] if a.only != "outlier" else []
                 else:
-                    if a.only != "outlier":
-                        cells.append(dict())
-                    if a.only != "clean":
-                        cells.append(dict(outlier=True))
+                    for g in a.geometries.split(","):
+                        if a.only != "outlier":
+                            cells.append(dict(geometry=g))
+                        if a.only != "clean":
+                            cells.append(dict(outlier=True, geometry=g))
                 for kw in cells:
                     rng = np.random.default_rng([a.seed, n, len(rows)])
-                    r = cell(method, known, n, a.sd, a.fixes, rng, **kw)
+                    r = cell(method, known, n, a.sd, a.fixes, rng, decimals=a.decimals, wild=a.wild, **kw)
                     rows.append(r)
                     print(fmt([r]).splitlines()[-1], file=sys.stderr, flush=True)
     table = fmt(rows)
@@ -185,6 +213,29 @@ def main(argv=None):
     if a.out:
         with open(a.out, "w") as fh:
             fh.write(table + "\n")
+
+
+def areas(a):
+    """Median region area of the ok fixes, SD estimated against the same fixes with the true SD given: how much a
+    measured SD narrows a region (each fix's ratio, and the ratio of the medians)."""
+    from dfkit.locate import locate
+
+    print("| method | n | geometry | ok (estimated) | ok (known) | median area estimated km² | median area known km² | "
+          "ratio of medians | median of per-fix ratios |\n|---|---|---|---|---|---|---|---|---|")
+    for method in a.methods.split(","):
+        for n in (int(v) for v in a.n.split(",")):
+            for g in a.geometries.split(","):
+                rng = np.random.default_rng([a.seed, n, 7])
+                sc = simulate(a.fixes, n, a.sd, rng, geometry=g)
+                est = locate(read(sc, None, decimals=a.decimals), method=method).table
+                kno = locate(read(sc, a.sd, decimals=a.decimals), method=method).table
+                ok_e, ok_k = (est["status"] == "ok").to_numpy(), (kno["status"] == "ok").to_numpy()
+                ae, ak = est["region_area_m2"].to_numpy(float), kno["region_area_m2"].to_numpy(float)
+                both = ok_e & ok_k
+                print(f"| {method} | {n} | {g} | {100 * ok_e.mean():.1f} % | {100 * ok_k.mean():.1f} % | "
+                      f"{np.median(ae[ok_e]) / 1e6:.3f} | {np.median(ak[ok_k]) / 1e6:.3f} | "
+                      f"{np.median(ae[ok_e]) / np.median(ak[ok_k]):.1f} | {np.median(ae[both] / ak[both]):.1f} |",
+                      flush=True)
 
 
 if __name__ == "__main__":

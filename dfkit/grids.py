@@ -56,6 +56,17 @@ def band_limits(letter: str) -> tuple[float, float]:
     return south, (84.0 if letter.upper() == "X" else south + 8.0)
 
 
+def band_letter(lat: float) -> str:
+    """The UTM/MGRS latitude band a latitude lies in ('' beyond 80°S..84°N).
+
+    >>> band_letter(46.47), band_letter(-33.9), band_letter(80.0)
+    ('T', 'H', 'X')
+    """
+    if not -80.0 <= lat <= 84.0:
+        return ""
+    return BAND_LETTERS[min(int((lat + 80.0) // 8.0), len(BAND_LETTERS) - 1)]
+
+
 @dataclass(frozen=True)
 class ZoneText:
     """A UTM zone as written: its number and what its letter can mean.

@@ -148,7 +148,8 @@ def test_hostile_input(case, tmp_path, capsys):
             assert text not in page, text
 
     if "browser" in case:
-        from .test_map_browser import CHROMIUM, Page
+        from .browser import CHROMIUM
+        from .test_map_browser import Page
 
         if CHROMIUM is None:
             pytest.skip("Debian's chromium is not installed")

@@ -164,3 +164,25 @@ def test_utm_output_is_read_back_by_dfkit(write_sheet, tmp_path):
     bad = again.assign(utm_hemisphere=["up"] + list(again["utm_hemisphere"][1:]))
     errs = [p for p in read_bearings(bad).problems if p.severity == "error"]
     assert (errs[0].line, errs[0].column) == (2, "utm_hemisphere") and "'up' is not a hemisphere" in errs[0].message
+
+
+def test_geopackage_output_passes_gdals_validator(fixes, tmp_path):
+    # OGC GeoPackage 1.2/1.3 requirements as GDAL's validate_gpkg.py checks them (strict: extra checks, warnings
+    # as errors), with the layers of every kind of feature: fixes, regions, bearings, stations, error polygons
+    from .gpkg import validate
+
+    out = tmp_path / "f.gpkg"
+    write_fixes(fixes, out, WriteOptions(error_polygons=True))
+    assert set(pyogrio.list_layers(out)[:, 0]) >= {"fixes", "regions", "bearings", "stations"}
+    validate(out)
+
+
+def test_home_range_geopackage_passes_gdals_validator(tmp_path):
+    from .conftest import SAMPLES
+    from .gpkg import validate
+
+    fixes_csv, out = tmp_path / "fixes.csv", tmp_path / "ranges.gpkg"
+    assert main(["fix", str(SAMPLES / "season_2026_05.csv"), "-o", str(fixes_csv)]) in (0, 1)
+    assert main(["ranges", str(fixes_csv), "--method", "kde", "--levels", "50,95", "-o", str(out)]) in (0, 1)
+    assert len(pyogrio.read_dataframe(out)) >= 2
+    validate(out)

@@ -54,7 +54,8 @@ def test_each_kind_of_bad_geometry_is_named(write_sheet):
     for label, status in expect.items():
         got, reason, row = status_of(fixes, label)
         assert got == status, (label, reason)
-        assert (reason != "") == (status != "ok")
+        # a flagged fix says why; an ok one says nothing but the caveat every ok three-bearing fix carries
+        assert (reason != "") == (status != "ok") or reason.startswith("three bearings check one another only weakly")
         has_pos = np.isfinite(row["lat"])
         assert has_pos == (status in WITH_POSITION), label
     _, reason, row = status_of(fixes, "two")
@@ -318,9 +319,12 @@ def test_an_estimated_sd_is_never_below_the_step_bearings_were_written_with(writ
 
 
 def test_a_repeated_row_does_not_make_an_sd_of_zero(write_sheet):
-    # One bearing entered twice: the two copies agree exactly, and three bearings then "fit" with an SD of 0.
+    # One bearing entered twice: the two copies agree exactly, and three bearings then "fit" with an SD of 0. (An
+    # exact repeat is left out by the reader; here the copy's position differs by a centimetre, so the estimator
+    # must stand on its own.)
     a, b = (47.8473227, 15.1531455), (47.8581248, 15.1757928)
-    rows = [("dup", *a, "23.0", "", ""), ("dup", *b, "276.0", "", ""), ("dup", *b, "276.0", "", "")]
+    b2 = (b[0] + 1e-7, b[1])
+    rows = [("dup", *a, "23.0", "", ""), ("dup", *b, "276.0", "", ""), ("dup", *b2, "276.0", "", "")]
     status, reason, row = status_of(locate(read_bearings(write_sheet(sheet_of(rows)))), "dup")
     assert row["sd_deg"] >= 1.0 and row["semi_minor_m"] > 50 and row["region_area_m2"] > 1e4
     assert "one degree of freedom" in reason
@@ -377,3 +381,17 @@ def test_a_reversed_bearing_among_three_is_still_named(write_sheet, sd):
     b = [made[0][1] + 1.5, made[1][1] + 180.0 - 2.0, made[2][1] + 1.0]
     status, reason, _ = status_of(locate(_sheet(write_sheet, "V", [s for s, _ in made], b, (sd,) * 3)), "V")
     assert status != "ok" and "line 3 looks reversed by 180°" in reason and "either" not in reason
+
+
+@pytest.mark.parametrize("sd, said", [(None, True), (4.0, False)])
+def test_an_sd_from_four_bearings_is_pointed_out_with_the_cure(write_sheet, sd, said):
+    # Four bearings around a target (geographiclib), a few degrees off: with the SD estimated (two degrees of
+    # freedom) the reason must say that bounded regions of such fixes hold the truth less often than stated
+    # (measured in benchmarks/coverage.py) and name calibration; with the SD given it must not.
+    tgt = (61.2, 24.9)
+    made = [_from_truth(tgt, az_, d) for az_, d in ((10.0, 900.0), (100.0, 1400.0), (190.0, 1100.0), (280.0, 700.0))]
+    noise = (3.0, -4.0, 2.0, -1.5)
+    b = _sheet(write_sheet, "Q", [s for s, _ in made], [m[1] + e for m, e in zip(made, noise)], (sd or "",) * 4)
+    status, reason, row = status_of(locate(b), "Q")
+    assert status == "ok"
+    assert ("two degrees of freedom" in reason and "--calibration" in reason) == said

@@ -3,11 +3,9 @@
 Uses Debian's Chromium (``apt-get install chromium``) driven by Playwright; never a downloaded browser.
 """
 
-import base64
 import json
 import pathlib
 import re
-import shutil
 import sqlite3
 import zlib
 import struct
@@ -19,13 +17,11 @@ import pytest
 from dfkit.locate import locate_sheet
 from dfkit.maps import fix_map
 
-CHROMIUM = shutil.which("chromium") or shutil.which("chromium-browser")
-ARGS = ["--headless", "--no-sandbox", "--disable-gpu", "--disable-background-networking",
-        "--disable-component-update", "--disable-sync", "--no-first-run", "--disable-quic"]
+from .browser import OfflinePage, needs_chromium
+
 ROOT = pathlib.Path(__file__).resolve().parents[1] / "sample_bearings"
 
-pytestmark = pytest.mark.skipif(CHROMIUM is None, reason="Debian's chromium is not installed "
-                                "(apt-get install chromium); .ci/run installs it")
+pytestmark = needs_chromium
 
 #: Labels and tags that once broke the map, or could: comment and script openers, prototype names,
 #: template and spreadsheet syntax, control characters, and a very long label.
@@ -33,24 +29,11 @@ HOSTILE = ["<!--<script>", "</script><b>x</b>", "__proto__", "constructor", "=1+
            "a\x01b\x07c\x1f", "hasOwnProperty", "L" * 5000, "<img src=x onerror=alert(1)>"]
 
 
-class Page:
-    """A map page opened in Chromium, with the requests it tried and the errors it raised."""
+class Page(OfflinePage):
+    """A map page opened offline in Chromium, once dfkit's script has counted what it drew."""
 
     def __init__(self, pw, path, viewport=(1300, 800)):
-        self.outside, self.errors = [], []
-        self.browser = pw.chromium.launch(executable_path=CHROMIUM, args=ARGS)
-        self.page = self.browser.new_page(viewport={"width": viewport[0], "height": viewport[1]})
-
-        def route(r):
-            if r.request.url.startswith(("file:", "data:", "about:")):
-                return r.continue_()
-            self.outside.append(r.request.url)
-            return r.abort()
-
-        self.page.route("**/*", route)
-        self.page.on("console", lambda m: self.errors.append(m.text) if m.type == "error" else None)
-        self.page.on("pageerror", lambda e: self.errors.append(str(e)))
-        self.page.goto(path.as_uri())
+        super().__init__(pw, path, viewport)
         self.page.wait_for_function("window.dfkit && window.dfkit.counts && window.dfkit.counts.fix >= 0",
                                     timeout=20000)
 

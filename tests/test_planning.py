@@ -38,6 +38,8 @@ from dfkit.planning import (
 )
 from dfkit.problems import SheetError
 
+from .browser import needs_chromium
+
 from .conftest import SAMPLES
 
 G = Geodesic.WGS84
@@ -683,9 +685,6 @@ def test_plan_command_takes_a_calibration_like_fix(tmp_path, capsys):
 
 # --------------------------------------------------------------------------- the map
 
-CHROMIUM = shutil.which("chromium") or shutil.which("chromium-browser")
-
-
 def _open_map(path: pathlib.Path):
     """Open the saved map offline with the fix map's browser helper, then read the plan's part of it."""
     from playwright.sync_api import sync_playwright
@@ -707,7 +706,7 @@ def _open_map(path: pathlib.Path):
     return p.outside, p.errors, n_paths, rows, unranked, popup, injected, first_in_panel
 
 
-@pytest.mark.skipif(CHROMIUM is None, reason="Debian's chromium is not installed (apt-get install chromium)")
+@needs_chromium
 @pytest.mark.parametrize("grid", [False, True])
 def test_plan_map_works_offline_and_escapes_user_text(tmp_path, write_sheet, grid):
     from dfkit.maps.plan import plan_map

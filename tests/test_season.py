@@ -23,6 +23,8 @@ from dfkit.season import SeasonFilter, SeasonStore, StoreError, add_sheet
 from dfkit.season.keys import bearing_keys
 from dfkit.season.rings import ellipse_rings
 
+from .browser import needs_chromium
+from .gpkg import validate
 from .conftest import ROOT, SAMPLES
 
 GEOD = pyproj.Geod(ellps="WGS84")
@@ -35,32 +37,6 @@ B,2026-06-01T07:00:00Z,47.000,15.000,40,3,ana,wet
 B,2026-06-01T07:04:00Z,47.000,15.020,320,3,ana,wet
 B,2026-06-01T07:08:00Z,47.020,15.010,175,3,ben,wet
 """
-
-
-def validator_path():
-    try:
-        import osgeo_utils.samples.validate_gpkg as v
-    except ImportError:
-        return None
-    return v.__file__
-
-
-def validate(path):
-    """GDAL's GeoPackage validator (osgeo_utils.samples.validate_gpkg), strict: every requirement checked,
-    extra checks on, warnings as errors. Run with this Python (no GDAL bindings: geometry blobs are then
-    checked by test_geometry_blobs_follow_the_standard) and, where Debian's python3-gdal is installed,
-    with /usr/bin/python3 too, which also parses every geometry with OGR."""
-    script = validator_path()
-    assert script, "gdal-utils is not installed (make installs it: pip install --no-deps gdal-utils)"
-    runs = [sys.executable]
-    if os.path.exists("/usr/bin/python3") and subprocess.run(
-            ["/usr/bin/python3", "-c", "from osgeo import ogr"], capture_output=True).returncode == 0:
-        runs.append("/usr/bin/python3")
-    for py in runs:
-        r = subprocess.run([py, script, "-k", "--extra", "--warning-as-error", str(path)], capture_output=True,
-                           text=True)
-        assert r.returncode == 0, f"{py}: {r.stdout}{r.stderr}"
-    return runs
 
 
 @pytest.fixture
@@ -659,13 +635,11 @@ def test_season_sample_fixes_hold_the_truth_at_the_stated_rate():
     assert len(hits) > 120 and np.mean(hits) >= 0.85
 
 
+@needs_chromium
 def test_review_page_map_and_time_filter_in_a_browser_offline(tmp_path):
-    import shutil
-
-    chromium = shutil.which("chromium") or shutil.which("chromium-browser")
-    if chromium is None:
-        pytest.skip("Debian's chromium is not installed (apt-get install chromium); .ci/run installs it")
     from playwright.sync_api import sync_playwright
+
+    from .browser import OfflinePage
 
     store = tmp_path / "s.gpkg"
     add(store, SAMPLES / "season_2026_05.csv")
@@ -673,23 +647,9 @@ def test_review_page_map_and_time_filter_in_a_browser_offline(tmp_path):
     assert main(["season", "show", str(store), "-o", str(out)]) in (0, 1)
     with SeasonStore.open(store) as s:
         located = int(s.fixes(SeasonFilter(statuses=WITH_POSITION)).shape[0])
-    outside, errors = [], []
     with sync_playwright() as pw:
-        browser = pw.chromium.launch(executable_path=chromium, args=[
-            "--headless", "--no-sandbox", "--disable-gpu", "--disable-background-networking",
-            "--disable-component-update", "--disable-sync", "--no-first-run", "--disable-quic"])
-        page = browser.new_page(viewport={"width": 1100, "height": 900})
-
-        def route(r):
-            if r.request.url.startswith(("file:", "data:", "about:")):
-                return r.continue_()
-            outside.append(r.request.url)
-            return r.abort()
-
-        page.route("**/*", route)
-        page.on("console", lambda m: errors.append(m.text) if m.type == "error" else None)
-        page.on("pageerror", lambda e: errors.append(str(e)))
-        page.goto(out.as_uri())
+        p = OfflinePage(pw, out, viewport=(1100, 900))
+        page = p.page
         frame = page.frame_locator("iframe.season-map")
         frame.locator("path.dfk-track").first.wait_for(state="attached", timeout=20000)
         inner = next(f for f in page.frames if f != page.main_frame)
@@ -701,8 +661,8 @@ def test_review_page_map_and_time_filter_in_a_browser_offline(tmp_path):
         half_vertices = inner.evaluate(
             "window.dfkitTracks.group.getLayers().reduce((n, l) => n + l.getLatLngs().length, 0)")
         page.screenshot(path=str(tmp_path / "review.png"), full_page=True)
-        browser.close()
-    assert outside == [] and errors == []
+        p.close()
+    assert p.outside == [] and p.errors == []
     assert shown == located                     # every located fix is on the map
     assert tracks == 3 and vertices == located  # one track per tag through every located fix
     assert 0 < half < shown                     # the time filter keeps the first half of the season
@@ -747,3 +707,63 @@ def test_columns_the_fix_table_gains_and_likelihood_regions_are_stored(store_pat
     lk = regions[regions["kind"] == "likelihood"].iloc[0]
     assert not lk["bounded"] and lk.geometry.geoms[0].normalize().equals_exact(blob.normalize(), 1e-9)
     validate(store_path)
+
+
+def daily_label_sheet(days=4, labels=8, bad_line_after=None):
+    """Two tags whose fix labels restart every day (1, 2, ... each morning), as a season's monthly sheet numbers
+    them; three exact bearings per fix from stations around each transmitter (pyproj geodesics)."""
+    rows = ["fix,tag,time,lat,lon,bearing,sd"]
+    for day in range(1, days + 1):
+        for tag in ("150.210", "150.430"):
+            for k in range(1, labels + 1):
+                tlat, tlon = 61.2 + 0.01 * k, 24.9 + (0.02 if tag == "150.430" else 0.0)
+                for j, az in enumerate((20.0, 140.0, 260.0)):
+                    lon, lat, _ = GEOD.fwd(tlon, tlat, az, 1500.0)
+                    b, _, _ = GEOD.inv(lon, lat, tlon, tlat)
+                    rows.append(f"{k},{tag},2026-06-{day:02d}T{6 + k:02d}:{3 * j:02d}:00Z,{lat:.6f},{lon:.6f},"
+                                f"{b % 360:.1f},5")
+    rows.insert(7, "3,150.210,2026-06-01T09:09:00Z,61.23,24.9,3O5,5")   # a mistyped bearing on line 8
+    return "\n".join(rows) + "\n"
+
+
+def test_daily_labels_give_one_warning_and_every_rejected_row(tmp_path, capsys):
+    """Labels restarting every day were one warning and one note per label per sheet (about 1,100 of 1,120 lines
+    of a season's import log); now one warning and one note per sheet, and the rejected row is still named."""
+    sheet = tmp_path / "june.csv"
+    sheet.write_text(daily_label_sheet())
+    store_path = tmp_path / "s.gpkg"
+    assert main(["season", "add", str(store_path), str(sheet)]) == 1
+    err = capsys.readouterr().err.splitlines()
+    rejected = [e for e in err if e.startswith("rejected")]
+    assert len(rejected) == 1 and "line 8, bearing: '3O5'" in rejected[0]
+    splits = [e for e in err if e.startswith(("warning", "note")) and "split" in e]
+    assert len(splits) <= 3, splits
+    assert any("16 fix labels start again" in e and "fix '1' of tag '150.210' at line" in e for e in splits)
+    with SeasonStore.open(store_path) as store:
+        assert len(store.fixes()) == 2 * 8 * 4           # every day's fix is its own
+
+
+def test_few_reused_labels_are_still_said_one_by_one():
+    from dfkit import read_bearings
+
+    b = read_bearings(daily_label_sheet(days=2, labels=1).replace("3O5", "305").encode())
+    said = [p for p in b.problems if p.column == "fix" and "starts again here" in p.message]
+    assert len(said) == 2 and {"fix '1' of tag '150.210'", "fix '1' of tag '150.430'"} == \
+        {p.message.split(" starts")[0] for p in said}
+
+
+def test_many_warnings_of_one_kind_print_as_a_few_and_a_count(tmp_path, capsys):
+    """A declination on 12 true-north rows: 12 warnings of one kind print as three and one line counting nine."""
+    rows = ["fix,time,lat,lon,bearing,sd,north,declination"]
+    for k in range(4):
+        for j, (lat, lon, b) in enumerate(((46.4, -84.3, 45), (46.4, -84.28, 315), (46.42, -84.29, 180))):
+            rows.append(f"F{k},2026-05-0{k + 1}T06:0{j}:00Z,{lat},{lon},{b},5,true,3")
+    rows.append("F3,2026-05-04T06:09:00Z,46.42,-84.29,999,5,true,3")
+    sheet = tmp_path / "s.csv"
+    sheet.write_text("\n".join(rows) + "\n")
+    assert main(["check", str(sheet)]) == 1
+    out = capsys.readouterr().out.splitlines()
+    dec = [o for o in out if "declination" in o and o.startswith("warning")]
+    assert len(dec) == 4 and "... 9 more warnings like line 4's on declination (lines 5 to 13)" in dec[-1]
+    assert [o for o in out if o.startswith("rejected")] == [o for o in out if "999" in o]
+    assert len([o for o in out if o.startswith("rejected")]) == 1

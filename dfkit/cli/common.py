@@ -4,6 +4,7 @@ from __future__ import annotations
 
 import argparse
 import os
+import re
 import sys
 import time
 
@@ -151,12 +152,45 @@ def read_kwargs(a) -> dict:
                 worksheet=a.worksheet, fill_labels=a.fill_labels)
 
 
+#: Warnings or notes of one kind printed one by one; more of a kind are summarised in one line after the first
+#: :data:`KIND_SHOWN` (every rejected row is always printed).
+KIND_LISTED, KIND_SHOWN = 5, 3
+_QUOTED = re.compile(r"'[^']*'")
+_NUMBER = re.compile(r"[-+]?\d[\d,]*(?:\.\d+)?")
+
+
+def message_kind(text: str) -> str:
+    """What a message says with its particulars (quoted text, numbers) taken out: messages of one kind share it."""
+    return _NUMBER.sub("#", _QUOTED.sub("'…'", text))
+
+
 def report_problems(problems, out) -> None:
+    """Print problems: every rejected row; warnings and notes of one kind (same column, same text but for quoted
+    values and numbers) one by one up to :data:`KIND_LISTED`, beyond that the first :data:`KIND_SHOWN` and one line
+    counting the rest with their lines."""
     label = {"error": "rejected", "warning": "warning", "note": "note"}
     for sev in ("error", "warning", "note"):
-        for p in problems:
-            if p.severity == sev or (sev == "warning" and p.severity not in label):
-                print(f"{label[sev]:<9} {str(p).removesuffix(f' [{p.severity}]')}", file=out)
+        mine = [p for p in problems if p.severity == sev or (sev == "warning" and p.severity not in label)]
+        keys = [(p.source, p.column, message_kind(p.message)) if sev != "error" else None for p in mine]
+        kinds: dict[tuple, list] = {}
+        for p, key in zip(mine, keys):
+            if key is not None:
+                kinds.setdefault(key, []).append(p)
+        seen: dict[tuple, int] = {}
+        for p, key in zip(mine, keys):
+            same = kinds[key] if key is not None else ()
+            k = seen[key] = seen.get(key, -1) + 1 if key is not None else 0
+            if len(same) > KIND_LISTED and k >= KIND_SHOWN:
+                if k == KIND_SHOWN:
+                    rest = [q.line for q in same[KIND_SHOWN:] if q.line]
+                    where = f" (lines {min(rest)} to {max(rest)})" if rest else ""
+                    last = same[KIND_SHOWN - 1]
+                    like = f"line {last.line}'s" if last.line else "the one above"
+                    col = f" on {p.column}" if p.column else ""
+                    print(f"{label[sev]:<9} {p.source}: ... {len(same) - KIND_SHOWN} more {label[sev]}s like {like}"
+                          f"{col}{where}", file=out)
+                continue
+            print(f"{label[sev]:<9} {str(p).removesuffix(f' [{p.severity}]')}", file=out)
 
 
 def add_output_options(p: argparse.ArgumentParser) -> None:
@@ -249,6 +283,8 @@ def print_summary(b, fixes) -> None:
     report_problems(b.problems, sys.stderr)
     for note in fixes.notes:      # the reading notes, then the solving ones
         print(f"note            {note}", file=sys.stderr)
+    for warning in getattr(fixes, "warnings", []):    # what the whole sheet shows (dfkit.locate.sheetwide)
+        print(f"warning   sheet: {warning}", file=sys.stderr)
     s = fixes.summary()
     flagged = fixes.table[fixes.table["status"] != "ok"]
     for _, r in flagged.head(50).iterrows():

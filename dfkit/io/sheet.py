@@ -61,6 +61,14 @@ COLUMN_ALIASES = {
     "frequency": "tag", "freq": "tag", "tag_id": "tag",
 }
 
+#: Headers read as the fix label (``fix``) when the sheet has no ``fix`` column: the word "fix" and a word or sign
+#: that marks an identifier (id, #, no, no., nr, nr., n°, num, number, name), with or without a space, underscore,
+#: hyphen or dot between (``Fix ID``, ``Fix #``, ``Fix No.``, ``FixNo``, ``fix_number``, ``Fix-Nr``). The list
+#: is ours (the usual ways a field sheet heads its label column; common practice, no source). ``fix_id`` is also
+#: the name of dfkit's own result column: it is read as one only in a table dfkit wrote (see
+#: :func:`is_dfkit_table`).
+FIX_LABEL_HEADER = re.compile(r"fix[_\-.]?(id|#|no\.?|nr\.?|n°|nº|num\.?|number|name)")
+
 #: Columns dfkit computes and writes into its own tables (``check -o``, ``--bearings-out``). When such a table is
 #: read back they are recomputed from the sheet's own columns, so the copies in the file are not read (a note
 #: says so). ``line`` is kept as ``line_in_sheet`` (the line of the original field sheet) unless that exists.
@@ -243,13 +251,36 @@ def _parse_header(line: str, line_no: int, delimiter: str, name: str, problems) 
     return header
 
 
+def is_dfkit_table(columns) -> bool:
+    """Whether canonical column names are those of a table dfkit wrote (``check -o``, ``--bearings-out``): a
+    ``fix`` column and at least one of dfkit's result columns besides ``fix_id``. Only there is ``fix_id`` dfkit's
+    own fix number; elsewhere it is the user's fix label."""
+    cols = set(columns)
+    return "fix" in cols and any(c in cols for c in DERIVED_COLUMNS if c != "fix_id")
+
+
+def _fix_label_header(col, present, claimed, header_line, raw, name, problems) -> str:
+    """The name a fix-label spelling (:data:`FIX_LABEL_HEADER`) is read under, with a warning saying which."""
+    if "fix" not in present and not claimed:
+        problems.append(Problem(header_line, raw.strip(), "read as 'fix' (the fix label)", "warning", name))
+        return "fix"
+    keep = f"{col}_in_sheet" if col == "fix_id" else col
+    other = "a 'fix' column" if "fix" in present else f"'{claimed}' read as the fix label"
+    problems.append(Problem(header_line, raw.strip(), f"not read as the fix label, since the sheet has {other}; "
+                            f"kept as '{keep}' and carried to the outputs", "warning", name))
+    return keep
+
+
 def _resolve_header(header, header_line, name, problems, keep_own=False) -> list[str]:
     """Column names for the header cells. dfkit's own result columns get a reserved name (:data:`_OWN`) and
-    :class:`RawSheet` leaves them out, whichever reader built it (CSV, spreadsheet, DataFrame)."""
+    :class:`RawSheet` leaves them out, whichever reader built it (CSV, spreadsheet, DataFrame). A fix-label
+    spelling (:data:`FIX_LABEL_HEADER`, ``fix_id`` outside a table dfkit wrote) is read as ``fix``."""
     if header is None:
         raise SheetError(f"{name or 'the sheet'} has no header row")
     canon = [_canonical(raw) for raw in header]
     present = set(canon)
+    own_table = keep_own or is_dfkit_table(canon)
+    label_from = ""
     columns: list[str] = []
     first_seen: dict[str, int] = {}
     next_copy: dict[str, int] = {}
@@ -258,10 +289,14 @@ def _resolve_header(header, header_line, name, problems, keep_own=False) -> list
     for j, (raw, col) in enumerate(zip(header, canon), start=1):
         if not col:
             col = f"column_{j}"
-        if not keep_own and col in COLUMN_ALIASES and COLUMN_ALIASES[col] not in present:
+        if not own_table and (FIX_LABEL_HEADER.fullmatch(col) or label_from and COLUMN_ALIASES.get(col) == "fix"):
+            col = _fix_label_header(col, present, label_from, header_line, raw, name, problems)
+        elif not keep_own and col in COLUMN_ALIASES and COLUMN_ALIASES[col] not in present:
             alias = COLUMN_ALIASES[col]
             problems.append(Problem(header_line, raw.strip(), f"read as '{alias}'", "warning", name))
             col = alias
+        if col == "fix" and canon[j - 1] != "fix":
+            label_from = label_from or raw.strip()
         if keep_own and col in (*DERIVED_COLUMNS, "line"):
             col = "line_in_sheet" if col == "line" else col
         elif col in DERIVED_COLUMNS or (col == "line" and "line_in_sheet" in present):

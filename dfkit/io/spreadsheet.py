@@ -24,6 +24,7 @@ import numpy as np
 import pandas as pd
 
 from dfkit.io.formats import LABEL_COLUMNS, differs, shown_texts
+from dfkit.io.formats import _col_letters as _col_letter
 from dfkit.io.sheet import RawSheet, _resolve_header
 from dfkit.io.typed import cell_text
 from dfkit.problems import Problem, SheetError
@@ -217,11 +218,3 @@ def _labels_as_shown(rows, text, columns, header_i, shown, label, problems):
                                     f"(trailing zeros), format the column as text or save as .xlsx or .ods",
                                     "warning", label))
 
-
-def _col_letter(j: int) -> str:
-    s = ""
-    j += 1
-    while j:
-        j, r = divmod(j - 1, 26)
-        s = chr(65 + r) + s
-    return s

@@ -13,6 +13,7 @@ import pandas as pd
 from dfkit import estimators, geodesy, regions
 from dfkit.locate.fixes import FIX_COLUMNS, WITH_POSITION, Fixes
 from dfkit.locate.hints import one_bearing_hints
+from dfkit.locate.offsets import fix_offsets
 from dfkit.locate.resolution import fix_steps, sd_floors
 from dfkit.locate.rivals import find_rivals
 from dfkit.locate.status import FixFacts, classify, consistency
@@ -24,7 +25,8 @@ from dfkit.observations import Bearings, ReadOptions, read_bearings
 
 
 def locate(bearings: Bearings, *, method: str = "mle", level: float = 0.95, window_min: float | None = None,
-           robust_c: float | None = None, with_regions: bool = True, progress=None, jobs: int = 1) -> Fixes:
+           robust_c: float | None = None, with_regions: bool = True, progress=None, jobs: int = 1,
+           sheet_checks: bool = True) -> Fixes:
     """Solve every fix of a set of bearings.
 
     Parameters
@@ -48,12 +50,16 @@ def locate(bearings: Bearings, *, method: str = "mle", level: float = 0.95, wind
     jobs : int
         Solve the fixes in chunks on this many threads (0: one per processor); the results are
         those of one job (:mod:`dfkit.locate.parallel`).
+    sheet_checks : bool
+        Also run the sheet-wide checks (:mod:`dfkit.locate.sheetwide`: a group reading off, an SD too
+        small), which set ``Fixes.warnings`` and may mark ``ok`` fixes (default).
     """
     if jobs != 1:
         from dfkit.locate.parallel import locate_in_chunks
 
         return locate_in_chunks(bearings, jobs=jobs, method=method, level=level, window_min=window_min,
-                                robust_c=robust_c, with_regions=with_regions, progress=progress)
+                                robust_c=robust_c, with_regions=with_regions, progress=progress,
+                                sheet_checks=sheet_checks)
     if method not in estimators.METHODS:
         raise ValueError(f"method={method!r} is not one of {', '.join(repr(m) for m in estimators.METHODS)}")
     if not (isinstance(level, (int, float, np.floating)) and 0.0 < float(level) < 1.0):
@@ -110,8 +116,10 @@ def locate(bearings: Bearings, *, method: str = "mle", level: float = 0.95, wind
     _, p = consistency(sol, g, m, lik)
     with np.errstate(invalid="ignore"):
         mild = (status == "inconsistent") & (p >= HINT_P)
+    written = ((b["bearing"].to_numpy(float), b["unit"].to_numpy(object), b["north"].to_numpy(object))
+               if len(b) else None)
     hints = one_bearing_hints(lat, lon, theta, sd, g, counts, lines, np.where(mild, "", status), method, robust_c,
-                              floor)
+                              floor, written)
     if hints:
         facts.hints = hints
         status, reasons = classify(facts)
@@ -119,6 +127,12 @@ def locate(bearings: Bearings, *, method: str = "mle", level: float = 0.95, wind
     if rivals:
         facts.rivals = rivals
         status, reasons = classify(facts)
+
+    # an observer, team, antenna or receiver whose bearings in this fix read off the others (dfkit.locate.offsets)
+    for i, text in fix_offsets(b, g, m, sol).items():
+        if status[i] in WITH_POSITION:
+            status[i] = "inconsistent" if status[i] == "ok" else status[i]
+            reasons[i].append(text)
 
     table = _table(bearings, sol, ell, lik, status, reasons, counts, span_min, tmid, method, level)
     bt = b.copy(deep=False)   # new columns only; the bearings table itself is not copied (copy-on-write)
@@ -133,8 +147,13 @@ def locate(bearings: Bearings, *, method: str = "mle", level: float = 0.95, wind
         for c in ("residual_deg", "weight", "range_m", "fix_status"):
             bt[c] = []
     notes = list(bearings.notes)
-    return Fixes(table=table, bearings=bt, problems=list(bearings.problems), notes=notes, source=bearings.source,
-                 likelihood=lik)
+    fixes = Fixes(table=table, bearings=bt, problems=list(bearings.problems), notes=notes, source=bearings.source,
+                  likelihood=lik)
+    if sheet_checks:
+        from dfkit.locate.sheetwide import review
+
+        fixes = review(fixes)
+    return fixes
 
 
 def _time_span(b, g, m):

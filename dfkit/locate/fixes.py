@@ -106,6 +106,9 @@ class Fixes:
         What dfkit did that the user should know.
     source : str
         Where the bearings came from.
+    warnings : list of str
+        What the whole sheet shows that no single fix can (:mod:`dfkit.locate.sheetwide`): an observer,
+        team, antenna or receiver reading off, an SD given too small.
     likelihood : LikelihoodRegions or None
         Each fix's likelihood-ratio region, in the rows' order (None when not computed): rays,
         bounds and the exact test behind :meth:`contains`.
@@ -122,6 +125,7 @@ class Fixes:
     notes: list[str] = field(default_factory=list)
     source: str = ""
     likelihood: LikelihoodRegions | None = None
+    warnings: list[str] = field(default_factory=list)
     _regions: pd.DataFrame | None = field(default=None, repr=False)
 
     @property

@@ -41,8 +41,10 @@ MAX_EXAMINED = 20_000
 CLEAR_EVIDENCE = 8.0
 
 
-def one_bearing_hints(lat, lon, bearing, sd, g, counts, lines, status, method, robust_c, sd_floor=None):
-    """Extra reason texts per fix index: {fix: [text, ...]}. ``sd_floor``: each bearing's SD floor [°]."""
+def one_bearing_hints(lat, lon, bearing, sd, g, counts, lines, status, method, robust_c, sd_floor=None, written=None):
+    """Extra reason texts per fix index: {fix: [text, ...]}. ``sd_floor``: each bearing's SD floor [°];
+    ``written``: each bearing as the sheet wrote it, (value, unit, north) arrays, so that a turned bearing is
+    said as the user would enter it (:func:`turned_text`)."""
     m = len(counts)
     out: dict[int, list[str]] = {}
     look = np.flatnonzero(np.isin(status, EXAMINED) & (counts >= 2))[:MAX_EXAMINED]
@@ -121,7 +123,7 @@ def one_bearing_hints(lat, lon, bearing, sd, g, counts, lines, status, method, r
             a = as_read[i]
             rivals = [(deviance[x[3]], "wild", x[3], x[2]) for x in drops if x[2] != j]
             rivals += [(deviance[a], "as read", a, -1), (beside[i][0], "beside", -1, beside[i][1])]
-            out.setdefault(i, []).append(_reversal_text(j, v, rivals, deviance, sol, lines, bearing))
+            out.setdefault(i, []).append(_reversal_text(j, v, rivals, deviance, sol, lines, bearing, written))
         elif counts[i] >= 4 and drops:
             best = drops[0]
             second = drops[1][0] if len(drops) > 1 else np.inf
@@ -168,16 +170,35 @@ def _normal_deviance(r, owner, k, n, sd_deg, known, floor_rad):
     return np.where(known, S_known, S_est)
 
 
-def _reversal_text(j, v, rivals, deviance, sol, lines, bearing):
+def turned_text(j, bearing, written=None):
+    """Bearing ``j`` turned by a half circle as the user would enter it: the value the sheet wrote plus half a
+    circle in the row's own unit, with its north (``enter 351° (171° turned, magnetic north)``); the true bearing
+    turned when the written form is not known."""
+    from dfkit.conventions import FULL_CIRCLE
+
+    if written is None:
+        return f"enter {_angle((bearing[j] + 180.0) % 360.0, 'deg')} (true north)"
+    value, unit, north = (float(written[0][j]), str(written[1][j]), str(written[2][j]))
+    full = FULL_CIRCLE.get(unit, 360.0)
+    turned = (value + full / 2.0) % full
+    return f"enter {_angle(turned, unit)} ({_angle(value, unit)} turned, {north} north)"
+
+
+def _angle(v, unit):
+    text = f"{v:.0f}" if abs(v - round(v)) < 1e-9 else f"{v:.6f}".rstrip("0").rstrip(".")
+    return text + {"deg": "°", "mil": " mil", "grad": " grad"}.get(unit, "°")
+
+
+def _reversal_text(j, v, rivals, deviance, sol, lines, bearing, written=None):
     """"line L looks reversed" when turning it explains the bearings CLEAR_EVIDENCE times better than each rival
     explanation (deviance, kind, variant, line index): another line wild ("wild"), every bearing as read at the
     fix's own answer ("as read") or beside an observer ("beside"); else the rivals that come close too."""
-    turned = (bearing[j] + 180.0) % 360.0
+    enter = turned_text(j, bearing, written)
     margin = 2.0 * np.log(CLEAR_EVIDENCE)
     close = sorted(x for x in rivals if np.isfinite(x[0]) and x[0] - deviance[v] < margin)
     if not close:
-        return (f"line {lines[j]} looks reversed by 180°: with line {lines[j]} turned by 180° ({turned:.1f}°) the "
-                "bearings agree; check it (read from the back of the antenna?) and enter it turned")
+        return (f"line {lines[j]} looks reversed by 180°: with line {lines[j]} turned by 180° the bearings agree; "
+                f"check it (read from the back of the antenna?) and {enter}")
     said, check = [], {lines[j]}
     for _, kind, w, jj in close:
         if kind == "wild":
@@ -192,8 +213,8 @@ def _reversal_text(j, v, rivals, deviance, sol, lines, bearing):
             said.append("every bearing is right as read (they fit nearly as well without turning any)")
     lines_ = sorted(check)
     what = f"line {lines_[0]}" if len(lines_) == 1 else "lines " + " and ".join(str(x) for x in lines_)
-    return (f"either line {lines[j]} is reversed by 180° (with it turned, {turned:.1f}°, the bearings agree at "
-            f"{sol.lat[v]:.5f}, {sol.lon[v]:.5f}), or " + ", or ".join(said)
+    return (f"either line {lines[j]} is reversed by 180° (with it turned the bearings agree at "
+            f"{sol.lat[v]:.5f}, {sol.lon[v]:.5f}; to turn it, {enter}), or " + ", or ".join(said)
             + f"; the bearings cannot tell which: check {what}, or take another bearing")
 
 

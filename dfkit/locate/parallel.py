@@ -81,7 +81,7 @@ def _executor(use: str, jobs: int) -> Executor:
 
 
 def locate_in_chunks(bearings: Bearings, *, jobs: int, use: str = "threads", min_fixes: int = MIN_CHUNK_FIXES,
-                     progress=None, **kwargs) -> Fixes:
+                     progress=None, sheet_checks: bool = True, **kwargs) -> Fixes:
     """:func:`dfkit.locate.locate` on chunks of fixes in ``jobs`` workers; the same :class:`Fixes` as one job.
 
     Parameters
@@ -105,15 +105,21 @@ def locate_in_chunks(bearings: Bearings, *, jobs: int, use: str = "threads", min
     say = progress or (lambda text: None)
     parts = chunks(bearings, jobs, min_fixes)
     if len(parts) == 1:
-        return locate(bearings, progress=progress, **kwargs)
+        return locate(bearings, progress=progress, sheet_checks=sheet_checks, **kwargs)
     pieces = [split(bearings, lo, hi) for lo, hi in parts]
     say(f"solving {len(bearings.fix_index)} fixes in {len(parts)} chunks on {jobs} {use}")
     with _executor(use, jobs) as ex:
         results = []
-        for k, fx in enumerate(ex.map(_locate_chunk, [(chunk, kwargs) for chunk, _ in pieces])):
+        chunk_kw = dict(kwargs, sheet_checks=False)      # the sheet-wide checks look at the whole sheet, below
+        for k, fx in enumerate(ex.map(_locate_chunk, [(chunk, chunk_kw) for chunk, _ in pieces])):
             results.append(fx)
             say(f"chunk {k + 1} of {len(parts)} done")
-    return merge(bearings, results, [rows for _, rows in pieces], [lo for lo, _ in parts])
+    whole = merge(bearings, results, [rows for _, rows in pieces], [lo for lo, _ in parts])
+    if not sheet_checks:
+        return whole
+    from dfkit.locate.sheetwide import review
+
+    return review(whole)
 
 
 def merge(bearings: Bearings, results: list[Fixes], rows: list[np.ndarray], offsets: list[int]) -> Fixes:

@@ -256,18 +256,45 @@ def classify(f: FixFacts):
             reasons[i].append("rejected input line" + ("s " if len(rej) > 1 else " ")
                               + ", ".join(str(x) for x in rej[:8]) + (" ..." if len(rej) > 8 else ""))
         reasons[i] = [r for r in reasons[i] if r]
-    # an SD estimated from three bearings: the region allows for it, but a measured SD gives a far smaller one
+    # an SD estimated from three or four bearings: the region allows for it, but a measured SD gives a far smaller
+    # one, and with four the bounded regions (the ok fixes) are the ones whose estimate came out small
     with np.errstate(invalid="ignore"):
-        one_dof = ~sol.sd_known & (sol.dof == 1) & np.isin(status, WITH_POSITION) & (status != "no_region")
+        few_dof = ~sol.sd_known & np.isin(status, WITH_POSITION) & (status != "no_region")
+        one_dof, two_dof = few_dof & (sol.dof == 1), few_dof & (sol.dof == 2)
     for i in np.flatnonzero(one_dof):
         reasons[i].append(ONE_DOF_TEXT)
+    for i in np.flatnonzero(two_dof):
+        reasons[i].append(TWO_DOF_TEXT)
+    with np.errstate(invalid="ignore"):
+        three = sol.sd_known & (sol.n_used == 3) & (status == "ok")
+    for i in np.flatnonzero(three):
+        reasons[i].append(THREE_TEXT)
     return status, reasons
+
+
+#: Said of every ok fix from three bearings with a known SD. Measured with benchmarks/coverage.py --n 3 --only
+#: outlier --sd-kinds known --wild 30-60 (and 40-120) --geometries walk,random,spread,arc (DEVELOPERS.md).
+THREE_TEXT = ("three bearings check one another only weakly: one wild bearing that passes near where the other two "
+              "cross goes unseen (in simulations with one bearing 30-60° off, 10-21 % of such fixes came out ok, and 2-9 % "
+              "with one 40-120° off, none holding the transmitter); a fourth bearing from another direction makes the fix testable")
 
 
 #: Said of every fix whose SD is estimated from its own three bearings.
 ONE_DOF_TEXT = ("its SD is estimated from its own three bearings (one degree of freedom), so the region is sized with "
-                "an F(2, 1) scale that allows for how little they tell; an SD measured on beacon trials (dfkit "
-                "calibrate, then --calibration) gives a region about eight times narrower for the same SD")
+                "an F(2, 1) scale that allows for how little they tell; with the SD measured on beacon trials (dfkit "
+                "calibrate, then --calibration) the region of such a fix is far smaller: in simulations at a 5° SD "
+                "the median ok region covered 13-21 times the area of the same fixes' regions with the SD known "
+                "(observers around the transmitter or in random directions), 7 times with the observers along one "
+                "side")
+
+#: The area figures are from benchmarks/coverage.py --areas (DEVELOPERS.md, coverage study).
+#: Said of every fix whose SD is estimated from its own four bearings. The figures are from
+#: benchmarks/coverage.py --n 4 --sd-kinds estimated --only clean --geometries random,arc at SD 5 and 10 degrees
+#: (DEVELOPERS.md, coverage study).
+TWO_DOF_TEXT = ("its SD is estimated from its own four bearings (two degrees of freedom): a region that comes out "
+                "bounded often rests on an estimate on the small side, and in simulations with every observer on one "
+                "side of the transmitter and a 10° bearing SD such regions held it only 90-92 % of the time; an SD "
+                "measured on beacon trials (dfkit calibrate, then --calibration) makes the region dependable")
 
 
 def _floored(sol):

@@ -6,7 +6,9 @@
   :data:`dfkit.policy.SPLIT_LABEL_GAP_H` hours apart is **split**: a sheet that
   numbers fixes per day reuses labels, and bearings of another day are another fix.
   Each part is labelled ``"<label> (<first time, UTC>)"`` and a warning names the
-  split; a bearing of such a label without a time is refused (it cannot be placed).
+  split (a sheet that splits many labels, as labels restarting every day do, gets one
+  warning and one note for them all, naming the first few); a bearing of such a label
+  without a time is refused (it cannot be placed).
 * Unlabelled bearings of one tag are grouped by time: a fix goes on while each
   bearing follows the previous one within the window (``--window``, default 20 min,
   common practice, no single source), so a walk from station to station with
@@ -225,6 +227,7 @@ def _split_labels(fix, grouped_by, labels, tags, times, timed, split_gap_s, log,
     fix[sel] = [f"{labels[i]} ({_stamp(first_t[p])[:10] if first_day[p] else _stamp(first_t[p])})"
                 for i, p in zip(sel, part[in_split])]
     grouped_by[sel] = "split"
+    said = []        # (who, parts, gap [h], line of the second part) per split label, in order
     for k in split_keys:
         kk = np.flatnonzero(c == k)
         r = rows[kk]
@@ -232,16 +235,37 @@ def _split_labels(fix, grouped_by, labels, tags, times, timed, split_gap_s, log,
         gaps = np.diff(t[kk])
         tag = tags[r[0]]
         who = f"fix '{labels[r[0]]}'" + (f" of tag '{tag}'" if tag else "")
-        notes.append(f"{who} has bearings {gaps.max() / 3600:.1f} h apart: split into {n_parts} fixes "
-                     f"(more than {split_gap_s / 3600:g} h apart is not one fix)")
         second = r[np.flatnonzero(brk[kk])[0]]
-        log.warn(log.mask([second]), "fix", f"{who} starts again here, {gaps.max() / 3600:.1f} h after its previous "
-                                            f"bearing: split into {n_parts} fixes labelled '{labels[r[0]]} (time)'",
-                 rejected_too=True)
+        said.append((who, n_parts, gaps.max() / 3600, second, labels[r[0]]))
         untimed = (labels == labels[r[0]]) & (tags == tag) & ~timed
         log.reject(untimed, "time", f"{who} has bearings on different occasions and this one has no time: "
                                     "dfkit cannot tell which of them it belongs to")
+    if len(said) <= SPLITS_LISTED:
+        for who, n_parts, gap_h, second, label in said:
+            notes.append(f"{who} has bearings {gap_h:.1f} h apart: split into {n_parts} fixes "
+                         f"(more than {split_gap_s / 3600:g} h apart is not one fix)")
+            log.warn(log.mask([second]), "fix", f"{who} starts again here, {gap_h:.1f} h after its previous "
+                                                f"bearing: split into {n_parts} fixes labelled '{label} (time)'",
+                     rejected_too=True)
+    else:   # labels reused every day: one warning and one note for them all, with the first few
+        said.sort(key=lambda x: x[3])
+        first = "; ".join(f"{who} at line {log.lines[second]} ({n_parts} parts)"
+                          for who, n_parts, _, second, _ in said[:SPLITS_SHOWN])
+        parts = sum(x[1] for x in said)
+        gaps = [x[2] for x in said]
+        log.warn(log.mask([said[0][3]]), "fix",
+                 f"{len(said)} fix labels start again after more than {split_gap_s / 3600:g} h (labels reused on "
+                 f"other days?): each was split by time, {parts} fixes in all; first {first}; and "
+                 f"{len(said) - SPLITS_SHOWN} more labels", rejected_too=True)
+        span = f"{min(gaps):.1f}" + (f" to {max(gaps):.1f}" if f"{max(gaps):.1f}" != f"{min(gaps):.1f}" else "")
+        notes.append(f"{len(said)} fix labels have bearings {span} h apart and were split "
+                     f"into {parts} fixes (more than {split_gap_s / 3600:g} h apart is not one fix)")
     notes.append("fix labels split by time are written '<label> (<first bearing, UTC>)'")
+
+
+#: Split labels described one by one (up to this many); beyond, one warning and one note for them all, naming
+#: the first :data:`SPLITS_SHOWN` and counting the rest.
+SPLITS_LISTED, SPLITS_SHOWN = 5, 3
 
 
 def pair_codes(tag, fix, mask=None) -> np.ndarray:

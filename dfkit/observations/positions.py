@@ -29,6 +29,7 @@ the GPS track, never against the whole sheet, which may span continents:
 
 from __future__ import annotations
 
+import re
 from dataclasses import dataclass, field
 from datetime import datetime, timezone
 
@@ -222,6 +223,11 @@ class _State:
         self.source = np.full(n, "", dtype=object)
         self.zone = np.zeros(n, int)
         self.south = np.zeros(n, bool)
+        # a zone letter S read as the southern hemisphere because band S does not fit: how it was read, and where
+        # the northern reading puts the row (for the message if the row turns out far from its fix)
+        self.letter_note = np.full(n, "", dtype=object)
+        self.north_lat = np.full(n, np.nan)
+        self.north_lon = np.full(n, np.nan)
 
     def name(self, role):
         return self.cols.get(role, role)
@@ -352,18 +358,37 @@ def _station(p: _State, stations):
 
 # --------------------------------------------------------------------------- UTM
 
-def _split_combined(p: _State):
-    """A zone cell holding the whole position ('30S 435000 4137000') when easting/northing are empty."""
+#: A whole UTM position in one cell, as GPS units and people write it: zone and letter (or hemisphere word), easting,
+#: northing, separated by spaces or commas; the zone may be glued to the letter and the letter to the easting
+#: (``16T 705900 5150600``, ``16T705900 5150600``, ``16 T 0705900 5150600``, ``33 north 435000 4137000``); an
+#: easting may end in E or mE and a northing in N or mN.
+_UTM_CELL = re.compile(r"\s*(\d{1,2})\s*([A-Za-z]+)\s*(\d{1,7}(?:\.\d*)?)\s*(?:m?E)?\s*[,;\s]\s*(\d{1,8}(?:\.\d*)?)"
+                       r"\s*(?:m?N)?\s*")
+#: A zone cell that is more than a zone: digits of an easting or a second word (a position written in one cell).
+_MORE_THAN_ZONE = re.compile(r".*(\d{4}|\s\S+\s).*")
+
+
+def _split_combined(p: _State) -> np.ndarray:
+    """A zone cell holding the whole position (:data:`_UTM_CELL`) when easting/northing are empty: split into the
+    three cells. A zone cell that holds more than a zone but is no such position is refused once, on the zone
+    column, saying the form; the rows refused are returned (their easting and northing are not also missing)."""
     z = p.cells["utm_zone"]
     e, nn = p.cells["easting"], p.cells["northing"]
+    refused = np.zeros(p.n, bool)
     cand = np.flatnonzero((z != "") & (e == "") & (nn == ""))
     if not len(cand):
-        return
-    parts = pd.Series(z[cand], dtype=object).str.replace(",", " ").str.split().to_list()
-    for i, toks in zip(cand, parts):
-        if len(toks) == 3 or (len(toks) == 4 and toks[1].isalpha()):
-            zone_txt = toks[0] if len(toks) == 3 else toks[0] + toks[1]
-            z[i], e[i], nn[i] = zone_txt, toks[-2].rstrip("mE").rstrip(), toks[-1].rstrip("mN").rstrip()
+        return refused
+    for i in cand:
+        m = _UTM_CELL.fullmatch(z[i])
+        if m:
+            z[i], e[i], nn[i] = f"{m.group(1)}{m.group(2)}", m.group(3), m.group(4)
+        elif _MORE_THAN_ZONE.fullmatch(z[i]):
+            refused[i] = True
+    cz = p.name("utm_zone")
+    p.log.reject(refused, cz, lambda idx: [
+        f"'{z[i]}' is not a UTM position dfkit can read: write zone and letter, easting and northing in one cell "
+        "('16T 705900 5150600', as a GPS shows it) or in utm_zone, easting and northing columns" for i in idx])
+    return refused
 
 
 def _zone_and_hemisphere(p: _State):
@@ -386,11 +411,11 @@ def _utm(p: _State, decimal_comma, utm_letters, groups, track_ll):
     p.cells = dict(p.cells)
     for k in ("utm_zone", "easting", "northing"):
         p.cells[k] = p.cells[k].copy()
-    _split_combined(p)
+    refused = _split_combined(p)
     _zone_and_hemisphere(p)
     zc, ec, nc = p.cells["utm_zone"], p.cells["easting"], p.cells["northing"]
     cz, ce, cn = p.name("utm_zone"), p.name("easting"), p.name("northing")
-    has = (zc != "") | (ec != "") | (nc != "")
+    has = ((zc != "") | (ec != "") | (nc != "")) & ~refused
     ea = numbers(ec, decimal_comma)
     no = numbers(nc, decimal_comma)
     log.reject(has & ea.bad, ce, ea.error)
@@ -455,6 +480,13 @@ def _utm(p: _State, decimal_comma, utm_letters, groups, track_ll):
     # 'S' that cannot be band S is the southern hemisphere
     s_hemi = is_s & ~fits_band
     south[s_hemi], decided[s_hemi] = True, True
+    lo_s, hi_s = grids.band_limits("S")
+    for k in np.flatnonzero(s_hemi):
+        i = rows[k]
+        p.letter_note[i] = (f"'{zc[i]}' was read as zone {zone[k]} of the southern hemisphere: as latitude band S "
+                            f"({_lat(lo_s)} to {_lat(hi_s)}) this northing would lie at {_lat(lat_n[k])}, outside "
+                            "that band")
+        p.north_lat[i], p.north_lon[i] = lat_n[k], lon_n[k]
     if utm_letters == "band":
         log.reject(log.mask(rows[s_hemi]), cz, lambda ii: [_band_mismatch(zc[i], "S", band_lat[_k(rows, i)])
                                                            for i in ii])
@@ -493,8 +525,9 @@ def _k(rows, i):
 
 def _band_mismatch(text, letter, lat):
     lo, hi = grids.band_limits(letter)
+    there = grids.band_letter(lat)
     return (f"'{text}': latitude band {letter} runs from {_lat(lo)} to {_lat(hi)}, but this northing is at "
-            f"{_lat(lat)}; check the band letter and the northing")
+            f"{_lat(lat)}{f', in band {there}' if there else ''}; check the band letter and the northing")
 
 
 def _both_readings(text, lat_n, lon_n, lat_s, lon_s):
@@ -701,6 +734,8 @@ def _far_from_fix(p: _State, groups):
         reach = float(others.max()) if len(others) else 0.0
         col, fits = _corrections(p, i, ref_lat[g[i]], ref_lon[g[i]], max(3.0 * reach, 2.0))
         fix = f" It would fit with {describe(fits)}." if fits else ""
+        if p.letter_note[i]:
+            col, fix = _letter_reading(p, i, near, ref_lat[g[i]], ref_lon[g[i]], max(3.0 * reach, 2.0), col, fix)
         log.reject(log.mask([i]), col,
                    f"this station is {d[i]:,.0f} km from the other stations of its fix (they lie within {reach:,.1f} km "
                    f"of their middle; a fix's bearings are taken within walking or driving reach): a position "
@@ -717,6 +752,21 @@ def _far_from_fix(p: _State, groups):
             log.warn(log.mask([i]), _position_column(p, i),
                      f"this station and line {log.lines[j]}, the only other station of its fix, are {2 * d[i]:,.0f} km "
                      "apart: one of the two positions is probably mistyped")
+
+
+def _letter_reading(p: _State, i, near, ref_lat, ref_lon, radius_km, col, fix):
+    """The column to blame and the closing sentences for a row far from its fix whose zone letter S was read as the
+    southern hemisphere: how it was read and, when the northern reading fits the fix, the letter that would."""
+    text = f" {p.letter_note[i][0].upper()}{p.letter_note[i][1:]}."
+    d = float(_km(ref_lat, ref_lon, p.north_lat[i], p.north_lon[i]))
+    if not d <= radius_km:
+        return col, text + fix
+    band = grids.band_letter(p.north_lat[i])
+    zone_cells = pd.Series(p.cells["utm_zone"][near & (p.source == "utm")], dtype=object).str.strip()
+    written = zone_cells[zone_cells != ""].value_counts()
+    others = (f"; the other stations of this fix are written '{written.index[0]}'" if len(written) else "")
+    return p.name("utm_zone"), (f"{text} In the northern hemisphere (latitude band {band}) it lies {d:,.1f} km from "
+                                f"their middle{others}: a typo for {p.zone[i]}{band}?")
 
 
 def _position_column(p: _State, i) -> str:

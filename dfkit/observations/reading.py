@@ -23,10 +23,10 @@ from dfkit.io.sheet import KNOWN_COLUMNS
 from dfkit.observations import north as north_mod
 from dfkit.observations.bearings import Bearings
 from dfkit.observations.cells import canonical, column, declinations, numbers, per_value, pick
-from dfkit.observations.columns import check_columns
+from dfkit.observations.columns import check_columns, label_like_columns
 from dfkit.observations.grouping import fill_down, fix_identities, group_fixes, pair_codes
 from dfkit.observations.options import ReadOptions, check_options
-from dfkit.observations.positions import parse_positions, read_places
+from dfkit.observations.positions import parse_positions, position_columns, read_places
 from dfkit.observations.repeats import repeated_rows
 from dfkit.observations.rowlog import RowLog
 from dfkit.observations.times import parse_times
@@ -131,6 +131,9 @@ def read_bearings(sheet, options: ReadOptions | None = None, **kwargs) -> Bearin
                                   split_gap_s=SPLIT_LABEL_GAP_H * 3600.0, log=log, notes=notes, filled=filled,
                                   hints=hints, date_only=days)
     ids = pair_codes(tag_c, fix, fix != "")
+    if not (fix_c != "").any():
+        for text in label_like_columns(t, raw.columns, used=position_columns(raw.columns).values()):
+            log.sheet_warning(text)
 
     # positions, judged against each row's own fix and the track
     pos = parse_positions(t, lines=lines, source=raw.source, decimal_comma=raw.decimal_comma, stations=stations,

@@ -1,0 +1,153 @@
+"""What the whole sheet shows that no single fix can: a group reading off, an SD given too small.
+
+Each fix is judged on its own bearings (:mod:`dfkit.locate.status`); a fault shared by
+many fixes is often too small to see in any one of them and plain once they are
+pooled. :func:`review` runs on a located sheet and
+
+* pools each observer's, team's, antenna's or receiver's residuals over the fixes
+  (:func:`dfkit.locate.offsets.sheet_offsets`): a label that reads off gets a
+  sheet-wide warning, and each ``ok`` fix whose position that offset moves by at least
+  :data:`dfkit.locate.offsets.SHIFT_SE` standard errors is no longer ``ok``;
+* checks the SD given for the sheet (:func:`sd_checks`): among the fixes sharing an SD
+  (source and value) the share flagged ``inconsistent`` at p < 0.01 should be about 1 %.
+  When it is far more (one-sided binomial test at :data:`SD_CHECK_P`) and the fixes'
+  misfits say the SD is at least :data:`SD_TOO_SMALL` times too small (the robust
+  estimate below), the sheet gets a warning with the SD the residuals suggest, and those
+  fixes' ``ok`` becomes ``inconsistent``: their regions are sized with an SD the sheet
+  shows to be too small.
+
+The SD the residuals suggest is the factor k that makes the median of the fixes'
+chi-square probabilities F_dof(S / k^2) one half (S the fix's sum of squared residuals
+in SDs, dof = n_used - 2): a median, so that the few fixes with a wild bearing do not
+set it.
+"""
+
+from __future__ import annotations
+
+from dataclasses import replace
+
+import numpy as np
+
+from dfkit.locate.fixes import WITH_POSITION
+from dfkit.locate.offsets import sheet_offsets
+from dfkit.policy import INCONSISTENT_P
+
+#: Fewest fixes sharing an SD (with at least one degree of freedom each) for the sheet-wide SD check.
+MIN_SD_FIXES = 20
+#: Level of the one-sided binomial test of the share of inconsistent fixes against INCONSISTENT_P (our choice:
+#: a sheet-wide verdict that flags every fix of the group must be rare on a clean sheet).
+SD_CHECK_P = 0.001
+#: The SD is called too small only when the residuals suggest at least this factor more: a 95 % region sized
+#: with an SD 1/1.2 of the true one holds the truth about 87 % of the time (chi-square with 2 dof at
+#: 5.99 / 1.44; our choice).
+SD_TOO_SMALL = 1.2
+_KNOWN = ("given", "calibration", "given+calibration")
+
+
+def review(fixes):
+    """The located sheet with its sheet-wide warnings (``fixes.warnings``) and the statuses they change."""
+    t = fixes.table
+    b = fixes.bearings
+    if not len(t) or not len(b):
+        return fixes
+    status = t["status"].to_numpy(dtype=object).copy()
+    reasons = t["reason"].to_numpy(dtype=object).copy()
+    has_pos = np.isin(status, WITH_POSITION)
+    warnings = list(fixes.warnings)
+    for off in sheet_offsets(t, b, has_pos):
+        warnings.append(off.text())
+        for i, shift in off.marked.items():
+            text = (f"{off.column} {off.label} reads {abs(off.offset_deg):.1f}° {'clockwise' if off.offset_deg >= 0 else 'anticlockwise'} "
+                    f"over the sheet (see the summary); without that offset this fix moves by {shift:.1f} standard "
+                    "errors, so its region may miss: calibrate it (dfkit calibrate) and use --calibration")
+            _mark(status, reasons, i, text)
+    for chk in sd_checks(t, b, has_pos):
+        warnings.append(chk["text"])
+        for i in chk["fixes"]:
+            _mark(status, reasons, i, chk["reason"])
+    if (status == t["status"].to_numpy(dtype=object)).all() and len(warnings) == len(fixes.warnings):
+        return fixes
+    t = t.copy()
+    t["status"] = status
+    t["reason"] = reasons
+    bt = b.copy(deep=False)
+    bt["fix_status"] = status[b["fix_id"].to_numpy(dtype=np.int64)]
+    return replace(fixes, table=t, bearings=bt, warnings=warnings, _regions=fixes._regions)
+
+
+def _mark(status, reasons, i, text):
+    if status[i] == "ok":
+        status[i] = "inconsistent"
+    if text not in reasons[i]:
+        reasons[i] = f"{reasons[i]}; {text}" if reasons[i] else text
+
+
+def fix_misfits(table, bearings):
+    """Per fix: S (sum of squared residuals in SDs over the bearings the fit uses) and its degrees of freedom
+    (n_used - 2; NaN / 0 where the SD is not known or the fix has no position)."""
+    m = len(table)
+    g = bearings["fix_id"].to_numpy(dtype=np.int64)
+    with np.errstate(invalid="ignore", divide="ignore"):
+        z2 = (bearings["residual_deg"].to_numpy(float) / bearings["sd"].to_numpy(float)) ** 2
+        use = (bearings["weight"].to_numpy(float) > 0) & np.isfinite(z2)
+    S = np.bincount(g, np.where(use, z2, 0.0), m)
+    n = np.bincount(g, use.astype(float), m)
+    known = table["sd_source"].isin(_KNOWN).to_numpy()
+    dof = np.where(known & table["status"].isin(WITH_POSITION).to_numpy(), n - 2, 0).astype(int)
+    return np.where(dof >= 1, S, np.nan), dof
+
+
+def suggested_factor(S, dof) -> float:
+    """k with median F_dof(S / k^2) = 1/2 (module docstring): by how much the SD looks too small."""
+    from scipy import stats
+
+    lo, hi = np.log(1e-3), np.log(1e3)
+    for _ in range(60):
+        mid = (lo + hi) / 2
+        if np.median(stats.chi2.cdf(S / np.exp(2 * mid), dof)) > 0.5:
+            lo = mid
+        else:
+            hi = mid
+    return float(np.exp((lo + hi) / 2))
+
+
+def sd_checks(table, bearings, has_pos) -> list[dict]:
+    """Groups of fixes (same SD source and value) whose SD the sheet shows to be too small: each a dict with
+    ``text`` (the warning), ``reason`` (for each ok fix) and ``fixes`` (their indices)."""
+    S, dof = fix_misfits(table, bearings)
+    sd = table["sd_deg"].to_numpy(float)
+    src = table["sd_source"].to_numpy(dtype=object)
+    have = dof >= 1
+    out = []
+    if have.sum() < MIN_SD_FIXES:
+        return out
+    from scipy import stats     # only for sheets with enough fixes of a known SD
+    keys = np.array([f"{s}|{v:.3g}" for s, v in zip(src, sd)], dtype=object)
+    for key in dict.fromkeys(keys[have]):
+        sel = np.flatnonzero(have & (keys == key))
+        n = len(sel)
+        if n < MIN_SD_FIXES:
+            continue
+        p = stats.chi2.sf(S[sel], dof[sel])
+        k = int((p < INCONSISTENT_P).sum())
+        test = stats.binomtest(k, n, INCONSISTENT_P, alternative="greater").pvalue
+        if test >= SD_CHECK_P:
+            continue
+        factor = suggested_factor(S[sel], dof[sel])
+        if factor < SD_TOO_SMALL:
+            continue
+        source, value = key.split("|")
+        what = {"given": "given", "calibration": "from the calibration"}.get(source, "given or calibrated")
+        suggest = float(value) * factor
+        text = (f"the bearing SD of {value}° {what} for {n} fixes looks too small: {k} of them "
+                f"({100 * k / n:.1f} %) are inconsistent at p < {INCONSISTENT_P:g} where about "
+                f"{100 * INCONSISTENT_P:g} % ({n * INCONSISTENT_P:.0f}) are expected (binomial p = {test:.1g}), "
+                f"and their residuals suggest an SD of about {suggest:.1f}° (the median fix's misfit); their "
+                f"regions are too small (or every bearing shares one offset: check the declination and the north "
+                f"of the bearings). Measure the SD on beacon trials (dfkit calibrate, then --calibration), "
+                f"or give the SD the bearings have (sd column or --sd {suggest:.0f})")
+        reason = (f"the sheet shows its SD of {value}° to be too small (the residuals of {n} fixes suggest about "
+                  f"{suggest:.1f}°, see the summary): this region is sized with {value}° and may miss")
+        out.append(dict(text=text, reason=reason, fixes=sel[has_pos[sel]].tolist(), factor=factor, n=n, k=k,
+                        p=test))
+    return out
