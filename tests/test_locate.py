@@ -395,3 +395,15 @@ def test_an_sd_from_four_bearings_is_pointed_out_with_the_cure(write_sheet, sd, 
     status, reason, row = status_of(locate(b), "Q")
     assert status == "ok"
     assert ("two degrees of freedom" in reason and "--calibration" in reason) == said
+
+
+def test_the_binomial_tail_of_the_sheet_wide_sd_check_matches_scipy():
+    # P(X >= k), X ~ Binomial(n, p): scipy.stats.binom.sf(k - 1, n, p) (the one-sided binomial test's p-value).
+    from scipy import stats
+
+    from dfkit.locate.sheetwide import binomial_tail
+
+    for k, n, p in ((0, 10, 0.01), (1, 20, 0.01), (3, 20, 0.01), (7, 300, 0.01), (40, 2000, 0.01), (25, 25, 0.3),
+                    (180, 100_000, 0.001), (26, 25, 0.5)):
+        want = stats.binom.sf(k - 1, n, p)
+        assert binomial_tail(k, n, p) == pytest.approx(want, rel=1e-9, abs=1e-300)
