@@ -253,7 +253,7 @@ def sheet_offsets(table, bearings, with_position) -> list[SheetOffset]:
 
     b = bearings
     m = len(table)
-    if not len(b) or not m:
+    if not len(b) or not m or not group_columns(b):      # no observer, team ... named: nothing to pool
         return []
     g = b["fix_id"].to_numpy(dtype=np.int64)
     flat, flon = table["lat"].to_numpy(float), table["lon"].to_numpy(float)
