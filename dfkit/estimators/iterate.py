@@ -83,6 +83,7 @@ def optimise(terms, objective, geo, cg, mg, x, y, w, s, c, tol, max_iter, r_run)
         if nonpd.any():
             j11, j12, j22 = (gsum(bcg, a * t, n_g) for t in (gx * gx, gx * gy, gy * gy))
             h11, h12, h22 = (np.where(nonpd, j, h) for j, h in ((j11, h11), (j12, h12), (j22, h22)))
+        del f, f1, a, f2, gx, gy, k, kxy, kd      # per-bearing terms: let go before the line search's arrays
         sx_, sy_, ratio = solve2(h11, h12, h22, b1, b2)
         live = running[grp]
         singular = live & (~np.isfinite(sx_) | ~np.isfinite(sy_) | (ratio < SINGULAR_RATIO))
