@@ -395,3 +395,14 @@ def test_an_sd_from_four_bearings_is_pointed_out_with_the_cure(write_sheet, sd, 
     status, reason, row = status_of(locate(b), "Q")
     assert status == "ok"
     assert ("two degrees of freedom" in reason and "--calibration" in reason) == said
+
+
+def test_a_rival_answer_from_two_bearings_is_not_given_a_p_value(write_sheet):
+    # Three bearings with a known SD where leaving the first out leaves two lines, which always cross: the
+    # reason may name that answer but must not quote a test that cannot be made (it printed "p = nan").
+    rows = [("609", 46.533237, -84.463024, "40.6", "5", ""), ("609", 46.565311, -84.463373, "142.7", "5", ""),
+            ("609", 46.555329, -84.442943, "232.2", "5", "")]
+    status, reason, _ = status_of(locate(read_bearings(write_sheet(sheet_of(rows)))), "609")
+    assert "nan" not in reason
+    if status == "ambiguous":
+        assert "two lines always cross" in reason
