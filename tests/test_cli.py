@@ -174,3 +174,11 @@ def test_a_date_without_a_time_column_is_reported_against_the_date_column(write_
     both = write_sheet("fix,date,time,lat,lon,bearing\n1,2026-02-30,,47.85,15.15,20\n", "both.csv")
     assert main(["check", str(both)]) == 1
     assert "line 2, time: '2026-02-30' is not a valid date" in capsys.readouterr().out
+
+
+def test_check_counts_fixes_as_tag_and_label(write_sheet, capsys):
+    # label 1 on tags a and b is two fixes; label 2 on b a third: 3 fixes from 2 distinct labels
+    sheet = write_sheet("tag,fix,lat,lon,bearing\na,1,47,15,45\na,1,47,15.02,315\nb,1,47.1,15,45\n"
+                        "b,1,47.1,15.02,315\nb,2,47.2,15,45\n")
+    main(["check", str(sheet)])
+    assert "; 3 fixes from 2 distinct labels" in capsys.readouterr().out

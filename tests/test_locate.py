@@ -407,3 +407,14 @@ def test_the_binomial_tail_of_the_sheet_wide_sd_check_matches_scipy():
                     (180, 100_000, 0.001), (26, 25, 0.5)):
         want = stats.binom.sf(k - 1, n, p)
         assert binomial_tail(k, n, p) == pytest.approx(want, rel=1e-9, abs=1e-300)
+
+
+def test_a_rival_answer_from_two_bearings_is_not_given_a_p_value(write_sheet):
+    # Three bearings with a known SD where leaving the first out leaves two lines, which always cross: the
+    # reason may name that answer but must not quote a test that cannot be made (it printed "p = nan").
+    rows = [("609", 46.533237, -84.463024, "40.6", "5", ""), ("609", 46.565311, -84.463373, "142.7", "5", ""),
+            ("609", 46.555329, -84.442943, "232.2", "5", "")]
+    status, reason, _ = status_of(locate(read_bearings(write_sheet(sheet_of(rows)))), "609")
+    assert "nan" not in reason
+    if status == "ambiguous":
+        assert "two lines always cross" in reason

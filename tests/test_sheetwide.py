@@ -139,3 +139,20 @@ def test_an_ok_three_bearing_fix_says_that_three_check_one_another_weakly(tmp_pa
     ok = t[t["status"] == "ok"]
     assert len(ok) > 30
     assert ok["reason"].str.contains("three bearings check one another only weakly").all()
+
+
+def test_a_season_import_keeps_and_prints_what_the_whole_sheet_shows(tmp_path, capsys):
+    # the same too-small SD, imported into a season store: the warning is printed with the import and kept in
+    # the store's problems table (as a warning of no single line)
+    from dfkit.cli import main
+    from dfkit.season import SeasonStore
+
+    sc = scenario(200, 3, 5.0, np.random.default_rng(22))
+    sheet = _sheet(tmp_path, sc, sd=3, name="small_sd.csv")
+    store = tmp_path / "s.gpkg"
+    assert main(["season", "add", str(store), str(sheet)]) == 1
+    assert "the bearing SD of 3° given" in capsys.readouterr().err
+    with SeasonStore.open(store) as s:
+        p = s.problems()
+    kept = p[p["message"].str.startswith("the bearing SD of 3° given")]
+    assert len(kept) == 1 and kept["severity"].iloc[0] == "warning" and kept["line"].iloc[0] == 0

@@ -29,9 +29,11 @@ def run(a) -> int:
     report_problems(b.problems, sys.stdout)
     for note in b.notes:
         print(f"note      {note}")
-    n_fix = b.table["fix"].nunique() if len(b.table) else 0
+    # a fix is a (tag, label) pair: the same label on two tags, or split by a long gap, is two fixes
+    n_fix, n_label = len(b.labels), len(set(b.labels))
+    labels = "" if n_label == n_fix else f" from {count_text(n_label, 'distinct label')}"
     print(f"{b.source}: {count_text(b.n_rows, 'row')}, {len(b.table)} usable, {rejected_summary(b)}; "
-          f"{n_fix} {'fix' if n_fix == 1 else 'fixes'} ({len(b.labels)} {'label' if len(b.labels) == 1 else 'labels'} in the sheet)")
+          f"{n_fix} {'fix' if n_fix == 1 else 'fixes'}{labels}")
     if a.output:
         ensure_dir(a.output)
         write_table(b.table, a.output, guard_formulas=not a.verbatim_csv)

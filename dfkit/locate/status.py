@@ -322,6 +322,8 @@ def _rival_text(rv, lines, sol, i):
     """The reason of an ``ambiguous`` fix: both answers, and which lines decide between them."""
     where = f"{rv.lat:.5f}, {rv.lon:.5f} ({rv.distance_m:.0f} m away)"
     fit = f"p = {rv.p:.2g}" if sol.sd_known[i] else f"SD {rv.sd_deg:.1f}°"
+    if not np.isfinite(rv.p if sol.sd_known[i] else rv.sd_deg):
+        fit = "two lines always cross, so nothing tests them"     # the other answer rests on two bearings
     tail = "" if sol.sd_known[i] else ("; with the bearing SD known (sheet sd, --sd or a calibration) dfkit can test "
                                        "the bearings more sharply")
     if rv.left_out >= 0 and rv.dropped:

@@ -170,6 +170,12 @@ class ImportReport:
         return len(self.changed)
 
 
+def _with_sheet_warnings(fixes, file_name) -> list[Problem]:
+    """The import's problems, and what the whole sheet shows (``Fixes.warnings``: an observer's offset, an SD
+    given too small) as warnings of line 0, so they are printed with the import and kept in ``problems``."""
+    return list(fixes.problems) + [Problem(0, "", w, "warning", file_name) for w in getattr(fixes, "warnings", [])]
+
+
 class SeasonStore:
     """A season store file, open for reading and adding.
 
@@ -343,7 +349,8 @@ class SeasonStore:
         own_key = np.where(n_in == 0, empty_key, None)
         report = ImportReport(import_id=0, file_name=file_name, n_rows=n_rows if n_rows is not None else len(bt),
                               n_rejected=len({p.line for p in fixes.problems if p.severity == "error" and p.line}),
-                              fixes_in=m, problems=list(fixes.problems), notes=list(fixes.notes), replaced=replace)
+                              fixes_in=m, problems=_with_sheet_warnings(fixes, file_name), notes=list(fixes.notes),
+                              replaced=replace)
         c = self.conn
         say("checking what the store already holds")
         c.execute("BEGIN IMMEDIATE")
@@ -396,7 +403,7 @@ class SeasonStore:
                     c.execute(stmt)
             c.executemany("INSERT INTO problems (import_id, line, column_name, severity, message, source) VALUES "
                           "(?, ?, ?, ?, ?, ?)",
-                          [(iid, p.line, p.column, p.severity, p.message, p.source) for p in fixes.problems])
+                          [(iid, p.line, p.column, p.severity, p.message, p.source) for p in report.problems])
             report.fixes_added = int(add.sum())
             report.bearings_added = int(keep_b.sum())
             st = table["status"].to_numpy()[add]
