@@ -25,9 +25,35 @@ left once the offset is fitted, on n - 3 degrees of freedom. A fix tests each gr
 with at least :data:`MIN_GROUP` of its bearings and at least two other bearings, at
 level :data:`OFFSET_P` divided by the number of groups it tests (Bonferroni).
 
-Across a sheet the same U and V add up over the fixes for each group label
-(:func:`sheet_offsets`): the pooled offset sum U / sum V with standard error
-1/sqrt(sum V), tested at :data:`SHEET_OFFSET_P` divided by the number of labels.
+Joint. Tested one label at a time, an offset of one observer leaks into the others:
+with three bearings per fix, one per observer, the residual of a fix has one dimension,
+close to "every bearing turned alike", and each label tested alone takes the whole
+turn. So the offsets of all L labels of a column are fitted together: with z_l the
+whitened indicator of label l, the L x L information of a fix and its score are
+
+    V_ll' = [l = l'] sum_l w^2 - c_l' M^-1 c_l',    U_l = sum_l r w - c_l' M^-1 q,
+
+(w = 1/s), and over the sheet I = sum V, S = sum U; the offsets are I^+ S with
+covariance I^+ (pseudo-inverse: a direction the fixes do not inform gets no estimate).
+:func:`explain` then names the fewest labels whose own offsets, the rest sharing one
+offset d0, leave no significant difference (a nested chi-square test of what is left,
+the classical test of a linear restriction, e.g. Seber and Lee, *Linear Regression
+Analysis*, 2nd ed., Wiley 2003, sect. 4.3 [from memory]). A named label is said
+against the rest (its contrast theta_l - d0); d0 itself, when significant, is a turn
+shared by the rest (or by every bearing: a declination or north mistake). When the
+labels cannot be told apart (the standard error of one label against the others at
+least half the shared turn), the warning says so instead of naming anyone.
+
+Across a sheet (:func:`sheet_offsets`) the whole column is tested first (chi-square on
+the rank of I) at :data:`SHEET_OFFSET_P` divided by the number of columns, and the naming
+runs at the same level. Within a fix (:func:`fix_offsets`) labels with at least
+:data:`MIN_GROUP` bearings get an offset; when they hold every bearing of the fix, a
+turn shared by all of them is the fix's own misfit (its chi-square test), so only their
+differences are tested (L - 1 dof); otherwise the other bearings are the reference. The
+level is :data:`OFFSET_P` divided by the columns the fix tests; with the SD estimated
+the test is an F test on the residual variance left once every offset is fitted.
+An ``ok`` fix is marked when removing the fitted offsets moves it by at least
+:data:`SHIFT_SE` standard errors: the shift M^-1 sum_l c_l delta_l, measured in M.
 """
 
 from __future__ import annotations
@@ -166,10 +192,12 @@ def group_stats(table, g, m, residual_deg, az_deg, range_m, sigma_deg, use, *, m
     if not fixes:
         return None
     cat = np.concatenate
+    with np.errstate(invalid="ignore"):
+        rss0 = rss - (q[0] * (Mi[0] * q[0] + Mi[1] * q[1]) + q[1] * (Mi[1] * q[0] + Mi[2] * q[1]))
     st = GroupStats(fix=cat(fixes), column=cat(columns), label=cat(labels), n=cat(ns), U=cat(Us), V=cat(Vs), B=cat(Bs),
                     shift=cat(shifts), n_fix=cat(nfs), rss1=cat(rss1s), lines=line_lists,
                     columns=cols, testable=cat(tests), ce=cat(ces), cn=cat(cns), Mi=Mi,
-                    rss0=rss - (q[0] * (Mi[0] * q[0] + Mi[1] * q[1]) + q[1] * (Mi[1] * q[0] + Mi[2] * q[1])),
+                    rss0=rss0,
                     n_used=n_fix)
     return st
 
