@@ -45,6 +45,8 @@ def test_one_fix_with_an_observer_off_is_not_ok_and_names_the_observer(tmp_path)
     assert m, r["reason"]
     # the fitted offset is the one put in (linearised model; the geodesic curvature over 2 km is far below 0.5°)
     assert abs(float(m.group(1)) - 8.0) < 0.5
+    # one fix is no sheet: the per-fix test says it, the sheet-wide test does not repeat it
+    assert fx.warnings == []
 
 
 def test_one_fix_without_offset_is_ok(tmp_path):

@@ -79,6 +79,8 @@ MIN_FREE_SHARE = 0.05
 #: it by at least this many standard errors (Mahalanobis distance): a 95 % region whose centre is off by 0.5 holds
 #: the point about 93.7 % of the time (non-central chi-square, 2 dof), by 1.0 about 88 %.
 SHIFT_SE = 0.5
+#: Fewest fixes a column must span for the sheet-wide test (one fix alone is tested on its own).
+MIN_SHEET_FIXES = 2
 
 
 @dataclass
@@ -530,6 +532,8 @@ def sheet_offsets(table, bearings, with_position) -> list[SheetOffset]:
     out = []
     for key, sel, labs, li, S, I in blocks:
         Ii, r_full = _pinv(I)
+        if len(np.unique(st.fix[sel])) < MIN_SHEET_FIXES:
+            continue        # one fix is the per-fix test's business
         if r_full == 0 or not p_of(float(S @ Ii @ S), r_full) < level:
             continue
         col = str(st.columns[int(key)])
@@ -542,8 +546,10 @@ def sheet_offsets(table, bearings, with_position) -> list[SheetOffset]:
             if not j.contrast_p[n] < level:
                 continue
             deg, se = float(np.degrees(j.contrast[n])), float(np.degrees(j.contrast_se[n]))
+            fixes_k = f"{nf[k]} fix{'es' if nf[k] != 1 else ''}"
             findings.append(f"{col} {labs[k]} reads on average {abs(deg):.1f}° (± {se:.1f}) {_side(deg)} of "
-                            f"{_names(col, labs[j.rest]) if j.rest else 'the fixes'} ({nb[k]} bearings in {nf[k]} fixes; p = "
+                            f"{_names(col, labs[j.rest]) if j.rest else 'the fixes'} ({nb[k]} bearings in {fixes_k}; "
+                            f"p = "
                             f"{j.contrast_p[n]:.1g}): a compass or antenna offset? calibrate it (dfkit calibrate)")
             offsets[str(labs[k])] = deg
             short.append(f"{col} {labs[k]} reads {abs(deg):.1f}° {_side(deg)} of the others")
@@ -560,8 +566,9 @@ def sheet_offsets(table, bearings, with_position) -> list[SheetOffset]:
                     f"± {np.degrees(j.diff_se):.1f}°), so one {col} alone reading off could look the same"
                     if not np.degrees(j.diff_se) < abs(deg) / 2 else
                     f", all {col}s alike (one against the others is known to ± {np.degrees(j.diff_se):.1f}°)")
+            fixes_r = f"{f_rest} fix{'es' if f_rest != 1 else ''}"
             findings.append(f"{alike} {abs(deg):.1f}° (± {se:.1f}) {_side(deg)} of the fixes ({n_rest} bearings "
-                            f"in {f_rest} fixes; p = {j.d0_p:.1g}{tell}): a declination or north mistake, or an "
+                            f"in {fixes_r}; p = {j.d0_p:.1g}{tell}): a declination or north mistake, or an "
                             f"offset shared by every compass? check the declination and the north of the bearings")
             for k in j.rest:
                 offsets[str(labs[k])] = deg
