@@ -25,9 +25,35 @@ left once the offset is fitted, on n - 3 degrees of freedom. A fix tests each gr
 with at least :data:`MIN_GROUP` of its bearings and at least two other bearings, at
 level :data:`OFFSET_P` divided by the number of groups it tests (Bonferroni).
 
-Across a sheet the same U and V add up over the fixes for each group label
-(:func:`sheet_offsets`): the pooled offset sum U / sum V with standard error
-1/sqrt(sum V), tested at :data:`SHEET_OFFSET_P` divided by the number of labels.
+Joint. Tested one label at a time, an offset of one observer leaks into the others:
+with three bearings per fix, one per observer, the residual of a fix has one dimension,
+close to "every bearing turned alike", and each label tested alone takes the whole
+turn. So the offsets of all L labels of a column are fitted together: with z_l the
+whitened indicator of label l, the L x L information of a fix and its score are
+
+    V_ll' = [l = l'] sum_l w^2 - c_l' M^-1 c_l',    U_l = sum_l r w - c_l' M^-1 q,
+
+(w = 1/s), and over the sheet I = sum V, S = sum U; the offsets are I^+ S with
+covariance I^+ (pseudo-inverse: a direction the fixes do not inform gets no estimate).
+:func:`explain` then names the fewest labels whose own offsets, the rest sharing one
+offset d0, leave no significant difference (a nested chi-square test of what is left,
+the classical test of a linear restriction, e.g. Seber and Lee, *Linear Regression
+Analysis*, 2nd ed., Wiley 2003, sect. 4.3 [from memory]). A named label is said
+against the rest (its contrast theta_l - d0); d0 itself, when significant, is a turn
+shared by the rest (or by every bearing: a declination or north mistake). When the
+labels cannot be told apart (the standard error of one label against the others at
+least half the shared turn), the warning says so instead of naming anyone.
+
+Across a sheet (:func:`sheet_offsets`) the whole column is tested first (chi-square on
+the rank of I) at :data:`SHEET_OFFSET_P` divided by the number of columns, and the naming
+runs at the same level. Within a fix (:func:`fix_offsets`) labels with at least
+:data:`MIN_GROUP` bearings get an offset; when they hold every bearing of the fix, a
+turn shared by all of them is the fix's own misfit (its chi-square test), so only their
+differences are tested (L - 1 dof); otherwise the other bearings are the reference. The
+level is :data:`OFFSET_P` divided by the columns the fix tests; with the SD estimated
+the test is an F test on the residual variance left once every offset is fitted.
+An ``ok`` fix is marked when removing the fitted offsets moves it by at least
+:data:`SHIFT_SE` standard errors: the shift M^-1 sum_l c_l delta_l, measured in M.
 """
 
 from __future__ import annotations
@@ -53,6 +79,8 @@ MIN_FREE_SHARE = 0.05
 #: it by at least this many standard errors (Mahalanobis distance): a 95 % region whose centre is off by 0.5 holds
 #: the point about 93.7 % of the time (non-central chi-square, 2 dof), by 1.0 about 88 %.
 SHIFT_SE = 0.5
+#: Fewest fixes a column must span for the sheet-wide test (one fix alone is tested on its own).
+MIN_SHEET_FIXES = 2
 
 
 @dataclass
@@ -75,6 +103,11 @@ class GroupStats:
     lines: list
     columns: list
     testable: np.ndarray
+    ce: np.ndarray = None
+    cn: np.ndarray = None
+    Mi: np.ndarray = None
+    rss0: np.ndarray = None
+    n_used: np.ndarray = None
 
 
 def group_columns(table) -> list[str]:
@@ -114,6 +147,7 @@ def group_stats(table, g, m, residual_deg, az_deg, range_m, sigma_deg, use, *, m
     if not len(cols):
         return None
     fixes, columns, labels, ns, Us, Vs, Bs, shifts, nfs, rss1s, line_lists, tests = ([] for _ in range(12))
+    ces, cns = [], []
     for k, col in enumerate(cols):
         val = table[col].astype(str).str.strip().to_numpy(dtype=object)
         named = use & (val != "") & (val != "nan")
@@ -154,14 +188,20 @@ def group_stats(table, g, m, residual_deg, az_deg, range_m, sigma_deg, use, *, m
         Vs.append(V[idx])
         Bs.append(B[idx])
         shifts.append(cMc[idx])
+        ces.append(ce[idx])
+        cns.append(cn[idx])
         nfs.append(n_fix[f[idx]])
         rss1s.append(rss1[idx])
     if not fixes:
         return None
     cat = np.concatenate
+    with np.errstate(invalid="ignore"):
+        rss0 = rss - (q[0] * (Mi[0] * q[0] + Mi[1] * q[1]) + q[1] * (Mi[1] * q[0] + Mi[2] * q[1]))
     st = GroupStats(fix=cat(fixes), column=cat(columns), label=cat(labels), n=cat(ns), U=cat(Us), V=cat(Vs), B=cat(Bs),
                     shift=cat(shifts), n_fix=cat(nfs), rss1=cat(rss1s), lines=line_lists,
-                    columns=cols, testable=cat(tests))
+                    columns=cols, testable=cat(tests), ce=cat(ces), cn=cat(cns), Mi=Mi,
+                    rss0=rss0,
+                    n_used=n_fix)
     return st
 
 
@@ -172,6 +212,166 @@ def _codes(val, named):
 
 def _side(deg):
     return "clockwise" if deg >= 0 else "anticlockwise"
+
+
+# ---- joint estimation: every label of a column at once ----------------------------------------------------------
+
+def _cross(group, fix, ce, cn, Mi):
+    """Every ordered pair (a, b) of (fix, label) pairs in the same ``group`` (a == b included) with
+    t = c_a' M^-1 c_b, the position's share of their joint information."""
+    order = np.argsort(group, kind="stable")
+    gs = group[order]
+    n = len(gs)
+    A, B, T = [], [], []
+    for d in range(n):
+        same = gs[: n - d] == gs[d:]
+        if not same.any():
+            break
+        a, b = order[: n - d][same], order[d:][same]
+        f = fix[a]
+        t = ce[a] * (Mi[0][f] * ce[b] + Mi[1][f] * cn[b]) + cn[a] * (Mi[1][f] * ce[b] + Mi[2][f] * cn[b])
+        A.append(a)
+        B.append(b)
+        T.append(t)
+        if d:
+            A.append(b)
+            B.append(a)
+            T.append(t)
+    if not A:
+        e = np.zeros(0, dtype=np.int64)
+        return e, e, np.zeros(0)
+    return np.concatenate(A), np.concatenate(B), np.concatenate(T)
+
+
+def _pinv(I):
+    """Pseudo-inverse and rank of a symmetric information matrix (eigenvalues below 1e-9 of the largest are
+    directions the data do not inform)."""
+    w, v = np.linalg.eigh(I)
+    tol = max(float(np.max(w, initial=0.0)), 0.0) * 1e-9
+    keep = w > tol
+    return (v[:, keep] / w[keep]) @ v[:, keep].T, int(keep.sum())
+
+
+@dataclass
+class Joint:
+    """The offsets of L labels fitted jointly (module docstring, "Joint"): ``off`` the named labels (indices),
+    ``rest`` the others, ``theta`` the fitted offset of each label [rad, whitened units] (the rest share one,
+    ``d0``), ``cov`` their covariance, ``contrast``/``contrast_se``/``contrast_p`` of each named label against the
+    rest, ``d0``/``d0_se``/``d0_p`` the rest's shared offset, ``lof_p`` whether the labels differ at all (p of the
+    differences, before any is named), ``diff_se`` the largest standard error of one label against the others."""
+
+    off: list
+    rest: list
+    theta: np.ndarray
+    contrast: np.ndarray
+    contrast_se: np.ndarray
+    contrast_p: np.ndarray
+    d0: float
+    d0_se: float
+    d0_p: float
+    lof_p: float
+    diff_se: float
+
+
+def _model(S, I, rest, off):
+    L = len(S)
+    cols = []
+    if rest:
+        a = np.zeros(L)
+        a[rest] = 1.0
+        cols.append(a)
+    for k in off:
+        e = np.zeros(L)
+        e[k] = 1.0
+        cols.append(e)
+    A = np.stack(cols, axis=1)
+    Gi, r = _pinv(A.T @ I @ A)
+    th = Gi @ (A.T @ S)
+    return th, Gi, float(S @ A @ th), r
+
+
+def explain(S, I, p_of, level) -> Joint:
+    """Name the fewest labels whose offsets, with the rest sharing one offset, explain the score ``S`` given the
+    information ``I`` (greedy: at each step the label whose own offset leaves the least unexplained, ties to the
+    one that leaves the rest's shared offset nearest zero). ``p_of(chi2, dof)`` gives the p-value of a chi-square
+    statistic (scaled by the SD where it is estimated); labels differ while that p of what is left is below
+    ``level``."""
+    L = len(S)
+    Ii, r_full = _pinv(I)
+    chi_full = float(S @ Ii @ S)
+
+    def left(off):
+        rest = [k for k in range(L) if k not in off]
+        th, Gi, chi, r = _model(S, I, rest, off)
+        z0 = abs(th[0]) / np.sqrt(Gi[0, 0]) if rest and Gi[0, 0] > 0 else 0.0
+        return max(chi_full - chi, 0.0), r_full - r, z0
+
+    off = []
+    lof, dof, _ = left(off)
+    lof_p = p_of(lof, dof) if dof > 0 else 1.0
+    while dof > 0 and p_of(lof, dof) < level and len(off) < L - 1:
+        best = min((k for k in range(L) if k not in off),
+                   key=lambda k: (round(left(off + [k])[0], 9), left(off + [k])[2]))
+        off.append(best)
+        lof, dof, _ = left(off)
+    rest = [k for k in range(L) if k not in off]
+    th, Gi, _, _ = _model(S, I, rest, off)
+    theta = np.zeros(L)
+    h = 1 if rest else 0
+    if rest:
+        theta[rest] = th[0]
+    theta[off] = th[h:]
+    d0 = float(th[0]) if rest else 0.0
+    v0 = float(Gi[0, 0]) if rest else 0.0
+    con = th[h:] - d0
+    var = np.array([Gi[h + i, h + i] + v0 - 2 * (Gi[0, h + i] if rest else 0.0) for i in range(len(off))])
+    se = np.sqrt(np.maximum(var, 0.0))
+    with np.errstate(divide="ignore", invalid="ignore"):
+        cp = np.array([p_of(c * c / v, 1) if v > 0 else 1.0 for c, v in zip(con, var)])
+        d0_p = p_of(d0 * d0 / v0, 1) if v0 > 0 else 1.0
+    # how well the data tell one label from the others: the SE of each label against the mean of the rest
+    worst = 0.0
+    if L > 1:
+        for k in range(L):
+            a = np.full(L, -1.0 / (L - 1))
+            a[k] = 1.0
+            vk = float(a @ Ii @ a)
+            in_span = np.allclose(I @ (Ii @ a), a, atol=1e-6 * max(1.0, np.abs(a).max()))
+            worst = max(worst, np.sqrt(vk) if in_span and vk > 0 else np.inf)
+    return Joint(off=off, rest=rest, theta=theta, contrast=con, contrast_se=se, contrast_p=cp, d0=d0,
+                 d0_se=float(np.sqrt(v0)) if rest else np.nan, d0_p=float(d0_p), lof_p=float(lof_p),
+                 diff_se=float(worst))
+
+
+def _names(col, labels, most=4):
+    labels = [str(x) for x in labels]
+    word = col + ("s" if len(labels) > 1 else "")
+    if len(labels) > most:
+        return f"{word} {', '.join(labels[:most - 1])} and {len(labels) - most + 1} others"
+    if len(labels) > 1:
+        return f"{word} {', '.join(labels[:-1])} and {labels[-1]}"
+    return f"{word} {labels[0]}"
+
+
+def _blocks(st, pairs, per_fix):
+    """Score and information of the labels of each block (a column over the sheet, or a column within one fix):
+    a list of (block key, label indices into st, S, I)."""
+    col = st.column[pairs]
+    if per_fix:
+        key = st.fix[pairs] * len(st.columns) + col
+    else:
+        key = col
+    blocks = []
+    for k in np.unique(key):
+        sel = pairs[key == k]
+        labs, li = np.unique(st.label[sel], return_inverse=True)
+        L = len(labs)
+        S = np.bincount(li, st.U[sel], L)
+        a, b, t = _cross(st.fix[sel], st.fix[sel], st.ce[sel], st.cn[sel], st.Mi)
+        I = np.diag(np.bincount(li, st.B[sel], L))
+        np.add.at(I, (li[a], li[b]), -t)
+        blocks.append((k, sel, labs, li, S, I))
+    return blocks
 
 
 def fix_offsets(table, g, m, sol) -> dict[int, str]:
@@ -191,63 +391,109 @@ def fix_offsets(table, g, m, sol) -> dict[int, str]:
                      min_group=MIN_GROUP)
     if st is None or not len(st.fix):
         return {}
+    # a (fix, column) is tested when it has a group of MIN_GROUP bearings and its fix a residual to test it with
+    keep = np.flatnonzero(np.isfinite(st.V) & (st.n_used[st.fix] >= 4))
+    if not len(keep):
+        return {}
+    # the fix's used bearings that belong to a tested group: when all do, a turn shared by every group is the
+    # fix's misfit (its chi-square test), and only differences between the groups are tested here
+    n_grouped = np.zeros(m * len(st.columns))
+    np.add.at(n_grouped, st.fix[keep] * len(st.columns) + st.column[keep], st.n[keep])
     from scipy import stats     # only for sheets that name observers (dfkit fix on a plain sheet loads no scipy)
 
-    known = sol.sd_known[st.fix]
-    with np.errstate(invalid="ignore", divide="ignore"):
-        z = st.U / np.sqrt(st.V)
-        dof = st.n_fix - 3
-        floor_w = np.where(known, 0.0, (sol.sd_floor_deg[st.fix] if sol.sd_floor_deg is not None else 0.0)
-                           / sol.sd_deg[st.fix])
-        s = np.where(known, 1.0, np.fmax(np.sqrt(np.maximum(st.rss1, 0.0) / np.maximum(dof, 1)), floor_w))
-        p = np.where(known, 2 * stats.norm.sf(np.abs(z)), 2 * stats.t.sf(np.abs(z / s), np.maximum(dof, 1)))
-    p = np.where((known | (dof >= 1)) & st.testable, p, np.nan)
-    tested = np.bincount(st.fix[np.isfinite(p)], minlength=m)
-    with np.errstate(invalid="ignore"):
-        off = p * tested[st.fix] < OFFSET_P
+    found = []
+    for key, sel, labs, li, S, I in _blocks(st, keep, per_fix=True):
+        i = int(key // len(st.columns))
+        common = n_grouped[key] >= st.n_used[i]
+        known = bool(sol.sd_known[i])
+        Ii, r_full = _pinv(I)
+        chi_full = float(S @ Ii @ S)
+        dof_res = int(st.n_used[i]) - 2 - r_full
+        if common:
+            ones = np.ones(len(S))
+            v1 = ones @ I @ ones
+            stat = chi_full - ((ones @ S) ** 2 / v1 if v1 > 1e-12 * max(np.trace(I), 1e-300) else 0.0)
+            dof = r_full - (1 if v1 > 1e-12 * max(np.trace(I), 1e-300) else 0)
+        else:
+            stat, dof = chi_full, r_full
+        if dof <= 0 or (not known and dof_res < 1):
+            continue
+        if known:
+            s = 1.0
+
+            def p_of(x, k):
+                return float(stats.chi2.sf(x, k))
+        else:
+            floor = (sol.sd_floor_deg[i] if sol.sd_floor_deg is not None else 0.0) / sol.sd_deg[i]
+            s = max(np.sqrt(max(st.rss0[i] - chi_full, 0.0) / dof_res), floor, 1e-12)
+
+            def p_of(x, k, s=s, dof_res=dof_res):
+                return float(stats.f.sf(x / k / s ** 2, k, dof_res))
+        found.append((i, key, sel, labs, li, S, I, p_of(stat, dof), p_of, s, common))
+    tested = np.bincount(np.array([f[0] for f in found], dtype=np.int64), minlength=m)
     out: dict[int, str] = {}
-    for k in np.flatnonzero(off):
-        i = int(st.fix[k])
-        deg = float(np.degrees(st.U[k] / st.V[k]))
-        se = float(np.degrees(s[k] / np.sqrt(st.V[k])))
-        n_t = int(tested[i])
-        lines = st.lines[k]
-        where = "line" + ("s " if len(lines) > 1 else " ") + ", ".join(str(x) for x in lines)
-        text = (f"{st.columns[st.column[k]]} {st.label[k]} reads {abs(deg):.1f}° (± {se:.1f}) {_side(deg)} of the "
-                f"other bearings of this fix ({where}; p = {p[k]:.1g}, {n_t} group{'s' if n_t != 1 else ''} tested): "
-                "a compass or antenna offset? calibrate it (dfkit calibrate) or check the declination")
-        out[i] = (out[i] + "; " + text) if i in out else text
+    for i, key, sel, labs, li, S, I, p, p_of, s, common in found:
+        level = OFFSET_P / tested[i]
+        if not p < level:
+            continue
+        col = st.columns[int(key % len(st.columns))]
+        j = explain(S, I, p_of, level)
+        groups = [([k], j.contrast[n], j.contrast_se[n], j.contrast_p[n]) for n, k in enumerate(j.off)]
+        if not common and j.rest and j.d0_p < level:
+            groups.append((j.rest, j.d0, j.d0_se, j.d0_p))
+        for ks, est, se, pk in groups:
+            if not pk < level:
+                continue
+            lines = sorted(x for q, lq in zip(sel, li) if lq in ks for x in st.lines[q])
+            others = [labs[k] for k in range(len(labs)) if k not in ks]
+            deg, se_deg = float(np.degrees(est)), float(np.degrees(s * se))
+            where = "line" + ("s " if len(lines) > 1 else " ") + ", ".join(str(x) for x in lines)
+            against = (f"; against {_names(col, others)}" if others and (common or ks != j.rest) else "")
+            n_t = int(tested[i])
+            text = (f"{_names(col, [labs[k] for k in ks])} read{'s' if len(ks) == 1 else ''} {abs(deg):.1f}° "
+                    f"(± {se_deg:.1f}) {_side(deg)} of the other bearings of this fix ({where}{against}; "
+                    f"p = {pk:.1g}{f', {n_t} columns tested' if n_t > 1 else ''}): a compass or antenna offset? "
+                    "calibrate it (dfkit calibrate) or check the declination")
+            out[i] = (out[i] + "; " + text) if i in out else text
+        if i not in out:
+            text = (f"the {col}s of this fix read differently (p = {p:.1g}) but the fix cannot tell which is off: "
+                    "a compass or antenna offset? calibrate them (dfkit calibrate)")
+            out[i] = text
     return out
 
 
 @dataclass
 class SheetOffset:
-    """A group label the sheet shows to read off: ``column``, ``label``, pooled ``offset_deg`` (clockwise
-    positive) and its ``se_deg``, ``p`` (two-sided, before the correction for ``n_tested`` labels), ``n_fixes``
-    and ``n_bearings`` pooled, and the fixes ``marked`` (index: shift in standard errors) whose position the
-    offset moves by at least :data:`SHIFT_SE`."""
+    """What the whole sheet shows about the offsets of one group column (``column``): ``findings`` (warning texts),
+    ``offsets`` {label: fitted offset [°]} of the labels named (or every label, alike, for a shared offset),
+    ``summary`` (a short form for the reasons of marked fixes) and ``marked`` {fix index: shift in standard
+    errors} of the fixes the fitted offsets move by at least :data:`SHIFT_SE`."""
 
     column: str
-    label: str
-    offset_deg: float
-    se_deg: float
-    p: float
-    n_tested: int
-    n_fixes: int
-    n_bearings: int
+    findings: list
+    offsets: dict
+    summary: str
     marked: dict
+    common: bool
 
     def text(self) -> str:
-        return (f"{self.column} {self.label} reads on average {abs(self.offset_deg):.1f}° (± {self.se_deg:.1f}) "
-                f"{_side(self.offset_deg)} of the fixes ({self.n_bearings} bearings in {self.n_fixes} fixes; "
-                f"p = {self.p:.1g}, {self.n_tested} label{'s' if self.n_tested != 1 else ''} tested): a compass or "
-                f"antenna offset? calibrate it (dfkit calibrate) or check the declination")
+        return "; ".join(self.findings)
+
+    def reason(self, shift) -> str:
+        what = ("check the declination and the north of the bearings" if self.common
+                else "calibrate it (dfkit calibrate) and use --calibration")
+        return (f"{self.summary} over the sheet (see the summary); without that offset this fix moves by "
+                f"{shift:.1f} standard errors, so its region may miss: {what}")
 
 
 def sheet_offsets(table, bearings, with_position) -> list[SheetOffset]:
     """The sheet-wide test (module docstring) on a located sheet: ``table`` and ``bearings`` of
     :class:`~dfkit.locate.Fixes`, ``with_position`` per fix. Bearings off by more than
-    :data:`dfkit.policy.WILD_SD` SDs are left out of the pooling (they are named in their fixes)."""
+    :data:`dfkit.policy.WILD_SD` SDs are left out of the pooling (they are named in their fixes).
+
+    An estimated SD is one value for the whole sheet (the median of the fixes' estimates) and is then used as if
+    known: with the hundreds of bearings a sheet-wide test needs, its own uncertainty is small (a few per cent).
+    """
     from dfkit import geodesy
     from dfkit.policy import WILD_SD
 
@@ -271,37 +517,83 @@ def sheet_offsets(table, bearings, with_position) -> list[SheetOffset]:
     st = group_stats(b, g, m, r, az, b["range_m"].to_numpy(float), sigma, use, min_group=1)
     if st is None or not len(st.fix):
         return []
+    pairs = np.flatnonzero(np.isfinite(st.V) & (st.n_used[st.fix] >= 3))
+    if not len(pairs):
+        return []
     from scipy import stats
 
-    key = st.column * (10 ** 9) + np.unique(st.label, return_inverse=True)[1]
-    labels, inv = np.unique(key, return_inverse=True)
-    L = len(labels)
-    tw = st.testable.astype(float)
-    Us, Vs = np.bincount(inv, np.where(st.testable, st.U, 0.0), L), np.bincount(inv, np.where(st.testable, st.V, 0.0), L)
-    nf = np.bincount(inv, tw, L).astype(int)
-    nb = np.bincount(inv, tw * st.n, L).astype(int)
-    ok = (nf >= 2) & (Vs > 0)
-    n_tested = int(ok.sum())
-    out = []
-    with np.errstate(invalid="ignore", divide="ignore"):
-        z = Us / np.sqrt(Vs)
-        p = 2 * stats.norm.sf(np.abs(z))
-    found = np.flatnonzero(ok & (p * max(n_tested, 1) < SHEET_OFFSET_P))
-    if not len(found):
-        return out
-    # the shift each flagged label causes in every fix using it, its wild bearings included (they move it too)
+    def p_of(x, k):
+        return float(stats.chi2.sf(x, k))
+
+    blocks = _blocks(st, pairs, per_fix=False)
+    level = SHEET_OFFSET_P / len(blocks)
     with np.errstate(invalid="ignore"):
         every = with_position[g] & (b["weight"].to_numpy(float) > 0) & (np.abs(r) < 90.0)
-    st2 = group_stats(b, g, m, r, az, b["range_m"].to_numpy(float), sigma, every, min_group=1)
-    for k in found:
-        first = int(np.flatnonzero(inv == k)[0])
-        col, label = st.column[first], st.label[first]
-        delta = Us[k] / Vs[k]
-        pairs = np.flatnonzero((st2.column == col) & (st2.label == label))
-        shift = np.abs(delta) * np.sqrt(np.maximum(st2.shift[pairs], 0.0))
-        marked = {int(st2.fix[j]): float(x) for j, x in zip(pairs, shift) if x >= SHIFT_SE}
-        out.append(SheetOffset(column=str(st.columns[col]), label=str(label),
-                               offset_deg=float(np.degrees(delta)), se_deg=float(np.degrees(1 / np.sqrt(Vs[k]))),
-                               p=float(p[k]), n_tested=n_tested, n_fixes=int(nf[k]), n_bearings=int(nb[k]),
-                               marked=marked))
+    st2 = None
+    out = []
+    for key, sel, labs, li, S, I in blocks:
+        Ii, r_full = _pinv(I)
+        if len(np.unique(st.fix[sel])) < MIN_SHEET_FIXES:
+            continue        # one fix is the per-fix test's business
+        if r_full == 0 or not p_of(float(S @ Ii @ S), r_full) < level:
+            continue
+        col = str(st.columns[int(key)])
+        j = explain(S, I, p_of, level)
+        nf = np.array([len(np.unique(st.fix[sel][li == k])) for k in range(len(labs))])
+        nb = np.bincount(li, st.n[sel], len(labs)).astype(int)
+        findings, offsets, short = [], {}, []
+        delta = np.zeros(len(labs))
+        for n, k in enumerate(j.off):
+            if not j.contrast_p[n] < level:
+                continue
+            deg, se = float(np.degrees(j.contrast[n])), float(np.degrees(j.contrast_se[n]))
+            fixes_k = f"{nf[k]} fix{'es' if nf[k] != 1 else ''}"
+            findings.append(f"{col} {labs[k]} reads on average {abs(deg):.1f}° (± {se:.1f}) {_side(deg)} of "
+                            f"{_names(col, labs[j.rest]) if j.rest else 'the fixes'} ({nb[k]} bearings in {fixes_k}; "
+                            f"p = "
+                            f"{j.contrast_p[n]:.1g}): a compass or antenna offset? calibrate it (dfkit calibrate)")
+            offsets[str(labs[k])] = deg
+            short.append(f"{col} {labs[k]} reads {abs(deg):.1f}° {_side(deg)} of the others")
+            delta[k] = j.contrast[n]
+        if j.rest and j.d0_p < level:
+            deg, se = float(np.degrees(j.d0)), float(np.degrees(j.d0_se))
+            n_rest = int(nb[j.rest].sum())
+            f_rest = len(np.unique(st.fix[sel][np.isin(li, j.rest)]))
+            alike = (f"{col} {labs[0]} reads on average" if len(labs) == 1 else
+                     "the bearings of this sheet read on average" if not j.off else
+                     f"{_names(col, labs[j.rest])} read{'s' if len(j.rest) == 1 else ''} on average")
+            tell = ("" if len(labs) < 2 else
+                    f"; the fixes do not tell the {col}s apart (one against the others is known only to "
+                    f"± {np.degrees(j.diff_se):.1f}°), so one {col} alone reading off could look the same"
+                    if not np.degrees(j.diff_se) < abs(deg) / 2 else
+                    f", all {col}s alike (one against the others is known to ± {np.degrees(j.diff_se):.1f}°)")
+            fixes_r = f"{f_rest} fix{'es' if f_rest != 1 else ''}"
+            findings.append(f"{alike} {abs(deg):.1f}° (± {se:.1f}) {_side(deg)} of the fixes ({n_rest} bearings "
+                            f"in {fixes_r}; p = {j.d0_p:.1g}{tell}): a declination or north mistake, or an "
+                            f"offset shared by every compass? check the declination and the north of the bearings")
+            for k in j.rest:
+                offsets[str(labs[k])] = deg
+            short.insert(0, f"{'the bearings' if not j.off else _names(col, labs[j.rest])} read "
+                            f"{abs(deg):.1f}° {_side(deg)}")
+            delta[j.rest] = j.d0
+            delta[j.off] += j.d0
+        if not findings:
+            findings.append(f"the {col}s of this sheet read differently (p = {j.lof_p:.1g}) but the fixes do not "
+                            f"tell which is off: a compass or antenna offset? calibrate them (dfkit calibrate)")
+            out.append(SheetOffset(column=col, findings=findings, offsets={}, summary="", marked={}, common=False))
+            continue
+        # the shift the fitted offsets cause in every fix, its wild bearings included (they move it too)
+        if st2 is None:
+            st2 = group_stats(b, g, m, r, az, b["range_m"].to_numpy(float), sigma, every, min_group=1)
+        pk = np.flatnonzero((st2.column == key) & np.isfinite(st2.ce))
+        lookup = {str(x): d for x, d in zip(labs, delta)}
+        dl = np.array([lookup.get(str(x), 0.0) for x in st2.label[pk]])
+        ve = np.bincount(st2.fix[pk], st2.ce[pk] * dl, m)
+        vn = np.bincount(st2.fix[pk], st2.cn[pk] * dl, m)
+        Mi = st2.Mi
+        with np.errstate(invalid="ignore"):
+            shift = np.sqrt(np.maximum(ve * (Mi[0] * ve + Mi[1] * vn) + vn * (Mi[1] * ve + Mi[2] * vn), 0.0))
+        marked = {int(i): float(shift[i]) for i in np.flatnonzero(np.isfinite(shift) & (shift >= SHIFT_SE))}
+        out.append(SheetOffset(column=col, findings=findings, offsets=offsets, summary="; ".join(short),
+                               marked=marked, common=not j.off))
     return out

@@ -57,12 +57,9 @@ def review(fixes):
     has_pos = np.isin(status, WITH_POSITION)
     warnings = list(fixes.warnings)
     for off in sheet_offsets(t, b, has_pos):
-        warnings.append(off.text())
+        warnings.extend(off.findings)
         for i, shift in off.marked.items():
-            text = (f"{off.column} {off.label} reads {abs(off.offset_deg):.1f}° {'clockwise' if off.offset_deg >= 0 else 'anticlockwise'} "
-                    f"over the sheet (see the summary); without that offset this fix moves by {shift:.1f} standard "
-                    "errors, so its region may miss: calibrate it (dfkit calibrate) and use --calibration")
-            _mark(status, reasons, i, text)
+            _mark(status, reasons, i, off.reason(shift))
     for chk in sd_checks(t, b, has_pos):
         warnings.append(chk["text"])
         for i in chk["fixes"]:
