@@ -1,7 +1,7 @@
 """The floor of `dfkit fix`: the least work any program must do for the same sheet, timed in the same run as dfkit.
 
     .venv/bin/python benchmarks/bench_floor.py compare [--fixes 10000,100000,250000] [--runs 3] [--loop-sample 300]
-                                                       [--pyarrow DIR] [--dfkit-args '--jobs 2']
+                                                       [--pyarrow DIR] [--dfkit-args '--jobs 2'] [--before DIR]
     .venv/bin/python benchmarks/bench_floor.py floor SHEET OUT [--columns 30] [--pyarrow DIR]   (one floor run)
 
 The floor process (``floor``) does, in one fresh interpreter, what cannot be avoided:
@@ -24,7 +24,10 @@ It prints its stage times (``time.perf_counter``) and its peak memory. ``compare
 machine whose speed drifts moves both. With ``--pyarrow`` each pair also runs the floor with the csv-module
 writer, and the memory columns compare against that one (pyarrow's own import is not part of the work). Last, a per-fix ``scipy.optimize.least_squares`` loop (bench_fix.py's, on
 the same geodesic residuals with tolerances 1e-12) on a sample of fixes, scaled to all fixes, against dfkit end
-to end. Prints a Markdown table of medians with (min-max). Nothing is asserted: the numbers go into
+to end. Prints a Markdown table of medians with (min-max). ``--before DIR`` (a folder holding another version's
+``dfkit`` package, e.g. ``git archive main dfkit | tar -x -C DIR``) runs that version too in each round (A B C ...,
+``PYTHONPATH=DIR``; run from outside the checkout, whose ``dfkit`` would otherwise come first) and adds its
+CPU time and peak and the ratios after/before, pair by pair. Nothing is asserted: the numbers go into
 DEVELOPERS.md with the command that produced them.
 """
 
@@ -136,8 +139,10 @@ def compare(a):
             flo = [sys.executable, os.path.abspath(__file__), "floor", sheet, os.path.join(tmp, "floor.csv"),
                    "--columns", str(len(FIX_COLUMNS))] + (["--pyarrow", a.pyarrow] if a.pyarrow else [])
             plain = [x for x in flo if x != "--pyarrow" and x != a.pyarrow]
-            got = {"dfkit": [], "floor": [], "plain": []}
+            got = {"dfkit": [], "floor": [], "plain": [], "before": []}
             for _ in range(a.runs):
+                if a.before:
+                    got["before"].append(_child(dfk, env=dict(os.environ, PYTHONPATH=os.path.abspath(a.before))))
                 got["dfkit"].append(_child(dfk))
                 got["floor"].append(_child(flo))
                 if a.pyarrow:
@@ -145,7 +150,7 @@ def compare(a):
             d, f = got["dfkit"], got["floor"]
             if a.pyarrow:     # memory against the floor whose writer needs no library of its own
                 f = [(x[0], x[1], y[2], x[3]) for x, y in zip(f, got["plain"])]
-            rows.append((n_fix, d, f))
+            rows.append((n_fix, d, f, got["before"]))
             print(f"{n_fix} fixes: dfkit exit {d[0][3]}, floor exit {f[0][3]}", file=sys.stderr)
         # the per-fix optimiser loop, on the last size's fixes
         rng = np.random.default_rng(2)
@@ -158,7 +163,7 @@ def compare(a):
     print("| fixes | dfkit CPU s | floor CPU s | CPU ratio | dfkit wall s | floor wall s | wall ratio "
           "| dfkit peak MiB | floor peak MiB | peak ratio | scipy loop / dfkit |")
     print("|---|---|---|---|---|---|---|---|---|---|---|")
-    for n_fix, d, f in rows:
+    for n_fix, d, f, _ in rows:
         cpu_r = [x[1] / y[1] for x, y in zip(d, f)]
         wall_r = [x[0] / y[0] for x, y in zip(d, f)]
         mem_r = [x[2] / y[2] for x, y in zip(d, f)]
@@ -167,6 +172,14 @@ def compare(a):
               f"| {_med([x[0] for x in d])} | {_med([x[0] for x in f])} | {_med(wall_r)} "
               f"| {_med([x[2] for x in d])} | {_med([x[2] for x in f])} | {_med(mem_r)} | {loop:.0f}x |")
     print(f"scipy least_squares loop: {1e3 * per_fix:.2f} ms CPU per fix ({len(idx)} fixes sampled)")
+    if a.before:
+        print("\n| fixes | before CPU s | after CPU s | after/before CPU | before peak MiB | after peak MiB "
+              "| after/before peak |")
+        print("|---|---|---|---|---|---|---|")
+        for n_fix, d, _, b in rows:
+            print(f"| {n_fix:,} | {_med([x[1] for x in b])} | {_med([x[1] for x in d])} "
+                  f"| {_med([x[1] / y[1] for x, y in zip(d, b)])} | {_med([x[2] for x in b])} "
+                  f"| {_med([x[2] for x in d])} | {_med([x[2] / y[2] for x, y in zip(d, b)])} |")
 
 
 def main():
@@ -183,6 +196,7 @@ def main():
     c.add_argument("--loop-sample", type=int, default=300)
     c.add_argument("--pyarrow", default=None, help="a folder holding pyarrow, for the floor's write only")
     c.add_argument("--dfkit-args", default="", help="more arguments for dfkit fix (e.g. '--jobs 2')")
+    c.add_argument("--before", default=None, help="a folder holding another version's dfkit package, timed too")
     a = ap.parse_args()
     if a.what == "floor":
         floor(a.sheet, a.out, a.columns, a.pyarrow)

@@ -387,7 +387,7 @@ def region_threshold(s_min, known, dof, level, known_dof=None, sd_floor_rad=None
 
 def likelihood_regions(fix_lat, fix_lon, g, station_lat, station_lon, bearing_deg, range_m, azimuth_from_fix_deg,
                        residual_deg, weight, known, dof, level, *, known_dof=None, sd_floor_deg=None, valid=None,
-                       n_rays=N_RAYS, chunk=5_000) -> LikelihoodRegions:
+                       n_rays=N_RAYS, chunk=2_000) -> LikelihoodRegions:
     """Likelihood-ratio regions of many fixes (module docstring), vectorised.
 
     Parameters
@@ -486,42 +486,43 @@ def likelihood_regions(fix_lat, fix_lon, g, station_lat, station_lon, bearing_de
         weight=np.where(ok[g], weight, 0.0))
 
 
-def _residual(phi, dx, dy):
-    """Signed angle from the direction (dx, dy) to the observed direction phi [rad], without wrapping."""
-    sp, cp = np.sin(phi), np.cos(phi)
+def _residual(sp, cp, dx, dy):
+    """Signed angle from the direction (dx, dy) to the observed direction phi [rad], without wrapping
+    (``sp``, ``cp`` the sine and cosine of phi, computed once per batch)."""
     return np.arctan2(sp * dy - cp * dx, sp * dx + cp * dy)
 
 
-def _at(phi, sx, sy, px, py):
-    """Offsets, squared distances, residuals and bearing gradients at one point per fix (bearings (M, n))."""
+def _at(trig, sx, sy, px, py):
+    """Offsets, squared distances, residuals and bearing gradients at one point per fix (bearings (M, n);
+    ``trig`` the sine and cosine of the observed directions)."""
     dx = px[:, None] - sx
     dy = py[:, None] - sy
     d2 = np.maximum(dx * dx + dy * dy, 1e-18)
-    return dx, dy, d2, _residual(phi, dx, dy), dy / d2, -dx / d2
+    return dx, dy, d2, _residual(trig[0], trig[1], dx, dy), dy / d2, -dx / d2
 
 
-def _s_and_grad(phi, sx, sy, v, px, py):
+def _s_and_grad(trig, sx, sy, v, px, py):
     """S at one point per fix (px, py), with the Gauss-Newton gradient terms. Bearings are (M, n)."""
-    _, _, _, r, gx, gy = _at(phi, sx, sy, px, py)
+    _, _, _, r, gx, gy = _at(trig, sx, sy, px, py)
     vr = v * r
     return ((vr * r).sum(1), (vr * gx).sum(1), (vr * gy).sum(1), (v * gx * gx).sum(1), (v * gx * gy).sum(1),
             (v * gy * gy).sum(1))
 
 
-def _hessian(phi, sx, sy, v, px, py):
+def _hessian(trig, sx, sy, v, px, py):
     """Half the Hessian of S at (px, py): sum v (g g^T - r dg/dP), dg/dP = [[-2xy, x2-y2], [x2-y2, 2xy]]/d^4."""
-    dx, dy, d2, r, gx, gy = _at(phi, sx, sy, px, py)
+    dx, dy, d2, r, gx, gy = _at(trig, sx, sy, px, py)
     k = v * r / (d2 * d2)
     return ((v * gx * gx + 2 * k * dx * dy).sum(1), (v * gx * gy - k * (dx * dx - dy * dy)).sum(1),
             (v * gy * gy - 2 * k * dx * dy).sum(1))
 
 
-def _minimum(phi, sx, sy, v, iterations=20):
+def _minimum(trig, sx, sy, v, iterations=20):
     """Gauss-Newton on S from the fix (the origin), each step accepted only if S does not grow."""
-    M = phi.shape[0]
+    M = sx.shape[0]
     x = np.zeros(M)
     y = np.zeros(M)
-    S, b1, b2, j11, j12, j22 = _s_and_grad(phi, sx, sy, v, x, y)
+    S, b1, b2, j11, j12, j22 = _s_and_grad(trig, sx, sy, v, x, y)
     J = np.stack([j11, j12, j22], 1)
     live = np.arange(M)
     for _ in range(iterations):
@@ -541,7 +542,7 @@ def _minimum(phi, sx, sy, v, iterations=20):
             if not len(trying):
                 break
             rows = live[trying]
-            out = _s_and_grad(phi[rows], sx[rows], sy[rows], v[rows], x[rows] + lam[trying] * stx[trying],
+            out = _s_and_grad(_rows(trig, rows), sx[rows], sy[rows], v[rows], x[rows] + lam[trying] * stx[trying],
                               y[rows] + lam[trying] * sty[trying])
             ok = out[0] <= S[rows] * (1 + 1e-12) + 1e-300
             acc = trying[ok]
@@ -558,13 +559,17 @@ def _minimum(phi, sx, sy, v, iterations=20):
     return x, y, S, J[:, 0], J[:, 1], J[:, 2]
 
 
-def _ray_f(phi, sx, sy, v, cx, cy, rho, ux, uy, T, derivative=True):
+def _rows(trig, rows):
+    return trig[0][rows], trig[1][rows]
+
+
+def _ray_f(trig, sx, sy, v, cx, cy, rho, ux, uy, T, derivative=True):
     """f = S - T along every ray, shape (M, K), and its derivative in rho. Bearings are (M, n)."""
     px = (cx[:, None] + rho * ux)[:, None, :]
     py = (cy[:, None] + rho * uy)[:, None, :]
     dx = px - sx[:, :, None]
     dy = py - sy[:, :, None]
-    r = _residual(phi[:, :, None], dx, dy)
+    r = _residual(trig[0][:, :, None], trig[1][:, :, None], dx, dy)
     vr = v[:, :, None] * r
     f = (vr * r).sum(1) - T[:, None]
     if not derivative:
@@ -574,14 +579,39 @@ def _ray_f(phi, sx, sy, v, cx, cy, rho, ux, uy, T, derivative=True):
     return f, -2.0 * (vr * dbeta).sum(1)
 
 
+class _Rays:
+    """Single rays (fix j, ray k) of a batch, evaluated without the other rays of their fixes.
+
+    The bearings are held transposed, (n, M), so that a ray's sum over its bearings adds them in the same
+    order as :func:`_ray_f` does (the same floating-point result, bit for bit).
+    """
+
+    def __init__(self, trig, sx, sy, v, cx, cy, T, ux, uy):
+        self.sp, self.cp, self.sx, self.sy, self.v = (np.ascontiguousarray(a.T) for a in (*trig, sx, sy, v))
+        self.cx, self.cy, self.T, self.ux, self.uy = cx, cy, T, ux[0], uy[0]
+
+    def f(self, j, k, rho):
+        """f = S - T and its derivative in rho at radius ``rho`` on ray k of fix j (arrays of rays)."""
+        ux, uy = self.ux[k], self.uy[k]
+        dx = (self.cx[j] + rho * ux)[None, :] - self.sx[:, j]
+        dy = (self.cy[j] + rho * uy)[None, :] - self.sy[:, j]
+        r = _residual(self.sp[:, j], self.cp[:, j], dx, dy)
+        vr = self.v[:, j] * r
+        f = (vr * r).sum(0) - self.T[j]
+        d2 = np.maximum(dx * dx + dy * dy, 1e-18)
+        dbeta = (dy * ux - dx * uy) / d2
+        return f, -2.0 * (vr * dbeta).sum(0)
+
+
 def _march(sx, sy, phi, v, known, dof, kdof, floor, level, psi, draw, fix_lat, fix_lon, *, station_lat, station_lon,
            theta, spread):
     M = phi.shape[0]
-    cx, cy, s_min, j11, j12, j22 = _minimum(phi, sx, sy, v)
+    trig = (np.sin(phi), np.cos(phi))
+    cx, cy, s_min, j11, j12, j22 = _minimum(trig, sx, sy, v)
     T = region_threshold(s_min, known, dof, level, kdof, floor)
     ux, uy = np.sin(psi)[None, :], np.cos(psi)[None, :]
     # the full Hessian where it is positive definite (a better first guess), else Gauss-Newton's
-    h11, h12, h22 = _hessian(phi, sx, sy, v, cx, cy)
+    h11, h12, h22 = _hessian(trig, sx, sy, v, cx, cy)
     pd = ((h11 > 0) & (h11 * h22 - h12 * h12 > 0))[:, None]
     quad = np.where(pd, h11[:, None] * ux * ux + 2 * h12[:, None] * ux * uy + h22[:, None] * uy * uy,
                     j11[:, None] * ux * ux + 2 * j12[:, None] * ux * uy + j22[:, None] * uy * uy)
@@ -593,7 +623,7 @@ def _march(sx, sy, phi, v, known, dof, kdof, floor, level, psi, draw, fix_lat, f
     # (the quadratic correction of rho is then within 3e-5 of the root); elsewhere a safeguarded Newton
     # search follows. With bearing SDs of a few degrees the edge is typically 5 % off the quadratic
     # model, so most rays take one or two Newton steps.
-    f0, _ = _ray_f(phi, sx, sy, v, cx, cy, rho, ux, uy, T, derivative=False)
+    f0, _ = _ray_f(trig, sx, sy, v, cx, cy, rho, ux, uy, T, derivative=False)
     gap = (T - s_min)[:, None]
     with np.errstate(divide="ignore", invalid="ignore"):
         quad_rho = rho * np.sqrt(gap / (f0 + gap))
@@ -603,49 +633,64 @@ def _march(sx, sy, phi, v, known, dof, kdof, floor, level, psi, draw, fix_lat, f
     lo = np.where(f0 < 0, np.where(near, 0.0, rho), 0.0)
     hi = np.where(f0 >= 0, rho, np.inf)
     rho = np.where(near | ~np.isfinite(quad_rho) | (quad_rho >= R), rho, quad_rho)
-    # Safeguarded Newton on f(rho) = S - T, keeping a bracket [lo, hi] with f(lo) < 0 < f(hi).
-    live = np.flatnonzero(~near.all(axis=1))
-    for _ in range(60):
-        if not len(live):
+    # Safeguarded Newton on f(rho) = S - T, keeping a bracket [lo, hi] with f(lo) < 0 < f(hi). The first
+    # round takes every ray of a fix with a ray to search; later rounds only the rays not yet done (a ray
+    # once done keeps its radius, so evaluating it again would change nothing).
+    rays = _Rays(trig, sx, sy, v, cx, cy, T, ux, uy)
+    K = len(psi)
+    first = np.flatnonzero(~near.all(axis=1))
+    j = np.repeat(first, K)
+    k = np.tile(np.arange(K), len(first))
+    Rf, rhof, lof, hif, ff = R.ravel(), rho.ravel(), lo.ravel(), hi.ravel(), f_all.ravel()
+    gapf = np.broadcast_to(gap, R.shape).ravel()
+    for rnd in range(60):
+        if not len(j):
             break
-        f, df = _ray_f(phi[live], sx[live], sy[live], v[live], cx[live], cy[live], rho[live], ux, uy, T[live])
-        f_all[live] = f
-        r_l, lo_l, hi_l, R_l = rho[live], lo[live], hi[live], R[live]
+        flat = j * K + k
+        r_l, lo_l, hi_l, R_l = rhof[flat], lof[flat], hif[flat], Rf[flat]
+        if rnd == 0:            # whole fixes: (fixes, bearings, rays) arrays, no gathering of single rays
+            f, df = _ray_f(_rows(trig, first), sx[first], sy[first], v[first], cx[first], cy[first],
+                           r_l.reshape(-1, K), ux, uy, T[first])
+            f, df = f.ravel(), df.ravel()
+        else:
+            f, df = rays.f(j, k, r_l)
+        ff[flat] = f
         neg = f < 0
         lo_l = np.where(neg, np.maximum(lo_l, r_l), lo_l)
         hi_l = np.where(~neg, np.minimum(hi_l, r_l), hi_l)
         # |f| within 1e-3 of the gap T - S_min: the radius within about 5e-4 of the root, the area 1e-3
-        conv = (np.abs(f) <= 1e-3 * (T[live] - s_min[live])[:, None]) | (hi_l - lo_l <= 1e-5 * r_l)
+        conv = (np.abs(f) <= 1e-3 * gapf[flat]) | (hi_l - lo_l <= 1e-5 * r_l)
         done = conv | (neg & (r_l >= R_l))
         with np.errstate(divide="ignore", invalid="ignore"):
             newton = r_l - f / df
         inside = np.isfinite(newton) & (newton > lo_l) & (newton < np.minimum(hi_l, R_l))
         bis = np.where(np.isfinite(hi_l), 0.5 * (lo_l + hi_l), np.minimum(2.0 * r_l, R_l))
-        rho[live] = np.where(done, r_l, np.where(inside, newton, bis))
-        lo[live], hi[live] = lo_l, hi_l
-        live = live[~done.all(axis=1)]
-    f = f_all
+        rhof[flat] = np.where(done, r_l, np.where(inside, newton, bis))
+        lof[flat], hif[flat] = lo_l, hi_l
+        j, k = j[~done], k[~done]
+    rho, f = rhof.reshape(M, K), ff.reshape(M, K)
     open_ray = (f < 0) & (rho >= R * (1 - 1e-9))
     rho = np.where(open_ray, R, rho)
     # Star-shapedness: S must stay above T beyond the edge found; if not, the ray's far part is kept.
     star = np.ones(M, bool)
     for factor in (3.0,):
         probe = np.minimum(rho * factor, R)
-        fp, _ = _ray_f(phi, sx, sy, v, cx, cy, probe, ux, uy, T, derivative=False)
+        fp, _ = _ray_f(trig, sx, sy, v, cx, cy, probe, ux, uy, T, derivative=False)
         back = (fp < 0) & ~open_ray & (probe > rho * 1.0001)
         if back.any():
             star &= ~back.any(axis=1)
             rows = np.flatnonzero(back.any(axis=1))
-            sub = (phi[rows], sx[rows], sy[rows], v[rows], cx[rows], cy[rows])
+            sub = (_rows(trig, rows), sx[rows], sy[rows], v[rows], cx[rows], cy[rows])
             new, still_open = _last_crossing(*sub, probe[rows], R[rows], ux, uy, T[rows])
             b = back[rows]
             rho[rows] = np.where(b, new, rho[rows])
             open_ray[rows] |= b & still_open
     # Open at infinity: the plane limit of S far along direction psi is sum v wrap(phi - psi)^2.
-    c = (v * np.cos(phi)).sum(1)
-    s = (v * np.sin(phi)).sum(1)
+    c = (v * trig[1]).sum(1)
+    s = (v * trig[0]).sum(1)
     dirs = np.concatenate([np.broadcast_to(psi, (M, len(psi))), np.arctan2(s, c)[:, None]], axis=1)
-    r_inf = _wrap(phi[:, :, None] - dirs[:, None, :])
+    r_inf = phi[:, :, None] - dirs[:, None, :]
+    r_inf -= _TWO_PI * np.rint(r_inf * (1.0 / _TWO_PI))        # wrapped to [-pi, pi] (only its square is used)
     s_inf = (v[:, :, None] * r_inf * r_inf).sum(1).min(axis=1)
     bounded = ~open_ray.any(axis=1) & (s_inf >= T)
     res = dict(centre_x=cx, centre_y=cy, radius_m=rho, bounded=bounded, star_shaped=star, s_min=s_min,
@@ -655,14 +700,14 @@ def _march(sx, sy, phi, v, known, dof, kdof, floor, level, psi, draw, fix_lat, f
     return res
 
 
-def _last_crossing(phi, sx, sy, v, cx, cy, probe, R, ux, uy, T):
+def _last_crossing(trig, sx, sy, v, cx, cy, probe, R, ux, uy, T):
     """Where S climbs back above T beyond ``probe`` (bisection up to the drawing range)."""
     lo = probe.copy()
     hi = R.copy()
-    fR, _ = _ray_f(phi, sx, sy, v, cx, cy, hi, ux, uy, T, derivative=False)
+    fR, _ = _ray_f(trig, sx, sy, v, cx, cy, hi, ux, uy, T, derivative=False)
     for _ in range(40):
         mid = 0.5 * (lo + hi)
-        fm, _ = _ray_f(phi, sx, sy, v, cx, cy, mid, ux, uy, T, derivative=False)
+        fm, _ = _ray_f(trig, sx, sy, v, cx, cy, mid, ux, uy, T, derivative=False)
         lo = np.where(fm < 0, mid, lo)
         hi = np.where(fm < 0, hi, mid)
     still_open = fR < 0

@@ -455,3 +455,41 @@ def test_andrews_keeps_a_doubtful_bearing_down_weighted_when_all_together_are_pl
     s = one_fix(st, b, method="andrews")
     assert s.converged[0]
     assert (s.weight > 0).all() and s.weight[4] < 1.0
+
+
+# Fixes with one wild bearing whose first start ends on a station, so a later start is needed (found by a
+# seeded simulation: four stations 0.5-2 km away, SD 5 degrees, the first bearing 40-120 degrees off).
+LATER_START_FIXES = {
+    "huber": ([46.336036, 46.350293, 46.340587, 46.343155], [12.003467, 12.017034, 12.035047, 12.030236],
+              [81.85, 210.94, 280.83, 271.05]),
+    "andrews": ([46.013393, 46.015171, 46.014416, 46.015299], [9.804224, 9.818953, 9.79865, 9.833782],
+                [193.49, 259.68, 103.32, 255.35]),
+}
+
+
+@pytest.mark.parametrize("method", LATER_START_FIXES)
+def test_a_later_start_is_placed_in_the_first_plane(method):
+    # Starts are planar points about the stations' centroid; they must be solved in that plane even after an
+    # earlier start of the same fix was carried elsewhere. The answer is then an optimum for an outside
+    # optimiser: scipy's Nelder-Mead on the robust objective with geographiclib azimuths, started 30 m away,
+    # comes back to it (Huber 1964 / Andrews 1974 rho of the chord residual 2 sin(r/2) / sd, c = 1.5).
+    lat, lon, b = (np.array(v) for v in LATER_START_FIXES[method])
+    st = np.column_stack([lat, lon])
+    sd, c = np.radians(5.0), 1.5
+    s = one_fix(st, b, method=method, sd_deg=np.full(4, 5.0))
+    assert s.converged[0], estimators.ENDINGS[s.ending[0]]
+
+    def objective(p):
+        t = 2 * np.sin(np.radians(b - exact_bearings(st, p)) / 2) / sd
+        if method == "huber":
+            return np.sum(np.where(np.abs(t) <= c, 0.5 * t * t, c * np.abs(t) - 0.5 * c * c))
+        return np.sum(np.where(np.abs(t) < c * np.pi, c * c * (1 - np.cos(t / c)), 2 * c * c))
+
+    start = WGS.Direct(s.lat[0], s.lon[0], 45.0, 30.0)
+    x0 = np.array([start["lat2"], start["lon2"]])
+    simplex = np.array([x0, x0 + [3e-4, 0.0], x0 + [0.0, 3e-4]])
+    ref = optimize.minimize(objective, x0, method="Nelder-Mead",
+                            options={"xatol": 1e-9, "fatol": 1e-13, "maxiter": 4000, "initial_simplex": simplex}).x
+    assert WGS.Inverse(ref[0], ref[1], s.lat[0], s.lon[0])["s12"] < 0.05
+    # and away from every station (the likelihood has no optimum on a station)
+    assert min(WGS.Inverse(la, lo, s.lat[0], s.lon[0])["s12"] for la, lo in st) > 50.0

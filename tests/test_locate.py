@@ -397,6 +397,18 @@ def test_an_sd_from_four_bearings_is_pointed_out_with_the_cure(write_sheet, sd, 
     assert ("two degrees of freedom" in reason and "--calibration" in reason) == said
 
 
+def test_the_binomial_tail_of_the_sheet_wide_sd_check_matches_scipy():
+    # P(X >= k), X ~ Binomial(n, p): scipy.stats.binom.sf(k - 1, n, p) (the one-sided binomial test's p-value).
+    from scipy import stats
+
+    from dfkit.locate.sheetwide import binomial_tail
+
+    for k, n, p in ((0, 10, 0.01), (1, 20, 0.01), (3, 20, 0.01), (7, 300, 0.01), (40, 2000, 0.01), (25, 25, 0.3),
+                    (180, 100_000, 0.001), (26, 25, 0.5)):
+        want = stats.binom.sf(k - 1, n, p)
+        assert binomial_tail(k, n, p) == pytest.approx(want, rel=1e-9, abs=1e-300)
+
+
 def test_a_rival_answer_from_two_bearings_is_not_given_a_p_value(write_sheet):
     # Three bearings with a known SD where leaving the first out leaves two lines, which always cross: the
     # reason may name that answer but must not quote a test that cannot be made (it printed "p = nan").

@@ -83,6 +83,7 @@ def optimise(terms, objective, geo, cg, mg, x, y, w, s, c, tol, max_iter, r_run)
         if nonpd.any():
             j11, j12, j22 = (gsum(bcg, a * t, n_g) for t in (gx * gx, gx * gy, gy * gy))
             h11, h12, h22 = (np.where(nonpd, j, h) for j, h in ((j11, h11), (j12, h12), (j22, h22)))
+        del f, f1, a, f2, gx, gy, k, kxy, kd      # per-bearing terms: let go before the line search's arrays
         sx_, sy_, ratio = solve2(h11, h12, h22, b1, b2)
         live = running[grp]
         singular = live & (~np.isfinite(sx_) | ~np.isfinite(sy_) | (ratio < SINGULAR_RATIO))
@@ -105,8 +106,10 @@ def optimise(terms, objective, geo, cg, mg, x, y, w, s, c, tol, max_iter, r_run)
             bidx = idx[bsub]
             xt = x[grp[sel_g]] + lam[sel_g] * sx_[sel_g]
             yt = y[grp[sel_g]] + lam[sel_g] * sy_[sel_g]
-            rt, dxt, dyt, d2t = residuals(geo.sp[bidx], geo.cp[bidx], geo.sx[bidx], geo.sy[bidx], xt[local], yt[local])
-            Ft = gsum(local, objective(rt, w[bidx], s[bidx], c), len(sel_g))
+            # every bearing searching (the first halving of the first rounds): no gathered copies
+            rb = slice(None) if len(bidx) == len(geo.sp) else bidx
+            rt, dxt, dyt, d2t = residuals(geo.sp[rb], geo.cp[rb], geo.sx[rb], geo.sy[rb], xt[local], yt[local])
+            Ft = gsum(local, objective(rt, w[rb], s[rb], c), len(sel_g))
             Fo = F[grp[sel_g]]
             tiny = lam[sel_g] * step_len[sel_g] < tol
             ok = (Ft <= Fo + ARMIJO * lam[sel_g] * slope[sel_g]) | (tiny & (Ft <= Fo + 1e-12 * np.abs(Fo)))

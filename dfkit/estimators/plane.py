@@ -53,11 +53,25 @@ class PlaneGeometry:
     _FIELDS = ("sx", "sy", "phi", "r", "az", "d", "sp", "cp")
 
     def take(self, sel) -> "PlaneGeometry":
+        """Rows ``sel`` (a view for a slice, a copy for a mask or indices)."""
         return PlaneGeometry(*(getattr(self, k)[sel] for k in self._FIELDS))
+
+    def share(self, other: "PlaneGeometry") -> None:
+        """Take all of ``other``'s rows by holding its arrays (``put`` of every row, without the copy)."""
+        for k in self._FIELDS:
+            setattr(self, k, getattr(other, k))
+
+    def copy(self) -> "PlaneGeometry":
+        return PlaneGeometry(*(getattr(self, k).copy() for k in self._FIELDS))
 
     def put(self, sel, other: "PlaneGeometry") -> None:
         for k in self._FIELDS:
             getattr(self, k)[sel] = getattr(other, k)
+
+    def copy_rows(self, sel, other: "PlaneGeometry") -> None:
+        """Rows ``sel`` of ``other`` into the same rows here (one field at a time: no copy of the whole)."""
+        for k in self._FIELDS:
+            getattr(self, k)[sel] = getattr(other, k)[sel]
 
 
 def geometry(station_lat, station_lon, theta_deg, centre_lat, centre_lon) -> PlaneGeometry:

@@ -247,7 +247,7 @@ def solve(lat, lon, bearing_deg, group, n_groups, sd_deg=None, *, method="mle", 
     ending = np.where(counts < 2, TOO_FEW, np.where(parallel, PARALLEL, OPTIMUM)).astype(np.int8)
     P_lat, P_lon = centre_lat.copy(), centre_lon.copy()
     iterations = np.zeros(m, np.int64)
-    geo = geo0.take(slice(None))
+    geo = geo0.copy()                       # geo0 stays the first plane of every fix, for later starts
     verified = np.zeros(m, bool)
     ctx = dict(spec=spec, c=c, g=g, m=m, lat=lat, lon=lon, theta=theta, floor_b=floor_b, floor_g=floor_g, w=w,
                s_b=s_b, r_run=r_run,
@@ -279,13 +279,16 @@ def _attempts(ctx, state, which, n_starts, x0, y0, more=None):
                 todo = which & ~verified & (n_starts > attempt)
         if not todo.any():
             break
-        res = _run(ctx, todo, np.nan_to_num(x0[:, attempt]), np.nan_to_num(y0[:, attempt]))
+        # the first attempt's results are all taken: its geometry is built in the state's own arrays
+        res = _run(ctx, todo, np.nan_to_num(x0[:, attempt]), np.nan_to_num(y0[:, attempt]),
+                   into=state["geo"] if attempt == 0 else None)
         ok = _verify(ctx, todo, res)
         take = todo & (ok | (attempt == 0))
         state["P_lat"][take], state["P_lon"][take] = res["lat"][take], res["lon"][take]
         state["ending"][take] = res["ending"][take]
-        tb = take[g]
-        state["geo"].put(tb, res["geo"].take(tb))
+        if attempt:
+            tb = take[g]
+            state["geo"].put(tb, res["geo"].take(tb))
         state["iterations"][todo] += res["iterations"][todo]
         verified |= todo & ok
 
@@ -429,8 +432,12 @@ def _drop_the_worst(ctx, state, fixes, counts):
     ctx["forced_out"] = out
 
 
-def _run(ctx, todo, x0, y0):
-    """Solve the fixes ``todo`` from planar starts (x0, y0) in their first plane."""
+def _run(ctx, todo, x0, y0, into=None):
+    """Solve the fixes ``todo`` from planar starts (x0, y0) in their first plane.
+
+    The returned geometry (``geo``) holds, for the bearings of ``todo``, that of each fix's last centre and
+    elsewhere the first plane's; ``into`` (a :class:`PlaneGeometry` of every bearing) is used for it in place
+    of a new copy, and only its rows of ``todo`` are written."""
     spec, g, m, lat, lon, theta = ctx["spec"], ctx["g"], ctx["m"], ctx["lat"], ctx["lon"], ctx["theta"]
     w, s_b, c, r_run, tol_m = ctx["w"], ctx["s_b"], ctx["c"], ctx["r_run"], ctx["tol_m"]
     P_lat, P_lon = ctx["centre_lat"].copy(), ctx["centre_lon"].copy()
@@ -438,7 +445,11 @@ def _run(ctx, todo, x0, y0):
     iterations = np.zeros(m, np.int64)
     done = np.zeros(m, bool)
     failed = ~todo
-    last = ctx["geo0"].take(slice(None))
+    if into is None:
+        last = ctx["geo0"].copy()
+    else:
+        last = into
+        last.copy_rows(todo[g], ctx["geo0"])
     tol_in = tol_m / 100.0
     for outer in range(ctx["max_outer"]):
         act = todo & ~done & ~failed
@@ -447,21 +458,26 @@ def _run(ctx, todo, x0, y0):
         sel = act[g]
         fixes = np.flatnonzero(act)
         cg = np.searchsorted(fixes, g[sel])
+        # every bearing active (the common first rounds): the arrays themselves, not copies of all their rows
+        rows = slice(None) if sel.all() else sel
         if outer:
-            gs = geometry(lat[sel], lon[sel], theta[sel], P_lat[g[sel]], P_lon[g[sel]])
-            last.put(sel, gs)
+            gs = geometry(lat[rows], lon[rows], theta[rows], P_lat[g[rows]], P_lon[g[rows]])
+            if rows is sel:
+                last.put(sel, gs)
+            else:
+                last.share(gs)                  # gs is only read from here on
             sx0 = np.zeros(len(fixes))
             sy0 = np.zeros(len(fixes))
         else:
-            gs = ctx["geo0"].take(sel)
+            gs = ctx["geo0"].take(rows)          # read only by the planar iterations
             sx0, sy0 = x0[fixes], y0[fixes]
         if spec.kind == "closed":
             px, py, end, its = iterate.closed_form(gs, cg, len(fixes), r_run[fixes])
         elif spec.kind == "fixed_point":
-            px, py, end, its = iterate.fixed_point(gs, cg, len(fixes), sx0, sy0, w[sel], tol_in,
+            px, py, end, its = iterate.fixed_point(gs, cg, len(fixes), sx0, sy0, w[rows], tol_in,
                                                    ctx["max_iter"], r_run[fixes])
         else:
-            px, py, end, its = iterate.optimise(spec.terms, spec.objective, gs, cg, len(fixes), sx0, sy0, w[sel], s_b[sel], c,
+            px, py, end, its = iterate.optimise(spec.terms, spec.objective, gs, cg, len(fixes), sx0, sy0, w[rows], s_b[rows], c,
                                                 tol_in, ctx["max_iter"], r_run[fixes])
         iterations[fixes] += its
         bad = end != iterate.SETTLED

@@ -115,7 +115,8 @@ def group_columns(table) -> list[str]:
     out = []
     for c in table.columns:
         if str(c).strip().lower() in GROUP_COLUMNS:
-            v = table[c].astype(str).str.strip()
+            # each distinct value once (a column of 400,000 cells holds a few names, or only empty cells)
+            v = table[c].drop_duplicates().astype(str).str.strip()
             if (v != "").any() and (v.str.lower() != "nan").any():
                 out.append(c)
     return out
@@ -498,7 +499,7 @@ def sheet_offsets(table, bearings, with_position) -> list[SheetOffset]:
 
     b = bearings
     m = len(table)
-    if not len(b) or not m:
+    if not len(b) or not m or not group_columns(b):      # no observer, team ... named: nothing to pool
         return []
     g = b["fix_id"].to_numpy(dtype=np.int64)
     flat, flon = table["lat"].to_numpy(float), table["lon"].to_numpy(float)

@@ -25,12 +25,14 @@ set it.
 from __future__ import annotations
 
 from dataclasses import replace
+from math import lgamma
 
 import numpy as np
 
 from dfkit.locate.fixes import WITH_POSITION
 from dfkit.locate.offsets import sheet_offsets
 from dfkit.policy import INCONSISTENT_P
+from dfkit.regions import chi2_sf
 
 #: Fewest fixes sharing an SD (with at least one degree of freedom each) for the sheet-wide SD check.
 MIN_SD_FIXES = 20
@@ -94,14 +96,27 @@ def fix_misfits(table, bearings):
     return np.where(dof >= 1, S, np.nan), dof
 
 
+def binomial_tail(k, n, p) -> float:
+    """P(X >= k) for X ~ Binomial(n, p): the sum of the probabilities of k..n, each C(n, i) p^i (1 - p)^(n - i),
+    with log C(n, i) carried by the ratio C(n, i + 1) / C(n, i) = (n - i) / (i + 1) (checked against scipy's
+    binomial test in tests/test_locate.py)."""
+    k, n = int(k), int(n)
+    if k <= 0:
+        return 1.0
+    if k > n:
+        return 0.0
+    i = np.arange(k, n + 1, dtype=float)
+    log_c = lgamma(n + 1) - lgamma(k + 1) - lgamma(n - k + 1) + np.concatenate(
+        ([0.0], np.cumsum(np.log((n - i[:-1]) / (i[:-1] + 1)))))
+    return float(min(1.0, np.exp(log_c + i * np.log(p) + (n - i) * np.log1p(-p)).sum()))
+
+
 def suggested_factor(S, dof) -> float:
     """k with median F_dof(S / k^2) = 1/2 (module docstring): by how much the SD looks too small."""
-    from scipy import stats
-
     lo, hi = np.log(1e-3), np.log(1e3)
     for _ in range(60):
         mid = (lo + hi) / 2
-        if np.median(stats.chi2.cdf(S / np.exp(2 * mid), dof)) > 0.5:
+        if np.median(1.0 - chi2_sf(S / np.exp(2 * mid), dof)) > 0.5:
             lo = mid
         else:
             hi = mid
@@ -118,16 +133,15 @@ def sd_checks(table, bearings, has_pos) -> list[dict]:
     out = []
     if have.sum() < MIN_SD_FIXES:
         return out
-    from scipy import stats     # only for sheets with enough fixes of a known SD
     keys = np.array([f"{s}|{v:.3g}" for s, v in zip(src, sd)], dtype=object)
     for key in dict.fromkeys(keys[have]):
         sel = np.flatnonzero(have & (keys == key))
         n = len(sel)
         if n < MIN_SD_FIXES:
             continue
-        p = stats.chi2.sf(S[sel], dof[sel])
+        p = chi2_sf(S[sel], dof[sel])
         k = int((p < INCONSISTENT_P).sum())
-        test = stats.binomtest(k, n, INCONSISTENT_P, alternative="greater").pvalue
+        test = binomial_tail(k, n, INCONSISTENT_P)
         if test >= SD_CHECK_P:
             continue
         factor = suggested_factor(S[sel], dof[sel])

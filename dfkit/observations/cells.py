@@ -63,6 +63,21 @@ def column(table: pd.DataFrame, name: str) -> np.ndarray:
     return np.full(len(table), "", dtype=object)
 
 
+def filled(n, value) -> np.ndarray:
+    """An object array of ``n`` times the one string ``value`` (``np.full`` would make a string per row)."""
+    out = np.empty(n, dtype=object)
+    out[:] = value
+    return out
+
+
+def pick(mask, yes, no) -> np.ndarray:
+    """``np.where(mask, yes, no)`` for two strings, as an object array holding the two strings themselves
+    (``np.where(...).astype(object)`` makes a new string per row: 20 MB per 400,000 rows)."""
+    out = filled(len(mask), no)
+    out[np.asarray(mask, bool)] = yes
+    return out
+
+
 def per_value(cells, func):
     """Apply ``func`` once per distinct cell value (columns like unit or north repeat a few values)."""
     codes, uniques = pd.factorize(np.asarray(cells, dtype=object))
@@ -77,7 +92,7 @@ def canonical(cells, aliases: dict, default: str):
     Empty cells take ``default``; unknown ones also get ``default`` (the row is rejected by the caller)."""
     cells = np.asarray(cells, dtype=object)
     if "" not in aliases and not (cells != "").any():        # an empty or absent column: the default everywhere
-        return np.full(len(cells), default, dtype=object), np.zeros(len(cells), bool)
+        return filled(len(cells), default), np.zeros(len(cells), bool)
     low = per_value(cells, lambda u: str(u).strip().lower())
     canon = per_value(low, lambda u: aliases.get(u, default if u == "" else None))
     unknown = pd.isna(canon).astype(bool) if len(canon) else np.zeros(0, bool)

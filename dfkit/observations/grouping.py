@@ -34,6 +34,7 @@ from datetime import datetime, timezone
 import numpy as np
 import pandas as pd
 
+from dfkit.observations.cells import pick
 from dfkit.observations.rowlog import RowLog
 
 
@@ -139,7 +140,7 @@ def group_fixes(labels, tags, times, *, window_s: float, split_gap_s: float, log
     tags = np.asarray(tags, dtype=object)
     times = np.asarray(times, float)
     fix = labels.copy()
-    grouped_by = np.where(labels != "", "label", "").astype(object)
+    grouped_by = pick(labels != "", "label", "")
     if filled is not None:
         grouped_by[np.asarray(filled, bool)] = "filled"
     days = np.zeros(len(labels), bool) if date_only is None else np.asarray(date_only, bool)

@@ -22,7 +22,7 @@ from dfkit.io.gpx import Track, read_track
 from dfkit.io.sheet import KNOWN_COLUMNS
 from dfkit.observations import north as north_mod
 from dfkit.observations.bearings import Bearings
-from dfkit.observations.cells import canonical, column, declinations, numbers, per_value
+from dfkit.observations.cells import canonical, column, declinations, numbers, per_value, pick
 from dfkit.observations.columns import check_columns, label_like_columns
 from dfkit.observations.grouping import fill_down, fix_identities, group_fixes, pair_codes
 from dfkit.observations.options import ReadOptions, check_options
@@ -236,10 +236,10 @@ def _sds(t, opts, decimal_comma, log: RowLog, unit, notes):
                                       f"unit, and {sd[i]:g}° is beyond any usable bearing SD (dfkit's limit of "
                                       f"plausible: {PLAUSIBLE_SD_DEG:g}°); if it is in mils, write "
                                       f"{sd[i] * per_mil:.2g} ({sd[i]:g} mil in degrees)")
-    sd_from = np.where(c.empty, "", "sheet").astype(object)
+    sd_from = pick(c.empty, "", "sheet")
     if opts.sd is not None:
         sd = np.where(c.empty, float(opts.sd), sd)
-        sd_from = np.where(c.empty, "option", sd_from).astype(object)
+        sd_from[c.empty] = "option"
         if float(opts.sd) > PLAUSIBLE_SD_DEG and (mil & c.empty & ~log.bad).any():
             notes.append(f"--sd {float(opts.sd):g} is in degrees, also for the mil bearings it is given to; if it "
                          f"is in mils, give --sd {float(opts.sd) * per_mil:.2g}")
