@@ -10,7 +10,9 @@ from dfkit import read_bearings
 from dfkit.cli import main
 from dfkit.export import write_fixes
 from dfkit.locate import locate
+from dfkit.locate.core import locate_chunk
 from dfkit.locate.parallel import chunks, locate_in_chunks
+from dfkit.locate.sheetwide import review
 
 GEOD = pyproj.Geod(ellps="WGS84")
 
@@ -60,7 +62,8 @@ def _sheet_bytes():
 def test_same_csv_bytes_and_regions_as_one_job(tmp_path, use):
     b = read_bearings(_sheet(tmp_path / "s.csv"))
     one = locate(b)
-    many = locate_in_chunks(b, jobs=3, use=use, min_fixes=50)
+    many = review(locate_in_chunks(b, locate_chunk, jobs=3, use=use, min_fixes=50, method="mle", level=0.95,
+                                   window_min=None, robust_c=None, with_regions=True))
     assert set(one.table["status"]) > {"ok"}                      # the awkward fixes are there
     write_fixes(one, tmp_path / "one.csv")
     write_fixes(many, tmp_path / "many.csv")

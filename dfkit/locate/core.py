@@ -17,11 +17,10 @@ from dfkit.locate.offsets import fix_offsets
 from dfkit.locate.resolution import fix_steps, sd_floors
 from dfkit.locate.rivals import find_rivals
 from dfkit.locate.status import FixFacts, classify, consistency
+from dfkit.observations import Bearings, ReadOptions, read_bearings
 
 #: Inconsistent fixes with a chi-square p-value at least this are not searched for one bad line.
 HINT_P = 1e-3
-from dfkit.observations import Bearings, ReadOptions, read_bearings
-
 
 
 def locate(bearings: Bearings, *, method: str = "mle", level: float = 0.95, window_min: float | None = None,
@@ -54,16 +53,28 @@ def locate(bearings: Bearings, *, method: str = "mle", level: float = 0.95, wind
         Also run the sheet-wide checks (:mod:`dfkit.locate.sheetwide`: a group reading off, an SD too
         small), which set ``Fixes.warnings`` and may mark ``ok`` fixes (default).
     """
-    if jobs != 1:
-        from dfkit.locate.parallel import locate_in_chunks
-
-        return locate_in_chunks(bearings, jobs=jobs, method=method, level=level, window_min=window_min,
-                                robust_c=robust_c, with_regions=with_regions, progress=progress,
-                                sheet_checks=sheet_checks)
     if method not in estimators.METHODS:
         raise ValueError(f"method={method!r} is not one of {', '.join(repr(m) for m in estimators.METHODS)}")
     if not (isinstance(level, (int, float, np.floating)) and 0.0 < float(level) < 1.0):
         raise ValueError(f"level={level!r} must be a probability between 0 and 1 (e.g. 0.95)")
+    options = dict(method=method, level=level, window_min=window_min, robust_c=robust_c, with_regions=with_regions)
+    if jobs != 1:
+        from dfkit.locate.parallel import locate_in_chunks
+
+        fixes = locate_in_chunks(bearings, locate_chunk, jobs=jobs, progress=progress, **options)
+    else:
+        fixes = locate_chunk(bearings, progress=progress, **options)
+    if sheet_checks:     # what only the whole sheet shows: after the chunks are put back together
+        from dfkit.locate.sheetwide import review
+
+        fixes = review(fixes)
+    return fixes
+
+
+def locate_chunk(bearings: Bearings, *, method: str, level: float, window_min: float | None, robust_c: float | None,
+                 with_regions: bool, progress=None) -> Fixes:
+    """:func:`locate` of a set of fixes (the whole sheet, or a chunk of it) without the sheet-wide checks:
+    each fix is solved and judged on its own bearings only."""
     say = progress or (lambda text: None)
     if window_min is None:
         window_min = bearings.window_min
@@ -147,13 +158,8 @@ def locate(bearings: Bearings, *, method: str = "mle", level: float = 0.95, wind
         for c in ("residual_deg", "weight", "range_m", "fix_status"):
             bt[c] = []
     notes = list(bearings.notes)
-    fixes = Fixes(table=table, bearings=bt, problems=list(bearings.problems), notes=notes, source=bearings.source,
-                  likelihood=lik)
-    if sheet_checks:
-        from dfkit.locate.sheetwide import review
-
-        fixes = review(fixes)
-    return fixes
+    return Fixes(table=table, bearings=bt, problems=list(bearings.problems), notes=notes, source=bearings.source,
+                 likelihood=lik)
 
 
 def _time_span(b, g, m):

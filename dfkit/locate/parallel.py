@@ -62,11 +62,9 @@ def split(bearings: Bearings, lo: int, hi: int) -> tuple[Bearings, np.ndarray]:
     return replace(bearings, table=table, fix_index=fix_index), rows
 
 
-def _locate_chunk(args):
-    from dfkit.locate.core import locate
-
-    chunk, kwargs = args
-    return locate(chunk, **kwargs)
+def _solve_chunk(args):
+    solve, chunk, kwargs = args
+    return solve(chunk, **kwargs)
 
 
 def _executor(use: str, jobs: int) -> Executor:
@@ -80,13 +78,16 @@ def _executor(use: str, jobs: int) -> Executor:
     return ProcessPoolExecutor(max_workers=jobs, mp_context=ctx)
 
 
-def locate_in_chunks(bearings: Bearings, *, jobs: int, use: str = "threads", min_fixes: int = MIN_CHUNK_FIXES,
-                     progress=None, sheet_checks: bool = True, **kwargs) -> Fixes:
-    """:func:`dfkit.locate.locate` on chunks of fixes in ``jobs`` workers; the same :class:`Fixes` as one job.
+def locate_in_chunks(bearings: Bearings, solve, *, jobs: int, use: str = "threads", min_fixes: int = MIN_CHUNK_FIXES,
+                     progress=None, **kwargs) -> Fixes:
+    """``solve`` (:func:`dfkit.locate.core.locate_chunk`) on chunks of fixes in ``jobs`` workers; the same
+    :class:`Fixes` as one call on all of them. The sheet-wide checks are the caller's, on the result.
 
     Parameters
     ----------
     bearings : Bearings
+    solve : callable
+        ``solve(bearings, progress=None, **kwargs) -> Fixes`` for a set of fixes (picklable for processes).
     jobs : int
         Workers (0: one per processor). With one chunk (few fixes) no worker is started.
     use : {'threads', 'processes'}
@@ -95,31 +96,23 @@ def locate_in_chunks(bearings: Bearings, *, jobs: int, use: str = "threads", min
     progress : callable, optional
         Called with a short text when the work is handed out and as chunks finish.
     kwargs
-        The other options of :func:`~dfkit.locate.locate`.
+        The options of ``solve``.
     """
-    from dfkit.locate.core import locate
-
     if use not in EXECUTORS:
         raise ValueError(f"use={use!r} is not one of {', '.join(map(repr, EXECUTORS))}")
     jobs = check_jobs(jobs)
     say = progress or (lambda text: None)
     parts = chunks(bearings, jobs, min_fixes)
     if len(parts) == 1:
-        return locate(bearings, progress=progress, sheet_checks=sheet_checks, **kwargs)
+        return solve(bearings, progress=progress, **kwargs)
     pieces = [split(bearings, lo, hi) for lo, hi in parts]
     say(f"solving {len(bearings.fix_index)} fixes in {len(parts)} chunks on {jobs} {use}")
     with _executor(use, jobs) as ex:
         results = []
-        chunk_kw = dict(kwargs, sheet_checks=False)      # the sheet-wide checks look at the whole sheet, below
-        for k, fx in enumerate(ex.map(_locate_chunk, [(chunk, chunk_kw) for chunk, _ in pieces])):
+        for k, fx in enumerate(ex.map(_solve_chunk, [(solve, chunk, kwargs) for chunk, _ in pieces])):
             results.append(fx)
             say(f"chunk {k + 1} of {len(parts)} done")
-    whole = merge(bearings, results, [rows for _, rows in pieces], [lo for lo, _ in parts])
-    if not sheet_checks:
-        return whole
-    from dfkit.locate.sheetwide import review
-
-    return review(whole)
+    return merge(bearings, results, [rows for _, rows in pieces], [lo for lo, _ in parts])
 
 
 def merge(bearings: Bearings, results: list[Fixes], rows: list[np.ndarray], offsets: list[int]) -> Fixes:
