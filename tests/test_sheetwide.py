@@ -228,3 +228,12 @@ def test_a_season_import_keeps_and_prints_what_the_whole_sheet_shows(tmp_path, c
         p = s.problems()
     kept = p[p["message"].str.startswith("the bearing SD of 3° given")]
     assert len(kept) == 1 and kept["severity"].iloc[0] == "warning" and kept["line"].iloc[0] == 0
+
+
+def test_a_team_offset_is_not_taken_for_an_sd_too_small(tmp_path):
+    # 150 hunts of nine bearings from teams A, B, C (three each), true SD 5° given as 5°, team C's compass 10° off:
+    # the sheet names C, and the SD check judges the misfit C's offset leaves, so it does not call 5° too small
+    sc = scenario(150, 9, 5.0, np.random.default_rng(31), ranges=(1000.0, 4000.0))
+    fx = locate(dfkit.read_bearings(_sheet(tmp_path, sc, sd=5, observers=["A", "B", "C"] * 3, offset={"C": 10.0})))
+    assert any(w.startswith("observer C reads on average") for w in fx.warnings), fx.warnings
+    assert not any(w.startswith("the bearing SD of") for w in fx.warnings), fx.warnings

@@ -577,6 +577,8 @@ def sheet_offsets(table, bearings, with_position) -> list[SheetOffset]:
                             f"{abs(deg):.1f}° {_side(deg)}")
             delta[j.rest] = j.d0
             delta[j.off] += j.d0
+            for k in j.off:      # a label named against the rest reads its own offset and the rest's
+                offsets[str(labs[k])] = float(np.degrees(delta[k]))
         if not findings:
             findings.append(f"the {col}s of this sheet read differently (p = {j.lof_p:.1g}) but the fixes do not "
                             f"tell which is off: a compass or antenna offset? calibrate them (dfkit calibrate)")

@@ -56,11 +56,14 @@ def review(fixes):
     reasons = t["reason"].to_numpy(dtype=object).copy()
     has_pos = np.isin(status, WITH_POSITION)
     warnings = list(fixes.warnings)
-    for off in sheet_offsets(t, b, has_pos):
+    found = sheet_offsets(t, b, has_pos)
+    for off in found:
         warnings.extend(off.findings)
         for i, shift in off.marked.items():
             _mark(status, reasons, i, off.reason(shift))
-    for chk in sd_checks(t, b, has_pos):
+    # the SD is judged on the misfit the offsets found above leave: an observer 10° off is not an SD too small
+    residual = without_offsets(t, b, found) if any(off.offsets for off in found) else None
+    for chk in sd_checks(t, b, has_pos, residual_deg=residual):
         warnings.append(chk["text"])
         for i in chk["fixes"]:
             _mark(status, reasons, i, chk["reason"])
@@ -81,13 +84,50 @@ def _mark(status, reasons, i, text):
         reasons[i] = f"{reasons[i]}; {text}" if reasons[i] else text
 
 
-def fix_misfits(table, bearings):
+def without_offsets(table, bearings, found) -> np.ndarray:
+    """Each bearing's residual [°] with the sheet's fitted offsets (``found``, :func:`sheet_offsets`) taken out
+    and the fix's position let absorb what it can, in the linearised model of the fix: with v the offsets in SDs
+    and X the whitened gradients of the bearings with respect to the position (:mod:`dfkit.locate.offsets`), the
+    offsets left in the residuals are P v = v - X (X'X)^-1 X' v, and the residual becomes r - P v."""
+    from dfkit import geodesy
+
+    b = bearings
+    m = len(table)
+    g = b["fix_id"].to_numpy(dtype=np.int64)
+    r = b["residual_deg"].to_numpy(float)
+    delta = np.zeros(len(b))
+    for off in found:
+        if off.offsets:
+            names = b[off.column].astype(str).str.strip()
+            delta += names.map(off.offsets).fillna(0.0).to_numpy(float)
+    sd = b["sd"].to_numpy(float)
+    with np.errstate(invalid="ignore", divide="ignore"):
+        use = (b["weight"].to_numpy(float) > 0) & np.isfinite(r) & (sd > 0) & (b["range_m"].to_numpy(float) > 0)
+    flat, flon = table["lat"].to_numpy(float), table["lon"].to_numpy(float)
+    az, _, _ = geodesy.inverse(flat[g], flon[g], b["lat"].to_numpy(float), b["lon"].to_numpy(float))
+    s = np.where(use, np.radians(sd), 1.0)
+    a = np.radians(np.where(use, az, 0.0))
+    d = np.where(use, b["range_m"].to_numpy(float), 1.0)
+    xe, xn = np.where(use, -np.cos(a) / (d * s), 0.0), np.where(use, np.sin(a) / (d * s), 0.0)
+    v = np.where(use, np.radians(delta) / s, 0.0)
+    Mee, Men, Mnn = (np.bincount(g, xe * xe, m), np.bincount(g, xe * xn, m), np.bincount(g, xn * xn, m))
+    qe, qn = np.bincount(g, xe * v, m), np.bincount(g, xn * v, m)
+    with np.errstate(invalid="ignore", divide="ignore"):
+        det = Mee * Mnn - Men ** 2
+        De, Dn = (Mnn * qe - Men * qn) / det, (Mee * qn - Men * qe) / det
+        Pv = v - (xe * De[g] + xn * Dn[g])
+    return np.where(use & np.isfinite(Pv), r - np.degrees(Pv * s), r)
+
+
+def fix_misfits(table, bearings, residual_deg=None):
     """Per fix: S (sum of squared residuals in SDs over the bearings the fit uses) and its degrees of freedom
-    (n_used - 2; NaN / 0 where the SD is not known or the fix has no position)."""
+    (n_used - 2; NaN / 0 where the SD is not known or the fix has no position). ``residual_deg`` replaces the
+    bearings' residuals (e.g. :func:`without_offsets`)."""
     m = len(table)
     g = bearings["fix_id"].to_numpy(dtype=np.int64)
+    r = bearings["residual_deg"].to_numpy(float) if residual_deg is None else residual_deg
     with np.errstate(invalid="ignore", divide="ignore"):
-        z2 = (bearings["residual_deg"].to_numpy(float) / bearings["sd"].to_numpy(float)) ** 2
+        z2 = (r / bearings["sd"].to_numpy(float)) ** 2
         use = (bearings["weight"].to_numpy(float) > 0) & np.isfinite(z2)
     S = np.bincount(g, np.where(use, z2, 0.0), m)
     n = np.bincount(g, use.astype(float), m)
@@ -123,10 +163,11 @@ def suggested_factor(S, dof) -> float:
     return float(np.exp((lo + hi) / 2))
 
 
-def sd_checks(table, bearings, has_pos) -> list[dict]:
+def sd_checks(table, bearings, has_pos, residual_deg=None) -> list[dict]:
     """Groups of fixes (same SD source and value) whose SD the sheet shows to be too small: each a dict with
-    ``text`` (the warning), ``reason`` (for each ok fix) and ``fixes`` (their indices)."""
-    S, dof = fix_misfits(table, bearings)
+    ``text`` (the warning), ``reason`` (for each ok fix) and ``fixes`` (their indices). ``residual_deg``: the
+    residuals to judge (default the bearings' own)."""
+    S, dof = fix_misfits(table, bearings, residual_deg)
     sd = table["sd_deg"].to_numpy(float)
     src = table["sd_source"].to_numpy(dtype=object)
     have = dof >= 1
