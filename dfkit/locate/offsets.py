@@ -374,6 +374,58 @@ def _blocks(st, pairs, per_fix):
     return blocks
 
 
+def _screen(st, keep, sol, m, n_grouped, stats):
+    """The per-fix test of every (fix, column) block at once, blocks of one size together (batched eigen-
+    decompositions): the number of blocks tested in each fix, and the keys (fix * columns + column) of the
+    blocks whose p-value is below the fix's level. The same statistics as the loop in :func:`fix_offsets`."""
+    ncol = len(st.columns)
+    key = st.fix[keep] * ncol + st.column[keep]
+    order = np.argsort(key, kind="stable")
+    pk, kk = keep[order], key[order]
+    starts = np.flatnonzero(np.r_[True, kk[1:] != kk[:-1]])
+    sizes = np.diff(np.r_[starts, len(kk)])
+    bkey = kk[starts]
+    bfix = bkey // ncol
+    p = np.full(len(starts), np.nan)
+    for L in np.unique(sizes):
+        b = np.flatnonzero(sizes == L)
+        idx = pk[starts[b][:, None] + np.arange(L)]
+        f = bfix[b]
+        ce, cn = st.ce[idx], st.cn[idx]
+        M0, M1, M2 = (st.Mi[k][f][:, None, None] for k in range(3))
+        info = -(ce[:, :, None] * (M0 * ce[:, None, :] + M1 * cn[:, None, :])
+                 + cn[:, :, None] * (M1 * ce[:, None, :] + M2 * cn[:, None, :]))
+        diag = np.arange(L)
+        info[:, diag, diag] += st.B[idx]
+        S = st.U[idx]
+        w, v = np.linalg.eigh(info)
+        kept = w > np.maximum(w.max(axis=-1), 0.0)[:, None] * 1e-9          # as _pinv
+        winv = np.where(kept, 1.0 / np.where(kept, w, 1.0), 0.0)
+        proj = np.einsum("bji,bj->bi", v, S)
+        chi_full = (winv * proj ** 2).sum(axis=-1)
+        r_full = kept.sum(axis=-1)
+        common = n_grouped[bkey[b]] >= st.n_used[f]
+        v1 = info.sum(axis=(1, 2))
+        has1 = v1 > 1e-12 * np.maximum(np.trace(info, axis1=1, axis2=2), 1e-300)
+        stat = np.where(common, chi_full - np.where(has1, S.sum(axis=-1) ** 2 / np.where(has1, v1, 1.0), 0.0),
+                        chi_full)
+        dof = np.where(common, r_full - has1, r_full)
+        dof_res = st.n_used[f] - 2 - r_full
+        known = sol.sd_known[f]
+        floor = (sol.sd_floor_deg[f] if sol.sd_floor_deg is not None else 0.0) / sol.sd_deg[f]
+        with np.errstate(invalid="ignore", divide="ignore"):
+            sc = np.fmax(np.fmax(np.sqrt(np.maximum(st.rss0[f] - chi_full, 0.0) / np.maximum(dof_res, 1)), floor),
+                         1e-12)
+            pb = np.where(known, stats.chi2.sf(stat, np.maximum(dof, 1)),
+                          stats.f.sf(stat / np.maximum(dof, 1) / sc ** 2, np.maximum(dof, 1), np.maximum(dof_res, 1)))
+        p[b] = np.where((dof > 0) & (known | (dof_res >= 1)), pb, np.nan)
+    valid = np.isfinite(p)
+    tested = np.bincount(bfix[valid], minlength=m)
+    with np.errstate(invalid="ignore", divide="ignore"):
+        failing = valid & (p < OFFSET_P / np.maximum(tested[bfix], 1))
+    return tested, bkey[failing]
+
+
 def fix_offsets(table, g, m, sol) -> dict[int, str]:
     """The per-fix test (module docstring): {fix index: reason text} for every fix with a group off.
 
@@ -401,6 +453,12 @@ def fix_offsets(table, g, m, sol) -> dict[int, str]:
     np.add.at(n_grouped, st.fix[keep] * len(st.columns) + st.column[keep], st.n[keep])
     from scipy import stats     # only for sheets that name observers (dfkit fix on a plain sheet loads no scipy)
 
+    # every (fix, column) block is screened at once; only the few that fail are explained one by one below
+    tested, failing = _screen(st, keep, sol, m, n_grouped, stats)
+    if not len(failing):
+        return {}
+    ncol = len(st.columns)
+    keep = keep[np.isin(st.fix[keep] * ncol + st.column[keep], failing)]
     found = []
     for key, sel, labs, li, S, I in _blocks(st, keep, per_fix=True):
         i = int(key // len(st.columns))
@@ -430,7 +488,6 @@ def fix_offsets(table, g, m, sol) -> dict[int, str]:
             def p_of(x, k, s=s, dof_res=dof_res):
                 return float(stats.f.sf(x / k / s ** 2, k, dof_res))
         found.append((i, key, sel, labs, li, S, I, p_of(stat, dof), p_of, s, common))
-    tested = np.bincount(np.array([f[0] for f in found], dtype=np.int64), minlength=m)
     out: dict[int, str] = {}
     for i, key, sel, labs, li, S, I, p, p_of, s, common in found:
         level = OFFSET_P / tested[i]
