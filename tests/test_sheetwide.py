@@ -261,3 +261,16 @@ def test_small_real_biases_over_a_season_do_not_mark_good_fixes(tmp_path):
     inside = fx.contains(sc["truth_lat"], sc["truth_lon"])
     assert marked.mean() <= 0.02, marked.mean()
     assert ok.mean() >= 0.95 and inside[ok].mean() >= 0.93
+
+
+@pytest.mark.parametrize("seed", [51, 52, 53])
+def test_a_reflected_bearing_is_not_called_an_observers_offset(tmp_path, seed):
+    # observers A and B take two bearings each (SD 5° given and true); one of B's is a reflection 70-110° off. The
+    # fix may be flagged and the line named, but B's compass must not be said to read tens or thousands of degrees
+    # off (a trial found "observer B reads 2005.0° (± 123.5) clockwise")
+    rng = np.random.default_rng(seed)
+    sc = scenario(40, 4, 5.0, rng)
+    sc["bearing"][:, 3] += rng.uniform(70, 110, 40) * rng.choice([-1, 1], 40)
+    fx = locate(dfkit.read_bearings(_sheet(tmp_path, sc, sd=5, observers=["A", "A", "B", "B"])))
+    claims = [float(x) for r in fx.table["reason"] for x in re.findall(r"reads ([0-9.]+)° \(±", r)]
+    assert all(c <= 30.0 for c in claims), claims

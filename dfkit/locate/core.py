@@ -141,7 +141,7 @@ def locate_chunk(bearings: Bearings, *, method: str, level: float, window_min: f
 
     # an observer, team, antenna or receiver whose bearings in this fix read off the others (dfkit.locate.offsets)
     for i, text in fix_offsets(b, g, m, sol).items():
-        if status[i] in WITH_POSITION:
+        if status[i] in WITH_POSITION and i not in hints:     # a named wild line explains the misfit better
             status[i] = "inconsistent" if status[i] == "ok" else status[i]
             reasons[i].append(text)
 

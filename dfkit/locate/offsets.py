@@ -83,6 +83,10 @@ MIN_FREE_SHARE = 0.05
 #: (93.8 against 94.5 %), and a calibrated sheet 6 %; at 0.6 none. At 0.75 a sheet with one observer 5° off and one
 #: bearing per observer per fix kept 98 % of its fixes ok, holding the truth 90.0 % (0.6: 48 %, holding 91.2 %).
 SHIFT_SE = 0.6
+#: A group "reading off" by more than this within one fix [°] is not a compass or antenna offset but a wild or
+#: reflected bearing among its few bearings (a trial found claims of 2,005° and 49,696°): no offset is said then.
+#: Our choice: compass and mounting errors are a few degrees; 30° is far beyond them.
+MAX_FIX_OFFSET_DEG = 30.0
 #: Fewest fixes a column must span for the sheet-wide test (one fix alone is tested on its own).
 MIN_SHEET_FIXES = 2
 
@@ -502,6 +506,8 @@ def fix_offsets(table, g, m, sol) -> dict[int, str]:
         groups = [([k], j.contrast[n], j.contrast_se[n], j.contrast_p[n]) for n, k in enumerate(j.off)]
         if not common and j.rest and j.d0_p < level:
             groups.append((j.rest, j.d0, j.d0_se, j.d0_p))
+        if any(pk < level and abs(np.degrees(est)) > MAX_FIX_OFFSET_DEG for _, est, _, pk in groups):
+            continue        # not an offset: a wild or reflected bearing (the fix's own tests and hints say so)
         for ks, est, se, pk in groups:
             if not pk < level:
                 continue
