@@ -274,3 +274,14 @@ def test_a_reflected_bearing_is_not_called_an_observers_offset(tmp_path, seed):
     fx = locate(dfkit.read_bearings(_sheet(tmp_path, sc, sd=5, observers=["A", "A", "B", "B"])))
     claims = [float(x) for r in fx.table["reason"] for x in re.findall(r"reads ([0-9.]+)° \(±", r)]
     assert all(c <= 30.0 for c in claims), claims
+
+
+def test_a_marked_calibrated_fix_is_not_told_to_calibrate_again():
+    # with --calibration the offset is what the calibration's bias removal left: the advice is more beacon trials
+    from dfkit.locate.offsets import SheetOffset
+
+    off = SheetOffset(column="antenna", findings=[], offsets={"y1": 2.0}, summary="antenna y1 reads 2.0° clockwise",
+                      marked={}, common=False)
+    assert "use --calibration" in off.reason(0.8)
+    said = off.reason(0.8, calibrated=True)
+    assert "more beacon trials" in said and "use --calibration" not in said

@@ -546,9 +546,12 @@ class SheetOffset:
     def text(self) -> str:
         return "; ".join(self.findings)
 
-    def reason(self, shift) -> str:
+    def reason(self, shift, calibrated: bool = False) -> str:
+        """The text for a marked fix; ``calibrated``: the fix's SD came from a calibration, whose bias removal left
+        this offset."""
         what = ("check the declination and the north of the bearings" if self.common
-                else "calibrate it (dfkit calibrate) and use --calibration")
+                else "the calibration in use leaves this offset: check it with more beacon trials (dfkit calibrate)"
+                if calibrated else "calibrate it (dfkit calibrate) and use --calibration")
         return (f"{self.summary} over the sheet (see the summary); without that offset this fix moves by "
                 f"{shift:.1f} standard errors, so its region may miss: {what}")
 

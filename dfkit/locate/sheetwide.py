@@ -60,7 +60,7 @@ def review(fixes):
     for off in found:
         warnings.extend(off.findings)
         for i, shift in off.marked.items():
-            _mark(status, reasons, i, off.reason(shift))
+            _mark(status, reasons, i, off.reason(shift, calibrated="calibration" in str(t["sd_source"].iat[i])))
     # the SD is judged on the misfit the offsets found above leave: an observer 10° off is not an SD too small
     residual = without_offsets(t, b, found) if any(off.offsets for off in found) else None
     for chk in sd_checks(t, b, has_pos, residual_deg=residual):
