@@ -28,6 +28,7 @@ from dataclasses import replace
 from math import lgamma
 
 import numpy as np
+import pandas as pd
 
 from dfkit.locate.fixes import WITH_POSITION
 from dfkit.locate.offsets import sheet_offsets
@@ -44,6 +45,9 @@ SD_CHECK_P = 0.001
 #: 5.99 / 1.44; our choice).
 SD_TOO_SMALL = 1.2
 _KNOWN = ("given", "calibration", "given+calibration")
+#: Two group columns "go together" when this share of the bearings of each label of one is with a single label of
+#: the other (our choice: four in five).
+TIED_SHARE = 0.8
 
 
 def review(fixes):
@@ -57,7 +61,13 @@ def review(fixes):
     has_pos = np.isin(status, WITH_POSITION)
     warnings = list(fixes.warnings)
     found = sheet_offsets(t, b, has_pos)
+    tied = tied_columns(b, [off.column for off in found])
     for off in found:
+        if off.column in tied:
+            other, share = tied[off.column]
+            off.findings = [f"{w}; but in this sheet {off.column}s and {other}s go together ({share:.0%} of the "
+                            f"bearings of each {off.column} with one {other}), so an offset said of one may belong to "
+                            f"the other" for w in off.findings]
         warnings.extend(off.findings)
         for i, shift in off.marked.items():
             _mark(status, reasons, i, off.reason(shift, calibrated="calibration" in str(t["sd_source"].iat[i])))
@@ -75,6 +85,33 @@ def review(fixes):
     bt = b.copy(deep=False)
     bt["fix_status"] = status[b["fix_id"].to_numpy(dtype=np.int64)]
     return replace(fixes, table=t, bearings=bt, warnings=warnings, _regions=fixes._regions)
+
+
+def tied_columns(bearings, columns, share: float = TIED_SHARE) -> dict:
+    """{column: (other column, share)} for each of ``columns`` whose labels go with one label of another group
+    column (:data:`dfkit.locate.offsets.GROUP_COLUMNS`) in at least ``share`` of the bearings: each observer mostly
+    with their own antenna. Offsets are fitted one column at a time, so an antenna's offset then shows as its
+    carrier's too (a field trial: observer Kim named at 3.2° for antenna y1's 3°)."""
+    from dfkit.locate.offsets import group_columns
+
+    cols = group_columns(bearings)
+    out = {}
+    for c in columns:
+        if c not in cols:
+            continue
+        x = bearings[c].astype(str).str.strip()
+        for other in cols:
+            if other == c:
+                continue
+            y = bearings[other].astype(str).str.strip()
+            named = (x != "") & (x.str.lower() != "nan") & (y != "") & (y.str.lower() != "nan")
+            if named.sum() < 2 or x[named].nunique() < 2:
+                continue
+            counts = pd.crosstab(x[named], y[named])
+            s = float(counts.max(axis=1).sum() / named.sum())
+            if s >= share and (c not in out or s > out[c][1]):
+                out[c] = (other, s)
+    return out
 
 
 def _mark(status, reasons, i, text):
