@@ -487,6 +487,18 @@ def _utm(p: _State, decimal_comma, utm_letters, groups, track_ll):
                             f"({_lat(lo_s)} to {_lat(hi_s)}) this northing would lie at {_lat(lat_n[k])}, outside "
                             "that band")
         p.north_lat[i], p.north_lon[i] = lat_n[k], lon_n[k]
+    if s_hemi.any() and utm_letters != "band":
+        # said once for the sheet: a GPS-style '16S' typed for a northern place lands in the other hemisphere, and
+        # nothing else would show it when every row is read the same way
+        ks = np.flatnonzero(s_hemi)
+        k0, i0 = ks[0], rows[ks[0]]
+        band = grids.band_letter(float(lat_n[k0]))
+        log.sheet_warning(
+            f"{len(ks)} row{'s' if len(ks) > 1 else ''} with zone letter S (first '{zc[i0]}') "
+            f"{'were' if len(ks) > 1 else 'was'} read as the southern hemisphere, because as latitude band S "
+            f"({_lat(lo_s)} to {_lat(hi_s)}) the northing would lie at {_lat(lat_n[k0])}"
+            + (f" (band {band})" if band else "") + "; if the stations are in the northern hemisphere, write "
+            + (f"{band} (the band) or N" if band else "N"), line=int(log.lines[i0]), column=cz)
     if utm_letters == "band":
         log.reject(log.mask(rows[s_hemi]), cz, lambda ii: [_band_mismatch(zc[i], "S", band_lat[_k(rows, i)])
                                                            for i in ii])

@@ -83,3 +83,17 @@ def test_a_band_letter_that_does_not_fit_names_the_band_that_does():
 def test_band_letter_matches_the_mgrs_package(lat):
     """The mgrs package implements the same standard (GeoTrans); it is not dfkit."""
     assert grids.band_letter(lat) == mgrs.MGRS().toMGRS(lat, 15.0, MGRSPrecision=0)[2]
+
+
+def test_a_whole_sheet_typed_16S_in_ontario_says_it_was_read_as_the_southern_hemisphere():
+    # every row '16S' with Ontario's northings: as band S (32-40 N) they cannot be read, so they are the southern
+    # hemisphere (the rule), which puts the stations ~10,000 km south; nothing else would show it, so one warning
+    # must say how the letter was read and which band the northings fit (T: 40-48 N, pyproj's inverse)
+    rows = ["fix,time,zone,easting,northing,bearing,sd"]
+    for k, (lat, lon) in enumerate(STATIONS):
+        e, n = en(lat, lon)
+        rows.append(f"1,2026-06-08T07:0{k}:00Z,16S,{e},{n},{[20, 300, 250][k]},5")
+    b = read_bearings(("\n".join(rows) + "\n").encode())
+    assert errors(b) == [] and (b.table["lat"] < 0).all()
+    said = [p.message for p in b.problems if "read as the southern hemisphere" in p.message]
+    assert len(said) == 1 and "3 rows with zone letter S" in said[0] and "write T (the band) or N" in said[0]
