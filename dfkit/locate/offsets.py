@@ -613,6 +613,7 @@ def sheet_offsets(table, bearings, with_position) -> list[SheetOffset]:
         nb = np.bincount(li, st.n[sel], len(labs)).astype(int)
         findings, offsets, short = [], {}, []
         delta = np.zeros(len(labs))
+        indistinct = False
         for n, k in enumerate(j.off):
             if not j.contrast_p[n] < level:
                 continue
@@ -637,6 +638,7 @@ def sheet_offsets(table, bearings, with_position) -> list[SheetOffset]:
                     f"± {np.degrees(j.diff_se):.1f}°), so one {col} alone reading off could look the same"
                     if not np.degrees(j.diff_se) < abs(deg) / 2 else
                     f", all {col}s alike (one against the others is known to ± {np.degrees(j.diff_se):.1f}°)")
+            indistinct = len(labs) >= 2 and not np.degrees(j.diff_se) < abs(deg) / 2
             fixes_r = f"{f_rest} fix{'es' if f_rest != 1 else ''}"
             findings.append(f"{alike} {abs(deg):.1f}° (± {se:.1f}) {_side(deg)} of the fixes ({n_rest} bearings "
                             f"in {fixes_r}; p = {j.d0_p:.1g}{tell}): a declination or north mistake, or an "
@@ -665,6 +667,18 @@ def sheet_offsets(table, bearings, with_position) -> list[SheetOffset]:
         Mi = st2.Mi
         with np.errstate(invalid="ignore"):
             shift = np.sqrt(np.maximum(ve * (Mi[0] * ve + Mi[1] * vn) + vn * (Mi[1] * ve + Mi[2] * vn), 0.0))
+        if indistinct:
+            # the fixes cannot tell a shared turn from one label alone reading off: a fix is judged by the
+            # explanation that moves it most (one label's offset fitted alone, S_k / I_kk), since the data do not
+            # rule it out (a trial: observer C 5° off, one bearing each, read as a shared 1.8° turn that moved no
+            # fix, and the ok fixes held the truth 86.7 %)
+            for k in range(len(labs)):
+                if not I[k, k] > 0:
+                    continue
+                alone = abs(S[k] / I[k, k])
+                pk_k = pk[st2.label[pk].astype(str) == str(labs[k])]
+                np.fmax.at(shift, st2.fix[pk_k], alone * np.sqrt(np.maximum(st2.shift[pk_k], 0.0)))
+            short.append(f"or one {col} alone reading off (the fixes cannot tell which)")
         marked = {int(i): float(shift[i]) for i in np.flatnonzero(np.isfinite(shift) & (shift >= SHIFT_SE))}
         out.append(SheetOffset(column=col, findings=findings, offsets=offsets, summary="; ".join(short),
                                marked=marked, common=not j.off))
