@@ -452,3 +452,14 @@ def test_each_line_is_decoded_on_its_own(lines):
     assert raw.table["note"].tolist() == expect
     named = sorted(p.line for p in raw.problems if "Windows-1252" in p.message)
     assert named == (fallback if len(fallback) <= 20 else fallback[:1])
+
+
+def test_a_header_that_starts_with_a_hash_is_named_as_read_as_a_comment(write_sheet):
+    # '#' as the first column's name makes the header a comment line; the sheet then has no bearing column, and the
+    # message must say why instead of only listing the data row as "found" columns
+    from dfkit import read_bearings
+    from dfkit.problems import SheetError
+
+    sheet = write_sheet("#,lat,lon,bearing,sd\n1,47,15,45,3\n1,47,15.02,315,3\n")
+    with pytest.raises(SheetError, match="line 1 starts with '#' and was read as a comment"):
+        read_bearings(sheet)

@@ -78,6 +78,10 @@ def read_bearings(sheet, options: ReadOptions | None = None, **kwargs) -> Bearin
         check_columns(raw.columns, raw.source, stations=opts.stations is not None, track=opts.track is not None)
     except SheetError as err:
         hint = next((p.message for p in raw.problems if "--sheet" in p.message), "")
+        comments = getattr(raw, "comment_lines", None) or []
+        if not hint and comments and comments[0] == 1:
+            hint = ("line 1 starts with '#' and was read as a comment, so the header is the next line: if line 1 is "
+                    "the header, name its first column (e.g. 'fix' for '#')")
         raise SheetError(f"{err} ({hint})" if hint else str(err)) from None
     t = raw.table
     n = len(t)
