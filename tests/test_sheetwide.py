@@ -332,3 +332,17 @@ def test_when_the_fixes_cannot_tell_the_observers_apart_ok_fixes_still_hold_the_
     ok = (fx.table["status"] == "ok").to_numpy()
     inside = fx.contains(np.array([t[0] for t in truth]), np.array([t[1] for t in truth]))
     assert not ok.any() or inside[ok].mean() >= 0.92, (ok.mean(), inside[ok].mean())
+
+
+def test_the_review_page_shows_what_whole_sheets_showed(tmp_path):
+    # the too-small SD of an imported sheet reaches the season's review page, not only the import's log
+    from dfkit.cli import main
+
+    sc = scenario(200, 3, 5.0, np.random.default_rng(23))
+    sheet = _sheet(tmp_path, sc, sd=3, name="small_sd.csv")
+    store, page = tmp_path / "s.gpkg", tmp_path / "review.html"
+    assert main(["season", "add", str(store), str(sheet)]) == 1
+    assert main(["season", "show", str(store), "-o", str(page)]) in (0, 1)
+    html = page.read_text(encoding="utf-8")
+    part = html[html.index("What whole sheets showed"):html.index("Flagged and failed fixes")]
+    assert "small_sd.csv" in part and "the bearing SD of 3° given" in part

@@ -59,6 +59,7 @@ class ReviewPage:
                  "<p>Area of each fix's confidence region (ok fixes; logarithmic scale). Larger means less "
                  "certain; the daily median shows whether the fixes got better or worse over the season.</p>",
                  _histogram_svg(self.table, colours), _daily_svg(self.table, colours),
+                 "<h2>What whole sheets showed</h2>", self._sheet_findings_html(),
                  "<h2>Flagged and failed fixes</h2>", self._flagged_html(),
                  "<h2>Rejected rows</h2>", self._problems_html(),
                  "<h2>Imports</h2>", self._imports_html()]
@@ -100,6 +101,19 @@ class ReviewPage:
                 for _, r in bad.head(MAX_ROWS).iterrows()]
         more = f"<p>... and {len(bad) - MAX_ROWS} more.</p>" if len(bad) > MAX_ROWS else ""
         return ("<table><tr>" + "".join(f"<th>{c}</th>" for c in cols) + "</tr>" + "".join(rows) + "</table>" + more)
+
+    def _sheet_findings_html(self) -> str:
+        """Warnings about a sheet as a whole (line 0): an observer reading off, an SD given too small
+        (:mod:`dfkit.locate.sheetwide`), kept with each import."""
+        p = self.problems
+        if len(p) and {"severity", "line"} <= set(p.columns):
+            p = p[(p["severity"] == "warning") & (p["line"].fillna(0).astype(int) == 0)]
+        else:
+            p = p.iloc[0:0] if len(p) else p
+        if not len(p):
+            return "<p>Nothing: no observer, team, antenna or receiver read off, and no SD looked too small.</p>"
+        items = "".join(f"<li><b>{_e(r['file_name'])}</b>: {_e(r['message'])}</li>" for _, r in p.head(MAX_ROWS).iterrows())
+        return f"<ul class='sheet-findings'>{items}</ul>"
 
     def _problems_html(self) -> str:
         p = self.problems
