@@ -140,3 +140,18 @@ def test_gpx_short_names_are_trimmed_and_unique(write_sheet, tmp_path):
     assert names[0] == "A&B" and all(n == n.strip() and len(n) <= 4 for n in names) and len(set(names)) == 2
     assert [w.comment for w in wpts] == ["fix A&B <x>", "fix A&B <y>"]
     assert short_names(["ab  cdef", "ab  cdeX"], 4) == ["ab", "ab~2"]
+
+
+def test_gpx_and_kml_give_the_ellipse_as_semi_axes(fixes, tmp_path):
+    # "699 x 346 m" reads as the ellipse's full size, which is twice that: the text must say semi-axes
+    import pyogrio
+
+    write_fixes(fixes, tmp_path / "f.gpx")
+    write_fixes(fixes, tmp_path / "f.kml")
+    t = fixes.table
+    r = t[t["semi_major_m"].notna()].iloc[0]
+    want = f"semi-axes {r['semi_major_m']:.0f} m and {r['semi_minor_m']:.0f} m"
+    wpt = gpxpy.parse((tmp_path / "f.gpx").read_text(encoding="utf-8")).waypoints
+    assert any(want in (w.description or "") for w in wpt)
+    kml = pyogrio.read_dataframe(tmp_path / "f.kml", layer="fixes")
+    assert any(want in str(d) for d in kml["description"])

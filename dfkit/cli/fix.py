@@ -61,6 +61,7 @@ def run(a) -> int:
         progress(f"writing {path}")
         ensure_dir(path)
         write_fixes(fixes, path, opts)
+        print(f"wrote {path}", file=sys.stderr)
     if a.figures:
         for p in write_figures(fixes, a.figures, progress):
             print(f"warning   {p}", file=sys.stderr)

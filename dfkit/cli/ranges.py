@@ -91,7 +91,8 @@ def run(a) -> int:
         print(f"wrote {path}", file=sys.stderr)
     t = ranges.table
     show = t[["tag", "method", "level", "area_m2", "n_fixes", "bandwidth_m", "status"]].copy()
-    show["area_ha"] = show.pop("area_m2") / 1e4
+    show.insert(2, "level_pct", show.pop("level") * 100)     # as --levels takes them (the files keep 0-1)
+    show.insert(4, "area_ha", show["area_m2"] / 1e4)
     print(show.to_string(index=False, float_format=lambda v: f"{v:.4g}") if len(show) else "no tags")
     for _, r in t[t["status"] != "ok"].drop_duplicates("tag").iterrows():
         print(f"{r['status']:<10} tag {r['tag']}: {r['note']}", file=sys.stderr)

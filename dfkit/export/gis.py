@@ -139,8 +139,8 @@ def fix_description(r) -> str:
         lines.append(f"lat, lon: {r['lat']:.6f}, {r['lon']:.6f}")
     lines.append(f"bearings: {r['n_bearings']} ({r['n_used']} used), method {r['method']}")
     if np.isfinite(r["semi_major_m"]):
-        lines.append(f"{r['level'] * 100:g}% ellipse: {r['semi_major_m']:.0f} x {r['semi_minor_m']:.0f} m, "
-                     f"major axis {r['orientation_deg']:.0f} deg")
+        lines.append(f"{r['level'] * 100:g}% ellipse: semi-axes {r['semi_major_m']:.0f} m and "
+                     f"{r['semi_minor_m']:.0f} m, major axis {r['orientation_deg']:.0f} deg")
     lines.append(CAUTION)
     return "<br>".join(html.escape(xml_text(x)) for x in lines)
 

@@ -73,8 +73,8 @@ def waypoint_names(labels, tags) -> list[str]:
 def _description(r) -> str:
     desc = f"status {r['status']}; {r['n_bearings']} bearings; method {r['method']}"
     if np.isfinite(r["semi_major_m"]):
-        desc += (f"; {r['level'] * 100:g}% ellipse {r['semi_major_m']:.0f} x {r['semi_minor_m']:.0f} m "
-                 f"at {r['orientation_deg']:.0f} deg")
+        desc += (f"; {r['level'] * 100:g}% ellipse semi-axes {r['semi_major_m']:.0f} m and {r['semi_minor_m']:.0f} m "
+                 f"(major axis at {r['orientation_deg']:.0f} deg)")
     if r["reason"]:
         desc += f"; {r['reason']}"
     return desc

@@ -209,7 +209,8 @@ def classify(f: FixFacts):
                         f"{f.window_min:g}-min window" if f.gap_min[i] > f.window_min else
                         f"its bearings span {f.span_min[i]:.0f} min, more than {FIX_SPAN_WINDOWS:g} windows of "
                         f"{f.window_min:g} min")
-                flags.append(("long_span", f"{what}; the transmitter may have moved"))
+                flags.append(("long_span", f"{what}; the transmitter may have moved (if it stays put, as in a "
+                                           "hunt, give a longer --window)"))
             if i in rivals:
                 flags.append(("ambiguous", _rival_text(rivals[i], f.lines, sol, i)))
             if not sol.sd_known[i] and sol.dof[i] <= 0:
