@@ -346,3 +346,15 @@ def test_the_review_page_shows_what_whole_sheets_showed(tmp_path):
     html = page.read_text(encoding="utf-8")
     part = html[html.index("What whole sheets showed"):html.index("Flagged and failed fixes")]
     assert "small_sd.csv" in part and "the bearing SD of 3° given" in part
+
+
+def test_a_forgotten_declination_is_found_without_an_observer_column(tmp_path):
+    # every bearing turned 8° (magnetic bearings typed as true, where the declination is -8°), SD 5° given and
+    # true, no observer column: the whole sheet is tested as one group and the shared turn is said
+    sc = scenario(300, 4, 5.0, np.random.default_rng(81))
+    sc["bearing"] = sc["bearing"] - 8.0
+    fx = locate(dfkit.read_bearings(_sheet(tmp_path, sc, sd=5)))
+    said = [w for w in fx.warnings if w.startswith("the bearings of this sheet read on average")]
+    assert len(said) == 1 and "anticlockwise" in said[0] and "declination or north mistake" in said[0], fx.warnings
+    assert abs(float(re.search(r"on average ([0-9.]+)°", said[0]).group(1)) - 8.0) < 1.5
+    assert not any("\x00" in w for w in fx.warnings) and not any("\x00" in r for r in fx.table["reason"])

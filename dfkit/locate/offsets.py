@@ -87,6 +87,8 @@ SHIFT_SE = 0.6
 #: reflected bearing among its few bearings (a trial found claims of 2,005° and 49,696°): no offset is said then.
 #: Our choice: compass and mounting errors are a few degrees; 30° is far beyond them.
 MAX_FIX_OFFSET_DEG = 30.0
+#: The column name of the one group a sheet without group columns is tested as (never a sheet's own name).
+WHOLE_SHEET = "\x00whole sheet"
 #: Fewest fixes a column must span for the sheet-wide test (one fix alone is tested on its own).
 MIN_SHEET_FIXES = 2
 
@@ -130,10 +132,12 @@ def group_columns(table) -> list[str]:
     return out
 
 
-def group_stats(table, g, m, residual_deg, az_deg, range_m, sigma_deg, use, *, min_group=1) -> GroupStats | None:
-    """U, V ... of every (fix, group label) pair with at least ``min_group`` used bearings of the group (arrays over the bearings of ``table``; ``sigma_deg`` each bearing's
-    SD [°], ``use`` the bearings that count)."""
-    cols = group_columns(table)
+def group_stats(table, g, m, residual_deg, az_deg, range_m, sigma_deg, use, *, min_group=1,
+                columns=None, with_lines=True) -> GroupStats | None:
+    """U, V ... of every (fix, group label) pair with at least ``min_group`` used bearings of the group (arrays over
+    the bearings of ``table``; ``sigma_deg`` each bearing's SD [°], ``use`` the bearings that count; ``columns`` the
+    group columns, by default :func:`group_columns`)."""
+    cols = group_columns(table) if columns is None else list(columns)
     if not cols or not len(g):
         return None
     use = use & np.isfinite(residual_deg) & np.isfinite(sigma_deg) & (sigma_deg > 0) & (range_m > 0)
@@ -157,7 +161,10 @@ def group_stats(table, g, m, residual_deg, az_deg, range_m, sigma_deg, use, *, m
     fixes, columns, labels, ns, Us, Vs, Bs, shifts, nfs, rss1s, line_lists, tests = ([] for _ in range(12))
     ces, cns = [], []
     for k, col in enumerate(cols):
-        val = table[col].astype(str).str.strip().to_numpy(dtype=object)
+        if col == WHOLE_SHEET:       # one label for every bearing: no text to read
+            val = np.full(len(table), "all", dtype=object)
+        else:
+            val = table[col].astype(str).str.strip().to_numpy(dtype=object)
         named = use & (val != "") & (val != "nan")
         if not named.any():
             continue
@@ -186,8 +193,9 @@ def group_stats(table, g, m, residual_deg, az_deg, range_m, sigma_deg, use, *, m
         tests.append(testable[idx])
         order = np.argsort(inv, kind="stable")
         starts = np.concatenate(([0], np.cumsum(nG)))
-        for p in idx:
-            line_lists.append(lines[sel[order[starts[p]:starts[p + 1]]]].tolist())
+        if with_lines:       # the input lines of each pair, for the per-fix reasons (not for the sheet's pooling)
+            for p in idx:
+                line_lists.append(lines[sel[order[starts[p]:starts[p + 1]]]].tolist())
         fixes.append(f[idx])
         columns.append(np.full(len(idx), k))
         labels.append(names[pair[idx] % K])
@@ -214,8 +222,10 @@ def group_stats(table, g, m, residual_deg, az_deg, range_m, sigma_deg, use, *, m
 
 
 def _codes(val, named):
-    names, codes = np.unique(np.where(named, val, ""), return_inverse=True)
-    return codes, names
+    import pandas as pd     # factorize: a hash pass, where np.unique sorts the text of every bearing
+
+    codes, names = pd.factorize(np.where(named, val, ""))
+    return codes, np.asarray(names, dtype=object)
 
 
 def _side(deg):
@@ -382,10 +392,12 @@ def _blocks(st, pairs, per_fix):
     return blocks
 
 
-def _screen(st, keep, sol, m, n_grouped, stats):
+def _screen(st, keep, sol, m, n_grouped):
     """The per-fix test of every (fix, column) block at once, blocks of one size together (batched eigen-
     decompositions): the number of blocks tested in each fix, and the keys (fix * columns + column) of the
     blocks whose p-value is below the fix's level. The same statistics as the loop in :func:`fix_offsets`."""
+    from scipy.special import chdtrc, fdtrc
+
     ncol = len(st.columns)
     key = st.fix[keep] * ncol + st.column[keep]
     order = np.argsort(key, kind="stable")
@@ -424,8 +436,8 @@ def _screen(st, keep, sol, m, n_grouped, stats):
         with np.errstate(invalid="ignore", divide="ignore"):
             sc = np.fmax(np.fmax(np.sqrt(np.maximum(st.rss0[f] - chi_full, 0.0) / np.maximum(dof_res, 1)), floor),
                          1e-12)
-            pb = np.where(known, stats.chi2.sf(stat, np.maximum(dof, 1)),
-                          stats.f.sf(stat / np.maximum(dof, 1) / sc ** 2, np.maximum(dof, 1), np.maximum(dof_res, 1)))
+            pb = np.where(known, chdtrc(np.maximum(dof, 1), stat),
+                          fdtrc(np.maximum(dof, 1), np.maximum(dof_res, 1), stat / np.maximum(dof, 1) / sc ** 2))
         p[b] = np.where((dof > 0) & (known | (dof_res >= 1)), pb, np.nan)
     valid = np.isfinite(p)
     tested = np.bincount(bfix[valid], minlength=m)
@@ -459,10 +471,12 @@ def fix_offsets(table, g, m, sol) -> dict[int, str]:
     # fix's misfit (its chi-square test), and only differences between the groups are tested here
     n_grouped = np.zeros(m * len(st.columns))
     np.add.at(n_grouped, st.fix[keep] * len(st.columns) + st.column[keep], st.n[keep])
-    from scipy import stats     # only for sheets that name observers (dfkit fix on a plain sheet loads no scipy)
+    # chi-square and F upper tails from scipy.special (scipy.stats computes them with the same functions; its
+    # import alone took 1.3 s of a run); only for sheets that name observers (a plain sheet loads no scipy)
+    from scipy.special import chdtrc, fdtrc
 
     # every (fix, column) block is screened at once; only the few that fail are explained one by one below
-    tested, failing = _screen(st, keep, sol, m, n_grouped, stats)
+    tested, failing = _screen(st, keep, sol, m, n_grouped)
     if not len(failing):
         return {}
     ncol = len(st.columns)
@@ -488,13 +502,13 @@ def fix_offsets(table, g, m, sol) -> dict[int, str]:
             s = 1.0
 
             def p_of(x, k):
-                return float(stats.chi2.sf(x, k))
+                return float(chdtrc(k, x))
         else:
             floor = (sol.sd_floor_deg[i] if sol.sd_floor_deg is not None else 0.0) / sol.sd_deg[i]
             s = max(np.sqrt(max(st.rss0[i] - chi_full, 0.0) / dof_res), floor, 1e-12)
 
             def p_of(x, k, s=s, dof_res=dof_res):
-                return float(stats.f.sf(x / k / s ** 2, k, dof_res))
+                return float(fdtrc(k, dof_res, x / k / s ** 2))
         found.append((i, key, sel, labs, li, S, I, p_of(stat, dof), p_of, s, common))
     out: dict[int, str] = {}
     for i, key, sel, labs, li, S, I, p, p_of, s, common in found:
@@ -569,8 +583,14 @@ def sheet_offsets(table, bearings, with_position) -> list[SheetOffset]:
 
     b = bearings
     m = len(table)
-    if not len(b) or not m or not group_columns(b):      # no observer, team ... named: nothing to pool
+    if not len(b) or not m:
         return []
+    cols = group_columns(b)
+    if not cols:
+        # no observer, team ... named: the whole sheet is one group, so a turn shared by every bearing (a
+        # declination or north mistake, the commonest of all) is still tested
+        b = b.assign(**{WHOLE_SHEET: "all"})
+        cols = [WHOLE_SHEET]
     g = b["fix_id"].to_numpy(dtype=np.int64)
     flat, flon = table["lat"].to_numpy(float), table["lon"].to_numpy(float)
     az, _, _ = geodesy.inverse(flat[g], flon[g], b["lat"].to_numpy(float), b["lon"].to_numpy(float))
@@ -584,16 +604,17 @@ def sheet_offsets(table, bearings, with_position) -> list[SheetOffset]:
     with np.errstate(invalid="ignore"):
         use = (with_position[g] & (b["weight"].to_numpy(float) > 0) & (np.abs(r) <= WILD_SD * sigma)
                & (np.abs(r) < 90.0))
-    st = group_stats(b, g, m, r, az, b["range_m"].to_numpy(float), sigma, use, min_group=1)
+    st = group_stats(b, g, m, r, az, b["range_m"].to_numpy(float), sigma, use, min_group=1, columns=cols,
+                     with_lines=False)
     if st is None or not len(st.fix):
         return []
     pairs = np.flatnonzero(np.isfinite(st.V) & (st.n_used[st.fix] >= 3))
     if not len(pairs):
         return []
-    from scipy import stats
+    from dfkit.regions import chi2_sf      # no scipy: every sheet runs this test (a plain one as one group)
 
     def p_of(x, k):
-        return float(stats.chi2.sf(x, k))
+        return float(chi2_sf(x, int(k)))
 
     blocks = _blocks(st, pairs, per_fix=False)
     level = SHEET_OFFSET_P / len(blocks)
@@ -630,7 +651,8 @@ def sheet_offsets(table, bearings, with_position) -> list[SheetOffset]:
             deg, se = float(np.degrees(j.d0)), float(np.degrees(j.d0_se))
             n_rest = int(nb[j.rest].sum())
             f_rest = len(np.unique(st.fix[sel][np.isin(li, j.rest)]))
-            alike = (f"{col} {labs[0]} reads on average" if len(labs) == 1 else
+            alike = ("the bearings of this sheet read on average" if col == WHOLE_SHEET else
+                     f"{col} {labs[0]} reads on average" if len(labs) == 1 else
                      "the bearings of this sheet read on average" if not j.off else
                      f"{_names(col, labs[j.rest])} read{'s' if len(j.rest) == 1 else ''} on average")
             tell = ("" if len(labs) < 2 else
@@ -658,7 +680,8 @@ def sheet_offsets(table, bearings, with_position) -> list[SheetOffset]:
             continue
         # the shift the fitted offsets cause in every fix, its wild bearings included (they move it too)
         if st2 is None:
-            st2 = group_stats(b, g, m, r, az, b["range_m"].to_numpy(float), sigma, every, min_group=1)
+            st2 = group_stats(b, g, m, r, az, b["range_m"].to_numpy(float), sigma, every, min_group=1, columns=cols,
+                              with_lines=False)
         pk = np.flatnonzero((st2.column == key) & np.isfinite(st2.ce))
         lookup = {str(x): d for x, d in zip(labs, delta)}
         dl = np.array([lookup.get(str(x), 0.0) for x in st2.label[pk]])

@@ -134,9 +134,11 @@ def without_offsets(table, bearings, found) -> np.ndarray:
     r = b["residual_deg"].to_numpy(float)
     delta = np.zeros(len(b))
     for off in found:
-        if off.offsets:
+        if off.offsets and off.column in b:
             names = b[off.column].astype(str).str.strip()
             delta += names.map(off.offsets).fillna(0.0).to_numpy(float)
+        elif off.offsets:                        # the whole sheet as one group (no observer column)
+            delta += float(next(iter(off.offsets.values())))
     sd = b["sd"].to_numpy(float)
     with np.errstate(invalid="ignore", divide="ignore"):
         use = (b["weight"].to_numpy(float) > 0) & np.isfinite(r) & (sd > 0) & (b["range_m"].to_numpy(float) > 0)

@@ -122,6 +122,10 @@ def read_bearings(sheet, options: ReadOptions | None = None, **kwargs) -> Bearin
     # north, sd, declination
     north, north_unknown = canonical(column(t, "north"), NORTH_ALIASES, opts.north)
     ncells = column(t, "north")
+    if opts.north == "true" and n and not any(str(c).strip() for c in set(ncells[:n].tolist())):
+        # the commonest slip of all: compass bearings entered without saying they are magnetic
+        notes.append("bearings are read as true north (no north column; --north true is the default): if they were "
+                     "read off a magnetic compass, give --north magnetic")
     log.reject(north_unknown, "north", lambda idx: [f"unknown north '{ncells[i]}'; use true, magnetic or grid"
                                                      for i in idx])
     sd, sd_from = _sds(t, opts, raw.decimal_comma, log, unit, notes)

@@ -59,3 +59,15 @@ def test_a_magnetic_bearing_without_a_time_names_every_way_out(write_sheet):
     b = read_bearings(write_sheet(f"fix,lat,lon,bearing,north\nA,{STATIONS[0]},20,magnetic\n"))
     (line, col, msg), = errors(b)
     assert col == "time" and "declination column" in msg and "--declination" in msg
+
+
+def test_a_sheet_without_a_north_says_its_bearings_are_read_as_true_north(write_sheet):
+    # a forgotten --north magnetic is the commonest slip; the reading must be said when nothing names the north
+    from dfkit import read_bearings
+
+    plain = write_sheet("fix,lat,lon,bearing\nA,47,15,45\nA,47,15.02,315\n")
+    said = [n for n in read_bearings(plain).notes if "read as true north" in n]
+    assert len(said) == 1 and "--north magnetic" in said[0]
+    named = write_sheet("fix,lat,lon,bearing,north\nA,47,15,45,true\nA,47,15.02,315,true\n", name="named.csv")
+    assert not [n for n in read_bearings(named).notes if "read as true north" in n]
+    assert not [n for n in read_bearings(plain, north="magnetic", declination=3).notes if "read as true north" in n]
