@@ -262,7 +262,7 @@ def _split(text, pattern):
     if not c:
         if rest.strip() == "":          # a date alone
             if kind == "?":
-                return {"kind": "?", "y": y, "a": first, "b": second, "clock": None}
+                return {"kind": "?", "y": y, "a": first, "b": second, "clock": None, "text": text}
             return {"kind": kind, "y": y, "mo": mo, "d": d, "clock": None}
         return {"error": _not_a_time(text)}
     hh, mm = int(c.group(1)), int(c.group(2))
@@ -280,7 +280,8 @@ def _split(text, pattern):
         return {"error": _not_a_time(text)}
     micro = int((frac + "000000")[:6]) if frac else 0
     if kind == "?":
-        return {"kind": "?", "y": y, "a": first, "b": second, "clock": (hh, mm, ss, micro), "offset": off}
+        return {"kind": "?", "y": y, "a": first, "b": second, "clock": (hh, mm, ss, micro), "offset": off,
+                "text": text}
     return {"kind": kind, "y": y, "mo": mo, "d": d, "clock": (hh, mm, ss, micro), "offset": off}
 
 
@@ -317,12 +318,14 @@ def _date_order(parts, date_format):
                         "give --date-format dmy or mdy")
     if day_first:
         p = day_first[0]
-        return "dmy", [f"numeric dates read day first (day.month.year): the time column has dates like "
-                       f"{p['a']:02d}.{p['b']:02d}.{p['y']} that can only be day-first"], ""
+        like = p.get("text") or f"{p['a']:02d}.{p['b']:02d}.{p['y']}"       # as the sheet writes it
+        return "dmy", [f"numeric dates read day first (day, month, year): the time column has dates like "
+                       f"'{like}' that can only be day-first"], ""
     if month_first:
         p = month_first[0]
-        return "mdy", [f"numeric dates read month first (month/day/year): the time column has dates like "
-                       f"{p['a']:02d}/{p['b']:02d}/{p['y']} that can only be month-first"], ""
+        like = p.get("text") or f"{p['a']:02d}/{p['b']:02d}/{p['y']}"
+        return "mdy", [f"numeric dates read month first (month, day, year): the time column has dates like "
+                       f"'{like}' that can only be month-first"], ""
     return "", [], ""
 
 

@@ -193,3 +193,13 @@ def test_a_date_alone_does_not_look_up_the_track(write_sheet, tmp_path):
     b = read_bearings(write_sheet("fix,time,bearing\nA,2026-05-03,45\n"), track=gpx)
     errs = errors(b)
     assert set(errs) == {2} and "no time" in errs[2]
+
+
+def test_the_day_first_note_quotes_a_date_as_the_sheet_writes_it(write_sheet):
+    # a sheet writing 14/05/2026 was told it has "dates like 14.05.2026"
+    from dfkit import read_bearings
+
+    b = read_bearings(write_sheet("fix,time,lat,lon,bearing\nA,14/05/2026 10:00,47,15,45\n"
+                                  "A,14/05/2026 10:05,47,15.02,315\n"), tz="UTC")
+    said = [n for n in b.notes if "read day first" in n]
+    assert len(said) == 1 and "'14/05/2026 10:00'" in said[0]
