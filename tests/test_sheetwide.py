@@ -358,3 +358,16 @@ def test_a_forgotten_declination_is_found_without_an_observer_column(tmp_path):
     assert len(said) == 1 and "anticlockwise" in said[0] and "declination or north mistake" in said[0], fx.warnings
     assert abs(float(re.search(r"on average ([0-9.]+)°", said[0]).group(1)) - 8.0) < 1.5
     assert not any("\x00" in w for w in fx.warnings) and not any("\x00" in r for r in fx.table["reason"])
+
+
+def test_geojson_carries_what_the_whole_sheet_showed(tmp_path):
+    # the sheet's warnings travel with the GeoJSON as a foreign member (RFC 7946 sect. 6.1), streamed or in memory
+    import json
+
+    from dfkit.export import to_geojson, write_fixes
+
+    sc, fx = _three(tmp_path, 5.0, 3, 24, n_fix=200)
+    assert fx.warnings
+    write_fixes(fx, tmp_path / "f.geojson")
+    for doc in (json.loads((tmp_path / "f.geojson").read_text(encoding="utf-8")), to_geojson(fx)):
+        assert doc["dfkit"]["warnings"] == fx.warnings

@@ -123,7 +123,9 @@ def iter_features(fixes: Fixes, *, lines: bool = True, stations: bool = True,
 
 
 def _collection_members(fixes: Fixes) -> dict:
-    return {"dfkit": {"caution": CAUTION, "source": fixes.source}}
+    # a foreign member (RFC 7946 sect. 6.1): what the whole sheet showed (an observer reading off, an SD given too
+    # small) travels with the file, beside the caution
+    return {"dfkit": {"caution": CAUTION, "source": fixes.source, "warnings": list(getattr(fixes, "warnings", []))}}
 
 
 def to_geojson(fixes: Fixes, *, lines: bool = True, stations: bool = True, error_polygons: bool = False) -> dict:
