@@ -4,8 +4,8 @@
 two neighbouring digits swapped, one digit changed, the decimal point in another place, a digit missing, a
 digit too many. Which of them is *likely* is decided elsewhere, by evidence (a station far from the other
 stations of its fix that one variant brings back among them: :mod:`dfkit.observations.positions`).
-These are the slips of keyboard transcription (single substitution, transposition of neighbours, omission
-and insertion: F. J. Damerau, "A technique for computer detection and correction of spelling errors",
+These are the common slips of typing (single substitution, transposition of neighbours, omission and
+insertion: F. J. Damerau, "A technique for computer detection and correction of spelling errors",
 Comm. ACM 7(3), 171-176, 1964 [from memory]); the sign and the decimal point are added for numbers.
 """
 
