@@ -32,6 +32,7 @@ import pandas as pd
 
 from dfkit.locate.fixes import WITH_POSITION
 from dfkit.locate.offsets import sheet_offsets
+from dfkit.locate.status import at_minimum
 from dfkit.policy import INCONSISTENT_P
 from dfkit.regions import chi2_sf
 
@@ -73,7 +74,7 @@ def review(fixes):
             _mark(status, reasons, i, off.reason(shift, calibrated="calibration" in str(t["sd_source"].iat[i])))
     # the SD is judged on the misfit the offsets found above leave: an observer 10° off is not an SD too small
     residual = without_offsets(t, b, found) if any(off.offsets for off in found) else None
-    for chk in sd_checks(t, b, has_pos, residual_deg=residual):
+    for chk in sd_checks(t, b, has_pos, residual_deg=residual, likelihood=fixes.likelihood):
         warnings.append(chk["text"])
         for i in chk["fixes"]:
             _mark(status, reasons, i, chk["reason"])
@@ -158,10 +159,12 @@ def without_offsets(table, bearings, found) -> np.ndarray:
     return np.where(use & np.isfinite(Pv), r - np.degrees(Pv * s), r)
 
 
-def fix_misfits(table, bearings, residual_deg=None):
+def fix_misfits(table, bearings, residual_deg=None, likelihood=None):
     """Per fix: S (sum of squared residuals in SDs over the bearings the fit uses) and its degrees of freedom
     (n_used - 2; NaN / 0 where the SD is not known or the fix has no position). ``residual_deg`` replaces the
-    bearings' residuals (e.g. :func:`without_offsets`)."""
+    bearings' residuals (e.g. :func:`without_offsets`); with the bearings' own residuals and the fixes'
+    ``likelihood`` regions, S is taken at the angular minimum as the fix's own test takes it
+    (:func:`dfkit.locate.status.at_minimum`: least squares stops short of it)."""
     m = len(table)
     g = bearings["fix_id"].to_numpy(dtype=np.int64)
     r = bearings["residual_deg"].to_numpy(float) if residual_deg is None else residual_deg
@@ -169,6 +172,8 @@ def fix_misfits(table, bearings, residual_deg=None):
         z2 = (r / bearings["sd"].to_numpy(float)) ** 2
         use = (bearings["weight"].to_numpy(float) > 0) & np.isfinite(z2)
     S = np.bincount(g, np.where(use, z2, 0.0), m)
+    if residual_deg is None and len(table):
+        S = at_minimum(S, likelihood, str(table["method"].iat[0]))
     n = np.bincount(g, use.astype(float), m)
     known = table["sd_source"].isin(_KNOWN).to_numpy()
     dof = np.where(known & table["status"].isin(WITH_POSITION).to_numpy(), n - 2, 0).astype(int)
@@ -202,11 +207,11 @@ def suggested_factor(S, dof) -> float:
     return float(np.exp((lo + hi) / 2))
 
 
-def sd_checks(table, bearings, has_pos, residual_deg=None) -> list[dict]:
+def sd_checks(table, bearings, has_pos, residual_deg=None, likelihood=None) -> list[dict]:
     """Groups of fixes (same SD source and value) whose SD the sheet shows to be too small: each a dict with
     ``text`` (the warning), ``reason`` (for each ok fix) and ``fixes`` (their indices). ``residual_deg``: the
     residuals to judge (default the bearings' own)."""
-    S, dof = fix_misfits(table, bearings, residual_deg)
+    S, dof = fix_misfits(table, bearings, residual_deg, likelihood)
     sd = table["sd_deg"].to_numpy(float)
     src = table["sd_source"].to_numpy(dtype=object)
     have = dof >= 1

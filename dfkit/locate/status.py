@@ -53,6 +53,15 @@ def _lines_text(lines):
     return "lines " + ", ".join(str(x) for x in lines[:-1]) + f" and {lines[-1]}"
 
 
+def at_minimum(S, regions, method):
+    """The misfit S of each fix, or the smallest S over all points (the likelihood region's S_min) where it is
+    smaller, for the methods that do not down-weight (:func:`consistency`): least squares and Stansfield stop
+    short of the angular minimum, so their own S overstates how much the bearings disagree."""
+    if regions is None or method not in ("mle", "lsq", "stansfield"):
+        return S
+    return np.where(regions.has_region & np.isfinite(regions.s_min), np.minimum(S, regions.s_min), S)
+
+
 def consistency(sol, g, m, regions=None):
     """Per fix with a known SD: S = sum (r/sd)^2 over the bearings the fit uses, at full weight, and its
     chi-square p-value on n_used - 2 degrees of freedom (NaN where the SD is estimated or dof < 1).
@@ -66,9 +75,7 @@ def consistency(sol, g, m, regions=None):
     w = sol.weight
     with np.errstate(divide="ignore", invalid="ignore"):
         inv_var = np.where(w > 0, sol.region_weight / np.where(w > 0, w, 1.0), 0.0)
-    S = np.bincount(g, inv_var * r * r, m)
-    if regions is not None and sol.method in ("mle", "lsq", "stansfield"):
-        S = np.where(regions.has_region & np.isfinite(regions.s_min), np.minimum(S, regions.s_min), S)
+    S = at_minimum(np.bincount(g, inv_var * r * r, m), regions, sol.method)
     dof = sol.dof
     p = np.where(sol.sd_known & (dof >= 1), chi2_sf(S, np.maximum(dof, 1)), np.nan)
     return S, p
