@@ -381,3 +381,13 @@ def test_least_squares_with_the_right_sd_is_not_told_its_sd_is_too_small(tmp_pat
     fx = locate(dfkit.read_bearings(_sheet(tmp_path, sc, sd=5)), method="lsq")
     assert not [w for w in fx.warnings if w.startswith("the bearing SD of")], fx.warnings
     assert (fx.table["status"] == "ok").mean() > 0.9
+
+
+def test_least_squares_with_an_observer_off_is_not_told_its_sd_is_too_small(tmp_path):
+    # as above, with observer C 4° off: the offset is named, and the SD check (on the misfit the offset leaves,
+    # taken at the angular minimum) must not call the right SD too small
+    sc = scenario(600, 3, 5.0, np.random.default_rng(92), layout="random", ranges=(500.0, 3000.0))
+    fx = locate(dfkit.read_bearings(_sheet(tmp_path, sc, sd=5, observers=["A", "B", "C"], offset={"C": 4.0})),
+                method="lsq")
+    assert any("observer C" in w or "the bearings of this sheet" in w for w in fx.warnings), fx.warnings
+    assert not [w for w in fx.warnings if w.startswith("the bearing SD of")], fx.warnings

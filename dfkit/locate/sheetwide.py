@@ -162,18 +162,25 @@ def without_offsets(table, bearings, found) -> np.ndarray:
 def fix_misfits(table, bearings, residual_deg=None, likelihood=None):
     """Per fix: S (sum of squared residuals in SDs over the bearings the fit uses) and its degrees of freedom
     (n_used - 2; NaN / 0 where the SD is not known or the fix has no position). ``residual_deg`` replaces the
-    bearings' residuals (e.g. :func:`without_offsets`); with the bearings' own residuals and the fixes'
+    bearings' residuals (e.g. :func:`without_offsets`: S then loses what they take out). With the fixes'
     ``likelihood`` regions, S is taken at the angular minimum as the fix's own test takes it
     (:func:`dfkit.locate.status.at_minimum`: least squares stops short of it)."""
     m = len(table)
     g = bearings["fix_id"].to_numpy(dtype=np.int64)
-    r = bearings["residual_deg"].to_numpy(float) if residual_deg is None else residual_deg
+    sd = bearings["sd"].to_numpy(float)
+    use = bearings["weight"].to_numpy(float) > 0
+
+    def misfit(r):
+        with np.errstate(invalid="ignore", divide="ignore"):
+            z2 = (r / sd) ** 2
+        return np.bincount(g, np.where(use & np.isfinite(z2), z2, 0.0), m)
+
+    own = misfit(bearings["residual_deg"].to_numpy(float))
+    S = at_minimum(own, likelihood, str(table["method"].iat[0])) if len(table) else own
+    if residual_deg is not None:         # less what the offsets explain (the same at the minimum, linearised)
+        S = np.maximum(S - (own - misfit(residual_deg)), 0.0)
     with np.errstate(invalid="ignore", divide="ignore"):
-        z2 = (r / bearings["sd"].to_numpy(float)) ** 2
-        use = (bearings["weight"].to_numpy(float) > 0) & np.isfinite(z2)
-    S = np.bincount(g, np.where(use, z2, 0.0), m)
-    if residual_deg is None and len(table):
-        S = at_minimum(S, likelihood, str(table["method"].iat[0]))
+        use = use & np.isfinite(bearings["residual_deg"].to_numpy(float) / sd)
     n = np.bincount(g, use.astype(float), m)
     known = table["sd_source"].isin(_KNOWN).to_numpy()
     dof = np.where(known & table["status"].isin(WITH_POSITION).to_numpy(), n - 2, 0).astype(int)
