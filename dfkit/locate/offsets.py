@@ -132,6 +132,16 @@ def group_columns(table) -> list[str]:
     return out
 
 
+def whitened_gradients(az_deg, range_m, sigma_deg, use):
+    """Each bearing's SD s [rad] and the whitened gradient (xe, xn) of its direction with respect to the fix's
+    position (east, north) [1/m in SDs]: (-cos a, sin a) / (d s) for a station at azimuth a and distance d from
+    the fix (module docstring); s = 1 and zeros where ``use`` is False."""
+    s = np.radians(np.where(use, sigma_deg, 1.0))
+    a = np.radians(np.where(use, az_deg, 0.0))
+    d = np.where(use, range_m, 1.0)
+    return s, np.where(use, -np.cos(a) / (d * s), 0.0), np.where(use, np.sin(a) / (d * s), 0.0)
+
+
 def group_stats(table, g, m, residual_deg, az_deg, range_m, sigma_deg, use, *, min_group=1,
                 columns=None, with_lines=True) -> GroupStats | None:
     """U, V ... of every (fix, group label) pair with at least ``min_group`` used bearings of the group (arrays over
@@ -141,11 +151,8 @@ def group_stats(table, g, m, residual_deg, az_deg, range_m, sigma_deg, use, *, m
     if not cols or not len(g):
         return None
     use = use & np.isfinite(residual_deg) & np.isfinite(sigma_deg) & (sigma_deg > 0) & (range_m > 0)
-    s = np.radians(np.where(use, sigma_deg, 1.0))
+    s, xe, xn = whitened_gradients(az_deg, range_m, sigma_deg, use)
     r = np.radians(np.where(use, residual_deg, 0.0)) / s           # whitened residual
-    a = np.radians(np.where(use, az_deg, 0.0))
-    d = np.where(use, range_m, 1.0)
-    xe, xn = np.where(use, -np.cos(a) / (d * s), 0.0), np.where(use, np.sin(a) / (d * s), 0.0)
     w = 1.0 / s
     u = use.astype(float)
     M = np.stack([np.bincount(g, u * xe * xe, m), np.bincount(g, u * xe * xn, m), np.bincount(g, u * xn * xn, m)])

@@ -31,7 +31,7 @@ import numpy as np
 import pandas as pd
 
 from dfkit.locate.fixes import WITH_POSITION
-from dfkit.locate.offsets import sheet_offsets
+from dfkit.locate.offsets import sheet_offsets, whitened_gradients
 from dfkit.locate.status import at_minimum
 from dfkit.policy import INCONSISTENT_P
 from dfkit.regions import chi2_sf
@@ -145,10 +145,7 @@ def without_offsets(table, bearings, found) -> np.ndarray:
         use = (b["weight"].to_numpy(float) > 0) & np.isfinite(r) & (sd > 0) & (b["range_m"].to_numpy(float) > 0)
     flat, flon = table["lat"].to_numpy(float), table["lon"].to_numpy(float)
     az, _, _ = geodesy.inverse(flat[g], flon[g], b["lat"].to_numpy(float), b["lon"].to_numpy(float))
-    s = np.where(use, np.radians(sd), 1.0)
-    a = np.radians(np.where(use, az, 0.0))
-    d = np.where(use, b["range_m"].to_numpy(float), 1.0)
-    xe, xn = np.where(use, -np.cos(a) / (d * s), 0.0), np.where(use, np.sin(a) / (d * s), 0.0)
+    s, xe, xn = whitened_gradients(az, b["range_m"].to_numpy(float), sd, use)
     v = np.where(use, np.radians(delta) / s, 0.0)
     Mee, Men, Mnn = (np.bincount(g, xe * xe, m), np.bincount(g, xe * xn, m), np.bincount(g, xn * xn, m))
     qe, qn = np.bincount(g, xe * v, m), np.bincount(g, xn * v, m)
