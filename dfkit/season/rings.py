@@ -73,6 +73,8 @@ def lonlat_parts(geom):
 
     if geom is None or geom.is_empty:
         return None
+    if geom.geom_type == "Polygon" and -180.0 < geom.bounds[0] and geom.bounds[2] < 180.0 and geom.is_valid:
+        return shapely.MultiPolygon([orient(geom, 1.0)]) if geom.area > 0 else None   # its own intersection
     parts = []
     for k in (-1, 0, 1):
         piece = shapely.intersection(geom, shapely.box(-180.0 + 360 * k, -90.0, 180.0 + 360 * k, 90.0))
@@ -84,8 +86,10 @@ def lonlat_parts(geom):
 
 
 def lonlat_parts_many(geoms) -> list:
-    """:func:`lonlat_parts` of many geometries: polygons strictly within (-180, 180) all at once, by the same
-    GEOS operations (intersection with the world box, counter-clockwise orientation); the rest one by one."""
+    """:func:`lonlat_parts` of many geometries: polygons strictly within (-180, 180) all at once, the rest one
+    by one. A valid polygon strictly within the world box is its own intersection with the box, so it is only
+    oriented (exterior counter-clockwise); an invalid one goes through the box intersection as in
+    :func:`lonlat_parts`, which mends what GEOS can."""
     import shapely
 
     geoms = np.asarray(list(geoms), dtype=object)
@@ -99,7 +103,9 @@ def lonlat_parts_many(geoms) -> list:
     if len(idx):
         b = shapely.bounds(geoms[idx])
         idx = idx[(b[:, 0] > -180.0) & (b[:, 2] < 180.0) & ~shapely.is_empty(geoms[idx])]
-        piece = shapely.intersection(geoms[idx], shapely.box(-180.0, -90.0, 180.0, 90.0))
+        piece = geoms[idx].copy()
+        bad = ~shapely.is_valid(piece)
+        piece[bad] = shapely.intersection(piece[bad], shapely.box(-180.0, -90.0, 180.0, 90.0))
         ok = (shapely.get_type_id(piece) == 3) & (shapely.area(piece) > 0)
         out[idx[ok]] = shapely.multipolygons(shapely.orient_polygons(piece[ok], exterior_cw=False)[:, None])
         poly[:] = False
