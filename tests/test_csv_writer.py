@@ -88,3 +88,31 @@ def test_tables_the_fast_writer_leaves_to_pandas(tmp_path):
         assert df.shape[1] < 2 or df["fix"].str.startswith("#").any() or not dcsv._formats_all(df)
         write_table(df, tmp_path / "p.csv")
         assert (tmp_path / "p.csv").read_bytes() == _pandas_bytes(df)
+
+
+def _short_decimals(n, d, rng):
+    """Floats nearest to decimals of ``d`` places (the writer builds their text from digit tables), of every size
+    up to 2**52 units of the last place, either sign, with the edges of Python's positional form (1e-4) and of
+    three-digit groups among them."""
+    units = np.floor(rng.uniform(-1, 1, n) * 2.0 ** rng.uniform(0, 52, n))
+    values = units / 10.0 ** d
+    edges = [0.0, -0.0, 9e-05, -3e-7, 999.0, 1000.0, -1000.0, 999999.0, 1e6, np.nan, np.inf]
+    edges += [(2.0 ** 52 - 1) / 10.0 ** d]
+    edges += [-1000.5, 999999.5, -0.5] if d >= 1 else []
+    edges += [1e-4, -1e-4, 1.2e-4, 0.000101] if d >= 6 else []
+    values[:len(edges)] = edges[:n]
+    return values
+
+
+@pytest.mark.parametrize("n", [20, 3000])
+def test_short_decimals_same_bytes_as_pandas(tmp_path, n):
+    rng = np.random.default_rng(7 + n)
+    cols = {"fix": [f"F{i}" for i in range(n)]}
+    for d in range(10):
+        cols[f"d{d}"] = _short_decimals(n, d, rng)
+    cols["mixed"] = np.where(rng.random(n) < 0.5, 0.1 + 0.2, cols["d3"])        # no short decimal for all: repr
+    cols["lat"] = rng.uniform(-90, 90, n)                                    # rounded to 7 by the writer
+    cols["n"] = rng.integers(-10**15, 10**15, n) // 10 ** rng.integers(0, 16, n)
+    df = pd.DataFrame(cols)
+    write_table(df, tmp_path / "d.csv")
+    assert (tmp_path / "d.csv").read_bytes() == _pandas_bytes(df)

@@ -39,12 +39,16 @@ FORMULA_STARTS = ("=", "+", "-", "@", "\t", "\r", "\n")
 # A cell a spreadsheet would run, or one that already looks guarded ('=x): both get one more ' so that reading
 # back (which removes exactly one ') gives the cell as it was.
 _FORMULA_START = re.compile("^'*[=+\\-@\t\r\n]")
+# In cells joined after a NUL each (see _joined): a cell that starts with a formula character or a ', or a CR.
+_GUARD_CANDIDATE = re.compile("\x00['=+\\-@\t\r\n]|\r")
 _PLAIN_NUMBER = re.compile(r"^[+-]?(\d+\.?\d*|\.\d+)([eE][+-]?\d+)?$")
 
 
 def _iso(series: pd.Series) -> pd.Series:
     """UTC times as ISO 8601 text ending in Z; '' where missing."""
     values = series.dt.tz_convert("UTC").dt.tz_localize(None).to_numpy(dtype="datetime64[s]")
+    if np.isnat(values).all():
+        return pd.Series(np.full(len(values), "", dtype=object), index=series.index, dtype=object)
     text = np.char.add(np.datetime_as_string(values, unit="s"), "Z")
     return pd.Series(np.where(np.isnat(values), "", text), index=series.index, dtype=object)
 
@@ -71,6 +75,8 @@ def neutralise_formulas(values: pd.Series, *, guard: bool = True) -> pd.Series:
     >>> neutralise_formulas(pd.Series(["=1+2", "-12.5", "-x", "ok"])).tolist()
     ["'=1+2", '-12.5', "'-x", 'ok']
     """
+    if _nothing_to_guard(values):
+        return values
     try:   # columns repeat a few values (labels, units): look at each distinct value once
         codes, uniques = pd.factorize(values.to_numpy(dtype=object))
     except TypeError:    # unhashable cells (lists): look at every cell
@@ -96,8 +102,15 @@ def neutralise_formulas(values: pd.Series, *, guard: bool = True) -> pd.Series:
     return pd.Series(cells, index=values.index, name=values.name, dtype=object)
 
 
+def _nothing_to_guard(values: pd.Series) -> bool:
+    """Whether a column is all text in which no cell starts with a formula character or a ``'`` and none holds a
+    carriage return (one search of the joined cells; False means: look cell by cell)."""
+    joined = _joined(values.to_numpy(dtype=object))
+    return joined is not None and not _GUARD_CANDIDATE.search(joined)
+
+
 def _for_csv(df: pd.DataFrame, guard: bool) -> pd.DataFrame:
-    out = df.copy()
+    out = df.copy(deep=False)      # copy on write: the caller's table is not changed
     for c in out.columns:
         if isinstance(out[c].dtype, pd.DatetimeTZDtype):
             out[c] = _iso(out[c])
@@ -127,8 +140,7 @@ def write_table(df: pd.DataFrame, path, *, guard_formulas: bool = True) -> None:
     # dfkit's reader takes a line starting with '#' for a comment: quote text when the first column could start so.
     first = table.iloc[:, 0] if table.shape[1] else pd.Series([], dtype=object)
     hashed = (header[:1] and header[0].startswith("#")) or (
-        (first.dtype == object or pd.api.types.is_string_dtype(first.dtype))
-        and bool(first.astype(str).str.startswith("#").any()))
+        (first.dtype == object or pd.api.types.is_string_dtype(first.dtype)) and _any_starts_with_hash(first))
     quoting = csv.QUOTE_NONNUMERIC if hashed else csv.QUOTE_MINIMAL
     fast = quoting == csv.QUOTE_MINIMAL and table.shape[1] >= 2 and _formats_all(table)
     with atomic_write(path, newline="") as fh:
@@ -136,10 +148,27 @@ def write_table(df: pd.DataFrame, path, *, guard_formulas: bool = True) -> None:
             table.to_csv(fh, index=False, header=header, lineterminator="\n", quoting=quoting)
             return
         fh.write(",".join(_quoted(header)) + "\n")
+        tables = _DigitTables()
         for start in range(0, len(table), _ROWS_PER_WRITE):
-            cells = _text_columns(table.iloc[start:start + _ROWS_PER_WRITE])
-            fh.write("\n".join(map(",".join, zip(*cells))))
-            fh.write("\n")
+            fh.write(_rows_text(_text_columns(table.iloc[start:start + _ROWS_PER_WRITE], tables)))
+
+
+def _any_starts_with_hash(col: pd.Series) -> bool:
+    """Whether a cell of a text column starts with '#' as text (``str(cell)``; missing cells never do)."""
+    values = col.to_numpy(dtype=object)
+    joined = _joined(values)
+    if joined is not None:
+        return "\x00#" in joined and bool(pd.Series(values, dtype=object).str.startswith("#").fillna(False).any())
+    return bool(col.astype(str).str.startswith("#").any())
+
+
+def _joined(values):
+    """The cells of an object array joined after a NUL each (``'\\x00a\\x00b'``), so that one substring search
+    answers "does any cell start with (or hold) this"; None when a cell is not a str."""
+    try:
+        return "\x00" + "\x00".join(values.tolist())
+    except TypeError:
+        return None
 
 
 #: Rows formatted into text at a time (bounds the memory a long table's text takes: about 2 MB per column).
@@ -168,50 +197,176 @@ def _formats_all(table: pd.DataFrame) -> bool:
         col = table[name]
         if isinstance(col.dtype, np.dtype) and (col.dtype.kind in "iub" or col.dtype == np.float64):
             continue
+        if isinstance(col.dtype, pd.StringDtype):     # str cells or missing values by its definition
+            continue
         if not (col.dtype == object or pd.api.types.is_string_dtype(col.dtype)):
             return False
         values = col.to_numpy(dtype=object)
-        if not set(map(type, values[~pd.isna(values)].tolist())) <= {str}:
+        if _joined(values) is None and not set(map(type, values[~pd.isna(values)].tolist())) <= {str}:
             return False
     return True
 
 
-def _text_columns(table: pd.DataFrame):
-    """Every column as a list of the text pandas' ``to_csv`` writes for it (QUOTE_MINIMAL, ``na_rep=''``), for a
-    table :func:`_formats_all` accepts.
+def _rows_text(columns) -> str:
+    """CSV rows from the columns' pieces (:func:`_text_columns`), one join for all rows rather than one per row:
+    the pieces of a row are its text in order."""
+    n = next((len(p) for pieces in columns for p in pieces if not isinstance(p, str)), 0)
+    grid = np.empty((n, sum(map(len, columns))), dtype=object)
+    k = 0
+    for pieces in columns:
+        for p in pieces:
+            grid[:, k] = p
+            k += 1
+    return "".join(grid.ravel().tolist())
+
+
+def _text_columns(table: pd.DataFrame, tables: _DigitTables | None = None):
+    """Every column as the text pandas' ``to_csv`` writes for it (QUOTE_MINIMAL, ``na_rep=''``) followed by the
+    delimiter (a line end after the last column), for a table :func:`_formats_all` accepts: per column a list of
+    pieces (object arrays, or one str for every row), a cell's text being its pieces one after the other.
 
     pandas turns float64 columns into text with numpy's ``astype(str)``, the shortest text that reads back
     as the same float, which is Python's ``repr`` (checked in tests/test_csv_writer.py against pandas
-    itself); integers and booleans with ``str``; text as it is, missing values as ''."""
+    itself): see :func:`_float_pieces`; integers and booleans with ``str``; text as it is, missing values as ''."""
+    tables = tables or _DigitTables()
     out = []
-    for name in table.columns:
+    for j, name in enumerate(table.columns):
+        end = "\n" if j == table.shape[1] - 1 else ","
         col = table[name]
         kind = col.dtype.kind
         if isinstance(col.dtype, np.dtype) and kind == "f" and col.dtype.itemsize == 8:
-            values = col.to_numpy()
-            # distinct by their bits, so that -0.0 and 0.0 (equal as numbers) keep their own text
-            text = _per_value(values, repr, values.view(np.int64))
-            if np.isnan(values).any():
-                text = np.where(np.isnan(values), "", np.asarray(text, dtype=object)).tolist()
-        elif isinstance(col.dtype, np.dtype) and kind in "iub":
-            text = _per_value(col.to_numpy(), str)
+            pieces = _float_pieces(col.to_numpy(), tables, end)
+        elif isinstance(col.dtype, np.dtype) and kind == "b":
+            pieces = [np.array(["False" + end, "True" + end], dtype=object)[col.to_numpy().astype(np.intp)]]
+        elif isinstance(col.dtype, np.dtype) and kind in "iu" and np.abs(col.to_numpy()).max(initial=0) < 2 ** 62:
+            pieces = _int_pieces(col.to_numpy().astype(np.int64), tables, suffix=end)
+        elif isinstance(col.dtype, np.dtype) and kind in "iu":
+            pieces = [np.array([str(v) + end for v in col.to_numpy().tolist()], dtype=object)]
         elif col.dtype == object or pd.api.types.is_string_dtype(col.dtype):
-            values = col.to_numpy(dtype=object)
-            missing = pd.isna(values)
-            if missing.any():
-                values = values.copy()
-                values[missing] = ""
-            text = values.tolist()
-            if any(_NEEDS_QUOTES.search(v) for v in _distinct(values)):
-                text = _per_value(values, lambda v: _quoted([v])[0])
+            pieces = [_plain_text(col.to_numpy(dtype=object)), end]
         else:
             return None
-        out.append(text)
+        out.append(pieces)
     return out
 
 
-def _distinct(values):
-    return pd.unique(values) if len(values) else values
+def _plain_text(values: np.ndarray) -> np.ndarray:
+    """A text column's cells, missing ones as '', quoted as the csv module quotes them where needed."""
+    joined = _joined(values)
+    if joined is None:     # missing cells
+        values = values.copy()
+        values[pd.isna(values)] = ""
+        joined = _joined(values)
+    if any(ch in joined for ch in ',"\r\n'):
+        return np.asarray(_per_value(values, lambda v: _quoted([v])[0]), dtype=object)
+    return values
+
+
+class _DigitTables:
+    """Texts of the numbers 0 to 10**digits - 1 in the forms the writer pieces cells from, built once per table
+    written and shared by its columns."""
+
+    def __init__(self):
+        self._made = {}
+
+    def get(self, digits: int, form: str, suffix: str = "") -> np.ndarray:
+        """Texts indexed by the number, each followed by ``suffix``. ``form``: 'plain' (``str``), 'minus'
+        (``'-' + str``), 'padded' (zero-padded to ``digits``), 'decimals' ('.' and the zero-padded digits),
+        'short' ('.' and the digits without trailing zeros, '.0' for none), 'rest' (the zero-padded digits
+        without trailing zeros, '' for none)."""
+        key = (digits, form, suffix)
+        if key not in self._made:
+            n = range(10 ** digits)
+            texts = {"plain": lambda: map(str, n), "minus": lambda: ("-" + str(f) for f in n),
+                     "padded": lambda: (str(f).zfill(digits) for f in n),
+                     "decimals": lambda: ("." + str(f).zfill(digits) for f in n),
+                     "short": lambda: ("." + (str(f).zfill(digits).rstrip("0") or "0") for f in n),
+                     "rest": lambda: (str(f).zfill(digits).rstrip("0") for f in n)}[form]()
+            self._made[key] = np.array([t + suffix for t in texts], dtype=object)
+        return self._made[key]
+
+
+def _int_pieces(values: np.ndarray, tables: _DigitTables, negative=None, suffix: str = "") -> list:
+    """``str`` of every integer as pieces of three digits each (``12345`` -> ``'12'``, ``'345'``), taken from
+    tables; ``negative`` marks cells written with a '-' (by default those below 0; it may mark zeros: ``'-0'``);
+    the last piece ends in ``suffix``."""
+    negative = values < 0 if negative is None else negative
+    size = np.abs(values)
+    top = int(size.max()) if len(size) else 0
+    groups = max(1, (len(str(top)) + 2) // 3)
+    digits = [(size // 1000 ** (groups - 1 - k)) % 1000 for k in range(groups)]
+    lead = np.full(len(values), groups - 1)       # the first group written (the last one for a zero)
+    for k in range(groups - 2, -1, -1):
+        lead[digits[k] != 0] = k
+    pieces = []
+    for k, g in enumerate(digits):
+        end = suffix if k == groups - 1 else ""
+        first = np.where(negative, tables.get(3, "minus", end)[g], tables.get(3, "plain", end)[g])
+        text = first if k == groups - 1 and groups == 1 else np.where(
+            lead == k, first, tables.get(3, "padded", end)[g])
+        if k < groups - 1:
+            text = np.where(lead > k, "", text)
+        pieces.append(text)
+    return pieces
+
+
+#: Most decimals :func:`_float_pieces` writes from digit tables (the fix table's coordinates have 7).
+_MAX_DECIMALS = 7
+
+
+def _decimals(values: np.ndarray):
+    """The fewest decimals ``d`` (up to :data:`_MAX_DECIMALS`) that every float written in positional form
+    (finite, ``1e-4 <= |v| < 1e16`` or 0) has: ``(d, the cells that have it, the cells as integers of
+    10**-d)``, or None."""
+    with np.errstate(invalid="ignore", over="ignore"):
+        usable = np.isfinite(values) & ((np.abs(values) >= 1e-4) | (values == 0))
+        for d in range(_MAX_DECIMALS + 1):
+            scaled = np.rint(values * 10.0 ** d)
+            fits = usable & (scaled / 10.0 ** d == values) & (np.abs(scaled) < 2.0 ** 52)
+            if np.array_equal(fits, usable):
+                return d, fits, np.abs(np.where(fits, scaled, 0.0)).astype(np.int64)
+    return None
+
+
+def _float_pieces(values: np.ndarray, tables: _DigitTables, suffix: str = "") -> list:
+    """``repr`` of every float ('' for NaN) as pieces, the last ending in ``suffix``, without calling ``repr`` per
+    cell where it can be avoided.
+
+    A float ``v`` with ``rint(v * 10**d) / 10**d == v`` (computed in floating point, which rounds correctly) is
+    the float nearest the decimal ``i / 10**d``; when ``|i| < 2**52`` no other decimal of ``d`` places, nor
+    any shorter one, reads back as ``v`` (the gap between floats near ``v`` is below ``10**-d``), so that decimal
+    is ``v``'s shortest round-tripping text, which ``repr`` writes in positional form for
+    ``1e-4 <= |v| < 1e16`` (and for 0), with at least one decimal (``'12.0'``) and ``-`` for a set sign bit
+    (``'-0.0'``). The smallest such ``d`` is found for the whole column (:func:`_decimals`); a cell's text is
+    then its integer part (:func:`_int_pieces`), the first digits of its fraction and the last three (trailing
+    zeros dropped), each taken from a table. Other cells (NaN, infinities, tiny or huge values) get ``repr``.
+    """
+    found = _decimals(values)
+    if found is None:
+        return [_float_repr(values, suffix)]
+    d, fits, ints = found
+    whole, frac = np.divmod(ints, 10 ** d)
+    pieces = _int_pieces(whole, tables, negative=np.signbit(values) & fits)
+    if d <= 4:
+        pieces.append(tables.get(d, "short", suffix)[frac])
+    else:       # fraction tables of d digits would be too long: its first d - 3 digits, then the last 3
+        high, low = np.divmod(frac, 1000)
+        pieces.append(np.where(low != 0, tables.get(d - 3, "decimals")[high], tables.get(d - 3, "short")[high]))
+        pieces.append(tables.get(3, "rest", suffix)[low])
+    other = np.flatnonzero(~fits)
+    if len(other):
+        pieces[0][other] = _float_repr(values[other], suffix if len(pieces) == 1 else "")
+        for p in pieces[1:]:
+            p[other] = suffix if p is pieces[-1] else ""
+    return pieces
+
+
+def _float_repr(values: np.ndarray, suffix: str = "") -> np.ndarray:
+    """``repr`` of every float, '' for NaN (once per distinct value when the column repeats few), then ``suffix``."""
+    # distinct by their bits, so that -0.0 and 0.0 (equal as numbers) keep their own text
+    text = np.asarray(_per_value(values, lambda v: repr(v) + suffix, values.view(np.int64)), dtype=object)
+    text[np.isnan(values)] = suffix
+    return text
 
 
 def _per_value(values: np.ndarray, fmt, keys=None) -> list:

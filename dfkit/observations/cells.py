@@ -60,7 +60,7 @@ def column(table: pd.DataFrame, name: str) -> np.ndarray:
         if col.dtype.kind == "f":
             return col.to_numpy(dtype=float)
         return col.to_numpy(dtype=object)
-    return np.full(len(table), "", dtype=object)
+    return filled(len(table), "")
 
 
 def filled(n, value) -> np.ndarray:
@@ -477,7 +477,7 @@ def declinations(cells, decimal_comma: bool = False) -> Cells:
     cells = np.asarray(cells, dtype=object)
     if not (cells != "").any():
         n = len(cells)
-        return Cells(np.full(n, np.nan), np.ones(n, bool), np.full(n, "", dtype=object))
+        return Cells(np.full(n, np.nan), np.ones(n, bool), filled(n, ""))
     s = pd.Series(cells, dtype=object).astype(str).str.strip().str.upper()
     west = s.str.endswith("W").to_numpy()
     east = s.str.endswith("E").to_numpy()

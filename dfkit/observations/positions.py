@@ -38,7 +38,7 @@ import pandas as pd
 
 from dfkit import grids
 from dfkit.io.gpx import Track
-from dfkit.observations.cells import angles, column, numbers, per_value, split_position
+from dfkit.observations.cells import angles, column, filled, numbers, per_value, split_position
 from dfkit.observations.rowlog import RowLog
 from dfkit.observations.typos import describe, variants
 from dfkit.policy import (
@@ -214,18 +214,19 @@ class _State:
     def __init__(self, n, log, cells, cols):
         self.n = n
         self.log = log
-        self.cells = {role: cells.get(role, np.full(n, "", dtype=object))
+        none = filled(n, "")       # one array of '' for the roles the sheet has no column for (never changed)
+        self.cells = {role: cells[role] if role in cells else none
                       for role in ("lat", "lon", "utm_zone", "utm_hemisphere", "easting", "northing", "mgrs",
                                    "station", "position")}
         self.cols = cols
         self.lat = np.full(n, np.nan)
         self.lon = np.full(n, np.nan)
-        self.source = np.full(n, "", dtype=object)
+        self.source = filled(n, "")
         self.zone = np.zeros(n, int)
         self.south = np.zeros(n, bool)
         # a zone letter S read as the southern hemisphere because band S does not fit: how it was read, and where
         # the northern reading puts the row (for the message if the row turns out far from its fix)
-        self.letter_note = np.full(n, "", dtype=object)
+        self.letter_note = filled(n, "")
         self.north_lat = np.full(n, np.nan)
         self.north_lon = np.full(n, np.nan)
 
@@ -253,7 +254,7 @@ def _combined(p: _State, decimal_comma):
         return
     parts = per_value(cells[rows], lambda u: split_position(u, decimal_comma=decimal_comma))
     err = np.array([e for _, _, e in parts], dtype=object)
-    full = np.full(p.n, "", dtype=object)
+    full = filled(p.n, "")
     full[rows] = err
     p.log.reject(full != "", p.name("position"), full)
     ok = err == ""
@@ -694,7 +695,7 @@ def _swapped(p: _State, groups, track_ll):
         return
     lat, lon = p.lat, p.lon
     suspect = np.zeros(p.n, bool)
-    where = np.full(p.n, "", dtype=object)
+    where = filled(p.n, "")
     with np.errstate(invalid="ignore"):
         if track_ll is not None:
             tl, to = track_ll

@@ -41,7 +41,7 @@ from datetime import datetime, timedelta, timezone
 import numpy as np
 import pandas as pd
 
-from dfkit.observations.cells import per_value
+from dfkit.observations.cells import filled, per_value
 from dfkit.policy import PLAUSIBLE_YEARS
 
 #: Keywords of ``date_format`` (``--date-format``).
@@ -98,7 +98,7 @@ def parse_times(cells, *, tz: str | None = None, date_format: str | None = None,
     """
     text = np.asarray(cells, dtype=object)
     n = len(text)
-    error = np.full(n, "", dtype=object)
+    error = filled(n, "")
     if dates is not None:
         text, error = _combine_dates(text, np.asarray(dates, dtype=object))
     empty = (text == "") & (error == "")
@@ -170,7 +170,7 @@ def _combine_dates(times, dates):
     """A separate date column: 'date' + 'time of day' -> one text per row."""
     n = len(times)
     out = times.copy()
-    err = np.full(n, "", dtype=object)
+    err = filled(n, "")
     d = pd.Series(dates, dtype=object).astype(str).str.strip()
     d = d.str.replace(_DATE_ONLY_MIDNIGHT, r"\1", regex=True).to_numpy(dtype=object)
     t = pd.Series(times, dtype=object).astype(str).str.strip()
