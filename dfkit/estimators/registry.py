@@ -22,7 +22,9 @@ class Method:
 
     ``terms(r, w, s, c)`` returns per-bearing (f, f', scoring curvature, f'') of the
     objective for optimisers, ``objective(r, w, s, c)`` f alone; ``weights(r, s, c)``
-    the weight each bearing ends with.
+    the weight each bearing ends with. ``sc_terms(sn, cs, w, s, c)`` (f', scoring curvature, f'') and
+    ``sc_objective(sn, cs, w, s, c)``, where a method has them, take sin r and cos r in place of r: the
+    optimiser then needs no arctan2 per bearing and step.
     """
 
     name: str
@@ -34,6 +36,8 @@ class Method:
     weights: Callable | None = None
     robust: bool = False
     default_c: float | None = None
+    sc_terms: Callable | None = None
+    sc_objective: Callable | None = None
 
 
 _huber_terms, _huber_objective, _huber_weights = robust.make_terms("huber")

@@ -457,7 +457,8 @@ def _run(ctx, todo, x0, y0, into=None):
             break
         sel = act[g]
         fixes = np.flatnonzero(act)
-        cg = np.searchsorted(fixes, g[sel])
+        number = np.cumsum(act) - 1          # each active fix's number among them
+        cg = number[g[sel]]
         # every bearing active (the common first rounds): the arrays themselves, not copies of all their rows
         rows = slice(None) if sel.all() else sel
         if outer:
@@ -477,8 +478,8 @@ def _run(ctx, todo, x0, y0, into=None):
             px, py, end, its = iterate.fixed_point(gs, cg, len(fixes), sx0, sy0, w[rows], tol_in,
                                                    ctx["max_iter"], r_run[fixes])
         else:
-            px, py, end, its = iterate.optimise(spec.terms, spec.objective, gs, cg, len(fixes), sx0, sy0, w[rows], s_b[rows], c,
-                                                tol_in, ctx["max_iter"], r_run[fixes])
+            px, py, end, its = iterate.optimise(spec, gs, cg, len(fixes), sx0, sy0, w[rows], s_b[rows], c, tol_in,
+                                                ctx["max_iter"], r_run[fixes])
         iterations[fixes] += its
         bad = end != iterate.SETTLED
         for code, name in _FROM_PLANAR.items():
