@@ -280,10 +280,10 @@ def fixed_point(geo, cg, mg, x, y, w, tol, max_iter, r_run):
     for rnd, (idx, grp, bcg) in enumerate(_Compact(cg, mg).rounds(ending, max_iter)):
         running = ending == RUNNING
         n_g = len(grp)
-        sx_b, sy_b, phi_b, w_b = geo.sx[idx], geo.sy[idx], geo.phi[idx], w[idx]
+        sx_b, sy_b, sp_b, cp_b, w_b = geo.sx[idx], geo.sy[idx], geo.sp[idx], geo.cp[idx], w[idx]
 
         def T(px, py):
-            return stansfield.step(bcg, n_g, sx_b, sy_b, phi_b, w_b, px, py)
+            return stansfield.step(bcg, n_g, sx_b, sy_b, sp_b, cp_b, w_b, px, py)
 
         qx, qy, ratio = T(x[grp], y[grp])
         live = running[grp]
@@ -345,7 +345,7 @@ def _newton_fixed_point(T, x, y, gx, gy, gnorm, r_run):
 
 def closed_form(geo, cg, mg, r_run):
     """The least-squares point of every fix in its plane. Returns x, y, ending, iterations."""
-    x, y, ratio = planar_point(cg, mg, geo.sx, geo.sy, geo.phi, np.ones(len(cg)))
+    x, y, ratio = planar_point(cg, mg, geo.sx, geo.sy, geo.sp, geo.cp, np.ones(len(cg)))
     ending = np.full(mg, SETTLED, np.int8)
     singular = ~np.isfinite(x) | ~np.isfinite(y) | (ratio < SINGULAR_RATIO)
     ending[singular] = SINGULAR

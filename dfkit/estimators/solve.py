@@ -228,7 +228,7 @@ def solve(lat, lon, bearing_deg, group, n_groups, sd_deg=None, *, method="mle", 
     if spec.kind != "closed":
         # The least-squares point is the start wherever it looks clean; elsewhere the candidates are
         # ranked (and for clean fixes too, later, should the first fit fail).
-        lx, ly, ratio = planar_point(g, m, geo0.sx, geo0.sy, geo0.phi, np.ones(N))
+        lx, ly, ratio = planar_point(g, m, geo0.sx, geo0.sy, geo0.sp, geo0.cp, np.ones(N))
         has_lsq = base & np.isfinite(lx) & np.isfinite(ly) & (ratio > 1e-12)
         r_l = residuals(geo0.sp, geo0.cp, geo0.sx, geo0.sy, np.nan_to_num(lx[g]), np.nan_to_num(ly[g]))[0]
         clean = has_lsq & _looks_clean(r_l, g, m, counts, known_b, sd_rad)
@@ -536,9 +536,9 @@ def _verify(ctx, todo, res):
             good = pd & (np.hypot(sx_, sy_) < VERIFY_M)
     else:
         if spec.kind == "closed":
-            sx_, sy_, ratio = planar_point(g, m, geo.sx, geo.sy, geo.phi, np.ones(len(r)))
+            sx_, sy_, ratio = planar_point(g, m, geo.sx, geo.sy, geo.sp, geo.cp, np.ones(len(r)))
         else:
-            sx_, sy_, ratio = stansfield.step(g, m, geo.sx, geo.sy, geo.phi, w, np.zeros(m), np.zeros(m))
+            sx_, sy_, ratio = stansfield.step(g, m, geo.sx, geo.sy, geo.sp, geo.cp, w, np.zeros(m), np.zeros(m))
         with np.errstate(invalid="ignore"):
             good = (np.hypot(sx_, sy_) < VERIFY_M) & (ratio > iterate.SINGULAR_RATIO)
     dmin = np.full(m, np.inf)
