@@ -22,6 +22,14 @@ SINGULAR_RATIO = 1e-14
 #: *Numerical Optimization*, 2nd ed., Springer, 2006, ch. 3, backtracking line search [from memory]).
 ARMIJO = 1e-4
 MAX_HALVINGS = 40
+#: Changes of the objective below this fraction of it are not told apart from rounding: a step whose whole
+#: predicted change is smaller is judged by the model (accepted unless the objective rose by more), as is a
+#: step already below the tolerance. (A numerical bound, no field value: near the optimum the decrease of a
+#: Newton step of 10 micrometres is about 1e-16 of the objective, far below what a sum of rounded terms
+#: resolves, and halving such steps by chance ended fixes up to 20 micrometres short of the optimum.)
+FLAT = 1e-12
+#: Halvings of a failed step tried at once (one pass over the few fixes' bearings instead of one each).
+BATCH = 8
 
 
 class _Compact:
@@ -195,58 +203,76 @@ def _newton(slopes, dx, dy, d2, cg, n_g):
     # Newton matrix of sum f(r): f'' g g^T - f' dg/dP, dg/dP = [[-2xy, x2-y2], [x2-y2, 2xy]] / d^4
     k = f1 / (d2 * d2)
     kxy = 2.0 * dx * dy * k
-    kd = (dx ** 2 - dy ** 2) * k
+    kd = (dx * dx - dy * dy) * k
     h11 = gsum(cg, f2 * gx * gx + kxy, n_g)
     h12 = gsum(cg, f2 * gx * gy - kd, n_g)
     h22 = gsum(cg, f2 * gy * gy - kxy, n_g)
     nonpd = ~((h11 > 0) & (h11 * h22 - h12 * h12 > 0))
     if nonpd.any():
-        j11, j12, j22 = (gsum(cg, a * t, n_g) for t in (gx * gx, gx * gy, gy * gy))
-        h11, h12, h22 = (np.where(nonpd, j, h) for j, h in ((j11, h11), (j12, h12), (j22, h22)))
+        # the scoring matrix, summed over the bearings of those fixes only
+        pos = np.cumsum(nonpd) - 1
+        sel = nonpd[cg]
+        sg, gxs, gys = pos[cg[sel]], gx[sel], gy[sel]
+        a = np.broadcast_to(a, sel.shape)[sel]
+        n_j = pos[-1] + 1
+        j = [gsum(sg, a * t, n_j) for t in (gxs * gxs, gxs * gys, gys * gys)]
+        for h, jj in zip((h11, h12, h22), j):             # (arrays of this round, not shared)
+            h[nonpd] = jj
     sx_, sy_, ratio = solve2(h11, h12, h22, b1, b2)
     return sx_, sy_, b1, b2, ratio
 
 
 def _armijo(Ft, Fo, lam, slope, step_len, tol):
-    """Whether a trial point is accepted (it lowers the objective enough), and whether the step is at the
-    floor: already below the tolerance and not lowering the objective."""
+    """Whether a trial point is accepted (it lowers the objective enough, or the step is too small for the
+    objective to judge and it did not rise measurably: :data:`FLAT`), and whether the step is at the floor:
+    already below the tolerance and not accepted."""
     tiny = lam * step_len < tol
-    ok = (Ft <= Fo + ARMIJO * lam * slope) | (tiny & (Ft <= Fo + 1e-12 * np.abs(Fo)))
+    flat = np.abs(Fo) * FLAT
+    ok = (Ft <= Fo + ARMIJO * lam * slope) | ((tiny | (lam * np.abs(slope) < flat)) & (Ft <= Fo + flat))
     return ok, ~ok & tiny
 
 
 def _halve(form, b, grp, bcg, sel_g, x, y, F, sx_, sy_, lam, slope, step_len, accepted, c, tol, state):
     """Halve the steps of the fixes ``sel_g`` (held numbers) until each is accepted or at the floor, at most
-    :data:`MAX_HALVINGS` times; updates x, y, F, the bearings' state in ``b``, ``lam`` and ``accepted``."""
+    ``MAX_HALVINGS - 1`` times (the whole step was the first try); updates x, y, F, the bearings' state in
+    ``b``, ``lam`` and ``accepted``. :data:`BATCH` halvings are tried at once, and each fix takes the first
+    that passes, as halving one at a time would (the same lengths, bit for bit: powers of two)."""
     pos = np.full(len(grp), -1)
     pos[sel_g] = np.arange(len(sel_g))
     local = pos[bcg]
     bsub = np.flatnonzero(local >= 0)
     local = local[bsub]
-    sub = {k: b[k][bsub] for k in ("sp", "cp", "sx", "sy", "w", "s")}
-    for _h in range(MAX_HALVINGS - 1):
-        if not len(sel_g):
-            break
-        xt = x[grp[sel_g]] + lam[sel_g] * sx_[sel_g]
-        yt = y[grp[sel_g]] + lam[sel_g] * sy_[sel_g]
-        trial = form.at(sub, xt[local], yt[local])
-        Ft = gsum(local, form.objective(trial, sub, c), len(sel_g))
-        ok, floor = _armijo(Ft, F[grp[sel_g]], lam[sel_g], slope[sel_g], step_len[sel_g], tol)
-        if ok.any():
-            fixes = grp[sel_g[ok]]
-            x[fixes], y[fixes], F[fixes] = xt[ok], yt[ok], Ft[ok]
-            bok = ok[local]
+    left = MAX_HALVINGS - 1
+    while len(sel_g) and left:
+        kk = min(BATCH, left)
+        left -= kk
+        n, nb = len(sel_g), len(bsub)
+        lams = lam[sel_g] * 0.5 ** np.arange(kk)[:, None]                 # (kk, n)
+        xt = x[grp[sel_g]] + lams * sx_[sel_g]
+        yt = y[grp[sel_g]] + lams * sy_[sel_g]
+        rows = np.tile(bsub, kk)
+        owner = (np.arange(kk)[:, None] * n + local).ravel()
+        sub = {k: b[k][rows] for k in ("sp", "cp", "sx", "sy", "w", "s")}
+        trial = form.at(sub, xt.ravel()[owner], yt.ravel()[owner])
+        Ft = gsum(owner, form.objective(trial, sub, c), kk * n).reshape(kk, n)
+        ok, floor = _armijo(Ft, F[grp[sel_g]], lams, slope[sel_g], step_len[sel_g], tol)
+        first = np.argmax(ok | floor, axis=0)                             # the first try that passes
+        cols = np.arange(n)
+        hit = (ok | floor)[first, cols]
+        took = hit & ok[first, cols]
+        if took.any():
+            fixes = grp[sel_g[took]]
+            x[fixes], y[fixes], F[fixes] = (v[first[took], cols[took]] for v in (xt, yt, Ft))
+            bj = np.flatnonzero(took[local])
             for k in state:
-                b[k][bsub[bok]] = trial[k][bok]
-        accepted[sel_g[ok | floor]] = True
-        lam[sel_g[floor]] = 0.0
-        keep = ~(ok | floor)
-        lam[sel_g[keep]] *= 0.5
+                b[k][bsub[bj]] = trial[k][first[local[bj]] * nb + bj]
+        accepted[sel_g[hit]] = True
+        lam[sel_g] = np.where(took, lams[first, cols], np.where(hit, 0.0, lams[-1] * 0.5))
+        keep = ~hit
         if not keep.all():
             kb = keep[local]
             bsub = bsub[kb]
             local = (np.cumsum(keep) - 1)[local[kb]]
-            sub = {k: v[kb] for k, v in sub.items()}
             sel_g = sel_g[keep]
 
 

@@ -37,7 +37,8 @@ def sc_terms(sn, cs, w, s, c):
 def sc_objective(sn, cs, w, s, c):
     """The objective w (1 - cos r) from sin r and cos r, as sin^2 r / (1 + cos r) where cos r > 0 so that its
     small values keep their relative precision."""
-    return w * np.where(cs > 0, sn * sn / (1.0 + cs), 1.0 - cs)
+    with np.errstate(divide="ignore", invalid="ignore"):     # the branch not taken where cos r = -1
+        return w * np.where(cs > 0, sn * sn / (1.0 + cs), 1.0 - cs)
 
 
 def weights(r, s, c):

@@ -45,7 +45,8 @@ _andrews_terms, _andrews_objective, _andrews_weights = robust.make_terms("andrew
 
 REGISTRY: dict[str, Method] = {
     "mle": Method("mle", "lenth", "optimiser", "maximum likelihood, von Mises bearing errors (Lenth 1981)",
-                  lenth.terms, lenth.objective, lenth.weights),
+                  lenth.terms, lenth.objective, lenth.weights, sc_terms=lenth.sc_terms,
+                  sc_objective=lenth.sc_objective),
     "huber": Method("huber", "robust", "optimiser", "Huber M-estimator: large residuals count linearly",
                     _huber_terms, _huber_objective, _huber_weights, robust=True, default_c=robust.ROBUST_C["huber"]),
     "andrews": Method("andrews", "robust", "optimiser", "Andrews M-estimator: wild bearings get weight 0",
