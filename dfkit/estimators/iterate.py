@@ -91,8 +91,9 @@ class _AngleForm:
         return dict(r=r, dx=dx, dy=dy, d2=d2)
 
     @staticmethod
-    def at_centre(geo):
-        return dict(r=geo.r.copy())
+    def at_centre(geo, b):
+        """At the plane's centre the residuals are the geodesic ones."""
+        return dict(r=geo.r.copy(), dx=-geo.sx, dy=-geo.sy, d2=geo.d * geo.d)
 
     def objective(self, st, b, c):
         return self.obj(st["r"], b["w"], b["s"], c)
@@ -113,9 +114,9 @@ class _SinCosForm:
         sn, cs, dx, dy, d2 = sin_cos_residuals(b["sp"], b["cp"], b["sx"], b["sy"], x, y)
         return dict(sn=sn, cs=cs, dx=dx, dy=dy, d2=d2)
 
-    @staticmethod
-    def at_centre(geo):
-        return dict(sn=np.sin(geo.r), cs=np.cos(geo.r))
+    def at_centre(self, geo, b):
+        """At the plane's centre (the same residuals as the geodesic ones, to rounding)."""
+        return self.at(b, 0.0, 0.0)
 
     def objective(self, st, b, c):
         return self.obj(st["sn"], st["cs"], b["w"], b["s"], c)
@@ -140,8 +141,8 @@ def optimise(method, geo, cg, mg, x, y, w, s, c, tol, max_iter, r_run):
     ending = np.zeros(mg, np.int8)
     iters = np.zeros(mg, np.int64)
     b = dict(sp=geo.sp, cp=geo.cp, sx=geo.sx, sy=geo.sy, w=w, s=s)
-    if not (x.any() or y.any()):          # at the plane's centre the residuals are the geodesic ones
-        b.update(form.at_centre(geo), dx=-geo.sx, dy=-geo.sy, d2=geo.d * geo.d)
+    if not (x.any() or y.any()):
+        b.update(form.at_centre(geo, b))
     else:
         b.update(form.at(b, x[cg], y[cg]))
     F = gsum(cg, form.objective(b, b, c), mg)

@@ -22,10 +22,10 @@ from dfkit import geodesy
 from dfkit.conventions import wrap180
 from dfkit.estimators import iterate, registry, stansfield, subsets
 from dfkit.estimators.covariance import position_covariance
-from dfkit.estimators.groups import best_in_group, gsum, solve2
+from dfkit.estimators.groups import best_in_group, group_min, gsum, solve2
 from dfkit.estimators.lenth import kappa_from_sd
 from dfkit.estimators.lsq import planar_point
-from dfkit.estimators.plane import geometry, residuals
+from dfkit.estimators.plane import geometry, residuals, sin_cos_residuals
 from dfkit.estimators.robust import MAX_SCALE, chord, start_scale
 from dfkit.estimators.starts import choose, objective_score, trimmed_score
 from dfkit.policy import PLAUSIBLE_SD_DEG
@@ -512,41 +512,56 @@ def _gradients(geo):
 
 
 def _verify(ctx, todo, res):
-    """Whether each fix of ``todo`` ended at a verified optimum (updates ``res['ending']``)."""
+    """Whether each fix of ``todo`` ended at a verified optimum (updates ``res['ending']``); only the
+    bearings of the fixes that finished are looked at."""
     spec, g, m, w, s_b, c = ctx["spec"], ctx["g"], ctx["m"], ctx["w"], ctx["s_b"], ctx["c"]
-    geo = res["geo"]
     ending = res["ending"]
     verified = todo & res["done"]
-    r, d = geo.r, geo.d
-    gx, gy = _gradients(geo)
+    fixes = np.flatnonzero(verified)
+    if not len(fixes):
+        return verified
+    rows = slice(None) if len(fixes) == m else verified[g]
+    geo = res["geo"].take(rows)
+    cg = (np.cumsum(verified) - 1)[g[rows]]
+    good = _optimum_here(spec, geo, cg, len(fixes), w[rows], s_b[rows], c)
+    on_station = group_min(cg, geo.d, len(fixes)) < NEAR_STATION * ctx["spread"][fixes]
+    ending[fixes[~good]] = NOT_OPTIMUM
+    ending[fixes[on_station]] = AT_STATION
+    out = np.zeros(m, bool)
+    out[fixes] = good & ~on_station
+    return out
+
+
+def _optimum_here(spec, geo, g, m, w, s, c):
+    """Whether one more step from each fix's plane centre moves less than :data:`VERIFY_M` and, for the
+    optimisers, the Newton matrix there is positive definite."""
     if spec.kind == "optimiser":
-        f, f1, a, f2 = spec.terms(r, w, s_b, c)
-        b1, b2 = gsum(g, f1 * gx, m), gsum(g, f1 * gy, m)
+        d2 = geo.d * geo.d
         dx, dy = -geo.sx, -geo.sy
-        k = f1 / (d ** 4)
+        gx, gy = dy / d2, -dx / d2
+        if spec.sc_terms is not None:
+            f1, a, f2 = spec.sc_terms(*sin_cos_residuals(geo.sp, geo.cp, geo.sx, geo.sy, 0.0, 0.0)[:2], w, s, c)
+        else:
+            f1, a, f2 = spec.terms(geo.r, w, s, c)[1:]
+        b1, b2 = gsum(g, f1 * gx, m), gsum(g, f1 * gy, m)
+        k = f1 / (d2 * d2)
         kxy = 2.0 * dx * dy * k
         kd = (dx * dx - dy * dy) * k
         h11 = gsum(g, f2 * gx * gx + kxy, m)
         h12 = gsum(g, f2 * gx * gy - kd, m)
         h22 = gsum(g, f2 * gy * gy - kxy, m)
         pd = (h11 > 0) & (h11 * h22 - h12 * h12 > 0)
+        a = np.broadcast_to(a, gx.shape)
         j11, j12, j22 = (gsum(g, a * t, m) for t in (gx * gx, gx * gy, gy * gy))
         sx_, sy_, _ = solve2(j11, j12, j22, b1, b2)
         with np.errstate(invalid="ignore"):
-            good = pd & (np.hypot(sx_, sy_) < VERIFY_M)
+            return pd & (np.hypot(sx_, sy_) < VERIFY_M)
+    if spec.kind == "closed":
+        sx_, sy_, ratio = planar_point(g, m, geo.sx, geo.sy, geo.sp, geo.cp, np.ones(len(geo.d)))
     else:
-        if spec.kind == "closed":
-            sx_, sy_, ratio = planar_point(g, m, geo.sx, geo.sy, geo.sp, geo.cp, np.ones(len(r)))
-        else:
-            sx_, sy_, ratio = stansfield.step(g, m, geo.sx, geo.sy, geo.sp, geo.cp, w, np.zeros(m), np.zeros(m))
-        with np.errstate(invalid="ignore"):
-            good = (np.hypot(sx_, sy_) < VERIFY_M) & (ratio > iterate.SINGULAR_RATIO)
-    dmin = np.full(m, np.inf)
-    np.minimum.at(dmin, g, d)
-    on_station = verified & (dmin < NEAR_STATION * ctx["spread"])
-    ending[verified & ~good] = NOT_OPTIMUM
-    ending[on_station] = AT_STATION
-    return verified & good & ~on_station
+        sx_, sy_, ratio = stansfield.step(g, m, geo.sx, geo.sy, geo.sp, geo.cp, w, np.zeros(m), np.zeros(m))
+    with np.errstate(invalid="ignore"):
+        return (np.hypot(sx_, sy_) < VERIFY_M) & (ratio > iterate.SINGULAR_RATIO)
 
 
 def _finish(ctx, counts, geo, P_lat, P_lon, ending, verified, known_b, known_g, sd_rad, parallel,
