@@ -192,7 +192,8 @@ def optimise(method, geo, cg, mg, x, y, w, s, c, tol, max_iter, r_run):
         settled = accepted & ((moved < tol) | (ok & newton & (moved < NEWTON_SETTLE * tol)))
         ending[grp[settled]] = SETTLED
         iters[grp[live]] += 1
-        far = accepted & ~settled & (np.hypot(x[grp], y[grp]) > r_run[grp])
+        far = accepted & ~settled
+        far[far] = np.hypot(x[grp[far]], y[grp[far]]) > r_run[grp[far]]
         ending[grp[far]] = RUNAWAY
     ending[ending == RUNNING] = MAX_ITER
     return x, y, ending, iters
@@ -204,24 +205,25 @@ def _newton(slopes, dx, dy, d2, cg, n_g):
     Returns the step (sx, sy), the gradient (b1, b2), the conditioning ratio of the matrix used and whether
     it was Newton's."""
     f1, a, f2 = slopes
-    gx, gy = dy / d2, -dx / d2
+    inv = 1.0 / d2
+    gx, gy = dy * inv, -dx * inv                      # gradient of the predicted bearing
     b1, b2 = gsum(cg, f1 * gx, n_g), gsum(cg, f1 * gy, n_g)
-    # Newton matrix of sum f(r): f'' g g^T - f' dg/dP, dg/dP = [[-2xy, x2-y2], [x2-y2, 2xy]] / d^4
-    k = f1 / (d2 * d2)
-    kxy = 2.0 * dx * dy * k
-    kd = (dx * dx - dy * dy) * k
-    h11 = gsum(cg, f2 * gx * gx + kxy, n_g)
-    h12 = gsum(cg, f2 * gx * gy - kd, n_g)
-    h22 = gsum(cg, f2 * gy * gy - kxy, n_g)
+    # Newton matrix of sum f(r): f'' g g^T - f' dg/dP, dg/dP = [[-2xy, x2-y2], [x2-y2, 2xy]] / d^4, which
+    # is [[2 gx gy, gy^2 - gx^2], [gy^2 - gx^2, -2 gx gy]] in terms of g
+    p, q, t = gx * gx, gx * gy, gy * gy
+    fq = 2.0 * f1 * q
+    h11 = gsum(cg, f2 * p - fq, n_g)
+    h12 = gsum(cg, f2 * q - f1 * (t - p), n_g)
+    h22 = gsum(cg, f2 * t + fq, n_g)
     nonpd = ~((h11 > 0) & (h11 * h22 - h12 * h12 > 0))
     if nonpd.any():
         # the scoring matrix, summed over the bearings of those fixes only
         pos = np.cumsum(nonpd) - 1
         sel = nonpd[cg]
-        sg, gxs, gys = pos[cg[sel]], gx[sel], gy[sel]
+        sg = pos[cg[sel]]
         a = np.broadcast_to(a, sel.shape)[sel]
         n_j = pos[-1] + 1
-        j = [gsum(sg, a * t, n_j) for t in (gxs * gxs, gxs * gys, gys * gys)]
+        j = [gsum(sg, a * v[sel], n_j) for v in (p, q, t)]
         for h, jj in zip((h11, h12, h22), j):             # (arrays of this round, not shared)
             h[nonpd] = jj
     sx_, sy_, ratio = solve2(h11, h12, h22, b1, b2)

@@ -108,12 +108,12 @@ def sin_cos_residuals(sp, cp, sx, sy, x, y):
         d2 = np.maximum(dx * dx + dy * dy, 1e-18)
     across = sp * dy - cp * dx
     along = sp * dx + cp * dy
-    h = np.sqrt(across * across + along * along)
-    if not h.all():                         # a point on a station: r = 0, as arctan2(0, 0)
-        across = np.where(h > 0, across, 0.0)
-        along = np.where(h > 0, along, 1.0)
-        h = np.where(h > 0, h, 1.0)
-    return across / h, along / h, dx, dy, d2
+    h = np.sqrt(d2)                         # = hypot(across, along), (sp, cp) being a unit vector
+    sn, cs = across / h, along / h
+    if (d2 <= 1e-18).any():                 # a point on a station: r = 0, as arctan2(0, 0)
+        on = d2 <= 1e-18
+        sn[on], cs[on] = 0.0, 1.0
+    return sn, cs, dx, dy, d2
 
 
 def bearing_gradient(dx, dy, d2):

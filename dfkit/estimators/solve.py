@@ -211,8 +211,8 @@ def solve(lat, lon, bearing_deg, group, n_groups, sd_deg=None, *, method="mle", 
     r_run = np.clip(RUNAWAY_FACTOR * spread, RUNAWAY_MIN_M, RUNAWAY_MAX_M)
 
     # Parallel observed lines: the doubled-angle resultant of their directions is (nearly) 1.
-    c2 = gsum(g, np.cos(2 * geo0.phi), m)
-    s2 = gsum(g, np.sin(2 * geo0.phi), m)
+    c2 = gsum(g, (geo0.cp - geo0.sp) * (geo0.cp + geo0.sp), m)        # cos 2 phi
+    s2 = gsum(g, 2.0 * geo0.sp * geo0.cp, m)                            # sin 2 phi
     spread0 = np.degrees(np.arccos(np.clip(np.hypot(c2, s2) / np.maximum(counts, 1), 0, 1)))
     parallel = (spread0 < PARALLEL_DEG) & (counts >= 2)
     base = (counts >= 2) & ~parallel
