@@ -247,15 +247,17 @@ def solve(lat, lon, bearing_deg, group, n_groups, sd_deg=None, *, method="mle", 
     ending = np.where(counts < 2, TOO_FEW, np.where(parallel, PARALLEL, OPTIMUM)).astype(np.int8)
     P_lat, P_lon = centre_lat.copy(), centre_lon.copy()
     iterations = np.zeros(m, np.int64)
-    geo = geo0.copy()                       # geo0 stays the first plane of every fix, for later starts
     verified = np.zeros(m, bool)
     ctx = dict(spec=spec, c=c, g=g, m=m, lat=lat, lon=lon, theta=theta, floor_b=floor_b, floor_g=floor_g, w=w,
                s_b=s_b, r_run=r_run,
                spread=spread, centre_lat=centre_lat, centre_lon=centre_lon, geo0=geo0, tol_m=tol_m,
                max_iter=max_iter, max_outer=max_outer)
-    state = dict(P_lat=P_lat, P_lon=P_lon, ending=ending, iterations=iterations, geo=geo, verified=verified)
+    # geo0 stays the first plane of every fix, for later starts; the state's geometry is the first solve's
+    state = dict(P_lat=P_lat, P_lon=P_lon, ending=ending, iterations=iterations, geo=None, verified=verified)
     more = None if starter is None else (lambda which: starter.fill(which & ~searched, x0, y0, n_starts, searched))
     _attempts(ctx, state, base, n_starts, x0, y0, more)
+    if state["geo"] is None:                # nothing to solve
+        state["geo"] = geo0.copy()
     if (base & ~known_g).any():
         _settle_unknown_sd(ctx, state, base & ~known_g, counts, n_starts, x0, y0, more)
     return _finish(ctx, counts, state["geo"], state["P_lat"], state["P_lon"], state["ending"], state["verified"],
@@ -279,9 +281,12 @@ def _attempts(ctx, state, which, n_starts, x0, y0, more=None):
                 todo = which & ~verified & (n_starts > attempt)
         if not todo.any():
             break
-        # the first attempt's results are all taken: its geometry is built in the state's own arrays
+        # the first attempt's results are all taken: its geometry is built in the state's own arrays (the
+        # very first one's becomes the state's)
         res = _run(ctx, todo, np.nan_to_num(x0[:, attempt]), np.nan_to_num(y0[:, attempt]),
                    into=state["geo"] if attempt == 0 else None)
+        if state["geo"] is None:
+            state["geo"] = res["geo"]
         ok = _verify(ctx, todo, res)
         take = todo & (ok | (attempt == 0))
         state["P_lat"][take], state["P_lon"][take] = res["lat"][take], res["lon"][take]
@@ -300,14 +305,15 @@ def _looks_clean(r, g, m, counts, known_b, sd_rad):
     u2 = (2.0 * np.sin(0.5 * r)) ** 2
     with np.errstate(invalid="ignore", divide="ignore"):
         big = (np.abs(r) > np.radians(CLEAN_START_DEG)) | (known_b & (np.sqrt(u2) > 4.0 * sd_rad))
-    bad = np.zeros(m, bool)
-    np.logical_or.at(bad, g, big)
-    top = np.zeros(m)
-    np.maximum.at(top, g, u2)
-    rest = (gsum(g, u2, m) - top) / np.maximum(counts - 1, 1)
+    bad = gsum(g, big, m) > 0
     known_g = np.zeros(m, bool)
     known_g[g[known_b]] = True
-    bad |= ~known_g & (counts >= 4) & (top > 9.0 * rest)
+    check = ~known_g & (counts >= 4)
+    if check.any():
+        top = np.zeros(m)
+        np.maximum.at(top, g, u2)
+        rest = (gsum(g, u2, m) - top) / np.maximum(counts - 1, 1)
+        bad |= check & (top > 9.0 * rest)
     return ~bad
 
 
