@@ -26,14 +26,17 @@ MAX_HALVINGS = 40
 #: predicted change is smaller is judged by the model (accepted unless the objective rose by more), as is a
 #: step already below the tolerance. (A numerical bound, no field value: near the optimum the decrease of a
 #: Newton step of 10 micrometres is about 1e-16 of the objective, far below what a sum of rounded terms
-#: resolves, and halving such steps by chance ended fixes up to 20 micrometres short of the optimum.)
+#: resolves, and halving such steps by chance ended fixes micrometres, on sheets with a wild bearing up to
+#: a millimetre or two, short of the optimum.)
 FLAT = 1e-12
 #: A whole Newton step (positive definite matrix) shorter than this many tolerances settles a fix: Newton's
 #: method leaves an error of about step^2 / range after it (range: the distance to the stations), below
 #: 1e-10 m for a step of 1e-4 m from stations 100 m away, so the round that would only confirm it is skipped.
 NEWTON_SETTLE = 100.0
-#: Halvings of a failed step tried at once (one pass over the few fixes' bearings instead of one each).
+#: Halvings of a failed step tried at once (one pass over the few fixes' bearings instead of one each);
+#: all that are left when they take fewer than SMALL_BATCH trial bearings.
 BATCH = 8
+SMALL_BATCH = 20_000
 
 
 class _Compact:
@@ -252,7 +255,7 @@ def _halve(form, b, grp, bcg, sel_g, x, y, F, sx_, sy_, lam, slope, step_len, ac
     local = local[bsub]
     left = MAX_HALVINGS - 1
     while len(sel_g) and left:
-        kk = min(BATCH, left)
+        kk = left if len(bsub) * left <= SMALL_BATCH else min(BATCH, left)
         left -= kk
         n, nb = len(sel_g), len(bsub)
         lams = lam[sel_g] * 0.5 ** np.arange(kk)[:, None]                 # (kk, n)
