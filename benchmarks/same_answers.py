@@ -11,7 +11,11 @@ defaults to this checkout). Each version runs in its own process on the same see
   SD given and estimated (solver only: the cases where later starts and robust weights matter).
 
 Prints, per case and array, "identical" or the largest difference (positions in metres by pyproj's geodesic
-inverse, region radii in metres and relative to the radius), and how many fits changed how they ended.
+inverse, region radii in metres and relative to the radius), and how many fits changed how they ended. Where fixes
+moved more than 1e-6 m (Lenth's, Huber's and Andrews' fits with the SD given, Lenth's with it estimated), it also
+says which version's answers lie closer to the optimum of the method's objective: the length of one scoring step
+from each answer, computed here from pyproj's azimuths and the published functions (Lenth 1981: f' = sin r; Huber
+1964 and Andrews 1974: f' = s psi(u / s) cos(r / 2), u = 2 sin(r / 2), the SD as the scale s, c = 1.5), not by dfkit.
 Speed is not measured here (bench_regions.py, bench_floor.py); nothing is asserted.
 """
 
@@ -38,6 +42,7 @@ def compute(out, n):
     res = {}
     lat, lon, b = bench_regions.season(n, 4, np.random.default_rng(1))
     g = np.repeat(np.arange(n), 4)
+    res["bench:in"] = np.stack([lat, lon, b])
     for case, sd in (("bench", 4.0), ("bench_unknown_sd", np.nan)):
         sol = estimators.solve(lat, lon, b, g, n, np.full(len(g), sd))
         reg = regions.likelihood_regions(sol.lat, sol.lon, g, lat, lon, b, sol.range_m, sol.azimuth_from_fix_deg,
@@ -54,12 +59,64 @@ def compute(out, n):
                             rng.uniform(500, 2000, n * k))
     bw = (np.asarray(back) + rng.normal(0, 5, n * k)).reshape(n, k)
     bw[:, 0] += rng.uniform(40, 120, n) * rng.choice([-1, 1], n)
+    res["wild:in"] = np.stack([np.asarray(la), np.asarray(lo), bw.ravel() % 360])
     for method in ("mle", "huber", "andrews", "lsq", "stansfield"):
         for tag, sd in (("sd", 5.0), ("unknown_sd", np.nan)):
             sol = estimators.solve(la, lo, bw.ravel() % 360, g, n, np.full(n * k, sd), method=method)
             case = f"wild_{method}_{tag}"
             res.update({f"{case}:lat": sol.lat, f"{case}:lon": sol.lon, f"{case}:ending": sol.ending})
     np.savez(out, **res)
+
+
+#: Scale [deg] of the wild cases' robust objectives, and the tuning constant (dfkit's default for both).
+WILD_SD_DEG = 5.0
+ROBUST_C = 1.5
+#: Cases whose objective this script can write down: the method, the SD [deg] (None: Lenth's, unweighted).
+OBJECTIVES = {"bench": ("mle", None), "bench_unknown_sd": ("mle", None), "wild_mle_sd": ("mle", None),
+              "wild_mle_unknown_sd": ("mle", None), "wild_huber_sd": ("huber", WILD_SD_DEG),
+              "wild_andrews_sd": ("andrews", WILD_SD_DEG)}
+
+
+def _slope(method, r, s):
+    """f'(r) of the method's objective per bearing (Lenth's up to a constant weight)."""
+    if method == "mle":
+        return np.sin(r)
+    u = 2.0 * np.sin(0.5 * r) / s
+    c = ROBUST_C
+    psi = np.clip(u, -c, c) if method == "huber" else np.where(np.abs(u) < c * np.pi, c * np.sin(u / c), 0.0)
+    return s * psi * np.cos(0.5 * r)
+
+
+def step_to_optimum(geod, inputs, fix_lat, fix_lon, method, sd_deg):
+    """Length of one scoring step of the method's objective from each fix [m] (4 bearings per fix)."""
+    st_lat, st_lon, bearing = inputs
+    m = len(fix_lat)
+    g = np.repeat(np.arange(m), 4)
+    az_fs, _, d = geod.inv(fix_lon[g], fix_lat[g], st_lon, st_lat)       # fix -> station
+    az_sf, _, _ = geod.inv(st_lon, st_lat, fix_lon[g], fix_lat[g])       # station -> fix
+    r = np.radians((bearing - np.asarray(az_sf) + 180.0) % 360.0 - 180.0)
+    line = np.radians(np.asarray(az_fs) + 180.0)                          # the station's line of sight at the fix
+    gx, gy = np.cos(line) / d, -np.sin(line) / d                          # gradient of its azimuth [rad/m]
+    f1 = _slope(method, r, np.radians(sd_deg) if sd_deg else 1.0)
+    b1, b2 = np.bincount(g, -f1 * gx, m), np.bincount(g, -f1 * gy, m)
+    j11, j12, j22 = (np.bincount(g, t, m) for t in (gx * gx, gx * gy, gy * gy))
+    det = j11 * j22 - j12 * j12
+    with np.errstate(divide="ignore", invalid="ignore"):
+        return np.hypot((j22 * b1 - j12 * b2) / det, (j11 * b2 - j12 * b1) / det)
+
+
+def closer(geod, old, new, case, d, both):
+    """Which version's answers lie closer to the optimum, over the fixes that moved more than 1e-6 m."""
+    method, sd = OBJECTIVES[case]
+    inputs = old["bench:in" if case.startswith("bench") else "wild:in"]
+    sel = np.flatnonzero(both)[d > 1e-6]
+    sel = sel[(old[case + ":ending"][sel] == 0) & (new[case + ":ending"][sel] == 0)]
+    if not len(sel):
+        return ""
+    s0, s1 = (step_to_optimum(geod, inputs, v[case + ":lat"], v[case + ":lon"], method, sd)[sel] for v in (old, new))
+    return (f"; of {len(sel)} optima moved > 1e-6 m, new closer to the optimum in {int((s1 < s0).sum())}, farther in "
+            f"{int((s1 > s0).sum())} (one step: old median {np.median(s0):.2g} m, largest {s0.max():.2g} m; new median "
+            f"{np.median(s1):.2g} m, largest {s1.max():.2g} m)")
 
 
 def main():
@@ -84,7 +141,7 @@ def main():
                             "--_out", out], check=True, env=env, cwd=tmp)
             files.append(np.load(out))
         old, new = files
-        cases = sorted({k.split(":")[0] for k in old.files})
+        cases = sorted({k.split(":")[0] for k in old.files if not k.endswith(":in")})
         for case in cases:
             same = all(np.array_equal(old[k], new[k], equal_nan=True) for k in old.files if k.startswith(case + ":"))
             if same:
@@ -98,6 +155,8 @@ def main():
             msg = (f"{case}: {int(moved.sum())} fixes moved (median {np.median(d[moved]) if moved.any() else 0:.2g} m, "
                    f"largest {d.max() if len(d) else 0:.3g} m); {int((e0 != e1).sum())} endings changed, "
                    f"optimum {int((e0 == 0).sum())} -> {int((e1 == 0).sum())}")
+            if case in OBJECTIVES and "wild:in" in old.files:
+                msg += closer(geod, old, new, case, d, both)
             if case + ":radius" in old.files:
                 r0, r1 = old[case + ":radius"], new[case + ":radius"]
                 ok = np.isfinite(r0) & np.isfinite(r1)

@@ -12,7 +12,7 @@ import numpy as np
 from dfkit.estimators import stansfield
 from dfkit.estimators.groups import gsum, solve2
 from dfkit.estimators.lsq import planar_point
-from dfkit.estimators.plane import residuals
+from dfkit.estimators.plane import residuals, sin_cos_residuals
 
 #: How a planar iteration ended, per fix.
 RUNNING, SETTLED, RUNAWAY, SINGULAR, STALLED, MAX_ITER = range(6)
@@ -22,13 +22,27 @@ SINGULAR_RATIO = 1e-14
 #: *Numerical Optimization*, 2nd ed., Springer, 2006, ch. 3, backtracking line search [from memory]).
 ARMIJO = 1e-4
 MAX_HALVINGS = 40
+#: Changes of the objective below this fraction of it are not told apart from rounding: a step whose whole
+#: predicted change is smaller is judged by the model (accepted unless the objective rose by more), as is a
+#: step already below the tolerance. (A numerical bound, no field value: near the optimum the decrease of a
+#: Newton step of 10 micrometres is about 1e-16 of the objective, far below what a sum of rounded terms
+#: resolves, and halving such steps by chance ended fixes micrometres, on sheets with a wild bearing up to
+#: a millimetre or two, short of the optimum.)
+FLAT = 1e-12
+#: A whole Newton step (positive definite matrix) shorter than this many tolerances settles a fix: Newton's
+#: method leaves an error of about step^2 / range after it (range: the distance to the stations), below
+#: 1e-10 m for a step of 1e-4 m from stations 100 m away, so the round that would only confirm it is skipped.
+NEWTON_SETTLE = 100.0
+#: Halvings of a failed step tried at once (one pass over the few fixes' bearings instead of one each);
+#: all that are left when they take fewer than SMALL_BATCH trial bearings.
+BATCH = 8
+SMALL_BATCH = 20_000
 
 
 class _Compact:
     """The fixes still running and their bearings, re-packed when many have finished."""
 
     def __init__(self, cg, mg):
-        self.cg_all = cg
         self.grp = np.arange(mg)
         self.idx = np.arange(len(cg))
         self.cg = cg
@@ -36,9 +50,10 @@ class _Compact:
     def refresh(self, running):
         live = running[self.grp]
         if live.sum() < 0.7 * len(self.grp):
+            keep = live[self.cg]
             self.grp = self.grp[live]
-            self.idx = self.idx[running[self.cg_all[self.idx]]]
-            self.cg = np.searchsorted(self.grp, self.cg_all[self.idx])
+            self.idx = self.idx[keep]
+            self.cg = (np.cumsum(live) - 1)[self.cg[keep]]      # the new numbers of the fixes kept
 
     def rounds(self, ending, max_iter):
         """Up to ``max_iter`` rounds while any fix is running: yields (bearings, fixes, their compact fix index)."""
@@ -50,41 +65,103 @@ class _Compact:
             yield self.idx, self.grp, self.cg
 
 
-def optimise(terms, objective, geo, cg, mg, x, y, w, s, c, tol, max_iter, r_run):
+class _Packed:
+    """The fixes still running and their bearings' arrays, packed (filtered) when many have finished.
+
+    ``b`` maps names to per-bearing arrays (read only, or the state written by :func:`optimise`); ``cg``
+    numbers each bearing's fix within ``grp``, the fixes (original numbers) still held."""
+
+    def __init__(self, b, cg, mg):
+        self.b = b
+        self.cg = cg
+        self.grp = np.arange(mg)
+
+    def pack(self, running):
+        live = running[self.grp]
+        if live.sum() < 0.7 * len(self.grp):
+            keep = live[self.cg]
+            self.b = {k: v[keep] for k, v in self.b.items()}
+            self.cg = (np.cumsum(live) - 1)[self.cg[keep]]
+            self.grp = self.grp[live]
+
+
+class _AngleForm:
+    """Residuals as angles r (an arctan2 per bearing), for methods whose terms take r."""
+
+    names = ("r",)
+
+    def __init__(self, method):
+        self.terms, self.obj = method.terms, method.objective
+
+    def at(self, b, x, y):
+        r, dx, dy, d2 = residuals(b["sp"], b["cp"], b["sx"], b["sy"], x, y)
+        return dict(r=r, dx=dx, dy=dy, d2=d2)
+
+    @staticmethod
+    def at_centre(geo, b):
+        """At the plane's centre the residuals are the geodesic ones."""
+        return dict(r=geo.r.copy(), dx=-geo.sx, dy=-geo.sy, d2=geo.d * geo.d)
+
+    def objective(self, st, b, c):
+        return self.obj(st["r"], b["w"], b["s"], c)
+
+    def slopes(self, b, c):
+        return self.terms(b["r"], b["w"], b["s"], c)[1:]
+
+
+class _SinCosForm:
+    """Residuals as sin r and cos r (no arctan2), for methods with ``sc_terms`` (Lenth's likelihood)."""
+
+    names = ("sn", "cs")
+
+    def __init__(self, method):
+        self.terms, self.obj = method.sc_terms, method.sc_objective
+
+    def at(self, b, x, y):
+        sn, cs, dx, dy, d2 = sin_cos_residuals(b["sp"], b["cp"], b["sx"], b["sy"], x, y)
+        return dict(sn=sn, cs=cs, dx=dx, dy=dy, d2=d2)
+
+    def at_centre(self, geo, b):
+        """At the plane's centre (the same residuals as the geodesic ones, to rounding)."""
+        return self.at(b, 0.0, 0.0)
+
+    def objective(self, st, b, c):
+        return self.obj(st["sn"], st["cs"], b["w"], b["s"], c)
+
+    def slopes(self, b, c):
+        return self.terms(b["sn"], b["cs"], b["w"], b["s"], c)
+
+
+def optimise(method, geo, cg, mg, x, y, w, s, c, tol, max_iter, r_run):
     """Minimise sum f(r_i) for every fix from (x, y): Newton steps where the Newton matrix is
     positive definite, scoring (re-weighted) steps elsewhere; a step is accepted only if it
     lowers the objective enough (Armijo), else it is halved.
 
-    Returns x, y, ending, iterations (per fix).
+    ``method`` is a registry entry (:class:`dfkit.estimators.registry.Method`): its ``sc_terms``
+    (from sin r and cos r) when it has them, else its ``terms`` of r. Each round takes the Newton
+    step of every running fix and tries it whole on all of them at once; only the few fixes whose
+    objective did not fall enough go on halving (:func:`_halve`). Returns x, y, ending, iterations.
     """
+    form = _SinCosForm(method) if method.sc_terms is not None else _AngleForm(method)
     x = np.array(x, float)
     y = np.array(y, float)
     ending = np.zeros(mg, np.int8)
     iters = np.zeros(mg, np.int64)
-    if not (x.any() or y.any()):          # at the plane's centre the residuals are the geodesic ones
-        r, dx, dy, d2 = geo.r.copy(), -geo.sx, -geo.sy, geo.d * geo.d
+    b = dict(sp=geo.sp, cp=geo.cp, sx=geo.sx, sy=geo.sy, w=w, s=s)
+    if not (x.any() or y.any()):
+        b.update(form.at_centre(geo, b))
     else:
-        r, dx, dy, d2 = residuals(geo.sp, geo.cp, geo.sx, geo.sy, x[cg], y[cg])
-    F = gsum(cg, objective(r, w, s, c), mg)
-    for idx, grp, bcg in _Compact(cg, mg).rounds(ending, max_iter):
+        b.update(form.at(b, x[cg], y[cg]))
+    F = gsum(cg, form.objective(b, b, c), mg)
+    work = _Packed(b, cg, mg)
+    state = form.names + ("dx", "dy", "d2")
+    for _ in range(max_iter):
         running = ending == RUNNING
-        n_g = len(grp)
-        f, f1, a, f2 = terms(r[idx], w[idx], s[idx], c)
-        gx, gy = dy[idx] / d2[idx], -dx[idx] / d2[idx]
-        b1, b2 = gsum(bcg, f1 * gx, n_g), gsum(bcg, f1 * gy, n_g)
-        # Newton matrix of sum f(r): f'' g g^T - f' dg/dP, dg/dP = [[-2xy, x2-y2], [x2-y2, 2xy]] / d^4
-        k = f1 / (d2[idx] * d2[idx])
-        kxy = 2.0 * dx[idx] * dy[idx] * k
-        kd = (dx[idx] ** 2 - dy[idx] ** 2) * k
-        h11 = gsum(bcg, f2 * gx * gx + kxy, n_g)
-        h12 = gsum(bcg, f2 * gx * gy - kd, n_g)
-        h22 = gsum(bcg, f2 * gy * gy - kxy, n_g)
-        nonpd = ~((h11 > 0) & (h11 * h22 - h12 * h12 > 0))
-        if nonpd.any():
-            j11, j12, j22 = (gsum(bcg, a * t, n_g) for t in (gx * gx, gx * gy, gy * gy))
-            h11, h12, h22 = (np.where(nonpd, j, h) for j, h in ((j11, h11), (j12, h12), (j22, h22)))
-        del f, f1, a, f2, gx, gy, k, kxy, kd      # per-bearing terms: let go before the line search's arrays
-        sx_, sy_, ratio = solve2(h11, h12, h22, b1, b2)
+        if not running.any():
+            break
+        work.pack(running)
+        b, grp, bcg = work.b, work.grp, work.cg
+        sx_, sy_, b1, b2, ratio, newton = _newton(form.slopes(b, c), b["dx"], b["dy"], b["d2"], bcg, len(grp))
         live = running[grp]
         singular = live & (~np.isfinite(sx_) | ~np.isfinite(sy_) | (ratio < SINGULAR_RATIO))
         ending[grp[singular]] = SINGULAR
@@ -93,57 +170,121 @@ def optimise(terms, objective, geo, cg, mg, x, y, w, s, c, tol, max_iter, r_run)
         sy_ = np.where(live, sy_, 0.0)
         slope = -(b1 * sx_ + b2 * sy_)          # directional derivative of the objective along the step
         step_len = np.hypot(sx_, sy_)
-        lam = np.ones(n_g)
-        searching = live.copy()
-        accepted = np.zeros(n_g, bool)
-        # the fixes still searching (compact numbers sel_g) and their bearings (positions bsub in idx)
-        sel_g = np.flatnonzero(searching)
-        bsub = np.flatnonzero(searching[bcg])
-        local = np.searchsorted(sel_g, bcg[bsub])
-        for _h in range(MAX_HALVINGS):
-            if not len(sel_g):
-                break
-            bidx = idx[bsub]
-            xt = x[grp[sel_g]] + lam[sel_g] * sx_[sel_g]
-            yt = y[grp[sel_g]] + lam[sel_g] * sy_[sel_g]
-            # every bearing searching (the first halving of the first rounds): no gathered copies
-            rb = slice(None) if len(bidx) == len(geo.sp) else bidx
-            rt, dxt, dyt, d2t = residuals(geo.sp[rb], geo.cp[rb], geo.sx[rb], geo.sy[rb], xt[local], yt[local])
-            Ft = gsum(local, objective(rt, w[rb], s[rb], c), len(sel_g))
-            Fo = F[grp[sel_g]]
-            tiny = lam[sel_g] * step_len[sel_g] < tol
-            ok = (Ft <= Fo + ARMIJO * lam[sel_g] * slope[sel_g]) | (tiny & (Ft <= Fo + 1e-12 * np.abs(Fo)))
-            acc_g = sel_g[ok]
-            if len(acc_g):
-                fixes = grp[acc_g]
-                x[fixes] = xt[ok]
-                y[fixes] = yt[ok]
-                F[fixes] = Ft[ok]
-                bok = ok[local]
-                r[bidx[bok]], dx[bidx[bok]], dy[bidx[bok]], d2[bidx[bok]] = rt[bok], dxt[bok], dyt[bok], d2t[bok]
-                accepted[acc_g] = True
-            # a step already below the tolerance that does not lower the objective: we are at the floor
-            floor = ~ok & tiny
-            accepted[sel_g[floor]] = True
-            lam[sel_g[floor]] = 0.0
-            keep = ~(ok | floor)
-            searching[sel_g[~keep]] = False
-            lam[sel_g[keep]] *= 0.5
-            if not keep.all():
-                kb = keep[local]
-                bsub = bsub[kb]
-                local = (np.cumsum(keep) - 1)[local[kb]]
-                sel_g = sel_g[keep]
-        stalled = searching
-        ending[grp[stalled]] = STALLED
+        # the whole step, tried on every fix held at once
+        xt, yt = x[grp] + sx_, y[grp] + sy_
+        trial = form.at(b, xt[bcg], yt[bcg])
+        Ft = gsum(bcg, form.objective(trial, b, c), len(grp))
+        ok, floor = _armijo(Ft, F[grp], 1.0, slope, step_len, tol)
+        ok &= live
+        floor &= live
+        fixes = grp[ok]
+        x[fixes], y[fixes], F[fixes] = xt[ok], yt[ok], Ft[ok]
+        bok = ok[bcg]
+        for k in state:
+            np.copyto(b[k], trial[k], where=bok)
+        lam = np.where(floor, 0.0, 1.0)
+        accepted = ok | floor
+        searching = live & ~accepted
+        if searching.any():
+            lam[searching] = 0.5
+            _halve(form, b, grp, bcg, np.flatnonzero(searching), x, y, F, sx_, sy_, lam, slope, step_len,
+                   accepted, c, tol, state)
+            searching &= ~accepted
+        ending[grp[searching]] = STALLED
         moved = lam * step_len
-        settled = accepted & (moved < tol)
+        settled = accepted & ((moved < tol) | (ok & newton & (moved < NEWTON_SETTLE * tol)))
         ending[grp[settled]] = SETTLED
         iters[grp[live]] += 1
-        far = accepted & ~settled & (np.hypot(x[grp], y[grp]) > r_run[grp])
+        far = accepted & ~settled
+        far[far] = np.hypot(x[grp[far]], y[grp[far]]) > r_run[grp[far]]
         ending[grp[far]] = RUNAWAY
     ending[ending == RUNNING] = MAX_ITER
     return x, y, ending, iters
+
+
+def _newton(slopes, dx, dy, d2, cg, n_g):
+    """The step of each fix: Newton's where its matrix is positive definite, scoring's elsewhere.
+
+    Returns the step (sx, sy), the gradient (b1, b2), the conditioning ratio of the matrix used and whether
+    it was Newton's."""
+    f1, a, f2 = slopes
+    inv = 1.0 / d2
+    gx, gy = dy * inv, -dx * inv                      # gradient of the predicted bearing
+    b1, b2 = gsum(cg, f1 * gx, n_g), gsum(cg, f1 * gy, n_g)
+    # Newton matrix of sum f(r): f'' g g^T - f' dg/dP, dg/dP = [[-2xy, x2-y2], [x2-y2, 2xy]] / d^4, which
+    # is [[2 gx gy, gy^2 - gx^2], [gy^2 - gx^2, -2 gx gy]] in terms of g
+    p, q, t = gx * gx, gx * gy, gy * gy
+    fq = 2.0 * f1 * q
+    h11 = gsum(cg, f2 * p - fq, n_g)
+    h12 = gsum(cg, f2 * q - f1 * (t - p), n_g)
+    h22 = gsum(cg, f2 * t + fq, n_g)
+    nonpd = ~((h11 > 0) & (h11 * h22 - h12 * h12 > 0))
+    if nonpd.any():
+        # the scoring matrix, summed over the bearings of those fixes only
+        pos = np.cumsum(nonpd) - 1
+        sel = nonpd[cg]
+        sg = pos[cg[sel]]
+        a = np.broadcast_to(a, sel.shape)[sel]
+        n_j = pos[-1] + 1
+        j = [gsum(sg, a * v[sel], n_j) for v in (p, q, t)]
+        for h, jj in zip((h11, h12, h22), j):             # (arrays of this round, not shared)
+            h[nonpd] = jj
+    sx_, sy_, ratio = solve2(h11, h12, h22, b1, b2)
+    return sx_, sy_, b1, b2, ratio, ~nonpd
+
+
+def _armijo(Ft, Fo, lam, slope, step_len, tol):
+    """Whether a trial point is accepted (it lowers the objective enough, or the step is too small for the
+    objective to judge and it did not rise measurably: :data:`FLAT`), and whether the step is at the floor:
+    already below the tolerance and not accepted."""
+    tiny = lam * step_len < tol
+    flat = np.abs(Fo) * FLAT
+    ok = (Ft <= Fo + ARMIJO * lam * slope) | ((tiny | (lam * np.abs(slope) < flat)) & (Ft <= Fo + flat))
+    return ok, ~ok & tiny
+
+
+def _halve(form, b, grp, bcg, sel_g, x, y, F, sx_, sy_, lam, slope, step_len, accepted, c, tol, state):
+    """Halve the steps of the fixes ``sel_g`` (held numbers) until each is accepted or at the floor, at most
+    ``MAX_HALVINGS - 1`` times (the whole step was the first try); updates x, y, F, the bearings' state in
+    ``b``, ``lam`` and ``accepted``. :data:`BATCH` halvings are tried at once, and each fix takes the first
+    that passes, as halving one at a time would (the same lengths, bit for bit: powers of two)."""
+    pos = np.full(len(grp), -1)
+    pos[sel_g] = np.arange(len(sel_g))
+    local = pos[bcg]
+    bsub = np.flatnonzero(local >= 0)
+    local = local[bsub]
+    left = MAX_HALVINGS - 1
+    while len(sel_g) and left:
+        kk = left if len(bsub) * left <= SMALL_BATCH else min(BATCH, left)
+        left -= kk
+        n, nb = len(sel_g), len(bsub)
+        lams = lam[sel_g] * 0.5 ** np.arange(kk)[:, None]                 # (kk, n)
+        xt = x[grp[sel_g]] + lams * sx_[sel_g]
+        yt = y[grp[sel_g]] + lams * sy_[sel_g]
+        rows = np.tile(bsub, kk)
+        owner = (np.arange(kk)[:, None] * n + local).ravel()
+        sub = {k: b[k][rows] for k in ("sp", "cp", "sx", "sy", "w", "s")}
+        trial = form.at(sub, xt.ravel()[owner], yt.ravel()[owner])
+        Ft = gsum(owner, form.objective(trial, sub, c), kk * n).reshape(kk, n)
+        ok, floor = _armijo(Ft, F[grp[sel_g]], lams, slope[sel_g], step_len[sel_g], tol)
+        first = np.argmax(ok | floor, axis=0)                             # the first try that passes
+        cols = np.arange(n)
+        hit = (ok | floor)[first, cols]
+        took = hit & ok[first, cols]
+        if took.any():
+            fixes = grp[sel_g[took]]
+            x[fixes], y[fixes], F[fixes] = (v[first[took], cols[took]] for v in (xt, yt, Ft))
+            bj = np.flatnonzero(took[local])
+            for k in state:
+                b[k][bsub[bj]] = trial[k][first[local[bj]] * nb + bj]
+        accepted[sel_g[hit]] = True
+        lam[sel_g] = np.where(took, lams[first, cols], np.where(hit, 0.0, lams[-1] * 0.5))
+        keep = ~hit
+        if not keep.all():
+            kb = keep[local]
+            bsub = bsub[kb]
+            local = (np.cumsum(keep) - 1)[local[kb]]
+            sel_g = sel_g[keep]
 
 
 #: Plain re-weighting rounds before Stansfield's fixed point is searched by Newton's method on T(x) - x.
@@ -176,10 +317,10 @@ def fixed_point(geo, cg, mg, x, y, w, tol, max_iter, r_run):
     for rnd, (idx, grp, bcg) in enumerate(_Compact(cg, mg).rounds(ending, max_iter)):
         running = ending == RUNNING
         n_g = len(grp)
-        sx_b, sy_b, phi_b, w_b = geo.sx[idx], geo.sy[idx], geo.phi[idx], w[idx]
+        sx_b, sy_b, sp_b, cp_b, w_b = geo.sx[idx], geo.sy[idx], geo.sp[idx], geo.cp[idx], w[idx]
 
         def T(px, py):
-            return stansfield.step(bcg, n_g, sx_b, sy_b, phi_b, w_b, px, py)
+            return stansfield.step(bcg, n_g, sx_b, sy_b, sp_b, cp_b, w_b, px, py)
 
         qx, qy, ratio = T(x[grp], y[grp])
         live = running[grp]
@@ -241,7 +382,7 @@ def _newton_fixed_point(T, x, y, gx, gy, gnorm, r_run):
 
 def closed_form(geo, cg, mg, r_run):
     """The least-squares point of every fix in its plane. Returns x, y, ending, iterations."""
-    x, y, ratio = planar_point(cg, mg, geo.sx, geo.sy, geo.phi, np.ones(len(cg)))
+    x, y, ratio = planar_point(cg, mg, geo.sx, geo.sy, geo.sp, geo.cp, np.ones(len(cg)))
     ending = np.full(mg, SETTLED, np.int8)
     singular = ~np.isfinite(x) | ~np.isfinite(y) | (ratio < SINGULAR_RATIO)
     ending[singular] = SINGULAR

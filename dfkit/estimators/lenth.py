@@ -29,6 +29,18 @@ def objective(r, w, s, c):
     return 2.0 * w * np.sin(0.5 * r) ** 2
 
 
+def sc_terms(sn, cs, w, s, c):
+    """f'(r), the scoring curvature and f''(r) from sin r and cos r (the optimiser's form, no angle needed)."""
+    return w * sn, w, w * cs
+
+
+def sc_objective(sn, cs, w, s, c):
+    """The objective w (1 - cos r) from sin r and cos r, as sin^2 r / (1 + cos r) where cos r > 0 so that its
+    small values keep their relative precision."""
+    with np.errstate(divide="ignore", invalid="ignore"):     # the branch not taken where cos r = -1
+        return w * np.where(cs > 0, sn * sn / (1.0 + cs), 1.0 - cs)
+
+
 def weights(r, s, c):
     """Lenth's estimator keeps every bearing at full weight."""
     return np.ones_like(r)

@@ -16,22 +16,23 @@ import numpy as np
 from dfkit.estimators.groups import gsum, solve2
 
 
-def line_sums(g, m, sx, sy, phi, v):
-    """The five sums of the normal equations, per fix: a11, a12, a22, b1, b2."""
-    nx, ny = np.cos(phi), -np.sin(phi)
+def line_sums(g, m, sx, sy, sp, cp, v):
+    """The five sums of the normal equations, per fix: a11, a12, a22, b1, b2 (``sp``, ``cp`` the sine and
+    cosine of each line's direction phi, as :class:`dfkit.estimators.plane.PlaneGeometry` holds them)."""
+    nx, ny = cp, -sp
     c = nx * sx + ny * sy
     vx, vy = v * nx, v * ny
     return tuple(gsum(g, t, m) for t in (vx * nx, vx * ny, vy * ny, vx * c, vy * c))
 
 
-def per_bearing_terms(sx, sy, phi, v):
+def per_bearing_terms(sx, sy, sp, cp, v):
     """Each bearing's own contribution to :func:`line_sums` (for leave-one-out solutions)."""
-    nx, ny = np.cos(phi), -np.sin(phi)
+    nx, ny = cp, -sp
     c = nx * sx + ny * sy
     vx, vy = v * nx, v * ny
     return vx * nx, vx * ny, vy * ny, vx * c, vy * c
 
 
-def planar_point(g, m, sx, sy, phi, v):
+def planar_point(g, m, sx, sy, sp, cp, v):
     """The least-squares point of each fix: x, y [m] and the conditioning ratio (0 if singular)."""
-    return solve2(*line_sums(g, m, sx, sy, phi, v))
+    return solve2(*line_sums(g, m, sx, sy, sp, cp, v))

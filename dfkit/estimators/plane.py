@@ -99,6 +99,23 @@ def residuals(sp, cp, sx, sy, x, y):
     return np.arctan2(sp * dy - cp * dx, sp * dx + cp * dy), dx, dy, d2
 
 
+def sin_cos_residuals(sp, cp, sx, sy, x, y):
+    """As :func:`residuals`, but sin r and cos r in place of r (no arctan2: the two components of the
+    direction phi in the frame of (dx, dy), divided by their length). Returns sin r, cos r, dx, dy, d2."""
+    dx = x - sx
+    dy = y - sy
+    with np.errstate(over="ignore"):
+        d2 = np.maximum(dx * dx + dy * dy, 1e-18)
+    across = sp * dy - cp * dx
+    along = sp * dx + cp * dy
+    h = np.sqrt(d2)                         # = hypot(across, along), (sp, cp) being a unit vector
+    sn, cs = across / h, along / h
+    if (d2 <= 1e-18).any():                 # a point on a station: r = 0, as arctan2(0, 0)
+        on = d2 <= 1e-18
+        sn[on], cs[on] = 0.0, 1.0
+    return sn, cs, dx, dy, d2
+
+
 def bearing_gradient(dx, dy, d2):
     """Gradient of the predicted bearing atan2(dx, dy) with respect to the point [rad/m]."""
     return dy / d2, -dx / d2

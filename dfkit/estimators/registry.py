@@ -22,7 +22,9 @@ class Method:
 
     ``terms(r, w, s, c)`` returns per-bearing (f, f', scoring curvature, f'') of the
     objective for optimisers, ``objective(r, w, s, c)`` f alone; ``weights(r, s, c)``
-    the weight each bearing ends with.
+    the weight each bearing ends with. ``sc_terms(sn, cs, w, s, c)`` (f', scoring curvature, f'') and
+    ``sc_objective(sn, cs, w, s, c)``, where a method has them, take sin r and cos r in place of r: the
+    optimiser then needs no arctan2 per bearing and step.
     """
 
     name: str
@@ -34,6 +36,8 @@ class Method:
     weights: Callable | None = None
     robust: bool = False
     default_c: float | None = None
+    sc_terms: Callable | None = None
+    sc_objective: Callable | None = None
 
 
 _huber_terms, _huber_objective, _huber_weights = robust.make_terms("huber")
@@ -41,7 +45,8 @@ _andrews_terms, _andrews_objective, _andrews_weights = robust.make_terms("andrew
 
 REGISTRY: dict[str, Method] = {
     "mle": Method("mle", "lenth", "optimiser", "maximum likelihood, von Mises bearing errors (Lenth 1981)",
-                  lenth.terms, lenth.objective, lenth.weights),
+                  lenth.terms, lenth.objective, lenth.weights, sc_terms=lenth.sc_terms,
+                  sc_objective=lenth.sc_objective),
     "huber": Method("huber", "robust", "optimiser", "Huber M-estimator: large residuals count linearly",
                     _huber_terms, _huber_objective, _huber_weights, robust=True, default_c=robust.ROBUST_C["huber"]),
     "andrews": Method("andrews", "robust", "optimiser", "Andrews M-estimator: wild bearings get weight 0",

@@ -22,10 +22,10 @@ from dfkit import geodesy
 from dfkit.conventions import wrap180
 from dfkit.estimators import iterate, registry, stansfield, subsets
 from dfkit.estimators.covariance import position_covariance
-from dfkit.estimators.groups import best_in_group, gsum, solve2
+from dfkit.estimators.groups import best_in_group, group_min, gsum, solve2
 from dfkit.estimators.lenth import kappa_from_sd
 from dfkit.estimators.lsq import planar_point
-from dfkit.estimators.plane import geometry, residuals
+from dfkit.estimators.plane import geometry, residuals, sin_cos_residuals
 from dfkit.estimators.robust import MAX_SCALE, chord, start_scale
 from dfkit.estimators.starts import choose, objective_score, trimmed_score
 from dfkit.policy import PLAUSIBLE_SD_DEG
@@ -211,8 +211,8 @@ def solve(lat, lon, bearing_deg, group, n_groups, sd_deg=None, *, method="mle", 
     r_run = np.clip(RUNAWAY_FACTOR * spread, RUNAWAY_MIN_M, RUNAWAY_MAX_M)
 
     # Parallel observed lines: the doubled-angle resultant of their directions is (nearly) 1.
-    c2 = gsum(g, np.cos(2 * geo0.phi), m)
-    s2 = gsum(g, np.sin(2 * geo0.phi), m)
+    c2 = gsum(g, (geo0.cp - geo0.sp) * (geo0.cp + geo0.sp), m)        # cos 2 phi
+    s2 = gsum(g, 2.0 * geo0.sp * geo0.cp, m)                            # sin 2 phi
     spread0 = np.degrees(np.arccos(np.clip(np.hypot(c2, s2) / np.maximum(counts, 1), 0, 1)))
     parallel = (spread0 < PARALLEL_DEG) & (counts >= 2)
     base = (counts >= 2) & ~parallel
@@ -228,7 +228,7 @@ def solve(lat, lon, bearing_deg, group, n_groups, sd_deg=None, *, method="mle", 
     if spec.kind != "closed":
         # The least-squares point is the start wherever it looks clean; elsewhere the candidates are
         # ranked (and for clean fixes too, later, should the first fit fail).
-        lx, ly, ratio = planar_point(g, m, geo0.sx, geo0.sy, geo0.phi, np.ones(N))
+        lx, ly, ratio = planar_point(g, m, geo0.sx, geo0.sy, geo0.sp, geo0.cp, np.ones(N))
         has_lsq = base & np.isfinite(lx) & np.isfinite(ly) & (ratio > 1e-12)
         r_l = residuals(geo0.sp, geo0.cp, geo0.sx, geo0.sy, np.nan_to_num(lx[g]), np.nan_to_num(ly[g]))[0]
         clean = has_lsq & _looks_clean(r_l, g, m, counts, known_b, sd_rad)
@@ -247,15 +247,17 @@ def solve(lat, lon, bearing_deg, group, n_groups, sd_deg=None, *, method="mle", 
     ending = np.where(counts < 2, TOO_FEW, np.where(parallel, PARALLEL, OPTIMUM)).astype(np.int8)
     P_lat, P_lon = centre_lat.copy(), centre_lon.copy()
     iterations = np.zeros(m, np.int64)
-    geo = geo0.copy()                       # geo0 stays the first plane of every fix, for later starts
     verified = np.zeros(m, bool)
     ctx = dict(spec=spec, c=c, g=g, m=m, lat=lat, lon=lon, theta=theta, floor_b=floor_b, floor_g=floor_g, w=w,
                s_b=s_b, r_run=r_run,
                spread=spread, centre_lat=centre_lat, centre_lon=centre_lon, geo0=geo0, tol_m=tol_m,
                max_iter=max_iter, max_outer=max_outer)
-    state = dict(P_lat=P_lat, P_lon=P_lon, ending=ending, iterations=iterations, geo=geo, verified=verified)
+    # geo0 stays the first plane of every fix, for later starts; the state's geometry is the first solve's
+    state = dict(P_lat=P_lat, P_lon=P_lon, ending=ending, iterations=iterations, geo=None, verified=verified)
     more = None if starter is None else (lambda which: starter.fill(which & ~searched, x0, y0, n_starts, searched))
     _attempts(ctx, state, base, n_starts, x0, y0, more)
+    if state["geo"] is None:                # nothing to solve
+        state["geo"] = geo0.copy()
     if (base & ~known_g).any():
         _settle_unknown_sd(ctx, state, base & ~known_g, counts, n_starts, x0, y0, more)
     return _finish(ctx, counts, state["geo"], state["P_lat"], state["P_lon"], state["ending"], state["verified"],
@@ -279,9 +281,12 @@ def _attempts(ctx, state, which, n_starts, x0, y0, more=None):
                 todo = which & ~verified & (n_starts > attempt)
         if not todo.any():
             break
-        # the first attempt's results are all taken: its geometry is built in the state's own arrays
+        # the first attempt's results are all taken: its geometry is built in the state's own arrays (the
+        # very first one's becomes the state's)
         res = _run(ctx, todo, np.nan_to_num(x0[:, attempt]), np.nan_to_num(y0[:, attempt]),
                    into=state["geo"] if attempt == 0 else None)
+        if state["geo"] is None:
+            state["geo"] = res["geo"]
         ok = _verify(ctx, todo, res)
         take = todo & (ok | (attempt == 0))
         state["P_lat"][take], state["P_lon"][take] = res["lat"][take], res["lon"][take]
@@ -300,14 +305,15 @@ def _looks_clean(r, g, m, counts, known_b, sd_rad):
     u2 = (2.0 * np.sin(0.5 * r)) ** 2
     with np.errstate(invalid="ignore", divide="ignore"):
         big = (np.abs(r) > np.radians(CLEAN_START_DEG)) | (known_b & (np.sqrt(u2) > 4.0 * sd_rad))
-    bad = np.zeros(m, bool)
-    np.logical_or.at(bad, g, big)
-    top = np.zeros(m)
-    np.maximum.at(top, g, u2)
-    rest = (gsum(g, u2, m) - top) / np.maximum(counts - 1, 1)
+    bad = gsum(g, big, m) > 0
     known_g = np.zeros(m, bool)
     known_g[g[known_b]] = True
-    bad |= ~known_g & (counts >= 4) & (top > 9.0 * rest)
+    check = ~known_g & (counts >= 4)
+    if check.any():
+        top = np.zeros(m)
+        np.maximum.at(top, g, u2)
+        rest = (gsum(g, u2, m) - top) / np.maximum(counts - 1, 1)
+        bad |= check & (top > 9.0 * rest)
     return ~bad
 
 
@@ -457,7 +463,8 @@ def _run(ctx, todo, x0, y0, into=None):
             break
         sel = act[g]
         fixes = np.flatnonzero(act)
-        cg = np.searchsorted(fixes, g[sel])
+        number = np.cumsum(act) - 1          # each active fix's number among them
+        cg = number[g[sel]]
         # every bearing active (the common first rounds): the arrays themselves, not copies of all their rows
         rows = slice(None) if sel.all() else sel
         if outer:
@@ -477,8 +484,8 @@ def _run(ctx, todo, x0, y0, into=None):
             px, py, end, its = iterate.fixed_point(gs, cg, len(fixes), sx0, sy0, w[rows], tol_in,
                                                    ctx["max_iter"], r_run[fixes])
         else:
-            px, py, end, its = iterate.optimise(spec.terms, spec.objective, gs, cg, len(fixes), sx0, sy0, w[rows], s_b[rows], c,
-                                                tol_in, ctx["max_iter"], r_run[fixes])
+            px, py, end, its = iterate.optimise(spec, gs, cg, len(fixes), sx0, sy0, w[rows], s_b[rows], c, tol_in,
+                                                ctx["max_iter"], r_run[fixes])
         iterations[fixes] += its
         bad = end != iterate.SETTLED
         for code, name in _FROM_PLANAR.items():
@@ -511,41 +518,56 @@ def _gradients(geo):
 
 
 def _verify(ctx, todo, res):
-    """Whether each fix of ``todo`` ended at a verified optimum (updates ``res['ending']``)."""
+    """Whether each fix of ``todo`` ended at a verified optimum (updates ``res['ending']``); only the
+    bearings of the fixes that finished are looked at."""
     spec, g, m, w, s_b, c = ctx["spec"], ctx["g"], ctx["m"], ctx["w"], ctx["s_b"], ctx["c"]
-    geo = res["geo"]
     ending = res["ending"]
     verified = todo & res["done"]
-    r, d = geo.r, geo.d
-    gx, gy = _gradients(geo)
+    fixes = np.flatnonzero(verified)
+    if not len(fixes):
+        return verified
+    rows = slice(None) if len(fixes) == m else verified[g]
+    geo = res["geo"].take(rows)
+    cg = (np.cumsum(verified) - 1)[g[rows]]
+    good = _optimum_here(spec, geo, cg, len(fixes), w[rows], s_b[rows], c)
+    on_station = group_min(cg, geo.d, len(fixes)) < NEAR_STATION * ctx["spread"][fixes]
+    ending[fixes[~good]] = NOT_OPTIMUM
+    ending[fixes[on_station]] = AT_STATION
+    out = np.zeros(m, bool)
+    out[fixes] = good & ~on_station
+    return out
+
+
+def _optimum_here(spec, geo, g, m, w, s, c):
+    """Whether one more step from each fix's plane centre moves less than :data:`VERIFY_M` and, for the
+    optimisers, the Newton matrix there is positive definite."""
     if spec.kind == "optimiser":
-        f, f1, a, f2 = spec.terms(r, w, s_b, c)
-        b1, b2 = gsum(g, f1 * gx, m), gsum(g, f1 * gy, m)
+        d2 = geo.d * geo.d
         dx, dy = -geo.sx, -geo.sy
-        k = f1 / (d ** 4)
+        gx, gy = dy / d2, -dx / d2
+        if spec.sc_terms is not None:
+            f1, a, f2 = spec.sc_terms(*sin_cos_residuals(geo.sp, geo.cp, geo.sx, geo.sy, 0.0, 0.0)[:2], w, s, c)
+        else:
+            f1, a, f2 = spec.terms(geo.r, w, s, c)[1:]
+        b1, b2 = gsum(g, f1 * gx, m), gsum(g, f1 * gy, m)
+        k = f1 / (d2 * d2)
         kxy = 2.0 * dx * dy * k
         kd = (dx * dx - dy * dy) * k
         h11 = gsum(g, f2 * gx * gx + kxy, m)
         h12 = gsum(g, f2 * gx * gy - kd, m)
         h22 = gsum(g, f2 * gy * gy - kxy, m)
         pd = (h11 > 0) & (h11 * h22 - h12 * h12 > 0)
+        a = np.broadcast_to(a, gx.shape)
         j11, j12, j22 = (gsum(g, a * t, m) for t in (gx * gx, gx * gy, gy * gy))
         sx_, sy_, _ = solve2(j11, j12, j22, b1, b2)
         with np.errstate(invalid="ignore"):
-            good = pd & (np.hypot(sx_, sy_) < VERIFY_M)
+            return pd & (np.hypot(sx_, sy_) < VERIFY_M)
+    if spec.kind == "closed":
+        sx_, sy_, ratio = planar_point(g, m, geo.sx, geo.sy, geo.sp, geo.cp, np.ones(len(geo.d)))
     else:
-        if spec.kind == "closed":
-            sx_, sy_, ratio = planar_point(g, m, geo.sx, geo.sy, geo.phi, np.ones(len(r)))
-        else:
-            sx_, sy_, ratio = stansfield.step(g, m, geo.sx, geo.sy, geo.phi, w, np.zeros(m), np.zeros(m))
-        with np.errstate(invalid="ignore"):
-            good = (np.hypot(sx_, sy_) < VERIFY_M) & (ratio > iterate.SINGULAR_RATIO)
-    dmin = np.full(m, np.inf)
-    np.minimum.at(dmin, g, d)
-    on_station = verified & (dmin < NEAR_STATION * ctx["spread"])
-    ending[verified & ~good] = NOT_OPTIMUM
-    ending[on_station] = AT_STATION
-    return verified & good & ~on_station
+        sx_, sy_, ratio = stansfield.step(g, m, geo.sx, geo.sy, geo.sp, geo.cp, w, np.zeros(m), np.zeros(m))
+    with np.errstate(invalid="ignore"):
+        return (np.hypot(sx_, sy_) < VERIFY_M) & (ratio > iterate.SINGULAR_RATIO)
 
 
 def _finish(ctx, counts, geo, P_lat, P_lon, ending, verified, known_b, known_g, sd_rad, parallel,

@@ -15,7 +15,7 @@ import numpy as np
 from dfkit.estimators.lsq import planar_point
 
 
-def step(cg, mg, sx, sy, phi, w, x, y):
+def step(cg, mg, sx, sy, sp, cp, w, x, y):
     """One re-weighting: the weighted least-squares point with ranges from (x, y) [m]."""
     d2 = np.maximum((x[cg] - sx) ** 2 + (y[cg] - sy) ** 2, 1e-18)
-    return planar_point(cg, mg, sx, sy, phi, w / d2)
+    return planar_point(cg, mg, sx, sy, sp, cp, w / d2)

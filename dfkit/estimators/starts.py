@@ -49,13 +49,13 @@ def candidates(geo, g, m, counts, active):
     offsets = np.concatenate(([0], np.cumsum(counts)[:-1]))
     out_g, out_x, out_y = [], [], []
     ones = np.ones(len(g))
-    sums = lsq.line_sums(g, m, geo.sx, geo.sy, geo.phi, ones)
+    sums = lsq.line_sums(g, m, geo.sx, geo.sy, geo.sp, geo.cp, ones)
     x, y, ratio = solve2(*sums)
     ok = active & np.isfinite(x) & np.isfinite(y) & (ratio > 1e-12)
     out_g.append(np.flatnonzero(ok))
     out_x.append(x[ok])
     out_y.append(y[ok])
-    ux, uy = np.sin(geo.phi), np.cos(geo.phi)
+    ux, uy = geo.sp, geo.cp
     for n in np.unique(counts[active]):
         fixes = np.flatnonzero(active & (counts == n))
         i, j = _pairs(int(n))
@@ -72,7 +72,7 @@ def candidates(geo, g, m, counts, active):
         out_y.append((geo.sy[bi] + ti * uy[bi])[good])
     loo = active[g] & (counts[g] >= 4)
     if loo.any():
-        own = lsq.per_bearing_terms(geo.sx[loo], geo.sy[loo], geo.phi[loo], ones[loo])
+        own = lsq.per_bearing_terms(geo.sx[loo], geo.sy[loo], geo.sp[loo], geo.cp[loo], ones[loo])
         gl = g[loo]
         lx, ly, lr = solve2(*(s[gl] - t for s, t in zip(sums, own)))
         good = np.isfinite(lx) & np.isfinite(ly) & (lr > 1e-12)
