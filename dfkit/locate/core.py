@@ -16,7 +16,7 @@ from dfkit.locate.hints import one_bearing_hints
 from dfkit.locate.offsets import fix_offsets
 from dfkit.locate.resolution import fix_steps, sd_floors
 from dfkit.locate.rivals import find_rivals
-from dfkit.locate.status import FixFacts, classify, consistency
+from dfkit.locate.status import FixFacts, append_reason, classify, consistency
 from dfkit.observations import Bearings, ReadOptions, read_bearings
 
 #: Inconsistent fixes with a chi-square p-value at least this are not searched for one bad line.
@@ -131,19 +131,19 @@ def locate_chunk(bearings: Bearings, *, method: str, level: float, window_min: f
                if len(b) else None)
     hints = one_bearing_hints(lat, lon, theta, sd, g, counts, lines, np.where(mild, "", status), method, robust_c,
                               floor, written)
-    if hints:
+    if hints:      # only the fixes with hints are judged again
         facts.hints = hints
-        status, reasons = classify(facts)
+        status, reasons = classify(facts, (status, reasons), redo=hints)
     rivals = find_rivals(lat, lon, theta, sd, g, counts, sol, lik, level, status == "ok", cal_dof, floor)
     if rivals:
         facts.rivals = rivals
-        status, reasons = classify(facts)
+        status, reasons = classify(facts, (status, reasons), redo=rivals)
 
     # an observer, team, antenna or receiver whose bearings in this fix read off the others (dfkit.locate.offsets)
     for i, text in fix_offsets(b, g, m, sol).items():
         if status[i] in WITH_POSITION and i not in hints:     # a named wild line explains the misfit better
             status[i] = "inconsistent" if status[i] == "ok" else status[i]
-            reasons[i].append(text)
+            append_reason(reasons, i, text)
 
     table = _table(bearings, sol, ell, lik, status, reasons, counts, span_min, tmid, method, level)
     bt = b.copy(deep=False)   # new columns only; the bearings table itself is not copied (copy-on-write)
@@ -159,7 +159,7 @@ def locate_chunk(bearings: Bearings, *, method: str, level: float, window_min: f
             bt[c] = []
     notes = list(bearings.notes)
     return Fixes(table=table, bearings=bt, problems=list(bearings.problems), notes=notes, source=bearings.source,
-                 likelihood=lik)
+                 likelihood=lik, azimuth_deg=sol.azimuth_from_fix_deg)
 
 
 def _time_span(b, g, m):
@@ -231,7 +231,7 @@ def _table(bearings, sol, ell, lik, status, reasons, counts, span_min, tmid, met
         "cov_en_m2": reg(cov[:, 0, 1]),
         "cov_nn_m2": reg(cov[:, 1, 1]),
         "status": status,
-        "reason": ["; ".join(r) for r in reasons],
+        "reason": reasons,
         "crossing_deg": np.where(counts >= 2, sol.crossing_deg, np.nan),
         "span_min": span_min,
         "max_residual_deg": pos(max_res),

@@ -117,6 +117,9 @@ class Fixes:
         season store read): ``fix_id`` (the row), ``geometry`` (a shapely Polygon, or MultiPolygon
         when split at the antimeridian, in longitude/latitude), ``bounded``, ``area_m2``
         (NaN when open), ``reach_m`` and ``drawn_to_m`` (how far an open region is drawn).
+    azimuth_deg : ndarray or None
+        Each bearing's geodesic azimuth from its fix to its station [°], in the rows of ``bearings``, as the
+        solver left it (None when not kept): the sheet-wide checks reuse it instead of a second geodesic pass.
     """
 
     table: pd.DataFrame
@@ -127,6 +130,7 @@ class Fixes:
     likelihood: LikelihoodRegions | None = None
     warnings: list[str] = field(default_factory=list)
     _regions: pd.DataFrame | None = field(default=None, repr=False)
+    azimuth_deg: np.ndarray | None = field(default=None, repr=False)
 
     @property
     def regions(self) -> pd.DataFrame | None:

@@ -577,15 +577,27 @@ class SheetOffset:
                 f"{shift:.1f} standard errors, so its region may miss: {what}")
 
 
-def sheet_offsets(table, bearings, with_position) -> list[SheetOffset]:
+def fix_azimuths(table, bearings, g, azimuth_deg=None) -> np.ndarray:
+    """Each bearing's geodesic azimuth from its fix (the ``table``'s position) to its station [°]: ``azimuth_deg``
+    when given (the solver's, :attr:`dfkit.locate.Fixes.azimuth_deg`), else computed (NaN where no position)."""
+    if azimuth_deg is not None and len(azimuth_deg) == len(bearings):
+        return np.asarray(azimuth_deg, float)
+    from dfkit import geodesy
+
+    flat, flon = table["lat"].to_numpy(float), table["lon"].to_numpy(float)
+    az, _, _ = geodesy.inverse(flat[g], flon[g], bearings["lat"].to_numpy(float), bearings["lon"].to_numpy(float))
+    return az
+
+
+def sheet_offsets(table, bearings, with_position, azimuth_deg=None) -> list[SheetOffset]:
     """The sheet-wide test (module docstring) on a located sheet: ``table`` and ``bearings`` of
     :class:`~dfkit.locate.Fixes`, ``with_position`` per fix. Bearings off by more than
     :data:`dfkit.policy.WILD_SD` SDs are left out of the pooling (they are named in their fixes).
 
     An estimated SD is one value for the whole sheet (the median of the fixes' estimates) and is then used as if
     known: with the hundreds of bearings a sheet-wide test needs, its own uncertainty is small (a few per cent).
+    ``azimuth_deg``: each bearing's azimuth from its fix (:func:`fix_azimuths`).
     """
-    from dfkit import geodesy
     from dfkit.policy import WILD_SD
 
     b = bearings
@@ -599,8 +611,7 @@ def sheet_offsets(table, bearings, with_position) -> list[SheetOffset]:
         b = b.assign(**{WHOLE_SHEET: "all"})
         cols = [WHOLE_SHEET]
     g = b["fix_id"].to_numpy(dtype=np.int64)
-    flat, flon = table["lat"].to_numpy(float), table["lon"].to_numpy(float)
-    az, _, _ = geodesy.inverse(flat[g], flon[g], b["lat"].to_numpy(float), b["lon"].to_numpy(float))
+    az = fix_azimuths(table, b, g, azimuth_deg)
     known = table["sd_source"].isin(["given", "calibration", "given+calibration"]).to_numpy()
     # an estimated SD is one value for the whole sheet (the fixes' median): weighting each fix by its own estimate
     # would down-weight the fixes where the offset shows most (it inflates their estimate) and bias the pooled offset
