@@ -238,9 +238,17 @@ def _table(bearings, sol, ell, lik, status, reasons, counts, span_min, tmid, met
         "kappa": pos(sol.kappa),
         "iterations": sol.iterations,
         "converged": sol.converged,
-        "rejected_lines": [" ".join(str(x) for x in rej) for rej in fix_index["rejected_lines"].tolist()],
+        "rejected_lines": _lines_column(fix_index["rejected_lines"].tolist()),
     })
     return table[FIX_COLUMNS]
+
+
+def _lines_column(rejected):
+    """Each fix's rejected input lines as one text ("12 14"; '' for the many fixes without)."""
+    out = np.full(len(rejected), "", dtype=object)
+    for i in np.flatnonzero(np.fromiter(map(len, rejected), np.int64, len(rejected))).tolist():
+        out[i] = " ".join(str(x) for x in rejected[i])
+    return out
 
 
 def locate_sheet(sheet, *, method="mle", level=0.95, options: ReadOptions | None = None, progress=None,

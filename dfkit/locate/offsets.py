@@ -169,13 +169,14 @@ def group_stats(table, g, m, residual_deg, az_deg, range_m, sigma_deg, use, *, m
     ces, cns = [], []
     for k, col in enumerate(cols):
         if col == WHOLE_SHEET:       # one label for every bearing: no text to read
-            val = np.full(len(table), "all", dtype=object)
+            named = use
+            codes, names = np.zeros(len(use), np.int64), np.array(["all"], dtype=object)
         else:
             val = table[col].astype(str).str.strip().to_numpy(dtype=object)
-        named = use & (val != "") & (val != "nan")
+            named = use & (val != "") & (val != "nan")
+            codes, names = _codes(val, named)
         if not named.any():
             continue
-        codes, names = _codes(val, named)
         K = len(names)
         key = np.where(named, g * K + codes, -1)
         sel = np.flatnonzero(named)
@@ -198,9 +199,9 @@ def group_stats(table, g, m, residual_deg, az_deg, range_m, sigma_deg, use, *, m
         testable = (n_fix[f] - nG >= 2) & np.isfinite(V) & (V > MIN_FREE_SHARE * B)
         idx = np.flatnonzero(keep)
         tests.append(testable[idx])
-        order = np.argsort(inv, kind="stable")
-        starts = np.concatenate(([0], np.cumsum(nG)))
         if with_lines:       # the input lines of each pair, for the per-fix reasons (not for the sheet's pooling)
+            order = np.argsort(inv, kind="stable")
+            starts = np.concatenate(([0], np.cumsum(nG)))
             for p in idx:
                 line_lists.append(lines[sel[order[starts[p]:starts[p + 1]]]].tolist())
         fixes.append(f[idx])
@@ -233,6 +234,23 @@ def _codes(val, named):
 
     codes, names = pd.factorize(np.where(named, val, ""))
     return codes, np.asarray(names, dtype=object)
+
+
+def _sorted_codes(labels):
+    """np.unique(labels, return_inverse=True) by a hash pass: the few distinct labels are sorted, not every one."""
+    import pandas as pd
+
+    codes, uniq = pd.factorize(labels)
+    uniq = np.asarray(uniq, dtype=labels.dtype)
+    order = np.argsort(uniq, kind="stable")
+    rank = np.empty(len(uniq), np.int64)
+    rank[order] = np.arange(len(uniq))
+    return uniq[order], rank[codes]
+
+
+def _n_fixes(fix):
+    """How many distinct fixes (indices) ``fix`` holds."""
+    return int(np.count_nonzero(np.bincount(fix))) if len(fix) else 0
 
 
 def _side(deg):
@@ -389,7 +407,7 @@ def _blocks(st, pairs, per_fix):
     blocks = []
     for k in np.unique(key):
         sel = pairs[key == k]
-        labs, li = np.unique(st.label[sel], return_inverse=True)
+        labs, li = _sorted_codes(st.label[sel])
         L = len(labs)
         S = np.bincount(li, st.U[sel], L)
         a, b, t = _cross(st.fix[sel], st.fix[sel], st.ce[sel], st.cn[sel], st.Mi)
@@ -608,7 +626,6 @@ def sheet_offsets(table, bearings, with_position, azimuth_deg=None) -> list[Shee
     if not cols:
         # no observer, team ... named: the whole sheet is one group, so a turn shared by every bearing (a
         # declination or north mistake, the commonest of all) is still tested
-        b = b.assign(**{WHOLE_SHEET: "all"})
         cols = [WHOLE_SHEET]
     g = b["fix_id"].to_numpy(dtype=np.int64)
     az = fix_azimuths(table, b, g, azimuth_deg)
@@ -642,13 +659,13 @@ def sheet_offsets(table, bearings, with_position, azimuth_deg=None) -> list[Shee
     out = []
     for key, sel, labs, li, S, I in blocks:
         Ii, r_full = _pinv(I)
-        if len(np.unique(st.fix[sel])) < MIN_SHEET_FIXES:
+        if _n_fixes(st.fix[sel]) < MIN_SHEET_FIXES:
             continue        # one fix is the per-fix test's business
         if r_full == 0 or not p_of(float(S @ Ii @ S), r_full) < level:
             continue
         col = str(st.columns[int(key)])
         j = explain(S, I, p_of, level)
-        nf = np.array([len(np.unique(st.fix[sel][li == k])) for k in range(len(labs))])
+        nf = np.array([_n_fixes(st.fix[sel][li == k]) for k in range(len(labs))])
         nb = np.bincount(li, st.n[sel], len(labs)).astype(int)
         findings, offsets, short = [], {}, []
         delta = np.zeros(len(labs))
@@ -668,7 +685,7 @@ def sheet_offsets(table, bearings, with_position, azimuth_deg=None) -> list[Shee
         if j.rest and j.d0_p < level:
             deg, se = float(np.degrees(j.d0)), float(np.degrees(j.d0_se))
             n_rest = int(nb[j.rest].sum())
-            f_rest = len(np.unique(st.fix[sel][np.isin(li, j.rest)]))
+            f_rest = _n_fixes(st.fix[sel][np.isin(li, j.rest)])
             alike = ("the bearings of this sheet read on average" if col == WHOLE_SHEET else
                      f"{col} {labs[0]} reads on average" if len(labs) == 1 else
                      "the bearings of this sheet read on average" if not j.off else

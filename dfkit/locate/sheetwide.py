@@ -213,6 +213,13 @@ def suggested_factor(S, dof) -> float:
     return float(np.exp((lo + hi) / 2))
 
 
+def _sd_keys(source, sd_deg) -> np.ndarray:
+    """Each fix's "source|SD" key (the SD to 3 significant digits), each distinct pair written once."""
+    codes, pairs = pd.MultiIndex.from_arrays([source, sd_deg]).factorize()
+    text = np.array([f"{s}|{v:.3g}" for s, v in pairs], dtype=object)
+    return text[codes]
+
+
 def sd_checks(table, bearings, has_pos, residual_deg=None, likelihood=None) -> list[dict]:
     """Groups of fixes (same SD source and value) whose SD the sheet shows to be too small: each a dict with
     ``text`` (the warning), ``reason`` (for each ok fix) and ``fixes`` (their indices). ``residual_deg``: the
@@ -224,7 +231,7 @@ def sd_checks(table, bearings, has_pos, residual_deg=None, likelihood=None) -> l
     out = []
     if have.sum() < MIN_SD_FIXES:
         return out
-    keys = np.array([f"{s}|{v:.3g}" for s, v in zip(src, sd)], dtype=object)
+    keys = _sd_keys(src, sd)
     for key in dict.fromkeys(keys[have]):
         sel = np.flatnonzero(have & (keys == key))
         n = len(sel)
