@@ -178,15 +178,14 @@ def _time_span(b, g, m):
 
 def _sd_source(b, g, m, sol, has_pos):
     """'given', 'calibration' or 'given+calibration' when every bearing has an SD; 'estimated' otherwise."""
-    out = np.full(m, "", dtype=object)
     if not len(b):
-        return out
+        return np.full(m, "", dtype=object)
     is_cal = (b["sd_source"].to_numpy(dtype=object) == "calibration") if "sd_source" in b else np.zeros(len(b), bool)
     cal = np.bincount(g, is_cal.astype(float), m)
     n = np.bincount(g, minlength=m)
-    given = np.where(cal == n, "calibration", np.where(cal == 0, "given", "given+calibration"))
-    out[:] = np.where(sol.sd_known, given, np.where(sol.dof > 0, "estimated", ""))
-    return np.where(has_pos, out, "")
+    given = np.where(cal == n, 3, np.where(cal == 0, 2, 4))
+    code = np.where(has_pos, np.where(sol.sd_known, given, np.where(sol.dof > 0, 1, 0)), 0)
+    return np.array(["", "estimated", "given", "calibration", "given+calibration"], dtype=object)[code]
 
 
 def _table(bearings, sol, ell, lik, status, reasons, counts, span_min, tmid, method, level):

@@ -125,6 +125,8 @@ def group_columns(table) -> list[str]:
     out = []
     for c in table.columns:
         if str(c).strip().lower() in GROUP_COLUMNS:
+            if (table[c].to_numpy(dtype=object) == "").all():
+                continue         # the reader's empty column (most sheets name no observer or antenna)
             # each distinct value once (a column of 400,000 cells holds a few names, or only empty cells)
             v = table[c].drop_duplicates().astype(str).str.strip()
             if (v != "").any() and (v.str.lower() != "nan").any():

@@ -96,6 +96,8 @@ def tied_columns(bearings, columns, share: float = TIED_SHARE) -> dict:
     carrier's too (a field trial: observer Kim named at 3.2° for antenna y1's 3°)."""
     from dfkit.locate.offsets import group_columns
 
+    if not columns:
+        return {}
     cols = group_columns(bearings)
     out = {}
     for c in columns:
@@ -215,8 +217,13 @@ def suggested_factor(S, dof) -> float:
 
 def _sd_keys(source, sd_deg) -> np.ndarray:
     """Each fix's "source|SD" key (the SD to 3 significant digits), each distinct pair written once."""
-    codes, pairs = pd.MultiIndex.from_arrays([source, sd_deg]).factorize()
-    text = np.array([f"{s}|{v:.3g}" for s, v in pairs], dtype=object)
+    source = np.asarray(source, dtype=object)
+    if pd.api.types.infer_dtype(source, skipna=False) != "string":      # not all text: each written alone
+        return np.array([f"{s}|{v:.3g}" for s, v in zip(source, sd_deg)], dtype=object)
+    cs, src = pd.factorize(source, use_na_sentinel=False)
+    cv, val = pd.factorize(np.asarray(sd_deg, float), use_na_sentinel=False)
+    codes, pairs = pd.factorize(cs * len(val) + cv)
+    text = np.array([f"{src[q // len(val)]}|{val[q % len(val)]:.3g}" for q in pairs], dtype=object)
     return text[codes]
 
 
