@@ -11,7 +11,7 @@ import numpy as np
 import pandas as pd
 
 from dfkit import estimators, geodesy, regions
-from dfkit.locate.fixes import FIX_COLUMNS, WITH_POSITION, Fixes
+from dfkit.locate.fixes import FIX_COLUMNS, WITH_POSITION, Fixes, has_position
 from dfkit.locate.hints import one_bearing_hints
 from dfkit.locate.offsets import fix_offsets
 from dfkit.locate.resolution import fix_steps, sd_floors
@@ -145,9 +145,9 @@ def locate_chunk(bearings: Bearings, *, method: str, level: float, window_min: f
             status[i] = "inconsistent" if status[i] == "ok" else status[i]
             append_reason(reasons, i, text)
 
-    table = _table(bearings, sol, ell, lik, status, reasons, counts, span_min, tmid, method, level)
+    has_pos = has_position(status)
+    table = _table(bearings, sol, ell, lik, status, reasons, counts, span_min, tmid, method, level, has_pos)
     bt = b.copy(deep=False)   # new columns only; the bearings table itself is not copied (copy-on-write)
-    has_pos = np.isin(status, WITH_POSITION)
     if len(b):
         pos_b = has_pos[g]
         bt["residual_deg"] = np.where(pos_b, sol.residual_deg, np.nan)
@@ -188,12 +188,11 @@ def _sd_source(b, g, m, sol, has_pos):
     return np.array(["", "estimated", "given", "calibration", "given+calibration"], dtype=object)[code]
 
 
-def _table(bearings, sol, ell, lik, status, reasons, counts, span_min, tmid, method, level):
+def _table(bearings, sol, ell, lik, status, reasons, counts, span_min, tmid, method, level, has_pos):
     b = bearings.table
     fix_index = bearings.fix_index
     m = len(fix_index)
     g = b["fix_id"].to_numpy(dtype=np.int64) if len(b) else np.zeros(0, np.int64)
-    has_pos = np.isin(status, WITH_POSITION)
     has_region = has_pos & np.isfinite(ell.area_m2) & (ell.semi_minor_m > 0)
     if lik is not None:
         has_lik = has_pos & lik.has_region

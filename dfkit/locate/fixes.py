@@ -73,6 +73,18 @@ STATUS_MEANING = {
 #: Statuses that come with a position.
 WITH_POSITION = ("ok", "ambiguous", "inconsistent", "near_observer", "unbounded", "no_region", "shallow", "long_span")
 
+
+
+def status_in(status, words) -> np.ndarray:
+    """Whether each status (an array of words) is one of ``words``: one hash pass (np.isin sorts the text)."""
+    return pd.Series(np.asarray(status, dtype=object), copy=False).isin(words).to_numpy(dtype=bool)
+
+
+def has_position(status) -> np.ndarray:
+    """Whether each status (an array of words) comes with a position (:data:`WITH_POSITION`)."""
+    return status_in(status, WITH_POSITION)
+
+
 FIX_COLUMNS = [
     "fix", "tag", "time", "lat", "lon", "n_bearings", "n_used", "method", "sd_deg", "sd_source", "level",
     "semi_major_m", "semi_minor_m", "orientation_deg", "area_m2",

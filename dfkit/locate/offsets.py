@@ -182,7 +182,7 @@ def group_stats(table, g, m, residual_deg, az_deg, range_m, sigma_deg, use, *, m
         K = len(names)
         key = np.where(named, g * K + codes, -1)
         sel = np.flatnonzero(named)
-        pair, inv = np.unique(key[sel], return_inverse=True)
+        pair, inv = _unique(key[sel], m * K)
         P = len(pair)
         nG = np.bincount(inv, minlength=P).astype(int)
         A = np.bincount(inv, r[sel] * w[sel], P)
@@ -236,6 +236,16 @@ def _codes(val, named):
 
     codes, names = pd.factorize(np.where(named, val, ""))
     return codes, np.asarray(names, dtype=object)
+
+
+def _unique(key, size):
+    """np.unique(key, return_inverse=True) of non-negative integers below ``size``: by a bincount when ``size`` is
+    not much more than the keys (a pass over them, where np.unique sorts them)."""
+    if size > 4 * len(key) + 1024:
+        return np.unique(key, return_inverse=True)
+    seen = np.bincount(key, minlength=size) > 0
+    rank = np.cumsum(seen) - 1
+    return np.flatnonzero(seen), rank[key]
 
 
 def _sorted_codes(labels):

@@ -30,7 +30,7 @@ from math import lgamma
 import numpy as np
 import pandas as pd
 
-from dfkit.locate.fixes import WITH_POSITION
+from dfkit.locate.fixes import WITH_POSITION, has_position
 from dfkit.locate.offsets import sheet_offsets, whitened_gradients
 from dfkit.locate.status import at_minimum
 from dfkit.policy import INCONSISTENT_P
@@ -59,7 +59,7 @@ def review(fixes):
         return fixes
     status = t["status"].to_numpy(dtype=object).copy()
     reasons = t["reason"].to_numpy(dtype=object).copy()
-    has_pos = np.isin(status, WITH_POSITION)
+    has_pos = has_position(status)
     warnings = list(fixes.warnings)
     found = sheet_offsets(t, b, has_pos, azimuth_deg=fixes.azimuth_deg)
     tied = tied_columns(b, [off.column for off in found])

@@ -13,7 +13,7 @@ from dataclasses import dataclass
 import numpy as np
 
 from dfkit.estimators import ENDINGS
-from dfkit.locate.fixes import WITH_POSITION
+from dfkit.locate.fixes import has_position
 from dfkit.locate.resolution import SHEPPARD
 from dfkit.policy import (ELLIPSE_MISMATCH, FIX_SPAN_WINDOWS, INCONSISTENT_P, NEAR_OBSERVER, ONE_SPOT_M, PLAUSIBLE_SD_DEG, REVERSED_DEG,
                           SHALLOW_CROSSING_DEG, WILD_SD)
@@ -112,7 +112,7 @@ def classify(f: FixFacts, previous=None, redo=()):
     sol = f.sol
     mine = np.ones(m, bool) if previous is None else _listed(m, todo)
     with np.errstate(invalid="ignore"):
-        few_dof = mine & ~sol.sd_known & np.isin(status, WITH_POSITION) & (status != "no_region")
+        few_dof = mine & ~sol.sd_known & has_position(status) & (status != "no_region")
         three = mine & sol.sd_known & (sol.n_used == 3) & (status == "ok")
     append_reason(reasons, np.flatnonzero(few_dof & (sol.dof == 1)), ONE_DOF_TEXT)
     append_reason(reasons, np.flatnonzero(few_dof & (sol.dof == 2)), TWO_DOF_TEXT)
@@ -162,6 +162,7 @@ class _Facts:
     mismatch: np.ndarray
     bounded: np.ndarray
     has_region: np.ndarray
+    notable: np.ndarray       # fixes with a reversed, wild or down-weighted bearing
     attention: np.ndarray     # fixes that need a look whatever their hints and rivals
 
 
@@ -216,7 +217,7 @@ def _work_out(f: FixFacts) -> _Facts:
                   used=used, behind_b=used & (np.cos(np.radians(res)) <= 0), wild_b=wild_b, reversed_b=reversed_b,
                   low_b=low_b, inconsistent=inconsistent, no_cov=no_cov, near_b=near_b, near_obs=near_obs,
                   long_span=long_span, floored=floored, ratio=ratio, mismatch=mismatch, bounded=bounded,
-                  has_region=has_region, attention=attention)
+                  has_region=has_region, notable=notable, attention=attention)
 
 
 def _judge(f: FixFacts, a: _Facts, i: int, rivals: dict):
@@ -322,8 +323,8 @@ def _judge(f: FixFacts, a: _Facts, i: int, rivals: dict):
         word = flags[0][0]
         texts.extend(text for _, text in flags)
     # what each bearing says about the fix (only where the fix is a verified optimum: elsewhere the
-    # residuals are taken at an arbitrary point)
-    if n >= 2 and sol.converged[i]:
+    # residuals are taken at an arbitrary point); most fixes have no such bearing
+    if n >= 2 and sol.converged[i] and a.notable[i]:
         hinted = " ".join(f.hints.get(i, []))
         for j in sel[reversed_b[sel]][:3]:
             if "180°" in hinted:
