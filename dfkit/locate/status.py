@@ -111,9 +111,13 @@ def classify(f: FixFacts, previous=None, redo=()):
     # one, and with four the bounded regions (the ok fixes) are the ones whose estimate came out small
     sol = f.sol
     mine = np.ones(m, bool) if previous is None else _listed(m, todo)
+    pos, ok = np.ones(m, bool), np.ones(m, bool)          # a fix not judged above is ok
+    said = status[todo]
+    pos[todo] = has_position(said) & (said != "no_region")
+    ok[todo] = said == "ok"
     with np.errstate(invalid="ignore"):
-        few_dof = mine & ~sol.sd_known & has_position(status) & (status != "no_region")
-        three = mine & sol.sd_known & (sol.n_used == 3) & (status == "ok")
+        few_dof = mine & ~sol.sd_known & pos
+        three = mine & sol.sd_known & (sol.n_used == 3) & ok
     append_reason(reasons, np.flatnonzero(few_dof & (sol.dof == 1)), ONE_DOF_TEXT)
     append_reason(reasons, np.flatnonzero(few_dof & (sol.dof == 2)), TWO_DOF_TEXT)
     append_reason(reasons, np.flatnonzero(three), THREE_TEXT)
