@@ -490,14 +490,15 @@ def fix_offsets(table, g, m, sol) -> dict[int, str]:
     and the solver's :class:`~dfkit.estimators.Solution`. Only bearings the fit uses and that point towards the
     fix count, and only fixes at a verified optimum are tested.
     """
-    if not len(g):
+    cols = group_columns(table) if len(g) else []
+    if not cols:
         return {}
     sd_b = table["sd"].to_numpy(float)
     sigma = np.where(sol.sd_known[g], sd_b, sol.sd_deg[g])
     with np.errstate(invalid="ignore"):
         use = (sol.weight > 0) & sol.converged[g] & (np.cos(np.radians(sol.residual_deg)) > 0)
     st = group_stats(table, g, m, sol.residual_deg, sol.azimuth_from_fix_deg, sol.range_m, sigma, use,
-                     min_group=MIN_GROUP)
+                     min_group=MIN_GROUP, columns=cols)
     if st is None or not len(st.fix):
         return {}
     # a (fix, column) is tested when it has a group of MIN_GROUP bearings and its fix a residual to test it with
