@@ -74,7 +74,6 @@ STATUS_MEANING = {
 WITH_POSITION = ("ok", "ambiguous", "inconsistent", "near_observer", "unbounded", "no_region", "shallow", "long_span")
 
 
-
 def status_in(status, words) -> np.ndarray:
     """Whether each status (an array of words) is one of ``words``: one hash pass (np.isin sorts the text)."""
     return pd.Series(np.asarray(status, dtype=object), copy=False).isin(words).to_numpy(dtype=bool)
