@@ -69,6 +69,7 @@ def test_same_csv_bytes_and_regions_as_one_job(tmp_path, use):
     write_fixes(many, tmp_path / "many.csv")
     assert (tmp_path / "one.csv").read_bytes() == (tmp_path / "many.csv").read_bytes()
     assert one.bearings.equals(many.bearings)
+    assert np.array_equal(one.azimuth_deg, many.azimuth_deg)       # put back in the bearings' order
     for name in ("radius_m", "centre_x", "area_m2", "g", "station_lat", "bearing_deg", "has_region"):
         assert np.array_equal(getattr(one.likelihood, name), getattr(many.likelihood, name), equal_nan=True), name
     # the exact test of a point against every fix's region: each fix's own position, shifted 200 m north

@@ -10,13 +10,14 @@ from __future__ import annotations
 import numpy as np
 import pandas as pd
 
-from dfkit import estimators, geodesy, regions
-from dfkit.locate.fixes import FIX_COLUMNS, WITH_POSITION, Fixes
+from dfkit import estimators, regions
+from dfkit.conventions import WGS84_A
+from dfkit.locate.fixes import FIX_COLUMNS, WITH_POSITION, Fixes, has_position
 from dfkit.locate.hints import one_bearing_hints
 from dfkit.locate.offsets import fix_offsets
 from dfkit.locate.resolution import fix_steps, sd_floors
 from dfkit.locate.rivals import find_rivals
-from dfkit.locate.status import FixFacts, classify, consistency
+from dfkit.locate.status import FixFacts, append_reason, classify, consistency
 from dfkit.observations import Bearings, ReadOptions, read_bearings
 
 #: Inconsistent fixes with a chi-square p-value at least this are not searched for one bad line.
@@ -110,10 +111,7 @@ def locate_chunk(bearings: Bearings, *, method: str, level: float, window_min: f
                                          known_dof=cal_dof, sd_floor_deg=sol.sd_floor_deg, valid=sol.converged)
 
     say("statuses")
-    clat, clon = geodesy.group_centroid(lat, lon, g, m)
-    spread = np.zeros(m)
-    if len(b):
-        np.maximum.at(spread, g, geodesy.chord_distance_m(clat[g], clon[g], lat, lon))
+    spread = _spread(lat, lon, g, m)
     span_min, tmid = _time_span(b, g, m)
     # A fix goes on while each bearing follows the last within the window (dfkit.observations.grouping):
     # a gap longer than the window, or a chain lasting more than FIX_SPAN_WINDOWS windows, is flagged.
@@ -131,23 +129,23 @@ def locate_chunk(bearings: Bearings, *, method: str, level: float, window_min: f
                if len(b) else None)
     hints = one_bearing_hints(lat, lon, theta, sd, g, counts, lines, np.where(mild, "", status), method, robust_c,
                               floor, written)
-    if hints:
+    if hints:      # only the fixes with hints are judged again
         facts.hints = hints
-        status, reasons = classify(facts)
+        status, reasons = classify(facts, (status, reasons), redo=hints)
     rivals = find_rivals(lat, lon, theta, sd, g, counts, sol, lik, level, status == "ok", cal_dof, floor)
     if rivals:
         facts.rivals = rivals
-        status, reasons = classify(facts)
+        status, reasons = classify(facts, (status, reasons), redo=rivals)
 
     # an observer, team, antenna or receiver whose bearings in this fix read off the others (dfkit.locate.offsets)
     for i, text in fix_offsets(b, g, m, sol).items():
         if status[i] in WITH_POSITION and i not in hints:     # a named wild line explains the misfit better
             status[i] = "inconsistent" if status[i] == "ok" else status[i]
-            reasons[i].append(text)
+            append_reason(reasons, i, text)
 
-    table = _table(bearings, sol, ell, lik, status, reasons, counts, span_min, tmid, method, level)
+    has_pos = has_position(status)
+    table = _table(bearings, sol, ell, lik, status, reasons, counts, span_min, tmid, method, level, has_pos)
     bt = b.copy(deep=False)   # new columns only; the bearings table itself is not copied (copy-on-write)
-    has_pos = np.isin(status, WITH_POSITION)
     if len(b):
         pos_b = has_pos[g]
         bt["residual_deg"] = np.where(pos_b, sol.residual_deg, np.nan)
@@ -159,7 +157,24 @@ def locate_chunk(bearings: Bearings, *, method: str, level: float, window_min: f
             bt[c] = []
     notes = list(bearings.notes)
     return Fixes(table=table, bearings=bt, problems=list(bearings.problems), notes=notes, source=bearings.source,
-                 likelihood=lik)
+                 likelihood=lik, azimuth_deg=sol.azimuth_from_fix_deg)
+
+
+def _spread(lat, lon, g, m):
+    """Largest distance of a station from its stations' centroid, per fix [m]: the chord distance
+    (:func:`dfkit.geodesy.chord_distance_m`) from :func:`dfkit.geodesy.group_centroid`, in the same arithmetic,
+    with each station's unit vector worked out once and each centroid's once per fix."""
+    phi, lam = np.radians(lat), np.radians(lon)
+    cp = np.cos(phi)
+    x, y, z = cp * np.cos(lam), cp * np.sin(lam), np.sin(phi)
+    X, Y, Z = np.bincount(g, x, m), np.bincount(g, y, m), np.bincount(g, z, m)
+    clat, clon = np.radians(np.degrees(np.arctan2(Z, np.hypot(X, Y)))), np.radians(np.degrees(np.arctan2(Y, X)))
+    ccp = np.cos(clat)
+    cx, cy, cz = ccp * np.cos(clon), ccp * np.sin(clon), np.sin(clat)
+    d = WGS84_A * np.sqrt((cx[g] - x) ** 2 + (cy[g] - y) ** 2 + (cz[g] - z) ** 2)
+    spread = np.zeros(m)
+    np.maximum.at(spread, g, d)
+    return spread
 
 
 def _time_span(b, g, m):
@@ -178,23 +193,21 @@ def _time_span(b, g, m):
 
 def _sd_source(b, g, m, sol, has_pos):
     """'given', 'calibration' or 'given+calibration' when every bearing has an SD; 'estimated' otherwise."""
-    out = np.full(m, "", dtype=object)
     if not len(b):
-        return out
+        return np.full(m, "", dtype=object)
     is_cal = (b["sd_source"].to_numpy(dtype=object) == "calibration") if "sd_source" in b else np.zeros(len(b), bool)
     cal = np.bincount(g, is_cal.astype(float), m)
     n = np.bincount(g, minlength=m)
-    given = np.where(cal == n, "calibration", np.where(cal == 0, "given", "given+calibration"))
-    out[:] = np.where(sol.sd_known, given, np.where(sol.dof > 0, "estimated", ""))
-    return np.where(has_pos, out, "")
+    given = np.where(cal == n, 3, np.where(cal == 0, 2, 4))
+    code = np.where(has_pos, np.where(sol.sd_known, given, np.where(sol.dof > 0, 1, 0)), 0)
+    return np.array(["", "estimated", "given", "calibration", "given+calibration"], dtype=object)[code]
 
 
-def _table(bearings, sol, ell, lik, status, reasons, counts, span_min, tmid, method, level):
+def _table(bearings, sol, ell, lik, status, reasons, counts, span_min, tmid, method, level, has_pos):
     b = bearings.table
     fix_index = bearings.fix_index
     m = len(fix_index)
     g = b["fix_id"].to_numpy(dtype=np.int64) if len(b) else np.zeros(0, np.int64)
-    has_pos = np.isin(status, WITH_POSITION)
     has_region = has_pos & np.isfinite(ell.area_m2) & (ell.semi_minor_m > 0)
     if lik is not None:
         has_lik = has_pos & lik.has_region
@@ -231,16 +244,24 @@ def _table(bearings, sol, ell, lik, status, reasons, counts, span_min, tmid, met
         "cov_en_m2": reg(cov[:, 0, 1]),
         "cov_nn_m2": reg(cov[:, 1, 1]),
         "status": status,
-        "reason": ["; ".join(r) for r in reasons],
+        "reason": reasons,
         "crossing_deg": np.where(counts >= 2, sol.crossing_deg, np.nan),
         "span_min": span_min,
         "max_residual_deg": pos(max_res),
         "kappa": pos(sol.kappa),
         "iterations": sol.iterations,
         "converged": sol.converged,
-        "rejected_lines": [" ".join(str(x) for x in rej) for rej in fix_index["rejected_lines"].tolist()],
+        "rejected_lines": _lines_column(fix_index["rejected_lines"].tolist()),
     })
     return table[FIX_COLUMNS]
+
+
+def _lines_column(rejected):
+    """Each fix's rejected input lines as one text ("12 14"; '' for the many fixes without)."""
+    out = np.full(len(rejected), "", dtype=object)
+    for i in np.flatnonzero(np.fromiter(map(len, rejected), np.int64, len(rejected))).tolist():
+        out[i] = " ".join(str(x) for x in rejected[i])
+    return out
 
 
 def locate_sheet(sheet, *, method="mle", level=0.95, options: ReadOptions | None = None, progress=None,

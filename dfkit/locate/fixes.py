@@ -73,6 +73,17 @@ STATUS_MEANING = {
 #: Statuses that come with a position.
 WITH_POSITION = ("ok", "ambiguous", "inconsistent", "near_observer", "unbounded", "no_region", "shallow", "long_span")
 
+
+def status_in(status, words) -> np.ndarray:
+    """Whether each status (an array of words) is one of ``words``: one hash pass (np.isin sorts the text)."""
+    return pd.Series(np.asarray(status, dtype=object), copy=False).isin(words).to_numpy(dtype=bool)
+
+
+def has_position(status) -> np.ndarray:
+    """Whether each status (an array of words) comes with a position (:data:`WITH_POSITION`)."""
+    return status_in(status, WITH_POSITION)
+
+
 FIX_COLUMNS = [
     "fix", "tag", "time", "lat", "lon", "n_bearings", "n_used", "method", "sd_deg", "sd_source", "level",
     "semi_major_m", "semi_minor_m", "orientation_deg", "area_m2",
@@ -117,6 +128,9 @@ class Fixes:
         season store read): ``fix_id`` (the row), ``geometry`` (a shapely Polygon, or MultiPolygon
         when split at the antimeridian, in longitude/latitude), ``bounded``, ``area_m2``
         (NaN when open), ``reach_m`` and ``drawn_to_m`` (how far an open region is drawn).
+    azimuth_deg : ndarray or None
+        Each bearing's geodesic azimuth from its fix to its station [°], in the rows of ``bearings``, as the
+        solver left it (None when not kept): the sheet-wide checks reuse it instead of a second geodesic pass.
     """
 
     table: pd.DataFrame
@@ -127,6 +141,7 @@ class Fixes:
     likelihood: LikelihoodRegions | None = None
     warnings: list[str] = field(default_factory=list)
     _regions: pd.DataFrame | None = field(default=None, repr=False)
+    azimuth_deg: np.ndarray | None = field(default=None, repr=False)
 
     @property
     def regions(self) -> pd.DataFrame | None:

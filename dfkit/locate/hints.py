@@ -26,6 +26,7 @@ from __future__ import annotations
 import numpy as np
 
 from dfkit import estimators, geodesy
+from dfkit.locate.fixes import status_in
 from dfkit.locate.status import consistency
 from dfkit.policy import INCONSISTENT_P, PLAUSIBLE_SD_DEG, WILD_SD
 
@@ -47,7 +48,7 @@ def one_bearing_hints(lat, lon, bearing, sd, g, counts, lines, status, method, r
     said as the user would enter it (:func:`turned_text`)."""
     m = len(counts)
     out: dict[int, list[str]] = {}
-    look = np.flatnonzero(np.isin(status, EXAMINED) & (counts >= 2))[:MAX_EXAMINED]
+    look = np.flatnonzero(status_in(status, EXAMINED) & (counts >= 2))[:MAX_EXAMINED]
     if not len(look):
         return out
     robust = estimators.REGISTRY[method].robust

@@ -125,6 +125,8 @@ def group_columns(table) -> list[str]:
     out = []
     for c in table.columns:
         if str(c).strip().lower() in GROUP_COLUMNS:
+            if (table[c].to_numpy(dtype=object) == "").all():
+                continue         # the reader's empty column (most sheets name no observer or antenna)
             # each distinct value once (a column of 400,000 cells holds a few names, or only empty cells)
             v = table[c].drop_duplicates().astype(str).str.strip()
             if (v != "").any() and (v.str.lower() != "nan").any():
@@ -169,17 +171,18 @@ def group_stats(table, g, m, residual_deg, az_deg, range_m, sigma_deg, use, *, m
     ces, cns = [], []
     for k, col in enumerate(cols):
         if col == WHOLE_SHEET:       # one label for every bearing: no text to read
-            val = np.full(len(table), "all", dtype=object)
+            named = use
+            codes, names = np.zeros(len(use), np.int64), np.array(["all"], dtype=object)
         else:
             val = table[col].astype(str).str.strip().to_numpy(dtype=object)
-        named = use & (val != "") & (val != "nan")
+            named = use & (val != "") & (val != "nan")
+            codes, names = _codes(val, named)
         if not named.any():
             continue
-        codes, names = _codes(val, named)
         K = len(names)
         key = np.where(named, g * K + codes, -1)
         sel = np.flatnonzero(named)
-        pair, inv = np.unique(key[sel], return_inverse=True)
+        pair, inv = _unique(key[sel], m * K)
         P = len(pair)
         nG = np.bincount(inv, minlength=P).astype(int)
         A = np.bincount(inv, r[sel] * w[sel], P)
@@ -198,9 +201,9 @@ def group_stats(table, g, m, residual_deg, az_deg, range_m, sigma_deg, use, *, m
         testable = (n_fix[f] - nG >= 2) & np.isfinite(V) & (V > MIN_FREE_SHARE * B)
         idx = np.flatnonzero(keep)
         tests.append(testable[idx])
-        order = np.argsort(inv, kind="stable")
-        starts = np.concatenate(([0], np.cumsum(nG)))
         if with_lines:       # the input lines of each pair, for the per-fix reasons (not for the sheet's pooling)
+            order = np.argsort(inv, kind="stable")
+            starts = np.concatenate(([0], np.cumsum(nG)))
             for p in idx:
                 line_lists.append(lines[sel[order[starts[p]:starts[p + 1]]]].tolist())
         fixes.append(f[idx])
@@ -233,6 +236,33 @@ def _codes(val, named):
 
     codes, names = pd.factorize(np.where(named, val, ""))
     return codes, np.asarray(names, dtype=object)
+
+
+def _unique(key, size):
+    """np.unique(key, return_inverse=True) of non-negative integers below ``size``: by a bincount when ``size`` is
+    not much more than the keys (a pass over them, where np.unique sorts them)."""
+    if size > 4 * len(key) + 1024:
+        return np.unique(key, return_inverse=True)
+    seen = np.bincount(key, minlength=size) > 0
+    rank = np.cumsum(seen) - 1
+    return np.flatnonzero(seen), rank[key]
+
+
+def _sorted_codes(labels):
+    """np.unique(labels, return_inverse=True) by a hash pass: the few distinct labels are sorted, not every one."""
+    import pandas as pd
+
+    codes, uniq = pd.factorize(labels)
+    uniq = np.asarray(uniq, dtype=labels.dtype)
+    order = np.argsort(uniq, kind="stable")
+    rank = np.empty(len(uniq), np.int64)
+    rank[order] = np.arange(len(uniq))
+    return uniq[order], rank[codes]
+
+
+def _n_fixes(fix):
+    """How many distinct fixes (indices) ``fix`` holds."""
+    return int(np.count_nonzero(np.bincount(fix))) if len(fix) else 0
 
 
 def _side(deg):
@@ -389,7 +419,7 @@ def _blocks(st, pairs, per_fix):
     blocks = []
     for k in np.unique(key):
         sel = pairs[key == k]
-        labs, li = np.unique(st.label[sel], return_inverse=True)
+        labs, li = _sorted_codes(st.label[sel])
         L = len(labs)
         S = np.bincount(li, st.U[sel], L)
         a, b, t = _cross(st.fix[sel], st.fix[sel], st.ce[sel], st.cn[sel], st.Mi)
@@ -460,14 +490,15 @@ def fix_offsets(table, g, m, sol) -> dict[int, str]:
     and the solver's :class:`~dfkit.estimators.Solution`. Only bearings the fit uses and that point towards the
     fix count, and only fixes at a verified optimum are tested.
     """
-    if not len(g):
+    cols = group_columns(table) if len(g) else []
+    if not cols:
         return {}
     sd_b = table["sd"].to_numpy(float)
     sigma = np.where(sol.sd_known[g], sd_b, sol.sd_deg[g])
     with np.errstate(invalid="ignore"):
         use = (sol.weight > 0) & sol.converged[g] & (np.cos(np.radians(sol.residual_deg)) > 0)
     st = group_stats(table, g, m, sol.residual_deg, sol.azimuth_from_fix_deg, sol.range_m, sigma, use,
-                     min_group=MIN_GROUP)
+                     min_group=MIN_GROUP, columns=cols)
     if st is None or not len(st.fix):
         return {}
     # a (fix, column) is tested when it has a group of MIN_GROUP bearings and its fix a residual to test it with
@@ -577,15 +608,27 @@ class SheetOffset:
                 f"{shift:.1f} standard errors, so its region may miss: {what}")
 
 
-def sheet_offsets(table, bearings, with_position) -> list[SheetOffset]:
+def fix_azimuths(table, bearings, g, azimuth_deg=None) -> np.ndarray:
+    """Each bearing's geodesic azimuth from its fix (the ``table``'s position) to its station [°]: ``azimuth_deg``
+    when given (the solver's, :attr:`dfkit.locate.Fixes.azimuth_deg`), else computed (NaN where no position)."""
+    if azimuth_deg is not None and len(azimuth_deg) == len(bearings):
+        return np.asarray(azimuth_deg, float)
+    from dfkit import geodesy
+
+    flat, flon = table["lat"].to_numpy(float), table["lon"].to_numpy(float)
+    az, _, _ = geodesy.inverse(flat[g], flon[g], bearings["lat"].to_numpy(float), bearings["lon"].to_numpy(float))
+    return az
+
+
+def sheet_offsets(table, bearings, with_position, azimuth_deg=None) -> list[SheetOffset]:
     """The sheet-wide test (module docstring) on a located sheet: ``table`` and ``bearings`` of
     :class:`~dfkit.locate.Fixes`, ``with_position`` per fix. Bearings off by more than
     :data:`dfkit.policy.WILD_SD` SDs are left out of the pooling (they are named in their fixes).
 
     An estimated SD is one value for the whole sheet (the median of the fixes' estimates) and is then used as if
     known: with the hundreds of bearings a sheet-wide test needs, its own uncertainty is small (a few per cent).
+    ``azimuth_deg``: each bearing's azimuth from its fix (:func:`fix_azimuths`).
     """
-    from dfkit import geodesy
     from dfkit.policy import WILD_SD
 
     b = bearings
@@ -596,11 +639,9 @@ def sheet_offsets(table, bearings, with_position) -> list[SheetOffset]:
     if not cols:
         # no observer, team ... named: the whole sheet is one group, so a turn shared by every bearing (a
         # declination or north mistake, the commonest of all) is still tested
-        b = b.assign(**{WHOLE_SHEET: "all"})
         cols = [WHOLE_SHEET]
     g = b["fix_id"].to_numpy(dtype=np.int64)
-    flat, flon = table["lat"].to_numpy(float), table["lon"].to_numpy(float)
-    az, _, _ = geodesy.inverse(flat[g], flon[g], b["lat"].to_numpy(float), b["lon"].to_numpy(float))
+    az = fix_azimuths(table, b, g, azimuth_deg)
     known = table["sd_source"].isin(["given", "calibration", "given+calibration"]).to_numpy()
     # an estimated SD is one value for the whole sheet (the fixes' median): weighting each fix by its own estimate
     # would down-weight the fixes where the offset shows most (it inflates their estimate) and bias the pooled offset
@@ -631,13 +672,13 @@ def sheet_offsets(table, bearings, with_position) -> list[SheetOffset]:
     out = []
     for key, sel, labs, li, S, I in blocks:
         Ii, r_full = _pinv(I)
-        if len(np.unique(st.fix[sel])) < MIN_SHEET_FIXES:
+        if _n_fixes(st.fix[sel]) < MIN_SHEET_FIXES:
             continue        # one fix is the per-fix test's business
         if r_full == 0 or not p_of(float(S @ Ii @ S), r_full) < level:
             continue
         col = str(st.columns[int(key)])
         j = explain(S, I, p_of, level)
-        nf = np.array([len(np.unique(st.fix[sel][li == k])) for k in range(len(labs))])
+        nf = np.array([_n_fixes(st.fix[sel][li == k]) for k in range(len(labs))])
         nb = np.bincount(li, st.n[sel], len(labs)).astype(int)
         findings, offsets, short = [], {}, []
         delta = np.zeros(len(labs))
@@ -657,7 +698,7 @@ def sheet_offsets(table, bearings, with_position) -> list[SheetOffset]:
         if j.rest and j.d0_p < level:
             deg, se = float(np.degrees(j.d0)), float(np.degrees(j.d0_se))
             n_rest = int(nb[j.rest].sum())
-            f_rest = len(np.unique(st.fix[sel][np.isin(li, j.rest)]))
+            f_rest = _n_fixes(st.fix[sel][np.isin(li, j.rest)])
             alike = ("the bearings of this sheet read on average" if col == WHOLE_SHEET else
                      f"{col} {labs[0]} reads on average" if len(labs) == 1 else
                      "the bearings of this sheet read on average" if not j.off else

@@ -127,9 +127,12 @@ def merge(bearings: Bearings, results: list[Fixes], rows: list[np.ndarray], offs
     lik = None
     if all(r.likelihood is not None for r in results):
         lik = _merge_regions([r.likelihood for r in results], [len(r.table) for r in results], order)
+    az = None
+    if all(r.azimuth_deg is not None for r in results):
+        az = np.concatenate([r.azimuth_deg for r in results])[order]
     first = results[0]
     return replace(first, table=table, bearings=bt, problems=list(bearings.problems), notes=list(first.notes),
-                   likelihood=lik, _regions=None)
+                   likelihood=lik, _regions=None, azimuth_deg=az)
 
 
 #: Fields of the likelihood regions that every chunk shares (not per fix or per bearing), and those per bearing

@@ -233,20 +233,30 @@ def _could_conflict(g, m, sol, used, level, kdof):
     r / (1 - h) (r its residual at the fix, h its leverage), and the fix's S there exceeds its bound only if
     that squared miss exceeds the bound's gap plus r^2.
     """
+    r = np.radians(sol.residual_deg)
+    known_b = sol.sd_known[g]
+    out = np.zeros(len(g), bool)
+    if known_b.any():
+        with np.errstate(divide="ignore", invalid="ignore"):
+            # known SD: the alternative's bound over its minimum (chi-square, or F for a measured SD), with its
+            # bearings at full weight 1/SD^2 (a robust fit's own weights may be smaller)
+            gap_alt = region_threshold(np.zeros(m), np.ones(m, bool), sol.dof, level, kdof)
+            full = np.where(used, sol.region_weight / np.where(used, sol.weight, 1.0), 0.0) * r * r
+            out |= known_b & ((np.bincount(g, full, m)[g] - full) > gap_alt[g])
+    if not known_b.all():
+        out |= ~known_b & _linear_screen(g, m, sol, used, r, level, kdof)
+    return out
+
+
+def _linear_screen(g, m, sol, used, r, level, kdof):
+    """Per bearing, with the SD estimated: the linear screen of :func:`_could_conflict`."""
     d = sol.range_m
     az = np.radians(sol.azimuth_from_fix_deg)
     gx, gy = -np.cos(az) / d, np.sin(az) / d          # gradient of the predicted bearing [rad/m]
     v = np.where(used, sol.region_weight, 0.0)
-    r = np.radians(sol.residual_deg)
     S = np.bincount(g, v * r * r, m)
     j11, j12, j22 = (np.bincount(g, v * t, m) for t in (gx * gx, gx * gy, gy * gy))
     with np.errstate(divide="ignore", invalid="ignore"):
         h = v * (j22[g] * gx * gx - 2 * j12[g] * gx * gy + j11[g] * gy * gy) / (j11 * j22 - j12 * j12)[g]
-        # known SD: the alternative's bound over its minimum (chi-square, or F for a measured SD), with its
-        # bearings at full weight 1/SD^2 (a robust fit's own weights may be smaller)
-        gap_alt = region_threshold(np.zeros(m), np.ones(m, bool), sol.dof, level, kdof)
-        full = np.where(used, sol.region_weight / np.where(used, sol.weight, 1.0), 0.0) * r * r
-        known = (np.bincount(g, full, m)[g] - full) > gap_alt[g]
         gap_fix = (region_threshold(S, sol.sd_known, sol.dof, level, kdof, _floor_rad(sol)) - S)[g]
-        linear = (v * r * r / (1.0 - h) ** 2 > SCREEN_LINEAR * (gap_fix + v * r * r)) | (h > SCREEN_LEVERAGE)
-    return np.where(sol.sd_known[g], known, linear)
+        return (v * r * r / (1.0 - h) ** 2 > SCREEN_LINEAR * (gap_fix + v * r * r)) | (h > SCREEN_LEVERAGE)

@@ -30,7 +30,7 @@ from math import lgamma
 import numpy as np
 import pandas as pd
 
-from dfkit.locate.fixes import WITH_POSITION
+from dfkit.locate.fixes import WITH_POSITION, has_position
 from dfkit.locate.offsets import sheet_offsets, whitened_gradients
 from dfkit.locate.status import at_minimum
 from dfkit.policy import INCONSISTENT_P
@@ -59,9 +59,9 @@ def review(fixes):
         return fixes
     status = t["status"].to_numpy(dtype=object).copy()
     reasons = t["reason"].to_numpy(dtype=object).copy()
-    has_pos = np.isin(status, WITH_POSITION)
+    has_pos = has_position(status)
     warnings = list(fixes.warnings)
-    found = sheet_offsets(t, b, has_pos)
+    found = sheet_offsets(t, b, has_pos, azimuth_deg=fixes.azimuth_deg)
     tied = tied_columns(b, [off.column for off in found])
     for off in found:
         if off.column in tied:
@@ -73,7 +73,8 @@ def review(fixes):
         for i, shift in off.marked.items():
             _mark(status, reasons, i, off.reason(shift, calibrated="calibration" in str(t["sd_source"].iat[i])))
     # the SD is judged on the misfit the offsets found above leave: an observer 10° off is not an SD too small
-    residual = without_offsets(t, b, found) if any(off.offsets for off in found) else None
+    residual = (without_offsets(t, b, found, azimuth_deg=fixes.azimuth_deg) if any(off.offsets for off in found)
+                else None)
     for chk in sd_checks(t, b, has_pos, residual_deg=residual, likelihood=fixes.likelihood):
         warnings.append(chk["text"])
         for i in chk["fixes"]:
@@ -95,6 +96,8 @@ def tied_columns(bearings, columns, share: float = TIED_SHARE) -> dict:
     carrier's too (a field trial: observer Kim named at 3.2° for antenna y1's 3°)."""
     from dfkit.locate.offsets import group_columns
 
+    if not columns:
+        return {}
     cols = group_columns(bearings)
     out = {}
     for c in columns:
@@ -122,12 +125,14 @@ def _mark(status, reasons, i, text):
         reasons[i] = f"{reasons[i]}; {text}" if reasons[i] else text
 
 
-def without_offsets(table, bearings, found) -> np.ndarray:
+def without_offsets(table, bearings, found, azimuth_deg=None) -> np.ndarray:
     """Each bearing's residual [°] with the sheet's fitted offsets (``found``, :func:`sheet_offsets`) taken out
     and the fix's position let absorb what it can, in the linearised model of the fix: with v the offsets in SDs
     and X the whitened gradients of the bearings with respect to the position (:mod:`dfkit.locate.offsets`), the
-    offsets left in the residuals are P v = v - X (X'X)^-1 X' v, and the residual becomes r - P v."""
-    from dfkit import geodesy
+    offsets left in the residuals are P v = v - X (X'X)^-1 X' v, and the residual becomes r - P v.
+    ``azimuth_deg``: each bearing's azimuth from its fix (:attr:`dfkit.locate.Fixes.azimuth_deg`; by default
+    computed again)."""
+    from dfkit.locate.offsets import fix_azimuths
 
     b = bearings
     m = len(table)
@@ -143,8 +148,7 @@ def without_offsets(table, bearings, found) -> np.ndarray:
     sd = b["sd"].to_numpy(float)
     with np.errstate(invalid="ignore", divide="ignore"):
         use = (b["weight"].to_numpy(float) > 0) & np.isfinite(r) & (sd > 0) & (b["range_m"].to_numpy(float) > 0)
-    flat, flon = table["lat"].to_numpy(float), table["lon"].to_numpy(float)
-    az, _, _ = geodesy.inverse(flat[g], flon[g], b["lat"].to_numpy(float), b["lon"].to_numpy(float))
+    az = fix_azimuths(table, b, g, azimuth_deg)
     s, xe, xn = whitened_gradients(az, b["range_m"].to_numpy(float), sd, use)
     v = np.where(use, np.radians(delta) / s, 0.0)
     Mee, Men, Mnn = (np.bincount(g, xe * xe, m), np.bincount(g, xe * xn, m), np.bincount(g, xn * xn, m))
@@ -211,6 +215,18 @@ def suggested_factor(S, dof) -> float:
     return float(np.exp((lo + hi) / 2))
 
 
+def _sd_keys(source, sd_deg) -> np.ndarray:
+    """Each fix's "source|SD" key (the SD to 3 significant digits), each distinct pair written once."""
+    source = np.asarray(source, dtype=object)
+    if pd.api.types.infer_dtype(source, skipna=False) != "string":      # not all text: each written alone
+        return np.array([f"{s}|{v:.3g}" for s, v in zip(source, sd_deg)], dtype=object)
+    cs, src = pd.factorize(source, use_na_sentinel=False)
+    cv, val = pd.factorize(np.asarray(sd_deg, float), use_na_sentinel=False)
+    codes, pairs = pd.factorize(cs * len(val) + cv)
+    text = np.array([f"{src[q // len(val)]}|{val[q % len(val)]:.3g}" for q in pairs], dtype=object)
+    return text[codes]
+
+
 def sd_checks(table, bearings, has_pos, residual_deg=None, likelihood=None) -> list[dict]:
     """Groups of fixes (same SD source and value) whose SD the sheet shows to be too small: each a dict with
     ``text`` (the warning), ``reason`` (for each ok fix) and ``fixes`` (their indices). ``residual_deg``: the
@@ -222,7 +238,7 @@ def sd_checks(table, bearings, has_pos, residual_deg=None, likelihood=None) -> l
     out = []
     if have.sum() < MIN_SD_FIXES:
         return out
-    keys = np.array([f"{s}|{v:.3g}" for s, v in zip(src, sd)], dtype=object)
+    keys = _sd_keys(src, sd)
     for key in dict.fromkeys(keys[have]):
         sel = np.flatnonzero(have & (keys == key))
         n = len(sel)

@@ -13,7 +13,7 @@ from dataclasses import dataclass
 import numpy as np
 
 from dfkit.estimators import ENDINGS
-from dfkit.locate.fixes import WITH_POSITION
+from dfkit.locate.fixes import has_position
 from dfkit.locate.resolution import SHEPPARD
 from dfkit.policy import (ELLIPSE_MISMATCH, FIX_SPAN_WINDOWS, INCONSISTENT_P, NEAR_OBSERVER, ONE_SPOT_M, PLAUSIBLE_SD_DEG, REVERSED_DEG,
                           SHALLOW_CROSSING_DEG, WILD_SD)
@@ -42,6 +42,7 @@ class FixFacts:
     hints: dict                 # fix index -> list of extra reason texts
     rivals: dict = None         # fix index -> dfkit.locate.rivals.Rival (competing explanations)
     step_deg: np.ndarray = None  # the step each fix's bearings were written to [°] (dfkit.locate.resolution)
+    judged: object = None       # what classify worked out from the rest (kept for its later calls)
 
 
 def _lines_text(lines):
@@ -81,29 +82,115 @@ def consistency(sol, g, m, regions=None):
     return S, p
 
 
-def classify(f: FixFacts):
-    """Status word and reasons of every fix: (status array, list of reason lists)."""
-    sol, g = f.sol, f.g
+def classify(f: FixFacts, previous=None, redo=()):
+    """Status word and reason of every fix: (status array, reason array), the reason the fix's texts joined by
+    "; " ('' when none). With ``previous``, an earlier answer on the same facts, only the fixes ``redo`` are judged
+    again (a fix's status and reasons rest on its own facts alone; its hints and rivals may have been added)."""
     m = len(f.counts)
-    status = np.full(m, "ok", dtype=object)
-    reasons: list[list[str]] = [[] for _ in range(m)]
+    if previous is None:
+        status = np.full(m, "ok", dtype=object)
+        reasons = np.full(m, "", dtype=object)
+    else:
+        status, reasons = previous[0].copy(), previous[1].copy()
     if not m:
         return status, reasons
+    a = _facts_of(f)
+    rivals = f.rivals or {}
+    if previous is None:
+        todo = np.flatnonzero(a.attention | _listed(m, f.hints) | _listed(m, rivals))
+    else:
+        todo = np.unique(np.asarray(list(redo), dtype=np.int64))
+        status[todo] = "ok"
+        reasons[todo] = ""
+    for i in todo.tolist():
+        word, texts = _judge(f, a, i, rivals)
+        if word is not None:
+            status[i] = word
+        reasons[i] = "; ".join(t for t in texts if t)
+    # an SD estimated from three or four bearings: the region allows for it, but a measured SD gives a far smaller
+    # one, and with four the bounded regions (the ok fixes) are the ones whose estimate came out small
+    sol = f.sol
+    mine = np.ones(m, bool) if previous is None else _listed(m, todo)
+    pos, ok = np.ones(m, bool), np.ones(m, bool)          # a fix not judged above is ok
+    said = status[todo]
+    pos[todo] = has_position(said) & (said != "no_region")
+    ok[todo] = said == "ok"
+    with np.errstate(invalid="ignore"):
+        few_dof = mine & ~sol.sd_known & pos
+        three = mine & sol.sd_known & (sol.n_used == 3) & ok
+    append_reason(reasons, np.flatnonzero(few_dof & (sol.dof == 1)), ONE_DOF_TEXT)
+    append_reason(reasons, np.flatnonzero(few_dof & (sol.dof == 2)), TWO_DOF_TEXT)
+    append_reason(reasons, np.flatnonzero(three), THREE_TEXT)
+    return status, reasons
+
+
+def append_reason(reasons, fixes, text):
+    """Add ``text`` to the reasons (texts joined by "; ", '' when none) of ``fixes`` (indices, or one index)."""
+    idx = np.atleast_1d(np.asarray(fixes, dtype=np.int64))
+    if not len(idx):
+        return
+    empty = reasons[idx] == ""
+    reasons[idx[empty]] = text
+    rest = idx[~empty]
+    if len(rest):
+        reasons[rest] = reasons[rest] + ("; " + text)
+
+
+def _listed(m, fixes):
+    """A mask over m fixes, True at the indices ``fixes``."""
+    out = np.zeros(m, bool)
+    out[np.asarray(list(fixes), dtype=np.int64)] = True
+    return out
+
+
+@dataclass
+class _Facts:
+    """What :func:`classify` judges with that does not depend on hints or rivals (arrays per fix or bearing)."""
+
+    S: np.ndarray
+    p: np.ndarray
+    order: np.ndarray
+    starts: np.ndarray
+    used: np.ndarray
+    behind_b: np.ndarray
+    wild_b: np.ndarray
+    reversed_b: np.ndarray
+    low_b: np.ndarray
+    inconsistent: np.ndarray
+    no_cov: np.ndarray
+    near_b: np.ndarray
+    near_obs: np.ndarray
+    long_span: np.ndarray
+    floored: np.ndarray
+    ratio: np.ndarray
+    mismatch: np.ndarray
+    bounded: np.ndarray
+    has_region: np.ndarray
+    notable: np.ndarray       # fixes with a reversed, wild or down-weighted bearing
+    attention: np.ndarray     # fixes that need a look whatever their hints and rivals
+
+
+def _facts_of(f: FixFacts) -> _Facts:
+    """:class:`_Facts` of ``f``, worked out on first use and kept with it."""
+    if f.judged is None:
+        f.judged = _work_out(f)
+    return f.judged
+
+
+def _work_out(f: FixFacts) -> _Facts:
+    sol, g = f.sol, f.g
+    m = len(f.counts)
     S, p = consistency(sol, g, m, f.regions)
     ending = sol.ending
-    order = np.argsort(g, kind="stable")
-    starts = np.concatenate(([0], np.cumsum(f.counts)))
     res = sol.residual_deg
     w = sol.weight
     used = w > 0
-    behind_b = used & (np.cos(np.radians(res)) <= 0)
     sd_fix = sol.sd_deg
     with np.errstate(invalid="ignore"):
         wild_b = used & (np.abs(res) > WILD_SD * sd_fix[g])
         reversed_b = np.abs(res) > REVERSED_DEG
         low_b = w < 0.5
-    notable = np.zeros(m, bool)
-    np.logical_or.at(notable, g, wild_b | low_b | reversed_b)
+    notable = np.bincount(g, wild_b | low_b | reversed_b, m) > 0
     regions = f.regions
     bounded = regions.bounded if regions is not None else np.ones(m, bool)
     has_region = regions.has_region if regions is not None else np.ones(m, bool)
@@ -113,8 +200,7 @@ def classify(f: FixFacts):
         far = np.zeros(m)
         np.maximum.at(far, g, np.where(used, sol.range_m, 0.0))
         near_b = used & (sol.range_m < NEAR_OBSERVER * far[g])
-        near_obs = np.zeros(m, bool)
-        np.logical_or.at(near_obs, g, near_b)
+        near_obs = np.bincount(g, near_b, m) > 0
         long_span = (f.gap_min > f.window_min) | (f.span_min > FIX_SPAN_WINDOWS * f.window_min)
         star = regions.star_shaped | ~regions.has_region if regions is not None else np.ones(m, bool)
         attention = (~star | near_obs | long_span | (f.counts < 2) | (f.spread_m < ONE_SPOT_M) | (ending != _E["optimum"])
@@ -122,10 +208,7 @@ def classify(f: FixFacts):
                      | (sol.crossing_deg < SHALLOW_CROSSING_DEG) | notable)
     floored = _floored(sol)
     attention |= floored
-    attention |= np.array([len(r) > 0 for r in f.rejected], bool)
-    attention |= np.isin(np.arange(m), list(f.hints))
-    rivals = f.rivals or {}
-    attention |= np.isin(np.arange(m), list(rivals))
+    attention |= np.fromiter(map(len, f.rejected), np.int64, m) > 0
     if regions is not None:
         with np.errstate(invalid="ignore", divide="ignore"):
             ratio = regions.area_m2 / f.ellipse_area
@@ -134,150 +217,151 @@ def classify(f: FixFacts):
     else:
         ratio = np.full(m, np.nan)
         mismatch = np.zeros(m, bool)
+    return _Facts(S=S, p=p, order=np.argsort(g, kind="stable"), starts=np.concatenate(([0], np.cumsum(f.counts))),
+                  used=used, behind_b=used & (np.cos(np.radians(res)) <= 0), wild_b=wild_b, reversed_b=reversed_b,
+                  low_b=low_b, inconsistent=inconsistent, no_cov=no_cov, near_b=near_b, near_obs=near_obs,
+                  long_span=long_span, floored=floored, ratio=ratio, mismatch=mismatch, bounded=bounded,
+                  has_region=has_region, notable=notable, attention=attention)
 
-    for i in np.flatnonzero(attention):
-        sel = order[starts[i]:starts[i + 1]]
-        n = f.counts[i]
-        end = ENDINGS[ending[i]]
-        flags: list[tuple[str, str]] = []
-        if n < 2:
-            flags.append(("too_few", f"{n} usable bearing{'s' if n != 1 else ''}; a fix needs at least 2"))
-        elif f.spread_m[i] < ONE_SPOT_M:
-            flags.append(("one_spot", f"all {n} bearings were taken from one spot; bearings from one place "
-                                      "cannot cross"))
-        elif end == "parallel":
-            flags.append(("parallel", _parallel_text(sol, sel)))
-        elif end in ("runaway", "singular"):
-            flags.append(("diverging", "the bearing lines do not meet in front of the observers within reach: "
-                                       "the best point runs off along the bearings (they point apart, or are so "
-                                       "nearly parallel that they meet only very far away)"))
-        elif end == "at_station":
-            near = sel[np.argmin(sol.range_m[sel])]
-            flags.append(("on_station", f"the best point creeps onto the observer at line {f.lines[near]}: that "
-                                        "bearing fits only if the transmitter sits on its station, so another "
-                                        "bearing disagrees badly"))
-        elif end == "stalled" and sol.method == "stansfield":
-            flags.append(("no_convergence", "Stansfield's re-weighting comes to rest nowhere near these bearings "
-                                            f"(it stalled from every start tried, {sol.iterations[i]} iterations): "
-                                            "they disagree too much for this method; try --method andrews"))
-        elif end == "stalled":
-            flags.append(("no_convergence", "the fit stalled: no step from its last point improves it "
-                                            f"({sol.iterations[i]} iterations, from every start tried)"))
-        elif end == "max_iter":
-            flags.append(("no_convergence", f"the estimate did not settle after {sol.iterations[i]} iterations"))
-        elif end == "not_optimum":
-            flags.append(("no_optimum", "the fit settled on a point that is not a maximum of the likelihood "
-                                        "(a saddle or a flat valley): the bearings do not pin down a point"))
-        elif end == "collapsed":
-            kept = sel[used[sel]]
-            dropped = sel[~used[sel]]
-            flags.append(("collapsed", f"the robust weights kept only {_lines_text(f.lines[kept])} and dropped "
-                                       f"{_lines_text(f.lines[dropped])}: too few bearings agree to fix a point"))
-        elif sol.behind[i]:
-            back = sel[behind_b[sel]]
-            if sol.n_used[i] == 2:
-                flags.append(("diverging", f"the two lines cross only behind the observer at "
-                                           f"{_lines_text(f.lines[back])}: the bearings point apart"))
-            else:
-                j = back[np.argmax(np.abs(res[back]))]
-                flags.append(("behind", f"the best point lies behind the observer at line {f.lines[j]}: its "
-                                        f"bearing points away from it (misses by {res[j]:+.0f}°)"))
-        elif not sol.converged[i]:
-            flags.append(("no_convergence", f"the estimate did not settle after {sol.iterations[i]} iterations"))
+
+def _judge(f: FixFacts, a: _Facts, i: int, rivals: dict):
+    """Fix ``i``'s status word (None: ok) and its reason texts."""
+    sol, regions = f.sol, f.regions
+    ending, res, w, used = sol.ending, sol.residual_deg, sol.weight, a.used
+    S, p, sd_fix = a.S, a.p, sol.sd_deg
+    behind_b, wild_b, reversed_b, low_b, near_b = a.behind_b, a.wild_b, a.reversed_b, a.low_b, a.near_b
+    inconsistent, no_cov, near_obs, long_span = a.inconsistent, a.no_cov, a.near_obs, a.long_span
+    floored, ratio, mismatch, bounded, has_region = a.floored, a.ratio, a.mismatch, a.bounded, a.has_region
+    word = None
+    texts: list[str] = []
+    sel = a.order[a.starts[i]:a.starts[i + 1]]
+    n = f.counts[i]
+    end = ENDINGS[ending[i]]
+    flags: list[tuple[str, str]] = []
+    if n < 2:
+        flags.append(("too_few", f"{n} usable bearing{'s' if n != 1 else ''}; a fix needs at least 2"))
+    elif f.spread_m[i] < ONE_SPOT_M:
+        flags.append(("one_spot", f"all {n} bearings were taken from one spot; bearings from one place "
+                                  "cannot cross"))
+    elif end == "parallel":
+        flags.append(("parallel", _parallel_text(sol, sel)))
+    elif end in ("runaway", "singular"):
+        flags.append(("diverging", "the bearing lines do not meet in front of the observers within reach: "
+                                   "the best point runs off along the bearings (they point apart, or are so "
+                                   "nearly parallel that they meet only very far away)"))
+    elif end == "at_station":
+        near = sel[np.argmin(sol.range_m[sel])]
+        flags.append(("on_station", f"the best point creeps onto the observer at line {f.lines[near]}: that "
+                                    "bearing fits only if the transmitter sits on its station, so another "
+                                    "bearing disagrees badly"))
+    elif end == "stalled" and sol.method == "stansfield":
+        flags.append(("no_convergence", "Stansfield's re-weighting comes to rest nowhere near these bearings "
+                                        f"(it stalled from every start tried, {sol.iterations[i]} iterations): "
+                                        "they disagree too much for this method; try --method andrews"))
+    elif end == "stalled":
+        flags.append(("no_convergence", "the fit stalled: no step from its last point improves it "
+                                        f"({sol.iterations[i]} iterations, from every start tried)"))
+    elif end == "max_iter":
+        flags.append(("no_convergence", f"the estimate did not settle after {sol.iterations[i]} iterations"))
+    elif end == "not_optimum":
+        flags.append(("no_optimum", "the fit settled on a point that is not a maximum of the likelihood "
+                                    "(a saddle or a flat valley): the bearings do not pin down a point"))
+    elif end == "collapsed":
+        kept = sel[used[sel]]
+        dropped = sel[~used[sel]]
+        flags.append(("collapsed", f"the robust weights kept only {_lines_text(f.lines[kept])} and dropped "
+                                   f"{_lines_text(f.lines[dropped])}: too few bearings agree to fix a point"))
+    elif sol.behind[i]:
+        back = sel[behind_b[sel]]
+        if sol.n_used[i] == 2:
+            flags.append(("diverging", f"the two lines cross only behind the observer at "
+                                       f"{_lines_text(f.lines[back])}: the bearings point apart"))
         else:
-            if inconsistent[i]:
-                if sol.sd_known[i]:
-                    flags.append(("inconsistent",
-                                  f"the bearings disagree more than their SD of {sd_fix[i]:.3g}° allows "
-                                  f"(chi-square {S[i]:.1f} on {sol.dof[i]} degree{'s' if sol.dof[i] != 1 else ''} "
-                                  f"of freedom, p = {p[i]:.1g}): a bearing is wild or the SD is too small"))
+            j = back[np.argmax(np.abs(res[back]))]
+            flags.append(("behind", f"the best point lies behind the observer at line {f.lines[j]}: its "
+                                    f"bearing points away from it (misses by {res[j]:+.0f}°)"))
+    elif not sol.converged[i]:
+        flags.append(("no_convergence", f"the estimate did not settle after {sol.iterations[i]} iterations"))
+    else:
+        if inconsistent[i]:
+            if sol.sd_known[i]:
+                flags.append(("inconsistent",
+                              f"the bearings disagree more than their SD of {sd_fix[i]:.3g}° allows "
+                              f"(chi-square {S[i]:.1f} on {sol.dof[i]} degree{'s' if sol.dof[i] != 1 else ''} "
+                              f"of freedom, p = {p[i]:.1g}): a bearing is wild or the SD is too small"))
+            else:
+                flags.append(("inconsistent",
+                              f"the bearings miss each other widely: their SD is estimated at "
+                              f"{sd_fix[i]:.0f}°, more than the {PLAUSIBLE_SD_DEG:g}° a directional "
+                              "antenna plausibly gives"))
+        if near_obs[i]:
+            j = sel[near_b[sel]][0]
+            flags.append(("near_observer", f"the fix lies {sol.range_m[j]:.0f} m from the observer at line "
+                                           f"{f.lines[j]}, so close that this bearing hardly constrains it "
+                                           "(near its own station a bearing fits almost any point): check "
+                                           "that the transmitter is beside that observer, or take another "
+                                           "bearing"))
+        if sol.crossing_deg[i] < SHALLOW_CROSSING_DEG:
+            what = "the two bearings cross" if sol.n_used[i] == 2 else "the bearing lines spread only"
+            flags.append(("shallow", f"{what} at {sol.crossing_deg[i]:.0f}° (common-practice limit "
+                                     f"{SHALLOW_CROSSING_DEG:.0f}°); the position is weak along the bearings"))
+        if regions is not None and has_region[i] and not bounded[i]:
+            flags.append(("unbounded", f"the {100 * f.level:g}% region is open: it reaches past "
+                                       f"{_km(regions.draw_range_m[i])} along the bearings (drawn to "
+                                       "there), so a transmitter far along them is not ruled out"))
+        if long_span[i]:
+            what = (f"{f.gap_min[i]:.0f} min pass between two of its bearings, more than the "
+                    f"{f.window_min:g}-min window" if f.gap_min[i] > f.window_min else
+                    f"its bearings span {f.span_min[i]:.0f} min, more than {FIX_SPAN_WINDOWS:g} windows of "
+                    f"{f.window_min:g} min")
+            flags.append(("long_span", f"{what}; the transmitter may have moved (if it stays put, as in a "
+                                       "hunt, give a longer --window)"))
+        if i in rivals:
+            flags.append(("ambiguous", _rival_text(rivals[i], f.lines, sol, i)))
+        if not sol.sd_known[i] and sol.dof[i] <= 0:
+            flags.append(("no_region", "two bearings and no known SD: a position but no confidence "
+                                       "region (give sd in the sheet or --sd)"))
+        elif no_cov[i] or (regions is not None and not has_region[i]):
+            flags.append(("no_region", "the covariance of this fix is degenerate: no region can be sized"))
+    if flags:
+        word = flags[0][0]
+        texts.extend(text for _, text in flags)
+    # what each bearing says about the fix (only where the fix is a verified optimum: elsewhere the
+    # residuals are taken at an arbitrary point); most fixes have no such bearing
+    if n >= 2 and sol.converged[i] and a.notable[i]:
+        hinted = " ".join(f.hints.get(i, []))
+        for j in sel[reversed_b[sel]][:3]:
+            if "180°" in hinted:
+                continue             # the hint weighed turning a line against the other explanations
+            texts.append(f"line {f.lines[j]} looks reversed by 180°: it misses by {res[j]:+.0f}° "
+                         "(read from the back of the antenna?); check it and enter it turned by 180°")
+        shown = set(sel[reversed_b[sel]][:3].tolist())
+        for j in sel[wild_b[sel] & ~reversed_b[sel]][:3]:
+            if sol.sd_known[i] or sol.dof[i] >= 1:
+                texts.append(f"line {f.lines[j]} misses by {res[j]:+.1f}° (more than {WILD_SD:g} SD)")
+                shown.add(j)
+        for j in sel[low_b[sel]][:3]:
+            if w[j] <= 0:
+                if j not in shown:
+                    texts.append(f"line {f.lines[j]} dropped by the robust fit (misses by {res[j]:+.0f}°)")
                 else:
-                    flags.append(("inconsistent",
-                                  f"the bearings miss each other widely: their SD is estimated at "
-                                  f"{sd_fix[i]:.0f}°, more than the {PLAUSIBLE_SD_DEG:g}° a directional "
-                                  "antenna plausibly gives"))
-            if near_obs[i]:
-                j = sel[near_b[sel]][0]
-                flags.append(("near_observer", f"the fix lies {sol.range_m[j]:.0f} m from the observer at line "
-                                               f"{f.lines[j]}, so close that this bearing hardly constrains it "
-                                               "(near its own station a bearing fits almost any point): check "
-                                               "that the transmitter is beside that observer, or take another "
-                                               "bearing"))
-            if sol.crossing_deg[i] < SHALLOW_CROSSING_DEG:
-                what = "the two bearings cross" if sol.n_used[i] == 2 else "the bearing lines spread only"
-                flags.append(("shallow", f"{what} at {sol.crossing_deg[i]:.0f}° (common-practice limit "
-                                         f"{SHALLOW_CROSSING_DEG:.0f}°); the position is weak along the bearings"))
-            if regions is not None and has_region[i] and not bounded[i]:
-                flags.append(("unbounded", f"the {100 * f.level:g}% region is open: it reaches past "
-                                           f"{_km(regions.draw_range_m[i])} along the bearings (drawn to "
-                                           "there), so a transmitter far along them is not ruled out"))
-            if long_span[i]:
-                what = (f"{f.gap_min[i]:.0f} min pass between two of its bearings, more than the "
-                        f"{f.window_min:g}-min window" if f.gap_min[i] > f.window_min else
-                        f"its bearings span {f.span_min[i]:.0f} min, more than {FIX_SPAN_WINDOWS:g} windows of "
-                        f"{f.window_min:g} min")
-                flags.append(("long_span", f"{what}; the transmitter may have moved (if it stays put, as in a "
-                                           "hunt, give a longer --window)"))
-            if i in rivals:
-                flags.append(("ambiguous", _rival_text(rivals[i], f.lines, sol, i)))
-            if not sol.sd_known[i] and sol.dof[i] <= 0:
-                flags.append(("no_region", "two bearings and no known SD: a position but no confidence "
-                                           "region (give sd in the sheet or --sd)"))
-            elif no_cov[i] or (regions is not None and not has_region[i]):
-                flags.append(("no_region", "the covariance of this fix is degenerate: no region can be sized"))
-        if flags:
-            status[i] = flags[0][0]
-            reasons[i].extend(text for _, text in flags)
-        # what each bearing says about the fix (only where the fix is a verified optimum: elsewhere the
-        # residuals are taken at an arbitrary point)
-        if n >= 2 and sol.converged[i]:
-            hinted = " ".join(f.hints.get(i, []))
-            for j in sel[reversed_b[sel]][:3]:
-                if "180°" in hinted:
-                    continue             # the hint weighed turning a line against the other explanations
-                reasons[i].append(f"line {f.lines[j]} looks reversed by 180°: it misses by {res[j]:+.0f}° "
-                                  "(read from the back of the antenna?); check it and enter it turned by 180°")
-            shown = set(sel[reversed_b[sel]][:3].tolist())
-            for j in sel[wild_b[sel] & ~reversed_b[sel]][:3]:
-                if sol.sd_known[i] or sol.dof[i] >= 1:
-                    reasons[i].append(f"line {f.lines[j]} misses by {res[j]:+.1f}° (more than {WILD_SD:g} SD)")
-                    shown.add(j)
-            for j in sel[low_b[sel]][:3]:
-                if w[j] <= 0:
-                    if j not in shown:
-                        reasons[i].append(f"line {f.lines[j]} dropped by the robust fit (misses by {res[j]:+.0f}°)")
-                    else:
-                        reasons[i].append(f"line {f.lines[j]} dropped by the robust fit")
-                else:
-                    reasons[i].append(f"line {f.lines[j]} down-weighted to {w[j]:.2f}")
-        reasons[i].extend(f.hints.get(i, []))
-        if floored[i]:
-            reasons[i].append(_floor_text(sol, i, f.step_deg))
-        if regions is not None and has_region[i] and not regions.star_shaped[i]:
-            reasons[i].append("the region is not star-shaped about its centre: a ray leaves it and comes back; "
-                              "it is drawn as its outer envelope")
-        if mismatch[i] and status[i] in ("ok", "shallow", "long_span", "inconsistent"):
-            reasons[i].append(f"the ellipse is a poor summary here: the likelihood region is {ratio[i]:.1f}x its "
-                              "area (use the region)")
-        rej = f.rejected[i]
-        if rej:
-            reasons[i].append("rejected input line" + ("s " if len(rej) > 1 else " ")
-                              + ", ".join(str(x) for x in rej[:8]) + (" ..." if len(rej) > 8 else ""))
-        reasons[i] = [r for r in reasons[i] if r]
-    # an SD estimated from three or four bearings: the region allows for it, but a measured SD gives a far smaller
-    # one, and with four the bounded regions (the ok fixes) are the ones whose estimate came out small
-    with np.errstate(invalid="ignore"):
-        few_dof = ~sol.sd_known & np.isin(status, WITH_POSITION) & (status != "no_region")
-        one_dof, two_dof = few_dof & (sol.dof == 1), few_dof & (sol.dof == 2)
-    for i in np.flatnonzero(one_dof):
-        reasons[i].append(ONE_DOF_TEXT)
-    for i in np.flatnonzero(two_dof):
-        reasons[i].append(TWO_DOF_TEXT)
-    with np.errstate(invalid="ignore"):
-        three = sol.sd_known & (sol.n_used == 3) & (status == "ok")
-    for i in np.flatnonzero(three):
-        reasons[i].append(THREE_TEXT)
-    return status, reasons
+                    texts.append(f"line {f.lines[j]} dropped by the robust fit")
+            else:
+                texts.append(f"line {f.lines[j]} down-weighted to {w[j]:.2f}")
+    texts.extend(f.hints.get(i, []))
+    if floored[i]:
+        texts.append(_floor_text(sol, i, f.step_deg))
+    if regions is not None and has_region[i] and not regions.star_shaped[i]:
+        texts.append("the region is not star-shaped about its centre: a ray leaves it and comes back; "
+                     "it is drawn as its outer envelope")
+    if mismatch[i] and (word or "ok") in ("ok", "shallow", "long_span", "inconsistent"):
+        texts.append(f"the ellipse is a poor summary here: the likelihood region is {ratio[i]:.1f}x its "
+                     "area (use the region)")
+    rej = f.rejected[i]
+    if rej:
+        texts.append("rejected input line" + ("s " if len(rej) > 1 else " ")
+                     + ", ".join(str(x) for x in rej[:8]) + (" ..." if len(rej) > 8 else ""))
+    return word, texts
 
 
 #: Said of every ok fix from three bearings with a known SD. Measured with benchmarks/coverage.py --n 3 --only
