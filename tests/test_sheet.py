@@ -6,7 +6,7 @@ import re
 
 import numpy as np
 import pytest
-from hypothesis import HealthCheck, given, settings
+from hypothesis import HealthCheck, assume, given, settings
 from hypothesis import strategies as st
 
 import dfkit
@@ -267,6 +267,9 @@ def test_reader_never_crashes_and_nothing_vanishes(tmp_path, cols, rows, delimit
     if len(cols) == 1:
         delimiter = ","     # a one-column header shows no delimiter; the reader then takes the comma
     text, starts = _written(cols, rows, delimiter)
+    # A comment is one line (README: "a line whose very first character is #"), so a '#' row holding a line
+    # break inside a quoted cell is not one row of the model: its comment ends at that break.
+    assume(not any(t.startswith("#") and _BREAK.search(t[:-2]) for _, t in starts))
     p = tmp_path / "fuzz.csv"
     p.write_text(text, encoding="utf-8")
     try:
@@ -463,3 +466,18 @@ def test_a_header_that_starts_with_a_hash_is_named_as_read_as_a_comment(write_sh
     sheet = write_sheet("#,lat,lon,bearing,sd\n1,47,15,45,3\n1,47,15.02,315,3\n")
     with pytest.raises(SheetError, match="line 1 starts with '#' and was read as a comment"):
         read_bearings(sheet)
+
+
+def test_a_comment_ends_at_its_first_line_break_even_inside_quotes(tmp_path):
+    # README, "Comments": a comment is a *line* starting with '#'. A '#' row written with a quoted line break
+    # ('#,,,,"<CR>"') is therefore a comment up to the bare CR (line 5); what follows is read by the quote rules:
+    # line 6 opens a quote that closes on line 7 (one row, line 6) and line 8 opens one never closed (a row on
+    # line 8). Every line after the comment reaches a row that is used or rejected with its line number.
+    p = tmp_path / "hash_row.csv"
+    p.write_bytes(b'fix,tag,time,bearing,utm_zone\r\n,,,,\r\n,,,,\r\n,,,,\r\n#,,,,"\r"\r\n,,,"\n",0\r\n')
+    raw = read_sheet(p)
+    assert raw.comment_lines == [5] and raw.blank_lines == [2, 3, 4]
+    assert raw.table["line"].tolist() == [6, 8]
+    b = read_bearings(p)
+    assert len(b.table) == 0
+    assert {pr.line for pr in b.problems if pr.severity == "error"} == {6, 8}
