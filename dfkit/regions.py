@@ -669,11 +669,11 @@ class _Rays:
         return (cross.sum(0) > T).ravel()
 
 
-def _model_root(r, f, df, gap):
-    """Where the cubic c2 rho^2 + c3 rho^3 reaches ``gap``: the model of S - S_min along a ray that is flat at the
-    centre (S's minimum) and has S - T = f and slope df at radius r. A Newton step, then two Newton steps on the
-    model: the model's error is of fourth order in the distance to r, so near the edge its root is the edge's to
-    far below the search's tolerance."""
+def _model_roots(r, f, df, gap, curv):
+    """Where two models of S - S_min along a ray reach ``gap``, as radii: both are flat at the centre (S's minimum)
+    and have S - T = f and slope df at radius r; the cubic c2 rho^2 + c3 rho^3, and the quartic that also has
+    S's curvature at the centre, ``curv`` rho^2 + c3 rho^3 + c4 rho^4 (NaN where that is not known). Each root
+    by Newton's method: a step on f, two on the cubic, two on the quartic from the cubic's root."""
     with np.errstate(divide="ignore", invalid="ignore", over="ignore"):
         g = f + gap
         s = df * r
@@ -681,20 +681,27 @@ def _model_root(r, f, df, gap):
         x = 1.0 - f / s
         for _ in range(2):
             x -= ((c2 + c3 * x) * x * x - gap) / ((2.0 * c2 + 3.0 * c3 * x) * x)
-    return r * x
+        q2 = curv * r * r
+        q3, q4 = 4.0 * g - 2.0 * q2 - s, q2 + s - 3.0 * g
+        y = x.copy()
+        for _ in range(2):
+            y -= (((q4 * y + q3) * y + q2) * y * y - gap) / (((4.0 * q4 * y + 3.0 * q3) * y + 2.0 * q2) * y)
+    return r * x, r * y
 
 
-def _edges(rays, rho, R, gap):
-    """The edge S = T on every ray (flat arrays: first guesses, drawing ranges, gaps T - S_min).
+def _edges(rays, rho, R, gap, curv):
+    """The edge S = T on every ray (flat arrays: first guesses, drawing ranges, gaps T - S_min, S's curvature
+    along the ray at the centre or NaN).
 
     A safeguarded search keeping a bracket [lo, hi] with f(lo) < 0 < f(hi): each step goes to the root of the
-    cubic model (:func:`_model_root`), else Newton's, else bisects (or doubles towards the drawing range). A ray
-    is settled at the model's root without a further evaluation when |f| <= NEAR_QUADRATIC of the gap and the
-    root is within 1 % of the radius (the model's error is then of the order of 1e-8 of the radius); it is done
-    where it stands when |f| <= 1e-3 of the gap and Newton's step is within 5e-4 of the radius, when the
-    bracket is within 1e-5 of the radius, or when it reaches the drawing range still inside. While many rays
-    are left, all of them are evaluated as whole (bearings, fixes, rays) arrays, cheaper than gathering them.
-    Returns the radii and f at them (0 where settled by the model).
+    quartic model or else the cubic one (:func:`_model_roots`), else Newton's, else bisects (or doubles towards
+    the drawing range). A ray is settled at the quartic's root without a further evaluation when the two models'
+    roots agree to 1e-4 of the radius, f within 30 % of the gap; or at the cubic's root when |f| <= NEAR_QUADRATIC
+    of the gap and the root is within 1 % of the radius (the models' errors are then far below the search's
+    tolerance). It is done where it stands when |f| <= 1e-3 of the gap and Newton's step is within 5e-4 of the
+    radius, when the bracket is within 1e-5 of the radius, or when it reaches the drawing range still inside.
+    While many rays are left, all of them are evaluated as whole (bearings, fixes, rays) arrays, cheaper than
+    gathering them. Returns the radii and f at them (0 where settled by a model).
     """
     lo = np.zeros_like(rho)
     hi = np.full_like(rho, np.inf)
@@ -703,28 +710,34 @@ def _edges(rays, rho, R, gap):
     for _ in range(60):
         if not len(live):
             break
-        r, lo_l, hi_l, R_l, gap_l = rho[live], lo[live], hi[live], R[live], gap[live]
+        at = slice(None) if len(live) == len(rho) else live
+        r, lo_l, hi_l, R_l, gap_l = rho[at], lo[at], hi[at], R[at], gap[at]
         if len(live) >= WHOLE_BATCH * len(rho):
-            f, df = (a[live] for a in rays.f(rho))
+            f, df = (a[at] for a in rays.f(rho))
         else:
             f, df = rays.f(r, live)
         neg = f < 0
         lo_l = np.where(neg, np.maximum(lo_l, r), lo_l)
         hi_l = np.where(neg, hi_l, np.minimum(hi_l, r))
         top = np.minimum(hi_l, R_l)
-        model = _model_root(r, f, df, gap_l)
+        cubic, quartic = _model_roots(r, f, df, gap_l, curv[at])
         with np.errstate(divide="ignore", invalid="ignore"):
             newton = r - f / df
-        model_in = (model > lo_l) & (model < top)          # False for NaN
-        small = np.abs(f) <= 1e-3 * gap_l
-        settle = model_in & (np.abs(f) <= NEAR_QUADRATIC * gap_l) & (np.abs(model - r) <= 1e-2 * r)
-        done = (settle | (small & (np.abs(f) <= 5e-4 * df * r)) | (hi_l - lo_l <= 1e-5 * r)
+        cubic_in = (cubic > lo_l) & (cubic < top)          # False for NaN
+        quartic_in = (quartic > lo_l) & (quartic < top)
+        af = np.abs(f)
+        by_quartic = (quartic_in & (np.abs(quartic - cubic) <= 1e-4 * quartic) & (af <= 0.15 * gap_l)
+                      & (np.abs(df * r - 2.0 * (f + gap_l)) <= 0.25 * (f + gap_l)))
+        by_cubic = cubic_in & (af <= NEAR_QUADRATIC * gap_l) & (np.abs(cubic - r) <= 1e-2 * r)
+        settle = by_quartic | by_cubic
+        done = (settle | ((af <= 1e-3 * gap_l) & (af <= 5e-4 * df * r)) | (hi_l - lo_l <= 1e-5 * r)
                 | (neg & (r >= R_l)))
         step = np.where(np.isfinite(hi_l), 0.5 * (lo_l + hi_l), np.minimum(2.0 * r, R_l))
-        step = np.where(model_in, model, np.where((newton > lo_l) & (newton < top), newton, step))
-        rho[live] = np.where(settle, model, np.where(done, r, step))
-        f_at[live] = np.where(settle, 0.0, f)
-        lo[live], hi[live] = lo_l, hi_l
+        step = np.where(quartic_in, quartic, np.where(cubic_in, cubic,
+                                                      np.where((newton > lo_l) & (newton < top), newton, step)))
+        rho[at] = np.where(by_quartic, quartic, np.where(by_cubic, cubic, np.where(done, r, step)))
+        f_at[at] = np.where(settle, 0.0, f)
+        lo[at], hi[at] = lo_l, hi_l
         live = live[~done]
     return rho, f_at
 
@@ -768,8 +781,9 @@ def _march(sx, sy, phi, v, known, dof, kdof, floor, level, psi, draw, fix_lat, f
         rho = np.sqrt((T - s_min)[:, None] / quad)
     R = draw[:, None] * np.ones((1, K))
     rho = np.where(np.isfinite(rho) & (rho > 0), np.minimum(rho, 0.5 * R), 0.5 * R)
+    curv = np.where(_positive(H)[:, None], quad, np.nan)
     rays = _Rays(trig, sx, sy, v, cx, cy, T, psi)
-    rho, f = _edges(rays, rho.ravel(), R.ravel(), np.repeat(T - s_min, K))
+    rho, f = _edges(rays, rho.ravel(), R.ravel(), np.repeat(T - s_min, K), curv.ravel())
     rho, f = rho.reshape(M, K), f.reshape(M, K)
     open_ray = (f < 0) & (rho >= R * (1 - 1e-9))
     rho = np.where(open_ray, R, rho)
