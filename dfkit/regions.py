@@ -548,7 +548,7 @@ def _minimum(trig, sx, sy, v, iterations=20):
 
     The fix is the minimum of the geodesic S, so the plane's minimum is close and Newton's method (the full
     Hessian where it is positive definite, else Gauss-Newton's matrix) settles in two or three steps; a step is
-    accepted only if S does not grow, else halved. Returns x, y, S and, at the minimum, Gauss-Newton's matrix
+    accepted only if S does not grow, else halved; a fix is done when its next step would be under 1e-6 m. Returns x, y, S and, at the minimum, Gauss-Newton's matrix
     and half the Hessian, each (M, 3) as (11, 12, 22).
     """
     M = sx.shape[0]
@@ -560,6 +560,10 @@ def _minimum(trig, sx, sy, v, iterations=20):
             break
         hl = H[live]
         step = np.where(_positive(hl)[:, None], _solve2(hl, b[live]), _solve2(J[live], b[live]))
+        far = np.hypot(step[:, 0], step[:, 1]) > 1e-6      # a step shorter than that would change nothing
+        live, step = live[far], step[far]
+        if not len(live):
+            break
         lam = np.ones(len(live))
         trying = np.arange(len(live))
         accepted = np.zeros(len(live), bool)
