@@ -643,7 +643,8 @@ class _Rays:
         return cross, dot, v, T, E
 
     def f(self, rho, i=None):
-        """f = S - T and its derivative in rho at radius ``rho`` on rays ``i`` (flat indices; None: all)."""
+        """f = S - T and its derivative in rho at radius ``rho`` on rays ``i`` (flat indices; None: all), and the
+        largest move along each ray within which no residual can wrap past pi (where S may jump)."""
         cross, dot, v, T, E = self._offsets(rho, i)
         r = _angle(cross, dot)
         vr = v * r
@@ -657,9 +658,13 @@ class _Rays:
         dot *= dot
         cross += dot
         np.maximum(cross, 1e-18, out=cross)
+        # how far the point may move before a residual can wrap past pi: a move of s turns the direction from a
+        # station at distance |d| by at most s / (|d| - s)
+        room = np.pi - np.abs(r)
+        safe = np.where(v > 0, room * np.sqrt(cross) / (1.0 + room), np.inf).min(axis=0)
         np.divide(E, cross, out=cross)
         cross *= vr
-        return f.ravel(), 2.0 * cross.sum(0).ravel()
+        return f.ravel(), 2.0 * cross.sum(0).ravel(), safe.ravel()
 
     def above(self, rho):
         """Whether S > T at radius ``rho`` on every ray, shown without arctan: r^2 >= sin^2 r =
@@ -699,7 +704,7 @@ def _edges(rays, rho, R, gap, curv):
 
     A safeguarded search keeping a bracket [lo, hi] with f(lo) < 0 < f(hi): each step goes to the root of the
     quartic model or else the cubic one (:func:`_model_roots`), else Newton's, else bisects (or doubles towards
-    the drawing range). A ray is settled at the quartic's root without a further evaluation when the two models'
+    the drawing range), and bisects a bracket that has not halved in a step. A ray is settled at the quartic's root without a further evaluation when the two models'
     roots agree to 1e-4 of the radius, f within 30 % of the gap; or at the cubic's root when |f| <= NEAR_QUADRATIC
     of the gap and the root is within 1 % of the radius (the models' errors are then far below the search's
     tolerance). It is done where it stands when |f| <= 1e-3 of the gap and Newton's step is within 5e-4 of the
@@ -710,6 +715,7 @@ def _edges(rays, rho, R, gap, curv):
     lo = np.zeros_like(rho)
     hi = np.full_like(rho, np.inf)
     f_at = np.zeros_like(rho)
+    width = np.full_like(rho, np.inf)
     live = np.arange(len(rho))
     for _ in range(60):
         if not len(live):
@@ -717,9 +723,9 @@ def _edges(rays, rho, R, gap, curv):
         at = slice(None) if len(live) == len(rho) else live
         r, lo_l, hi_l, R_l, gap_l = rho[at], lo[at], hi[at], R[at], gap[at]
         if len(live) >= WHOLE_BATCH * len(rho):
-            f, df = (a[at] for a in rays.f(rho))
+            f, df, safe = (a[at] for a in rays.f(rho))
         else:
-            f, df = rays.f(r, live)
+            f, df, safe = rays.f(r, live)
         neg = f < 0
         lo_l = np.where(neg, np.maximum(lo_l, r), lo_l)
         hi_l = np.where(neg, hi_l, np.minimum(hi_l, r))
@@ -733,12 +739,18 @@ def _edges(rays, rho, R, gap, curv):
         by_quartic = (quartic_in & (np.abs(quartic - cubic) <= 1e-4 * quartic) & (af <= 0.15 * gap_l)
                       & (np.abs(df * r - 2.0 * (f + gap_l)) <= 0.25 * (f + gap_l)))
         by_cubic = cubic_in & (af <= NEAR_QUADRATIC * gap_l) & (np.abs(cubic - r) <= 1e-2 * r)
+        by_quartic &= np.abs(quartic - r) < safe
+        by_cubic &= np.abs(cubic - r) < safe
         settle = by_quartic | by_cubic
         done = (settle | ((af <= 1e-3 * gap_l) & (af <= 5e-4 * df * r)) | (hi_l - lo_l <= 1e-5 * r)
                 | (neg & (r >= R_l)))
+        # a bracket (lo > 0, hi finite) that has not halved since the last one is bisected
+        w = np.where((lo_l > 0) & np.isfinite(hi_l), hi_l - lo_l, np.inf)
+        slow = np.isfinite(w) & (w > 0.5 * width[at])
+        width[at] = w
         step = np.where(np.isfinite(hi_l), 0.5 * (lo_l + hi_l), np.minimum(2.0 * r, R_l))
-        step = np.where(quartic_in, quartic, np.where(cubic_in, cubic,
-                                                      np.where((newton > lo_l) & (newton < top), newton, step)))
+        step = np.where(slow, step, np.where(quartic_in, quartic, np.where(cubic_in, cubic, np.where(
+            (newton > lo_l) & (newton < top), newton, step))))
         rho[at] = np.where(by_quartic, quartic, np.where(by_cubic, cubic, np.where(done, r, step)))
         f_at[at] = np.where(settle, 0.0, f)
         lo[at], hi[at] = lo_l, hi_l
@@ -756,7 +768,7 @@ def _star_check(rays, trig, sx, sy, v, cx, cy, T, rho, open_ray, R, ux, uy):
     doubt = np.flatnonzero(~open_ray.ravel() & (probe > rho.ravel() * 1.0001) & ~rays.above(probe))
     if not len(doubt):
         return star
-    fp, _ = rays.f(probe[doubt], doubt)
+    fp = rays.f(probe[doubt], doubt)[0]
     back = np.zeros(M * K, bool)
     back[doubt] = fp < 0
     back = back.reshape(M, K)
@@ -769,6 +781,27 @@ def _star_check(rays, trig, sx, sy, v, cx, cy, T, rho, open_ray, R, ux, uy):
         rho[rows] = np.where(b, new, rho[rows])
         open_ray[rows] |= b & still_open
     return star
+
+
+def _s_at_infinity(rays, phi, v, psi, T):
+    """The least plane limit of S far out, sum v wrap(phi - psi)^2, over the rays' directions and the bearings'
+    mean direction. Where sum v sin^2(phi - psi) (no larger) already reaches T on every ray, only the mean
+    direction is computed."""
+    M = phi.shape[0]
+    c = (v * np.cos(phi)).sum(1)
+    s = (v * np.sin(phi)).sum(1)
+    mean = np.arctan2(s, c)[:, None]
+
+    def limit(r, w):
+        r -= _TWO_PI * np.rint(r * (1.0 / _TWO_PI))        # wrapped to [-pi, pi] (only its square is used)
+        return (w[:, :, None] * r * r).sum(1).min(axis=1)
+
+    s_inf = limit(phi[:, :, None] - mean[:, None, :], v)
+    B = rays.B.reshape(rays.n, M, -1)
+    low = ((rays.v[:, :, None] * B * B).sum(0).min(axis=1) < T) & (s_inf >= T)
+    if low.any():
+        s_inf[low] = np.minimum(s_inf[low], limit(phi[low][:, :, None] - psi[None, None, :], v[low]))
+    return s_inf
 
 
 def _march(sx, sy, phi, v, known, dof, kdof, floor, level, psi, draw, fix_lat, fix_lon, *, station_lat, station_lon,
@@ -792,13 +825,7 @@ def _march(sx, sy, phi, v, known, dof, kdof, floor, level, psi, draw, fix_lat, f
     open_ray = (f < 0) & (rho >= R * (1 - 1e-9))
     rho = np.where(open_ray, R, rho)
     star = _star_check(rays, trig, sx, sy, v, cx, cy, T, rho, open_ray, R, ux, uy)
-    # Open at infinity: the plane limit of S far along direction psi is sum v wrap(phi - psi)^2.
-    c = (v * trig[1]).sum(1)
-    s = (v * trig[0]).sum(1)
-    dirs = np.concatenate([np.broadcast_to(psi, (M, len(psi))), np.arctan2(s, c)[:, None]], axis=1)
-    r_inf = phi[:, :, None] - dirs[:, None, :]
-    r_inf -= _TWO_PI * np.rint(r_inf * (1.0 / _TWO_PI))        # wrapped to [-pi, pi] (only its square is used)
-    s_inf = (v[:, :, None] * r_inf * r_inf).sum(1).min(axis=1)
+    s_inf = _s_at_infinity(rays, phi, v, psi, T)
     bounded = ~open_ray.any(axis=1) & (s_inf >= T)
     res = dict(centre_x=cx, centre_y=cy, radius_m=rho, bounded=bounded, star_shaped=star, s_min=s_min,
                threshold=T)
