@@ -248,6 +248,8 @@ NEAR_QUADRATIC = 1e-2
 #: Fixes whose plane residuals may differ from geodesic ones by more than this fraction of a bearing SD
 #: at the region's edge are refined with exact geodesic residuals.
 PLANE_TOLERANCE = 0.01
+#: While at least this share of a batch's rays is searched, all of them are evaluated as whole arrays.
+WHOLE_BATCH = 0.3
 _EARTH_R = 6_371_000.0
 _TWO_PI = 2.0 * np.pi
 
@@ -486,10 +488,26 @@ def likelihood_regions(fix_lat, fix_lon, g, station_lat, station_lon, bearing_de
         weight=np.where(ok[g], weight, 0.0))
 
 
+def _angle(y, x):
+    """arctan2(y, x) as arctan(y / x), turned by pi where x < 0: the same angle to an ulp or two, and about twice
+    as fast (numpy's arctan is vectorised, its arctan2 not). NaN where x = y = 0 (arctan2 gives 0)."""
+    with np.errstate(divide="ignore", invalid="ignore"):
+        r = np.arctan(y / x)
+    back = np.signbit(x)
+    if back.any():
+        r[back] += np.copysign(np.pi, y[back])
+    return r
+
+
 def _residual(sp, cp, dx, dy):
     """Signed angle from the direction (dx, dy) to the observed direction phi [rad], without wrapping
     (``sp``, ``cp`` the sine and cosine of phi, computed once per batch)."""
-    return np.arctan2(sp * dy - cp * dx, sp * dx + cp * dy)
+    y, x = sp * dy - cp * dx, sp * dx + cp * dy
+    r = _angle(y, x)
+    bad = np.isnan(r)
+    if bad.any():                 # a point on a station
+        r[bad] = np.arctan2(y[bad], x[bad])
+    return r
 
 
 def _at(trig, sx, sy, px, py):
@@ -501,40 +519,51 @@ def _at(trig, sx, sy, px, py):
     return dx, dy, d2, _residual(trig[0], trig[1], dx, dy), dy / d2, -dx / d2
 
 
-def _s_and_grad(trig, sx, sy, v, px, py):
-    """S at one point per fix (px, py), with the Gauss-Newton gradient terms. Bearings are (M, n)."""
-    _, _, _, r, gx, gy = _at(trig, sx, sy, px, py)
-    vr = v * r
-    return ((vr * r).sum(1), (vr * gx).sum(1), (vr * gy).sum(1), (v * gx * gx).sum(1), (v * gx * gy).sum(1),
-            (v * gy * gy).sum(1))
-
-
-def _hessian(trig, sx, sy, v, px, py):
-    """Half the Hessian of S at (px, py): sum v (g g^T - r dg/dP), dg/dP = [[-2xy, x2-y2], [x2-y2, 2xy]]/d^4."""
+def _local(trig, sx, sy, v, px, py):
+    """S at one point per fix (px, py), half its gradient's negative b, Gauss-Newton's matrix J = sum v g g^T
+    and half the Hessian H = J - sum v r dg/dP, dg/dP = [[-2xy, x2-y2], [x2-y2, 2xy]]/d^4 (bearings (M, n))."""
     dx, dy, d2, r, gx, gy = _at(trig, sx, sy, px, py)
-    k = v * r / (d2 * d2)
-    return ((v * gx * gx + 2 * k * dx * dy).sum(1), (v * gx * gy - k * (dx * dx - dy * dy)).sum(1),
-            (v * gy * gy - 2 * k * dx * dy).sum(1))
+    vr = v * r
+    j11, j12, j22 = (v * gx * gx).sum(1), (v * gx * gy).sum(1), (v * gy * gy).sum(1)
+    k = vr / (d2 * d2)
+    kxy, kxx = (k * dx * dy).sum(1), (k * (dx * dx - dy * dy)).sum(1)
+    return ((vr * r).sum(1), np.stack([(vr * gx).sum(1), (vr * gy).sum(1)], 1), np.stack([j11, j12, j22], 1),
+            np.stack([j11 + 2 * kxy, j12 - kxx, j22 - 2 * kxy], 1))
+
+
+def _solve2(m, b):
+    """m^-1 b for symmetric 2x2 matrices m = (m11, m12, m22) (rows), 0 where singular."""
+    det = m[:, 0] * m[:, 2] - m[:, 1] ** 2
+    with np.errstate(divide="ignore", invalid="ignore"):
+        st = np.stack([m[:, 2] * b[:, 0] - m[:, 1] * b[:, 1], m[:, 0] * b[:, 1] - m[:, 1] * b[:, 0]], 1) / det[:, None]
+    return np.where(np.isfinite(st), st, 0.0)
+
+
+def _positive(m):
+    return (m[:, 0] > 0) & (m[:, 0] * m[:, 2] - m[:, 1] ** 2 > 0)
 
 
 def _minimum(trig, sx, sy, v, iterations=20):
-    """Gauss-Newton on S from the fix (the origin), each step accepted only if S does not grow."""
+    """The minimum of S in the plane, from the fix (the origin).
+
+    The fix is the minimum of the geodesic S, so the plane's minimum is close and Newton's method (the full
+    Hessian where it is positive definite, else Gauss-Newton's matrix) settles in two or three steps; a step is
+    accepted only if S does not grow, else halved; a fix is done when its next step would be under 1e-6 m. Returns x, y, S and, at the minimum, Gauss-Newton's matrix
+    and half the Hessian, each (M, 3) as (11, 12, 22).
+    """
     M = sx.shape[0]
-    x = np.zeros(M)
-    y = np.zeros(M)
-    S, b1, b2, j11, j12, j22 = _s_and_grad(trig, sx, sy, v, x, y)
-    J = np.stack([j11, j12, j22], 1)
+    P = np.zeros((M, 2))
+    S, b, J, H = _local(trig, sx, sy, v, P[:, 0], P[:, 1])
     live = np.arange(M)
     for _ in range(iterations):
         if not len(live):
             break
-        b1l, b2l, jl = b1[live], b2[live], J[live]
-        det = jl[:, 0] * jl[:, 2] - jl[:, 1] ** 2
-        with np.errstate(divide="ignore", invalid="ignore"):
-            stx = (jl[:, 2] * b1l - jl[:, 1] * b2l) / det
-            sty = (jl[:, 0] * b2l - jl[:, 1] * b1l) / det
-        stx = np.where(np.isfinite(stx), stx, 0.0)
-        sty = np.where(np.isfinite(sty), sty, 0.0)
+        hl = H[live]
+        step = np.where(_positive(hl)[:, None], _solve2(hl, b[live]), _solve2(J[live], b[live]))
+        far = np.hypot(step[:, 0], step[:, 1]) > 1e-6      # a step shorter than that would change nothing
+        live, step = live[far], step[far]
+        if not len(live):
+            break
         lam = np.ones(len(live))
         trying = np.arange(len(live))
         accepted = np.zeros(len(live), bool)
@@ -542,156 +571,261 @@ def _minimum(trig, sx, sy, v, iterations=20):
             if not len(trying):
                 break
             rows = live[trying]
-            out = _s_and_grad(_rows(trig, rows), sx[rows], sy[rows], v[rows], x[rows] + lam[trying] * stx[trying],
-                              y[rows] + lam[trying] * sty[trying])
+            new = P[rows] + lam[trying, None] * step[trying]
+            out = _local(_rows(trig, rows), sx[rows], sy[rows], v[rows], new[:, 0], new[:, 1])
             ok = out[0] <= S[rows] * (1 + 1e-12) + 1e-300
-            acc = trying[ok]
-            ra = live[acc]
-            x[ra] += lam[acc] * stx[acc]
-            y[ra] += lam[acc] * sty[acc]
-            S[ra], b1[ra], b2[ra] = out[0][ok], out[1][ok], out[2][ok]
-            J[ra] = np.stack([o[ok] for o in out[3:]], 1)
-            accepted[acc] = True
+            ra = rows[ok]
+            P[ra] = new[ok]
+            S[ra], b[ra], J[ra], H[ra] = out[0][ok], out[1][ok], out[2][ok], out[3][ok]
+            accepted[trying[ok]] = True
             trying = trying[~ok]
             lam[trying] *= 0.5
-        moved = np.where(accepted, lam * np.hypot(stx, sty), 0.0)
+        moved = np.where(accepted, lam * np.hypot(step[:, 0], step[:, 1]), 0.0)
         live = live[accepted & (moved > 1e-6)]
-    return x, y, S, J[:, 0], J[:, 1], J[:, 2]
+    return P[:, 0], P[:, 1], S, J, H
 
 
 def _rows(trig, rows):
     return trig[0][rows], trig[1][rows]
 
 
-def _ray_f(trig, sx, sy, v, cx, cy, rho, ux, uy, T, derivative=True):
-    """f = S - T along every ray, shape (M, K), and its derivative in rho. Bearings are (M, n)."""
+def _ray_f(trig, sx, sy, v, cx, cy, rho, ux, uy, T):
+    """f = S - T along every ray, shape (M, K), bearings (M, n) (the rare search for a last crossing)."""
     px = (cx[:, None] + rho * ux)[:, None, :]
     py = (cy[:, None] + rho * uy)[:, None, :]
-    dx = px - sx[:, :, None]
-    dy = py - sy[:, :, None]
-    r = _residual(trig[0][:, :, None], trig[1][:, :, None], dx, dy)
-    vr = v[:, :, None] * r
-    f = (vr * r).sum(1) - T[:, None]
-    if not derivative:
-        return f, None
-    d2 = np.maximum(dx * dx + dy * dy, 1e-18)
-    dbeta = (dy * ux[:, None, :] - dx * uy[:, None, :]) / d2
-    return f, -2.0 * (vr * dbeta).sum(1)
+    r = _residual(trig[0][:, :, None], trig[1][:, :, None], px - sx[:, :, None], py - sy[:, :, None])
+    return (v[:, :, None] * r * r).sum(1) - T[:, None]
 
 
 class _Rays:
-    """Single rays (fix j, ray k) of a batch, evaluated without the other rays of their fixes.
+    """The rays of a batch (fix j, ray k; ray i = j K + k) as functions of the radius rho.
 
-    The bearings are held transposed, (n, M), so that a ray's sum over its bearings adds them in the same
-    order as :func:`_ray_f` does (the same floating-point result, bit for bit).
+    With a = centre - station (per bearing), u = (sin psi, cos psi) the ray's direction and phi the observed
+    direction, the point's offset from the station is d = a + rho u and the bearing's residual is
+    atan2(A + rho B, C + rho D) with A = a x phi, C = a . phi, B = sin(phi - psi), D = cos(phi - psi) (phi taken
+    as the unit vector (sin phi, cos phi)); its derivative in rho is E / |d|^2 with E = a_x u_y - a_y u_x, the
+    same all along the ray. A and C are held (n, M), B, D and E (n, M K): a sum over the bearings adds rows.
     """
 
-    def __init__(self, trig, sx, sy, v, cx, cy, T, ux, uy):
-        self.sp, self.cp, self.sx, self.sy, self.v = (np.ascontiguousarray(a.T) for a in (*trig, sx, sy, v))
-        self.cx, self.cy, self.T, self.ux, self.uy = cx, cy, T, ux[0], uy[0]
+    def __init__(self, trig, sx, sy, v, cx, cy, T, psi):
+        sp, cp = (np.ascontiguousarray(t.T) for t in trig)
+        ax = cx[None, :] - sx.T
+        ay = cy[None, :] - sy.T
+        su, cu = np.sin(psi), np.cos(psi)
+        self.n, self.M, self.K = sp.shape[0], sp.shape[1], len(psi)
+        flat = (self.n, self.M * self.K)
+        self.A, self.C = sp * ay - cp * ax, sp * ax + cp * ay
+        self.B = (sp[:, :, None] * cu - cp[:, :, None] * su).reshape(flat)
+        self.D = (sp[:, :, None] * su + cp[:, :, None] * cu).reshape(flat)
+        self.E = (ax[:, :, None] * cu - ay[:, :, None] * su).reshape(flat)
+        self.v = np.ascontiguousarray(v.T)
+        self.T = T
 
-    def f(self, j, k, rho):
-        """f = S - T and its derivative in rho at radius ``rho`` on ray k of fix j (arrays of rays)."""
-        ux, uy = self.ux[k], self.uy[k]
-        dx = (self.cx[j] + rho * ux)[None, :] - self.sx[:, j]
-        dy = (self.cy[j] + rho * uy)[None, :] - self.sy[:, j]
-        r = _residual(self.sp[:, j], self.cp[:, j], dx, dy)
-        vr = self.v[:, j] * r
-        f = (vr * r).sum(0) - self.T[j]
-        d2 = np.maximum(dx * dx + dy * dy, 1e-18)
-        dbeta = (dy * ux - dx * uy) / d2
-        return f, -2.0 * (vr * dbeta).sum(0)
+    def _parts(self, i):
+        """(A, C, v, T) of the rays' fixes and (B, D, E) of the rays, shaped to broadcast to (n, rays) or,
+        for every ray (``i`` None), to (n, M, K)."""
+        if i is None:
+            n, M, K = self.n, self.M, self.K
+            return (self.A[:, :, None], self.C[:, :, None], self.v[:, :, None], self.T[:, None],
+                    *(a.reshape(n, M, K) for a in (self.B, self.D, self.E)))
+        j = i // self.K
+        return self.A[:, j], self.C[:, j], self.v[:, j], self.T[j], self.B[:, i], self.D[:, i], self.E[:, i]
+
+    def _offsets(self, rho, i):
+        """(cross, dot) = |d| (sin r, cos r) of every bearing at radius ``rho``, the parts of the rays, their
+        weights and bounds, shaped (n, rays) or (n, M, K)."""
+        A, C, v, T, B, D, E = self._parts(i)
+        rho = rho if i is not None else rho.reshape(self.M, self.K)
+        cross = B * rho
+        cross += A
+        dot = D * rho
+        dot += C
+        return cross, dot, v, T, E
+
+    def f(self, rho, i=None):
+        """f = S - T and its derivative in rho at radius ``rho`` on rays ``i`` (flat indices; None: all), and the
+        largest move along each ray within which no residual can wrap past pi (where S may jump)."""
+        cross, dot, v, T, E = self._offsets(rho, i)
+        r = _angle(cross, dot)
+        vr = v * r
+        f = (vr * r).sum(0)
+        if np.isnan(f).any():     # a point on a station
+            r = np.arctan2(cross, dot)
+            vr = v * r
+            f = (vr * r).sum(0)
+        f -= T
+        cross *= cross
+        dot *= dot
+        cross += dot
+        np.maximum(cross, 1e-18, out=cross)
+        # how far the point may move before a residual can wrap past pi: a move of s turns the direction from a
+        # station at distance |d| by at most s / (|d| - s)
+        room = np.pi - np.abs(r)
+        safe = np.where(v > 0, room * np.sqrt(cross) / (1.0 + room), np.inf).min(axis=0)
+        np.divide(E, cross, out=cross)
+        cross *= vr
+        return f.ravel(), 2.0 * cross.sum(0).ravel(), safe.ravel()
+
+    def above(self, rho):
+        """Whether S > T at radius ``rho`` on every ray, shown without arctan: r^2 >= sin^2 r =
+        cross^2 / (cross^2 + dot^2), so S >= sum v cross^2 / |d|^2; False where that bound does not show it."""
+        cross, dot, v, T, _ = self._offsets(rho, None)
+        cross *= cross
+        dot *= dot
+        dot += cross
+        np.divide(cross, dot, out=cross)
+        cross *= v
+        return (cross.sum(0) > T).ravel()
+
+
+def _model_roots(r, f, df, gap, curv):
+    """Where two models of S - S_min along a ray reach ``gap``, as radii: both are flat at the centre (S's minimum)
+    and have S - T = f and slope df at radius r; the cubic c2 rho^2 + c3 rho^3, and the quartic that also has
+    S's curvature at the centre, ``curv`` rho^2 + c3 rho^3 + c4 rho^4 (NaN where that is not known). Each root
+    by Newton's method: a step on f, two on the cubic, two on the quartic from the cubic's root."""
+    with np.errstate(divide="ignore", invalid="ignore", over="ignore"):
+        g = f + gap
+        s = df * r
+        c2, c3 = 3.0 * g - s, s - 2.0 * g
+        x = 1.0 - f / s
+        for _ in range(2):
+            x -= ((c2 + c3 * x) * x * x - gap) / ((2.0 * c2 + 3.0 * c3 * x) * x)
+        q2 = curv * r * r
+        q3, q4 = 4.0 * g - 2.0 * q2 - s, q2 + s - 3.0 * g
+        y = x.copy()
+        for _ in range(2):
+            y -= (((q4 * y + q3) * y + q2) * y * y - gap) / (((4.0 * q4 * y + 3.0 * q3) * y + 2.0 * q2) * y)
+    return r * x, r * y
+
+
+def _edges(rays, rho, R, gap, curv):
+    """The edge S = T on every ray (flat arrays: first guesses, drawing ranges, gaps T - S_min, S's curvature
+    along the ray at the centre or NaN).
+
+    A safeguarded search keeping a bracket [lo, hi] with f(lo) < 0 < f(hi): each step goes to the root of the
+    quartic model or else the cubic one (:func:`_model_roots`), else Newton's, else bisects (or doubles towards
+    the drawing range), and bisects a bracket that has not halved in a step. A ray is settled at the quartic's root without a further evaluation when the two models'
+    roots agree to 1e-4 of the radius, f within 30 % of the gap; or at the cubic's root when |f| <= NEAR_QUADRATIC
+    of the gap and the root is within 1 % of the radius (the models' errors are then far below the search's
+    tolerance). It is done where it stands when |f| <= 1e-3 of the gap and Newton's step is within 5e-4 of the
+    radius, when the bracket is within 1e-5 of the radius, or when it reaches the drawing range still inside.
+    While many rays are left, all of them are evaluated as whole (bearings, fixes, rays) arrays, cheaper than
+    gathering them. Returns the radii and f at them (0 where settled by a model).
+    """
+    lo = np.zeros_like(rho)
+    hi = np.full_like(rho, np.inf)
+    f_at = np.zeros_like(rho)
+    width = np.full_like(rho, np.inf)
+    live = np.arange(len(rho))
+    for _ in range(60):
+        if not len(live):
+            break
+        at = slice(None) if len(live) == len(rho) else live
+        r, lo_l, hi_l, R_l, gap_l = rho[at], lo[at], hi[at], R[at], gap[at]
+        if len(live) >= WHOLE_BATCH * len(rho):
+            f, df, safe = (a[at] for a in rays.f(rho))
+        else:
+            f, df, safe = rays.f(r, live)
+        neg = f < 0
+        lo_l = np.where(neg, np.maximum(lo_l, r), lo_l)
+        hi_l = np.where(neg, hi_l, np.minimum(hi_l, r))
+        top = np.minimum(hi_l, R_l)
+        cubic, quartic = _model_roots(r, f, df, gap_l, curv[at])
+        with np.errstate(divide="ignore", invalid="ignore"):
+            newton = r - f / df
+        cubic_in = (cubic > lo_l) & (cubic < top)          # False for NaN
+        quartic_in = (quartic > lo_l) & (quartic < top)
+        af = np.abs(f)
+        by_quartic = (quartic_in & (np.abs(quartic - cubic) <= 1e-4 * quartic) & (af <= 0.15 * gap_l)
+                      & (np.abs(df * r - 2.0 * (f + gap_l)) <= 0.25 * (f + gap_l)))
+        by_cubic = cubic_in & (af <= NEAR_QUADRATIC * gap_l) & (np.abs(cubic - r) <= 1e-2 * r)
+        by_quartic &= np.abs(quartic - r) < safe
+        by_cubic &= np.abs(cubic - r) < safe
+        settle = by_quartic | by_cubic
+        done = (settle | ((af <= 1e-3 * gap_l) & (af <= 5e-4 * df * r)) | (hi_l - lo_l <= 1e-5 * r)
+                | (neg & (r >= R_l)))
+        # a bracket (lo > 0, hi finite) that has not halved since the last one is bisected
+        w = np.where((lo_l > 0) & np.isfinite(hi_l), hi_l - lo_l, np.inf)
+        slow = np.isfinite(w) & (w > 0.5 * width[at])
+        width[at] = w
+        step = np.where(np.isfinite(hi_l), 0.5 * (lo_l + hi_l), np.minimum(2.0 * r, R_l))
+        step = np.where(slow, step, np.where(quartic_in, quartic, np.where(cubic_in, cubic, np.where(
+            (newton > lo_l) & (newton < top), newton, step))))
+        rho[at] = np.where(by_quartic, quartic, np.where(by_cubic, cubic, np.where(done, r, step)))
+        f_at[at] = np.where(settle, 0.0, f)
+        lo[at], hi[at] = lo_l, hi_l
+        live = live[~done]
+    return rho, f_at
+
+
+def _star_check(rays, trig, sx, sy, v, cx, cy, T, rho, open_ray, R, ux, uy):
+    """Star-shapedness: S must stay above T beyond every edge found. S is probed at three times the radius (first
+    by the bound of :meth:`_Rays.above`, then exactly where it is not enough); rays found back inside are drawn to
+    their last exit. Returns the fixes' flags (``rho``, ``open_ray`` are updated)."""
+    M, K = rho.shape
+    star = np.ones(M, bool)
+    probe = np.minimum(3.0 * rho, R).ravel()
+    doubt = np.flatnonzero(~open_ray.ravel() & (probe > rho.ravel() * 1.0001) & ~rays.above(probe))
+    if not len(doubt):
+        return star
+    fp = rays.f(probe[doubt], doubt)[0]
+    back = np.zeros(M * K, bool)
+    back[doubt] = fp < 0
+    back = back.reshape(M, K)
+    rows = np.flatnonzero(back.any(axis=1))
+    if len(rows):
+        star[rows] = False
+        sub = (_rows(trig, rows), sx[rows], sy[rows], v[rows], cx[rows], cy[rows])
+        new, still_open = _last_crossing(*sub, np.minimum(3.0 * rho[rows], R[rows]), R[rows], ux, uy, T[rows])
+        b = back[rows]
+        rho[rows] = np.where(b, new, rho[rows])
+        open_ray[rows] |= b & still_open
+    return star
+
+
+def _s_at_infinity(rays, phi, v, psi, T):
+    """The least plane limit of S far out, sum v wrap(phi - psi)^2, over the rays' directions and the bearings'
+    mean direction. Where sum v sin^2(phi - psi) (no larger) already reaches T on every ray, only the mean
+    direction is computed."""
+    M = phi.shape[0]
+    c = (v * np.cos(phi)).sum(1)
+    s = (v * np.sin(phi)).sum(1)
+    mean = np.arctan2(s, c)[:, None]
+
+    def limit(r, w):
+        r -= _TWO_PI * np.rint(r * (1.0 / _TWO_PI))        # wrapped to [-pi, pi] (only its square is used)
+        return (w[:, :, None] * r * r).sum(1).min(axis=1)
+
+    s_inf = limit(phi[:, :, None] - mean[:, None, :], v)
+    B = rays.B.reshape(rays.n, M, -1)
+    low = ((rays.v[:, :, None] * B * B).sum(0).min(axis=1) < T) & (s_inf >= T)
+    if low.any():
+        s_inf[low] = np.minimum(s_inf[low], limit(phi[low][:, :, None] - psi[None, None, :], v[low]))
+    return s_inf
 
 
 def _march(sx, sy, phi, v, known, dof, kdof, floor, level, psi, draw, fix_lat, fix_lon, *, station_lat, station_lon,
            theta, spread):
-    M = phi.shape[0]
+    M, K = phi.shape[0], len(psi)
     trig = (np.sin(phi), np.cos(phi))
-    cx, cy, s_min, j11, j12, j22 = _minimum(trig, sx, sy, v)
+    cx, cy, s_min, J, H = _minimum(trig, sx, sy, v)
     T = region_threshold(s_min, known, dof, level, kdof, floor)
     ux, uy = np.sin(psi)[None, :], np.cos(psi)[None, :]
-    # the full Hessian where it is positive definite (a better first guess), else Gauss-Newton's
-    h11, h12, h22 = _hessian(trig, sx, sy, v, cx, cy)
-    pd = ((h11 > 0) & (h11 * h22 - h12 * h12 > 0))[:, None]
-    quad = np.where(pd, h11[:, None] * ux * ux + 2 * h12[:, None] * ux * uy + h22[:, None] * uy * uy,
-                    j11[:, None] * ux * ux + 2 * j12[:, None] * ux * uy + j22[:, None] * uy * uy)
+    # First guess: S's quadratic model about its minimum, with the full Hessian where it is positive definite.
+    q = np.where(_positive(H)[:, None], H, J)
+    quad = q[:, :1] * ux * ux + 2 * q[:, 1:2] * ux * uy + q[:, 2:] * uy * uy
     with np.errstate(divide="ignore", invalid="ignore"):
         rho = np.sqrt((T - s_min)[:, None] / quad)
-    R = draw[:, None] * np.ones((1, len(psi)))
+    R = draw[:, None] * np.ones((1, K))
     rho = np.where(np.isfinite(rho) & (rho > 0), np.minimum(rho, 0.5 * R), 0.5 * R)
-    # Where S is close to its quadratic model at the first guess's edge, one evaluation settles the edge
-    # (the quadratic correction of rho is then within 3e-5 of the root); elsewhere a safeguarded Newton
-    # search follows. With bearing SDs of a few degrees the edge is typically 5 % off the quadratic
-    # model, so most rays take one or two Newton steps.
-    f0, _ = _ray_f(trig, sx, sy, v, cx, cy, rho, ux, uy, T, derivative=False)
-    gap = (T - s_min)[:, None]
-    with np.errstate(divide="ignore", invalid="ignore"):
-        quad_rho = rho * np.sqrt(gap / (f0 + gap))
-        near = (np.abs(f0) <= NEAR_QUADRATIC * gap) & np.isfinite(quad_rho)
-    rho = np.where(near, quad_rho, rho)
-    f_all = np.where(near, 0.0, f0)
-    lo = np.where(f0 < 0, np.where(near, 0.0, rho), 0.0)
-    hi = np.where(f0 >= 0, rho, np.inf)
-    rho = np.where(near | ~np.isfinite(quad_rho) | (quad_rho >= R), rho, quad_rho)
-    # Safeguarded Newton on f(rho) = S - T, keeping a bracket [lo, hi] with f(lo) < 0 < f(hi). The first
-    # round takes every ray of a fix with a ray to search; later rounds only the rays not yet done (a ray
-    # once done keeps its radius, so evaluating it again would change nothing).
-    rays = _Rays(trig, sx, sy, v, cx, cy, T, ux, uy)
-    K = len(psi)
-    first = np.flatnonzero(~near.all(axis=1))
-    j = np.repeat(first, K)
-    k = np.tile(np.arange(K), len(first))
-    Rf, rhof, lof, hif, ff = R.ravel(), rho.ravel(), lo.ravel(), hi.ravel(), f_all.ravel()
-    gapf = np.broadcast_to(gap, R.shape).ravel()
-    for rnd in range(60):
-        if not len(j):
-            break
-        flat = j * K + k
-        r_l, lo_l, hi_l, R_l = rhof[flat], lof[flat], hif[flat], Rf[flat]
-        if rnd == 0:            # whole fixes: (fixes, bearings, rays) arrays, no gathering of single rays
-            f, df = _ray_f(_rows(trig, first), sx[first], sy[first], v[first], cx[first], cy[first],
-                           r_l.reshape(-1, K), ux, uy, T[first])
-            f, df = f.ravel(), df.ravel()
-        else:
-            f, df = rays.f(j, k, r_l)
-        ff[flat] = f
-        neg = f < 0
-        lo_l = np.where(neg, np.maximum(lo_l, r_l), lo_l)
-        hi_l = np.where(~neg, np.minimum(hi_l, r_l), hi_l)
-        # |f| within 1e-3 of the gap T - S_min: the radius within about 5e-4 of the root, the area 1e-3
-        conv = (np.abs(f) <= 1e-3 * gapf[flat]) | (hi_l - lo_l <= 1e-5 * r_l)
-        done = conv | (neg & (r_l >= R_l))
-        with np.errstate(divide="ignore", invalid="ignore"):
-            newton = r_l - f / df
-        inside = np.isfinite(newton) & (newton > lo_l) & (newton < np.minimum(hi_l, R_l))
-        bis = np.where(np.isfinite(hi_l), 0.5 * (lo_l + hi_l), np.minimum(2.0 * r_l, R_l))
-        rhof[flat] = np.where(done, r_l, np.where(inside, newton, bis))
-        lof[flat], hif[flat] = lo_l, hi_l
-        j, k = j[~done], k[~done]
-    rho, f = rhof.reshape(M, K), ff.reshape(M, K)
+    curv = np.where(_positive(H)[:, None], quad, np.nan)
+    rays = _Rays(trig, sx, sy, v, cx, cy, T, psi)
+    rho, f = _edges(rays, rho.ravel(), R.ravel(), np.repeat(T - s_min, K), curv.ravel())
+    rho, f = rho.reshape(M, K), f.reshape(M, K)
     open_ray = (f < 0) & (rho >= R * (1 - 1e-9))
     rho = np.where(open_ray, R, rho)
-    # Star-shapedness: S must stay above T beyond the edge found; if not, the ray's far part is kept.
-    star = np.ones(M, bool)
-    for factor in (3.0,):
-        probe = np.minimum(rho * factor, R)
-        fp, _ = _ray_f(trig, sx, sy, v, cx, cy, probe, ux, uy, T, derivative=False)
-        back = (fp < 0) & ~open_ray & (probe > rho * 1.0001)
-        if back.any():
-            star &= ~back.any(axis=1)
-            rows = np.flatnonzero(back.any(axis=1))
-            sub = (_rows(trig, rows), sx[rows], sy[rows], v[rows], cx[rows], cy[rows])
-            new, still_open = _last_crossing(*sub, probe[rows], R[rows], ux, uy, T[rows])
-            b = back[rows]
-            rho[rows] = np.where(b, new, rho[rows])
-            open_ray[rows] |= b & still_open
-    # Open at infinity: the plane limit of S far along direction psi is sum v wrap(phi - psi)^2.
-    c = (v * trig[1]).sum(1)
-    s = (v * trig[0]).sum(1)
-    dirs = np.concatenate([np.broadcast_to(psi, (M, len(psi))), np.arctan2(s, c)[:, None]], axis=1)
-    r_inf = phi[:, :, None] - dirs[:, None, :]
-    r_inf -= _TWO_PI * np.rint(r_inf * (1.0 / _TWO_PI))        # wrapped to [-pi, pi] (only its square is used)
-    s_inf = (v[:, :, None] * r_inf * r_inf).sum(1).min(axis=1)
+    star = _star_check(rays, trig, sx, sy, v, cx, cy, T, rho, open_ray, R, ux, uy)
+    s_inf = _s_at_infinity(rays, phi, v, psi, T)
     bounded = ~open_ray.any(axis=1) & (s_inf >= T)
     res = dict(centre_x=cx, centre_y=cy, radius_m=rho, bounded=bounded, star_shaped=star, s_min=s_min,
                threshold=T)
@@ -704,10 +838,10 @@ def _last_crossing(trig, sx, sy, v, cx, cy, probe, R, ux, uy, T):
     """Where S climbs back above T beyond ``probe`` (bisection up to the drawing range)."""
     lo = probe.copy()
     hi = R.copy()
-    fR, _ = _ray_f(trig, sx, sy, v, cx, cy, hi, ux, uy, T, derivative=False)
+    fR = _ray_f(trig, sx, sy, v, cx, cy, hi, ux, uy, T)
     for _ in range(40):
         mid = 0.5 * (lo + hi)
-        fm, _ = _ray_f(trig, sx, sy, v, cx, cy, mid, ux, uy, T, derivative=False)
+        fm = _ray_f(trig, sx, sy, v, cx, cy, mid, ux, uy, T)
         lo = np.where(fm < 0, mid, lo)
         hi = np.where(fm < 0, hi, mid)
     still_open = fR < 0

@@ -215,3 +215,57 @@ def test_regions_that_are_not_star_shaped_are_said_so_and_drawn_as_their_envelop
         assert S_along(k, rho * 1.01) > T
         gaps += any(S_along(k, f * rho) > T for f in np.linspace(0.05, 0.95, 19))
     assert gaps >= 1
+
+
+@pytest.mark.parametrize("n, sd", [(4, 4.0), (3, 4.0), (5, None), (2, 6.0)])
+def test_radii_are_the_roots_of_the_plane_statistic(n, sd):
+    # The search's promise, ray by ray: each radius within 5e-4 of the root of S(rho) = T that scipy's brentq
+    # finds on the same plane S. The plane is rebuilt here from the inputs alone (stations at the geodesic
+    # distance and azimuth from the fix, each bearing's direction there the residual plus the back azimuth),
+    # S's minimum by scipy.optimize.minimize and the bound from scipy.stats (Beale 1960).
+    rng = np.random.default_rng(11 + n)
+    m = 25
+    st = []
+    for _ in range(m):
+        az = rng.uniform(0, 360) + np.arange(n) * 360.0 / n + rng.normal(0, 15, n)
+        dist = rng.uniform(400, 2000, n)
+        st.append([(d["lat2"], d["lon2"]) for d in (WGS.Direct(47.0, 15.0, a, r) for a, r in zip(az, dist))])
+    st = np.asarray(st)
+    b = np.array([bearings_to(s, (47.0, 15.0), rng.normal(0, 4.0, n)) % 360 for s in st])
+    g = np.repeat(np.arange(m), n)
+    sol = estimators.solve(st[:, :, 0].ravel(), st[:, :, 1].ravel(), b.ravel(), g, m,
+                           None if sd is None else np.full(m * n, sd))
+    L = regions.likelihood_regions(sol.lat, sol.lon, g, st[:, :, 0].ravel(), st[:, :, 1].ravel(), b.ravel(),
+                                   sol.range_m, sol.azimuth_from_fix_deg, sol.residual_deg, sol.region_weight,
+                                   sol.sd_known, sol.dof, 0.95, valid=sol.converged)
+    az = np.radians(sol.azimuth_from_fix_deg).reshape(m, n)
+    d = sol.range_m.reshape(m, n)
+    phi = np.radians(sol.residual_deg).reshape(m, n) + az + np.pi
+    sx, sy = d * np.sin(az), d * np.cos(az)
+    w = sol.region_weight.reshape(m, n)
+    psi = np.radians(L.ray_azimuth_deg)
+    checked = errors = 0
+    for i in np.flatnonzero(L.has_region):
+        def S(p):
+            r = (phi[i] - np.arctan2(p[0] - sx[i], p[1] - sy[i]) + np.pi) % (2 * np.pi) - np.pi
+            return float(np.sum(w[i] * r * r))
+
+        best = optimize.minimize(S, [0.0, 0.0], method="BFGS", options={"gtol": 1e-12})
+        s_min = min(best.fun, S([L.centre_x[i], L.centre_y[i]]))
+        if sd is None:
+            T = s_min * (1 + 2 * stats.f.ppf(0.95, 2, n - 2) / (n - 2))
+        else:
+            T = s_min + stats.chi2.ppf(0.95, 2)
+        assert L.threshold[i] == pytest.approx(T, rel=1e-6, abs=1e-9)
+        for k in np.flatnonzero(L.radius_m[i] < L.draw_range_m[i] * (1 - 1e-9)):
+            u = np.array([np.sin(psi[k]), np.cos(psi[k])])
+            c = np.array([L.centre_x[i], L.centre_y[i]])
+            rho = L.radius_m[i, k]
+            lo, hi = 0.7 * rho, 1.3 * rho
+            if not S(c + lo * u) < T < S(c + hi * u):
+                continue
+            root = optimize.brentq(lambda x: S(c + x * u) - T, lo, hi, xtol=1e-9, rtol=1e-13)
+            checked += 1
+            errors += abs(rho - root) > 5e-4 * root
+    assert checked >= 0.9 * len(psi) * L.has_region.sum() > 0
+    assert errors == 0
