@@ -488,26 +488,32 @@ _NEWLINE = re.compile("\n")
 
 
 def _direct_read(text, lines, header_idx, delimiter, width, want=None):
-    """The commonest case of all handed to the C parser as the file's own bytes: ASCII text with no quote, NUL,
-    carriage return, comment line or empty line in the body, and no line longer than a cell may be. Every
+    """The commonest case of all handed to the C parser as the file's own bytes: ASCII text with no quote, NUL
+    or carriage return, and in the body no comment line, empty line or line longer than a cell may be. Every
     physical line is then one row, exactly as :func:`_fast_read` would join them, without splitting the text
-    into lines. Returns what :func:`_fast_read` returns, or None (then :func:`_fast_read` decides)."""
+    into lines (the checks run on the positions of the line ends). Returns what :func:`_fast_read` returns, or
+    None (then :func:`_fast_read` decides)."""
     start = lines.ends[header_idx]
     if start >= len(text) or not text.isascii():
         return None
-    if '"' in text or "\x00" in text or "\r" in text or "\n#" in text or "\n\n" in text:
-        return None
     data = text.encode("ascii")
-    view = np.frombuffer(data, np.uint8)[start:]
-    breaks = np.flatnonzero(view == 10)
-    n = len(breaks) + (view[-1] != 10)
-    if len(view) > MAX_CELL_CHARS:
-        edges = np.concatenate([[-1], breaks, [len(view)]])
-        if np.diff(edges).max() - 1 > MAX_CELL_CHARS:
+    if b'"' in data or b"\x00" in data or b"\r" in data:
+        return None
+    view = np.frombuffer(data, np.uint8)
+    ends = np.flatnonzero(view[start:] == 10) + start
+    starts = np.concatenate([[start], ends + 1])
+    starts = starts[starts < len(view)]           # a line end closing the file starts no line
+    first = view[starts]
+    if (first == ord("#")).any() or (first == 10).any():      # a comment line or an empty line
+        return None
+    n = len(starts)
+    if len(view) - start > MAX_CELL_CHARS:
+        stops = np.concatenate([ends, [len(view)]])[:n]
+        if (stops - starts).max() > MAX_CELL_CHARS:
             return None
-    del view, breaks
+    del view, ends, starts, first
     numbers = np.arange(header_idx + 2, header_idx + 2 + n)
-    body = _parser_source.from_bytes(text[start:], data[start:])
+    body = _parser_source.from_bytes(data[start:])
     del data
     return _parse_body(body, n, numbers, np.zeros(n, bool), delimiter, width, want)
 
@@ -559,10 +565,9 @@ def _parse_body(body, n_body, numbers, comment, delimiter, width, want):
             if raw[j].dtype != object:
                 raw[j] = pd.read_csv(body(), usecols=[j], dtype=str, **kw)[j]
     texts = [j for j in range(width) if j not in floats]
-    text_body = body.text
+    padded, guarded = body.padded(delimiter), body.guarded()
     del body
-    tidy, n_unguarded = _tidy([raw[j].to_numpy(dtype=object) for j in texts], _has_padding(text_body, delimiter),
-                              "'" in text_body)
+    tidy, n_unguarded = _tidy([raw[j].to_numpy(dtype=object) for j in texts], padded, guarded)
     cells = [floats.get(j) for j in range(width)]
     for j, c in zip(texts, tidy):
         cells[j] = c
@@ -587,11 +592,24 @@ class _parser_source:
             self.data = None
 
     @classmethod
-    def from_bytes(cls, text, data):
-        """A body whose UTF-8 bytes are already at hand."""
+    def from_bytes(cls, data):
+        """A body of ASCII bytes (its text is not kept: :meth:`padded` and :meth:`guarded` look at the bytes)."""
         body = cls.__new__(cls)
-        body.text, body.data = text, data
+        body.text, body.data = None, data
         return body
+
+    def padded(self, delimiter) -> bool:
+        """Whether any cell may carry surrounding white space (:func:`_has_padding`)."""
+        if self.text is not None:
+            return _has_padding(self.text, delimiter)
+        data = self.data       # ASCII: the same searches as _has_padding's, on the bytes
+        if b" " in data or (delimiter != "\t" and b"\t" in data):
+            return True
+        return any(ch in data for ch in (b"\x0b", b"\x0c", b"\x1c", b"\x1d", b"\x1e", b"\x1f"))
+
+    def guarded(self) -> bool:
+        """Whether any cell may carry a formula guard ``'``."""
+        return "'" in self.text if self.text is not None else b"'" in self.data
 
     def __call__(self):
         return io.StringIO(self.text) if self.data is None else io.BytesIO(self.data)
