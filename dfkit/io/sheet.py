@@ -389,21 +389,21 @@ def read_sheet(source, *, name: str | None = None, own_results: str = "recompute
         raise SheetError(f"{name or 'the sheet'} is empty: expected a header row such as "
                          "'fix,lat,lon,bearing' and one row per bearing")
 
-    lines = _physical_lines(text)
+    lines = _LazyLines(text)
     comments: list[int] = []
     blanks: list[int] = []
     header_idx = None
-    for i, ln in enumerate(lines):
+    for i, ln in enumerate(lines.head()):
         if ln.startswith("#"):
             comments.append(i + 1)
         elif not ln.replace("\x00", "").strip():
             blanks.append(i + 1)
         else:
             header_idx = i
+            header_line = ln
             break
     if header_idx is None:
         raise SheetError(f"{name or 'the sheet'} has only comments or blank lines: no header row")
-    header_line = lines[header_idx]
     if "\x00" in header_line:
         problems.append(Problem(header_idx + 1, "", "the header holds NUL bytes (a damaged file?); they were "
                                 "removed", "warning", name))
@@ -418,9 +418,11 @@ def read_sheet(source, *, name: str | None = None, own_results: str = "recompute
 
     bounds = dict(numeric) if isinstance(numeric, dict) else dict.fromkeys(numeric)
     want = {j: bounds[c] for j, c in enumerate(columns) if c in bounds}
-    got = _fast_read(text, lines, header_idx, delimiter, width, want)
+    got = _direct_read(text, lines, header_idx, delimiter, width, want)
     if got is None:
-        got = _careful_read(lines, header_idx, delimiter, width, name, problems, "'" in text)
+        got = _fast_read(text, lines.all, header_idx, delimiter, width, want)
+    if got is None:
+        got = _careful_read(lines.all, header_idx, delimiter, width, name, problems, "'" in text)
     line_no, cells, more_comments, more_blanks, n_unguarded = got
     comments += more_comments
     blanks += more_blanks
@@ -436,13 +438,84 @@ def read_sheet(source, *, name: str | None = None, own_results: str = "recompute
         problems.append(Problem(0, "", f"{n_unguarded} {'cell' if n_unguarded == 1 else 'cells'} began with ' "
                                 "before =, +, -, @, tab or CR (a guard against spreadsheet formulas, as dfkit "
                                 "writes); read without the '", "note", name))
-    _rows_taken_for_comments(lines, comments, header_idx + 1, delimiter, width, name, problems)
+    if comments:
+        _rows_taken_for_comments(lines.all, comments, header_idx + 1, delimiter, width, name, problems)
     if not len(table):
         problems.append(Problem(header_idx + 1, "", "the sheet has a header but no data rows", "warning", name))
     _note_skipped(comments, blanks, name, problems)
     return RawSheet(table=table, columns=columns, delimiter=delimiter, decimal_comma=delimiter != ",",
                     problems=problems, skipped_lines=len(comments) + len(blanks), source=name,
                     comment_lines=comments, blank_lines=blanks, numeric=held)
+
+
+class _LazyLines:
+    """The physical lines of a text (:func:`_physical_lines`), split only when a line past the header is asked for:
+    a sheet that goes straight to the C parser (:func:`_direct_read`) is never split into a list of lines."""
+
+    def __init__(self, text):
+        self.text = text
+        self._lines = None
+        self.ends = []          # offset just past the line end of each line handed out by head()
+
+    def head(self):
+        """The lines from the top, one at a time, as :func:`_physical_lines` gives them."""
+        text, pos = self.text, 0
+        ends = _LINE_END if "\r" in text else _NEWLINE
+        while pos < len(text):
+            m = ends.search(text, pos)
+            if m is None:
+                self.ends.append(len(text))
+                yield text[pos:]
+                return
+            self.ends.append(m.end())
+            yield text[pos:m.start()]
+            pos = m.end()
+
+    @property
+    def all(self):
+        if self._lines is None:
+            self._lines = _physical_lines(self.text)
+        return self._lines
+
+    def __getitem__(self, k):
+        return self.all[k]
+
+    def __len__(self):
+        return len(self.all)
+
+
+_NEWLINE = re.compile("\n")
+
+
+def _direct_read(text, lines, header_idx, delimiter, width, want=None):
+    """The commonest case of all handed to the C parser as the file's own bytes: ASCII text with no quote, NUL
+    or carriage return, and in the body no comment line, empty line or line longer than a cell may be. Every
+    physical line is then one row, exactly as :func:`_fast_read` would join them, without splitting the text
+    into lines (the checks run on the positions of the line ends). Returns what :func:`_fast_read` returns, or
+    None (then :func:`_fast_read` decides)."""
+    start = lines.ends[header_idx]
+    if start >= len(text) or not text.isascii():
+        return None
+    data = text.encode("ascii")
+    if b'"' in data or b"\x00" in data or b"\r" in data:
+        return None
+    view = np.frombuffer(data, np.uint8)
+    ends = np.flatnonzero(view[start:] == 10) + start
+    starts = np.concatenate([[start], ends + 1])
+    starts = starts[starts < len(view)]           # a line end closing the file starts no line
+    first = view[starts]
+    if (first == ord("#")).any() or (first == 10).any():      # a comment line or an empty line
+        return None
+    n = len(starts)
+    if len(view) - start > MAX_CELL_CHARS:
+        stops = np.concatenate([ends, [len(view)]])[:n]
+        if (stops - starts).max() > MAX_CELL_CHARS:
+            return None
+    del view, ends, starts, first
+    numbers = np.arange(header_idx + 2, header_idx + 2 + n)
+    body = _parser_source.from_bytes(data[start:])
+    del data
+    return _parse_body(body, n, numbers, np.zeros(n, bool), delimiter, width, want)
 
 
 def _fast_read(text, lines, header_idx, delimiter, width, want=None):
@@ -466,6 +539,12 @@ def _fast_read(text, lines, header_idx, delimiter, width, want=None):
     n_body = len(body_lines)
     body = _parser_source("\n".join(body_lines))
     del body_lines
+    return _parse_body(body, n_body, numbers, comment, delimiter, width, want)
+
+
+def _parse_body(body, n_body, numbers, comment, delimiter, width, want):
+    """The rows of a body (``n_body`` physical lines, one row each) through the C parser; ``numbers`` are the
+    line numbers of the body's lines, comment lines (``comment``) included."""
     kw = dict(sep=delimiter, header=None, na_filter=False, skip_blank_lines=False, quoting=csv.QUOTE_NONE,
               engine="c")
     want = {j: bound for j, bound in (want or {}).items() if j < width}
@@ -486,10 +565,9 @@ def _fast_read(text, lines, header_idx, delimiter, width, want=None):
             if raw[j].dtype != object:
                 raw[j] = pd.read_csv(body(), usecols=[j], dtype=str, **kw)[j]
     texts = [j for j in range(width) if j not in floats]
-    text_body = body.text
+    padded, guarded = body.padded(delimiter), body.guarded()
     del body
-    tidy, n_unguarded = _tidy([raw[j].to_numpy(dtype=object) for j in texts], _has_padding(text_body, delimiter),
-                              "'" in text_body)
+    tidy, n_unguarded = _tidy([raw[j].to_numpy(dtype=object) for j in texts], padded, guarded)
     cells = [floats.get(j) for j in range(width)]
     for j, c in zip(texts, tidy):
         cells[j] = c
@@ -512,6 +590,26 @@ class _parser_source:
             self.data = text.encode("utf-8")
         except UnicodeEncodeError:
             self.data = None
+
+    @classmethod
+    def from_bytes(cls, data):
+        """A body of ASCII bytes (its text is not kept: :meth:`padded` and :meth:`guarded` look at the bytes)."""
+        body = cls.__new__(cls)
+        body.text, body.data = None, data
+        return body
+
+    def padded(self, delimiter) -> bool:
+        """Whether any cell may carry surrounding white space (:func:`_has_padding`)."""
+        if self.text is not None:
+            return _has_padding(self.text, delimiter)
+        data = self.data       # ASCII: the same searches as _has_padding's, on the bytes
+        if b" " in data or (delimiter != "\t" and b"\t" in data):
+            return True
+        return any(ch in data for ch in (b"\x0b", b"\x0c", b"\x1c", b"\x1d", b"\x1e", b"\x1f"))
+
+    def guarded(self) -> bool:
+        """Whether any cell may carry a formula guard ``'``."""
+        return "'" in self.text if self.text is not None else b"'" in self.data
 
     def __call__(self):
         return io.StringIO(self.text) if self.data is None else io.BytesIO(self.data)

@@ -258,8 +258,9 @@ def angles(cells, axis: str, decimal_comma: bool = False) -> Cells:
     if not is_float:
         cells = np.asarray(cells, dtype=object)
     out = _fast_then_slow(cells, lambda u: (np.nan, "?"))
-    pending = out.error == "?"
-    if pending.any():
+    # floats from the sheet reader hold no text to read the slow way: every error is already final
+    pending = np.zeros(len(out.error), bool) if is_float else out.error == "?"
+    if not is_float and pending.any():
         vals, ok = _common_angles(cells[pending], axis, decimal_comma)
         idx = np.flatnonzero(pending)
         out.values[idx[ok]] = vals[ok]
@@ -273,7 +274,8 @@ def angles(cells, axis: str, decimal_comma: bool = False) -> Cells:
             out.packed = np.zeros(len(cells), bool)
             out.packed[rest] = [p for _, _, p in res]
     # plain numbers that may be packed: beyond the degrees of the axis, or (text) wider than degrees are written
-    read = ~out.empty & (out.error == "")
+    bad = out.error != ""
+    read = ~out.empty & ~bad
     with np.errstate(invalid="ignore"):
         cand = read & (np.abs(out.values) > _DECIMAL_LIMIT[axis])
     if not is_float and read.any():
@@ -289,7 +291,8 @@ def angles(cells, axis: str, decimal_comma: bool = False) -> Cells:
         if out.packed is None:
             out.packed = np.zeros(len(cells), bool)
         out.packed[k] = [r[1] == "" for r in res[hit]]
-    out.values[out.empty | (out.error != "")] = np.nan
+        bad[k] = out.error[k] != ""
+    out.values[out.empty | bad] = np.nan
     return out
 
 

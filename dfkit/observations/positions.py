@@ -39,6 +39,7 @@ import pandas as pd
 from dfkit import grids
 from dfkit.io.gpx import Track
 from dfkit.observations.cells import angles, column, filled, numbers, per_value, split_position
+from dfkit.observations.groupstats import group_medians
 from dfkit.observations.rowlog import RowLog
 from dfkit.observations.typos import describe, variants
 from dfkit.policy import (
@@ -229,6 +230,7 @@ class _State:
         self.letter_note = filled(n, "")
         self.north_lat = np.full(n, np.nan)
         self.north_lon = np.full(n, np.nan)
+        self.reference = None       # (rows, medians) of the last fix reference (see _fix_reference)
 
     def name(self, role):
         return self.cols.get(role, role)
@@ -670,17 +672,27 @@ def _km(lat1, lon1, lat2, lon2):
 def _group_reference(groups, lat, lon, valid):
     """Median lat/lon and count of the valid positions of each group (indexed by group id)."""
     m = max(int(groups.max()) + 1 if len(groups) else 0, 1)   # at least one slot: callers index group 0
-    ref_lat = np.full(m, np.nan)
-    ref_lon = np.full(m, np.nan)
-    cnt = np.zeros(m, np.int64)
     sel = valid & (groups >= 0)
-    if sel.any():
-        f = pd.DataFrame({"g": groups[sel], "lat": lat[sel], "lon": lon[sel]}).groupby("g")
-        med = f.median()
-        ref_lat[med.index.to_numpy()] = med["lat"].to_numpy()
-        ref_lon[med.index.to_numpy()] = med["lon"].to_numpy()
-        cnt[med.index.to_numpy()] = f.size().to_numpy()
+    cnt, (ref_lat, ref_lon) = group_medians(groups[sel], m, lat[sel], lon[sel])
     return ref_lat, ref_lon, cnt
+
+
+def _fix_reference(p: _State, groups, valid):
+    """:func:`_group_reference` of the rows' own fixes, kept on ``p`` while the rows it is taken from stay the same
+    (the swapped-lat/lon check and the far-station check ask for it in turn)."""
+    sel = valid & (groups >= 0)
+    if p.reference is not None and np.array_equal(p.reference[0], sel):
+        return p.reference[1]
+    ref = _group_reference(groups, p.lat, p.lon, sel)
+    p.reference = (sel, ref)
+    return ref
+
+
+def _mask(n, idx):
+    """A row mask of ``n`` rows from row indices."""
+    m = np.zeros(n, bool)
+    m[idx] = True
+    return m
 
 
 def _deg_dist(lat1, lon1, lat2, lon2):
@@ -706,11 +718,12 @@ def _swapped(p: _State, groups, track_ll):
             cand &= ~t_ok
         if groups is not None and cand.any():
             valid = (p.source != "") & ~log.bad
-            ref_lat, ref_lon, cnt = _group_reference(groups, lat, lon, valid)
+            ref_lat, ref_lon, cnt = _fix_reference(p, groups, valid)
             g = np.maximum(groups, 0)
-            big = cand & (groups >= 0) & (cnt[g] >= 3)
-            hit = big & (_deg_dist(lat, lon, ref_lat[g], ref_lon[g]) > SWAPPED_FAR_DEG) & \
-                (_deg_dist(lon, lat, ref_lat[g], ref_lon[g]) < SWAPPED_NEAR_DEG)
+            big = np.flatnonzero(cand & (groups >= 0) & (cnt[g] >= 3))
+            gb = g[big]
+            hit = _mask(p.n, big[(_deg_dist(lat[big], lon[big], ref_lat[gb], ref_lon[gb]) > SWAPPED_FAR_DEG) &
+                                  (_deg_dist(lon[big], lat[big], ref_lat[gb], ref_lon[gb]) < SWAPPED_NEAR_DEG)])
             suspect |= hit
             where[hit] = "the other positions of its fix"
             pairs = cand & (groups >= 0) & (cnt[g] == 2)
@@ -727,16 +740,15 @@ def _far_from_fix(p: _State, groups):
     valid = (p.source != "") & ~log.bad & (groups >= 0)
     if not valid.any():
         return
-    ref_lat, ref_lon, cnt = _group_reference(groups, p.lat, p.lon, valid)
+    ref_lat, ref_lon, cnt = _fix_reference(p, groups, valid)
     g = np.maximum(groups, 0)
     sel = valid & (cnt[g] >= 2)
     if not sel.any():
         return
     d = np.full(p.n, np.nan)
     d[sel] = _km(ref_lat[g[sel]], ref_lon[g[sel]], p.lat[sel], p.lon[sel])
-    spread = np.zeros(len(cnt))
-    med = pd.Series(d[sel]).groupby(groups[sel]).median()
-    spread[med.index.to_numpy()] = med.to_numpy()
+    _, (spread,) = group_medians(groups[sel], len(cnt), d[sel])
+    spread[np.isnan(spread)] = 0.0
     with np.errstate(invalid="ignore"):
         far = sel & (cnt[g] >= 3) & (p.source != "track") & \
             (d > np.maximum(FAR_STATION_SPREADS * spread[g], FAR_STATION_KM))

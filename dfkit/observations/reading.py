@@ -22,7 +22,7 @@ from dfkit.io.gpx import Track, read_track
 from dfkit.io.sheet import KNOWN_COLUMNS
 from dfkit.observations import north as north_mod
 from dfkit.observations.bearings import Bearings
-from dfkit.observations.cells import canonical, column, declinations, numbers, per_value, pick
+from dfkit.observations.cells import canonical, column, declinations, numbers, pick
 from dfkit.observations.columns import check_columns, label_like_columns
 from dfkit.observations.grouping import fill_down, fix_identities, group_fixes, pair_codes
 from dfkit.observations.options import ReadOptions, check_options
@@ -214,12 +214,13 @@ def _bearings(t, opts, decimal_comma, log: RowLog):
     log.reject(c.empty, "bearing", "bearing is missing")
     log.reject(c.bad, "bearing", c.error)
     b = c.values
-    full = per_value(unit, lambda u: FULL_CIRCLE.get(u, 360.0)).astype(float)
+    unit_codes, units = pd.factorize(unit)        # one pass over the rows for both tables of the unit
+    full = np.array([FULL_CIRCLE.get(u, 360.0) for u in units], float)[unit_codes]
     with np.errstate(invalid="ignore"):
         log.reject((b < 0) & ~unit_unknown, "bearing", lambda idx: [
             f"{b[i]:g} is negative; bearings run 0 to {full[i]:g} clockwise (write {full[i] + b[i]:g})" for i in idx])
         log.reject((b > full) & ~unit_unknown, "bearing", lambda idx: [_range_hint(b[i], unit[i]) for i in idx])
-    return b * per_value(unit, lambda u: DEGREES_PER_UNIT.get(u, 1.0)).astype(float), b, unit
+    return b * np.array([DEGREES_PER_UNIT.get(u, 1.0) for u in units], float)[unit_codes], b, unit
 
 
 def _sds(t, opts, decimal_comma, log: RowLog, unit, notes):

@@ -58,7 +58,9 @@ def repeated_rows(fix_ids, times, lat, lon, bearing_deg, *, usable, extra=()):
         return repeat, first
     # a quick screen on (fix, bearing); the full comparison runs only on rows that share both
     rows = np.flatnonzero(use)
-    screen = pd.DataFrame({"f": ids[rows], "b": b[rows]}).duplicated(keep=False).to_numpy()
+    # one hash of (fix, bearing) as one complex number (fix ids are exact in a float)
+    codes, uniq = pd.factorize(ids[rows].astype(float) + 1j * b[rows])
+    screen = np.bincount(codes, minlength=len(uniq))[codes] > 1
     rows = rows[screen]
     if not len(rows):
         return repeat, first
