@@ -330,47 +330,51 @@ class Joint:
 
 def _model(S, I, rest, off):
     L = len(S)
-    cols = []
+    A = np.zeros((L, (1 if rest else 0) + len(off)))
+    h = 0
     if rest:
-        a = np.zeros(L)
-        a[rest] = 1.0
-        cols.append(a)
-    for k in off:
-        e = np.zeros(L)
-        e[k] = 1.0
-        cols.append(e)
-    A = np.stack(cols, axis=1)
+        A[rest, 0] = 1.0
+        h = 1
+    for n, k in enumerate(off):
+        A[k, h + n] = 1.0
     Gi, r = _pinv(A.T @ I @ A)
     th = Gi @ (A.T @ S)
     return th, Gi, float(S @ A @ th), r
 
 
-def explain(S, I, p_of, level) -> Joint:
+def explain(S, I, p_of, level, pinv=None) -> Joint:
     """Name the fewest labels whose offsets, with the rest sharing one offset, explain the score ``S`` given the
     information ``I`` (greedy: at each step the label whose own offset leaves the least unexplained, ties to the
     one that leaves the rest's shared offset nearest zero). ``p_of(chi2, dof)`` gives the p-value of a chi-square
     statistic (scaled by the SD where it is estimated); labels differ while that p of what is left is below
-    ``level``."""
+    ``level``. ``pinv``: :func:`_pinv` of ``I`` when the caller has it."""
     L = len(S)
-    Ii, r_full = _pinv(I)
+    Ii, r_full = _pinv(I) if pinv is None else pinv
     chi_full = float(S @ Ii @ S)
+    fits = {}      # each model fitted once: (what is left, its dof, |d0| / se) and the model's (th, Gi)
 
     def left(off):
-        rest = [k for k in range(L) if k not in off]
-        th, Gi, chi, r = _model(S, I, rest, off)
-        z0 = abs(th[0]) / np.sqrt(Gi[0, 0]) if rest and Gi[0, 0] > 0 else 0.0
-        return max(chi_full - chi, 0.0), r_full - r, z0
+        key = tuple(off)
+        if key not in fits:
+            rest = [k for k in range(L) if k not in off]
+            th, Gi, chi, r = _model(S, I, rest, off)
+            z0 = abs(th[0]) / np.sqrt(Gi[0, 0]) if rest and Gi[0, 0] > 0 else 0.0
+            fits[key] = ((max(chi_full - chi, 0.0), r_full - r, z0), (th, Gi))
+        return fits[key][0]
 
     off = []
     lof, dof, _ = left(off)
     lof_p = p_of(lof, dof) if dof > 0 else 1.0
-    while dof > 0 and p_of(lof, dof) < level and len(off) < L - 1:
+    p_left = lof_p
+    while dof > 0 and p_left < level and len(off) < L - 1:
         best = min((k for k in range(L) if k not in off),
                    key=lambda k: (round(left(off + [k])[0], 9), left(off + [k])[2]))
         off.append(best)
         lof, dof, _ = left(off)
+        p_left = p_of(lof, dof) if dof > 0 else 1.0
     rest = [k for k in range(L) if k not in off]
-    th, Gi, _, _ = _model(S, I, rest, off)
+    left(off)
+    th, Gi = fits[tuple(off)][1]
     theta = np.zeros(L)
     h = 1 if rest else 0
     if rest:
@@ -391,7 +395,8 @@ def explain(S, I, p_of, level) -> Joint:
             a = np.full(L, -1.0 / (L - 1))
             a[k] = 1.0
             vk = float(a @ Ii @ a)
-            in_span = np.allclose(I @ (Ii @ a), a, atol=1e-6 * max(1.0, np.abs(a).max()))
+            # np.allclose(I @ (Ii @ a), a, atol=...) without its per-call overhead (same rule: rtol 1e-5, NaN fails)
+            in_span = bool(np.all(np.abs(I @ (Ii @ a) - a) <= 1e-6 * max(1.0, np.abs(a).max()) + 1e-5 * np.abs(a)))
             worst = max(worst, np.sqrt(vk) if in_span and vk > 0 else np.inf)
     return Joint(off=off, rest=rest, theta=theta, contrast=con, contrast_se=se, contrast_p=cp, d0=d0,
                  d0_se=float(np.sqrt(v0)) if rest else np.nan, d0_p=float(d0_p), lof_p=float(lof_p),
@@ -547,14 +552,14 @@ def fix_offsets(table, g, m, sol) -> dict[int, str]:
 
             def p_of(x, k, s=s, dof_res=dof_res):
                 return float(fdtrc(k, dof_res, x / k / s ** 2))
-        found.append((i, key, sel, labs, li, S, I, p_of(stat, dof), p_of, s, common))
+        found.append((i, key, sel, labs, li, S, I, p_of(stat, dof), p_of, s, common, (Ii, r_full)))
     out: dict[int, str] = {}
-    for i, key, sel, labs, li, S, I, p, p_of, s, common in found:
+    for i, key, sel, labs, li, S, I, p, p_of, s, common, pinv in found:
         level = OFFSET_P / tested[i]
         if not p < level:
             continue
         col = st.columns[int(key % len(st.columns))]
-        j = explain(S, I, p_of, level)
+        j = explain(S, I, p_of, level, pinv=pinv)
         groups = [([k], j.contrast[n], j.contrast_se[n], j.contrast_p[n]) for n, k in enumerate(j.off)]
         if not common and j.rest and j.d0_p < level:
             groups.append((j.rest, j.d0, j.d0_se, j.d0_p))
