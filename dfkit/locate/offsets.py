@@ -390,12 +390,13 @@ def _model(S, I, rest, off):
     return th, Gi, float(S @ A @ th), r
 
 
-def explain(S, I, p_of, level, pinv=None) -> Joint:
+def explain(S, I, p_of, level, pinv=None, spread=True) -> Joint:
     """Name the fewest labels whose offsets, with the rest sharing one offset, explain the score ``S`` given the
     information ``I`` (greedy: at each step the label whose own offset leaves the least unexplained, ties to the
     one that leaves the rest's shared offset nearest zero). ``p_of(chi2, dof)`` gives the p-value of a chi-square
     statistic (scaled by the SD where it is estimated); labels differ while that p of what is left is below
-    ``level``. ``pinv``: :func:`_pinv` of ``I`` when the caller has it."""
+    ``level``. ``pinv``: :func:`_pinv` of ``I`` when the caller has it; ``spread=False``: no ``diff_se`` (NaN), for a
+    caller that does not say it."""
     L = len(S)
     Ii, r_full = _pinv(I) if pinv is None else pinv
     chi_full = float(S @ Ii @ S)
@@ -437,8 +438,8 @@ def explain(S, I, p_of, level, pinv=None) -> Joint:
         cp = np.array([p_of(c * c / v, 1) if v > 0 else 1.0 for c, v in zip(con, var)])
         d0_p = p_of(d0 * d0 / v0, 1) if v0 > 0 else 1.0
     # how well the data tell one label from the others: the SE of each label against the mean of the rest
-    worst = 0.0
-    if L > 1:
+    worst = 0.0 if spread else np.nan
+    if L > 1 and spread:
         for k in range(L):
             a = np.full(L, -1.0 / (L - 1))
             a[k] = 1.0
@@ -638,7 +639,7 @@ def fix_offsets(table, g, m, sol) -> dict[int, str]:
         if not p < level:
             continue
         col = st.columns[int(key % len(st.columns))]
-        j = explain(S, I, p_of, level, pinv=pinv)
+        j = explain(S, I, p_of, level, pinv=pinv, spread=False)       # diff_se: the sheet's texts only
         groups = [([k], j.contrast[n], j.contrast_se[n], j.contrast_p[n]) for n, k in enumerate(j.off)]
         if not common and j.rest and j.d0_p < level:
             groups.append((j.rest, j.d0, j.d0_se, j.d0_p))
