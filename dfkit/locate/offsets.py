@@ -167,14 +167,15 @@ def group_stats(table, g, m, residual_deg, az_deg, range_m, sigma_deg, use, *, m
     lines = table["line"].to_numpy()
     if not len(cols):
         return None
-    fixes, columns, labels, ns, Us, Vs, Bs, shifts, nfs, rss1s, line_lists, tests = ([] for _ in range(12))
+    fixes, columns, labels, ns, Us, Vs, Bs, shifts, nfs, rss1s, tests = ([] for _ in range(11))
+    line_lists = _PairLines()
     ces, cns = [], []
     for k, col in enumerate(cols):
         if col == WHOLE_SHEET:       # one label for every bearing: no text to read
             named = use
             codes, names = np.zeros(len(use), np.int64), np.array(["all"], dtype=object)
         else:
-            val = table[col].astype(str).str.strip().to_numpy(dtype=object)
+            val = _stripped_text(table[col])
             named = use & (val != "") & (val != "nan")
             codes, names = _codes(val, named)
         if not named.any():
@@ -202,10 +203,7 @@ def group_stats(table, g, m, residual_deg, az_deg, range_m, sigma_deg, use, *, m
         idx = np.flatnonzero(keep)
         tests.append(testable[idx])
         if with_lines:       # the input lines of each pair, for the per-fix reasons (not for the sheet's pooling)
-            order = np.argsort(inv, kind="stable")
-            starts = np.concatenate(([0], np.cumsum(nG)))
-            for p in idx:
-                line_lists.append(lines[sel[order[starts[p]:starts[p + 1]]]].tolist())
+            line_lists.add(lines, sel, np.argsort(inv, kind="stable"), np.concatenate(([0], np.cumsum(nG))), idx)
         fixes.append(f[idx])
         columns.append(np.full(len(idx), k))
         labels.append(names[pair[idx] % K])
@@ -229,6 +227,50 @@ def group_stats(table, g, m, residual_deg, az_deg, range_m, sigma_deg, use, *, m
                     rss0=rss0,
                     n_used=n_fix)
     return st
+
+
+def _stripped_text(column):
+    """``column.astype(str).str.strip()`` as an object array, the few distinct values stripped once each (a column of
+    a sheet holds a handful of observer names over every bearing)."""
+    import pandas as pd
+
+    if (column.dtype == object or isinstance(column.dtype, pd.StringDtype)) and len(column) > 64 \
+            and not column.isna().any():
+        codes, uniq = pd.factorize(column)
+        return pd.Series(np.asarray(uniq, dtype=object), dtype=object).astype(str).str.strip().to_numpy(
+            dtype=object)[codes]
+    return column.astype(str).str.strip().to_numpy(dtype=object)
+
+
+class _PairLines:
+    """The input lines of each (fix, label) pair of :class:`GroupStats`, as a read-only list whose items are made
+    when asked for: the per-fix reasons name the lines of a few pairs, of the many a sheet holds."""
+
+    def __init__(self):
+        self._parts = []        # (first pair, lines, bearings, their order by pair, pair starts, pairs kept)
+        self._n = 0
+
+    def add(self, lines, sel, order, starts, idx):
+        self._parts.append((self._n, lines, sel, order, starts, idx))
+        self._n += len(idx)
+
+    def __len__(self):
+        return self._n
+
+    def __getitem__(self, q):
+        q = int(q)
+        if q < 0:
+            q += self._n
+        if not 0 <= q < self._n:
+            raise IndexError(q)
+        for first, lines, sel, order, starts, idx in reversed(self._parts):
+            if q >= first:
+                p = idx[q - first]
+                return lines[sel[order[starts[p]:starts[p + 1]]]].tolist()
+        raise IndexError(q)
+
+    def __iter__(self):
+        return (self[q] for q in range(self._n))
 
 
 def _codes(val, named):
@@ -301,6 +343,12 @@ def _cross(group, fix, ce, cn, Mi):
 def _pinv(I):
     """Pseudo-inverse and rank of a symmetric information matrix (eigenvalues below 1e-9 of the largest are
     directions the data do not inform)."""
+    if I.shape == (1, 1):
+        # LAPACK's answer for one dimension (eigenvalue the entry, eigenvector 1) without its call overhead
+        a = float(I[0, 0])
+        if a > max(a, 0.0) * 1e-9:
+            return np.array([[1.0 / a]]), 1
+        return np.zeros((1, 1)), 0
     w, v = np.linalg.eigh(I)
     tol = max(float(np.max(w, initial=0.0)), 0.0) * 1e-9
     keep = w > tol
@@ -330,47 +378,52 @@ class Joint:
 
 def _model(S, I, rest, off):
     L = len(S)
-    cols = []
+    A = np.zeros((L, (1 if rest else 0) + len(off)))
+    h = 0
     if rest:
-        a = np.zeros(L)
-        a[rest] = 1.0
-        cols.append(a)
-    for k in off:
-        e = np.zeros(L)
-        e[k] = 1.0
-        cols.append(e)
-    A = np.stack(cols, axis=1)
+        A[rest, 0] = 1.0
+        h = 1
+    for n, k in enumerate(off):
+        A[k, h + n] = 1.0
     Gi, r = _pinv(A.T @ I @ A)
     th = Gi @ (A.T @ S)
     return th, Gi, float(S @ A @ th), r
 
 
-def explain(S, I, p_of, level) -> Joint:
+def explain(S, I, p_of, level, pinv=None, spread=True) -> Joint:
     """Name the fewest labels whose offsets, with the rest sharing one offset, explain the score ``S`` given the
     information ``I`` (greedy: at each step the label whose own offset leaves the least unexplained, ties to the
     one that leaves the rest's shared offset nearest zero). ``p_of(chi2, dof)`` gives the p-value of a chi-square
     statistic (scaled by the SD where it is estimated); labels differ while that p of what is left is below
-    ``level``."""
+    ``level``. ``pinv``: :func:`_pinv` of ``I`` when the caller has it; ``spread=False``: no ``diff_se`` (NaN), for a
+    caller that does not say it."""
     L = len(S)
-    Ii, r_full = _pinv(I)
+    Ii, r_full = _pinv(I) if pinv is None else pinv
     chi_full = float(S @ Ii @ S)
+    fits = {}      # each model fitted once: (what is left, its dof, |d0| / se) and the model's (th, Gi)
 
     def left(off):
-        rest = [k for k in range(L) if k not in off]
-        th, Gi, chi, r = _model(S, I, rest, off)
-        z0 = abs(th[0]) / np.sqrt(Gi[0, 0]) if rest and Gi[0, 0] > 0 else 0.0
-        return max(chi_full - chi, 0.0), r_full - r, z0
+        key = tuple(off)
+        if key not in fits:
+            rest = [k for k in range(L) if k not in off]
+            th, Gi, chi, r = _model(S, I, rest, off)
+            z0 = abs(th[0]) / np.sqrt(Gi[0, 0]) if rest and Gi[0, 0] > 0 else 0.0
+            fits[key] = ((max(chi_full - chi, 0.0), r_full - r, z0), (th, Gi))
+        return fits[key][0]
 
     off = []
     lof, dof, _ = left(off)
     lof_p = p_of(lof, dof) if dof > 0 else 1.0
-    while dof > 0 and p_of(lof, dof) < level and len(off) < L - 1:
+    p_left = lof_p
+    while dof > 0 and p_left < level and len(off) < L - 1:
         best = min((k for k in range(L) if k not in off),
                    key=lambda k: (round(left(off + [k])[0], 9), left(off + [k])[2]))
         off.append(best)
         lof, dof, _ = left(off)
+        p_left = p_of(lof, dof) if dof > 0 else 1.0
     rest = [k for k in range(L) if k not in off]
-    th, Gi, _, _ = _model(S, I, rest, off)
+    left(off)
+    th, Gi = fits[tuple(off)][1]
     theta = np.zeros(L)
     h = 1 if rest else 0
     if rest:
@@ -385,13 +438,14 @@ def explain(S, I, p_of, level) -> Joint:
         cp = np.array([p_of(c * c / v, 1) if v > 0 else 1.0 for c, v in zip(con, var)])
         d0_p = p_of(d0 * d0 / v0, 1) if v0 > 0 else 1.0
     # how well the data tell one label from the others: the SE of each label against the mean of the rest
-    worst = 0.0
-    if L > 1:
+    worst = 0.0 if spread else np.nan
+    if L > 1 and spread:
         for k in range(L):
             a = np.full(L, -1.0 / (L - 1))
             a[k] = 1.0
             vk = float(a @ Ii @ a)
-            in_span = np.allclose(I @ (Ii @ a), a, atol=1e-6 * max(1.0, np.abs(a).max()))
+            # np.allclose(I @ (Ii @ a), a, atol=...) without its per-call overhead (same rule: rtol 1e-5, NaN fails)
+            in_span = bool(np.all(np.abs(I @ (Ii @ a) - a) <= 1e-6 * max(1.0, np.abs(a).max()) + 1e-5 * np.abs(a)))
             worst = max(worst, np.sqrt(vk) if in_span and vk > 0 else np.inf)
     return Joint(off=off, rest=rest, theta=theta, contrast=con, contrast_se=se, contrast_p=cp, d0=d0,
                  d0_se=float(np.sqrt(v0)) if rest else np.nan, d0_p=float(d0_p), lof_p=float(lof_p),
@@ -413,9 +467,8 @@ def _blocks(st, pairs, per_fix):
     a list of (block key, label indices into st, S, I)."""
     col = st.column[pairs]
     if per_fix:
-        key = st.fix[pairs] * len(st.columns) + col
-    else:
-        key = col
+        return _fix_blocks(st, pairs)
+    key = col
     blocks = []
     for k in np.unique(key):
         sel = pairs[key == k]
@@ -427,6 +480,38 @@ def _blocks(st, pairs, per_fix):
         np.add.at(I, (li[a], li[b]), -t)
         blocks.append((k, sel, labs, li, S, I))
     return blocks
+
+
+def _fix_blocks(st, pairs):
+    """:func:`_blocks` of the blocks within one fix, blocks of one size together: in a fix each label of a column
+    is one pair, so a block's score is its pairs' U and its information diag(B) minus the position's share
+    c_a' M^-1 c_b of each two pairs (the same numbers as :func:`_cross`, computed with the pair that comes first in
+    ``st`` as a). Each block's pairs are listed in the order of their labels."""
+    ncol = len(st.columns)
+    key = st.fix[pairs] * ncol + st.column[pairs]
+    _, rank = _sorted_codes(st.label[pairs])          # one order of the labels for every block
+    o = np.lexsort((rank, key))
+    ps, ks = pairs[o], key[o]
+    starts = np.flatnonzero(np.r_[True, ks[1:] != ks[:-1]])
+    sizes = np.diff(np.r_[starts, len(ks)])
+    out = [None] * len(starts)
+    for L in np.unique(sizes):
+        b = np.flatnonzero(sizes == L)
+        idx = ps[starts[b][:, None] + np.arange(L)]
+        f = st.fix[idx[:, 0]]
+        ce, cn = st.ce[idx], st.cn[idx]
+        M0, M1, M2 = (st.Mi[k][f][:, None, None] for k in range(3))
+        t = (ce[:, :, None] * (M0 * ce[:, None, :] + M1 * cn[:, None, :])
+             + cn[:, :, None] * (M1 * ce[:, None, :] + M2 * cn[:, None, :]))
+        t = np.where(idx[:, :, None] <= idx[:, None, :], t, np.swapaxes(t, 1, 2))
+        info = 0.0 + -t
+        diag = np.arange(L)
+        info[:, diag, diag] = (0.0 + st.B[idx]) + -t[:, diag, diag]
+        li = np.arange(L)
+        for n, q in enumerate(b):
+            sel = idx[n]
+            out[q] = (ks[starts[q]], sel, st.label[sel], li, np.bincount(li, st.U[sel], L), info[n])
+    return out
 
 
 def _screen(st, keep, sol, m, n_grouped):
@@ -547,14 +632,14 @@ def fix_offsets(table, g, m, sol) -> dict[int, str]:
 
             def p_of(x, k, s=s, dof_res=dof_res):
                 return float(fdtrc(k, dof_res, x / k / s ** 2))
-        found.append((i, key, sel, labs, li, S, I, p_of(stat, dof), p_of, s, common))
+        found.append((i, key, sel, labs, li, S, I, p_of(stat, dof), p_of, s, common, (Ii, r_full)))
     out: dict[int, str] = {}
-    for i, key, sel, labs, li, S, I, p, p_of, s, common in found:
+    for i, key, sel, labs, li, S, I, p, p_of, s, common, pinv in found:
         level = OFFSET_P / tested[i]
         if not p < level:
             continue
         col = st.columns[int(key % len(st.columns))]
-        j = explain(S, I, p_of, level)
+        j = explain(S, I, p_of, level, pinv=pinv, spread=False)       # diff_se: the sheet's texts only
         groups = [([k], j.contrast[n], j.contrast_se[n], j.contrast_p[n]) for n, k in enumerate(j.off)]
         if not common and j.rest and j.d0_p < level:
             groups.append((j.rest, j.d0, j.d0_se, j.d0_p))

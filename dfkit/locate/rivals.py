@@ -137,12 +137,15 @@ def find_rivals(lat, lon, theta, sd, g, counts, sol, lik, level, examine, known_
     if not plausible.any():
         return {}
     # The fix's S at each alternative's answer (exact geodesic residuals of all its bearings, weighted as in its
-    # region), against the fix's bound.
-    whole = subsets.variants(g, counts, [], v_fix)
+    # region, against the fix's bound. Only plausible alternatives can conflict: only they are measured (the
+    # geodesics of every bearing at every alternative's answer cost more than the rest of this test).
+    pv = np.flatnonzero(plausible)
+    whole = subsets.variants(g, counts, [], v_fix[pv])
     ao, ab = whole.owner, whole.member
-    az, _, _ = geodesy.inverse(lat[ab], lon[ab], alt.lat[ao], alt.lon[ao])
+    az, _, _ = geodesy.inverse(lat[ab], lon[ab], alt.lat[pv][ao], alt.lon[pv][ao])
     r = np.radians(((theta[ab] - az + 180.0) % 360.0) - 180.0)
-    S_fix_at_alt = np.bincount(ao, sol.region_weight[ab] * r * r, k)
+    S_fix_at_alt = np.zeros(k)
+    S_fix_at_alt[pv] = np.bincount(ao, sol.region_weight[ab] * r * r, len(pv))
     r_fix = np.radians(sol.residual_deg)
     S_fix_min = np.bincount(g, sol.region_weight * r_fix * r_fix, m)
     if lik is not None:
@@ -154,7 +157,7 @@ def find_rivals(lat, lon, theta, sd, g, counts, sol, lik, level, examine, known_
     r_centre = r_fix
     if lik is not None:
         tried = np.zeros(m, bool)
-        tried[v_fix] = True
+        tried[v_fix[pv]] = True         # the fixes with a plausible alternative (the others cannot conflict)
         has = tried[g] & lik.has_region[g] & np.isfinite(lik.centre_x[g]) & np.isfinite(lik.centre_y[g])
         if has.any():
             clat, clon = geodesy.from_local(sol.lat[g[has]], sol.lon[g[has]], lik.centre_x[g[has]],
