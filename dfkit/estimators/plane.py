@@ -35,22 +35,22 @@ def wrap_pi(a):
 class PlaneGeometry:
     """Bearings about the centres of their fixes (one entry per bearing, radians and metres).
 
-    ``sx``, ``sy`` station in the plane; ``phi`` observed bearing as a plane direction;
-    ``r`` residual at the centre (exact geodesic residual); ``az`` azimuth from the
-    centre to the station; ``d`` distance from the centre to the station; ``sp``,
-    ``cp`` sin and cos of ``phi``.
+    ``sx``, ``sy`` station in the plane; ``r`` residual at the centre (exact geodesic
+    residual); ``az`` azimuth from the centre to the station; ``d`` distance from the
+    centre to the station; ``sp``, ``cp`` sin and cos of the observed bearing as a plane
+    direction phi (phi itself is not kept: nothing reads it, and each geometry held is
+    one array per bearing smaller).
     """
 
     sx: np.ndarray
     sy: np.ndarray
-    phi: np.ndarray
     r: np.ndarray
     az: np.ndarray
     d: np.ndarray
     sp: np.ndarray
     cp: np.ndarray
 
-    _FIELDS = ("sx", "sy", "phi", "r", "az", "d", "sp", "cp")
+    _FIELDS = ("sx", "sy", "r", "az", "d", "sp", "cp")
 
     def take(self, sel) -> "PlaneGeometry":
         """Rows ``sel`` (a view for a slice, a copy for a mask or indices)."""
@@ -78,11 +78,14 @@ def geometry(station_lat, station_lon, theta_deg, centre_lat, centre_lon) -> Pla
     """Exact plane geometry of bearings about a centre (arrays of equal length)."""
     az_cs, az_sc, d = geodesy.inverse(centre_lat, centre_lon, station_lat, station_lon)
     a = np.radians(az_cs)
+    del az_cs
     r = wrap_pi(np.radians(theta_deg - az_sc))
-    mu = a + np.pi
-    phi = r + mu
-    return PlaneGeometry(sx=d * np.sin(a), sy=d * np.cos(a), phi=phi, r=r, az=a, d=np.maximum(d, 1e-9),
-                         sp=np.sin(phi), cp=np.cos(phi))
+    del az_sc
+    phi = a + np.pi                         # mu, the plane direction from the station to the centre
+    phi += r                                # r + mu
+    sp, cp = np.sin(phi), np.cos(phi)
+    del phi
+    return PlaneGeometry(sx=d * np.sin(a), sy=d * np.cos(a), r=r, az=a, d=np.maximum(d, 1e-9), sp=sp, cp=cp)
 
 
 def residuals(sp, cp, sx, sy, x, y):

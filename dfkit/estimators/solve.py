@@ -451,8 +451,10 @@ def _run(ctx, todo, x0, y0, into=None):
     iterations = np.zeros(m, np.int64)
     done = np.zeros(m, bool)
     failed = ~todo
+    # ``last`` is made only when a round writes to it (or at the end): a copy of the first plane made at the
+    # start would be alive, unused, through the first rounds, the largest ones
     if into is None:
-        last = ctx["geo0"].copy()
+        last = None
     else:
         last = into
         last.copy_rows(todo[g], ctx["geo0"])
@@ -469,10 +471,6 @@ def _run(ctx, todo, x0, y0, into=None):
         rows = slice(None) if sel.all() else sel
         if outer:
             gs = geometry(lat[rows], lon[rows], theta[rows], P_lat[g[rows]], P_lon[g[rows]])
-            if rows is sel:
-                last.put(sel, gs)
-            else:
-                last.share(gs)                  # gs is only read from here on
             sx0 = np.zeros(len(fixes))
             sy0 = np.zeros(len(fixes))
         else:
@@ -487,6 +485,17 @@ def _run(ctx, todo, x0, y0, into=None):
             px, py, end, its = iterate.optimise(spec, gs, cg, len(fixes), sx0, sy0, w[rows], s_b[rows], c, tol_in,
                                                 ctx["max_iter"], r_run[fixes])
         iterations[fixes] += its
+        if outer:
+            # the new centres' geometry, once the planar iterations (which only read it) are done with
+            # their temporaries
+            if rows is sel:
+                if last is None:
+                    last = ctx["geo0"].copy()
+                last.put(sel, gs)
+            elif last is None:
+                last = gs                       # gs is only read from here on
+            else:
+                last.share(gs)
         bad = end != iterate.SETTLED
         for code, name in _FROM_PLANAR.items():
             ending[fixes[end == code]] = name
@@ -496,8 +505,10 @@ def _run(ctx, todo, x0, y0, into=None):
             dmin = np.full(len(fixes), np.inf)
             dd = np.hypot(px[cg] - gs.sx, py[cg] - gs.sy)
             np.minimum.at(dmin, cg, dd)
+            del dd
             on = sing & (dmin < NEAR_STATION * ctx["spread"][fixes])
             ending[fixes[on]] = AT_STATION
+        del gs, sel, rows, cg                   # per-bearing arrays of this round, before the next round's
         failed[fixes[bad]] = True
         ok = ~bad
         mv = fixes[ok]
@@ -508,6 +519,8 @@ def _run(ctx, todo, x0, y0, into=None):
         failed[mv[far]] = True
         done[mv[~far & (step < tol_m)]] = True
     ending[todo & ~done & ~failed] = MAX_ITER
+    if last is None:
+        last = ctx["geo0"].copy()
     # Fixes that moved in their last round keep the geometry of their last centre, within tol_m of the answer.
     return dict(lat=P_lat, lon=P_lon, ending=ending, iterations=iterations, geo=last, done=done)
 
@@ -526,11 +539,22 @@ def _verify(ctx, todo, res):
     fixes = np.flatnonzero(verified)
     if not len(fixes):
         return verified
-    rows = slice(None) if len(fixes) == m else verified[g]
-    geo = res["geo"].take(rows)
-    cg = (np.cumsum(verified) - 1)[g[rows]]
-    good = _optimum_here(spec, geo, cg, len(fixes), w[rows], s_b[rows], c)
-    on_station = group_min(cg, geo.d, len(fixes)) < NEAR_STATION * ctx["spread"][fixes]
+    n = len(fixes)
+    if n == m:
+        geo, cg, n_bins, wr, sr = res["geo"], g, n, w, s_b
+    elif 2 * n > m:
+        # most fixes: every bearing is looked at in place (no copy of the geometry's rows), those of the
+        # other fixes summed into one more group that is dropped (each fix's sums are the same: np.bincount
+        # adds in bearing order within each group)
+        geo, n_bins, wr, sr = res["geo"], n + 1, w, s_b
+        cg = np.where(verified[g], (np.cumsum(verified) - 1)[g], n)
+    else:
+        rows = verified[g]
+        geo, n_bins, wr, sr = res["geo"].take(rows), n, w[rows], s_b[rows]
+        cg = (np.cumsum(verified) - 1)[g[rows]]
+    with np.errstate(all="ignore"):     # the dropped group's bearings may be of fixes that failed
+        good = _optimum_here(spec, geo, cg, n_bins, wr, sr, c)[:n]
+    on_station = group_min(cg, geo.d, n_bins)[:n] < NEAR_STATION * ctx["spread"][fixes]
     ending[fixes[~good]] = NOT_OPTIMUM
     ending[fixes[on_station]] = AT_STATION
     out = np.zeros(m, bool)
@@ -542,24 +566,55 @@ def _optimum_here(spec, geo, g, m, w, s, c):
     """Whether one more step from each fix's plane centre moves less than :data:`VERIFY_M` and, for the
     optimisers, the Newton matrix there is positive definite."""
     if spec.kind == "optimiser":
-        d2 = geo.d * geo.d
-        dx, dy = -geo.sx, -geo.sy
-        gx, gy = dy / d2, -dx / d2
+        # with (dx, dy) = -(sx, sy), the point minus the station at the centre: gx = dy / d2, gy = -dx / d2,
+        # k = f' / d2^2, kxy = 2 dx dy k, kd = (dx^2 - dy^2) k; computed in place, a few arrays at a time
+        # (negation is exact, so the values are those of the formulas as written)
         if spec.sc_terms is not None:
             f1, a, f2 = spec.sc_terms(*sin_cos_residuals(geo.sp, geo.cp, geo.sx, geo.sy, 0.0, 0.0)[:2], w, s, c)
         else:
             f1, a, f2 = spec.terms(geo.r, w, s, c)[1:]
-        b1, b2 = gsum(g, f1 * gx, m), gsum(g, f1 * gy, m)
-        k = f1 / (d2 * d2)
-        kxy = 2.0 * dx * dy * k
-        kd = (dx * dx - dy * dy) * k
-        h11 = gsum(g, f2 * gx * gx + kxy, m)
-        h12 = gsum(g, f2 * gx * gy - kd, m)
-        h22 = gsum(g, f2 * gy * gy - kxy, m)
+        d2 = geo.d * geo.d
+        gx = np.negative(geo.sy)
+        gx /= d2
+        gy = geo.sx / d2
+        t = f1 * gx
+        b1 = gsum(g, t, m)
+        np.multiply(f1, gy, out=t)
+        b2 = gsum(g, t, m)
+        k = np.multiply(d2, d2, out=d2)
+        del d2
+        np.divide(f1, k, out=k)
+        del f1
+        kxy = 2.0 * geo.sx
+        kxy *= geo.sy
+        kxy *= k
+        kd = np.multiply(geo.sx, geo.sx, out=t)
+        del t
+        t = geo.sy * geo.sy
+        kd -= t
+        kd *= k
+        del k
+        t = np.multiply(f2, gx, out=t)
+        t *= gx
+        t += kxy
+        h11 = gsum(g, t, m)
+        np.multiply(f2, gx, out=t)
+        t *= gy
+        t -= kd
+        h12 = gsum(g, t, m)
+        del kd
+        np.multiply(f2, gy, out=t)
+        t *= gy
+        t -= kxy
+        h22 = gsum(g, t, m)
+        del kxy, f2
         pd = (h11 > 0) & (h11 * h22 - h12 * h12 > 0)
-        a = np.broadcast_to(a, gx.shape)
-        j11, j12, j22 = (gsum(g, a * t, m) for t in (gx * gx, gx * gy, gy * gy))
-        sx_, sy_, _ = solve2(j11, j12, j22, b1, b2)
+        j = []
+        for u, v in ((gx, gx), (gx, gy), (gy, gy)):
+            np.multiply(u, v, out=t)
+            t *= a                              # a * (u v)
+            j.append(gsum(g, t, m))
+        sx_, sy_, _ = solve2(*j, b1, b2)
         with np.errstate(invalid="ignore"):
             return pd & (np.hypot(sx_, sy_) < VERIFY_M)
     if spec.kind == "closed":
