@@ -187,11 +187,12 @@ def solve(lat, lon, bearing_deg, group, n_groups, sd_deg=None, *, method="mle", 
     lon = np.asarray(lon, float).ravel()
     with np.errstate(invalid="ignore"):
         theta = np.mod(np.asarray(bearing_deg, float).ravel(), 360.0)
-    g = np.asarray(group).ravel().astype(np.int64)
+    g = np.asarray(group).ravel().astype(np.int64, copy=False)      # (read only: no copy of int64 input)
     m = int(n_groups)
     N = len(lat)
-    sd = np.full(N, np.nan) if sd_deg is None else np.broadcast_to(np.asarray(sd_deg, float), (N,)).copy()
-    floor_b = np.zeros(N) if sd_floor_deg is None else np.broadcast_to(np.asarray(sd_floor_deg, float), (N,)).copy()
+    # (both only read: views of the input, no copies)
+    sd = np.full(N, np.nan) if sd_deg is None else np.broadcast_to(np.asarray(sd_deg, float), (N,))
+    floor_b = np.zeros(N) if sd_floor_deg is None else np.broadcast_to(np.asarray(sd_floor_deg, float), (N,))
     _check_inputs(lat, lon, theta, g, m, sd, floor_b)
 
     counts = np.bincount(g, minlength=m)
@@ -201,6 +202,7 @@ def solve(lat, lon, bearing_deg, group, n_groups, sd_deg=None, *, method="mle", 
     known_g = (gsum(g, np.isfinite(sd).astype(float), m) == counts) & (counts > 0)
     known_b = known_g[g]
     sd_rad = np.radians(np.where(known_b, sd, np.nan))
+    del sd
     w = np.where(known_b, 1.0 / np.where(known_b, sd_rad, 1.0) ** 2, 1.0)
     w = w / (gsum(g, w, m) / np.maximum(counts, 1))[g]          # O(1) within each fix
 
@@ -219,7 +221,8 @@ def solve(lat, lon, bearing_deg, group, n_groups, sd_deg=None, *, method="mle", 
 
     # Starts, and the scale of the robust weights: the SD when known, else the trimmed scale at the
     # start, held fixed from then on.
-    s_b = np.where(known_b, sd_rad, np.nan)
+    # only the robust methods read the scale, and only they change it below; the others share sd_rad
+    s_b = np.where(known_b, sd_rad, np.nan) if spec.robust else sd_rad
     k_starts = FIXED_POINT_STARTS if spec.kind == "fixed_point" else MAX_STARTS
     x0 = np.full((m, k_starts), np.nan)
     y0 = np.full((m, k_starts), np.nan)
@@ -232,6 +235,7 @@ def solve(lat, lon, bearing_deg, group, n_groups, sd_deg=None, *, method="mle", 
         has_lsq = base & np.isfinite(lx) & np.isfinite(ly) & (ratio > 1e-12)
         r_l = residuals(geo0.sp, geo0.cp, geo0.sx, geo0.sy, np.nan_to_num(lx[g]), np.nan_to_num(ly[g]))[0]
         clean = has_lsq & _looks_clean(r_l, g, m, counts, known_b, sd_rad)
+        del r_l
         x0[clean, 0], y0[clean, 0] = lx[clean], ly[clean]
         starter = _Starter(spec, geo0, g, m, counts, w, s_b, c, spread, known_g)
         starter.fill(base & ~clean, x0, y0, n_starts, searched)
@@ -482,8 +486,9 @@ def _run(ctx, todo, x0, y0, into=None):
             px, py, end, its = iterate.fixed_point(gs, cg, len(fixes), sx0, sy0, w[rows], tol_in,
                                                    ctx["max_iter"], r_run[fixes])
         else:
-            px, py, end, its = iterate.optimise(spec, gs, cg, len(fixes), sx0, sy0, w[rows], s_b[rows], c, tol_in,
-                                                ctx["max_iter"], r_run[fixes])
+            px, py, end, its = iterate.optimise(spec, gs, cg, len(fixes), sx0, sy0, w[rows],
+                                                _scale_rows(spec, s_b, rows), c, tol_in, ctx["max_iter"],
+                                                r_run[fixes])
         iterations[fixes] += its
         if outer:
             # the new centres' geometry, once the planar iterations (which only read it) are done with
@@ -525,6 +530,15 @@ def _run(ctx, todo, x0, y0, into=None):
     return dict(lat=P_lat, lon=P_lon, ending=ending, iterations=iterations, geo=last, done=done)
 
 
+def _scale_rows(spec, s_b, rows):
+    """The robust scale of the bearings ``rows``: a copy for the robust methods; the others never read it,
+    so they are given a read-only NaN view of the right length instead of a copy."""
+    if spec.robust:
+        return s_b[rows]
+    n = len(s_b) if isinstance(rows, slice) else int(np.count_nonzero(rows))
+    return np.broadcast_to(np.nan, (n,))
+
+
 def _gradients(geo):
     d = geo.d
     return -geo.sy / (d * d), geo.sx / (d * d)      # at the centre: point minus station = -S
@@ -550,7 +564,7 @@ def _verify(ctx, todo, res):
         cg = np.where(verified[g], (np.cumsum(verified) - 1)[g], n)
     else:
         rows = verified[g]
-        geo, n_bins, wr, sr = res["geo"].take(rows), n, w[rows], s_b[rows]
+        geo, n_bins, wr, sr = res["geo"].take(rows), n, w[rows], _scale_rows(spec, s_b, rows)
         cg = (np.cumsum(verified) - 1)[g[rows]]
     with np.errstate(all="ignore"):     # the dropped group's bearings may be of fixes that failed
         good = _optimum_here(spec, geo, cg, n_bins, wr, sr, c)[:n]
