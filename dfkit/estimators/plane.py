@@ -115,9 +115,9 @@ def _offsets(sx, sy, x, y, at=None):
         dx -= sx
         dy = y[at]
         dy -= sy
-    d2 = dx * dx
-    t = np.multiply(dy, dy)
     with np.errstate(over="ignore"):
+        d2 = dx * dx
+        t = np.multiply(dy, dy)
         d2 += t
     np.maximum(d2, 1e-18, out=d2)
     return dx, dy, d2, t
