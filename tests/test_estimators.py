@@ -493,3 +493,58 @@ def test_a_later_start_is_placed_in_the_first_plane(method):
     assert WGS.Inverse(ref[0], ref[1], s.lat[0], s.lon[0])["s12"] < 0.05
     # and away from every station (the likelihood has no optimum on a station)
     assert min(WGS.Inverse(la, lo, s.lat[0], s.lon[0])["s12"] for la, lo in st) > 50.0
+
+
+def test_plane_residuals_at_gathered_points_match_the_compass_angle_formula():
+    """Residuals at each fix's point, gathered by an index per bearing, against the definition: the observed
+    plane direction minus the compass direction atan2(east, north) of point minus station, wrapped to
+    (-pi, pi] (numpy's arctan2 on the offsets, not dfkit's formula)."""
+    from dfkit.estimators.plane import residuals, sin_cos_residuals
+
+    rng = np.random.default_rng(7)
+    n_fix, n = 50, 400
+    at = rng.integers(0, n_fix, n)
+    x, y = rng.normal(0, 500, n_fix), rng.normal(0, 500, n_fix)
+    sx, sy = rng.normal(0, 800, n), rng.normal(0, 800, n)
+    phi = rng.uniform(-np.pi, np.pi, n)
+    sp, cp = np.sin(phi), np.cos(phi)
+    ref = np.angle(np.exp(1j * (phi - np.arctan2(x[at] - sx, y[at] - sy))))
+    before = [v.copy() for v in (x, y, sx, sy)]
+    r, dx, dy, d2 = residuals(sp, cp, sx, sy, x, y, at)
+    np.testing.assert_allclose(r, ref, rtol=0, atol=1e-12)
+    np.testing.assert_allclose(d2, np.hypot(x[at] - sx, y[at] - sy) ** 2, rtol=1e-12)
+    sn, cs = sin_cos_residuals(sp, cp, sx, sy, x, y, at)[:2]
+    np.testing.assert_allclose(sn, np.sin(ref), rtol=0, atol=1e-12)
+    np.testing.assert_allclose(cs, np.cos(ref), rtol=0, atol=1e-12)
+    # the inputs are left as they were (the offsets are computed in arrays of their own)
+    for v, v0 in zip((x, y, sx, sy), before):
+        np.testing.assert_array_equal(v, v0)
+
+
+def test_mle_fixes_solved_together_beside_a_fix_that_cannot_be_solved_match_a_general_optimiser():
+    """Several fixes in one call, one of them a lone bearing (never verified), so that the others are
+    checked beside bearings of a fix that failed: each fix against scipy's Nelder-Mead on Lenth's (1981)
+    likelihood, sum cos(residual), with geographiclib azimuths (as in the single-fix test above)."""
+    rng = np.random.default_rng(3)
+    base = np.array([(47.0, 15.0), (47.0, 15.013), (47.013, 15.016), (47.014, 14.996)])
+    lat, lon, obs, grp, truth = [], [], [], [], []
+    for k in range(2):
+        st = base + np.array([0.05 * k, 0.04 * k])
+        tgt = (47.008 + 0.05 * k, 15.005 + 0.04 * k)
+        b = exact_bearings(st, tgt) + rng.normal(0, 2.0, len(st))
+        lat += list(st[:, 0]); lon += list(st[:, 1]); obs += list(b); grp += [k] * len(st); truth.append(tgt)
+    lat.append(46.5); lon.append(14.5); obs.append(30.0); grp.append(2)      # a lone bearing
+    s = estimators.solve(np.array(lat), np.array(lon), np.array(obs), np.array(grp), 3, method="mle")
+    assert not s.converged[2]
+    g = np.array(grp)
+    for k in range(2):
+        st = np.column_stack([np.array(lat)[g == k], np.array(lon)[g == k]])
+        ob = np.array(obs)[g == k]
+
+        def negll(p):
+            return -np.sum(np.cos(np.radians(ob - exact_bearings(st, p))))
+
+        ref = optimize.minimize(negll, truth[k], method="Nelder-Mead",
+                                options={"xatol": 1e-10, "fatol": 1e-14, "maxiter": 5000}).x
+        assert s.converged[k]
+        assert WGS.Inverse(ref[0], ref[1], s.lat[k], s.lon[k])["s12"] < 0.01

@@ -93,8 +93,8 @@ class _AngleForm:
     def __init__(self, method):
         self.terms, self.obj = method.terms, method.objective
 
-    def at(self, b, x, y):
-        r, dx, dy, d2 = residuals(b["sp"], b["cp"], b["sx"], b["sy"], x, y)
+    def at(self, b, x, y, at=None):
+        r, dx, dy, d2 = residuals(b["sp"], b["cp"], b["sx"], b["sy"], x, y, at)
         return dict(r=r, dx=dx, dy=dy, d2=d2)
 
     @staticmethod
@@ -117,8 +117,8 @@ class _SinCosForm:
     def __init__(self, method):
         self.terms, self.obj = method.sc_terms, method.sc_objective
 
-    def at(self, b, x, y):
-        sn, cs, dx, dy, d2 = sin_cos_residuals(b["sp"], b["cp"], b["sx"], b["sy"], x, y)
+    def at(self, b, x, y, at=None):
+        sn, cs, dx, dy, d2 = sin_cos_residuals(b["sp"], b["cp"], b["sx"], b["sy"], x, y, at)
         return dict(sn=sn, cs=cs, dx=dx, dy=dy, d2=d2)
 
     def at_centre(self, geo, b):
@@ -151,7 +151,7 @@ def optimise(method, geo, cg, mg, x, y, w, s, c, tol, max_iter, r_run):
     if not (x.any() or y.any()):
         b.update(form.at_centre(geo, b))
     else:
-        b.update(form.at(b, x[cg], y[cg]))
+        b.update(form.at(b, x, y, cg))
     F = gsum(cg, form.objective(b, b, c), mg)
     work = _Packed(b, cg, mg)
     state = form.names + ("dx", "dy", "d2")
@@ -172,7 +172,7 @@ def optimise(method, geo, cg, mg, x, y, w, s, c, tol, max_iter, r_run):
         step_len = np.hypot(sx_, sy_)
         # the whole step, tried on every fix held at once
         xt, yt = x[grp] + sx_, y[grp] + sy_
-        trial = form.at(b, xt[bcg], yt[bcg])
+        trial = form.at(b, xt, yt, bcg)
         Ft = gsum(bcg, form.objective(trial, b, c), len(grp))
         ok, floor = _armijo(Ft, F[grp], 1.0, slope, step_len, tol)
         ok &= live
@@ -208,16 +208,35 @@ def _newton(slopes, dx, dy, d2, cg, n_g):
     Returns the step (sx, sy), the gradient (b1, b2), the conditioning ratio of the matrix used and whether
     it was Newton's."""
     f1, a, f2 = slopes
-    inv = 1.0 / d2
-    gx, gy = dy * inv, -dx * inv                      # gradient of the predicted bearing
-    b1, b2 = gsum(cg, f1 * gx, n_g), gsum(cg, f1 * gy, n_g)
+    # (in place, a few per-bearing arrays at a time; the values are those of the formulas in the comments)
+    tmp = np.divide(1.0, d2)                          # inv = 1 / d2
+    gx = dy * tmp                                     # gradient of the predicted bearing: dy inv, -dx inv
+    gy = np.negative(dx)
+    gy *= tmp
+    np.multiply(f1, gx, out=tmp)
+    b1 = gsum(cg, tmp, n_g)
+    np.multiply(f1, gy, out=tmp)
+    b2 = gsum(cg, tmp, n_g)
     # Newton matrix of sum f(r): f'' g g^T - f' dg/dP, dg/dP = [[-2xy, x2-y2], [x2-y2, 2xy]] / d^4, which
     # is [[2 gx gy, gy^2 - gx^2], [gy^2 - gx^2, -2 gx gy]] in terms of g
-    p, q, t = gx * gx, gx * gy, gy * gy
-    fq = 2.0 * f1 * q
-    h11 = gsum(cg, f2 * p - fq, n_g)
-    h12 = gsum(cg, f2 * q - f1 * (t - p), n_g)
-    h22 = gsum(cg, f2 * t + fq, n_g)
+    q = gx * gy
+    p = np.multiply(gx, gx, out=gx)                   # p, q, t = gx^2, gx gy, gy^2
+    t = np.multiply(gy, gy, out=gy)
+    del gx, gy
+    two = np.subtract(t, p)                           # h12 = sum f2 q - f1 (t - p)
+    two *= f1
+    np.multiply(f2, q, out=tmp)
+    tmp -= two
+    h12 = gsum(cg, tmp, n_g)
+    fq = np.multiply(2.0, f1, out=two)                # fq = 2 f1 q
+    fq *= q
+    np.multiply(f2, p, out=tmp)                       # h11 = sum f2 p - fq
+    tmp -= fq
+    h11 = gsum(cg, tmp, n_g)
+    np.multiply(f2, t, out=tmp)                       # h22 = sum f2 t + fq
+    tmp += fq
+    h22 = gsum(cg, tmp, n_g)
+    del tmp, fq, two
     nonpd = ~((h11 > 0) & (h11 * h22 - h12 * h12 > 0))
     if nonpd.any():
         # the scoring matrix, summed over the bearings of those fixes only
@@ -264,7 +283,7 @@ def _halve(form, b, grp, bcg, sel_g, x, y, F, sx_, sy_, lam, slope, step_len, ac
         rows = np.tile(bsub, kk)
         owner = (np.arange(kk)[:, None] * n + local).ravel()
         sub = {k: b[k][rows] for k in ("sp", "cp", "sx", "sy", "w", "s")}
-        trial = form.at(sub, xt.ravel()[owner], yt.ravel()[owner])
+        trial = form.at(sub, xt.ravel(), yt.ravel(), owner)
         Ft = gsum(owner, form.objective(trial, sub, c), kk * n).reshape(kk, n)
         ok, floor = _armijo(Ft, F[grp[sel_g]], lams, slope[sel_g], step_len[sel_g], tol)
         first = np.argmax(ok | floor, axis=0)                             # the first try that passes

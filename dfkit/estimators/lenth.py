@@ -37,8 +37,14 @@ def sc_terms(sn, cs, w, s, c):
 def sc_objective(sn, cs, w, s, c):
     """The objective w (1 - cos r) from sin r and cos r, as sin^2 r / (1 + cos r) where cos r > 0 so that its
     small values keep their relative precision."""
+    out = np.add(1.0, cs)
+    t = np.multiply(sn, sn)
     with np.errstate(divide="ignore", invalid="ignore"):     # the branch not taken where cos r = -1
-        return w * np.where(cs > 0, sn * sn / (1.0 + cs), 1.0 - cs)
+        np.divide(t, out, out=out)
+    np.subtract(1.0, cs, out=t)
+    np.copyto(out, t, where=~(cs > 0))      # where(cs > 0, sn^2 / (1 + cs), 1 - cs), in place
+    out *= w
+    return out
 
 
 def weights(r, s, c):

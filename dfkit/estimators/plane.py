@@ -35,22 +35,22 @@ def wrap_pi(a):
 class PlaneGeometry:
     """Bearings about the centres of their fixes (one entry per bearing, radians and metres).
 
-    ``sx``, ``sy`` station in the plane; ``phi`` observed bearing as a plane direction;
-    ``r`` residual at the centre (exact geodesic residual); ``az`` azimuth from the
-    centre to the station; ``d`` distance from the centre to the station; ``sp``,
-    ``cp`` sin and cos of ``phi``.
+    ``sx``, ``sy`` station in the plane; ``r`` residual at the centre (exact geodesic
+    residual); ``az`` azimuth from the centre to the station; ``d`` distance from the
+    centre to the station; ``sp``, ``cp`` sin and cos of the observed bearing as a plane
+    direction phi (phi itself is not kept: nothing reads it, and each geometry held is
+    one array per bearing smaller).
     """
 
     sx: np.ndarray
     sy: np.ndarray
-    phi: np.ndarray
     r: np.ndarray
     az: np.ndarray
     d: np.ndarray
     sp: np.ndarray
     cp: np.ndarray
 
-    _FIELDS = ("sx", "sy", "phi", "r", "az", "d", "sp", "cp")
+    _FIELDS = ("sx", "sy", "r", "az", "d", "sp", "cp")
 
     def take(self, sel) -> "PlaneGeometry":
         """Rows ``sel`` (a view for a slice, a copy for a mask or indices)."""
@@ -78,38 +78,72 @@ def geometry(station_lat, station_lon, theta_deg, centre_lat, centre_lon) -> Pla
     """Exact plane geometry of bearings about a centre (arrays of equal length)."""
     az_cs, az_sc, d = geodesy.inverse(centre_lat, centre_lon, station_lat, station_lon)
     a = np.radians(az_cs)
+    del az_cs
     r = wrap_pi(np.radians(theta_deg - az_sc))
-    mu = a + np.pi
-    phi = r + mu
-    return PlaneGeometry(sx=d * np.sin(a), sy=d * np.cos(a), phi=phi, r=r, az=a, d=np.maximum(d, 1e-9),
-                         sp=np.sin(phi), cp=np.cos(phi))
+    del az_sc
+    phi = a + np.pi                         # mu, the plane direction from the station to the centre
+    phi += r                                # r + mu
+    sp, cp = np.sin(phi), np.cos(phi)
+    del phi
+    return PlaneGeometry(sx=d * np.sin(a), sy=d * np.cos(a), r=r, az=a, d=np.maximum(d, 1e-9), sp=sp, cp=cp)
 
 
-def residuals(sp, cp, sx, sy, x, y):
+def residuals(sp, cp, sx, sy, x, y, at=None):
     """Plane residuals of bearings at points (x, y), with the offsets and squared distances.
 
-    ``sp``, ``cp`` are sin and cos of the observed plane directions. Returns r [rad],
-    dx, dy [m] (point minus station) and d2 [m^2].
+    ``sp``, ``cp`` are sin and cos of the observed plane directions; with ``at`` (an index per bearing),
+    each bearing's point is ``(x[at], y[at])``. Returns r [rad], dx, dy [m] (point minus station) and
+    d2 [m^2].
     """
-    dx = x - sx
-    dy = y - sy
-    with np.errstate(over="ignore"):
-        d2 = np.maximum(dx * dx + dy * dy, 1e-18)
+    dx, dy, d2, t = _offsets(sx, sy, x, y, at)
+    across, along = _components(sp, cp, dx, dy, t)
     # the signed angle from (dx, dy) to the direction phi, in (-pi, pi], without wrapping
-    return np.arctan2(sp * dy - cp * dx, sp * dx + cp * dy), dx, dy, d2
+    r = np.arctan2(across, along, out=t)
+    return r, dx, dy, d2
 
 
-def sin_cos_residuals(sp, cp, sx, sy, x, y):
+def _offsets(sx, sy, x, y, at=None):
+    """dx, dy (point minus station, the point ``(x[at], y[at])`` with ``at``), d2 = max(dx^2 + dy^2, 1e-18)
+    and a spare array of their size.
+
+    In-place arithmetic keeps few per-bearing arrays alive at once; the values are those of the formula."""
+    if at is None:
+        dx = x - sx
+        dy = y - sy
+    else:                                   # gathered straight into the arrays of the offsets
+        dx = x[at]
+        dx -= sx
+        dy = y[at]
+        dy -= sy
+    with np.errstate(over="ignore"):
+        d2 = dx * dx
+        t = np.multiply(dy, dy)
+        d2 += t
+    np.maximum(d2, 1e-18, out=d2)
+    return dx, dy, d2, t
+
+
+def _components(sp, cp, dx, dy, t):
+    """The components of the direction phi across (sp dy - cp dx) and along (sp dx + cp dy) the offset
+    (dx, dy); ``t`` is overwritten."""
+    across = sp * dy
+    np.multiply(cp, dx, out=t)
+    across -= t
+    along = sp * dx
+    np.multiply(cp, dy, out=t)
+    along += t
+    return across, along
+
+
+def sin_cos_residuals(sp, cp, sx, sy, x, y, at=None):
     """As :func:`residuals`, but sin r and cos r in place of r (no arctan2: the two components of the
     direction phi in the frame of (dx, dy), divided by their length). Returns sin r, cos r, dx, dy, d2."""
-    dx = x - sx
-    dy = y - sy
-    with np.errstate(over="ignore"):
-        d2 = np.maximum(dx * dx + dy * dy, 1e-18)
-    across = sp * dy - cp * dx
-    along = sp * dx + cp * dy
-    h = np.sqrt(d2)                         # = hypot(across, along), (sp, cp) being a unit vector
-    sn, cs = across / h, along / h
+    dx, dy, d2, t = _offsets(sx, sy, x, y, at)
+    sn, cs = _components(sp, cp, dx, dy, t)
+    h = np.sqrt(d2, out=t)                  # = hypot(across, along), (sp, cp) being a unit vector
+    sn /= h
+    cs /= h
+    del h, t
     if (d2 <= 1e-18).any():                 # a point on a station: r = 0, as arctan2(0, 0)
         on = d2 <= 1e-18
         sn[on], cs[on] = 0.0, 1.0

@@ -187,11 +187,12 @@ def solve(lat, lon, bearing_deg, group, n_groups, sd_deg=None, *, method="mle", 
     lon = np.asarray(lon, float).ravel()
     with np.errstate(invalid="ignore"):
         theta = np.mod(np.asarray(bearing_deg, float).ravel(), 360.0)
-    g = np.asarray(group).ravel().astype(np.int64)
+    g = np.asarray(group).ravel().astype(np.int64, copy=False)      # (read only: no copy of int64 input)
     m = int(n_groups)
     N = len(lat)
-    sd = np.full(N, np.nan) if sd_deg is None else np.broadcast_to(np.asarray(sd_deg, float), (N,)).copy()
-    floor_b = np.zeros(N) if sd_floor_deg is None else np.broadcast_to(np.asarray(sd_floor_deg, float), (N,)).copy()
+    # (both only read: views of the input, no copies)
+    sd = np.full(N, np.nan) if sd_deg is None else np.broadcast_to(np.asarray(sd_deg, float), (N,))
+    floor_b = np.zeros(N) if sd_floor_deg is None else np.broadcast_to(np.asarray(sd_floor_deg, float), (N,))
     _check_inputs(lat, lon, theta, g, m, sd, floor_b)
 
     counts = np.bincount(g, minlength=m)
@@ -201,6 +202,7 @@ def solve(lat, lon, bearing_deg, group, n_groups, sd_deg=None, *, method="mle", 
     known_g = (gsum(g, np.isfinite(sd).astype(float), m) == counts) & (counts > 0)
     known_b = known_g[g]
     sd_rad = np.radians(np.where(known_b, sd, np.nan))
+    del sd
     w = np.where(known_b, 1.0 / np.where(known_b, sd_rad, 1.0) ** 2, 1.0)
     w = w / (gsum(g, w, m) / np.maximum(counts, 1))[g]          # O(1) within each fix
 
@@ -219,7 +221,8 @@ def solve(lat, lon, bearing_deg, group, n_groups, sd_deg=None, *, method="mle", 
 
     # Starts, and the scale of the robust weights: the SD when known, else the trimmed scale at the
     # start, held fixed from then on.
-    s_b = np.where(known_b, sd_rad, np.nan)
+    # only the robust methods read the scale, and only they change it below; the others share sd_rad
+    s_b = np.where(known_b, sd_rad, np.nan) if spec.robust else sd_rad
     k_starts = FIXED_POINT_STARTS if spec.kind == "fixed_point" else MAX_STARTS
     x0 = np.full((m, k_starts), np.nan)
     y0 = np.full((m, k_starts), np.nan)
@@ -232,6 +235,7 @@ def solve(lat, lon, bearing_deg, group, n_groups, sd_deg=None, *, method="mle", 
         has_lsq = base & np.isfinite(lx) & np.isfinite(ly) & (ratio > 1e-12)
         r_l = residuals(geo0.sp, geo0.cp, geo0.sx, geo0.sy, np.nan_to_num(lx[g]), np.nan_to_num(ly[g]))[0]
         clean = has_lsq & _looks_clean(r_l, g, m, counts, known_b, sd_rad)
+        del r_l
         x0[clean, 0], y0[clean, 0] = lx[clean], ly[clean]
         starter = _Starter(spec, geo0, g, m, counts, w, s_b, c, spread, known_g)
         starter.fill(base & ~clean, x0, y0, n_starts, searched)
@@ -451,8 +455,10 @@ def _run(ctx, todo, x0, y0, into=None):
     iterations = np.zeros(m, np.int64)
     done = np.zeros(m, bool)
     failed = ~todo
+    # ``last`` is made only when a round writes to it (or at the end): a copy of the first plane made at the
+    # start would be alive, unused, through the first rounds, the largest ones
     if into is None:
-        last = ctx["geo0"].copy()
+        last = None
     else:
         last = into
         last.copy_rows(todo[g], ctx["geo0"])
@@ -469,10 +475,6 @@ def _run(ctx, todo, x0, y0, into=None):
         rows = slice(None) if sel.all() else sel
         if outer:
             gs = geometry(lat[rows], lon[rows], theta[rows], P_lat[g[rows]], P_lon[g[rows]])
-            if rows is sel:
-                last.put(sel, gs)
-            else:
-                last.share(gs)                  # gs is only read from here on
             sx0 = np.zeros(len(fixes))
             sy0 = np.zeros(len(fixes))
         else:
@@ -484,9 +486,21 @@ def _run(ctx, todo, x0, y0, into=None):
             px, py, end, its = iterate.fixed_point(gs, cg, len(fixes), sx0, sy0, w[rows], tol_in,
                                                    ctx["max_iter"], r_run[fixes])
         else:
-            px, py, end, its = iterate.optimise(spec, gs, cg, len(fixes), sx0, sy0, w[rows], s_b[rows], c, tol_in,
-                                                ctx["max_iter"], r_run[fixes])
+            px, py, end, its = iterate.optimise(spec, gs, cg, len(fixes), sx0, sy0, w[rows],
+                                                _scale_rows(spec, s_b, rows), c, tol_in, ctx["max_iter"],
+                                                r_run[fixes])
         iterations[fixes] += its
+        if outer:
+            # the new centres' geometry, once the planar iterations (which only read it) are done with
+            # their temporaries
+            if rows is sel:
+                if last is None:
+                    last = ctx["geo0"].copy()
+                last.put(sel, gs)
+            elif last is None:
+                last = gs                       # gs is only read from here on
+            else:
+                last.share(gs)
         bad = end != iterate.SETTLED
         for code, name in _FROM_PLANAR.items():
             ending[fixes[end == code]] = name
@@ -496,8 +510,10 @@ def _run(ctx, todo, x0, y0, into=None):
             dmin = np.full(len(fixes), np.inf)
             dd = np.hypot(px[cg] - gs.sx, py[cg] - gs.sy)
             np.minimum.at(dmin, cg, dd)
+            del dd
             on = sing & (dmin < NEAR_STATION * ctx["spread"][fixes])
             ending[fixes[on]] = AT_STATION
+        del gs, sel, rows, cg                   # per-bearing arrays of this round, before the next round's
         failed[fixes[bad]] = True
         ok = ~bad
         mv = fixes[ok]
@@ -508,8 +524,19 @@ def _run(ctx, todo, x0, y0, into=None):
         failed[mv[far]] = True
         done[mv[~far & (step < tol_m)]] = True
     ending[todo & ~done & ~failed] = MAX_ITER
+    if last is None:
+        last = ctx["geo0"].copy()
     # Fixes that moved in their last round keep the geometry of their last centre, within tol_m of the answer.
     return dict(lat=P_lat, lon=P_lon, ending=ending, iterations=iterations, geo=last, done=done)
+
+
+def _scale_rows(spec, s_b, rows):
+    """The robust scale of the bearings ``rows``: a copy for the robust methods; the others never read it,
+    so they are given a read-only NaN view of the right length instead of a copy."""
+    if spec.robust:
+        return s_b[rows]
+    n = len(s_b) if isinstance(rows, slice) else int(np.count_nonzero(rows))
+    return np.broadcast_to(np.nan, (n,))
 
 
 def _gradients(geo):
@@ -526,11 +553,22 @@ def _verify(ctx, todo, res):
     fixes = np.flatnonzero(verified)
     if not len(fixes):
         return verified
-    rows = slice(None) if len(fixes) == m else verified[g]
-    geo = res["geo"].take(rows)
-    cg = (np.cumsum(verified) - 1)[g[rows]]
-    good = _optimum_here(spec, geo, cg, len(fixes), w[rows], s_b[rows], c)
-    on_station = group_min(cg, geo.d, len(fixes)) < NEAR_STATION * ctx["spread"][fixes]
+    n = len(fixes)
+    if n == m:
+        geo, cg, n_bins, wr, sr = res["geo"], g, n, w, s_b
+    elif 2 * n > m:
+        # most fixes: every bearing is looked at in place (no copy of the geometry's rows), those of the
+        # other fixes summed into one more group that is dropped (each fix's sums are the same: np.bincount
+        # adds in bearing order within each group)
+        geo, n_bins, wr, sr = res["geo"], n + 1, w, s_b
+        cg = np.where(verified[g], (np.cumsum(verified) - 1)[g], n)
+    else:
+        rows = verified[g]
+        geo, n_bins, wr, sr = res["geo"].take(rows), n, w[rows], _scale_rows(spec, s_b, rows)
+        cg = (np.cumsum(verified) - 1)[g[rows]]
+    with np.errstate(all="ignore"):     # the dropped group's bearings may be of fixes that failed
+        good = _optimum_here(spec, geo, cg, n_bins, wr, sr, c)[:n]
+    on_station = group_min(cg, geo.d, n_bins)[:n] < NEAR_STATION * ctx["spread"][fixes]
     ending[fixes[~good]] = NOT_OPTIMUM
     ending[fixes[on_station]] = AT_STATION
     out = np.zeros(m, bool)
@@ -542,24 +580,55 @@ def _optimum_here(spec, geo, g, m, w, s, c):
     """Whether one more step from each fix's plane centre moves less than :data:`VERIFY_M` and, for the
     optimisers, the Newton matrix there is positive definite."""
     if spec.kind == "optimiser":
-        d2 = geo.d * geo.d
-        dx, dy = -geo.sx, -geo.sy
-        gx, gy = dy / d2, -dx / d2
+        # with (dx, dy) = -(sx, sy), the point minus the station at the centre: gx = dy / d2, gy = -dx / d2,
+        # k = f' / d2^2, kxy = 2 dx dy k, kd = (dx^2 - dy^2) k; computed in place, a few arrays at a time
+        # (negation is exact, so the values are those of the formulas as written)
         if spec.sc_terms is not None:
             f1, a, f2 = spec.sc_terms(*sin_cos_residuals(geo.sp, geo.cp, geo.sx, geo.sy, 0.0, 0.0)[:2], w, s, c)
         else:
             f1, a, f2 = spec.terms(geo.r, w, s, c)[1:]
-        b1, b2 = gsum(g, f1 * gx, m), gsum(g, f1 * gy, m)
-        k = f1 / (d2 * d2)
-        kxy = 2.0 * dx * dy * k
-        kd = (dx * dx - dy * dy) * k
-        h11 = gsum(g, f2 * gx * gx + kxy, m)
-        h12 = gsum(g, f2 * gx * gy - kd, m)
-        h22 = gsum(g, f2 * gy * gy - kxy, m)
+        d2 = geo.d * geo.d
+        gx = np.negative(geo.sy)
+        gx /= d2
+        gy = geo.sx / d2
+        t = f1 * gx
+        b1 = gsum(g, t, m)
+        np.multiply(f1, gy, out=t)
+        b2 = gsum(g, t, m)
+        k = np.multiply(d2, d2, out=d2)
+        del d2
+        np.divide(f1, k, out=k)
+        del f1
+        kxy = 2.0 * geo.sx
+        kxy *= geo.sy
+        kxy *= k
+        kd = np.multiply(geo.sx, geo.sx, out=t)
+        del t
+        t = geo.sy * geo.sy
+        kd -= t
+        kd *= k
+        del k
+        t = np.multiply(f2, gx, out=t)
+        t *= gx
+        t += kxy
+        h11 = gsum(g, t, m)
+        np.multiply(f2, gx, out=t)
+        t *= gy
+        t -= kd
+        h12 = gsum(g, t, m)
+        del kd
+        np.multiply(f2, gy, out=t)
+        t *= gy
+        t -= kxy
+        h22 = gsum(g, t, m)
+        del kxy, f2
         pd = (h11 > 0) & (h11 * h22 - h12 * h12 > 0)
-        a = np.broadcast_to(a, gx.shape)
-        j11, j12, j22 = (gsum(g, a * t, m) for t in (gx * gx, gx * gy, gy * gy))
-        sx_, sy_, _ = solve2(j11, j12, j22, b1, b2)
+        j = []
+        for u, v in ((gx, gx), (gx, gy), (gy, gy)):
+            np.multiply(u, v, out=t)
+            t *= a                              # a * (u v)
+            j.append(gsum(g, t, m))
+        sx_, sy_, _ = solve2(*j, b1, b2)
         with np.errstate(invalid="ignore"):
             return pd & (np.hypot(sx_, sy_) < VERIFY_M)
     if spec.kind == "closed":
