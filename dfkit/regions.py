@@ -624,6 +624,11 @@ class _Rays:
         self.E = (ax[:, :, None] * cu - ay[:, :, None] * su).reshape(flat)
         self.v = np.ascontiguousarray(v.T)
         self.T = T
+        self.unweighted = np.where(self.v > 0, 0.0, np.inf) if (self.v <= 0).any() else None
+
+    def _parts_of(self, a, i):
+        """A per-fix (n, M) array shaped like :meth:`_parts`' A."""
+        return a[:, :, None] if i is None else a[:, i // self.K]
 
     def _parts(self, i):
         """(A, C, v, T) of the rays' fixes and (B, D, E) of the rays, shaped to broadcast to (n, rays) or,
@@ -664,8 +669,15 @@ class _Rays:
         np.maximum(cross, 1e-18, out=cross)
         # how far the point may move before a residual can wrap past pi: a move of s turns the direction from a
         # station at distance |d| by at most s / (|d| - s)
-        room = np.pi - np.abs(r)
-        safe = np.where(v > 0, room * np.sqrt(cross) / (1.0 + room), np.inf).min(axis=0)
+        room = np.abs(r)
+        np.subtract(np.pi, room, out=room)
+        safe = np.sqrt(cross)
+        safe *= room
+        room += 1.0
+        safe /= room
+        if self.unweighted is not None:          # bearings left out never limit the move
+            safe += self._parts_of(self.unweighted, i)
+        safe = safe.min(axis=0)
         np.divide(E, cross, out=cross)
         cross *= vr
         return f.ravel(), 2.0 * cross.sum(0).ravel(), safe.ravel()
@@ -755,16 +767,19 @@ def _edges(rays, rho, R, gap, curv):
         newton_in = (newton > lo_l) & (newton < top)
         close = (af <= 1e-3 * gap_l) & (af <= 5e-4 * df * r)      # Newton's step within 5e-4 of the radius
         done = settle | close | (hi_l - lo_l <= 1e-5 * r) | (neg & (r >= R_l))
-        # a bracket (lo > 0, hi finite) that has not halved since the last one is bisected
-        w = np.where((lo_l > 0) & np.isfinite(hi_l), hi_l - lo_l, np.inf)
-        slow = np.isfinite(w) & (w > 0.5 * width[at])
-        width[at] = w
-        step = np.where(np.isfinite(hi_l), 0.5 * (lo_l + hi_l), np.minimum(2.0 * r, R_l))
-        step = np.where(slow, step, np.where(quartic_in, quartic, np.where(cubic_in, cubic, np.where(
-            newton_in, newton, step))))
         # a ray done by the Newton rule takes that last step: its error is then about the square of the step's
-        end = np.where(close & newton_in, newton, r)
-        rho[at] = np.where(by_quartic, quartic, np.where(by_cubic, cubic, np.where(done, end, step)))
+        new_rho = np.where(by_quartic, quartic, np.where(by_cubic, cubic, np.where(close & newton_in, newton, r)))
+        go = np.flatnonzero(~done)                      # the next step only for the rays still searched
+        lo_g, hi_g, rg = lo_l[go], hi_l[go], live[go]
+        # a bracket (lo > 0, hi finite) that has not halved since the last one is bisected
+        w = np.where((lo_g > 0) & np.isfinite(hi_g), hi_g - lo_g, np.inf)
+        slow = np.isfinite(w) & (w > 0.5 * width[rg])
+        width[rg] = w
+        step = np.where(np.isfinite(hi_g), 0.5 * (lo_g + hi_g), np.minimum(2.0 * r[go], R_l[go]))
+        new_rho[go] = np.where(slow, step, np.where(quartic_in[go], quartic[go], np.where(cubic_in[go], cubic[go],
+                                                                                       np.where(newton_in[go],
+                                                                                                newton[go], step))))
+        rho[at] = new_rho
         f_at[at] = np.where(settle, 0.0, f)
         lo[at], hi[at] = lo_l, hi_l
         live = live[~done]
