@@ -720,13 +720,22 @@ def _edges(rays, rho, R, gap, curv):
 
     A safeguarded search keeping a bracket [lo, hi] with f(lo) < 0 < f(hi): each step goes to the root of the
     quartic model or else the cubic one (:func:`_model_roots`), else Newton's, else bisects (or doubles towards
-    the drawing range), and bisects a bracket that has not halved in a step. A ray is settled at the quartic's root without a further evaluation when the two models'
-    roots agree to 1e-4 of the radius, f within 30 % of the gap; or at the cubic's root when |f| <= NEAR_QUADRATIC
-    of the gap and the root is within 1 % of the radius (the models' errors are then far below the search's
-    tolerance). It is done after a last Newton step when |f| <= 1e-3 of the gap and that step is within 5e-4 of
-    the radius; where it stands when the bracket is within 1e-5 of the radius, or when it reaches the drawing range still inside.
+    the drawing range), and bisects a bracket that has not halved in a step. A ray is settled at the quartic's root
+    without a further evaluation when the two models' roots agree to 1e-4 of the radius, |f| within 15 % of the
+    gap; or at the cubic's root when |f| <= NEAR_QUADRATIC of the gap and the root is within 1 % of the radius;
+    either only where the radius is small enough against the nearest station's distance (MODEL_REACH: the
+    models' errors are then far below the search's tolerance). It is done after a last Newton step when
+    |f| <= 1e-3 of the gap and that step is within 5e-4 of the radius; where it stands when the bracket is within
+    1e-5 of the radius, or when it reaches the drawing range still inside.
     While many rays are left, all of them are evaluated as whole (bearings, fixes, rays) arrays, cheaper than
     gathering them. Returns the radii and f at them (0 where settled by a model).
+
+    The promise, ray by ray: where S crosses T smoothly, the radius is within 5e-4 of itself of the crossing
+    (tests/test_regions.py checks it against scipy's brentq; the models settle a ray only where their error is
+    far below that, see MODEL_REACH); where S jumps across T instead (a residual wrapping past pi, behind a
+    station), the radius is within 5e-4 of the jump's position (the bracket rule stops within 1e-5 of it; a model
+    never settles a ray across a place where a residual may wrap). Where S comes back below
+    T farther out, :func:`_star_check` finds it.
     """
     lo = np.zeros_like(rho)
     hi = np.full_like(rho, np.inf)
@@ -768,17 +777,19 @@ def _edges(rays, rho, R, gap, curv):
         close = (af <= 1e-3 * gap_l) & (af <= 5e-4 * df * r)      # Newton's step within 5e-4 of the radius
         done = settle | close | (hi_l - lo_l <= 1e-5 * r) | (neg & (r >= R_l))
         # a ray done by the Newton rule takes that last step: its error is then about the square of the step's
-        new_rho = np.where(by_quartic, quartic, np.where(by_cubic, cubic, np.where(close & newton_in, newton, r)))
+        new_rho = np.where(by_quartic, quartic,
+                           np.where(by_cubic, cubic, np.where(close & newton_in, newton, r)))
         go = np.flatnonzero(~done)                      # the next step only for the rays still searched
         lo_g, hi_g, rg = lo_l[go], hi_l[go], live[go]
         # a bracket (lo > 0, hi finite) that has not halved since the last one is bisected
         w = np.where((lo_g > 0) & np.isfinite(hi_g), hi_g - lo_g, np.inf)
         slow = np.isfinite(w) & (w > 0.5 * width[rg])
         width[rg] = w
-        step = np.where(np.isfinite(hi_g), 0.5 * (lo_g + hi_g), np.minimum(2.0 * r[go], R_l[go]))
-        new_rho[go] = np.where(slow, step, np.where(quartic_in[go], quartic[go], np.where(cubic_in[go], cubic[go],
-                                                                                       np.where(newton_in[go],
-                                                                                                newton[go], step))))
+        plain = np.where(np.isfinite(hi_g), 0.5 * (lo_g + hi_g), np.minimum(2.0 * r[go], R_l[go]))
+        step = np.where(newton_in[go], newton[go], plain)
+        step = np.where(cubic_in[go], cubic[go], step)
+        step = np.where(quartic_in[go], quartic[go], step)
+        new_rho[go] = np.where(slow, plain, step)
         rho[at] = new_rho
         f_at[at] = np.where(settle, 0.0, f)
         lo[at], hi[at] = lo_l, hi_l
