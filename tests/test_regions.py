@@ -232,6 +232,41 @@ def test_radii_are_the_roots_of_the_plane_statistic(n, sd):
         st.append([(d["lat2"], d["lon2"]) for d in (WGS.Direct(47.0, 15.0, a, r) for a, r in zip(az, dist))])
     st = np.asarray(st)
     b = np.array([bearings_to(s, (47.0, 15.0), rng.normal(0, 4.0, n)) % 360 for s in st])
+    check_radii_against_brentq(st, b, sd)
+
+
+def season_fixes(rows, n_fix=100_000, k=4):
+    """Stations and bearings of some fixes of an invented season: N fixes around central Europe, k stations each
+    400-2000 m away, 4 degree noise (pyproj geodesics). Some of these regions reach past a station's distance."""
+    import pyproj
+
+    geod = pyproj.Geod(ellps="WGS84")
+    rng = np.random.default_rng(1)
+    lat0 = rng.uniform(46.0, 49.0, n_fix)
+    lon0 = rng.uniform(9.0, 17.0, n_fix)
+    ang = rng.uniform(0, 360, (n_fix, 1)) + np.arange(k) * 360.0 / k + rng.normal(0, 20, (n_fix, k))
+    dist = rng.uniform(400, 2000, (n_fix, k))
+    noise = rng.normal(0, 4.0, n_fix * k).reshape(n_fix, k)
+    rows = np.asarray(rows)
+    lon_s, lat_s, back = geod.fwd(np.repeat(lon0[rows], k), np.repeat(lat0[rows], k), ang[rows].ravel(),
+                                  dist[rows].ravel())
+    st = np.stack([np.reshape(lat_s, (-1, k)), np.reshape(lon_s, (-1, k))], axis=2)
+    return st, (np.reshape(back, (-1, k)) + noise[rows]) % 360
+
+
+# fixes whose rays were settled by the search's polynomial models up to 1e-2 of the radius off the root
+FAR_REACHING = [20531, 5915, 47240, 56472, 59949, 9948, 1910, 81553, 50079, 59451, 72420, 90002, 63101, 27502,
+                14980, 9762, 28343]
+
+
+@pytest.mark.parametrize("sd", [None, 4.0])
+def test_radii_are_the_roots_where_the_region_reaches_past_a_station(sd):
+    st, b = season_fixes(FAR_REACHING)
+    check_radii_against_brentq(st, b, sd)
+
+
+def check_radii_against_brentq(st, b, sd):
+    m, n = b.shape
     g = np.repeat(np.arange(m), n)
     sol = estimators.solve(st[:, :, 0].ravel(), st[:, :, 1].ravel(), b.ravel(), g, m,
                            None if sd is None else np.full(m * n, sd))
