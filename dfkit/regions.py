@@ -478,8 +478,11 @@ def likelihood_regions(fix_lat, fix_lon, g, station_lat, station_lon, bearing_de
     rad = out["radius_m"]
     with np.errstate(invalid="ignore"):
         area = 0.5 * np.sum(rad * rad, axis=1) * (_TWO_PI / n_rays)
-        reach = np.max(np.hypot(out["centre_x"][:, None] + rad * np.sin(psi),
-                                out["centre_y"][:, None] + rad * np.cos(psi)), axis=1)
+        reach = np.empty(m)
+        for k0 in range(0, m, chunk):       # in batches: (fixes, rays) temporaries were the run's memory peak
+            sl = slice(k0, k0 + chunk)
+            reach[sl] = np.max(np.hypot(out["centre_x"][sl, None] + rad[sl] * np.sin(psi),
+                                        out["centre_y"][sl, None] + rad[sl] * np.cos(psi)), axis=1)
     has = ok & np.isfinite(rad).all(axis=1)
     bounded = has & out["bounded"]
     return LikelihoodRegions(
