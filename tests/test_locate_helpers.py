@@ -11,6 +11,7 @@ import pyproj
 import pytest
 
 import dfkit
+from dfkit import geodesy
 from dfkit.locate import core, locate
 from dfkit.locate.fixes import WITH_POSITION, has_position, status_in
 from dfkit.locate.offsets import _sorted_codes, _unique
@@ -70,7 +71,7 @@ def test_station_spread_is_the_distance_from_the_stations_centre():
     lat = np.append(np.asarray(lat), [46.5, 46.5, 46.5])
     lon = np.append(np.asarray(lon), [12.0, 12.0, 12.0])
     g = np.array([0, 0, 0, 0, 1, 1, 1])
-    spread = core._spread(lat, lon, g, 2)
+    spread = geodesy.group_spread_m(lat, lon, g, 2)
     assert spread[0] == pytest.approx(500.0, rel=0.005)
     assert spread[1] == pytest.approx(0.0, abs=1e-6)
 

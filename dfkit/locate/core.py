@@ -10,8 +10,7 @@ from __future__ import annotations
 import numpy as np
 import pandas as pd
 
-from dfkit import estimators, regions
-from dfkit.conventions import WGS84_A
+from dfkit import estimators, geodesy, regions
 from dfkit.locate.fixes import FIX_COLUMNS, WITH_POSITION, Fixes, has_position
 from dfkit.locate.hints import one_bearing_hints
 from dfkit.locate.offsets import fix_offsets
@@ -111,7 +110,7 @@ def locate_chunk(bearings: Bearings, *, method: str, level: float, window_min: f
                                          known_dof=cal_dof, sd_floor_deg=sol.sd_floor_deg, valid=sol.converged)
 
     say("statuses")
-    spread = _spread(lat, lon, g, m)
+    spread = geodesy.group_spread_m(lat, lon, g, m)
     span_min, tmid = _time_span(b, g, m)
     # A fix goes on while each bearing follows the last within the window (dfkit.observations.grouping):
     # a gap longer than the window, or a chain lasting more than FIX_SPAN_WINDOWS windows, is flagged.
@@ -158,23 +157,6 @@ def locate_chunk(bearings: Bearings, *, method: str, level: float, window_min: f
     notes = list(bearings.notes)
     return Fixes(table=table, bearings=bt, problems=list(bearings.problems), notes=notes, source=bearings.source,
                  likelihood=lik, azimuth_deg=sol.azimuth_from_fix_deg)
-
-
-def _spread(lat, lon, g, m):
-    """Largest distance of a station from its stations' centroid, per fix [m]: the chord distance
-    (:func:`dfkit.geodesy.chord_distance_m`) from :func:`dfkit.geodesy.group_centroid`, in the same arithmetic,
-    with each station's unit vector worked out once and each centroid's once per fix."""
-    phi, lam = np.radians(lat), np.radians(lon)
-    cp = np.cos(phi)
-    x, y, z = cp * np.cos(lam), cp * np.sin(lam), np.sin(phi)
-    X, Y, Z = np.bincount(g, x, m), np.bincount(g, y, m), np.bincount(g, z, m)
-    clat, clon = np.radians(np.degrees(np.arctan2(Z, np.hypot(X, Y)))), np.radians(np.degrees(np.arctan2(Y, X)))
-    ccp = np.cos(clat)
-    cx, cy, cz = ccp * np.cos(clon), ccp * np.sin(clon), np.sin(clat)
-    d = WGS84_A * np.sqrt((cx[g] - x) ** 2 + (cy[g] - y) ** 2 + (cz[g] - z) ** 2)
-    spread = np.zeros(m)
-    np.maximum.at(spread, g, d)
-    return spread
 
 
 def _time_span(b, g, m):
