@@ -35,6 +35,7 @@ def test_pseudo_inverse_is_numpys(L, r):
 @pytest.mark.parametrize("values", [
     [" A", "B ", "A", "b", " B", "", "nan"] * 20,
     ["kim", 3, 4.5, "kim ", True] * 20,
+    [1, 1.0, True, " a "] * 20,               # equal as values, not as texts
     ["A", None, " B", np.nan] * 20,          # missing cells: pandas' own path
     ["x"] * 3,
 ])

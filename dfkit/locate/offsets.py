@@ -234,8 +234,9 @@ def _stripped_text(column):
     a sheet holds a handful of observer names over every bearing)."""
     import pandas as pd
 
-    if (column.dtype == object or isinstance(column.dtype, pd.StringDtype)) and len(column) > 64 \
-            and not column.isna().any():
+    text = isinstance(column.dtype, pd.StringDtype) or (
+        column.dtype == object and pd.api.types.infer_dtype(column, skipna=False) == "string")
+    if text and len(column) > 64 and not column.isna().any():     # 1 and 1.0 would factorize as one value
         codes, uniq = pd.factorize(column)
         return pd.Series(np.asarray(uniq, dtype=object), dtype=object).astype(str).str.strip().to_numpy(
             dtype=object)[codes]
