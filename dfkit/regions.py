@@ -45,6 +45,7 @@ from dataclasses import dataclass
 import numpy as np
 
 from dfkit import geodesy
+from dfkit.estimators.groups import solve2
 
 
 def scale_factor(level, dof=None):
@@ -540,9 +541,8 @@ def _local(trig, sx, sy, v, px, py):
 
 def _solve2(m, b):
     """m^-1 b for symmetric 2x2 matrices m = (m11, m12, m22) (rows), 0 where singular."""
-    det = m[:, 0] * m[:, 2] - m[:, 1] ** 2
-    with np.errstate(divide="ignore", invalid="ignore"):
-        st = np.stack([m[:, 2] * b[:, 0] - m[:, 1] * b[:, 1], m[:, 0] * b[:, 1] - m[:, 1] * b[:, 0]], 1) / det[:, None]
+    x, y, _ = solve2(m[:, 0], m[:, 1], m[:, 2], b[:, 0], b[:, 1])
+    st = np.stack([x, y], 1)
     return np.where(np.isfinite(st), st, 0.0)
 
 
