@@ -30,8 +30,10 @@ MAX_HALVINGS = 40
 #: a millimetre or two, short of the optimum.)
 FLAT = 1e-12
 #: A whole Newton step (positive definite matrix) shorter than this many tolerances settles a fix: Newton's
-#: method leaves an error of about step^2 / range after it (range: the distance to the stations), below
-#: 1e-10 m for a step of 1e-4 m from stations 100 m away, so the round that would only confirm it is skipped.
+#: method leaves an error of about step^2 / range after it (range: the distance to the stations), so the round
+#: that would only confirm it is skipped. With the planar tolerance tol (1e-6 m by default) a settling step is
+#: under 100 tol = 1e-4 m and leaves about 1e-10 m from stations 100 m away; a caller's larger tol leaves
+#: (100 tol)^2 / range, still within the outer tolerance.
 NEWTON_SETTLE = 100.0
 #: Halvings of a failed step tried at once (one pass over the few fixes' bearings instead of one each);
 #: all that are left when they take fewer than SMALL_BATCH trial bearings.
