@@ -113,6 +113,9 @@ def test_short_decimals_same_bytes_as_pandas(tmp_path, n):
     cols["mixed"] = np.where(rng.random(n) < 0.5, 0.1 + 0.2, cols["d3"])        # no short decimal for all: repr
     cols["lat"] = rng.uniform(-90, 90, n)                                    # rounded to 7 by the writer
     cols["n"] = rng.integers(-10**15, 10**15, n) // 10 ** rng.integers(0, 16, n)
+    edge = np.iinfo(np.int64)
+    cols["edge"] = np.resize(np.array([edge.min, edge.max, -(2 ** 62), 2 ** 62 - 1, 0], np.int64), n)
+    cols["lowest"] = np.resize(np.array([edge.min, 0, 5, -7], np.int64), n)    # |min| overflows to itself
     df = pd.DataFrame(cols)
     write_table(df, tmp_path / "d.csv")
     assert (tmp_path / "d.csv").read_bytes() == _pandas_bytes(df)

@@ -238,7 +238,7 @@ def _text_columns(table: pd.DataFrame, tables: _DigitTables | None = None):
             pieces = _float_pieces(col.to_numpy(), tables, end)
         elif isinstance(col.dtype, np.dtype) and kind == "b":
             pieces = [np.array(["False" + end, "True" + end], dtype=object)[col.to_numpy().astype(np.intp)]]
-        elif isinstance(col.dtype, np.dtype) and kind in "iu" and np.abs(col.to_numpy()).max(initial=0) < 2 ** 62:
+        elif isinstance(col.dtype, np.dtype) and kind in "iu" and _small_ints(col.to_numpy()):
             pieces = _int_pieces(col.to_numpy().astype(np.int64), tables, suffix=end)
         elif isinstance(col.dtype, np.dtype) and kind in "iu":
             pieces = [np.array([str(v) + end for v in col.to_numpy().tolist()], dtype=object)]
@@ -378,3 +378,8 @@ def _per_value(values: np.ndarray, fmt, keys=None) -> list:
             first[codes[::-1]] = np.arange(len(codes))[::-1]     # a cell of each distinct key
             return np.asarray([fmt(v) for v in values[first].tolist()], dtype=object)[codes].tolist()
     return list(map(fmt, values.tolist()))
+
+
+def _small_ints(v) -> bool:
+    """Whether every integer lies within +-2**62 (no absolute value: that of int64's minimum overflows)."""
+    return bool(len(v) == 0 or (-(2 ** 62) < int(v.min()) and int(v.max()) < 2 ** 62))
