@@ -46,7 +46,9 @@ def test_season_parts_all_at_once_match_one_by_one():
     ring = np.array([[10.0, 47.0], [10.1, 47.0], [10.1, 47.1], [10.0, 47.1], [10.0, 47.0]])
     geoms = [Polygon(ring), Polygon(ring[::-1]), None, Polygon(ring + [169.95, 0]),          # inside, clockwise,
              Polygon(ring + [-189.95, 0]), MultiPolygon([Polygon(ring)]), Polygon()]          # none, at 180, ...
+    geoms.append(Polygon(ring + [0.0, 42.95]))           # reaching past the pole: cut at latitude 90
     got = lonlat_parts_many(geoms)
+    assert shapely.bounds(got[-1])[3] == 90.0
     for g, have in zip(geoms, got):
         want = lonlat_parts(g)
         if want is None:

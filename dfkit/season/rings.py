@@ -73,7 +73,8 @@ def lonlat_parts(geom):
 
     if geom is None or geom.is_empty:
         return None
-    if geom.geom_type == "Polygon" and -180.0 < geom.bounds[0] and geom.bounds[2] < 180.0 and geom.is_valid:
+    x0, y0, x1, y1 = geom.bounds
+    if geom.geom_type == "Polygon" and -180.0 < x0 and x1 < 180.0 and -90.0 <= y0 and y1 <= 90.0 and geom.is_valid:
         return shapely.MultiPolygon([orient(geom, 1.0)]) if geom.area > 0 else None   # its own intersection
     parts = []
     for k in (-1, 0, 1):
@@ -88,8 +89,8 @@ def lonlat_parts(geom):
 def lonlat_parts_many(geoms) -> list:
     """:func:`lonlat_parts` of many geometries: polygons strictly within (-180, 180) all at once, the rest one
     by one. A valid polygon strictly within the world box is its own intersection with the box, so it is only
-    oriented (exterior counter-clockwise); an invalid one goes through the box intersection as in
-    :func:`lonlat_parts`, which mends what GEOS can."""
+    oriented (exterior counter-clockwise); an invalid one, or one reaching past a pole, goes through the box
+    intersection as in :func:`lonlat_parts`, which mends what GEOS can."""
     import shapely
 
     geoms = np.asarray(list(geoms), dtype=object)
@@ -104,7 +105,8 @@ def lonlat_parts_many(geoms) -> list:
         b = shapely.bounds(geoms[idx])
         idx = idx[(b[:, 0] > -180.0) & (b[:, 2] < 180.0) & ~shapely.is_empty(geoms[idx])]
         piece = geoms[idx].copy()
-        bad = ~shapely.is_valid(piece)
+        b = shapely.bounds(piece)
+        bad = ~shapely.is_valid(piece) | (b[:, 1] < -90.0) | (b[:, 3] > 90.0)     # the box cuts these
         piece[bad] = shapely.intersection(piece[bad], shapely.box(-180.0, -90.0, 180.0, 90.0))
         ok = (shapely.get_type_id(piece) == 3) & (shapely.area(piece) > 0)
         out[idx[ok]] = shapely.multipolygons(shapely.orient_polygons(piece[ok], exterior_cw=False)[:, None])
