@@ -477,12 +477,6 @@ class _LazyLines:
             self._lines = _physical_lines(self.text)
         return self._lines
 
-    def __getitem__(self, k):
-        return self.all[k]
-
-    def __len__(self):
-        return len(self.all)
-
 
 _NEWLINE = re.compile("\n")
 
