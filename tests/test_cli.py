@@ -182,3 +182,21 @@ def test_check_counts_fixes_as_tag_and_label(write_sheet, capsys):
                         "b,1,47.1,15.02,315\nb,2,47.2,15,45\n")
     main(["check", str(sheet)])
     assert "; 3 fixes from 2 distinct labels" in capsys.readouterr().out
+
+
+def test_process_command_line_freezes_import_objects_and_callers_keep_their_collector():
+    # Python's gc.freeze (docs: "move all objects tracked by the garbage collector to a permanent generation")
+    # only when main() is the process's own command line (argv from sys.argv); a caller's collector is untouched
+    import gc
+    import subprocess
+    import sys as _sys
+
+    code = ("import gc, sys; sys.argv = ['dfkit', '--version']; from dfkit.cli import main; "
+            "before = gc.get_freeze_count(); main(); print(before, gc.get_freeze_count())")
+    out = subprocess.run([_sys.executable, "-c", code], capture_output=True, text=True, check=True).stdout.split()[-2:]
+    assert int(out[0]) == 0 and int(out[1]) > 1000
+    from dfkit.cli import main
+
+    before = gc.get_freeze_count()
+    assert main(["--version"]) == 0
+    assert gc.get_freeze_count() == before
