@@ -165,7 +165,9 @@ def read_bearings(sheet, options: ReadOptions | None = None, **kwargs) -> Bearin
         f"{'' if np.isfinite(times[i]) else '; no time'}): a repeated bearing adds no information, so this copy "
         "is not used" for i in idx])
 
-    keep = ~log.bad
+    del extra, rep, first, tm, ncells, dec, model_dec, fix_c, filled, hints
+    # every row kept (the common case): the columns go to the table as they are, without a masked copy of each
+    keep = slice(None) if not log.bad.any() else ~log.bad
     table = pd.DataFrame({
         "line": lines[keep],
         "fix": fix[keep],
