@@ -382,7 +382,10 @@ def read_sheet(source, *, name: str | None = None, own_results: str = "recompute
         ascii_bytes = data if len(data) == len(text) and text.isascii() else None
         del data
     elif isinstance(source, (bytes, bytearray)):
-        text = _decode(bytes(source), name or "", problems)
+        data = bytes(source)
+        text = _decode(data, name or "", problems)
+        ascii_bytes = data if len(data) == len(text) and text.isascii() else None
+        del data
     else:
         got = source.read()
         text = _decode(got, name or "", problems) if isinstance(got, bytes) else got.lstrip("\ufeff")
@@ -510,6 +513,7 @@ def _direct_read(text, lines, header_idx, delimiter, width, want=None, data=None
         stops = np.concatenate([ends, [len(view)]])[:n]
         if (stops - starts).max() > MAX_CELL_CHARS:
             return None
+        del stops
     del view, ends, starts, first
     numbers = np.arange(header_idx + 2, header_idx + 2 + n)
     body = _parser_source.from_bytes(data, start)
@@ -566,14 +570,18 @@ def _parse_body(body, n_body, numbers, comment, delimiter, width, want):
     texts = [j for j in range(width) if j not in floats]
     padded, guarded = body.padded(delimiter), body.guarded()
     del body
+    n_rows = len(raw[0])
     tidy, n_unguarded = _tidy([raw[j].to_numpy(dtype=object) for j in texts], padded, guarded)
+    del raw
     cells = [floats.get(j) for j in range(width)]
     for j, c in zip(texts, tidy):
         cells[j] = c
-    blank = np.ones(len(raw[0]), bool) if not floats else np.zeros(len(raw[0]), bool)
+    blank = np.ones(n_rows, bool) if not floats else np.zeros(n_rows, bool)
     for c in tidy:
         blank &= c == ""
-    numbers_kept = numbers[~comment]
+    numbers_kept = numbers[~comment] if comment.any() else numbers
+    if not blank.any():       # no blank row (the common case): the columns as they are, not a copy of each
+        return numbers_kept, cells, numbers[comment].tolist(), [], n_unguarded
     keep = ~blank
     return (numbers_kept[keep], [c[keep] for c in cells], numbers[comment].tolist(),
             numbers_kept[blank].tolist(), n_unguarded)
