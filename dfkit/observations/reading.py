@@ -166,30 +166,45 @@ def read_bearings(sheet, options: ReadOptions | None = None, **kwargs) -> Bearin
         "is not used" for i in idx])
 
     del extra, rep, first, tm, ncells, dec, model_dec, fix_c, filled, hints
-    # every row kept (the common case): the columns go to the table as they are, without a masked copy of each
-    keep = slice(None) if not log.bad.any() else ~log.bad
+    # every row kept (the common case): no masked copy of each column. Number columns are copied by pandas into
+    # its blocks; text columns pandas may keep as given, so one that shares memory with another column, or with
+    # the caller's own RawSheet (a column handed over as read), is copied: a cell changed in the table changes no
+    # other, and not the caller's sheet (a sheet read here is dropped on return: its columns need no copy)
+    masked = bool(log.bad.any())
+    keep = ~log.bad if masked else slice(None)
+    taken = [t[c].to_numpy(dtype=object) for c in t.columns
+             if t[c].dtype.kind not in "fiuMm"] if raw is sheet and not masked else []
+
+    def own(cells):
+        if masked:
+            return cells[keep]
+        if any(np.may_share_memory(cells, other) for other in taken):
+            cells = cells.copy()
+        taken.append(cells)
+        return cells
+
     table = pd.DataFrame({
         "line": lines[keep],
-        "fix": fix[keep],
-        "tag": tag_c[keep],
+        "fix": own(fix),
+        "tag": own(tag_c),
         "time": pd.to_datetime(times[keep], unit="s", utc=True),
         "lat": pos.lat[keep],
         "lon": pos.lon[keep],
         "true_bearing": true_bearing[keep],
         "sd": sd[keep],
-        "sd_source": sd_from[keep],
+        "sd_source": own(sd_from),
         "declination": np.where(magnetic_rows, dec_used, np.nan)[keep],
         "convergence": np.where(north == "grid", conv, np.nan)[keep],
         "bearing": b[keep],
-        "unit": unit[keep],
-        "north": north[keep],
-        "position_from": pos.source[keep],
-        "grouped_by": grouped_by[keep],
+        "unit": own(unit),
+        "north": own(north),
+        "position_from": own(pos.source),
+        "grouped_by": own(grouped_by),
         "declination_sd": np.where(magnetic_rows & dec_empty, dec_sd, np.nan)[keep],
     })
     for c in raw.columns:
         if (c not in KNOWN_COLUMNS or c in ("observer", "antenna", "note")) and c not in table.columns:
-            table[c] = t[c].to_numpy(dtype=object)[keep]
+            table[c] = own(t[c].to_numpy(dtype=object))
     for c in ("observer", "antenna", "note"):
         if c not in table.columns:
             table[c] = ""
