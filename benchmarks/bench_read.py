@@ -1,9 +1,11 @@
 """Speed of reading and checking a season-sized sheet (`read_bearings` alone: no solving, no writing).
 
-    .venv/bin/python benchmarks/bench_read.py [--rows 400000] [--kind plain|timed|utm|dms] [--repeat 3]
+    .venv/bin/python benchmarks/bench_read.py [--rows 400000] [--kind plain|timed|utm|dms] [--repeat 3] [--sheet PATH]
 
 Builds one sheet of the chosen kind in a temporary folder and times `dfkit.read_bearings` on it in process
-(best and median of --repeat runs). Kinds:
+(best and median of --repeat runs, wall clock and CPU), with the resident memory (VmRSS, Linux) after the imports and
+after the first read: what the read leaves behind, live tables and what the allocator keeps. ``--sheet`` reads
+an existing sheet instead (e.g. ``benchmarks/bench_fix.py``'s). Kinds:
 
 * ``plain``: fix, lat, lon, bearing, sd (decimal degrees, labelled fixes);
 * ``timed``: tag, time (ISO 8601 with offset), lat, lon, bearing: unlabelled, grouped by the window;
@@ -65,20 +67,36 @@ def main():
     ap.add_argument("--rows", type=int, default=400_000)
     ap.add_argument("--kind", default="plain")
     ap.add_argument("--repeat", type=int, default=3)
+    ap.add_argument("--sheet", default="", help="read this sheet instead of making one")
     a = ap.parse_args()
     sys.path.insert(0, os.path.join(os.path.dirname(__file__), ".."))
     import dfkit
 
     with tempfile.TemporaryDirectory() as tmp:
-        path = os.path.join(tmp, "sheet.csv")
-        make_sheet(path, a.rows, a.kind, np.random.default_rng(1))
-        times = []
+        path = a.sheet or os.path.join(tmp, "sheet.csv")
+        if not a.sheet:
+            make_sheet(path, a.rows, a.kind, np.random.default_rng(1))
+        times, cpu, rss = [], [], [_rss_mib()]
+        b = None
         for _ in range(a.repeat):
-            t0 = time.perf_counter()
+            del b
+            t0, c0 = time.perf_counter(), time.process_time()
             b = dfkit.read_bearings(path)
             times.append(time.perf_counter() - t0)
-        print(f"{a.kind}: {a.rows} rows, {len(b.table)} usable, {b.n_rejected} rejected; read_bearings "
-              f"best {min(times):.2f} s, median {statistics.median(times):.2f} s over {a.repeat} runs")
+            cpu.append(time.process_time() - c0)
+            rss.append(_rss_mib())
+        print(f"{a.sheet or a.kind}: {b.n_rows} rows, {len(b.table)} usable, {b.n_rejected} rejected; read_bearings "
+              f"best {min(times):.2f} s, median {statistics.median(times):.2f} s, CPU median "
+              f"{statistics.median(cpu):.2f} s over {a.repeat} runs; RSS {rss[0]} MiB after imports, {rss[1]} MiB "
+              "after the first read")
+
+
+def _rss_mib():
+    try:
+        with open("/proc/self/status") as fh:
+            return next(int(ln.split()[1]) // 1024 for ln in fh if ln.startswith("VmRSS"))
+    except (OSError, StopIteration):
+        return -1
 
 
 if __name__ == "__main__":

@@ -42,3 +42,25 @@ def test_a_long_line_goes_the_careful_way():
     raw = read_sheet(data, numeric={"lat": 90.0})
     assert [p.line for p in raw.problems if p.severity == "error"] == [2]
     assert raw.table["line"].tolist() == [2, 3]
+
+
+@pytest.mark.parametrize("how", ["bytes", "bytearray", "path", "file"])
+def test_lines_above_the_header_and_every_kind_of_source(how, tmp_path):
+    # The body is parsed from where the header's line ends, in the file's own bytes: comment and blank lines
+    # above the header must not shift the line numbers, and a space or quote in the header alone changes no cell.
+    text = ("# field sheet\n\nfix, lat ,lon,bearing,observer\n"
+            "F1,47.5,11.9,10, Ann\nF1,47.6,11.8,200.5,'=B\nF2,47.4,12,7,Bob\n")
+    data = text.encode("ascii")
+    if how == "path":
+        src = tmp_path / "s.csv"
+        src.write_bytes(data)
+    else:
+        src = {"bytes": data, "bytearray": bytearray(data), "file": io.BytesIO(data)}[how]
+    raw = read_sheet(src, numeric={"lat": 90.0, "lon": 360.0, "bearing": None})
+    want = list(csv.reader(io.StringIO(text)))[3:]
+    assert raw.table["line"].tolist() == [4, 5, 6]
+    assert raw.table["fix"].tolist() == [r[0] for r in want]
+    # a cell written with a formula guard ('=B) is read back without it (README, "The bearing sheet")
+    assert raw.table["observer"].tolist() == ["Ann", "=B", "Bob"]
+    assert np.array_equal(raw.table["lat"].to_numpy(float), [float(r[1]) for r in want])
+    assert raw.comment_lines == [1] and raw.blank_lines == [2]

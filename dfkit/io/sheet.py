@@ -369,6 +369,7 @@ def read_sheet(source, *, name: str | None = None, own_results: str = "recompute
         header row, names a known column twice, or has an absurdly wide header.
     """
     problems: list[Problem] = []
+    ascii_bytes = None
     if isinstance(source, (str, os.PathLike)):
         name = name or os.fspath(source)
         try:
@@ -377,9 +378,14 @@ def read_sheet(source, *, name: str | None = None, own_results: str = "recompute
         except OSError as err:
             raise SheetError(f"{name}: cannot read the file ({err.strerror or err})") from None
         text = _decode(data, name, problems)
-        del data                                # the text holds it now
+        # an ASCII file's bytes are its text's (kept for the C parser, which would otherwise encode a copy)
+        ascii_bytes = data if len(data) == len(text) and text.isascii() else None
+        del data
     elif isinstance(source, (bytes, bytearray)):
-        text = _decode(bytes(source), name or "", problems)
+        data = bytes(source)
+        text = _decode(data, name or "", problems)
+        ascii_bytes = data if len(data) == len(text) and text.isascii() else None
+        del data
     else:
         got = source.read()
         text = _decode(got, name or "", problems) if isinstance(got, bytes) else got.lstrip("\ufeff")
@@ -418,7 +424,8 @@ def read_sheet(source, *, name: str | None = None, own_results: str = "recompute
 
     bounds = dict(numeric) if isinstance(numeric, dict) else dict.fromkeys(numeric)
     want = {j: bounds[c] for j, c in enumerate(columns) if c in bounds}
-    got = _direct_read(text, lines, header_idx, delimiter, width, want)
+    got = _direct_read(text, lines, header_idx, delimiter, width, want, ascii_bytes)
+    del ascii_bytes
     if got is None:
         got = _fast_read(text, lines.all, header_idx, delimiter, width, want)
     if got is None:
@@ -481,16 +488,17 @@ class _LazyLines:
 _NEWLINE = re.compile("\n")
 
 
-def _direct_read(text, lines, header_idx, delimiter, width, want=None):
+def _direct_read(text, lines, header_idx, delimiter, width, want=None, data=None):
     """The commonest case of all handed to the C parser as the file's own bytes: ASCII text with no quote, NUL
     or carriage return, and in the body no comment line, empty line or line longer than a cell may be. Every
     physical line is then one row, exactly as :func:`_fast_read` would join them, without splitting the text
     into lines (the checks run on the positions of the line ends). Returns what :func:`_fast_read` returns, or
-    None (then :func:`_fast_read` decides)."""
+    None (then :func:`_fast_read` decides). ``data``: the text's ASCII bytes, when the caller has them."""
     start = lines.ends[header_idx]
-    if start >= len(text) or not text.isascii():
+    if start >= len(text) or not (data is not None or text.isascii()):
         return None
-    data = text.encode("ascii")
+    if data is None:
+        data = text.encode("ascii")
     if b'"' in data or b"\x00" in data or b"\r" in data:
         return None
     view = np.frombuffer(data, np.uint8)
@@ -505,9 +513,10 @@ def _direct_read(text, lines, header_idx, delimiter, width, want=None):
         stops = np.concatenate([ends, [len(view)]])[:n]
         if (stops - starts).max() > MAX_CELL_CHARS:
             return None
+        del stops
     del view, ends, starts, first
     numbers = np.arange(header_idx + 2, header_idx + 2 + n)
-    body = _parser_source.from_bytes(data[start:])
+    body = _parser_source.from_bytes(data, start)
     del data
     return _parse_body(body, n, numbers, np.zeros(n, bool), delimiter, width, want)
 
@@ -561,14 +570,18 @@ def _parse_body(body, n_body, numbers, comment, delimiter, width, want):
     texts = [j for j in range(width) if j not in floats]
     padded, guarded = body.padded(delimiter), body.guarded()
     del body
+    n_rows = len(raw[0])
     tidy, n_unguarded = _tidy([raw[j].to_numpy(dtype=object) for j in texts], padded, guarded)
+    del raw
     cells = [floats.get(j) for j in range(width)]
     for j, c in zip(texts, tidy):
         cells[j] = c
-    blank = np.ones(len(raw[0]), bool) if not floats else np.zeros(len(raw[0]), bool)
+    blank = np.ones(n_rows, bool) if not floats else np.zeros(n_rows, bool)
     for c in tidy:
         blank &= c == ""
-    numbers_kept = numbers[~comment]
+    numbers_kept = numbers[~comment] if comment.any() else numbers
+    if not blank.any():       # no blank row (the common case): the columns as they are, not a copy of each
+        return numbers_kept, cells, numbers[comment].tolist(), [], n_unguarded
     keep = ~blank
     return (numbers_kept[keep], [c[keep] for c in cells], numbers[comment].tolist(),
             numbers_kept[blank].tolist(), n_unguarded)
@@ -585,28 +598,35 @@ class _parser_source:
         except UnicodeEncodeError:
             self.data = None
 
+    start = 0       # where the body starts in ``data`` (the bytes are shared, not sliced into a copy)
+
     @classmethod
-    def from_bytes(cls, data):
-        """A body of ASCII bytes (its text is not kept: :meth:`padded` and :meth:`guarded` look at the bytes)."""
+    def from_bytes(cls, data, start=0):
+        """A body of ASCII bytes from ``start`` on (its text is not kept: :meth:`padded` and :meth:`guarded` look
+        at the bytes)."""
         body = cls.__new__(cls)
-        body.text, body.data = None, data
+        body.text, body.data, body.start = None, data, start
         return body
 
     def padded(self, delimiter) -> bool:
         """Whether any cell may carry surrounding white space (:func:`_has_padding`)."""
         if self.text is not None:
             return _has_padding(self.text, delimiter)
-        data = self.data       # ASCII: the same searches as _has_padding's, on the bytes
-        if b" " in data or (delimiter != "\t" and b"\t" in data):
+        data, start = self.data, self.start       # ASCII: the same searches as _has_padding's, on the bytes
+        if data.find(b" ", start) >= 0 or (delimiter != "\t" and data.find(b"\t", start) >= 0):
             return True
-        return any(ch in data for ch in (b"\x0b", b"\x0c", b"\x1c", b"\x1d", b"\x1e", b"\x1f"))
+        return any(data.find(ch, start) >= 0 for ch in (b"\x0b", b"\x0c", b"\x1c", b"\x1d", b"\x1e", b"\x1f"))
 
     def guarded(self) -> bool:
         """Whether any cell may carry a formula guard ``'``."""
-        return "'" in self.text if self.text is not None else b"'" in self.data
+        return "'" in self.text if self.text is not None else self.data.find(b"'", self.start) >= 0
 
     def __call__(self):
-        return io.StringIO(self.text) if self.data is None else io.BytesIO(self.data)
+        if self.data is None:
+            return io.StringIO(self.text)
+        stream = io.BytesIO(self.data)     # shares the bytes; the parser reads from the body's start
+        stream.seek(self.start)
+        return stream
 
 
 def _as_numbers(col: pd.Series, bound=None):

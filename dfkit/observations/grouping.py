@@ -270,10 +270,18 @@ SPLITS_LISTED, SPLITS_SHOWN = 5, 3
 
 def pair_codes(tag, fix, mask=None) -> np.ndarray:
     """One integer per distinct (tag, label) pair, in order of first appearance (-1 where ``mask`` is False)."""
-    ct, _ = pd.factorize(np.asarray(tag, dtype=object))
+    tag = np.asarray(tag, dtype=object)
     cf, uf = pd.factorize(np.asarray(fix, dtype=object))
-    combined = ct.astype(np.int64) * (len(uf) + 1) + cf
-    keep = np.ones(len(combined), bool) if mask is None else np.asarray(mask, bool)
+    keep = np.ones(len(cf), bool) if mask is None else np.asarray(mask, bool)
+    if not len(tag) or (tag == tag[0]).all():
+        # one tag (the common sheet has no tag column): the pairs are the labels, already numbered in order of
+        # first appearance, so the tag's own pass over the rows and the pairs' second one are not needed
+        if keep.all() and (not len(cf) or cf.min() >= 0):
+            return cf.astype(np.int64)
+        combined = cf.astype(np.int64)
+    else:
+        ct, _ = pd.factorize(tag)
+        combined = ct.astype(np.int64) * (len(uf) + 1) + cf
     codes = np.full(len(combined), -1, np.int64)
     codes[keep], _ = pd.factorize(combined[keep])
     return codes

@@ -226,10 +226,11 @@ class _State:
         self.zone = np.zeros(n, int)
         self.south = np.zeros(n, bool)
         # a zone letter S read as the southern hemisphere because band S does not fit: how it was read, and where
-        # the northern reading puts the row (for the message if the row turns out far from its fix)
-        self.letter_note = filled(n, "")
-        self.north_lat = np.full(n, np.nan)
-        self.north_lon = np.full(n, np.nan)
+        # the northern reading puts the row (for the message if the row turns out far from its fix); by row, for
+        # the few rows concerned rather than three arrays over every row
+        self.letter_note: dict[int, str] = {}
+        self.north_lat: dict[int, float] = {}
+        self.north_lon: dict[int, float] = {}
         self.reference = None       # (rows, medians) of the last fix reference (see _fix_reference)
 
     def name(self, role):
@@ -484,8 +485,8 @@ def _utm(p: _State, decimal_comma, utm_letters, groups, track_ll):
     s_hemi = is_s & ~fits_band
     south[s_hemi], decided[s_hemi] = True, True
     lo_s, hi_s = grids.band_limits("S")
-    for k in np.flatnonzero(s_hemi):
-        i = rows[k]
+    for k in np.flatnonzero(s_hemi).tolist():
+        i = int(rows[k])
         p.letter_note[i] = (f"'{zc[i]}' was read as zone {zone[k]} of the southern hemisphere: as latitude band S "
                             f"({_lat(lo_s)} to {_lat(hi_s)}) this northing would lie at {_lat(lat_n[k])}, outside "
                             "that band")
@@ -707,14 +708,14 @@ def _swapped(p: _State, groups, track_ll):
         return
     lat, lon = p.lat, p.lon
     suspect = np.zeros(p.n, bool)
-    where = filled(p.n, "")
+    by_track = np.zeros(p.n, bool)      # far from the track (else from the other positions of its fix)
     with np.errstate(invalid="ignore"):
         if track_ll is not None:
             tl, to = track_ll
             t_ok = cand & np.isfinite(tl)
             hit = t_ok & (_deg_dist(lat, lon, tl, to) > SWAPPED_FAR_DEG) & (_deg_dist(lon, lat, tl, to) < SWAPPED_NEAR_DEG)
             suspect |= hit
-            where[hit] = "the GPS track at this time"
+            by_track |= hit
             cand &= ~t_ok
         if groups is not None and cand.any():
             valid = (p.source != "") & ~log.bad
@@ -725,12 +726,13 @@ def _swapped(p: _State, groups, track_ll):
             hit = _mask(p.n, big[(_deg_dist(lat[big], lon[big], ref_lat[gb], ref_lon[gb]) > SWAPPED_FAR_DEG) &
                                   (_deg_dist(lon[big], lat[big], ref_lat[gb], ref_lon[gb]) < SWAPPED_NEAR_DEG)])
             suspect |= hit
-            where[hit] = "the other positions of its fix"
             pairs = cand & (groups >= 0) & (cnt[g] == 2)
             if pairs.any():
                 _swapped_pairs(p, groups, valid, pairs)
     log.reject(suspect, p.name("lat"), lambda idx: [
-        f"{lat[i]:g}, {lon[i]:g} is far from {where[i]}, but swapped it fits: lat and lon look swapped" for i in idx])
+        f"{lat[i]:g}, {lon[i]:g} is far from "
+        f"{'the GPS track at this time' if by_track[i] else 'the other positions of its fix'}, but swapped it fits: "
+        "lat and lon look swapped" for i in idx])
 
 
 def _far_from_fix(p: _State, groups):
@@ -759,7 +761,7 @@ def _far_from_fix(p: _State, groups):
         reach = float(others.max()) if len(others) else 0.0
         col, fits = _corrections(p, i, ref_lat[g[i]], ref_lon[g[i]], max(3.0 * reach, 2.0))
         fix = f" It would fit with {describe(fits)}." if fits else ""
-        if p.letter_note[i]:
+        if p.letter_note.get(int(i)):
             col, fix = _letter_reading(p, i, near, ref_lat[g[i]], ref_lon[g[i]], max(3.0 * reach, 2.0), col, fix)
         log.reject(log.mask([i]), col,
                    f"this station is {d[i]:,.0f} km from the other stations of its fix (they lie within {reach:,.1f} km "
@@ -782,6 +784,7 @@ def _far_from_fix(p: _State, groups):
 def _letter_reading(p: _State, i, near, ref_lat, ref_lon, radius_km, col, fix):
     """The column to blame and the closing sentences for a row far from its fix whose zone letter S was read as the
     southern hemisphere: how it was read and, when the northern reading fits the fix, the letter that would."""
+    i = int(i)
     text = f" {p.letter_note[i][0].upper()}{p.letter_note[i][1:]}."
     d = float(_km(ref_lat, ref_lon, p.north_lat[i], p.north_lon[i]))
     if not d <= radius_km:

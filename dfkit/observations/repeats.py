@@ -58,10 +58,7 @@ def repeated_rows(fix_ids, times, lat, lon, bearing_deg, *, usable, extra=()):
         return repeat, first
     # a quick screen on (fix, bearing); the full comparison runs only on rows that share both
     rows = np.flatnonzero(use)
-    # one hash of (fix, bearing) as one complex number (fix ids are exact in a float)
-    codes, uniq = pd.factorize(ids[rows].astype(float) + 1j * b[rows])
-    screen = np.bincount(codes, minlength=len(uniq))[codes] > 1
-    rows = rows[screen]
+    rows = rows[_shared_keys(ids[rows], b[rows])]
     if not len(rows):
         return repeat, first
     cols = {"f": ids[rows], "t": np.asarray(times, float)[rows], "la": np.asarray(lat, float)[rows],
@@ -76,3 +73,20 @@ def repeated_rows(fix_ids, times, lat, lon, bearing_deg, *, usable, extra=()):
     repeat[rows[rep]] = True
     first[rows[rep]] = head[rep]
     return repeat, first
+
+
+#: An odd 64-bit multiplier (the golden-ratio constant, as two's complement) spreading fix ids over the key bits.
+_SPREAD = np.int64(-7046029254386353131)
+
+
+def _shared_keys(ids, b):
+    """Rows whose (fix, bearing) key occurs more than once: a screen, so a key may also join rows that differ (two
+    pairs giving one key); it never parts rows with the same fix and the same bearing (-0.0 is taken as 0.0).
+    One sort of 64-bit keys, instead of a hash table sized for every row."""
+    key = (b + 0.0).view(np.int64) ^ (ids * _SPREAD)        # int64 products wrap; equal pairs, equal keys
+    order = np.argsort(key)
+    same = key[order[1:]] == key[order[:-1]]
+    out = np.zeros(len(key), bool)
+    out[order[1:][same]] = True
+    out[order[:-1][same]] = True
+    return out

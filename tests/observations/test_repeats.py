@@ -88,3 +88,26 @@ def test_repeats_are_found_among_many_rows(write_sheet):
     errs = errors(b)
     assert [line for line, _, _ in errs] == [n + 2, n + 3, n + 4]
     assert [m.split(" (")[0] for _, _, m in errs] == [f"repeats line {i + 2}" for i in copies]
+
+
+def test_the_screen_keeps_every_row_whose_fix_and_bearing_recur():
+    # held to a plain count of (fix, bearing) pairs; a -0.0 bearing equals 0.0 (IEEE 754: the two compare equal)
+    from dfkit.observations.repeats import _shared_keys
+    rng = np.random.default_rng(5)
+    ids = rng.integers(0, 50, 3000)
+    b = rng.choice([0.0, -0.0, 12.5, 359.99, 180.0, 7.25], 3000)
+    counts = {}
+    for i, x in zip(ids.tolist(), b.tolist()):
+        counts[(i, x)] = counts.get((i, x), 0) + 1       # Python's dict: 0.0 and -0.0 are one key
+    want = np.array([counts[(i, x)] > 1 for i, x in zip(ids.tolist(), b.tolist())])
+    got = _shared_keys(ids.astype(np.int64), b)
+    assert (got >= want).all()      # a screen: never drops a recurring pair
+    assert got.sum() - want.sum() < 10      # and adds next to nothing on this data
+    assert _shared_keys(np.array([3, 3], np.int64), np.array([0.0, -0.0])).tolist() == [True, True]
+    assert _shared_keys(np.array([3, 4], np.int64), np.array([10.0, 10.0])).tolist() == [False, False]
+
+
+def test_a_copy_written_with_minus_zero_is_a_repeat(write_sheet):
+    b = read_bearings(write_sheet(f"fix,lat,lon,bearing\nA,{ROW_A}\nA,47.8581248,15.1757928,0\n"
+                                  "A,47.8581248,15.1757928,-0\n"))
+    assert [(line, m[:15]) for line, _, m in errors(b)] == [(4, "repeats line 3 ")]

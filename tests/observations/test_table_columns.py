@@ -1,0 +1,33 @@
+"""The Bearings table owns its columns: a change to one cell changes that cell only, not another column and not
+the sheet it was read from (a table handed to a user is theirs to edit)."""
+
+import pandas as pd
+import pytest
+
+from dfkit import read_bearings
+from dfkit.io import read_table
+
+SHEET = ("fix,lat,lon,bearing,sd,site\n"
+         "A,47.84,15.15,20,3,x\nA,47.85,15.17,280,3,x\nB,47.84,15.15,25,3,x\nB,47.85,15.17,285,3,x\n")
+BAD_ROW = "C,47.84,15.15,999,3,x\n"       # a bearing out of range: the table leaves a row out
+
+
+@pytest.mark.parametrize("extra", ["", BAD_ROW])
+def test_one_cell_changed_changes_nothing_else(write_sheet, extra):
+    b = read_bearings(write_sheet(SHEET + extra))
+    text = [c for c in b.table.columns if b.table[c].dtype == object or isinstance(b.table[c].dtype, pd.StringDtype)]
+    before = {c: b.table[c].tolist() for c in text}
+    b.table.loc[0, "tag"] = "changed"
+    for c in text:
+        if c != "tag":
+            assert b.table[c].tolist() == before[c], c
+    assert b.table["tag"].tolist()[:2] == ["changed", before["tag"][1]]
+
+
+def test_the_sheet_read_stays_as_it_was(write_sheet):
+    raw = read_table(write_sheet(SHEET))
+    fix, site = raw.table["fix"].tolist(), raw.table["site"].tolist()
+    b = read_bearings(raw)
+    b.table.loc[0, "fix"] = "Z"
+    b.table.loc[0, "site"] = "Z"
+    assert raw.table["fix"].tolist() == fix and raw.table["site"].tolist() == site
