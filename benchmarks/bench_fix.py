@@ -8,6 +8,13 @@
 3. Times the same fixes solved one by one with scipy.optimize.least_squares on the same geodesic residuals
    (observed bearing minus pyproj forward azimuth), on a random subsample, and scales per fix.
 Prints both and the ratio. Nothing is asserted: numbers go into notes, not into tests.
+
+    .venv/bin/python benchmarks/bench_fix.py --geodesics SHEET
+
+runs `dfkit fix SHEET` in this process instead and counts the geodesic problems pyproj solves (inverse: per
+bearing of the sheet; direct: per fix), by the dfkit functions that asked for them, and, per call of
+``estimators.solve``, its fixes, planar iterations and endings (where the rounds go: e.g. variants that end on
+a station take every start in turn). Counts, not times: they do not depend on the machine's load.
 """
 
 from __future__ import annotations
@@ -53,11 +60,83 @@ def loop_solve(lat, lon, bearing):
     return least_squares(resid, start, xtol=1e-12, ftol=1e-12).x
 
 
+def count_geodesics(sheet):
+    """Geodesic problems solved by `dfkit fix SHEET`, by asking function; and each solve call's iterations."""
+    import collections
+    import contextlib
+    import importlib
+    import io
+    import traceback
+
+    from dfkit import cli, estimators, geodesy
+
+    solve_module = importlib.import_module("dfkit.estimators.solve")
+
+    inner = geodesy.GEOD
+    counts = collections.Counter()
+
+    def caller():
+        frames = [f for f in traceback.extract_stack()[:-2] if f"{os.sep}dfkit{os.sep}" in f.filename]
+        names = [f"{os.path.basename(f.filename)}:{f.name}" for f in frames]
+        # the first frame outside the solver and geodesy, and the solver's own step that asked
+        outside = [n for n in names if not n.startswith(("geodesy.py", "plane.py", "solve.py"))]
+        inside = [n for n in names if n.startswith(("solve.py", "plane.py"))]
+        return (outside[-1] if outside else "?") + (" > " + inside[-1] if inside else "")
+
+    class Counting:
+        def inv(self, lons1, *rest, **kw):
+            counts[("inverse", caller())] += len(lons1)
+            return inner.inv(lons1, *rest, **kw)
+
+        def fwd(self, lons, *rest, **kw):
+            counts[("direct", caller())] += len(lons)
+            return inner.fwd(lons, *rest, **kw)
+
+        def __getattr__(self, name):
+            return getattr(inner, name)
+
+    calls = []
+    real_solve = solve_module.solve
+
+    def solve_counted(*args, **kw):
+        sol = real_solve(*args, **kw)
+        calls.append((caller(), len(sol.lat), sol.iterations, sol.ending))
+        return sol
+
+    geodesy.GEOD = Counting()
+    estimators.solve = solve_counted
+    try:
+        with tempfile.TemporaryDirectory() as tmp, contextlib.redirect_stdout(io.StringIO()), \
+                contextlib.redirect_stderr(io.StringIO()):
+            cli.main(["fix", sheet, "-o", os.path.join(tmp, "out.csv")])
+    except SystemExit:
+        pass
+    finally:
+        geodesy.GEOD = inner
+        estimators.solve = real_solve
+    n_b = sum(1 for _ in open(sheet)) - 1
+    n_f = max(1, calls[0][1]) if calls else 1
+    print(f"{n_b} bearings, {n_f} fixes")
+    for (kind, who), n in sorted(counts.items(), key=lambda kv: -kv[1]):
+        per = f"{n / n_b:.3f} per bearing" if kind == "inverse" else f"{n / n_f:.3f} per fix"
+        print(f"  {kind:8s} {n:9d}  {per:18s} {who}")
+    for who, m, its, ending in calls:
+        slow = its > 30
+        names = solve_module.ENDINGS
+        ends = ", ".join(f"{names[e]} {c}" for e, c in enumerate(np.bincount(ending, minlength=len(names))) if c)
+        print(f"  solve from {who}: {m} fixes, {its.sum()} iterations ({its.mean():.2f} per fix); "
+              f"{slow.sum()} fixes took over 30 ({its[slow].sum()} iterations); endings: {ends}")
+
+
 def main():
     ap = argparse.ArgumentParser()
     ap.add_argument("--fixes", type=int, default=100_000)
     ap.add_argument("--loop-sample", type=int, default=300)
+    ap.add_argument("--geodesics", metavar="SHEET", help="count geodesic problems and iterations of dfkit fix SHEET")
     a = ap.parse_args()
+    if a.geodesics:
+        count_geodesics(a.geodesics)
+        return
     rng = np.random.default_rng(1)
     with tempfile.TemporaryDirectory() as tmp:
         sheet = os.path.join(tmp, "season.csv")

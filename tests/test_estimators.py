@@ -548,3 +548,50 @@ def test_mle_fixes_solved_together_beside_a_fix_that_cannot_be_solved_match_a_ge
                                 options={"xatol": 1e-10, "fatol": 1e-14, "maxiter": 5000}).x
         assert s.converged[k]
         assert WGS.Inverse(ref[0], ref[1], s.lat[k], s.lon[k])["s12"] < 0.01
+
+
+def test_a_fit_whose_likelihood_rises_onto_a_station_ends_there_as_scipy_does():
+    # Invented bearings (one of four points away from the others' crossing): Lenth's likelihood (sum cos r on
+    # geographiclib azimuths) keeps rising towards the first station along its own line, where that bearing
+    # fits whatever it says. scipy's Nelder-Mead from the stations' centroid ends on that station too; dfkit
+    # must say so (at_station), never report a verified optimum there.
+    st = np.array([[46.807406, 12.776785], [46.802705, 12.788319], [46.794553, 12.782514], [46.790999, 12.766255]])
+    obs = np.array([339.11, 268.17, 329.87, 47.37])
+    ref = optimize.minimize(lambda p: _negll(st, obs, p), st.mean(axis=0), method="Nelder-Mead",
+                            options={"xatol": 1e-10, "fatol": 1e-14, "maxiter": 5000}).x
+    assert WGS.Inverse(ref[0], ref[1], st[0, 0], st[0, 1])["s12"] < 0.01
+    s = one_fix(st, obs, method="mle", sd_deg=np.full(4, 4.0))
+    assert not s.converged[0]
+    assert s.ending_name(0) == "at_station"
+
+
+def test_an_optimum_just_outside_the_station_zone_is_found_though_the_path_passes_closer():
+    # Invented bearings whose optimum of Lenth's likelihood lies 19 m from the third station (stations about
+    # 2 km from it, so just outside the 1 % zone where a point counts as on the station); the Newton path from
+    # the least-squares start passes 16 m from that station after a halved step. The answer must still be the
+    # optimum scipy's Nelder-Mead finds on geographiclib azimuths.
+    st = np.array([[47.781074, 16.032425], [47.766894, 16.054291], [47.765002, 16.027811], [47.781931, 16.011291]])
+    obs = np.array([190.20, 266.35, 13.56, 149.05])
+    ref = optimize.minimize(lambda p: _negll(st, obs, p), st.mean(axis=0), method="Nelder-Mead",
+                            options={"xatol": 1e-10, "fatol": 1e-14, "maxiter": 5000}).x
+    assert 15.0 < WGS.Inverse(ref[0], ref[1], st[2, 0], st[2, 1])["s12"] < 25.0
+    s = one_fix(st, obs, method="mle", sd_deg=np.full(4, 4.0))
+    assert s.converged[0]
+    assert WGS.Inverse(ref[0], ref[1], s.lat[0], s.lon[0])["s12"] < 0.01
+
+
+@pytest.mark.parametrize("tol_m", [1e-4, 0.05, 0.5])
+def test_a_caller_tolerance_bounds_the_distance_to_an_outside_optimum(tol_m):
+    # Lenth (1981) MLE on geographiclib azimuths by scipy's Nelder-Mead; dfkit's answer at a caller's
+    # tolerance lies within that tolerance of it (the first plane settles at a looser step than the last).
+    stations = [(47.0, 15.0), (47.0, 15.013), (47.013, 15.016), (47.014, 14.996)]
+    obs = exact_bearings(stations, (47.008, 15.005)) + np.array([2.0, -3.0, 1.5, -1.0])
+    s = one_fix(stations, obs, method="mle", tol_m=tol_m)
+
+    def negll(p):
+        return -np.sum(np.cos(np.radians(obs - exact_bearings(stations, p))))
+
+    ref = optimize.minimize(negll, [47.007, 15.004], method="Nelder-Mead",
+                            options={"xatol": 1e-10, "fatol": 1e-14, "maxiter": 5000}).x
+    assert s.converged[0]
+    assert WGS.Inverse(ref[0], ref[1], s.lat[0], s.lon[0])["s12"] < max(tol_m, 0.01)

@@ -134,7 +134,7 @@ class _SinCosForm:
         return self.terms(b["sn"], b["cs"], b["w"], b["s"], c)
 
 
-def optimise(method, geo, cg, mg, x, y, w, s, c, tol, max_iter, r_run):
+def optimise(method, geo, cg, mg, x, y, w, s, c, tol, max_iter, r_run, settle=None):
     """Minimise sum f(r_i) for every fix from (x, y): Newton steps where the Newton matrix is
     positive definite, scoring (re-weighted) steps elsewhere; a step is accepted only if it
     lowers the objective enough (Armijo), else it is halved.
@@ -143,7 +143,11 @@ def optimise(method, geo, cg, mg, x, y, w, s, c, tol, max_iter, r_run):
     (from sin r and cos r) when it has them, else its ``terms`` of r. Each round takes the Newton
     step of every running fix and tries it whole on all of them at once; only the few fixes whose
     objective did not fall enough go on halving (:func:`_halve`). Returns x, y, ending, iterations.
+
+    ``settle`` (metres, optional): a whole Newton step shorter than this settles a fix (default
+    :data:`NEWTON_SETTLE` times ``tol``).
     """
+    settle = NEWTON_SETTLE * tol if settle is None else settle
     form = _SinCosForm(method) if method.sc_terms is not None else _AngleForm(method)
     x = np.array(x, float)
     y = np.array(y, float)
@@ -194,7 +198,7 @@ def optimise(method, geo, cg, mg, x, y, w, s, c, tol, max_iter, r_run):
             searching &= ~accepted
         ending[grp[searching]] = STALLED
         moved = lam * step_len
-        settled = accepted & ((moved < tol) | (ok & newton & (moved < NEWTON_SETTLE * tol)))
+        settled = accepted & ((moved < tol) | (ok & newton & (moved < settle)))
         ending[grp[settled]] = SETTLED
         iters[grp[live]] += 1
         far = accepted & ~settled

@@ -51,6 +51,13 @@ VERIFY_M = 0.01
 #: A point closer to a station than this fraction of the stations' spread is "on the station": the
 #: likelihood of a bearing grows without bound towards its own observer, so it is never an answer.
 NEAR_STATION = 0.01
+#: In the first plane (about the stations' centroid) a whole Newton step shorter than sqrt(tol_m x this) [m]
+#: settles a fix. That plane's answer is only the start of the re-centred one, whose own Newton step (settled
+#: only below tol_m, and applied) takes the rest: a settling step s leaves about s^2 / range = tol_m x this /
+#: range, a quarter of tol_m for a station 400 m away (s = 0.1 m with the default tol_m), so the re-centred
+#: plane nearly always settles in a single step; a fix whose step there is still tol_m or more takes one more
+#: plane, as any fix did before. The answer is the re-centred plane's, whichever step settled the first.
+FIRST_PLANE_RANGE_M = 100.0
 #: At the least-squares start, a residual beyond this marks a fix whose candidate starts must be ranked [°].
 CLEAN_START_DEG = 20.0
 #: Starts tried per fix: the best candidate first, the next ones only when a fit fails.
@@ -488,7 +495,8 @@ def _run(ctx, todo, x0, y0, into=None):
         else:
             px, py, end, its = iterate.optimise(spec, gs, cg, len(fixes), sx0, sy0, w[rows],
                                                 _scale_rows(spec, s_b, rows), c, tol_in, ctx["max_iter"],
-                                                r_run[fixes])
+                                                r_run[fixes],
+                                                settle=np.sqrt(tol_m * FIRST_PLANE_RANGE_M) if outer == 0 else None)
         iterations[fixes] += its
         if outer:
             # the new centres' geometry, once the planar iterations (which only read it) are done with
