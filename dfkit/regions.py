@@ -480,10 +480,15 @@ def likelihood_regions(fix_lat, fix_lon, g, station_lat, station_lon, bearing_de
     with np.errstate(invalid="ignore"):
         area = 0.5 * np.sum(rad * rad, axis=1) * (_TWO_PI / n_rays)
         reach = np.empty(m)
+        su, cu = np.sin(psi), np.cos(psi)
         for k0 in range(0, m, chunk):       # in batches: (fixes, rays) temporaries were the run's memory peak
             sl = slice(k0, k0 + chunk)
-            reach[sl] = np.max(np.hypot(out["centre_x"][sl, None] + rad[sl] * np.sin(psi),
-                                        out["centre_y"][sl, None] + rad[sl] * np.cos(psi)), axis=1)
+            x = out["centre_x"][sl, None] + rad[sl] * su
+            y = out["centre_y"][sl, None] + rad[sl] * cu
+            # the farthest point by its squared distance, then hypot of that one point only (hypot on every ray
+            # was about 4 % of the regions' time; same values on the 100,000-fix benchmark); NaN rows stay NaN
+            far = np.argmax(np.where(np.isnan(x) | np.isnan(y), np.inf, x * x + y * y), axis=1)[:, None]
+            reach[sl] = np.hypot(np.take_along_axis(x, far, 1)[:, 0], np.take_along_axis(y, far, 1)[:, 0])
     has = ok & np.isfinite(rad).all(axis=1)
     bounded = has & out["bounded"]
     return LikelihoodRegions(
