@@ -627,6 +627,7 @@ class _Rays:
         self.n, self.M, self.K = sp.shape[0], sp.shape[1], len(psi)
         flat = (self.n, self.M * self.K)
         self.A, self.C = sp * ay - cp * ax, sp * ax + cp * ay
+        self.ax, self.ay = ax, ay
         self.B = (sp[:, :, None] * cu - cp[:, :, None] * su).reshape(flat)
         self.D = (sp[:, :, None] * su + cp[:, :, None] * cu).reshape(flat)
         self.E = (ax[:, :, None] * cu - ay[:, :, None] * su).reshape(flat)
@@ -720,6 +721,68 @@ def _model_roots(r, f, df, gap, curv):
         for _ in range(2):
             y -= (((q4 * y + q3) * y + q2) * y * y - gap) / (((4.0 * q4 * y + 3.0 * q3) * y + 2.0 * q2) * y)
     return r * x, r * y
+
+
+def _taylor(A, C, ax, ay, v, psi, order, lowest=2):
+    """Taylor coefficients s_lowest .. s_order of S along every ray about the centre c, shape (.., M, K), and the
+    distance from c to the nearest weighted station (M,), the series' radius of convergence. Bearings first, (n, M):
+    ``A``, ``C`` as in :class:`_Rays`, (``ax``, ``ay``) = c - station, ``v`` the weights.
+
+    With the point's offset from a station written as the complex number Z = y + i x (north, east), the ray's
+    point is Z_a + rho e^(i psi), Z_a the centre's offset; the residual phi - arg Z is then
+    r_0 - Im log(1 + rho e^(i psi) / Z_a) = sum_j Im(b_j e^(i j psi)) rho^j with b_0 = i r_0 and
+    b_j = (-1)^j Z_a^-j / j (the logarithm's series, convergent for rho < |Z_a|). S's coefficient s_k is
+    sum_i v_i sum_(j + l = k) a_j a_l, and Im(X) Im(Y) = (Re(X conj Y) - Re(X Y)) / 2 gathers it, per fix, into
+    harmonics of psi: s_k(psi) = sum_h Re(c_(k,h) e^(i h psi)), h = k, k - 2, ..., summed for all rays at once."""
+    za = ay + 1j * ax
+    inv = -1.0 / za
+    b = [1j * _angle(A, C), inv]
+    for j in range(2, order + 1):
+        b.append(b[-1] * inv)
+    for j in range(2, order + 1):
+        b[j] /= j
+    vb = [v * bj for bj in b]
+    M = A.shape[1]
+    out = np.empty((order + 1 - lowest, M, len(psi)))
+    for k in range(lowest, order + 1):
+        c = np.zeros((M, k + 1), complex)
+        for j in range(k, (k - 1) // 2, -1):     # pairs j >= l = k - j; (l, j) adds the same, conjugated
+            l = k - j
+            half = 0.5 if j == l else 1.0
+            c[:, j - l] += half * (vb[j] * np.conj(b[l])).sum(0)
+            c[:, k] -= half * (vb[j] * b[l]).sum(0)
+        # Re(c e^(i h psi)) = Re c cos(h psi) - Im c sin(h psi)
+        h = np.arange(k % 2, k + 1, 2)
+        coef = np.concatenate([c[:, h].real, c[:, h[h > 0]].imag], axis=1)
+        basis = np.concatenate([np.cos(np.outer(h, psi)), -np.sin(np.outer(h[h > 0], psi))])
+        np.einsum("mh,hk->mk", coef, basis, out=out[k - lowest])      # not a BLAS call: tiny, and single-threaded
+    dist = np.where(v > 0, np.abs(za), np.inf).min(axis=0)
+    return out, dist
+
+
+#: The first guess's Newton step on S's Taylor polynomial is taken only within this share of the series' radius of
+#: convergence (the distance from the centre to the nearest station).
+SERIES_REACH = 0.5
+
+
+def _series_guess(rays, psi, gap, rho, use):
+    """First guesses: where ``use`` (S's Hessian positive definite, the guess not cut to the drawing range), ``rho``
+    is the root of the quadratic term of S's Taylor polynomial along the ray, s_2 rho^2 = gap; one Newton step on
+    s_2 rho^2 + s_3 rho^3 + s_4 rho^4 = gap (:func:`_taylor`) from there, kept where it moves the guess by less than
+    half and the guess lies within SERIES_REACH of the series' radius of convergence. Only a guess: the search still
+    evaluates S at it and settles the ray by its own rules (it leaves about 5 % of the rays for a second evaluation
+    on the benchmark sheet, against 19 % from the quadratic guess)."""
+    (s3, s4), dist = _taylor(rays.A, rays.C, rays.ax, rays.ay, rays.v, psi, 4, lowest=3)
+    # s_2 x^2 = gap at x = rho, so the step is -x (s_3 x + s_4 x^2) / (2 s_2 + 3 s_3 x + 4 s_4 x^2), s_2 = gap / x^2
+    s3 *= rho
+    s4 *= rho
+    s4 *= rho
+    with np.errstate(divide="ignore", invalid="ignore"):
+        two_s2 = 2.0 * gap[:, None] / (rho * rho)
+        step = (s3 + s4) / (two_s2 + 3.0 * s3 + 4.0 * s4)
+    good = (np.abs(step) < 0.5) & (rho < SERIES_REACH * dist[:, None]) & use
+    step *= rho
+    return np.where(good, rho - step, rho)
 
 
 def _edges(rays, rho, R, gap, curv):
@@ -858,15 +921,18 @@ def _march(sx, sy, phi, v, known, dof, kdof, floor, level, psi, draw, fix_lat, f
     cx, cy, s_min, J, H = _minimum(trig, sx, sy, v)
     T = region_threshold(s_min, known, dof, level, kdof, floor)
     ux, uy = np.sin(psi)[None, :], np.cos(psi)[None, :]
-    # First guess: S's quadratic model about its minimum, with the full Hessian where it is positive definite.
+    # First guess: S's quadratic model about its minimum, with the full Hessian where it is positive definite,
+    # then the root of S's Taylor polynomial along the ray where that is positive definite.
     q = np.where(_positive(H)[:, None], H, J)
     quad = q[:, :1] * ux * ux + 2 * q[:, 1:2] * ux * uy + q[:, 2:] * uy * uy
     with np.errstate(divide="ignore", invalid="ignore"):
         rho = np.sqrt((T - s_min)[:, None] / quad)
     R = draw[:, None] * np.ones((1, K))
+    plain = np.isfinite(rho) & (rho > 0) & (rho < 0.5 * R)
     rho = np.where(np.isfinite(rho) & (rho > 0), np.minimum(rho, 0.5 * R), 0.5 * R)
     curv = np.where(_positive(H)[:, None], quad, np.nan)
     rays = _Rays(trig, sx, sy, v, cx, cy, T, psi)
+    rho = _series_guess(rays, psi, T - s_min, rho, plain & _positive(H)[:, None])
     rho, f = _edges(rays, rho.ravel(), R.ravel(), np.repeat(T - s_min, K), curv.ravel())
     rho, f = rho.reshape(M, K), f.reshape(M, K)
     open_ray = (f < 0) & (rho >= R * (1 - 1e-9))
