@@ -255,6 +255,8 @@ MODEL_REACH_PAD = 0.02
 PLANE_TOLERANCE = 0.01
 #: While at least this share of a batch's rays is searched, all of them are evaluated as whole arrays.
 WHOLE_BATCH = 0.3
+#: Batches of fixes whose minima of S are found together (that step's arrays are (fixes, bearings) only).
+MINIMUM_BATCHES = 10
 _EARTH_R = 6_371_000.0
 _TWO_PI = 2.0 * np.pi
 
@@ -461,21 +463,30 @@ def likelihood_regions(fix_lat, fix_lon, g, station_lat, station_lon, bearing_de
     slat_all = np.asarray(station_lat, float)
     slon_all = np.asarray(station_lon, float)
     theta_all = np.radians(np.asarray(bearing_deg, float))
-    # Fixes with the same number of bearings are marched together as (fixes, bearings, rays) arrays.
+    # Fixes with the same number of bearings are marched together as (fixes, bearings, rays) arrays. The minimum of
+    # S is found for MINIMUM_BATCHES batches at a time: its arrays are (fixes, bearings) only, and in batches of
+    # ``chunk`` fixes numpy's per-call cost was most of its time (each fix's steps are its own: same bits).
     for n in np.unique(counts[ok]):
         fixes_n = np.flatnonzero(ok & (counts == n))
         step = max(1, chunk * 4 // int(n))
-        for k0 in range(0, len(fixes_n), step):
-            fx = fixes_n[k0:k0 + step]
-            idx = order[offsets[fx][:, None] + np.arange(n)[None, :]]       # (M, n)
-            res = _march(d[idx] * np.sin(az[idx]), d[idx] * np.cos(az[idx]), r0[idx] + az[idx] + np.pi,
-                         weight[idx], known[fx], dof[fx], kdof[fx], floor[fx], float(level), psi, draw[fx], fix_lat[fx],
-                         fix_lon[fx],
-                         station_lat=slat_all[idx], station_lon=slon_all[idx], theta=theta_all[idx],
-                         spread=spread[fx])
-            for key, val in res.items():
-                out[key][fx] = val
-            out["draw_range_m"][fx] = draw[fx]
+        for m0 in range(0, len(fixes_n), step * MINIMUM_BATCHES):
+            fm = fixes_n[m0:m0 + step * MINIMUM_BATCHES]
+            idx_m = order[offsets[fm][:, None] + np.arange(n)[None, :]]       # (fixes, n)
+            sx_m, sy_m = d[idx_m] * np.sin(az[idx_m]), d[idx_m] * np.cos(az[idx_m])
+            phi_m = r0[idx_m] + az[idx_m] + np.pi
+            trig_m = (np.sin(phi_m), np.cos(phi_m))
+            v_m = weight[idx_m]
+            low_m = _minimum(trig_m, sx_m, sy_m, v_m)
+            for k0 in range(0, len(fm), step):
+                b = slice(k0, k0 + step)
+                fx, idx = fm[b], idx_m[b]
+                res = _march(sx_m[b], sy_m[b], phi_m[b], v_m[b], known[fx], dof[fx], kdof[fx], floor[fx],
+                             float(level), psi, draw[fx], fix_lat[fx], fix_lon[fx], station_lat=slat_all[idx],
+                             station_lon=slon_all[idx], theta=theta_all[idx], spread=spread[fx],
+                             trig=(trig_m[0][b], trig_m[1][b]), low=tuple(a[b] for a in low_m))
+                for key, val in res.items():
+                    out[key][fx] = val
+                out["draw_range_m"][fx] = draw[fx]
     rad = out["radius_m"]
     with np.errstate(invalid="ignore"):
         area = 0.5 * np.sum(rad * rad, axis=1) * (_TWO_PI / n_rays)
@@ -915,10 +926,11 @@ def _s_at_infinity(rays, phi, v, psi, T):
 
 
 def _march(sx, sy, phi, v, known, dof, kdof, floor, level, psi, draw, fix_lat, fix_lon, *, station_lat, station_lon,
-           theta, spread):
+           theta, spread, trig, low):
+    """The regions of one batch of fixes (bearings (M, n); ``trig`` the sines and cosines of ``phi``, ``low`` what
+    :func:`_minimum` gives for them)."""
     M, K = phi.shape[0], len(psi)
-    trig = (np.sin(phi), np.cos(phi))
-    cx, cy, s_min, J, H = _minimum(trig, sx, sy, v)
+    cx, cy, s_min, J, H = low
     T = region_threshold(s_min, known, dof, level, kdof, floor)
     ux, uy = np.sin(psi)[None, :], np.cos(psi)[None, :]
     # First guess: S's quadratic model about its minimum, with the full Hessian where it is positive definite,
