@@ -1,7 +1,12 @@
 """Cost of each stage of locating a season: the solver, the likelihood regions, statuses and hints.
 
     .venv/bin/python benchmarks/bench_regions.py [--fixes 100000] [--bearings 4] [--method mle] [--unknown-sd]
-                                                 [--solve-only] [--repeat 3]
+                                                 [--solve-only] [--repeat 3] [--against OLD_DIR [--pairs 5]]
+
+``--against OLD_DIR`` (a directory holding another version's ``dfkit``, e.g. from ``git archive main dfkit``) times
+``regions.likelihood_regions`` alone, paired in one process: that version's ``regions.py`` and this checkout's
+alternate on the same solution (old, new, new, old, ...), and the medians and the per-pair ratios are printed
+(steadier than separate runs on a shared machine; the rest of ``dfkit`` is this checkout's for both).
 
 To compare the solver with another version, run it with that version first on the path, e.g.
 ``git archive main | tar -x -C /tmp/dfkit-main`` then
@@ -45,6 +50,33 @@ def timed(label, fn, repeat=1):
     return out
 
 
+def paired(regions, other_dir, sol, g, lat, lon, b, pairs):
+    """Alternate this checkout's likelihood_regions with ``other_dir``'s; print CPU medians and per-pair ratios."""
+    import importlib.util
+    import os
+    import sys
+
+    path = os.path.join(other_dir, "dfkit", "regions.py")
+    spec = importlib.util.spec_from_file_location("other_regions", path)
+    other = importlib.util.module_from_spec(spec)
+    sys.modules["other_regions"] = other         # dataclasses look their module up
+    spec.loader.exec_module(other)
+    args = (sol.lat, sol.lon, g, lat, lon, b, sol.range_m, sol.azimuth_from_fix_deg, sol.residual_deg,
+            sol.region_weight, sol.sd_known, sol.dof, 0.95)
+    cpu = {"old": [], "new": []}
+    for i in range(pairs):
+        order = (("old", other), ("new", regions)) if i % 2 == 0 else (("new", regions), ("old", other))
+        for name, mod in order:
+            c0 = time.process_time()
+            mod.likelihood_regions(*args, valid=sol.converged)
+            cpu[name].append(time.process_time() - c0)
+    for name, path_ in (("old", path), ("new", regions.__file__)):
+        print(f"regions {name}: median {np.median(cpu[name]):.3f} s CPU ({' '.join(f'{x:.2f}' for x in cpu[name])})"
+              f"  {path_}")
+    ratio = np.array(cpu["new"]) / np.array(cpu["old"])
+    print(f"new / old per pair: median {np.median(ratio):.3f} ({' '.join(f'{x:.2f}' for x in ratio)})")
+
+
 def main():
     ap = argparse.ArgumentParser()
     ap.add_argument("--fixes", type=int, default=100_000)
@@ -53,6 +85,8 @@ def main():
     ap.add_argument("--unknown-sd", action="store_true", help="give no SD (estimated from each fix)")
     ap.add_argument("--solve-only", action="store_true", help="time estimators.solve alone")
     ap.add_argument("--repeat", type=int, default=3)
+    ap.add_argument("--against", help="directory with another version's dfkit: paired timing of the regions")
+    ap.add_argument("--pairs", type=int, default=5)
     a = ap.parse_args()
     from dfkit import estimators
 
@@ -68,6 +102,10 @@ def main():
     if a.solve_only:
         return
     from dfkit import regions
+
+    if a.against:
+        paired(regions, a.against, sol, g, lat, lon, b, a.pairs)
+        return
 
     timed("regions.likelihood_regions", lambda: regions.likelihood_regions(
         sol.lat, sol.lon, g, lat, lon, b, sol.range_m, sol.azimuth_from_fix_deg, sol.residual_deg,

@@ -304,3 +304,34 @@ def check_radii_against_brentq(st, b, sd):
             errors += abs(rho - root) > 5e-4 * root
     assert checked >= 0.9 * len(psi) * L.has_region.sum() > 0
     assert errors == 0
+
+
+def test_taylor_coefficients_of_the_statistic_along_a_ray_match_scipy():
+    # The first guess's series: S's Taylor coefficients s_2 .. s_6 along each ray from a point, against
+    # scipy.interpolate.approximate_taylor_polynomial of the plane S computed here with numpy's arctan2.
+    from scipy.interpolate import approximate_taylor_polynomial
+
+    rng = np.random.default_rng(5)
+    M, n = 3, 4
+    sx, sy = rng.uniform(-1500, 1500, (M, n)), rng.uniform(-1500, 1500, (M, n))
+    phi, v = rng.uniform(0, 2 * np.pi, (M, n)), rng.uniform(0.5, 2.0, (M, n))
+    cx, cy = rng.uniform(-40, 40, M), rng.uniform(-40, 40, M)
+    psi = np.arange(8) * np.pi / 4
+    ax, ay = (cx[:, None] - sx).T, (cy[:, None] - sy).T
+    sp, cp = np.sin(phi).T, np.cos(phi).T
+    s, dist = regions._taylor(sp * ay - cp * ax, sp * ax + cp * ay, ax, ay, v.T, psi, 6)
+    assert dist == pytest.approx(np.hypot(cx[:, None] - sx, cy[:, None] - sy).min(axis=1), rel=1e-12)
+    for i in range(M):
+        for k, p in enumerate(psi):
+            def S(rho):
+                x, y = cx[i] + rho * np.sin(p) - sx[i][:, None], cy[i] + rho * np.cos(p) - sy[i][:, None]
+                r = (phi[i][:, None] - np.arctan2(x, y) + np.pi) % (2 * np.pi) - np.pi
+                return (v[i][:, None] * r * r).sum(0)
+
+            scale = 0.05 * dist[i]
+            ref = approximate_taylor_polynomial(S, 0.0, 6, scale, order=14).coeffs[::-1]    # ref[j]: rho^j
+            # compared on the scale of the series' radius of convergence: s_j dist^j
+            size = max(abs(ref[j]) * dist[i] ** j for j in (1, 2, 3, 4))
+            for order in (2, 3, 4):
+                unit = dist[i] ** order
+                assert s[order - 2, i, k] * unit == pytest.approx(ref[order] * unit, rel=1e-4, abs=1e-5 * size)
