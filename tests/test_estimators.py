@@ -595,3 +595,38 @@ def test_a_caller_tolerance_bounds_the_distance_to_an_outside_optimum(tol_m):
                             options={"xatol": 1e-10, "fatol": 1e-14, "maxiter": 5000}).x
     assert s.converged[0]
     assert WGS.Inverse(ref[0], ref[1], s.lat[0], s.lon[0])["s12"] < max(tol_m, 0.01)
+
+
+@pytest.mark.parametrize("method", ["mle", "huber", "andrews", "lsq", "stansfield"])
+@pytest.mark.parametrize("sd_given", [True, False])
+def test_fixes_solved_in_chunks_are_those_of_one_call_bit_for_bit(monkeypatch, method, sd_given):
+    # Every fix is solved from its own bearings alone, so cutting the fixes into chunks (to bound the working
+    # memory) must change no bit of any field, per fix or per bearing. Invented fixes of 1-6 bearings, rows of
+    # different fixes interleaved, some wild bearings, some parallel lines; the chunk size is forced down to 7.
+    import dataclasses
+    import importlib
+
+    solve_mod = importlib.import_module("dfkit.estimators.solve")
+    rng = np.random.default_rng(5)
+    m = 60
+    counts = rng.integers(1, 7, m)
+    g = np.repeat(np.arange(m), counts)
+    rng.shuffle(g)
+    n = len(g)
+    tlat, tlon = 46.0 + rng.random(m), 11.0 + rng.random(m)
+    lat = tlat[g] + rng.normal(0, 0.01, n)
+    lon = tlon[g] + rng.normal(0, 0.01, n)
+    az = np.array([WGS.Inverse(lat[i], lon[i], tlat[g[i]], tlon[g[i]])["azi1"] for i in range(n)])
+    theta = az + rng.normal(0, 4, n) + np.where(rng.random(n) < 0.1, rng.uniform(30, 90, n), 0.0)
+    theta[g == 3] = 45.0                                     # one fix of parallel lines
+    sd = np.full(n, 4.0) if sd_given else None
+    one = estimators.solve(lat, lon, theta, g, m, sd, method=method)
+    monkeypatch.setattr(solve_mod, "SOLVE_CHUNK_FIXES", 7)
+    cut = estimators.solve(lat, lon, theta, g, m, sd, method=method)
+    for f in dataclasses.fields(one):
+        a, b = getattr(one, f.name), getattr(cut, f.name)
+        if isinstance(a, np.ndarray):
+            assert a.dtype == b.dtype and a.shape == b.shape, f.name
+            assert np.array_equal(a, b, equal_nan=True), f.name
+        else:
+            assert a == b, f.name

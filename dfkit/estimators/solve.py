@@ -14,7 +14,7 @@ for the optimisers, the Newton matrix of the objective is positive definite
 
 from __future__ import annotations
 
-from dataclasses import dataclass
+from dataclasses import dataclass, fields
 
 import numpy as np
 
@@ -148,6 +148,15 @@ def _check_inputs(lat, lon, theta, g, m, sd, floor):
         raise ValueError(f"sd_floor_deg= must be at least 0 and below 90 degrees (found {floor[bad_floor][:3]})")
 
 
+#: Most fixes solved together: a larger call solves its fixes in consecutive chunks of fix ids, so the solver's
+#: working arrays (about 1.4 KB a fix with four bearings, more than the answers themselves) stay bounded on a
+#: whole season. Every fix is solved from its own bearings alone, so the answers are those of one call, bit for
+#: bit (tests/test_estimators.py). A choice of ours: chunks of this size cost no measurable time.
+SOLVE_CHUNK_FIXES = 25_000
+#: The :class:`Solution` fields with one value per bearing (the others have one per fix).
+_PER_BEARING = ("residual_deg", "weight", "range_m", "azimuth_from_fix_deg", "region_weight")
+
+
 def solve(lat, lon, bearing_deg, group, n_groups, sd_deg=None, *, method="mle", robust_c=None, sd_floor_deg=None,
           tol_m=1e-4, max_iter=100, max_outer=30) -> Solution:
     """Solve many fixes at once.
@@ -201,6 +210,9 @@ def solve(lat, lon, bearing_deg, group, n_groups, sd_deg=None, *, method="mle", 
     sd = np.full(N, np.nan) if sd_deg is None else np.broadcast_to(np.asarray(sd_deg, float), (N,))
     floor_b = np.zeros(N) if sd_floor_deg is None else np.broadcast_to(np.asarray(sd_floor_deg, float), (N,))
     _check_inputs(lat, lon, theta, g, m, sd, floor_b)
+    if m > SOLVE_CHUNK_FIXES:
+        options = dict(method=method, robust_c=robust_c, tol_m=tol_m, max_iter=max_iter, max_outer=max_outer)
+        return _in_chunks(lat, lon, theta, g, m, sd, floor_b, options)
 
     counts = np.bincount(g, minlength=m)
     floor_g = np.full(m, np.inf)
@@ -273,6 +285,31 @@ def solve(lat, lon, bearing_deg, group, n_groups, sd_deg=None, *, method="mle", 
         _settle_unknown_sd(ctx, state, base & ~known_g, counts, n_starts, x0, y0, more)
     return _finish(ctx, counts, state["geo"], state["P_lat"], state["P_lon"], state["ending"], state["verified"],
                    known_b, known_g, sd_rad, parallel, state["iterations"])
+
+
+def _in_chunks(lat, lon, theta, g, m, sd, floor_b, options) -> Solution:
+    """:func:`solve` of fixes [lo, hi) at a time (:data:`SOLVE_CHUNK_FIXES`), put back together: per-fix fields
+    in fix order, per-bearing fields in the rows they came from (each chunk keeps its rows' order)."""
+    parts, rows_of = [], []
+    for lo in range(0, m, SOLVE_CHUNK_FIXES):
+        hi = min(m, lo + SOLVE_CHUNK_FIXES)
+        rows = np.flatnonzero((g >= lo) & (g < hi))
+        parts.append(solve(lat[rows], lon[rows], theta[rows], g[rows] - lo, hi - lo, sd[rows],
+                           sd_floor_deg=floor_b[rows], **options))
+        rows_of.append(rows)
+    joined = {}
+    for f in fields(Solution):
+        values = [getattr(p, f.name) for p in parts]
+        if f.name == "method" or values[0] is None:
+            joined[f.name] = values[0]
+        elif f.name in _PER_BEARING:
+            out = np.empty(len(lat), values[0].dtype)
+            for rows, v in zip(rows_of, values):
+                out[rows] = v
+            joined[f.name] = out
+        else:
+            joined[f.name] = np.concatenate(values)
+    return Solution(**joined)
 
 
 def _attempts(ctx, state, which, n_starts, x0, y0, more=None):
