@@ -489,11 +489,12 @@ def likelihood_regions(fix_lat, fix_lon, g, station_lat, station_lon, bearing_de
                 out["draw_range_m"][fx] = draw[fx]
     rad = out["radius_m"]
     with np.errstate(invalid="ignore"):
-        area = 0.5 * np.sum(rad * rad, axis=1) * (_TWO_PI / n_rays)
+        area = np.empty(m)
         reach = np.empty(m)
         su, cu = np.sin(psi), np.cos(psi)
         for k0 in range(0, m, chunk):       # in batches: (fixes, rays) temporaries were the run's memory peak
             sl = slice(k0, k0 + chunk)
+            area[sl] = 0.5 * np.sum(rad[sl] * rad[sl], axis=1) * (_TWO_PI / n_rays)
             x = out["centre_x"][sl, None] + rad[sl] * su
             y = out["centre_y"][sl, None] + rad[sl] * cu
             # the farthest point by its squared distance, then hypot of that one point only (hypot on every ray
