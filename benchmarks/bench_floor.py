@@ -22,7 +22,8 @@ It prints its stage times (``time.perf_counter``) and its peak memory. ``compare
 ``--runs`` pairs per size), each in its own process, and reads each child's CPU time and peak memory from
 ``os.wait4`` (the kernel's own accounting of that child). The ratio dfkit/floor is taken pair by pair, so a
 machine whose speed drifts moves both. With ``--pyarrow`` each pair also runs the floor with the csv-module
-writer, and the memory columns compare against that one (pyarrow's own import is not part of the work). Last, a per-fix ``scipy.optimize.least_squares`` loop (bench_fix.py's, on
+writer: the memory columns compare against that one (pyarrow's own import is not part of the work), and two
+more columns give its CPU time and dfkit's ratio to it. Last, a per-fix ``scipy.optimize.least_squares`` loop (bench_fix.py's, on
 the same geodesic residuals with tolerances 1e-12) on a sample of fixes, scaled to all fixes, against dfkit end
 to end. Before timing, each version's ``dfkit`` is byte-compiled (``compileall``, as ``pip install`` does for the
 floor's packages). Prints a Markdown table of medians with (min-max). ``--before DIR`` (a folder holding another version's
@@ -164,7 +165,7 @@ def compare(a):
             d, f = got["dfkit"], got["floor"]
             if a.pyarrow:     # memory against the floor whose writer needs no library of its own
                 f = [(x[0], x[1], y[2], x[3]) for x, y in zip(f, got["plain"])]
-            rows.append((n_fix, d, f, got["before"]))
+            rows.append((n_fix, d, f, got["before"], got["plain"]))
             print(f"{n_fix} fixes: dfkit exit {d[0][3]}, floor exit {f[0][3]}", file=sys.stderr)
         # the per-fix optimiser loop, on the last size's fixes
         rng = np.random.default_rng(2)
@@ -175,22 +176,25 @@ def compare(a):
             bench_fix.loop_solve(lat[i], lon[i], b[i])
         per_fix = (time.process_time() - t0) / len(idx)
     print("| fixes | dfkit CPU s | floor CPU s | CPU ratio | dfkit wall s | floor wall s | wall ratio "
-          "| dfkit peak MiB | floor peak MiB | peak ratio | scipy loop / dfkit |")
-    print("|---|---|---|---|---|---|---|---|---|---|---|")
-    for n_fix, d, f, _ in rows:
+          "| dfkit peak MiB | floor peak MiB | peak ratio | scipy loop / dfkit |"
+          + (" csv-module floor CPU s | CPU ratio to it |" if a.pyarrow else ""))
+    print("|---|---|---|---|---|---|---|---|---|---|---|" + ("---|---|" if a.pyarrow else ""))
+    for n_fix, d, f, _, plain in rows:
         cpu_r = [x[1] / y[1] for x, y in zip(d, f)]
         wall_r = [x[0] / y[0] for x, y in zip(d, f)]
         mem_r = [x[2] / y[2] for x, y in zip(d, f)]
         loop = per_fix * n_fix / statistics.median(x[1] for x in d)
+        more = (f" {_med([x[1] for x in plain])} | {_med([x[1] / y[1] for x, y in zip(d, plain)])} |"
+                if a.pyarrow else "")
         print(f"| {n_fix:,} | {_med([x[1] for x in d])} | {_med([x[1] for x in f])} | {_med(cpu_r)} "
               f"| {_med([x[0] for x in d])} | {_med([x[0] for x in f])} | {_med(wall_r)} "
-              f"| {_med([x[2] for x in d])} | {_med([x[2] for x in f])} | {_med(mem_r)} | {loop:.0f}x |")
+              f"| {_med([x[2] for x in d])} | {_med([x[2] for x in f])} | {_med(mem_r)} | {loop:.0f}x |" + more)
     print(f"scipy least_squares loop: {1e3 * per_fix:.2f} ms CPU per fix ({len(idx)} fixes sampled)")
     if a.before:
         print("\n| fixes | before CPU s | after CPU s | after/before CPU | before peak MiB | after peak MiB "
               "| after/before peak |")
         print("|---|---|---|---|---|---|---|")
-        for n_fix, d, _, b in rows:
+        for n_fix, d, _, b, _ in rows:
             print(f"| {n_fix:,} | {_med([x[1] for x in b])} | {_med([x[1] for x in d])} "
                   f"| {_med([x[1] / y[1] for x, y in zip(d, b)])} | {_med([x[2] for x in b])} "
                   f"| {_med([x[2] for x in d])} | {_med([x[2] / y[2] for x, y in zip(d, b)])} |")
