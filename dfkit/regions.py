@@ -920,6 +920,9 @@ def _edges(rays, rho, R, gap, curv):
         f_at[at] = np.where(settle, 0.0, f)
         lo[at], hi[at] = lo_l, hi_l
         live = live[~done]
+        # this step's arrays go before the next evaluation of S (else they would be held through it)
+        del r, lo_l, hi_l, R_l, gap_l, f, df, safe, neg, top, cubic, quartic, newton, cubic_in, quartic_in, af
+        del by_quartic, by_cubic, near, settle, newton_in, close, done, new_rho, go, lo_g, hi_g, rg, w, slow, plain, step
     return rho, f_at
 
 
