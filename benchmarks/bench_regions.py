@@ -99,7 +99,8 @@ def paired(regions, other_dir, sol, g, lat, lon, b, pairs, memory=False):
     if memory:
         for name, mod in (("old", other), ("new", regions)):
             peak, kept, transient = traced(lambda: mod.likelihood_regions(*args, **kw))
-            print(f"regions {name} traced: peak {peak:.1f} MiB above the call, kept {kept:.1f}, transient {transient:.1f}")
+            print(f"regions {name} traced: peak {peak:.1f} MiB above the call, kept {kept:.1f}, "
+                  f"transient {transient:.1f}")
 
 
 def main():

@@ -922,7 +922,8 @@ def _edges(rays, rho, R, gap, curv):
         live = live[~done]
         # this step's arrays go before the next evaluation of S (else they would be held through it)
         del r, lo_l, hi_l, R_l, gap_l, f, df, safe, neg, top, cubic, quartic, newton, cubic_in, quartic_in, af
-        del by_quartic, by_cubic, near, settle, newton_in, close, done, new_rho, go, lo_g, hi_g, rg, w, slow, plain, step
+        del by_quartic, by_cubic, near, settle, newton_in, close, done, new_rho
+        del go, lo_g, hi_g, rg, w, slow, plain, step
     return rho, f_at
 
 
