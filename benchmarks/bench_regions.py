@@ -2,11 +2,15 @@
 
     .venv/bin/python benchmarks/bench_regions.py [--fixes 100000] [--bearings 4] [--method mle] [--unknown-sd]
                                                  [--solve-only] [--repeat 3] [--against OLD_DIR [--pairs 5]]
+                                                 [--memory]
 
 ``--against OLD_DIR`` (a directory holding another version's ``dfkit``, e.g. from ``git archive main dfkit``) times
 ``regions.likelihood_regions`` alone, paired in one process: that version's ``regions.py`` and this checkout's
 alternate on the same solution (old, new, new, old, ...), and the medians and the per-pair ratios are printed
-(steadier than separate runs on a shared machine; the rest of ``dfkit`` is this checkout's for both).
+(steadier than separate runs on a shared machine; the rest of ``dfkit`` is this checkout's for both). With
+``--memory`` each version's ``likelihood_regions`` is also run once under ``tracemalloc`` (after the timed pairs):
+its traced peak above the memory at the call, what it keeps (its result) and the transient (peak - kept), in MiB.
+These do not depend on the machine's load.
 
 To compare the solver with another version, run it with that version first on the path, e.g.
 ``git archive main | tar -x -C /tmp/dfkit-main`` then
@@ -50,7 +54,23 @@ def timed(label, fn, repeat=1):
     return out
 
 
-def paired(regions, other_dir, sol, g, lat, lon, b, pairs):
+def traced(fn):
+    """(peak above the start, kept, peak - kept) of one call of ``fn`` under tracemalloc [MiB]."""
+    import tracemalloc
+
+    tracemalloc.start()
+    try:
+        start = tracemalloc.get_traced_memory()[0]
+        out = fn()
+        kept, peak = tracemalloc.get_traced_memory()
+    finally:
+        tracemalloc.stop()
+    del out
+    mib = 2.0 ** 20
+    return (peak - start) / mib, (kept - start) / mib, (peak - kept) / mib
+
+
+def paired(regions, other_dir, sol, g, lat, lon, b, pairs, memory=False):
     """Alternate this checkout's likelihood_regions with ``other_dir``'s; print CPU medians and per-pair ratios."""
     import importlib.util
     import os
@@ -63,18 +83,24 @@ def paired(regions, other_dir, sol, g, lat, lon, b, pairs):
     spec.loader.exec_module(other)
     args = (sol.lat, sol.lon, g, lat, lon, b, sol.range_m, sol.azimuth_from_fix_deg, sol.residual_deg,
             sol.region_weight, sol.sd_known, sol.dof, 0.95)
+    kw = dict(valid=sol.converged, sd_floor_deg=sol.sd_floor_deg)
     cpu = {"old": [], "new": []}
     for i in range(pairs):
         order = (("old", other), ("new", regions)) if i % 2 == 0 else (("new", regions), ("old", other))
         for name, mod in order:
             c0 = time.process_time()
-            mod.likelihood_regions(*args, valid=sol.converged)
+            mod.likelihood_regions(*args, **kw)
             cpu[name].append(time.process_time() - c0)
     for name, path_ in (("old", path), ("new", regions.__file__)):
         print(f"regions {name}: median {np.median(cpu[name]):.3f} s CPU ({' '.join(f'{x:.2f}' for x in cpu[name])})"
               f"  {path_}")
     ratio = np.array(cpu["new"]) / np.array(cpu["old"])
     print(f"new / old per pair: median {np.median(ratio):.3f} ({' '.join(f'{x:.2f}' for x in ratio)})")
+    if memory:
+        for name, mod in (("old", other), ("new", regions)):
+            peak, kept, transient = traced(lambda: mod.likelihood_regions(*args, **kw))
+            print(f"regions {name} traced: peak {peak:.1f} MiB above the call, kept {kept:.1f}, "
+                  f"transient {transient:.1f}")
 
 
 def main():
@@ -87,6 +113,7 @@ def main():
     ap.add_argument("--repeat", type=int, default=3)
     ap.add_argument("--against", help="directory with another version's dfkit: paired timing of the regions")
     ap.add_argument("--pairs", type=int, default=5)
+    ap.add_argument("--memory", action="store_true", help="with --against: traced memory of each version's regions")
     a = ap.parse_args()
     from dfkit import estimators
 
@@ -104,7 +131,7 @@ def main():
     from dfkit import regions
 
     if a.against:
-        paired(regions, a.against, sol, g, lat, lon, b, a.pairs)
+        paired(regions, a.against, sol, g, lat, lon, b, a.pairs, a.memory)
         return
 
     timed("regions.likelihood_regions", lambda: regions.likelihood_regions(

@@ -436,20 +436,23 @@ def likelihood_regions(fix_lat, fix_lon, g, station_lat, station_lon, bearing_de
     fix_lon = np.asarray(fix_lon, float)
     m = len(fix_lat)
     g = np.asarray(g, np.int64)
-    weight = np.nan_to_num(np.asarray(weight, float))
+    # the bearings' arrays are converted (weights without NaN, degrees to radians) batch by batch, not as whole
+    # copies held through the loop (same values: each is converted element by element)
+    weight = np.asarray(weight, float)
     d = np.asarray(range_m, float)
-    az = np.radians(np.asarray(azimuth_from_fix_deg, float))
-    r0 = np.radians(np.asarray(residual_deg, float))
+    az_deg = np.asarray(azimuth_from_fix_deg, float)
+    r0_deg = np.asarray(residual_deg, float)
     known = np.asarray(known, bool)
     dof = np.asarray(dof)
     kdof = np.full(m, np.inf) if known_dof is None else np.asarray(known_dof, float)
     floor = np.zeros(m) if sd_floor_deg is None else np.radians(np.broadcast_to(np.asarray(sd_floor_deg, float), (m,)))
-    n_w = np.bincount(g, (weight > 0).astype(float), m)
+    n_w = np.bincount(g, (weight > 0).astype(float), m)       # NaN weights count as 0, as nan_to_num makes them
     ok = np.isfinite(fix_lat) & np.isfinite(fix_lon) & (n_w >= 2) & (known | (dof > 0))
     if valid is not None:
         ok &= np.asarray(valid, bool)
-    finite_b = np.isfinite(d) & np.isfinite(az) & np.isfinite(r0)
+    finite_b = np.isfinite(d) & np.isfinite(az_deg) & np.isfinite(r0_deg)      # finite in degrees as in radians
     ok &= np.bincount(g, (~finite_b).astype(float), m) == 0
+    del n_w, finite_b
     psi = np.arange(n_rays) * (_TWO_PI / n_rays)
     out = dict(centre_x=np.full(m, np.nan), centre_y=np.full(m, np.nan), radius_m=np.full((m, n_rays), np.nan),
                bounded=np.zeros(m, bool), star_shaped=np.ones(m, bool), s_min=np.full(m, np.nan),
@@ -457,12 +460,13 @@ def likelihood_regions(fix_lat, fix_lon, g, station_lat, station_lon, bearing_de
     spread = np.zeros(m)
     np.maximum.at(spread, g, np.where(np.isfinite(d), d, 0.0))
     draw = np.clip(DRAW_RANGE_FACTOR * spread, DRAW_RANGE_MIN_M, DRAW_RANGE_MAX_M)
-    order = np.argsort(g, kind="stable")
+    # bearings grouped by fix: a sheet's fixes are usually in order already (then no permutation is held)
+    order = None if len(g) < 2 or bool((g[1:] >= g[:-1]).all()) else np.argsort(g, kind="stable")
     counts = np.bincount(g, minlength=m)
     offsets = np.concatenate(([0], np.cumsum(counts)[:-1]))
     slat_all = np.asarray(station_lat, float)
     slon_all = np.asarray(station_lon, float)
-    theta_all = np.radians(np.asarray(bearing_deg, float))
+    bearing_all = np.asarray(bearing_deg, float)
     # Fixes with the same number of bearings are marched together as (fixes, bearings, rays) arrays. The minimum of
     # S is found for MINIMUM_BATCHES batches at a time: its arrays are (fixes, bearings) only, and in batches of
     # ``chunk`` fixes numpy's per-call cost was most of its time (each fix's steps are its own: same bits).
@@ -471,18 +475,25 @@ def likelihood_regions(fix_lat, fix_lon, g, station_lat, station_lon, bearing_de
         step = max(1, chunk * 4 // int(n))
         for m0 in range(0, len(fixes_n), step * MINIMUM_BATCHES):
             fm = fixes_n[m0:m0 + step * MINIMUM_BATCHES]
-            idx_m = order[offsets[fm][:, None] + np.arange(n)[None, :]]       # (fixes, n)
-            sx_m, sy_m = d[idx_m] * np.sin(az[idx_m]), d[idx_m] * np.cos(az[idx_m])
-            phi_m = r0[idx_m] + az[idx_m] + np.pi
+            idx_m = offsets[fm][:, None] + np.arange(n)[None, :]       # (fixes, n)
+            if order is not None:
+                idx_m = order[idx_m]
+            az_m = np.radians(az_deg[idx_m])
+            d_m = d[idx_m]
+            sx_m, sy_m = d_m * np.sin(az_m), d_m * np.cos(az_m)
+            phi_m = np.radians(r0_deg[idx_m])
+            phi_m += az_m
+            phi_m += np.pi
+            del az_m, d_m
             trig_m = (np.sin(phi_m), np.cos(phi_m))
-            v_m = weight[idx_m]
+            v_m = np.nan_to_num(weight[idx_m], copy=False)
             low_m = _minimum(trig_m, sx_m, sy_m, v_m)
             for k0 in range(0, len(fm), step):
                 b = slice(k0, k0 + step)
                 fx, idx = fm[b], idx_m[b]
                 res = _march(sx_m[b], sy_m[b], phi_m[b], v_m[b], known[fx], dof[fx], kdof[fx], floor[fx],
                              float(level), psi, draw[fx], fix_lat[fx], fix_lon[fx], station_lat=slat_all[idx],
-                             station_lon=slon_all[idx], theta=theta_all[idx], spread=spread[fx],
+                             station_lon=slon_all[idx], theta=np.radians(bearing_all[idx]), spread=spread[fx],
                              trig=(trig_m[0][b], trig_m[1][b]), low=tuple(a[b] for a in low_m))
                 for key, val in res.items():
                     out[key][fx] = val
@@ -510,18 +521,31 @@ def likelihood_regions(fix_lat, fix_lon, g, station_lat, station_lon, bearing_de
         draw_range_m=out["draw_range_m"], star_shaped=out["star_shaped"] & has, s_min=out["s_min"],
         threshold=out["threshold"], level=float(level), g=g, station_lat=np.asarray(station_lat, float),
         station_lon=np.asarray(station_lon, float), bearing_deg=np.asarray(bearing_deg, float),
-        weight=np.where(ok[g], weight, 0.0))
+        weight=np.nan_to_num(np.where(ok[g], weight, 0.0), copy=False))
 
 
 def _angle(y, x):
     """arctan2(y, x) as arctan(y / x), turned by pi where x < 0: the same angle to an ulp or two, and about twice
     as fast (numpy's arctan is vectorised, its arctan2 not). NaN where x = y = 0 (arctan2 gives 0)."""
     with np.errstate(divide="ignore", invalid="ignore"):
-        r = np.arctan(y / x)
+        r = np.divide(y, x)
+        np.arctan(r, out=r)          # in place: one array, not two
     back = np.signbit(x)
     if back.any():
         r[back] += np.copysign(np.pi, y[back])
     return r
+
+
+def _row_sum(v, r):
+    """(v r r).sum(0), i.e. ((v * r) * r).sum(0), for arrays of two or more dimensions without the whole products:
+    row by row, added in the order numpy's sum over the first axis adds the rows (the same bits)."""
+    out = v[0] * r[0]
+    out *= r[0]
+    for k in range(1, r.shape[0]):
+        t = v[k] * r[k]
+        t *= r[k]
+        out += t
+    return out
 
 
 def _residual(sp, cp, dx, dy):
@@ -628,7 +652,8 @@ class _Rays:
     direction, the point's offset from the station is d = a + rho u and the bearing's residual is
     atan2(A + rho B, C + rho D) with A = a x phi, C = a . phi, B = sin(phi - psi), D = cos(phi - psi) (phi taken
     as the unit vector (sin phi, cos phi)); its derivative in rho is E / |d|^2 with E = a_x u_y - a_y u_x, the
-    same all along the ray. A and C are held (n, M), B, D and E (n, M K): a sum over the bearings adds rows.
+    same all along the ray. A and C are held (n, M), B and D (n, M K): a sum over the bearings adds rows. E is
+    formed bearing by bearing where it is used (:meth:`f`), not held.
     """
 
     def __init__(self, trig, sx, sy, v, cx, cy, T, psi):
@@ -642,7 +667,7 @@ class _Rays:
         self.ax, self.ay = ax, ay
         self.B = (sp[:, :, None] * cu - cp[:, :, None] * su).reshape(flat)
         self.D = (sp[:, :, None] * su + cp[:, :, None] * cu).reshape(flat)
-        self.E = (ax[:, :, None] * cu - ay[:, :, None] * su).reshape(flat)
+        self.su, self.cu = su, cu
         self.v = np.ascontiguousarray(v.T)
         self.T = T
         self.unweighted = np.where(self.v > 0, 0.0, np.inf) if (self.v <= 0).any() else None
@@ -652,61 +677,79 @@ class _Rays:
         return a[:, :, None] if i is None else a[:, i // self.K]
 
     def _parts(self, i):
-        """(A, C, v, T) of the rays' fixes and (B, D, E) of the rays, shaped to broadcast to (n, rays) or,
+        """(A, C, v, T) of the rays' fixes and (B, D) of the rays, shaped to broadcast to (n, rays) or,
         for every ray (``i`` None), to (n, M, K)."""
         if i is None:
             n, M, K = self.n, self.M, self.K
             return (self.A[:, :, None], self.C[:, :, None], self.v[:, :, None], self.T[:, None],
-                    *(a.reshape(n, M, K) for a in (self.B, self.D, self.E)))
+                    *(a.reshape(n, M, K) for a in (self.B, self.D)))
         j = i // self.K
-        return self.A[:, j], self.C[:, j], self.v[:, j], self.T[j], self.B[:, i], self.D[:, i], self.E[:, i]
+        return self.A[:, j], self.C[:, j], self.v[:, j], self.T[j], self.B[:, i], self.D[:, i]
+
+    def _e_parts(self, i):
+        """(a_x, a_y) of the rays' fixes and (u_y, u_x) of the rays, so that bearing k's E is
+        ``ax[k] * uy - ay[k] * ux``, shaped (rays,) or, for every ray (``i`` None), (M, K)."""
+        if i is None:
+            return self.ax[:, :, None], self.ay[:, :, None], self.cu, self.su
+        j, k = np.divmod(i, self.K)
+        return self.ax[:, j], self.ay[:, j], self.cu[k], self.su[k]
 
     def _offsets(self, rho, i):
         """(cross, dot) = |d| (sin r, cos r) of every bearing at radius ``rho``, the parts of the rays, their
         weights and bounds, shaped (n, rays) or (n, M, K)."""
-        A, C, v, T, B, D, E = self._parts(i)
+        A, C, v, T, B, D = self._parts(i)
         rho = rho if i is not None else rho.reshape(self.M, self.K)
         cross = B * rho
         cross += A
         dot = D * rho
         dot += C
-        return cross, dot, v, T, E
+        return cross, dot, v, T
 
     def f(self, rho, i=None):
         """f = S - T and its derivative in rho at radius ``rho`` on rays ``i`` (flat indices; None: all), and the
         largest move along each ray within which no residual can wrap past pi (where S may jump)."""
-        cross, dot, v, T, E = self._offsets(rho, i)
+        # Three arrays of (bearings, rays) at a time: the sums over the bearings (f, and the slope
+        # 2 sum v r E / |d|^2) are formed bearing by bearing, added in the order numpy's sum(0) adds the rows (the
+        # same bits), and the move's bound reuses the buffers of dot and r.
+        cross, dot, v, T = self._offsets(rho, i)
         r = _angle(cross, dot)
-        vr = v * r
-        f = (vr * r).sum(0)
+        f = _row_sum(v, r)
         if np.isnan(f).any():     # a point on a station
             r = np.arctan2(cross, dot)
-            vr = v * r
-            f = (vr * r).sum(0)
+            f = _row_sum(v, r)
         f -= T
         cross *= cross
         dot *= dot
         cross += dot
         np.maximum(cross, 1e-18, out=cross)
+        ax, ay, uy, ux = self._e_parts(i)
+        slope = None
+        for k in range(r.shape[0]):
+            t = ax[k] * uy
+            t -= ay[k] * ux           # E of bearing k
+            t /= cross[k]
+            t *= v[k] * r[k]
+            if slope is None:
+                slope = t
+            else:
+                slope += t
         # how far the point may move before a residual can wrap past pi: a move of s turns the direction from a
         # station at distance |d| by at most s / (|d| - s)
-        room = np.abs(r)
+        room = np.abs(r, out=dot)
         np.subtract(np.pi, room, out=room)
-        safe = np.sqrt(cross)
+        safe = np.sqrt(cross, out=r)
         safe *= room
         room += 1.0
         safe /= room
         if self.unweighted is not None:          # bearings left out never limit the move
             safe += self._parts_of(self.unweighted, i)
         safe = safe.min(axis=0)
-        np.divide(E, cross, out=cross)
-        cross *= vr
-        return f.ravel(), 2.0 * cross.sum(0).ravel(), safe.ravel()
+        return f.ravel(), 2.0 * slope.ravel(), safe.ravel()
 
     def above(self, rho):
         """Whether S > T at radius ``rho`` on every ray, shown without arctan: r^2 >= sin^2 r =
         cross^2 / (cross^2 + dot^2), so S >= sum v cross^2 / |d|^2; False where that bound does not show it."""
-        cross, dot, v, T, _ = self._offsets(rho, None)
+        cross, dot, v, T = self._offsets(rho, None)
         cross *= cross
         dot *= dot
         dot += cross
@@ -877,6 +920,10 @@ def _edges(rays, rho, R, gap, curv):
         f_at[at] = np.where(settle, 0.0, f)
         lo[at], hi[at] = lo_l, hi_l
         live = live[~done]
+        # this step's arrays go before the next evaluation of S (else they would be held through it)
+        del r, lo_l, hi_l, R_l, gap_l, f, df, safe, neg, top, cubic, quartic, newton, cubic_in, quartic_in, af
+        del by_quartic, by_cubic, near, settle, newton_in, close, done, new_rho
+        del go, lo_g, hi_g, rg, w, slow, plain, step
     return rho, f_at
 
 

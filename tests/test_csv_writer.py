@@ -119,3 +119,20 @@ def test_short_decimals_same_bytes_as_pandas(tmp_path, n):
     df = pd.DataFrame(cols)
     write_table(df, tmp_path / "d.csv")
     assert (tmp_path / "d.csv").read_bytes() == _pandas_bytes(df)
+
+
+@pytest.mark.parametrize("guard", [True, False])
+def test_parts_prepared_one_at_a_time(tmp_path, monkeypatch, guard):
+    # Long tables are prepared (times, rounding, formula guard) part by part: with parts of 7 rows and joins of 3,
+    # some parts hold no time, no formula-looking cell or no text needing quotes while others do.
+    monkeypatch.setattr(dcsv, "_ROWS_PER_WRITE", 7)
+    monkeypatch.setattr(dcsv, "_ROWS_PER_JOIN", 3)
+    rng = np.random.default_rng(11)
+    df = _varied(200, rng)
+    df.loc[:40, "time"] = pd.NaT
+    df.loc[50:90, "note"] = "plain"
+    hashed = df.assign(fix=np.where(np.arange(200) == 150, "#150", df["fix"]))       # quoted throughout
+    odd = df.assign(lat=pd.Series(df["lat"].tolist(), dtype=object))                 # rounded column of objects
+    for table in (df, hashed, odd, df.iloc[:7], df.iloc[:8]):
+        write_table(table, tmp_path / "p.csv", guard_formulas=guard)
+        assert (tmp_path / "p.csv").read_bytes() == _pandas_bytes(table, guard)

@@ -235,6 +235,20 @@ def test_radii_are_the_roots_of_the_plane_statistic(n, sd):
     check_radii_against_brentq(st, b, sd)
 
 
+def test_radii_are_the_roots_with_the_fixes_bearings_interleaved():
+    # The same check with the bearings handed over in a random order, not grouped by fix.
+    rng = np.random.default_rng(5)
+    n, m = 4, 25
+    st = []
+    for _ in range(m):
+        az = rng.uniform(0, 360) + np.arange(n) * 360.0 / n + rng.normal(0, 15, n)
+        dist = rng.uniform(400, 2000, n)
+        st.append([(d["lat2"], d["lon2"]) for d in (WGS.Direct(47.0, 15.0, a, r) for a, r in zip(az, dist))])
+    st = np.asarray(st)
+    b = np.array([bearings_to(s, (47.0, 15.0), rng.normal(0, 4.0, n)) % 360 for s in st])
+    check_radii_against_brentq(st, b, 4.0, shuffle=np.random.default_rng(6))
+
+
 def season_fixes(rows, n_fix=100_000, k=4):
     """Stations and bearings of some fixes of an invented season: N fixes around central Europe, k stations each
     400-2000 m away, 4 degree noise (pyproj geodesics). Some of these regions reach past a station's distance."""
@@ -265,14 +279,16 @@ def test_radii_are_the_roots_where_the_region_reaches_past_a_station(sd):
     check_radii_against_brentq(st, b, sd)
 
 
-def check_radii_against_brentq(st, b, sd):
+def check_radii_against_brentq(st, b, sd, shuffle=None):
+    """``shuffle``: a generator to hand the bearings to the regions in a random order (fixes interleaved)."""
     m, n = b.shape
     g = np.repeat(np.arange(m), n)
     sol = estimators.solve(st[:, :, 0].ravel(), st[:, :, 1].ravel(), b.ravel(), g, m,
                            None if sd is None else np.full(m * n, sd))
-    L = regions.likelihood_regions(sol.lat, sol.lon, g, st[:, :, 0].ravel(), st[:, :, 1].ravel(), b.ravel(),
-                                   sol.range_m, sol.azimuth_from_fix_deg, sol.residual_deg, sol.region_weight,
-                                   sol.sd_known, sol.dof, 0.95, valid=sol.converged)
+    p = np.arange(m * n) if shuffle is None else shuffle.permutation(m * n)
+    L = regions.likelihood_regions(sol.lat, sol.lon, g[p], st[:, :, 0].ravel()[p], st[:, :, 1].ravel()[p],
+                                   b.ravel()[p], sol.range_m[p], sol.azimuth_from_fix_deg[p], sol.residual_deg[p],
+                                   sol.region_weight[p], sol.sd_known, sol.dof, 0.95, valid=sol.converged)
     az = np.radians(sol.azimuth_from_fix_deg).reshape(m, n)
     d = sol.range_m.reshape(m, n)
     phi = np.radians(sol.residual_deg).reshape(m, n) + az + np.pi

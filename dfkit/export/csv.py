@@ -134,14 +134,12 @@ def write_table(df: pd.DataFrame, path, *, guard_formulas: bool = True) -> None:
         Prefix ``'`` to text cells a spreadsheet would run as formulas (see the
         module docstring). ``False`` writes text exactly as it is.
     """
+    if len(df) > _ROWS_PER_WRITE and df.shape[1] >= 2 and _prepared_formats_all(df):
+        _write_in_parts(df, path, guard_formulas)
+        return
     table = _for_csv(df, guard_formulas)
-    header = neutralise_formulas(pd.Series([str(c) for c in table.columns], dtype=object),
-                                 guard=guard_formulas).tolist()
-    # dfkit's reader takes a line starting with '#' for a comment: quote text when the first column could start so.
-    first = table.iloc[:, 0] if table.shape[1] else pd.Series([], dtype=object)
-    hashed = (header[:1] and header[0].startswith("#")) or (
-        (first.dtype == object or pd.api.types.is_string_dtype(first.dtype)) and _any_starts_with_hash(first))
-    quoting = csv.QUOTE_NONNUMERIC if hashed else csv.QUOTE_MINIMAL
+    header = _header(table, guard_formulas)
+    quoting = csv.QUOTE_NONNUMERIC if _hashed(header, table) else csv.QUOTE_MINIMAL
     fast = quoting == csv.QUOTE_MINIMAL and table.shape[1] >= 2 and _formats_all(table)
     with atomic_write(path, newline="") as fh:
         if not fast:      # what the fast writer does not do: pandas writes it
@@ -150,7 +148,58 @@ def write_table(df: pd.DataFrame, path, *, guard_formulas: bool = True) -> None:
         fh.write(",".join(_quoted(header)) + "\n")
         tables = _DigitTables()
         for start in range(0, len(table), _ROWS_PER_WRITE):
-            fh.write(_rows_text(_text_columns(table.iloc[start:start + _ROWS_PER_WRITE], tables)))
+            part = table.iloc[start:start + _ROWS_PER_WRITE]
+            _write_rows(fh, _text_columns(part, tables), len(part))
+
+
+def _write_in_parts(df: pd.DataFrame, path, guard: bool) -> None:
+    """:func:`write_table` of a long table the fast writer formats whole: each part of _ROWS_PER_WRITE rows is
+    prepared (:func:`_for_csv`: ISO times, rounding, formula guard) only when it is written, so that no prepared
+    copy of the whole table is held (every cell's text depends on that cell alone: the same bytes)."""
+    header = _header(df, guard)
+    # the first column decides the quoting, as prepared for the whole table (one column)
+    first = _for_csv(df.iloc[:, :1], guard)
+    if _hashed(header, first):        # quoted throughout: pandas writes it
+        table = _for_csv(df, guard)
+        with atomic_write(path, newline="") as fh:
+            table.to_csv(fh, index=False, header=header, lineterminator="\n", quoting=csv.QUOTE_NONNUMERIC)
+        return
+    del first
+    with atomic_write(path, newline="") as fh:
+        fh.write(",".join(_quoted(header)) + "\n")
+        tables = _DigitTables()
+        for start in range(0, len(df), _ROWS_PER_WRITE):
+            part = _for_csv(df.iloc[start:start + _ROWS_PER_WRITE], guard)
+            _write_rows(fh, _text_columns(part, tables), len(part))
+
+
+def _header(table: pd.DataFrame, guard: bool) -> list:
+    return neutralise_formulas(pd.Series([str(c) for c in table.columns], dtype=object), guard=guard).tolist()
+
+
+def _hashed(header: list, table: pd.DataFrame) -> bool:
+    """Whether the header's or the first column's text could start with '#' (dfkit's reader takes such a line
+    for a comment: the table is then quoted throughout)."""
+    first = table.iloc[:, 0] if table.shape[1] else pd.Series([], dtype=object)
+    return bool((header[:1] and header[0].startswith("#")) or (
+        (first.dtype == object or pd.api.types.is_string_dtype(first.dtype)) and _any_starts_with_hash(first)))
+
+
+def _prepared_formats_all(df: pd.DataFrame) -> bool:
+    """Whether :func:`_formats_all` accepts ``_for_csv(df)``, told from ``df`` itself: zone-aware times become
+    text, numeric columns in _ROUNDING float64, and text columns keep their kind of cells (the formula guard
+    turns text into text). False where the answer would need the prepared table (then it is prepared whole)."""
+    for name in df.columns:
+        col = df[name]
+        if isinstance(col.dtype, pd.DatetimeTZDtype):
+            continue
+        if name in _ROUNDING:
+            if isinstance(col.dtype, np.dtype) and col.dtype.kind in "iufb":
+                continue
+            return False
+        if not _formats_all(df[[name]]):
+            return False
+    return True
 
 
 def _any_starts_with_hash(col: pd.Series) -> bool:
@@ -207,17 +256,22 @@ def _formats_all(table: pd.DataFrame) -> bool:
     return True
 
 
-def _rows_text(columns) -> str:
-    """CSV rows from the columns' pieces (:func:`_text_columns`), one join for all rows rather than one per row:
-    the pieces of a row are its text in order."""
-    n = next((len(p) for pieces in columns for p in pieces if not isinstance(p, str)), 0)
-    grid = np.empty((n, sum(map(len, columns))), dtype=object)
-    k = 0
-    for pieces in columns:
-        for p in pieces:
-            grid[:, k] = p
-            k += 1
-    return "".join(grid.ravel().tolist())
+#: Rows joined into one text at a time out of the formatted pieces of a part (bounds the list of pieces' cells
+#: that str.join takes and the text; the formatting itself is done per part of _ROWS_PER_WRITE rows).
+_ROWS_PER_JOIN = 2_500
+
+
+def _write_rows(fh, columns, n: int) -> None:
+    """Write the CSV rows of ``n`` rows from the columns' pieces (:func:`_text_columns`), joined a few thousand
+    rows at a time: the pieces of a row are its text in order."""
+    pieces = [p for column in columns for p in column]
+    width = len(pieces)
+    for start in range(0, n, _ROWS_PER_JOIN):
+        stop = min(n, start + _ROWS_PER_JOIN)
+        cells = [None] * ((stop - start) * width)
+        for k, p in enumerate(pieces):
+            cells[k::width] = [p] * (stop - start) if isinstance(p, str) else p[start:stop].tolist()
+        fh.write("".join(cells))
 
 
 def _text_columns(table: pd.DataFrame, tables: _DigitTables | None = None):
