@@ -179,10 +179,12 @@ def _read(sheet, options, kwargs) -> Bearings:
         "is not used" for i in idx])
 
     del extra, rep, first, tm, ncells, dec, model_dec, fix_c, filled, hints
-    # every row kept (the common case): no masked copy of each column. Number columns are copied by pandas into
-    # its blocks; text columns pandas may keep as given, so one that shares memory with another column, or with
-    # the caller's own RawSheet (a column handed over as read), is copied: a cell changed in the table changes no
-    # other, and not the caller's sheet (a sheet read here is dropped on return: its columns need no copy)
+    # every row kept (the common case): no masked copy of each column. The table takes its columns as they are
+    # (copy=False: not gathered into one block by dtype, which would copy every number column while the arrays
+    # it is made from are still alive). Each array below is made here for the table alone, but for the lines and
+    # text columns; a text column that shares memory with another column, or with the caller's own RawSheet (a
+    # column handed over as read), is copied, and so are the lines of the caller's sheet: a cell changed in the
+    # table changes no other, and not the caller's sheet (a sheet read here is dropped on return)
     masked = bool(log.bad.any())
     keep = ~log.bad if masked else slice(None)
     taken = [t[c].to_numpy(dtype=object) for c in t.columns
@@ -197,7 +199,7 @@ def _read(sheet, options, kwargs) -> Bearings:
         return cells
 
     table = pd.DataFrame({
-        "line": lines[keep],
+        "line": lines[keep] if masked or raw is not sheet else lines.copy(),
         "fix": own(fix),
         "tag": own(tag_c),
         "time": pd.to_datetime(times[keep], unit="s", utc=True),
@@ -214,7 +216,7 @@ def _read(sheet, options, kwargs) -> Bearings:
         "position_from": own(pos.source),
         "grouped_by": own(grouped_by),
         "declination_sd": np.where(magnetic_rows & dec_empty, dec_sd, np.nan)[keep],
-    })
+    }, copy=False)
     for c in raw.columns:
         if (c not in KNOWN_COLUMNS or c in ("observer", "antenna", "note")) and c not in table.columns:
             table[c] = own(t[c].to_numpy(dtype=object))
