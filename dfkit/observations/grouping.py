@@ -34,7 +34,7 @@ from datetime import datetime, timezone
 import numpy as np
 import pandas as pd
 
-from dfkit.observations.cells import pick
+from dfkit.observations.cells import filled as all_of, pick
 from dfkit.observations.rowlog import RowLog
 
 
@@ -67,7 +67,7 @@ def fill_down(labels, tags, times, *, enabled: bool, log: RowLog, notes: list[st
     tags = np.asarray(tags, dtype=object)
     n = len(labels)
     filled = np.zeros(n, bool)
-    hints = np.full(n, "", dtype=object)
+    hints = all_of(n, "")
     lab = labels != ""
     if lab.all() or not lab.any():
         return labels, tags, filled, hints
@@ -140,7 +140,8 @@ def group_fixes(labels, tags, times, *, window_s: float, split_gap_s: float, log
     tags = np.asarray(tags, dtype=object)
     times = np.asarray(times, float)
     fix = labels.copy()
-    grouped_by = pick(labels != "", "label", "")
+    unl = labels == ""
+    grouped_by = pick(~unl, "label", "")
     if filled is not None:
         grouped_by[np.asarray(filled, bool)] = "filled"
     days = np.zeros(len(labels), bool) if date_only is None else np.asarray(date_only, bool)
@@ -148,7 +149,6 @@ def group_fixes(labels, tags, times, *, window_s: float, split_gap_s: float, log
     _split_labels(fix, grouped_by, labels, tags, times, timed, split_gap_s, log, notes, days)
     timed &= ~days                      # a date alone groups no unlabelled bearing by time
 
-    unl = labels == ""
     if not unl.any():
         return fix, grouped_by
     usable = ~log.bad
@@ -322,7 +322,7 @@ def fix_identities(fix, tag, bad, lines, ids=None):
             rejected[k] = []
         rejected[k].append(int(lines[i]))
     fix_index = pd.DataFrame({"fix": fix[first] if m else [], "tag": tag[first] if m else [],
-                              "rejected_lines": rejected})
+                              "rejected_lines": rejected if m else []})
     fix_index.index.name = "fix_id"
     return ids, fix_index
 

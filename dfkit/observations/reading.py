@@ -24,6 +24,7 @@ from dfkit.io.sheet import KNOWN_COLUMNS
 from dfkit.observations import north as north_mod
 from dfkit.observations.bearings import Bearings
 from dfkit.observations.cells import canonical, column, declinations, numbers, pick
+from dfkit.observations.cells import filled as all_of
 from dfkit.observations.columns import check_columns, label_like_columns
 from dfkit.observations.grouping import fill_down, fix_identities, group_fixes, pair_codes
 from dfkit.observations.options import ReadOptions, check_options
@@ -120,7 +121,7 @@ def _read(sheet, options, kwargs) -> Bearings:
     time_c = column(t, "time")
     tm = parse_times(time_c, tz=opts.tz, date_format=opts.date_format, repeated_hour=opts.repeated_hour,
                      dates=column(t, "date") if "date" in t.columns else None)
-    log.reject(tm.error != "", "time" if "time" in t.columns or "date" not in t.columns else "date", tm.error)
+    log.reject(tm.bad, "time" if "time" in t.columns or "date" not in t.columns else "date", tm.error)
     notes.extend(tm.notes)
     times = tm.seconds
     days = tm.date_only & ~log.bad
@@ -133,16 +134,19 @@ def _read(sheet, options, kwargs) -> Bearings:
     bearing_deg, b, unit = _bearings(t, opts, raw.decimal_comma, log)
 
     # north, sd, declination
-    north, north_unknown = canonical(column(t, "north"), NORTH_ALIASES, opts.north)
+    north, north_unknown = _words(t, "north", NORTH_ALIASES, opts.north)
     ncells = column(t, "north")
-    if opts.north == "true" and n and not any(str(c).strip() for c in set(ncells[:n].tolist())):
+    if opts.north == "true" and n and ("north" not in t.columns
+                                       or not any(str(c).strip() for c in set(ncells[:n].tolist()))):
         # the commonest slip of all: compass bearings entered without saying they are magnetic
         notes.append("bearings are read as true north (no north column; --north true is the default): if they were "
                      "read off a magnetic compass, give --north magnetic")
     log.reject(north_unknown, "north", lambda idx: [f"unknown north '{ncells[i]}'; use true, magnetic or grid"
                                                      for i in idx])
-    sd, sd_from = _sds(t, opts, raw.decimal_comma, log, unit, notes)
-    dec, dec_empty = _declinations(t, opts, raw.decimal_comma, log, north, n, notes)
+    mil, grad = _is(t, "unit", unit, "mil"), _is(t, "unit", unit, "grad")
+    sd, sd_from = _sds(t, opts, raw.decimal_comma, log, mil, grad, notes)
+    magnetic_rows, grid_rows = _is(t, "north", north, "magnetic"), _is(t, "north", north, "grid")
+    dec, dec_empty = _declinations(t, opts, raw.decimal_comma, log, magnetic_rows, n, notes)
 
     # fixes: labels written only where a fix starts filled down; by tag and label, labels split by time,
     # unlabelled rows by the window
@@ -162,11 +166,10 @@ def _read(sheet, options, kwargs) -> Bearings:
                           utm_letters=opts.utm_letters, groups=ids, log=log, skip=refused_by_reader)
 
     # magnetic -> true, grid -> true
-    magnetic_rows = north == "magnetic"
     model_dec, dec_sd = north_mod.magnetic_declination(log, magnetic_rows & dec_empty, times, time_c, pos.lat,
                                                        pos.lon, notes)
     dec_used = np.where(magnetic_rows, np.where(dec_empty, model_dec, dec), 0.0)
-    conv = north_mod.grid_convergence(log, north == "grid", pos.zone, pos.south, pos.lat, pos.lon, opts.grid_crs)
+    conv = north_mod.grid_convergence(log, grid_rows, pos.zone, pos.south, pos.lat, pos.lon, opts.grid_crs)
     true_bearing = wrap360(bearing_deg + dec_used + conv)
 
     # a row written twice is one bearing
@@ -209,7 +212,7 @@ def _read(sheet, options, kwargs) -> Bearings:
         "sd": sd[keep],
         "sd_source": own(sd_from),
         "declination": np.where(magnetic_rows, dec_used, np.nan)[keep],
-        "convergence": np.where(north == "grid", conv, np.nan)[keep],
+        "convergence": np.where(grid_rows, conv, np.nan)[keep],
         "bearing": b[keep],
         "unit": own(unit),
         "north": own(north),
@@ -220,9 +223,11 @@ def _read(sheet, options, kwargs) -> Bearings:
     for c in raw.columns:
         if (c not in KNOWN_COLUMNS or c in ("observer", "antenna", "note")) and c not in table.columns:
             table[c] = own(t[c].to_numpy(dtype=object))
+    blank = None
     for c in ("observer", "antenna", "note"):
-        if c not in table.columns:
-            table[c] = ""
+        if c not in table.columns:         # each its own array: a copy of the first is made without a pass over it
+            blank = pd.Series(all_of(len(table), ""), dtype="str") if blank is None else blank
+            table[c] = blank.array.copy()
     table = table.reset_index(drop=True)
     ids, fix_index = fix_identities(fix, tag_c, log.bad, lines, ids)
     table.insert(1, "fix_id", ids[keep])
@@ -239,14 +244,17 @@ _COMPARED_AS_READ = ("fix", "tag", "time", "date", "lat", "lon", "utm_zone", "ea
 
 def _bearings(t, opts, decimal_comma, log: RowLog):
     unit_c = column(t, "unit")
-    unit, unit_unknown = canonical(unit_c, UNIT_ALIASES, opts.unit)
+    unit, unit_unknown = _words(t, "unit", UNIT_ALIASES, opts.unit)
     log.reject(unit_unknown, "unit", lambda idx: [f"unknown unit '{unit_c[i]}'; use deg, mil or grad" for i in idx])
     b_c = column(t, "bearing")
     c = numbers(b_c, decimal_comma)
     log.reject(c.empty, "bearing", "bearing is missing")
     log.reject(c.bad, "bearing", c.error)
     b = c.values
-    unit_codes, units = pd.factorize(unit)        # one pass over the rows for both tables of the unit
+    if "unit" in t.columns:
+        unit_codes, units = pd.factorize(unit)        # one pass over the rows for both tables of the unit
+    else:                                             # one unit for the sheet
+        unit_codes, units = np.zeros(len(unit), np.intp), [unit[0]] if len(unit) else []
     full = np.array([FULL_CIRCLE.get(u, 360.0) for u in units], float)[unit_codes]
     with np.errstate(invalid="ignore"):
         log.reject((b < 0) & ~unit_unknown, "bearing", lambda idx: [
@@ -255,14 +263,13 @@ def _bearings(t, opts, decimal_comma, log: RowLog):
     return b * np.array([DEGREES_PER_UNIT.get(u, 1.0) for u in units], float)[unit_codes], b, unit
 
 
-def _sds(t, opts, decimal_comma, log: RowLog, unit, notes):
+def _sds(t, opts, decimal_comma, log: RowLog, mil, grad, notes):
     """The SD of each row [°]. SDs are always in degrees, whatever the bearing's unit: on a mil row an SD
     above :data:`dfkit.policy.PLAUSIBLE_SD_DEG` (beyond any usable bearing) that would be a usual SD read as
     mils is pointed out; on grad rows the two readings differ by a tenth and cannot be told apart (a note)."""
     c = numbers(column(t, "sd"), decimal_comma)
     log.reject(c.bad, "sd", c.error)
     sd = c.values
-    mil = unit == "mil"
     per_mil = DEGREES_PER_UNIT["mil"]
     with np.errstate(invalid="ignore"):
         log.reject(~c.empty & ~c.bad & ((sd < MIN_SD_DEG) | (sd >= 90)), "sd", lambda idx: [
@@ -284,13 +291,13 @@ def _sds(t, opts, decimal_comma, log: RowLog, unit, notes):
         if float(opts.sd) > PLAUSIBLE_SD_DEG and (mil & c.empty & ~log.bad).any():
             notes.append(f"--sd {float(opts.sd):g} is in degrees, also for the mil bearings it is given to; if it "
                          f"is in mils, give --sd {float(opts.sd) * per_mil:.2g}")
-    if ((unit == "grad") & ~c.empty & ~log.bad).any():
+    if (grad & ~c.empty & ~log.bad).any():
         notes.append("sd is read in degrees on grad rows too (1 grad = 0.9°: an SD written in grads reads a tenth "
                      "too large; the two cannot be told apart by size)")
     return sd, sd_from
 
 
-def _declinations(t, opts, decimal_comma, log: RowLog, north, n, notes):
+def _declinations(t, opts, decimal_comma, log: RowLog, magnetic, n, notes):
     c = declinations(column(t, "declination"), decimal_comma)
     log.reject(c.bad, "declination", c.error)
     dec = c.values
@@ -301,12 +308,27 @@ def _declinations(t, opts, decimal_comma, log: RowLog, north, n, notes):
     if opts.declination is not None:
         dec = np.where(empty, float(opts.declination), dec)
         empty = np.zeros(n, bool)
-    log.warn(~c.empty & (north != "magnetic"), "declination",
+    log.warn(~c.empty & ~magnetic, "declination",
              "declination given for a bearing that is not magnetic; it was not applied")
-    if opts.declination is not None and not (north == "magnetic").any():
+    if opts.declination is not None and not magnetic.any():
         notes.append(f"--declination {float(opts.declination):g} was given, but no bearing is magnetic (north "
                      "column or --north magnetic): it was not used")
     return dec, empty
+
+
+def _words(t, name, aliases, default):
+    """:func:`~dfkit.observations.cells.canonical` of a column; a column the sheet does not have is the default on
+    every row (what ``canonical`` makes of empty cells), without a pass over its cells."""
+    if name not in t.columns and "" not in aliases:
+        return all_of(len(t), default), np.zeros(len(t), bool)
+    return canonical(column(t, name), aliases, default)
+
+
+def _is(t, name, words, word):
+    """``words == word`` for the words of a column (:func:`_words`); one value for all rows without the column."""
+    if name not in t.columns:
+        return np.full(len(words), bool(len(words)) and words[0] == word)
+    return words == word
 
 
 def _range_hint(value, unit):
