@@ -19,7 +19,6 @@ import pandas as pd
 from dfkit.conventions import DEGREES_PER_UNIT, FULL_CIRCLE, NORTH_ALIASES, UNIT_ALIASES, wrap360
 from dfkit.io import read_table
 from dfkit.io.gpx import Track, read_track
-from dfkit.io.heap import release_freed_memory
 from dfkit.io.sheet import KNOWN_COLUMNS
 from dfkit.observations import north as north_mod
 from dfkit.observations.bearings import Bearings
@@ -38,11 +37,6 @@ from dfkit.problems import Problem, SheetError
 #: Columns of plain numbers that the CSV reader may hand over as floats (every cell a finite plain number, no
 #: larger than the bound): the common case is then parsed once, in C, with no text kept; anything else is read
 #: as text, as before. A latitude or longitude beyond degrees may be a packed angle (``4751.6``): its text is kept.
-#: Rows from which reading ends by handing the memory it freed back to the system (:mod:`dfkit.io.heap`): a large
-#: read leaves the allocator holding far more than the table needs (100,000 fixes: about 250 MiB of RSS for about
-#: 80 MiB of live objects). Below, what a read frees is small; the bound is ours (no source).
-TRIM_AFTER_ROWS = 20_000
-
 NUMERIC_COLUMNS = {"lat": 90.0, "lon": 360.0, "easting": None, "northing": None, "bearing": None, "sd": None}
 
 
@@ -71,10 +65,7 @@ def read_bearings(sheet, options: ReadOptions | None = None, **kwargs) -> Bearin
     OptionError
         An option (a ``ValueError``) dfkit cannot use, naming the parameter (``sd=``).
     """
-    bearings = _read(sheet, options, kwargs)
-    if bearings.n_rows >= TRIM_AFTER_ROWS:      # once every working array of the read is gone
-        release_freed_memory()
-    return bearings
+    return _read(sheet, options, kwargs)
 
 
 def _read(sheet, options, kwargs) -> Bearings:
