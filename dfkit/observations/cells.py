@@ -488,7 +488,7 @@ def declinations(cells, decimal_comma: bool = False) -> Cells:
     cells = np.asarray(cells, dtype=object)
     if not (cells != "").any():
         n = len(cells)
-        return Cells(np.full(n, np.nan), np.ones(n, bool), filled(n, ""))
+        return Cells(np.full(n, np.nan), np.ones(n, bool), filled(n, ""), known_bad=np.zeros(n, bool))
     s = pd.Series(cells, dtype=object).astype(str).str.strip().str.upper()
     west = s.str.endswith("W").to_numpy()
     east = s.str.endswith("E").to_numpy()

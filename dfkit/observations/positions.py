@@ -251,6 +251,12 @@ class _State:
     def take(self, idx, lat, lon, what, zone=None, south=None):
         """Give rows ``idx`` this position unless they have one (then cross-check)."""
         idx = np.asarray(idx, np.int64)
+        if len(idx) == self.n and self.n and idx[0] == 0 and idx[-1] == self.n - 1 and not self.kind.any():
+            # every row (the indices callers pass are sorted and distinct), none taken yet
+            self.lat[:], self.lon[:], self.source[:], self.kind[:] = lat, lon, what, SOURCES.index(what) + 1
+            if zone is not None:
+                self.zone[:], self.south[:] = zone, south
+            return
         first = self.kind[idx] == 0
         f = idx[first]
         self.lat[f], self.lon[f], self.source[f] = np.asarray(lat)[first], np.asarray(lon)[first], what

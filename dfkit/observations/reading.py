@@ -108,14 +108,14 @@ def _read(sheet, options, kwargs) -> Bearings:
     if track is not None:
         log.problems.extend(track.problems)
 
-    # times
-    time_c = column(t, "time")
-    tm = parse_times(time_c, tz=opts.tz, date_format=opts.date_format, repeated_hour=opts.repeated_hour,
+    # times (each working array is dropped once used: a large sheet holds many at a time)
+    tm = parse_times(column(t, "time"), tz=opts.tz, date_format=opts.date_format, repeated_hour=opts.repeated_hour,
                      dates=column(t, "date") if "date" in t.columns else None)
     log.reject(tm.bad, "time" if "time" in t.columns or "date" not in t.columns else "date", tm.error)
     notes.extend(tm.notes)
     times = tm.seconds
     days = tm.date_only & ~log.bad
+    del tm
     if days.any():
         notes.append(f"{int(days.sum())} {'bearing has' if days.sum() == 1 else 'bearings have'} a date and no time "
                      "of day: taken as 12:00 UTC of that date, which is enough to tell days apart and for the "
@@ -134,6 +134,7 @@ def _read(sheet, options, kwargs) -> Bearings:
                      "read off a magnetic compass, give --north magnetic")
     log.reject(north_unknown, "north", lambda idx: [f"unknown north '{ncells[i]}'; use true, magnetic or grid"
                                                      for i in idx])
+    del ncells, north_unknown
     mil, grad = _is(t, "unit", unit, "mil"), _is(t, "unit", unit, "grad")
     sd, sd_from = _sds(t, opts, raw.decimal_comma, log, mil, grad, notes)
     magnetic_rows, grid_rows = _is(t, "north", north, "magnetic"), _is(t, "north", north, "grid")
@@ -146,10 +147,12 @@ def _read(sheet, options, kwargs) -> Bearings:
     fix, grouped_by = group_fixes(fix_c, tag_c, times, window_s=opts.window_min * 60.0,
                                   split_gap_s=SPLIT_LABEL_GAP_H * 3600.0, log=log, notes=notes, filled=filled,
                                   hints=hints, date_only=days)
+    del filled, hints
     ids = pair_codes(tag_c, fix, fix != "")
     if not (fix_c != "").any():
         for text in label_like_columns(t, raw.columns, used=position_columns(raw.columns).values()):
             log.sheet_warning(text)
+    del fix_c
 
     # positions, judged against each row's own fix and the track
     pos = parse_positions(t, lines=lines, source=raw.source, decimal_comma=raw.decimal_comma, stations=stations,
@@ -157,11 +160,15 @@ def _read(sheet, options, kwargs) -> Bearings:
                           utm_letters=opts.utm_letters, groups=ids, log=log, skip=refused_by_reader)
 
     # magnetic -> true, grid -> true
-    model_dec, dec_sd = north_mod.magnetic_declination(log, magnetic_rows & dec_empty, times, time_c, pos.lat,
-                                                       pos.lon, notes)
+    model_dec, dec_sd = north_mod.magnetic_declination(log, magnetic_rows & dec_empty, times, column(t, "time"),
+                                                       pos.lat, pos.lon, notes)
     dec_used = np.where(magnetic_rows, np.where(dec_empty, model_dec, dec), 0.0)
+    del model_dec, dec
     conv = north_mod.grid_convergence(log, grid_rows, pos.zone, pos.south, pos.lat, pos.lon, opts.grid_crs)
+    pos.zone = pos.south = None
     true_bearing = wrap360(bearing_deg + dec_used + conv)
+    if raw is not sheet and raw.numeric:     # the number columns the reader made are read: let them go (not a
+        t = raw.table = t.drop(columns=list(raw.numeric))      # sheet handed in, which is the caller's)
 
     # a row written twice is one bearing
     others = [c for c in raw.columns if c not in _COMPARED_AS_READ and c not in ("note", "line_in_sheet")]
@@ -172,7 +179,7 @@ def _read(sheet, options, kwargs) -> Bearings:
         f"{'' if np.isfinite(times[i]) else '; no time'}): a repeated bearing adds no information, so this copy "
         "is not used" for i in idx])
 
-    del extra, rep, first, tm, ncells, dec, model_dec, fix_c, filled, hints
+    del extra, rep, first, bearing_deg
     # every row kept (the common case): no masked copy of each column. The table takes its columns as they are
     # (copy=False: not gathered into one block by dtype, which would copy every number column while the arrays
     # it is made from are still alive). Each array below is made here for the table alone, but for the lines and
@@ -290,17 +297,19 @@ def _sds(t, opts, decimal_comma, log: RowLog, mil, grad, notes):
 
 def _declinations(t, opts, decimal_comma, log: RowLog, magnetic, n, notes):
     c = declinations(column(t, "declination"), decimal_comma)
-    log.reject(c.bad, "declination", c.error)
     dec = c.values
-    with np.errstate(invalid="ignore"):
-        log.reject(np.abs(np.nan_to_num(dec)) > 180, "declination",
-                   lambda idx: [f"{dec[i]:g} is outside -180..180" for i in idx])
+    if not c.empty.all():           # no cell: nothing to refuse
+        log.reject(c.bad, "declination", c.error)
+        with np.errstate(invalid="ignore"):
+            log.reject(np.abs(np.nan_to_num(dec)) > 180, "declination",
+                       lambda idx: [f"{dec[i]:g} is outside -180..180" for i in idx])
     empty = c.empty
     if opts.declination is not None:
         dec = np.where(empty, float(opts.declination), dec)
         empty = np.zeros(n, bool)
-    log.warn(~c.empty & ~magnetic, "declination",
-             "declination given for a bearing that is not magnetic; it was not applied")
+    if not c.empty.all():
+        log.warn(~c.empty & ~magnetic, "declination",
+                 "declination given for a bearing that is not magnetic; it was not applied")
     if opts.declination is not None and not magnetic.any():
         notes.append(f"--declination {float(opts.declination):g} was given, but no bearing is magnetic (north "
                      "column or --north magnetic): it was not used")
