@@ -391,7 +391,7 @@ def read_sheet(source, *, name: str | None = None, own_results: str = "recompute
         text = _decode(got, name or "", problems) if isinstance(got, bytes) else got.lstrip("\ufeff")
     name = name or ""
     text = _check_text(text, name)
-    if not text.replace("\x00", "").strip():
+    if _blank(text):
         raise SheetError(f"{name or 'the sheet'} is empty: expected a header row such as "
                          "'fix,lat,lon,bearing' and one row per bearing")
 
@@ -437,7 +437,7 @@ def read_sheet(source, *, name: str | None = None, own_results: str = "recompute
     data = {"line": pd.array(line_no, dtype="int64")}
     for col, c in zip(columns, cells):
         data[col] = c
-    table = pd.DataFrame(data)
+    table = pd.DataFrame(data, copy=False)      # the columns as read: not gathered into a block by dtype (a copy)
     table = _drop_empty_unnamed(table, columns, header, header_idx + 1, name, problems)
     columns = [c for c in table.columns if c != "line"]
     held = tuple(c for c in columns if table[c].dtype.kind == "f")    # read as numbers (``numeric``)
@@ -453,6 +453,22 @@ def read_sheet(source, *, name: str | None = None, own_results: str = "recompute
     return RawSheet(table=table, columns=columns, delimiter=delimiter, decimal_comma=delimiter != ",",
                     problems=problems, skipped_lines=len(comments) + len(blanks), source=name,
                     comment_lines=comments, blank_lines=blanks, numeric=held)
+
+
+def _blank(text) -> bool:
+    """Whether a text holds nothing but white space and NUL bytes (looked at from its start: a text whose first
+    characters are not all blank is not blank, and is not copied to find out)."""
+    for part in (text[:4096], text):
+        if part.replace("\x00", "").strip():
+            return False
+    return True
+
+
+def _line_ends(view, start, step=1 << 20):
+    """Offsets of the line ends (``\n``) in ``view`` (bytes as uint8) from ``start`` on, looked for a megabyte at a
+    time (a mask of the whole file would be a byte per byte of it)."""
+    parts = [np.flatnonzero(view[a:a + step] == 10) + a for a in range(start, len(view), step)]
+    return np.concatenate(parts) if parts else np.zeros(0, np.intp)
 
 
 class _LazyLines:
@@ -502,7 +518,7 @@ def _direct_read(text, lines, header_idx, delimiter, width, want=None, data=None
     if b'"' in data or b"\x00" in data or b"\r" in data:
         return None
     view = np.frombuffer(data, np.uint8)
-    ends = np.flatnonzero(view[start:] == 10) + start
+    ends = _line_ends(view, start)
     starts = np.concatenate([[start], ends + 1])
     starts = starts[starts < len(view)]           # a line end closing the file starts no line
     first = view[starts]

@@ -27,7 +27,7 @@ own field: NMEA 0183 v4.10, sentence GGA/RMC [from memory]), are read by
 from __future__ import annotations
 
 import re
-from dataclasses import dataclass
+from dataclasses import dataclass, field
 
 import numpy as np
 import pandas as pd
@@ -42,10 +42,14 @@ class Cells:
     empty: np.ndarray
     error: np.ndarray
     packed: np.ndarray | None = None    # angles only: cells read as packed degrees-minutes(-seconds)
+    known_bad: np.ndarray | None = field(default=None, repr=False, compare=False)   # ``bad``, when already known
 
     @property
     def bad(self) -> np.ndarray:
-        return self.error != ""
+        """Cells that could not be read (``error`` not '')."""
+        if self.known_bad is None:
+            self.known_bad = self.error != ""
+        return self.known_bad
 
 
 def column(table: pd.DataFrame, name: str) -> np.ndarray:
@@ -121,22 +125,24 @@ def _fast_then_slow(cells, one) -> Cells:
     if isinstance(cells, np.ndarray) and cells.dtype.kind == "f":
         values = cells.astype(float, copy=True)
         empty = np.isnan(values)
-        error = np.full(len(values), "", dtype=object)
+        error = filled(len(values), "")
         inf = np.isinf(values)
         error[inf] = [f"'{v}' is not a finite number" for v in values[inf]]
         values[inf] = np.nan
-        return Cells(values, empty, error)
+        return Cells(values, empty, error, known_bad=inf)
     cells = np.asarray(cells, dtype=object)
     fast = pd.to_numeric(pd.Series(cells, dtype=object), errors="coerce").to_numpy(dtype=float, copy=True)
     empty = cells == ""
     slow = ~np.isfinite(fast) & ~empty
-    error = np.full(len(cells), "", dtype=object)
+    error = filled(len(cells), "")
+    bad = np.zeros(len(cells), bool)
     if slow.any():
         res = per_value(cells[slow], one)
         fast[slow] = [v for v, _ in res]
         empty[slow] = [e is None for _, e in res]
         error[slow] = ["" if e is None else e for _, e in res]
-    return Cells(np.where(empty | (error != ""), np.nan, fast), empty, error)
+        bad[slow] = error[slow] != ""
+    return Cells(np.where(empty | bad, np.nan, fast), empty, error, known_bad=bad)
 
 
 def _one_number(text, decimal_comma):
@@ -273,8 +279,9 @@ def angles(cells, axis: str, decimal_comma: bool = False) -> Cells:
             out.error[rest] = ["" if e is None else e for _, e, _ in res]
             out.packed = np.zeros(len(cells), bool)
             out.packed[rest] = [p for _, _, p in res]
+        out.known_bad = None          # the errors changed
     # plain numbers that may be packed: beyond the degrees of the axis, or (text) wider than degrees are written
-    bad = out.error != ""
+    bad = out.bad.copy()
     read = ~out.empty & ~bad
     with np.errstate(invalid="ignore"):
         cand = read & (np.abs(out.values) > _DECIMAL_LIMIT[axis])
@@ -293,6 +300,7 @@ def angles(cells, axis: str, decimal_comma: bool = False) -> Cells:
         out.packed[k] = [r[1] == "" for r in res[hit]]
         bad[k] = out.error[k] != ""
     out.values[out.empty | bad] = np.nan
+    out.known_bad = bad
     return out
 
 
@@ -480,7 +488,7 @@ def declinations(cells, decimal_comma: bool = False) -> Cells:
     cells = np.asarray(cells, dtype=object)
     if not (cells != "").any():
         n = len(cells)
-        return Cells(np.full(n, np.nan), np.ones(n, bool), filled(n, ""))
+        return Cells(np.full(n, np.nan), np.ones(n, bool), filled(n, ""), known_bad=np.zeros(n, bool))
     s = pd.Series(cells, dtype=object).astype(str).str.strip().str.upper()
     west = s.str.endswith("W").to_numpy()
     east = s.str.endswith("E").to_numpy()

@@ -34,7 +34,7 @@ from datetime import datetime, timezone
 import numpy as np
 import pandas as pd
 
-from dfkit.observations.cells import pick
+from dfkit.observations.cells import filled as all_of, pick
 from dfkit.observations.rowlog import RowLog
 
 
@@ -67,7 +67,7 @@ def fill_down(labels, tags, times, *, enabled: bool, log: RowLog, notes: list[st
     tags = np.asarray(tags, dtype=object)
     n = len(labels)
     filled = np.zeros(n, bool)
-    hints = np.full(n, "", dtype=object)
+    hints = all_of(n, "")
     lab = labels != ""
     if lab.all() or not lab.any():
         return labels, tags, filled, hints
@@ -140,7 +140,8 @@ def group_fixes(labels, tags, times, *, window_s: float, split_gap_s: float, log
     tags = np.asarray(tags, dtype=object)
     times = np.asarray(times, float)
     fix = labels.copy()
-    grouped_by = pick(labels != "", "label", "")
+    unl = labels == ""
+    grouped_by = pick(~unl, "label", "")
     if filled is not None:
         grouped_by[np.asarray(filled, bool)] = "filled"
     days = np.zeros(len(labels), bool) if date_only is None else np.asarray(date_only, bool)
@@ -148,7 +149,6 @@ def group_fixes(labels, tags, times, *, window_s: float, split_gap_s: float, log
     _split_labels(fix, grouped_by, labels, tags, times, timed, split_gap_s, log, notes, days)
     timed &= ~days                      # a date alone groups no unlabelled bearing by time
 
-    unl = labels == ""
     if not unl.any():
         return fix, grouped_by
     usable = ~log.bad
@@ -292,7 +292,9 @@ def fix_identities(fix, tag, bad, lines, ids=None):
 
     Rejected rows with a label still make their fix exist (so it is reported); rows
     with neither a label nor a group belong to no fix (id -1). ``ids`` from an
-    earlier call on the same labels may be passed to skip recomputing them.
+    earlier call on the same labels may be passed to skip recomputing them. A fix
+    without rejected rows lists them as one shared empty list that refuses changes
+    (:data:`NO_LINES`): a season has far more fixes than rejected rows.
     """
     fix = np.asarray(fix, dtype=object)
     tag = np.asarray(tag, dtype=object)
@@ -302,12 +304,45 @@ def fix_identities(fix, tag, bad, lines, ids=None):
     first = np.full(m, -1, np.int64)
     valid = np.flatnonzero(ids >= 0)
     if len(valid):
-        uniq, pos = np.unique(ids[valid], return_index=True)
-        first[uniq] = valid[pos]
-    rejected = [[] for _ in range(m)]
-    for i in np.flatnonzero(bad & (ids >= 0)):
-        rejected[ids[i]].append(int(lines[i]))
+        v = ids[valid]
+        # ids numbered in order of first appearance (pair_codes): a fix's first row is where its id is larger than
+        # every id before it; ids numbered otherwise are sorted
+        new = np.ones(len(v), bool)
+        new[1:] = v[1:] > np.maximum.accumulate(v)[:-1]
+        if int(new.sum()) == m and np.array_equal(v[new], np.arange(m)):
+            first[:] = valid[new]
+        else:
+            uniq, pos = np.unique(v, return_index=True)
+            first[uniq] = valid[pos]
+    rejected = np.empty(m, dtype=object)
+    rejected.fill(NO_LINES)
+    for i in np.flatnonzero(bad & (ids >= 0)).tolist():
+        k = ids[i]
+        if rejected[k] is NO_LINES:
+            rejected[k] = []
+        rejected[k].append(int(lines[i]))
     fix_index = pd.DataFrame({"fix": fix[first] if m else [], "tag": tag[first] if m else [],
-                              "rejected_lines": rejected})
+                              "rejected_lines": rejected if m else []})
     fix_index.index.name = "fix_id"
     return ids, fix_index
+
+
+class _NoLines(list):
+    """An empty list of rejected lines that refuses to be changed: one is shared by every fix without rejected
+    rows (a list per fix would be a Python object per fix: 100,000 of them on a large sheet)."""
+
+    __slots__ = ()
+
+    def _refuse(self, *args, **kwargs):
+        raise TypeError("this fix's list of rejected lines is shared and cannot be changed; copy it first "
+                        "(list(lines))")
+
+    append = extend = insert = remove = pop = clear = sort = reverse = _refuse
+    __setitem__ = __delitem__ = __iadd__ = __imul__ = _refuse
+
+    def __reduce__(self):
+        return list, ()           # a copy is an ordinary empty list
+
+
+#: The rejected lines of every fix that has none (see :class:`_NoLines`).
+NO_LINES = _NoLines()

@@ -58,3 +58,28 @@ def group_medians(groups, m: int, *values) -> tuple[np.ndarray, list[np.ndarray]
             s = sub[np.lexsort((sub, gs[big_rows]))]
             med[which_big] = (s[start_big + (k_big - 1) // 2] + s[start_big + k_big // 2]) / 2
     return counts, meds
+
+
+def group_ranges(groups, m: int, *values) -> tuple[np.ndarray, list[tuple[np.ndarray, np.ndarray]]]:
+    """(count per group, [(smallest, largest) per group for each of ``values``]) for groups ``0..m-1``; NaN for a
+    group with no rows, and for a group holding a NaN. ``groups`` are non-negative ints, one per row. Rows that
+    come grouped (each group's rows together, groups in any order) need no sort."""
+    groups = np.asarray(groups, np.int64)
+    counts = group_counts(groups, m)
+    out = [(np.full(m, np.nan), np.full(m, np.nan)) for _ in values]
+    if not len(groups):
+        return counts, out
+    starts = np.flatnonzero(np.concatenate([[True], groups[1:] != groups[:-1]]))
+    order = None
+    if len(starts) != int(np.count_nonzero(counts)):     # some group's rows are not together: sort them
+        order = np.argsort(groups, kind="stable")
+        gs = groups[order]
+        starts = np.flatnonzero(np.concatenate([[True], gs[1:] != gs[:-1]]))
+    else:
+        gs = groups
+    which = gs[starts]
+    for v, (lo, hi) in zip(values, out):
+        vs = np.asarray(v, float) if order is None else np.asarray(v, float)[order]
+        lo[which] = np.minimum.reduceat(vs, starts)
+        hi[which] = np.maximum.reduceat(vs, starts)
+    return counts, out

@@ -39,7 +39,7 @@ import pandas as pd
 from dfkit import grids
 from dfkit.io.gpx import Track
 from dfkit.observations.cells import angles, column, filled, numbers, per_value, split_position
-from dfkit.observations.groupstats import group_medians
+from dfkit.observations.groupstats import group_medians, group_ranges
 from dfkit.observations.rowlog import RowLog
 from dfkit.observations.typos import describe, variants
 from dfkit.policy import (
@@ -192,11 +192,11 @@ def parse_positions(table: pd.DataFrame, *, prefix: str = "", station_column: st
     if track is not None and times is not None:
         _from_track(p, track, times, track_gap_s)
     if "station" in cols and stations is None:
-        log.reject(~log.bad & (p.source == "") & (p.cells["station"] != ""), cols["station"],
+        log.reject(~log.bad & p.none() & (p.cells["station"] != ""), cols["station"],
                    lambda idx: [f"{cols['station']} '{p.cells['station'][i]}' given but no stations file "
                                 "(--stations FILE)" for i in idx])
     if required:
-        need = ~log.bad & (p.source == "")
+        need = ~log.bad & p.none()
         msg = ("no position and no time to look up on the GPS track" if track is not None else
                f"no position: give {prefix}lat and {prefix}lon, {prefix}utm_zone/easting/northing, {prefix}mgrs, "
                f"a station label, or a time with a GPS track (--track)")
@@ -208,7 +208,9 @@ def parse_positions(table: pd.DataFrame, *, prefix: str = "", station_column: st
         bad = shared.bad.copy()
     lat = np.where(bad, np.nan, p.lat)
     lon = np.where(bad, np.nan, p.lon)
-    return Positions(lat, lon, np.where(bad, "", p.source).astype(object), p.zone, p.south, bad, list(log.problems))
+    source = p.source.copy()
+    source[bad] = ""
+    return Positions(lat, lon, source, p.zone, p.south, bad, list(log.problems))
 
 
 class _State:
@@ -223,6 +225,7 @@ class _State:
         self.lat = np.full(n, np.nan)
         self.lon = np.full(n, np.nan)
         self.source = filled(n, "")
+        self.kind = np.zeros(n, np.int8)    # the source as a number: 0 none, else 1 + its place in SOURCES
         self.zone = np.zeros(n, int)
         self.south = np.zeros(n, bool)
         # a zone letter S read as the southern hemisphere because band S does not fit: how it was read, and where
@@ -232,6 +235,15 @@ class _State:
         self.north_lat: dict[int, float] = {}
         self.north_lon: dict[int, float] = {}
         self.reference = None       # (rows, medians) of the last fix reference (see _fix_reference)
+        self.boxes = None           # (rows, loose fixes) of the last fix boxes (see _loose_fixes)
+
+    def none(self):
+        """Rows without a position yet."""
+        return self.kind == 0
+
+    def is_(self, what):
+        """Rows whose position came from ``what`` (one of :data:`SOURCES`)."""
+        return self.kind == SOURCES.index(what) + 1
 
     def name(self, role):
         return self.cols.get(role, role)
@@ -239,9 +251,16 @@ class _State:
     def take(self, idx, lat, lon, what, zone=None, south=None):
         """Give rows ``idx`` this position unless they have one (then cross-check)."""
         idx = np.asarray(idx, np.int64)
-        first = self.source[idx] == ""
+        if len(idx) == self.n and self.n and idx[0] == 0 and idx[-1] == self.n - 1 and not self.kind.any():
+            # every row (the indices callers pass are sorted and distinct), none taken yet
+            self.lat[:], self.lon[:], self.source[:], self.kind[:] = lat, lon, what, SOURCES.index(what) + 1
+            if zone is not None:
+                self.zone[:], self.south[:] = zone, south
+            return
+        first = self.kind[idx] == 0
         f = idx[first]
         self.lat[f], self.lon[f], self.source[f] = np.asarray(lat)[first], np.asarray(lon)[first], what
+        self.kind[f] = SOURCES.index(what) + 1
         if zone is not None:
             self.zone[f], self.south[f] = np.asarray(zone)[first], np.asarray(south)[first]
         later = idx[~first]
@@ -342,7 +361,7 @@ def _square(size_m):
 
 def _station(p: _State, stations):
     cells = p.cells["station"]
-    idx = np.flatnonzero((cells != "") & ~p.log.bad & (p.source == ""))
+    idx = np.flatnonzero((cells != "") & ~p.log.bad & p.none())
     if not len(idx) or stations is None:
         return
     known = np.isin(cells[idx], stations.index.to_numpy(dtype=object))
@@ -565,7 +584,7 @@ def _resolve_s(p, rows, amb, readings, style, groups, track_ll, south, decided, 
     lat_n, lon_n, lat_s, lon_s = readings
     # 1. the other positions of the row's own fix (lat/lon, MGRS, stations: already read)
     if groups is not None:
-        ref_lat, ref_lon, ref_n = _group_reference(groups, p.lat, p.lon, (p.source != "") & ~p.log.bad)
+        ref_lat, ref_lon, ref_n = _group_reference(groups, p.lat, p.lon, ~p.none() & ~p.log.bad)
         g = groups[rows]
         has_ref = amb & ~decided & (g >= 0) & (ref_n[np.maximum(g, 0)] > 0)
         for k in np.flatnonzero(has_ref):
@@ -679,14 +698,50 @@ def _group_reference(groups, lat, lon, valid):
 
 
 def _fix_reference(p: _State, groups, valid):
-    """:func:`_group_reference` of the rows' own fixes, kept on ``p`` while the rows it is taken from stay the same
-    (the swapped-lat/lon check and the far-station check ask for it in turn)."""
+    """(median lat, median lon, count, loose) of the valid positions of the rows' own fixes (indexed by group id),
+    kept on ``p`` while the rows it is taken from stay the same (the swapped-lat/lon check and the far-station
+    check ask for it in turn). Medians are taken only for *loose* fixes (:func:`_loose_fixes`); they are NaN for the
+    others, whose positions all lie so close together that neither check can find one of them far from the rest."""
     sel = valid & (groups >= 0)
     if p.reference is not None and np.array_equal(p.reference[0], sel):
         return p.reference[1]
-    ref = _group_reference(groups, p.lat, p.lon, sel)
+    m = max(int(groups.max()) + 1 if len(groups) else 0, 1)   # at least one slot: callers index group 0
+    loose = _loose_fixes(p, groups, sel, m)
+    cnt = np.bincount(groups[sel], minlength=m)[:m]
+    use = sel & loose[np.maximum(groups, 0)]
+    _, (ref_lat, ref_lon) = group_medians(groups[use], m, p.lat[use], p.lon[use])
+    ref = (ref_lat, ref_lon, cnt, loose)
     p.reference = (sel, ref)
     return ref
+
+
+#: How far apart the positions of one fix may lie, at most, and the fix still need no evidence check: its box
+#: (the smallest and largest latitude and longitude of its positions) spans at most this many degrees in latitude
+#: plus longitude, and at most this many km along a meridian plus a parallel. Any two points of the box, a row and
+#: the fix's middle (a median lies within the box) among them, are then closer than half of what the checks look
+#: for (a row far from its fix: SWAPPED_FAR_DEG, FAR_STATION_KM; two stations FAR_STATION_KM apart), so the checks
+#: are run only on the other fixes. The factor two is a margin of ours (no source).
+_TIGHT_DEG = SWAPPED_FAR_DEG / 2
+_TIGHT_KM = FAR_STATION_KM / 4
+
+
+def _loose_fixes(p: _State, groups, sel, m):
+    """Which fixes (indexed by group id) have positions (rows ``sel``) farther apart than a tight box allows
+    (:data:`_TIGHT_DEG`, :data:`_TIGHT_KM`): the few the evidence checks must look at. A box found on a set of
+    rows holds for any of its subsets (rows refused since), so it is kept on ``p`` and reused for them."""
+    if p.boxes is not None and len(p.boxes[1]) == m and not (sel & ~p.boxes[0]).any():
+        return p.boxes[1]
+    cnt, ((lat_lo, lat_hi), (lon_lo, lon_hi)) = group_ranges(groups[sel], m, p.lat[sel], p.lon[sel])
+    d_lat, d_lon = lat_hi - lat_lo, lon_hi - lon_lo
+    # nearest the equator the box reaches: where a degree of longitude is longest
+    low = np.where((lat_lo <= 0) & (lat_hi >= 0), 0.0, np.minimum(np.abs(lat_lo), np.abs(lat_hi)))
+    # along the meridian, then along the parallel: no shorter than the great circle between the two ends
+    reach_km = 6371.0 * np.radians(d_lat + np.cos(np.radians(low)) * d_lon)
+    with np.errstate(invalid="ignore"):
+        tight = (d_lat + d_lon <= _TIGHT_DEG) & (reach_km <= _TIGHT_KM)
+    loose = (cnt > 0) & ~tight        # NaN (a position missing) is never tight
+    p.boxes = (sel, loose)
+    return loose
 
 
 def _mask(n, idx):
@@ -703,7 +758,7 @@ def _deg_dist(lat1, lon1, lat2, lon2):
 def _swapped(p: _State, groups, track_ll):
     """Refuse lat/lon rows that sit far from their own fix (or the track) but fit it swapped."""
     log = p.log
-    cand = (p.source == "lat/lon") & ~log.bad
+    cand = p.is_("lat/lon") & ~log.bad
     if not cand.any():
         return
     lat, lon = p.lat, p.lon
@@ -718,10 +773,11 @@ def _swapped(p: _State, groups, track_ll):
             by_track |= hit
             cand &= ~t_ok
         if groups is not None and cand.any():
-            valid = (p.source != "") & ~log.bad
-            ref_lat, ref_lon, cnt = _fix_reference(p, groups, valid)
+            valid = ~p.none() & ~log.bad
+            ref_lat, ref_lon, cnt, loose = _fix_reference(p, groups, valid)
             g = np.maximum(groups, 0)
-            big = np.flatnonzero(cand & (groups >= 0) & (cnt[g] >= 3))
+            cand &= (groups >= 0) & loose[g]          # a row of a tight fix is near its middle
+            big = np.flatnonzero(cand & (cnt[g] >= 3))
             gb = g[big]
             hit = _mask(p.n, big[(_deg_dist(lat[big], lon[big], ref_lat[gb], ref_lon[gb]) > SWAPPED_FAR_DEG) &
                                   (_deg_dist(lon[big], lat[big], ref_lat[gb], ref_lon[gb]) < SWAPPED_NEAR_DEG)])
@@ -739,12 +795,12 @@ def _far_from_fix(p: _State, groups):
     """Refuse stations far from the other stations of their own fix (3 or more positions), naming the corrections
     of a typing slip that would bring them back; warn on both rows of a two-station fix that far apart."""
     log = p.log
-    valid = (p.source != "") & ~log.bad & (groups >= 0)
+    valid = ~p.none() & ~log.bad & (groups >= 0)
     if not valid.any():
         return
-    ref_lat, ref_lon, cnt = _fix_reference(p, groups, valid)
+    ref_lat, ref_lon, cnt, loose = _fix_reference(p, groups, valid)
     g = np.maximum(groups, 0)
-    sel = valid & (cnt[g] >= 2)
+    sel = valid & (cnt[g] >= 2) & loose[g]      # a station of a tight fix is near its middle
     if not sel.any():
         return
     d = np.full(p.n, np.nan)
@@ -752,7 +808,7 @@ def _far_from_fix(p: _State, groups):
     _, (spread,) = group_medians(groups[sel], len(cnt), d[sel])
     spread[np.isnan(spread)] = 0.0
     with np.errstate(invalid="ignore"):
-        far = sel & (cnt[g] >= 3) & (p.source != "track") & \
+        far = sel & (cnt[g] >= 3) & ~p.is_("track") & \
             (d > np.maximum(FAR_STATION_SPREADS * spread[g], FAR_STATION_KM))
         pair = sel & (cnt[g] == 2) & (2.0 * d > FAR_STATION_KM)
     for i in np.flatnonzero(far):
@@ -790,7 +846,7 @@ def _letter_reading(p: _State, i, near, ref_lat, ref_lon, radius_km, col, fix):
     if not d <= radius_km:
         return col, text + fix
     band = grids.band_letter(p.north_lat[i])
-    zone_cells = pd.Series(p.cells["utm_zone"][near & (p.source == "utm")], dtype=object).str.strip()
+    zone_cells = pd.Series(p.cells["utm_zone"][near & p.is_("utm")], dtype=object).str.strip()
     written = zone_cells[zone_cells != ""].value_counts()
     others = (f"; the other stations of this fix are written '{written.index[0]}'" if len(written) else "")
     return p.name("utm_zone"), (f"{text} In the northern hemisphere (latitude band {band}) it lies {d:,.1f} km from "
@@ -902,7 +958,7 @@ def _track_at(track: Track, times, gap_s, n):
 
 
 def _from_track(p: _State, track, times, gap_s):
-    need = ~p.log.bad & (p.source == "") & np.isfinite(times)
+    need = ~p.log.bad & p.none() & np.isfinite(times)
     if not need.any():
         return
     tl, to = _track_at(track, times, gap_s, p.n)

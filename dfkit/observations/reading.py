@@ -19,11 +19,11 @@ import pandas as pd
 from dfkit.conventions import DEGREES_PER_UNIT, FULL_CIRCLE, NORTH_ALIASES, UNIT_ALIASES, wrap360
 from dfkit.io import read_table
 from dfkit.io.gpx import Track, read_track
-from dfkit.io.heap import release_freed_memory
 from dfkit.io.sheet import KNOWN_COLUMNS
 from dfkit.observations import north as north_mod
 from dfkit.observations.bearings import Bearings
 from dfkit.observations.cells import canonical, column, declinations, numbers, pick
+from dfkit.observations.cells import filled as all_of
 from dfkit.observations.columns import check_columns, label_like_columns
 from dfkit.observations.grouping import fill_down, fix_identities, group_fixes, pair_codes
 from dfkit.observations.options import ReadOptions, check_options
@@ -37,11 +37,6 @@ from dfkit.problems import Problem, SheetError
 #: Columns of plain numbers that the CSV reader may hand over as floats (every cell a finite plain number, no
 #: larger than the bound): the common case is then parsed once, in C, with no text kept; anything else is read
 #: as text, as before. A latitude or longitude beyond degrees may be a packed angle (``4751.6``): its text is kept.
-#: Rows from which reading ends by handing the memory it freed back to the system (:mod:`dfkit.io.heap`): a large
-#: read leaves the allocator holding far more than the table needs (100,000 fixes: about 250 MiB of RSS for about
-#: 80 MiB of live objects). Below, what a read frees is small; the bound is ours (no source).
-TRIM_AFTER_ROWS = 20_000
-
 NUMERIC_COLUMNS = {"lat": 90.0, "lon": 360.0, "easting": None, "northing": None, "bearing": None, "sd": None}
 
 
@@ -70,10 +65,7 @@ def read_bearings(sheet, options: ReadOptions | None = None, **kwargs) -> Bearin
     OptionError
         An option (a ``ValueError``) dfkit cannot use, naming the parameter (``sd=``).
     """
-    bearings = _read(sheet, options, kwargs)
-    if bearings.n_rows >= TRIM_AFTER_ROWS:      # once every working array of the read is gone
-        release_freed_memory()
-    return bearings
+    return _read(sheet, options, kwargs)
 
 
 def _read(sheet, options, kwargs) -> Bearings:
@@ -116,14 +108,14 @@ def _read(sheet, options, kwargs) -> Bearings:
     if track is not None:
         log.problems.extend(track.problems)
 
-    # times
-    time_c = column(t, "time")
-    tm = parse_times(time_c, tz=opts.tz, date_format=opts.date_format, repeated_hour=opts.repeated_hour,
+    # times (each working array is dropped once used: a large sheet holds many at a time)
+    tm = parse_times(column(t, "time"), tz=opts.tz, date_format=opts.date_format, repeated_hour=opts.repeated_hour,
                      dates=column(t, "date") if "date" in t.columns else None)
-    log.reject(tm.error != "", "time" if "time" in t.columns or "date" not in t.columns else "date", tm.error)
+    log.reject(tm.bad, "time" if "time" in t.columns or "date" not in t.columns else "date", tm.error)
     notes.extend(tm.notes)
     times = tm.seconds
     days = tm.date_only & ~log.bad
+    del tm
     if days.any():
         notes.append(f"{int(days.sum())} {'bearing has' if days.sum() == 1 else 'bearings have'} a date and no time "
                      "of day: taken as 12:00 UTC of that date, which is enough to tell days apart and for the "
@@ -133,16 +125,20 @@ def _read(sheet, options, kwargs) -> Bearings:
     bearing_deg, b, unit = _bearings(t, opts, raw.decimal_comma, log)
 
     # north, sd, declination
-    north, north_unknown = canonical(column(t, "north"), NORTH_ALIASES, opts.north)
+    north, north_unknown = _words(t, "north", NORTH_ALIASES, opts.north)
     ncells = column(t, "north")
-    if opts.north == "true" and n and not any(str(c).strip() for c in set(ncells[:n].tolist())):
+    if opts.north == "true" and n and ("north" not in t.columns
+                                       or not any(str(c).strip() for c in set(ncells[:n].tolist()))):
         # the commonest slip of all: compass bearings entered without saying they are magnetic
         notes.append("bearings are read as true north (no north column; --north true is the default): if they were "
                      "read off a magnetic compass, give --north magnetic")
     log.reject(north_unknown, "north", lambda idx: [f"unknown north '{ncells[i]}'; use true, magnetic or grid"
                                                      for i in idx])
-    sd, sd_from = _sds(t, opts, raw.decimal_comma, log, unit, notes)
-    dec, dec_empty = _declinations(t, opts, raw.decimal_comma, log, north, n, notes)
+    del ncells, north_unknown
+    mil, grad = _is(t, "unit", unit, "mil"), _is(t, "unit", unit, "grad")
+    sd, sd_from = _sds(t, opts, raw.decimal_comma, log, mil, grad, notes)
+    magnetic_rows, grid_rows = _is(t, "north", north, "magnetic"), _is(t, "north", north, "grid")
+    dec, dec_empty = _declinations(t, opts, raw.decimal_comma, log, magnetic_rows, n, notes)
 
     # fixes: labels written only where a fix starts filled down; by tag and label, labels split by time,
     # unlabelled rows by the window
@@ -151,10 +147,12 @@ def _read(sheet, options, kwargs) -> Bearings:
     fix, grouped_by = group_fixes(fix_c, tag_c, times, window_s=opts.window_min * 60.0,
                                   split_gap_s=SPLIT_LABEL_GAP_H * 3600.0, log=log, notes=notes, filled=filled,
                                   hints=hints, date_only=days)
+    del filled, hints
     ids = pair_codes(tag_c, fix, fix != "")
     if not (fix_c != "").any():
         for text in label_like_columns(t, raw.columns, used=position_columns(raw.columns).values()):
             log.sheet_warning(text)
+    del fix_c
 
     # positions, judged against each row's own fix and the track
     pos = parse_positions(t, lines=lines, source=raw.source, decimal_comma=raw.decimal_comma, stations=stations,
@@ -162,12 +160,15 @@ def _read(sheet, options, kwargs) -> Bearings:
                           utm_letters=opts.utm_letters, groups=ids, log=log, skip=refused_by_reader)
 
     # magnetic -> true, grid -> true
-    magnetic_rows = north == "magnetic"
-    model_dec, dec_sd = north_mod.magnetic_declination(log, magnetic_rows & dec_empty, times, time_c, pos.lat,
-                                                       pos.lon, notes)
+    model_dec, dec_sd = north_mod.magnetic_declination(log, magnetic_rows & dec_empty, times, column(t, "time"),
+                                                       pos.lat, pos.lon, notes)
     dec_used = np.where(magnetic_rows, np.where(dec_empty, model_dec, dec), 0.0)
-    conv = north_mod.grid_convergence(log, north == "grid", pos.zone, pos.south, pos.lat, pos.lon, opts.grid_crs)
+    del model_dec, dec
+    conv = north_mod.grid_convergence(log, grid_rows, pos.zone, pos.south, pos.lat, pos.lon, opts.grid_crs)
+    pos.zone = pos.south = None
     true_bearing = wrap360(bearing_deg + dec_used + conv)
+    if raw is not sheet and raw.numeric:     # the number columns the reader made are read: let them go (not a
+        t = raw.table = t.drop(columns=list(raw.numeric))      # sheet handed in, which is the caller's)
 
     # a row written twice is one bearing
     others = [c for c in raw.columns if c not in _COMPARED_AS_READ and c not in ("note", "line_in_sheet")]
@@ -178,11 +179,13 @@ def _read(sheet, options, kwargs) -> Bearings:
         f"{'' if np.isfinite(times[i]) else '; no time'}): a repeated bearing adds no information, so this copy "
         "is not used" for i in idx])
 
-    del extra, rep, first, tm, ncells, dec, model_dec, fix_c, filled, hints
-    # every row kept (the common case): no masked copy of each column. Number columns are copied by pandas into
-    # its blocks; text columns pandas may keep as given, so one that shares memory with another column, or with
-    # the caller's own RawSheet (a column handed over as read), is copied: a cell changed in the table changes no
-    # other, and not the caller's sheet (a sheet read here is dropped on return: its columns need no copy)
+    del extra, rep, first, bearing_deg
+    # every row kept (the common case): no masked copy of each column. The table takes its columns as they are
+    # (copy=False: not gathered into one block by dtype, which would copy every number column while the arrays
+    # it is made from are still alive). Each array below is made here for the table alone, but for the lines and
+    # text columns; a text column that shares memory with another column, or with the caller's own RawSheet (a
+    # column handed over as read), is copied, and so are the lines of the caller's sheet: a cell changed in the
+    # table changes no other, and not the caller's sheet (a sheet read here is dropped on return)
     masked = bool(log.bad.any())
     keep = ~log.bad if masked else slice(None)
     taken = [t[c].to_numpy(dtype=object) for c in t.columns
@@ -197,7 +200,7 @@ def _read(sheet, options, kwargs) -> Bearings:
         return cells
 
     table = pd.DataFrame({
-        "line": lines[keep],
+        "line": lines[keep] if masked or raw is not sheet else lines.copy(),
         "fix": own(fix),
         "tag": own(tag_c),
         "time": pd.to_datetime(times[keep], unit="s", utc=True),
@@ -207,20 +210,22 @@ def _read(sheet, options, kwargs) -> Bearings:
         "sd": sd[keep],
         "sd_source": own(sd_from),
         "declination": np.where(magnetic_rows, dec_used, np.nan)[keep],
-        "convergence": np.where(north == "grid", conv, np.nan)[keep],
+        "convergence": np.where(grid_rows, conv, np.nan)[keep],
         "bearing": b[keep],
         "unit": own(unit),
         "north": own(north),
         "position_from": own(pos.source),
         "grouped_by": own(grouped_by),
         "declination_sd": np.where(magnetic_rows & dec_empty, dec_sd, np.nan)[keep],
-    })
+    }, copy=False)
     for c in raw.columns:
         if (c not in KNOWN_COLUMNS or c in ("observer", "antenna", "note")) and c not in table.columns:
             table[c] = own(t[c].to_numpy(dtype=object))
+    blank = None
     for c in ("observer", "antenna", "note"):
-        if c not in table.columns:
-            table[c] = ""
+        if c not in table.columns:         # each its own array: a copy of the first is made without a pass over it
+            blank = pd.Series(all_of(len(table), ""), dtype="str") if blank is None else blank
+            table[c] = blank.array.copy()
     table = table.reset_index(drop=True)
     ids, fix_index = fix_identities(fix, tag_c, log.bad, lines, ids)
     table.insert(1, "fix_id", ids[keep])
@@ -237,14 +242,17 @@ _COMPARED_AS_READ = ("fix", "tag", "time", "date", "lat", "lon", "utm_zone", "ea
 
 def _bearings(t, opts, decimal_comma, log: RowLog):
     unit_c = column(t, "unit")
-    unit, unit_unknown = canonical(unit_c, UNIT_ALIASES, opts.unit)
+    unit, unit_unknown = _words(t, "unit", UNIT_ALIASES, opts.unit)
     log.reject(unit_unknown, "unit", lambda idx: [f"unknown unit '{unit_c[i]}'; use deg, mil or grad" for i in idx])
     b_c = column(t, "bearing")
     c = numbers(b_c, decimal_comma)
     log.reject(c.empty, "bearing", "bearing is missing")
     log.reject(c.bad, "bearing", c.error)
     b = c.values
-    unit_codes, units = pd.factorize(unit)        # one pass over the rows for both tables of the unit
+    if "unit" in t.columns:
+        unit_codes, units = pd.factorize(unit)        # one pass over the rows for both tables of the unit
+    else:                                             # one unit for the sheet
+        unit_codes, units = np.zeros(len(unit), np.intp), [unit[0]] if len(unit) else []
     full = np.array([FULL_CIRCLE.get(u, 360.0) for u in units], float)[unit_codes]
     with np.errstate(invalid="ignore"):
         log.reject((b < 0) & ~unit_unknown, "bearing", lambda idx: [
@@ -253,14 +261,13 @@ def _bearings(t, opts, decimal_comma, log: RowLog):
     return b * np.array([DEGREES_PER_UNIT.get(u, 1.0) for u in units], float)[unit_codes], b, unit
 
 
-def _sds(t, opts, decimal_comma, log: RowLog, unit, notes):
+def _sds(t, opts, decimal_comma, log: RowLog, mil, grad, notes):
     """The SD of each row [°]. SDs are always in degrees, whatever the bearing's unit: on a mil row an SD
     above :data:`dfkit.policy.PLAUSIBLE_SD_DEG` (beyond any usable bearing) that would be a usual SD read as
     mils is pointed out; on grad rows the two readings differ by a tenth and cannot be told apart (a note)."""
     c = numbers(column(t, "sd"), decimal_comma)
     log.reject(c.bad, "sd", c.error)
     sd = c.values
-    mil = unit == "mil"
     per_mil = DEGREES_PER_UNIT["mil"]
     with np.errstate(invalid="ignore"):
         log.reject(~c.empty & ~c.bad & ((sd < MIN_SD_DEG) | (sd >= 90)), "sd", lambda idx: [
@@ -282,29 +289,46 @@ def _sds(t, opts, decimal_comma, log: RowLog, unit, notes):
         if float(opts.sd) > PLAUSIBLE_SD_DEG and (mil & c.empty & ~log.bad).any():
             notes.append(f"--sd {float(opts.sd):g} is in degrees, also for the mil bearings it is given to; if it "
                          f"is in mils, give --sd {float(opts.sd) * per_mil:.2g}")
-    if ((unit == "grad") & ~c.empty & ~log.bad).any():
+    if (grad & ~c.empty & ~log.bad).any():
         notes.append("sd is read in degrees on grad rows too (1 grad = 0.9°: an SD written in grads reads a tenth "
                      "too large; the two cannot be told apart by size)")
     return sd, sd_from
 
 
-def _declinations(t, opts, decimal_comma, log: RowLog, north, n, notes):
+def _declinations(t, opts, decimal_comma, log: RowLog, magnetic, n, notes):
     c = declinations(column(t, "declination"), decimal_comma)
-    log.reject(c.bad, "declination", c.error)
     dec = c.values
-    with np.errstate(invalid="ignore"):
-        log.reject(np.abs(np.nan_to_num(dec)) > 180, "declination",
-                   lambda idx: [f"{dec[i]:g} is outside -180..180" for i in idx])
+    if not c.empty.all():           # no cell: nothing to refuse
+        log.reject(c.bad, "declination", c.error)
+        with np.errstate(invalid="ignore"):
+            log.reject(np.abs(np.nan_to_num(dec)) > 180, "declination",
+                       lambda idx: [f"{dec[i]:g} is outside -180..180" for i in idx])
     empty = c.empty
     if opts.declination is not None:
         dec = np.where(empty, float(opts.declination), dec)
         empty = np.zeros(n, bool)
-    log.warn(~c.empty & (north != "magnetic"), "declination",
-             "declination given for a bearing that is not magnetic; it was not applied")
-    if opts.declination is not None and not (north == "magnetic").any():
+    if not c.empty.all():
+        log.warn(~c.empty & ~magnetic, "declination",
+                 "declination given for a bearing that is not magnetic; it was not applied")
+    if opts.declination is not None and not magnetic.any():
         notes.append(f"--declination {float(opts.declination):g} was given, but no bearing is magnetic (north "
                      "column or --north magnetic): it was not used")
     return dec, empty
+
+
+def _words(t, name, aliases, default):
+    """:func:`~dfkit.observations.cells.canonical` of a column; a column the sheet does not have is the default on
+    every row (what ``canonical`` makes of empty cells), without a pass over its cells."""
+    if name not in t.columns and "" not in aliases:
+        return all_of(len(t), default), np.zeros(len(t), bool)
+    return canonical(column(t, name), aliases, default)
+
+
+def _is(t, name, words, word):
+    """``words == word`` for the words of a column (:func:`_words`); one value for all rows without the column."""
+    if name not in t.columns:
+        return np.full(len(words), bool(len(words)) and words[0] == word)
+    return words == word
 
 
 def _range_hint(value, unit):

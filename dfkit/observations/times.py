@@ -77,6 +77,14 @@ class Times:
     error: np.ndarray
     notes: list[str] = field(default_factory=list)
     date_only: np.ndarray | None = None
+    known_bad: np.ndarray | None = field(default=None, repr=False, compare=False)   # ``bad``, when already known
+
+    @property
+    def bad(self) -> np.ndarray:
+        """Cells refused (``error`` not '')."""
+        if self.known_bad is None:
+            self.known_bad = self.error != ""
+        return self.known_bad
 
 
 def parse_times(cells, *, tz: str | None = None, date_format: str | None = None,
@@ -99,11 +107,16 @@ def parse_times(cells, *, tz: str | None = None, date_format: str | None = None,
     text = np.asarray(cells, dtype=object)
     n = len(text)
     error = filled(n, "")
+    empty = text == ""
     if dates is not None:
         text, error = _combine_dates(text, np.asarray(dates, dtype=object))
-    empty = (text == "") & (error == "")
+        fine = error == ""
+        empty = (text == "") & fine
+        todo = ~empty & fine
+    else:                   # no error yet: no cell to compare with ''
+        todo = ~empty
+    maybe_error = dates is not None        # whether any error may have been written (else none is compared)
     out = np.full(n, np.nan)
-    todo = ~empty & (error == "")
     zone = _zone(tz)
     pattern = date_format if date_format and "%" in date_format else None
     if todo.any() and pattern is None:
@@ -131,6 +144,7 @@ def parse_times(cells, *, tz: str | None = None, date_format: str | None = None,
     notes: list[str] = []
     date_only = np.zeros(n, bool)
     if todo.any():
+        maybe_error = True
         secs, errs, notes, days = _slow(text[todo], zone, date_format, pattern, repeated_hour, tz)
         out[todo] = secs
         error[todo] = errs
@@ -141,11 +155,13 @@ def parse_times(cells, *, tz: str | None = None, date_format: str | None = None,
     with np.errstate(invalid="ignore"):
         odd = np.isfinite(out) & ((out < t_lo) | (out >= t_hi))
     for i in np.flatnonzero(odd):
+        maybe_error = True
         year = datetime.fromtimestamp(0, timezone.utc) + timedelta(seconds=float(out[i]))
         error[i] = f"'{text[i]}': the year {year.year} is not plausible (dfkit reads years {lo} to {hi})"
-    out[error != ""] = np.nan
-    date_only &= error == ""
-    return Times(out, empty, error, notes, date_only)
+    bad = error != "" if maybe_error else np.zeros(n, bool)
+    out[bad] = np.nan
+    date_only &= ~bad
+    return Times(out, empty, error, notes, date_only, known_bad=bad)
 
 
 def _epoch(t) -> np.ndarray:
