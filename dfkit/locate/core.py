@@ -120,8 +120,9 @@ def locate_chunk(bearings: Bearings, *, method: str, level: float, window_min: f
                      lines=lines, rejected=fix_index["rejected_lines"].tolist(), ellipse_area=ell.area_m2,
                      ellipse_minor=ell.semi_minor_m, regions=lik, level=float(level), hints={}, step_deg=step)
     status, reasons = classify(facts)
-    # a fix only mildly inconsistent (1 clean fix in 100 is) is not worth a search for the one bad line
-    _, p = consistency(sol, g, m, lik)
+    # a fix only mildly inconsistent (1 clean fix in 100 is) is not worth a search for the one bad line; its
+    # p-value is the one classify worked out (consistency() on these same facts), not computed a second time
+    p = facts.judged.p if facts.judged is not None else consistency(sol, g, m, lik)[1]
     with np.errstate(invalid="ignore"):
         mild = (status == "inconsistent") & (p >= HINT_P)
     written = ((b["bearing"].to_numpy(float), b["unit"].to_numpy(object), b["north"].to_numpy(object))
@@ -234,7 +235,7 @@ def _table(bearings, sol, ell, lik, status, reasons, counts, span_min, tmid, met
         "iterations": sol.iterations,
         "converged": sol.converged,
         "rejected_lines": _lines_column(fix_index["rejected_lines"].tolist()),
-    })
+    }, copy=False)     # arrays of this call only (none is changed after): no second, consolidated copy of them
     return table[FIX_COLUMNS]
 
 
