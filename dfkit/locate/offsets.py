@@ -153,14 +153,17 @@ def group_stats(table, g, m, residual_deg, az_deg, range_m, sigma_deg, use, *, m
     if not cols or not len(g):
         return None
     use = use & np.isfinite(residual_deg) & np.isfinite(sigma_deg) & (sigma_deg > 0) & (range_m > 0)
-    s, xe, xn = whitened_gradients(az_deg, range_m, sigma_deg, use)
-    r = np.radians(np.where(use, residual_deg, 0.0)) / s           # whitened residual
+    # the sums below run over the bearings that count only (an unused bearing adds exact zeros to each): the
+    # arrays are those bearings' (index iu), not the whole sheet's with zeros in between
+    iu = np.flatnonzero(use)
+    gu = g[iu]
+    s, xe, xn = whitened_gradients(az_deg[iu], range_m[iu], sigma_deg[iu], np.ones(len(iu), bool))
+    r = np.radians(residual_deg[iu]) / s           # whitened residual
     w = 1.0 / s
-    u = use.astype(float)
-    M = np.stack([np.bincount(g, u * xe * xe, m), np.bincount(g, u * xe * xn, m), np.bincount(g, u * xn * xn, m)])
-    q = np.stack([np.bincount(g, u * xe * r, m), np.bincount(g, u * xn * r, m)])
-    rss = np.bincount(g, u * r * r, m)
-    n_fix = np.bincount(g, u, m).astype(int)
+    M = np.stack([np.bincount(gu, xe * xe, m), np.bincount(gu, xe * xn, m), np.bincount(gu, xn * xn, m)])
+    q = np.stack([np.bincount(gu, xe * r, m), np.bincount(gu, xn * r, m)])
+    rss = np.bincount(gu, r * r, m)
+    n_fix = np.bincount(gu, minlength=m).astype(int)
     det = M[0] * M[2] - M[1] ** 2
     with np.errstate(divide="ignore", invalid="ignore"):
         Mi = np.stack([M[2] / det, -M[1] / det, M[0] / det])
@@ -172,24 +175,27 @@ def group_stats(table, g, m, residual_deg, az_deg, range_m, sigma_deg, use, *, m
     ces, cns = [], []
     for k, col in enumerate(cols):
         if col == WHOLE_SHEET:       # one label for every bearing: no text to read
-            named = use
-            codes, names = np.zeros(len(use), np.int64), np.array(["all"], dtype=object)
+            names = np.array(["all"], dtype=object)
+            loc = slice(None)                             # the bearings of the group, among those that count
+            key = gu
         else:
             val = _stripped_text(table[col])
             named = use & (val != "") & (val != "nan")
             codes, names = _codes(val, named)
-        if not named.any():
+            loc = np.flatnonzero(named[iu])
+            key = g[iu[loc]] * len(names) + codes[iu[loc]]
+            del val, named, codes
+        if not len(key):
             continue
         K = len(names)
-        key = np.where(named, g * K + codes, -1)
-        sel = np.flatnonzero(named)
-        pair, inv = _unique(key[sel], m * K)
+        sel = iu[loc]                                     # the same bearings as indices into the sheet
+        pair, inv = _unique(key, m * K)
         P = len(pair)
         nG = np.bincount(inv, minlength=P).astype(int)
-        A = np.bincount(inv, r[sel] * w[sel], P)
-        B = np.bincount(inv, w[sel] ** 2, P)
-        ce = np.bincount(inv, xe[sel] * w[sel], P)
-        cn = np.bincount(inv, xn[sel] * w[sel], P)
+        A = np.bincount(inv, r[loc] * w[loc], P)
+        B = np.bincount(inv, w[loc] ** 2, P)
+        ce = np.bincount(inv, xe[loc] * w[loc], P)
+        cn = np.bincount(inv, xn[loc] * w[loc], P)
         f = pair // K
         with np.errstate(invalid="ignore", divide="ignore"):
             mq_e = Mi[0][f] * q[0][f] + Mi[1][f] * q[1][f]
@@ -201,24 +207,29 @@ def group_stats(table, g, m, residual_deg, az_deg, range_m, sigma_deg, use, *, m
         keep = (nG >= min_group) & (det[f] > 0) & np.isfinite(cMc)
         testable = (n_fix[f] - nG >= 2) & np.isfinite(V) & (V > MIN_FREE_SHARE * B)
         idx = np.flatnonzero(keep)
-        tests.append(testable[idx])
+        pick = (lambda a: a) if len(idx) == P else (lambda a: a[idx])       # a copy only when pairs are left out
+        tests.append(pick(testable))
         if with_lines:       # the input lines of each pair, for the per-fix reasons (not for the sheet's pooling)
             line_lists.add(lines, sel, np.argsort(inv, kind="stable"), np.concatenate(([0], np.cumsum(nG))), idx)
-        fixes.append(f[idx])
+        fixes.append(pick(f))
         columns.append(np.full(len(idx), k))
-        labels.append(names[pair[idx] % K])
-        ns.append(nG[idx])
-        Us.append(U[idx])
-        Vs.append(V[idx])
-        Bs.append(B[idx])
-        shifts.append(cMc[idx])
-        ces.append(ce[idx])
-        cns.append(cn[idx])
-        nfs.append(n_fix[f[idx]])
-        rss1s.append(rss1[idx])
+        labels.append(names[pick(pair) % K])
+        ns.append(pick(nG))
+        Us.append(pick(U))
+        Vs.append(pick(V))
+        Bs.append(pick(B))
+        shifts.append(pick(cMc))
+        ces.append(pick(ce))
+        cns.append(pick(cn))
+        nfs.append(n_fix[fixes[-1]])
+        rss1s.append(pick(rss1))
+        del A, mq_e, mq_n, inv, key, keep, testable    # this column's working arrays, before the next one's
+    del s, xe, xn, r, w, gu, iu         # the bearings' arrays: what is left is per (fix, label) pair
     if not fixes:
         return None
-    cat = np.concatenate
+
+    def cat(parts):                     # one column (the usual case): its arrays as they are, not copied
+        return parts[0] if len(parts) == 1 else np.concatenate(parts)
     with np.errstate(invalid="ignore"):
         rss0 = rss - (q[0] * (Mi[0] * q[0] + Mi[1] * q[1]) + q[1] * (Mi[1] * q[0] + Mi[2] * q[1]))
     st = GroupStats(fix=cat(fixes), column=cat(columns), label=cat(labels), n=cat(ns), U=cat(Us), V=cat(Vs), B=cat(Bs),
