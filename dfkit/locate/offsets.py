@@ -144,6 +144,15 @@ def whitened_gradients(az_deg, range_m, sigma_deg, use):
     return s, np.where(use, -np.cos(a) / (d * s), 0.0), np.where(use, np.sin(a) / (d * s), 0.0)
 
 
+def _gradients(az_deg, range_m, sigma_deg):
+    """:func:`whitened_gradients` of bearings that all count: the same arithmetic without the masks, and the
+    product d s formed once."""
+    s = np.radians(sigma_deg)
+    a = np.radians(az_deg)
+    ds = range_m * s
+    return s, -np.cos(a) / ds, np.sin(a) / ds
+
+
 def group_stats(table, g, m, residual_deg, az_deg, range_m, sigma_deg, use, *, min_group=1,
                 columns=None, with_lines=True) -> GroupStats | None:
     """U, V ... of every (fix, group label) pair with at least ``min_group`` used bearings of the group (arrays over
@@ -157,7 +166,7 @@ def group_stats(table, g, m, residual_deg, az_deg, range_m, sigma_deg, use, *, m
     # arrays are those bearings' (index iu), not the whole sheet's with zeros in between
     iu = np.flatnonzero(use)
     gu = g[iu]
-    s, xe, xn = whitened_gradients(az_deg[iu], range_m[iu], sigma_deg[iu], np.ones(len(iu), bool))
+    s, xe, xn = _gradients(az_deg[iu], range_m[iu], sigma_deg[iu])
     r = np.radians(residual_deg[iu]) / s           # whitened residual
     w = 1.0 / s
     M = np.stack([np.bincount(gu, xe * xe, m), np.bincount(gu, xe * xn, m), np.bincount(gu, xn * xn, m)])
