@@ -153,6 +153,31 @@ def _gradients(az_deg, range_m, sigma_deg):
     return s, -np.cos(a) / ds, np.sin(a) / ds
 
 
+#: Bearings whose sums group_stats works out at a time, when they come fix by fix (a run of whole fixes about this
+#: long; its working arrays are this long, not the sheet's).
+CHUNK_BEARINGS = 1 << 17
+
+
+def _fix_runs(g, m, size=None):
+    """(first, end) bearing index and (first, end) fix of runs of whole fixes about ``size`` bearings long, when
+    the fix of each bearing ``g`` (of ``m`` fixes) never decreases (bearings fix by fix); one run of every bearing
+    and every fix otherwise."""
+    n = len(g)
+    size = CHUNK_BEARINGS if size is None else size
+    if n <= size or not bool(np.all(g[1:] >= g[:-1])):
+        return [(0, n, 0, m)]
+    ends = np.unique(np.searchsorted(g, g[np.arange(size, n, size)], side="left"))
+    bounds = np.concatenate(([0], ends[(ends > 0) & (ends < n)], [n])).tolist()
+    return [(b0, b1, int(g[b0]), int(g[b1 - 1]) + 1) for b0, b1 in zip(bounds[:-1], bounds[1:])]
+
+
+def _joined(parts):
+    """The chunks' arrays as one (the one array itself when there is one chunk); None when they are None."""
+    if parts[0] is None:
+        return None
+    return parts[0] if len(parts) == 1 else np.concatenate(parts)
+
+
 def group_stats(table, g, m, residual_deg, az_deg, range_m, sigma_deg, use, *, min_group=1,
                 columns=None, with_lines=True) -> GroupStats | None:
     """U, V ... of every (fix, group label) pair with at least ``min_group`` used bearings of the group (arrays over
@@ -162,49 +187,75 @@ def group_stats(table, g, m, residual_deg, az_deg, range_m, sigma_deg, use, *, m
     if not cols or not len(g):
         return None
     use = use & np.isfinite(residual_deg) & np.isfinite(sigma_deg) & (sigma_deg > 0) & (range_m > 0)
-    # the sums below run over the bearings that count only (an unused bearing adds exact zeros to each): the
-    # arrays are those bearings' (index iu), not the whole sheet's with zeros in between
-    iu = np.flatnonzero(use)
-    gu = g[iu]
-    s, xe, xn = _gradients(az_deg[iu], range_m[iu], sigma_deg[iu])
-    r = np.radians(residual_deg[iu]) / s           # whitened residual
-    w = 1.0 / s
-    M = np.stack([np.bincount(gu, xe * xe, m), np.bincount(gu, xe * xn, m), np.bincount(gu, xn * xn, m)])
-    q = np.stack([np.bincount(gu, xe * r, m), np.bincount(gu, xn * r, m)])
-    rss = np.bincount(gu, r * r, m)
-    n_fix = np.bincount(gu, minlength=m).astype(int)
-    det = M[0] * M[2] - M[1] ** 2
-    with np.errstate(divide="ignore", invalid="ignore"):
-        Mi = np.stack([M[2] / det, -M[1] / det, M[0] / det])
-    lines = table["line"].to_numpy()
-    if not len(cols):
-        return None
-    fixes, columns, labels, ns, Us, Vs, Bs, shifts, nfs, rss1s, tests = ([] for _ in range(11))
-    line_lists = _PairLines()
-    ces, cns = [], []
-    for k, col in enumerate(cols):
+    # Each column's labels (text of every bearing, read once)
+    named_codes = []
+    for col in cols:
         if col == WHOLE_SHEET:       # one label for every bearing: no text to read
-            names = np.array(["all"], dtype=object)
-            loc = slice(None)                             # the bearings of the group, among those that count
-            key = gu
+            named_codes.append((None, None, np.array(["all"], dtype=object)))
         else:
             val = _stripped_text(table[col])
             named = use & (val != "") & (val != "nan")
             codes, names = _codes(val, named)
-            loc = np.flatnonzero(named[iu])
-            key = g[iu[loc]] * len(names) + codes[iu[loc]]
-            del val, named, codes
-        if not len(key):
+            named_codes.append((named, codes, names))
+            del val
+    # The sums run over the bearings that count only (an unused bearing adds exact zeros to each), a run of whole
+    # fixes at a time when the bearings come fix by fix (their working arrays stay a chunk long): a fix's sums
+    # and its pairs' are then those of one pass over its bearings in the same order, so the same bits.
+    M = np.zeros((3, m))
+    q = np.zeros((2, m))
+    rss = np.zeros(m)
+    n_fix = np.zeros(m, int)
+    parts = [[] for _ in cols]       # per column and chunk: (pairs, bearings, inverse, nG, A, B, ce, cn)
+    for b0, b1, f0, f1 in _fix_runs(g, m):
+        iu = b0 + np.flatnonzero(use[b0:b1])
+        gu = g[iu] - f0
+        s, xe, xn = _gradients(az_deg[iu], range_m[iu], sigma_deg[iu])
+        r = np.radians(residual_deg[iu]) / s           # whitened residual
+        w = 1.0 / s
+        del s
+        n = f1 - f0
+        M[0, f0:f1], M[1, f0:f1], M[2, f0:f1] = (np.bincount(gu, xe * xe, n), np.bincount(gu, xe * xn, n),
+                                                 np.bincount(gu, xn * xn, n))
+        q[0, f0:f1], q[1, f0:f1] = np.bincount(gu, xe * r, n), np.bincount(gu, xn * r, n)
+        rss[f0:f1] = np.bincount(gu, r * r, n)
+        n_fix[f0:f1] = np.bincount(gu, minlength=n)
+        for k, (named, codes, names) in enumerate(named_codes):
+            K = len(names)
+            if named is None:
+                loc = slice(None)                         # the bearings of the group, among those that count
+                key = gu
+            else:
+                loc = np.flatnonzero(named[iu])
+                key = gu[loc] * K + codes[iu[loc]]
+            if not len(key):
+                continue
+            pair, inv = _unique(key, n * K)
+            P = len(pair)
+            parts[k].append((pair + f0 * K, iu[loc] if with_lines else None, inv if with_lines else None,
+                             np.bincount(inv, minlength=P).astype(int), np.bincount(inv, r[loc] * w[loc], P),
+                             np.bincount(inv, w[loc] ** 2, P), np.bincount(inv, xe[loc] * w[loc], P),
+                             np.bincount(inv, xn[loc] * w[loc], P)))
+        del iu, gu, xe, xn, r, w
+    label_names = [names for _, _, names in named_codes]
+    del named_codes
+    det = M[0] * M[2] - M[1] ** 2
+    with np.errstate(divide="ignore", invalid="ignore"):
+        Mi = np.stack([M[2] / det, -M[1] / det, M[0] / det])
+    lines = table["line"].to_numpy()
+    fixes, columns, labels, ns, Us, Vs, Bs, shifts, nfs, rss1s, tests = ([] for _ in range(11))
+    line_lists = _PairLines()
+    ces, cns = [], []
+    for k, col in enumerate(cols):
+        if not parts[k]:
             continue
+        names = label_names[k]
         K = len(names)
-        sel = iu[loc]                                     # the same bearings as indices into the sheet
-        pair, inv = _unique(key, m * K)
+        pair, sel, inv, nG, A, B, ce, cn = (_joined([c[i] for c in parts[k]]) for i in range(8))
+        if with_lines and len(parts[k]) > 1:       # each chunk's inverse counts its own pairs from 0
+            first = np.cumsum([0] + [len(c[0]) for c in parts[k][:-1]])
+            inv = np.concatenate([c[2] + o for c, o in zip(parts[k], first)])
+        parts[k] = None
         P = len(pair)
-        nG = np.bincount(inv, minlength=P).astype(int)
-        A = np.bincount(inv, r[loc] * w[loc], P)
-        B = np.bincount(inv, w[loc] ** 2, P)
-        ce = np.bincount(inv, xe[loc] * w[loc], P)
-        cn = np.bincount(inv, xn[loc] * w[loc], P)
         f = pair // K
         with np.errstate(invalid="ignore", divide="ignore"):
             mq_e = Mi[0][f] * q[0][f] + Mi[1][f] * q[1][f]
@@ -232,8 +283,7 @@ def group_stats(table, g, m, residual_deg, az_deg, range_m, sigma_deg, use, *, m
         cns.append(pick(cn))
         nfs.append(n_fix[fixes[-1]])
         rss1s.append(pick(rss1))
-        del A, mq_e, mq_n, inv, key, keep, testable    # this column's working arrays, before the next one's
-    del s, xe, xn, r, w, gu, iu         # the bearings' arrays: what is left is per (fix, label) pair
+        del A, mq_e, mq_n, inv, sel, keep, testable    # this column's working arrays, before the next one's
     if not fixes:
         return None
 
