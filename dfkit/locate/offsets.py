@@ -822,8 +822,6 @@ def sheet_offsets(table, bearings, with_position, azimuth_deg=None) -> list[Shee
 
     blocks = _blocks(st, pairs, per_fix=False)
     level = SHEET_OFFSET_P / len(blocks)
-    with np.errstate(invalid="ignore"):
-        every = with_position[g] & (b["weight"].to_numpy(float) > 0) & (np.abs(r) < 90.0)
     st2 = None
     out = []
     for key, sel, labs, li, S, I in blocks:
@@ -883,7 +881,9 @@ def sheet_offsets(table, bearings, with_position, azimuth_deg=None) -> list[Shee
             out.append(SheetOffset(column=col, findings=findings, offsets={}, summary="", marked={}, common=False))
             continue
         # the shift the fitted offsets cause in every fix, its wild bearings included (they move it too)
-        if st2 is None:
+        if st2 is None:        # (most sheets have no finding: then not needed)
+            with np.errstate(invalid="ignore"):
+                every = with_position[g] & (b["weight"].to_numpy(float) > 0) & (np.abs(r) < 90.0)
             st2 = group_stats(b, g, m, r, az, b["range_m"].to_numpy(float), sigma, every, min_group=1, columns=cols,
                               with_lines=False)
         pk = np.flatnonzero((st2.column == key) & np.isfinite(st2.ce))
