@@ -136,6 +136,7 @@ def locate_chunk(bearings: Bearings, *, method: str, level: float, window_min: f
     if rivals:
         facts.rivals = rivals
         status, reasons = classify(facts, (status, reasons), redo=rivals)
+    del facts       # what classify worked out over every bearing is not needed again: freed before the table is made
 
     # an observer, team, antenna or receiver whose bearings in this fix read off the others (dfkit.locate.offsets)
     for i, text in fix_offsets(b, g, m, sol).items():
