@@ -10,6 +10,7 @@ import numpy as np
 import pandas as pd
 import pytest
 
+from dfkit.locate import offsets
 from dfkit.locate.offsets import _blocks, _pinv, _stripped_text, group_stats
 
 
@@ -64,7 +65,14 @@ def _sheet(rng, m=40, k=6):
     return table, g, m, res, az, rng_m, sd, use
 
 
-def test_pair_lines_are_the_lines_of_each_fix_and_label():
+# bearings summed a run of whole fixes at a time (runs of about 25 or 7 bearings here) or in one pass
+CHUNKS = [None, 25, 7]
+
+
+@pytest.mark.parametrize("chunk", CHUNKS)
+def test_pair_lines_are_the_lines_of_each_fix_and_label(chunk, monkeypatch):
+    if chunk:
+        monkeypatch.setattr(offsets, "CHUNK_BEARINGS", chunk)
     rng = np.random.default_rng(3)
     table, g, m, res, az, d, sd, use = _sheet(rng)
     st = group_stats(table, g, m, res, az, d, sd, use, min_group=2, columns=["observer", "team"])
@@ -77,7 +85,10 @@ def test_pair_lines_are_the_lines_of_each_fix_and_label():
     assert list(st.lines)[-1] == st.lines[-1]
 
 
-def test_per_fix_blocks_hold_the_score_and_information_of_each_label():
+@pytest.mark.parametrize("chunk", CHUNKS)
+def test_per_fix_blocks_hold_the_score_and_information_of_each_label(chunk, monkeypatch):
+    if chunk:
+        monkeypatch.setattr(offsets, "CHUNK_BEARINGS", chunk)
     rng = np.random.default_rng(4)
     table, g, m, res, az, d, sd, use = _sheet(rng)
     st = group_stats(table, g, m, res, az, d, sd, use, min_group=1, columns=["observer", "team"])
@@ -103,3 +114,30 @@ def test_per_fix_blocks_hold_the_score_and_information_of_each_label():
         assert np.allclose(S, U, rtol=1e-9, atol=1e-9 * np.abs(U).max())
         assert np.allclose(I, V, rtol=1e-9, atol=1e-9 * np.abs(V).max())
         assert np.array_equal(I, I.T)
+
+
+@pytest.mark.parametrize("chunk", [25, 7])
+@pytest.mark.parametrize("shuffled", [False, True])
+def test_sums_by_runs_of_fixes_are_those_of_one_pass(chunk, shuffled, monkeypatch):
+    """Each fix's bearings are summed in one run, in their order: every field the same bit for bit (fixes with no
+    usable bearing, unnamed labels and bearings out of fix order included)."""
+    rng = np.random.default_rng(5)
+    table, g, m, res, az, d, sd, use = _sheet(rng)
+    table.loc[::7, "observer"] = ""
+    use[g == 3] = False
+    res[::11] = np.nan
+    if shuffled:
+        order = rng.permutation(len(g))
+        table, g, res, az, d, sd, use = (table.iloc[order].reset_index(drop=True), g[order], res[order], az[order],
+                                         d[order], sd[order], use[order])
+    args = (table, g, m, res, az, d, sd, use)
+    whole = group_stats(*args, min_group=1, columns=["observer", "team"])
+    monkeypatch.setattr(offsets, "CHUNK_BEARINGS", chunk)
+    runs = group_stats(*args, min_group=1, columns=["observer", "team"])
+    assert shuffled or len(offsets._fix_runs(g, m)) > 1
+    for name in ("fix", "column", "label", "n", "U", "V", "B", "shift", "n_fix", "rss1", "testable", "ce", "cn", "Mi",
+                 "rss0", "n_used"):
+        a, b = getattr(whole, name), getattr(runs, name)
+        assert a.dtype == b.dtype and a.shape == b.shape, name
+        assert np.array_equal(a, b, equal_nan=a.dtype.kind == "f"), name
+    assert list(whole.lines) == list(runs.lines)

@@ -16,7 +16,7 @@ from dfkit.locate.hints import one_bearing_hints
 from dfkit.locate.offsets import fix_offsets
 from dfkit.locate.resolution import fix_steps, sd_floors
 from dfkit.locate.rivals import find_rivals
-from dfkit.locate.status import FixFacts, append_reason, classify, consistency
+from dfkit.locate.status import FixFacts, append_reason, classify, consistency, filled
 from dfkit.observations import Bearings, ReadOptions, read_bearings
 
 #: Inconsistent fixes with a chi-square p-value at least this are not searched for one bad line.
@@ -120,8 +120,9 @@ def locate_chunk(bearings: Bearings, *, method: str, level: float, window_min: f
                      lines=lines, rejected=fix_index["rejected_lines"].tolist(), ellipse_area=ell.area_m2,
                      ellipse_minor=ell.semi_minor_m, regions=lik, level=float(level), hints={}, step_deg=step)
     status, reasons = classify(facts)
-    # a fix only mildly inconsistent (1 clean fix in 100 is) is not worth a search for the one bad line
-    _, p = consistency(sol, g, m, lik)
+    # a fix only mildly inconsistent (1 clean fix in 100 is) is not worth a search for the one bad line; its
+    # p-value is the one classify worked out (consistency() on these same facts), not computed a second time
+    p = facts.judged.p if facts.judged is not None else consistency(sol, g, m, lik)[1]
     with np.errstate(invalid="ignore"):
         mild = (status == "inconsistent") & (p >= HINT_P)
     written = ((b["bearing"].to_numpy(float), b["unit"].to_numpy(object), b["north"].to_numpy(object))
@@ -135,6 +136,7 @@ def locate_chunk(bearings: Bearings, *, method: str, level: float, window_min: f
     if rivals:
         facts.rivals = rivals
         status, reasons = classify(facts, (status, reasons), redo=rivals)
+    del facts       # what classify worked out over every bearing is not needed again: freed before the table is made
 
     # an observer, team, antenna or receiver whose bearings in this fix read off the others (dfkit.locate.offsets)
     for i, text in fix_offsets(b, g, m, sol).items():
@@ -176,7 +178,7 @@ def _time_span(b, g, m):
 def _sd_source(b, g, m, sol, has_pos):
     """'given', 'calibration' or 'given+calibration' when every bearing has an SD; 'estimated' otherwise."""
     if not len(b):
-        return np.full(m, "", dtype=object)
+        return filled(m, "")
     is_cal = (b["sd_source"].to_numpy(dtype=object) == "calibration") if "sd_source" in b else np.zeros(len(b), bool)
     cal = np.bincount(g, is_cal.astype(float), m)
     n = np.bincount(g, minlength=m)
@@ -204,8 +206,8 @@ def _table(bearings, sol, ell, lik, status, reasons, counts, span_min, tmid, met
         np.maximum.at(tmp, g, np.abs(sol.residual_deg))
         max_res = np.where(counts > 0, tmp, np.nan)
     table = pd.DataFrame({
-        "fix": fix_index["fix"].tolist(),
-        "tag": fix_index["tag"].tolist(),
+        "fix": _text_column(fix_index["fix"]),
+        "tag": _text_column(fix_index["tag"]),
         "time": pd.to_datetime(tmid, unit="s", utc=True),
         "lat": pos(sol.lat),
         "lon": pos(sol.lon),
@@ -234,13 +236,21 @@ def _table(bearings, sol, ell, lik, status, reasons, counts, span_min, tmid, met
         "iterations": sol.iterations,
         "converged": sol.converged,
         "rejected_lines": _lines_column(fix_index["rejected_lines"].tolist()),
-    })
+    }, copy=False)     # arrays of this call only (none is changed after): no second, consolidated copy of them
     return table[FIX_COLUMNS]
+
+
+def _text_column(column):
+    """A text column of the fix index for the table: its array as it is (copied) when it is already text, so that
+    pandas does not infer the type of each of its values again; otherwise its values, as before."""
+    if isinstance(column.dtype, pd.StringDtype):
+        return column.array.copy()
+    return column.tolist()
 
 
 def _lines_column(rejected):
     """Each fix's rejected input lines as one text ("12 14"; '' for the many fixes without)."""
-    out = np.full(len(rejected), "", dtype=object)
+    out = filled(len(rejected), "")
     for i in np.flatnonzero(np.fromiter(map(len, rejected), np.int64, len(rejected))).tolist():
         out[i] = " ".join(str(x) for x in rejected[i])
     return out

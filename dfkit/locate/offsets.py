@@ -144,6 +144,40 @@ def whitened_gradients(az_deg, range_m, sigma_deg, use):
     return s, np.where(use, -np.cos(a) / (d * s), 0.0), np.where(use, np.sin(a) / (d * s), 0.0)
 
 
+def _gradients(az_deg, range_m, sigma_deg):
+    """:func:`whitened_gradients` of bearings that all count: the same arithmetic without the masks, and the
+    product d s formed once."""
+    s = np.radians(sigma_deg)
+    a = np.radians(az_deg)
+    ds = range_m * s
+    return s, -np.cos(a) / ds, np.sin(a) / ds
+
+
+#: Bearings whose sums group_stats works out at a time, when they come fix by fix (a run of whole fixes about this
+#: long; its working arrays are this long, not the sheet's).
+CHUNK_BEARINGS = 1 << 17
+
+
+def _fix_runs(g, m, size=None):
+    """(first, end) bearing index and (first, end) fix of runs of whole fixes about ``size`` bearings long, when
+    the fix of each bearing ``g`` (of ``m`` fixes) never decreases (bearings fix by fix); one run of every bearing
+    and every fix otherwise."""
+    n = len(g)
+    size = CHUNK_BEARINGS if size is None else size
+    if n <= size or not bool(np.all(g[1:] >= g[:-1])):
+        return [(0, n, 0, m)]
+    ends = np.unique(np.searchsorted(g, g[np.arange(size, n, size)], side="left"))
+    bounds = np.concatenate(([0], ends[(ends > 0) & (ends < n)], [n])).tolist()
+    return [(b0, b1, int(g[b0]), int(g[b1 - 1]) + 1) for b0, b1 in zip(bounds[:-1], bounds[1:])]
+
+
+def _joined(parts):
+    """The chunks' arrays as one (the one array itself when there is one chunk); None when they are None."""
+    if parts[0] is None:
+        return None
+    return parts[0] if len(parts) == 1 else np.concatenate(parts)
+
+
 def group_stats(table, g, m, residual_deg, az_deg, range_m, sigma_deg, use, *, min_group=1,
                 columns=None, with_lines=True) -> GroupStats | None:
     """U, V ... of every (fix, group label) pair with at least ``min_group`` used bearings of the group (arrays over
@@ -153,43 +187,75 @@ def group_stats(table, g, m, residual_deg, az_deg, range_m, sigma_deg, use, *, m
     if not cols or not len(g):
         return None
     use = use & np.isfinite(residual_deg) & np.isfinite(sigma_deg) & (sigma_deg > 0) & (range_m > 0)
-    s, xe, xn = whitened_gradients(az_deg, range_m, sigma_deg, use)
-    r = np.radians(np.where(use, residual_deg, 0.0)) / s           # whitened residual
-    w = 1.0 / s
-    u = use.astype(float)
-    M = np.stack([np.bincount(g, u * xe * xe, m), np.bincount(g, u * xe * xn, m), np.bincount(g, u * xn * xn, m)])
-    q = np.stack([np.bincount(g, u * xe * r, m), np.bincount(g, u * xn * r, m)])
-    rss = np.bincount(g, u * r * r, m)
-    n_fix = np.bincount(g, u, m).astype(int)
-    det = M[0] * M[2] - M[1] ** 2
-    with np.errstate(divide="ignore", invalid="ignore"):
-        Mi = np.stack([M[2] / det, -M[1] / det, M[0] / det])
-    lines = table["line"].to_numpy()
-    if not len(cols):
-        return None
-    fixes, columns, labels, ns, Us, Vs, Bs, shifts, nfs, rss1s, tests = ([] for _ in range(11))
-    line_lists = _PairLines()
-    ces, cns = [], []
-    for k, col in enumerate(cols):
+    # Each column's labels (text of every bearing, read once)
+    named_codes = []
+    for col in cols:
         if col == WHOLE_SHEET:       # one label for every bearing: no text to read
-            named = use
-            codes, names = np.zeros(len(use), np.int64), np.array(["all"], dtype=object)
+            named_codes.append((None, None, np.array(["all"], dtype=object)))
         else:
             val = _stripped_text(table[col])
             named = use & (val != "") & (val != "nan")
             codes, names = _codes(val, named)
-        if not named.any():
+            named_codes.append((named, codes, names))
+            del val
+    # The sums run over the bearings that count only (an unused bearing adds exact zeros to each), a run of whole
+    # fixes at a time when the bearings come fix by fix (their working arrays stay a chunk long): a fix's sums
+    # and its pairs' are then those of one pass over its bearings in the same order, so the same bits.
+    M = np.zeros((3, m))
+    q = np.zeros((2, m))
+    rss = np.zeros(m)
+    n_fix = np.zeros(m, int)
+    parts = [[] for _ in cols]       # per column and chunk: (pairs, bearings, inverse, nG, A, B, ce, cn)
+    for b0, b1, f0, f1 in _fix_runs(g, m):
+        iu = b0 + np.flatnonzero(use[b0:b1])
+        gu = g[iu] - f0
+        s, xe, xn = _gradients(az_deg[iu], range_m[iu], sigma_deg[iu])
+        r = np.radians(residual_deg[iu]) / s           # whitened residual
+        w = 1.0 / s
+        del s
+        n = f1 - f0
+        M[0, f0:f1], M[1, f0:f1], M[2, f0:f1] = (np.bincount(gu, xe * xe, n), np.bincount(gu, xe * xn, n),
+                                                 np.bincount(gu, xn * xn, n))
+        q[0, f0:f1], q[1, f0:f1] = np.bincount(gu, xe * r, n), np.bincount(gu, xn * r, n)
+        rss[f0:f1] = np.bincount(gu, r * r, n)
+        n_fix[f0:f1] = np.bincount(gu, minlength=n)
+        for k, (named, codes, names) in enumerate(named_codes):
+            K = len(names)
+            if named is None:
+                loc = slice(None)                         # the bearings of the group, among those that count
+                key = gu
+            else:
+                loc = np.flatnonzero(named[iu])
+                key = gu[loc] * K + codes[iu[loc]]
+            if not len(key):
+                continue
+            pair, inv = _unique(key, n * K)
+            P = len(pair)
+            parts[k].append((pair + f0 * K, iu[loc] if with_lines else None, inv if with_lines else None,
+                             np.bincount(inv, minlength=P).astype(int), np.bincount(inv, r[loc] * w[loc], P),
+                             np.bincount(inv, w[loc] ** 2, P), np.bincount(inv, xe[loc] * w[loc], P),
+                             np.bincount(inv, xn[loc] * w[loc], P)))
+        del iu, gu, xe, xn, r, w
+    label_names = [names for _, _, names in named_codes]
+    del named_codes
+    det = M[0] * M[2] - M[1] ** 2
+    with np.errstate(divide="ignore", invalid="ignore"):
+        Mi = np.stack([M[2] / det, -M[1] / det, M[0] / det])
+    lines = table["line"].to_numpy()
+    fixes, columns, labels, ns, Us, Vs, Bs, shifts, nfs, rss1s, tests = ([] for _ in range(11))
+    line_lists = _PairLines()
+    ces, cns = [], []
+    for k, col in enumerate(cols):
+        if not parts[k]:
             continue
+        names = label_names[k]
         K = len(names)
-        key = np.where(named, g * K + codes, -1)
-        sel = np.flatnonzero(named)
-        pair, inv = _unique(key[sel], m * K)
+        pair, sel, inv, nG, A, B, ce, cn = (_joined([c[i] for c in parts[k]]) for i in range(8))
+        if with_lines and len(parts[k]) > 1:       # each chunk's inverse counts its own pairs from 0
+            first = np.cumsum([0] + [len(c[0]) for c in parts[k][:-1]])
+            inv = np.concatenate([c[2] + o for c, o in zip(parts[k], first)])
+        parts[k] = None
         P = len(pair)
-        nG = np.bincount(inv, minlength=P).astype(int)
-        A = np.bincount(inv, r[sel] * w[sel], P)
-        B = np.bincount(inv, w[sel] ** 2, P)
-        ce = np.bincount(inv, xe[sel] * w[sel], P)
-        cn = np.bincount(inv, xn[sel] * w[sel], P)
         f = pair // K
         with np.errstate(invalid="ignore", divide="ignore"):
             mq_e = Mi[0][f] * q[0][f] + Mi[1][f] * q[1][f]
@@ -201,24 +267,28 @@ def group_stats(table, g, m, residual_deg, az_deg, range_m, sigma_deg, use, *, m
         keep = (nG >= min_group) & (det[f] > 0) & np.isfinite(cMc)
         testable = (n_fix[f] - nG >= 2) & np.isfinite(V) & (V > MIN_FREE_SHARE * B)
         idx = np.flatnonzero(keep)
-        tests.append(testable[idx])
+        pick = (lambda a: a) if len(idx) == P else (lambda a: a[idx])       # a copy only when pairs are left out
+        tests.append(pick(testable))
         if with_lines:       # the input lines of each pair, for the per-fix reasons (not for the sheet's pooling)
             line_lists.add(lines, sel, np.argsort(inv, kind="stable"), np.concatenate(([0], np.cumsum(nG))), idx)
-        fixes.append(f[idx])
+        fixes.append(pick(f))
         columns.append(np.full(len(idx), k))
-        labels.append(names[pair[idx] % K])
-        ns.append(nG[idx])
-        Us.append(U[idx])
-        Vs.append(V[idx])
-        Bs.append(B[idx])
-        shifts.append(cMc[idx])
-        ces.append(ce[idx])
-        cns.append(cn[idx])
-        nfs.append(n_fix[f[idx]])
-        rss1s.append(rss1[idx])
+        labels.append(names[pick(pair) % K])
+        ns.append(pick(nG))
+        Us.append(pick(U))
+        Vs.append(pick(V))
+        Bs.append(pick(B))
+        shifts.append(pick(cMc))
+        ces.append(pick(ce))
+        cns.append(pick(cn))
+        nfs.append(n_fix[fixes[-1]])
+        rss1s.append(pick(rss1))
+        del A, mq_e, mq_n, inv, sel, keep, testable    # this column's working arrays, before the next one's
     if not fixes:
         return None
-    cat = np.concatenate
+
+    def cat(parts):                     # one column (the usual case): its arrays as they are, not copied
+        return parts[0] if len(parts) == 1 else np.concatenate(parts)
     with np.errstate(invalid="ignore"):
         rss0 = rss - (q[0] * (Mi[0] * q[0] + Mi[1] * q[1]) + q[1] * (Mi[1] * q[0] + Mi[2] * q[1]))
     st = GroupStats(fix=cat(fixes), column=cat(columns), label=cat(labels), n=cat(ns), U=cat(Us), V=cat(Vs), B=cat(Bs),
@@ -752,8 +822,6 @@ def sheet_offsets(table, bearings, with_position, azimuth_deg=None) -> list[Shee
 
     blocks = _blocks(st, pairs, per_fix=False)
     level = SHEET_OFFSET_P / len(blocks)
-    with np.errstate(invalid="ignore"):
-        every = with_position[g] & (b["weight"].to_numpy(float) > 0) & (np.abs(r) < 90.0)
     st2 = None
     out = []
     for key, sel, labs, li, S, I in blocks:
@@ -813,7 +881,9 @@ def sheet_offsets(table, bearings, with_position, azimuth_deg=None) -> list[Shee
             out.append(SheetOffset(column=col, findings=findings, offsets={}, summary="", marked={}, common=False))
             continue
         # the shift the fitted offsets cause in every fix, its wild bearings included (they move it too)
-        if st2 is None:
+        if st2 is None:        # (most sheets have no finding: then not needed)
+            with np.errstate(invalid="ignore"):
+                every = with_position[g] & (b["weight"].to_numpy(float) > 0) & (np.abs(r) < 90.0)
             st2 = group_stats(b, g, m, r, az, b["range_m"].to_numpy(float), sigma, every, min_group=1, columns=cols,
                               with_lines=False)
         pk = np.flatnonzero((st2.column == key) & np.isfinite(st2.ce))
