@@ -223,29 +223,25 @@ def test_radii_are_the_roots_of_the_plane_statistic(n, sd):
     # finds on the same plane S. The plane is rebuilt here from the inputs alone (stations at the geodesic
     # distance and azimuth from the fix, each bearing's direction there the residual plus the back azimuth),
     # S's minimum by scipy.optimize.minimize and the bound from scipy.stats (Beale 1960).
-    rng = np.random.default_rng(11 + n)
-    m = 25
+    st, b = _fixes_around(np.random.default_rng(11 + n), n, 25)
+    check_radii_against_brentq(st, b, sd)
+
+
+def _fixes_around(rng, n, m):
+    """``m`` invented fixes of ``n`` stations 400-2000 m around (47, 15) (geographiclib's direct problem), spread
+    round it, and their bearings to it with SD-4° noise."""
     st = []
     for _ in range(m):
         az = rng.uniform(0, 360) + np.arange(n) * 360.0 / n + rng.normal(0, 15, n)
         dist = rng.uniform(400, 2000, n)
         st.append([(d["lat2"], d["lon2"]) for d in (WGS.Direct(47.0, 15.0, a, r) for a, r in zip(az, dist))])
     st = np.asarray(st)
-    b = np.array([bearings_to(s, (47.0, 15.0), rng.normal(0, 4.0, n)) % 360 for s in st])
-    check_radii_against_brentq(st, b, sd)
+    return st, np.array([bearings_to(s, (47.0, 15.0), rng.normal(0, 4.0, n)) % 360 for s in st])
 
 
 def test_radii_are_the_roots_with_the_fixes_bearings_interleaved():
     # The same check with the bearings handed over in a random order, not grouped by fix.
-    rng = np.random.default_rng(5)
-    n, m = 4, 25
-    st = []
-    for _ in range(m):
-        az = rng.uniform(0, 360) + np.arange(n) * 360.0 / n + rng.normal(0, 15, n)
-        dist = rng.uniform(400, 2000, n)
-        st.append([(d["lat2"], d["lon2"]) for d in (WGS.Direct(47.0, 15.0, a, r) for a, r in zip(az, dist))])
-    st = np.asarray(st)
-    b = np.array([bearings_to(s, (47.0, 15.0), rng.normal(0, 4.0, n)) % 360 for s in st])
+    st, b = _fixes_around(np.random.default_rng(5), 4, 25)
     check_radii_against_brentq(st, b, 4.0, shuffle=np.random.default_rng(6))
 
 

@@ -33,8 +33,20 @@ import numpy as np
 import pandas as pd
 
 
+class _Refused:
+    """For parsed cells with ``error`` (a message per cell, '' where read) and ``known_bad`` (the mask of refused
+    cells when already known, else None): :attr:`bad`, worked out at most once."""
+
+    @property
+    def bad(self) -> np.ndarray:
+        """Cells refused (``error`` not '')."""
+        if self.known_bad is None:
+            self.known_bad = self.error != ""
+        return self.known_bad
+
+
 @dataclass
-class Cells:
+class Cells(_Refused):
     """Parsed cells: ``values`` (NaN where empty or unreadable), ``empty`` and ``error``
     (one message per cell, '' when the cell was read)."""
 
@@ -43,13 +55,6 @@ class Cells:
     error: np.ndarray
     packed: np.ndarray | None = None    # angles only: cells read as packed degrees-minutes(-seconds)
     known_bad: np.ndarray | None = field(default=None, repr=False, compare=False)   # ``bad``, when already known
-
-    @property
-    def bad(self) -> np.ndarray:
-        """Cells that could not be read (``error`` not '')."""
-        if self.known_bad is None:
-            self.known_bad = self.error != ""
-        return self.known_bad
 
 
 def column(table: pd.DataFrame, name: str) -> np.ndarray:

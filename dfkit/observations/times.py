@@ -41,7 +41,7 @@ from datetime import datetime, timedelta, timezone
 import numpy as np
 import pandas as pd
 
-from dfkit.observations.cells import filled, per_value
+from dfkit.observations.cells import _Refused, filled, per_value
 from dfkit.policy import PLAUSIBLE_YEARS
 
 #: Keywords of ``date_format`` (``--date-format``).
@@ -66,7 +66,7 @@ _CLOCK = re.compile(r"^[\sT,]*(\d{1,2}):(\d{2})(?::(\d{2})(?:[.,](\d+))?)?\s*([A
 
 
 @dataclass
-class Times:
+class Times(_Refused):
     """Parsed time cells: ``seconds`` since 1970-01-01 UTC (NaN where empty or refused),
     ``empty``, ``error`` (a message per refused cell, else ''), ``notes`` (what was
     decided for the whole column, e.g. day-first dates) and ``date_only`` (cells that give
@@ -78,13 +78,6 @@ class Times:
     notes: list[str] = field(default_factory=list)
     date_only: np.ndarray | None = None
     known_bad: np.ndarray | None = field(default=None, repr=False, compare=False)   # ``bad``, when already known
-
-    @property
-    def bad(self) -> np.ndarray:
-        """Cells refused (``error`` not '')."""
-        if self.known_bad is None:
-            self.known_bad = self.error != ""
-        return self.known_bad
 
 
 def parse_times(cells, *, tz: str | None = None, date_format: str | None = None,
