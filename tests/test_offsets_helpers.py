@@ -69,13 +69,17 @@ def _sheet(rng, m=40, k=6):
 CHUNKS = [None, 25, 7]
 
 
-@pytest.mark.parametrize("chunk", CHUNKS)
-def test_pair_lines_are_the_lines_of_each_fix_and_label(chunk, monkeypatch):
+def _stats_in_runs(monkeypatch, chunk, seed, min_group):
+    """An invented sheet (:func:`_sheet`) and its group_stats, summed in runs of ``chunk`` bearings (None: one pass)."""
     if chunk:
         monkeypatch.setattr(offsets, "CHUNK_BEARINGS", chunk)
-    rng = np.random.default_rng(3)
-    table, g, m, res, az, d, sd, use = _sheet(rng)
-    st = group_stats(table, g, m, res, az, d, sd, use, min_group=2, columns=["observer", "team"])
+    sheet = _sheet(np.random.default_rng(seed))
+    return sheet, group_stats(*sheet, min_group=min_group, columns=["observer", "team"])
+
+
+@pytest.mark.parametrize("chunk", CHUNKS)
+def test_pair_lines_are_the_lines_of_each_fix_and_label(chunk, monkeypatch):
+    (table, g, m, res, az, d, sd, use), st = _stats_in_runs(monkeypatch, chunk, seed=3, min_group=2)
     assert len(st.lines) == len(st.fix) > 0
     for q in range(len(st.fix)):
         col = st.columns[st.column[q]]
@@ -87,11 +91,7 @@ def test_pair_lines_are_the_lines_of_each_fix_and_label(chunk, monkeypatch):
 
 @pytest.mark.parametrize("chunk", CHUNKS)
 def test_per_fix_blocks_hold_the_score_and_information_of_each_label(chunk, monkeypatch):
-    if chunk:
-        monkeypatch.setattr(offsets, "CHUNK_BEARINGS", chunk)
-    rng = np.random.default_rng(4)
-    table, g, m, res, az, d, sd, use = _sheet(rng)
-    st = group_stats(table, g, m, res, az, d, sd, use, min_group=1, columns=["observer", "team"])
+    (table, g, m, res, az, d, sd, use), st = _stats_in_runs(monkeypatch, chunk, seed=4, min_group=1)
     # the same quantities written out with numpy: whitened gradient x, residual r/s, w = 1/s
     s = np.radians(sd)
     a = np.radians(az)
