@@ -94,6 +94,8 @@ _LINE_END = re.compile(r"\r\n|\r|\n")
 _SURROGATE = re.compile("[\udc80-\udcff]")
 # Control characters that do not occur in a text sheet (NUL is handled per line, not counted here); with
 # invalid UTF-8 they mark a binary file.
+#: ASCII characters str.strip removes besides space, tab and line ends: a cell holding one may carry padding.
+_OTHER_SPACES = "\x0b\x0c\x1c\x1d\x1e\x1f"
 _BINARY = re.compile("[\x01-\x08\x0b\x0c\x0e-\x1f\x7f\ufffd]")
 _GUARDED = re.compile("^'+[=+\\-@\t\r\n]")
 
@@ -369,7 +371,7 @@ def read_sheet(source, *, name: str | None = None, own_results: str = "recompute
         header row, names a known column twice, or has an absurdly wide header.
     """
     problems: list[Problem] = []
-    ascii_bytes = None
+    data = None
     if isinstance(source, (str, os.PathLike)):
         name = name or os.fspath(source)
         try:
@@ -378,17 +380,15 @@ def read_sheet(source, *, name: str | None = None, own_results: str = "recompute
         except OSError as err:
             raise SheetError(f"{name}: cannot read the file ({err.strerror or err})") from None
         text = _decode(data, name, problems)
-        # an ASCII file's bytes are its text's (kept for the C parser, which would otherwise encode a copy)
-        ascii_bytes = data if len(data) == len(text) and text.isascii() else None
-        del data
     elif isinstance(source, (bytes, bytearray)):
         data = bytes(source)
         text = _decode(data, name or "", problems)
-        ascii_bytes = data if len(data) == len(text) and text.isascii() else None
-        del data
     else:
         got = source.read()
         text = _decode(got, name or "", problems) if isinstance(got, bytes) else got.lstrip("\ufeff")
+    # an ASCII file's bytes are its text's (kept for the C parser, which would otherwise encode a copy)
+    ascii_bytes = data if data is not None and len(data) == len(text) and text.isascii() else None
+    del data
     name = name or ""
     text = _check_text(text, name)
     if _blank(text):
@@ -631,7 +631,7 @@ class _parser_source:
         data, start = self.data, self.start       # ASCII: the same searches as _has_padding's, on the bytes
         if data.find(b" ", start) >= 0 or (delimiter != "\t" and data.find(b"\t", start) >= 0):
             return True
-        return any(data.find(ch, start) >= 0 for ch in (b"\x0b", b"\x0c", b"\x1c", b"\x1d", b"\x1e", b"\x1f"))
+        return any(data.find(ch.encode("ascii"), start) >= 0 for ch in _OTHER_SPACES)
 
     def guarded(self) -> bool:
         """Whether any cell may carry a formula guard ``'``."""
@@ -696,7 +696,7 @@ def _has_padding(body, delimiter):
     if " " in body or (delimiter != "\t" and "\t" in body):
         return True
     if body.isascii():     # the other ASCII white space, found by fast substring searches
-        return any(ch in body for ch in "\x0b\x0c\x1c\x1d\x1e\x1f")
+        return any(ch in body for ch in _OTHER_SPACES)
     return (_PADDING_TAB if delimiter == "\t" else _PADDING).search(body) is not None
 
 

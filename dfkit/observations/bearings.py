@@ -35,7 +35,8 @@ class Bearings:
     fix_index : pandas.DataFrame
         One row per fix of the input, indexed by ``fix_id`` (0, 1, ...), in order of
         first appearance, *including* fixes whose rows were all rejected: ``fix``
-        (label), ``tag``, ``rejected_lines`` (list of line numbers).
+        (label), ``tag``, ``rejected_lines`` (list of line numbers; an empty one is shared
+        by the fixes without rejected rows and refuses changes).
     n_rows : int
         Data rows read from the sheet.
     notes : list of str

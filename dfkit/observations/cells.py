@@ -503,7 +503,7 @@ def declinations(cells, decimal_comma: bool = False) -> Cells:
     err = np.full(len(cells), "", dtype=object)
     err[bad] = [f"'{x}' is not a declination; write degrees east (-3.5) or 3.5W" for x in cells[bad]]
     vals = np.where(west, -c.values, c.values)
-    return Cells(np.where(bad, np.nan, vals), c.empty, err)
+    return Cells(np.where(bad, np.nan, vals), c.empty, err, known_bad=bad)
 
 
 _NMEA_POSITION = re.compile(r"^(\d+(?:\.\d+)?)\s*,\s*([NSns])\s*,\s*(\d+(?:\.\d+)?)\s*,\s*([EWew])$")

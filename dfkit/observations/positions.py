@@ -39,7 +39,7 @@ import pandas as pd
 from dfkit import grids
 from dfkit.io.gpx import Track
 from dfkit.observations.cells import angles, column, filled, numbers, per_value, split_position
-from dfkit.observations.groupstats import group_medians, group_ranges
+from dfkit.observations.groupstats import group_counts, group_medians, group_ranges
 from dfkit.observations.rowlog import RowLog
 from dfkit.observations.typos import describe, variants
 from dfkit.policy import (
@@ -689,9 +689,14 @@ def _km(lat1, lon1, lat2, lon2):
     return 6371.0 * np.arccos(np.clip(c, -1.0, 1.0))
 
 
+def _slots(groups) -> int:
+    """Groups to hold, indexed by group id: at least one slot, since callers index group 0."""
+    return max(int(groups.max()) + 1 if len(groups) else 0, 1)
+
+
 def _group_reference(groups, lat, lon, valid):
     """Median lat/lon and count of the valid positions of each group (indexed by group id)."""
-    m = max(int(groups.max()) + 1 if len(groups) else 0, 1)   # at least one slot: callers index group 0
+    m = _slots(groups)
     sel = valid & (groups >= 0)
     cnt, (ref_lat, ref_lon) = group_medians(groups[sel], m, lat[sel], lon[sel])
     return ref_lat, ref_lon, cnt
@@ -705,9 +710,9 @@ def _fix_reference(p: _State, groups, valid):
     sel = valid & (groups >= 0)
     if p.reference is not None and np.array_equal(p.reference[0], sel):
         return p.reference[1]
-    m = max(int(groups.max()) + 1 if len(groups) else 0, 1)   # at least one slot: callers index group 0
+    m = _slots(groups)
     loose = _loose_fixes(p, groups, sel, m)
-    cnt = np.bincount(groups[sel], minlength=m)[:m]
+    cnt = group_counts(groups[sel], m)
     use = sel & loose[np.maximum(groups, 0)]
     _, (ref_lat, ref_lon) = group_medians(groups[use], m, p.lat[use], p.lon[use])
     ref = (ref_lat, ref_lon, cnt, loose)

@@ -65,10 +65,6 @@ def read_bearings(sheet, options: ReadOptions | None = None, **kwargs) -> Bearin
     OptionError
         An option (a ``ValueError``) dfkit cannot use, naming the parameter (``sd=``).
     """
-    return _read(sheet, options, kwargs)
-
-
-def _read(sheet, options, kwargs) -> Bearings:
     opts = options or ReadOptions()
     if kwargs:
         known = {f.name for f in fields(ReadOptions)}
