@@ -16,7 +16,8 @@ from dfkit.locate.hints import one_bearing_hints
 from dfkit.locate.offsets import fix_offsets
 from dfkit.locate.resolution import fix_steps, sd_floors
 from dfkit.locate.rivals import find_rivals
-from dfkit.locate.status import FixFacts, append_reason, classify, consistency, filled
+from dfkit.locate.status import FixFacts, append_reason, classify, p_values
+from dfkit.observations.cells import filled
 from dfkit.observations import Bearings, ReadOptions, read_bearings
 
 #: Inconsistent fixes with a chi-square p-value at least this are not searched for one bad line.
@@ -121,8 +122,8 @@ def locate_chunk(bearings: Bearings, *, method: str, level: float, window_min: f
                      ellipse_minor=ell.semi_minor_m, regions=lik, level=float(level), hints={}, step_deg=step)
     status, reasons = classify(facts)
     # a fix only mildly inconsistent (1 clean fix in 100 is) is not worth a search for the one bad line; its
-    # p-value is the one classify worked out (consistency() on these same facts), not computed a second time
-    p = facts.judged.p if facts.judged is not None else consistency(sol, g, m, lik)[1]
+    # p-value is the one classify worked out on these same facts, not computed a second time
+    p = p_values(facts)
     with np.errstate(invalid="ignore"):
         mild = (status == "inconsistent") & (p >= HINT_P)
     written = ((b["bearing"].to_numpy(float), b["unit"].to_numpy(object), b["north"].to_numpy(object))

@@ -129,8 +129,10 @@ class Fixes:
         when split at the antimeridian, in longitude/latitude), ``bounded``, ``area_m2``
         (NaN when open), ``reach_m`` and ``drawn_to_m`` (how far an open region is drawn).
     azimuth_deg : ndarray or None
-        Each bearing's geodesic azimuth from its fix to its station [°], in the rows of ``bearings``, as the
-        solver left it (None when not kept): the sheet-wide checks reuse it instead of a second geodesic pass.
+        Each bearing's geodesic azimuth to its station [°], in the rows of ``bearings``, as the solver left it:
+        taken at its last plane's centre, within ``tol_m`` of the written fix (so not bit for bit the azimuth from
+        the written position; about 3e-6° apart on the samples). None when not kept. The sheet-wide checks reuse
+        it instead of a second geodesic pass.
     """
 
     table: pd.DataFrame

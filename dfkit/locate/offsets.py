@@ -765,8 +765,9 @@ class SheetOffset:
 
 
 def fix_azimuths(table, bearings, g, azimuth_deg=None) -> np.ndarray:
-    """Each bearing's geodesic azimuth from its fix (the ``table``'s position) to its station [°]: ``azimuth_deg``
-    when given (the solver's, :attr:`dfkit.locate.Fixes.azimuth_deg`), else computed (NaN where no position)."""
+    """Each bearing's geodesic azimuth from its fix to its station [°]: ``azimuth_deg`` when given (the solver's,
+    :attr:`dfkit.locate.Fixes.azimuth_deg`, taken within ``tol_m`` of the written fix: not bit for bit the
+    azimuth from it), else computed from the ``table``'s position (NaN where no position)."""
     if azimuth_deg is not None and len(azimuth_deg) == len(bearings):
         return np.asarray(azimuth_deg, float)
     from dfkit import geodesy

@@ -15,6 +15,7 @@ import numpy as np
 from dfkit.estimators import ENDINGS
 from dfkit.locate.fixes import has_position
 from dfkit.locate.resolution import SHEPPARD
+from dfkit.observations.cells import filled
 from dfkit.policy import (ELLIPSE_MISMATCH, FIX_SPAN_WINDOWS, INCONSISTENT_P, NEAR_OBSERVER, ONE_SPOT_M, PLAUSIBLE_SD_DEG, REVERSED_DEG,
                           SHALLOW_CROSSING_DEG, WILD_SD)
 from dfkit.regions import chi2_sf
@@ -124,9 +125,11 @@ def classify(f: FixFacts, previous=None, redo=()):
     return status, reasons
 
 
-def filled(n, text):
-    """An object array of ``n`` references to ``text`` (np.full fills an object array several times slower)."""
-    return np.array([text], dtype=object).repeat(n)
+def p_values(facts: FixFacts) -> np.ndarray:
+    """The consistency p-value of each fix: the one :func:`classify` worked out on these facts, if it has."""
+    if facts.judged is not None:
+        return facts.judged.p
+    return consistency(facts.sol, facts.g, len(facts.counts), facts.regions)[1]
 
 
 def append_reason(reasons, fixes, text):
