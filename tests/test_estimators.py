@@ -630,3 +630,52 @@ def test_fixes_solved_in_chunks_are_those_of_one_call_bit_for_bit(monkeypatch, m
             assert np.array_equal(a, b, equal_nan=True), f.name
         else:
             assert a == b, f.name
+
+
+@pytest.mark.parametrize("method", ["mle", "huber", "andrews", "stansfield"])
+@pytest.mark.parametrize("sd_given", [True, False])
+def test_later_starts_run_together_give_the_answers_of_one_after_another(monkeypatch, method, sd_given):
+    # A fix whose first start fails tries its other starts; running them all at once (each start a fix of its
+    # own) must change no bit of any field, iterations included (those of the starts tried up to the one that
+    # succeeds). Invented fixes of 3-4 bearings 400-2000 m from the transmitter, one bearing of most fixes turned
+    # by 100-180 degrees, so that many first fits creep onto a station and some later start succeeds.
+    import dataclasses
+    import importlib
+
+    solve_mod = importlib.import_module("dfkit.estimators.solve")
+    rng = np.random.default_rng(11)
+    m = 300
+    counts = rng.integers(3, 5, m)
+    g = np.repeat(np.arange(m), counts)
+    n = len(g)
+    tlat, tlon = 47.0 + rng.random(m), 12.0 + rng.random(m)
+    lat, lon, theta = np.empty(n), np.empty(n), np.empty(n)
+    for i in range(n):
+        d = WGS.Direct(tlat[g[i]], tlon[g[i]], rng.uniform(0, 360), rng.uniform(400, 2000))
+        lat[i], lon[i] = d["lat2"], d["lon2"]
+        theta[i] = d["azi2"] + 180.0 + rng.normal(0, 4)
+    first = np.concatenate(([0], np.cumsum(counts)[:-1]))
+    turned = first[rng.random(m) < 0.8]
+    theta[turned] += rng.uniform(100, 180, len(turned)) * rng.choice([-1, 1], len(turned))
+    theta %= 360.0
+    sd = np.full(n, 4.0) if sd_given else None
+    seen = []
+    original = solve_mod._later_starts_together
+
+    def spy(ctx, state, todo, *args):
+        before = state["verified"].copy()
+        original(ctx, state, todo, *args)
+        seen.append((int(todo.sum()), int((state["verified"] & ~before).sum())))
+
+    monkeypatch.setattr(solve_mod, "_later_starts_together", spy)
+    together = estimators.solve(lat, lon, theta, g, m, sd, method=method)
+    assert seen and sum(t for t, _ in seen) > sum(s for _, s in seen) > 0    # some fixes failed every start
+    monkeypatch.setattr(solve_mod, "STARTS_TOGETHER", False)
+    apart = estimators.solve(lat, lon, theta, g, m, sd, method=method)
+    for f in dataclasses.fields(together):
+        a, b = getattr(together, f.name), getattr(apart, f.name)
+        if isinstance(a, np.ndarray):
+            assert a.dtype == b.dtype and a.shape == b.shape, f.name
+            assert np.array_equal(a, b, equal_nan=True), f.name
+        else:
+            assert a == b, f.name

@@ -286,11 +286,12 @@ def _halve(form, b, grp, bcg, sel_g, x, y, F, sx_, sy_, lam, slope, step_len, ac
         lams = lam[sel_g] * 0.5 ** np.arange(kk)[:, None]                 # (kk, n)
         xt = x[grp[sel_g]] + lams * sx_[sel_g]
         yt = y[grp[sel_g]] + lams * sy_[sel_g]
-        rows = np.tile(bsub, kk)
         owner = (np.arange(kk)[:, None] * n + local).ravel()
-        sub = {k: b[k][rows] for k in ("sp", "cp", "sx", "sy", "w", "s")}
-        trial = form.at(sub, xt.ravel(), yt.ravel(), owner)
-        Ft = gsum(owner, form.objective(trial, sub, c), kk * n).reshape(kk, n)
+        # the bearings' own arrays once, (nb,), broadcast against the (kk, nb) trial points: the same
+        # element-wise values as kk stacked copies, summed in the same order
+        sub = {k: b[k][bsub] for k in ("sp", "cp", "sx", "sy", "w", "s")}
+        trial = form.at(sub, xt[:, local], yt[:, local])
+        Ft = gsum(owner, form.objective(trial, sub, c).ravel(), kk * n).reshape(kk, n)
         ok, floor = _armijo(Ft, F[grp[sel_g]], lams, slope[sel_g], step_len[sel_g], tol)
         first = np.argmax(ok | floor, axis=0)                             # the first try that passes
         cols = np.arange(n)
@@ -301,7 +302,7 @@ def _halve(form, b, grp, bcg, sel_g, x, y, F, sx_, sy_, lam, slope, step_len, ac
             x[fixes], y[fixes], F[fixes] = (v[first[took], cols[took]] for v in (xt, yt, Ft))
             bj = np.flatnonzero(took[local])
             for k in state:
-                b[k][bsub[bj]] = trial[k][first[local[bj]] * nb + bj]
+                b[k][bsub[bj]] = trial[k][first[local[bj]], bj]
         accepted[sel_g[hit]] = True
         lam[sel_g] = np.where(took, lams[first, cols], np.where(hit, 0.0, lams[-1] * 0.5))
         keep = ~hit
