@@ -215,10 +215,15 @@ def solve(lat, lon, bearing_deg, group, n_groups, sd_deg=None, *, method="mle", 
     sd = np.full(N, np.nan) if sd_deg is None else np.broadcast_to(np.asarray(sd_deg, float), (N,))
     floor_b = np.zeros(N) if sd_floor_deg is None else np.broadcast_to(np.asarray(sd_floor_deg, float), (N,))
     _check_inputs(lat, lon, theta, g, m, sd, floor_b)
+    options = dict(spec=spec, c=c, tol_m=tol_m, max_iter=max_iter, max_outer=max_outer)
     if m > SOLVE_CHUNK_FIXES:
-        options = dict(method=method, robust_c=robust_c, tol_m=tol_m, max_iter=max_iter, max_outer=max_outer)
         return _in_chunks(lat, lon, theta, g, m, sd, floor_b, options)
+    return _solve_checked(lat, lon, theta, g, m, sd, floor_b, **options)
 
+
+def _solve_checked(lat, lon, theta, g, m, sd, floor_b, *, spec, c, tol_m, max_iter, max_outer) -> Solution:
+    """:func:`solve` of inputs already converted and checked (:func:`_check_inputs`)."""
+    N = len(lat)
     counts = np.bincount(g, minlength=m)
     floor_g = np.full(m, np.inf)
     np.minimum.at(floor_g, g, floor_b)
@@ -299,8 +304,12 @@ def _in_chunks(lat, lon, theta, g, m, sd, floor_b, options) -> Solution:
     for lo in range(0, m, SOLVE_CHUNK_FIXES):
         hi = min(m, lo + SOLVE_CHUNK_FIXES)
         rows = np.flatnonzero((g >= lo) & (g < hi))
-        parts.append(solve(lat[rows], lon[rows], theta[rows], g[rows] - lo, hi - lo, sd[rows],
-                           sd_floor_deg=floor_b[rows], **options))
+        # the chunk's inputs as solve() made them (checked already, with the whole): the bearings taken modulo
+        # 360 once more, as a call of its own did (a bearing a hair below 0 becomes 360 and then 0)
+        with np.errstate(invalid="ignore"):
+            theta_c = np.mod(theta[rows], 360.0)
+        parts.append(_solve_checked(lat[rows], lon[rows], theta_c, g[rows] - lo, hi - lo, sd[rows], floor_b[rows],
+                                    **options))
         rows_of.append(rows)
     joined = {}
     for f in fields(Solution):
