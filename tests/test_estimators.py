@@ -630,3 +630,85 @@ def test_fixes_solved_in_chunks_are_those_of_one_call_bit_for_bit(monkeypatch, m
             assert np.array_equal(a, b, equal_nan=True), f.name
         else:
             assert a == b, f.name
+
+
+def _creeping_fixes(m=300, seed=11):
+    """Invented fixes of 3-4 bearings 400-2000 m from the transmitter, one bearing of most fixes turned by
+    100-180 degrees: many first fits creep onto a station, and some later start succeeds."""
+    rng = np.random.default_rng(seed)
+    counts = rng.integers(3, 5, m)
+    g = np.repeat(np.arange(m), counts)
+    n = len(g)
+    tlat, tlon = 47.0 + rng.random(m), 12.0 + rng.random(m)
+    lat, lon, theta = np.empty(n), np.empty(n), np.empty(n)
+    for i in range(n):
+        d = WGS.Direct(tlat[g[i]], tlon[g[i]], rng.uniform(0, 360), rng.uniform(400, 2000))
+        lat[i], lon[i] = d["lat2"], d["lon2"]
+        theta[i] = d["azi2"] + 180.0 + rng.normal(0, 4)
+    first = np.concatenate(([0], np.cumsum(counts)[:-1]))
+    turned = first[rng.random(m) < 0.8]
+    theta[turned] += rng.uniform(100, 180, len(turned)) * rng.choice([-1, 1], len(turned))
+    return lat, lon, theta % 360.0, g, m
+
+
+def _same_solutions(one, two):
+    import dataclasses
+
+    for f in dataclasses.fields(one):
+        a, b = getattr(one, f.name), getattr(two, f.name)
+        if isinstance(a, np.ndarray):
+            assert a.dtype == b.dtype and a.shape == b.shape, f.name
+            assert np.array_equal(a, b, equal_nan=True), f.name
+        else:
+            assert a == b, f.name
+
+
+@pytest.mark.parametrize("method", ["mle", "huber", "andrews", "stansfield"])
+@pytest.mark.parametrize("sd_given", [True, False])
+def test_later_starts_run_together_give_the_answers_of_one_after_another(monkeypatch, method, sd_given):
+    # A fix whose first start fails tries its other starts; running them all at once (each start a fix of its
+    # own) must change no bit of any field, iterations included (those of the starts tried up to the one that
+    # succeeds).
+    import importlib
+
+    solve_mod = importlib.import_module("dfkit.estimators.solve")
+    lat, lon, theta, g, m = _creeping_fixes()
+    sd = np.full(len(g), 4.0) if sd_given else None
+    seen = []
+    original = solve_mod._later_starts_together
+
+    def spy(ctx, state, todo, *args):
+        before = state["verified"].copy()
+        original(ctx, state, todo, *args)
+        seen.append((int(todo.sum()), int((state["verified"] & ~before).sum())))
+
+    monkeypatch.setattr(solve_mod, "_later_starts_together", spy)
+    together = estimators.solve(lat, lon, theta, g, m, sd, method=method)
+    assert seen and sum(t for t, _ in seen) > sum(s for _, s in seen) > 0    # some fixes failed every start
+    monkeypatch.setattr(solve_mod, "STARTS_TOGETHER", False)
+    _same_solutions(together, estimators.solve(lat, lon, theta, g, m, sd, method=method))
+
+
+@pytest.mark.parametrize("method", ["mle", "huber", "andrews"])
+@pytest.mark.parametrize("sd_given", [True, False])
+def test_halvings_proven_to_fail_are_skipped_without_changing_a_bit(monkeypatch, method, sd_given):
+    # Step halvings that one bearing's term already proves to fail the Armijo test are not evaluated; the first
+    # one that passes is the same as when every halving is evaluated in turn, so every field is the same bit for
+    # bit. Fits creeping onto stations overshoot them with long steps, so the proof rules out many halvings.
+    from dfkit.estimators import iterate
+
+    lat, lon, theta, g, m = _creeping_fixes(seed=12)
+    sd = np.full(len(g), 4.0) if sd_given else None
+    ruled_out = []
+    original = iterate._proven_to_fail
+
+    def spy(*args):
+        out = original(*args)
+        ruled_out.append(int(out.sum()))
+        return out
+
+    monkeypatch.setattr(iterate, "_proven_to_fail", spy)
+    skipping = estimators.solve(lat, lon, theta, g, m, sd, method=method)
+    assert sum(ruled_out) > 0
+    monkeypatch.setattr(iterate, "_proven_to_fail", lambda form, sub, lams, *rest: np.zeros(lams.shape, bool))
+    _same_solutions(skipping, estimators.solve(lat, lon, theta, g, m, sd, method=method))

@@ -39,6 +39,8 @@ NEWTON_SETTLE = 100.0
 #: all that are left when they take fewer than SMALL_BATCH trial bearings.
 BATCH = 8
 SMALL_BATCH = 20_000
+#: Halvings tried at once first, from the first one not proven to fail (usually the one that passes).
+FIRST_BLOCK = 2
 
 
 class _Compact:
@@ -185,9 +187,13 @@ def optimise(method, geo, cg, mg, x, y, w, s, c, tol, max_iter, r_run, settle=No
         floor &= live
         fixes = grp[ok]
         x[fixes], y[fixes], F[fixes] = xt[ok], yt[ok], Ft[ok]
-        bok = ok[bcg]
+        # the trial's arrays become the state, with the old values put back at the few bearings not accepted
+        # (the values of a copy where accepted, without a pass over every bearing per array)
+        keep = np.flatnonzero(~ok[bcg])
         for k in state:
-            np.copyto(b[k], trial[k], where=bok)
+            t = trial[k]
+            t[keep] = b[k][keep]
+            b[k] = t
         lam = np.where(floor, 0.0, 1.0)
         accepted = ok | floor
         searching = live & ~accepted
@@ -271,45 +277,109 @@ def _armijo(Ft, Fo, lam, slope, step_len, tol):
 def _halve(form, b, grp, bcg, sel_g, x, y, F, sx_, sy_, lam, slope, step_len, accepted, c, tol, state):
     """Halve the steps of the fixes ``sel_g`` (held numbers) until each is accepted or at the floor, at most
     ``MAX_HALVINGS - 1`` times (the whole step was the first try); updates x, y, F, the bearings' state in
-    ``b``, ``lam`` and ``accepted``. :data:`BATCH` halvings are tried at once, and each fix takes the first
-    that passes, as halving one at a time would (the same lengths, bit for bit: powers of two)."""
+    ``b``, ``lam`` and ``accepted``. Each fix takes the first halving that passes, as halving one at a time
+    would (the same lengths, bit for bit: powers of two).
+
+    The halvings a single bearing already proves to fail are not evaluated (:func:`_proven_to_fail`): a fit
+    creeping onto a station overshoots it with every long step, and needs one more halving each round. The
+    others are tried :data:`FIRST_BLOCK` at a time, then :data:`BATCH` at a time (all that are left when they
+    take fewer than :data:`SMALL_BATCH` trial bearings)."""
     pos = np.full(len(grp), -1)
     pos[sel_g] = np.arange(len(sel_g))
     local = pos[bcg]
     bsub = np.flatnonzero(local >= 0)
     local = local[bsub]
-    left = MAX_HALVINGS - 1
-    while len(sel_g) and left:
-        kk = left if len(bsub) * left <= SMALL_BATCH else min(BATCH, left)
-        left -= kk
-        n, nb = len(sel_g), len(bsub)
-        lams = lam[sel_g] * 0.5 ** np.arange(kk)[:, None]                 # (kk, n)
-        xt = x[grp[sel_g]] + lams * sx_[sel_g]
-        yt = y[grp[sel_g]] + lams * sy_[sel_g]
-        rows = np.tile(bsub, kk)
+    total = MAX_HALVINGS - 1
+    fx = grp[sel_g]
+    lam0, Fo, sl, sl_len = lam[sel_g], F[fx], slope[sel_g], step_len[sel_g]
+    x0, y0, ux, uy = x[fx], y[fx], sx_[sel_g], sy_[sel_g]
+    start = _first_unproven(form, b, bsub, local, len(sel_g), lam0, x0, y0, ux, uy, Fo, sl, sl_len, c, tol, total)
+    cols = np.arange(len(sel_g))               # each fix still searching: its column in the arrays above
+    kk = FIRST_BLOCK
+    while len(cols):
+        n, nb = len(cols), len(bsub)
+        h = start[cols] + np.arange(kk)[:, None]                              # (kk, n) halvings tried
+        valid = h < total
+        lams = lam0[cols] * 0.5 ** np.minimum(h, total - 1)
+        xt = x0[cols] + lams * ux[cols]
+        yt = y0[cols] + lams * uy[cols]
         owner = (np.arange(kk)[:, None] * n + local).ravel()
-        sub = {k: b[k][rows] for k in ("sp", "cp", "sx", "sy", "w", "s")}
-        trial = form.at(sub, xt.ravel(), yt.ravel(), owner)
-        Ft = gsum(owner, form.objective(trial, sub, c), kk * n).reshape(kk, n)
-        ok, floor = _armijo(Ft, F[grp[sel_g]], lams, slope[sel_g], step_len[sel_g], tol)
+        # the bearings' own arrays once, (nb,), broadcast against the (kk, nb) trial points: the same
+        # element-wise values as kk stacked copies, summed in the same order
+        sub = {k: b[k][bsub] for k in ("sp", "cp", "sx", "sy", "w", "s")}
+        trial = form.at(sub, xt[:, local], yt[:, local])
+        Ft = gsum(owner, form.objective(trial, sub, c).ravel(), kk * n).reshape(kk, n)
+        ok, floor = _armijo(Ft, Fo[cols], lams, sl[cols], sl_len[cols], tol)
+        ok &= valid
+        floor &= valid
         first = np.argmax(ok | floor, axis=0)                             # the first try that passes
-        cols = np.arange(n)
-        hit = (ok | floor)[first, cols]
-        took = hit & ok[first, cols]
+        at = np.arange(n)
+        hit = (ok | floor)[first, at]
+        took = hit & ok[first, at]
         if took.any():
-            fixes = grp[sel_g[took]]
-            x[fixes], y[fixes], F[fixes] = (v[first[took], cols[took]] for v in (xt, yt, Ft))
+            fixes = fx[cols[took]]
+            x[fixes], y[fixes], F[fixes] = (v[first[took], at[took]] for v in (xt, yt, Ft))
             bj = np.flatnonzero(took[local])
             for k in state:
-                b[k][bsub[bj]] = trial[k][first[local[bj]] * nb + bj]
-        accepted[sel_g[hit]] = True
-        lam[sel_g] = np.where(took, lams[first, cols], np.where(hit, 0.0, lams[-1] * 0.5))
-        keep = ~hit
+                b[k][bsub[bj]] = trial[k][first[local[bj]], bj]
+        accepted[sel_g[cols[hit]]] = True
+        lam[sel_g[cols]] = np.where(took, lams[first, at], np.where(hit, 0.0, lam0[cols] * 0.5 ** total))
+        start[cols] += kk
+        keep = ~hit & (start[cols] < total)
         if not keep.all():
             kb = keep[local]
             bsub = bsub[kb]
             local = (np.cumsum(keep) - 1)[local[kb]]
-            sel_g = sel_g[keep]
+            cols = cols[keep]
+        left = total - start[cols].min() if len(cols) else 0
+        kk = min(left, left if len(bsub) * left <= SMALL_BATCH else BATCH)
+
+
+def _first_unproven(form, b, bsub, local, n, lam0, x0, y0, ux, uy, Fo, slope, step_len, c, tol, total):
+    """Per fix, the first of its ``total`` halvings that :func:`_proven_to_fail` cannot rule out (``total``
+    where it rules out all), looked at :data:`BATCH` halvings at a time (all at once for few fixes)."""
+    # one bearing per fix, one whose station is nearest the point (any bearing would do: only how much the
+    # proof rules out depends on which)
+    d2 = b["d2"][bsub]
+    dmin = np.full(n, np.inf)
+    np.minimum.at(dmin, local, d2)
+    at_min = np.flatnonzero(d2 == dmin[local])
+    near = np.empty(n, np.int64)
+    near[local] = bsub                               # (a bearing of each fix, should its distances be NaN)
+    near[local[at_min]] = bsub[at_min]
+    sub = {k: b[k][near] for k in ("sp", "cp", "sx", "sy", "w", "s")}
+    start = np.full(n, total)
+    cols = np.arange(n)
+    block = total if n * total <= SMALL_BATCH else BATCH
+    for lo in range(0, total, block):
+        h = np.arange(lo, min(lo + block, total))[:, None]
+        part = {k: v[cols] for k, v in sub.items()}
+        fails = _proven_to_fail(form, part, lam0[cols] * 0.5 ** h, x0[cols], y0[cols], ux[cols], uy[cols], Fo[cols],
+                                slope[cols], step_len[cols], c, tol)
+        found = ~fails.all(axis=0)
+        start[cols[found]] = lo + np.argmax(~fails[:, found], axis=0)
+        cols = cols[~found]
+        if not len(cols):
+            break
+    return start
+
+
+def _proven_to_fail(form, sub, lams, x0, y0, ux, uy, Fo, slope, step_len, c, tol):
+    """(halvings, fixes): whether the halving surely fails the test of :func:`_armijo`, judged from one bearing
+    of each fix (``sub``: its arrays, one value per fix), the one whose station is nearest the point.
+
+    Every bearing's term of the objective is at least 0, and a sum of such terms in floating point is at
+    least each of them (rounding to nearest is monotone), so a trial whose one term already exceeds what the
+    test allows fails it: this is exact, not a model. The term is computed by the same operations on the same
+    numbers as in the full evaluation. Halvings short enough to end the search at the floor are never
+    skipped."""
+    xt = x0 + lams * ux
+    yt = y0 + lams * uy
+    with np.errstate(all="ignore"):
+        lb = form.objective(form.at(sub, xt, yt), sub, c)
+        tiny = lams * step_len < tol
+        flat = np.abs(Fo) * FLAT
+        return ~tiny & (lb > Fo + ARMIJO * lams * slope) & (~(lams * np.abs(slope) < flat) | (lb > Fo + flat))
 
 
 #: Plain re-weighting rounds before Stansfield's fixed point is searched by Newton's method on T(x) - x.

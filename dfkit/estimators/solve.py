@@ -22,7 +22,7 @@ from dfkit import geodesy
 from dfkit.conventions import wrap180
 from dfkit.estimators import iterate, registry, stansfield, subsets
 from dfkit.estimators.covariance import position_covariance
-from dfkit.estimators.groups import best_in_group, group_min, gsum, solve2
+from dfkit.estimators.groups import best_in_group, expand, group_min, gsum, solve2
 from dfkit.estimators.lenth import kappa_from_sd
 from dfkit.estimators.lsq import planar_point
 from dfkit.estimators.plane import geometry, residuals, sin_cos_residuals
@@ -65,6 +65,11 @@ MAX_STARTS = 3
 #: Starts tried per fix by Stansfield's fixed point, whose re-weighting can stall at a point that is no fixed
 #: point (a local minimum of |T(x) - x|) from a start that the optimisers would leave.
 FIXED_POINT_STARTS = 6
+
+#: The starts after a failed first one are run at once, each (fix, start) as a fix of its own
+#: (:func:`_later_starts_together`); False runs them one after another: the same answers, bit for bit, in more
+#: rounds.
+STARTS_TOGETHER = True
 
 #: How each fit ended (``Solution.ending``), as names.
 ENDINGS = ("optimum", "too_few", "parallel", "runaway", "singular", "stalled", "max_iter", "not_optimum",
@@ -210,10 +215,15 @@ def solve(lat, lon, bearing_deg, group, n_groups, sd_deg=None, *, method="mle", 
     sd = np.full(N, np.nan) if sd_deg is None else np.broadcast_to(np.asarray(sd_deg, float), (N,))
     floor_b = np.zeros(N) if sd_floor_deg is None else np.broadcast_to(np.asarray(sd_floor_deg, float), (N,))
     _check_inputs(lat, lon, theta, g, m, sd, floor_b)
+    options = dict(spec=spec, c=c, tol_m=tol_m, max_iter=max_iter, max_outer=max_outer)
     if m > SOLVE_CHUNK_FIXES:
-        options = dict(method=method, robust_c=robust_c, tol_m=tol_m, max_iter=max_iter, max_outer=max_outer)
         return _in_chunks(lat, lon, theta, g, m, sd, floor_b, options)
+    return _solve_checked(lat, lon, theta, g, m, sd, floor_b, **options)
 
+
+def _solve_checked(lat, lon, theta, g, m, sd, floor_b, *, spec, c, tol_m, max_iter, max_outer) -> Solution:
+    """:func:`solve` of inputs already converted and checked (:func:`_check_inputs`)."""
+    N = len(lat)
     counts = np.bincount(g, minlength=m)
     floor_g = np.full(m, np.inf)
     np.minimum.at(floor_g, g, floor_b)
@@ -294,8 +304,12 @@ def _in_chunks(lat, lon, theta, g, m, sd, floor_b, options) -> Solution:
     for lo in range(0, m, SOLVE_CHUNK_FIXES):
         hi = min(m, lo + SOLVE_CHUNK_FIXES)
         rows = np.flatnonzero((g >= lo) & (g < hi))
-        parts.append(solve(lat[rows], lon[rows], theta[rows], g[rows] - lo, hi - lo, sd[rows],
-                           sd_floor_deg=floor_b[rows], **options))
+        # the chunk's inputs as solve() made them (checked already, with the whole): the bearings taken modulo
+        # 360 once more, as a call of its own did (a bearing a hair below 0 becomes 360 and then 0)
+        with np.errstate(invalid="ignore"):
+            theta_c = np.mod(theta[rows], 360.0)
+        parts.append(_solve_checked(lat[rows], lon[rows], theta_c, g[rows] - lo, hi - lo, sd[rows], floor_b[rows],
+                                    **options))
         rows_of.append(rows)
     joined = {}
     for f in fields(Solution):
@@ -329,6 +343,9 @@ def _attempts(ctx, state, which, n_starts, x0, y0, more=None):
                 todo = which & ~verified & (n_starts > attempt)
         if not todo.any():
             break
+        if STARTS_TOGETHER and attempt and (n_starts[todo] > attempt + 1).any():
+            _later_starts_together(ctx, state, todo, attempt, n_starts, x0, y0)
+            break
         # the first attempt's results are all taken: its geometry is built in the state's own arrays (the
         # very first one's becomes the state's)
         res = _run(ctx, todo, np.nan_to_num(x0[:, attempt]), np.nan_to_num(y0[:, attempt]),
@@ -344,6 +361,66 @@ def _attempts(ctx, state, which, n_starts, x0, y0, more=None):
             state["geo"].put(tb, res["geo"].take(tb))
         state["iterations"][todo] += res["iterations"][todo]
         verified |= todo & ok
+
+
+#: Per-fix entries of the solver's context (the others are per bearing, or shared).
+_CTX_PER_FIX = ("r_run", "spread", "centre_lat", "centre_lon", "floor_g")
+_CTX_PER_BEARING = ("lat", "lon", "theta", "floor_b", "w", "s_b")
+
+
+def _later_starts_together(ctx, state, todo, first, n_starts, x0, y0):
+    """Attempts ``first``, ``first`` + 1, ... of the fixes ``todo`` (their first start failed), all run at once,
+    each (fix, start) as a fix of its own; each fix then takes its first start, in order, that ends at a verified
+    optimum, with the iterations of the starts tried up to it: what running them one after another gives.
+
+    A start's fit depends on that fix's bearings and start alone (every sum is within a fix, in bearing order),
+    so its answer is the same bit for bit; running them together takes as many rounds as the slowest start
+    instead of the sum of all of them (a fit creeping onto a station takes 15-20 rounds per start, mostly
+    short of fixes, where each round costs its fixed overhead). The starts after one that succeeds are solved
+    for nothing: after a failed first start the next one succeeds rarely (about 3 % of such fixes with a wild
+    bearing), so little is spent."""
+    g, m = ctx["g"], ctx["m"]
+    fixes = np.flatnonzero(todo)
+    tries = [(a, fixes[n_starts[fixes] > a]) for a in range(first, x0.shape[1])]
+    tries = [(a, f) for a, f in tries if len(f)]
+    v_fix = np.concatenate([f for _, f in tries])
+    v_att = np.concatenate([np.full(len(f), a) for a, f in tries])
+    mv = len(v_fix)
+    # each virtual fix's bearings, in their original order (so every sum adds in the same order)
+    order = np.argsort(g, kind="stable")
+    counts = np.bincount(g, minlength=m)
+    offsets = np.concatenate(([0], np.cumsum(counts)[:-1]))
+    owner, rows = expand(counts[v_fix], offsets[v_fix], order)
+    vctx = dict(ctx, g=owner, m=mv, geo0=ctx["geo0"].take(rows))
+    for k in _CTX_PER_FIX:
+        vctx[k] = ctx[k][v_fix]
+    for k in _CTX_PER_BEARING:
+        vctx[k] = ctx[k][rows]
+    every = np.ones(mv, bool)
+    res = _run(vctx, every, np.nan_to_num(x0[v_fix, v_att]), np.nan_to_num(y0[v_fix, v_att]))
+    ok = _verify(vctx, every, res)
+    # per fix, the first start (in order) that succeeded: virtual fixes are laid out start by start
+    okv = np.flatnonzero(ok)
+    won = np.full(m, mv, np.int64)
+    np.minimum.at(won, v_fix[okv], okv)
+    won = np.where(won < mv, won, -1)
+    win_att = np.full(m, x0.shape[1], np.int64)
+    win_att[fixes] = np.where(won[fixes] >= 0, v_att[np.maximum(won[fixes], 0)], x0.shape[1])
+    # the iterations of every start tried up to the one that succeeded (all of them where none did)
+    tried = v_att <= win_att[v_fix]
+    state["iterations"] += np.bincount(v_fix[tried], res["iterations"][tried], m).astype(np.int64)
+    wv = won[fixes]
+    take = fixes[wv >= 0]
+    wv = wv[wv >= 0]
+    if not len(take):
+        return
+    state["P_lat"][take], state["P_lon"][take] = res["lat"][wv], res["lon"][wv]
+    state["ending"][take] = res["ending"][wv]
+    state["verified"][take] = True
+    winner = np.zeros(mv, bool)
+    winner[wv] = True
+    vb = winner[owner]
+    state["geo"].put(rows[vb], res["geo"].take(vb))
 
 
 def _looks_clean(r, g, m, counts, known_b, sd_rad):

@@ -56,9 +56,7 @@ def one_bearing_hints(lat, lon, bearing, sd, g, counts, lines, status, method, r
     starts = np.concatenate(([0], np.cumsum(counts)))
     floor = np.zeros(len(g)) if sd_floor is None else np.asarray(sd_floor, float)
     known_g = np.bincount(g, np.isfinite(sd).astype(float), m) == counts
-    v_lat, v_lon, v_b, v_sd, v_fl, v_g = [], [], [], [], [], []
-    meta = []      # (fix, kind, bearing index)
-    k = 0
+    items = []     # (fix, kind, bearing index, the fix's bearings)
     for i in look:
         sel = order[starts[i]:starts[i + 1]]
         if len(sel) == 2:
@@ -67,26 +65,13 @@ def one_bearing_hints(lat, lon, bearing, sd, g, counts, lines, status, method, r
                                              "turn it by 180°; otherwise take a third bearing")
             continue
         # each line turned, each line left out (with three bearings never named alone, but it may explain the
-        # fix as well as a turn), and the bearings as read
-        for kind, j in [("flip", j) for j in sel] + [("drop", j) for j in sel] + [("asis", -1)]:
-            keep = sel[sel != j] if kind == "drop" else sel
-            b = bearing[keep].copy()
-            if kind == "flip":
-                b[keep == j] = (b[keep == j] + 180.0) % 360.0
-            v_lat.append(lat[keep])
-            v_lon.append(lon[keep])
-            v_b.append(b)
-            v_sd.append(sd[keep])
-            v_fl.append(floor[keep])
-            v_g.append(np.full(len(keep), k))
-            meta.append((i, kind, j))
-            k += 1
-    if not meta:
+        # fix as well as a turn); the bearings as read are solved later, only where a turn is weighed against them
+        items += [(i, "flip", j, sel) for j in sel] + [(i, "drop", j, sel) for j in sel]
+    if not items:
         return out
-    vg = np.concatenate(v_g)
-    v_sd = np.concatenate(v_sd)
-    sol = estimators.solve(np.concatenate(v_lat), np.concatenate(v_lon), np.concatenate(v_b), vg, k,
-                           v_sd, method=method, robust_c=robust_c, sd_floor_deg=np.concatenate(v_fl))
+    meta = [(i, kind, j) for i, kind, j, _ in items]
+    k = len(items)
+    sol, vg, v_sd = _solve_variants(items, lat, lon, bearing, sd, floor, method, robust_c)
     S, p = consistency(sol, vg, k)
     with np.errstate(invalid="ignore"):
         agree = sol.converged & ~sol.behind & np.where(
@@ -94,11 +79,8 @@ def one_bearing_hints(lat, lon, bearing, sd, g, counts, lines, status, method, r
         misfit = np.where(sol.sd_known, S / np.maximum(sol.dof, 1), sol.sd_deg ** 2)
     deviance = _deviance(sol, vg, k, v_sd, np.array([kind == "drop" for _, kind, _ in meta]))
     by_fix: dict[int, list[tuple[float, str, int, int]]] = {}
-    as_read: dict[int, int] = {}
     for v, (i, kind, j) in enumerate(meta):
-        if kind == "asis":
-            as_read[int(i)] = v
-        elif agree[v]:
+        if agree[v]:
             by_fix.setdefault(int(i), []).append((float(misfit[v]), kind, int(j), v))
     vorder = np.argsort(vg, kind="stable")
     vstart = np.concatenate(([0], np.cumsum(np.bincount(vg, minlength=k))))
@@ -112,6 +94,7 @@ def one_bearing_hints(lat, lon, bearing, sd, g, counts, lines, status, method, r
             if np.all(np.abs(r_new) <= max(WILD_SD * float(sol.sd_deg[v]), 1e-9)) or len(flips) == 1:
                 best_flip[i] = (j, v)
     beside = _beside_an_observer(best_flip, lat, lon, bearing, sd, floor, order, starts, known_g)
+    as_read = _as_read(best_flip, lat, lon, bearing, sd, floor, order, starts, method, robust_c)
     for i in look:
         i = int(i)
         found = by_fix.get(i, [])
@@ -121,9 +104,8 @@ def one_bearing_hints(lat, lon, bearing, sd, g, counts, lines, status, method, r
                if robust else "check it, or use --method andrews, which drops such bearings")
         if i in best_flip:
             j, v = best_flip[i]
-            a = as_read[i]
             rivals = [(deviance[x[3]], "wild", x[3], x[2]) for x in drops if x[2] != j]
-            rivals += [(deviance[a], "as read", a, -1), (beside[i][0], "beside", -1, beside[i][1])]
+            rivals += [(as_read[i], "as read", -1, -1), (beside[i][0], "beside", -1, beside[i][1])]
             out.setdefault(i, []).append(_reversal_text(j, v, rivals, deviance, sol, lines, bearing, written))
         elif counts[i] >= 4 and drops:
             best = drops[0]
@@ -144,6 +126,41 @@ def one_bearing_hints(lat, lon, bearing, sd, g, counts, lines, status, method, r
             out.setdefault(i, []).append(
                 "with three bearings dfkit cannot tell which one is wild; take another bearing")
     return out
+
+
+def _solve_variants(items, lat, lon, bearing, sd, floor, method, robust_c):
+    """Solve the variants ``items`` (fix, kind, bearing index, the fix's bearings; kind "flip": that bearing
+    turned by 180 degrees, "drop": without it, "asis": as read) in one vectorised call: the solution, each
+    variant bearing's variant number and SD."""
+    v_lat, v_lon, v_b, v_sd, v_fl, v_g = [], [], [], [], [], []
+    for k, (_, kind, j, sel) in enumerate(items):
+        keep = sel[sel != j] if kind == "drop" else sel
+        b = bearing[keep].copy()
+        if kind == "flip":
+            b[keep == j] = (b[keep == j] + 180.0) % 360.0
+        v_lat.append(lat[keep])
+        v_lon.append(lon[keep])
+        v_b.append(b)
+        v_sd.append(sd[keep])
+        v_fl.append(floor[keep])
+        v_g.append(np.full(len(keep), k))
+    vg = np.concatenate(v_g)
+    v_sd = np.concatenate(v_sd)
+    sol = estimators.solve(np.concatenate(v_lat), np.concatenate(v_lon), np.concatenate(v_b), vg, len(items),
+                           v_sd, method=method, robust_c=robust_c, sd_floor_deg=np.concatenate(v_fl))
+    return sol, vg, v_sd
+
+
+def _as_read(fixes_, lat, lon, bearing, sd, floor, order, starts, method, robust_c):
+    """For each fix of ``fixes_``: -2 log likelihood (:func:`_deviance`) of its bearings as read, at their own
+    answer (each fix solved again, as read, on its own: the same answer as the fix's)."""
+    if not len(fixes_):
+        return {}
+    fixes = [int(i) for i in fixes_]
+    items = [(i, "asis", -1, order[starts[i]:starts[i + 1]]) for i in fixes]
+    sol, vg, v_sd = _solve_variants(items, lat, lon, bearing, sd, floor, method, robust_c)
+    dev = _deviance(sol, vg, len(items), v_sd, np.zeros(len(items), bool))
+    return {i: float(dev[t]) for t, i in enumerate(fixes)}
 
 
 def _deviance(sol, vg, k, sd_deg, wild):
