@@ -524,28 +524,16 @@ def likelihood_regions(fix_lat, fix_lon, g, station_lat, station_lon, bearing_de
         weight=np.nan_to_num(np.where(ok[g], weight, 0.0), copy=False))
 
 
-def _angle(y, x):
+def _angle(y, x, out=None):
     """arctan2(y, x) as arctan(y / x), turned by pi where x < 0: the same angle to an ulp or two, and about twice
     as fast (numpy's arctan is vectorised, its arctan2 not). NaN where x = y = 0 (arctan2 gives 0)."""
     with np.errstate(divide="ignore", invalid="ignore"):
-        r = np.divide(y, x)
+        r = np.divide(y, x, out=out)
         np.arctan(r, out=r)          # in place: one array, not two
     back = np.signbit(x)
     if back.any():
         r[back] += np.copysign(np.pi, y[back])
     return r
-
-
-def _row_sum(v, r):
-    """(v r r).sum(0), i.e. ((v * r) * r).sum(0), for arrays of two or more dimensions without the whole products:
-    row by row, added in the order numpy's sum over the first axis adds the rows (the same bits)."""
-    out = v[0] * r[0]
-    out *= r[0]
-    for k in range(1, r.shape[0]):
-        t = v[k] * r[k]
-        t *= r[k]
-        out += t
-    return out
 
 
 def _residual(sp, cp, dx, dy):
@@ -652,87 +640,136 @@ class _Rays:
     direction, the point's offset from the station is d = a + rho u and the bearing's residual is
     atan2(A + rho B, C + rho D) with A = a x phi, C = a . phi, B = sin(phi - psi), D = cos(phi - psi) (phi taken
     as the unit vector (sin phi, cos phi)); its derivative in rho is E / |d|^2 with E = a_x u_y - a_y u_x, the
-    same all along the ray. A and C are held (n, M), B and D (n, M K): a sum over the bearings adds rows. E is
-    formed bearing by bearing where it is used (:meth:`f`), not held.
+    same all along the ray. A, C, the weights v and a = (a_x, a_y) are held (n, M), stacked in one array, B and D
+    (n, M K), stacked too, so that the rays still searched take their parts in two gathers: a sum over the
+    bearings adds rows. E is formed where it is used (:meth:`f`), not held.
     """
 
     def __init__(self, trig, sx, sy, v, cx, cy, T, psi):
         sp, cp = (np.ascontiguousarray(t.T) for t in trig)
-        ax = cx[None, :] - sx.T
-        ay = cy[None, :] - sy.T
         su, cu = np.sin(psi), np.cos(psi)
-        self.n, self.M, self.K = sp.shape[0], sp.shape[1], len(psi)
-        flat = (self.n, self.M * self.K)
-        self.A, self.C = sp * ay - cp * ax, sp * ax + cp * ay
-        self.ax, self.ay = ax, ay
-        self.B = (sp[:, :, None] * cu - cp[:, :, None] * su).reshape(flat)
-        self.D = (sp[:, :, None] * su + cp[:, :, None] * cu).reshape(flat)
+        self.n, self.M, self.K = n, M, K = sp.shape[0], sp.shape[1], len(psi)
+        # each array is formed in its place in the stacks, by the same operations as on its own
+        self._fix = np.empty((5, n, M))
+        self.A, self.C, self.v, self.ax, self.ay = self._fix
+        np.subtract(cx[None, :], sx.T, out=self.ax)
+        np.subtract(cy[None, :], sy.T, out=self.ay)
+        np.multiply(sp, self.ay, out=self.A)
+        self.A -= cp * self.ax
+        np.multiply(sp, self.ax, out=self.C)
+        self.C += cp * self.ay
+        self.v[...] = v.T
+        self._ray = np.empty((2, n, M * K))
+        self.B, self.D = self._ray
+        B, D = (a.reshape(n, M, K) for a in self._ray)
+        for k in range(n):                  # bearing by bearing: (M, K) temporaries, not (n, M, K)
+            np.multiply(sp[k, :, None], cu, out=B[k])
+            B[k] -= cp[k, :, None] * su
+            np.multiply(sp[k, :, None], su, out=D[k])
+            D[k] += cp[k, :, None] * cu
         self.su, self.cu = su, cu
-        self.v = np.ascontiguousarray(v.T)
         self.T = T
         self.unweighted = np.where(self.v > 0, 0.0, np.inf) if (self.v <= 0).any() else None
 
-    def _parts_of(self, a, i):
-        """A per-fix (n, M) array shaped like :meth:`_parts`' A."""
-        return a[:, :, None] if i is None else a[:, i // self.K]
-
     def _parts(self, i):
-        """(A, C, v, T) of the rays' fixes and (B, D) of the rays, shaped to broadcast to (n, rays) or,
-        for every ray (``i`` None), to (n, M, K)."""
+        """(A, C, v, a_x, a_y) of the rays' fixes, (B, D) of the rays, T of their fixes and (u_y, u_x) of the rays,
+        shaped to broadcast to (n, rays) or, for every ray (``i`` None), to (n, M, K)."""
         if i is None:
             n, M, K = self.n, self.M, self.K
-            return (self.A[:, :, None], self.C[:, :, None], self.v[:, :, None], self.T[:, None],
-                    *(a.reshape(n, M, K) for a in (self.B, self.D)))
-        j = i // self.K
-        return self.A[:, j], self.C[:, j], self.v[:, j], self.T[j], self.B[:, i], self.D[:, i]
-
-    def _e_parts(self, i):
-        """(a_x, a_y) of the rays' fixes and (u_y, u_x) of the rays, so that bearing k's E is
-        ``ax[k] * uy - ay[k] * ux``, shaped (rays,) or, for every ray (``i`` None), (M, K)."""
-        if i is None:
-            return self.ax[:, :, None], self.ay[:, :, None], self.cu, self.su
+            return (*(a[:, :, None] for a in self._fix), *(a.reshape(n, M, K) for a in self._ray),
+                    self.T[:, None], self.cu, self.su)
         j, k = np.divmod(i, self.K)
-        return self.ax[:, j], self.ay[:, j], self.cu[k], self.su[k]
+        return (*np.take(self._fix, j, axis=2), *np.take(self._ray, i, axis=2), self.T[j], self.cu[k], self.su[k])
 
-    def _offsets(self, rho, i):
-        """(cross, dot) = |d| (sin r, cos r) of every bearing at radius ``rho``, the parts of the rays, their
-        weights and bounds, shaped (n, rays) or (n, M, K)."""
-        A, C, v, T, B, D = self._parts(i)
+    def f(self, rho, i=None, slope=True):
+        """f = S - T and its derivative in rho at radius ``rho`` on rays ``i`` (flat indices; None: all), and the
+        largest move along each ray within which no residual can wrap past pi (where S may jump); f alone when
+        not ``slope``."""
+        if i is None and slope:
+            out = self._f_whole(rho)
+            if out is not None:
+                return out
+        return self._f_rows(rho, i, slope)
+
+    def _f_whole(self, rho):
+        """:meth:`f` on every ray, one bearing at a time: the same operations on each element as
+        :meth:`_f_rows` (the same bits), on (fixes, rays) arrays reused from bearing to bearing instead of whole
+        (bearings, fixes, rays) ones. None where a point lies on a station (then :meth:`_f_rows` redoes it)."""
+        n, M, K = self.n, self.M, self.K
+        rho = rho.reshape(M, K)
+        B, D = (a.reshape(n, M, K) for a in self._ray)
+        cross, dot, r, vr, t = (np.empty((M, K)) for _ in range(5))
+        f = slope = safe = None
+        for k in range(n):
+            A, C, v = self.A[k][:, None], self.C[k][:, None], self.v[k][:, None]
+            np.multiply(B[k], rho, out=cross)
+            cross += A
+            np.multiply(D[k], rho, out=dot)
+            dot += C
+            _angle(cross, dot, out=r)
+            np.multiply(v, r, out=vr)
+            if f is None:
+                f = vr * r
+            else:
+                np.multiply(vr, r, out=t)
+                f += t
+            cross *= cross
+            dot *= dot
+            cross += dot
+            np.maximum(cross, 1e-18, out=cross)          # |d|^2
+            np.multiply(self.ax[k][:, None], self.cu, out=t)
+            t -= self.ay[k][:, None] * self.su           # E of bearing k
+            t /= cross
+            t *= vr
+            if slope is None:
+                slope = t.copy()
+            else:
+                slope += t
+            room = np.abs(r, out=dot)
+            np.subtract(np.pi, room, out=room)
+            s = np.sqrt(cross, out=cross)
+            s *= room
+            room += 1.0
+            s /= room
+            if self.unweighted is not None:
+                s += self.unweighted[k][:, None]
+            if safe is None:
+                safe = s.copy()
+            else:
+                np.minimum(safe, s, out=safe)
+        if np.isnan(f).any():     # a point on a station
+            return None
+        f -= self.T[:, None]
+        slope *= 2.0
+        return f.ravel(), slope.ravel(), safe.ravel()
+
+    def _f_rows(self, rho, i=None, slope=True):
+        """:meth:`f` as (bearings, rays) arrays."""
+        # The sums over the bearings (f, and the slope 2 sum v r E / |d|^2) add the rows in order, as numpy's
+        # sum(0) adds them (the same bits); the move's bound reuses the buffers of dot and r.
+        A, C, v, ax, ay, B, D, T, uy, ux = self._parts(i)
         rho = rho if i is not None else rho.reshape(self.M, self.K)
         cross = B * rho
         cross += A
         dot = D * rho
         dot += C
-        return cross, dot, v, T
-
-    def f(self, rho, i=None):
-        """f = S - T and its derivative in rho at radius ``rho`` on rays ``i`` (flat indices; None: all), and the
-        largest move along each ray within which no residual can wrap past pi (where S may jump)."""
-        # Three arrays of (bearings, rays) at a time: the sums over the bearings (f, and the slope
-        # 2 sum v r E / |d|^2) are formed bearing by bearing, added in the order numpy's sum(0) adds the rows (the
-        # same bits), and the move's bound reuses the buffers of dot and r.
-        cross, dot, v, T = self._offsets(rho, i)
         r = _angle(cross, dot)
-        f = _row_sum(v, r)
+        vr, f = _weighted_sum(v, r)
         if np.isnan(f).any():     # a point on a station
             r = np.arctan2(cross, dot)
-            f = _row_sum(v, r)
+            vr, f = _weighted_sum(v, r)
         f -= T
+        if not slope:
+            return f.ravel()
         cross *= cross
         dot *= dot
         cross += dot
         np.maximum(cross, 1e-18, out=cross)
-        ax, ay, uy, ux = self._e_parts(i)
-        slope = None
-        for k in range(r.shape[0]):
-            t = ax[k] * uy
-            t -= ay[k] * ux           # E of bearing k
-            t /= cross[k]
-            t *= v[k] * r[k]
-            if slope is None:
-                slope = t
-            else:
-                slope += t
+        e = ax * uy
+        e -= ay * ux               # E of each bearing
+        e /= cross
+        e *= vr
+        slope = _rows_added(e)
         # how far the point may move before a residual can wrap past pi: a move of s turns the direction from a
         # station at distance |d| by at most s / (|d| - s)
         room = np.abs(r, out=dot)
@@ -742,40 +779,111 @@ class _Rays:
         room += 1.0
         safe /= room
         if self.unweighted is not None:          # bearings left out never limit the move
-            safe += self._parts_of(self.unweighted, i)
+            safe += self.unweighted[:, :, None] if i is None else self.unweighted[:, i // self.K]
         safe = safe.min(axis=0)
         return f.ravel(), 2.0 * slope.ravel(), safe.ravel()
 
     def above(self, rho):
         """Whether S > T at radius ``rho`` on every ray, shown without arctan: r^2 >= sin^2 r =
-        cross^2 / (cross^2 + dot^2), so S >= sum v cross^2 / |d|^2; False where that bound does not show it."""
-        cross, dot, v, T = self._offsets(rho, None)
-        cross *= cross
-        dot *= dot
-        dot += cross
-        np.divide(cross, dot, out=cross)
-        cross *= v
-        return (cross.sum(0) > T).ravel()
+        cross^2 / (cross^2 + dot^2), so S >= sum v cross^2 / |d|^2; False where that bound does not show it.
+        Bearing by bearing, the rows added in order (as numpy's sum(0) adds them)."""
+        n, M, K = self.n, self.M, self.K
+        rho = rho.reshape(M, K)
+        B, D = (a.reshape(n, M, K) for a in self._ray)
+        cross, dot = np.empty((M, K)), np.empty((M, K))
+        bound = None
+        for k in range(n):
+            np.multiply(B[k], rho, out=cross)
+            cross += self.A[k][:, None]
+            np.multiply(D[k], rho, out=dot)
+            dot += self.C[k][:, None]
+            cross *= cross
+            dot *= dot
+            dot += cross
+            np.divide(cross, dot, out=cross)
+            cross *= self.v[k][:, None]
+            if bound is None:
+                bound = cross.copy()
+            else:
+                bound += cross
+        return (bound > self.T[:, None]).ravel()
+
+
+def _weighted_sum(v, r):
+    """v r and the sum over the rows (the first axis) of v r r, ((v r) r) added row by row in order."""
+    vr = v * r
+    t = vr * r
+    return vr, _rows_added(t)
+
+
+def _rows_added(t):
+    """t[0] + t[1] + ... in that order (a new array)."""
+    out = t[0].copy()
+    for k in range(1, t.shape[0]):
+        out += t[k]
+    return out
 
 
 def _model_roots(r, f, df, gap, curv):
     """Where two models of S - S_min along a ray reach ``gap``, as radii: both are flat at the centre (S's minimum)
     and have S - T = f and slope df at radius r; the cubic c2 rho^2 + c3 rho^3, and the quartic that also has
     S's curvature at the centre, ``curv`` rho^2 + c3 rho^3 + c4 rho^4 (NaN where that is not known). Each root
-    by Newton's method: a step on f, two on the cubic, two on the quartic from the cubic's root."""
+    by Newton's method: a step on f, two on the cubic, two on the quartic from the cubic's root. Also whether the
+    slope is near a quadratic's, |df r - 2 (f + gap)| <= (f + gap) / 4 (a condition of settling at the quartic's
+    root, formed here from the models' own f + gap and df r)."""
+    # The steps are written in place and the models' constant multiples (2 c2, 3 c3, ...) formed once: the same
+    # operations, in the same order, as ((c2 + c3 x) x x - gap) / ((2 c2 + 3 c3 x) x) and its quartic alike.
     with np.errstate(divide="ignore", invalid="ignore", over="ignore"):
         g = f + gap
         s = df * r
-        c2, c3 = 3.0 * g - s, s - 2.0 * g
-        x = 1.0 - f / s
+        quadratic = np.abs(s - 2.0 * g) <= 0.25 * g
+        g3 = 3.0 * g
+        c2 = g3 - s
+        c3 = s - 2.0 * g
+        c2_2, c3_3 = 2.0 * c2, 3.0 * c3
+        x = f / s
+        np.subtract(1.0, x, out=x)
         for _ in range(2):
-            x -= ((c2 + c3 * x) * x * x - gap) / ((2.0 * c2 + 3.0 * c3 * x) * x)
-        q2 = curv * r * r
-        q3, q4 = 4.0 * g - 2.0 * q2 - s, q2 + s - 3.0 * g
-        y = x.copy()
+            num = c3 * x
+            num += c2
+            num *= x
+            num *= x
+            num -= gap
+            den = c3_3 * x
+            den += c2_2
+            den *= x
+            num /= den
+            x -= num
+        del c2, c3, c2_2, c3_3
+        q2 = curv * r
+        q2 *= r
+        q2_2 = 2.0 * q2
+        q3 = 4.0 * g
+        q3 -= q2_2
+        q3 -= s
+        q4 = q2 + s
+        q4 -= g3
+        del g, s, g3
+        q3_3, q4_4 = 3.0 * q3, 4.0 * q4
+        y = x
         for _ in range(2):
-            y -= (((q4 * y + q3) * y + q2) * y * y - gap) / (((4.0 * q4 * y + 3.0 * q3) * y + 2.0 * q2) * y)
-    return r * x, r * y
+            num = q4 * y
+            num += q3
+            num *= y
+            num += q2
+            num *= y
+            num *= y
+            num -= gap
+            den = q4_4 * y
+            den += q3_3
+            den *= y
+            den += q2_2
+            den *= y
+            num /= den
+            y = y - num if y is x else np.subtract(y, num, out=y)
+    x *= r
+    y *= r
+    return x, y, quadratic
 
 
 def _taylor(A, C, ax, ay, v, psi, order, lowest=2):
@@ -868,28 +976,35 @@ def _edges(rays, rho, R, gap, curv):
     f_at = np.zeros_like(rho)
     width = np.full_like(rho, np.inf)
     live = np.arange(len(rho))
-    for _ in range(60):
+    for step_no in range(60):
         if not len(live):
             break
         at = slice(None) if len(live) == len(rho) else live
-        r, lo_l, hi_l, R_l, gap_l = rho[at], lo[at], hi[at], R[at], gap[at]
+        r, R_l, gap_l = rho[at], R[at], gap[at]
         if len(live) >= WHOLE_BATCH * len(rho):
             f, df, safe = (a[at] for a in rays.f(rho))
         else:
             f, df, safe = rays.f(r, live)
         neg = f < 0
-        lo_l = np.where(neg, np.maximum(lo_l, r), lo_l)
-        hi_l = np.where(neg, hi_l, np.minimum(hi_l, r))
+        if step_no == 0:
+            # every bracket is still [0, inf) and the first guesses are finite and positive: max(0, r) is r, so
+            # lo is r where S < T and 0 elsewhere (r times neg), hi is r where S >= T and inf elsewhere (r / ~neg),
+            # the same arrays as the np.where of the later steps, at a fraction of their cost
+            with np.errstate(divide="ignore"):
+                lo_l = r * neg
+                hi_l = r / ~neg
+        else:
+            lo_l, hi_l = lo[at], hi[at]
+            lo_l = np.where(neg, np.maximum(lo_l, r), lo_l)
+            hi_l = np.where(neg, hi_l, np.minimum(hi_l, r))
         top = np.minimum(hi_l, R_l)
-        cubic, quartic = _model_roots(r, f, df, gap_l, curv[at])
-        with np.errstate(divide="ignore", invalid="ignore"):
-            newton = r - f / df
+        cubic, quartic, quadratic = _model_roots(r, f, df, gap_l, curv[at])
         cubic_in = (cubic > lo_l) & (cubic < top)          # False for NaN
         quartic_in = (quartic > lo_l) & (quartic < top)
         af = np.abs(f)
-        by_quartic = (quartic_in & (np.abs(quartic - cubic) <= 1e-4 * quartic) & (af <= 0.15 * gap_l)
-                      & (np.abs(df * r - 2.0 * (f + gap_l)) <= 0.25 * (f + gap_l)))
-        by_cubic = cubic_in & (af <= NEAR_QUADRATIC * gap_l) & (np.abs(cubic - r) <= 1e-2 * r)
+        by_quartic = quartic_in & (np.abs(quartic - cubic) <= 1e-4 * quartic) & (af <= 0.15 * gap_l) & quadratic
+        dc = np.abs(cubic - r)
+        by_cubic = cubic_in & (af <= NEAR_QUADRATIC * gap_l) & (dc <= 1e-2 * r)
         by_quartic &= np.abs(quartic - r) < safe
         # the models' error grows with the radius over the nearest station's distance (S's higher terms) and with
         # how far they extrapolate (|f| / gap); this bound keeps it under about 1e-4 of the radius on the
@@ -897,33 +1012,44 @@ def _edges(rays, rho, R, gap, curv):
         near = (af + MODEL_REACH_PAD * gap_l) * r <= MODEL_REACH * gap_l * safe
         by_quartic &= near
         by_cubic &= near
-        by_cubic &= np.abs(cubic - r) < safe
+        by_cubic &= dc < safe
         settle = by_quartic | by_cubic
-        newton_in = (newton > lo_l) & (newton < top)
-        close = (af <= 1e-3 * gap_l) & (af <= 5e-4 * df * r)      # Newton's step within 5e-4 of the radius
-        done = settle | close | (hi_l - lo_l <= 1e-5 * r) | (neg & (r >= R_l))
+        new_rho = np.where(by_quartic, quartic, r)
+        by_cubic = np.flatnonzero(by_cubic > by_quartic)          # settled by the cubic alone
+        new_rho[by_cubic] = cubic[by_cubic]
+        f_at[at] = np.where(settle, 0.0, f)
+        # the rest (about 5 % of the rays on the first step): the Newton rule, the bracket's width, the drawing range,
+        # and the next step, computed for those rays only
+        rest = np.flatnonzero(~settle)
+        r_s, f_s, df_s, af_s, gap_s = r[rest], f[rest], df[rest], af[rest], gap_l[rest]
+        lo_s, hi_s, top_s, R_s = lo_l[rest], hi_l[rest], top[rest], R_l[rest]
+        with np.errstate(divide="ignore", invalid="ignore"):
+            newton = r_s - f_s / df_s
+        newton_in = (newton > lo_s) & (newton < top_s)
+        close = (af_s <= 1e-3 * gap_s) & (af_s <= 5e-4 * df_s * r_s)      # Newton's step within 5e-4 of the radius
+        done = close | (hi_s - lo_s <= 1e-5 * r_s) | (neg[rest] & (r_s >= R_s))
         # a ray done by the Newton rule takes that last step: its error is then about the square of the step's
-        new_rho = np.where(by_quartic, quartic,
-                           np.where(by_cubic, cubic, np.where(close & newton_in, newton, r)))
-        go = np.flatnonzero(~done)                      # the next step only for the rays still searched
-        lo_g, hi_g, rg = lo_l[go], hi_l[go], live[go]
+        last = close & newton_in
+        new_rho[rest[last]] = newton[last]
+        keep = np.flatnonzero(~done)                    # the next step only for the rays still searched
+        go = rest[keep]
+        lo_g, hi_g, rg = lo_s[keep], hi_s[keep], live[go]
         # a bracket (lo > 0, hi finite) that has not halved since the last one is bisected
         w = np.where((lo_g > 0) & np.isfinite(hi_g), hi_g - lo_g, np.inf)
         slow = np.isfinite(w) & (w > 0.5 * width[rg])
         width[rg] = w
-        plain = np.where(np.isfinite(hi_g), 0.5 * (lo_g + hi_g), np.minimum(2.0 * r[go], R_l[go]))
-        step = np.where(newton_in[go], newton[go], plain)
+        plain = np.where(np.isfinite(hi_g), 0.5 * (lo_g + hi_g), np.minimum(2.0 * r_s[keep], R_s[keep]))
+        step = np.where(newton_in[keep], newton[keep], plain)
         step = np.where(cubic_in[go], cubic[go], step)
         step = np.where(quartic_in[go], quartic[go], step)
         new_rho[go] = np.where(slow, plain, step)
         rho[at] = new_rho
-        f_at[at] = np.where(settle, 0.0, f)
-        lo[at], hi[at] = lo_l, hi_l
-        live = live[~done]
+        lo[rg], hi[rg] = lo_g, hi_g            # the brackets are read again on the rays still searched only
+        live = rg
         # this step's arrays go before the next evaluation of S (else they would be held through it)
-        del r, lo_l, hi_l, R_l, gap_l, f, df, safe, neg, top, cubic, quartic, newton, cubic_in, quartic_in, af
-        del by_quartic, by_cubic, near, settle, newton_in, close, done, new_rho
-        del go, lo_g, hi_g, rg, w, slow, plain, step
+        del r, R_l, gap_l, f, df, safe, neg, lo_l, hi_l, top, cubic, quartic, quadratic, cubic_in, quartic_in, af
+        del by_quartic, dc, by_cubic, near, settle, new_rho, rest, r_s, f_s, df_s, af_s, gap_s, lo_s, hi_s, top_s
+        del R_s, newton, newton_in, close, done, last, keep, go, lo_g, hi_g, rg, w, slow, plain, step
     return rho, f_at
 
 
@@ -937,7 +1063,7 @@ def _star_check(rays, trig, sx, sy, v, cx, cy, T, rho, open_ray, R, ux, uy):
     doubt = np.flatnonzero(~open_ray.ravel() & (probe > rho.ravel() * 1.0001) & ~rays.above(probe))
     if not len(doubt):
         return star
-    fp = rays.f(probe[doubt], doubt)[0]
+    fp = rays.f(probe[doubt], doubt, slope=False)
     back = np.zeros(M * K, bool)
     back[doubt] = fp < 0
     back = back.reshape(M, K)
