@@ -1012,30 +1012,33 @@ def _edges(rays, rho, R, gap, curv):
             hi_l = np.where(neg, hi_l, np.minimum(hi_l, r))
         top = np.minimum(hi_l, R_l)
         cubic, quartic, quadratic = _model_roots(r, f, df, gap_l, curv[at])
-        cubic_in = (cubic > lo_l) & (cubic < top)          # False for NaN
-        quartic_in = (quartic > lo_l) & (quartic < top)
+        quartic_in = (quartic > lo_l) & (quartic < top)          # False for NaN
         af = np.abs(f)
-        by_quartic = quartic_in & (np.abs(quartic - cubic) <= 1e-4 * quartic) & (af <= 0.15 * gap_l) & quadratic
-        dc = np.abs(cubic - r)
-        by_cubic = cubic_in & (af <= NEAR_QUADRATIC * gap_l) & (dc <= 1e-2 * r)
-        by_quartic &= np.abs(quartic - r) < safe
         # the models' error grows with the radius over the nearest station's distance (S's higher terms) and with
         # how far they extrapolate (|f| / gap); this bound keeps it under about 1e-4 of the radius on the
         # benchmark's 3.2 million rays (under 2.5e-4 up to 1.5 times the bound), SD given or estimated
         near = (af + MODEL_REACH_PAD * gap_l) * r <= MODEL_REACH * gap_l * safe
+        by_quartic = quartic_in & (np.abs(quartic - cubic) <= 1e-4 * quartic) & (af <= 0.15 * gap_l) & quadratic
+        by_quartic &= np.abs(quartic - r) < safe
         by_quartic &= near
-        by_cubic &= near
-        by_cubic &= dc < safe
-        settle = by_quartic | by_cubic
         new_rho = np.where(by_quartic, quartic, r)
-        by_cubic = np.flatnonzero(by_cubic > by_quartic)          # settled by the cubic alone
-        new_rho[by_cubic] = cubic[by_cubic]
-        f_at[at] = np.where(settle, 0.0, f)
-        # the rest (about 5 % of the rays on the first step): the Newton rule, the bracket's width, the drawing range,
-        # and the next step, computed for those rays only
-        rest = np.flatnonzero(~settle)
-        r_s, f_s, df_s, af_s, gap_s = r[rest], f[rest], df[rest], af[rest], gap_l[rest]
-        lo_s, hi_s, top_s, R_s = lo_l[rest], hi_l[rest], top[rest], R_l[rest]
+        f_l = np.where(by_quartic, 0.0, f)
+        # the rays the quartic does not settle (about 5 % on the first step): the cubic's test, then for those it
+        # does not settle either, the Newton rule, the bracket's width, the drawing range and the next step
+        other = np.flatnonzero(~by_quartic)
+        r_o, c_o, af_o, gap_o, lo_o, top_o = r[other], cubic[other], af[other], gap_l[other], lo_l[other], top[other]
+        cubic_in = (c_o > lo_o) & (c_o < top_o)
+        dc = np.abs(c_o - r_o)
+        by_cubic = cubic_in & (af_o <= NEAR_QUADRATIC * gap_o) & (dc <= 1e-2 * r_o) & near[other] & (dc < safe[other])
+        settled = other[by_cubic]
+        new_rho[settled] = c_o[by_cubic]
+        f_l[settled] = 0.0
+        f_at[at] = f_l
+        kept = ~by_cubic
+        rest = other[kept]
+        r_s, f_s, df_s, af_s, gap_s = r_o[kept], f[rest], df[rest], af_o[kept], gap_o[kept]
+        lo_s, hi_s, top_s, R_s = lo_o[kept], hi_l[rest], top_o[kept], R_l[rest]
+        cubic_in, c_o = cubic_in[kept], c_o[kept]
         with np.errstate(divide="ignore", invalid="ignore"):
             newton = r_s - f_s / df_s
         newton_in = (newton > lo_s) & (newton < top_s)
@@ -1053,7 +1056,7 @@ def _edges(rays, rho, R, gap, curv):
         width[rg] = w
         plain = np.where(np.isfinite(hi_g), 0.5 * (lo_g + hi_g), np.minimum(2.0 * r_s[keep], R_s[keep]))
         step = np.where(newton_in[keep], newton[keep], plain)
-        step = np.where(cubic_in[go], cubic[go], step)
+        step = np.where(cubic_in[keep], c_o[keep], step)
         step = np.where(quartic_in[go], quartic[go], step)
         new_rho[go] = np.where(slow, plain, step)
         rho[at] = new_rho
@@ -1061,7 +1064,8 @@ def _edges(rays, rho, R, gap, curv):
         live = rg
         # this step's arrays go before the next evaluation of S (else they would be held through it)
         del r, R_l, gap_l, f, df, safe, neg, lo_l, hi_l, top, cubic, quartic, quadratic, cubic_in, quartic_in, af
-        del by_quartic, dc, by_cubic, near, settle, new_rho, rest, r_s, f_s, df_s, af_s, gap_s, lo_s, hi_s, top_s
+        del near, by_quartic, new_rho, f_l, other, r_o, c_o, af_o, gap_o, lo_o, top_o, dc, by_cubic, settled, kept
+        del rest, r_s, f_s, df_s, af_s, gap_s, lo_s, hi_s, top_s
         del R_s, newton, newton_in, close, done, last, keep, go, lo_g, hi_g, rg, w, slow, plain, step
     return rho, f_at
 
