@@ -1135,20 +1135,26 @@ def _march(sx, sy, phi, v, known, dof, kdof, floor, level, psi, draw, fix_lat, f
     ux, uy = np.sin(psi)[None, :], np.cos(psi)[None, :]
     # First guess: S's quadratic model about its minimum, with the full Hessian where it is positive definite,
     # then the root of S's Taylor polynomial along the ray where that is positive definite.
-    q = np.where(_positive(H)[:, None], H, J)
+    pos = _positive(H)[:, None]
+    q = np.where(pos, H, J)
     quad = q[:, :1] * ux * ux + 2 * q[:, 1:2] * ux * uy + q[:, 2:] * uy * uy
     with np.errstate(divide="ignore", invalid="ignore"):
         rho = np.sqrt((T - s_min)[:, None] / quad)
     R = draw[:, None] * np.ones((1, K))
-    plain = np.isfinite(rho) & (rho > 0) & (rho < 0.5 * R)
-    rho = np.where(np.isfinite(rho) & (rho > 0), np.minimum(rho, 0.5 * R), 0.5 * R)
-    curv = np.where(_positive(H)[:, None], quad, np.nan)
+    half = 0.5 * draw[:, None]          # 0.5 R, per fix (the same values, broadcast along the rays)
+    fine = np.isfinite(rho) & (rho > 0)
+    plain = fine & (rho < half)
+    rho = np.where(fine, np.minimum(rho, half), half)
+    curv = np.where(pos, quad, np.nan)
     rays = _Rays(trig, sx, sy, v, cx, cy, T, psi)
-    rho = _series_guess(rays, psi, T - s_min, rho, plain & _positive(H)[:, None])
+    plain &= pos
+    rho = _series_guess(rays, psi, T - s_min, rho, plain)
+    del q, quad, fine, plain
     rho, f = _edges(rays, rho.ravel(), R.ravel(), np.repeat(T - s_min, K), curv.ravel())
     rho, f = rho.reshape(M, K), f.reshape(M, K)
-    open_ray = (f < 0) & (rho >= R * (1 - 1e-9))
-    rho = np.where(open_ray, R, rho)
+    open_ray = (f < 0) & (rho >= draw[:, None] * (1 - 1e-9))
+    if open_ray.any():
+        rho[open_ray] = R[open_ray]
     star = _star_check(rays, trig, sx, sy, v, cx, cy, T, rho, open_ray, R, ux, uy)
     s_inf = _s_at_infinity(rays, trig, phi, v, psi, T)
     bounded = ~open_ray.any(axis=1) & (s_inf >= T)
