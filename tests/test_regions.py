@@ -415,3 +415,34 @@ def test_the_bound_without_arctan_never_claims_a_point_outside_that_is_inside():
     above = rays.above(rho)
     assert above.any() and not above.all()
     assert (s[above] > np.repeat(T, K)[above]).all()
+
+
+def test_rays_searched_on_in_a_pool_end_where_one_search_to_the_end_would(monkeypatch):
+    # Rays not settled after POOL_AFTER steps are set aside and searched on with other batches' (each ray's steps
+    # are its own): the regions must be bit for bit those of searching every batch to the end, whatever the batches.
+    rng = np.random.default_rng(21)
+    m, n = 400, 4
+    lat0, lon0 = rng.uniform(46.0, 49.0, m), rng.uniform(9.0, 17.0, m)
+    st = []
+    for la, lo in zip(lat0, lon0):
+        az = rng.uniform(0, 360) + np.arange(n) * 90.0 + rng.normal(0, 25, n)
+        st.append([(WGS.Direct(la, lo, a, d)["lat2"], WGS.Direct(la, lo, a, d)["lon2"])
+                   for a, d in zip(az, rng.uniform(300, 2500, n))])
+    st = np.asarray(st)
+    b = np.array([[WGS.Inverse(*s, la, lo)["azi1"] for s in row] for row, la, lo in zip(st, lat0, lon0)])
+    b = (b + rng.normal(0, 5, b.shape)) % 360
+    g = np.repeat(np.arange(m), n)
+    sol = estimators.solve(st[:, :, 0].ravel(), st[:, :, 1].ravel(), b.ravel(), g, m, np.full(m * n, 5.0))
+
+    def run(chunk):
+        return regions.likelihood_regions(sol.lat, sol.lon, g, st[:, :, 0].ravel(), st[:, :, 1].ravel(), b.ravel(),
+                                          sol.range_m, sol.azimuth_from_fix_deg, sol.residual_deg, sol.region_weight,
+                                          sol.sd_known, sol.dof, 0.95, valid=sol.converged, chunk=chunk)
+
+    pooled = [run(chunk) for chunk in (60, 1000)]
+    monkeypatch.setattr(regions, "POOL_AFTER", 60)         # never set aside: one search to the end per batch
+    whole = run(1000)
+    assert whole.has_region.sum() > 0.9 * m
+    for L in pooled:
+        for name in ("radius_m", "centre_x", "centre_y", "bounded", "star_shaped", "area_m2", "reach_m"):
+            assert np.array_equal(getattr(L, name), getattr(whole, name), equal_nan=True), name
