@@ -624,8 +624,11 @@ def _minimum(trig, sx, sy, v, iterations=20):
     for _ in range(iterations):
         if not len(live):
             break
-        hl = H[live]
-        step = np.where(_positive(hl)[:, None], _solve2(hl, b[live]), _solve2(J[live], b[live]))
+        hl, bl = H[live], b[live]
+        step = _solve2(hl, bl)
+        gauss = np.flatnonzero(~_positive(hl))          # Gauss-Newton's matrix only where the Hessian is not positive
+        if len(gauss):
+            step[gauss] = _solve2(J[live[gauss]], bl[gauss])
         far = np.hypot(step[:, 0], step[:, 1]) > 1e-6      # a step shorter than that would change nothing
         live, step = live[far], step[far]
         if not len(live):
