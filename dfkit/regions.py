@@ -495,25 +495,31 @@ def likelihood_regions(fix_lat, fix_lon, g, station_lat, station_lon, bearing_de
                 args, kw = _batch(b, fm, idx_m, sx_m, sy_m, phi_m, v_m, trig_m, low_m, known, dof, kdof, floor,
                                   float(level), psi, draw, fix_lat, fix_lon, slat_all, slon_all, bearing_all, spread)
                 res = _march(*args, **kw, pending=pending)
+                del args, kw                        # views of the minimum batch's arrays: not held past it
                 for key, val in res.items():
                     out[key][fm[b]] = val
                 out["draw_range_m"][fm[b]] = draw[fm[b]]
+                del res
                 if len(pending) > before:           # rows of this batch, counted within the minimum batch
                     pending[-1] = (pending[-1][0] + k0, *pending[-1][1:])
-            if pending:
-                # the rays still searched after POOL_AFTER steps, all batches' together (their fixes' regions are
-                # made again from the search's end)
-                rows = np.concatenate([p[0] for p in pending])
-                first = np.cumsum([0] + [len(p[0]) * len(psi) for p in pending[:-1]])
-                resume = (np.concatenate([p[1] for p in pending]), np.concatenate([p[2] for p in pending]),
-                          np.concatenate([p[3] + o for p, o in zip(pending, first)]),
-                          *(np.concatenate([p[j] for p in pending]) for j in (4, 5, 6)))
-                del pending
-                args, kw = _batch(rows, fm, idx_m, sx_m, sy_m, phi_m, v_m, trig_m, low_m, known, dof, kdof, floor,
-                                  float(level), psi, draw, fix_lat, fix_lon, slat_all, slon_all, bearing_all, spread)
-                res = _march(*args, **kw, resume=resume)
-                for key, val in res.items():
-                    out[key][fm[rows]] = val
+                last = k0 + step >= len(fm)
+                if pending and (last or sum(len(p[0]) for p in pending) >= step // 2):
+                    # the rays still searched after POOL_AFTER steps, several batches' together (their fixes'
+                    # regions are made again from the search's end)
+                    rows = np.concatenate([p[0] for p in pending])
+                    first = np.cumsum([0] + [len(p[0]) * len(psi) for p in pending[:-1]])
+                    resume = (np.concatenate([p[1] for p in pending]), np.concatenate([p[2] for p in pending]),
+                              np.concatenate([p[3] + o for p, o in zip(pending, first)]),
+                              *(np.concatenate([p[j] for p in pending]) for j in (4, 5, 6)))
+                    pending.clear()
+                    args, kw = _batch(rows, fm, idx_m, sx_m, sy_m, phi_m, v_m, trig_m, low_m, known, dof, kdof,
+                                      floor, float(level), psi, draw, fix_lat, fix_lon, slat_all, slon_all,
+                                      bearing_all, spread)
+                    res = _march(*args, **kw, resume=resume)
+                    del args, kw, resume
+                    for key, val in res.items():
+                        out[key][fm[rows]] = val
+                    del rows, res
     rad = out["radius_m"]
     with np.errstate(invalid="ignore"):
         area = np.empty(m)
@@ -1060,6 +1066,9 @@ def _edges(rays, rho, R, gap, curv, start=0, stop=60, state=None):
         new_rho[settled] = c_o[by_cubic]
         f_l[settled] = 0.0
         f_at[at] = f_l
+        # what the rest needs is gathered: the arrays over every ray searched go (the memory peak of a step where
+        # few rays settle, as with an estimated SD)
+        del cubic, af, lo_l, top, near, safe, quadratic, by_quartic, f_l
         kept = ~by_cubic
         rest = other[kept]
         r_s, f_s, df_s, af_s, gap_s = r_o[kept], f[rest], df[rest], af_o[kept], gap_o[kept]
@@ -1089,8 +1098,8 @@ def _edges(rays, rho, R, gap, curv, start=0, stop=60, state=None):
         lo[rg], hi[rg] = lo_g, hi_g            # the brackets are read again on the rays still searched only
         live = rg
         # this step's arrays go before the next evaluation of S (else they would be held through it)
-        del r, R_l, gap_l, f, df, safe, neg, lo_l, hi_l, top, cubic, quartic, quadratic, cubic_in, quartic_in, af
-        del near, by_quartic, new_rho, f_l, other, r_o, c_o, af_o, gap_o, lo_o, top_o, dc, by_cubic, settled, kept
+        del r, R_l, gap_l, f, df, neg, hi_l, quartic, cubic_in, quartic_in
+        del new_rho, other, r_o, c_o, af_o, gap_o, lo_o, top_o, dc, by_cubic, settled, kept
         del rest, r_s, f_s, df_s, af_s, gap_s, lo_s, hi_s, top_s
         del R_s, newton, newton_in, close, done, last, keep, go, lo_g, hi_g, rg, w, slow, plain, step
     return rho, f_at, (live, lo[live], hi[live], width[live])
@@ -1165,6 +1174,9 @@ def _batch(b, fm, idx_m, sx_m, sy_m, phi_m, v_m, trig_m, low_m, known, dof, kdof
 #: of the same minimum batch (:func:`_march`'s ``pending``): about 0.2 % of the rays, which took ten or so more
 #: steps each batch, each step costing mostly numpy's per-call overhead.
 POOL_AFTER = 2
+#: ... unless their fixes are more than this share of the batch's (then the batch searches on by itself: the pool's
+#: arrays stay well below a batch's); the pool is searched once it holds half a batch of fixes.
+POOL_SHARE = 0.1
 
 
 def _march(sx, sy, phi, v, known, dof, kdof, floor, level, psi, draw, fix_lat, fix_lon, *, station_lat, station_lon,
@@ -1208,8 +1220,12 @@ def _march(sx, sy, phi, v, known, dof, kdof, floor, level, psi, draw, fix_lat, f
     live = state[0]
     if pending is not None and len(live):
         rows, at = np.unique(live // K, return_inverse=True)
-        ray = at * K + live % K                 # the rays still searched, numbered within the rows set aside
-        pending.append((rows, rho.reshape(M, K)[rows].ravel(), f.reshape(M, K)[rows].ravel(), ray, *state[1:]))
+        if len(rows) > POOL_SHARE * M:          # too many to set aside: this batch searches on
+            rho, f, _ = _edges(rays, rho, R.ravel(), np.repeat(T - s_min, K), curv.ravel(), start=POOL_AFTER,
+                               state=(f, *state))
+        else:
+            ray = at * K + live % K             # the rays still searched, numbered within the rows set aside
+            pending.append((rows, rho.reshape(M, K)[rows].ravel(), f.reshape(M, K)[rows].ravel(), ray, *state[1:]))
     rho, f = rho.reshape(M, K), f.reshape(M, K)
     open_ray = (f < 0) & (rho >= draw[:, None] * (1 - 1e-9))
     if open_ray.any():
