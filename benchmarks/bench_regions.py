@@ -7,7 +7,8 @@
 ``--against OLD_DIR`` (a directory holding another version's ``dfkit``, e.g. from ``git archive main dfkit``) times
 ``regions.likelihood_regions`` alone, paired in one process: that version's ``regions.py`` and this checkout's
 alternate on the same solution (old, new, new, old, ...), and the medians and the per-pair ratios are printed
-(steadier than separate runs on a shared machine; the rest of ``dfkit`` is this checkout's for both). With
+(steadier than separate runs on a shared machine; the rest of ``dfkit`` is this checkout's for both), and whether
+the two versions' last regions are the same bit for bit. With
 ``--memory`` each version's ``likelihood_regions`` is also run once under ``tracemalloc`` (after the timed pairs):
 its traced peak above the memory at the call, what it keeps (its result) and the transient (peak - kept), in MiB.
 These do not depend on the machine's load.
@@ -85,12 +86,18 @@ def paired(regions, other_dir, sol, g, lat, lon, b, pairs, memory=False):
             sol.region_weight, sol.sd_known, sol.dof, 0.95)
     kw = dict(valid=sol.converged, sd_floor_deg=sol.sd_floor_deg)
     cpu = {"old": [], "new": []}
+    last = {}
     for i in range(pairs):
         order = (("old", other), ("new", regions)) if i % 2 == 0 else (("new", regions), ("old", other))
         for name, mod in order:
             c0 = time.process_time()
-            mod.likelihood_regions(*args, **kw)
+            last[name] = mod.likelihood_regions(*args, **kw)
             cpu[name].append(time.process_time() - c0)
+    fields = ("has_region", "centre_x", "centre_y", "radius_m", "bounded", "star_shaped", "area_m2", "reach_m",
+              "s_min", "threshold")
+    differ = [f for f in fields if not np.array_equal(getattr(last["old"], f), getattr(last["new"], f), equal_nan=True)]
+    print("same regions bit for bit (" + ", ".join(fields) + ")" if not differ else f"regions differ: {differ}")
+    del last
     for name, path_ in (("old", path), ("new", regions.__file__)):
         print(f"regions {name}: median {np.median(cpu[name]):.3f} s CPU ({' '.join(f'{x:.2f}' for x in cpu[name])})"
               f"  {path_}")

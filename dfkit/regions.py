@@ -488,16 +488,38 @@ def likelihood_regions(fix_lat, fix_lon, g, station_lat, station_lon, bearing_de
             trig_m = (np.sin(phi_m), np.cos(phi_m))
             v_m = np.nan_to_num(weight[idx_m], copy=False)
             low_m = _minimum(trig_m, sx_m, sy_m, v_m)
+            pending = []
             for k0 in range(0, len(fm), step):
                 b = slice(k0, k0 + step)
-                fx, idx = fm[b], idx_m[b]
-                res = _march(sx_m[b], sy_m[b], phi_m[b], v_m[b], known[fx], dof[fx], kdof[fx], floor[fx],
-                             float(level), psi, draw[fx], fix_lat[fx], fix_lon[fx], station_lat=slat_all[idx],
-                             station_lon=slon_all[idx], theta=np.radians(bearing_all[idx]), spread=spread[fx],
-                             trig=(trig_m[0][b], trig_m[1][b]), low=tuple(a[b] for a in low_m))
+                before = len(pending)
+                args, kw = _batch(b, fm, idx_m, sx_m, sy_m, phi_m, v_m, trig_m, low_m, known, dof, kdof, floor,
+                                  float(level), psi, draw, fix_lat, fix_lon, slat_all, slon_all, bearing_all, spread)
+                res = _march(*args, **kw, pending=pending)
+                del args, kw                        # views of the minimum batch's arrays: not held past it
                 for key, val in res.items():
-                    out[key][fx] = val
-                out["draw_range_m"][fx] = draw[fx]
+                    out[key][fm[b]] = val
+                out["draw_range_m"][fm[b]] = draw[fm[b]]
+                del res
+                if len(pending) > before:           # rows of this batch, counted within the minimum batch
+                    pending[-1] = (pending[-1][0] + k0, *pending[-1][1:])
+                last = k0 + step >= len(fm)
+                if pending and (last or sum(len(p[0]) for p in pending) >= step // 2):
+                    # the rays still searched after POOL_AFTER steps, several batches' together (their fixes'
+                    # regions are made again from the search's end)
+                    rows = np.concatenate([p[0] for p in pending])
+                    first = np.cumsum([0] + [len(p[0]) * len(psi) for p in pending[:-1]])
+                    resume = (np.concatenate([p[1] for p in pending]), np.concatenate([p[2] for p in pending]),
+                              np.concatenate([p[3] + o for p, o in zip(pending, first)]),
+                              *(np.concatenate([p[j] for p in pending]) for j in (4, 5, 6)))
+                    pending.clear()
+                    args, kw = _batch(rows, fm, idx_m, sx_m, sy_m, phi_m, v_m, trig_m, low_m, known, dof, kdof,
+                                      floor, float(level), psi, draw, fix_lat, fix_lon, slat_all, slon_all,
+                                      bearing_all, spread)
+                    res = _march(*args, **kw, resume=resume)
+                    del args, kw, resume
+                    for key, val in res.items():
+                        out[key][fm[rows]] = val
+                    del rows, res
     rad = out["radius_m"]
     with np.errstate(invalid="ignore"):
         area = np.empty(m)
@@ -509,8 +531,9 @@ def likelihood_regions(fix_lat, fix_lon, g, station_lat, station_lon, bearing_de
             x = out["centre_x"][sl, None] + rad[sl] * su
             y = out["centre_y"][sl, None] + rad[sl] * cu
             # the farthest point by its squared distance, then hypot of that one point only (hypot on every ray
-            # was about 4 % of the regions' time; same values on the 100,000-fix benchmark); NaN rows stay NaN
-            far = np.argmax(np.where(np.isnan(x) | np.isnan(y), np.inf, x * x + y * y), axis=1)[:, None]
+            # was about 4 % of the regions' time; same values on the 100,000-fix benchmark); NaN rows stay NaN:
+            # a NaN in x or y makes x x + y y NaN, and np.argmax takes the first NaN as the largest
+            far = np.argmax(x * x + y * y, axis=1)[:, None]
             reach[sl] = np.hypot(np.take_along_axis(x, far, 1)[:, 0], np.take_along_axis(y, far, 1)[:, 0])
     has = ok & np.isfinite(rad).all(axis=1)
     bounded = has & out["bounded"]
@@ -524,28 +547,16 @@ def likelihood_regions(fix_lat, fix_lon, g, station_lat, station_lon, bearing_de
         weight=np.nan_to_num(np.where(ok[g], weight, 0.0), copy=False))
 
 
-def _angle(y, x):
+def _angle(y, x, out=None):
     """arctan2(y, x) as arctan(y / x), turned by pi where x < 0: the same angle to an ulp or two, and about twice
     as fast (numpy's arctan is vectorised, its arctan2 not). NaN where x = y = 0 (arctan2 gives 0)."""
     with np.errstate(divide="ignore", invalid="ignore"):
-        r = np.divide(y, x)
+        r = np.divide(y, x, out=out)
         np.arctan(r, out=r)          # in place: one array, not two
     back = np.signbit(x)
     if back.any():
         r[back] += np.copysign(np.pi, y[back])
     return r
-
-
-def _row_sum(v, r):
-    """(v r r).sum(0), i.e. ((v * r) * r).sum(0), for arrays of two or more dimensions without the whole products:
-    row by row, added in the order numpy's sum over the first axis adds the rows (the same bits)."""
-    out = v[0] * r[0]
-    out *= r[0]
-    for k in range(1, r.shape[0]):
-        t = v[k] * r[k]
-        t *= r[k]
-        out += t
-    return out
 
 
 def _residual(sp, cp, dx, dy):
@@ -573,11 +584,24 @@ def _local(trig, sx, sy, v, px, py):
     and half the Hessian H = J - sum v r dg/dP, dg/dP = [[-2xy, x2-y2], [x2-y2, 2xy]]/d^4 (bearings (M, n))."""
     dx, dy, d2, r, gx, gy = _at(trig, sx, sy, px, py)
     vr = v * r
-    j11, j12, j22 = (v * gx * gx).sum(1), (v * gx * gy).sum(1), (v * gy * gy).sum(1)
+    j11, j12, j22 = _bearing_sum(v * gx * gx), _bearing_sum(v * gx * gy), _bearing_sum(v * gy * gy)
     k = vr / (d2 * d2)
-    kxy, kxx = (k * dx * dy).sum(1), (k * (dx * dx - dy * dy)).sum(1)
-    return ((vr * r).sum(1), np.stack([(vr * gx).sum(1), (vr * gy).sum(1)], 1), np.stack([j11, j12, j22], 1),
-            np.stack([j11 + 2 * kxy, j12 - kxx, j22 - 2 * kxy], 1))
+    kxy, kxx = _bearing_sum(k * dx * dy), _bearing_sum(k * (dx * dx - dy * dy))
+    return (_bearing_sum(vr * r), np.stack([_bearing_sum(vr * gx), _bearing_sum(vr * gy)], 1),
+            np.stack([j11, j12, j22], 1), np.stack([j11 + 2 * kxy, j12 - kxx, j22 - 2 * kxy], 1))
+
+
+def _bearing_sum(x):
+    """x.sum(1) of an (M, n) array. With fewer than 8 bearings numpy adds them one after the other (its pairwise
+    summation starts at 8 terms; tests/test_regions.py checks the equality), and the columns added in that order
+    give the same bits several times faster than the reduction over a short axis."""
+    n = x.shape[1]
+    if n >= 8 or n < 2:
+        return x.sum(1)
+    out = x[:, 0] + x[:, 1]
+    for k in range(2, n):
+        out += x[:, k]
+    return out
 
 
 def _solve2(m, b):
@@ -606,8 +630,11 @@ def _minimum(trig, sx, sy, v, iterations=20):
     for _ in range(iterations):
         if not len(live):
             break
-        hl = H[live]
-        step = np.where(_positive(hl)[:, None], _solve2(hl, b[live]), _solve2(J[live], b[live]))
+        hl, bl = H[live], b[live]
+        step = _solve2(hl, bl)
+        gauss = np.flatnonzero(~_positive(hl))          # Gauss-Newton's matrix only where the Hessian is not positive
+        if len(gauss):
+            step[gauss] = _solve2(J[live[gauss]], bl[gauss])
         far = np.hypot(step[:, 0], step[:, 1]) > 1e-6      # a step shorter than that would change nothing
         live, step = live[far], step[far]
         if not len(live):
@@ -652,87 +679,136 @@ class _Rays:
     direction, the point's offset from the station is d = a + rho u and the bearing's residual is
     atan2(A + rho B, C + rho D) with A = a x phi, C = a . phi, B = sin(phi - psi), D = cos(phi - psi) (phi taken
     as the unit vector (sin phi, cos phi)); its derivative in rho is E / |d|^2 with E = a_x u_y - a_y u_x, the
-    same all along the ray. A and C are held (n, M), B and D (n, M K): a sum over the bearings adds rows. E is
-    formed bearing by bearing where it is used (:meth:`f`), not held.
+    same all along the ray. A, C, the weights v and a = (a_x, a_y) are held (n, M), stacked in one array, B and D
+    (n, M K), stacked too, so that the rays still searched take their parts in two gathers: a sum over the
+    bearings adds rows. E is formed where it is used (:meth:`f`), not held.
     """
 
     def __init__(self, trig, sx, sy, v, cx, cy, T, psi):
         sp, cp = (np.ascontiguousarray(t.T) for t in trig)
-        ax = cx[None, :] - sx.T
-        ay = cy[None, :] - sy.T
         su, cu = np.sin(psi), np.cos(psi)
-        self.n, self.M, self.K = sp.shape[0], sp.shape[1], len(psi)
-        flat = (self.n, self.M * self.K)
-        self.A, self.C = sp * ay - cp * ax, sp * ax + cp * ay
-        self.ax, self.ay = ax, ay
-        self.B = (sp[:, :, None] * cu - cp[:, :, None] * su).reshape(flat)
-        self.D = (sp[:, :, None] * su + cp[:, :, None] * cu).reshape(flat)
+        self.n, self.M, self.K = n, M, K = sp.shape[0], sp.shape[1], len(psi)
+        # each array is formed in its place in the stacks, by the same operations as on its own
+        self._fix = np.empty((5, n, M))
+        self.A, self.C, self.v, self.ax, self.ay = self._fix
+        np.subtract(cx[None, :], sx.T, out=self.ax)
+        np.subtract(cy[None, :], sy.T, out=self.ay)
+        np.multiply(sp, self.ay, out=self.A)
+        self.A -= cp * self.ax
+        np.multiply(sp, self.ax, out=self.C)
+        self.C += cp * self.ay
+        self.v[...] = v.T
+        self._ray = np.empty((2, n, M * K))
+        self.B, self.D = self._ray
+        B, D = (a.reshape(n, M, K) for a in self._ray)
+        for k in range(n):                  # bearing by bearing: (M, K) temporaries, not (n, M, K)
+            np.multiply(sp[k, :, None], cu, out=B[k])
+            B[k] -= cp[k, :, None] * su
+            np.multiply(sp[k, :, None], su, out=D[k])
+            D[k] += cp[k, :, None] * cu
         self.su, self.cu = su, cu
-        self.v = np.ascontiguousarray(v.T)
         self.T = T
         self.unweighted = np.where(self.v > 0, 0.0, np.inf) if (self.v <= 0).any() else None
 
-    def _parts_of(self, a, i):
-        """A per-fix (n, M) array shaped like :meth:`_parts`' A."""
-        return a[:, :, None] if i is None else a[:, i // self.K]
-
     def _parts(self, i):
-        """(A, C, v, T) of the rays' fixes and (B, D) of the rays, shaped to broadcast to (n, rays) or,
-        for every ray (``i`` None), to (n, M, K)."""
+        """(A, C, v, a_x, a_y) of the rays' fixes, (B, D) of the rays, T of their fixes and (u_y, u_x) of the rays,
+        shaped to broadcast to (n, rays) or, for every ray (``i`` None), to (n, M, K)."""
         if i is None:
             n, M, K = self.n, self.M, self.K
-            return (self.A[:, :, None], self.C[:, :, None], self.v[:, :, None], self.T[:, None],
-                    *(a.reshape(n, M, K) for a in (self.B, self.D)))
-        j = i // self.K
-        return self.A[:, j], self.C[:, j], self.v[:, j], self.T[j], self.B[:, i], self.D[:, i]
-
-    def _e_parts(self, i):
-        """(a_x, a_y) of the rays' fixes and (u_y, u_x) of the rays, so that bearing k's E is
-        ``ax[k] * uy - ay[k] * ux``, shaped (rays,) or, for every ray (``i`` None), (M, K)."""
-        if i is None:
-            return self.ax[:, :, None], self.ay[:, :, None], self.cu, self.su
+            return (*(a[:, :, None] for a in self._fix), *(a.reshape(n, M, K) for a in self._ray),
+                    self.T[:, None], self.cu, self.su)
         j, k = np.divmod(i, self.K)
-        return self.ax[:, j], self.ay[:, j], self.cu[k], self.su[k]
+        return (*np.take(self._fix, j, axis=2), *np.take(self._ray, i, axis=2), self.T[j], self.cu[k], self.su[k])
 
-    def _offsets(self, rho, i):
-        """(cross, dot) = |d| (sin r, cos r) of every bearing at radius ``rho``, the parts of the rays, their
-        weights and bounds, shaped (n, rays) or (n, M, K)."""
-        A, C, v, T, B, D = self._parts(i)
+    def f(self, rho, i=None, slope=True):
+        """f = S - T and its derivative in rho at radius ``rho`` on rays ``i`` (flat indices; None: all), and the
+        largest move along each ray within which no residual can wrap past pi (where S may jump); f alone when
+        not ``slope``."""
+        if i is None and slope:
+            out = self._f_whole(rho)
+            if out is not None:
+                return out
+        return self._f_rows(rho, i, slope)
+
+    def _f_whole(self, rho):
+        """:meth:`f` on every ray, one bearing at a time: the same operations on each element as
+        :meth:`_f_rows` (the same bits), on (fixes, rays) arrays reused from bearing to bearing instead of whole
+        (bearings, fixes, rays) ones. None where a point lies on a station (then :meth:`_f_rows` redoes it)."""
+        n, M, K = self.n, self.M, self.K
+        rho = rho.reshape(M, K)
+        B, D = (a.reshape(n, M, K) for a in self._ray)
+        cross, dot, r, vr, t = (np.empty((M, K)) for _ in range(5))
+        f = slope = safe = None
+        for k in range(n):
+            A, C, v = self.A[k][:, None], self.C[k][:, None], self.v[k][:, None]
+            np.multiply(B[k], rho, out=cross)
+            cross += A
+            np.multiply(D[k], rho, out=dot)
+            dot += C
+            _angle(cross, dot, out=r)
+            np.multiply(v, r, out=vr)
+            if f is None:
+                f = vr * r
+            else:
+                np.multiply(vr, r, out=t)
+                f += t
+            cross *= cross
+            dot *= dot
+            cross += dot
+            np.maximum(cross, 1e-18, out=cross)          # |d|^2
+            np.multiply(self.ax[k][:, None], self.cu, out=t)
+            t -= self.ay[k][:, None] * self.su           # E of bearing k
+            t /= cross
+            t *= vr
+            if slope is None:
+                slope = t.copy()
+            else:
+                slope += t
+            room = np.abs(r, out=dot)
+            np.subtract(np.pi, room, out=room)
+            s = np.sqrt(cross, out=cross)
+            s *= room
+            room += 1.0
+            s /= room
+            if self.unweighted is not None:
+                s += self.unweighted[k][:, None]
+            if safe is None:
+                safe = s.copy()
+            else:
+                np.minimum(safe, s, out=safe)
+        if np.isnan(f).any():     # a point on a station
+            return None
+        f -= self.T[:, None]
+        slope *= 2.0
+        return f.ravel(), slope.ravel(), safe.ravel()
+
+    def _f_rows(self, rho, i=None, slope=True):
+        """:meth:`f` as (bearings, rays) arrays."""
+        # The sums over the bearings (f, and the slope 2 sum v r E / |d|^2) add the rows in order, as numpy's
+        # sum(0) adds them (the same bits); the move's bound reuses the buffers of dot and r.
+        A, C, v, ax, ay, B, D, T, uy, ux = self._parts(i)
         rho = rho if i is not None else rho.reshape(self.M, self.K)
         cross = B * rho
         cross += A
         dot = D * rho
         dot += C
-        return cross, dot, v, T
-
-    def f(self, rho, i=None):
-        """f = S - T and its derivative in rho at radius ``rho`` on rays ``i`` (flat indices; None: all), and the
-        largest move along each ray within which no residual can wrap past pi (where S may jump)."""
-        # Three arrays of (bearings, rays) at a time: the sums over the bearings (f, and the slope
-        # 2 sum v r E / |d|^2) are formed bearing by bearing, added in the order numpy's sum(0) adds the rows (the
-        # same bits), and the move's bound reuses the buffers of dot and r.
-        cross, dot, v, T = self._offsets(rho, i)
         r = _angle(cross, dot)
-        f = _row_sum(v, r)
+        vr, f = _weighted_sum(v, r)
         if np.isnan(f).any():     # a point on a station
             r = np.arctan2(cross, dot)
-            f = _row_sum(v, r)
+            vr, f = _weighted_sum(v, r)
         f -= T
+        if not slope:
+            return f.ravel()
         cross *= cross
         dot *= dot
         cross += dot
         np.maximum(cross, 1e-18, out=cross)
-        ax, ay, uy, ux = self._e_parts(i)
-        slope = None
-        for k in range(r.shape[0]):
-            t = ax[k] * uy
-            t -= ay[k] * ux           # E of bearing k
-            t /= cross[k]
-            t *= v[k] * r[k]
-            if slope is None:
-                slope = t
-            else:
-                slope += t
+        e = ax * uy
+        e -= ay * ux               # E of each bearing
+        e /= cross
+        e *= vr
+        slope = _rows_added(e)
         # how far the point may move before a residual can wrap past pi: a move of s turns the direction from a
         # station at distance |d| by at most s / (|d| - s)
         room = np.abs(r, out=dot)
@@ -742,40 +818,111 @@ class _Rays:
         room += 1.0
         safe /= room
         if self.unweighted is not None:          # bearings left out never limit the move
-            safe += self._parts_of(self.unweighted, i)
+            safe += self.unweighted[:, :, None] if i is None else self.unweighted[:, i // self.K]
         safe = safe.min(axis=0)
         return f.ravel(), 2.0 * slope.ravel(), safe.ravel()
 
     def above(self, rho):
         """Whether S > T at radius ``rho`` on every ray, shown without arctan: r^2 >= sin^2 r =
-        cross^2 / (cross^2 + dot^2), so S >= sum v cross^2 / |d|^2; False where that bound does not show it."""
-        cross, dot, v, T = self._offsets(rho, None)
-        cross *= cross
-        dot *= dot
-        dot += cross
-        np.divide(cross, dot, out=cross)
-        cross *= v
-        return (cross.sum(0) > T).ravel()
+        cross^2 / (cross^2 + dot^2), so S >= sum v cross^2 / |d|^2; False where that bound does not show it.
+        Bearing by bearing, the rows added in order (as numpy's sum(0) adds them)."""
+        n, M, K = self.n, self.M, self.K
+        rho = rho.reshape(M, K)
+        B, D = (a.reshape(n, M, K) for a in self._ray)
+        cross, dot = np.empty((M, K)), np.empty((M, K))
+        bound = None
+        for k in range(n):
+            np.multiply(B[k], rho, out=cross)
+            cross += self.A[k][:, None]
+            np.multiply(D[k], rho, out=dot)
+            dot += self.C[k][:, None]
+            cross *= cross
+            dot *= dot
+            dot += cross
+            np.divide(cross, dot, out=cross)
+            cross *= self.v[k][:, None]
+            if bound is None:
+                bound = cross.copy()
+            else:
+                bound += cross
+        return (bound > self.T[:, None]).ravel()
+
+
+def _weighted_sum(v, r):
+    """v r and the sum over the rows (the first axis) of v r r, ((v r) r) added row by row in order."""
+    vr = v * r
+    t = vr * r
+    return vr, _rows_added(t)
+
+
+def _rows_added(t):
+    """t[0] + t[1] + ... in that order (a new array)."""
+    out = t[0].copy()
+    for k in range(1, t.shape[0]):
+        out += t[k]
+    return out
 
 
 def _model_roots(r, f, df, gap, curv):
     """Where two models of S - S_min along a ray reach ``gap``, as radii: both are flat at the centre (S's minimum)
     and have S - T = f and slope df at radius r; the cubic c2 rho^2 + c3 rho^3, and the quartic that also has
     S's curvature at the centre, ``curv`` rho^2 + c3 rho^3 + c4 rho^4 (NaN where that is not known). Each root
-    by Newton's method: a step on f, two on the cubic, two on the quartic from the cubic's root."""
+    by Newton's method: a step on f, two on the cubic, two on the quartic from the cubic's root. Also whether the
+    slope is near a quadratic's, |df r - 2 (f + gap)| <= (f + gap) / 4 (a condition of settling at the quartic's
+    root, formed here from the models' own f + gap and df r)."""
+    # The steps are written in place and the models' constant multiples (2 c2, 3 c3, ...) formed once: the same
+    # operations, in the same order, as ((c2 + c3 x) x x - gap) / ((2 c2 + 3 c3 x) x) and its quartic alike.
     with np.errstate(divide="ignore", invalid="ignore", over="ignore"):
         g = f + gap
         s = df * r
-        c2, c3 = 3.0 * g - s, s - 2.0 * g
-        x = 1.0 - f / s
+        quadratic = np.abs(s - 2.0 * g) <= 0.25 * g
+        g3 = 3.0 * g
+        c2 = g3 - s
+        c3 = s - 2.0 * g
+        c2_2, c3_3 = 2.0 * c2, 3.0 * c3
+        x = f / s
+        np.subtract(1.0, x, out=x)
         for _ in range(2):
-            x -= ((c2 + c3 * x) * x * x - gap) / ((2.0 * c2 + 3.0 * c3 * x) * x)
-        q2 = curv * r * r
-        q3, q4 = 4.0 * g - 2.0 * q2 - s, q2 + s - 3.0 * g
-        y = x.copy()
+            num = c3 * x
+            num += c2
+            num *= x
+            num *= x
+            num -= gap
+            den = c3_3 * x
+            den += c2_2
+            den *= x
+            num /= den
+            x -= num
+        del c2, c3, c2_2, c3_3
+        q2 = curv * r
+        q2 *= r
+        q2_2 = 2.0 * q2
+        q3 = 4.0 * g
+        q3 -= q2_2
+        q3 -= s
+        q4 = q2 + s
+        q4 -= g3
+        del g, s, g3
+        q3_3, q4_4 = 3.0 * q3, 4.0 * q4
+        y = x
         for _ in range(2):
-            y -= (((q4 * y + q3) * y + q2) * y * y - gap) / (((4.0 * q4 * y + 3.0 * q3) * y + 2.0 * q2) * y)
-    return r * x, r * y
+            num = q4 * y
+            num += q3
+            num *= y
+            num += q2
+            num *= y
+            num *= y
+            num -= gap
+            den = q4_4 * y
+            den += q3_3
+            den *= y
+            den += q2_2
+            den *= y
+            num /= den
+            y = y - num if y is x else np.subtract(y, num, out=y)
+    x *= r
+    y *= r
+    return x, y, quadratic
 
 
 def _taylor(A, C, ax, ay, v, psi, order, lowest=2):
@@ -840,7 +987,7 @@ def _series_guess(rays, psi, gap, rho, use):
     return np.where(good, rho - step, rho)
 
 
-def _edges(rays, rho, R, gap, curv):
+def _edges(rays, rho, R, gap, curv, start=0, stop=60, state=None):
     """The edge S = T on every ray (flat arrays: first guesses, drawing ranges, gaps T - S_min, S's curvature
     along the ray at the centre or NaN).
 
@@ -853,8 +1000,10 @@ def _edges(rays, rho, R, gap, curv):
     models' errors are then far below the search's tolerance). It is done after a last Newton step when
     |f| <= 1e-3 of the gap and that step is within 5e-4 of the radius; where it stands when the bracket is within
     1e-5 of the radius, or when it reaches the drawing range still inside.
-    While many rays are left, all of them are evaluated as whole (bearings, fixes, rays) arrays, cheaper than
-    gathering them. Returns the radii and f at them (0 where settled by a model).
+    While many rays are left, all of them are evaluated at once, cheaper than gathering them. Steps ``start`` to
+    ``stop`` - 1 are taken (60 in all); ``state`` takes up a search stopped earlier (f at the radii, the rays still
+    searched, their brackets lo and hi and last widths). Returns the radii, f at them (0 where settled by a model)
+    and the state (the rays still searched after ``stop``, none after 60 steps).
 
     The promise, ray by ray: where S crosses T smoothly, the radius is within 5e-4 of itself of the crossing
     (tests/test_regions.py checks it against scipy's brentq; the models settle a ray only where their error is
@@ -865,66 +1014,95 @@ def _edges(rays, rho, R, gap, curv):
     """
     lo = np.zeros_like(rho)
     hi = np.full_like(rho, np.inf)
-    f_at = np.zeros_like(rho)
     width = np.full_like(rho, np.inf)
-    live = np.arange(len(rho))
-    for _ in range(60):
+    if state is None:
+        f_at = np.zeros_like(rho)
+        live = np.arange(len(rho))
+    else:                            # a search taken up again after ``start`` steps (:func:`_march`'s ``resume``)
+        f_at, live = state[0], state[1]
+        lo[live], hi[live], width[live] = state[2:]
+    for step_no in range(start, stop):
         if not len(live):
             break
         at = slice(None) if len(live) == len(rho) else live
-        r, lo_l, hi_l, R_l, gap_l = rho[at], lo[at], hi[at], R[at], gap[at]
+        r, R_l, gap_l = rho[at], R[at], gap[at]
         if len(live) >= WHOLE_BATCH * len(rho):
             f, df, safe = (a[at] for a in rays.f(rho))
         else:
             f, df, safe = rays.f(r, live)
         neg = f < 0
-        lo_l = np.where(neg, np.maximum(lo_l, r), lo_l)
-        hi_l = np.where(neg, hi_l, np.minimum(hi_l, r))
+        if step_no == 0:
+            # every bracket is still [0, inf) and the first guesses are finite and positive: max(0, r) is r, so
+            # lo is r where S < T and 0 elsewhere (r times neg), hi is r where S >= T and inf elsewhere (r / ~neg),
+            # the same arrays as the np.where of the later steps, at a fraction of their cost
+            with np.errstate(divide="ignore"):
+                lo_l = r * neg
+                hi_l = r / ~neg
+        else:
+            lo_l, hi_l = lo[at], hi[at]
+            lo_l = np.where(neg, np.maximum(lo_l, r), lo_l)
+            hi_l = np.where(neg, hi_l, np.minimum(hi_l, r))
         top = np.minimum(hi_l, R_l)
-        cubic, quartic = _model_roots(r, f, df, gap_l, curv[at])
-        with np.errstate(divide="ignore", invalid="ignore"):
-            newton = r - f / df
-        cubic_in = (cubic > lo_l) & (cubic < top)          # False for NaN
-        quartic_in = (quartic > lo_l) & (quartic < top)
+        cubic, quartic, quadratic = _model_roots(r, f, df, gap_l, curv[at])
+        quartic_in = (quartic > lo_l) & (quartic < top)          # False for NaN
         af = np.abs(f)
-        by_quartic = (quartic_in & (np.abs(quartic - cubic) <= 1e-4 * quartic) & (af <= 0.15 * gap_l)
-                      & (np.abs(df * r - 2.0 * (f + gap_l)) <= 0.25 * (f + gap_l)))
-        by_cubic = cubic_in & (af <= NEAR_QUADRATIC * gap_l) & (np.abs(cubic - r) <= 1e-2 * r)
-        by_quartic &= np.abs(quartic - r) < safe
         # the models' error grows with the radius over the nearest station's distance (S's higher terms) and with
         # how far they extrapolate (|f| / gap); this bound keeps it under about 1e-4 of the radius on the
         # benchmark's 3.2 million rays (under 2.5e-4 up to 1.5 times the bound), SD given or estimated
         near = (af + MODEL_REACH_PAD * gap_l) * r <= MODEL_REACH * gap_l * safe
+        by_quartic = quartic_in & (np.abs(quartic - cubic) <= 1e-4 * quartic) & (af <= 0.15 * gap_l) & quadratic
+        by_quartic &= np.abs(quartic - r) < safe
         by_quartic &= near
-        by_cubic &= near
-        by_cubic &= np.abs(cubic - r) < safe
-        settle = by_quartic | by_cubic
-        newton_in = (newton > lo_l) & (newton < top)
-        close = (af <= 1e-3 * gap_l) & (af <= 5e-4 * df * r)      # Newton's step within 5e-4 of the radius
-        done = settle | close | (hi_l - lo_l <= 1e-5 * r) | (neg & (r >= R_l))
+        new_rho = np.where(by_quartic, quartic, r)
+        f_l = np.where(by_quartic, 0.0, f)
+        # the rays the quartic does not settle (about 5 % on the first step): the cubic's test, then for those it
+        # does not settle either, the Newton rule, the bracket's width, the drawing range and the next step
+        other = np.flatnonzero(~by_quartic)
+        r_o, c_o, af_o, gap_o, lo_o, top_o = r[other], cubic[other], af[other], gap_l[other], lo_l[other], top[other]
+        cubic_in = (c_o > lo_o) & (c_o < top_o)
+        dc = np.abs(c_o - r_o)
+        by_cubic = cubic_in & (af_o <= NEAR_QUADRATIC * gap_o) & (dc <= 1e-2 * r_o) & near[other] & (dc < safe[other])
+        settled = other[by_cubic]
+        new_rho[settled] = c_o[by_cubic]
+        f_l[settled] = 0.0
+        f_at[at] = f_l
+        # what the rest needs is gathered: the arrays over every ray searched go (the memory peak of a step where
+        # few rays settle, as with an estimated SD)
+        del cubic, af, lo_l, top, near, safe, quadratic, by_quartic, f_l
+        kept = ~by_cubic
+        rest = other[kept]
+        r_s, f_s, df_s, af_s, gap_s = r_o[kept], f[rest], df[rest], af_o[kept], gap_o[kept]
+        lo_s, hi_s, top_s, R_s = lo_o[kept], hi_l[rest], top_o[kept], R_l[rest]
+        cubic_in, c_o = cubic_in[kept], c_o[kept]
+        with np.errstate(divide="ignore", invalid="ignore"):
+            newton = r_s - f_s / df_s
+        newton_in = (newton > lo_s) & (newton < top_s)
+        close = (af_s <= 1e-3 * gap_s) & (af_s <= 5e-4 * df_s * r_s)      # Newton's step within 5e-4 of the radius
+        done = close | (hi_s - lo_s <= 1e-5 * r_s) | (neg[rest] & (r_s >= R_s))
         # a ray done by the Newton rule takes that last step: its error is then about the square of the step's
-        new_rho = np.where(by_quartic, quartic,
-                           np.where(by_cubic, cubic, np.where(close & newton_in, newton, r)))
-        go = np.flatnonzero(~done)                      # the next step only for the rays still searched
-        lo_g, hi_g, rg = lo_l[go], hi_l[go], live[go]
+        last = close & newton_in
+        new_rho[rest[last]] = newton[last]
+        keep = np.flatnonzero(~done)                    # the next step only for the rays still searched
+        go = rest[keep]
+        lo_g, hi_g, rg = lo_s[keep], hi_s[keep], live[go]
         # a bracket (lo > 0, hi finite) that has not halved since the last one is bisected
         w = np.where((lo_g > 0) & np.isfinite(hi_g), hi_g - lo_g, np.inf)
         slow = np.isfinite(w) & (w > 0.5 * width[rg])
         width[rg] = w
-        plain = np.where(np.isfinite(hi_g), 0.5 * (lo_g + hi_g), np.minimum(2.0 * r[go], R_l[go]))
-        step = np.where(newton_in[go], newton[go], plain)
-        step = np.where(cubic_in[go], cubic[go], step)
+        plain = np.where(np.isfinite(hi_g), 0.5 * (lo_g + hi_g), np.minimum(2.0 * r_s[keep], R_s[keep]))
+        step = np.where(newton_in[keep], newton[keep], plain)
+        step = np.where(cubic_in[keep], c_o[keep], step)
         step = np.where(quartic_in[go], quartic[go], step)
         new_rho[go] = np.where(slow, plain, step)
         rho[at] = new_rho
-        f_at[at] = np.where(settle, 0.0, f)
-        lo[at], hi[at] = lo_l, hi_l
-        live = live[~done]
+        lo[rg], hi[rg] = lo_g, hi_g            # the brackets are read again on the rays still searched only
+        live = rg
         # this step's arrays go before the next evaluation of S (else they would be held through it)
-        del r, lo_l, hi_l, R_l, gap_l, f, df, safe, neg, top, cubic, quartic, newton, cubic_in, quartic_in, af
-        del by_quartic, by_cubic, near, settle, newton_in, close, done, new_rho
-        del go, lo_g, hi_g, rg, w, slow, plain, step
-    return rho, f_at
+        del r, R_l, gap_l, f, df, neg, hi_l, quartic, cubic_in, quartic_in
+        del new_rho, other, r_o, c_o, af_o, gap_o, lo_o, top_o, dc, by_cubic, settled, kept
+        del rest, r_s, f_s, df_s, af_s, gap_s, lo_s, hi_s, top_s
+        del R_s, newton, newton_in, close, done, last, keep, go, lo_g, hi_g, rg, w, slow, plain, step
+    return rho, f_at, (live, lo[live], hi[live], width[live])
 
 
 def _star_check(rays, trig, sx, sy, v, cx, cy, T, rho, open_ray, R, ux, uy):
@@ -937,7 +1115,7 @@ def _star_check(rays, trig, sx, sy, v, cx, cy, T, rho, open_ray, R, ux, uy):
     doubt = np.flatnonzero(~open_ray.ravel() & (probe > rho.ravel() * 1.0001) & ~rays.above(probe))
     if not len(doubt):
         return star
-    fp = rays.f(probe[doubt], doubt)[0]
+    fp = rays.f(probe[doubt], doubt, slope=False)
     back = np.zeros(M * K, bool)
     back[doubt] = fp < 0
     back = back.reshape(M, K)
@@ -952,13 +1130,13 @@ def _star_check(rays, trig, sx, sy, v, cx, cy, T, rho, open_ray, R, ux, uy):
     return star
 
 
-def _s_at_infinity(rays, phi, v, psi, T):
+def _s_at_infinity(rays, trig, phi, v, psi, T):
     """The least plane limit of S far out, sum v wrap(phi - psi)^2, over the rays' directions and the bearings'
     mean direction. Where sum v sin^2(phi - psi) (no larger) already reaches T on every ray, only the mean
-    direction is computed."""
+    direction is computed. ``trig`` the sines and cosines of ``phi``."""
     M = phi.shape[0]
-    c = (v * np.cos(phi)).sum(1)
-    s = (v * np.sin(phi)).sum(1)
+    c = _bearing_sum(v * trig[1])
+    s = _bearing_sum(v * trig[0])
     mean = np.arctan2(s, c)[:, None]
 
     def limit(r, w):
@@ -966,39 +1144,94 @@ def _s_at_infinity(rays, phi, v, psi, T):
         return (w[:, :, None] * r * r).sum(1).min(axis=1)
 
     s_inf = limit(phi[:, :, None] - mean[:, None, :], v)
+    # sum v sin^2(phi - psi) = sum v B B, bearing by bearing (the rows added in order, as sum(0) adds them)
     B = rays.B.reshape(rays.n, M, -1)
-    low = ((rays.v[:, :, None] * B * B).sum(0).min(axis=1) < T) & (s_inf >= T)
+    bound = t = None
+    for k in range(rays.n):
+        t = np.multiply(rays.v[k][:, None], B[k], out=t)
+        t *= B[k]
+        if bound is None:
+            bound = t.copy()
+        else:
+            bound += t
+    low = (bound.min(axis=1) < T) & (s_inf >= T)
     if low.any():
         s_inf[low] = np.minimum(s_inf[low], limit(phi[low][:, :, None] - psi[None, None, :], v[low]))
     return s_inf
 
 
+def _batch(b, fm, idx_m, sx_m, sy_m, phi_m, v_m, trig_m, low_m, known, dof, kdof, floor, level, psi, draw, fix_lat,
+           fix_lon, slat_all, slon_all, bearing_all, spread):
+    """:func:`_march`'s arguments for rows ``b`` of a minimum batch (fixes ``fm``, bearings ``idx_m``)."""
+    fx, idx = fm[b], idx_m[b]
+    return ((sx_m[b], sy_m[b], phi_m[b], v_m[b], known[fx], dof[fx], kdof[fx], floor[fx], level, psi, draw[fx],
+             fix_lat[fx], fix_lon[fx]),
+            dict(station_lat=slat_all[idx], station_lon=slon_all[idx], theta=np.radians(bearing_all[idx]),
+                 spread=spread[fx], trig=(trig_m[0][b], trig_m[1][b]), low=tuple(a[b] for a in low_m)))
+
+
+#: Rays still searched after this many steps are set aside and searched on together with those of the other batches
+#: of the same minimum batch (:func:`_march`'s ``pending``): about 0.2 % of the rays, which took ten or so more
+#: steps each batch, each step costing mostly numpy's per-call overhead.
+POOL_AFTER = 2
+#: ... unless their fixes are more than this share of the batch's (then the batch searches on by itself: the pool's
+#: arrays stay well below a batch's); the pool is searched once it holds half a batch of fixes.
+POOL_SHARE = 0.1
+
+
 def _march(sx, sy, phi, v, known, dof, kdof, floor, level, psi, draw, fix_lat, fix_lon, *, station_lat, station_lon,
-           theta, spread, trig, low):
+           theta, spread, trig, low, pending=None, resume=None):
     """The regions of one batch of fixes (bearings (M, n); ``trig`` the sines and cosines of ``phi``, ``low`` what
-    :func:`_minimum` gives for them)."""
+    :func:`_minimum` gives for them).
+
+    With a list ``pending``, the search stops after POOL_AFTER steps; the fixes with rays still searched get
+    their regions from what was found so far, and their search is appended to ``pending`` (rows of the batch,
+    radii and f of their rays, the rays still searched and their brackets) to be taken up again by a call with
+    ``resume`` on those rows (gathered from several batches): each ray's steps are its own, so the answers are those
+    of one search to the end."""
     M, K = phi.shape[0], len(psi)
     cx, cy, s_min, J, H = low
     T = region_threshold(s_min, known, dof, level, kdof, floor)
     ux, uy = np.sin(psi)[None, :], np.cos(psi)[None, :]
     # First guess: S's quadratic model about its minimum, with the full Hessian where it is positive definite,
     # then the root of S's Taylor polynomial along the ray where that is positive definite.
-    q = np.where(_positive(H)[:, None], H, J)
+    pos = _positive(H)[:, None]
+    q = np.where(pos, H, J)
     quad = q[:, :1] * ux * ux + 2 * q[:, 1:2] * ux * uy + q[:, 2:] * uy * uy
-    with np.errstate(divide="ignore", invalid="ignore"):
-        rho = np.sqrt((T - s_min)[:, None] / quad)
     R = draw[:, None] * np.ones((1, K))
-    plain = np.isfinite(rho) & (rho > 0) & (rho < 0.5 * R)
-    rho = np.where(np.isfinite(rho) & (rho > 0), np.minimum(rho, 0.5 * R), 0.5 * R)
-    curv = np.where(_positive(H)[:, None], quad, np.nan)
+    curv = np.where(pos, quad, np.nan)
     rays = _Rays(trig, sx, sy, v, cx, cy, T, psi)
-    rho = _series_guess(rays, psi, T - s_min, rho, plain & _positive(H)[:, None])
-    rho, f = _edges(rays, rho.ravel(), R.ravel(), np.repeat(T - s_min, K), curv.ravel())
+    if resume is None:
+        with np.errstate(divide="ignore", invalid="ignore"):
+            rho = np.sqrt((T - s_min)[:, None] / quad)
+        half = 0.5 * draw[:, None]          # 0.5 R, per fix (the same values, broadcast along the rays)
+        fine = np.isfinite(rho) & (rho > 0)
+        plain = fine & (rho < half)
+        rho = np.where(fine, np.minimum(rho, half), half)
+        plain &= pos
+        rho = _series_guess(rays, psi, T - s_min, rho, plain)
+        del fine, plain
+        stop = 60 if pending is None else POOL_AFTER
+        rho, f, state = _edges(rays, rho.ravel(), R.ravel(), np.repeat(T - s_min, K), curv.ravel(), stop=stop)
+    else:
+        rho, f, state = _edges(rays, resume[0], R.ravel(), np.repeat(T - s_min, K), curv.ravel(), start=POOL_AFTER,
+                               state=resume[1:])
+    del q, quad
+    live = state[0]
+    if pending is not None and len(live):
+        rows, at = np.unique(live // K, return_inverse=True)
+        if len(rows) > POOL_SHARE * M:          # too many to set aside: this batch searches on
+            rho, f, _ = _edges(rays, rho, R.ravel(), np.repeat(T - s_min, K), curv.ravel(), start=POOL_AFTER,
+                               state=(f, *state))
+        else:
+            ray = at * K + live % K             # the rays still searched, numbered within the rows set aside
+            pending.append((rows, rho.reshape(M, K)[rows].ravel(), f.reshape(M, K)[rows].ravel(), ray, *state[1:]))
     rho, f = rho.reshape(M, K), f.reshape(M, K)
-    open_ray = (f < 0) & (rho >= R * (1 - 1e-9))
-    rho = np.where(open_ray, R, rho)
+    open_ray = (f < 0) & (rho >= draw[:, None] * (1 - 1e-9))
+    if open_ray.any():
+        rho[open_ray] = R[open_ray]
     star = _star_check(rays, trig, sx, sy, v, cx, cy, T, rho, open_ray, R, ux, uy)
-    s_inf = _s_at_infinity(rays, phi, v, psi, T)
+    s_inf = _s_at_infinity(rays, trig, phi, v, psi, T)
     bounded = ~open_ray.any(axis=1) & (s_inf >= T)
     res = dict(centre_x=cx, centre_y=cy, radius_m=rho, bounded=bounded, star_shaped=star, s_min=s_min,
                threshold=T)

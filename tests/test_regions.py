@@ -347,3 +347,102 @@ def test_taylor_coefficients_of_the_statistic_along_a_ray_match_scipy():
             for order in (2, 3, 4):
                 unit = dist[i] ** order
                 assert s[order - 2, i, k] * unit == pytest.approx(ref[order] * unit, rel=1e-4, abs=1e-5 * size)
+
+
+@pytest.mark.parametrize("n", range(1, 11))
+def test_bearing_sums_add_as_numpy_sum_does(n):
+    # The fast per-fix sum over bearings must give numpy's own x.sum(1) bit for bit (the regions' answers are
+    # compared between versions bit for bit); terms of mixed sizes make the order of the additions show.
+    rng = np.random.default_rng(n)
+    for M in (1, 2, 3, 7, 8, 100, 5000):
+        x = rng.normal(size=(M, n)) * rng.choice([1.0, 1e8, 1e-8], size=(M, n))
+        assert np.array_equal(regions._bearing_sum(x), x.sum(1))
+
+
+def _random_rays(rng, M=40, n=4, K=16, unweighted=False):
+    sx, sy = rng.uniform(-1500, 1500, (M, n)), rng.uniform(-1500, 1500, (M, n))
+    phi, v = rng.uniform(0, 2 * np.pi, (M, n)), rng.uniform(0.5, 2.0, (M, n))
+    if unweighted:
+        v[:, 0] = 0.0
+    cx, cy = rng.uniform(-40, 40, M), rng.uniform(-40, 40, M)
+    T = rng.uniform(1.0, 10.0, M)
+    psi = np.arange(K) * (2 * np.pi / K)
+    rays = regions._Rays((np.sin(phi), np.cos(phi)), sx, sy, v, cx, cy, T, psi)
+    return rays, (sx, sy, phi, v, cx, cy, T, psi)
+
+
+@pytest.mark.parametrize("unweighted", [False, True])
+def test_statistic_along_rays_matches_arctan2_and_both_evaluations_agree(unweighted):
+    # f = S - T along every ray against S written here with numpy's arctan2 (wrapped residuals); its slope against
+    # a central difference; and the evaluation of every ray at once against the one of gathered rays, bit for bit
+    # (the search uses one or the other depending on how many rays are left).
+    rng = np.random.default_rng(11)
+    rays, (sx, sy, phi, v, cx, cy, T, psi) = _random_rays(rng, unweighted=unweighted)
+    M, K = len(cx), len(psi)
+    rho = rng.uniform(1.0, 300.0, M * K)
+
+    def S(r):
+        rr = r.reshape(M, K)
+        x = cx[:, None, None] + rr[:, None, :] * np.sin(psi) - sx[:, :, None]
+        y = cy[:, None, None] + rr[:, None, :] * np.cos(psi) - sy[:, :, None]
+        res = (phi[:, :, None] - np.arctan2(x, y) + np.pi) % (2 * np.pi) - np.pi
+        return ((v[:, :, None] * res * res).sum(1) - T[:, None]).ravel()
+
+    f, df, safe = rays.f(rho)
+    assert f == pytest.approx(S(rho), rel=1e-9, abs=1e-9)
+    h = 1e-4
+    assert df == pytest.approx((S(rho + h) - S(rho - h)) / (2 * h), rel=1e-5, abs=1e-7)
+    # no residual wraps within the bound: the residuals move by less than pi, so S is smooth out to it
+    assert (safe > 0).all()
+    every = np.arange(M * K)
+    for mine, gathered in zip((f, df, safe), rays.f(rho, every)):
+        assert np.array_equal(mine, gathered)
+    some = every[::3]
+    assert np.array_equal(rays.f(rho[some], some, slope=False), f[some])
+
+
+def test_the_bound_without_arctan_never_claims_a_point_outside_that_is_inside():
+    # above() says S > T from sin^2 r <= r^2; wherever it says so, S written with arctan2 must exceed T.
+    rng = np.random.default_rng(12)
+    rays, (sx, sy, phi, v, cx, cy, T, psi) = _random_rays(rng, M=60)
+    M, K = len(cx), len(psi)
+    rho = rng.uniform(1.0, 3000.0, M * K)
+    rr = rho.reshape(M, K)
+    x = cx[:, None, None] + rr[:, None, :] * np.sin(psi) - sx[:, :, None]
+    y = cy[:, None, None] + rr[:, None, :] * np.cos(psi) - sy[:, :, None]
+    res = (phi[:, :, None] - np.arctan2(x, y) + np.pi) % (2 * np.pi) - np.pi
+    s = (v[:, :, None] * res * res).sum(1).ravel()
+    above = rays.above(rho)
+    assert above.any() and not above.all()
+    assert (s[above] > np.repeat(T, K)[above]).all()
+
+
+def test_rays_searched_on_in_a_pool_end_where_one_search_to_the_end_would(monkeypatch):
+    # Rays not settled after POOL_AFTER steps are set aside and searched on with other batches' (each ray's steps
+    # are its own): the regions must be bit for bit those of searching every batch to the end, whatever the batches.
+    rng = np.random.default_rng(21)
+    m, n = 400, 4
+    lat0, lon0 = rng.uniform(46.0, 49.0, m), rng.uniform(9.0, 17.0, m)
+    st = []
+    for la, lo in zip(lat0, lon0):
+        az = rng.uniform(0, 360) + np.arange(n) * 90.0 + rng.normal(0, 25, n)
+        st.append([(WGS.Direct(la, lo, a, d)["lat2"], WGS.Direct(la, lo, a, d)["lon2"])
+                   for a, d in zip(az, rng.uniform(300, 2500, n))])
+    st = np.asarray(st)
+    b = np.array([[WGS.Inverse(*s, la, lo)["azi1"] for s in row] for row, la, lo in zip(st, lat0, lon0)])
+    b = (b + rng.normal(0, 5, b.shape)) % 360
+    g = np.repeat(np.arange(m), n)
+    sol = estimators.solve(st[:, :, 0].ravel(), st[:, :, 1].ravel(), b.ravel(), g, m, np.full(m * n, 5.0))
+
+    def run(chunk):
+        return regions.likelihood_regions(sol.lat, sol.lon, g, st[:, :, 0].ravel(), st[:, :, 1].ravel(), b.ravel(),
+                                          sol.range_m, sol.azimuth_from_fix_deg, sol.residual_deg, sol.region_weight,
+                                          sol.sd_known, sol.dof, 0.95, valid=sol.converged, chunk=chunk)
+
+    pooled = [run(chunk) for chunk in (60, 1000)]
+    monkeypatch.setattr(regions, "POOL_AFTER", 60)         # never set aside: one search to the end per batch
+    whole = run(1000)
+    assert whole.has_region.sum() > 0.9 * m
+    for L in pooled:
+        for name in ("radius_m", "centre_x", "centre_y", "bounded", "star_shaped", "area_m2", "reach_m"):
+            assert np.array_equal(getattr(L, name), getattr(whole, name), equal_nan=True), name
