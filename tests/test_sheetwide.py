@@ -201,7 +201,7 @@ def test_the_turned_bearing_is_said_in_the_sheets_unit_and_north(tmp_path, unit,
     fx = locate(dfkit.read_bearings(p))
     reason = fx.table["reason"].iloc[0]
     shown = {"mil": " mil", "deg": "°"}[unit]
-    expected = f"enter {(written[1] + full // 2) % full}{shown} ({written[1]}{shown} turned, magnetic north)"
+    expected = f"enter {(written[1] + full // 2) % full}{shown} instead of {written[1]}{shown} (magnetic north)"
     assert expected in reason, reason
 
 

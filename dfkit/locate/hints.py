@@ -190,16 +190,18 @@ def _normal_deviance(r, owner, k, n, sd_deg, known, floor_rad):
 
 def turned_text(j, bearing, written=None):
     """Bearing ``j`` turned by a half circle as the user would enter it: the value the sheet wrote plus half a
-    circle in the row's own unit, with its north (``enter 351° (171° turned, magnetic north)``); the true bearing
-    turned when the written form is not known."""
+    circle in the row's own unit, with its north (``enter 351° instead of 171° (magnetic north)``: the old value is
+    named as what to replace, not as an amount to turn by); the true bearing turned when the written form is not
+    known."""
     from dfkit.conventions import FULL_CIRCLE
 
     if written is None:
-        return f"enter {_angle((bearing[j] + 180.0) % 360.0, 'deg')} (true north)"
+        return (f"enter {_angle((bearing[j] + 180.0) % 360.0, 'deg')} instead of {_angle(bearing[j] % 360.0, 'deg')} "
+                "(true north)")
     value, unit, north = (float(written[0][j]), str(written[1][j]), str(written[2][j]))
     full = FULL_CIRCLE.get(unit, 360.0)
     turned = (value + full / 2.0) % full
-    return f"enter {_angle(turned, unit)} ({_angle(value, unit)} turned, {north} north)"
+    return f"enter {_angle(turned, unit)} instead of {_angle(value, unit)} ({north} north)"
 
 
 def _angle(v, unit):
