@@ -391,3 +391,11 @@ def test_least_squares_with_an_observer_off_is_not_told_its_sd_is_too_small(tmp_
                 method="lsq")
     assert any("observer C" in w or "the bearings of this sheet" in w for w in fx.warnings), fx.warnings
     assert not [w for w in fx.warnings if w.startswith("the bearing SD of")], fx.warnings
+
+
+def test_a_turned_true_bearing_names_the_value_to_replace():
+    # 12.3° + 180° = 192.3° (arithmetic); 359.5° + 180° wraps to 179.5°
+    from dfkit.locate.hints import turned_text
+
+    assert turned_text(0, np.array([12.3])) == "enter 192.3° instead of 12.3° (true north)"
+    assert turned_text(0, np.array([359.5])) == "enter 179.5° instead of 359.5° (true north)"
