@@ -22,7 +22,8 @@ from dfkit.io.gpx import Track, read_track
 from dfkit.io.sheet import KNOWN_COLUMNS
 from dfkit.observations import north as north_mod
 from dfkit.observations.bearings import Bearings
-from dfkit.observations.cells import canonical, column, declinations, numbers, pick, same_value_columns
+from dfkit.observations.cells import (canonical, column, declinations, numbers, pick, same_value_columns,
+                                      text_column)
 from dfkit.observations.cells import filled as all_of
 from dfkit.observations.columns import check_columns, label_like_columns
 from dfkit.observations.grouping import fill_down, fix_identities, group_fixes, pair_codes
@@ -205,21 +206,22 @@ def read_bearings(sheet, options: ReadOptions | None = None, **kwargs) -> Bearin
 
     table = pd.DataFrame({
         "line": lines[keep] if masked or raw is not sheet else lines.copy(),
-        "fix": own(fix),
-        "tag": own(tag_c) if "tag" in t.columns or not n_kept else same("", "str"),   # no column: no tag (fill_down)
+        "fix": text_column(own(fix)),
+        # no tag column: no tag on any row (fill_down fills tags only from tags)
+        "tag": text_column(own(tag_c)) if "tag" in t.columns or not n_kept else same("", "str"),
         "time": pd.to_datetime(times[keep], unit="s", utc=True),
         "lat": pos.lat[keep],
         "lon": pos.lon[keep],
         "true_bearing": true_bearing[keep],
         "sd": sd[keep],
-        "sd_source": own(sd_from),
+        "sd_source": text_column(own(sd_from)),
         "declination": unless_none(magnetic_rows, lambda: np.where(magnetic_rows, dec_used, np.nan)),
         "convergence": unless_none(grid_rows, lambda: np.where(grid_rows, conv, np.nan)),
         "bearing": b[keep],
-        "unit": own(unit),
-        "north": own(north),
-        "position_from": own(pos.source),
-        "grouped_by": own(grouped_by),
+        "unit": text_column(own(unit)),
+        "north": text_column(own(north)),
+        "position_from": text_column(own(pos.source)),
+        "grouped_by": text_column(own(grouped_by)),
         "declination_sd": unless_none(magnetic_rows & dec_empty, lambda: np.where(magnetic_rows & dec_empty, dec_sd,
                                                                                   np.nan)),
     }, copy=False)

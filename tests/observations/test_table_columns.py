@@ -1,6 +1,7 @@
 """The Bearings table owns its columns: a change to one cell changes that cell only, not another column and not
 the sheet it was read from (a table handed to a user is theirs to edit)."""
 
+import numpy as np
 import pandas as pd
 import pytest
 
@@ -51,3 +52,16 @@ def test_a_change_to_a_column_no_row_fills_stays_in_that_column(write_sheet, ext
             assert cells[1] == value and cells[0] != value
         else:
             assert all(x == v for x in cells) if v is not None else b.table[c].isna().all(), c
+
+
+@pytest.mark.parametrize("cells", [["F1", "F2", "F2", "é"], ["deg"] * 5, ["a", None, ""], ["a", float("nan")], []])
+def test_a_text_column_is_the_column_pandas_infers_from_its_cells(cells):
+    # the reader hands its own text columns (labels, units, sources) to pandas ready-typed; the table must hold the
+    # column pandas itself would make of the cells
+    from dfkit.observations.cells import text_column
+
+    values = np.array(cells, dtype=object)
+    made = pd.DataFrame({"c": text_column(values.copy())}, copy=False)["c"]
+    inferred = pd.DataFrame({"c": values.copy()}, copy=False)["c"]
+    assert made.dtype == inferred.dtype
+    pd.testing.assert_series_equal(made, inferred, check_exact=True)
