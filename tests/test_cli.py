@@ -200,3 +200,14 @@ def test_process_command_line_freezes_import_objects_and_callers_keep_their_coll
     before = gc.get_freeze_count()
     assert main(["--version"]) == 0
     assert gc.get_freeze_count() == before
+
+
+@pytest.mark.parametrize("extra", [[], ["--bearings-out", "b.csv"], ["-o", "f.geojson"]])
+def test_the_summary_counts_the_bearings_used_whatever_is_written(write_sheet, tmp_path, capsys, monkeypatch, extra):
+    # 4 rows, one refused (bearing out of range): 3 used, whether the bearings are kept for an output or not
+    monkeypatch.chdir(tmp_path)
+    sheet = write_sheet(GOOD + "A,47,15,412,3\n")
+    assert main(["fix", str(sheet), "-o", "f.csv"] + extra) == 1
+    err = capsys.readouterr().err
+    assert "1 fix: 1 ok, 0 flagged, 0 failed; 3 of 4 rows used, 1 rejected" in err
+    assert (tmp_path / "f.csv").read_text().count("\n") == 2       # header and the one fix

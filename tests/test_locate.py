@@ -1,6 +1,7 @@
 """Fix statuses: fixes with no honest answer are named, never dropped, never faked; reasons say what happened."""
 
 import numpy as np
+import pandas as pd
 import pytest
 from geographiclib.geodesic import Geodesic
 
@@ -418,3 +419,24 @@ def test_a_rival_answer_from_two_bearings_is_not_given_a_p_value(write_sheet):
     assert "nan" not in reason
     if status == "ambiguous":
         assert "two lines always cross" in reason
+
+
+def test_a_sheet_column_named_like_a_fit_column_is_replaced_where_it_stands(write_sheet):
+    # the bearings table of the result adds residual_deg, weight, range_m and fix_status; a column of the bearings
+    # of one of these names (here 'weight', the antenna's mass, added by the user) is replaced in its place, the
+    # other columns kept as they are
+    b = read_bearings(write_sheet(sheet_of(good_rows("A", sd=2) + good_rows("B", sd=2)[:1])))
+    b.table.insert(5, "weight", "heavy")
+    f = locate(b)
+    cols = list(b.table.columns)
+    assert list(f.bearings.columns) == cols + [c for c in ("residual_deg", "range_m", "fix_status") if c not in cols]
+    for c in cols:
+        if c != "weight":
+            assert f.bearings[c].equals(b.table[c]), c
+    w = f.bearings["weight"].to_numpy(float)
+    assert np.isfinite(w[:3]).all() and np.isnan(w[3])          # fix B (one bearing) has no position
+    status = f.table.set_index("fix")["status"]
+    assert f.bearings["fix_status"].tolist() == [status["A"]] * 3 + [status["B"]]
+    # the column pandas makes of the words as Python objects, row by row
+    made = pd.DataFrame({"s": np.array(f.bearings["fix_status"].tolist(), dtype=object)})["s"]
+    assert f.bearings["fix_status"].dtype == made.dtype

@@ -279,7 +279,9 @@ def solve(a):
     return b, fixes, progress
 
 
-def print_summary(b, fixes) -> None:
+def print_summary(b, fixes, used: int | None = None) -> None:
+    """Print the problems, notes, warnings, flagged fixes and the counts; ``used``: the bearings used, when
+    ``b.table`` no longer holds them (default: its rows)."""
     report_problems(b.problems, sys.stderr)
     for note in fixes.notes:      # the reading notes, then the solving ones
         print(f"note            {note}", file=sys.stderr)
@@ -302,7 +304,7 @@ def print_summary(b, fixes) -> None:
               "--calibration", file=sys.stderr)
     nf = len(fixes.table)
     print(f"{b.source}: {nf} {'fix' if nf == 1 else 'fixes'}: {s['ok']} ok, {s['flagged']} flagged, "
-          f"{s['failed']} failed; {len(b.table)} of {count_text(b.n_rows, 'row')} used, "
+          f"{s['failed']} failed; {len(b.table) if used is None else used} of {count_text(b.n_rows, 'row')} used, "
           f"{rejected_summary(b)}",
           file=sys.stderr)
     print(CAUTION_LINE, file=sys.stderr)

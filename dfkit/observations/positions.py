@@ -218,6 +218,7 @@ class _State:
         self.n = n
         self.log = log
         none = filled(n, "")       # one array of '' for the roles the sheet has no column for (never changed)
+        self._no_column = none
         self.cells = {role: cells[role] if role in cells else none
                       for role in ("lat", "lon", "utm_zone", "utm_hemisphere", "easting", "northing", "mgrs",
                                    "station", "position")}
@@ -236,6 +237,11 @@ class _State:
         self.north_lon: dict[int, float] = {}
         self.reference = None       # (rows, medians) of the last fix reference (see _fix_reference)
         self.boxes = None           # (rows, loose fixes) of the last fix boxes (see _loose_fixes)
+
+    def written(self, *roles):
+        """Whether the sheet has a column for any of these roles: without, their cells are '' on every row, known
+        without a pass over them."""
+        return any(self.cells[role] is not self._no_column for role in roles)
 
     def none(self):
         """Rows without a position yet."""
@@ -270,6 +276,8 @@ class _State:
 
 def _combined(p: _State, decimal_comma):
     """A ``position`` cell holding latitude and longitude: split into the lat/lon cells of rows that have none."""
+    if not p.written("position"):
+        return
     cells = p.cells["position"]
     rows = np.flatnonzero((cells != "") & (p.cells["lat"] == "") & (p.cells["lon"] == ""))
     if not len(rows):
@@ -331,6 +339,8 @@ def _note_packed(log: RowLog, c, cells, name):
 
 
 def _mgrs(p: _State):
+    if not p.written("mgrs"):
+        return
     cells = p.cells["mgrs"]
     idx = np.flatnonzero((cells != "") & ~p.log.bad)
     if not len(idx):
@@ -360,6 +370,8 @@ def _square(size_m):
 
 
 def _station(p: _State, stations):
+    if not p.written("station"):
+        return
     cells = p.cells["station"]
     idx = np.flatnonzero((cells != "") & ~p.log.bad & p.none())
     if not len(idx) or stations is None:
@@ -429,7 +441,8 @@ def _zone_and_hemisphere(p: _State):
 
 def _utm(p: _State, decimal_comma, utm_letters, groups, track_ll):
     log = p.log
-    if not ((p.cells["utm_zone"] != "") | (p.cells["easting"] != "") | (p.cells["northing"] != "")).any():
+    if not p.written("utm_zone", "easting", "northing") or \
+            not ((p.cells["utm_zone"] != "") | (p.cells["easting"] != "") | (p.cells["northing"] != "")).any():
         return
     p.cells = dict(p.cells)
     for k in ("utm_zone", "easting", "northing"):

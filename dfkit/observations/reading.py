@@ -22,7 +22,8 @@ from dfkit.io.gpx import Track, read_track
 from dfkit.io.sheet import KNOWN_COLUMNS
 from dfkit.observations import north as north_mod
 from dfkit.observations.bearings import Bearings
-from dfkit.observations.cells import canonical, column, declinations, numbers, pick
+from dfkit.observations.cells import (canonical, column, declinations, numbers, pick, same_value_columns,
+                                      text_column)
 from dfkit.observations.cells import filled as all_of
 from dfkit.observations.columns import check_columns, label_like_columns
 from dfkit.observations.grouping import fill_down, fix_identities, group_fixes, pair_codes
@@ -181,9 +182,17 @@ def read_bearings(sheet, options: ReadOptions | None = None, **kwargs) -> Bearin
     # it is made from are still alive). Each array below is made here for the table alone, but for the lines and
     # text columns; a text column that shares memory with another column, or with the caller's own RawSheet (a
     # column handed over as read), is copied, and so are the lines of the caller's sheet: a cell changed in the
-    # table changes no other, and not the caller's sheet (a sheet read here is dropped on return)
+    # table changes no other, and not the caller's sheet (a sheet read here is dropped on return). Columns that hold
+    # one value on every row because nothing fills them share one array (pandas copies it on a change: the same)
     masked = bool(log.bad.any())
     keep = ~log.bad if masked else slice(None)
+    n_kept = int((~log.bad).sum())
+    same = same_value_columns(n_kept)    # no magnetic, no grid bearing; no tag, observer ... column
+
+    def unless_none(rows, values):
+        """``values[keep]``, or the shared all-NaN column where no row has one."""
+        return values()[keep] if rows.any() else same(np.nan, np.float64)
+
     taken = [t[c].to_numpy(dtype=object) for c in t.columns
              if t[c].dtype.kind not in "fiuMm"] if raw is sheet and not masked else []
 
@@ -197,31 +206,31 @@ def read_bearings(sheet, options: ReadOptions | None = None, **kwargs) -> Bearin
 
     table = pd.DataFrame({
         "line": lines[keep] if masked or raw is not sheet else lines.copy(),
-        "fix": own(fix),
-        "tag": own(tag_c),
+        "fix": text_column(own(fix)),
+        # no tag column: no tag on any row (fill_down fills tags only from tags)
+        "tag": text_column(own(tag_c)) if "tag" in t.columns or not n_kept else same("", "str"),
         "time": pd.to_datetime(times[keep], unit="s", utc=True),
         "lat": pos.lat[keep],
         "lon": pos.lon[keep],
         "true_bearing": true_bearing[keep],
         "sd": sd[keep],
-        "sd_source": own(sd_from),
-        "declination": np.where(magnetic_rows, dec_used, np.nan)[keep],
-        "convergence": np.where(grid_rows, conv, np.nan)[keep],
+        "sd_source": text_column(own(sd_from)),
+        "declination": unless_none(magnetic_rows, lambda: np.where(magnetic_rows, dec_used, np.nan)),
+        "convergence": unless_none(grid_rows, lambda: np.where(grid_rows, conv, np.nan)),
         "bearing": b[keep],
-        "unit": own(unit),
-        "north": own(north),
-        "position_from": own(pos.source),
-        "grouped_by": own(grouped_by),
-        "declination_sd": np.where(magnetic_rows & dec_empty, dec_sd, np.nan)[keep],
+        "unit": text_column(own(unit)),
+        "north": text_column(own(north)),
+        "position_from": text_column(own(pos.source)),
+        "grouped_by": text_column(own(grouped_by)),
+        "declination_sd": unless_none(magnetic_rows & dec_empty, lambda: np.where(magnetic_rows & dec_empty, dec_sd,
+                                                                                  np.nan)),
     }, copy=False)
     for c in raw.columns:
         if (c not in KNOWN_COLUMNS or c in ("observer", "antenna", "note")) and c not in table.columns:
             table[c] = own(t[c].to_numpy(dtype=object))
-    blank = None
     for c in ("observer", "antenna", "note"):
-        if c not in table.columns:         # each its own array: a copy of the first is made without a pass over it
-            blank = pd.Series(all_of(len(table), ""), dtype="str") if blank is None else blank
-            table[c] = blank.array.copy()
+        if c not in table.columns:
+            table[c] = same("", "str")
     table = table.reset_index(drop=True)
     ids, fix_index = fix_identities(fix, tag_c, log.bad, lines, ids)
     table.insert(1, "fix_id", ids[keep])

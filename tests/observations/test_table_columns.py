@@ -1,6 +1,7 @@
 """The Bearings table owns its columns: a change to one cell changes that cell only, not another column and not
 the sheet it was read from (a table handed to a user is theirs to edit)."""
 
+import numpy as np
 import pandas as pd
 import pytest
 
@@ -31,3 +32,36 @@ def test_the_sheet_read_stays_as_it_was(write_sheet):
     b.table.loc[0, "fix"] = "Z"
     b.table.loc[0, "site"] = "Z"
     assert raw.table["fix"].tolist() == fix and raw.table["site"].tolist() == site
+
+
+@pytest.mark.parametrize("extra", ["", BAD_ROW])
+@pytest.mark.parametrize("name, value", [("tag", "t1"), ("observer", "ann"), ("antenna", "yagi"), ("note", "n"),
+                                         ("declination", 3.5), ("convergence", 0.5), ("declination_sd", 0.2)])
+def test_a_change_to_a_column_no_row_fills_stays_in_that_column(write_sheet, extra, name, value):
+    # the sheet has no tag, observer, antenna or note column and no magnetic or grid bearing: these columns are
+    # empty (NaN for the numbers) on every row, and a cell set in one of them is set there only
+    b = read_bearings(write_sheet(SHEET + extra))
+    empty = {"tag": "", "observer": "", "antenna": "", "note": "", "declination": None, "convergence": None,
+             "declination_sd": None}
+    for c, v in empty.items():
+        assert (b.table[c] == v).all() if v is not None else b.table[c].isna().all(), c
+    b.table.loc[1, name] = value
+    for c, v in empty.items():
+        cells = b.table[c].tolist()
+        if c == name:
+            assert cells[1] == value and cells[0] != value
+        else:
+            assert all(x == v for x in cells) if v is not None else b.table[c].isna().all(), c
+
+
+@pytest.mark.parametrize("cells", [["F1", "F2", "F2", "é"], ["deg"] * 5, ["a", None, ""], ["a", float("nan")], []])
+def test_a_text_column_is_the_column_pandas_infers_from_its_cells(cells):
+    # the reader hands its own text columns (labels, units, sources) to pandas ready-typed; the table must hold the
+    # column pandas itself would make of the cells
+    from dfkit.observations.cells import text_column
+
+    values = np.array(cells, dtype=object)
+    made = pd.DataFrame({"c": text_column(values.copy())}, copy=False)["c"]
+    inferred = pd.DataFrame({"c": values.copy()}, copy=False)["c"]
+    assert made.dtype == inferred.dtype
+    pd.testing.assert_series_equal(made, inferred, check_exact=True)
