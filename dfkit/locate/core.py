@@ -11,7 +11,7 @@ import numpy as np
 import pandas as pd
 
 from dfkit import estimators, geodesy, regions
-from dfkit.locate.fixes import FIX_COLUMNS, WITH_POSITION, Fixes, has_position
+from dfkit.locate.fixes import FIX_COLUMNS, WITH_POSITION, Fixes, has_position, per_bearing
 from dfkit.locate.hints import one_bearing_hints
 from dfkit.locate.offsets import fix_offsets
 from dfkit.locate.resolution import fix_steps, sd_floors
@@ -166,18 +166,10 @@ def _with_fit(b, g, has_pos, sol, status):
         return bt
     pos_b = has_pos[g]
     new = {"residual_deg": np.where(pos_b, sol.residual_deg, np.nan), "weight": np.where(pos_b, sol.weight, np.nan),
-           "range_m": np.where(pos_b, sol.range_m, np.nan), "fix_status": _per_bearing(status, g)}
+           "range_m": np.where(pos_b, sol.range_m, np.nan), "fix_status": per_bearing(status, g)}
     columns = {c: b[c] for c in b.columns}
     columns.update(new)       # a column of the sheet by one of these names is replaced where it stands, as before
     return pd.DataFrame(columns, index=b.index, copy=False)
-
-
-def _per_bearing(words, g):
-    """A text array of the fixes (one word per fix) taken to their bearings: the column pandas makes of
-    ``words[g]``, made as pandas' own text array of the fixes' words (its type inferred from one cell per fix)
-    and taken to the bearings. Handing pandas the object array ``words[g]`` makes it infer the type of each of the
-    bearings' cells, with transient copies of about five times the column (16 MB at 400,000 bearings)."""
-    return pd.Series(words, copy=False).array.take(g)
 
 
 def _time_span(b, g, m):

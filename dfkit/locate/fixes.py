@@ -273,3 +273,10 @@ def _simple_regions(lat, lon):
     out[idx[ok]] = shapely.polygons(shapely.get_exterior_ring(part))
     return out
 
+
+def per_bearing(words, g):
+    """A text array of the fixes (one word per fix) taken to their bearings: the column pandas makes of
+    ``words[g]``, made as pandas' own text array of the fixes' words (its type inferred from one cell per fix)
+    and taken to the bearings. Handing pandas the object array ``words[g]`` makes it infer the type of each of the
+    bearings' cells, with transient copies of about five times the column (16 MB at 400,000 bearings)."""
+    return pd.Series(words, copy=False).array.take(g)

@@ -30,7 +30,7 @@ from math import lgamma
 import numpy as np
 import pandas as pd
 
-from dfkit.locate.fixes import WITH_POSITION, has_position
+from dfkit.locate.fixes import WITH_POSITION, has_position, per_bearing
 from dfkit.locate.offsets import sheet_offsets, whitened_gradients
 from dfkit.locate.status import at_minimum
 from dfkit.policy import INCONSISTENT_P
@@ -81,11 +81,11 @@ def review(fixes):
             _mark(status, reasons, i, chk["reason"])
     if (status == t["status"].to_numpy(dtype=object)).all() and len(warnings) == len(fixes.warnings):
         return fixes
-    t = t.copy()
+    t = t.copy(deep=False)         # two columns replaced: the others stay shared (copy-on-write), not copied
     t["status"] = status
     t["reason"] = reasons
     bt = b.copy(deep=False)
-    bt["fix_status"] = status[b["fix_id"].to_numpy(dtype=np.int64)]
+    bt["fix_status"] = per_bearing(status, b["fix_id"].to_numpy(dtype=np.int64))
     return replace(fixes, table=t, bearings=bt, warnings=warnings, _regions=fixes._regions)
 
 
