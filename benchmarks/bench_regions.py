@@ -94,7 +94,7 @@ def paired(regions, other_dir, sol, g, lat, lon, b, pairs, memory=False):
             last[name] = mod.likelihood_regions(*args, **kw)
             cpu[name].append(time.process_time() - c0)
     fields = ("has_region", "centre_x", "centre_y", "radius_m", "bounded", "star_shaped", "area_m2", "reach_m",
-              "s_min", "threshold")
+              "s_min", "threshold", "draw_range_m")
     differ = [f for f in fields if not np.array_equal(getattr(last["old"], f), getattr(last["new"], f), equal_nan=True)]
     print("same regions bit for bit (" + ", ".join(fields) + ")" if not differ else f"regions differ: {differ}")
     del last

@@ -420,17 +420,9 @@ def test_the_bound_without_arctan_never_claims_a_point_outside_that_is_inside():
 def test_rays_searched_on_in_a_pool_end_where_one_search_to_the_end_would(monkeypatch):
     # Rays not settled after POOL_AFTER steps are set aside and searched on with other batches' (each ray's steps
     # are its own): the regions must be bit for bit those of searching every batch to the end, whatever the batches.
-    rng = np.random.default_rng(21)
+    # (season_fixes' 400 fixes pool six batches of 60 into one resumed search: the row and ray offsets are used)
     m, n = 400, 4
-    lat0, lon0 = rng.uniform(46.0, 49.0, m), rng.uniform(9.0, 17.0, m)
-    st = []
-    for la, lo in zip(lat0, lon0):
-        az = rng.uniform(0, 360) + np.arange(n) * 90.0 + rng.normal(0, 25, n)
-        st.append([(WGS.Direct(la, lo, a, d)["lat2"], WGS.Direct(la, lo, a, d)["lon2"])
-                   for a, d in zip(az, rng.uniform(300, 2500, n))])
-    st = np.asarray(st)
-    b = np.array([[WGS.Inverse(*s, la, lo)["azi1"] for s in row] for row, la, lo in zip(st, lat0, lon0)])
-    b = (b + rng.normal(0, 5, b.shape)) % 360
+    st, b = season_fixes(range(m), n_fix=m, k=n)
     g = np.repeat(np.arange(m), n)
     sol = estimators.solve(st[:, :, 0].ravel(), st[:, :, 1].ravel(), b.ravel(), g, m, np.full(m * n, 5.0))
 
