@@ -2,7 +2,6 @@
 
 from __future__ import annotations
 
-import os
 import sys
 from dataclasses import replace
 
@@ -40,7 +39,7 @@ def add_parser(sub):
 
 
 def run(a) -> int:
-    from dfkit.export import WRITERS, WriteOptions, write_fixes, write_table
+    from dfkit.export import WRITERS, WriteOptions, output_kind, write_fixes, write_table
 
     refuse_unsafe_outputs(a, [("-o", p) for p in a.output] + [("--bearings-out", a.bearings_out)])
     refuse_wrong_kinds([("-o", p, tuple(WRITERS)) for p in a.output]
@@ -60,7 +59,7 @@ def run(a) -> int:
                         error_polygons=a.error_polygons, guard_formulas=not a.verbatim_csv)
     b, fixes, progress = solve(a)
     used = len(b.table)
-    if not (a.figures or a.bearings_out) and all(os.path.splitext(p)[1].lower() in CSV_KINDS for p in a.output):
+    if not (a.figures or a.bearings_out) and all(output_kind(p) in CSV_KINDS for p in a.output):
         b, fixes = fix_table_only(b, fixes)
     for path in a.output:
         progress(f"writing {path}")

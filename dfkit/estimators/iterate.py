@@ -332,7 +332,7 @@ def _halve(form, b, grp, bcg, sel_g, x, y, F, sx_, sy_, lam, slope, step_len, ac
             local = (np.cumsum(keep) - 1)[local[kb]]
             cols = cols[keep]
         left = total - start[cols].min() if len(cols) else 0
-        kk = min(left, left if len(bsub) * left <= SMALL_BATCH else BATCH)
+        kk = left if len(bsub) * left <= SMALL_BATCH else min(BATCH, left)
 
 
 def _first_unproven(form, b, bsub, local, n, lam0, x0, y0, ux, uy, Fo, slope, step_len, c, tol, total):
@@ -377,9 +377,8 @@ def _proven_to_fail(form, sub, lams, x0, y0, ux, uy, Fo, slope, step_len, c, tol
     yt = y0 + lams * uy
     with np.errstate(all="ignore"):
         lb = form.objective(form.at(sub, xt, yt), sub, c)
-        tiny = lams * step_len < tol
-        flat = np.abs(Fo) * FLAT
-        return ~tiny & (lb > Fo + ARMIJO * lams * slope) & (~(lams * np.abs(slope) < flat) | (lb > Fo + flat))
+        ok, floor = _armijo(lb, Fo, lams, slope, step_len, tol)     # the test itself, on the one term
+    return ~(ok | floor)
 
 
 #: Plain re-weighting rounds before Stansfield's fixed point is searched by Newton's method on T(x) - x.

@@ -366,6 +366,8 @@ def _attempts(ctx, state, which, n_starts, x0, y0, more=None):
 #: Per-fix entries of the solver's context (the others are per bearing, or shared).
 _CTX_PER_FIX = ("r_run", "spread", "centre_lat", "centre_lon", "floor_g")
 _CTX_PER_BEARING = ("lat", "lon", "theta", "floor_b", "w", "s_b")
+#: Entries set by the retries (per fix, and per bearing) and read only by ``_finish``.
+_CTX_FINISH_ONLY = ("soft", "forced", "forced_out")
 
 
 def _later_starts_together(ctx, state, todo, first, n_starts, x0, y0):
@@ -392,6 +394,8 @@ def _later_starts_together(ctx, state, todo, first, n_starts, x0, y0):
     offsets = np.concatenate(([0], np.cumsum(counts)[:-1]))
     owner, rows = expand(counts[v_fix], offsets[v_fix], order)
     vctx = dict(ctx, g=owner, m=mv, geo0=ctx["geo0"].take(rows))
+    for k in _CTX_FINISH_ONLY:      # sized for the real fixes and read only when they are finished: not carried
+        vctx.pop(k, None)
     for k in _CTX_PER_FIX:
         vctx[k] = ctx[k][v_fix]
     for k in _CTX_PER_BEARING:

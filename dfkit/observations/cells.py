@@ -104,7 +104,7 @@ def same_value_columns(n: int):
     made: dict = {}
 
     def make(value, dtype) -> pd.Series:
-        key = (value if value == value else "nan", str(dtype))
+        key = (type(value), value if value == value else "nan", str(dtype))     # the text "nan" is no NaN
         if key not in made or not SHARES_ON_WRITE:
             values = filled(n, value) if dtype == "str" else np.full(n, value, dtype=dtype)
             made[key] = pd.Series(values, dtype=dtype, copy=False)

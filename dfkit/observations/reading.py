@@ -206,9 +206,10 @@ def read_bearings(sheet, options: ReadOptions | None = None, **kwargs) -> Bearin
 
     table = pd.DataFrame({
         "line": lines[keep] if masked or raw is not sheet else lines.copy(),
-        "fix": text_column(own(fix)),
+        # labels of a column a caller's sheet holds as numbers stay numbers (only text cells are typed as text)
+        "fix": own(fix) if "fix" in raw.numeric else text_column(own(fix)),
         # no tag column: no tag on any row (fill_down fills tags only from tags)
-        "tag": text_column(own(tag_c)) if "tag" in t.columns or not n_kept else same("", "str"),
+        "tag": (own(tag_c) if "tag" in raw.numeric else text_column(own(tag_c))) if "tag" in t.columns or not n_kept else same("", "str"),
         "time": pd.to_datetime(times[keep], unit="s", utc=True),
         "lat": pos.lat[keep],
         "lon": pos.lon[keep],

@@ -65,3 +65,17 @@ def test_a_text_column_is_the_column_pandas_infers_from_its_cells(cells):
     inferred = pd.DataFrame({"c": values.copy()}, copy=False)["c"]
     assert made.dtype == inferred.dtype
     pd.testing.assert_series_equal(made, inferred, check_exact=True)
+
+
+def test_labels_a_caller_read_as_numbers_stay_numbers(tmp_path):
+    # A caller's sheet whose fix and tag columns were read as numbers keeps them as numbers (the sheet's own
+    # values: labels 150 and 151, tag 7); only the reader's text cells are typed as text.
+    from dfkit.observations.reading import NUMERIC_COLUMNS
+
+    p = tmp_path / "numeric_labels.csv"
+    p.write_text("fix,tag,lat,lon,bearing\n150,7,47.0,11.0,10\n150,7,47.01,11.01,200\n"
+                 "151,7,47.0,11.0,20\n151,7,47.01,11.01,210\n")
+    raw = read_table(p, numeric=dict(NUMERIC_COLUMNS, fix=None, tag=None))
+    t = read_bearings(raw).table
+    assert t["fix"].tolist() == [150.0, 150.0, 151.0, 151.0]
+    assert t["tag"].tolist() == [7.0] * 4
