@@ -603,7 +603,6 @@ def test_fixes_solved_in_chunks_are_those_of_one_call_bit_for_bit(monkeypatch, m
     # Every fix is solved from its own bearings alone, so cutting the fixes into chunks (to bound the working
     # memory) must change no bit of any field, per fix or per bearing. Invented fixes of 1-6 bearings, rows of
     # different fixes interleaved, some wild bearings, some parallel lines; the chunk size is forced down to 7.
-    import dataclasses
     import importlib
 
     solve_mod = importlib.import_module("dfkit.estimators.solve")
@@ -623,13 +622,7 @@ def test_fixes_solved_in_chunks_are_those_of_one_call_bit_for_bit(monkeypatch, m
     one = estimators.solve(lat, lon, theta, g, m, sd, method=method)
     monkeypatch.setattr(solve_mod, "SOLVE_CHUNK_FIXES", 7)
     cut = estimators.solve(lat, lon, theta, g, m, sd, method=method)
-    for f in dataclasses.fields(one):
-        a, b = getattr(one, f.name), getattr(cut, f.name)
-        if isinstance(a, np.ndarray):
-            assert a.dtype == b.dtype and a.shape == b.shape, f.name
-            assert np.array_equal(a, b, equal_nan=True), f.name
-        else:
-            assert a == b, f.name
+    _same_solutions(one, cut)
 
 
 def _creeping_fixes(m=300, seed=11):
