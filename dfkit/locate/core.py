@@ -129,7 +129,7 @@ def locate_chunk(bearings: Bearings, *, method: str, level: float, window_min: f
     written = ((b["bearing"].to_numpy(float), b["unit"].to_numpy(object), b["north"].to_numpy(object))
                if len(b) else None)
     hints = one_bearing_hints(lat, lon, theta, sd, g, counts, lines, np.where(mild, "", status), method, robust_c,
-                              floor, written)
+                              floor, written, fit=sol)
     if hints:      # only the fixes with hints are judged again
         facts.hints = hints
         status, reasons = classify(facts, (status, reasons), redo=hints)

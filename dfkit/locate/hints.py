@@ -42,10 +42,12 @@ MAX_EXAMINED = 20_000
 CLEAR_EVIDENCE = 8.0
 
 
-def one_bearing_hints(lat, lon, bearing, sd, g, counts, lines, status, method, robust_c, sd_floor=None, written=None):
+def one_bearing_hints(lat, lon, bearing, sd, g, counts, lines, status, method, robust_c, sd_floor=None, written=None,
+                      *, fit):
     """Extra reason texts per fix index: {fix: [text, ...]}. ``sd_floor``: each bearing's SD floor [°];
     ``written``: each bearing as the sheet wrote it, (value, unit, north) arrays, so that a turned bearing is
-    said as the user would enter it (:func:`turned_text`)."""
+    said as the user would enter it (:func:`turned_text`); ``fit``: the fixes' own solution (bearings as read),
+    whose likelihood a turned bearing is weighed against."""
     m = len(counts)
     out: dict[int, list[str]] = {}
     look = np.flatnonzero(status_in(status, EXAMINED) & (counts >= 2))[:MAX_EXAMINED]
@@ -65,7 +67,7 @@ def one_bearing_hints(lat, lon, bearing, sd, g, counts, lines, status, method, r
                                              "turn it by 180°; otherwise take a third bearing")
             continue
         # each line turned, each line left out (with three bearings never named alone, but it may explain the
-        # fix as well as a turn); the bearings as read are solved later, only where a turn is weighed against them
+        # fix as well as a turn); the bearings as read are the fixes' own fit (``fit``)
         items += [(i, "flip", j, sel) for j in sel] + [(i, "drop", j, sel) for j in sel]
     if not items:
         return out
@@ -94,7 +96,7 @@ def one_bearing_hints(lat, lon, bearing, sd, g, counts, lines, status, method, r
             if np.all(np.abs(r_new) <= max(WILD_SD * float(sol.sd_deg[v]), 1e-9)) or len(flips) == 1:
                 best_flip[i] = (j, v)
     beside = _beside_an_observer(best_flip, lat, lon, bearing, sd, floor, order, starts, known_g)
-    as_read = _as_read(best_flip, lat, lon, bearing, sd, floor, order, starts, method, robust_c)
+    as_read = _deviance(fit, g, m, sd, np.zeros(m, bool)) if best_flip else None     # the bearings as read
     for i in look:
         i = int(i)
         found = by_fix.get(i, [])
@@ -105,7 +107,7 @@ def one_bearing_hints(lat, lon, bearing, sd, g, counts, lines, status, method, r
         if i in best_flip:
             j, v = best_flip[i]
             rivals = [(deviance[x[3]], "wild", x[3], x[2]) for x in drops if x[2] != j]
-            rivals += [(as_read[i], "as read", -1, -1), (beside[i][0], "beside", -1, beside[i][1])]
+            rivals += [(float(as_read[i]), "as read", -1, -1), (beside[i][0], "beside", -1, beside[i][1])]
             out.setdefault(i, []).append(_reversal_text(j, v, rivals, deviance, sol, lines, bearing, written))
         elif counts[i] >= 4 and drops:
             best = drops[0]
@@ -130,7 +132,7 @@ def one_bearing_hints(lat, lon, bearing, sd, g, counts, lines, status, method, r
 
 def _solve_variants(items, lat, lon, bearing, sd, floor, method, robust_c):
     """Solve the variants ``items`` (fix, kind, bearing index, the fix's bearings; kind "flip": that bearing
-    turned by 180 degrees, "drop": without it, "asis": as read) in one vectorised call: the solution, each
+    turned by 180 degrees, "drop": without it) in one vectorised call: the solution, each
     variant bearing's variant number and SD."""
     v_lat, v_lon, v_b, v_sd, v_fl, v_g = [], [], [], [], [], []
     for k, (_, kind, j, sel) in enumerate(items):
@@ -149,18 +151,6 @@ def _solve_variants(items, lat, lon, bearing, sd, floor, method, robust_c):
     sol = estimators.solve(np.concatenate(v_lat), np.concatenate(v_lon), np.concatenate(v_b), vg, len(items),
                            v_sd, method=method, robust_c=robust_c, sd_floor_deg=np.concatenate(v_fl))
     return sol, vg, v_sd
-
-
-def _as_read(fixes_, lat, lon, bearing, sd, floor, order, starts, method, robust_c):
-    """For each fix of ``fixes_``: -2 log likelihood (:func:`_deviance`) of its bearings as read, at their own
-    answer (each fix solved again, as read, on its own: the same answer as the fix's)."""
-    if not len(fixes_):
-        return {}
-    fixes = [int(i) for i in fixes_]
-    items = [(i, "asis", -1, order[starts[i]:starts[i + 1]]) for i in fixes]
-    sol, vg, v_sd = _solve_variants(items, lat, lon, bearing, sd, floor, method, robust_c)
-    dev = _deviance(sol, vg, len(items), v_sd, np.zeros(len(items), bool))
-    return {i: float(dev[t]) for t, i in enumerate(fixes)}
 
 
 def _deviance(sol, vg, k, sd_deg, wild):
