@@ -257,6 +257,9 @@ PLANE_TOLERANCE = 0.01
 WHOLE_BATCH = 0.3
 #: Batches of fixes whose minima of S are found together (that step's arrays are (fixes, bearings) only).
 MINIMUM_BATCHES = 10
+#: The doubled-angle bound of :func:`_s_at_infinity` must clear T by this fraction of the fix's summed weights before
+#: the rays' own sums are skipped (the two differ by rounding only, some 1e-15 of the summed weights).
+DOUBLED_MARGIN = 1e-9
 _EARTH_R = 6_371_000.0
 _TWO_PI = 2.0 * np.pi
 
@@ -1142,18 +1145,29 @@ def _s_at_infinity(rays, trig, phi, v, psi, T):
         return (w[:, :, None] * r * r).sum(1).min(axis=1)
 
     s_inf = limit(phi[:, :, None] - mean[:, None, :], v)
+    # sum v sin^2(phi - psi) = (sum v - sum v cos 2(phi - psi)) / 2 is at least (sum v - |sum v e^(2i phi)|) / 2 in
+    # every direction psi; where that clears T by far more than rounding can move the rays' own sums (DOUBLED_MARGIN),
+    # no ray's sum is below T and they are not formed (a fix whose s_inf is below T needs none either)
+    sv = _bearing_sum(v)
+    c2 = _bearing_sum(v * ((trig[1] - trig[0]) * (trig[1] + trig[0])))
+    s2 = _bearing_sum(v * (2.0 * trig[0] * trig[1]))
+    least = 0.5 * (sv - np.hypot(c2, s2))
+    rows = np.flatnonzero((s_inf >= T) & ~(least - DOUBLED_MARGIN * sv >= T))
+    if not len(rows):
+        return s_inf
     # sum v sin^2(phi - psi) = sum v B B, bearing by bearing (the rows added in order, as sum(0) adds them)
     B = rays.B.reshape(rays.n, M, -1)
     bound = t = None
     for k in range(rays.n):
-        t = np.multiply(rays.v[k][:, None], B[k], out=t)
-        t *= B[k]
+        Bk = B[k][rows]
+        t = np.multiply(rays.v[k][rows, None], Bk, out=t)
+        t *= Bk
         if bound is None:
             bound = t.copy()
         else:
             bound += t
-    low = (bound.min(axis=1) < T) & (s_inf >= T)
-    if low.any():
+    low = rows[bound.min(axis=1) < T[rows]]
+    if len(low):
         s_inf[low] = np.minimum(s_inf[low], limit(phi[low][:, :, None] - psi[None, None, :], v[low]))
     return s_inf
 

@@ -438,3 +438,37 @@ def test_rays_searched_on_in_a_pool_end_where_one_search_to_the_end_would(monkey
     for L in pooled:
         for name in ("radius_m", "centre_x", "centre_y", "bounded", "star_shaped", "area_m2", "reach_m"):
             assert np.array_equal(getattr(L, name), getattr(whole, name), equal_nan=True), name
+
+
+def test_the_limit_far_out_looks_at_every_ray_whose_sine_bound_is_below_the_threshold():
+    # S far out along a direction psi tends to sum v wrap(phi - psi)^2. Its least value is taken over the bearings'
+    # mean direction and, for a fix where sum v sin^2(phi - psi) falls below T on some ray, over every ray; the
+    # module skips the rays' sums where a bound shows none can. Checked against those sums written here with numpy's
+    # sin (nearly parallel bearings make the sine sums small, spread ones large).
+    rng = np.random.default_rng(21)
+    M, n, K = 400, 3, 16
+    spread = rng.choice([1e-3, 0.03, 0.1, 0.3, 2.0], size=(M, 1))
+    phi = rng.uniform(0, 2 * np.pi, (M, 1)) + rng.normal(0, 1, (M, n)) * spread
+    v = rng.uniform(0.5, 2.0, (M, n))
+    sx, sy = rng.uniform(-1500, 1500, (M, n)), rng.uniform(-1500, 1500, (M, n))
+    cx, cy = rng.uniform(-40, 40, M), rng.uniform(-40, 40, M)
+    T = rng.uniform(0.001, 3.0, M)
+    psi = np.arange(K) * (2 * np.pi / K)
+    trig = (np.sin(phi), np.cos(phi))
+    rays = regions._Rays(trig, sx, sy, v, cx, cy, T, psi)
+    got = regions._s_at_infinity(rays, trig, phi, v, psi, T)
+
+    def wrap(a):
+        return (a + np.pi) % (2 * np.pi) - np.pi
+
+    mean = np.arctan2((v * np.sin(phi)).sum(1), (v * np.cos(phi)).sum(1))
+    at_mean = (v * wrap(phi - mean[:, None]) ** 2).sum(1)
+    sines = (v[:, :, None] * np.sin(phi[:, :, None] - psi) ** 2).sum(1).min(1)
+    at_rays = (v[:, :, None] * wrap(phi[:, :, None] - psi) ** 2).sum(1).min(1)
+    clear = np.abs(sines - T) > 1e-9 * T          # fixes whose sine sum is not within rounding of T
+    low = (sines < T) & (at_mean >= T)
+    want = np.where(low, np.minimum(at_mean, at_rays), at_mean)
+    assert clear.mean() > 0.99
+    assert low[clear].sum() > 20 and (~low & (at_mean >= T))[clear].sum() > 20       # both cases are met
+    assert (at_rays < at_mean)[low & clear].any()                                   # a ray's limit is the least
+    assert got[clear] == pytest.approx(want[clear], rel=1e-12)
