@@ -472,3 +472,29 @@ def test_the_limit_far_out_looks_at_every_ray_whose_sine_bound_is_below_the_thre
     assert low[clear].sum() > 20 and (~low & (at_mean >= T))[clear].sum() > 20       # both cases are met
     assert (at_rays < at_mean)[low & clear].any()                                   # a ray's limit is the least
     assert got[clear] == pytest.approx(want[clear], rel=1e-12)
+
+
+@pytest.mark.parametrize("n", [2, 3, 4, 6])
+def test_the_bound_without_arctan_is_the_sum_over_every_bearing(n):
+    # above() stops adding bearings' terms on rays whose first ones already exceed T (a sum of non-negative terms
+    # only grows): its answer must be that of the whole sum, written here with numpy's sin and cos, wherever that
+    # sum is not within rounding of T; rays that exceed T only with the later bearings must be among them.
+    rng = np.random.default_rng(30 + n)
+    rays, (sx, sy, phi, v, cx, cy, T, psi) = _random_rays(rng, M=80, n=n)
+    M, K = len(cx), len(psi)
+    rho = rng.uniform(1.0, 3000.0, M * K)
+    rr = rho.reshape(M, K)
+    dx = cx[:, None, None] + rr[:, None, :] * np.sin(psi) - sx[:, :, None]
+    dy = cy[:, None, None] + rr[:, None, :] * np.cos(psi) - sy[:, :, None]
+    across = np.sin(phi)[:, :, None] * dy - np.cos(phi)[:, :, None] * dx
+    terms = v[:, :, None] * across**2 / (dx**2 + dy**2)               # v sin^2 r, (M, n, K)
+    whole = terms.sum(1).ravel()
+    first_two = terms[:, :2].sum(1).ravel()
+    Tr = np.repeat(T, K)
+    clear = np.abs(whole - Tr) > 1e-9 * Tr
+    got = rays.above(rho)
+    assert clear.mean() > 0.99
+    assert got.any() and not got.all()
+    if n > 2:
+        assert ((first_two <= Tr) & (whole > Tr) & clear).sum() > 10
+    assert np.array_equal(got[clear], (whole > Tr)[clear])
