@@ -908,10 +908,10 @@ def _model_roots(r, f, df, gap, curv):
     with np.errstate(divide="ignore", invalid="ignore", over="ignore"):
         g = f + gap
         s = df * r
-        quadratic = np.abs(s - 2.0 * g) <= 0.25 * g
+        c3 = s - 2.0 * g
+        quadratic = np.abs(c3) <= 0.25 * g           # |s - 2 g| <= g / 4, with s - 2 g formed once
         g3 = 3.0 * g
         c2 = g3 - s
-        c3 = s - 2.0 * g
         c2_2, c3_3 = 2.0 * c2, 3.0 * c3
         x = f / s
         np.subtract(1.0, x, out=x)
@@ -976,7 +976,8 @@ def _taylor(A, C, ax, ay, v, psi, order, lowest=2):
         b.append(b[-1] * inv)
     for j in range(2, order + 1):
         b[j] /= j
-    vb = [v * bj for bj in b]
+    # v b_j only for the j the pairs below take (j >= l, j + l >= lowest)
+    vb = {j: v * b[j] for j in range((lowest - 1) // 2 + 1, order + 1)}
     M = A.shape[1]
     out = np.empty((order + 1 - lowest, M, len(psi)))
     for k in range(lowest, order + 1):
@@ -1305,7 +1306,10 @@ def _refine_large(res, sx, sy, phi, v, psi, spread, known, dof, floor, fix_lat, 
     with np.errstate(invalid="ignore", divide="ignore"):
         sd = np.where(known, 1.0 / np.sqrt(np.maximum(v.max(axis=1), 1e-300)),
                       np.fmax(np.sqrt(res["s_min"] / np.maximum(dof, 1)), floor))
-        err = np.nanmax(np.where(open_ray, 0.0, rho), axis=1) * spread / _EARTH_R**2
+        # a fix with a NaN radius is never refined, so the largest radius of the others is a plain max
+        # (np.nanmax's copy is not needed), the open rays counted as 0
+        top = (np.where(open_ray, 0.0, rho) if open_ray.any() else rho).max(axis=1)
+        err = top * spread / _EARTH_R**2
         need = np.isfinite(rho).all(axis=1) & (err > PLANE_TOLERANCE * sd)
     if not need.any():
         return
