@@ -599,10 +599,12 @@ def test_a_caller_tolerance_bounds_the_distance_to_an_outside_optimum(tol_m):
 
 @pytest.mark.parametrize("method", ["mle", "huber", "andrews", "lsq", "stansfield"])
 @pytest.mark.parametrize("sd_given", [True, False])
-def test_fixes_solved_in_chunks_are_those_of_one_call_bit_for_bit(monkeypatch, method, sd_given):
+@pytest.mark.parametrize("in_order", [False, True])
+def test_fixes_solved_in_chunks_are_those_of_one_call_bit_for_bit(monkeypatch, method, sd_given, in_order):
     # Every fix is solved from its own bearings alone, so cutting the fixes into chunks (to bound the working
     # memory) must change no bit of any field, per fix or per bearing. Invented fixes of 1-6 bearings, rows of
-    # different fixes interleaved, some wild bearings, some parallel lines; the chunk size is forced down to 7.
+    # different fixes interleaved (or in fix order, each chunk's rows one run), some wild bearings, some parallel
+    # lines; the chunk size is forced down to 7.
     import importlib
 
     solve_mod = importlib.import_module("dfkit.estimators.solve")
@@ -610,7 +612,8 @@ def test_fixes_solved_in_chunks_are_those_of_one_call_bit_for_bit(monkeypatch, m
     m = 60
     counts = rng.integers(1, 7, m)
     g = np.repeat(np.arange(m), counts)
-    rng.shuffle(g)
+    if not in_order:
+        rng.shuffle(g)
     n = len(g)
     tlat, tlon = 46.0 + rng.random(m), 11.0 + rng.random(m)
     lat = tlat[g] + rng.normal(0, 0.01, n)

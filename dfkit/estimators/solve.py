@@ -304,6 +304,10 @@ def _in_chunks(lat, lon, theta, g, m, sd, floor_b, options) -> Solution:
     for lo in range(0, m, SOLVE_CHUNK_FIXES):
         hi = min(m, lo + SOLVE_CHUNK_FIXES)
         rows = np.flatnonzero((g >= lo) & (g < hi))
+        if len(rows) and rows[-1] - rows[0] + 1 == len(rows):
+            # a sheet's fixes in order (the common case): the chunk's rows are one run, taken as views of the
+            # inputs (read only) and put back by slice, not gathered and scattered (the same values)
+            rows = slice(int(rows[0]), int(rows[-1]) + 1)
         # the chunk's inputs as solve() made them (checked already, with the whole): the bearings taken modulo
         # 360 once more, as a call of its own did (a bearing a hair below 0 becomes 360 and then 0)
         with np.errstate(invalid="ignore"):
