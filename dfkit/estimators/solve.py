@@ -207,7 +207,7 @@ def solve(lat, lon, bearing_deg, group, n_groups, sd_deg=None, *, method="mle", 
     lat = np.asarray(lat, float).ravel()
     lon = np.asarray(lon, float).ravel()
     with np.errstate(invalid="ignore"):
-        theta = np.mod(np.asarray(bearing_deg, float).ravel(), 360.0)
+        theta = geodesy.remainder(np.asarray(bearing_deg, float).ravel(), 360.0)      # np.mod, bit for bit
     g = np.asarray(group).ravel().astype(np.int64, copy=False)      # (read only: no copy of int64 input)
     m = int(n_groups)
     N = len(lat)
@@ -311,7 +311,7 @@ def _in_chunks(lat, lon, theta, g, m, sd, floor_b, options) -> Solution:
         # the chunk's inputs as solve() made them (checked already, with the whole): the bearings taken modulo
         # 360 once more, as a call of its own did (a bearing a hair below 0 becomes 360 and then 0)
         with np.errstate(invalid="ignore"):
-            theta_c = np.mod(theta[rows], 360.0)
+            theta_c = geodesy.remainder(theta[rows], 360.0)
         parts.append(_solve_checked(lat[rows], lon[rows], theta_c, g[rows] - lo, hi - lo, sd[rows], floor_b[rows],
                                     **options))
         rows_of.append(rows)
@@ -814,7 +814,7 @@ def _finish(ctx, counts, geo, P_lat, P_lon, ending, verified, known_b, known_g, 
         lat=P_lat, lon=wrap180(P_lon), cov_en=cov, sd_deg=sd_fix_deg, sd_known=known_g, dof=dof, n_used=n_used,
         kappa=kappa_from_sd(sd_fix_deg), iterations=iterations, converged=verified, parallel=parallel,
         behind=behind, crossing_deg=crossing, residual_deg=np.degrees(r), weight=weight, range_m=d,
-        ending=ending, scale_deg=scale, azimuth_from_fix_deg=np.degrees(geo.az) % 360.0,
+        ending=ending, scale_deg=scale, azimuth_from_fix_deg=geodesy.remainder(np.degrees(geo.az), 360.0),
         region_weight=region_weight, sd_floor_deg=np.where(known_g, 0.0, floor_g), sd_estimate_deg=np.degrees(sd_est),
         method=spec.name,
     )
