@@ -31,12 +31,12 @@ def remainder(x, period):
     numpy's float remainder calls the C library's fmod on each element (25-35 ns each here). On that range fmod
     is exact and returns x itself for |x| < period and x - period for x >= period (exact by Sterbenz's lemma);
     numpy then adds the period to a negative result (one rounding: x + period, formed here as period + x) and
-    gives +0.0 for a zero, as 0.0 + x does to -0.0 (and to nothing else). Anything else (NaN, infinities, larger
-    angles) goes to np.mod itself."""
+    gives +0.0 for a zero, as 0.0 + x does to -0.0 (and to nothing else). A NaN stays that NaN either way (fmod
+    and the addition both pass it on). Anything else (infinities, larger angles, only NaN) goes to np.mod itself."""
     x = np.asarray(x, float)
     if x.size == 0:
         return np.mod(x, period)
-    lo, hi = x.min(), x.max()
+    lo, hi = np.fmin.reduce(x, axis=None), np.fmax.reduce(x, axis=None)       # NaN ignored (unless all are)
     if not (lo > -period and hi < 2.0 * period):
         return np.mod(x, period)
     out = (x < 0.0) * period          # period where x < 0, else 0.0

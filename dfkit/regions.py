@@ -147,7 +147,7 @@ def _axes(a, b, c, k) -> Ellipses:
     lam2 = np.maximum(half_tr - rad, 0.0)
     # Major-axis direction: angle t from east with tan 2t = 2b/(a-c); azimuth = 90 - t.
     t = 0.5 * np.arctan2(2.0 * b, a - c)
-    orient = np.mod(90.0 - np.degrees(t), 180.0)
+    orient = geodesy.remainder(90.0 - np.degrees(t), 180.0)          # np.mod, bit for bit
     major = k * np.sqrt(lam1)
     minor = k * np.sqrt(lam2)
     return Ellipses(major, minor, orient, np.pi * major * minor)
