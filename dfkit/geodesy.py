@@ -108,10 +108,15 @@ def group_centroid(lat, lon, group, n_groups, weights=None):
     """
     phi = np.radians(np.asarray(lat, float))
     lam = np.radians(np.asarray(lon, float))
-    w = np.ones_like(phi) if weights is None else np.asarray(weights, float)
-    x = np.bincount(group, w * np.cos(phi) * np.cos(lam), n_groups)
-    y = np.bincount(group, w * np.cos(phi) * np.sin(lam), n_groups)
-    z = np.bincount(group, w * np.sin(phi), n_groups)
+    # w cos(phi) formed once for x and y; without weights w = 1, and 1 * v is v bit for bit (no product needed)
+    if weights is None:
+        wc, ws = np.cos(phi), np.sin(phi)
+    else:
+        w = np.asarray(weights, float)
+        wc, ws = w * np.cos(phi), w * np.sin(phi)
+    x = np.bincount(group, wc * np.cos(lam), n_groups)
+    y = np.bincount(group, wc * np.sin(lam), n_groups)
+    z = np.bincount(group, ws, n_groups)
     return np.degrees(np.arctan2(z, np.hypot(x, y))), np.degrees(np.arctan2(y, x))
 
 

@@ -1,5 +1,7 @@
 """Fixes against outside references: geographiclib geodesics, Karney's published intersection, scipy."""
 
+import importlib
+
 import numpy as np
 import pytest
 from geographiclib.geodesic import Geodesic
@@ -712,3 +714,23 @@ def test_halvings_proven_to_fail_are_skipped_without_changing_a_bit(monkeypatch,
     assert sum(ruled_out) > 0
     monkeypatch.setattr(iterate, "_proven_to_fail", lambda form, sub, lams, *rest: np.zeros(lams.shape, bool))
     assert _differing_fields(skipping, estimators.solve(lat, lon, theta, g, m, sd, method=method)) == []
+
+
+def test_a_bearing_points_away_where_its_cosine_is_not_positive():
+    # The solver flags a bearing behind the fix by cos r <= 0, worked out without the cosine for wrapped residuals:
+    # it must be numpy's cos r <= 0 on every double next to +-pi/2, on the ends of [-pi, pi], and outside it.
+    solve_mod = importlib.import_module("dfkit.estimators.solve")
+    half = np.pi / 2
+    near = [half]
+    lo = hi = half
+    for _ in range(500):
+        lo, hi = np.nextafter(lo, 0.0), np.nextafter(hi, 4.0)
+        near += [lo, hi]
+    near = np.array(near)
+    rng = np.random.default_rng(8)
+    wrapped = np.concatenate([near, -near, rng.uniform(-np.pi, np.pi, 100_000), [np.pi, -np.pi, 0.0, -0.0, np.nan]])
+    for r in (wrapped, np.concatenate([wrapped, [4.0, -5.5, 2 * np.pi]])):
+        with np.errstate(invalid="ignore"):
+            want = np.cos(r) <= 0
+        assert np.array_equal(solve_mod._points_away(r), want)
+    assert want[:len(near)].any() and not want[:len(near)].all()

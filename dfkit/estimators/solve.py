@@ -769,6 +769,16 @@ def _optimum_here(spec, geo, g, m, w, s, c):
         return (np.hypot(sx_, sy_) < VERIFY_M) & (ratio > iterate.SINGULAR_RATIO)
 
 
+def _points_away(r):
+    """cos r <= 0, per bearing (r [rad]): for r in [-pi, pi], as the geometry wraps it, that is |r| > pi/2 (the double
+    np.pi / 2), without a cosine: no double is pi/2 itself and a cosine's sign is right to the last double.
+    Outside that range, the cosine itself."""
+    mag = np.abs(r)
+    if np.fmax.reduce(mag, initial=0.0) <= np.pi:
+        return mag > np.pi / 2
+    return np.cos(r) <= 0
+
+
 def _finish(ctx, counts, geo, P_lat, P_lon, ending, verified, known_b, known_g, sd_rad, parallel,
             iterations) -> Solution:
     spec, g, m, s_b, c = ctx["spec"], ctx["g"], ctx["m"], ctx["s_b"], ctx["c"]
@@ -801,7 +811,7 @@ def _finish(ctx, counts, geo, P_lat, P_lon, ending, verified, known_b, known_g, 
     s2 = gsum(g, used * np.sin(2 * dirs), m)
     with np.errstate(invalid="ignore", divide="ignore"):
         crossing = np.degrees(np.arccos(np.clip(np.hypot(c2, s2) / n_used, 0, 1)))
-    behind = gsum(g, (used & (np.cos(r) <= 0)).astype(float), m) > 0
+    behind = gsum(g, (used & _points_away(r)).astype(float), m) > 0
     # The likelihood region weighs each bearing by 1/SD^2 times its robust weight when the SD is known;
     # with an estimated SD every kept bearing counts alike, as in the classical scale of the covariance.
     region_weight = np.where(known_b, weight / np.where(known_b, sd_rad, 1.0) ** 2, used.astype(float))
