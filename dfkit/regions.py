@@ -1046,11 +1046,13 @@ def _edges(rays, rho, R, gap, curv, start=0, stop=60, state=None):
     never settles a ray across a place where a residual may wrap). Where S comes back below
     T farther out, :func:`_star_check` finds it.
     """
-    lo = np.zeros_like(rho)
-    hi = np.full_like(rho, np.inf)
-    width = np.full_like(rho, np.inf)
+    # lo, hi and width are read only on rays still searched after a step, which that step wrote (step 0 forms its
+    # brackets from f itself, and no bracket has a width yet), and step 0 writes f on every ray: none is filled first
+    lo = np.empty_like(rho)
+    hi = np.empty_like(rho)
+    width = np.empty_like(rho)
     if state is None:
-        f_at = np.zeros_like(rho)
+        f_at = np.empty_like(rho)
         live = np.arange(len(rho))
     else:                            # a search taken up again after ``start`` steps (:func:`_march`'s ``resume``)
         f_at, live = state[0], state[1]
@@ -1121,7 +1123,8 @@ def _edges(rays, rho, R, gap, curv, start=0, stop=60, state=None):
         lo_g, hi_g, rg = lo_s[keep], hi_s[keep], live[go]
         # a bracket (lo > 0, hi finite) that has not halved since the last one is bisected
         w = np.where((lo_g > 0) & np.isfinite(hi_g), hi_g - lo_g, np.inf)
-        slow = np.isfinite(w) & (w > 0.5 * width[rg])
+        # (at step 0 every width before is inf, and no w exceeds half of it)
+        slow = np.isfinite(w) & (w > 0.5 * width[rg]) if step_no else np.zeros(len(w), bool)
         width[rg] = w
         plain = np.where(np.isfinite(hi_g), 0.5 * (lo_g + hi_g), np.minimum(2.0 * r_s[keep], R_s[keep]))
         step = np.where(newton_in[keep], newton[keep], plain)
@@ -1244,7 +1247,7 @@ def _march(sx, sy, phi, v, known, dof, kdof, floor, level, psi, draw, fix_lat, f
     q = np.where(pos, H, J)
     quad = q[:, :1] * ux * ux + 2 * q[:, 1:2] * ux * uy + q[:, 2:] * uy * uy
     R = draw[:, None] * np.ones((1, K))
-    curv = np.where(pos, quad, np.nan)
+    curv = quad if pos.all() else np.where(pos, quad, np.nan)          # (only read from here on)
     rays = _Rays(trig, sx, sy, v, cx, cy, T, psi)
     if resume is None:
         with np.errstate(divide="ignore", invalid="ignore"):
