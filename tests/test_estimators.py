@@ -614,8 +614,7 @@ def test_fixes_solved_in_chunks_are_those_of_one_call_bit_for_bit(monkeypatch, m
     m = 60
     counts = rng.integers(1, 7, m)
     g = np.repeat(np.arange(m), counts)
-    if not in_order:
-        rng.shuffle(g)
+    rng.shuffle(g)
     n = len(g)
     tlat, tlon = 46.0 + rng.random(m), 11.0 + rng.random(m)
     lat = tlat[g] + rng.normal(0, 0.01, n)
@@ -623,6 +622,9 @@ def test_fixes_solved_in_chunks_are_those_of_one_call_bit_for_bit(monkeypatch, m
     az = np.array([WGS.Inverse(lat[i], lon[i], tlat[g[i]], tlon[g[i]])["azi1"] for i in range(n)])
     theta = az + rng.normal(0, 4, n) + np.where(rng.random(n) < 0.1, rng.uniform(30, 90, n), 0.0)
     theta[g == 3] = 45.0                                     # one fix of parallel lines
+    if in_order:                                             # the same rows, sorted by fix
+        rows = np.argsort(g, kind="stable")
+        g, lat, lon, theta = g[rows], lat[rows], lon[rows], theta[rows]
     sd = np.full(n, 4.0) if sd_given else None
     one = estimators.solve(lat, lon, theta, g, m, sd, method=method)
     monkeypatch.setattr(solve_mod, "SOLVE_CHUNK_FIXES", 7)
