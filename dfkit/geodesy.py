@@ -17,11 +17,33 @@ from __future__ import annotations
 import numpy as np
 import pyproj
 
-from dfkit.conventions import WGS84_A, wrap180
+from dfkit.conventions import WGS84_A
 
 
 #: The WGS84 geodesic engine (stateless; safe to share).
 GEOD = pyproj.Geod(ellps="WGS84")
+
+
+def remainder(x, period):
+    """``np.mod(x, period)`` of an array of floats, bit for bit, for a positive finite ``period``; about ten times
+    faster where every x lies in (-period, 2 period), as angles from the geodesic routines do.
+
+    numpy's float remainder calls the C library's fmod on each element (25-35 ns each here). On that range fmod
+    is exact and returns x itself for |x| < period and x - period for x >= period (exact by Sterbenz's lemma);
+    numpy then adds the period to a negative result (one rounding: x + period, formed here as period + x) and
+    gives +0.0 for a zero, as 0.0 + x does to -0.0 (and to nothing else). A NaN stays that NaN either way (fmod
+    and the addition both pass it on). Anything else (infinities, larger angles, only NaN) goes to np.mod itself."""
+    x = np.asarray(x, float)
+    if x.size == 0:
+        return np.mod(x, period)
+    lo, hi = np.fmin.reduce(x, axis=None), np.fmax.reduce(x, axis=None)       # NaN ignored (unless all are)
+    if not (lo > -period and hi < 2.0 * period):
+        return np.mod(x, period)
+    out = (x < 0.0) * period          # period where x < 0, else 0.0
+    out += x
+    if hi >= period:
+        out -= (x >= period) * period     # (not out >= period: a tiny negative x gives period itself)
+    return out
 
 
 def inverse(lat1, lon1, lat2, lon2):
@@ -40,7 +62,7 @@ def inverse(lat1, lon1, lat2, lon2):
     az12, az21, dist = GEOD.inv(lon1.ravel(), lat1.ravel(), lon2.ravel(), lat2.ravel())
     shape = lat1.shape
     az12, az21, dist = (np.asarray(v).reshape(shape) for v in (az12, az21, dist))
-    return np.mod(az12, 360.0), np.mod(az21, 360.0), np.asarray(dist)
+    return remainder(az12, 360.0), remainder(az21, 360.0), np.asarray(dist)
 
 
 def forward(lat, lon, azi_deg, dist_m):
@@ -57,7 +79,8 @@ def forward(lat, lon, azi_deg, dist_m):
     lon_b = np.broadcast_to(lon, shape).ravel()
     dist = np.broadcast_to(np.asarray(dist_m, float), shape).ravel()
     lon2, lat2, _ = GEOD.fwd(lon_b, lat_b, azi.ravel(), dist)
-    return np.asarray(lat2).reshape(shape), wrap180(np.asarray(lon2)).reshape(shape)
+    # wrap180's np.mod(lon + 180, 360) - 180, bit for bit, by :func:`remainder`
+    return np.asarray(lat2).reshape(shape), (remainder(np.asarray(lon2, float) + 180.0, 360.0) - 180.0).reshape(shape)
 
 
 def to_local(lat0, lon0, lat, lon):
@@ -85,10 +108,15 @@ def group_centroid(lat, lon, group, n_groups, weights=None):
     """
     phi = np.radians(np.asarray(lat, float))
     lam = np.radians(np.asarray(lon, float))
-    w = np.ones_like(phi) if weights is None else np.asarray(weights, float)
-    x = np.bincount(group, w * np.cos(phi) * np.cos(lam), n_groups)
-    y = np.bincount(group, w * np.cos(phi) * np.sin(lam), n_groups)
-    z = np.bincount(group, w * np.sin(phi), n_groups)
+    # w cos(phi) formed once for x and y; without weights w = 1, and 1 * v is v bit for bit (no product needed)
+    if weights is None:
+        wc, ws = np.cos(phi), np.sin(phi)
+    else:
+        w = np.asarray(weights, float)
+        wc, ws = w * np.cos(phi), w * np.sin(phi)
+    x = np.bincount(group, wc * np.cos(lam), n_groups)
+    y = np.bincount(group, wc * np.sin(lam), n_groups)
+    z = np.bincount(group, ws, n_groups)
     return np.degrees(np.arctan2(z, np.hypot(x, y))), np.degrees(np.arctan2(y, x))
 
 

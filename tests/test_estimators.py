@@ -1,5 +1,7 @@
 """Fixes against outside references: geographiclib geodesics, Karney's published intersection, scipy."""
 
+import importlib
+
 import numpy as np
 import pytest
 from geographiclib.geodesic import Geodesic
@@ -599,10 +601,12 @@ def test_a_caller_tolerance_bounds_the_distance_to_an_outside_optimum(tol_m):
 
 @pytest.mark.parametrize("method", ["mle", "huber", "andrews", "lsq", "stansfield"])
 @pytest.mark.parametrize("sd_given", [True, False])
-def test_fixes_solved_in_chunks_are_those_of_one_call_bit_for_bit(monkeypatch, method, sd_given):
+@pytest.mark.parametrize("in_order", [False, True])
+def test_fixes_solved_in_chunks_are_those_of_one_call_bit_for_bit(monkeypatch, method, sd_given, in_order):
     # Every fix is solved from its own bearings alone, so cutting the fixes into chunks (to bound the working
     # memory) must change no bit of any field, per fix or per bearing. Invented fixes of 1-6 bearings, rows of
-    # different fixes interleaved, some wild bearings, some parallel lines; the chunk size is forced down to 7.
+    # different fixes interleaved (or in fix order, each chunk's rows one run), some wild bearings, some parallel
+    # lines; the chunk size is forced down to 7.
     import importlib
 
     solve_mod = importlib.import_module("dfkit.estimators.solve")
@@ -618,6 +622,9 @@ def test_fixes_solved_in_chunks_are_those_of_one_call_bit_for_bit(monkeypatch, m
     az = np.array([WGS.Inverse(lat[i], lon[i], tlat[g[i]], tlon[g[i]])["azi1"] for i in range(n)])
     theta = az + rng.normal(0, 4, n) + np.where(rng.random(n) < 0.1, rng.uniform(30, 90, n), 0.0)
     theta[g == 3] = 45.0                                     # one fix of parallel lines
+    if in_order:                                             # the same rows, sorted by fix
+        rows = np.argsort(g, kind="stable")
+        g, lat, lon, theta = g[rows], lat[rows], lon[rows], theta[rows]
     sd = np.full(n, 4.0) if sd_given else None
     one = estimators.solve(lat, lon, theta, g, m, sd, method=method)
     monkeypatch.setattr(solve_mod, "SOLVE_CHUNK_FIXES", 7)
@@ -709,3 +716,23 @@ def test_halvings_proven_to_fail_are_skipped_without_changing_a_bit(monkeypatch,
     assert sum(ruled_out) > 0
     monkeypatch.setattr(iterate, "_proven_to_fail", lambda form, sub, lams, *rest: np.zeros(lams.shape, bool))
     assert _differing_fields(skipping, estimators.solve(lat, lon, theta, g, m, sd, method=method)) == []
+
+
+def test_a_bearing_points_away_where_its_cosine_is_not_positive():
+    # The solver flags a bearing behind the fix by cos r <= 0, worked out without the cosine for wrapped residuals:
+    # it must be numpy's cos r <= 0 on every double next to +-pi/2, on the ends of [-pi, pi], and outside it.
+    solve_mod = importlib.import_module("dfkit.estimators.solve")
+    half = np.pi / 2
+    near = [half]
+    lo = hi = half
+    for _ in range(500):
+        lo, hi = np.nextafter(lo, 0.0), np.nextafter(hi, 4.0)
+        near += [lo, hi]
+    near = np.array(near)
+    rng = np.random.default_rng(8)
+    wrapped = np.concatenate([near, -near, rng.uniform(-np.pi, np.pi, 100_000), [np.pi, -np.pi, 0.0, -0.0, np.nan]])
+    for r in (wrapped, np.concatenate([wrapped, [4.0, -5.5, 2 * np.pi]])):
+        with np.errstate(invalid="ignore"):
+            want = np.cos(r) <= 0
+        assert np.array_equal(solve_mod._points_away(r), want)
+    assert want[:len(near)].any() and not want[:len(near)].all()

@@ -438,3 +438,63 @@ def test_rays_searched_on_in_a_pool_end_where_one_search_to_the_end_would(monkey
     for L in pooled:
         for name in ("radius_m", "centre_x", "centre_y", "bounded", "star_shaped", "area_m2", "reach_m"):
             assert np.array_equal(getattr(L, name), getattr(whole, name), equal_nan=True), name
+
+
+def test_the_limit_far_out_looks_at_every_ray_whose_sine_bound_is_below_the_threshold():
+    # S far out along a direction psi tends to sum v wrap(phi - psi)^2. Its least value is taken over the bearings'
+    # mean direction and, for a fix where sum v sin^2(phi - psi) falls below T on some ray, over every ray; the
+    # module skips the rays' sums where a bound shows none can. Checked against those sums written here with numpy's
+    # sin (nearly parallel bearings make the sine sums small, spread ones large).
+    rng = np.random.default_rng(21)
+    M, n, K = 400, 3, 16
+    spread = rng.choice([1e-3, 0.03, 0.1, 0.3, 2.0], size=(M, 1))
+    phi = rng.uniform(0, 2 * np.pi, (M, 1)) + rng.normal(0, 1, (M, n)) * spread
+    v = rng.uniform(0.5, 2.0, (M, n))
+    sx, sy = rng.uniform(-1500, 1500, (M, n)), rng.uniform(-1500, 1500, (M, n))
+    cx, cy = rng.uniform(-40, 40, M), rng.uniform(-40, 40, M)
+    T = rng.uniform(0.001, 3.0, M)
+    psi = np.arange(K) * (2 * np.pi / K)
+    trig = (np.sin(phi), np.cos(phi))
+    rays = regions._Rays(trig, sx, sy, v, cx, cy, T, psi)
+    got = regions._s_at_infinity(rays, trig, phi, v, psi, T)
+
+    def wrap(a):
+        return (a + np.pi) % (2 * np.pi) - np.pi
+
+    mean = np.arctan2((v * np.sin(phi)).sum(1), (v * np.cos(phi)).sum(1))
+    at_mean = (v * wrap(phi - mean[:, None]) ** 2).sum(1)
+    sines = (v[:, :, None] * np.sin(phi[:, :, None] - psi) ** 2).sum(1).min(1)
+    at_rays = (v[:, :, None] * wrap(phi[:, :, None] - psi) ** 2).sum(1).min(1)
+    clear = np.abs(sines - T) > 1e-9 * T          # fixes whose sine sum is not within rounding of T
+    low = (sines < T) & (at_mean >= T)
+    want = np.where(low, np.minimum(at_mean, at_rays), at_mean)
+    assert clear.mean() > 0.99
+    assert low[clear].sum() > 20 and (~low & (at_mean >= T))[clear].sum() > 20       # both cases are met
+    assert (at_rays < at_mean)[low & clear].any()                                   # a ray's limit is the least
+    assert got[clear] == pytest.approx(want[clear], rel=1e-12)
+
+
+@pytest.mark.parametrize("n", [2, 3, 4, 6])
+def test_the_bound_without_arctan_is_the_sum_over_every_bearing(n):
+    # above() stops adding bearings' terms on rays whose first ones already exceed T (a sum of non-negative terms
+    # only grows): its answer must be that of the whole sum, written here with numpy's sin and cos, wherever that
+    # sum is not within rounding of T; rays that exceed T only with the later bearings must be among them.
+    rng = np.random.default_rng(30 + n)
+    rays, (sx, sy, phi, v, cx, cy, T, psi) = _random_rays(rng, M=80, n=n)
+    M, K = len(cx), len(psi)
+    rho = rng.uniform(1.0, 3000.0, M * K)
+    rr = rho.reshape(M, K)
+    dx = cx[:, None, None] + rr[:, None, :] * np.sin(psi) - sx[:, :, None]
+    dy = cy[:, None, None] + rr[:, None, :] * np.cos(psi) - sy[:, :, None]
+    across = np.sin(phi)[:, :, None] * dy - np.cos(phi)[:, :, None] * dx
+    terms = v[:, :, None] * across**2 / (dx**2 + dy**2)               # v sin^2 r, (M, n, K)
+    whole = terms.sum(1).ravel()
+    first_two = terms[:, :2].sum(1).ravel()
+    Tr = np.repeat(T, K)
+    clear = np.abs(whole - Tr) > 1e-9 * Tr
+    got = rays.above(rho)
+    assert clear.mean() > 0.99
+    assert got.any() and not got.all()
+    if n > 2:
+        assert ((first_two <= Tr) & (whole > Tr) & clear).sum() > 10
+    assert np.array_equal(got[clear], (whole > Tr)[clear])

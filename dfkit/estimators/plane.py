@@ -27,8 +27,8 @@ TWO_PI = 2.0 * np.pi
 
 
 def wrap_pi(a):
-    """Wrap angles to [-pi, pi). [rad]"""
-    return (a + np.pi) % TWO_PI - np.pi
+    """Wrap angles to [-pi, pi). [rad] (numpy's remainder, bit for bit: :func:`dfkit.geodesy.remainder`)"""
+    return geodesy.remainder(np.add(a, np.pi), TWO_PI) - np.pi
 
 
 @dataclass

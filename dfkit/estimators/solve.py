@@ -207,7 +207,7 @@ def solve(lat, lon, bearing_deg, group, n_groups, sd_deg=None, *, method="mle", 
     lat = np.asarray(lat, float).ravel()
     lon = np.asarray(lon, float).ravel()
     with np.errstate(invalid="ignore"):
-        theta = np.mod(np.asarray(bearing_deg, float).ravel(), 360.0)
+        theta = geodesy.remainder(np.asarray(bearing_deg, float).ravel(), 360.0)      # np.mod, bit for bit
     g = np.asarray(group).ravel().astype(np.int64, copy=False)      # (read only: no copy of int64 input)
     m = int(n_groups)
     N = len(lat)
@@ -304,10 +304,14 @@ def _in_chunks(lat, lon, theta, g, m, sd, floor_b, options) -> Solution:
     for lo in range(0, m, SOLVE_CHUNK_FIXES):
         hi = min(m, lo + SOLVE_CHUNK_FIXES)
         rows = np.flatnonzero((g >= lo) & (g < hi))
+        if len(rows) and rows[-1] - rows[0] + 1 == len(rows):
+            # a sheet's fixes in order (the common case): the chunk's rows are one run, taken as views of the
+            # inputs (read only) and put back by slice, not gathered and scattered (the same values)
+            rows = slice(int(rows[0]), int(rows[-1]) + 1)
         # the chunk's inputs as solve() made them (checked already, with the whole): the bearings taken modulo
         # 360 once more, as a call of its own did (a bearing a hair below 0 becomes 360 and then 0)
         with np.errstate(invalid="ignore"):
-            theta_c = np.mod(theta[rows], 360.0)
+            theta_c = geodesy.remainder(theta[rows], 360.0)
         parts.append(_solve_checked(lat[rows], lon[rows], theta_c, g[rows] - lo, hi - lo, sd[rows], floor_b[rows],
                                     **options))
         rows_of.append(rows)
@@ -765,6 +769,16 @@ def _optimum_here(spec, geo, g, m, w, s, c):
         return (np.hypot(sx_, sy_) < VERIFY_M) & (ratio > iterate.SINGULAR_RATIO)
 
 
+def _points_away(r):
+    """cos r <= 0, per bearing (r [rad]): for r in [-pi, pi], as the geometry wraps it, that is |r| > pi/2 (the double
+    np.pi / 2), without a cosine: no double is pi/2 itself and a cosine's sign is right to the last double.
+    Outside that range, the cosine itself."""
+    mag = np.abs(r)
+    if np.fmax.reduce(mag, initial=0.0) <= np.pi:
+        return mag > np.pi / 2
+    return np.cos(r) <= 0
+
+
 def _finish(ctx, counts, geo, P_lat, P_lon, ending, verified, known_b, known_g, sd_rad, parallel,
             iterations) -> Solution:
     spec, g, m, s_b, c = ctx["spec"], ctx["g"], ctx["m"], ctx["s_b"], ctx["c"]
@@ -797,7 +811,7 @@ def _finish(ctx, counts, geo, P_lat, P_lon, ending, verified, known_b, known_g, 
     s2 = gsum(g, used * np.sin(2 * dirs), m)
     with np.errstate(invalid="ignore", divide="ignore"):
         crossing = np.degrees(np.arccos(np.clip(np.hypot(c2, s2) / n_used, 0, 1)))
-    behind = gsum(g, (used & (np.cos(r) <= 0)).astype(float), m) > 0
+    behind = gsum(g, (used & _points_away(r)).astype(float), m) > 0
     # The likelihood region weighs each bearing by 1/SD^2 times its robust weight when the SD is known;
     # with an estimated SD every kept bearing counts alike, as in the classical scale of the covariance.
     region_weight = np.where(known_b, weight / np.where(known_b, sd_rad, 1.0) ** 2, used.astype(float))
@@ -810,7 +824,7 @@ def _finish(ctx, counts, geo, P_lat, P_lon, ending, verified, known_b, known_g, 
         lat=P_lat, lon=wrap180(P_lon), cov_en=cov, sd_deg=sd_fix_deg, sd_known=known_g, dof=dof, n_used=n_used,
         kappa=kappa_from_sd(sd_fix_deg), iterations=iterations, converged=verified, parallel=parallel,
         behind=behind, crossing_deg=crossing, residual_deg=np.degrees(r), weight=weight, range_m=d,
-        ending=ending, scale_deg=scale, azimuth_from_fix_deg=np.degrees(geo.az) % 360.0,
+        ending=ending, scale_deg=scale, azimuth_from_fix_deg=geodesy.remainder(np.degrees(geo.az), 360.0),
         region_weight=region_weight, sd_floor_deg=np.where(known_g, 0.0, floor_g), sd_estimate_deg=np.degrees(sd_est),
         method=spec.name,
     )
