@@ -120,12 +120,12 @@ def _nothing_to_guard(values: pd.Series) -> bool:
 
 def _for_csv(df: pd.DataFrame, guard: bool) -> pd.DataFrame:
     out = df.copy(deep=False)      # copy on write: the caller's table is not changed
-    for c in out.columns:
-        if isinstance(out[c].dtype, pd.DatetimeTZDtype):
+    for c, dtype in zip(out.columns, out.dtypes):     # the dtypes once (a column looked up costs ~50 us)
+        if isinstance(dtype, pd.DatetimeTZDtype):
             out[c] = _iso(out[c])
         elif c in _ROUNDING:
             out[c] = out[c].astype(float).round(_ROUNDING[c])
-        elif out[c].dtype == object or pd.api.types.is_string_dtype(out[c].dtype):
+        elif dtype == object or pd.api.types.is_string_dtype(dtype):
             out[c] = neutralise_formulas(out[c], guard=guard)
     return out
 
