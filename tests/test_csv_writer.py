@@ -155,6 +155,9 @@ def test_columns_of_one_value_same_bytes_as_pandas(tmp_path, monkeypatch, guard)
         z = np.full(n, 0.0)
         z[at] = -0.0                                      # equal as numbers, written otherwise
         one.update({f"f{k}": f, f"t{k}": t, f"z{k}": z})
+    missing = ["x"] * n
+    missing[75] = None                                    # pandas' NA (no truth value) amid one value
+    one["missing"] = pd.array(missing, dtype="string")
     one["last"] = ["x"] * n
     df = pd.DataFrame(one)
     write_table(df, tmp_path / "c.csv", guard_formulas=guard)

@@ -352,10 +352,10 @@ def _all_same(col: pd.Series) -> bool:
         return False
     n = len(values)
     first = values[0]
-    if not (values[n // 2] == first and values[n - 1] == first):
-        return False
     if numbers:
-        return bool((values == first).all())
+        return bool(values[n // 2] == first and values[n - 1] == first and (values == first).all())
+    if not all(isinstance(v, str) and v == first for v in (values[n // 2], values[n - 1])):   # pd.NA: no bool
+        return False
     joined = _joined(values)
     return joined is not None and joined == ("\x00" + first) * n
 
