@@ -136,3 +136,29 @@ def test_parts_prepared_one_at_a_time(tmp_path, monkeypatch, guard):
     for table in (df, hashed, odd, df.iloc[:7], df.iloc[:8]):
         write_table(table, tmp_path / "p.csv", guard_formulas=guard)
         assert (tmp_path / "p.csv").read_bytes() == _pandas_bytes(table, guard)
+
+
+@pytest.mark.parametrize("guard", [True, False])
+def test_columns_of_one_value_same_bytes_as_pandas(tmp_path, monkeypatch, guard):
+    # Columns whose every cell is the same (written as one text for all rows), next to each other and at the end,
+    # among columns that differ in one cell only (first, middle, last: not one value).
+    monkeypatch.setattr(dcsv, "_ROWS_PER_WRITE", 50)
+    n = 120
+    one = {"fix": [f"F{i}" for i in range(n)], "method": ["mle"] * n, "sd": np.full(n, 4.0), "zero": np.full(n, -0.0),
+           "none": np.full(n, np.nan), "count": np.full(n, 4), "flag": np.full(n, True), "empty": [""] * n,
+           "formula": ["=1+2"] * n, "comma": ["a,b"] * n, "quote": ['say "x"'] * n, "cr": ["x\ry"] * n}
+    for k, at in enumerate((0, n // 2, n - 1, 75)):     # 75: the middle of the part 50-99, 99: its last
+        f = np.full(n, 2.5)
+        f[at] = -2.5
+        t = np.array(["ok"] * n, dtype=object)
+        t[at] = "flagged"
+        z = np.full(n, 0.0)
+        z[at] = -0.0                                      # equal as numbers, written otherwise
+        one.update({f"f{k}": f, f"t{k}": t, f"z{k}": z})
+    missing = ["x"] * n
+    missing[75] = None                                    # pandas' NA (no truth value) amid one value
+    one["missing"] = pd.array(missing, dtype="string")
+    one["last"] = ["x"] * n
+    df = pd.DataFrame(one)
+    write_table(df, tmp_path / "c.csv", guard_formulas=guard)
+    assert (tmp_path / "c.csv").read_bytes() == _pandas_bytes(df, guard)

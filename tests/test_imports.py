@@ -33,3 +33,29 @@ def test_fix_help_and_a_csv_fix_load_no_heavy_module(tmp_path):
         assert "dfkit" in loaded and "pandas" in loaded          # the probe ran
         assert not loaded & set(HEAVY), (args, sorted(loaded & set(HEAVY)))
     assert (tmp_path / "out.csv").exists()
+
+
+def _run(code, env_extra=None, drop=()):
+    import os
+
+    env = {k: v for k, v in os.environ.items() if k not in drop}
+    env.update(env_extra or {})
+    return subprocess.run([sys.executable, "-c", code], capture_output=True, text=True, check=True,
+                          env=env).stdout.split()
+
+
+def test_the_package_loads_numpy_only_when_its_names_are_used():
+    assert _run("import sys, dfkit; print('numpy' in sys.modules)") == ["False"]
+    assert _run("import sys; from dfkit import read_bearings, Bearings, SheetError; import dfkit; "
+                "print('numpy' in sys.modules, read_bearings is dfkit.read_bearings, callable(read_bearings))") == [
+        "True", "True", "True"]
+    assert _run("import dfkit\ntry:\n    dfkit.no_such_name\nexcept AttributeError:\n    print('refused')") == [
+        "refused"]
+
+
+def test_the_command_line_caps_blas_threads_only_before_numpy_and_unless_told():
+    blas = ("OPENBLAS_NUM_THREADS", "MKL_NUM_THREADS")
+    show = "import os; print(os.environ.get('OPENBLAS_NUM_THREADS'), os.environ.get('MKL_NUM_THREADS'))"
+    assert _run("import dfkit.cli; " + show, drop=blas) == ["1", "1"]
+    assert _run("import dfkit.cli; " + show, {"OPENBLAS_NUM_THREADS": "2"}, drop=blas) == ["2", "1"]
+    assert _run("import numpy; import dfkit.cli; " + show, drop=blas) == ["None", "None"]

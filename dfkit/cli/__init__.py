@@ -9,19 +9,35 @@ the shell speaks flags (``--sd``).
 Exit status (all commands): 0 everything read and every fix ``ok``; 1 done, but
 some rows were rejected or some fixes are flagged or failed (results are still
 written); 2 the input cannot be read at all or the command is misused.
+
+Imported before numpy (as the ``dfkit`` command and ``python -m dfkit`` do: the ``dfkit`` package itself loads
+no numpy), this module caps the threads of numpy's linear-algebra library at one, unless the environment
+already says how many (``OPENBLAS_NUM_THREADS``, ``MKL_NUM_THREADS``): OpenBLAS starts a thread per core when
+numpy is loaded and they spin for a while, which cost about 0.1 s of CPU per run on a 2-core machine, while
+dfkit's matrices are small (2x2 and 3x3 per fix; one row and column per observer or antenna in the offset
+checks), done at once by one thread (``--jobs`` runs fixes in parallel instead); the outputs were byte for
+byte the same with and without the cap on the bench sheet and every sample. Imported after numpy (a test, a
+notebook), it changes nothing.
 """
 
 from __future__ import annotations
 
-import argparse
-import gc
+import os
 import sys
 
-from dfkit import __version__
-from dfkit.cli import calibrate, check, fix, map as map_cmd, plan, ranges, season
-from dfkit.cli.common import option_message
-from dfkit.observations.options import OptionError
-from dfkit.problems import SheetError
+if "numpy" not in sys.modules:
+    for _var in ("OPENBLAS_NUM_THREADS", "MKL_NUM_THREADS"):
+        os.environ.setdefault(_var, "1")
+
+# after the cap above (E402: imports below code)
+import argparse  # noqa: E402
+import gc  # noqa: E402
+
+from dfkit import __version__  # noqa: E402
+from dfkit.cli import calibrate, check, fix, map as map_cmd, plan, ranges, season  # noqa: E402
+from dfkit.cli.common import option_message  # noqa: E402
+from dfkit.observations.options import OptionError  # noqa: E402
+from dfkit.problems import SheetError  # noqa: E402
 
 #: The sub-commands, in the order ``dfkit --help`` lists them.
 COMMANDS = [check, fix, map_cmd, calibrate, plan, season, ranges]

@@ -41,6 +41,8 @@ FORMULA_STARTS = ("=", "+", "-", "@", "\t", "\r", "\n")
 _FORMULA_START = re.compile("^'*[=+\\-@\t\r\n]")
 # In cells joined after a NUL each (see _joined): a cell that starts with a formula character or a ', or a CR.
 _GUARD_CANDIDATE = re.compile("\x00['=+\\-@\t\r\n]|\r")
+# The characters in _GUARD_CANDIDATE (searched for one by one by _nothing_to_guard).
+_GUARD_CHARS = "'=+-@\t\r\n"
 _PLAIN_NUMBER = re.compile(r"^[+-]?(\d+\.?\d*|\.\d+)([eE][+-]?\d+)?$")
 
 
@@ -104,19 +106,26 @@ def neutralise_formulas(values: pd.Series, *, guard: bool = True) -> pd.Series:
 
 def _nothing_to_guard(values: pd.Series) -> bool:
     """Whether a column is all text in which no cell starts with a formula character or a ``'`` and none holds a
-    carriage return (one search of the joined cells; False means: look cell by cell)."""
+    carriage return (searches of the joined cells; False means: look cell by cell).
+
+    What :data:`_GUARD_CANDIDATE` finds, found by plain substring searches: most columns (labels, words, empty
+    cells) hold none of these characters anywhere, which one scan per character settles; only characters that
+    occur are looked for after a NUL (a cell's start). The regular expression took about 14 ns a character."""
     joined = _joined(values.to_numpy(dtype=object))
-    return joined is not None and not _GUARD_CANDIDATE.search(joined)
+    if joined is None:
+        return False
+    present = [ch for ch in _GUARD_CHARS if ch in joined]
+    return "\r" not in present and not any("\x00" + ch in joined for ch in present)
 
 
 def _for_csv(df: pd.DataFrame, guard: bool) -> pd.DataFrame:
     out = df.copy(deep=False)      # copy on write: the caller's table is not changed
-    for c in out.columns:
-        if isinstance(out[c].dtype, pd.DatetimeTZDtype):
+    for c, dtype in zip(out.columns, out.dtypes):     # the dtypes once (a column looked up costs ~50 us)
+        if isinstance(dtype, pd.DatetimeTZDtype):
             out[c] = _iso(out[c])
         elif c in _ROUNDING:
             out[c] = out[c].astype(float).round(_ROUNDING[c])
-        elif out[c].dtype == object or pd.api.types.is_string_dtype(out[c].dtype):
+        elif dtype == object or pd.api.types.is_string_dtype(dtype):
             out[c] = neutralise_formulas(out[c], guard=guard)
     return out
 
@@ -263,8 +272,14 @@ _ROWS_PER_JOIN = 2_500
 
 def _write_rows(fh, columns, n: int) -> None:
     """Write the CSV rows of ``n`` rows from the columns' pieces (:func:`_text_columns`), joined a few thousand
-    rows at a time: the pieces of a row are its text in order."""
-    pieces = [p for column in columns for p in column]
+    rows at a time: the pieces of a row are its text in order. Pieces that are one text for every row and stand
+    next to each other are joined first (each piece costs a list per join)."""
+    pieces = []
+    for p in (p for column in columns for p in column):
+        if isinstance(p, str) and pieces and isinstance(pieces[-1], str):
+            pieces[-1] += p
+        else:
+            pieces.append(p)
     width = len(pieces)
     for start in range(0, n, _ROWS_PER_JOIN):
         stop = min(n, start + _ROWS_PER_JOIN)
@@ -281,27 +296,68 @@ def _text_columns(table: pd.DataFrame, tables: _DigitTables | None = None):
 
     pandas turns float64 columns into text with numpy's ``astype(str)``, the shortest text that reads back
     as the same float, which is Python's ``repr`` (checked in tests/test_csv_writer.py against pandas
-    itself): see :func:`_float_pieces`; integers and booleans with ``str``; text as it is, missing values as ''."""
+    itself): see :func:`_float_pieces`; integers and booleans with ``str``; text as it is, missing values as ''.
+    A column whose cells are all the same (:func:`_all_same`: a method, an SD source, an empty column) is its
+    first cell's text, one str for every row (a cell's text depends on that cell alone)."""
     tables = tables or _DigitTables()
     out = []
     for j, name in enumerate(table.columns):
         end = "\n" if j == table.shape[1] - 1 else ","
         col = table[name]
-        kind = col.dtype.kind
-        if isinstance(col.dtype, np.dtype) and kind == "f" and col.dtype.itemsize == 8:
-            pieces = _float_pieces(col.to_numpy(), tables, end)
-        elif isinstance(col.dtype, np.dtype) and kind == "b":
-            pieces = [np.array(["False" + end, "True" + end], dtype=object)[col.to_numpy().astype(np.intp)]]
-        elif isinstance(col.dtype, np.dtype) and kind in "iu" and _small_ints(col.to_numpy()):
-            pieces = _int_pieces(col.to_numpy().astype(np.int64), tables, suffix=end)
-        elif isinstance(col.dtype, np.dtype) and kind in "iu":
-            pieces = [np.array([str(v) + end for v in col.to_numpy().tolist()], dtype=object)]
-        elif col.dtype == object or pd.api.types.is_string_dtype(col.dtype):
-            pieces = [_plain_text(col.to_numpy(dtype=object)), end]
+        if len(col) > 1 and _all_same(col):
+            one = _column_pieces(col.iloc[:1], tables, end)
+            pieces = None if one is None else ["".join(p if isinstance(p, str) else p[0] for p in one)]
         else:
+            pieces = _column_pieces(col, tables, end)
+        if pieces is None:
             return None
         out.append(pieces)
     return out
+
+
+def _column_pieces(col: pd.Series, tables: _DigitTables, end: str):
+    """One column's pieces for :func:`_text_columns` (None for a kind it does not format)."""
+    kind = col.dtype.kind
+    if isinstance(col.dtype, np.dtype) and kind == "f" and col.dtype.itemsize == 8:
+        return _float_pieces(col.to_numpy(), tables, end)
+    if isinstance(col.dtype, np.dtype) and kind == "b":
+        return [np.array(["False" + end, "True" + end], dtype=object)[col.to_numpy().astype(np.intp)]]
+    if isinstance(col.dtype, np.dtype) and kind in "iu" and _small_ints(col.to_numpy()):
+        return _int_pieces(col.to_numpy().astype(np.int64), tables, suffix=end)
+    if isinstance(col.dtype, np.dtype) and kind in "iu":
+        return [np.array([str(v) + end for v in col.to_numpy().tolist()], dtype=object)]
+    if col.dtype == object or pd.api.types.is_string_dtype(col.dtype):
+        return [_plain_text(col.to_numpy(dtype=object)), end]
+    return None
+
+
+def _all_same(col: pd.Series) -> bool:
+    """Whether every cell of a column is written as the same text: numbers of the same bits (so that -0.0 and
+    0.0, equal as numbers, differ; NaNs of other bits too, which only costs the shortcut), or text cells that are
+    all the same str. A middle and the last cell are compared with the first before the whole column, so most
+    columns are told at once."""
+    dtype = col.dtype
+    numbers = isinstance(dtype, np.dtype) and dtype.kind in "fiub"
+    if numbers:
+        values = col.to_numpy()
+        if dtype.kind == "f":
+            if dtype.itemsize not in (2, 4, 8):
+                return False
+            values = values.view(f"i{dtype.itemsize}")
+    elif dtype == object or pd.api.types.is_string_dtype(dtype):
+        values = col.to_numpy(dtype=object)
+        if not isinstance(values[0], str):
+            return False
+    else:
+        return False
+    n = len(values)
+    first = values[0]
+    if numbers:
+        return bool(values[n // 2] == first and values[n - 1] == first and (values == first).all())
+    if not all(isinstance(v, str) and v == first for v in (values[n // 2], values[n - 1])):   # pd.NA: no bool
+        return False
+    joined = _joined(values)
+    return joined is not None and joined == ("\x00" + first) * n
 
 
 def _plain_text(values: np.ndarray) -> np.ndarray:
@@ -339,11 +395,28 @@ class _DigitTables:
             self._made[key] = np.array([t + suffix for t in texts], dtype=object)
         return self._made[key]
 
+    def group(self, suffix: str = "") -> np.ndarray:
+        """One table of a three-digit group's texts, each followed by ``suffix``: 'plain' at 0-999, 'minus' at
+        1000-1999, 'padded' at 2000-2999 and '' at 3000 (a group not written)."""
+        key = (3, "group", suffix)
+        if key not in self._made:
+            self._made[key] = np.concatenate([self.get(3, "plain", suffix), self.get(3, "minus", suffix),
+                                              self.get(3, "padded", suffix), np.array([""], dtype=object)])
+        return self._made[key]
+
+    def both(self, digits: int) -> np.ndarray:
+        """'decimals' of ``digits`` digits at 0 to 10**digits - 1, then 'short' (no suffix)."""
+        key = (digits, "both", "")
+        if key not in self._made:
+            self._made[key] = np.concatenate([self.get(digits, "decimals"), self.get(digits, "short")])
+        return self._made[key]
+
 
 def _int_pieces(values: np.ndarray, tables: _DigitTables, negative=None, suffix: str = "") -> list:
     """``str`` of every integer as pieces of three digits each (``12345`` -> ``'12'``, ``'345'``), taken from
     tables; ``negative`` marks cells written with a '-' (by default those below 0; it may mark zeros: ``'-0'``);
-    the last piece ends in ``suffix``."""
+    the last piece ends in ``suffix``. Each piece is one lookup in the group table (:meth:`_DigitTables.group`)
+    at an index worked out in integers."""
     negative = values < 0 if negative is None else negative
     size = np.abs(values)
     top = int(size.max()) if len(size) else 0
@@ -352,15 +425,15 @@ def _int_pieces(values: np.ndarray, tables: _DigitTables, negative=None, suffix:
     lead = np.full(len(values), groups - 1)       # the first group written (the last one for a zero)
     for k in range(groups - 2, -1, -1):
         lead[digits[k] != 0] = k
+    signed = np.where(negative, 1000, 0)           # the 'minus' block of the group table
     pieces = []
     for k, g in enumerate(digits):
-        end = suffix if k == groups - 1 else ""
-        first = np.where(negative, tables.get(3, "minus", end)[g], tables.get(3, "plain", end)[g])
-        text = first if k == groups - 1 and groups == 1 else np.where(
-            lead == k, first, tables.get(3, "padded", end)[g])
-        if k < groups - 1:
-            text = np.where(lead > k, "", text)
-        pieces.append(text)
+        table = tables.group(suffix if k == groups - 1 else "")
+        if groups == 1:
+            index = g + signed
+        else:    # the first group written plain or signed, later ones padded, earlier ones empty
+            index = np.where(lead == k, g + signed, np.where(lead < k, g + 2000, 3000))
+        pieces.append(table[index])
     return pieces
 
 
@@ -405,7 +478,8 @@ def _float_pieces(values: np.ndarray, tables: _DigitTables, suffix: str = "") ->
         pieces.append(tables.get(d, "short", suffix)[frac])
     else:       # fraction tables of d digits would be too long: its first d - 3 digits, then the last 3
         high, low = np.divmod(frac, 1000)
-        pieces.append(np.where(low != 0, tables.get(d - 3, "decimals")[high], tables.get(d - 3, "short")[high]))
+        both = tables.both(d - 3)    # 'decimals' and then 'short': the latter where the last three are zeros
+        pieces.append(both[high + np.where(low != 0, 0, 10 ** (d - 3))])
         pieces.append(tables.get(3, "rest", suffix)[low])
     other = np.flatnonzero(~fits)
     if len(other):
