@@ -373,10 +373,12 @@ def _judge(f: FixFacts, a: _Facts, i: int, rivals: dict):
 
 
 #: Said of every ok fix from three bearings with a known SD. Measured with benchmarks/coverage.py --n 3 --only
-#: outlier --sd-kinds known --wild 30-60 (and 40-120) --geometries walk,random,spread,arc (DEVELOPERS.md).
+#: outlier --sd-kinds known --wild 30-60 (and 40-120) --geometries walk,random,spread,arc --fixes 2000, with the
+#: wild risk weighed at the default share (DEVELOPERS.md; before it: 10-21 % and 2-9 %).
 THREE_TEXT = ("three bearings check one another only weakly: one wild bearing that passes near where the other two "
-              "cross goes unseen (in simulations with one bearing 30-60° off, 10-21 % of such fixes came out ok, and 2-9 % "
-              "with one 40-120° off, none holding the transmitter); a fourth bearing from another direction makes the fix testable")
+              "cross goes unseen by any residual test; its chance is weighed (wild_risk), but in simulations with one "
+              "bearing 30-60° off still 5-9 % of such fixes came out ok, and 1-3 % with one 40-120° off, none holding "
+              "the transmitter; a fourth bearing from another direction makes the fix testable")
 
 
 #: Said of every fix whose SD is estimated from its own three bearings.
