@@ -107,7 +107,10 @@ def wild_risk(g, m, sol, weigh, region, wild_share) -> WildRisk:
     if wild_share <= 0 or not weigh.any():
         return out
     sel = np.flatnonzero(weigh[g] & used)
-    order = sel[np.argsort(g[sel], kind="stable")]
+    n_of = np.bincount(g[sel], minlength=m)
+    # bearings by (number of bearings, fix): the fixes of each size lie together, so that the leave-one-out
+    # problems of a size are rows of equal length (sums along rows instead of grouped sums)
+    order = sel[np.lexsort((g[sel], n_of[g[sel]]))]
     gs = g[order]
     v = sol.region_weight[order] / sol.weight[order]          # full weights 1 / SD^2 [1/rad^2]
     d = sol.range_m[order]
@@ -124,28 +127,27 @@ def wild_risk(g, m, sol, weigh, region, wild_share) -> WildRisk:
     j_reg = _information(gs, m, sol.region_weight[order], sx, sy, np.zeros(m), np.zeros(m))[:3]
     prior = np.log(wild_share / (1.0 - wild_share))
     x0, y0 = _linear_start(gs, m, v, sx, sy, phi)
-    starts = np.concatenate(([0], np.cumsum(np.bincount(gs, minlength=m))))
     log_odds = np.full(len(order), -np.inf)
     lost = np.ones(len(order))
     ax, ay = np.full(len(order), np.nan), np.full(len(order), np.nan)
     fixes = (s0, det0, reach, j_reg, s_min, bound, cx, cy)
-    for lo, hi in _chunks(gs, starts, m):
-        k, i = _pairs(gs, starts, lo, hi)
+    for lo, hi, n in _chunks(n_of[gs]):
+        k, i = _pairs(hi - lo, n)
         part = slice(lo, hi)
         log_odds[part], lost[part], ax[part], ay[part] = _left_out(
-            k - lo, i - lo, gs[part], v[part], sx[part], sy[part], phi[part], x0[part], y0[part], prior, fixes)
+            k, i, n - 1, gs[part], v[part], sx[part], sy[part], phi[part], x0[part], y0[part], prior, fixes)
     with np.errstate(over="ignore", invalid="ignore"):
         odds = np.where(np.isfinite(log_odds), np.exp(np.minimum(log_odds, 700.0)), 0.0)
         chance = odds / (1.0 + np.bincount(gs, odds, m))[gs]
     share = chance * lost
     out.risk[:] = np.where(weigh, np.bincount(gs, share, m), np.nan)
-    # per fix (bearings sorted by fix), the bearing with the largest share
-    nonempty = np.flatnonzero(np.diff(starts) > 0)
-    top = np.maximum.reduceat(share, starts[nonempty]) if len(share) else np.zeros(0)
-    first = np.full(m, len(share))
-    cand = np.flatnonzero(share >= top[np.searchsorted(nonempty, gs)])
-    np.minimum.at(first, gs[cand], cand)
-    first = first[nonempty]
+    # per fix (its bearings lie together), the bearing with the largest share
+    start = np.flatnonzero(np.r_[True, gs[1:] != gs[:-1]]) if len(gs) else np.zeros(0, np.int64)
+    block = np.cumsum(np.r_[True, gs[1:] != gs[:-1]]) - 1 if len(gs) else np.zeros(0, np.int64)
+    top = np.maximum.reduceat(share, start) if len(share) else np.zeros(0)
+    first = np.full(len(start), len(share))
+    cand = np.flatnonzero(share >= top[block])
+    np.minimum.at(first, block[cand], cand)
     f = gs[first]
     has = share[first] > 0
     out.left_out[f[has]] = order[first[has]]
@@ -154,29 +156,25 @@ def wild_risk(g, m, sol, weigh, region, wild_share) -> WildRisk:
     return out
 
 
-def _chunks(gs, starts, m):
-    """Bearing ranges [lo, hi) of whole fixes, each with about CHUNK_PAIRS pairs or fewer."""
-    n = np.diff(starts)
-    pairs = np.cumsum(n * (n - 1))
-    out, lo_fix, done = [], 0, 0
-    while lo_fix < m:
-        hi_fix = int(np.searchsorted(pairs, done + CHUNK_PAIRS, side="right"))
-        hi_fix = max(hi_fix, lo_fix + 1)
-        out.append((int(starts[lo_fix]), int(starts[min(hi_fix, m)])))
-        done = int(pairs[min(hi_fix, m) - 1])
-        lo_fix = hi_fix
-    return [(lo, hi) for lo, hi in out if hi > lo]
+def _chunks(n_bearings):
+    """(lo, hi, n): ranges of the bearings (sorted by fix size, then fix) of whole fixes of n bearings each, about
+    CHUNK_PAIRS pairs or fewer a range. ``n_bearings``: each bearing's fix size."""
+    out = []
+    edges = np.flatnonzero(np.r_[True, n_bearings[1:] != n_bearings[:-1], True]) if len(n_bearings) else []
+    for lo, hi in zip(edges[:-1], edges[1:]):
+        n = int(n_bearings[lo])
+        step = max(n, CHUNK_PAIRS // max(n - 1, 1) // n * n)       # whole fixes
+        out += [(int(a), int(min(a + step, hi)), n) for a in range(int(lo), int(hi), step)]
+    return out
 
 
-def _pairs(gs, starts, lo, hi):
-    """Every (left-out bearing k, other bearing i of the same fix) for the bearings lo..hi (sorted by fix)."""
-    idx = np.arange(lo, hi)
-    n = (starts[gs[idx] + 1] - starts[gs[idx]])
-    k = np.repeat(idx, n)
-    first = np.repeat(starts[gs[idx]], n)
-    i = first + (np.arange(len(k)) - np.repeat(np.cumsum(n) - n, n))
-    keep = i != k
-    return k[keep], i[keep]
+def _pairs(size, n):
+    """For ``size`` bearings of fixes of n bearings each (fix by fix): every (left-out bearing k, other bearing i
+    of its fix), k ascending, n - 1 pairs each."""
+    others = np.array([[j for j in range(n) if j != o] for o in range(n)], np.int64).reshape(n, max(n - 1, 0))
+    k = np.arange(size)
+    i = (k - k % n)[:, None] + others[k % n]
+    return np.repeat(k, n - 1), i.ravel()
 
 
 def _information(gk, m, v, sx, sy, x, y):
@@ -189,30 +187,45 @@ def _information(gk, m, v, sx, sy, x, y):
             gx, gy)
 
 
-def _minimum(gk, m, v, sx, sy, phi, x, y, steps=1):
+def _minimum(gk, m, v, sx, sy, phi, x, y, steps=1, row=None):
     """Gauss-Newton steps on S = sum v (phi - direction(x, y))^2 per group from (x, y).
 
+    Groups are ``gk`` (m of them); or, with ``row``, consecutive runs of ``row`` terms (then gk is not used).
     Returns S after the last step as its linear prediction (S less the Gauss-Newton decrement: exact at a
     minimum), the point after it, and what the last step was taken with: the Fisher information (j11, j12, j22)
     and each term's residual [rad].
     """
+    if row:
+        add = lambda a: _rows_added(a.reshape(-1, row))  # noqa: E731
+        spread = lambda a: np.repeat(a, row)  # noqa: E731
+    else:
+        add = lambda a: np.bincount(gk, a, m)  # noqa: E731
+        spread = lambda a: a[gk]  # noqa: E731
     for step in range(steps):
-        X, Y = x[gk] - sx, y[gk] - sy
+        X, Y = spread(x) - sx, spread(y) - sy
         d2 = X * X + Y * Y
         gx, gy = Y / d2, -X / d2
         vx, vy = v * gx, v * gy
-        j11, j12, j22 = np.bincount(gk, vx * gx, m), np.bincount(gk, vx * gy, m), np.bincount(gk, vy * gy, m)
+        j11, j12, j22 = add(vx * gx), add(vx * gy), add(vy * gy)
         res = wrap_pi(phi - np.arctan2(X, Y))
-        b1, b2 = np.bincount(gk, vx * res, m), np.bincount(gk, vy * res, m)
+        b1, b2 = add(vx * res), add(vy * res)
         det = j11 * j22 - j12 * j12
         with np.errstate(divide="ignore", invalid="ignore"):
             dx, dy = (j22 * b1 - j12 * b2) / det, (j11 * b2 - j12 * b1) / det
             ok = np.isfinite(dx) & np.isfinite(dy)
         x, y = np.where(ok, x + dx, x), np.where(ok, y + dy, y)
-    s = np.bincount(gk, v * res * res, m)
+    s = add(v * res * res)
     with np.errstate(invalid="ignore"):
         drop = np.where(ok, dx * b1 + dy * b2, 0.0)
     return np.fmax(s - drop, 0.0), x, y, (j11, j12, j22), res
+
+
+def _rows_added(a):
+    """Each row's sum, column by column (faster than a sum along short rows)."""
+    out = a[:, 0].copy()
+    for j in range(1, a.shape[1]):
+        out += a[:, j]
+    return out
 
 
 def _chi2_bound(dof):
@@ -242,18 +255,18 @@ def _linear_start(gs, m, v, sx, sy, phi):
     return np.nan_to_num(x0), np.nan_to_num(y0)
 
 
-def _left_out(k, i, f, v, sx, sy, phi, x0, y0, prior, fixes):
-    """For one chunk of bearings (whole fixes; ``f`` their fixes) and its pairs (k, i) of chunk indices: per
-    left-out bearing k, (log posterior odds of Hk against H0, share of Hk's position outside the fix's region,
-    Hk's answer x, y [m])."""
+def _left_out(k, i, row, f, v, sx, sy, phi, x0, y0, prior, fixes):
+    """For one chunk of bearings (whole fixes of row + 1 bearings; ``f`` their fixes) and its pairs (k, i) of
+    chunk indices, ``row`` a bearing: per left-out bearing k, (log posterior odds of Hk against H0, share of Hk's
+    position outside the fix's region, Hk's answer x, y [m])."""
     s0, det0, reach, j_reg, s_min, bound, cx, cy = fixes
     nb = len(f)
     # the answer after STEPS steps; its information and residuals are those of the last step's start, within a
     # step of it
-    sk, xk, yk, (a11, a12, a22), res = _minimum(k, nb, v[i], sx[i], sy[i], phi[i], x0, y0, steps=STEPS)
+    sk, xk, yk, (a11, a12, a22), res = _minimum(k, nb, v[i], sx[i], sy[i], phi[i], x0, y0, steps=STEPS, row=row)
     detk = a11 * a22 - a12 * a12
-    n_alt = np.bincount(k, minlength=nb)
-    behind = np.bincount(k, np.abs(res) > np.pi / 2, nb) > 0
+    n_alt = np.full(nb, row)
+    behind = (np.abs(res) > np.pi / 2).reshape(-1, row).any(1)
     with np.errstate(invalid="ignore", divide="ignore", over="ignore"):
         plausible = (n_alt >= 2) & ~behind & (detk > 0) & (sk <= _chi2_bound(n_alt - 2))
         log_odds = (0.5 * (s0[f] - sk) + 0.5 * np.log(det0[f] / detk) - 0.5 * np.log(2.0 * np.pi * v) + prior)
@@ -365,7 +378,10 @@ def inside_shares(x, y, Jk, forms, points=None):
             c22 = l22 * j22 * l22
             coef = np.stack([mx * u1 + my * u2 - gap, 2.0 * b1, 2.0 * b2, c11, 2.0 * c12, c22], axis=1)
         fin = np.isfinite(coef).all(1)
-        this = (np.where(fin[:, None], coef, 0.0) @ basis <= 0.0) & fin[:, None]
+        if fin.all():
+            this = coef @ basis <= 0.0
+        else:
+            this = (np.where(fin[:, None], coef, 0.0) @ basis <= 0.0) & fin[:, None]
         inside = this if inside is None else inside & this
         shares.append(inside.mean(1))
     return shares
