@@ -75,9 +75,13 @@ def simulate(n_fix, n, sd, rng, *, crossing=None, outlier=False, geometry="sprea
     obs = true_b + rng.normal(0, sd, (n_fix, n))
     bad = np.full(n_fix, -1)
     if outlier:
+        # True: one wild bearing in every fix; a share in (0, 1): in that share of fixes, drawn at random
         bad = rng.integers(0, n, n_fix)
         off = rng.uniform(*wild, n_fix) * rng.choice([-1, 1], n_fix)
-        obs[np.arange(n_fix), bad] = true_b[np.arange(n_fix), bad] + off
+        if outlier is not True:
+            bad = np.where(rng.uniform(size=n_fix) < float(outlier), bad, -1)
+        hit = np.flatnonzero(bad >= 0)
+        obs[hit, bad[hit]] = true_b[hit, bad[hit]] + off[hit]
     return dict(lat=np.asarray(lat_s).reshape(n_fix, n), lon=np.asarray(lon_s).reshape(n_fix, n),
                 bearing=obs % 360.0, tlat=lat0, tlon=lon0, bad=bad)
 
@@ -131,8 +135,10 @@ def cell(method, known, n, sd, n_fix, rng, *, crossing=None, outlier=False, geom
     in_region = fx.contains(sc["tlat"], sc["tlon"])
     in_ellipse = fx.contains(sc["tlat"], sc["tlon"], kind="ellipse")
     err = errors_m(t, sc)
+    kind = ("clean" if not outlier else f"outlier {wild}°" if outlier is True
+            else f"{100 * outlier:g} % of fixes with one {wild}° off")
     row = dict(method=method, sd="known" if known else "estimated", n=n,
-               data=(f"outlier {wild}°" if outlier else "clean") + (" (whole °)" if decimals == 0 else ""),
+               data=kind + (" (whole °)" if decimals == 0 else ""),
                geometry=geometry if crossing is None else f"{crossing}°",
                region=in_region[has_region].mean() if has_region.any() else np.nan,
                ellipse=in_ellipse[has_ellipse].mean() if has_ellipse.any() else np.nan,
@@ -140,7 +146,7 @@ def cell(method, known, n, sd, n_fix, rng, *, crossing=None, outlier=False, geom
                ok_cover=in_region[status == "ok"].mean() if (status == "ok").any() else np.nan,
                median=np.nanmedian(err) if np.isfinite(err).any() else np.nan, oracle=np.nan, cpu=cpu,
                not_ok=", ".join(f"{k} {v}" for k, v in collections.Counter(status[status != "ok"]).most_common()))
-    if outlier:
+    if outlier is True:
         keep = np.ones(sc["lat"].shape, bool)
         keep[np.arange(n_fix), sc["bad"]] = False
         ref = locate(read(sc, sd if known else None, keep, decimals), method="mle").table
@@ -176,6 +182,9 @@ def main(argv=None):
                     help="decimals the bearings are written with (0: whole degrees, as read off a compass)")
     ap.add_argument("--wild", choices=list(WILD_RANGES), default="40-120",
                     help="how far off the wild bearing of outlier cells is, in degrees (default 40-120)")
+    ap.add_argument("--mixed", type=float, default=None, metavar="SHARE",
+                    help="also a cell per n and layout where this share of fixes (e.g. 0.15) has one wild bearing: "
+                         "its 'ok: region' is the promise a user relies on in a sheet with some wild bearings")
     ap.add_argument("--areas", action="store_true",
                     help="instead of the table: median region area of ok fixes with the SD estimated against the "
                          "same fixes with the true SD given, per n and layout")
@@ -201,6 +210,8 @@ def main(argv=None):
                             cells.append(dict(geometry=g))
                         if a.only != "clean":
                             cells.append(dict(outlier=True, geometry=g))
+                        if a.mixed:
+                            cells.append(dict(outlier=a.mixed, geometry=g))
                 for kw in cells:
                     rng = np.random.default_rng([a.seed, n, len(rows)])
                     r = cell(method, known, n, a.sd, a.fixes, rng, decimals=a.decimals, wild=a.wild, **kw)

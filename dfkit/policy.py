@@ -42,6 +42,12 @@ TRACK_MAX_SPEED_MS = 150.0
 #: 100 is flagged, while 1 in 1000 let a third of the three-bearing fixes with a wild bearing through).
 INCONSISTENT_P = 0.01
 
+#: Prior share of bearings that are wild (a reflection, a misread, a bearing taken on the wrong signal), used to
+#: weigh whether a fix could rest on one wild bearing that its fit absorbed (dfkit.locate.rivals). Common
+#: practice, no single source: beacon trials in the field commonly leave out a few per cent of bearings as wild;
+#: measure yours (``dfkit calibrate`` counts wild trials) and set it with --wild-share. 0 turns the weighing off.
+WILD_SHARE = 0.05
+
 #: With the SD estimated from the fix itself, an estimate above this is flagged ``inconsistent`` [°].
 #: Common practice, no single source: published beacon trials report bearing errors of a few degrees
 #: (SD 1.6° in Podruzny 1996, MSc thesis, Montana State Univ.; 4.9-9.9° at 900 m in Grovenburg et al.

@@ -13,7 +13,8 @@ from geographiclib.geodesic import Geodesic
 WGS = Geodesic.WGS84
 
 
-def scenario(n_fix, n, sd_deg, rng, *, crossing_deg=None, outlier=False, ranges=(500.0, 2000.0), layout="spread"):
+def scenario(n_fix, n, sd_deg, rng, *, crossing_deg=None, outlier=False, ranges=(500.0, 2000.0), layout="spread",
+             wild=(40.0, 120.0)):
     """Arrays (n_fix, n) of station lat/lon and observed bearings, the truth, and the wild bearing's index.
 
     ``crossing_deg``: the stations' azimuths from the transmitter span this angle (for two
@@ -43,9 +44,13 @@ def scenario(n_fix, n, sd_deg, rng, *, crossing_deg=None, outlier=False, ranges=
     obs = true_b + rng.normal(0, sd_deg, (n_fix, n))
     bad = np.full(n_fix, -1)
     if outlier:
+        # True: one bearing ``wild`` degrees off in every fix; a share in (0, 1): in that share of the fixes
         bad = rng.integers(0, n, n_fix)
-        off = rng.uniform(40, 120, n_fix) * rng.choice([-1, 1], n_fix)
-        obs[np.arange(n_fix), bad] = true_b[np.arange(n_fix), bad] + off
+        off = rng.uniform(*wild, n_fix) * rng.choice([-1, 1], n_fix)
+        if outlier is not True:
+            bad = np.where(rng.uniform(size=n_fix) < float(outlier), bad, -1)
+        hit = np.flatnonzero(bad >= 0)
+        obs[hit, bad[hit]] = true_b[hit, bad[hit]] + off[hit]
     return dict(lat=lat, lon=lon, bearing=obs % 360.0, truth_lat=lat0, truth_lon=lon0, bad=bad)
 
 

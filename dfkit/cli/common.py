@@ -10,7 +10,8 @@ import time
 
 from dfkit.cautions import CAUTION_LINE
 from dfkit.conventions import NORTH_ALIASES, UNIT_ALIASES
-from dfkit.policy import DEFAULT_TRACK_GAP_S, DEFAULT_WINDOW_MIN, MAX_TRACK_GAP_S, MAX_WINDOW_MIN, MIN_SD_DEG
+from dfkit.policy import (DEFAULT_TRACK_GAP_S, DEFAULT_WINDOW_MIN, MAX_TRACK_GAP_S, MAX_WINDOW_MIN, MIN_SD_DEG,
+                          WILD_SHARE)
 
 
 #: The command-line flag of each reading option (the library names the parameter, the shell the flag).
@@ -126,8 +127,25 @@ def add_fix_options(p: argparse.ArgumentParser) -> None:
                    help="estimator: mle (Lenth, default), huber, andrews (robust), lsq, stansfield")
     g.add_argument("--level", type=float, default=0.95,
                    help="probability of the confidence regions and ellipses (default 0.95)")
+    g.add_argument("--wild-share", type=_share, default=WILD_SHARE, metavar="SHARE",
+                   help=f"share of bearings you expect to be wild (reflections, misreads), from 0 to below 1 "
+                        f"(default {WILD_SHARE:g}, one in {1 / WILD_SHARE:.0f}): a fix of three or more bearings "
+                        f"whose region could miss because one of them is wild is flagged when that chance reaches "
+                        f"1 - level; 0 turns this off (each fix's chance is its wild_risk)")
     g.add_argument("--calibration", default=None, metavar="CAL.csv",
                    help="bias and SD per antenna/observer from 'dfkit calibrate': removes the bias, uses the SD")
+
+
+def _share(text: str) -> float:
+    """--wild-share: a number in [0, 1), or a percentage ("5%")."""
+    t = text.strip()
+    try:
+        v = float(t[:-1]) / 100.0 if t.endswith("%") else float(t)
+    except ValueError:
+        raise argparse.ArgumentTypeError(f"{text!r} is not a number (e.g. 0.05 or 5%)") from None
+    if not 0.0 <= v < 1.0:
+        raise argparse.ArgumentTypeError(f"{text!r} must be a share from 0 to below 1 (e.g. 0.05 or 5%)")
+    return v
 
 
 def add_jobs_option(p: argparse.ArgumentParser) -> None:
@@ -275,7 +293,8 @@ def solve(a):
 
         progress("applying the calibration")
         b = apply(b, read_calibration(a.calibration))
-    fixes = locate(b, method=a.method, level=a.level, progress=progress, jobs=getattr(a, "jobs", 1))
+    fixes = locate(b, method=a.method, level=a.level, progress=progress, jobs=getattr(a, "jobs", 1),
+                   wild_share=getattr(a, "wild_share", WILD_SHARE))
     return b, fixes, progress
 
 

@@ -106,6 +106,7 @@ def run(a) -> int:
             next_sd_deg=a.next_sd,
             method=a.method,
             level=a.level,
+            wild_share=a.wild_share,
             basis=a.basis,
             max_range_m=a.max_range,
             min_distance_m=a.min_distance,

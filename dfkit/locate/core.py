@@ -18,6 +18,7 @@ from dfkit.locate.resolution import fix_steps, sd_floors
 from dfkit.locate.rivals import find_rivals
 from dfkit.locate.status import FixFacts, append_reason, classify, p_values
 from dfkit.observations.cells import filled
+from dfkit.policy import WILD_SHARE
 from dfkit.observations import Bearings, ReadOptions, read_bearings
 
 #: Inconsistent fixes with a chi-square p-value at least this are not searched for one bad line.
@@ -26,7 +27,7 @@ HINT_P = 1e-3
 
 def locate(bearings: Bearings, *, method: str = "mle", level: float = 0.95, window_min: float | None = None,
            robust_c: float | None = None, with_regions: bool = True, progress=None, jobs: int = 1,
-           sheet_checks: bool = True) -> Fixes:
+           sheet_checks: bool = True, wild_share: float = WILD_SHARE) -> Fixes:
     """Solve every fix of a set of bearings.
 
     Parameters
@@ -53,12 +54,20 @@ def locate(bearings: Bearings, *, method: str = "mle", level: float = 0.95, wind
     sheet_checks : bool
         Also run the sheet-wide checks (:mod:`dfkit.locate.sheetwide`: a group reading off, an SD too
         small), which set ``Fixes.warnings`` and may mark ``ok`` fixes (default).
+    wild_share : float
+        Prior share of bearings that are wild (:data:`dfkit.policy.WILD_SHARE`), in [0, 1): a fix of three or
+        more bearings with a known SD whose region could miss the transmitter because one of its bearings is
+        wild, with a chance of 1 - ``level`` or more, is ``ambiguous``; each fix's chance is its ``wild_risk``.
+        0 weighs nothing (``wild_risk`` is then 0 or NaN).
     """
     if method not in estimators.METHODS:
         raise ValueError(f"method={method!r} is not one of {', '.join(repr(m) for m in estimators.METHODS)}")
     if not (isinstance(level, (int, float, np.floating)) and 0.0 < float(level) < 1.0):
         raise ValueError(f"level={level!r} must be a probability between 0 and 1 (e.g. 0.95)")
-    options = dict(method=method, level=level, window_min=window_min, robust_c=robust_c, with_regions=with_regions)
+    if not (isinstance(wild_share, (int, float, np.floating)) and 0.0 <= float(wild_share) < 1.0):
+        raise ValueError(f"wild_share={wild_share!r} must be a share between 0 and 1 (e.g. 0.05)")
+    options = dict(method=method, level=level, window_min=window_min, robust_c=robust_c, with_regions=with_regions,
+                   wild_share=float(wild_share))
     if jobs != 1:
         from dfkit.locate.parallel import locate_in_chunks
 
@@ -73,7 +82,7 @@ def locate(bearings: Bearings, *, method: str = "mle", level: float = 0.95, wind
 
 
 def locate_chunk(bearings: Bearings, *, method: str, level: float, window_min: float | None, robust_c: float | None,
-                 with_regions: bool, progress=None) -> Fixes:
+                 with_regions: bool, progress=None, wild_share: float = WILD_SHARE) -> Fixes:
     """:func:`locate` of a set of fixes (the whole sheet, or a chunk of it) without the sheet-wide checks:
     each fix is solved and judged on its own bearings only."""
     say = progress or (lambda text: None)
@@ -133,7 +142,8 @@ def locate_chunk(bearings: Bearings, *, method: str, level: float, window_min: f
     if hints:      # only the fixes with hints are judged again
         facts.hints = hints
         status, reasons = classify(facts, (status, reasons), redo=hints)
-    rivals = find_rivals(lat, lon, theta, sd, g, counts, sol, lik, level, status == "ok", cal_dof, floor)
+    rivals, wild_risk = find_rivals(lat, lon, theta, sd, g, counts, sol, lik, level, status == "ok", cal_dof, floor,
+                                    wild_share=wild_share)
     if rivals:
         facts.rivals = rivals
         status, reasons = classify(facts, (status, reasons), redo=rivals)
@@ -146,7 +156,8 @@ def locate_chunk(bearings: Bearings, *, method: str, level: float, window_min: f
             append_reason(reasons, i, text)
 
     has_pos = has_position(status)
-    table = _table(bearings, sol, ell, lik, status, reasons, counts, span_min, tmid, method, level, has_pos)
+    table = _table(bearings, sol, ell, lik, status, reasons, counts, span_min, tmid, method, level, has_pos,
+                   wild_risk)
     bt = _with_fit(b, g, has_pos, sol, status)
     notes = list(bearings.notes)
     return Fixes(table=table, bearings=bt, problems=list(bearings.problems), notes=notes, source=bearings.source,
@@ -198,7 +209,7 @@ def _sd_source(b, g, m, sol, has_pos):
     return np.array(["", "estimated", "given", "calibration", "given+calibration"], dtype=object)[code]
 
 
-def _table(bearings, sol, ell, lik, status, reasons, counts, span_min, tmid, method, level, has_pos):
+def _table(bearings, sol, ell, lik, status, reasons, counts, span_min, tmid, method, level, has_pos, wild_risk):
     b = bearings.table
     fix_index = bearings.fix_index
     m = len(fix_index)
@@ -235,6 +246,7 @@ def _table(bearings, sol, ell, lik, status, reasons, counts, span_min, tmid, met
         "region_area_m2": np.where(has_lik, lik.area_m2, np.nan) if lik is not None else np.full(m, np.nan),
         "region_bounded": has_lik & (lik.bounded if lik is not None else False),
         "region_reach_m": np.where(has_lik, lik.reach_m, np.nan) if lik is not None else np.full(m, np.nan),
+        "wild_risk": pos(wild_risk),
         "cov_ee_m2": reg(cov[:, 0, 0]),
         "cov_en_m2": reg(cov[:, 0, 1]),
         "cov_nn_m2": reg(cov[:, 1, 1]),
@@ -268,11 +280,11 @@ def _lines_column(rejected):
 
 
 def locate_sheet(sheet, *, method="mle", level=0.95, options: ReadOptions | None = None, progress=None,
-                 **read_kwargs) -> Fixes:
+                 wild_share: float = WILD_SHARE, **read_kwargs) -> Fixes:
     """Read a sheet and solve its fixes: the Python form of ``dfkit fix``.
 
     ``read_kwargs`` are :class:`~dfkit.observations.ReadOptions` fields
     (``north='magnetic'``, ``sd=5``, ``window_min=30``, ``track='t.gpx'`` ...).
     """
     bearings = read_bearings(sheet, options, **read_kwargs)
-    return locate(bearings, method=method, level=level, progress=progress)
+    return locate(bearings, method=method, level=level, progress=progress, wild_share=wild_share)

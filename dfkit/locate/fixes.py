@@ -59,7 +59,8 @@ STATUS_MEANING = {
     "no_region": "a position, but nothing to size a confidence region with",
     "shallow": "the bearing lines cross at a shallow angle; the position is weak along them",
     "long_span": "the bearings are too far apart in time; the transmitter may have moved",
-    "ambiguous": "another set of the bearings fits as well at another place, outside the region",
+    "ambiguous": "another set of the bearings fits as well at another place, outside the region, or the fix may rest "
+                 "on one wild bearing (wild_risk of 1 - level or more)",
     "too_few": "fewer than two usable bearings",
     "one_spot": "all bearings were taken from one spot",
     "parallel": "the bearing lines are parallel and do not cross",
@@ -87,7 +88,7 @@ def has_position(status) -> np.ndarray:
 FIX_COLUMNS = [
     "fix", "tag", "time", "lat", "lon", "n_bearings", "n_used", "method", "sd_deg", "sd_source", "level",
     "semi_major_m", "semi_minor_m", "orientation_deg", "area_m2",
-    "region_area_m2", "region_bounded", "region_reach_m",
+    "region_area_m2", "region_bounded", "region_reach_m", "wild_risk",
     "cov_ee_m2", "cov_en_m2", "cov_nn_m2",
     "status", "reason", "crossing_deg", "span_min", "max_residual_deg", "kappa", "iterations", "converged",
     "rejected_lines",
@@ -104,7 +105,8 @@ class Fixes:
         One row per fix of the input, in input order (columns :data:`FIX_COLUMNS`):
         position, the covariance ellipse (``semi_major_m`` ...), the likelihood
         region (``region_area_m2``, NaN when open; ``region_bounded``;
-        ``region_reach_m`` the farthest its edge lies from the fix), the east/north
+        ``region_reach_m`` the farthest its edge lies from the fix), ``wild_risk`` (the chance that the
+        region misses because one bearing is wild, :mod:`dfkit.locate.wild`; NaN where not weighed), the east/north
         covariance of the position (``cov_ee_m2``, ``cov_en_m2``, ``cov_nn_m2``),
         ``sd_source`` ('given', 'calibration', 'given+calibration' when every
         bearing has an SD; 'estimated' from the fix's own residuals), status and reason.

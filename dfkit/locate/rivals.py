@@ -47,7 +47,8 @@ import numpy as np
 from dfkit import estimators, geodesy
 from dfkit.estimators import subsets
 from dfkit.locate.status import consistency
-from dfkit.policy import INCONSISTENT_P, PLAUSIBLE_SD_DEG
+from dfkit.locate.wild import wild_risk
+from dfkit.policy import INCONSISTENT_P, PLAUSIBLE_SD_DEG, WILD_SHARE
 from dfkit.regions import region_threshold
 
 
@@ -69,7 +70,9 @@ class Rival:
     alternative keeps every bearing; ``dropped``: bearings the fix itself left out; ``lat``, ``lon``
     the alternative's answer [°]; ``distance_m`` from the fix; ``miss_deg`` how far the left-out bearing
     misses the alternative's answer [°] (NaN when none is left out); ``p`` its chi-square p-value
-    (known SD) or ``sd_deg`` its estimated SD.
+    (known SD) or ``sd_deg`` its estimated SD; ``chance`` the fix's wild risk (NaN where not weighed);
+    ``outside`` whether the alternative's answer lies outside the fix's region; ``wild_share`` the prior
+    share of wild bearings the risk was weighed with; ``by_risk`` when only the wild risk flags the fix.
     """
 
     left_out: int
@@ -80,9 +83,14 @@ class Rival:
     miss_deg: float
     p: float
     sd_deg: float
+    chance: float = np.nan
+    outside: bool = True
+    wild_share: float = np.nan
+    by_risk: bool = False
 
 
-def find_rivals(lat, lon, theta, sd, g, counts, sol, lik, level, examine, known_dof=None, sd_floor=None):
+def find_rivals(lat, lon, theta, sd, g, counts, sol, lik, level, examine, known_dof=None, sd_floor=None,
+                wild_share=WILD_SHARE):
     """Competing explanations of the fixes ``examine`` (see the module docstring).
 
     Parameters
@@ -106,27 +114,38 @@ def find_rivals(lat, lon, theta, sd, g, counts, sol, lik, level, examine, known_
 
     Returns
     -------
-    dict
-        fix index -> :class:`Rival`, for the fixes with a plausible, incompatible alternative.
+    rivals : dict
+        fix index -> :class:`Rival`, for the fixes with a plausible, incompatible alternative, or whose wild risk
+        reaches 1 - level.
+    wild_risk : ndarray, shape (m,)
+        Per fix, the chance that one of its bearings is wild and its region misses the transmitter because of it
+        (:func:`_wild_chance`), with the prior ``wild_share`` per bearing; NaN where it is not weighed (fewer than
+        three bearings, the SD estimated, a fix that left bearings out, or not examined).
     """
     m = len(counts)
     kdof = np.full(m, np.inf) if known_dof is None else np.asarray(known_dof, float)
     used = sol.weight > 0
     n_used = np.bincount(g, used.astype(float), m)
     look = examine & (counts >= 3)
-    if not look.any():
-        return {}
-    # Alternatives: each fix without each bearing in turn (but not the one set the fit itself uses), and
-    # whole where the fit dropped bearings.
-    alone = ~used & (n_used[g] == counts[g] - 1)
-    # Where the fit uses every bearing, leaving one out gives an alternative with fewer bearings; only those
-    # that could be incompatible are solved (_could_conflict).
     full = look & (n_used == counts)
-    skip = alone | (full[g] & ~_could_conflict(g, m, sol, used, level, kdof))
-    var = subsets.variants(g, counts, np.flatnonzero(look), np.flatnonzero(look & (n_used < counts)), skip=skip)
+    if not look.any():
+        return {}, np.full(m, np.nan)
+    region = _fix_region(g, m, sol, lik, level, kdof)
+    wild = wild_risk(g, m, sol, full & sol.sd_known, region, wild_share)
+    risky = np.flatnonzero(wild.risk >= 1.0 - float(level))
+    picked_bearing = np.zeros(len(g), bool)
+    picked_bearing[wild.left_out[risky]] = True
+    # Alternatives: each fix without each bearing in turn (but not the one set the fit itself uses), and whole
+    # where the fit dropped bearings. Where the fit uses every bearing, leaving one out gives an alternative with
+    # fewer bearings; only those that could be incompatible (_could_conflict) or that carry most of a flagged
+    # fix's wild risk are solved.
+    could = _could_conflict(g, m, sol, used, level, kdof)
+    alone = ~used & (n_used[g] == counts[g] - 1)
+    var = subsets.variants(g, counts, np.flatnonzero(look), np.flatnonzero(look & (n_used < counts)),
+                           skip=alone | (full[g] & ~(could | picked_bearing)))
     k = len(var)
     if not k:
-        return {}
+        return {}, wild.risk
     v_fix, v_out, mo, mb = var.fix, var.left_out, var.owner, var.member
     fl = None if sd_floor is None else np.asarray(sd_floor, float)[mb]
     alt = estimators.solve(lat[mb], lon[mb], theta[mb], mo, k, sd[mb], method="mle", sd_floor_deg=fl)
@@ -134,30 +153,69 @@ def find_rivals(lat, lon, theta, sd, g, counts, sol, lik, level, examine, known_
     with np.errstate(invalid="ignore"):
         plausible = alt.converged & ~alt.behind & np.where(
             alt.sd_known, (alt.dof < 1) | (p >= INCONSISTENT_P), (alt.dof >= 1) & (alt.sd_deg <= PLAUSIBLE_SD_DEG))
-    if not plausible.any():
-        return {}
+    fewer = (v_out >= 0) & full[v_fix]          # a fix that uses all its bearings, without one of them
+    picked = np.flatnonzero(fewer & picked_bearing[np.maximum(v_out, 0)])
+    # the two-sided test, on the alternatives that could fail it (the others were solved for the wild risk alone,
+    # and are tested so that the reason says whether the region reaches them)
+    test = plausible & ~(fewer & ~could[np.maximum(v_out, 0)])
+    test[picked] = alt.converged[picked]
+    outside, conflict = _two_sided(lat, lon, theta, g, counts, sol, lik, level, kdof, alt, mo, mb, k, v_fix, n_used,
+                                   used, test, region)
+    by_risk = picked[~np.isin(v_fix[picked], v_fix[conflict])]
+    conflict[by_risk] = True
+    # where the exact alternative did not settle, its answer from the wild weighing (the fix's local plane)
+    unsettled = picked[~alt.converged[picked]]
+    if len(unsettled):
+        f = v_fix[unsettled]
+        alt.lat[unsettled], alt.lon[unsettled] = geodesy.from_local(sol.lat[f], sol.lon[f], wild.x[f], wild.y[f])
+    rivals = _described(conflict, alt, p, v_fix, v_out, lat, lon, theta, g, counts, sol, used, wild.risk, outside,
+                        wild_share)
+    for i in v_fix[by_risk].tolist():
+        rivals[i].by_risk = True
+    return rivals, wild.risk
+
+
+def _fix_region(g, m, sol, lik, level, kdof):
+    """Each fix's region as the tests here use it: (S_min, bound, centre x, centre y [m] in the fix's plane)."""
+    r_fix = np.radians(sol.residual_deg)
+    s_min = np.bincount(g, sol.region_weight * r_fix * r_fix, m)
+    cx, cy = np.zeros(m), np.zeros(m)
+    if lik is not None:
+        s_min = np.where(lik.has_region & np.isfinite(lik.s_min), np.minimum(lik.s_min, s_min), s_min)
+        has = lik.has_region & np.isfinite(lik.centre_x) & np.isfinite(lik.centre_y)
+        cx, cy = np.where(has, lik.centre_x, 0.0), np.where(has, lik.centre_y, 0.0)
+    bound = region_threshold(s_min, sol.sd_known, sol.dof, level, kdof, _floor_rad(sol))
+    return s_min, bound, cx, cy
+
+
+def _two_sided(lat, lon, theta, g, counts, sol, lik, level, kdof, alt, mo, mb, k, v_fix, n_used, used, test,
+               region):
+    """Conditions 2 and 3 of the module docstring for the alternatives ``test``: (outside, conflict) per
+    alternative, ``outside`` when its answer lies outside the fix's region."""
+    outside = np.zeros(k, bool)
+    conflict = np.zeros(k, bool)
+    if not test.any():
+        return outside, conflict
+    s_min, bound, _, _ = region
     # The fix's S at each alternative's answer (exact geodesic residuals of all its bearings, weighted as in its
-    # region, against the fix's bound. Only plausible alternatives can conflict: only they are measured (the
-    # geodesics of every bearing at every alternative's answer cost more than the rest of this test).
-    pv = np.flatnonzero(plausible)
+    # region), against the fix's bound: only for the alternatives tested (the geodesics of every bearing at every
+    # alternative's answer cost more than the rest of this test).
+    pv = np.flatnonzero(test)
     whole = subsets.variants(g, counts, [], v_fix[pv])
     ao, ab = whole.owner, whole.member
     az, _, _ = geodesy.inverse(lat[ab], lon[ab], alt.lat[pv][ao], alt.lon[pv][ao])
     r = np.radians(((theta[ab] - az + 180.0) % 360.0) - 180.0)
     S_fix_at_alt = np.zeros(k)
     S_fix_at_alt[pv] = np.bincount(ao, sol.region_weight[ab] * r * r, len(pv))
-    r_fix = np.radians(sol.residual_deg)
-    S_fix_min = np.bincount(g, sol.region_weight * r_fix * r_fix, m)
-    if lik is not None:
-        S_fix_min = np.where(lik.has_region & np.isfinite(lik.s_min), np.minimum(lik.s_min, S_fix_min), S_fix_min)
-    fix_floor = _floor_rad(sol)
-    T_fix = region_threshold(S_fix_min, sol.sd_known, sol.dof, level, kdof, fix_floor)[v_fix]
+    T_fix = bound[v_fix]
     # The alternative's S at the fix against the alternative's bound: at the centre of the fix's region (its
     # minimum of S), which is the fix's answer for Lenth's fit but not for an inefficient one (least squares).
+    r_fix = np.radians(sol.residual_deg)
     r_centre = r_fix
     if lik is not None:
+        m = len(counts)
         tried = np.zeros(m, bool)
-        tried[v_fix[pv]] = True         # the fixes with a plausible alternative (the others cannot conflict)
+        tried[v_fix[pv]] = True         # the fixes with an alternative tested (the others cannot conflict)
         has = tried[g] & lik.has_region[g] & np.isfinite(lik.centre_x[g]) & np.isfinite(lik.centre_y[g])
         if has.any():
             clat, clon = geodesy.from_local(sol.lat[g[has]], sol.lon[g[has]], lik.centre_x[g[has]],
@@ -174,19 +232,23 @@ def find_rivals(lat, lon, theta, sd, g, counts, sol, lik, level, examine, known_
     # likelihoods, n log(S / dof), the SD no smaller than its floor) below 2 log EVIDENCE_RATIO. One with fewer
     # bearings always has the better likelihood; it competes through the conflict test alone.
     n_alt = np.bincount(mo, minlength=k)
+    fix_floor = _floor_rad(sol)
     with np.errstate(invalid="ignore", divide="ignore"):
-        S_fix_used = np.bincount(g, np.where(used, sol.region_weight * r_fix * r_fix, 0.0), m)[v_fix]
+        S_fix_used = np.bincount(g, np.where(used, sol.region_weight * r_fix * r_fix, 0.0), len(counts))[v_fix]
         f2_alt, f2_fix = _floor_rad(alt) ** 2, (fix_floor ** 2)[v_fix]
         lr = np.where(alt.sd_known, S_alt_min - S_fix_used,
                       n_alt * np.log(np.fmax(S_alt_min / (n_alt - 2), f2_alt))
                       - n_used[v_fix] * np.log(np.fmax(S_fix_used / (n_used[v_fix] - 2), f2_fix)))
         close = ~(lr >= 2.0 * np.log(EVIDENCE_RATIO)) | (n_alt < n_used[v_fix])
         same = (n_alt == n_used[v_fix]) | ~sol.sd_known[v_fix]
+        outside = test & (S_fix_at_alt > T_fix)
+        conflict = outside & close & ((S_alt_at_fix > T_alt) | same)
+    return outside, conflict
 
-        conflict = plausible & close & (S_fix_at_alt > T_fix) & ((S_alt_at_fix > T_alt) | same)
-    if not conflict.any():
-        return {}
-    # per fix, the alternative that fits best (highest p, or smallest SD)
+
+def _described(conflict, alt, p, v_fix, v_out, lat, lon, theta, g, counts, sol, used, risk, outside, wild_share):
+    """One :class:`Rival` per fix with a conflicting alternative: the one that fits best (highest p, or
+    smallest SD)."""
     score = np.where(alt.sd_known, -np.nan_to_num(p, nan=1.0), alt.sd_deg)
     cand = np.flatnonzero(conflict)
     cand = cand[np.lexsort((score[cand], v_fix[cand]))]
@@ -206,9 +268,9 @@ def find_rivals(lat, lon, theta, sd, g, counts, sol, lik, level, examine, known_
         v = best[k_]
         out[i] = Rival(left_out=int(j[k_]), dropped=sel[~used[sel]].tolist(), lat=float(alt.lat[v]),
                        lon=float(alt.lon[v]), distance_m=float(dist[k_]), miss_deg=float(miss[k_]),
-                       p=float(p[v]), sd_deg=float(alt.sd_deg[v]))
+                       p=float(p[v]), sd_deg=float(alt.sd_deg[v]), chance=float(risk[i]), outside=bool(outside[v]),
+                       wild_share=float(wild_share))
     return out
-
 
 
 #: With the SD estimated, a bearing is left out and the rest solved only when a linear model says its absence

@@ -325,7 +325,7 @@ def _judge(f: FixFacts, a: _Facts, i: int, rivals: dict):
             flags.append(("long_span", f"{what}; the transmitter may have moved (if it stays put, as in a "
                                        "hunt, give a longer --window)"))
         if i in rivals:
-            flags.append(("ambiguous", _rival_text(rivals[i], f.lines, sol, i)))
+            flags.append(("ambiguous", _rival_text(rivals[i], f.lines, sol, i, f.level)))
         if not sol.sd_known[i] and sol.dof[i] <= 0:
             flags.append(("no_region", "two bearings and no known SD: a position but no confidence "
                                        "region (give sd in the sheet or --sd)"))
@@ -373,10 +373,12 @@ def _judge(f: FixFacts, a: _Facts, i: int, rivals: dict):
 
 
 #: Said of every ok fix from three bearings with a known SD. Measured with benchmarks/coverage.py --n 3 --only
-#: outlier --sd-kinds known --wild 30-60 (and 40-120) --geometries walk,random,spread,arc (DEVELOPERS.md).
+#: outlier --sd-kinds known --wild 30-60 (and 40-120) --geometries walk,random,spread,arc --fixes 2000, with the
+#: wild risk weighed at the default share (DEVELOPERS.md; before it: 10-21 % and 2-9 %).
 THREE_TEXT = ("three bearings check one another only weakly: one wild bearing that passes near where the other two "
-              "cross goes unseen (in simulations with one bearing 30-60° off, 10-21 % of such fixes came out ok, and 2-9 % "
-              "with one 40-120° off, none holding the transmitter); a fourth bearing from another direction makes the fix testable")
+              "cross goes unseen by any residual test; its chance is weighed (wild_risk), but in simulations with one "
+              "bearing 30-60° off still 5-9 % of such fixes came out ok, and 1-3 % with one 40-120° off, none holding "
+              "the transmitter; a fourth bearing from another direction makes the fix testable")
 
 
 #: Said of every fix whose SD is estimated from its own three bearings.
@@ -418,9 +420,18 @@ def _floor_text(sol, i, step_deg):
             "give their SD: sd column, --sd or --calibration)")
 
 
-def _rival_text(rv, lines, sol, i):
+def _rival_text(rv, lines, sol, i, level=0.95):
     """The reason of an ``ambiguous`` fix: both answers, and which lines decide between them."""
     where = f"{rv.lat:.5f}, {rv.lon:.5f} ({rv.distance_m:.0f} m away)"
+    if rv.by_risk:
+        k = lines[rv.left_out]
+        reach = ("does not reach that answer" if rv.outside else
+                 "holds that answer but little of the ground around it")
+        return (f"it may rest on a wild line {k}: without it the other bearings agree on {where}, where line {k} "
+                f"misses by {rv.miss_deg:+.0f}°, and this region {reach}; with {_share(rv.wild_share)} wild, the "
+                f"chance that line {k} is and the region misses the transmitter is {_percent(rv.chance)}, more than "
+                f"the {_percent(1.0 - level)} the region allows (wild_risk; set the share with --wild-share): check "
+                f"line {k}, or take another bearing from a third direction")
     fit = f"p = {rv.p:.2g}" if sol.sd_known[i] else f"SD {rv.sd_deg:.1f}°"
     if not np.isfinite(rv.p if sol.sd_known[i] else rv.sd_deg):
         fit = "two lines always cross, so nothing tests them"     # the other answer rests on two bearings
@@ -440,6 +451,15 @@ def _rival_text(rv, lines, sol, i):
     return (f"two answers fit: this one, which leaves out {j}, and {where}, where all the bearings agree together "
             f"({fit}); this region does not reach the other answer: {j} may be good; check it, or take another "
             f"bearing{tail}")
+
+
+def _share(q):
+    """A prior share of wild bearings in words: 'one bearing in 20'."""
+    return f"one bearing in {1.0 / q:.0f}" if q > 0 and abs(1.0 / q - round(1.0 / q)) < 0.05 else f"{100 * q:g} % of bearings"
+
+
+def _percent(p):
+    return f"{100 * p:.0f} %" if p >= 0.095 else f"{100 * p:.1f} %"
 
 
 def _km(m_):

@@ -107,6 +107,7 @@ def build(fixes: Fixes, *, error_polygons: bool = False, title: str = "dfkit fix
         "b": _ints(np.where(has_ell, t["semi_minor_m"], np.nan), 10),
         "or": _ints(np.where(has_ell, t["orientation_deg"], np.nan), 10),
         "res": _ints(t["max_residual_deg"], 10), "cross": _ints(t["crossing_deg"], 10),
+        "wild": _ints(t["wild_risk"] if "wild_risk" in t else np.full(len(t), np.nan), 1000),
         "method": _text(t["method"]),
     }
 

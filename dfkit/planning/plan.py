@@ -24,7 +24,7 @@ from dfkit.planning.scoring import (
     _Where,
 )
 from dfkit.planning.spots import MAX_SPOTS, PLAN_COLUMNS, Spots, grid_spots, read_spots
-from dfkit.policy import DEFAULT_MAX_RANGE_M, ONE_SPOT_M
+from dfkit.policy import DEFAULT_MAX_RANGE_M, ONE_SPOT_M, WILD_SHARE
 from dfkit.problems import Problem
 from dfkit.regions import scale_factor
 
@@ -113,6 +113,7 @@ def plan_next_bearing(
     max_range_m: float = DEFAULT_MAX_RANGE_M,
     min_distance_m: float = 0.0,
     stations=None,
+    wild_share: float = WILD_SHARE,
 ) -> Plan:
     """Rank candidate spots for the next bearing on one fix, best first.
 
@@ -137,6 +138,8 @@ def plan_next_bearing(
         Estimator of the current fix (robust weights carry into the information).
     level : float
         Probability of the regions whose areas are compared, in (0, 1).
+    wild_share : float
+        Prior share of wild bearings the current fix is judged with (:func:`dfkit.locate.locate`).
     basis : {'point', 'region'}
         Take the area at the estimate (default) or its geometric mean over the current region.
     n_samples : int
@@ -181,7 +184,7 @@ def plan_next_bearing(
         raise ValueError(f"n_samples={n_samples!r} must be at least 10")
 
     sub = _select_fix(bearings, fix, tag)
-    fixes = locate(sub, method=method, level=level)
+    fixes = locate(sub, method=method, level=level, wild_share=wild_share)
     row = fixes.table.iloc[0]
     fb = fixes.bearings
     candidates = _candidate_spots(spots, stations)

@@ -7,13 +7,14 @@ import os
 
 from dfkit.locate import locate
 from dfkit.observations import ReadOptions, read_bearings
+from dfkit.policy import WILD_SHARE
 from dfkit.season.keys import file_hash
 from dfkit.season.store import ImportReport, SeasonStore
 
 
 def add_sheet(store: SeasonStore, sheet, options: ReadOptions | None = None, *, method: str = "mle",
               level: float = 0.95, replace: bool = False, progress=None, jobs: int = 1,
-              **read_kwargs) -> ImportReport:
+              wild_share: float = WILD_SHARE, **read_kwargs) -> ImportReport:
     """Read a sheet, solve its fixes and store them as one import: the Python form of ``dfkit season add``.
 
     Parameters
@@ -41,7 +42,7 @@ def add_sheet(store: SeasonStore, sheet, options: ReadOptions | None = None, *, 
         opts = dataclasses.replace(opts, **read_kwargs)
     say("reading")
     bearings = read_bearings(sheet, opts)
-    fixes = locate(bearings, method=method, level=level, progress=progress, jobs=jobs)
+    fixes = locate(bearings, method=method, level=level, progress=progress, jobs=jobs, wild_share=wild_share)
     record = {k: v for k, v in dataclasses.asdict(opts).items()}
     for name in ("stations", "track"):
         value = record.get(name)

@@ -203,7 +203,8 @@
         ["bearing SD", F.sd[i] == null ? "" : fmtNum(F.sd[i], 100, 2) + "\u00b0 (" + D.sd_sources[F.sds[i]] + ")"],
         [Math.round(100 * D.level) + "% region", ell],
         ["crossing angle", F.cross[i] == null ? "" : fmtNum(F.cross[i], 10, 0) + "\u00b0"],
-        ["largest residual", F.res[i] == null ? "" : fmtNum(F.res[i], 10, 1) + "\u00b0"]]);
+        ["largest residual", F.res[i] == null ? "" : fmtNum(F.res[i], 10, 1) + "\u00b0"],
+        ["wild risk", F.wild == null || F.wild[i] == null ? "" : fmtNum(F.wild[i], 10, 1) + " %"]]);
     }
     function bearingPopup(j) {
       var i = B.fix[j];

@@ -1,0 +1,387 @@
+"""Wild risk: could the fix rest on one wild bearing that its fit absorbed?
+
+A wild bearing (a reflection, a misread, a bearing on the wrong signal) that passes near where the
+other bearings cross is absorbed by the fit: every residual looks fine, the fix moves, and its region
+no longer holds the transmitter. No residual test can see it when that bearing carries most of the fix
+(in a linear model, its leverage h near 1: its studentised residual says nothing). What can be said is
+how *likely* it is, given how often bearings are wild, and what it would cost the region.
+
+For a fix solved from all its n >= 3 bearings with a known SD, the hypotheses "every bearing is good"
+(H0) and "bearing k is wild, the others good" (Hk) are weighed by Bayes' rule (H. Jeffreys, *Theory of
+Probability*, 3rd ed., Oxford, 1961, ch. V [from memory]):
+
+* a wild bearing is equally likely in every direction, density 1 / (2 pi) (the uniform component of a
+  contaminated model), and each bearing is wild with prior probability ``wild_share``, independently;
+* the evidence of each hypothesis is its Gaussian likelihood integrated over the transmitter's position
+  with a flat prior, by Laplace's method: exp(-S_min / 2) 2 pi / sqrt(det J), J the Fisher information
+  of the position at the minimum of S. So
+
+      BF_k = exp((S0 - Sk) / 2) sqrt(det J0 / det Jk) SD_k / sqrt(2 pi),
+
+  SD_k the left-out bearing's SD [rad] (in a linear model, exp(T^2 / 2) SD_k / sqrt(2 pi (1 - h)), T
+  its studentised residual: R. D. Cook & S. Weisberg, *Residuals and Influence in Regression*, 1982,
+  ch. 2 [from memory]). The flat prior is bounded: the transmitter lies within twice the farthest
+  observer's range of the fix (our choice), and each evidence counts only the share of its Gaussian inside
+  that disc, so that two nearly parallel lines, or lines that meet far away, do not make an alternative's
+  evidence boundless;
+* an alternative is counted only when it is plausible by the fix's own rule: in front of its observers,
+  within the prior's reach, and, with three or more bearings, its chi-square test passed at
+  :data:`~dfkit.policy.INCONSISTENT_P`.
+
+The chance of Hk is its posterior probability over H0 and every plausible Hk. What it costs the region:
+under Hk the transmitter lies about Hk's answer with covariance Jk^-1; the share of that Gaussian outside
+the fix's region (linearised about the region's centre, measured on fixed points) times the chance of
+Hk, summed over k (within the disc), is the fix's **wild risk**: the chance that the region misses the transmitter because
+one of its bearings is wild. :func:`dfkit.locate.rivals.find_rivals` calls a fix ``ambiguous`` when it
+reaches 1 - level, the share of misses the region itself allows.
+
+Hk's answer is solved in the fix's exact local plane (:mod:`dfkit.estimators.plane`: stations at their
+geodesic distance and azimuth from the fix, each bearing a plane direction through its geodesic residual),
+by Gauss-Newton steps from the linear leave-one-out answer; within a few kilometres of the fix the plane's
+directions are within 1e-7 rad of the geodesic ones. All fixes and all their bearings at once, in chunks.
+"""
+
+from __future__ import annotations
+
+from dataclasses import dataclass
+
+import numpy as np
+
+from dfkit.estimators.plane import wrap_pi
+from dfkit.policy import INCONSISTENT_P
+from dfkit.regions import chi2_sf
+
+#: Gauss-Newton steps for each leave-one-out answer (from the linear one, which is within a few per cent of it
+#: for nearby answers; the steps settle it to well under a metre on fixes of a few kilometres, measured).
+STEPS = 4
+
+#: Pairs (left-out bearing, other bearing) per chunk: bounds the transient memory (about 100 bytes a pair).
+CHUNK_PAIRS = 400_000
+
+
+def _normal_points(rings, directions):
+    """Standard bivariate normal points, equally likely: ``rings`` radii at the chi-square(2) quantiles
+    (i + 1/2) / rings, ``directions`` each; shape (2, rings * directions). The mass of a Gaussian inside a region
+    is the share of these points, mapped, that fall in it (with 32, within 0.2 % of 256 points' wild risk for 99 %
+    of the bench sheet's fixes, 1.7 % at most)."""
+    rho = np.sqrt(-2.0 * np.log1p(-(np.arange(rings) + 0.5) / rings))
+    phi = (np.arange(directions) + 0.5) * (2.0 * np.pi / directions)
+    return np.stack([np.outer(rho, np.cos(phi)).ravel(), np.outer(rho, np.sin(phi)).ravel()])
+
+
+_POINTS = _normal_points(4, 8)
+#: The farthest of _POINTS from the centre, in SDs.
+RING_REACH = float(np.hypot(*_POINTS).max())
+
+
+@dataclass
+class WildRisk:
+    """Per fix: ``risk`` (NaN where not weighed), and for the bearing that carries most of it ``left_out``
+    (index into the bearings, -1 where none), ``chance`` (its posterior probability of being wild) and its
+    alternative answer ``x``, ``y`` [m] in the fix's local plane."""
+
+    risk: np.ndarray
+    left_out: np.ndarray
+    chance: np.ndarray
+    x: np.ndarray
+    y: np.ndarray
+
+
+def wild_risk(g, m, sol, weigh, region, wild_share) -> WildRisk:
+    """The wild risk of the fixes ``weigh`` (bool, shape (m,)): solved with every bearing and a known SD.
+
+    Parameters
+    ----------
+    g : ndarray, shape (N,)
+        Fix of each bearing.
+    sol : dfkit.estimators.Solution
+        The fixes as solved (residuals, ranges and azimuths at the fix; weights).
+    region : tuple of ndarray
+        Per fix (S_min, bound, centre x, centre y [m]) of its likelihood-ratio region.
+    wild_share : float
+        Prior probability that a bearing is wild.
+    """
+    risk = np.where(weigh, 0.0, np.nan)
+    out = WildRisk(risk, np.full(m, -1), np.zeros(m), np.full(m, np.nan), np.full(m, np.nan))
+    used = sol.weight > 0
+    if wild_share <= 0 or not weigh.any():
+        return out
+    sel = np.flatnonzero(weigh[g] & used)
+    n_of = np.bincount(g[sel], minlength=m)
+    # bearings by (number of bearings, fix): the fixes of each size lie together, so that the leave-one-out
+    # problems of a size are rows of equal length (sums along rows instead of grouped sums)
+    order = sel[np.lexsort((g[sel], n_of[g[sel]]))]
+    gs = g[order]
+    v = sol.region_weight[order] / sol.weight[order]          # full weights 1 / SD^2 [1/rad^2]
+    d = sol.range_m[order]
+    az = np.radians(sol.azimuth_from_fix_deg[order])
+    r = np.radians(sol.residual_deg[order])
+    sx, sy = d * np.sin(az), d * np.cos(az)                   # stations in the fix's plane
+    phi = wrap_pi(np.arctan2(-sx, -sy) + r)                   # each bearing's plane direction
+    # H0: the minimum of S with full weights (one Gauss-Newton step from the fix: the fix itself for Lenth's)
+    s0, _, _, (j11, j12, j22), _ = _minimum(gs, m, v, sx, sy, phi, np.zeros(m), np.zeros(m))
+    det0 = j11 * j22 - j12 * j12
+    reach = np.zeros(m)
+    np.maximum.at(reach, gs, 2.0 * d)
+    s_min, bound, cx, cy = region
+    j_reg = _information(gs, m, sol.region_weight[order], sx, sy, np.zeros(m), np.zeros(m))[:3]
+    prior = np.log(wild_share / (1.0 - wild_share))
+    x0, y0 = _linear_start(gs, m, v, sx, sy, phi)
+    log_odds = np.full(len(order), -np.inf)
+    lost = np.ones(len(order))
+    ax, ay = np.full(len(order), np.nan), np.full(len(order), np.nan)
+    fixes = (s0, det0, reach, j_reg, s_min, bound, cx, cy)
+    for lo, hi, n in _chunks(n_of[gs]):
+        k, i = _pairs(hi - lo, n)
+        part = slice(lo, hi)
+        log_odds[part], lost[part], ax[part], ay[part] = _left_out(
+            k, i, n - 1, gs[part], v[part], sx[part], sy[part], phi[part], x0[part], y0[part], prior, fixes)
+    with np.errstate(over="ignore", invalid="ignore"):
+        odds = np.where(np.isfinite(log_odds), np.exp(np.minimum(log_odds, 700.0)), 0.0)
+        chance = odds / (1.0 + np.bincount(gs, odds, m))[gs]
+    share = chance * lost
+    out.risk[:] = np.where(weigh, np.bincount(gs, share, m), np.nan)
+    # per fix (its bearings lie together), the bearing with the largest share
+    start = np.flatnonzero(np.r_[True, gs[1:] != gs[:-1]]) if len(gs) else np.zeros(0, np.int64)
+    block = np.cumsum(np.r_[True, gs[1:] != gs[:-1]]) - 1 if len(gs) else np.zeros(0, np.int64)
+    top = np.maximum.reduceat(share, start) if len(share) else np.zeros(0)
+    first = np.full(len(start), len(share))
+    cand = np.flatnonzero(share >= top[block])
+    np.minimum.at(first, block[cand], cand)
+    f = gs[first]
+    has = share[first] > 0
+    out.left_out[f[has]] = order[first[has]]
+    out.chance[f[has]] = chance[first[has]]
+    out.x[f[has]], out.y[f[has]] = ax[first[has]], ay[first[has]]
+    return out
+
+
+def _chunks(n_bearings):
+    """(lo, hi, n): ranges of the bearings (sorted by fix size, then fix) of whole fixes of n bearings each, about
+    CHUNK_PAIRS pairs or fewer a range. ``n_bearings``: each bearing's fix size."""
+    out = []
+    edges = np.flatnonzero(np.r_[True, n_bearings[1:] != n_bearings[:-1], True]) if len(n_bearings) else []
+    for lo, hi in zip(edges[:-1], edges[1:]):
+        n = int(n_bearings[lo])
+        step = max(n, CHUNK_PAIRS // max(n - 1, 1) // n * n)       # whole fixes
+        out += [(int(a), int(min(a + step, hi)), n) for a in range(int(lo), int(hi), step)]
+    return out
+
+
+def _pairs(size, n):
+    """For ``size`` bearings of fixes of n bearings each (fix by fix): every (left-out bearing k, other bearing i
+    of its fix), k ascending, n - 1 pairs each."""
+    others = np.array([[j for j in range(n) if j != o] for o in range(n)], np.int64).reshape(n, max(n - 1, 0))
+    k = np.arange(size)
+    i = (k - k % n)[:, None] + others[k % n]
+    return np.repeat(k, n - 1), i.ravel()
+
+
+def _information(gk, m, v, sx, sy, x, y):
+    """Fisher information (j11, j12, j22) per group of the points (x, y) [m] (per group) from bearings at
+    stations (sx, sy) weighted v; and the gradient (gx, gy) of each bearing's direction [rad/m]."""
+    X, Y = x[gk] - sx, y[gk] - sy
+    d2 = X * X + Y * Y
+    gx, gy = Y / d2, -X / d2
+    return (np.bincount(gk, v * gx * gx, m), np.bincount(gk, v * gx * gy, m), np.bincount(gk, v * gy * gy, m),
+            gx, gy)
+
+
+def _minimum(gk, m, v, sx, sy, phi, x, y, steps=1, row=None):
+    """Gauss-Newton steps on S = sum v (phi - direction(x, y))^2 per group from (x, y).
+
+    Groups are ``gk`` (m of them); or, with ``row``, consecutive runs of ``row`` terms (then gk is not used).
+    Returns S after the last step as its linear prediction (S less the Gauss-Newton decrement: exact at a
+    minimum), the point after it, and what the last step was taken with: the Fisher information (j11, j12, j22)
+    and each term's residual [rad].
+    """
+    if row:
+        add = lambda a: _rows_added(a.reshape(-1, row))  # noqa: E731
+        spread = lambda a: np.repeat(a, row)  # noqa: E731
+    else:
+        add = lambda a: np.bincount(gk, a, m)  # noqa: E731
+        spread = lambda a: a[gk]  # noqa: E731
+    for step in range(steps):
+        X, Y = spread(x) - sx, spread(y) - sy
+        d2 = X * X + Y * Y
+        gx, gy = Y / d2, -X / d2
+        vx, vy = v * gx, v * gy
+        j11, j12, j22 = add(vx * gx), add(vx * gy), add(vy * gy)
+        res = wrap_pi(phi - np.arctan2(X, Y))
+        b1, b2 = add(vx * res), add(vy * res)
+        det = j11 * j22 - j12 * j12
+        with np.errstate(divide="ignore", invalid="ignore"):
+            dx, dy = (j22 * b1 - j12 * b2) / det, (j11 * b2 - j12 * b1) / det
+            ok = np.isfinite(dx) & np.isfinite(dy)
+        x, y = np.where(ok, x + dx, x), np.where(ok, y + dy, y)
+    s = add(v * res * res)
+    with np.errstate(invalid="ignore"):
+        drop = np.where(ok, dx * b1 + dy * b2, 0.0)
+    return np.fmax(s - drop, 0.0), x, y, (j11, j12, j22), res
+
+
+def _rows_added(a):
+    """Each row's sum, column by column (faster than a sum along short rows)."""
+    out = a[:, 0].copy()
+    for j in range(1, a.shape[1]):
+        out += a[:, j]
+    return out
+
+
+def _chi2_bound(dof):
+    """Largest S whose chi-square p-value on ``dof`` degrees of freedom is at least INCONSISTENT_P (inf for no
+    degree of freedom): one quantile per distinct dof, by bisection on :func:`dfkit.regions.chi2_sf`."""
+    out = np.full(len(dof), np.inf)
+    for d in np.unique(dof[dof >= 1]).tolist():
+        lo, hi = 0.0, 10.0 * d + 100.0
+        for _ in range(60):
+            mid = 0.5 * (lo + hi)
+            lo, hi = (mid, hi) if chi2_sf(np.array([mid]), np.array([d]))[0] >= INCONSISTENT_P else (lo, mid)
+        out[dof == d] = lo
+    return out
+
+
+def _linear_start(gs, m, v, sx, sy, phi):
+    """Each bearing's leave-one-out answer in a linear model about the fix: the fix moved by
+    -J0^-1 g_k v_k r_k / (1 - h_k) (Cook & Weisberg, 1982, ch. 2 [from memory]) [m]."""
+    j11, j12, j22, gx, gy = _information(gs, m, v, sx, sy, np.zeros(m), np.zeros(m))
+    res = wrap_pi(phi - np.arctan2(-sx, -sy))
+    det = (j11 * j22 - j12 * j12)[gs]
+    with np.errstate(divide="ignore", invalid="ignore"):
+        h = v * (j22[gs] * gx * gx - 2 * j12[gs] * gx * gy + j11[gs] * gy * gy) / det
+        pull = v * res / (1.0 - h) / det
+        x0 = -(j22[gs] * gx - j12[gs] * gy) * pull
+        y0 = -(j11[gs] * gy - j12[gs] * gx) * pull
+    return np.nan_to_num(x0), np.nan_to_num(y0)
+
+
+def _left_out(k, i, row, f, v, sx, sy, phi, x0, y0, prior, fixes):
+    """For one chunk of bearings (whole fixes of row + 1 bearings; ``f`` their fixes) and its pairs (k, i) of
+    chunk indices, ``row`` a bearing: per left-out bearing k, (log posterior odds of Hk against H0, share of Hk's
+    position outside the fix's region, Hk's answer x, y [m])."""
+    s0, det0, reach, j_reg, s_min, bound, cx, cy = fixes
+    nb = len(f)
+    # the answer after STEPS steps; its information and residuals are those of the last step's start, within a
+    # step of it
+    sk, xk, yk, (a11, a12, a22), res = _minimum(k, nb, v[i], sx[i], sy[i], phi[i], x0, y0, steps=STEPS, row=row)
+    detk = a11 * a22 - a12 * a12
+    n_alt = np.full(nb, row)
+    behind = (np.abs(res) > np.pi / 2).reshape(-1, row).any(1)
+    with np.errstate(invalid="ignore", divide="ignore", over="ignore"):
+        plausible = (n_alt >= 2) & ~behind & (detk > 0) & (sk <= _chi2_bound(n_alt - 2))
+        log_odds = (0.5 * (s0[f] - sk) + 0.5 * np.log(det0[f] / detk) - 0.5 * np.log(2.0 * np.pi * v) + prior)
+    # only chances above 1e-4 count (the disc below only lowers them)
+    log_odds = np.where(plausible & (log_odds > np.log(1e-4)), log_odds, -np.inf)
+    lost = np.ones(nb)
+    w = np.flatnonzero(np.isfinite(log_odds))
+    if len(w):
+        # the flat prior's disc and the fix's region, as shares of Hk's Gaussian: the evidence counts only the
+        # part inside the disc, and the loss is the part of that outside the region
+        fw = f[w]
+        jk = (a11[w], a12[w], a22[w])
+        region = (j_reg[0][fw], j_reg[1][fw], j_reg[2][fw], (bound - s_min)[fw], cx[fw], cy[fw])
+        # the disc is tested only where the Gaussian reaches beyond it: its points lie within 2.6 SDs of the
+        # answer (_POINTS' outer ring), and its largest SD is at most sqrt(trace Jk^-1)
+        with np.errstate(divide="ignore", invalid="ignore"):
+            big_sd = np.sqrt((a11[w] + a22[w]) / (a11[w] * a22[w] - a12[w] ** 2))
+            edge = ~(np.hypot(xk[w], yk[w]) + RING_REACH * big_sd < reach[fw])
+        in_disc, in_both = np.ones(len(w)), np.ones(len(w))
+        (in_both[~edge],) = inside_shares(xk[w][~edge], yk[w][~edge], [t[~edge] for t in jk],
+                                          [[t[~edge] for t in region]])
+        if edge.any():
+            e = np.flatnonzero(edge)
+            one, zero = np.ones(len(e)), np.zeros(len(e))
+            in_disc[e], in_both[e] = inside_shares(xk[w][e], yk[w][e], [t[e] for t in jk], [
+                (one, zero, one, reach[fw][e] ** 2, zero, zero), [t[e] for t in region]])
+        with np.errstate(divide="ignore", invalid="ignore"):
+            log_odds[w] += np.log(in_disc)
+            lost[w] = np.where(in_disc > 0, 1.0 - in_both / in_disc, 1.0)
+    # two bearings left: their crossing's likelihood is far from Gaussian (the lines' strips widen with range),
+    # so their evidence and loss come from a quadrature over the two bearings instead (_two_lines)
+    two = np.flatnonzero(n_alt == 2)
+    if len(two):
+        first = np.searchsorted(k, two)
+        i1, i2 = i[first], i[first + 1]
+        ft = f[two]
+        log_q, lost[two] = _two_lines(sx[i1], sy[i1], phi[i1], v[i1], sx[i2], sy[i2], phi[i2], v[i2], reach[ft],
+                                      (j_reg[0][ft], j_reg[1][ft], j_reg[2][ft], (bound - s_min)[ft], cx[ft], cy[ft]))
+        with np.errstate(divide="ignore", invalid="ignore"):
+            # log BF = log(Q / 2 pi) - log E0, E0 by Laplace: exp(-S0/2) (2 pi)^(-3/2) / (s1 s2 sk) 2 pi / sqrt(det0)
+            log_e0 = (-0.5 * s0[ft] - 0.5 * np.log(2.0 * np.pi) + 0.5 * np.log(v[two] * v[i1] * v[i2])
+                      - 0.5 * np.log(det0[ft]))
+            lo = log_q - np.log(2.0 * np.pi) - log_e0 + prior
+        log_odds[two] = np.where(np.isfinite(lo) & (lo > np.log(1e-4)), lo, -np.inf)
+    return log_odds, lost, xk, yk
+
+
+#: Gauss-Hermite nodes and weights for a standard normal, 7 a bearing (49 for two): the crossing of two lines
+#: is a smooth function of their bearings wherever they meet in front of both observers.
+_GH_U, _GH_W = np.polynomial.hermite_e.hermegauss(7)
+_GH_W = _GH_W / _GH_W.sum()
+_U1, _U2 = (a.ravel() for a in np.meshgrid(_GH_U, _GH_U, indexing="ij"))
+_W12 = np.outer(_GH_W, _GH_W).ravel()
+
+
+def _two_lines(s1x, s1y, p1, v1, s2x, s2y, p2, v2, reach, region):
+    """Evidence and loss of an explanation resting on two bearings, by quadrature over the bearings.
+
+    The integral over the plane of the two bearings' likelihood, N(phi1 - b1(x)) N(phi2 - b2(x)) dx, becomes
+    with the substitution x -> (b1, b2) (the crossing of the two lines, Jacobian t1 t2 / |sin(b1 - b2)|, t the
+    distances along the lines) the expectation of t1 t2 / |sin(b1 - b2)| over b ~ N(phi, SD^2), counting only
+    crossings in front of both observers and within the prior's disc. Returns (log of that integral; share
+    of it outside the fix's region ``region`` = (j11, j12, j22, gap, centre x, centre y), linearised).
+    """
+    a1 = p1[:, None] + _U1 / np.sqrt(v1)[:, None]
+    a2 = p2[:, None] + _U2 / np.sqrt(v2)[:, None]
+    s1, c1, s2, c2 = np.sin(a1), np.cos(a1), np.sin(a2), np.cos(a2)
+    den = s1 * c2 - c1 * s2                                   # sin(a1 - a2)
+    dx, dy = (s2x - s1x)[:, None], (s2y - s1y)[:, None]
+    with np.errstate(divide="ignore", invalid="ignore"):
+        t1 = (dx * c2 - dy * s2) / den
+        t2 = (dx * c1 - dy * s1) / den
+        x, y = s1x[:, None] + t1 * s1, s1y[:, None] + t1 * c1
+        jac = t1 * t2 / np.abs(den)
+        keep = (t1 > 0) & (t2 > 0) & np.isfinite(jac) & (x * x + y * y <= (reach * reach)[:, None])
+        wq = np.where(keep, _W12 * jac, 0.0)
+        j11, j12, j22, gap, cx, cy = (t[:, None] for t in region)
+        mx, my = x - cx, y - cy
+        inside = keep & (j11 * mx * mx + 2.0 * j12 * mx * my + j22 * my * my <= gap)
+        total = wq.sum(1)
+        lost = np.where(total > 0, 1.0 - np.where(inside, wq, 0.0).sum(1) / total, 1.0)
+        return np.log(total), lost
+
+
+def inside_shares(x, y, Jk, forms, points=None):
+    """Shares of a Gaussian about (x, y) [m] with covariance Jk^-1 inside the first region of ``forms``, and
+    inside all of them: each form (j11, j12, j22, gap, x0, y0) is {p : (p - p0)^T J (p - p0) <= gap}.
+
+    With p = mu + L z (L L^T = Jk^-1, z the fixed points), each form is a quadratic in z: six numbers per
+    Gaussian against six per point, one matrix product.
+    """
+    zx, zy = _POINTS if points is None else points
+    basis = np.stack([np.ones_like(zx), zx, zy, zx * zx, zx * zy, zy * zy])
+    a11, a12, a22 = Jk
+    with np.errstate(divide="ignore", invalid="ignore"):
+        det = a11 * a22 - a12 * a12
+        l11 = np.sqrt(a22 / det)                  # Cholesky factor of Jk^-1 = [[a22, -a12], [-a12, a11]] / det
+        l21 = (-a12 / det) / l11
+        l22 = np.sqrt(np.fmax(a11 / det - l21 * l21, 0.0))
+    inside = None
+    shares = []
+    for j11, j12, j22, gap, x0, y0 in forms:
+        with np.errstate(invalid="ignore"):
+            mx, my = x - x0, y - y0
+            u1, u2 = j11 * mx + j12 * my, j12 * mx + j22 * my                # J mu
+            b1, b2 = l11 * u1 + l21 * u2, l22 * u2                          # L^T J mu
+            c11 = l11 * (j11 * l11 + j12 * l21) + l21 * (j12 * l11 + j22 * l21)
+            c12 = l22 * (j12 * l11 + j22 * l21)
+            c22 = l22 * j22 * l22
+            coef = np.stack([mx * u1 + my * u2 - gap, 2.0 * b1, 2.0 * b2, c11, 2.0 * c12, c22], axis=1)
+        fin = np.isfinite(coef).all(1)
+        if fin.all():
+            this = coef @ basis <= 0.0
+        else:
+            this = (np.where(fin[:, None], coef, 0.0) @ basis <= 0.0) & fin[:, None]
+        inside = this if inside is None else inside & this
+        shares.append(inside.mean(1))
+    return shares
