@@ -48,6 +48,11 @@ INCONSISTENT_P = 0.01
 #: measure yours (``dfkit calibrate`` counts wild trials) and set it with --wild-share. 0 turns the weighing off.
 WILD_SHARE = 0.05
 
+#: Largest accepted WILD_SHARE: the weighing counts at most one wild bearing a fix, and above a quarter two wild
+#: bearings in one fix become likely (with eight bearings, 63 % at 0.25); a sheet that wild needs a robust method
+#: and better bearings, not this weighing (our choice).
+MAX_WILD_SHARE = 0.25
+
 #: With the SD estimated from the fix itself, an estimate above this is flagged ``inconsistent`` [°].
 #: Common practice, no single source: published beacon trials report bearing errors of a few degrees
 #: (SD 1.6° in Podruzny 1996, MSc thesis, Montana State Univ.; 4.9-9.9° at 900 m in Grovenburg et al.

@@ -11,7 +11,7 @@ import time
 from dfkit.cautions import CAUTION_LINE
 from dfkit.conventions import NORTH_ALIASES, UNIT_ALIASES
 from dfkit.policy import (DEFAULT_TRACK_GAP_S, DEFAULT_WINDOW_MIN, MAX_TRACK_GAP_S, MAX_WINDOW_MIN, MIN_SD_DEG,
-                          WILD_SHARE)
+                          MAX_WILD_SHARE, WILD_SHARE)
 
 
 #: The command-line flag of each reading option (the library names the parameter, the shell the flag).
@@ -128,7 +128,7 @@ def add_fix_options(p: argparse.ArgumentParser) -> None:
     g.add_argument("--level", type=float, default=0.95,
                    help="probability of the confidence regions and ellipses (default 0.95)")
     g.add_argument("--wild-share", type=_share, default=WILD_SHARE, metavar="SHARE",
-                   help=f"share of bearings you expect to be wild (reflections, misreads), from 0 to below 1 "
+                   help=f"share of bearings you expect to be wild (reflections, misreads), from 0 to {MAX_WILD_SHARE:g} "
                         f"(default {WILD_SHARE:g}, one in {1 / WILD_SHARE:.0f}): a fix of three or more bearings "
                         f"whose region could miss because one of them is wild is flagged when that chance reaches "
                         f"1 - level; 0 turns this off (each fix's chance is its wild_risk)")
@@ -143,8 +143,9 @@ def _share(text: str) -> float:
         v = float(t[:-1]) / 100.0 if t.endswith("%") else float(t)
     except ValueError:
         raise argparse.ArgumentTypeError(f"{text!r} is not a number (e.g. 0.05 or 5%)") from None
-    if not 0.0 <= v < 1.0:
-        raise argparse.ArgumentTypeError(f"{text!r} must be a share from 0 to below 1 (e.g. 0.05 or 5%)")
+    if not 0.0 <= v <= MAX_WILD_SHARE:
+        raise argparse.ArgumentTypeError(f"{text!r} must be a share from 0 to {MAX_WILD_SHARE:g} (e.g. 0.05 or 5%): "
+                                         "the weighing counts at most one wild bearing a fix")
     return v
 
 

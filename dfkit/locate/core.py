@@ -18,7 +18,7 @@ from dfkit.locate.resolution import fix_steps, sd_floors
 from dfkit.locate.rivals import find_rivals
 from dfkit.locate.status import FixFacts, append_reason, classify, p_values
 from dfkit.observations.cells import filled
-from dfkit.policy import WILD_SHARE
+from dfkit.policy import MAX_WILD_SHARE, WILD_SHARE
 from dfkit.observations import Bearings, ReadOptions, read_bearings
 
 #: Inconsistent fixes with a chi-square p-value at least this are not searched for one bad line.
@@ -55,17 +55,19 @@ def locate(bearings: Bearings, *, method: str = "mle", level: float = 0.95, wind
         Also run the sheet-wide checks (:mod:`dfkit.locate.sheetwide`: a group reading off, an SD too
         small), which set ``Fixes.warnings`` and may mark ``ok`` fixes (default).
     wild_share : float
-        Prior share of bearings that are wild (:data:`dfkit.policy.WILD_SHARE`), in [0, 1): a fix of three or
+        Prior share of bearings that are wild (:data:`dfkit.policy.WILD_SHARE`), from 0 to
+        :data:`~dfkit.policy.MAX_WILD_SHARE`: a fix of three or
         more bearings with a known SD whose region could miss the transmitter because one of its bearings is
         wild, with a chance of 1 - ``level`` or more, is ``ambiguous``; each fix's chance is its ``wild_risk``.
-        0 weighs nothing (``wild_risk`` is then 0 or NaN).
+        0 weighs nothing (``wild_risk`` is then NaN).
     """
     if method not in estimators.METHODS:
         raise ValueError(f"method={method!r} is not one of {', '.join(repr(m) for m in estimators.METHODS)}")
     if not (isinstance(level, (int, float, np.floating)) and 0.0 < float(level) < 1.0):
         raise ValueError(f"level={level!r} must be a probability between 0 and 1 (e.g. 0.95)")
-    if not (isinstance(wild_share, (int, float, np.floating)) and 0.0 <= float(wild_share) < 1.0):
-        raise ValueError(f"wild_share={wild_share!r} must be a share between 0 and 1 (e.g. 0.05)")
+    if not (isinstance(wild_share, (int, float, np.floating)) and 0.0 <= float(wild_share) <= MAX_WILD_SHARE):
+        raise ValueError(f"wild_share={wild_share!r} must be a share from 0 to {MAX_WILD_SHARE:g} (e.g. 0.05): the "
+                         f"weighing counts at most one wild bearing a fix")
     options = dict(method=method, level=level, window_min=window_min, robust_c=robust_c, with_regions=with_regions,
                    wild_share=float(wild_share))
     if jobs != 1:

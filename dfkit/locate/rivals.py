@@ -72,7 +72,8 @@ class Rival:
     misses the alternative's answer [°] (NaN when none is left out); ``p`` its chi-square p-value
     (known SD) or ``sd_deg`` its estimated SD; ``chance`` the fix's wild risk (NaN where not weighed);
     ``outside`` whether the alternative's answer lies outside the fix's region; ``wild_share`` the prior
-    share of wild bearings the risk was weighed with; ``by_risk`` when only the wild risk flags the fix.
+    share of wild bearings the risk was weighed with; ``by_risk`` when only the wild risk flags the fix, and then
+    ``settled`` whether the other bearings settle on one place within the prior's reach (else no answer is named).
     """
 
     left_out: int
@@ -87,6 +88,7 @@ class Rival:
     outside: bool = True
     wild_share: float = np.nan
     by_risk: bool = False
+    settled: bool = True
 
 
 def find_rivals(lat, lon, theta, sd, g, counts, sol, lik, level, examine, known_dof=None, sd_floor=None,
@@ -163,15 +165,20 @@ def find_rivals(lat, lon, theta, sd, g, counts, sol, lik, level, examine, known_
                                    used, test, region)
     by_risk = picked[~np.isin(v_fix[picked], v_fix[conflict])]
     conflict[by_risk] = True
-    # where the exact alternative did not settle, its answer from the wild weighing (the fix's local plane)
+    # where the exact alternative did not settle, no answer is named
     unsettled = picked[~alt.converged[picked]]
-    if len(unsettled):
-        f = v_fix[unsettled]
-        alt.lat[unsettled], alt.lon[unsettled] = geodesy.from_local(sol.lat[f], sol.lon[f], wild.x[f], wild.y[f])
+    if len(unsettled):      # not named in the reason (below); NaN keeps a runaway answer out of every sum
+        alt.lat[unsettled], alt.lon[unsettled] = np.nan, np.nan
     rivals = _described(conflict, alt, p, v_fix, v_out, lat, lon, theta, g, counts, sol, used, wild.risk, outside,
                         wild_share)
+    # the other bearings' answer is named only where it settled within the prior's reach (twice the farthest
+    # observer's range: beyond it, lines that barely meet, or a solve that ran away, say nothing useful)
+    reach = np.zeros(m)
+    np.maximum.at(reach, g, np.where(used, 2.0 * sol.range_m, 0.0))
     for i in v_fix[by_risk].tolist():
-        rivals[i].by_risk = True
+        rv = rivals[i]
+        rv.by_risk = True
+        rv.settled = bool(np.isfinite(rv.distance_m) and rv.distance_m <= reach[i])
     return rivals, wild.risk
 
 

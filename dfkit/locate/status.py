@@ -376,9 +376,10 @@ def _judge(f: FixFacts, a: _Facts, i: int, rivals: dict):
 #: outlier --sd-kinds known --wild 30-60 (and 40-120) --geometries walk,random,spread,arc --fixes 2000, with the
 #: wild risk weighed at the default share (DEVELOPERS.md; before it: 10-21 % and 2-9 %).
 THREE_TEXT = ("three bearings check one another only weakly: one wild bearing that passes near where the other two "
-              "cross goes unseen by any residual test; its chance is weighed (wild_risk), but in simulations with one "
-              "bearing 30-60° off still 5-9 % of such fixes came out ok, and 1-3 % with one 40-120° off, none holding "
-              "the transmitter; a fourth bearing from another direction makes the fix testable")
+              "cross goes unseen by any residual test (where wild_risk is given it weighs that chance; in "
+              "simulations with one bearing 30-60° off in every fix, 5-9 % of such fixes still came out ok with the "
+              "default share, 10-21 % without the weighing, none holding the transmitter); a fourth bearing from "
+              "another direction makes the fix testable")
 
 
 #: Said of every fix whose SD is estimated from its own three bearings.
@@ -424,14 +425,7 @@ def _rival_text(rv, lines, sol, i, level=0.95):
     """The reason of an ``ambiguous`` fix: both answers, and which lines decide between them."""
     where = f"{rv.lat:.5f}, {rv.lon:.5f} ({rv.distance_m:.0f} m away)"
     if rv.by_risk:
-        k = lines[rv.left_out]
-        reach = ("does not reach that answer" if rv.outside else
-                 "holds that answer but little of the ground around it")
-        return (f"it may rest on a wild line {k}: without it the other bearings agree on {where}, where line {k} "
-                f"misses by {rv.miss_deg:+.0f}°, and this region {reach}; with {_share(rv.wild_share)} wild, the "
-                f"chance that line {k} is and the region misses the transmitter is {_percent(rv.chance)}, more than "
-                f"the {_percent(1.0 - level)} the region allows (wild_risk; set the share with --wild-share): check "
-                f"line {k}, or take another bearing from a third direction")
+        return _wild_text(rv, lines, sol, i, level, where)
     fit = f"p = {rv.p:.2g}" if sol.sd_known[i] else f"SD {rv.sd_deg:.1f}°"
     if not np.isfinite(rv.p if sol.sd_known[i] else rv.sd_deg):
         fit = "two lines always cross, so nothing tests them"     # the other answer rests on two bearings
@@ -453,13 +447,32 @@ def _rival_text(rv, lines, sol, i, level=0.95):
             f"bearing{tail}")
 
 
+def _wild_text(rv, lines, sol, i, level, where):
+    """The reason of a fix flagged by its wild risk: which line, where the others would put the transmitter, the
+    chance, and what to do."""
+    k = lines[rv.left_out]
+    others = int(sol.n_used[i]) - 1
+    if not rv.settled:
+        alone = f"without it the other {others} bearings do not settle on one place within reach"
+    elif others == 2:
+        alone = (f"without it the other two lines cross at {where}, where line {k} misses by {rv.miss_deg:+.0f}°, "
+                 f"{'outside this region' if rv.outside else 'inside this region, though most of what they allow lies outside it'}")
+    else:
+        alone = (f"without it the other {others} bearings agree on {where}, where line {k} misses by "
+                 f"{rv.miss_deg:+.0f}°, {'outside this region' if rv.outside else 'inside this region, though most of what they allow lies outside it'}")
+    return (f"it may rest on a wild line {k}: {alone}; with {_share(rv.wild_share)} wild, the chance that one of its "
+            f"lines (most likely line {k}) is wild and this region misses the transmitter is {_percent(rv.chance)} "
+            f"(wild_risk), reaching the {_percent(1.0 - level)} of misses the region allows (set the share with "
+            f"--wild-share): check line {k}, or take another bearing from another direction")
+
+
 def _share(q):
     """A prior share of wild bearings in words: 'one bearing in 20'."""
     return f"one bearing in {1.0 / q:.0f}" if q > 0 and abs(1.0 / q - round(1.0 / q)) < 0.05 else f"{100 * q:g} % of bearings"
 
 
 def _percent(p):
-    return f"{100 * p:.0f} %" if p >= 0.095 else f"{100 * p:.1f} %"
+    return f"{100 * p:.1f} %"
 
 
 def _km(m_):
