@@ -374,10 +374,10 @@ def _judge(f: FixFacts, a: _Facts, i: int, rivals: dict):
 
 #: Said of every ok fix from three bearings with a known SD. Measured with benchmarks/coverage.py --n 3 --only
 #: outlier --sd-kinds known --wild 30-60 (and 40-120) --geometries walk,random,spread,arc --fixes 2000, with the
-#: wild risk weighed at the default share (DEVELOPERS.md; before it: 10-21 % and 2-9 %).
+#: wild risk weighed at the default share (DEVELOPERS.md; 4-9 % and 1-2 %; before it: 10-21 % and 2-9 %).
 THREE_TEXT = ("three bearings check one another only weakly: one wild bearing that passes near where the other two "
               "cross goes unseen by any residual test (where wild_risk is given it weighs that chance; in "
-              "simulations with one bearing 30-60° off in every fix, 5-9 % of such fixes still came out ok with the "
+              "simulations with one bearing 30-60° off in every fix, 4-9 % of such fixes still came out ok with the "
               "default share, 10-21 % without the weighing, none holding the transmitter); a fourth bearing from "
               "another direction makes the fix testable")
 
@@ -462,7 +462,7 @@ def _wild_text(rv, lines, sol, i, level, where):
                  f"{rv.miss_deg:+.0f}°, {'outside this region' if rv.outside else 'inside this region, though most of what they allow lies outside it'}")
     return (f"it may rest on a wild line {k}: {alone}; with {_share(rv.wild_share)} wild, the chance that one of its "
             f"lines (most likely line {k}) is wild and this region misses the transmitter is {_percent(rv.chance)} "
-            f"(wild_risk), reaching the {_percent(1.0 - level)} of misses the region allows (set the share with "
+            f"(wild_risk), at least the {_percent(1.0 - level)} of misses the region allows (set the share with "
             f"--wild-share): check line {k}, or take another bearing from another direction")
 
 
