@@ -137,16 +137,15 @@ def add_fix_options(p: argparse.ArgumentParser) -> None:
 
 
 def _share(text: str) -> float:
-    """--wild-share: a number in [0, 1), or a percentage ("5%")."""
+    """--wild-share: a number or a percentage ("5%"), checked as the library checks ``wild_share``."""
+    from dfkit.observations import OptionError, check_wild_share
+
     t = text.strip()
     try:
-        v = float(t[:-1]) / 100.0 if t.endswith("%") else float(t)
-    except ValueError:
-        raise argparse.ArgumentTypeError(f"{text!r} is not a number (e.g. 0.05 or 5%)") from None
-    if not 0.0 <= v <= MAX_WILD_SHARE:
-        raise argparse.ArgumentTypeError(f"{text!r} must be a share from 0 to {MAX_WILD_SHARE:g} (e.g. 0.05 or 5%): "
-                                         "the weighing counts at most one wild bearing a fix")
-    return v
+        return check_wild_share(float(t[:-1]) / 100.0 if t.endswith("%") else float(t))
+    except ValueError as err:
+        reason = err.reason if isinstance(err, OptionError) else "is not a number (e.g. 0.05 or 5%)"
+        raise argparse.ArgumentTypeError(f"{text!r} {reason}") from None
 
 
 def add_jobs_option(p: argparse.ArgumentParser) -> None:

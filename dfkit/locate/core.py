@@ -18,8 +18,8 @@ from dfkit.locate.resolution import fix_steps, sd_floors
 from dfkit.locate.rivals import find_rivals
 from dfkit.locate.status import FixFacts, append_reason, classify, p_values
 from dfkit.observations.cells import filled
-from dfkit.policy import MAX_WILD_SHARE, WILD_SHARE
-from dfkit.observations import Bearings, ReadOptions, read_bearings
+from dfkit.policy import WILD_SHARE
+from dfkit.observations import Bearings, ReadOptions, check_wild_share, read_bearings
 
 #: Inconsistent fixes with a chi-square p-value at least this are not searched for one bad line.
 HINT_P = 1e-3
@@ -65,9 +65,7 @@ def locate(bearings: Bearings, *, method: str = "mle", level: float = 0.95, wind
         raise ValueError(f"method={method!r} is not one of {', '.join(repr(m) for m in estimators.METHODS)}")
     if not (isinstance(level, (int, float, np.floating)) and 0.0 < float(level) < 1.0):
         raise ValueError(f"level={level!r} must be a probability between 0 and 1 (e.g. 0.95)")
-    if not (isinstance(wild_share, (int, float, np.floating)) and 0.0 <= float(wild_share) <= MAX_WILD_SHARE):
-        raise ValueError(f"wild_share={wild_share!r} must be a share from 0 to {MAX_WILD_SHARE:g} (e.g. 0.05): the "
-                         f"weighing counts at most one wild bearing a fix")
+    wild_share = check_wild_share(wild_share)
     options = dict(method=method, level=level, window_min=window_min, robust_c=robust_c, with_regions=with_regions,
                    wild_share=float(wild_share))
     if jobs != 1:

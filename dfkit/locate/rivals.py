@@ -121,8 +121,8 @@ def find_rivals(lat, lon, theta, sd, g, counts, sol, lik, level, examine, known_
         reaches 1 - level.
     wild_risk : ndarray, shape (m,)
         Per fix, the chance that one of its bearings is wild and its region misses the transmitter because of it
-        (:func:`_wild_chance`), with the prior ``wild_share`` per bearing; NaN where it is not weighed (fewer than
-        three bearings, the SD estimated, a fix that left bearings out, or not examined).
+        (:mod:`dfkit.locate.wild`), with the prior ``wild_share`` per bearing; NaN where it is not weighed (fewer
+        than three bearings, the SD estimated, a fix that left bearings out, ``wild_share`` 0, or not examined).
     """
     m = len(counts)
     kdof = np.full(m, np.inf) if known_dof is None else np.asarray(known_dof, float)

@@ -80,15 +80,11 @@ RING_REACH = float(np.hypot(*_POINTS).max())
 
 @dataclass
 class WildRisk:
-    """Per fix: ``risk`` (NaN where not weighed), and for the bearing that carries most of it ``left_out``
-    (index into the bearings, -1 where none), ``chance`` (its posterior probability of being wild) and its
-    alternative answer ``x``, ``y`` [m] in the fix's local plane."""
+    """Per fix: ``risk`` (NaN where not weighed), and ``left_out`` the bearing that carries most of it (index
+    into the bearings, -1 where none)."""
 
     risk: np.ndarray
     left_out: np.ndarray
-    chance: np.ndarray
-    x: np.ndarray
-    y: np.ndarray
 
 
 def wild_risk(g, m, sol, weigh, region, wild_share) -> WildRisk:
@@ -106,7 +102,7 @@ def wild_risk(g, m, sol, weigh, region, wild_share) -> WildRisk:
         Prior probability that a bearing is wild.
     """
     risk = np.where(weigh & (wild_share > 0), 0.0, np.nan)      # with no prior share nothing is weighed
-    out = WildRisk(risk, np.full(m, -1), np.zeros(m), np.full(m, np.nan), np.full(m, np.nan))
+    out = WildRisk(risk, np.full(m, -1))
     used = sol.weight > 0
     if wild_share <= 0 or not weigh.any():
         return out
@@ -145,7 +141,7 @@ def _chunk_risk(idx, n, g, sol, region, prior, out):
     s_min, bound, cx, cy = region
     fixes = (s0, det0, reach, j_reg, s_min[fid], bound[fid], cx[fid], cy[fid])
     k, i = _pairs(len(idx), n)
-    log_odds, lost, ax, ay = _left_out(k, i, n - 1, np.repeat(np.arange(nf), n), v, sx, sy, phi, x0, y0, prior,
+    log_odds, lost = _left_out(k, i, n - 1, np.repeat(np.arange(nf), n), v, sx, sy, phi, x0, y0, prior,
                                        fixes)
     with np.errstate(over="ignore", invalid="ignore"):
         odds = rows(np.where(np.isfinite(log_odds), np.exp(np.minimum(log_odds, 700.0)), 0.0))
@@ -158,8 +154,6 @@ def _chunk_risk(idx, n, g, sol, region, prior, out):
     has = share[np.arange(nf), top] > 0
     f = fid[has]
     out.left_out[f] = idx[at[has]]
-    out.chance[f] = chance.ravel()[at[has]]
-    out.x[f], out.y[f] = ax[at[has]], ay[at[has]]
 
 
 def _chunks(n_bearings):
@@ -264,7 +258,7 @@ def _linear_start(n, J, v, sx, sy, phi):
 def _left_out(k, i, row, f, v, sx, sy, phi, x0, y0, prior, fixes):
     """For one chunk of bearings (whole fixes of row + 1 bearings; ``f`` their fixes) and its pairs (k, i) of
     chunk indices, ``row`` a bearing: per left-out bearing k, (log posterior odds of Hk against H0, share of Hk's
-    position outside the fix's region, Hk's answer x, y [m])."""
+    position outside the fix's region)."""
     s0, det0, reach, j_reg, s_min, bound, cx, cy = fixes
     nb = len(f)
     # the answer after STEPS steps; its information and residuals are those of the last step's start, within a
@@ -317,7 +311,7 @@ def _left_out(k, i, row, f, v, sx, sy, phi, x0, y0, prior, fixes):
                       - 0.5 * np.log(det0[ft]))
             lo = log_q - np.log(2.0 * np.pi) - log_e0 + prior
         log_odds[two] = np.where(np.isfinite(lo) & (lo > np.log(1e-4)), lo, -np.inf)
-    return log_odds, lost, xk, yk
+    return log_odds, lost
 
 
 #: Two bearings left: Gauss-Hermite nodes over the first bearing (probabilists', weights summing to 1), and
@@ -347,7 +341,7 @@ def _two_lines(s1x, s1y, p1, v1, s2x, s2y, p2, v2, reach, region):
     pu = s1x[:, None] * e1x + s1y[:, None] * e1y
     tmax = -pu + np.sqrt(np.fmax(pu * pu - (s1x * s1x + s1y * s1y)[:, None] + (reach * reach)[:, None], 0.0))
     # the b2 it sweeps, as offsets from phi2: from station 1 (t1 = 0) to the disc's edge
-    oa = wrap_pi(np.arctan2((s1x - s2x)[:, None], (s1y - s2y)[:, None]) - p2[:, None]) + 0.0 * a1
+    oa = np.broadcast_to(wrap_pi(np.arctan2((s1x - s2x)[:, None], (s1y - s2y)[:, None]) - p2[:, None]), a1.shape)
     bx, by = s1x[:, None] + tmax * e1x - s2x[:, None], s1y[:, None] + tmax * e1y - s2y[:, None]
     ob = oa + wrap_pi(np.arctan2(bx, by) - p2[:, None] - oa)
     w_ = (_WINDOW_SD * sd2)[:, None]

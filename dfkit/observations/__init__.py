@@ -16,9 +16,9 @@ One module per concept: :mod:`.cells` (text to numbers and angles), :mod:`.times
 """
 
 from dfkit.observations.bearings import NORMALIZED_COLUMNS, Bearings
-from dfkit.observations.options import OptionError, ReadOptions, check_level, check_options
+from dfkit.observations.options import OptionError, ReadOptions, check_level, check_options, check_wild_share
 from dfkit.observations.positions import Positions, parse_positions, read_places, read_stations
 from dfkit.observations.reading import check_sheet, read_bearings
 
-__all__ = ["NORMALIZED_COLUMNS", "Bearings", "OptionError", "Positions", "ReadOptions", "check_level",
+__all__ = ["NORMALIZED_COLUMNS", "Bearings", "OptionError", "Positions", "ReadOptions", "check_level", "check_wild_share",
            "check_options", "check_sheet", "parse_positions", "read_bearings", "read_places", "read_stations"]

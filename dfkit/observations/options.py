@@ -15,7 +15,7 @@ import numpy as np
 from dfkit.conventions import DEGREES_PER_UNIT
 from dfkit.observations.times import DATE_ORDERS, REPEATED_HOUR
 from dfkit.policy import (
-    DEFAULT_TRACK_GAP_S, DEFAULT_WINDOW_MIN, MAX_TRACK_GAP_S, MAX_WINDOW_MIN, MIN_SD_DEG,
+    DEFAULT_TRACK_GAP_S, DEFAULT_WINDOW_MIN, MAX_TRACK_GAP_S, MAX_WILD_SHARE, MAX_WINDOW_MIN, MIN_SD_DEG,
 )
 
 #: Values of ``utm_letters`` (``--utm-letters``): how a zone letter that can be both is read.
@@ -166,6 +166,18 @@ def check_options(o: ReadOptions) -> None:
             raise OptionError("grid_crs", o.grid_crs, "is not a CRS PROJ knows (try EPSG:27700)") from None
         if not crs.is_projected:
             raise OptionError("grid_crs", o.grid_crs, "is not a projected CRS: it has no grid north")
+
+
+def check_wild_share(share) -> float:
+    """A prior share of wild bearings (:data:`dfkit.policy.WILD_SHARE`), refused unless a number from 0 to
+    :data:`~dfkit.policy.MAX_WILD_SHARE` (the weighing counts at most one wild bearing a fix)."""
+    if isinstance(share, str) or not isinstance(share, (int, float, np.integer, np.floating)):
+        raise OptionError("wild_share", share, "is not a number (e.g. 0.05)")
+    v = _number("wild_share", share)
+    if not 0.0 <= v <= MAX_WILD_SHARE:
+        raise OptionError("wild_share", share, f"must be a share from 0 to {MAX_WILD_SHARE:g} (e.g. 0.05): the "
+                                               "weighing counts at most one wild bearing a fix")
+    return v
 
 
 def check_level(level) -> float:
