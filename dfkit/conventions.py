@@ -57,6 +57,28 @@ NORTH_ALIASES = {
 }
 
 
+def remainder(x, period):
+    """``np.mod(x, period)`` of an array of floats, bit for bit, for a positive finite ``period``; about ten times
+    faster where every x lies in (-period, 2 period), as angles from the geodesic routines do.
+
+    numpy's float remainder calls the C library's fmod on each element (25-35 ns each here). On that range fmod
+    is exact and returns x itself for |x| < period and x - period for x >= period (exact by Sterbenz's lemma);
+    numpy then adds the period to a negative result (one rounding: x + period, formed here as period + x) and
+    gives +0.0 for a zero, as 0.0 + x does to -0.0 (and to nothing else). A NaN stays that NaN either way (fmod
+    and the addition both pass it on). Anything else (infinities, larger angles, only NaN) goes to np.mod itself."""
+    x = np.asarray(x, float)
+    if x.size == 0:
+        return np.mod(x, period)
+    lo, hi = np.fmin.reduce(x, axis=None), np.fmax.reduce(x, axis=None)       # NaN ignored (unless all are)
+    if not (lo > -period and hi < 2.0 * period):
+        return np.mod(x, period)
+    out = (x < 0.0) * period          # period where x < 0, else 0.0
+    out += x
+    if hi >= period:
+        out -= (x >= period) * period     # (not out >= period: a tiny negative x gives period itself)
+    return out
+
+
 def wrap360(angle_deg):
     """Wrap angles to [0, 360). [°]"""
     with np.errstate(invalid="ignore"):
@@ -64,8 +86,9 @@ def wrap360(angle_deg):
 
 
 def wrap180(angle_deg):
-    """Wrap angles to [-180, 180). [°]"""
-    return np.mod(np.asarray(angle_deg, dtype=float) + 180.0, 360.0) - 180.0
+    """Wrap angles to [-180, 180). [°] (np.mod bit for bit; arrays by :func:`remainder`)"""
+    a = np.asarray(angle_deg, dtype=float) + 180.0
+    return (np.mod(a, 360.0) if a.ndim == 0 else remainder(a, 360.0)) - 180.0
 
 
 def to_degrees(value, unit):

@@ -17,33 +17,11 @@ from __future__ import annotations
 import numpy as np
 import pyproj
 
-from dfkit.conventions import WGS84_A
+from dfkit.conventions import WGS84_A, remainder, wrap180  # noqa: F401 (remainder: used as geodesy.remainder)
 
 
 #: The WGS84 geodesic engine (stateless; safe to share).
 GEOD = pyproj.Geod(ellps="WGS84")
-
-
-def remainder(x, period):
-    """``np.mod(x, period)`` of an array of floats, bit for bit, for a positive finite ``period``; about ten times
-    faster where every x lies in (-period, 2 period), as angles from the geodesic routines do.
-
-    numpy's float remainder calls the C library's fmod on each element (25-35 ns each here). On that range fmod
-    is exact and returns x itself for |x| < period and x - period for x >= period (exact by Sterbenz's lemma);
-    numpy then adds the period to a negative result (one rounding: x + period, formed here as period + x) and
-    gives +0.0 for a zero, as 0.0 + x does to -0.0 (and to nothing else). A NaN stays that NaN either way (fmod
-    and the addition both pass it on). Anything else (infinities, larger angles, only NaN) goes to np.mod itself."""
-    x = np.asarray(x, float)
-    if x.size == 0:
-        return np.mod(x, period)
-    lo, hi = np.fmin.reduce(x, axis=None), np.fmax.reduce(x, axis=None)       # NaN ignored (unless all are)
-    if not (lo > -period and hi < 2.0 * period):
-        return np.mod(x, period)
-    out = (x < 0.0) * period          # period where x < 0, else 0.0
-    out += x
-    if hi >= period:
-        out -= (x >= period) * period     # (not out >= period: a tiny negative x gives period itself)
-    return out
 
 
 def inverse(lat1, lon1, lat2, lon2):
@@ -79,8 +57,7 @@ def forward(lat, lon, azi_deg, dist_m):
     lon_b = np.broadcast_to(lon, shape).ravel()
     dist = np.broadcast_to(np.asarray(dist_m, float), shape).ravel()
     lon2, lat2, _ = GEOD.fwd(lon_b, lat_b, azi.ravel(), dist)
-    # wrap180's np.mod(lon + 180, 360) - 180, bit for bit, by :func:`remainder`
-    return np.asarray(lat2).reshape(shape), (remainder(np.asarray(lon2, float) + 180.0, 360.0) - 180.0).reshape(shape)
+    return np.asarray(lat2).reshape(shape), wrap180(np.asarray(lon2, float)).reshape(shape)
 
 
 def to_local(lat0, lon0, lat, lon):
