@@ -41,6 +41,7 @@ polygons?", J. Wildl. Manage. 55(1), 172-176, 1991 [volume and pages from memory
 from __future__ import annotations
 
 from dataclasses import dataclass
+from functools import lru_cache
 
 import numpy as np
 
@@ -87,11 +88,26 @@ def chi2_sf(x, dof):
     approximation above (E. B. Wilson & M. M. Hilferty, Proc. Natl. Acad. Sci. 17, 684-688, 1931).
     NaN where dof < 1.
     """
-    from math import erfc, sqrt
-
     x = np.asarray(x, float)
     dof = np.asarray(dof)
-    x, dof = np.broadcast_arrays(x, dof)
+    if x.size == 1 and dof.size == 1:
+        # one value at a time (the wild risk's bisections ask the same few values again for every chunk of the
+        # sheet): remembered by its bits, the answer of the same call on one-element arrays
+        one = _chi2_sf_one(int(x.reshape(1).view(np.int64)[0]), dof.reshape(1)[0].item(), dof.dtype.str)
+        return np.full(np.broadcast_shapes(x.shape, dof.shape), one)
+    return _chi2_sf(*np.broadcast_arrays(x, dof))
+
+
+@lru_cache(maxsize=4096)
+def _chi2_sf_one(x_bits, dof, dof_type):
+    """:func:`_chi2_sf` of one value, given as the bits of a float64 and the dof with its numpy type."""
+    return float(_chi2_sf(np.array([x_bits], np.int64).view(float), np.array([dof], np.dtype(dof_type)))[0])
+
+
+def _chi2_sf(x, dof):
+    """:func:`chi2_sf` of arrays of one shape."""
+    from math import erfc, sqrt
+
     out = np.full(x.shape, np.nan)
     h = np.maximum(x, 0.0) / 2.0
     for k in np.unique(dof[(dof >= 1) & (dof <= 200)]):
@@ -651,11 +667,17 @@ def _minimum(trig, sx, sy, v, iterations=20):
                 break
             rows = live[trying]
             new = P[rows] + lam[trying, None] * step[trying]
-            out = _local(_rows(trig, rows), sx[rows], sy[rows], v[rows], new[:, 0], new[:, 1])
+            if len(rows) == M:          # every fix tries (rows is then 0 .. M - 1): the arrays as they are
+                out = _local(trig, sx, sy, v, new[:, 0], new[:, 1])
+            else:
+                out = _local(_rows(trig, rows), sx[rows], sy[rows], v[rows], new[:, 0], new[:, 1])
             ok = out[0] <= S[rows] * (1 + 1e-12) + 1e-300
-            ra = rows[ok]
-            P[ra] = new[ok]
-            S[ra], b[ra], J[ra], H[ra] = out[0][ok], out[1][ok], out[2][ok], out[3][ok]
+            if len(rows) == M and ok.all():     # every fix takes its step: the new arrays are the state
+                P, (S, b, J, H) = new, out
+            else:
+                ra = rows[ok]
+                P[ra] = new[ok]
+                S[ra], b[ra], J[ra], H[ra] = out[0][ok], out[1][ok], out[2][ok], out[3][ok]
             accepted[trying[ok]] = True
             trying = trying[~ok]
             lam[trying] *= 0.5

@@ -71,6 +71,22 @@ def test_same_bytes_as_pandas(tmp_path, n, guard):
     assert out.read_bytes() == _pandas_bytes(df, guard)
 
 
+def test_cells_needing_quotes_as_the_csv_module_writes_them():
+    # the reference is Python's csv module (QUOTE_MINIMAL, lineterminator "\n"), on cells made of the characters
+    # that decide its quoting and a few others
+    rng = np.random.default_rng(14)
+    alphabet = np.array([",", '"', "\n", "\r", "\x00", "a", " ", "é", "'", "=", "\t", "😀"])
+    cells = ["".join(rng.choice(alphabet, rng.integers(0, 7))) for _ in range(20_000)]
+    cells += ['""', ",", "\n", "a\r\nb"]
+    for cell in cells:
+        buf = io.StringIO()
+        try:
+            csv.writer(buf, lineterminator="\n").writerow([cell, ""])
+        except csv.Error:       # a NUL the csv module will not write
+            continue
+        assert dcsv._quoted([cell]) == [buf.getvalue()[:-2]], repr(cell)
+
+
 def test_header_needing_quotes_and_empty_table(tmp_path):
     df = pd.DataFrame({"a,b": [1.5, np.nan], 'say "x"': ["q", ""], "=sum": [True, False]})
     write_table(df, tmp_path / "h.csv")

@@ -138,6 +138,22 @@ def test_chi_square_tail_matches_scipy(dof):
     assert got == pytest.approx(ref, rel=1e-6 if dof <= 200 else 2e-2, abs=1e-300)
 
 
+@pytest.mark.parametrize("dof", [1, 2, 3, 6, 250, 2.0])
+def test_chi_square_tail_of_one_value_matches_scipy_and_the_array_answer(dof):
+    # one value at a time is remembered between calls: asked twice, in every shape, it still gives scipy's tail,
+    # and the same bits as the same value among others in an array
+    xs = np.array([0.0, -0.0, 0.3, 2.5, 9.0, 31.0, 300.0])
+    whole = regions.chi2_sf(np.concatenate([xs, [1.0]]), dof)[:-1]
+    for _ in range(2):
+        for k, x in enumerate(xs):
+            for got in (regions.chi2_sf(x, dof), regions.chi2_sf(np.array([x]), np.array([dof]))[0],
+                        regions.chi2_sf(np.array([[x]]), dof)[0, 0]):
+                assert got == pytest.approx(stats.chi2.sf(max(x, 0.0), dof), rel=1e-6 if dof <= 200 else 2e-2)
+                assert np.float64(got).tobytes() == whole[k].tobytes()
+    assert np.shape(regions.chi2_sf(1.0, dof)) == () and regions.chi2_sf(np.array([[1.0]]), dof).shape == (1, 1)
+    assert np.isnan(regions.chi2_sf(np.nan, dof)) and np.isnan(regions.chi2_sf(1.0, 0))
+
+
 def test_threshold_matches_scipy_quantiles():
     s_min = np.array([0.0, 2.0, 2.0, 5.0])
     known = np.array([True, True, False, False])

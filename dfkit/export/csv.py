@@ -238,10 +238,18 @@ _NEEDS_QUOTES = re.compile('[,"\r\n]')
 
 
 def _quoted(cells: list) -> list:
-    """Cells as the csv module writes them under QUOTE_MINIMAL: the few that need quotes are handed to it."""
+    """Cells as the csv module writes them under QUOTE_MINIMAL: a cell holding a comma, a quote or a line feed in
+    quotes with its quotes doubled, as that module's writer does (Modules/_csv.c, join_append_data); the rare
+    cells holding a carriage return or a NUL are handed to it."""
     out = list(cells)
     for k, v in enumerate(out):
-        if _NEEDS_QUOTES.search(v):
+        if not _NEEDS_QUOTES.search(v):
+            continue
+        if "\r" not in v and "\x00" not in v:
+            # the csv module's quoting of such a cell (default dialect, lineterminator "\n"): in quotes, each quote
+            # doubled (tests/test_csv_writer.py compares the two)
+            out[k] = '"' + v.replace('"', '""') + '"'
+        else:
             buf = io.StringIO()
             csv.writer(buf, lineterminator="\n").writerow([v, ""])
             out[k] = buf.getvalue()[:-2]      # the cell, without the empty neighbour and the line end

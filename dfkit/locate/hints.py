@@ -23,6 +23,8 @@ alone is never named there.
 
 from __future__ import annotations
 
+from dataclasses import dataclass
+
 import numpy as np
 
 from dfkit import estimators, geodesy
@@ -96,7 +98,7 @@ def one_bearing_hints(lat, lon, bearing, sd, g, counts, lines, status, method, r
             if np.all(np.abs(r_new) <= max(WILD_SD * float(sol.sd_deg[v]), 1e-9)) or len(flips) == 1:
                 best_flip[i] = (j, v)
     beside = _beside_an_observer(best_flip, lat, lon, bearing, sd, floor, order, starts, known_g)
-    as_read = _deviance(fit, g, m, sd, np.zeros(m, bool)) if best_flip else None     # the bearings as read
+    as_read = _deviance_as_read(fit, g, m, sd, sorted(best_flip)) if best_flip else None
     for i in look:
         i = int(i)
         found = by_fix.get(i, [])
@@ -163,6 +165,30 @@ def _deviance(sol, vg, k, sd_deg, wild):
     floor = np.radians(np.zeros(k) if sol.sd_floor_deg is None else sol.sd_floor_deg)
     dev = _normal_deviance(r, vg, k, n, sd_deg, sol.sd_known, floor)
     return np.where(np.isfinite(dev), dev, np.inf) + np.where(wild, 2.0 * np.log(2 * np.pi), 0.0)
+
+
+def _deviance_as_read(fit, g, m, sd_deg, fixes):
+    """:func:`_deviance` of the bearings as read at the fixes' own answers (``fit``), for the fixes ``fixes`` only:
+    {fix: deviance}. Each fix's sums run over its own bearings in the sheet's order, as over the whole sheet (the
+    same values; only the fixes with a turned bearing to weigh need it)."""
+    wanted = np.asarray(fixes, dtype=np.int64)
+    slot = np.full(m, -1)
+    slot[wanted] = np.arange(len(wanted))
+    rows = np.flatnonzero(slot[g] >= 0)
+    floor = None if fit.sd_floor_deg is None else np.asarray(fit.sd_floor_deg)[wanted]
+    sub = _AsRead(residual_deg=np.asarray(fit.residual_deg)[rows], sd_floor_deg=floor,
+                  sd_known=np.asarray(fit.sd_known)[wanted])
+    dev = _deviance(sub, slot[g[rows]], len(wanted), np.asarray(sd_deg)[rows], np.zeros(len(wanted), bool))
+    return dict(zip(wanted.tolist(), dev))
+
+
+@dataclass(frozen=True)
+class _AsRead:
+    """The parts of a solution :func:`_deviance` reads, for some of its fixes."""
+
+    residual_deg: np.ndarray
+    sd_floor_deg: np.ndarray | None
+    sd_known: np.ndarray
 
 
 def _normal_deviance(r, owner, k, n, sd_deg, known, floor_rad):

@@ -66,9 +66,14 @@ def written_step(value, unit=None) -> np.ndarray:
     if unit is None:
         return step
     u = np.asarray(unit, dtype=object)
-    per = np.ones(v.shape)
-    for name, size in DEGREES_PER_UNIT.items():
-        per[u == name] = size
+    first = u.flat[0] if u.size else None
+    if u.shape == v.shape and isinstance(first, str) and bool((u == first).all()):
+        # one unit throughout (the usual sheet): one comparison over the cells instead of one per unit name
+        per = np.full(v.shape, DEGREES_PER_UNIT.get(first, 1.0))
+    else:
+        per = np.ones(v.shape)
+        for name, size in DEGREES_PER_UNIT.items():
+            per[u == name] = size
     return step * per
 
 
