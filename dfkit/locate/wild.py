@@ -204,7 +204,7 @@ def _dropped_risk(idx, n, g, sol, region, prior, out, full_weight):
     del d, az
     zero, one = np.zeros(nf), np.ones(nf)
     # H0: the minimum of S over all n bearings, from the fix
-    s0, hx, hy, J0, res0 = _minimum(None, nf, v, sx, sy, phi, zero, zero, steps=DROPPED_STEPS, row=n)
+    s0, hx, hy, J0, res0 = _minimum(None, nf, v, sx, sy, phi, zero, zero, steps=DROPPED_STEPS, row=n, settle=True)
     det0 = J0[0] * J0[2] - J0[1] * J0[1]
     j_reg = _information_rows(n, sol.region_weight[idx], sx, sy)
     # each Hk from the linear leave-one-out answer about H0's
@@ -262,14 +262,21 @@ def _pairs(size, n):
     return np.repeat(k, n - 1), i.ravel()
 
 
-def _minimum(gk, m, v, sx, sy, phi, x, y, steps=1, row=None):
+def _minimum(gk, m, v, sx, sy, phi, x, y, steps=1, row=None, settle=False):
     """Gauss-Newton steps on S = sum v (phi - direction(x, y))^2 per group from (x, y).
 
     Groups are ``gk`` (m of them); or, with ``row``, consecutive runs of ``row`` terms (then gk is not used).
     Returns S after the last step as its linear prediction (S less the Gauss-Newton decrement: exact at a
     minimum), the point after it, and what the last step was taken with: the Fisher information (j11, j12, j22)
-    and each term's residual [rad].
+    and each term's residual [rad]. With ``settle``, S, the information and the residuals are those at the point
+    after the last step: where the steps did not settle (lines that do not meet), the linear prediction can be far
+    below any S the lines allow.
     """
+    if settle:
+        s, x, y, _, _ = _minimum(gk, m, v, sx, sy, phi, x, y, steps=steps, row=row)
+        _, _, _, J, res = _minimum(gk, m, v, sx, sy, phi, x, y, steps=1, row=row)
+        add = (lambda a: _rows_added(a.reshape(-1, row))) if row else (lambda a: np.bincount(gk, a, m))
+        return np.fmax(s, add(v * res * res)), x, y, J, res
     if row:
         add = lambda a: _rows_added(a.reshape(-1, row))  # noqa: E731
         spread = lambda a: np.repeat(a, row)  # noqa: E731
@@ -349,7 +356,8 @@ def _left_out(k, i, row, f, v, sx, sy, phi, x0, y0, prior, fixes, always=None, s
     nb = len(f)
     # the answer after STEPS steps; its information and residuals are those of the last step's start, within a
     # step of it
-    sk, xk, yk, (a11, a12, a22), res = _minimum(k, nb, v[i], sx[i], sy[i], phi[i], x0, y0, steps=steps, row=row)
+    sk, xk, yk, (a11, a12, a22), res = _minimum(k, nb, v[i], sx[i], sy[i], phi[i], x0, y0, steps=steps, row=row,
+                                                settle=steps != STEPS)
     detk = a11 * a22 - a12 * a12
     n_alt = np.full(nb, row)
     behind = (np.abs(res) > np.pi / 2).reshape(-1, row).any(1)
