@@ -206,6 +206,18 @@ def _dropped_risk(idx, n, g, sol, region, prior, out, full_weight):
     # H0: the minimum of S over all n bearings, from the fix
     s0, hx, hy, J0, res0 = _minimum(None, nf, v, sx, sy, phi, zero, zero, steps=DROPPED_STEPS, row=n, settle=True)
     det0 = J0[0] * J0[2] - J0[1] * J0[1]
+    # where H0's steps ran away (a line far off pulls them), H0 does not count and its terms at the fix serve as
+    # the reference the odds are taken against (any finite one cancels)
+    with np.errstate(invalid="ignore"):
+        lost_h0 = ~(np.isfinite(s0) & np.isfinite(det0) & (det0 > 0) & np.isfinite(hx) & np.isfinite(hy))
+    if lost_h0.any():
+        at = _information_rows(n, v, sx, sy)
+        r_at = wrap_pi(phi - np.arctan2(-sx, -sy))
+        s_at = _rows_added((v * r_at * r_at).reshape(nf, n))
+        s0, hx, hy = np.where(lost_h0, s_at, s0), np.where(lost_h0, 0.0, hx), np.where(lost_h0, 0.0, hy)
+        J0 = tuple(np.where(lost_h0, a, b) for a, b in zip(at, J0))
+        det0 = J0[0] * J0[2] - J0[1] * J0[1]
+        res0 = np.where(np.repeat(lost_h0, n), r_at, res0)
     j_reg = _information_rows(n, sol.region_weight[idx], sx, sy)
     # each Hk from the linear leave-one-out answer about H0's
     hxr, hyr = np.repeat(hx, n), np.repeat(hy, n)
@@ -213,14 +225,16 @@ def _dropped_risk(idx, n, g, sol, region, prior, out, full_weight):
     s_min, bound, cx, cy = region
     fixes = (s0, det0, reach, j_reg, s_min[fid], bound[fid], cx[fid], cy[fid])
     k, i = _pairs(len(idx), n)
-    log_odds, lost = _left_out(k, i, n - 1, np.repeat(np.arange(nf), n), v, sx, sy, phi, lx + hxr, ly + hyr,
-                               prior, fixes, always=dropped, steps=DROPPED_STEPS)
+    # (Hd from the fix itself, its answer)
+    x0, y0 = np.where(dropped, 0.0, lx + hxr), np.where(dropped, 0.0, ly + hyr)
+    log_odds, lost = _left_out(k, i, n - 1, np.repeat(np.arange(nf), n), v, sx, sy, phi, x0, y0, prior, fixes,
+                               always=dropped, steps=DROPPED_STEPS)
     # H0's evidence inside the prior's disc, and its share outside the region
     area = (j_reg[0], j_reg[1], j_reg[2], (bound - s_min)[fid], cx[fid], cy[fid])
     in_disc0, in_both0 = inside_shares(hx, hy, J0, [(one, zero, one, reach * reach, zero, zero), area])
     behind0 = rows(np.abs(res0) > np.pi / 2).any(1)
     with np.errstate(divide="ignore", invalid="ignore"):
-        ok0 = ~behind0 & (det0 > 0) & (s0 <= _chi2_bound(np.full(nf, n - 2))) & (in_disc0 > 0)
+        ok0 = ~lost_h0 & ~behind0 & (det0 > 0) & (s0 <= _chi2_bound(np.full(nf, n - 2))) & (in_disc0 > 0)
         lo0 = np.where(ok0, np.log(in_disc0), -np.inf)
         lost0 = np.where(in_disc0 > 0, 1.0 - in_both0 / in_disc0, 1.0)
     lo = rows(log_odds)
