@@ -197,7 +197,10 @@ def _work_out(f: FixFacts) -> _Facts:
     sd_fix = sol.sd_deg
     with np.errstate(invalid="ignore"):
         wild_b = used & (np.abs(res) > WILD_SD * sd_fix[g])
-        reversed_b = np.abs(res) > REVERSED_DEG
+        # "looks reversed" only where turned by 180° the line would fit: within WILD_SD of the fix's SD where it has
+        # one (a line 160° off with SD 5° would still miss by 20° turned: that is a wild line, not a reversed one)
+        turned = 180.0 - np.abs(res)
+        reversed_b = (np.abs(res) > REVERSED_DEG) & ~(turned > WILD_SD * sd_fix[g])
         low_b = w < 0.5
     notable = np.bincount(g, wild_b | low_b | reversed_b, m) > 0
     regions = f.regions

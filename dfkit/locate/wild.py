@@ -35,6 +35,9 @@ Hk, summed over k (within the disc), is the fix's **wild risk**: the chance that
 one of its bearings is wild. :func:`dfkit.locate.rivals.find_rivals` calls a fix ``ambiguous`` when it
 reaches 1 - level, the share of misses the region itself allows.
 
+A fix whose robust fit dropped one bearing d is weighed too (:func:`_dropped_risk`): it is the answer of Hd, and
+its rivals are H0 ("d is good after all") and each other Hk ("the fit dropped a good line and kept the wild one").
+
 Hk's answer is solved in the fix's exact local plane (:mod:`dfkit.estimators.plane`: stations at their
 geodesic distance and azimuth from the fix, each bearing a plane direction through its geodesic residual),
 by Gauss-Newton steps from the linear leave-one-out answer; within a few kilometres of the fix the plane's
