@@ -74,8 +74,10 @@ def test_one_reflected_bearing_in_five_with_a_robust_method(write_sheet, known, 
     t = fixes.table
     err = distance_m(t["lat"], t["lon"], sc["truth_lat"], sc["truth_lon"])
     assert np.nanmedian(err) <= 1.25 * np.nanmedian(oracle_error(write_sheet, sc, known))
-    # at most 2 % not ok, with binomial slack for 1500 fixes (1.3-1.7 % measured in benchmarks/coverage.py)
-    assert r["not_ok"] <= 0.025
+    # few not ok: 1.1-2.4 % (seeds 301, 5, 6) before the wild risk of fixes that dropped a line was weighed, 2.9-4.3 %
+    # after (those flagged hold the transmitter about 75 % of the time: each of them had another answer that the
+    # bearings supported); with binomial slack for 1500 fixes
+    assert r["not_ok"] <= 0.055
     assert 0.92 <= r["region"] <= 0.97
     assert 0.92 <= r["ok_region"] <= 0.97
 

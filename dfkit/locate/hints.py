@@ -13,7 +13,7 @@ bearing's density, uniform on the circle (1/(2 pi) per radian); with the SD
 estimated, profile likelihoods with the SD no smaller than its floor
 (:mod:`dfkit.locate.resolution`). A line is said to be reversed only when that
 explanation is at least :data:`CLEAR_EVIDENCE` times as likely as each other one
-tried: another line wild, and every bearing right as read (at the fix's own answer,
+tried: another line wild (that line too, with a known SD), and every bearing right as read (at the fix's own answer,
 or with the transmitter beside one of the observers, where that observer's bearing
 fits whatever it says and the others may pass close). Otherwise the hint
 says both ("either line 2 is reversed, or line 3 is wild") with where each puts the
@@ -108,7 +108,10 @@ def one_bearing_hints(lat, lon, bearing, sd, g, counts, lines, status, method, r
                if robust else "check it, or use --method andrews, which drops such bearings")
         if i in best_flip:
             j, v = best_flip[i]
-            rivals = [(deviance[x[3]], "wild", x[3], x[2]) for x in drops if x[2] != j]
+            # with a known SD the turned line itself wild is a rival too: a line 160° off with SD 5° still misses by
+            # 20° turned (with the SD estimated, the profile likelihood of one bearing fewer is biased upward, and
+            # real reversals lost their single-line hint half the time: benchmarks/reversals.py)
+            rivals = [(deviance[x[3]], "wild", x[3], x[2]) for x in drops if x[2] != j or known_g[i]]
             rivals += [(float(as_read[i]), "as read", -1, -1), (beside[i][0], "beside", -1, beside[i][1])]
             out.setdefault(i, []).append(_reversal_text(j, v, rivals, deviance, sol, lines, bearing, written))
         elif counts[i] >= 4 and drops:

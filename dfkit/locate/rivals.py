@@ -122,7 +122,8 @@ def find_rivals(lat, lon, theta, sd, g, counts, sol, lik, level, examine, known_
     wild_risk : ndarray, shape (m,)
         Per fix, the chance that one of its bearings is wild and its region misses the transmitter because of it
         (:mod:`dfkit.locate.wild`), with the prior ``wild_share`` per bearing; NaN where it is not weighed (fewer
-        than three bearings, the SD estimated, a fix that left bearings out, ``wild_share`` 0, or not examined).
+        than three bearings, the SD estimated, a fix that left out more than one bearing, ``wild_share`` 0, or not
+        examined).
     """
     m = len(counts)
     kdof = np.full(m, np.inf) if known_dof is None else np.asarray(known_dof, float)
@@ -133,10 +134,15 @@ def find_rivals(lat, lon, theta, sd, g, counts, sol, lik, level, examine, known_
     if not look.any():
         return {}, np.full(m, np.nan)
     region = _fix_region(g, m, sol, lik, level, kdof)
-    wild = wild_risk(g, m, sol, full & sol.sd_known, region, wild_share)
+    with np.errstate(divide="ignore", invalid="ignore"):
+        full_weight = 1.0 / np.radians(np.asarray(sd, float)) ** 2
+    wild = wild_risk(g, m, sol, look & sol.sd_known, region, wild_share, full_weight)
     risky = np.flatnonzero(wild.risk >= 1.0 - float(level))
+    # what carries most of a flagged fix's risk: a bearing (>= 0), or -2 for all its bearings together
+    chosen = np.full(m, -1)
+    chosen[risky] = wild.left_out[risky]
     picked_bearing = np.zeros(len(g), bool)
-    picked_bearing[wild.left_out[risky]] = True
+    picked_bearing[chosen[chosen >= 0]] = True
     # Alternatives: each fix without each bearing in turn (but not the one set the fit itself uses), and whole
     # where the fit dropped bearings. Where the fit uses every bearing, leaving one out gives an alternative with
     # fewer bearings; only those that could be incompatible (_could_conflict) or that carry most of a flagged
@@ -156,7 +162,8 @@ def find_rivals(lat, lon, theta, sd, g, counts, sol, lik, level, examine, known_
         plausible = alt.converged & ~alt.behind & np.where(
             alt.sd_known, (alt.dof < 1) | (p >= INCONSISTENT_P), (alt.dof >= 1) & (alt.sd_deg <= PLAUSIBLE_SD_DEG))
     fewer = (v_out >= 0) & full[v_fix]          # a fix that uses all its bearings, without one of them
-    picked = np.flatnonzero(fewer & picked_bearing[np.maximum(v_out, 0)])
+    c = chosen[v_fix]
+    picked = np.flatnonzero(np.where(c == -2, v_out == -1, (c >= 0) & (v_out == c)))
     # the two-sided test, on the alternatives that could fail it (the others were solved for the wild risk alone,
     # and are tested so that the reason says whether the region reaches them)
     test = plausible & ~(fewer & ~could[np.maximum(v_out, 0)])

@@ -121,7 +121,8 @@ def classify(f: FixFacts, previous=None, redo=()):
         three = mine & sol.sd_known & (sol.n_used == 3) & ok
     append_reason(reasons, np.flatnonzero(few_dof & (sol.dof == 1)), ONE_DOF_TEXT)
     append_reason(reasons, np.flatnonzero(few_dof & (sol.dof == 2)), TWO_DOF_TEXT)
-    append_reason(reasons, np.flatnonzero(three), THREE_TEXT)
+    append_reason(reasons, np.flatnonzero(three & (f.counts == 3)), THREE_TEXT)
+    append_reason(reasons, np.flatnonzero(three & (f.counts > 3)), THREE_LEFT_TEXT)
     return status, reasons
 
 
@@ -196,7 +197,10 @@ def _work_out(f: FixFacts) -> _Facts:
     sd_fix = sol.sd_deg
     with np.errstate(invalid="ignore"):
         wild_b = used & (np.abs(res) > WILD_SD * sd_fix[g])
-        reversed_b = np.abs(res) > REVERSED_DEG
+        # "looks reversed" only where turned by 180° the line would fit: within WILD_SD of the fix's SD where it has
+        # one (a line 160° off with SD 5° would still miss by 20° turned: that is a wild line, not a reversed one)
+        turned = 180.0 - np.abs(res)
+        reversed_b = (np.abs(res) > REVERSED_DEG) & ~(turned > WILD_SD * sd_fix[g])
         low_b = w < 0.5
     notable = np.bincount(g, wild_b | low_b | reversed_b, m) > 0
     regions = f.regions
@@ -382,6 +386,12 @@ THREE_TEXT = ("three bearings check one another only weakly: one wild bearing th
               "another direction makes the fix testable")
 
 
+#: Said of an ok fix with a known SD that rests on three bearings after its fit dropped the others.
+THREE_LEFT_TEXT = ("it rests on the three bearings the fit kept, and three check one another only weakly: one wild "
+                   "bearing among them that passes near where the other two cross goes unseen by any residual test "
+                   "(where wild_risk is given it weighs that chance, and the chance that the fit dropped a good line "
+                   "and kept a wild one); another bearing from another direction makes the fix testable")
+
 #: Said of every fix whose SD is estimated from its own three bearings.
 ONE_DOF_TEXT = ("its SD is estimated from its own three bearings (one degree of freedom), so the region is sized with "
                 "an F(2, 1) scale that allows for how little they tell; with the SD measured on beacon trials (dfkit "
@@ -450,6 +460,8 @@ def _rival_text(rv, lines, sol, i, level=0.95):
 def _wild_text(rv, lines, sol, i, level, where):
     """The reason of a fix flagged by its wild risk: which line, where the others would put the transmitter, the
     chance, and what to do."""
+    if rv.dropped:
+        return _dropped_wild_text(rv, lines, sol, i, level, where)
     k = lines[rv.left_out]
     others = int(sol.n_used[i]) - 1
     if not rv.settled:
@@ -464,6 +476,29 @@ def _wild_text(rv, lines, sol, i, level, where):
             f"lines (most likely line {k}) is wild and this region misses the transmitter is {_percent(rv.chance)} "
             f"(wild_risk), at least the {_percent(1.0 - level)} of misses the region allows (set the share with "
             f"--wild-share): check line {k}, or take another bearing from another direction")
+
+
+def _dropped_wild_text(rv, lines, sol, i, level, where):
+    """:func:`_wild_text` for a fix whose fit dropped a line: the fit may have dropped a good line and kept the
+    wild one, or dropped a good line that the others agree with."""
+    j = _lines_text(lines[rv.dropped])
+    miss = "outside this region" if rv.outside else "inside this region, though most of what they allow lies outside it"
+    if rv.left_out >= 0:
+        k = lines[rv.left_out]
+        head = f"line {k} may be the wild one rather than {j}, which the fit dropped"
+        alone = (f"with {j} and without line {k} the bearings agree on {where}, where line {k} misses by "
+                 f"{rv.miss_deg:+.0f}°, {miss}" if rv.settled else
+                 f"with {j} and without line {k} the bearings do not settle on one place within reach")
+        check = f"check {_lines_text(np.append(lines[rv.dropped], k))}"
+    else:
+        head = f"{j}, which the fit dropped, may be good"
+        alone = (f"with it all {int(sol.n_used[i]) + len(rv.dropped)} bearings agree on {where}, {miss}" if rv.settled
+                 else "with it the bearings do not settle on one place within reach")
+        check = f"check {j}"
+    return (f"{head}: {alone}; with {_share(rv.wild_share)} wild, the chance that the fit kept a wild line or dropped "
+            f"a good one and this region misses the transmitter is {_percent(rv.chance)} (wild_risk), at least the "
+            f"{_percent(1.0 - level)} of misses the region allows (set the share with --wild-share): {check}, or take "
+            f"another bearing from another direction")
 
 
 def _share(q):

@@ -35,6 +35,9 @@ Hk, summed over k (within the disc), is the fix's **wild risk**: the chance that
 one of its bearings is wild. :func:`dfkit.locate.rivals.find_rivals` calls a fix ``ambiguous`` when it
 reaches 1 - level, the share of misses the region itself allows.
 
+A fix whose robust fit dropped one bearing d is weighed too (:func:`_dropped_risk`): it is the answer of Hd, and
+its rivals are H0 ("d is good after all") and each other Hk ("the fit dropped a good line and kept the wild one").
+
 Hk's answer is solved in the fix's exact local plane (:mod:`dfkit.estimators.plane`: stations at their
 geodesic distance and azimuth from the fix, each bearing a plane direction through its geodesic residual),
 by Gauss-Newton steps from the linear leave-one-out answer; within a few kilometres of the fix the plane's
@@ -55,6 +58,11 @@ from dfkit.regions import chi2_sf
 #: and four flag the same fixes but for 5 of about 2,470 (the risks summed over the sheet 866.2 and 866.6), at
 #: 0.85 against 1.4 s CPU; one step lost 2 % of the flags.
 STEPS = 2
+
+#: Gauss-Newton steps for the answers weighed for a fix whose fit dropped a line (few fixes): its answers lie
+#: farther from the linear ones (H0's answer is not the fix). With 2, a simulated five-bearing fix (Andrews' fit
+#: dropped a line 1.5 SD off and kept one 42° off) lost the answer without the wild line; with 6 it was found.
+DROPPED_STEPS = 6
 
 #: Pairs (left-out bearing, other bearing) per chunk: bounds the transient memory (about 200 bytes a pair, so
 #: about 12 MB a chunk).
@@ -87,8 +95,9 @@ class WildRisk:
     left_out: np.ndarray
 
 
-def wild_risk(g, m, sol, weigh, region, wild_share) -> WildRisk:
-    """The wild risk of the fixes ``weigh`` (bool, shape (m,)): solved with every bearing and a known SD.
+def wild_risk(g, m, sol, weigh, region, wild_share, full_weight=None) -> WildRisk:
+    """The wild risk of the fixes ``weigh`` (bool, shape (m,)): solved with a known SD, with every bearing or with
+    one left out by the fit (:func:`_dropped_risk`).
 
     Parameters
     ----------
@@ -100,23 +109,39 @@ def wild_risk(g, m, sol, weigh, region, wild_share) -> WildRisk:
         Per fix (S_min, bound, centre x, centre y [m]) of its likelihood-ratio region.
     wild_share : float
         Prior probability that a bearing is wild.
+    full_weight : ndarray, shape (N,), optional
+        Each bearing's full weight 1 / SD^2 [1/rad^2]: needed for the bearings the fit left out (their own
+        weights are 0).
     """
-    risk = np.where(weigh & (wild_share > 0), 0.0, np.nan)      # with no prior share nothing is weighed
-    out = WildRisk(risk, np.full(m, -1))
     used = sol.weight > 0
-    if wild_share <= 0 or not weigh.any():
+    counts = np.bincount(g, minlength=m)
+    n_used = np.bincount(g, used, minlength=m)
+    whole = weigh & (n_used == counts)
+    one_out = weigh & (n_used == counts - 1) & (counts >= 3) & (full_weight is not None)
+    # with no prior share nothing is weighed
+    out = WildRisk(np.where((whole | one_out) & (wild_share > 0), 0.0, np.nan), np.full(m, -1))
+    if wild_share <= 0 or not (whole | one_out).any():
         return out
-    sel = np.flatnonzero(weigh[g] & used)
+    prior = np.log(wild_share / (1.0 - wild_share))
+    _weigh_chunks(whole[g] & used, g, m, sol, region, prior, out, _chunk_risk)
+    if one_out.any():
+        _weigh_chunks(one_out[g], g, m, sol, region, prior, out, _dropped_risk, full_weight)
+    return out
+
+
+def _weigh_chunks(take, g, m, sol, region, prior, out, chunk_risk, *extra):
+    """Run ``chunk_risk`` over the bearings ``take`` (whole fixes) in chunks of fixes of one size."""
+    sel = np.flatnonzero(take)
+    if not len(sel):
+        return
     n_of = np.bincount(g[sel], minlength=m)
     # bearings by (number of bearings, fix): the fixes of each size lie together, so that a chunk of whole fixes
     # of one size is a block of rows of equal length (sums along rows instead of grouped sums), and every array
     # but the answers lives one chunk at a time
     order = sel[np.lexsort((g[sel], n_of[g[sel]]))]
     del sel
-    prior = np.log(wild_share / (1.0 - wild_share))
     for lo, hi, n in _chunks(n_of[g[order]]):
-        _chunk_risk(order[lo:hi], n, g, sol, region, prior, out)
-    return out
+        chunk_risk(order[lo:hi], n, g, sol, region, prior, out, *extra)
 
 
 def _chunk_risk(idx, n, g, sol, region, prior, out):
@@ -156,6 +181,83 @@ def _chunk_risk(idx, n, g, sol, region, prior, out):
     out.left_out[f] = idx[at[has]]
 
 
+def _dropped_risk(idx, n, g, sol, region, prior, out, full_weight):
+    """The wild risk of the fixes of the bearings ``idx`` (whole fixes of n bearings each) whose fit left one
+    bearing d out, into ``out``.
+
+    The fix is the answer of "d is wild" (Hd). Its rivals are "every bearing is good" (H0: the fit need not have
+    dropped d) and "bearing k is wild" for each k != d (the fit dropped a good line and kept the wild one). They are
+    weighed as in :func:`_chunk_risk`, against H0's evidence by Laplace's method at the minimum of S over all n
+    bearings, which here is not the fix; H0 counts only when plausible by the same chi-square rule, Hd always (it
+    is the answer given). The region is drawn for Hd, so Hd costs nothing; the risk is the chance of H0 and of
+    each other Hk times the share of its Gaussian outside the region.
+    """
+    fid = g[idx[::n]]
+    nf = len(fid)
+    rows = lambda a: a.reshape(nf, n)  # noqa: E731
+    w = sol.weight[idx]
+    with np.errstate(divide="ignore", invalid="ignore"):
+        v = np.where(w > 0, sol.region_weight[idx] / np.where(w > 0, w, 1.0), full_weight[idx])
+    dropped = w <= 0                                          # one a fix
+    d = sol.range_m[idx]
+    az = np.radians(sol.azimuth_from_fix_deg[idx])
+    sx, sy = d * np.sin(az), d * np.cos(az)
+    phi = wrap_pi(np.arctan2(-sx, -sy) + np.radians(sol.residual_deg[idx]))
+    reach = 2.0 * rows(d).max(1)
+    del d, az
+    zero, one = np.zeros(nf), np.ones(nf)
+    # H0: the minimum of S over all n bearings, from the fix
+    s0, hx, hy, J0, res0 = _minimum(None, nf, v, sx, sy, phi, zero, zero, steps=DROPPED_STEPS, row=n, settle=True)
+    det0 = J0[0] * J0[2] - J0[1] * J0[1]
+    # where H0's steps ran away (a line far off pulls them), H0 does not count and its terms at the fix serve as
+    # the reference the odds are taken against (any finite one cancels)
+    with np.errstate(invalid="ignore"):
+        lost_h0 = ~(np.isfinite(s0) & np.isfinite(det0) & (det0 > 0) & np.isfinite(hx) & np.isfinite(hy))
+    if lost_h0.any():
+        at = _information_rows(n, v, sx, sy)
+        r_at = wrap_pi(phi - np.arctan2(-sx, -sy))
+        s_at = _rows_added((v * r_at * r_at).reshape(nf, n))
+        s0, hx, hy = np.where(lost_h0, s_at, s0), np.where(lost_h0, 0.0, hx), np.where(lost_h0, 0.0, hy)
+        J0 = tuple(np.where(lost_h0, a, b) for a, b in zip(at, J0))
+        det0 = J0[0] * J0[2] - J0[1] * J0[1]
+        res0 = np.where(np.repeat(lost_h0, n), r_at, res0)
+    j_reg = _information_rows(n, sol.region_weight[idx], sx, sy)
+    # each Hk from the linear leave-one-out answer about H0's
+    hxr, hyr = np.repeat(hx, n), np.repeat(hy, n)
+    lx, ly = _linear_start(n, J0, v, sx - hxr, sy - hyr, phi)
+    s_min, bound, cx, cy = region
+    fixes = (s0, det0, reach, j_reg, s_min[fid], bound[fid], cx[fid], cy[fid])
+    k, i = _pairs(len(idx), n)
+    # (Hd from the fix itself, its answer)
+    x0, y0 = np.where(dropped, 0.0, lx + hxr), np.where(dropped, 0.0, ly + hyr)
+    log_odds, lost = _left_out(k, i, n - 1, np.repeat(np.arange(nf), n), v, sx, sy, phi, x0, y0, prior, fixes,
+                               always=dropped, steps=DROPPED_STEPS)
+    # H0's evidence inside the prior's disc, and its share outside the region
+    area = (j_reg[0], j_reg[1], j_reg[2], (bound - s_min)[fid], cx[fid], cy[fid])
+    in_disc0, in_both0 = inside_shares(hx, hy, J0, [(one, zero, one, reach * reach, zero, zero), area])
+    behind0 = rows(np.abs(res0) > np.pi / 2).any(1)
+    with np.errstate(divide="ignore", invalid="ignore"):
+        ok0 = ~lost_h0 & ~behind0 & (det0 > 0) & (s0 <= _chi2_bound(np.full(nf, n - 2))) & (in_disc0 > 0)
+        lo0 = np.where(ok0, np.log(in_disc0), -np.inf)
+        lost0 = np.where(in_disc0 > 0, 1.0 - in_both0 / in_disc0, 1.0)
+    lo = rows(log_odds)
+    lost = np.where(rows(dropped), 0.0, rows(lost))
+    top = np.fmax(lo0, lo.max(1))
+    fin = np.isfinite(top)
+    top = np.where(fin, top, 0.0)
+    with np.errstate(invalid="ignore"):
+        p, p0 = np.exp(lo - top[:, None]), np.exp(lo0 - top)
+        total = p0 + _rows_added(p)
+        share, share0 = p * lost / total[:, None], p0 * lost0 / total
+    out.risk[fid] = np.where(fin, _rows_added(share) + share0, np.nan)
+    # the hypothesis with the largest share: a bearing, or -2 for "every bearing is good"
+    top_k = np.argmax(share, axis=1)
+    best = share[np.arange(nf), top_k]
+    pick = np.where(share0 > best, -2, idx[np.arange(nf) * n + top_k])
+    has = fin & (np.fmax(share0, best) > 0)
+    out.left_out[fid[has]] = pick[has]
+
+
 def _chunks(n_bearings):
     """(lo, hi, n): ranges of the bearings (sorted by fix size, then fix) of whole fixes of n bearings each, about
     CHUNK_PAIRS pairs or fewer a range. ``n_bearings``: each bearing's fix size."""
@@ -177,14 +279,21 @@ def _pairs(size, n):
     return np.repeat(k, n - 1), i.ravel()
 
 
-def _minimum(gk, m, v, sx, sy, phi, x, y, steps=1, row=None):
+def _minimum(gk, m, v, sx, sy, phi, x, y, steps=1, row=None, settle=False):
     """Gauss-Newton steps on S = sum v (phi - direction(x, y))^2 per group from (x, y).
 
     Groups are ``gk`` (m of them); or, with ``row``, consecutive runs of ``row`` terms (then gk is not used).
     Returns S after the last step as its linear prediction (S less the Gauss-Newton decrement: exact at a
     minimum), the point after it, and what the last step was taken with: the Fisher information (j11, j12, j22)
-    and each term's residual [rad].
+    and each term's residual [rad]. With ``settle``, S, the information and the residuals are those at the point
+    after the last step: where the steps did not settle (lines that do not meet), the linear prediction can be far
+    below any S the lines allow.
     """
+    if settle:
+        s, x, y, _, _ = _minimum(gk, m, v, sx, sy, phi, x, y, steps=steps, row=row)
+        _, _, _, J, res = _minimum(gk, m, v, sx, sy, phi, x, y, steps=1, row=row)
+        add = (lambda a: _rows_added(a.reshape(-1, row))) if row else (lambda a: np.bincount(gk, a, m))
+        return np.fmax(s, add(v * res * res)), x, y, J, res
     if row:
         add = lambda a: _rows_added(a.reshape(-1, row))  # noqa: E731
         spread = lambda a: np.repeat(a, row)  # noqa: E731
@@ -255,15 +364,17 @@ def _linear_start(n, J, v, sx, sy, phi):
     return np.nan_to_num(x0), np.nan_to_num(y0)
 
 
-def _left_out(k, i, row, f, v, sx, sy, phi, x0, y0, prior, fixes):
+def _left_out(k, i, row, f, v, sx, sy, phi, x0, y0, prior, fixes, always=None, steps=STEPS):
     """For one chunk of bearings (whole fixes of row + 1 bearings; ``f`` their fixes) and its pairs (k, i) of
     chunk indices, ``row`` a bearing: per left-out bearing k, (log posterior odds of Hk against H0, share of Hk's
-    position outside the fix's region)."""
+    position outside the fix's region). ``always`` (bool per bearing): the Hk counted whatever their fit or
+    odds (the fix's own answer)."""
     s0, det0, reach, j_reg, s_min, bound, cx, cy = fixes
     nb = len(f)
     # the answer after STEPS steps; its information and residuals are those of the last step's start, within a
     # step of it
-    sk, xk, yk, (a11, a12, a22), res = _minimum(k, nb, v[i], sx[i], sy[i], phi[i], x0, y0, steps=STEPS, row=row)
+    sk, xk, yk, (a11, a12, a22), res = _minimum(k, nb, v[i], sx[i], sy[i], phi[i], x0, y0, steps=steps, row=row,
+                                                settle=steps != STEPS)
     detk = a11 * a22 - a12 * a12
     n_alt = np.full(nb, row)
     behind = (np.abs(res) > np.pi / 2).reshape(-1, row).any(1)
@@ -271,7 +382,10 @@ def _left_out(k, i, row, f, v, sx, sy, phi, x0, y0, prior, fixes):
         plausible = (n_alt >= 2) & ~behind & (detk > 0) & (sk <= _chi2_bound(n_alt - 2))
         log_odds = (0.5 * (s0[f] - sk) + 0.5 * np.log(det0[f] / detk) - 0.5 * np.log(2.0 * np.pi * v) + prior)
     # only chances above 1e-4 count (the disc below only lowers them)
-    log_odds = np.where(plausible & (log_odds > np.log(1e-4)), log_odds, -np.inf)
+    counted = plausible & (log_odds > np.log(1e-4))
+    if always is not None:
+        counted |= always & np.isfinite(log_odds)
+    log_odds = np.where(counted, log_odds, -np.inf)
     lost = np.ones(nb)
     w = np.flatnonzero(np.isfinite(log_odds))
     if len(w):
@@ -310,7 +424,10 @@ def _left_out(k, i, row, f, v, sx, sy, phi, x0, y0, prior, fixes):
             log_e0 = (-0.5 * s0[ft] - 0.5 * np.log(2.0 * np.pi) + 0.5 * np.log(v[two] * v[i1] * v[i2])
                       - 0.5 * np.log(det0[ft]))
             lo = log_q - np.log(2.0 * np.pi) - log_e0 + prior
-        log_odds[two] = np.where(np.isfinite(lo) & (lo > np.log(1e-4)), lo, -np.inf)
+        counted = lo > np.log(1e-4)
+        if always is not None:
+            counted |= always[two]
+        log_odds[two] = np.where(np.isfinite(lo) & counted, lo, -np.inf)
     return log_odds, lost
 
 
