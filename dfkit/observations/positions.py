@@ -40,6 +40,7 @@ from dfkit import grids
 from dfkit.io.gpx import Track
 from dfkit.observations.cells import angles, column, filled, numbers, per_value, split_position
 from dfkit.observations.groupstats import group_counts, group_medians, group_ranges
+from dfkit.observations.precision import position_steps
 from dfkit.observations.rowlog import RowLog
 from dfkit.observations.typos import describe, variants
 from dfkit.policy import (
@@ -80,6 +81,9 @@ class Positions:
         Rows refused (by this parser or before it, when a log was passed in).
     problems : list of Problem
         Errors (rejected rows) and warnings, with line numbers and columns.
+    step_east_m, step_north_m : ndarray
+        The step each row's position was written to, east and north [m]; 0 where not rounded
+        (:mod:`dfkit.observations.precision`).
     """
 
     lat: np.ndarray
@@ -89,6 +93,8 @@ class Positions:
     south: np.ndarray
     rejected: np.ndarray
     problems: list[Problem] = field(default_factory=list)
+    step_east_m: np.ndarray | None = None
+    step_north_m: np.ndarray | None = None
 
 
 def position_columns(columns, prefix: str = "", station_column: str | None = None) -> dict[str, str]:
@@ -210,7 +216,9 @@ def parse_positions(table: pd.DataFrame, *, prefix: str = "", station_column: st
     lon = np.where(bad, np.nan, p.lon)
     source = p.source.copy()
     source[bad] = ""
-    return Positions(lat, lon, source, p.zone, p.south, bad, list(log.problems))
+    step_e, step_n = position_steps(p.cells, source, lat, groups, decimal_comma=decimal_comma,
+                                    mgrs_square_m=p.mgrs_square)
+    return Positions(lat, lon, source, p.zone, p.south, bad, list(log.problems), step_e, step_n)
 
 
 class _State:
@@ -237,6 +245,7 @@ class _State:
         self.north_lon: dict[int, float] = {}
         self.reference = None       # (rows, medians) of the last fix reference (see _fix_reference)
         self.boxes = None           # (rows, loose fixes) of the last fix boxes (see _loose_fixes)
+        self.mgrs_square = None     # the square each MGRS row names [m] (NaN elsewhere; None: no MGRS read)
 
     def written(self, *roles):
         """Whether the sheet has a column for any of these roles: without, their cells are '' on every row, known
@@ -356,10 +365,12 @@ def _mgrs(p: _State):
         "give at least 6 digits (a 100 m square)" for i in ii])
     p.log.warn(p.log.mask(idx[ok & ~coarse & (square >= MGRS_WARNED_SQUARE_M)]), p.name("mgrs"), lambda ii: [
         f"'{cells[i]}' names a {_square(square[_k(idx, i)])} square: its centre was used, which may be up to "
-        f"{square[_k(idx, i)] / np.sqrt(2):,.0f} m from the place meant, and the fix's region does not include that; "
+        f"{square[_k(idx, i)] / np.sqrt(2):,.0f} m from the place meant (with a known SD the fix's region allows for it); "
         "give 6 digits or more (a 100 m square) where you can" for i in ii])
     keep = ok & ~coarse
     good = idx[keep]
+    p.mgrs_square = np.full(p.n, np.nan)
+    p.mgrs_square[good] = square[keep]
     res = [r[0] for r in parsed[keep]]
     if len(good):
         p.take(good, [r[0] for r in res], [r[1] for r in res], "mgrs", [r[2] for r in res], [r[3] for r in res])
