@@ -213,3 +213,14 @@ def test_cli_says_the_rounding(tmp_path, capsys):
     t = pd.read_csv(out)
     assert t["reason"].fillna("").str.contains("the region allows for that rounding").any()
     assert (t["sd_deg"] == 2.0).all()          # the SD as given; the SD used per bearing is in the bearings table
+
+
+def test_chunks_on_threads_give_the_same_answers(tmp_path):
+    # (dfkit.locate.parallel: each chunk solves its own fixes; the note is made once, for the whole sheet)
+    p = tmp_path / "r.csv"
+    _rounded_sheet(p, n_fix=30)
+    b = dfkit.read_bearings(p)
+    one, two = locate(b), locate(b, jobs=2)
+    pd.testing.assert_frame_equal(one.table, two.table)
+    pd.testing.assert_frame_equal(one.bearings, two.bearings)
+    assert one.notes == two.notes

@@ -168,7 +168,7 @@ def note(fixes) -> str | None:
             "in a cell of that size, an SD of the step over √12 per axis")
     added = b["rounding_sd_deg"].to_numpy(float) if "rounding_sd_deg" in b else np.zeros(len(b))
     changed = np.bincount(g, (added > 0).astype(float), m) > 0
-    if changed.any():
+    if changed.any() and fixes.azimuth_deg is not None:
         given = b["sd"].to_numpy(float)
         f = widening(g, m, fixes.azimuth_deg, b["range_m"].to_numpy(float), b["weight"].to_numpy(float), given,
                      np.hypot(given, added))

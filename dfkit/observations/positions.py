@@ -216,8 +216,9 @@ def parse_positions(table: pd.DataFrame, *, prefix: str = "", station_column: st
     lon = np.where(bad, np.nan, p.lon)
     source = p.source.copy()
     source[bad] = ""
-    step_e, step_n = position_steps(p.cells, source, lat, groups, decimal_comma=decimal_comma,
-                                    mgrs_square_m=p.mgrs_square)
+    kind = np.where(bad, 0, p.kind)
+    step_e, step_n = position_steps(p.cells, {s: kind == SOURCES.index(s) + 1 for s in ("lat/lon", "utm", "mgrs")},
+                                    lat, groups, decimal_comma=decimal_comma, mgrs_square_m=p.mgrs_square)
     return Positions(lat, lon, source, p.zone, p.south, bad, list(log.problems), step_e, step_n)
 
 

@@ -15,7 +15,10 @@ The step of each row is read from what was written, per row (a sheet may mix for
   the sheet reader kept a column as numbers (a plain CSV sheet) the text is gone and the step is that of the
   value, which keeps no trailing zeros: a position whose latitude and longitude both end in 0 (about 1 row in
   100 at random) looks one decimal coarser; such a row takes the finest step of the other rows of its fix that
-  came from lat/lon when that is exactly ten times finer (a real mix of, say, 3 and 6 decimals is kept).
+  came from lat/lon when that is exactly ten or a hundred times finer (1 row in 10,000 loses two zeros from
+  both; a real mix of, say, 3 and 6 decimals is kept, one of 3 and 4 or 5 decimals is not seen), and in
+  a fix with a row of 5 or more decimals a row showing 4 decimals counts as not rounded (two lost zeros
+  from 6 decimals: 1 row in 10,000; a real 4-decimal row there is off by 11 m at most).
 * UTM: the largest of 1, 10, 100 and 1000 m that both easting and northing are multiples of (a position to the
   metre lands on multiples of 100 in both by chance once in 10,000 rows).
 * MGRS: the square its digits name (:func:`dfkit.grids.parse_mgrs`, which places the position at the square's
@@ -38,6 +41,8 @@ from dfkit.policy import POSITION_STEP_IGNORED_M
 
 #: Most decimals looked for in a value: finer than 1e-7 degrees (about 1 cm) is not rounding that matters.
 MAX_DECIMALS = 7
+#: Decimals looked for in values read as numbers (see :func:`_angle_steps`).
+VALUE_DECIMALS = 5
 _E2 = WGS84_F * (2.0 - WGS84_F)
 _NUMBER = re.compile(r"\d+(?:\.\d*)?|\.\d+")
 _DEGREE_DIGITS = {"lat": 2, "lon": 3}
@@ -64,16 +69,23 @@ def decimal_step(values, max_decimals: int = MAX_DECIMALS) -> np.ndarray:
     [0.01, 0.001, 0.1, 1.0, 1e-07, 0.0]
     """
     v = np.abs(np.asarray(values, float))
-    todo = np.isfinite(v)
-    step = np.where(todo, 0.0, np.nan)
+    step = np.where(np.isfinite(v), 0.0, np.nan)
+    # one pass over every value first: those that need more than max_decimals are done (most GPS positions)
+    rows = np.flatnonzero(_whole(v * 10.0**max_decimals))
+    v = v[rows]
     for k in range(max_decimals + 1):
-        if not todo.any():
+        if not len(rows):
             break
-        x = v * 10.0**k
-        whole = todo & (np.abs(x - np.round(x)) <= np.fmax(1e-6, 8.0 * np.finfo(float).eps * x))
-        step[whole] = 10.0**-k
-        todo &= ~whole
+        whole = _whole(v * 10.0**k)
+        step[rows[whole]] = 10.0**-k
+        rows, v = rows[~whole], v[~whole]
     return step
+
+
+def _whole(x):
+    """Whether each (finite) value is a whole number, to the rounding of its decimal text."""
+    with np.errstate(invalid="ignore"):
+        return np.abs(x - np.round(x)) <= np.fmax(1e-6, 8.0 * np.finfo(float).eps * x)
 
 
 def angle_text_step(text: str, axis: str, decimal_comma: bool = False) -> float:
@@ -108,20 +120,51 @@ def _angle_steps(cells, axis, decimal_comma, rows):
     """Step of the angle cells ``rows`` [°]: from the text where the cells are text, from the values where the
     reader kept the column as numbers. Second value: whether it came from values (trailing zeros lost)."""
     if isinstance(cells, np.ndarray) and cells.dtype.kind == "f":
-        return decimal_step(cells[rows]), True
+        # finer than 5 decimals (1.1 m) is below the policy's limit anyway; 5 is looked for so that a position
+        # of 5 decimals that lost a trailing zero is seen as one (the fix's step is exactly ten times finer)
+        return decimal_step(cells[rows], VALUE_DECIMALS), True
     sub = np.asarray(cells, dtype=object)[rows]
     return np.asarray(per_value(sub, lambda t: angle_text_step(t, axis, decimal_comma)), float), False
 
 
-def position_steps(cells: dict, source, lat, groups=None, *, decimal_comma: bool = False, mgrs_square_m=None):
+def _lost_zeros(groups, all_rows, rows, step):
+    """The trailing-zero rules for lat/lon values read as numbers (module docstring): ``rows`` (with their ``step``,
+    all > 0) among the lat/lon rows ``all_rows``; ``groups`` each row's fix (-1: none)."""
+    g = groups[rows]
+    has = g >= 0
+    if not has.any():
+        return step
+    # a fix with a row written finely (5 decimals or more): its rows showing 4 decimals lost
+    # their zeros (1 row in 100 of 5 decimals, 1 in 10,000 of 6); a real 4-decimal row there is off by 11 m at most
+    fine_fix = np.zeros(int(groups.max()) + 1 if len(groups) else 0, bool)
+    fine = np.zeros(len(groups), bool)
+    fine[all_rows] = True
+    fine[rows] = False
+    gf = groups[fine]
+    fine_fix[gf[gf >= 0]] = True
+    step = np.where(has & fine_fix[np.maximum(g, 0)] & (step <= 1.0001e-4), 0.0, step)
+    # one or two decimals fewer than the finest other row of the fix: trailing zeros lost from both coordinates
+    keep = has & (step > 0)
+    if keep.sum() > 1:
+        codes, first = np.unique(g[keep], return_inverse=True)
+        finest = np.full(len(codes), np.inf)
+        np.minimum.at(finest, first, step[keep])
+        f = np.full(len(step), np.nan)
+        f[keep] = finest[first]
+        lost = np.isclose(step, 10.0 * f, rtol=1e-9, atol=0.0) | np.isclose(step, 100.0 * f, rtol=1e-9, atol=0.0)
+        step = np.where(keep & lost, f, step)
+    return step
+
+
+def position_steps(cells: dict, kind: dict, lat, groups=None, *, decimal_comma: bool = False, mgrs_square_m=None):
     """Each row's position step east and north [m] (0: not rounded, or finer than the policy's limit).
 
     Parameters
     ----------
     cells : dict
         The parser's text cells by role (``lat``, ``lon``, ``easting``, ``northing``), as read.
-    source : array_like of str
-        Where each row's position came from ('lat/lon', 'utm', 'mgrs', 'station', 'track' or '').
+    kind : dict
+        Masks of the rows whose position came from ``'lat/lon'``, ``'utm'`` and ``'mgrs'``.
     lat : array_like
         Each row's latitude [°] (for the length of a degree).
     groups : array_like of int, optional
@@ -129,29 +172,25 @@ def position_steps(cells: dict, source, lat, groups=None, *, decimal_comma: bool
     mgrs_square_m : array_like, optional
         The square each MGRS row names [m] (NaN elsewhere).
     """
-    source = np.asarray(source, dtype=object)
-    n = len(source)
+    lat = np.asarray(lat, float)
+    n = len(lat)
     east = np.zeros(n)
     north = np.zeros(n)
-    lat = np.asarray(lat, float)
-    rows = np.flatnonzero(source == "lat/lon")
+    rows = np.flatnonzero(kind["lat/lon"])
     if len(rows):
+        all_rows = rows
         s_lat, from_values = _angle_steps(cells["lat"], "lat", decimal_comma, rows)
+        rows, s_lat = rows[s_lat != 0], s_lat[s_lat != 0]      # a latitude written finely: the row is not rounded
         s_lon, lon_values = _angle_steps(cells["lon"], "lon", decimal_comma, rows)
         step = np.fmin(s_lat, s_lon)             # the finer of the two (0: not rounded; NaN: none shown)
-        if (from_values or lon_values) and groups is not None and len(rows) > 1:
-            g = np.asarray(groups, np.int64)[rows]
-            has = (g >= 0) & (step > 0)
-            if has.any():
-                finest = np.full(int(g.max()) + 1, np.inf)
-                np.minimum.at(finest, g[has], step[has])
-                f = np.where(has, finest[np.maximum(g, 0)], np.nan)
-                lost_zero = has & np.isclose(step, 10.0 * f, rtol=1e-9, atol=0.0)
-                step = np.where(lost_zero, f, step)
+        shown = np.flatnonzero(step > 0)         # (most GPS positions are not: only these are looked at further)
+        rows, step = rows[shown], step[shown]
+        if (from_values or lon_values) and groups is not None and len(rows):
+            step = _lost_zeros(np.asarray(groups, np.int64), all_rows, rows, step)
         m_n, m_e = metres_per_degree(lat[rows])
-        north[rows] = np.nan_to_num(step * m_n)
-        east[rows] = np.nan_to_num(step * m_e)
-    rows = np.flatnonzero(source == "utm")
+        north[rows] = step * m_n
+        east[rows] = step * m_e
+    rows = np.flatnonzero(kind["utm"])
     if len(rows):
         from dfkit.observations.cells import numbers
 
@@ -164,7 +203,7 @@ def position_steps(cells: dict, source, lat, groups=None, *, decimal_comma: bool
         east[rows] = north[rows] = step
     if mgrs_square_m is not None:
         sq = np.asarray(mgrs_square_m, float)
-        rows = np.flatnonzero((source == "mgrs") & np.isfinite(sq))
+        rows = np.flatnonzero(kind["mgrs"] & np.isfinite(sq))
         east[rows] = north[rows] = sq[rows]
     fine = np.fmax(east, north) < POSITION_STEP_IGNORED_M
     east[fine] = 0.0
