@@ -188,8 +188,8 @@ def test_bearings_out_read_back_gives_the_same_steps(tmp_path):
     again = locate(dfkit.read_bearings(out))
     for c in ("position_step_east_m", "position_step_north_m", "rounding_sd_deg"):
         np.testing.assert_allclose(again.bearings[c].to_numpy(float), b[c].to_numpy(float), rtol=1e-9)
-    np.testing.assert_allclose(again.table["region_reach_m"].to_numpy(float), fx.table["region_reach_m"].to_numpy(float),
-                               rtol=1e-6)
+    np.testing.assert_allclose(again.table["region_reach_m"].to_numpy(float),
+                               fx.table["region_reach_m"].to_numpy(float), rtol=1e-6)
 
 
 def test_positions_taken_as_exact_on_request(tmp_path):
@@ -224,3 +224,12 @@ def test_chunks_on_threads_give_the_same_answers(tmp_path):
     pd.testing.assert_frame_equal(one.table, two.table)
     pd.testing.assert_frame_equal(one.bearings, two.bearings)
     assert one.notes == two.notes
+
+
+def test_a_lost_trailing_zero_in_text_cells_too():
+    # a spreadsheet's typed numbers reach the parser as their shortest text ('47.81' for a cell showing 47.810):
+    # the same rule as for values
+    df = pd.DataFrame({"fix": ["A", "A", "A"], "lat": ["47.816", "47.81", "47.829"],
+                       "lon": ["-91.723", "-91.7", "-91.715"], "bearing": ["10", "100", "200"], "sd": ["2", "2", "2"]})
+    steps = dfkit.read_bearings(df).table["position_step_north_m"].to_numpy(float)
+    assert steps == pytest.approx(np.full(3, 0.001 * metres_per_degree(47.816)[0]), rel=1e-4)

@@ -11,14 +11,15 @@ The step of each row is read from what was written, per row (a sheet may mix for
 
 * latitude/longitude in decimal degrees: the decimals written; degrees and minutes: the minutes' decimals (a step
   of 10^-k / 60 degrees); degrees, minutes and seconds: the seconds' decimals (10^-k / 3600 degrees); packed
-  forms (``4751.6N``) likewise. A row takes the finer of its latitude's and longitude's steps, for both axes. Where
-  the sheet reader kept a column as numbers (a plain CSV sheet) the text is gone and the step is that of the
-  value, which keeps no trailing zeros: a position whose latitude and longitude both end in 0 (about 1 row in
-  100 at random) looks one decimal coarser; such a row takes the finest step of the other rows of its fix that
-  came from lat/lon when that is exactly ten or a hundred times finer (1 row in 10,000 loses two zeros from
-  both; a real mix of, say, 3 and 6 decimals is kept, one of 3 and 4 or 5 decimals is not seen), and in
-  a fix with a row of 5 or more decimals a row showing 4 decimals counts as not rounded (two lost zeros
-  from 6 decimals: 1 row in 10,000; a real 4-decimal row there is off by 11 m at most).
+  forms (``4751.6N``) likewise. A row takes the finer of its latitude's and longitude's steps, for both axes.
+  Where the sheet reader kept a column as numbers (a plain CSV sheet) the text is gone and the step is that of
+  the value, which keeps no trailing zeros (nor does a spreadsheet's typed number, read as its shortest text):
+  a position whose latitude and longitude both end in 0 (about 1 row in 100 at random) looks one decimal
+  coarser. So a row takes the finest step of the other rows of its fix that came from lat/lon when that is
+  exactly ten or a hundred times finer (1 row in 10,000 loses two zeros from both; a real mix of, say, 3 and 6
+  decimals is kept, one of 3 and 4 or 5 decimals is not seen), and in a fix with a row of 5 or more decimals a
+  row showing 4 decimals counts as not rounded (two lost zeros from 6 decimals: 1 row in 10,000; a real
+  4-decimal row there is off by 11 m at most).
 * UTM: the largest of 1, 10, 100 and 1000 m that both easting and northing are multiples of (a position to the
   metre lands on multiples of 100 in both by chance once in 10,000 rows).
 * MGRS: the square its digits name (:func:`dfkit.grids.parse_mgrs`, which places the position at the square's
@@ -118,13 +119,13 @@ def angle_text_step(text: str, axis: str, decimal_comma: bool = False) -> float:
 
 def _angle_steps(cells, axis, decimal_comma, rows):
     """Step of the angle cells ``rows`` [°]: from the text where the cells are text, from the values where the
-    reader kept the column as numbers. Second value: whether it came from values (trailing zeros lost)."""
+    reader kept the column as numbers (trailing zeros lost)."""
     if isinstance(cells, np.ndarray) and cells.dtype.kind == "f":
         # finer than 5 decimals (1.1 m) is below the policy's limit anyway; 5 is looked for so that a position
         # of 5 decimals that lost a trailing zero is seen as one (the fix's step is exactly ten times finer)
-        return decimal_step(cells[rows], VALUE_DECIMALS), True
+        return decimal_step(cells[rows], VALUE_DECIMALS)
     sub = np.asarray(cells, dtype=object)[rows]
-    return np.asarray(per_value(sub, lambda t: angle_text_step(t, axis, decimal_comma)), float), False
+    return np.asarray(per_value(sub, lambda t: angle_text_step(t, axis, decimal_comma)), float)
 
 
 def _lost_zeros(groups, all_rows, rows, step):
@@ -179,13 +180,14 @@ def position_steps(cells: dict, kind: dict, lat, groups=None, *, decimal_comma: 
     rows = np.flatnonzero(kind["lat/lon"])
     if len(rows):
         all_rows = rows
-        s_lat, from_values = _angle_steps(cells["lat"], "lat", decimal_comma, rows)
+        s_lat = _angle_steps(cells["lat"], "lat", decimal_comma, rows)
         rows, s_lat = rows[s_lat != 0], s_lat[s_lat != 0]      # a latitude written finely: the row is not rounded
-        s_lon, lon_values = _angle_steps(cells["lon"], "lon", decimal_comma, rows)
+        s_lon = _angle_steps(cells["lon"], "lon", decimal_comma, rows)
         step = np.fmin(s_lat, s_lon)             # the finer of the two (0: not rounded; NaN: none shown)
         shown = np.flatnonzero(step > 0)         # (most GPS positions are not: only these are looked at further)
         rows, step = rows[shown], step[shown]
-        if (from_values or lon_values) and groups is not None and len(rows):
+        # (the rules hold for text too: a spreadsheet's typed numbers reach here as their shortest text, 47.81)
+        if groups is not None and len(rows):
             step = _lost_zeros(np.asarray(groups, np.int64), all_rows, rows, step)
         m_n, m_e = metres_per_degree(lat[rows])
         north[rows] = step * m_n
