@@ -80,6 +80,8 @@ class Positions:
         Rows refused (by this parser or before it, when a log was passed in).
     problems : list of Problem
         Errors (rejected rows) and warnings, with line numbers and columns.
+    doubts : dict of int to str
+        Rows (by position in the table) whose position rests on a reading the evidence does not settle, and why.
     """
 
     lat: np.ndarray
@@ -89,6 +91,7 @@ class Positions:
     south: np.ndarray
     rejected: np.ndarray
     problems: list[Problem] = field(default_factory=list)
+    doubts: dict = field(default_factory=dict)
 
 
 def position_columns(columns, prefix: str = "", station_column: str | None = None) -> dict[str, str]:
@@ -210,7 +213,8 @@ def parse_positions(table: pd.DataFrame, *, prefix: str = "", station_column: st
     lon = np.where(bad, np.nan, p.lon)
     source = p.source.copy()
     source[bad] = ""
-    return Positions(lat, lon, source, p.zone, p.south, bad, list(log.problems))
+    return Positions(lat, lon, source, p.zone, p.south, bad, list(log.problems),
+                     {i: text for i, text in p.doubts.items() if not bad[i]})
 
 
 class _State:
@@ -235,6 +239,9 @@ class _State:
         self.letter_note: dict[int, str] = {}
         self.north_lat: dict[int, float] = {}
         self.north_lon: dict[int, float] = {}
+        # rows whose position rests on a reading the evidence does not settle (a zone letter S read by how rows of
+        # other zones write theirs): row -> why, for the fix's status (dfkit.locate marks such a fix ambiguous)
+        self.doubts: dict[int, str] = {}
         self.reference = None       # (rows, medians) of the last fix reference (see _fix_reference)
         self.boxes = None           # (rows, loose fixes) of the last fix boxes (see _loose_fixes)
 
@@ -544,7 +551,8 @@ def _utm(p: _State, decimal_comma, utm_letters, groups, track_ll):
             south[amb] = utm_letters == "hemisphere"
             decided[amb] = True
         else:
-            _resolve_s(p, rows, amb, (lat_n, lon_n, lat_s, lon_s), style, groups, track_ll, south, decided, why)
+            _resolve_s(p, rows, amb, (lat_n, lon_n, lat_s, lon_s), style, groups, track_ll, south, decided, why,
+                       zone)
             undecided = amb & ~decided
             log.reject(log.mask(rows[undecided]), cz, lambda ii: [
                 _both_readings(zc[i], lat_n[_k(rows, i)], lon_n[_k(rows, i)], lat_s[_k(rows, i)], lon_s[_k(rows, i)])
@@ -592,7 +600,7 @@ def _lon(v):
     return f"{abs(v):.2f}°{'W' if v < 0 else 'E'}"
 
 
-def _resolve_s(p, rows, amb, readings, style, groups, track_ll, south, decided, why):
+def _resolve_s(p, rows, amb, readings, style, groups, track_ll, south, decided, why, zone_of):
     """Decide ambiguous 'S' zone letters from the fix's other positions, the track, then letter habits."""
     lat_n, lon_n, lat_s, lon_s = readings
     # 1. the other positions of the row's own fix (lat/lon, MGRS, stations: already read)
@@ -617,10 +625,14 @@ def _resolve_s(p, rows, amb, readings, style, groups, track_ll, south, decided, 
             south[k], decided[k] = ds < dn, True
             why[k] = (f"'{p.cells['utm_zone'][i]}' read as {'the southern hemisphere' if ds < dn else 'latitude band S'}"
                       f": the GPS track at this time is {min(dn, ds):,.0f} km away")
-    # 3. how the other zone letters of the fix, then of the sheet, are written
+    # 3. how the other zone letters of the fix, then of the sheet in the same zone, then of the whole sheet, are
+    # written; a sheet may span continents, so a habit seen only in other zones decides the reading but leaves a
+    # doubt that the fix's status carries (dfkit.locate)
     levels = []
     if groups is not None:
         levels.append(("this fix", groups[rows]))
+    zone = np.array([int(z) for z in zone_of], np.int64)
+    levels.append(("this sheet, in the same zone,", zone))
     levels.append(("this sheet", np.zeros(len(rows), np.int64)))
     for where, g in levels:
         left = amb & ~decided
@@ -635,9 +647,23 @@ def _resolve_s(p, rows, amb, readings, style, groups, track_ll, south, decided, 
             if b != h:
                 south[k], decided[k] = h, True
                 ex = np.flatnonzero((g == g[k]) & (style == ("band" if b else "hemisphere")))[0]
-                why[k] = (f"'{p.cells['utm_zone'][rows[k]]}' read as {'latitude band S' if b else 'the southern hemisphere'}"
-                          f": {where} writes zone letters as {'latitude bands' if b else 'hemispheres'} "
-                          f"(line {p.log.lines[rows[ex]]}: '{p.cells['utm_zone'][rows[ex]]}')")
+                text = p.cells['utm_zone'][rows[k]]
+                seen = f"(line {p.log.lines[rows[ex]]}: '{p.cells['utm_zone'][rows[ex]]}')"
+                why[k] = (f"'{text}' read as {'latitude band S' if b else 'the southern hemisphere'}"
+                          f": {where} writes zone letters as {'latitude bands' if b else 'hemispheres'} {seen}")
+                if where == "this sheet":
+                    other = (lat_s[k], lon_s[k]) if b else (lat_n[k], lon_n[k])
+                    took = (lat_n[k], lon_n[k]) if b else (lat_s[k], lon_s[k])
+                    why[k] += (", but only in other zones, and a sheet can span continents: its fix is marked "
+                               "ambiguous")
+                    p.doubts[int(rows[k])] = (
+                        f"its stations' UTM zone letter S (line {p.log.lines[rows[k]]}: '{text}') was read as "
+                        f"{'latitude band S' if b else 'the southern hemisphere'} ({_lat(took[0])}, {_lon(took[1])}) "
+                        f"only because rows of other zones write their letters as {'bands' if b else 'hemispheres'} "
+                        f"{seen}; as {'the southern hemisphere' if b else 'latitude band S'} the fix would lie "
+                        f"{float(_km(took[0], took[1], other[0], other[1])):,.0f} km away, at {_lat(other[0])}, "
+                        f"{_lon(other[1])}: nothing in this fix shows which (write the zone with a hemisphere word, "
+                        "such as '19 south', or give --utm-letters band or hemisphere)")
 
 
 def _strip_checks(p, r, zone, south, E, N, lat, lon, groups):

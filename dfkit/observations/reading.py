@@ -237,7 +237,8 @@ def read_bearings(sheet, options: ReadOptions | None = None, **kwargs) -> Bearin
     table.insert(1, "fix_id", ids[keep])
     problems = sorted(log.problems, key=lambda p: (p.source != raw.source, p.line, p.severity != "error"))
     return Bearings(table=table, problems=problems, fix_index=fix_index, n_rows=n, notes=notes,
-                    source=raw.source, window_min=float(opts.window_min))
+                    source=raw.source, window_min=float(opts.window_min),
+                    doubts={int(lines[i]): text for i, text in pos.doubts.items() if not log.bad[i]})
 
 
 #: Columns a repeated row is compared on through their values as read (fix and tag through the fix, times,
