@@ -318,9 +318,10 @@ def _latlon(p: _State, decimal_comma):
     for c, cells, name in ((la, la_c, cl), (lo, lo_c, cn)):
         _note_packed(log, c, cells, name)
     with np.errstate(invalid="ignore"):
+        swapped = (f"{cl} and {cn} look swapped" if cl != cn else      # one cell holding both: its order
+                   f"the {cl} looks written longitude first; write the latitude first")
         log.reject(has & (np.abs(a) > 90) & (np.abs(o) <= 90), cl,
-                   lambda idx: [f"{a[i]:g} is not a latitude, but {o[i]:g} could be: {cl} and {cn} look swapped"
-                                for i in idx])
+                   lambda idx: [f"{a[i]:g} is not a latitude, but {o[i]:g} could be: {swapped}" for i in idx])
         log.reject(has & (np.abs(a) > 90), cl, lambda idx: [f"{a[i]:g} is outside -90..90" for i in idx])
         log.reject(has & ((o < -180) | (o > 360)), cn, lambda idx: [f"{o[i]:g} is outside -180..180" for i in idx])
         over = has & (o > 180) & (o <= 360)
@@ -417,6 +418,7 @@ def _split_combined(p: _State) -> np.ndarray:
     z = p.cells["utm_zone"]
     e, nn = p.cells["easting"], p.cells["northing"]
     refused = np.zeros(p.n, bool)
+    _whole_beside_columns(p, z, e, nn, refused)
     cand = np.flatnonzero((z != "") & (e == "") & (nn == ""))
     if not len(cand):
         return refused
@@ -431,6 +433,47 @@ def _split_combined(p: _State) -> np.ndarray:
         f"'{z[i]}' is not a UTM position dfkit can read: write zone and letter, easting and northing in one cell "
         "('16T 705900 5150600', as a GPS shows it) or in utm_zone, easting and northing columns" for i in idx])
     return refused
+
+
+def _whole_beside_columns(p: _State, z, e, nn, refused):
+    """A whole position in the zone cell on a row that also fills easting or northing: the zone alone where the
+    numbers agree (to 1 m), else refused naming both (it is a position, not a zone dfkit cannot read)."""
+    rows = np.flatnonzero((z != "") & ((e != "") | (nn != "")))
+    if not len(rows):
+        return
+    both = [i for i in rows if _MORE_THAN_ZONE.fullmatch(z[i])]
+    cz = p.name("utm_zone")
+    for i in both:
+        m = _UTM_CELL.fullmatch(z[i])
+        refused[i] = True
+        if not m:
+            p.log.reject(p.log.mask([i]), cz, (
+                f"'{z[i]}' holds more than a UTM zone: with {p.name('easting')} and {p.name('northing')} in "
+                "their own columns, the zone cell takes the zone and letter alone (like 33T)"))
+            continue
+        given = [(p.name(role), cell[i], float(m.group(g))) for role, cell, g in (("easting", e, 3),
+                                                                                    ("northing", nn, 4)) if cell[i]]
+        try:
+            same = all(abs(float(text) - value) <= 1.0 for _, text, value in given)
+        except ValueError:
+            same = False
+        if same:          # the same position twice: the zone cell gives the zone, the columns the rest
+            z[i], e[i], nn[i] = f"{m.group(1)}{m.group(2)}", m.group(3), m.group(4)
+            refused[i] = False
+            continue
+        said = " and ".join(f"{name} {_as_written(text)}" for name, text, _ in given)
+        p.log.reject(p.log.mask([i]), cz, (
+            f"'{z[i]}' is a whole UTM position, but this row also has {said}, which "
+            f"{'say' if len(given) > 1 else 'says'} otherwise: keep the position in one place (the zone cell, or "
+            "the three columns)"))
+
+
+def _as_written(text: str) -> str:
+    """A number cell as the user wrote it ('5309999', not the reader's '5309999.0')."""
+    try:
+        return f"{float(text):.10g}"
+    except ValueError:
+        return f"'{text}'"
 
 
 def _zone_and_hemisphere(p: _State):

@@ -149,6 +149,21 @@ def test_a_whole_position_in_the_zone_cell(write_sheet):
     assert (b.table["lat"][0], b.table["lon"][0]) == pytest.approx(latlon(32633, 512300, 5301200), abs=1e-9)
 
 
+def test_a_whole_position_in_the_zone_cell_beside_easting_and_northing(write_sheet):
+    # The same position in the zone cell and the columns is read; one that disagrees is refused naming both (it is
+    # a position, not an unreadable zone); more than a zone that is no position says the zone cell takes a zone.
+    sheet = ("fix,utm,easting,northing,bearing\n"
+             "A,33T 512300 5301200,512300,5301200,45\n"
+             "A,33T 512300 5301200,512300,5309999,90\n"
+             "A,33T 5123 x,512300,5301200,135\n")
+    b = read_bearings(write_sheet(sheet))
+    errs = dict((line, m) for line, _, m in errors(b))
+    assert set(errs) == {3, 4}
+    assert "is a whole UTM position" in errs[3] and "northing 5309999," in errs[3]
+    assert "not a UTM zone" not in errs[3] and "more than a UTM zone" in errs[4]
+    assert (b.table["lat"][0], b.table["lon"][0]) == pytest.approx(latlon(32633, 512300, 5301200), abs=1e-9)
+
+
 @pytest.mark.parametrize("zone, words", [("33", "needs a letter"), ("33I", "no latitude band I"),
                                          ("61N", "1 to 60"), ("33Z", "neither"), ("x", "not a UTM zone")])
 def test_unreadable_zones(write_sheet, zone, words):
