@@ -805,3 +805,32 @@ def test_plan_gives_directions_in_grid_north_for_grid_bearings(tmp_path):
         gamma = proj.get_factors(lo, la).meridian_convergence
         # one convergence for the fix (its stations' mean): within 0.05° of the spot's own over these 2 km
         assert angle_gap(got.loc[name, "expected_bearing_grid_deg"], toward(la, lo, *target) - gamma) < 0.05
+
+
+@needs_chromium
+def test_plan_map_names_the_north_of_its_directions(tmp_path):
+    from playwright.sync_api import sync_playwright
+
+    from dfkit.maps.plan import plan_map
+
+    from .test_map_browser import Page
+
+    dec = 9.5
+    stations = [direct(*T, 0.0, 1000.0), direct(*T, 90.0, 2000.0), direct(*T, 200.0, 1500.0)]
+    rows = [f"H,{la!r},{lo!r},{(toward(la, lo, *T) - dec) % 360.0!r},3,magnetic,{dec}" for la, lo in stations]
+    sheet = tmp_path / "mag.csv"
+    sheet.write_text("fix,lat,lon,bearing,sd,north,declination\n" + "\n".join(rows) + "\n")
+    plan = plan_next_bearing(read_bearings(sheet), "H", spots=spots_table([("west", *direct(*T, 270.0, 800.0))]))
+    out = tmp_path / "plan.html"
+    plan_map(plan).save(out)
+    aim = f"{toward(*direct(*T, 270.0, 800.0), *T):.0f}° true = {(toward(*direct(*T, 270.0, 800.0), *T) - dec):.0f}° magnetic"
+    with sync_playwright() as pw:
+        p = Page(pw, out, viewport=(1300, 850))
+        page = p.page
+        page.wait_for_function("window.dfkit && window.dfkit.plan", timeout=20000)
+        panel = page.locator("#dfk-ranks").inner_text()
+        page.locator("#dfk-ranks tr").nth(1).dispatch_event("click")
+        popup = page.locator(".leaflet-popup-content").inner_text()
+        p.browser.close()
+    assert p.errors == []
+    assert aim in panel and aim in popup
