@@ -823,7 +823,8 @@ def test_plan_map_names_the_north_of_its_directions(tmp_path):
     plan = plan_next_bearing(read_bearings(sheet), "H", spots=spots_table([("west", *direct(*T, 270.0, 800.0))]))
     out = tmp_path / "plan.html"
     plan_map(plan).save(out)
-    aim = f"{toward(*direct(*T, 270.0, 800.0), *T):.0f}° true = {(toward(*direct(*T, 270.0, 800.0), *T) - dec):.0f}° magnetic"
+    true = toward(*direct(*T, 270.0, 800.0), *T)
+    aim = f"{true:.0f}° true = {true - dec:.0f}° magnetic"
     with sync_playwright() as pw:
         p = Page(pw, out, viewport=(1300, 850))
         page = p.page
