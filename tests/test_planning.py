@@ -835,3 +835,30 @@ def test_plan_map_names_the_north_of_its_directions(tmp_path):
         p.browser.close()
     assert p.errors == []
     assert aim in panel and aim in popup
+
+
+def test_plan_magnetic_advice_from_a_station_gives_back_the_bearing_written_there(tmp_path):
+    # Magnetic bearings written with WMM2025 declinations from pygeomag (J. Myers, an independent implementation),
+    # pointing exactly at the transmitter near Fairbanks (D about +15°): planned from one of the fix's own
+    # stations, the magnetic bearing advised must be the one written there (dfkit's own declinations are averaged
+    # over the fix's stations, 2 km apart: within 0.05°).
+    from pygeomag import GeoMag
+
+    target = (64.85, -147.70)
+    stations = [direct(*target, 0.0, 1500.0), direct(*target, 100.0, 2000.0), direct(*target, 230.0, 1800.0)]
+    gm = GeoMag()
+    year = 2026 + (254 + 8.2 / 24) / 365.0  # 12 September (day 255) 08:10 UTC as a decimal year
+    written = []
+    for la, lo in stations:
+        d = gm.calculate(glat=la, glon=lo, alt=0, time=year).d
+        written.append((toward(la, lo, *target) - d) % 360.0)
+    rows = [f"H,{la!r},{lo!r},{w!r},3,MN,2026-09-12T08:1{i}:00Z" for i, ((la, lo), w) in enumerate(zip(stations,
+                                                                                                        written))]
+    sheet = tmp_path / "ak.csv"
+    sheet.write_text("fix,lat,lon,bearing,sd,north,time\n" + "\n".join(rows) + "\n")
+    spots = spots_table([(f"st{i}", la, lo) for i, (la, lo) in enumerate(stations)])
+    plan = plan_next_bearing(read_bearings(sheet), "H", spots=spots)
+    assert 14.0 < plan.norths["magnetic"] < 17.0
+    got = plan.table.set_index("spot")
+    for i, w in enumerate(written):
+        assert angle_gap(got.loc[f"st{i}", "expected_bearing_magnetic_deg"], w) < 0.05
