@@ -326,6 +326,21 @@ def test_trials_get_no_word_about_grouping_fixes(tmp_path):
     assert any("no fix labels and no times" in w for w in [p.message for p in plain.problems] + plain.notes)
 
 
+def test_beacon_columns_are_not_offered_as_fix_labels():
+    # Beacon label and position columns run in blocks, as fix labels do; calibrate reads them as beacons, so
+    # advice to name them 'fix' is wrong. A bearing sheet with a beacon_lat column is not told so either.
+    rows = [f"BC{k},{47.85 + 0.03 * k},{15.1 + 0.04 * k},{47.84 + 0.03 * k + 0.001 * j},{15.12 + 0.04 * k},"
+            f"{300 + j},2026-05-02T1{k}:{10 + 5 * j}:00Z" for k in range(3) for j in range(6)]
+    sheet = ("beacon,beacon_lat,beacon_lon,lat,lon,bearing,time\n" + "\n".join(rows) + "\n").encode()
+    trials = calibration.read_trials(sheet)
+    assert len(trials.table) == 18
+    assert not any("looks like fix labels" in p.message for p in trials.problems)
+    plain = read_bearings(sheet)
+    said = [p.message for p in plain.problems if "looks like fix labels" in p.message]
+    assert not any("beacon_lat" in w or "beacon_lon" in w for w in said)
+    assert any("column 'beacon'" in w for w in said)     # a label column is still offered, in a bearing sheet
+
+
 def test_unusable_groups_are_not_applied():
     b = read_bearings(b"fix,lat,lon,bearing,antenna\nA,47,15,45,y\nA,47,15.02,315,y\nA,47.02,15.01,180,y\n")
     out = calibration.apply(

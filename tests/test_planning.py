@@ -156,8 +156,8 @@ def test_plan_point_areas_follow_the_information_matrix(tmp_path):
     for name, la, lo in cands:
         g = G.Inverse(*T, la, lo)
         assert got.loc[name, "distance_m"] == pytest.approx(g["s12"], abs=0.01)
-        assert angle_gap(got.loc[name, "azimuth_deg"], g["azi1"]) < 1e-4
-        assert angle_gap(got.loc[name, "expected_bearing_deg"], toward(la, lo, *T)) < 1e-4
+        assert angle_gap(got.loc[name, "azimuth_true_deg"], g["azi1"]) < 1e-4
+        assert angle_gap(got.loc[name, "expected_bearing_true_deg"], toward(la, lo, *T)) < 1e-4
 
 
 def test_equal_range_candidates_tie_after_two_perpendicular_bearings(tmp_path):
@@ -478,7 +478,7 @@ def test_grid_plan_ranks_spots_around_the_estimate(tmp_path):
     assert len(t) == sum(1 for i in range(-4, 5) for j in range(-4, 5) if i * i + j * j <= 16)
     centre = t[t["spot"] == "E+0 N+0"].iloc[0]
     assert pd.isna(centre["rank"]) and "estimate itself" in centre["note"]
-    assert np.isnan(centre["expected_area_m2"]) and np.isnan(centre["azimuth_deg"])
+    assert np.isnan(centre["expected_area_m2"]) and np.isnan(centre["azimuth_true_deg"])
     assert t["rank"].notna().sum() == len(t) - 1
     assert (t["distance_m"] <= 2000.0 + 1e-6).all()
 
@@ -739,3 +739,126 @@ def test_plan_map_works_offline_and_escapes_user_text(tmp_path, write_sheet, gri
     assert unranked == int(plan.table["rank"].isna().sum()) >= 1  # the rejected spot, or the grid's centre
     assert popup == 1 and injected == 0
     assert first_in_panel == "dfk-plan"  # the plan comes first in the panel, above the fix list
+
+
+# --------------------------------------------------------------------------- norths of the advice
+
+
+def test_plan_gives_directions_in_the_magnetic_north_the_sheet_was_written_in(tmp_path, capsys):
+    # The sheet's bearings are magnetic with the user's own declination (9.5° E): true = magnetic + D
+    # (US Army FM 21-26, ch. 6), so the plan's magnetic directions must be its true ones (geographiclib) minus 9.5°.
+    dec = 9.5
+    stations = [direct(*T, 0.0, 1000.0), direct(*T, 90.0, 2000.0), direct(*T, 200.0, 1500.0)]
+    rows = [
+        f"H,{la!r},{lo!r},{(toward(la, lo, *T) - dec) % 360.0!r},3,magnetic,{dec},2026-09-12T08:1{i}:00Z"
+        for i, (la, lo) in enumerate(stations)
+    ]
+    sheet = tmp_path / "mag.csv"
+    sheet.write_text("fix,lat,lon,bearing,sd,north,declination,time\n" + "\n".join(rows) + "\n")
+    cands = [("south", *direct(*T, 180.0, 1500.0)), ("west", *direct(*T, 270.0, 800.0))]
+    plan = plan_next_bearing(read_bearings(sheet), "H", spots=spots_table(cands))
+    assert plan.norths == {"magnetic": pytest.approx(dec)}
+    got = plan.table.set_index("spot")
+    for name, la, lo in cands:
+        want_true = toward(la, lo, *T)
+        assert angle_gap(got.loc[name, "expected_bearing_true_deg"], want_true) < 1e-3
+        assert angle_gap(got.loc[name, "expected_bearing_magnetic_deg"], want_true - dec) < 1e-3
+        assert angle_gap(got.loc[name, "azimuth_magnetic_deg"], G.Inverse(*T, la, lo)["azi1"] - dec) < 1e-3
+        assert got.loc[name, "declination_deg"] == pytest.approx(dec)
+    assert any("magnetic = true - 9.50°" in n for n in plan.notes)
+    # the command names the north of every direction it prints
+    assert main(["plan", str(sheet), "--fix", "H", "--around", "1000"]) == 0
+    err = capsys.readouterr()
+    assert "expected_bearing_magnetic_deg" in err.out and "azimuth_true_deg" in err.out
+    best = next(line for line in err.err.splitlines() if line.startswith("best next spot"))
+    assert best.count("° true = ") == 3 and best.count("° magnetic") == 3
+    out = tmp_path / "p.csv"
+    assert main(["plan", str(sheet), "--fix", "H", "--around", "1000", "-o", str(out)]) == 0
+    t = pd.read_csv(out)
+    assert {"expected_bearing_true_deg", "expected_bearing_magnetic_deg", "declination_deg"} <= set(t.columns)
+    assert "expected_bearing_deg" not in t.columns  # no direction without its north
+
+
+def test_plan_gives_directions_in_grid_north_for_grid_bearings(tmp_path):
+    # Grid bearings in UTM 33N: true = grid + gamma, gamma the bearing of grid north clockwise from true north
+    # (C. F. F. Karney, "Transverse Mercator with an accuracy of a few nanometers", J. Geodesy 85, 475-485, 2011;
+    # the sign from geographiclib's TransverseMercator docs, from memory); gamma here from PROJ's factors.
+    import pyproj
+
+    proj = pyproj.Proj("EPSG:32633")
+    tr = pyproj.Transformer.from_crs("EPSG:4326", "EPSG:32633", always_xy=True)
+    target = (47.2, 16.0)  # east of the central meridian 15° E: gamma about +0.73°
+    stations = [direct(*target, 0.0, 1000.0), direct(*target, 90.0, 2000.0), direct(*target, 200.0, 1500.0)]
+    rows = []
+    for i, (la, lo) in enumerate(stations):
+        e, n = tr.transform(lo, la)
+        gamma = proj.get_factors(lo, la).meridian_convergence
+        rows.append(f"H,33T,{e:.3f},{n:.3f},{(toward(la, lo, *target) - gamma) % 360.0!r},3,grid,"
+                    f"2026-09-12T08:1{i}:00Z")
+    sheet = tmp_path / "grid.csv"
+    sheet.write_text("fix,utm_zone,easting,northing,bearing,sd,north,time\n" + "\n".join(rows) + "\n")
+    cands = [("south", *direct(*target, 180.0, 1500.0)), ("west", *direct(*target, 270.0, 800.0))]
+    plan = plan_next_bearing(read_bearings(sheet), "H", spots=spots_table(cands))
+    assert set(plan.norths) == {"grid"}
+    got = plan.table.set_index("spot")
+    for name, la, lo in cands:
+        gamma = proj.get_factors(lo, la).meridian_convergence
+        # one convergence for the fix (its stations' mean): within 0.05° of the spot's own over these 2 km
+        assert angle_gap(got.loc[name, "expected_bearing_grid_deg"], toward(la, lo, *target) - gamma) < 0.05
+
+
+@needs_chromium
+def test_plan_map_names_the_north_of_its_directions(tmp_path):
+    from playwright.sync_api import sync_playwright
+
+    from dfkit.maps.plan import plan_map
+
+    from .test_map_browser import Page
+
+    dec = 9.5
+    stations = [direct(*T, 0.0, 1000.0), direct(*T, 90.0, 2000.0), direct(*T, 200.0, 1500.0)]
+    rows = [f"H,{la!r},{lo!r},{(toward(la, lo, *T) - dec) % 360.0!r},3,magnetic,{dec}" for la, lo in stations]
+    sheet = tmp_path / "mag.csv"
+    sheet.write_text("fix,lat,lon,bearing,sd,north,declination\n" + "\n".join(rows) + "\n")
+    plan = plan_next_bearing(read_bearings(sheet), "H", spots=spots_table([("west", *direct(*T, 270.0, 800.0))]))
+    out = tmp_path / "plan.html"
+    plan_map(plan).save(out)
+    true = toward(*direct(*T, 270.0, 800.0), *T)
+    aim = f"{true:.0f}° true = {true - dec:.0f}° magnetic"
+    with sync_playwright() as pw:
+        p = Page(pw, out, viewport=(1300, 850))
+        page = p.page
+        page.wait_for_function("window.dfkit && window.dfkit.plan", timeout=20000)
+        panel = page.locator("#dfk-ranks").inner_text()
+        page.locator("#dfk-ranks tr").nth(1).dispatch_event("click")
+        popup = page.locator(".leaflet-popup-content").inner_text()
+        p.browser.close()
+    assert p.errors == []
+    assert aim in panel and aim in popup
+
+
+def test_plan_magnetic_advice_from_a_station_gives_back_the_bearing_written_there(tmp_path):
+    # Magnetic bearings written with WMM2025 declinations from pygeomag (J. Myers, an independent implementation),
+    # pointing exactly at the transmitter near Fairbanks (D about +15°): planned from one of the fix's own
+    # stations, the magnetic bearing advised must be the one written there (dfkit's own declinations are averaged
+    # over the fix's stations, 2 km apart: within 0.05°).
+    from pygeomag import GeoMag
+
+    target = (64.85, -147.70)
+    stations = [direct(*target, 0.0, 1500.0), direct(*target, 100.0, 2000.0), direct(*target, 230.0, 1800.0)]
+    gm = GeoMag()
+    year = 2026 + (254 + 8.2 / 24) / 365.0  # 12 September (day 255) 08:10 UTC as a decimal year
+    written = []
+    for la, lo in stations:
+        d = gm.calculate(glat=la, glon=lo, alt=0, time=year).d
+        written.append((toward(la, lo, *target) - d) % 360.0)
+    rows = [f"H,{la!r},{lo!r},{w!r},3,MN,2026-09-12T08:1{i}:00Z" for i, ((la, lo), w) in enumerate(zip(stations,
+                                                                                                        written))]
+    sheet = tmp_path / "ak.csv"
+    sheet.write_text("fix,lat,lon,bearing,sd,north,time\n" + "\n".join(rows) + "\n")
+    spots = spots_table([(f"st{i}", la, lo) for i, (la, lo) in enumerate(stations)])
+    plan = plan_next_bearing(read_bearings(sheet), "H", spots=spots)
+    assert 14.0 < plan.norths["magnetic"] < 17.0
+    got = plan.table.set_index("spot")
+    for i, w in enumerate(written):
+        assert angle_gap(got.loc[f"st{i}", "expected_bearing_magnetic_deg"], w) < 0.05

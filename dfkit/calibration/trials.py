@@ -189,8 +189,10 @@ def read_trials(sheet, options: ReadOptions | None = None, **kwargs) -> Trials:
 
     # Trials are not grouped into fixes: the reader's word on how it grouped a sheet without fix labels and
     # times ("all bearings of each tag form one fix") means nothing here.
+    # Nor is the advice to name a beacon column 'fix' (the beacon label and position are read here).
     problems = sorted(
-        [p for p in bearings.problems if not (p.column == "fix" and p.message.startswith(_ONE_FIX_WORDS))]
+        [p for p in bearings.problems if not (p.column == "fix" and p.message.startswith(_ONE_FIX_WORDS))
+         and not _beacon_column_as_labels(p.message)]
         + bproblems, key=lambda p: (p.source != raw.source, p.line, p.severity != "error")
     )
     notes = [n for n in bearings.notes if not n.startswith(_ONE_FIX_WORDS)]
@@ -204,3 +206,9 @@ def read_trials(sheet, options: ReadOptions | None = None, **kwargs) -> Trials:
 
 #: How :mod:`dfkit.observations.grouping` begins its word on a sheet without fix labels and times.
 _ONE_FIX_WORDS = "no fix labels and no times"
+
+
+def _beacon_column_as_labels(message: str) -> bool:
+    """The reader's advice to read a beacon column (``beacon``, ``beacon_lat`` ...) as fix labels
+    (:func:`dfkit.observations.columns.label_like_columns`)."""
+    return message.startswith("column 'beacon") and "looks like fix labels" in message

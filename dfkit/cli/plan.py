@@ -168,8 +168,9 @@ def _print_table(plan, top):
         "expected_area_m2",
         "area_ratio",
         "distance_m",
-        "azimuth_deg",
-        "expected_bearing_deg",
+        "azimuth_true_deg",
+        "expected_bearing_true_deg",
+        *(f"expected_bearing_{north}_deg" for north in plan.norths),
         "from_last_m",
     ]
     t = plan.table[plan.table["rank"].notna()].head(top)
@@ -207,9 +208,9 @@ def _print_summary(plan, top):
         )
         print(
             f"best next spot  {best['spot']}: {area}{share}; {best['distance_m']:.0f} m at "
-            f"{best['azimuth_deg']:.0f}° from {ref}, aim the antenna at {best['expected_bearing_deg']:.0f}°; "
-            f"{best['from_last_m']:.0f} m at {best['from_last_deg']:.0f}° from the last station "
-            "in a straight line",
+            f"{_direction(plan, best, 'azimuth')} from {ref}, aim the antenna at "
+            f"{_direction(plan, best, 'expected_bearing')}; {best['from_last_m']:.0f} m at "
+            f"{_direction(plan, best, 'from_last')} from the last station in a straight line",
             file=sys.stderr,
         )
     n_rank = int(plan.table["rank"].notna().sum())
@@ -221,6 +222,15 @@ def _print_summary(plan, top):
     )
     print(f"caution: {PLAN_CAUTION}", file=sys.stderr)
     print(CAUTION_LINE, file=sys.stderr)
+
+
+def _direction(plan, row, name) -> str:
+    """A direction of the plan named with its north: '270° true', or '270° true = 258° magnetic' where the
+    fix's bearings were magnetic (or grid)."""
+    text = f"{row[f'{name}_true_deg']:.0f}° true"
+    for north in plan.norths:
+        text += f" = {row[f'{name}_{north}_deg']:.0f}° {north}"
+    return text
 
 
 def _exit_status(plan) -> int:

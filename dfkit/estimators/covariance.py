@@ -96,10 +96,11 @@ def position_covariance(family, g, m, gx, gy, d, r, weight, known_b, known_g, sd
         mv = v * v * var_b
         m11, m12, m22 = (gsum(g, mv * t, m) for t in (gx * gx, gx * gy, gy * gy))
         i11, i12, i22 = _inv(b11, b12, b22)
-        # B^-1 M B^-1 for symmetric 2x2 matrices
-        c11 = i11 * (i11 * m11 + i12 * m12) + i12 * (i11 * m12 + i12 * m22)
-        c12 = i11 * (i12 * m11 + i22 * m12) + i12 * (i12 * m12 + i22 * m22)
-        c22 = i12 * (i12 * m11 + i22 * m12) + i22 * (i12 * m12 + i22 * m22)
+        # B^-1 M B^-1 for symmetric 2x2 matrices (NaN, quietly, for a fix whose lines give no B^-1)
+        with np.errstate(invalid="ignore", over="ignore"):
+            c11 = i11 * (i11 * m11 + i12 * m12) + i12 * (i11 * m12 + i12 * m22)
+            c12 = i11 * (i12 * m11 + i22 * m12) + i12 * (i12 * m12 + i22 * m22)
+            c22 = i12 * (i12 * m11 + i22 * m12) + i22 * (i12 * m12 + i22 * m22)
     else:
         v = weight * inv_var
         b11, b12, b22 = (gsum(g, v * t, m) for t in (gx * gx, gx * gy, gy * gy))

@@ -32,11 +32,11 @@ _ROUNDING = {
     "point_area_m2": 0,
     "area_ratio": 4,
     "distance_m": 1,
-    "azimuth_deg": 1,
-    "expected_bearing_deg": 1,
+    "azimuth_true_deg": 1,
+    "expected_bearing_true_deg": 1,
     "crossing_deg": 1,
     "from_last_m": 1,
-    "from_last_deg": 1,
+    "from_last_true_deg": 1,
     "east_m": 1,
     "north_m": 1,
     "next_sd_deg": 3,
@@ -84,7 +84,7 @@ def plan_meta(plan: Plan) -> dict:
             "reference_lat": plan.reference_lat,
             "reference_lon": plan.reference_lon,
         }.items()
-    } | {"notes": list(plan.notes)}
+    } | {"norths": {k: float(v) for k, v in plan.norths.items()}, "notes": list(plan.notes)}
 
 
 def cell_rings(plan: Plan):
@@ -166,7 +166,11 @@ def write_plan_geojson(plan: Plan, path) -> None:
 def write_plan_csv(plan: Plan, path) -> None:
     """The ranked spots as CSV, with the plan's caution in a last column."""
     t = plan.table.copy()
-    for c, nd in _ROUNDING.items():
+    rounding = dict(_ROUNDING)
+    for north in plan.norths:      # the directions in the sheet's own north, and the offset they took
+        rounding.update({f"{d}_{north}_deg": 1 for d in ("azimuth", "expected_bearing", "from_last")})
+        rounding["declination_deg" if north == "magnetic" else "convergence_deg"] = 2
+    for c, nd in rounding.items():
         if c in t.columns:
             t[c] = t[c].astype(float).round(nd)
     t["caution"] = PLAN_CAUTION

@@ -170,6 +170,7 @@ def locate_chunk(bearings: Bearings, *, method: str, level: float, window_min: f
             status[i] = "inconsistent" if status[i] == "ok" else status[i]
             append_reason(reasons, i, text)
 
+    _position_doubts(bearings.doubts, lines, g, status, reasons)
     has_pos = has_position(status)
     if added is not None and changed.any():
         factor = rounding.widening(g, m, sol.azimuth_from_fix_deg, sol.range_m, sol.weight, sd_given, sd)
@@ -187,6 +188,22 @@ def locate_chunk(bearings: Bearings, *, method: str, level: float, window_min: f
     notes = list(bearings.notes)
     return Fixes(table=table, bearings=bt, problems=list(bearings.problems), notes=notes, source=bearings.source,
                  likelihood=lik, azimuth_deg=sol.azimuth_from_fix_deg)
+
+
+def _position_doubts(doubts, lines, g, status, reasons):
+    """Fixes whose stations' positions rest on a reading the sheet does not settle
+    (:attr:`dfkit.observations.Bearings.doubts`): an ok fix becomes ``ambiguous``, and each says why."""
+    if not doubts or not len(lines):
+        return
+    said: dict[int, list[str]] = {}
+    for j in np.flatnonzero(pd.Series(lines).isin(list(doubts)).to_numpy()):
+        said.setdefault(int(g[j]), []).append(doubts[int(lines[j])])
+    for i, texts in said.items():
+        if status[i] == "ok":
+            status[i] = "ambiguous"
+        more = f" (and {len(texts) - 1} more line{'s' if len(texts) > 2 else ''} of this fix the same way)" \
+            if len(texts) > 1 else ""
+        reasons[i] = texts[0] + more + (f"; {reasons[i]}" if reasons[i] else "")   # first: it is the weightiest
 
 
 def _with_fit(b, g, has_pos, sol, status):

@@ -60,7 +60,8 @@ STATUS_MEANING = {
     "shallow": "the bearing lines cross at a shallow angle; the position is weak along them",
     "long_span": "the bearings are too far apart in time; the transmitter may have moved",
     "ambiguous": "another set of the bearings fits as well at another place, outside the region, or the fix may rest "
-                 "on one wild bearing (wild_risk of 1 - level or more)",
+                 "on one wild bearing (wild_risk of 1 - level or more), or its stations' positions can be read at "
+                 "another place (a UTM zone letter S that nothing in the fix settles)",
     "too_few": "fewer than two usable bearings",
     "one_spot": "all bearings were taken from one spot",
     "parallel": "the bearing lines are parallel and do not cross",

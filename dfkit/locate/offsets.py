@@ -807,8 +807,12 @@ def sheet_offsets(table, bearings, with_position, azimuth_deg=None) -> list[Shee
     sigma = np.where(known[g], b["sd"].to_numpy(float), est_sd)
     r = b["residual_deg"].to_numpy(float)
     with np.errstate(invalid="ignore"):
-        use = (with_position[g] & (b["weight"].to_numpy(float) > 0) & (np.abs(r) <= WILD_SD * sigma)
-               & (np.abs(r) < 90.0))
+        fit = with_position[g] & (b["weight"].to_numpy(float) > 0) & (np.abs(r) < 90.0)
+        # wild bearings are judged about the sheet's median residual: a turn shared by every bearing (magnetic
+        # bearings read as true, 15° at high latitudes) can exceed WILD_SD SDs, and judged about 0 its bearings
+        # would all be left out of the very test that finds it
+        centre = float(np.median(r[fit])) if fit.any() else 0.0
+        use = fit & (np.abs(r - centre) <= WILD_SD * sigma)
     st = group_stats(b, g, m, r, az, b["range_m"].to_numpy(float), sigma, use, min_group=1, columns=cols,
                      with_lines=False)
     if st is None or not len(st.fix):

@@ -47,7 +47,7 @@ import numpy as np
 from dfkit import estimators, geodesy
 from dfkit.estimators import subsets
 from dfkit.locate.status import consistency
-from dfkit.locate.wild import wild_risk
+from dfkit.locate.wild import dropped_risk, wild_risk
 from dfkit.policy import INCONSISTENT_P, PLAUSIBLE_SD_DEG, WILD_SHARE
 from dfkit.regions import region_threshold
 
@@ -136,11 +136,8 @@ def find_rivals(lat, lon, theta, sd, g, counts, sol, lik, level, examine, known_
     region = _fix_region(g, m, sol, lik, level, kdof)
     with np.errstate(divide="ignore", invalid="ignore"):
         full_weight = 1.0 / np.radians(np.asarray(sd, float)) ** 2
-    wild = wild_risk(g, m, sol, look & sol.sd_known, region, wild_share, full_weight)
-    risky = np.flatnonzero(wild.risk >= 1.0 - float(level))
-    # what carries most of a flagged fix's risk: a bearing (>= 0), or -2 for all its bearings together
-    chosen = np.full(m, -1)
-    chosen[risky] = wild.left_out[risky]
+    wild = wild_risk(g, m, sol, look & sol.sd_known, region, wild_share)
+    chosen = _chosen(wild, level)
     picked_bearing = np.zeros(len(g), bool)
     picked_bearing[chosen[chosen >= 0]] = True
     # Alternatives: each fix without each bearing in turn (but not the one set the fit itself uses), and whole
@@ -157,6 +154,12 @@ def find_rivals(lat, lon, theta, sd, g, counts, sol, lik, level, examine, known_
     v_fix, v_out, mo, mb = var.fix, var.left_out, var.owner, var.member
     fl = None if sd_floor is None else np.asarray(sd_floor, float)[mb]
     alt = estimators.solve(lat[mb], lon[mb], theta[mb], mo, k, sd[mb], method="mle", sd_floor_deg=fl)
+    # fixes whose fit dropped a line: their wild risk, the alternatives' steps started at these exact answers
+    one_out = look & sol.sd_known & (n_used < counts)
+    if one_out.any():
+        start_x, start_y = _starts(sol, used, g, alt, v_fix, v_out, one_out)
+        dropped_risk(g, m, sol, one_out, region, wild_share, full_weight, start_x, start_y, wild)
+        chosen = _chosen(wild, level)
     _, p = consistency(alt, mo, k)
     with np.errstate(invalid="ignore"):
         plausible = alt.converged & ~alt.behind & np.where(
@@ -187,6 +190,34 @@ def find_rivals(lat, lon, theta, sd, g, counts, sol, lik, level, examine, known_
         rv.by_risk = True
         rv.settled = bool(np.isfinite(rv.distance_m) and rv.distance_m <= reach[i])
     return rivals, wild.risk
+
+
+def _chosen(wild, level):
+    """Per fix, what carries most of a flagged fix's wild risk: a bearing (>= 0), -2 for all its bearings together,
+    or -1 (not flagged)."""
+    chosen = np.full(len(wild.risk), -1)
+    with np.errstate(invalid="ignore"):
+        risky = np.flatnonzero(wild.risk >= 1.0 - float(level))
+    chosen[risky] = wild.left_out[risky]
+    return chosen
+
+
+def _starts(sol, used, g, alt, v_fix, v_out, fixes):
+    """For the fixes ``fixes`` whose fit dropped a line, the alternatives' answers in each fix's plane [m], per
+    bearing (NaN elsewhere): at a bearing k the fix's fit kept, the answer without k; at the one it dropped, the
+    answer of all its bearings."""
+    start_x, start_y = np.full(len(g), np.nan), np.full(len(g), np.nan)
+    j = np.flatnonzero(fixes[v_fix] & alt.converged & np.isfinite(alt.lat) & np.isfinite(alt.lon))
+    if not len(j):
+        return start_x, start_y
+    f = v_fix[j]
+    x, y = geodesy.to_local(sol.lat[f], sol.lon[f], alt.lat[j], alt.lon[j])
+    gone = np.full(len(sol.lat), -1)
+    gone[g[~used]] = np.flatnonzero(~used)               # a dropped bearing of each fix
+    at = np.where(v_out[j] >= 0, v_out[j], gone[f])
+    keep = at >= 0
+    start_x[at[keep]], start_y[at[keep]] = x[keep], y[keep]
+    return start_x, start_y
 
 
 def _fix_region(g, m, sol, lik, level, kdof):

@@ -31,7 +31,7 @@ import numpy as np
 import pandas as pd
 
 from dfkit.locate.fixes import WITH_POSITION, has_position, per_bearing
-from dfkit.locate.offsets import sheet_offsets, whitened_gradients
+from dfkit.locate.offsets import WHOLE_SHEET, sheet_offsets, whitened_gradients
 from dfkit.locate.status import at_minimum
 from dfkit.policy import INCONSISTENT_P
 from dfkit.regions import chi2_sf
@@ -70,6 +70,8 @@ def review(fixes):
                             f"bearings of each {off.column} with one {other}), so an offset said of one may belong to "
                             f"the other" for w in off.findings]
         warnings.extend(off.findings)
+        if off.column == WHOLE_SHEET and off.offsets:
+            warnings.extend(magnetic_read_as_true(b, has_pos, next(iter(off.offsets.values()))))
         for i, shift in off.marked.items():
             _mark(status, reasons, i, off.reason(shift, calibrated="calibration" in str(t["sd_source"].iat[i])))
     # the SD is judged on the misfit the offsets found above leave: an observer 10° off is not an SD too small
@@ -87,6 +89,39 @@ def review(fixes):
     bt = b.copy(deep=False)
     bt["fix_status"] = per_bearing(status, b["fix_id"].to_numpy(dtype=np.int64))
     return replace(fixes, table=t, bearings=bt, warnings=warnings, _regions=fixes._regions)
+
+
+#: A turn shared by every bearing is said to match the declination when within this many degrees of it (our
+#: choice: a compass read to 2°, a declination known to about 0.5°, NOAA's WMM uncertainty at mid latitudes).
+DECLINATION_MATCH_DEG = 2.0
+
+
+def magnetic_read_as_true(bearings, has_pos, turn_deg) -> list[str]:
+    """A sheet-wide note when every bearing read as true north turns by about minus the magnetic declination at the
+    fixes: the signature of compass bearings taken as true (magnetic = true - declination, east positive)."""
+    from dfkit import magnetic
+
+    b = bearings
+    g = b["fix_id"].to_numpy(dtype=np.int64)
+    true = (b["north"].astype(str).to_numpy() == "true") & has_pos[g] if "north" in b else has_pos[g]
+    if true.mean() < 0.9 or "time" not in b:
+        return []
+    t = b["time"][true]
+    when = t.dropna()
+    if not len(when):
+        return []
+    secs = np.array([when.median().timestamp()])
+    year = magnetic.decimal_year(secs)
+    if not magnetic.in_model_life(year)[0]:
+        return []
+    lat, lon = float(np.median(b["lat"][true])), float(np.median(b["lon"][true]))
+    dec = float(magnetic.declination(np.array([lat]), np.array([lon]), year).declination_deg[0])
+    if abs(dec) < 2.0 * DECLINATION_MATCH_DEG or abs(turn_deg + dec) > DECLINATION_MATCH_DEG:
+        return []
+    side = "east" if dec > 0 else "west"
+    return [f"that turn is about the magnetic declination where these bearings were taken ({abs(dec):.1f}° {side}, "
+            f"WMM2025 at {lat:.2f}, {lon:.2f}): compass bearings taken as true north read just so. If they were "
+            f"read off a magnetic compass, give --north magnetic (or a north column) and locate again"]
 
 
 def tied_columns(bearings, columns, share: float = TIED_SHARE) -> dict:

@@ -445,7 +445,7 @@ def _rival_text(rv, lines, sol, i, level=0.95):
         j, k = _lines_text(lines[rv.dropped]), lines[rv.left_out]
         return (f"two answers fit: this one, which leaves out {j}, and {where}, which leaves out line {k} instead "
                 f"({fit}; line {k} misses it by {rv.miss_deg:+.0f}°); this region does not reach the other answer: "
-                f"check {_lines_text(np.append(lines[rv.dropped], k))}, or take another bearing{tail}")
+                f"check {_lines_text(np.sort(np.append(lines[rv.dropped], k)))}, or take another bearing{tail}")
     if rv.left_out >= 0:
         k = lines[rv.left_out]
         return (f"two answers fit: this one, and {where}, where all bearings but line {k} agree ({fit}) and line "
@@ -489,16 +489,19 @@ def _dropped_wild_text(rv, lines, sol, i, level, where):
         alone = (f"with {j} and without line {k} the bearings agree on {where}, where line {k} misses by "
                  f"{rv.miss_deg:+.0f}°, {miss}" if rv.settled else
                  f"with {j} and without line {k} the bearings do not settle on one place within reach")
-        check = f"check {_lines_text(np.append(lines[rv.dropped], k))}"
+        both = _lines_text(np.sort(np.append(lines[rv.dropped], k)))
+        # one line is wild either way: the prior share cancels, only the bearings decide
+        why = f"one of {both} is off and the bearings cannot tell which"
+        check = f"check {both}"
     else:
         head = f"{j}, which the fit dropped, may be good"
         alone = (f"with it all {int(sol.n_used[i]) + len(rv.dropped)} bearings agree on {where}, {miss}" if rv.settled
                  else "with it the bearings do not settle on one place within reach")
+        why = f"with {_share(rv.wild_share)} wild (set the share with --wild-share)"
         check = f"check {j}"
-    return (f"{head}: {alone}; with {_share(rv.wild_share)} wild, the chance that the fit kept a wild line or dropped "
-            f"a good one and this region misses the transmitter is {_percent(rv.chance)} (wild_risk), at least the "
-            f"{_percent(1.0 - level)} of misses the region allows (set the share with --wild-share): {check}, or take "
-            f"another bearing from another direction")
+    return (f"{head}: {alone}; {why}: the chance that the fit kept a wild line or dropped a good one and this region "
+            f"misses the transmitter is {_percent(rv.chance)} (wild_risk), at least the {_percent(1.0 - level)} of "
+            f"misses the region allows: {check}, or take another bearing from another direction")
 
 
 def _share(q):

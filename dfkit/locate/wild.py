@@ -64,6 +64,9 @@ STEPS = 2
 #: dropped a line 1.5 SD off and kept one 42° off) lost the answer without the wild line; with 6 it was found.
 DROPPED_STEPS = 6
 
+#: Halvings of a Gauss-Newton step that would raise S, for the answers of a fix whose fit dropped a line.
+HALVINGS = 8
+
 #: Pairs (left-out bearing, other bearing) per chunk: bounds the transient memory (about 200 bytes a pair, so
 #: about 12 MB a chunk).
 CHUNK_PAIRS = 60_000
@@ -95,9 +98,8 @@ class WildRisk:
     left_out: np.ndarray
 
 
-def wild_risk(g, m, sol, weigh, region, wild_share, full_weight=None) -> WildRisk:
-    """The wild risk of the fixes ``weigh`` (bool, shape (m,)): solved with a known SD, with every bearing or with
-    one left out by the fit (:func:`_dropped_risk`).
+def wild_risk(g, m, sol, weigh, region, wild_share) -> WildRisk:
+    """The wild risk of the fixes ``weigh`` (bool, shape (m,)) solved with a known SD from every bearing.
 
     Parameters
     ----------
@@ -109,24 +111,45 @@ def wild_risk(g, m, sol, weigh, region, wild_share, full_weight=None) -> WildRis
         Per fix (S_min, bound, centre x, centre y [m]) of its likelihood-ratio region.
     wild_share : float
         Prior probability that a bearing is wild.
-    full_weight : ndarray, shape (N,), optional
-        Each bearing's full weight 1 / SD^2 [1/rad^2]: needed for the bearings the fit left out (their own
-        weights are 0).
+
+    Returns
+    -------
+    WildRisk
+        NaN (and -1) for the fixes not weighed; :func:`dropped_risk` fills in those whose fit dropped a line.
+    """
+    used = sol.weight > 0
+    whole = weigh & (np.bincount(g, used, minlength=m) == np.bincount(g, minlength=m))
+    # with no prior share nothing is weighed
+    out = WildRisk(np.where(whole & (wild_share > 0), 0.0, np.nan), np.full(m, -1))
+    if wild_share > 0 and whole.any():
+        _weigh_chunks(whole[g] & used, g, m, sol, region, _prior(wild_share), out, _chunk_risk)
+    return out
+
+
+def dropped_risk(g, m, sol, weigh, region, wild_share, full_weight, start_x, start_y, out):
+    """The wild risk of the fixes ``weigh`` (bool, shape (m,)) solved with a known SD from all their bearings but
+    one d, four or more bearings a fix (:func:`_dropped_risk`), into ``out`` (a :class:`WildRisk`).
+
+    ``full_weight`` (N,): each bearing's full weight 1 / SD^2 [1/rad^2] (the fit's weight of d is 0).
+    ``start_x``, ``start_y`` (N,): where each alternative's steps start, in the fix's plane [m] (NaN where none is
+    known): at a bearing k != d, the answer of the fix without k and with d; at d, the answer of all the bearings.
+    dfkit passes the exact answers of :mod:`dfkit.locate.rivals` (Lenth's fit of each subset, from several
+    starts): from a linear start about a far answer, Gauss-Newton steps can run away from a minimum that exists.
     """
     used = sol.weight > 0
     counts = np.bincount(g, minlength=m)
-    n_used = np.bincount(g, used, minlength=m)
-    whole = weigh & (n_used == counts)
-    one_out = weigh & (n_used == counts - 1) & (counts >= 3) & (full_weight is not None)
-    # with no prior share nothing is weighed
-    out = WildRisk(np.where((whole | one_out) & (wild_share > 0), 0.0, np.nan), np.full(m, -1))
-    if wild_share <= 0 or not (whole | one_out).any():
+    one_out = weigh & (np.bincount(g, used, minlength=m) == counts - 1) & (counts >= 4)
+    if wild_share <= 0 or not one_out.any():
         return out
-    prior = np.log(wild_share / (1.0 - wild_share))
-    _weigh_chunks(whole[g] & used, g, m, sol, region, prior, out, _chunk_risk)
-    if one_out.any():
-        _weigh_chunks(one_out[g], g, m, sol, region, prior, out, _dropped_risk, full_weight)
+    out.risk[one_out], out.left_out[one_out] = 0.0, -1
+    _weigh_chunks(one_out[g], g, m, sol, region, _prior(wild_share), out, _dropped_risk, full_weight, start_x,
+                  start_y)
     return out
+
+
+def _prior(wild_share):
+    """Log prior odds of a bearing being wild."""
+    return np.log(wild_share / (1.0 - wild_share))
 
 
 def _weigh_chunks(take, g, m, sol, region, prior, out, chunk_risk, *extra):
@@ -181,16 +204,19 @@ def _chunk_risk(idx, n, g, sol, region, prior, out):
     out.left_out[f] = idx[at[has]]
 
 
-def _dropped_risk(idx, n, g, sol, region, prior, out, full_weight):
+def _dropped_risk(idx, n, g, sol, region, prior, out, full_weight, start_x, start_y):
     """The wild risk of the fixes of the bearings ``idx`` (whole fixes of n bearings each) whose fit left one
     bearing d out, into ``out``.
 
     The fix is the answer of "d is wild" (Hd). Its rivals are "every bearing is good" (H0: the fit need not have
     dropped d) and "bearing k is wild" for each k != d (the fit dropped a good line and kept the wild one). They are
     weighed as in :func:`_chunk_risk`, against H0's evidence by Laplace's method at the minimum of S over all n
-    bearings, which here is not the fix; H0 counts only when plausible by the same chi-square rule, Hd always (it
-    is the answer given). The region is drawn for Hd, so Hd costs nothing; the risk is the chance of H0 and of
-    each other Hk times the share of its Gaussian outside the region.
+    bearings, which here is not the fix. Each answer's steps start at ``start_x``, ``start_y`` where given (else H0's
+    at the fix, each Hk at its linear leave-one-out answer about H0's); H0's start at the fix too, and the lower S
+    of the two is kept. Hd always counts (it is the answer given); a rival counts when it is plausible by the
+    chi-square rule, or fits at least as well as Hd (when Hd itself fails the rule, a one-sided cut would
+    favour it). The region is drawn for Hd, so Hd costs nothing; the risk is the chance of H0 and of each other
+    Hk times the share of its Gaussian outside the region.
     """
     fid = g[idx[::n]]
     nf = len(fid)
@@ -205,9 +231,18 @@ def _dropped_risk(idx, n, g, sol, region, prior, out, full_weight):
     phi = wrap_pi(np.arctan2(-sx, -sy) + np.radians(sol.residual_deg[idx]))
     reach = 2.0 * rows(d).max(1)
     del d, az
-    zero, one = np.zeros(nf), np.ones(nf)
-    # H0: the minimum of S over all n bearings, from the fix
-    s0, hx, hy, J0, res0 = _minimum(None, nf, v, sx, sy, phi, zero, zero, steps=DROPPED_STEPS, row=n, settle=True)
+    r_at = wrap_pi(phi - np.arctan2(-sx, -sy))               # residuals at the fix
+    s_fix = _rows_added(rows(np.where(dropped, 0.0, v * r_at * r_at)))     # Hd's S, at its answer
+    ex, ey = start_x[idx], start_y[idx]
+    # H0: the minimum of S over all n bearings, from the fix and from the given start; the lower S is kept
+    zero = np.zeros(nf)
+    h0 = _minimum(None, nf, v, sx, sy, phi, zero, zero, steps=DROPPED_STEPS, row=n, settle=True)
+    gx0, gy0 = ex[dropped], ey[dropped]
+    given = np.isfinite(gx0) & np.isfinite(gy0)
+    if given.any():
+        h0 = _lower(h0, _minimum(None, nf, v, sx, sy, phi, np.where(given, gx0, 0.0), np.where(given, gy0, 0.0),
+                                 steps=DROPPED_STEPS, row=n, settle=True), n)
+    s0, hx, hy, J0, res0 = h0
     det0 = J0[0] * J0[2] - J0[1] * J0[1]
     # where H0's steps ran away (a line far off pulls them), H0 does not count and its terms at the fix serve as
     # the reference the odds are taken against (any finite one cancels)
@@ -215,29 +250,32 @@ def _dropped_risk(idx, n, g, sol, region, prior, out, full_weight):
         lost_h0 = ~(np.isfinite(s0) & np.isfinite(det0) & (det0 > 0) & np.isfinite(hx) & np.isfinite(hy))
     if lost_h0.any():
         at = _information_rows(n, v, sx, sy)
-        r_at = wrap_pi(phi - np.arctan2(-sx, -sy))
-        s_at = _rows_added((v * r_at * r_at).reshape(nf, n))
+        s_at = _rows_added(rows(v * r_at * r_at))
         s0, hx, hy = np.where(lost_h0, s_at, s0), np.where(lost_h0, 0.0, hx), np.where(lost_h0, 0.0, hy)
         J0 = tuple(np.where(lost_h0, a, b) for a, b in zip(at, J0))
         det0 = J0[0] * J0[2] - J0[1] * J0[1]
         res0 = np.where(np.repeat(lost_h0, n), r_at, res0)
     j_reg = _information_rows(n, sol.region_weight[idx], sx, sy)
-    # each Hk from the linear leave-one-out answer about H0's
+    # each Hk from its given start, else from the linear leave-one-out answer about H0's; Hd from the fix itself
     hxr, hyr = np.repeat(hx, n), np.repeat(hy, n)
     lx, ly = _linear_start(n, J0, v, sx - hxr, sy - hyr, phi)
+    has = np.isfinite(ex) & np.isfinite(ey)
+    x0 = np.where(dropped, 0.0, np.where(has, ex, lx + hxr))
+    y0 = np.where(dropped, 0.0, np.where(has, ey, ly + hyr))
+    also = (np.where(dropped, 0.0, lx + hxr), np.where(dropped, 0.0, ly + hyr)) if has.any() else None
     s_min, bound, cx, cy = region
     fixes = (s0, det0, reach, j_reg, s_min[fid], bound[fid], cx[fid], cy[fid])
     k, i = _pairs(len(idx), n)
-    # (Hd from the fix itself, its answer)
-    x0, y0 = np.where(dropped, 0.0, lx + hxr), np.where(dropped, 0.0, ly + hyr)
     log_odds, lost = _left_out(k, i, n - 1, np.repeat(np.arange(nf), n), v, sx, sy, phi, x0, y0, prior, fixes,
-                               always=dropped, steps=DROPPED_STEPS)
+                               always=dropped, steps=DROPPED_STEPS, at_least=s_fix, also=also)
     # H0's evidence inside the prior's disc, and its share outside the region
+    one = np.ones(nf)
     area = (j_reg[0], j_reg[1], j_reg[2], (bound - s_min)[fid], cx[fid], cy[fid])
     in_disc0, in_both0 = inside_shares(hx, hy, J0, [(one, zero, one, reach * reach, zero, zero), area])
     behind0 = rows(np.abs(res0) > np.pi / 2).any(1)
     with np.errstate(divide="ignore", invalid="ignore"):
-        ok0 = ~lost_h0 & ~behind0 & (det0 > 0) & (s0 <= _chi2_bound(np.full(nf, n - 2))) & (in_disc0 > 0)
+        limit0 = np.fmax(_chi2_bound(np.full(nf, n - 2)), s_fix)
+        ok0 = ~lost_h0 & ~behind0 & (det0 > 0) & (s0 <= limit0) & (in_disc0 > 0)
         lo0 = np.where(ok0, np.log(in_disc0), -np.inf)
         lost0 = np.where(in_disc0 > 0, 1.0 - in_both0 / in_disc0, 1.0)
     lo = rows(log_odds)
@@ -256,6 +294,23 @@ def _dropped_risk(idx, n, g, sol, region, prior, out, full_weight):
     pick = np.where(share0 > best, -2, idx[np.arange(nf) * n + top_k])
     has = fin & (np.fmax(share0, best) > 0)
     out.left_out[fid[has]] = pick[has]
+
+
+def _lower(a, b, n):
+    """Of two results of :func:`_minimum` (rows of n terms), per row the one with the lower finite S, one with no
+    line pointing away (more than 90° off) before one with."""
+    def key(r):
+        with np.errstate(invalid="ignore"):
+            fine = np.isfinite(r[0]) & np.isfinite(r[1]) & np.isfinite(r[2])
+            away = (np.abs(r[4]) > np.pi / 2).reshape(-1, n).any(1)
+        return np.where(fine, r[0] + np.where(away, np.inf, 0.0), np.nan), fine
+    ka, _ = key(a)
+    kb, fine_b = key(b)
+    with np.errstate(invalid="ignore"):
+        take_b = fine_b & ~(ka <= kb) & ~(np.isinf(kb) & np.isfinite(a[0]) & (a[0] <= b[0]))
+    pick = lambda x, y: np.where(take_b, y, x)  # noqa: E731
+    return (pick(a[0], b[0]), pick(a[1], b[1]), pick(a[2], b[2]), tuple(pick(x, y) for x, y in zip(a[3], b[3])),
+            np.where(np.repeat(take_b, n), b[4], a[4]))
 
 
 def _chunks(n_bearings):
@@ -290,10 +345,31 @@ def _minimum(gk, m, v, sx, sy, phi, x, y, steps=1, row=None, settle=False):
     below any S the lines allow.
     """
     if settle:
-        s, x, y, _, _ = _minimum(gk, m, v, sx, sy, phi, x, y, steps=steps, row=row)
-        _, _, _, J, res = _minimum(gk, m, v, sx, sy, phi, x, y, steps=1, row=row)
         add = (lambda a: _rows_added(a.reshape(-1, row))) if row else (lambda a: np.bincount(gk, a, m))
-        return np.fmax(s, add(v * res * res)), x, y, J, res
+        spread = (lambda a: np.repeat(a, row)) if row else (lambda a: a[gk])
+
+        def s_at(px, py):
+            r = wrap_pi(phi - np.arctan2(spread(px) - sx, spread(py) - sy))
+            return add(v * r * r)
+
+        s = s_at(x, y)
+        for _ in range(steps):
+            # each step halved until S falls (up to HALVINGS times): a full step can jump past an observer close to
+            # the answer, where the directions turn fast, and run away
+            _, nx, ny, _, _ = _minimum(gk, m, v, sx, sy, phi, x, y, steps=1, row=row)
+            dx, dy = nx - x, ny - y
+            t, taken = np.ones(len(s)), np.zeros(len(s), bool)
+            for _ in range(HALVINGS):
+                with np.errstate(invalid="ignore"):
+                    s_try = s_at(x + t * dx, y + t * dy)
+                    now = ~taken & (s_try < s)
+                x, y, s = np.where(now, x + t * dx, x), np.where(now, y + t * dy, y), np.where(now, s_try, s)
+                taken |= now
+                if taken.all():
+                    break
+                t = np.where(taken, t, 0.5 * t)
+        _, _, _, J, res = _minimum(gk, m, v, sx, sy, phi, x, y, steps=1, row=row)
+        return s, x, y, J, res
     if row:
         add = lambda a: _rows_added(a.reshape(-1, row))  # noqa: E731
         spread = lambda a: np.repeat(a, row)  # noqa: E731
@@ -364,22 +440,29 @@ def _linear_start(n, J, v, sx, sy, phi):
     return np.nan_to_num(x0), np.nan_to_num(y0)
 
 
-def _left_out(k, i, row, f, v, sx, sy, phi, x0, y0, prior, fixes, always=None, steps=STEPS):
+def _left_out(k, i, row, f, v, sx, sy, phi, x0, y0, prior, fixes, always=None, steps=STEPS, at_least=None,
+              also=None):
     """For one chunk of bearings (whole fixes of row + 1 bearings; ``f`` their fixes) and its pairs (k, i) of
     chunk indices, ``row`` a bearing: per left-out bearing k, (log posterior odds of Hk against H0, share of Hk's
     position outside the fix's region). ``always`` (bool per bearing): the Hk counted whatever their fit or
-    odds (the fix's own answer)."""
+    odds (the fix's own answer); ``at_least`` (per fix of the chunk): an S that passes the chi-square rule
+    whatever its bound; ``also`` (x, y per bearing): a second start for each answer's steps."""
     s0, det0, reach, j_reg, s_min, bound, cx, cy = fixes
     nb = len(f)
     # the answer after STEPS steps; its information and residuals are those of the last step's start, within a
     # step of it
     sk, xk, yk, (a11, a12, a22), res = _minimum(k, nb, v[i], sx[i], sy[i], phi[i], x0, y0, steps=steps, row=row,
                                                 settle=steps != STEPS)
+    if also is not None:        # a second start: the lower S (with no line pointing away) is kept
+        sk, xk, yk, (a11, a12, a22), res = _lower(
+            (sk, xk, yk, (a11, a12, a22), res),
+            _minimum(k, nb, v[i], sx[i], sy[i], phi[i], also[0], also[1], steps=steps, row=row, settle=True), row)
     detk = a11 * a22 - a12 * a12
     n_alt = np.full(nb, row)
     behind = (np.abs(res) > np.pi / 2).reshape(-1, row).any(1)
     with np.errstate(invalid="ignore", divide="ignore", over="ignore"):
-        plausible = (n_alt >= 2) & ~behind & (detk > 0) & (sk <= _chi2_bound(n_alt - 2))
+        limit = _chi2_bound(n_alt - 2) if at_least is None else np.fmax(_chi2_bound(n_alt - 2), at_least[f])
+        plausible = (n_alt >= 2) & ~behind & (detk > 0) & (sk <= limit)
         log_odds = (0.5 * (s0[f] - sk) + 0.5 * np.log(det0[f] / detk) - 0.5 * np.log(2.0 * np.pi * v) + prior)
     # only chances above 1e-4 count (the disc below only lowers them)
     counted = plausible & (log_odds > np.log(1e-4))

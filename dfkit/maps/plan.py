@@ -66,11 +66,12 @@ def _plan_layer_class():
     return PlanLayer
 
 
-def _rows(t, top):
+def _rows(t, top, norths=()):
     out = []
     for _, r in t[t["rank"].notna()].head(top).iterrows():
         row = {"rank": int(r["rank"]), "spot": str(r["spot"])}
-        for c in ("expected_area_m2", "area_ratio", "distance_m", "azimuth_deg", "expected_bearing_deg"):
+        for c in ("expected_area_m2", "area_ratio", "distance_m", "azimuth_true_deg", "expected_bearing_true_deg",
+                  *(f"expected_bearing_{n}_deg" for n in norths)):
             row[c] = float(r[c]) if np.isfinite(r[c]) else None
         out.append(row)
     return out
@@ -137,7 +138,8 @@ def plan_map(plan: Plan, *, title: str | None = None, top: int = TOP, **map_opti
         "notes": meta["notes"],
         "current_area_m2": meta["current_area_m2"],
         "level": plan.level,
-        "rows": _rows(t, top),
+        "rows": _rows(t, top, list(plan.norths)),
+        "norths": list(plan.norths),
         "top": int(top),
         "grid": grid,
         "band": bool(plan.bands),

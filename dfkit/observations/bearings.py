@@ -44,6 +44,10 @@ class Bearings:
     window_min : float
         The grouping window [min]: the largest gap between successive bearings of a
         fix; :func:`dfkit.locate.locate` flags fixes by it (see :meth:`fix_timing`).
+    doubts : dict of int to str
+        Input lines whose position rests on a reading the sheet does not settle (a UTM
+        zone letter S read as a band or a hemisphere only from rows of other zones), and
+        why: :func:`dfkit.locate.locate` marks their fixes ``ambiguous`` and says so.
     """
 
     table: pd.DataFrame
@@ -53,6 +57,7 @@ class Bearings:
     notes: list[str] = field(default_factory=list)
     source: str = ""
     window_min: float = DEFAULT_WINDOW_MIN
+    doubts: dict = field(default_factory=dict)
 
     @property
     def n_rejected(self) -> int:
@@ -105,7 +110,8 @@ class Bearings:
         problems = [p for p in self.problems if p.line in lines or p.line <= 1 or p.source != self.source]
         return Bearings(table=table.reset_index(drop=True), problems=problems, fix_index=fix_index,
                         n_rows=len(table) + sum(len(r) for r in fix_index["rejected_lines"]), notes=list(self.notes),
-                        source=self.source, window_min=self.window_min)
+                        source=self.source, window_min=self.window_min,
+                        doubts={k: v for k, v in self.doubts.items() if k in lines})
 
     def fix_timing(self) -> pd.DataFrame:
         """Per fix (indexed by ``fix_id``): ``span_min``, the time from its first to its last

@@ -62,6 +62,11 @@ LABEL_RUN_MIN, LABEL_RUN_MAX = 2.0, 30.0
 LABEL_MAX_CHARS, LABEL_FILLED = 20, 0.8
 
 
+#: Endings of a position column of another place (``beacon_lat``, ``spot_easting``): never fix labels, however
+#: their values run.
+_PLACE_ENDINGS = ("_lat", "_lon", "_latitude", "_longitude", "_easting", "_northing", "_utm_zone", "_mgrs")
+
+
 def label_like_columns(table, columns, used=()) -> list[str]:
     """Columns of a sheet without fix labels that look like them, each with a sentence saying why.
 
@@ -84,7 +89,7 @@ def label_like_columns(table, columns, used=()) -> list[str]:
     skip = set(KNOWN_COLUMNS) | set(used) | {"line", "line_in_sheet", "date"}
     found = []
     for c in columns:
-        if c in skip or c not in table.columns or not len(table):
+        if c in skip or c not in table.columns or not len(table) or c.endswith(_PLACE_ENDINGS):
             continue
         cells = table[c].astype(str).str.strip().to_numpy(dtype=object)
         filled = cells != ""

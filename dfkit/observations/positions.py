@@ -81,6 +81,8 @@ class Positions:
         Rows refused (by this parser or before it, when a log was passed in).
     problems : list of Problem
         Errors (rejected rows) and warnings, with line numbers and columns.
+    doubts : dict of int to str
+        Rows (by position in the table) whose position rests on a reading the evidence does not settle, and why.
     step_east_m, step_north_m : ndarray
         The step each row's position was written to, east and north [m]; 0 where not rounded
         (:mod:`dfkit.observations.precision`).
@@ -93,6 +95,7 @@ class Positions:
     south: np.ndarray
     rejected: np.ndarray
     problems: list[Problem] = field(default_factory=list)
+    doubts: dict = field(default_factory=dict)
     step_east_m: np.ndarray | None = None
     step_north_m: np.ndarray | None = None
 
@@ -219,7 +222,8 @@ def parse_positions(table: pd.DataFrame, *, prefix: str = "", station_column: st
     kind = np.where(bad, 0, p.kind)
     step_e, step_n = position_steps(p.cells, {s: kind == SOURCES.index(s) + 1 for s in ("lat/lon", "utm", "mgrs")},
                                     lat, groups, decimal_comma=decimal_comma, mgrs_square_m=p.mgrs_square)
-    return Positions(lat, lon, source, p.zone, p.south, bad, list(log.problems), step_e, step_n)
+    return Positions(lat, lon, source, p.zone, p.south, bad, list(log.problems),
+                     {i: text for i, text in p.doubts.items() if not bad[i]}, step_e, step_n)
 
 
 class _State:
@@ -244,6 +248,9 @@ class _State:
         self.letter_note: dict[int, str] = {}
         self.north_lat: dict[int, float] = {}
         self.north_lon: dict[int, float] = {}
+        # rows whose position rests on a reading the evidence does not settle (a zone letter S read by how rows of
+        # other zones write theirs): row -> why, for the fix's status (dfkit.locate marks such a fix ambiguous)
+        self.doubts: dict[int, str] = {}
         self.reference = None       # (rows, medians) of the last fix reference (see _fix_reference)
         self.boxes = None           # (rows, loose fixes) of the last fix boxes (see _loose_fixes)
         self.mgrs_square = None     # the square each MGRS row names [m] (NaN elsewhere; None: no MGRS read)
@@ -321,9 +328,10 @@ def _latlon(p: _State, decimal_comma):
     for c, cells, name in ((la, la_c, cl), (lo, lo_c, cn)):
         _note_packed(log, c, cells, name)
     with np.errstate(invalid="ignore"):
+        swapped = (f"{cl} and {cn} look swapped" if cl != cn else      # one cell holding both: its order
+                   f"the {cl} looks written longitude first; write the latitude first")
         log.reject(has & (np.abs(a) > 90) & (np.abs(o) <= 90), cl,
-                   lambda idx: [f"{a[i]:g} is not a latitude, but {o[i]:g} could be: {cl} and {cn} look swapped"
-                                for i in idx])
+                   lambda idx: [f"{a[i]:g} is not a latitude, but {o[i]:g} could be: {swapped}" for i in idx])
         log.reject(has & (np.abs(a) > 90), cl, lambda idx: [f"{a[i]:g} is outside -90..90" for i in idx])
         log.reject(has & ((o < -180) | (o > 360)), cn, lambda idx: [f"{o[i]:g} is outside -180..180" for i in idx])
         over = has & (o > 180) & (o <= 360)
@@ -422,6 +430,7 @@ def _split_combined(p: _State) -> np.ndarray:
     z = p.cells["utm_zone"]
     e, nn = p.cells["easting"], p.cells["northing"]
     refused = np.zeros(p.n, bool)
+    _whole_beside_columns(p, z, e, nn, refused)
     cand = np.flatnonzero((z != "") & (e == "") & (nn == ""))
     if not len(cand):
         return refused
@@ -436,6 +445,47 @@ def _split_combined(p: _State) -> np.ndarray:
         f"'{z[i]}' is not a UTM position dfkit can read: write zone and letter, easting and northing in one cell "
         "('16T 705900 5150600', as a GPS shows it) or in utm_zone, easting and northing columns" for i in idx])
     return refused
+
+
+def _whole_beside_columns(p: _State, z, e, nn, refused):
+    """A whole position in the zone cell on a row that also fills easting or northing: the zone alone where the
+    numbers agree (to 1 m), else refused naming both (it is a position, not a zone dfkit cannot read)."""
+    rows = np.flatnonzero((z != "") & ((e != "") | (nn != "")))
+    if not len(rows):
+        return
+    both = [i for i in rows if _MORE_THAN_ZONE.fullmatch(z[i])]
+    cz = p.name("utm_zone")
+    for i in both:
+        m = _UTM_CELL.fullmatch(z[i])
+        refused[i] = True
+        if not m:
+            p.log.reject(p.log.mask([i]), cz, (
+                f"'{z[i]}' holds more than a UTM zone: with {p.name('easting')} and {p.name('northing')} in "
+                "their own columns, the zone cell takes the zone and letter alone (like 33T)"))
+            continue
+        given = [(p.name(role), cell[i], float(m.group(g))) for role, cell, g in (("easting", e, 3),
+                                                                                    ("northing", nn, 4)) if cell[i]]
+        try:
+            same = all(abs(float(text) - value) <= 1.0 for _, text, value in given)
+        except ValueError:
+            same = False
+        if same:          # the same position twice: the zone cell gives the zone, the columns the rest
+            z[i], e[i], nn[i] = f"{m.group(1)}{m.group(2)}", m.group(3), m.group(4)
+            refused[i] = False
+            continue
+        said = " and ".join(f"{name} {_as_written(text)}" for name, text, _ in given)
+        p.log.reject(p.log.mask([i]), cz, (
+            f"'{z[i]}' is a whole UTM position, but this row also has {said}, which "
+            f"{'say' if len(given) > 1 else 'says'} otherwise: keep the position in one place (the zone cell, or "
+            "the three columns)"))
+
+
+def _as_written(text: str) -> str:
+    """A number cell as the user wrote it ('5309999', not the reader's '5309999.0')."""
+    try:
+        return f"{float(text):.10g}"
+    except ValueError:
+        return f"'{text}'"
 
 
 def _zone_and_hemisphere(p: _State):
@@ -556,7 +606,8 @@ def _utm(p: _State, decimal_comma, utm_letters, groups, track_ll):
             south[amb] = utm_letters == "hemisphere"
             decided[amb] = True
         else:
-            _resolve_s(p, rows, amb, (lat_n, lon_n, lat_s, lon_s), style, groups, track_ll, south, decided, why)
+            _resolve_s(p, rows, amb, (lat_n, lon_n, lat_s, lon_s), style, groups, track_ll, south, decided, why,
+                       zone)
             undecided = amb & ~decided
             log.reject(log.mask(rows[undecided]), cz, lambda ii: [
                 _both_readings(zc[i], lat_n[_k(rows, i)], lon_n[_k(rows, i)], lat_s[_k(rows, i)], lon_s[_k(rows, i)])
@@ -604,7 +655,7 @@ def _lon(v):
     return f"{abs(v):.2f}°{'W' if v < 0 else 'E'}"
 
 
-def _resolve_s(p, rows, amb, readings, style, groups, track_ll, south, decided, why):
+def _resolve_s(p, rows, amb, readings, style, groups, track_ll, south, decided, why, zone_of):
     """Decide ambiguous 'S' zone letters from the fix's other positions, the track, then letter habits."""
     lat_n, lon_n, lat_s, lon_s = readings
     # 1. the other positions of the row's own fix (lat/lon, MGRS, stations: already read)
@@ -629,10 +680,14 @@ def _resolve_s(p, rows, amb, readings, style, groups, track_ll, south, decided, 
             south[k], decided[k] = ds < dn, True
             why[k] = (f"'{p.cells['utm_zone'][i]}' read as {'the southern hemisphere' if ds < dn else 'latitude band S'}"
                       f": the GPS track at this time is {min(dn, ds):,.0f} km away")
-    # 3. how the other zone letters of the fix, then of the sheet, are written
+    # 3. how the other zone letters of the fix, then of the sheet in the same zone, then of the whole sheet, are
+    # written; a sheet may span continents, so a habit seen only in other zones decides the reading but leaves a
+    # doubt that the fix's status carries (dfkit.locate)
     levels = []
     if groups is not None:
         levels.append(("this fix", groups[rows]))
+    zone = np.array([int(z) for z in zone_of], np.int64)
+    levels.append(("this sheet, in the same zone,", zone))
     levels.append(("this sheet", np.zeros(len(rows), np.int64)))
     for where, g in levels:
         left = amb & ~decided
@@ -647,9 +702,23 @@ def _resolve_s(p, rows, amb, readings, style, groups, track_ll, south, decided, 
             if b != h:
                 south[k], decided[k] = h, True
                 ex = np.flatnonzero((g == g[k]) & (style == ("band" if b else "hemisphere")))[0]
-                why[k] = (f"'{p.cells['utm_zone'][rows[k]]}' read as {'latitude band S' if b else 'the southern hemisphere'}"
-                          f": {where} writes zone letters as {'latitude bands' if b else 'hemispheres'} "
-                          f"(line {p.log.lines[rows[ex]]}: '{p.cells['utm_zone'][rows[ex]]}')")
+                text = p.cells['utm_zone'][rows[k]]
+                seen = f"(line {p.log.lines[rows[ex]]}: '{p.cells['utm_zone'][rows[ex]]}')"
+                why[k] = (f"'{text}' read as {'latitude band S' if b else 'the southern hemisphere'}"
+                          f": {where} writes zone letters as {'latitude bands' if b else 'hemispheres'} {seen}")
+                if where == "this sheet":
+                    other = (lat_s[k], lon_s[k]) if b else (lat_n[k], lon_n[k])
+                    took = (lat_n[k], lon_n[k]) if b else (lat_s[k], lon_s[k])
+                    why[k] += (", but only in other zones, and a sheet can span continents: its fix is marked "
+                               "ambiguous")
+                    p.doubts[int(rows[k])] = (
+                        f"its stations' UTM zone letter S (line {p.log.lines[rows[k]]}: '{text}') was read as "
+                        f"{'latitude band S' if b else 'the southern hemisphere'} ({_lat(took[0])}, {_lon(took[1])}) "
+                        f"only because rows of other zones write their letters as {'bands' if b else 'hemispheres'} "
+                        f"{seen}; as {'the southern hemisphere' if b else 'latitude band S'} the fix would lie "
+                        f"{float(_km(took[0], took[1], other[0], other[1])):,.0f} km away, at {_lat(other[0])}, "
+                        f"{_lon(other[1])}: nothing in this fix shows which (write the zone with a hemisphere word, "
+                        "such as '19 south', or give --utm-letters band or hemisphere)")
 
 
 def _strip_checks(p, r, zone, south, E, N, lat, lon, groups):

@@ -28,6 +28,7 @@ from dfkit.observations.cells import filled as all_of
 from dfkit.observations.columns import check_columns, label_like_columns
 from dfkit.observations.grouping import fill_down, fix_identities, group_fixes, pair_codes
 from dfkit.observations.options import ReadOptions, check_options
+from dfkit.observations.lookalike import look_alike
 from dfkit.observations.positions import parse_positions, position_columns, read_places
 from dfkit.observations.repeats import repeated_rows
 from dfkit.observations.rowlog import RowLog
@@ -239,10 +240,12 @@ def read_bearings(sheet, options: ReadOptions | None = None, **kwargs) -> Bearin
             table[c] = same("", "str")
     table = table.reset_index(drop=True)
     ids, fix_index = fix_identities(fix, tag_c, log.bad, lines, ids)
+    look_alike(fix_index, ids, log)     # F1 / f1 / F01, 150.412 / 150.4120: said, kept apart
     table.insert(1, "fix_id", ids[keep])
     problems = sorted(log.problems, key=lambda p: (p.source != raw.source, p.line, p.severity != "error"))
     return Bearings(table=table, problems=problems, fix_index=fix_index, n_rows=n, notes=notes,
-                    source=raw.source, window_min=float(opts.window_min))
+                    source=raw.source, window_min=float(opts.window_min),
+                    doubts={int(lines[i]): text for i, text in pos.doubts.items() if not log.bad[i]})
 
 
 #: Columns a repeated row is compared on through their values as read (fix and tag through the fix, times,

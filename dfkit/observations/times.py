@@ -101,8 +101,12 @@ def parse_times(cells, *, tz: str | None = None, date_format: str | None = None,
     n = len(text)
     error = filled(n, "")
     empty = text == ""
+    both = None
     if dates is not None:
-        text, error = _combine_dates(text, np.asarray(dates, dtype=object))
+        dates = np.asarray(dates, dtype=object)
+        text, error = _combine_dates(text, dates)
+        # a time cell with its own date beside a date cell: the two must agree (checked once both are read)
+        both = (error == "") & (dates != "") & (text != "") & (text == np.asarray(cells, dtype=object))
         fine = error == ""
         empty = (text == "") & fine
         todo = ~empty & fine
@@ -142,6 +146,9 @@ def parse_times(cells, *, tz: str | None = None, date_format: str | None = None,
         out[todo] = secs
         error[todo] = errs
         date_only[todo] = days
+    if both is not None and (both & np.isfinite(out)).any():
+        maybe_error = True
+        _dates_agree(out, text, dates, both & np.isfinite(out), error, tz, date_format)
     lo, hi = PLAUSIBLE_YEARS
     t_lo = datetime(lo, 1, 1, tzinfo=timezone.utc).timestamp()
     t_hi = datetime(hi + 1, 1, 1, tzinfo=timezone.utc).timestamp()
@@ -173,6 +180,25 @@ def _zone(tz):
     from zoneinfo import ZoneInfo
 
     return ZoneInfo(tz)
+
+
+def _dates_agree(out, text, dates, rows, error, tz, date_format):
+    """Refuse rows whose time cell holds a date that the date column contradicts.
+
+    The date cell is read alone (as 12:00 UTC of its day); the time cell's own date may be its UTC date or, with
+    an offset of up to 14 h either way, the day before or after: a date cell outside those days disagrees."""
+    idx = np.flatnonzero(rows)
+    d = parse_times(dates[idx], tz=tz or "UTC", date_format=date_format)
+    day = 86400.0
+    with np.errstate(invalid="ignore"):
+        d_day = np.floor(d.seconds / day)
+        lo = np.floor((out[idx] - 14 * 3600.0) / day)
+        hi = np.floor((out[idx] + 14 * 3600.0) / day)
+        off = np.isfinite(d_day) & ((d_day < lo) | (d_day > hi))
+    for k in np.flatnonzero(off):
+        i = idx[k]
+        error[i] = (f"the date column says '{dates[i]}', but the time cell has a date of its own, '{text[i]}', "
+                    "on another day: which is right? Keep the date in one of the two cells")
 
 
 def _combine_dates(times, dates):

@@ -66,6 +66,9 @@ class Plan:
         What the plan rests on, in words (basis, SD, weaknesses).
     problems : list of Problem
         Rejected rows and warnings of the sheet and of the spots file.
+    norths : dict
+        Each north other than true that the fix's bearings were read in (``magnetic``, ``grid``) and the
+        declination or convergence used to give the directions in it too (true = that north + offset). [°]
     """
 
     table: pd.DataFrame
@@ -83,6 +86,7 @@ class Plan:
     bands: list = field(default_factory=list)
     notes: list[str] = field(default_factory=list)
     problems: list[Problem] = field(default_factory=list)
+    norths: dict = field(default_factory=dict)
     caution: str = PLAN_CAUTION
 
     @property
@@ -222,6 +226,8 @@ def plan_next_bearing(
     )
     if len(spot_table) and table["rank"].isna().all():
         notes.append("no spot could be ranked (see the note column)")
+    table, norths, north_notes = in_sheet_norths(table, fb)
+    notes += north_notes
     return Plan(
         table=table,
         fixes=fixes,
@@ -238,7 +244,65 @@ def plan_next_bearing(
         bands=where.bands,
         notes=notes,
         problems=problems,
+        norths=norths,
     )
+
+
+#: The directions of a plan's table, each in true north (``<name>_true_deg``).
+DIRECTIONS = ("azimuth", "expected_bearing", "from_last")
+
+#: The column of the bearings table that holds each north's offset from true (true = as read + offset).
+_OFFSET = {"magnetic": "declination", "grid": "convergence"}
+
+
+def in_sheet_norths(table: pd.DataFrame, fb: pd.DataFrame):
+    """The plan's directions also in the north the fix's bearings were read in, where that is not true north.
+
+    A magnetic bearing was read as ``true = magnetic + D`` and a grid bearing as ``true = grid + gamma``
+    (:mod:`dfkit.observations.north`); the plan's true directions are turned back by the same D (or gamma):
+    the mean of the values applied to this fix's bearings of that north. Adds ``<direction>_<north>_deg``
+    and ``declination_deg`` (or ``convergence_deg``) columns before ``east_m``.
+
+    Returns
+    -------
+    (table, norths, notes)
+        ``norths`` maps each such north to the offset used [°].
+    """
+    norths: dict[str, float] = {}
+    notes: list[str] = []
+    if not len(fb) or "north" not in fb.columns:
+        return table, norths, notes
+    said = fb["north"].astype(str).to_numpy()
+    for north, col in _OFFSET.items():
+        rows = said == north
+        if not rows.any() or col not in fb.columns:
+            continue
+        vals = fb[col].to_numpy(float)[rows]
+        vals = vals[np.isfinite(vals)]
+        if not len(vals):
+            continue
+        off = float(np.mean(vals))
+        norths[north] = off
+        at = list(table.columns).index("east_m") if "east_m" in table.columns else len(table.columns)
+        for name in DIRECTIONS:
+            true = table[f"{name}_true_deg"].to_numpy(float) if f"{name}_true_deg" in table.columns else None
+            if true is None:
+                continue
+            table.insert(at, f"{name}_{north}_deg", wrap360(true - off))
+            at += 1
+        table.insert(at, f"{col}_deg", np.where(np.isfinite(table["lat"].to_numpy(float)), off, np.nan))
+        lines = fb["line"].to_numpy()[rows]
+        what = "declination" if north == "magnetic" else "grid convergence"
+        spread = (f", the mean of {np.min(vals):.2f}° to {np.max(vals):.2f}°" if np.ptp(vals) >= 0.005 else "")
+        notes.append(
+            f"directions are in true north (columns *_true_deg) and, as {int(rows.sum())} of the fix's "
+            f"{len(fb)} bearings were {north} (line{'s' if len(lines) > 1 else ''} "
+            f"{', '.join(str(x) for x in lines[:6])}{' ...' if len(lines) > 6 else ''}), in {north} north too "
+            f"(*_{north}_deg): {north} = true - {off:.2f}°, the {what} dfkit applied to those bearings{spread}"
+        )
+    if not norths:
+        notes.append("directions are in true north (columns *_true_deg), as the fix's bearings were")
+    return table, norths, notes
 
 
 def _ranked_table(where: _Where, spot_table, expected, current, sds: _SDs, row, level, min_distance_m):
@@ -303,12 +367,12 @@ def _ranked_table(where: _Where, spot_table, expected, current, sds: _SDs, row, 
             "expected_area_m2": (expected if sds.known else hide)[order],
             "area_ratio": ratio[order],
             "distance_m": dist[order],
-            "azimuth_deg": np.where(at_ref, np.nan, wrap360(az_ref))[order],
-            "expected_bearing_deg": np.where(at_ref, np.nan, wrap360(az_back))[order],
+            "azimuth_true_deg": np.where(at_ref, np.nan, wrap360(az_ref))[order],
+            "expected_bearing_true_deg": np.where(at_ref, np.nan, wrap360(az_back))[order],
             "crossing_deg": crossing[order],
             "point_area_m2": (point if sds.known else hide)[order],
             "from_last_m": walk[order],
-            "from_last_deg": wrap360(walk_az)[order],
+            "from_last_true_deg": wrap360(walk_az)[order],
             "east_m": x_ref[order],
             "north_m": y_ref[order],
             "line": spot_table["line"].to_numpy(dtype=object)[order],

@@ -23,12 +23,12 @@ PLAN_COLUMNS = [
     "expected_area_m2",
     "area_ratio",
     "distance_m",
-    "azimuth_deg",
-    "expected_bearing_deg",
+    "azimuth_true_deg",
+    "expected_bearing_true_deg",
     "crossing_deg",
     "point_area_m2",
     "from_last_m",
-    "from_last_deg",
+    "from_last_true_deg",
     "east_m",
     "north_m",
     "line",
@@ -44,7 +44,9 @@ PLAN_COLUMNS = [
 MAX_SPOTS = 20_000
 
 #: Column names a spots file cannot carry under their own name (they become ``spot_<name>``).
-RESERVED_COLUMNS = set(PLAN_COLUMNS) | {"kind", "caution", "score"}
+RESERVED_COLUMNS = set(PLAN_COLUMNS) | {"kind", "caution", "score", "declination_deg", "convergence_deg"} | {
+    f"{d}_{n}_deg" for d in ("azimuth", "expected_bearing", "from_last") for n in ("magnetic", "grid")
+}
 
 
 @dataclass

@@ -158,3 +158,11 @@ def test_unlabelled_rows_whose_times_all_fail_are_reported_not_a_crash(write_she
                                   "12.09.2026 10:07,47.86,15.19,149\n"))
     assert set(errors(b)) == {2, 3} and "usually day-first" in errors(b)[2]
     assert len(b.fix_index) == 0 and len(b.table) == 0
+
+
+def test_a_position_cell_written_longitude_first_is_named_as_one_cell(write_sheet):
+    # One cell holds both numbers: the message names its order, not a column swapped with itself.
+    b = read_bearings(write_sheet('fix,position,bearing\nG,"-91.796515, 47.913286",190\n'))
+    errs = errors(b)
+    assert set(errs) == {2}
+    assert "position and position" not in errs[2] and "longitude first" in errs[2]

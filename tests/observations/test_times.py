@@ -125,6 +125,22 @@ def test_a_separate_date_column(write_sheet):
     assert b.table["time"][1].to_pydatetime() == utc(2026, 5, 3, 12, 0)
 
 
+def test_a_date_column_that_contradicts_the_time_cell_is_refused(write_sheet):
+    # A time cell with its own date beside a date cell of another day: which is meant cannot be known. A date
+    # one day off is allowed only where an offset (up to 14 h) could put the cell's local date there.
+    sheet = ("fix,date,time,lat,lon,bearing\n"
+             "B,2026-06-02,2026-06-01 06:14,47,15,45\n"          # another day: refused
+             "B,2026-06-01,2026-06-01 06:20,47,15.02,315\n"      # the same day
+             "B,01.06.2026,2026-06-01T23:30-03:00,47,15.01,200\n"  # 1 June local, 2 June UTC: the same day
+             "B,2026-06-03,2026-06-01T06:40Z,47,15.03,100\n")     # two days off: refused
+    b = read_bearings(write_sheet(sheet), tz="UTC", date_format="dmy")
+    errs = errors(b)
+    assert set(errs) == {2, 5}
+    assert "'2026-06-02'" in errs[2] and "'2026-06-01 06:14'" in errs[2]
+    assert b.table["time"][0].to_pydatetime() == utc(2026, 6, 1, 6, 20)
+    assert b.table["time"][1].to_pydatetime() == utc(2026, 6, 2, 2, 30)
+
+
 def test_cli_options_for_times(write_sheet, capsys):
     sheet = str(write_sheet(sheet_of(["03.10.2026 16:05", "03.10.2026 16:15"])))
     assert main(["check", sheet, "--tz", "UTC"]) == 1

@@ -149,6 +149,21 @@ def test_a_whole_position_in_the_zone_cell(write_sheet):
     assert (b.table["lat"][0], b.table["lon"][0]) == pytest.approx(latlon(32633, 512300, 5301200), abs=1e-9)
 
 
+def test_a_whole_position_in_the_zone_cell_beside_easting_and_northing(write_sheet):
+    # The same position in the zone cell and the columns is read; one that disagrees is refused naming both (it is
+    # a position, not an unreadable zone); more than a zone that is no position says the zone cell takes a zone.
+    sheet = ("fix,utm,easting,northing,bearing\n"
+             "A,33T 512300 5301200,512300,5301200,45\n"
+             "A,33T 512300 5301200,512300,5309999,90\n"
+             "A,33T 5123 x,512300,5301200,135\n")
+    b = read_bearings(write_sheet(sheet))
+    errs = dict((line, m) for line, _, m in errors(b))
+    assert set(errs) == {3, 4}
+    assert "is a whole UTM position" in errs[3] and "northing 5309999," in errs[3]
+    assert "not a UTM zone" not in errs[3] and "more than a UTM zone" in errs[4]
+    assert (b.table["lat"][0], b.table["lon"][0]) == pytest.approx(latlon(32633, 512300, 5301200), abs=1e-9)
+
+
 @pytest.mark.parametrize("zone, words", [("33", "needs a letter"), ("33I", "no latitude band I"),
                                          ("61N", "1 to 60"), ("33Z", "neither"), ("x", "not a UTM zone")])
 def test_unreadable_zones(write_sheet, zone, words):
@@ -167,3 +182,43 @@ def test_mgrs_square_letters_are_consistent_with_their_band(write_sheet):
     assert (b.table["lat"][0], b.table["lon"][0]) == pytest.approx((lat, lon), abs=1e-9)
     assert 32 < lat < 40   # band S
     assert np.isfinite(b.table["true_bearing"][0])
+
+
+# Tierra del Fuego, zone 19 of the southern hemisphere: written '19S' by someone who means the hemisphere.
+FUEGO = [(-54.80, -68.30), (-54.81, -68.26), (-54.83, -68.29)]
+
+
+def test_a_band_habit_seen_only_in_other_zones_does_not_make_an_ok_fix(write_sheet):
+    # A sheet spanning continents: band letters in Spain (zone 30) say nothing sure about an '19S' in zone 19, whose
+    # two readings lie 10,000 km apart (35.5 N as band S, 54.8 S as the hemisphere; pyproj). The reading may stand,
+    # but the fix must not come out ok without a word.
+    from dfkit.locate import locate
+
+    e, n = utm(32630, *MADRID)
+    rows = [f"B,30T,{e:.1f},{n:.1f},10", f"B,30T,{e + 900:.1f},{n + 900:.1f},300",
+            f"B,30T,{e - 900:.1f},{n + 500:.1f},120"]
+    from geographiclib.geodesic import Geodesic
+
+    for k, (la, lo) in enumerate(FUEGO):
+        fe, fn = utm(32719, la, lo)
+        # bearings that meet in either reading (the same plane shape): the fix comes out ok as read
+        nla, nlo = latlon(32619, fe, fn)
+        az = Geodesic.WGS84.Inverse(nla, nlo, *latlon(32619, *utm(32719, -54.815, -68.28)))["azi1"] % 360
+        rows.append(f"F,19S,{fe:.1f},{fn:.1f},{az:.3f}")
+    b = read_bearings(write_sheet("fix,utm_zone,easting,northing,bearing\n" + "\n".join(rows) + "\n"))
+    assert errors(b) == []
+    assert sorted(b.doubts) == [5, 6, 7]
+    fixes = locate(b).table.set_index("fix")
+    assert "zone letter" not in fixes.loc["B", "reason"]
+    assert fixes.loc["F", "status"] == "ambiguous"
+    reason = fixes.loc["F", "reason"]
+    assert "'19S'" in reason and "latitude band S" in reason and "southern hemisphere" in reason
+    lat_s, _ = latlon(32719, *utm(32719, *FUEGO[0]))
+    assert f"{abs(lat_s):.2f}°S" in reason      # where the other reading puts it
+
+
+def test_a_band_habit_in_the_same_zone_leaves_no_doubt(write_sheet):
+    e, n = utm(32630, *MADRID)
+    rows = spain_rows() + [f"B,30T,{e:.1f},{n:.1f},10", f"B,30T,{e + 900:.1f},{n + 900:.1f},300"]
+    b = read_bearings(write_sheet("fix,utm_zone,easting,northing,bearing\n" + "\n".join(rows) + "\n"))
+    assert b.doubts == {}
