@@ -155,10 +155,23 @@ OUT_OF_STRIP_TYPO_M = 100_000.0
 #: An MGRS reference names a square, and dfkit uses its centre, up to half the square's diagonal from the station.
 #: References naming squares of at least the first size [m] (2 digits: 10 km; none: 100 km) are refused: the
 #: station could be 7 km or more off, farther than VHF bearings usually reach. Squares of at least the second size
-#: (4 digits: 1 km, up to 707 m off) are read with a warning: the fix's region does not carry that error.
+#: (4 digits: 1 km, up to 707 m off) are read with a warning: with a known SD the fix's region carries
+#: the square's rounding (dfkit.locate.rounding), but a transmitter that close to an observer is poorly placed.
 #: dfkit's own rule, no source (MGRS precision by digit count: NGA.STND.0037, from memory).
 MGRS_REFUSED_SQUARE_M = 10_000.0
 MGRS_WARNED_SQUARE_M = 1_000.0
+
+#: Observer positions written to a step finer than this [m] (lat/lon to 5 decimals or more, whole UTM metres,
+#: 10-digit MGRS) count as not rounded (dfkit.observations.precision). Common practice, no source: a hand-held
+#: GPS unit is good to a few metres (from memory), an error dfkit does not model either.
+POSITION_STEP_IGNORED_M = 5.0
+#: A fix whose observers' rounding (dfkit.locate.rounding) adds less than this share to the SD of every one of its
+#: bearings (SD_pos / SD below 0.2: the SD grows by under 2 %) is solved as before, bit for bit. dfkit's own rule,
+#: no source: far below what a coverage study can see.
+ROUNDING_NEGLIGIBLE_RATIO = 0.2
+#: A fix whose region the observers' rounding widens by at least this factor (linear size) says so in its reason.
+#: dfkit's own rule, no source.
+ROUNDING_SAID_FACTOR = 1.1
 
 #: Lowest bearing SD dfkit accepts, in the sheet or as an option [°]. Common practice, no source: the
 #: best fixed DF systems reach a few tenths of a degree; 0.01° (36 arc-seconds) is beyond any DF

@@ -18,7 +18,8 @@ from dfkit.policy import (DEFAULT_TRACK_GAP_S, DEFAULT_WINDOW_MIN, MAX_TRACK_GAP
 FLAGS = {"unit": "--unit", "north": "--north", "sd": "--sd", "declination": "--declination", "tz": "--tz",
          "date_format": "--date-format", "repeated_hour": "--repeated-hour", "window_min": "--window",
          "stations": "--stations", "track": "--track", "track_gap_s": "--track-gap", "grid_crs": "--grid-crs",
-         "utm_letters": "--utm-letters", "worksheet": "--sheet", "level": "--level", "fill_labels": "--no-fill-labels"}
+         "utm_letters": "--utm-letters", "worksheet": "--sheet", "level": "--level", "fill_labels": "--no-fill-labels",
+         "position_rounding": "--position-rounding"}
 
 
 def count_text(n: int, one: str, many: str | None = None) -> str:
@@ -114,6 +115,10 @@ def add_read_options(p: argparse.ArgumentParser) -> None:
     g.add_argument("--utm-letters", choices=["auto", "band", "hemisphere"], default="auto",
                    help="UTM zone letters: latitude bands as GPS units write them (30S = 32-40N), hemispheres "
                         "(30S = south), or auto: decide from the sheet and refuse rows it cannot (default)")
+    g.add_argument("--position-rounding", choices=["auto", "none"], default="auto",
+                   help="auto: observer positions are as precise as written (lat/lon to 3 decimals: about 110 m; "
+                        "MGRS 6 digits: 100 m) and regions with a known SD allow for that (default); none: "
+                        "positions are exact whatever their digits")
     g.add_argument("--no-fill-labels", action="store_false", dest="fill_labels",
                    help="read rows without a fix label as unlabelled even where the sheet writes labels only "
                         "where a fix starts (by default such labels are filled down, with a warning)")
@@ -167,7 +172,8 @@ def read_kwargs(a) -> dict:
     return dict(unit=a.unit, north=a.north, sd=a.sd, declination=a.declination, tz=a.tz, window_min=a.window,
                 stations=a.stations, track=a.track, track_gap_s=a.track_gap, grid_crs=a.grid_crs,
                 date_format=a.date_format, repeated_hour=a.repeated_hour, utm_letters=a.utm_letters,
-                worksheet=a.worksheet, fill_labels=a.fill_labels)
+                worksheet=a.worksheet, fill_labels=a.fill_labels,
+                position_rounding=getattr(a, "position_rounding", "auto"))
 
 
 #: Warnings or notes of one kind printed one by one; more of a kind are summarised in one line after the first

@@ -74,7 +74,8 @@ FIX_LABEL_HEADER = re.compile(r"fix[_\-.]?(id|#|no\.?|nr\.?|n°|nº|num\.?|numbe
 #: says so). ``line`` is kept as ``line_in_sheet`` (the line of the original field sheet) unless that exists.
 DERIVED_COLUMNS = (
     "fix_id", "true_bearing", "sd_source", "convergence", "position_from", "grouped_by", "declination_sd",
-    "residual_deg", "weight", "range_m",
+    "residual_deg", "weight", "range_m", "position_step_east_m", "position_step_north_m",
+    "rounding_sd_deg",
 )
 
 #: Longest cell read [characters]: Python's csv module's default field limit, kept so that dfkit never changes

@@ -15,6 +15,7 @@ from dfkit.locate.fixes import FIX_COLUMNS, WITH_POSITION, Fixes, has_position, 
 from dfkit.locate.hints import one_bearing_hints
 from dfkit.locate.offsets import fix_offsets
 from dfkit.locate.resolution import fix_steps, sd_floors
+from dfkit.locate import rounding
 from dfkit.locate.rivals import find_rivals
 from dfkit.locate.status import FixFacts, append_reason, classify, p_values
 from dfkit.observations.cells import filled
@@ -78,6 +79,10 @@ def locate(bearings: Bearings, *, method: str = "mle", level: float = 0.95, wind
         from dfkit.locate.sheetwide import review
 
         fixes = review(fixes)
+    if rounding.has_steps(fixes.bearings):      # after the chunks: one note for the whole sheet
+        text = rounding.note(fixes)
+        if text:
+            fixes.notes.append(text)
     return fixes
 
 
@@ -105,6 +110,16 @@ def locate_chunk(bearings: Bearings, *, method: str, level: float, window_min: f
 
     say(f"solving {m} fixes from {len(b)} bearings ({method})")
     sol = estimators.solve(lat, lon, theta, g, m, sd, method=method, robust_c=robust_c, sd_floor_deg=floor)
+    # observer positions written to a coarse step: with a known SD, each bearing's SD takes in its observer's
+    # rounding across the line of sight at the fix, and those fixes are solved again (dfkit.locate.rounding)
+    added = None
+    if len(b) and rounding.has_steps(b):
+        sd_used, added, changed = rounding.widened_sd(sd, b, g, m, sol)
+        if changed.any():
+            say("solving again with the observers' rounding")
+            sol = estimators.solve(lat, lon, theta, g, m, sd_used, method=method, robust_c=robust_c,
+                                   sd_floor_deg=floor)
+            sd_given, sd = sd, sd_used
     # an SD measured on a finite number of beacon trials (per-bearing sd_dof, dfkit.calibration) widens the
     # regions: F(2, sd_dof) instead of chi-square
     cal_dof = np.full(m, np.inf)
@@ -150,16 +165,26 @@ def locate_chunk(bearings: Bearings, *, method: str, level: float, window_min: f
     del facts       # what classify worked out over every bearing is not needed again: freed before the table is made
 
     # an observer, team, antenna or receiver whose bearings in this fix read off the others (dfkit.locate.offsets)
-    for i, text in fix_offsets(b, g, m, sol).items():
+    for i, text in fix_offsets(b if added is None else b.assign(sd=sd), g, m, sol).items():
         if status[i] in WITH_POSITION and i not in hints:     # a named wild line explains the misfit better
             status[i] = "inconsistent" if status[i] == "ok" else status[i]
             append_reason(reasons, i, text)
 
     _position_doubts(bearings.doubts, lines, g, status, reasons)
     has_pos = has_position(status)
+    if added is not None and changed.any():
+        factor = rounding.widening(g, m, sol.azimuth_from_fix_deg, sol.range_m, sol.weight, sd_given, sd)
+        for i, text in rounding.reasons(b, g, m, changed, factor, has_pos).items():
+            append_reason(reasons, i, text)
     table = _table(bearings, sol, ell, lik, status, reasons, counts, span_min, tmid, method, level, has_pos,
                    wild_risk)
+    if added is not None and changed.any():
+        # the fix's SD as given (the SD used per bearing, with the rounding, is in the bearings table)
+        given = np.sqrt(np.bincount(g, np.nan_to_num(sd_given) ** 2, m) / np.maximum(counts, 1))
+        table["sd_deg"] = np.where(changed & has_pos, given, table["sd_deg"].to_numpy(float))
     bt = _with_fit(b, g, has_pos, sol, status)
+    if added is not None:       # the SD used is sqrt(sd^2 + rounding_sd_deg^2); sd stays the SD given
+        bt["rounding_sd_deg"] = added
     notes = list(bearings.notes)
     return Fixes(table=table, bearings=bt, problems=list(bearings.problems), notes=notes, source=bearings.source,
                  likelihood=lik, azimuth_deg=sol.azimuth_from_fix_deg)

@@ -180,7 +180,7 @@ def without_offsets(table, bearings, found, azimuth_deg=None) -> np.ndarray:
             delta += names.map(off.offsets).fillna(0.0).to_numpy(float)
         elif off.offsets:                        # the whole sheet as one group (no observer column)
             delta += float(next(iter(off.offsets.values())))
-    sd = b["sd"].to_numpy(float)
+    sd = sd_used(b)
     with np.errstate(invalid="ignore", divide="ignore"):
         use = (b["weight"].to_numpy(float) > 0) & np.isfinite(r) & (sd > 0) & (b["range_m"].to_numpy(float) > 0)
     az = fix_azimuths(table, b, g, azimuth_deg)
@@ -203,7 +203,7 @@ def fix_misfits(table, bearings, residual_deg=None, likelihood=None):
     (:func:`dfkit.locate.status.at_minimum`: least squares stops short of it)."""
     m = len(table)
     g = bearings["fix_id"].to_numpy(dtype=np.int64)
-    sd = bearings["sd"].to_numpy(float)
+    sd = sd_used(bearings)
     use = bearings["weight"].to_numpy(float) > 0
 
     def misfit(r):
@@ -221,6 +221,15 @@ def fix_misfits(table, bearings, residual_deg=None, likelihood=None):
     known = table["sd_source"].isin(_KNOWN).to_numpy()
     dof = np.where(known & table["status"].isin(WITH_POSITION).to_numpy(), n - 2, 0).astype(int)
     return np.where(dof >= 1, S, np.nan), dof
+
+
+def sd_used(bearings) -> np.ndarray:
+    """Each bearing's SD as its fix used it: the SD given, with its observer's rounding where the fix took that in
+    (``rounding_sd_deg``, :mod:`dfkit.locate.rounding`)."""
+    sd = bearings["sd"].to_numpy(float)
+    if "rounding_sd_deg" in bearings:
+        sd = np.hypot(sd, bearings["rounding_sd_deg"].to_numpy(float))
+    return sd
 
 
 def binomial_tail(k, n, p) -> float:

@@ -20,6 +20,8 @@ from dfkit.policy import (
 
 #: Values of ``utm_letters`` (``--utm-letters``): how a zone letter that can be both is read.
 UTM_LETTERS = ("auto", "band", "hemisphere")
+#: Values of ``position_rounding`` (``--position-rounding``): whether observer positions are as precise as written.
+POSITION_ROUNDING = ("auto", "none")
 
 
 class OptionError(ValueError):
@@ -87,6 +89,11 @@ class ReadOptions:
     fill_labels : bool
         Whether fix labels written only where a fix starts are filled down (when the
         sheet shows that habit; see :mod:`dfkit.observations.grouping`).
+    position_rounding : {'auto', 'none'}
+        'auto': each observer position is as precise as it was written (lat/lon to 3
+        decimals: about 110 m; a 6-digit MGRS reference: 100 m), and a fix with a known
+        SD allows for that (:mod:`dfkit.observations.precision`, :mod:`dfkit.locate.rounding`);
+        'none': positions are exact whatever their digits (surveyed points, made-up examples).
     """
 
     unit: str = "deg"
@@ -104,6 +111,7 @@ class ReadOptions:
     utm_letters: str = "auto"
     worksheet: str | None = None
     fill_labels: bool = True
+    position_rounding: str = "auto"
 
 
 def _number(param, value):
@@ -126,6 +134,7 @@ def check_options(o: ReadOptions) -> None:
     _choice("unit", o.unit, tuple(DEGREES_PER_UNIT))
     _choice("north", o.north, ("true", "magnetic", "grid"))
     _choice("utm_letters", o.utm_letters, UTM_LETTERS)
+    _choice("position_rounding", o.position_rounding, POSITION_ROUNDING)
     if not isinstance(o.fill_labels, (bool, np.bool_)):
         raise OptionError("fill_labels", o.fill_labels, "must be True or False")
     if o.sd is not None:

@@ -40,6 +40,7 @@ from dfkit import grids
 from dfkit.io.gpx import Track
 from dfkit.observations.cells import angles, column, filled, numbers, per_value, split_position
 from dfkit.observations.groupstats import group_counts, group_medians, group_ranges
+from dfkit.observations.precision import position_steps
 from dfkit.observations.rowlog import RowLog
 from dfkit.observations.typos import describe, variants
 from dfkit.policy import (
@@ -82,6 +83,9 @@ class Positions:
         Errors (rejected rows) and warnings, with line numbers and columns.
     doubts : dict of int to str
         Rows (by position in the table) whose position rests on a reading the evidence does not settle, and why.
+    step_east_m, step_north_m : ndarray
+        The step each row's position was written to, east and north [m]; 0 where not rounded
+        (:mod:`dfkit.observations.precision`).
     """
 
     lat: np.ndarray
@@ -92,6 +96,8 @@ class Positions:
     rejected: np.ndarray
     problems: list[Problem] = field(default_factory=list)
     doubts: dict = field(default_factory=dict)
+    step_east_m: np.ndarray | None = None
+    step_north_m: np.ndarray | None = None
 
 
 def position_columns(columns, prefix: str = "", station_column: str | None = None) -> dict[str, str]:
@@ -213,8 +219,11 @@ def parse_positions(table: pd.DataFrame, *, prefix: str = "", station_column: st
     lon = np.where(bad, np.nan, p.lon)
     source = p.source.copy()
     source[bad] = ""
+    kind = np.where(bad, 0, p.kind)
+    step_e, step_n = position_steps(p.cells, {s: kind == SOURCES.index(s) + 1 for s in ("lat/lon", "utm", "mgrs")},
+                                    lat, groups, decimal_comma=decimal_comma, mgrs_square_m=p.mgrs_square)
     return Positions(lat, lon, source, p.zone, p.south, bad, list(log.problems),
-                     {i: text for i, text in p.doubts.items() if not bad[i]})
+                     {i: text for i, text in p.doubts.items() if not bad[i]}, step_e, step_n)
 
 
 class _State:
@@ -244,6 +253,7 @@ class _State:
         self.doubts: dict[int, str] = {}
         self.reference = None       # (rows, medians) of the last fix reference (see _fix_reference)
         self.boxes = None           # (rows, loose fixes) of the last fix boxes (see _loose_fixes)
+        self.mgrs_square = None     # the square each MGRS row names [m] (NaN elsewhere; None: no MGRS read)
 
     def written(self, *roles):
         """Whether the sheet has a column for any of these roles: without, their cells are '' on every row, known
@@ -364,10 +374,12 @@ def _mgrs(p: _State):
         "give at least 6 digits (a 100 m square)" for i in ii])
     p.log.warn(p.log.mask(idx[ok & ~coarse & (square >= MGRS_WARNED_SQUARE_M)]), p.name("mgrs"), lambda ii: [
         f"'{cells[i]}' names a {_square(square[_k(idx, i)])} square: its centre was used, which may be up to "
-        f"{square[_k(idx, i)] / np.sqrt(2):,.0f} m from the place meant, and the fix's region does not include that; "
+        f"{square[_k(idx, i)] / np.sqrt(2):,.0f} m from the place meant (with a known SD the fix's region allows for it); "
         "give 6 digits or more (a 100 m square) where you can" for i in ii])
     keep = ok & ~coarse
     good = idx[keep]
+    p.mgrs_square = np.full(p.n, np.nan)
+    p.mgrs_square[good] = square[keep]
     res = [r[0] for r in parsed[keep]]
     if len(good):
         p.take(good, [r[0] for r in res], [r[1] for r in res], "mgrs", [r[2] for r in res], [r[3] for r in res])

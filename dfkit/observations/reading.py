@@ -227,6 +227,11 @@ def read_bearings(sheet, options: ReadOptions | None = None, **kwargs) -> Bearin
         "declination_sd": unless_none(magnetic_rows & dec_empty, lambda: np.where(magnetic_rows & dec_empty, dec_sd,
                                                                                   np.nan)),
     }, copy=False)
+    if opts.position_rounding == "auto" and pos.step_east_m is not None and (pos.step_east_m[keep] > 0).any():
+        # observer positions written to a coarse step (dfkit.observations.precision): only then these columns,
+        # which dfkit.locate.rounding carries into each bearing's SD
+        table["position_step_east_m"] = pos.step_east_m[keep]
+        table["position_step_north_m"] = pos.step_north_m[keep]
     for c in raw.columns:
         if (c not in KNOWN_COLUMNS or c in ("observer", "antenna", "note")) and c not in table.columns:
             table[c] = own(t[c].to_numpy(dtype=object))

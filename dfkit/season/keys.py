@@ -50,7 +50,9 @@ KEY_SCHEME = "dfkit-bearing-keys-2"
 OLD_KEY_SCHEMES = ("dfkit-bearing-keys-1",)
 
 #: Normalized columns that describe the run, not the observation: never part of the content.
-_RUN_COLUMNS = {"line", "fix_id", "residual_deg", "weight", "range_m", "fix_status"}
+_RUN_COLUMNS = {"line", "fix_id", "residual_deg", "weight", "range_m", "fix_status",
+                # worked out from the positions as read, and from the fit (dfkit.locate.rounding)
+                "position_step_east_m", "position_step_north_m", "rounding_sd_deg"}
 #: Content fields with a fixed meaning, and their rounding (power of ten) for numbers.
 _NUMERIC = {"lat": 7, "lon": 7, "true_bearing": 6, "sd": 6, "declination": 6, "convergence": 6, "bearing": 6,
             "declination_sd": 6}

@@ -1,0 +1,213 @@
+"""How finely each observer position was written down: the step of its rounding, east and north, in metres.
+
+A position written to a step s (latitude and longitude to 3 decimals: s = 0.001°, about 111 m north-south; an
+MGRS reference of 6 digits: a 100 m square; a UTM easting and northing to the nearest 100 m) is somewhere in a
+cell of that size around the point read, and its error is spread evenly over the cell: SD s / sqrt(12) per axis
+(the variance of a uniform distribution over an interval of length s, as in W. F. Sheppard, Proc. London Math.
+Soc. 29, 353-380, 1898 [from memory]; :mod:`dfkit.locate.resolution` uses the same for bearings).
+:mod:`dfkit.locate.rounding` carries that into each bearing's SD.
+
+The step of each row is read from what was written, per row (a sheet may mix forms and precisions):
+
+* latitude/longitude in decimal degrees: the decimals written; degrees and minutes: the minutes' decimals (a step
+  of 10^-k / 60 degrees); degrees, minutes and seconds: the seconds' decimals (10^-k / 3600 degrees); packed
+  forms (``4751.6N``) likewise. A row takes the finer of its latitude's and longitude's steps, for both axes.
+  Where the sheet reader kept a column as numbers (a plain CSV sheet) the text is gone and the step is that of
+  the value, which keeps no trailing zeros (nor does a spreadsheet's typed number, read as its shortest text):
+  a position whose latitude and longitude both end in 0 (about 1 row in 100 at random) looks one decimal
+  coarser. So a row takes the finest step of the other rows of its fix that came from lat/lon when that is
+  exactly ten or a hundred times finer (1 row in 10,000 loses two zeros from both; a real mix of, say, 3 and 6
+  decimals is kept, one of 3 and 4 or 5 decimals is not seen), and in a fix with a row of 5 or more decimals a
+  row showing 4 decimals counts as not rounded (two lost zeros from 6 decimals: 1 row in 10,000; a real
+  4-decimal row there is off by 11 m at most).
+* UTM: the largest of 1, 10, 100 and 1000 m that both easting and northing are multiples of (a position to the
+  metre lands on multiples of 100 in both by chance once in 10,000 rows).
+* MGRS: the square its digits name (:func:`dfkit.grids.parse_mgrs`, which places the position at the square's
+  centre).
+* a station label or a GPS track: not rounded (0).
+
+Steps finer than :data:`dfkit.policy.POSITION_STEP_IGNORED_M` count as not rounded (0): below a hand-held GPS
+unit's own error, which dfkit does not model either.
+"""
+
+from __future__ import annotations
+
+import re
+
+import numpy as np
+
+from dfkit.conventions import WGS84_A, WGS84_F
+from dfkit.observations.cells import per_value
+from dfkit.policy import POSITION_STEP_IGNORED_M
+
+#: Most decimals looked for in a value: finer than 1e-7 degrees (about 1 cm) is not rounding that matters.
+MAX_DECIMALS = 7
+#: Decimals looked for in values read as numbers (see :func:`_angle_steps`).
+VALUE_DECIMALS = 5
+_E2 = WGS84_F * (2.0 - WGS84_F)
+_NUMBER = re.compile(r"\d+(?:\.\d*)?|\.\d+")
+_DEGREE_DIGITS = {"lat": 2, "lon": 3}
+_DEGREE_LIMIT = {"lat": 90.0, "lon": 360.0}
+
+
+def metres_per_degree(lat):
+    """Length of one degree of latitude (north-south) and of longitude (east-west) at latitude ``lat`` on WGS84
+    [m]: pi/180 times the meridional radius of curvature M = a (1 - e^2) / (1 - e^2 sin^2 lat)^(3/2), and times
+    N cos(lat) with the prime-vertical radius N = a / sqrt(1 - e^2 sin^2 lat) (any geodesy text; checked against
+    pyproj's Geod in the tests)."""
+    phi = np.radians(np.asarray(lat, float))
+    w = 1.0 - _E2 * np.sin(phi) ** 2
+    north = np.pi / 180.0 * WGS84_A * (1.0 - _E2) / w ** 1.5
+    east = np.pi / 180.0 * WGS84_A / np.sqrt(w) * np.cos(phi)
+    return north, east
+
+
+def decimal_step(values, max_decimals: int = MAX_DECIMALS) -> np.ndarray:
+    """The decimal step each value needs (1, 0.1, 0.01 ...; 0 where more than ``max_decimals`` are needed: not
+    rounded; NaN where the value is not finite).
+
+    >>> [float(s) for s in decimal_step([47.81, 47.816, -91.7, 12.0, 47.8165432, 47.81654321])]
+    [0.01, 0.001, 0.1, 1.0, 1e-07, 0.0]
+    """
+    v = np.abs(np.asarray(values, float))
+    step = np.where(np.isfinite(v), 0.0, np.nan)
+    # one pass over every value first: those that need more than max_decimals are done (most GPS positions)
+    rows = np.flatnonzero(_whole(v * 10.0**max_decimals))
+    v = v[rows]
+    for k in range(max_decimals + 1):
+        if not len(rows):
+            break
+        whole = _whole(v * 10.0**k)
+        step[rows[whole]] = 10.0**-k
+        rows, v = rows[~whole], v[~whole]
+    return step
+
+
+def _whole(x):
+    """Whether each (finite) value is a whole number, to the rounding of its decimal text."""
+    with np.errstate(invalid="ignore"):
+        return np.abs(x - np.round(x)) <= np.fmax(1e-6, 8.0 * np.finfo(float).eps * x)
+
+
+def angle_text_step(text: str, axis: str, decimal_comma: bool = False) -> float:
+    """The step an angle was written to, from its text [°] (NaN when the text shows none).
+
+    >>> [round(angle_text_step(t, "lat") * 3600, 3) for t in ("47.810", "47 48.6", "48°58'07.4\\"N", "4751.60N")]
+    [3.6, 6.0, 0.1, 0.6]
+    """
+    s = str(text).strip()
+    if decimal_comma:
+        s = s.replace(",", ".")
+    parts = _NUMBER.findall(s)
+    if not parts or len(parts) > 3:
+        return np.nan
+    last = parts[-1]
+    decimals = len(last.split(".", 1)[1]) if "." in last else 0
+    unit = (1.0, 60.0, 3600.0)[len(parts) - 1]
+    if len(parts) == 1:
+        whole = last.split(".", 1)[0]
+        width = _DEGREE_DIGITS[axis]
+        try:
+            value = float(last)
+        except ValueError:
+            return np.nan
+        if len(whole) > width or value > _DEGREE_LIMIT[axis]:
+            # packed degrees and minutes (DDMM.m), or with seconds (DDMMSS.s) when the degrees cannot take the rest
+            unit = 60.0 if 1 <= len(whole) - 2 <= width else 3600.0
+    return 10.0**-decimals / unit
+
+
+def _angle_steps(cells, axis, decimal_comma, rows):
+    """Step of the angle cells ``rows`` [°]: from the text where the cells are text, from the values where the
+    reader kept the column as numbers (trailing zeros lost)."""
+    if isinstance(cells, np.ndarray) and cells.dtype.kind == "f":
+        # finer than 5 decimals (1.1 m) is below the policy's limit anyway; 5 is looked for so that a position
+        # of 5 decimals that lost a trailing zero is seen as one (the fix's step is exactly ten times finer)
+        return decimal_step(cells[rows], VALUE_DECIMALS)
+    sub = np.asarray(cells, dtype=object)[rows]
+    return np.asarray(per_value(sub, lambda t: angle_text_step(t, axis, decimal_comma)), float)
+
+
+def _lost_zeros(groups, all_rows, rows, step):
+    """The trailing-zero rules for lat/lon values read as numbers (module docstring): ``rows`` (with their ``step``,
+    all > 0) among the lat/lon rows ``all_rows``; ``groups`` each row's fix (-1: none)."""
+    g = groups[rows]
+    has = g >= 0
+    if not has.any():
+        return step
+    # a fix with a row written finely (5 decimals or more): its rows showing 4 decimals lost
+    # their zeros (1 row in 100 of 5 decimals, 1 in 10,000 of 6); a real 4-decimal row there is off by 11 m at most
+    fine_fix = np.zeros(int(groups.max()) + 1 if len(groups) else 0, bool)
+    fine = np.zeros(len(groups), bool)
+    fine[all_rows] = True
+    fine[rows] = False
+    gf = groups[fine]
+    fine_fix[gf[gf >= 0]] = True
+    step = np.where(has & fine_fix[np.maximum(g, 0)] & (step <= 1.0001e-4), 0.0, step)
+    # one or two decimals fewer than the finest other row of the fix: trailing zeros lost from both coordinates
+    keep = has & (step > 0)
+    if keep.sum() > 1:
+        codes, first = np.unique(g[keep], return_inverse=True)
+        finest = np.full(len(codes), np.inf)
+        np.minimum.at(finest, first, step[keep])
+        f = np.full(len(step), np.nan)
+        f[keep] = finest[first]
+        lost = np.isclose(step, 10.0 * f, rtol=1e-9, atol=0.0) | np.isclose(step, 100.0 * f, rtol=1e-9, atol=0.0)
+        step = np.where(keep & lost, f, step)
+    return step
+
+
+def position_steps(cells: dict, kind: dict, lat, groups=None, *, decimal_comma: bool = False, mgrs_square_m=None):
+    """Each row's position step east and north [m] (0: not rounded, or finer than the policy's limit).
+
+    Parameters
+    ----------
+    cells : dict
+        The parser's text cells by role (``lat``, ``lon``, ``easting``, ``northing``), as read.
+    kind : dict
+        Masks of the rows whose position came from ``'lat/lon'``, ``'utm'`` and ``'mgrs'``.
+    lat : array_like
+        Each row's latitude [°] (for the length of a degree).
+    groups : array_like of int, optional
+        Each row's fix (-1 for none), for the trailing-zero rule of values read as numbers.
+    mgrs_square_m : array_like, optional
+        The square each MGRS row names [m] (NaN elsewhere).
+    """
+    lat = np.asarray(lat, float)
+    n = len(lat)
+    east = np.zeros(n)
+    north = np.zeros(n)
+    rows = np.flatnonzero(kind["lat/lon"])
+    if len(rows):
+        all_rows = rows
+        s_lat = _angle_steps(cells["lat"], "lat", decimal_comma, rows)
+        rows, s_lat = rows[s_lat != 0], s_lat[s_lat != 0]      # a latitude written finely: the row is not rounded
+        s_lon = _angle_steps(cells["lon"], "lon", decimal_comma, rows)
+        step = np.fmin(s_lat, s_lon)             # the finer of the two (0: not rounded; NaN: none shown)
+        shown = np.flatnonzero(step > 0)         # (most GPS positions are not: only these are looked at further)
+        rows, step = rows[shown], step[shown]
+        # (the rules hold for text too: a spreadsheet's typed numbers reach here as their shortest text, 47.81)
+        if groups is not None and len(rows):
+            step = _lost_zeros(np.asarray(groups, np.int64), all_rows, rows, step)
+        m_n, m_e = metres_per_degree(lat[rows])
+        north[rows] = step * m_n
+        east[rows] = step * m_e
+    rows = np.flatnonzero(kind["utm"])
+    if len(rows):
+        from dfkit.observations.cells import numbers
+
+        e = numbers(cells["easting"][rows], decimal_comma).values
+        nn = numbers(cells["northing"][rows], decimal_comma).values
+        step = np.zeros(len(rows))
+        for size in (10.0, 100.0, 1000.0):
+            fits = (np.abs(e / size - np.round(e / size)) < 1e-9) & (np.abs(nn / size - np.round(nn / size)) < 1e-9)
+            step = np.where(fits, size, step)
+        east[rows] = north[rows] = step
+    if mgrs_square_m is not None:
+        sq = np.asarray(mgrs_square_m, float)
+        rows = np.flatnonzero(kind["mgrs"] & np.isfinite(sq))
+        east[rows] = north[rows] = sq[rows]
+    fine = np.fmax(east, north) < POSITION_STEP_IGNORED_M
+    east[fine] = 0.0
+    north[fine] = 0.0
+    return east, north
