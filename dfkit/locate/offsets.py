@@ -807,11 +807,18 @@ def sheet_offsets(table, bearings, with_position, azimuth_deg=None) -> list[Shee
     sigma = np.where(known[g], b["sd"].to_numpy(float), est_sd)
     r = b["residual_deg"].to_numpy(float)
     with np.errstate(invalid="ignore"):
-        fit = with_position[g] & (b["weight"].to_numpy(float) > 0) & (np.abs(r) < 90.0)
-        # wild bearings are judged about the sheet's median residual: a turn shared by every bearing (magnetic
-        # bearings read as true, 15° at high latitudes) can exceed WILD_SD SDs, and judged about 0 its bearings
-        # would all be left out of the very test that finds it
-        centre = float(np.median(r[fit])) if fit.any() else 0.0
+        fit = with_position[g] & (np.abs(r) < 90.0)
+        # wild bearings are judged about the sheet's median residual, whatever the fit's weight: a turn shared by
+        # every bearing (magnetic bearings read as true, 15° at high latitudes) can exceed WILD_SD SDs, and judged
+        # about 0, or by a robust fit's weights (Andrews' drops turned lines), its bearings would be left out of
+        # the very test that finds it
+        # (only when the median lies a typical SD or more from 0: trimmed about a median a little off by chance,
+        # the pooled bearings would lean its way, and a clean sheet with many wild bearings showed a turn of 1°)
+        centre = 0.0
+        if fit.any():
+            centre = float(np.median(r[fit]))
+            if not abs(centre) >= float(np.median(sigma[fit])):
+                centre = 0.0
         use = fit & (np.abs(r - centre) <= WILD_SD * sigma)
     st = group_stats(b, g, m, r, az, b["range_m"].to_numpy(float), sigma, use, min_group=1, columns=cols,
                      with_lines=False)

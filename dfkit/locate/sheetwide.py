@@ -70,8 +70,11 @@ def review(fixes):
                             f"bearings of each {off.column} with one {other}), so an offset said of one may belong to "
                             f"the other" for w in off.findings]
         warnings.extend(off.findings)
-        if off.column == WHOLE_SHEET and off.offsets:
-            warnings.extend(magnetic_read_as_true(b, has_pos, next(iter(off.offsets.values()))))
+        turns = set(off.offsets.values())
+        if len(turns) == 1:
+            # one turn shared by every bearing (the whole sheet, or every label of a column alike); the check
+            # itself is a likelihood comparison over the whole sheet
+            warnings.extend(magnetic_read_as_true(b, turns.pop()))
         for i, shift in off.marked.items():
             _mark(status, reasons, i, off.reason(shift, calibrated="calibration" in str(t["sd_source"].iat[i])))
     # the SD is judged on the misfit the offsets found above leave: an observer 10° off is not an SD too small
@@ -91,37 +94,70 @@ def review(fixes):
     return replace(fixes, table=t, bearings=bt, warnings=warnings, _regions=fixes._regions)
 
 
-#: A turn shared by every bearing is said to match the declination when within this many degrees of it (our
-#: choice: a compass read to 2°, a declination known to about 0.5°, NOAA's WMM uncertainty at mid latitudes).
-DECLINATION_MATCH_DEG = 2.0
+#: Fewest degrees of declination worth checking a shared turn against (below, a compass mistake and a small offset
+#: look alike; our choice).
+DECLINATION_MIN_DEG = 4.0
+#: Fixes re-solved to check a shared turn against the declination (a sample of a big sheet; our choice).
+DECLINATION_CHECK_FIXES = 2000
 
 
-def magnetic_read_as_true(bearings, has_pos, turn_deg) -> list[str]:
-    """A sheet-wide note when every bearing read as true north turns by about minus the magnetic declination at the
-    fixes: the signature of compass bearings taken as true (magnetic = true - declination, east positive)."""
-    from dfkit import magnetic
+def magnetic_read_as_true(bearings, turn_deg) -> list[str]:
+    """A sheet-wide note when bearings read as true north fit much better as compass bearings: every fix (up to
+    DECLINATION_CHECK_FIXES of them) solved again by Lenth's likelihood with each bearing plus the WMM declination
+    at its station and time (magnetic = true - declination, east positive) leaves less than half the squared misfit
+    of the bearings as read. Asked when the sheet shows a turn ``turn_deg`` [°] against the declination's sign. A
+    likelihood comparison rather than the turn itself: a robust fit that drops the turned lines makes the turn it
+    shows smaller than it is."""
+    from dfkit import estimators, magnetic
 
     b = bearings
     g = b["fix_id"].to_numpy(dtype=np.int64)
-    true = (b["north"].astype(str).to_numpy() == "true") & has_pos[g] if "north" in b else has_pos[g]
-    if true.mean() < 0.9 or "time" not in b:
+    true = b["north"].astype(str).to_numpy() == "true" if "north" in b else np.ones(len(b), bool)
+    if true.mean() < 0.9:          # a sheet mostly of magnetic or grid bearings: not this mistake
         return []
-    t = b["time"][true]
-    when = t.dropna()
-    if not len(when):
+    # every fix solved, whatever its status (a robust fit may have found no answer in a turned fix)
+    sel = true & np.isfinite(b["true_bearing"].to_numpy(float)) & np.isfinite(b["lat"].to_numpy(float))
+    lat, lon = b["lat"].to_numpy(float), b["lon"].to_numpy(float)
+    at = f"at {np.median(lat[sel]):.2f}, {np.median(lon[sel]):.2f}"
+    if "time" not in b or b["time"][sel].isna().all():
+        # no time: the declination at the middle of the model's life, to say what to check
+        year, when = np.full(len(b), 0.5 * (magnetic.MODEL_START + magnetic.MODEL_END)), "mid-model, no time given"
+    else:
+        secs = b["time"].to_numpy(dtype="datetime64[s]").astype("int64").astype(float)
+        year = magnetic.decimal_year(secs)
+        sel &= np.isfinite(secs) & magnetic.in_model_life(year)
+        when = None
+    if not sel.any():
         return []
-    secs = np.array([when.median().timestamp()])
-    year = magnetic.decimal_year(secs)
-    if not magnetic.in_model_life(year)[0]:
+    fx = np.unique(g[sel])[:DECLINATION_CHECK_FIXES]
+    sel &= np.isin(g, fx)
+    dec = magnetic.declination(lat[sel], lon[sel], year[sel]).declination_deg
+    d_med = float(np.median(dec))
+    if abs(d_med) < DECLINATION_MIN_DEG or turn_deg * d_med > 0:
         return []
-    lat, lon = float(np.median(b["lat"][true])), float(np.median(b["lon"][true]))
-    dec = float(magnetic.declination(np.array([lat]), np.array([lon]), year).declination_deg[0])
-    if abs(dec) < 2.0 * DECLINATION_MATCH_DEG or abs(turn_deg + dec) > DECLINATION_MATCH_DEG:
+    codes, gg = np.unique(g[sel], return_inverse=True)
+    theta = b["true_bearing"].to_numpy(float)[sel]
+    sd = b["sd"].to_numpy(float)[sel] if "sd" in b else np.full(sel.sum(), np.nan)
+    sd = np.where(np.isfinite(sd), sd, np.nanmedian(sd) if np.isfinite(sd).any() else 5.0)
+
+    def misfit(bearing):
+        sol = estimators.solve(lat[sel], lon[sel], bearing % 360.0, gg, len(codes), sd, method="mle")
+        z = sol.residual_deg / sd
+        return float(np.nansum(np.where(sol.converged[gg], z * z, np.nan)))
+
+    as_read, as_compass = misfit(theta), misfit(theta + dec)
+    if not as_compass < 0.5 * as_read:
         return []
-    side = "east" if dec > 0 else "west"
-    return [f"that turn is about the magnetic declination where these bearings were taken ({abs(dec):.1f}° {side}, "
-            f"WMM2025 at {lat:.2f}, {lon:.2f}): compass bearings taken as true north read just so. If they were "
-            f"read off a magnetic compass, give --north magnetic (or a north column) and locate again"]
+    side = "east" if d_med > 0 else "west"
+    gain = f"their misfit falls {as_read / max(as_compass, 1e-9):.0f}-fold"
+    if when is None:
+        return [f"that turn is about the magnetic declination where these bearings were taken ({abs(d_med):.1f}° {side}, "
+                f"WMM2025 {at}): read as compass bearings, {gain}. If they were read off a magnetic compass, "
+                f"give --north magnetic (or a north column) and locate again"]
+    return [f"that turn is about the magnetic declination here ({abs(d_med):.1f}° {side}, WMM2025 {at}, {when}): "
+            f"read as compass bearings, {gain}. If they were read off a magnetic compass, give the times (a time "
+            f"column) and --north magnetic, or --declination {d_med:.1f} for the date they were taken, and locate "
+            f"again"]
 
 
 def tied_columns(bearings, columns, share: float = TIED_SHARE) -> dict:
