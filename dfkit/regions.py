@@ -1067,15 +1067,23 @@ def _series_guess(rays, psi, gap, rho, use):
     on the benchmark sheet, against 19 % from the quadratic guess)."""
     (s3, s4), dist = _taylor(rays.A, rays.C, rays.ax, rays.ay, rays.v, psi, 4, lowest=3)
     # s_2 x^2 = gap at x = rho, so the step is -x (s_3 x + s_4 x^2) / (2 s_2 + 3 s_3 x + 4 s_4 x^2), s_2 = gap / x^2
-    s3 *= rho
-    s4 *= rho
-    s4 *= rho
-    with np.errstate(divide="ignore", invalid="ignore"):
-        two_s2 = 2.0 * gap[:, None] / (rho * rho)
-        step = (s3 + s4) / (two_s2 + 3.0 * s3 + 4.0 * s4)
-    good = (np.abs(step) < 0.5) & (rho < SERIES_REACH * dist[:, None]) & use
-    step *= rho
-    return np.where(good, rho - step, rho)
+    # (rows of fixes, RAY_BLOCK rays at a time: the same operations on each element)
+    out = np.empty_like(rho)
+    reach = SERIES_REACH * dist
+    rows = max(1, RAY_BLOCK // rho.shape[1])
+    for a in range(0, len(rho), rows):
+        z = slice(a, a + rows)
+        r, s3z, s4z = rho[z], s3[z], s4[z]
+        s3z *= r
+        s4z *= r
+        s4z *= r
+        with np.errstate(divide="ignore", invalid="ignore"):
+            two_s2 = 2.0 * gap[z, None] / (r * r)
+            step = (s3z + s4z) / (two_s2 + 3.0 * s3z + 4.0 * s4z)
+        good = (np.abs(step) < 0.5) & (r < reach[z, None]) & use[z]
+        step *= r
+        out[z] = np.where(good, r - step, r)
+    return out
 
 
 def _edges(rays, rho, R, gap, curv, start=0, stop=60, state=None):
