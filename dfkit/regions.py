@@ -731,16 +731,23 @@ class _Rays:
         self.v[...] = v.T
         self._ray = np.empty((2, n, M * K))
         self.B, self.D = self._ray
-        B, D = (a.reshape(n, M, K) for a in self._ray)
+        # bearing by bearing and in blocks of fixes (small temporaries), each fix's sine and cosine repeated along
+        # its rays and the rays' tiled along the fixes: flat products, the same as the broadcast ones (whose inner
+        # loops of K elements ran at half the speed)
         rows = max(1, RAY_BLOCK // K)
-        for k in range(n):                  # bearing by bearing and in blocks of fixes: small temporaries
+        cu_t, su_t, t = np.tile(cu, rows), np.tile(su, rows), np.empty(rows * K)
+        for k in range(n):
             for a in range(0, M, rows):
-                z = slice(a, a + rows)
-                Bz, Dz, spz, cpz = B[k][z], D[k][z], sp[k, z, None], cp[k, z, None]
-                np.multiply(spz, cu, out=Bz)
-                Bz -= cpz * su
-                np.multiply(spz, su, out=Dz)
-                Dz += cpz * cu
+                e = min(M, a + rows) - a
+                spz, cpz = np.repeat(sp[k, a:a + e], K), np.repeat(cp[k, a:a + e], K)
+                Bz, Dz = self.B[k, a * K:(a + e) * K], self.D[k, a * K:(a + e) * K]
+                cuz, suz, tz = cu_t[:e * K], su_t[:e * K], t[:e * K]
+                np.multiply(spz, cuz, out=Bz)
+                np.multiply(cpz, suz, out=tz)
+                Bz -= tz
+                np.multiply(spz, suz, out=Dz)
+                np.multiply(cpz, cuz, out=tz)
+                Dz += tz
         self.su, self.cu = su, cu
         self.T = T
         self.unweighted = np.where(self.v > 0, 0.0, np.inf) if (self.v <= 0).any() else None
