@@ -1,6 +1,7 @@
 """The floor of `dfkit fix`: the least work any program must do for the same sheet, timed in the same run as dfkit.
 
     .venv/bin/python benchmarks/bench_floor.py compare [--fixes 10000,100000,250000] [--runs 3] [--loop-sample 300]
+                                                       [--loop-method trf|lm]
                                                        [--pyarrow DIR] [--dfkit-args '--jobs 2'] [--before DIR]
     .venv/bin/python benchmarks/bench_floor.py floor SHEET OUT [--columns 30] [--pyarrow DIR]   (one floor run)
 
@@ -170,10 +171,10 @@ def compare(a):
         # the per-fix optimiser loop, on the last size's fixes
         rng = np.random.default_rng(2)
         idx = rng.choice(len(lat), size=min(a.loop_sample, len(lat)), replace=False)
-        bench_fix.loop_solve(lat[0], lon[0], b[0])         # scipy's import is not part of the loop
+        bench_fix.loop_solve(lat[0], lon[0], b[0], a.loop_method)    # scipy's import is not part of the loop
         t0 = time.process_time()
         for i in idx:
-            bench_fix.loop_solve(lat[i], lon[i], b[i])
+            bench_fix.loop_solve(lat[i], lon[i], b[i], a.loop_method)
         per_fix = (time.process_time() - t0) / len(idx)
     print("| fixes | dfkit CPU s | floor CPU s | CPU ratio | dfkit wall s | floor wall s | wall ratio "
           "| dfkit peak MiB | floor peak MiB | peak ratio | scipy loop / dfkit |"
@@ -189,7 +190,7 @@ def compare(a):
         print(f"| {n_fix:,} | {_med([x[1] for x in d])} | {_med([x[1] for x in f])} | {_med(cpu_r)} "
               f"| {_med([x[0] for x in d])} | {_med([x[0] for x in f])} | {_med(wall_r)} "
               f"| {_med([x[2] for x in d])} | {_med([x[2] for x in f])} | {_med(mem_r)} | {loop:.0f}x |" + more)
-    print(f"scipy least_squares loop: {1e3 * per_fix:.2f} ms CPU per fix ({len(idx)} fixes sampled)")
+    print(f"scipy least_squares loop ({a.loop_method}): {1e3 * per_fix:.2f} ms CPU per fix ({len(idx)} fixes sampled)")
     if a.before:
         print("\n| fixes | before CPU s | after CPU s | after/before CPU | before peak MiB | after peak MiB "
               "| after/before peak |")
@@ -212,6 +213,8 @@ def main():
     c.add_argument("--fixes", default="10000,100000,250000")
     c.add_argument("--runs", type=int, default=3)
     c.add_argument("--loop-sample", type=int, default=300)
+    c.add_argument("--loop-method", default="trf", choices=["trf", "lm"],
+                   help="least_squares method of the per-fix loop: trf (scipy's default, the tables' loop) or lm")
     c.add_argument("--pyarrow", default=None, help="a folder holding pyarrow, for the floor's write only")
     c.add_argument("--dfkit-args", default="", help="more arguments for dfkit fix (e.g. '--jobs 2')")
     c.add_argument("--before", default=None, help="a folder holding another version's dfkit package, timed too")

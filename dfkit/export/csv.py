@@ -447,6 +447,8 @@ def _int_pieces(values: np.ndarray, tables: _DigitTables, negative=None, suffix:
 
 #: Most decimals :func:`_float_pieces` writes from digit tables (the fix table's coordinates have 7).
 _MAX_DECIMALS = 7
+#: Cells of a column (its first ones) whose fewest decimals :func:`_decimals` finds before the whole column's.
+_SAMPLE = 2048
 
 
 def _decimals(values: np.ndarray):
@@ -455,7 +457,16 @@ def _decimals(values: np.ndarray):
     10**-d)``, or None."""
     with np.errstate(invalid="ignore", over="ignore"):
         usable = np.isfinite(values) & ((np.abs(values) >= 1e-4) | (values == 0))
+        # the fewest decimals of a sample of the usable cells first: the column needs at least as many (a cell that
+        # does not fit d decimals in the sample does not in the column), so the column is tried from there on
+        start = 0
+        sample = values[np.flatnonzero(usable[:_SAMPLE])]
         for d in range(_MAX_DECIMALS + 1):
+            scaled = np.rint(sample * 10.0 ** d)
+            if ((scaled / 10.0 ** d == sample) & (np.abs(scaled) < 2.0 ** 52)).all():
+                break
+            start = d + 1
+        for d in range(start, _MAX_DECIMALS + 1):
             scaled = np.rint(values * 10.0 ** d)
             fits = usable & (scaled / 10.0 ** d == values) & (np.abs(scaled) < 2.0 ** 52)
             if np.array_equal(fits, usable):

@@ -47,6 +47,7 @@ directions are within 1e-7 rad of the geodesic ones. All fixes and all their bea
 from __future__ import annotations
 
 from dataclasses import dataclass
+from functools import lru_cache
 
 import numpy as np
 
@@ -417,15 +418,26 @@ def _rows_added(a):
 
 def _chi2_bound(dof):
     """Largest S whose chi-square p-value on ``dof`` degrees of freedom is at least INCONSISTENT_P (inf for no
-    degree of freedom): one quantile per distinct dof, by bisection on :func:`dfkit.regions.chi2_sf`."""
+    degree of freedom): one quantile per distinct dof, by bisection on :func:`dfkit.regions.chi2_sf`. ``dof`` an
+    array (the bound of each), or one integer (its bound, a float: a chunk of fixes of one size asks it once)."""
+    if np.ndim(dof) == 0:
+        return _chi2_bound_one(int(dof))
     out = np.full(len(dof), np.inf)
     for d in np.unique(dof[dof >= 1]).tolist():
-        lo, hi = 0.0, 10.0 * d + 100.0
-        for _ in range(60):
-            mid = 0.5 * (lo + hi)
-            lo, hi = (mid, hi) if chi2_sf(np.array([mid]), np.array([d]))[0] >= INCONSISTENT_P else (lo, mid)
-        out[dof == d] = lo
+        out[dof == d] = _chi2_bound_one(d)
     return out
+
+
+@lru_cache(maxsize=None)
+def _chi2_bound_one(d):
+    """:func:`_chi2_bound` of one integer dof (inf below 1); remembered, as every chunk of a size asks again."""
+    if d < 1:
+        return np.inf
+    lo, hi = 0.0, 10.0 * d + 100.0
+    for _ in range(60):
+        mid = 0.5 * (lo + hi)
+        lo, hi = (mid, hi) if chi2_sf(np.array([mid]), np.array([d]))[0] >= INCONSISTENT_P else (lo, mid)
+    return lo
 
 
 def _information_rows(n, v, sx, sy):
@@ -472,7 +484,8 @@ def _left_out(k, i, row, f, v, sx, sy, phi, x0, y0, prior, fixes, always=None, s
     n_alt = np.full(nb, row)
     behind = (np.abs(res) > np.pi / 2).reshape(-1, row).any(1)
     with np.errstate(invalid="ignore", divide="ignore", over="ignore"):
-        limit = _chi2_bound(n_alt - 2) if at_least is None else np.fmax(_chi2_bound(n_alt - 2), at_least[f])
+        bound = _chi2_bound(row - 2)                        # one size a chunk: one bound
+        limit = bound if at_least is None else np.fmax(bound, at_least[f])
         plausible = (n_alt >= 2) & ~behind & (detk > 0) & (sk <= limit)
         log_odds = (0.5 * (s0[f] - sk) + 0.5 * np.log(det0[f] / detk) - 0.5 * np.log(2.0 * np.pi * v) + prior)
     # only chances above 1e-4 count (the disc below only lowers them)
