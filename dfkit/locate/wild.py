@@ -484,8 +484,8 @@ def _left_out(k, i, row, f, v, sx, sy, phi, x0, y0, prior, fixes, always=None, s
     n_alt = np.full(nb, row)
     behind = (np.abs(res) > np.pi / 2).reshape(-1, row).any(1)
     with np.errstate(invalid="ignore", divide="ignore", over="ignore"):
-        bound = _chi2_bound(row - 2)                        # one size a chunk: one bound
-        limit = bound if at_least is None else np.fmax(bound, at_least[f])
+        cut = _chi2_bound(row - 2)                          # one size a chunk: one bound
+        limit = cut if at_least is None else np.fmax(cut, at_least[f])
         plausible = (n_alt >= 2) & ~behind & (detk > 0) & (sk <= limit)
         log_odds = (0.5 * (s0[f] - sk) + 0.5 * np.log(det0[f] / detk) - 0.5 * np.log(2.0 * np.pi * v) + prior)
     # only chances above 1e-4 count (the disc below only lowers them)
