@@ -156,3 +156,18 @@ def test_far_alternatives_of_a_dropped_line_fix_are_weighed(write_sheet, name):
     assert reference > 0.05                                # the case: the region misses often ...
     assert fix["wild_risk"] == pytest.approx(reference, rel=0.2)
     assert fix["status"] == "ambiguous"                    # ... and the fix is not called ok
+
+
+def test_a_rival_along_a_strip_is_not_passed_over(write_sheet):
+    # a reviewer's invented five-line fix (arc layout): without line 5 and with the dropped line 4, four lines agree
+    # within their SDs (chi-square 3.3 on 2 degrees of freedom, under the p = 0.01 bound of 9.21, scipy) but run
+    # nearly parallel, so their answer lies beyond any reach and Laplace's method cannot weigh it; a grid integral
+    # with pyproj (as above, the one-sided cut) gave that rival a chance of 0.80
+    rows = [(47.721273861, 8.851643051, 321.14388, 8), (47.717562206, 8.852082344, 329.234669, 8),
+            (47.720435643, 8.854169197, 335.876465, 3), (47.722114393, 8.8597164, 286.83826, 5),
+            (47.703481317, 8.86193297, 333.444008, 3)]
+    text = "fix,lat,lon,bearing,sd\n" + "".join(f"A,{la},{lo},{br},{sd}\n" for la, lo, br, sd in rows)
+    fix = locate(dfkit.read_bearings(write_sheet(text)), method="andrews").table.iloc[0]
+    assert fix["n_used"] == 4 and "line 4 dropped by the robust fit" in fix["reason"]
+    assert fix["status"] == "ambiguous"
+    assert "run nearly parallel" in fix["reason"] and "check lines 4 and 5" in fix["reason"]

@@ -73,7 +73,8 @@ class Rival:
     (known SD) or ``sd_deg`` its estimated SD; ``chance`` the fix's wild risk (NaN where not weighed);
     ``outside`` whether the alternative's answer lies outside the fix's region; ``wild_share`` the prior
     share of wild bearings the risk was weighed with; ``by_risk`` when only the wild risk flags the fix, and then
-    ``settled`` whether the other bearings settle on one place within the prior's reach (else no answer is named).
+    ``settled`` whether the other bearings settle on one place within the prior's reach (else no answer is named);
+    ``strip`` when it is flagged because a rival fits along a strip beyond the reach, whose chance is not weighed.
     """
 
     left_out: int
@@ -89,6 +90,7 @@ class Rival:
     wild_share: float = np.nan
     by_risk: bool = False
     settled: bool = True
+    strip: bool = False
 
 
 def find_rivals(lat, lon, theta, sd, g, counts, sol, lik, level, examine, known_dof=None, sd_floor=None,
@@ -189,6 +191,7 @@ def find_rivals(lat, lon, theta, sd, g, counts, sol, lik, level, examine, known_
         rv = rivals[i]
         rv.by_risk = True
         rv.settled = bool(np.isfinite(rv.distance_m) and rv.distance_m <= reach[i])
+        rv.strip = bool(wild.strip[i] >= 0 and not wild.risk[i] >= 1.0 - float(level))
     return rivals, wild.risk
 
 
@@ -197,8 +200,11 @@ def _chosen(wild, level):
     or -1 (not flagged)."""
     chosen = np.full(len(wild.risk), -1)
     with np.errstate(invalid="ignore"):
-        risky = np.flatnonzero(wild.risk >= 1.0 - float(level))
+        risky = wild.risk >= 1.0 - float(level)
     chosen[risky] = wild.left_out[risky]
+    # a rival that fits but runs off along a strip: not weighed, but not to be passed over either
+    strip = ~risky & (wild.strip >= 0)
+    chosen[strip] = wild.strip[strip]
     return chosen
 
 

@@ -483,6 +483,13 @@ def _dropped_wild_text(rv, lines, sol, i, level, where):
     wild one, or dropped a good line that the others agree with."""
     j = _lines_text(lines[rv.dropped])
     miss = "outside this region" if rv.outside else "inside this region, though most of what they allow lies outside it"
+    if rv.strip and rv.left_out >= 0:
+        k = lines[rv.left_out]
+        both = _lines_text(np.sort(np.append(lines[rv.dropped], k)))
+        return (f"line {k} may be the wild one rather than {j}, which the fit dropped: with {j} and without line {k} "
+                f"the other lines agree within their SDs but run nearly parallel, putting the transmitter somewhere "
+                f"along a strip that reaches beyond twice the farthest observer's range, far from this region; dfkit cannot weigh that "
+                f"chance (wild_risk leaves it out): check {both}, or take another bearing from across the strip")
     if rv.left_out >= 0:
         k = lines[rv.left_out]
         head = f"line {k} may be the wild one rather than {j}, which the fit dropped"

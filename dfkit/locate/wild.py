@@ -97,6 +97,14 @@ class WildRisk:
 
     risk: np.ndarray
     left_out: np.ndarray
+    #: per fix whose fit dropped a line, a bearing k (index) whose rival "k is wild" fits within the chi-square
+    #: rule but whose answer runs beyond the prior's reach (lines nearly parallel: a strip, not a point), so that
+    #: its chance cannot be weighed; -1 where none
+    strip: np.ndarray = None
+
+    def __post_init__(self):
+        if self.strip is None:
+            self.strip = np.full(len(self.left_out), -1)
 
 
 def wild_risk(g, m, sol, weigh, region, wild_share) -> WildRisk:
@@ -190,8 +198,8 @@ def _chunk_risk(idx, n, g, sol, region, prior, out):
     s_min, bound, cx, cy = region
     fixes = (s0, det0, reach, j_reg, s_min[fid], bound[fid], cx[fid], cy[fid])
     k, i = _pairs(len(idx), n)
-    log_odds, lost = _left_out(k, i, n - 1, np.repeat(np.arange(nf), n), v, sx, sy, phi, x0, y0, prior,
-                                       fixes)
+    log_odds, lost, _ = _left_out(k, i, n - 1, np.repeat(np.arange(nf), n), v, sx, sy, phi, x0, y0, prior,
+                                          fixes)
     with np.errstate(over="ignore", invalid="ignore"):
         odds = rows(np.where(np.isfinite(log_odds), np.exp(np.minimum(log_odds, 700.0)), 0.0))
         chance = odds / (1.0 + _rows_added(odds))[:, None]
@@ -267,8 +275,11 @@ def _dropped_risk(idx, n, g, sol, region, prior, out, full_weight, start_x, star
     s_min, bound, cx, cy = region
     fixes = (s0, det0, reach, j_reg, s_min[fid], bound[fid], cx[fid], cy[fid])
     k, i = _pairs(len(idx), n)
-    log_odds, lost = _left_out(k, i, n - 1, np.repeat(np.arange(nf), n), v, sx, sy, phi, x0, y0, prior, fixes,
-                               always=dropped, steps=DROPPED_STEPS, at_least=s_fix, also=also)
+    log_odds, lost, far = _left_out(k, i, n - 1, np.repeat(np.arange(nf), n), v, sx, sy, phi, x0, y0, prior,
+                                    fixes, always=dropped, steps=DROPPED_STEPS, at_least=s_fix, also=also)
+    far = rows(far & ~dropped & ~np.isfinite(log_odds))
+    strip = far.any(1)
+    out.strip[fid[strip]] = idx[np.arange(nf)[strip] * n + np.argmax(far[strip], axis=1)]
     # H0's evidence inside the prior's disc, and its share outside the region
     one = np.ones(nf)
     area = (j_reg[0], j_reg[1], j_reg[2], (bound - s_min)[fid], cx[fid], cy[fid])
@@ -482,6 +493,9 @@ def _left_out(k, i, row, f, v, sx, sy, phi, x0, y0, prior, fixes, always=None, s
     if always is not None:
         counted |= always & np.isfinite(log_odds)
     log_odds = np.where(counted, log_odds, -np.inf)
+    with np.errstate(invalid="ignore"):
+        # a rival that fits but whose steps ran beyond the reach (its information may have underflowed to 0)
+        far = (n_alt >= 3) & ~behind & (sk <= limit) & ~(np.hypot(xk, yk) <= reach[f])
     lost = np.ones(nb)
     w = np.flatnonzero(np.isfinite(log_odds))
     if len(w):
@@ -524,7 +538,8 @@ def _left_out(k, i, row, f, v, sx, sy, phi, x0, y0, prior, fixes, always=None, s
         if always is not None:
             counted |= always[two]
         log_odds[two] = np.where(np.isfinite(lo) & counted, lo, -np.inf)
-    return log_odds, lost
+        far[two] = False                   # weighed by the quadrature, strip or not
+    return log_odds, lost, far
 
 
 #: Two bearings left: Gauss-Hermite nodes over the first bearing (probabilists', weights summing to 1), and
