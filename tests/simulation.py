@@ -67,3 +67,25 @@ def sheet_text(sc, sd_deg=None):
 
 def distance_m(lat1, lon1, lat2, lon2):
     return np.array([WGS.Inverse(a, b, c, d)["s12"] for a, b, c, d in zip(lat1, lon1, lat2, lon2)])
+
+
+def disc_misfits(table, flat, flon, step=10.0):
+    """Each bearing's residual in SDs (lines x points) at the points of a grid of ``step`` m within twice the
+    farthest observer's range of (flat, flon) (the wild risk's prior disc): the brute-force integrals of the wild-risk
+    tests sum over these points. Geodesics by pyproj (Karney 2013), not dfkit's."""
+    import pyproj
+
+    geod = pyproj.Geod(ellps="WGS84")
+    lats, lons, brs, sds = (table[c].to_numpy(float) for c in ("lat", "lon", "true_bearing", "sd"))
+    n = len(lats)
+    _, _, ranges = geod.inv(lons, lats, np.full(n, flon), np.full(n, flat))
+    reach = 2.0 * ranges.max()
+    xs = np.arange(-reach, reach + step, step)
+    x, y = (a.ravel() for a in np.meshgrid(xs, xs))
+    disc = x * x + y * y <= reach * reach
+    x, y = x[disc], y[disc]
+    glon, glat, _ = geod.fwd(np.full(len(x), flon), np.full(len(x), flat), np.degrees(np.arctan2(x, y)),
+                             np.hypot(x, y))
+    z = [np.radians((br - geod.inv(np.full(len(glat), lo), np.full(len(glat), la), glon, glat)[0] + 180.0) % 360.0
+                    - 180.0) / np.radians(sd) for la, lo, br, sd in zip(lats, lons, brs, sds)]
+    return np.array(z), np.radians(sds)

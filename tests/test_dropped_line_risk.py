@@ -24,6 +24,8 @@ from scipy.stats import chi2
 import dfkit
 from dfkit.locate import locate
 
+from .simulation import disc_misfits
+
 GEOD = pyproj.Geod(ellps="WGS84")
 SD = 5.0
 
@@ -51,20 +53,8 @@ def _sheet(write_sheet, stations, offsets, lat0, lon0):
 
 
 def _grid_dropped_risk(b, flat, flon, d, share=0.05, step=10.0):
-    t = b.table
-    lats, lons, brs = (t[c].to_numpy(float) for c in ("lat", "lon", "true_bearing"))
-    n = len(lats)
-    _, _, ranges = GEOD.inv(lons, lats, np.full(n, flon), np.full(n, flat))
-    reach = 2.0 * ranges.max()
-    xs = np.arange(-reach, reach + step, step)
-    x, y = (a.ravel() for a in np.meshgrid(xs, xs))
-    disc = x * x + y * y <= reach * reach
-    x, y = x[disc], y[disc]
-    glon, glat, _ = GEOD.fwd(np.full(len(x), flon), np.full(len(x), flat), np.degrees(np.arctan2(x, y)),
-                             np.hypot(x, y))
-    s = np.radians(t["sd"].to_numpy(float))
-    z = np.array([np.radians((br - GEOD.inv(np.full(len(glat), lo), np.full(len(glat), la), glon, glat)[0]
-                              + 180.0) % 360.0 - 180.0) / sk for la, lo, br, sk in zip(lats, lons, brs, s)])
+    z, s = disc_misfits(b.table, flat, flon, step)
+    n = len(s)
     S = (z * z).sum(0)
     Sd = S - z[d] ** 2
     region = Sd <= Sd.min() - 2.0 * np.log(0.05)

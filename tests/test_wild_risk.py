@@ -17,6 +17,8 @@ import dfkit
 from dfkit.locate import locate
 from dfkit.locate.wild import inside_shares
 
+from .simulation import disc_misfits
+
 GEOD = pyproj.Geod(ellps="WGS84")
 SD = 5.0
 
@@ -33,28 +35,13 @@ def _sheet(write_sheet, stations, offsets, sd=SD, lat0=61.2, lon0=24.6):
 
 
 def _grid_risk(b, flat, flon, share=0.05, step=10.0):
-    t = b.table
-    lats, lons, brs, sds = (t[c].to_numpy(float) for c in ("lat", "lon", "true_bearing", "sd"))
-    _, _, ranges = GEOD.inv(lons, lats, np.full(len(lats), flon), np.full(len(lats), flat))
-    reach = 2.0 * ranges.max()
-    xs = np.arange(-reach, reach + step, step)
-    x, y = (a.ravel() for a in np.meshgrid(xs, xs))
-    disc = x * x + y * y <= reach * reach
-    x, y = x[disc], y[disc]
-    glon, glat, _ = GEOD.fwd(np.full(len(x), flon), np.full(len(x), flat), np.degrees(np.arctan2(x, y)),
-                             np.hypot(x, y))
-    s = np.radians(sds)
-    z = []
-    for la, lo, br, sk in zip(lats, lons, brs, s):
-        az, _, _ = GEOD.inv(np.full(len(glat), lo), np.full(len(glat), la), glon, glat)
-        z.append(np.radians((br - az + 180.0) % 360.0 - 180.0) / sk)
-    z = np.array(z)
+    z, s = disc_misfits(b.table, flat, flon, step)
     S = (z * z).sum(0)
     region = S <= S.min() - 2.0 * np.log(0.05)
     log_norm = -0.5 * np.log(2.0 * np.pi) - np.log(s)          # each Gaussian bearing's density [1/rad]
     e0 = np.exp(-0.5 * S + log_norm.sum()).sum()
     ek, lost = [], []
-    for k in range(len(lats)):
+    for k in range(len(s)):
         lk = np.exp(-0.5 * (S - z[k] ** 2) + log_norm.sum() - log_norm[k]) / (2.0 * np.pi)
         ek.append(lk.sum())
         lost.append(lk[~region].sum() / lk.sum())
