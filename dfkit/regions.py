@@ -813,12 +813,7 @@ class _Rays:
                     slope_z[...] = t
                 else:
                     slope_z += t
-                room = np.abs(r, out=dot)
-                np.subtract(np.pi, room, out=room)
-                s = np.sqrt(cross, out=cross)
-                s *= room
-                room += 1.0
-                s /= room
+                s = _safe_move(r, cross, room=dot, out=cross)
                 if self.unweighted is not None:
                     s += self.unweighted[k][z, None]
                 if k == 0:
@@ -860,12 +855,7 @@ class _Rays:
         slope = _rows_added(e)
         # how far the point may move before a residual can wrap past pi: a move of s turns the direction from a
         # station at distance |d| by at most s / (|d| - s)
-        room = np.abs(r, out=dot)
-        np.subtract(np.pi, room, out=room)
-        safe = np.sqrt(cross, out=r)
-        safe *= room
-        room += 1.0
-        safe /= room
+        safe = _safe_move(r, cross, room=dot, out=r)
         if self.unweighted is not None:          # bearings left out never limit the move
             safe += self.unweighted[:, :, None] if i is None else self.unweighted[:, i // self.K]
         safe = safe.min(axis=0)
@@ -930,6 +920,20 @@ class _Rays:
             b += c
         out[rest] = b > self.T[j]
         return out
+
+
+
+def _safe_move(r, d2, *, room, out):
+    """How far a point may move before a residual r [rad] of a station at squared distance d2 can wrap past pi: a
+    move of s turns the direction by at most s / (|d| - s), so s = |d| (pi - |r|) / (pi - |r| + 1). In place:
+    ``room`` is scratch, the answer is written to ``out`` (either may be the buffer of ``r`` or ``d2``, once read)."""
+    np.abs(r, out=room)
+    np.subtract(np.pi, room, out=room)
+    s = np.sqrt(d2, out=out)
+    s *= room
+    room += 1.0
+    s /= room
+    return s
 
 
 def _weighted_sum(v, r):
