@@ -86,6 +86,26 @@ def test_a_lost_trailing_zero_takes_the_fix_step(write_sheet):
     assert steps[0] == pytest.approx(0.001 * metres_per_degree(47.816)[0])
 
 
+def test_a_sheet_that_really_mixes_3_and_5_decimals_keeps_the_coarse_steps(write_sheet):
+    # 40 fixes, each with two GPS rows (5 decimals) and two rows written to 3 decimals: 80 rows 100 times coarser
+    # than their fix's finest, where chance (both coordinates losing two trailing zeros, 1 row in 10,000) gives
+    # none. They are written that way, not zeros lost: each keeps its 3-decimal step (about 111 m north-south).
+    rng = np.random.default_rng(5)
+    rows = []
+    for f in range(40):
+        lat, lon = 47.8 + rng.uniform(0, 0.1), -91.7 + rng.uniform(0, 0.1)
+        for j in range(4):
+            d = 5 if j < 2 else 3
+            rows.append(f"F{f},{lat + rng.uniform(-0.01, 0.01):.{d}f},{lon + rng.uniform(-0.01, 0.01):.{d}f},"
+                        f"{rng.uniform(0, 360):.1f},2")
+    b = dfkit.read_bearings(write_sheet("fix,lat,lon,bearing,sd\n" + "\n".join(rows) + "\n"))
+    steps = b.table["position_step_north_m"].to_numpy(float).reshape(40, 4)
+    assert (steps[:, :2] == 0).all()
+    coarse = steps[:, 2:].ravel()
+    # 3 decimals unless the value itself ends in 0 (then 2 decimals: 1 row in 100 has both coordinates so)
+    assert np.mean(np.isclose(coarse, 0.001 * metres_per_degree(47.85)[0], rtol=2e-3)) >= 0.95
+
+
 def test_no_step_columns_for_fine_positions(write_sheet):
     p = write_sheet("fix,lat,lon,bearing,sd\nA,47.816123,-91.723456,10,2\nA,47.810012,-91.700003,100,2\n"
                     "A,47.829001,-91.715002,200,2\n")

@@ -87,3 +87,11 @@ def test_an_observer_column_all_alike_still_gets_the_compass_advice(write_sheet)
     path.write_text("\n".join([rows[0] + ",observer"] + [f"{r},{'ABC'[i % 3]}" for i, r in enumerate(rows[1:])]) + "\n")
     fixes = locate_sheet(path, sd=3.0)
     assert any("give --north magnetic" in w for w in fixes.warnings)
+
+
+def test_true_bearings_taken_as_magnetic_are_named(write_sheet):
+    # true bearings read with --north magnetic: dfkit adds the declination (about 15° E there) they did not need
+    fixes = locate_sheet(_sheet(write_sheet, 0.0), sd=3.0, north="magnetic")
+    assert _turn(fixes.warnings) == pytest.approx(15.0, abs=1.5)
+    assert any("give --north true" in w for w in fixes.warnings)
+    assert not any("give --north magnetic" in w for w in fixes.warnings)

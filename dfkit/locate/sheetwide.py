@@ -74,7 +74,7 @@ def review(fixes):
         if len(turns) == 1:
             # one turn shared by every bearing (the whole sheet, or every label of a column alike); the check
             # itself is a likelihood comparison over the whole sheet
-            warnings.extend(magnetic_read_as_true(b, turns.pop()))
+            warnings.extend(north_mistake(b, turns.pop()))
         for i, shift in off.marked.items():
             _mark(status, reasons, i, off.reason(shift, calibrated="calibration" in str(t["sd_source"].iat[i])))
     # the SD is judged on the misfit the offsets found above leave: an observer 10° off is not an SD too small
@@ -101,23 +101,57 @@ DECLINATION_MIN_DEG = 4.0
 DECLINATION_CHECK_FIXES = 2000
 
 
-def magnetic_read_as_true(bearings, turn_deg) -> list[str]:
-    """A sheet-wide note when bearings read as true north fit much better as compass bearings: every fix (up to
-    DECLINATION_CHECK_FIXES of them) solved again by Lenth's likelihood with each bearing plus the WMM declination
-    at its station and time (magnetic = true - declination, east positive) leaves less than half the squared misfit
-    of the bearings as read. Asked when the sheet shows a turn ``turn_deg`` [°] against the declination's sign. A
-    likelihood comparison rather than the turn itself: a robust fit that drops the turned lines makes the turn it
-    shows smaller than it is."""
-    from dfkit import estimators, magnetic
-
+def north_mistake(bearings, turn_deg) -> list[str]:
+    """A sheet-wide note when a turn ``turn_deg`` [°] shared by every bearing looks like a north mistake: compass
+    bearings read as true north (:func:`_read_as_true`), or true bearings read as magnetic (:func:`_read_as_magnetic`).
+    Each is a likelihood comparison rather than the turn itself (a robust fit that drops the turned lines makes the
+    turn it shows smaller than it is): up to DECLINATION_CHECK_FIXES fixes solved again by Lenth's likelihood with
+    each bearing turned by the declination must leave less than half the squared misfit of the bearings as read."""
     b = bearings
+    norths = b["north"].astype(str).to_numpy() if "north" in b else np.full(len(b), "true")
+    if (norths == "true").mean() >= 0.9:
+        return _read_as_true(b, norths == "true", turn_deg)
+    if (norths == "magnetic").mean() >= 0.9 and "declination" in b:
+        return _read_as_magnetic(b, norths == "magnetic", turn_deg)
+    return []
+
+
+def _misfit_falls(b, sel, shift):
+    """(misfit as read, misfit with each bearing of ``sel`` plus ``shift`` [°]) of the fixes of ``sel`` (at most
+    DECLINATION_CHECK_FIXES), each by Lenth's fit, in squared SDs (the sheet's median SD where a bearing has none)."""
+    from dfkit import estimators
+
+    g = b["fix_id"].to_numpy(dtype=np.int64)[sel]
+    codes, gg = np.unique(g, return_inverse=True)
+    lat, lon = b["lat"].to_numpy(float)[sel], b["lon"].to_numpy(float)[sel]
+    theta = b["true_bearing"].to_numpy(float)[sel]
+    sd = b["sd"].to_numpy(float)[sel] if "sd" in b else np.full(sel.sum(), np.nan)
+    sd = np.where(np.isfinite(sd), sd, np.nanmedian(sd) if np.isfinite(sd).any() else 5.0)
+
+    def misfit(bearing):
+        sol = estimators.solve(lat, lon, bearing % 360.0, gg, len(codes), sd, method="mle")
+        z = sol.residual_deg / sd
+        return float(np.nansum(np.where(sol.converged[gg], z * z, np.nan)))
+
+    return misfit(theta), misfit(theta + shift)
+
+
+def _first_fixes(b, sel):
+    """``sel`` restricted to the bearings of its first DECLINATION_CHECK_FIXES fixes (a sample of a big sheet)."""
     g = b["fix_id"].to_numpy(dtype=np.int64)
-    true = b["north"].astype(str).to_numpy() == "true" if "north" in b else np.ones(len(b), bool)
-    if true.mean() < 0.9:          # a sheet mostly of magnetic or grid bearings: not this mistake
-        return []
+    return sel & np.isin(g, np.unique(g[sel])[:DECLINATION_CHECK_FIXES])
+
+
+def _read_as_true(b, true, turn_deg):
+    """Compass bearings taken as true: they read the declination D less than true (magnetic = true - D, east
+    positive), so the sheet turns by about -D, and adding the WMM declination at each station and time fits."""
+    from dfkit import magnetic
+
     # every fix solved, whatever its status (a robust fit may have found no answer in a turned fix)
     sel = true & np.isfinite(b["true_bearing"].to_numpy(float)) & np.isfinite(b["lat"].to_numpy(float))
     lat, lon = b["lat"].to_numpy(float), b["lon"].to_numpy(float)
+    if not sel.any():
+        return []
     at = f"at {np.median(lat[sel]):.2f}, {np.median(lon[sel]):.2f}"
     if "time" not in b or b["time"][sel].isna().all():
         # no time: the declination at the middle of the model's life, to say what to check
@@ -127,25 +161,14 @@ def magnetic_read_as_true(bearings, turn_deg) -> list[str]:
         year = magnetic.decimal_year(secs)
         sel &= np.isfinite(secs) & magnetic.in_model_life(year)
         when = None
+    sel = _first_fixes(b, sel)
     if not sel.any():
         return []
-    fx = np.unique(g[sel])[:DECLINATION_CHECK_FIXES]
-    sel &= np.isin(g, fx)
     dec = magnetic.declination(lat[sel], lon[sel], year[sel]).declination_deg
     d_med = float(np.median(dec))
     if abs(d_med) < DECLINATION_MIN_DEG or turn_deg * d_med > 0:
         return []
-    codes, gg = np.unique(g[sel], return_inverse=True)
-    theta = b["true_bearing"].to_numpy(float)[sel]
-    sd = b["sd"].to_numpy(float)[sel] if "sd" in b else np.full(sel.sum(), np.nan)
-    sd = np.where(np.isfinite(sd), sd, np.nanmedian(sd) if np.isfinite(sd).any() else 5.0)
-
-    def misfit(bearing):
-        sol = estimators.solve(lat[sel], lon[sel], bearing % 360.0, gg, len(codes), sd, method="mle")
-        z = sol.residual_deg / sd
-        return float(np.nansum(np.where(sol.converged[gg], z * z, np.nan)))
-
-    as_read, as_compass = misfit(theta), misfit(theta + dec)
+    as_read, as_compass = _misfit_falls(b, sel, dec)
     if not as_compass < 0.5 * as_read:
         return []
     side = "east" if d_med > 0 else "west"
@@ -158,6 +181,29 @@ def magnetic_read_as_true(bearings, turn_deg) -> list[str]:
             f"read as compass bearings, {gain}. If they were read off a magnetic compass, give the times (a time "
             f"column) and --north magnetic, or --declination {d_med:.1f} for the date they were taken, and locate "
             f"again"]
+
+
+def _read_as_magnetic(b, magnetic_rows, turn_deg):
+    """True bearings taken as magnetic: dfkit added the declination D they did not need, so the sheet turns by
+    about +D, and taking the declination off again fits."""
+    dec_all = b["declination"].to_numpy(float)
+    sel = (magnetic_rows & np.isfinite(dec_all) & np.isfinite(b["true_bearing"].to_numpy(float))
+           & np.isfinite(b["lat"].to_numpy(float)))
+    sel = _first_fixes(b, sel)
+    if not sel.any():
+        return []
+    dec = dec_all[sel]
+    d_med = float(np.median(dec))
+    if abs(d_med) < DECLINATION_MIN_DEG or turn_deg * d_med < 0:
+        return []
+    as_read, as_true = _misfit_falls(b, sel, -dec)
+    if not as_true < 0.5 * as_read:
+        return []
+    side = "east" if d_med > 0 else "west"
+    return [f"that turn is about the declination dfkit added to these magnetic bearings ({abs(d_med):.1f}° {side}): "
+            f"taken as true north, their misfit falls {as_read / max(as_true, 1e-9):.0f}-fold. If they were true "
+            f"bearings already (a GPS compass, or corrected by hand), give --north true (or a north column) and "
+            f"locate again"]
 
 
 def tied_columns(bearings, columns, share: float = TIED_SHARE) -> dict:

@@ -493,7 +493,7 @@ def _left_out(k, i, row, f, v, sx, sy, phi, x0, y0, prior, fixes, always=None, s
     if always is not None:
         counted |= always & np.isfinite(log_odds)
     log_odds = np.where(counted, log_odds, -np.inf)
-    with np.errstate(invalid="ignore"):
+    with np.errstate(invalid="ignore", over="ignore"):
         # a rival that fits but whose steps ran beyond the reach (its information may have underflowed to 0)
         far = (n_alt >= 3) & ~behind & (sk <= limit) & ~(np.hypot(xk, yk) <= reach[f])
     lost = np.ones(nb)

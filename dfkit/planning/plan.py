@@ -298,7 +298,8 @@ def in_sheet_norths(table: pd.DataFrame, fb: pd.DataFrame):
             f"directions are in true north (columns *_true_deg) and, as {int(rows.sum())} of the fix's "
             f"{len(fb)} bearings were {north} (line{'s' if len(lines) > 1 else ''} "
             f"{', '.join(str(x) for x in lines[:6])}{' ...' if len(lines) > 6 else ''}), in {north} north too "
-            f"(*_{north}_deg): {north} = true - {off:.2f}°, the {what} dfkit applied to those bearings{spread}"
+            f"(*_{north}_deg): {north} = true {'-' if off >= 0 else '+'} {abs(off):.2f}°, the {what} dfkit applied to "
+            f"those bearings{spread}"
         )
     if not norths:
         notes.append("directions are in true north (columns *_true_deg), as the fix's bearings were")
