@@ -124,7 +124,7 @@ def find_rivals(lat, lon, theta, sd, g, counts, sol, lik, level, examine, known_
     wild_risk : ndarray, shape (m,)
         Per fix, the chance that one of its bearings is wild and its region misses the transmitter because of it
         (:mod:`dfkit.locate.wild`), with the prior ``wild_share`` per bearing; NaN where it is not weighed (fewer
-        than three bearings, the SD estimated, a fix that left out more than one bearing, ``wild_share`` 0, or not
+        than three bearings, the SD estimated, a fix that kept fewer than three, ``wild_share`` 0, or not
         examined).
     """
     m = len(counts)
@@ -159,8 +159,8 @@ def find_rivals(lat, lon, theta, sd, g, counts, sol, lik, level, examine, known_
     # fixes whose fit dropped a line: their wild risk, the alternatives' steps started at these exact answers
     one_out = look & sol.sd_known & (n_used < counts)
     if one_out.any():
-        start_x, start_y = _starts(sol, used, g, alt, v_fix, v_out, one_out)
-        dropped_risk(g, m, sol, one_out, region, wild_share, full_weight, start_x, start_y, wild)
+        starts = _starts(sol, used, g, alt, v_fix, v_out, one_out)
+        dropped_risk(g, m, sol, one_out, region, wild_share, full_weight, starts, wild)
         chosen = _chosen(wild, level)
     _, p = consistency(alt, mo, k)
     with np.errstate(invalid="ignore"):
@@ -209,21 +209,19 @@ def _chosen(wild, level):
 
 
 def _starts(sol, used, g, alt, v_fix, v_out, fixes):
-    """For the fixes ``fixes`` whose fit dropped a line, the alternatives' answers in each fix's plane [m], per
-    bearing (NaN elsewhere): at a bearing k the fix's fit kept, the answer without k; at the one it dropped, the
-    answer of all its bearings."""
+    """For the fixes ``fixes`` whose fit dropped lines, the alternatives' answers in each fix's plane [m]: per
+    bearing k (NaN elsewhere) the answer without k, and per fix the answer of all its bearings."""
     start_x, start_y = np.full(len(g), np.nan), np.full(len(g), np.nan)
+    whole_x, whole_y = np.full(len(sol.lat), np.nan), np.full(len(sol.lat), np.nan)
     j = np.flatnonzero(fixes[v_fix] & alt.converged & np.isfinite(alt.lat) & np.isfinite(alt.lon))
     if not len(j):
-        return start_x, start_y
+        return start_x, start_y, whole_x, whole_y
     f = v_fix[j]
     x, y = geodesy.to_local(sol.lat[f], sol.lon[f], alt.lat[j], alt.lon[j])
-    gone = np.full(len(sol.lat), -1)
-    gone[g[~used]] = np.flatnonzero(~used)               # a dropped bearing of each fix
-    at = np.where(v_out[j] >= 0, v_out[j], gone[f])
-    keep = at >= 0
-    start_x[at[keep]], start_y[at[keep]] = x[keep], y[keep]
-    return start_x, start_y
+    out = v_out[j] >= 0
+    start_x[v_out[j][out]], start_y[v_out[j][out]] = x[out], y[out]
+    whole_x[f[~out]], whole_y[f[~out]] = x[~out], y[~out]
+    return start_x, start_y, whole_x, whole_y
 
 
 def _fix_region(g, m, sol, lik, level, kdof):

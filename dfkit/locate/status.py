@@ -501,9 +501,10 @@ def _dropped_wild_text(rv, lines, sol, i, level, where):
         why = f"one of {both} is off and the bearings cannot tell which"
         check = f"check {both}"
     else:
+        them = "them" if len(rv.dropped) > 1 else "it"
         head = f"{j}, which the fit dropped, may be good"
-        alone = (f"with it all {int(sol.n_used[i]) + len(rv.dropped)} bearings agree on {where}, {miss}" if rv.settled
-                 else "with it the bearings do not settle on one place within reach")
+        alone = (f"with {them} all {int(sol.n_used[i]) + len(rv.dropped)} bearings agree on {where}, {miss}"
+                 if rv.settled else f"with {them} the bearings do not settle on one place within reach")
         why = f"with {_share(rv.wild_share)} wild (set the share with --wild-share)"
         check = f"check {j}"
     return (f"{head}: {alone}; {why}: the chance that the fit kept a wild line or dropped a good one and this region "

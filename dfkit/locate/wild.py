@@ -135,24 +135,25 @@ def wild_risk(g, m, sol, weigh, region, wild_share) -> WildRisk:
     return out
 
 
-def dropped_risk(g, m, sol, weigh, region, wild_share, full_weight, start_x, start_y, out):
-    """The wild risk of the fixes ``weigh`` (bool, shape (m,)) solved with a known SD from all their bearings but
-    one d, four or more bearings a fix (:func:`_dropped_risk`), into ``out`` (a :class:`WildRisk`).
+def dropped_risk(g, m, sol, weigh, region, wild_share, full_weight, starts, out):
+    """The wild risk of the fixes ``weigh`` (bool, shape (m,)) solved with a known SD from three or more of their
+    bearings, leaving one or more out, four or more bearings a fix (:func:`_dropped_risk`), into ``out`` (a
+    :class:`WildRisk`).
 
-    ``full_weight`` (N,): each bearing's full weight 1 / SD^2 [1/rad^2] (the fit's weight of d is 0).
-    ``start_x``, ``start_y`` (N,): where each alternative's steps start, in the fix's plane [m] (NaN where none is
-    known): at a bearing k != d, the answer of the fix without k and with d; at d, the answer of all the bearings.
-    dfkit passes the exact answers of :mod:`dfkit.locate.rivals` (Lenth's fit of each subset, from several
-    starts): from a linear start about a far answer, Gauss-Newton steps can run away from a minimum that exists.
+    ``full_weight`` (N,): each bearing's full weight 1 / SD^2 [1/rad^2] (the fit's weight of a dropped one is 0).
+    ``starts`` = (x, y per bearing k: the answer of the fix without k; x, y per fix: the answer of all its
+    bearings), in each fix's plane [m], NaN where none is known: where each alternative's steps start. dfkit passes
+    the exact answers of :mod:`dfkit.locate.rivals` (Lenth's fit of each subset, from several starts): from a
+    linear start about a far answer, Gauss-Newton steps can run away from a minimum that exists.
     """
     used = sol.weight > 0
     counts = np.bincount(g, minlength=m)
-    one_out = weigh & (np.bincount(g, used, minlength=m) == counts - 1) & (counts >= 4)
-    if wild_share <= 0 or not one_out.any():
+    n_used = np.bincount(g, used, minlength=m)
+    some_out = weigh & (n_used < counts) & (n_used >= 3) & (counts >= 4)
+    if wild_share <= 0 or not some_out.any():
         return out
-    out.risk[one_out], out.left_out[one_out] = 0.0, -1
-    _weigh_chunks(one_out[g], g, m, sol, region, _prior(wild_share), out, _dropped_risk, full_weight, start_x,
-                  start_y)
+    out.risk[some_out], out.left_out[some_out] = 0.0, -1
+    _weigh_chunks(some_out[g], g, m, sol, region, _prior(wild_share), out, _dropped_risk, full_weight, *starts)
     return out
 
 
@@ -213,12 +214,15 @@ def _chunk_risk(idx, n, g, sol, region, prior, out):
     out.left_out[f] = idx[at[has]]
 
 
-def _dropped_risk(idx, n, g, sol, region, prior, out, full_weight, start_x, start_y):
+def _dropped_risk(idx, n, g, sol, region, prior, out, full_weight, start_x, start_y, whole_x, whole_y):
     """The wild risk of the fixes of the bearings ``idx`` (whole fixes of n bearings each) whose fit left one
-    bearing d out, into ``out``.
+    bearing d out (or a set D of them), into ``out``.
 
     The fix is the answer of "d is wild" (Hd). Its rivals are "every bearing is good" (H0: the fit need not have
-    dropped d) and "bearing k is wild" for each k != d (the fit dropped a good line and kept the wild one). They are
+    dropped d) and "bearing k is wild" for each k != d (the fit dropped a good line and kept the wild one); where
+    the fit dropped two or more lines, "only bearing k is wild" for every k, the dropped ones included, and the
+    fix's own HD (each line of D wild: its prior odds and missing densities once per line) is weighed at the fix by
+    Laplace's method with the lines it kept. They are
     weighed as in :func:`_chunk_risk`, against H0's evidence by Laplace's method at the minimum of S over all n
     bearings, which here is not the fix. Each answer's steps start at ``start_x``, ``start_y`` where given (else H0's
     at the fix, each Hk at its linear leave-one-out answer about H0's); H0's start at the fix too, and the lower S
@@ -233,7 +237,9 @@ def _dropped_risk(idx, n, g, sol, region, prior, out, full_weight, start_x, star
     w = sol.weight[idx]
     with np.errstate(divide="ignore", invalid="ignore"):
         v = np.where(w > 0, sol.region_weight[idx] / np.where(w > 0, w, 1.0), full_weight[idx])
-    dropped = w <= 0                                          # one a fix
+    dropped = w <= 0
+    single = np.repeat(_rows_added(rows(dropped.astype(float))) == 1, n)      # one dropped line in the fix
+    own = dropped & single                    # the left-out bearing whose answer is the fix
     d = sol.range_m[idx]
     az = np.radians(sol.azimuth_from_fix_deg[idx])
     sx, sy = d * np.sin(az), d * np.cos(az)
@@ -246,7 +252,7 @@ def _dropped_risk(idx, n, g, sol, region, prior, out, full_weight, start_x, star
     # H0: the minimum of S over all n bearings, from the fix and from the given start; the lower S is kept
     zero = np.zeros(nf)
     h0 = _minimum(None, nf, v, sx, sy, phi, zero, zero, steps=DROPPED_STEPS, row=n, settle=True)
-    gx0, gy0 = ex[dropped], ey[dropped]
+    gx0, gy0 = whole_x[fid], whole_y[fid]
     given = np.isfinite(gx0) & np.isfinite(gy0)
     if given.any():
         h0 = _lower(h0, _minimum(None, nf, v, sx, sy, phi, np.where(given, gx0, 0.0), np.where(given, gy0, 0.0),
@@ -269,15 +275,15 @@ def _dropped_risk(idx, n, g, sol, region, prior, out, full_weight, start_x, star
     hxr, hyr = np.repeat(hx, n), np.repeat(hy, n)
     lx, ly = _linear_start(n, J0, v, sx - hxr, sy - hyr, phi)
     has = np.isfinite(ex) & np.isfinite(ey)
-    x0 = np.where(dropped, 0.0, np.where(has, ex, lx + hxr))
-    y0 = np.where(dropped, 0.0, np.where(has, ey, ly + hyr))
-    also = (np.where(dropped, 0.0, lx + hxr), np.where(dropped, 0.0, ly + hyr)) if has.any() else None
+    x0 = np.where(own, 0.0, np.where(has, ex, lx + hxr))
+    y0 = np.where(own, 0.0, np.where(has, ey, ly + hyr))
+    also = (np.where(own, 0.0, lx + hxr), np.where(own, 0.0, ly + hyr)) if has.any() else None
     s_min, bound, cx, cy = region
     fixes = (s0, det0, reach, j_reg, s_min[fid], bound[fid], cx[fid], cy[fid])
     k, i = _pairs(len(idx), n)
     log_odds, lost, far = _left_out(k, i, n - 1, np.repeat(np.arange(nf), n), v, sx, sy, phi, x0, y0, prior,
-                                    fixes, always=dropped, steps=DROPPED_STEPS, at_least=s_fix, also=also)
-    far = rows(far & ~dropped & ~np.isfinite(log_odds))
+                                    fixes, always=own, steps=DROPPED_STEPS, at_least=s_fix, also=also)
+    far = rows(far & ~own & ~np.isfinite(log_odds))
     strip = far.any(1)
     out.strip[fid[strip]] = idx[np.arange(nf)[strip] * n + np.argmax(far[strip], axis=1)]
     # H0's evidence inside the prior's disc, and its share outside the region
@@ -291,13 +297,14 @@ def _dropped_risk(idx, n, g, sol, region, prior, out, full_weight, start_x, star
         lo0 = np.where(ok0, np.log(in_disc0), -np.inf)
         lost0 = np.where(in_disc0 > 0, 1.0 - in_both0 / in_disc0, 1.0)
     lo = rows(log_odds)
-    lost = np.where(rows(dropped), 0.0, rows(lost))
-    top = np.fmax(lo0, lo.max(1))
+    lost = np.where(rows(own), 0.0, rows(lost))
+    lod = _several_dropped(n, rows, dropped, single, v, sx, sy, s0, det0, s_fix, reach, prior)
+    top = np.fmax(np.fmax(lo0, lo.max(1)), lod)
     fin = np.isfinite(top)
     top = np.where(fin, top, 0.0)
     with np.errstate(invalid="ignore"):
         p, p0 = np.exp(lo - top[:, None]), np.exp(lo0 - top)
-        total = p0 + _rows_added(p)
+        total = p0 + _rows_added(p) + np.exp(lod - top)         # HD costs nothing (0 where one line was dropped)
         share, share0 = p * lost / total[:, None], p0 * lost0 / total
     out.risk[fid] = np.where(fin, _rows_added(share) + share0, np.nan)
     # the hypothesis with the largest share: a bearing, or -2 for "every bearing is good"
@@ -306,6 +313,28 @@ def _dropped_risk(idx, n, g, sol, region, prior, out, full_weight, start_x, star
     pick = np.where(share0 > best, -2, idx[np.arange(nf) * n + top_k])
     has = fin & (np.fmax(share0, best) > 0)
     out.left_out[fid[has]] = pick[has]
+
+
+def _several_dropped(n, rows, dropped, single, v, sx, sy, s0, det0, s_fix, reach, prior):
+    """Per fix of a chunk, the log odds of HD (every line the fit dropped is wild) against H0 where it dropped two
+    or more lines (-inf elsewhere: there Hd is one of the left-out answers): Laplace's method at the fix with the
+    lines it kept, S there, and for each dropped line its prior odds and the density its Gaussian would have had,
+    as in :func:`_left_out`."""
+    nf = len(s0)
+    lod = np.full(nf, -np.inf)
+    many = ~rows(single)[:, 0]
+    if not many.any():
+        return lod
+    kept_v = np.where(dropped, 0.0, v)
+    jd = _information_rows(n, kept_v, sx, sy)
+    det_d = jd[0] * jd[2] - jd[1] * jd[1]
+    one, zero = np.ones(nf), np.zeros(nf)
+    (in_disc,) = inside_shares(zero, zero, jd, [(one, zero, one, reach * reach, zero, zero)])
+    lines = rows(np.where(dropped, -0.5 * np.log(2.0 * np.pi * v) + prior, 0.0))
+    with np.errstate(divide="ignore", invalid="ignore"):
+        odds = (0.5 * (s0 - s_fix) + 0.5 * np.log(det0 / det_d) + _rows_added(lines) + np.log(in_disc))
+    lod[many] = np.where(np.isfinite(odds[many]) & (det_d[many] > 0), odds[many], -np.inf)
+    return lod
 
 
 def _lower(a, b, n):
