@@ -95,3 +95,33 @@ def test_true_bearings_taken_as_magnetic_are_named(write_sheet):
     assert _turn(fixes.warnings) == pytest.approx(15.0, abs=1.5)
     assert any("give --north true" in w for w in fixes.warnings)
     assert not any("give --north magnetic" in w for w in fixes.warnings)
+
+
+def _observers(write_sheet, b_off):
+    """Compass bearings (true - 15°) from observers A and C, and from B turned by ``b_off`` more."""
+    rows = _sheet(write_sheet, -15.0).read_text().splitlines()
+    out = [rows[0] + ",observer"]
+    for i, r in enumerate(rows[1:]):
+        who = "ABC"[i % 3]
+        if who == "B":
+            cells = r.split(",")
+            cells[3] = f"{(float(cells[3]) + b_off) % 360:.1f}"
+            r = ",".join(cells)
+        out.append(f"{r},{who}")
+    return write_sheet("\n".join(out) + "\n", name="observers.csv")
+
+
+def test_one_observer_writing_true_bearings_on_a_magnetic_sheet_is_named(write_sheet):
+    # B's bearings true (15° more than a compass there reads), all read as magnetic
+    fixes = locate_sheet(_observers(write_sheet, 15.0), sd=3.0, north="magnetic")
+    said = [w for w in fixes.warnings if "observer B's offset" in w]
+    assert len(said) == 1 and "mark its rows true north" in said[0]
+    assert not any("observer A's offset" in w or "observer C's offset" in w for w in fixes.warnings)
+
+
+def test_an_observer_offset_unlike_the_declination_gets_no_north_note(write_sheet):
+    # B 8° off (half the declination): the sheet shows a turn (the fixes cannot tell the observers apart at 30
+    # fixes), but nothing says B wrote true bearings
+    fixes = locate_sheet(_observers(write_sheet, 8.0), sd=3.0, north="magnetic")
+    assert any("read on average" in w for w in fixes.warnings)
+    assert not any("mark its rows" in w for w in fixes.warnings)

@@ -750,6 +750,8 @@ class SheetOffset:
     summary: str
     marked: dict
     common: bool
+    #: {label: standard error of its offset [°]} of the labels named against the others
+    se: dict = None
 
     def text(self) -> str:
         return "; ".join(self.findings)
@@ -846,7 +848,7 @@ def sheet_offsets(table, bearings, with_position, azimuth_deg=None) -> list[Shee
         j = explain(S, I, p_of, level)
         nf = np.array([_n_fixes(st.fix[sel][li == k]) for k in range(len(labs))])
         nb = np.bincount(li, st.n[sel], len(labs)).astype(int)
-        findings, offsets, short = [], {}, []
+        findings, offsets, short, named_se = [], {}, [], {}
         delta = np.zeros(len(labs))
         indistinct = False
         for n, k in enumerate(j.off):
@@ -859,6 +861,7 @@ def sheet_offsets(table, bearings, with_position, azimuth_deg=None) -> list[Shee
                             f"p = "
                             f"{j.contrast_p[n]:.1g}): a compass or antenna offset? calibrate it (dfkit calibrate)")
             offsets[str(labs[k])] = deg
+            named_se[str(labs[k])] = se
             short.append(f"{col} {labs[k]} reads {abs(deg):.1f}° {_side(deg)} of the others")
             delta[k] = j.contrast[n]
         if j.rest and j.d0_p < level:
@@ -920,5 +923,5 @@ def sheet_offsets(table, bearings, with_position, azimuth_deg=None) -> list[Shee
             short.append(f"or one {col} alone reading off (the fixes cannot tell which)")
         marked = {int(i): float(shift[i]) for i in np.flatnonzero(np.isfinite(shift) & (shift >= SHIFT_SE))}
         out.append(SheetOffset(column=col, findings=findings, offsets=offsets, summary="; ".join(short),
-                               marked=marked, common=not j.off))
+                               marked=marked, common=not j.off, se=named_se))
     return out

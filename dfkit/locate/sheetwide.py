@@ -70,6 +70,7 @@ def review(fixes):
                             f"bearings of each {off.column} with one {other}), so an offset said of one may belong to "
                             f"the other" for w in off.findings]
         warnings.extend(off.findings)
+        warnings.extend(label_north_mistakes(b, off))
         turns = set(off.offsets.values())
         if len(turns) == 1:
             # one turn shared by every bearing (the whole sheet, or every label of a column alike); the check
@@ -94,6 +95,9 @@ def review(fixes):
     return replace(fixes, table=t, bearings=bt, warnings=warnings, _regions=fixes._regions)
 
 
+#: A label's offset is said to match the declination when within this many degrees of it (our choice: a label's
+#: offset is known to about 1° from a few dozen bearings, a declination to about 0.5°).
+DECLINATION_MATCH_DEG = 2.0
 #: Fewest degrees of declination worth checking a shared turn against (below, a compass mistake and a small offset
 #: look alike; our choice).
 DECLINATION_MIN_DEG = 4.0
@@ -114,6 +118,49 @@ def north_mistake(bearings, turn_deg) -> list[str]:
     if (norths == "magnetic").mean() >= 0.9 and "declination" in b:
         return _read_as_magnetic(b, norths == "magnetic", turn_deg)
     return []
+
+
+def label_north_mistakes(bearings, off) -> list[str]:
+    """A note for each label of a group column named reading off the others (``off``: a
+    :class:`dfkit.locate.offsets.SheetOffset`) whose offset is about the declination at its bearings: within
+    DECLINATION_MATCH_DEG (or two standard errors of the offset) of +D for magnetic bearings (dfkit added a declination that true bearings did not need), or
+    of -D for bearings read as true (compass bearings), D the median declination dfkit applied to them (magnetic) or
+    the WMM2025 declination at their stations and times (true)."""
+    from dfkit import magnetic
+
+    b = bearings
+    if off.column == WHOLE_SHEET or off.column not in b or (len(off.offsets) > 1
+                                                            and len(set(off.offsets.values())) == 1):
+        return []           # (a turn shared by every label is the sheet's: north_mistake)
+    labels = b[off.column].astype(str).to_numpy()
+    norths = b["north"].astype(str).to_numpy() if "north" in b else np.full(len(b), "true")
+    out = []
+    for label, deg in off.offsets.items():
+        rows = labels == str(label)
+        if not rows.any():
+            continue
+        if (norths[rows] == "magnetic").mean() >= 0.9 and "declination" in b:
+            d = float(np.nanmedian(b["declination"].to_numpy(float)[rows]))
+            want, what = d, "the declination dfkit added to its magnetic bearings"
+            advice = f"if {off.column} {label} wrote true bearings (a GPS compass, or corrected by hand), mark its rows true north"
+        elif (norths[rows] == "true").mean() >= 0.9 and "time" in b and b["time"][rows].notna().any():
+            secs = b["time"][rows].dropna().median().timestamp()
+            year = magnetic.decimal_year(np.array([secs]))
+            if not magnetic.in_model_life(year)[0]:
+                continue
+            lat, lon = (np.array([float(np.median(b[c].to_numpy(float)[rows]))]) for c in ("lat", "lon"))
+            d = float(magnetic.declination(lat, lon, year).declination_deg[0])
+            want, what = -d, "the magnetic declination at its stations (WMM2025)"
+            advice = f"if {off.column} {label} read a magnetic compass, mark its rows magnetic north"
+        else:
+            continue
+        se = (off.se or {}).get(str(label), 0.0)
+        if abs(d) < DECLINATION_MIN_DEG or not abs(deg - want) <= max(DECLINATION_MATCH_DEG, 2.0 * se):
+            continue
+        side = "east" if d > 0 else "west"
+        out.append(f"{off.column} {label}'s offset ({abs(deg):.1f}° {'clockwise' if deg > 0 else 'anticlockwise'}) "
+                   f"is about {what} ({abs(d):.1f}° {side}): {advice} (a north column) and locate again")
+    return out
 
 
 def _misfit_falls(b, sel, shift):
