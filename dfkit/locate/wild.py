@@ -282,17 +282,17 @@ def _dropped_risk(idx, n, g, sol, region, prior, out, full_weight, start_x, star
     fixes = (s0, det0, reach, j_reg, s_min[fid], bound[fid], cx[fid], cy[fid])
     k, i = _pairs(len(idx), n)
     log_odds, lost, far = _left_out(k, i, n - 1, np.repeat(np.arange(nf), n), v, sx, sy, phi, x0, y0, prior,
-                                    fixes, always=own, steps=DROPPED_STEPS, at_least=s_fix, also=also)
+                                    fixes, always=own, steps=DROPPED_STEPS, settle=True, at_least=s_fix,
+                                    also=also)
     far = rows(far & ~own & ~np.isfinite(log_odds))
     strip = far.any(1)
     out.strip[fid[strip]] = idx[np.arange(nf)[strip] * n + np.argmax(far[strip], axis=1)]
     # H0's evidence inside the prior's disc, and its share outside the region
-    one = np.ones(nf)
     area = (j_reg[0], j_reg[1], j_reg[2], (bound - s_min)[fid], cx[fid], cy[fid])
-    in_disc0, in_both0 = inside_shares(hx, hy, J0, [(one, zero, one, reach * reach, zero, zero), area])
+    in_disc0, in_both0 = inside_shares(hx, hy, J0, [_disc(reach), area])
     behind0 = rows(np.abs(res0) > np.pi / 2).any(1)
     with np.errstate(divide="ignore", invalid="ignore"):
-        limit0 = np.fmax(_chi2_bound(np.full(nf, n - 2)), s_fix)
+        limit0 = np.fmax(_chi2_bound(n - 2), s_fix)
         ok0 = ~lost_h0 & ~behind0 & (det0 > 0) & (s0 <= limit0) & (in_disc0 > 0)
         lo0 = np.where(ok0, np.log(in_disc0), -np.inf)
         lost0 = np.where(in_disc0 > 0, 1.0 - in_both0 / in_disc0, 1.0)
@@ -328,13 +328,19 @@ def _several_dropped(n, rows, dropped, single, v, sx, sy, s0, det0, s_fix, reach
     kept_v = np.where(dropped, 0.0, v)
     jd = _information_rows(n, kept_v, sx, sy)
     det_d = jd[0] * jd[2] - jd[1] * jd[1]
-    one, zero = np.ones(nf), np.zeros(nf)
-    (in_disc,) = inside_shares(zero, zero, jd, [(one, zero, one, reach * reach, zero, zero)])
+    zero = np.zeros(nf)
+    (in_disc,) = inside_shares(zero, zero, jd, [_disc(reach)])
     lines = rows(np.where(dropped, -0.5 * np.log(2.0 * np.pi * v) + prior, 0.0))
     with np.errstate(divide="ignore", invalid="ignore"):
         odds = (0.5 * (s0 - s_fix) + 0.5 * np.log(det0 / det_d) + _rows_added(lines) + np.log(in_disc))
     lod[many] = np.where(np.isfinite(odds[many]) & (det_d[many] > 0), odds[many], -np.inf)
     return lod
+
+
+def _disc(reach):
+    """The prior's disc about each fix, radius ``reach`` [m], as a form of :func:`inside_shares`."""
+    one, zero = np.ones(len(reach)), np.zeros(len(reach))
+    return one, zero, one, reach * reach, zero, zero
 
 
 def _lower(a, b, n):
@@ -385,10 +391,13 @@ def _minimum(gk, m, v, sx, sy, phi, x, y, steps=1, row=None, settle=False):
     after the last step: where the steps did not settle (lines that do not meet), the linear prediction can be far
     below any S the lines allow.
     """
+    if row:
+        add = lambda a: _rows_added(a.reshape(-1, row))  # noqa: E731
+        spread = lambda a: np.repeat(a, row)  # noqa: E731
+    else:
+        add = lambda a: np.bincount(gk, a, m)  # noqa: E731
+        spread = lambda a: a[gk]  # noqa: E731
     if settle:
-        add = (lambda a: _rows_added(a.reshape(-1, row))) if row else (lambda a: np.bincount(gk, a, m))
-        spread = (lambda a: np.repeat(a, row)) if row else (lambda a: a[gk])
-
         def s_at(px, py):
             r = wrap_pi(phi - np.arctan2(spread(px) - sx, spread(py) - sy))
             return add(v * r * r)
@@ -411,12 +420,6 @@ def _minimum(gk, m, v, sx, sy, phi, x, y, steps=1, row=None, settle=False):
                 t = np.where(taken, t, 0.5 * t)
         _, _, _, J, res = _minimum(gk, m, v, sx, sy, phi, x, y, steps=1, row=row)
         return s, x, y, J, res
-    if row:
-        add = lambda a: _rows_added(a.reshape(-1, row))  # noqa: E731
-        spread = lambda a: np.repeat(a, row)  # noqa: E731
-    else:
-        add = lambda a: np.bincount(gk, a, m)  # noqa: E731
-        spread = lambda a: a[gk]  # noqa: E731
     with np.errstate(over="ignore", invalid="ignore", divide="ignore"):   # a fix whose lines run away
         for step in range(steps):
             X, Y = spread(x) - sx, spread(y) - sy
@@ -445,21 +448,12 @@ def _rows_added(a):
     return out
 
 
-def _chi2_bound(dof):
-    """Largest S whose chi-square p-value on ``dof`` degrees of freedom is at least INCONSISTENT_P (inf for no
-    degree of freedom): one quantile per distinct dof, by bisection on :func:`dfkit.regions.chi2_sf`. ``dof`` an
-    array (the bound of each), or one integer (its bound, a float: a chunk of fixes of one size asks it once)."""
-    if np.ndim(dof) == 0:
-        return _chi2_bound_one(int(dof))
-    out = np.full(len(dof), np.inf)
-    for d in np.unique(dof[dof >= 1]).tolist():
-        out[dof == d] = _chi2_bound_one(d)
-    return out
-
-
 @lru_cache(maxsize=None)
-def _chi2_bound_one(d):
-    """:func:`_chi2_bound` of one integer dof (inf below 1); remembered, as every chunk of a size asks again."""
+def _chi2_bound(dof):
+    """Largest S whose chi-square p-value on ``dof`` (an integer) degrees of freedom is at least INCONSISTENT_P (inf
+    for no degree of freedom), by bisection on :func:`dfkit.regions.chi2_sf`; remembered, as every chunk of fixes
+    of one size asks it again."""
+    d = int(dof)
     if d < 1:
         return np.inf
     lo, hi = 0.0, 10.0 * d + 100.0
@@ -492,19 +486,19 @@ def _linear_start(n, J, v, sx, sy, phi):
     return np.nan_to_num(x0), np.nan_to_num(y0)
 
 
-def _left_out(k, i, row, f, v, sx, sy, phi, x0, y0, prior, fixes, always=None, steps=STEPS, at_least=None,
-              also=None):
+def _left_out(k, i, row, f, v, sx, sy, phi, x0, y0, prior, fixes, always=None, steps=STEPS, settle=False,
+              at_least=None, also=None):
     """For one chunk of bearings (whole fixes of row + 1 bearings; ``f`` their fixes) and its pairs (k, i) of
     chunk indices, ``row`` a bearing: per left-out bearing k, (log posterior odds of Hk against H0, share of Hk's
     position outside the fix's region). ``always`` (bool per bearing): the Hk counted whatever their fit or
-    odds (the fix's own answer); ``at_least`` (per fix of the chunk): an S that passes the chi-square rule
-    whatever its bound; ``also`` (x, y per bearing): a second start for each answer's steps."""
+    odds (the fix's own answer); ``settle``: as :func:`_minimum`'s; ``at_least`` (per fix of the chunk): an S
+    that passes the chi-square rule whatever its bound; ``also`` (x, y per bearing): a second start for each answer's steps."""
     s0, det0, reach, j_reg, s_min, bound, cx, cy = fixes
     nb = len(f)
     # the answer after STEPS steps; its information and residuals are those of the last step's start, within a
     # step of it
     sk, xk, yk, (a11, a12, a22), res = _minimum(k, nb, v[i], sx[i], sy[i], phi[i], x0, y0, steps=steps, row=row,
-                                                settle=steps != STEPS)
+                                                settle=settle)
     if also is not None:        # a second start: the lower S (with no line pointing away) is kept
         sk, xk, yk, (a11, a12, a22), res = _lower(
             (sk, xk, yk, (a11, a12, a22), res),
@@ -543,9 +537,8 @@ def _left_out(k, i, row, f, v, sx, sy, phi, x0, y0, prior, fixes, always=None, s
                                           [[t[~edge] for t in region]])
         if edge.any():
             e = np.flatnonzero(edge)
-            one, zero = np.ones(len(e)), np.zeros(len(e))
             in_disc[e], in_both[e] = inside_shares(xk[w][e], yk[w][e], [t[e] for t in jk], [
-                (one, zero, one, reach[fw][e] ** 2, zero, zero), [t[e] for t in region]])
+                _disc(reach[fw][e]), [t[e] for t in region]])
         with np.errstate(divide="ignore", invalid="ignore"):
             log_odds[w] += np.log(in_disc)
             lost[w] = np.where(in_disc > 0, 1.0 - in_both / in_disc, 1.0)
