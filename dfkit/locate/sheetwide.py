@@ -112,7 +112,7 @@ def north_mistake(bearings, turn_deg) -> list[str]:
     turn it shows smaller than it is): up to DECLINATION_CHECK_FIXES fixes solved again by Lenth's likelihood with
     each bearing turned by the declination must leave less than half the squared misfit of the bearings as read."""
     b = bearings
-    norths = b["north"].astype(str).to_numpy() if "north" in b else np.full(len(b), "true")
+    norths = _norths(b)
     if (norths == "true").mean() >= 0.9:
         return _read_as_true(b, norths == "true", turn_deg)
     if (norths == "magnetic").mean() >= 0.9 and "declination" in b:
@@ -123,17 +123,16 @@ def north_mistake(bearings, turn_deg) -> list[str]:
 def label_north_mistakes(bearings, off) -> list[str]:
     """A note for each label of a group column named reading off the others (``off``: a
     :class:`dfkit.locate.offsets.SheetOffset`) whose offset is about the declination at its bearings: within
-    DECLINATION_MATCH_DEG (or two standard errors of the offset) of +D for magnetic bearings (dfkit added a declination that true bearings did not need), or
-    of -D for bearings read as true (compass bearings), D the median declination dfkit applied to them (magnetic) or
-    the WMM2025 declination at their stations and times (true)."""
-    from dfkit import magnetic
-
+    DECLINATION_MATCH_DEG (or two standard errors of the offset) of +D for magnetic bearings (dfkit added a
+    declination that true bearings did not need), or of -D for bearings read as true (compass bearings), D the
+    median declination dfkit applied to them (magnetic) or the WMM2025 declination at their stations and times
+    (true)."""
     b = bearings
     if off.column == WHOLE_SHEET or off.column not in b or (len(off.offsets) > 1
                                                             and len(set(off.offsets.values())) == 1):
         return []           # (a turn shared by every label is the sheet's: north_mistake)
     labels = b[off.column].astype(str).to_numpy()
-    norths = b["north"].astype(str).to_numpy() if "north" in b else np.full(len(b), "true")
+    norths = _norths(b)
     out = []
     for label, deg in off.offsets.items():
         rows = labels == str(label)
@@ -142,14 +141,13 @@ def label_north_mistakes(bearings, off) -> list[str]:
         if (norths[rows] == "magnetic").mean() >= 0.9 and "declination" in b:
             d = float(np.nanmedian(b["declination"].to_numpy(float)[rows]))
             want, what = d, "the declination dfkit added to its magnetic bearings"
-            advice = f"if {off.column} {label} wrote true bearings (a GPS compass, or corrected by hand), mark its rows true north"
-        elif (norths[rows] == "true").mean() >= 0.9 and "time" in b and b["time"][rows].notna().any():
-            secs = b["time"][rows].dropna().median().timestamp()
-            year = magnetic.decimal_year(np.array([secs]))
-            if not magnetic.in_model_life(year)[0]:
+            advice = (f"if {off.column} {label} wrote true bearings (a GPS compass, or corrected by hand), "
+                      "mark its rows true north")
+        elif (norths[rows] == "true").mean() >= 0.9:
+            dec, _, when = _wmm_declination(b, rows)
+            if dec is None or when is not None:       # (no time, or none within the model's life)
                 continue
-            lat, lon = (np.array([float(np.median(b[c].to_numpy(float)[rows]))]) for c in ("lat", "lon"))
-            d = float(magnetic.declination(lat, lon, year).declination_deg[0])
+            d = float(np.median(dec))
             want, what = -d, "the magnetic declination at its stations (WMM2025)"
             advice = f"if {off.column} {label} read a magnetic compass, mark its rows magnetic north"
         else:
@@ -183,6 +181,31 @@ def _misfit_falls(b, sel, shift):
     return misfit(theta), misfit(theta + shift)
 
 
+def _norths(b):
+    """Each bearing's north as read ('true' where the sheet names none)."""
+    return b["north"].astype(str).to_numpy() if "north" in b else np.full(len(b), "true")
+
+
+def _wmm_declination(b, sel):
+    """WMM2025 declination [°] at the stations and times of the bearings ``sel``: (declination of each, the
+    bearings it is of, None), or (..., "mid-model, no time given") at the middle of the model's life where the
+    sheet gives no time; (None, sel, None) where no time lies within the model's life."""
+    from dfkit import magnetic
+
+    lat, lon = b["lat"].to_numpy(float), b["lon"].to_numpy(float)
+    if "time" not in b or b["time"][sel].isna().all():
+        # no time: the declination at the middle of the model's life, to say what to check
+        year, when = np.full(len(b), 0.5 * (magnetic.MODEL_START + magnetic.MODEL_END)), "mid-model, no time given"
+    else:
+        secs = b["time"].to_numpy(dtype="datetime64[s]").astype("int64").astype(float)
+        year = magnetic.decimal_year(secs)
+        sel = sel & np.isfinite(secs) & magnetic.in_model_life(year)
+        when = None
+    if not sel.any():
+        return None, sel, None
+    return magnetic.declination(lat[sel], lon[sel], year[sel]).declination_deg, sel, when
+
+
 def _first_fixes(b, sel):
     """``sel`` restricted to the bearings of its first DECLINATION_CHECK_FIXES fixes (a sample of a big sheet)."""
     g = b["fix_id"].to_numpy(dtype=np.int64)
@@ -192,26 +215,15 @@ def _first_fixes(b, sel):
 def _read_as_true(b, true, turn_deg):
     """Compass bearings taken as true: they read the declination D less than true (magnetic = true - D, east
     positive), so the sheet turns by about -D, and adding the WMM declination at each station and time fits."""
-    from dfkit import magnetic
-
     # every fix solved, whatever its status (a robust fit may have found no answer in a turned fix)
     sel = true & np.isfinite(b["true_bearing"].to_numpy(float)) & np.isfinite(b["lat"].to_numpy(float))
     lat, lon = b["lat"].to_numpy(float), b["lon"].to_numpy(float)
     if not sel.any():
         return []
     at = f"at {np.median(lat[sel]):.2f}, {np.median(lon[sel]):.2f}"
-    if "time" not in b or b["time"][sel].isna().all():
-        # no time: the declination at the middle of the model's life, to say what to check
-        year, when = np.full(len(b), 0.5 * (magnetic.MODEL_START + magnetic.MODEL_END)), "mid-model, no time given"
-    else:
-        secs = b["time"].to_numpy(dtype="datetime64[s]").astype("int64").astype(float)
-        year = magnetic.decimal_year(secs)
-        sel &= np.isfinite(secs) & magnetic.in_model_life(year)
-        when = None
-    sel = _first_fixes(b, sel)
-    if not sel.any():
+    dec, sel, when = _wmm_declination(b, _first_fixes(b, sel))
+    if dec is None:
         return []
-    dec = magnetic.declination(lat[sel], lon[sel], year[sel]).declination_deg
     d_med = float(np.median(dec))
     if abs(d_med) < DECLINATION_MIN_DEG or turn_deg * d_med > 0:
         return []
@@ -221,8 +233,8 @@ def _read_as_true(b, true, turn_deg):
     side = "east" if d_med > 0 else "west"
     gain = f"their misfit falls {as_read / max(as_compass, 1e-9):.0f}-fold"
     if when is None:
-        return [f"that turn is about the magnetic declination where these bearings were taken ({abs(d_med):.1f}° {side}, "
-                f"WMM2025 {at}): read as compass bearings, {gain}. If they were read off a magnetic compass, "
+        return [f"that turn is about the magnetic declination where these bearings were taken "
+                f"({abs(d_med):.1f}° {side}, WMM2025 {at}): read as compass bearings, {gain}. If they were read off a magnetic compass, "
                 f"give --north magnetic (or a north column) and locate again"]
     return [f"that turn is about the magnetic declination here ({abs(d_med):.1f}° {side}, WMM2025 {at}, {when}): "
             f"read as compass bearings, {gain}. If they were read off a magnetic compass, give the times (a time "

@@ -483,20 +483,18 @@ def _dropped_wild_text(rv, lines, sol, i, level, where):
     wild one, or dropped a good line that the others agree with."""
     j = _lines_text(lines[rv.dropped])
     miss = "outside this region" if rv.outside else "inside this region, though most of what they allow lies outside it"
-    if rv.strip and rv.left_out >= 0:
-        k = lines[rv.left_out]
-        both = _lines_text(np.sort(np.append(lines[rv.dropped], k)))
-        return (f"line {k} may be the wild one rather than {j}, which the fit dropped: with {j} and without line {k} "
-                f"the other lines agree within their SDs but run nearly parallel, putting the transmitter somewhere "
-                f"along a strip that reaches beyond twice the farthest observer's range, far from this region; dfkit cannot weigh that "
-                f"chance (wild_risk leaves it out): check {both}, or take another bearing from across the strip")
     if rv.left_out >= 0:
         k = lines[rv.left_out]
         head = f"line {k} may be the wild one rather than {j}, which the fit dropped"
+        both = _lines_text(np.sort(np.append(lines[rv.dropped], k)))
+        if rv.strip:
+            return (f"{head}: with {j} and without line {k} the other lines agree within their SDs but run nearly "
+                    f"parallel, putting the transmitter somewhere along a strip that reaches beyond twice the farthest "
+                    f"observer's range, far from this region; dfkit cannot weigh that chance (wild_risk leaves it out): "
+                    f"check {both}, or take another bearing from across the strip")
         alone = (f"with {j} and without line {k} the bearings agree on {where}, where line {k} misses by "
                  f"{rv.miss_deg:+.0f}°, {miss}" if rv.settled else
                  f"with {j} and without line {k} the bearings do not settle on one place within reach")
-        both = _lines_text(np.sort(np.append(lines[rv.dropped], k)))
         # one line is wild either way: the prior share cancels, only the bearings decide
         why = f"one of {both} is off and the bearings cannot tell which"
         check = f"check {both}"
