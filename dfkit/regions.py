@@ -40,7 +40,7 @@ polygons?", J. Wildl. Manage. 55(1), 172-176, 1991 [volume and pages from memory
 
 from __future__ import annotations
 
-from dataclasses import dataclass
+from dataclasses import dataclass, fields
 from functools import lru_cache
 
 import numpy as np
@@ -391,6 +391,21 @@ class LikelihoodRegions:
             return np.nan_to_num(self.statistic(lat, lon), nan=1.0) <= 0.0
 
 
+#: The fields of :class:`LikelihoodRegions` held per bearing, and those shared by every fix.
+PER_BEARING_FIELDS = ("g", "station_lat", "station_lon", "bearing_deg", "weight")
+SHARED_FIELDS = ("ray_azimuth_deg", "level")
+
+
+def put_rows(regions, other, rows, other_rows=None):
+    """Put into ``regions``, in place, the fixes ``rows`` as ``other`` draws them (regions of the same fixes drawn
+    otherwise, at ``other_rows`` of it: by default the same rows): per-fix fields replaced at those rows, the
+    bearings' and the shared ones kept."""
+    take = rows if other_rows is None else other_rows
+    for f in fields(regions):
+        if f.name not in PER_BEARING_FIELDS and f.name not in SHARED_FIELDS:
+            getattr(regions, f.name)[rows] = getattr(other, f.name)[take]
+
+
 def _f2(level, dof):
     """The level quantile of F(2, dof), closed form (module scale_factor); dof > 0."""
     with np.errstate(invalid="ignore", over="ignore", divide="ignore"):
@@ -405,12 +420,12 @@ def region_threshold(s_min, known, dof, level, known_dof=None, sd_floor_rad=None
     (S - S_min)/2 over the SD's own chi-square is F-distributed); S_min + 2 s^2 F(2, dof) when the SD
     is estimated from the fix (dof = n - 2, s^2 = S_min / dof, but at least ``sd_floor_rad``^2 where given).
     """
-    level = float(level)
+    level = np.asarray(level, float)          # one level, or one per fix
     chi2 = -2.0 * np.log1p(-level)
     dof = np.asarray(dof, float)
     m = np.where(dof > 0, dof, 1.0)
     f = _f2(level, m)
-    known_bound = np.full(np.shape(s_min), chi2)
+    known_bound = np.broadcast_to(chi2, np.shape(s_min)).astype(float)
     if known_dof is not None:
         kd = np.asarray(known_dof, float)
         fin = np.isfinite(kd) & (kd > 0)
@@ -444,8 +459,8 @@ def likelihood_regions(fix_lat, fix_lon, g, station_lat, station_lon, bearing_de
         Whether the fix's SD is known (chi-square bound) or estimated (F bound).
     dof : array_like of int, shape (m,)
         Residual degrees of freedom of an estimated SD (n_used - 2).
-    level : float
-        Probability in (0, 1).
+    level : float or array_like, shape (m,)
+        Probability in (0, 1), or one per fix (:attr:`LikelihoodRegions.level` is then the first).
     known_dof : array_like, shape (m,), optional
         Degrees of freedom of a known SD measured on finitely many trials (inf or NaN: exact).
     sd_floor_deg : array_like, shape (m,), optional
@@ -457,11 +472,12 @@ def likelihood_regions(fix_lat, fix_lon, g, station_lat, station_lon, bearing_de
     chunk : int
         Fixes per vectorised batch (bounds the memory).
     """
-    if not 0.0 < float(level) < 1.0:
-        raise ValueError(f"level={level!r} must be a probability between 0 and 1 (e.g. 0.95)")
     fix_lat = np.asarray(fix_lat, float)
     fix_lon = np.asarray(fix_lon, float)
     m = len(fix_lat)
+    levels = np.broadcast_to(np.asarray(level, float), (m,))
+    if not ((levels > 0.0) & (levels < 1.0)).all() or not 0.0 < float(np.ravel(level)[0]) < 1.0:
+        raise ValueError(f"level={level!r} must be a probability between 0 and 1 (e.g. 0.95)")
     g = np.asarray(g, np.int64)
     # the bearings' arrays are converted (weights without NaN, degrees to radians) batch by batch, not as whole
     # copies held through the loop (same values: each is converted element by element)
@@ -520,7 +536,7 @@ def likelihood_regions(fix_lat, fix_lon, g, station_lat, station_lon, bearing_de
                 b = slice(k0, k0 + step)
                 before = len(pending)
                 args, kw = _batch(b, fm, idx_m, sx_m, sy_m, phi_m, v_m, trig_m, low_m, known, dof, kdof, floor,
-                                  float(level), psi, draw, fix_lat, fix_lon, slat_all, slon_all, bearing_all, spread)
+                                  levels, psi, draw, fix_lat, fix_lon, slat_all, slon_all, bearing_all, spread)
                 res = _march(*args, **kw, pending=pending)
                 del args, kw                        # views of the minimum batch's arrays: not held past it
                 for key, val in res.items():
@@ -540,7 +556,7 @@ def likelihood_regions(fix_lat, fix_lon, g, station_lat, station_lon, bearing_de
                               *(np.concatenate([p[j] for p in pending]) for j in (4, 5, 6)))
                     pending.clear()
                     args, kw = _batch(rows, fm, idx_m, sx_m, sy_m, phi_m, v_m, trig_m, low_m, known, dof, kdof,
-                                      floor, float(level), psi, draw, fix_lat, fix_lon, slat_all, slon_all,
+                                      floor, levels, psi, draw, fix_lat, fix_lon, slat_all, slon_all,
                                       bearing_all, spread)
                     res = _march(*args, **kw, resume=resume)
                     del args, kw, resume
@@ -569,7 +585,7 @@ def likelihood_regions(fix_lat, fix_lon, g, station_lat, station_lon, bearing_de
         radius_m=rad, ray_azimuth_deg=np.degrees(psi), bounded=bounded,
         area_m2=np.where(bounded, area, np.nan), reach_m=np.where(has, reach, np.nan),
         draw_range_m=out["draw_range_m"], star_shaped=out["star_shaped"] & has, s_min=out["s_min"],
-        threshold=out["threshold"], level=float(level), g=g, station_lat=np.asarray(station_lat, float),
+        threshold=out["threshold"], level=float(np.ravel(level)[0]), g=g, station_lat=np.asarray(station_lat, float),
         station_lon=np.asarray(station_lon, float), bearing_deg=np.asarray(bearing_deg, float),
         weight=np.nan_to_num(np.where(ok[g], weight, 0.0), copy=False))
 
@@ -1288,7 +1304,7 @@ def _batch(b, fm, idx_m, sx_m, sy_m, phi_m, v_m, trig_m, low_m, known, dof, kdof
            fix_lon, slat_all, slon_all, bearing_all, spread):
     """:func:`_march`'s arguments for rows ``b`` of a minimum batch (fixes ``fm``, bearings ``idx_m``)."""
     fx, idx = fm[b], idx_m[b]
-    return ((sx_m[b], sy_m[b], phi_m[b], v_m[b], known[fx], dof[fx], kdof[fx], floor[fx], level, psi, draw[fx],
+    return ((sx_m[b], sy_m[b], phi_m[b], v_m[b], known[fx], dof[fx], kdof[fx], floor[fx], level[fx], psi, draw[fx],
              fix_lat[fx], fix_lon[fx]),
             dict(station_lat=slat_all[idx], station_lon=slon_all[idx], theta=np.radians(bearing_all[idx]),
                  spread=spread[fx], trig=(trig_m[0][b], trig_m[1][b]), low=tuple(a[b] for a in low_m)))

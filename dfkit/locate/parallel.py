@@ -21,6 +21,7 @@ import numpy as np
 import pandas as pd
 
 from dfkit.locate.fixes import Fixes
+from dfkit.regions import PER_BEARING_FIELDS, SHARED_FIELDS
 from dfkit.observations import Bearings
 
 #: Fewest fixes in a chunk: below this the cost of handing a chunk over outweighs solving it (a choice of ours,
@@ -52,12 +53,21 @@ def chunks(bearings: Bearings, jobs: int, min_fixes: int = MIN_CHUNK_FIXES) -> l
 def split(bearings: Bearings, lo: int, hi: int) -> tuple[Bearings, np.ndarray]:
     """The fixes with ids in [lo, hi) as a :class:`Bearings` of their own (ids from 0), and the rows of the
     original table it holds."""
+    return subset(bearings, np.arange(lo, hi))
+
+
+def subset(bearings: Bearings, ids) -> tuple[Bearings, np.ndarray]:
+    """The fixes ``ids`` (ascending) as a :class:`Bearings` of their own (ids from 0 in that order), and the rows of
+    the original table it holds (in the table's order)."""
     t = bearings.table
     fid = t["fix_id"].to_numpy(dtype=np.int64)
-    rows = np.flatnonzero((fid >= lo) & (fid < hi))
+    ids = np.asarray(ids, np.int64)
+    new = np.full(len(bearings.fix_index), -1, np.int64)
+    new[ids] = np.arange(len(ids))
+    rows = np.flatnonzero(new[fid] >= 0)
     table = t.iloc[rows].reset_index(drop=True)
-    table["fix_id"] = fid[rows] - lo
-    fix_index = bearings.fix_index.iloc[lo:hi].reset_index(drop=True)
+    table["fix_id"] = new[fid[rows]]
+    fix_index = bearings.fix_index.iloc[ids].reset_index(drop=True)
     fix_index.index.name = bearings.fix_index.index.name
     return replace(bearings, table=table, fix_index=fix_index), rows
 
@@ -135,10 +145,6 @@ def merge(bearings: Bearings, results: list[Fixes], rows: list[np.ndarray], offs
                    likelihood=lik, _regions=None, azimuth_deg=az)
 
 
-#: Fields of the likelihood regions that every chunk shares (not per fix or per bearing), and those per bearing
-#: (a field added later is told by its length).
-_SHARED = ("ray_azimuth_deg", "level")
-_PER_BEARING = ("g", "station_lat", "station_lon", "bearing_deg", "weight")
 
 
 def _merge_regions(parts, sizes, order):
@@ -151,12 +157,12 @@ def _merge_regions(parts, sizes, order):
     n = [len(p.g) for p in parts]
     for f in fields(first):
         values = [getattr(p, f.name) for p in parts]
-        if f.name in _SHARED or not isinstance(values[0], np.ndarray):
+        if f.name in SHARED_FIELDS or not isinstance(values[0], np.ndarray):
             out[f.name] = values[0]
             continue
         if f.name == "g":
             values = [v + lo for v, lo in zip(values, offsets)]
-        per_bearing = f.name in _PER_BEARING or all(len(v) == b != a for v, a, b in zip(values, m, n))
+        per_bearing = f.name in PER_BEARING_FIELDS or all(len(v) == b != a for v, a, b in zip(values, m, n))
         joined = np.concatenate(values)
         out[f.name] = joined[order] if per_bearing else joined
     return type(first)(**out)
