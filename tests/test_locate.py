@@ -191,13 +191,15 @@ def test_an_sd_estimated_with_one_degree_of_freedom_is_noted(write_sheet, capsys
 
 
 def test_covariance_columns_are_those_of_the_ellipse(write_sheet):
-    # The ellipse's semi-axes are k * sqrt(eigenvalues) of the east/north covariance, k = sqrt(chi2_2(0.95))
-    # for a known SD (bivariate normal; computed here with numpy, independently of dfkit's closed form).
+    # The ellipse's semi-axes are k * sqrt(eigenvalues) of the east/north covariance, k = sqrt(chi2_2(level))
+    # for a known SD (bivariate normal; computed here with numpy, independently of dfkit's closed form), at the
+    # level the fix's region is drawn at (0.95, or more for an ok fix that may rest on a wild line).
     rows = [("A", s[0], s[1], round(az(s, T) + e, 4), 2, "") for s, e in zip(S, (1.0, -2.0, 0.5))]
     r = locate(read_bearings(write_sheet(sheet_of(rows)))).table.iloc[0]
     cov = np.array([[r["cov_ee_m2"], r["cov_en_m2"]], [r["cov_en_m2"], r["cov_nn_m2"]]])
     lam = np.linalg.eigvalsh(cov)
-    k = np.sqrt(-2 * np.log(0.05))
+    assert 0.95 <= r["region_level"] < 1.0
+    k = np.sqrt(-2 * np.log(1.0 - r["region_level"]))
     assert (r["semi_minor_m"], r["semi_major_m"]) == pytest.approx(tuple(k * np.sqrt(lam)), rel=1e-9)
 
 

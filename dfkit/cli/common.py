@@ -137,6 +137,10 @@ def add_fix_options(p: argparse.ArgumentParser) -> None:
                         f"(default {WILD_SHARE:g}, one in {1 / WILD_SHARE:.0f}): a fix of three or more bearings "
                         f"whose region could miss because one of them is wild is flagged when that chance reaches "
                         f"1 - level; 0 turns this off (each fix's chance is its wild_risk)")
+    g.add_argument("--wild-rate", choices=("sheet", "prior"), default="sheet",
+                   help="sheet (default): where the sheet's fixes of four or more bearings show wild bearings more "
+                        "often than --wild-share spread evenly over every direction, weigh every fix's wild risk at "
+                        "the sheet's own rate (a note says what it learnt); prior: --wild-share alone")
     g.add_argument("--calibration", default=None, metavar="CAL.csv",
                    help="bias and SD per antenna/observer from 'dfkit calibrate': removes the bias, uses the SD")
 
@@ -300,7 +304,7 @@ def solve(a):
         progress("applying the calibration")
         b = apply(b, read_calibration(a.calibration))
     fixes = locate(b, method=a.method, level=a.level, progress=progress, jobs=getattr(a, "jobs", 1),
-                   wild_share=getattr(a, "wild_share", WILD_SHARE))
+                   wild_share=getattr(a, "wild_share", WILD_SHARE), wild_rate=getattr(a, "wild_rate", "sheet"))
     return b, fixes, progress
 
 

@@ -78,7 +78,8 @@ def _run_add(a) -> int:
         _say_migrated(store)
         for sheet in a.sheets:
             r = add_sheet(store, sheet, method=a.method, level=a.level, replace=a.replace, progress=progress,
-                          jobs=a.jobs, wild_share=a.wild_share, **read_kwargs(a))
+                          jobs=a.jobs, wild_share=a.wild_share,
+                          wild_rate=getattr(a, "wild_rate", "sheet"), **read_kwargs(a))
             report_problems(r.problems, sys.stderr)
             for note in r.notes:
                 print(f"note      {note}", file=sys.stderr)

@@ -30,7 +30,7 @@ _ROUNDING = {"lat": 7, "lon": 7, "true_bearing": 3, "declination": 3, "convergen
              "semi_major_m": 1, "semi_minor_m": 1, "orientation_deg": 1, "area_m2": 0, "sd_deg": 3,
              "crossing_deg": 1, "span_min": 1, "max_residual_deg": 2, "kappa": 1, "residual_deg": 3,
              "weight": 3, "range_m": 1, "region_area_m2": 0, "region_reach_m": 1, "cov_ee_m2": 2, "cov_en_m2": 2,
-             "cov_nn_m2": 2, "wild_risk": 4}
+             "cov_nn_m2": 2, "wild_risk": 4, "region_level": 4}
 
 #: First characters that make a spreadsheet treat a cell as a formula (OWASP CSV Injection guidance), plus the
 #: line feed that a carriage return becomes when written.

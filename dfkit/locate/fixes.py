@@ -89,7 +89,7 @@ def has_position(status) -> np.ndarray:
 FIX_COLUMNS = [
     "fix", "tag", "time", "lat", "lon", "n_bearings", "n_used", "method", "sd_deg", "sd_source", "level",
     "semi_major_m", "semi_minor_m", "orientation_deg", "area_m2",
-    "region_area_m2", "region_bounded", "region_reach_m", "wild_risk",
+    "region_area_m2", "region_bounded", "region_reach_m", "wild_risk", "region_level",
     "cov_ee_m2", "cov_en_m2", "cov_nn_m2",
     "status", "reason", "crossing_deg", "span_min", "max_residual_deg", "kappa", "iterations", "converged",
     "rejected_lines",

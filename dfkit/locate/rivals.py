@@ -91,10 +91,12 @@ class Rival:
     by_risk: bool = False
     settled: bool = True
     strip: bool = False
+    #: whether the risk was weighed with the sheet's own wild lines (:mod:`dfkit.locate.wildlines`)
+    sheet_rate: bool = False
 
 
 def find_rivals(lat, lon, theta, sd, g, counts, sol, lik, level, examine, known_dof=None, sd_floor=None,
-                wild_share=WILD_SHARE):
+                wild_share=WILD_SHARE, wild_lines=None):
     """Competing explanations of the fixes ``examine`` (see the module docstring).
 
     Parameters
@@ -115,6 +117,8 @@ def find_rivals(lat, lon, theta, sd, g, counts, sol, lik, level, examine, known_
         Degrees of freedom of a measured known SD, per fix (inf: exact).
     sd_floor : ndarray, shape (N,), optional
         Each bearing's SD floor [°] (:mod:`dfkit.locate.resolution`).
+    wild_lines : dfkit.locate.wildlines.WildLines, optional
+        The sheet's own wild lines, weighed with the prior where they are more common.
 
     Returns
     -------
@@ -138,7 +142,7 @@ def find_rivals(lat, lon, theta, sd, g, counts, sol, lik, level, examine, known_
     region = _fix_region(g, m, sol, lik, level, kdof)
     with np.errstate(divide="ignore", invalid="ignore"):
         full_weight = 1.0 / np.radians(np.asarray(sd, float)) ** 2
-    wild = wild_risk(g, m, sol, look & sol.sd_known, region, wild_share)
+    wild = wild_risk(g, m, sol, look & sol.sd_known, region, wild_share, wild_lines)
     chosen = _chosen(wild, level)
     picked_bearing = np.zeros(len(g), bool)
     picked_bearing[chosen[chosen >= 0]] = True
@@ -160,7 +164,7 @@ def find_rivals(lat, lon, theta, sd, g, counts, sol, lik, level, examine, known_
     one_out = look & sol.sd_known & (n_used < counts)
     if one_out.any():
         starts = _starts(sol, used, g, alt, v_fix, v_out, one_out)
-        dropped_risk(g, m, sol, one_out, region, wild_share, full_weight, starts, wild)
+        dropped_risk(g, m, sol, one_out, region, wild_share, full_weight, starts, wild, wild_lines)
         chosen = _chosen(wild, level)
     _, p = consistency(alt, mo, k)
     with np.errstate(invalid="ignore"):
@@ -192,6 +196,7 @@ def find_rivals(lat, lon, theta, sd, g, counts, sol, lik, level, examine, known_
         rv.by_risk = True
         rv.settled = bool(np.isfinite(rv.distance_m) and rv.distance_m <= reach[i])
         rv.strip = bool(wild.strip[i] >= 0 and not wild.risk[i] >= 1.0 - float(level))
+        rv.sheet_rate = bool(wild_lines is not None and wild_lines.raises)
     return rivals, wild.risk
 
 

@@ -472,7 +472,7 @@ def _wild_text(rv, lines, sol, i, level, where):
     else:
         alone = (f"without it the other {others} bearings agree on {where}, where line {k} misses by "
                  f"{rv.miss_deg:+.0f}°, {'outside this region' if rv.outside else 'inside this region, though most of what they allow lies outside it'}")
-    return (f"it may rest on a wild line {k}: {alone}; with {_share(rv.wild_share)} wild, the chance that one of its "
+    return (f"it may rest on a wild line {k}: {alone}; with {_prior_words(rv)}, the chance that one of its "
             f"lines (most likely line {k}) is wild and this region misses the transmitter is {_percent(rv.chance)} "
             f"(wild_risk), at least the {_percent(1.0 - level)} of misses the region allows (set the share with "
             f"--wild-share): check line {k}, or take another bearing from another direction")
@@ -503,11 +503,19 @@ def _dropped_wild_text(rv, lines, sol, i, level, where):
         head = f"{j}, which the fit dropped, may be good"
         alone = (f"with {them} all {int(sol.n_used[i]) + len(rv.dropped)} bearings agree on {where}, {miss}"
                  if rv.settled else f"with {them} the bearings do not settle on one place within reach")
-        why = f"with {_share(rv.wild_share)} wild (set the share with --wild-share)"
+        why = f"with {_prior_words(rv)} (set the share with --wild-share)"
         check = f"check {j}"
     return (f"{head}: {alone}; {why}: the chance that the fit kept a wild line or dropped a good one and this region "
             f"misses the transmitter is {_percent(rv.chance)} (wild_risk), at least the {_percent(1.0 - level)} of "
             f"misses the region allows: {check}, or take another bearing from another direction")
+
+
+def _prior_words(rv):
+    """The prior the wild risk was weighed with, in words."""
+    if rv.sheet_rate:
+        return (f"wild lines as common as this sheet's own fixes show them (see its notes; at least "
+                f"{_share(rv.wild_share)})")
+    return f"{_share(rv.wild_share)} wild"
 
 
 def _share(q):

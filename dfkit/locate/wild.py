@@ -107,7 +107,7 @@ class WildRisk:
             self.strip = np.full(len(self.left_out), -1)
 
 
-def wild_risk(g, m, sol, weigh, region, wild_share) -> WildRisk:
+def wild_risk(g, m, sol, weigh, region, wild_share, lines=None) -> WildRisk:
     """The wild risk of the fixes ``weigh`` (bool, shape (m,)) solved with a known SD from every bearing.
 
     Parameters
@@ -120,6 +120,8 @@ def wild_risk(g, m, sol, weigh, region, wild_share) -> WildRisk:
         Per fix (S_min, bound, centre x, centre y [m]) of its likelihood-ratio region.
     wild_share : float
         Prior probability that a bearing is wild.
+    lines : dfkit.locate.wildlines.WildLines, optional
+        The sheet's own wild lines, which raise the prior's density where they are more common.
 
     Returns
     -------
@@ -131,11 +133,11 @@ def wild_risk(g, m, sol, weigh, region, wild_share) -> WildRisk:
     # with no prior share nothing is weighed
     out = WildRisk(np.where(whole & (wild_share > 0), 0.0, np.nan), np.full(m, -1))
     if wild_share > 0 and whole.any():
-        _weigh_chunks(whole[g] & used, g, m, sol, region, _prior(wild_share), out, _chunk_risk)
+        _weigh_chunks(whole[g] & used, g, m, sol, region, _prior(wild_share, lines), out, _chunk_risk)
     return out
 
 
-def dropped_risk(g, m, sol, weigh, region, wild_share, full_weight, starts, out):
+def dropped_risk(g, m, sol, weigh, region, wild_share, full_weight, starts, out, lines=None):
     """The wild risk of the fixes ``weigh`` (bool, shape (m,)) solved with a known SD from three or more of their
     bearings, leaving one or more out, four or more bearings a fix (:func:`_dropped_risk`), into ``out`` (a
     :class:`WildRisk`).
@@ -144,7 +146,8 @@ def dropped_risk(g, m, sol, weigh, region, wild_share, full_weight, starts, out)
     ``starts`` = (x, y per bearing k: the answer of the fix without k; x, y per fix: the answer of all its
     bearings), in each fix's plane [m], NaN where none is known: where each alternative's steps start. dfkit passes
     the exact answers of :mod:`dfkit.locate.rivals` (Lenth's fit of each subset, from several starts): from a
-    linear start about a far answer, Gauss-Newton steps can run away from a minimum that exists.
+    linear start about a far answer, Gauss-Newton steps can run away from a minimum that exists. ``lines``: as
+    :func:`wild_risk`'s.
     """
     used = sol.weight > 0
     counts = np.bincount(g, minlength=m)
@@ -153,13 +156,29 @@ def dropped_risk(g, m, sol, weigh, region, wild_share, full_weight, starts, out)
     if wild_share <= 0 or not some_out.any():
         return out
     out.risk[some_out], out.left_out[some_out] = 0.0, -1
-    _weigh_chunks(some_out[g], g, m, sol, region, _prior(wild_share), out, _dropped_risk, full_weight, *starts)
+    _weigh_chunks(some_out[g], g, m, sol, region, _prior(wild_share, lines), out, _dropped_risk, full_weight,
+                  *starts)
     return out
 
 
-def _prior(wild_share):
-    """Log prior odds of a bearing being wild."""
-    return np.log(wild_share / (1.0 - wild_share))
+@dataclass(frozen=True)
+class _Prior:
+    """Log prior odds of a bearing being wild (``odds``), and the sheet's wild lines (``lines``, or None) that
+    raise them at some misses."""
+
+    odds: float
+    lines: object = None
+
+    def at(self, miss_rad):
+        """The log prior odds, with the wild line's density against the uniform one's, at each miss [rad] of the
+        wild line from its answer."""
+        return self.odds if self.lines is None else self.odds + self.lines.log_raise(miss_rad)
+
+
+def _prior(wild_share, lines=None):
+    """The prior of a bearing being wild (:class:`_Prior`)."""
+    return _Prior(float(np.log(wild_share / (1.0 - wild_share))), lines if lines is not None and lines.raises
+                  else None)
 
 
 def _weigh_chunks(take, g, m, sol, region, prior, out, chunk_risk, *extra):
@@ -298,7 +317,7 @@ def _dropped_risk(idx, n, g, sol, region, prior, out, full_weight, start_x, star
         lost0 = np.where(in_disc0 > 0, 1.0 - in_both0 / in_disc0, 1.0)
     lo = rows(log_odds)
     lost = np.where(rows(own), 0.0, rows(lost))
-    lod = _several_dropped(n, rows, dropped, single, v, sx, sy, s0, det0, s_fix, reach, prior)
+    lod = _several_dropped(n, rows, dropped, single, v, sx, sy, s0, det0, s_fix, reach, prior, r_at)
     top = np.fmax(np.fmax(lo0, lo.max(1)), lod)
     fin = np.isfinite(top)
     top = np.where(fin, top, 0.0)
@@ -315,7 +334,7 @@ def _dropped_risk(idx, n, g, sol, region, prior, out, full_weight, start_x, star
     out.left_out[fid[has]] = pick[has]
 
 
-def _several_dropped(n, rows, dropped, single, v, sx, sy, s0, det0, s_fix, reach, prior):
+def _several_dropped(n, rows, dropped, single, v, sx, sy, s0, det0, s_fix, reach, prior, r_at):
     """Per fix of a chunk, the log odds of HD (every line the fit dropped is wild) against H0 where it dropped two
     or more lines (-inf elsewhere: there Hd is one of the left-out answers): Laplace's method at the fix with the
     lines it kept, S there, and for each dropped line its prior odds and the density its Gaussian would have had,
@@ -330,7 +349,7 @@ def _several_dropped(n, rows, dropped, single, v, sx, sy, s0, det0, s_fix, reach
     det_d = jd[0] * jd[2] - jd[1] * jd[1]
     zero = np.zeros(nf)
     (in_disc,) = inside_shares(zero, zero, jd, [_disc(reach)])
-    lines = rows(np.where(dropped, -0.5 * np.log(2.0 * np.pi * v) + prior, 0.0))
+    lines = rows(np.where(dropped, -0.5 * np.log(2.0 * np.pi * v) + prior.at(r_at), 0.0))
     with np.errstate(divide="ignore", invalid="ignore"):
         odds = (0.5 * (s0 - s_fix) + 0.5 * np.log(det0 / det_d) + _rows_added(lines) + np.log(in_disc))
     lod[many] = np.where(np.isfinite(odds[many]) & (det_d[many] > 0), odds[many], -np.inf)
@@ -510,7 +529,10 @@ def _left_out(k, i, row, f, v, sx, sy, phi, x0, y0, prior, fixes, always=None, s
         cut = _chi2_bound(row - 2)                          # one size a chunk: one bound
         limit = cut if at_least is None else np.fmax(cut, at_least[f])
         plausible = (n_alt >= 2) & ~behind & (detk > 0) & (sk <= limit)
-        log_odds = (0.5 * (s0[f] - sk) + 0.5 * np.log(det0[f] / detk) - 0.5 * np.log(2.0 * np.pi * v) + prior)
+        # the wild line's miss from its answer, where its density is taken
+        miss = wrap_pi(phi - np.arctan2(xk - sx, yk - sy)) if prior.lines is not None else None
+        log_odds = (0.5 * (s0[f] - sk) + 0.5 * np.log(det0[f] / detk) - 0.5 * np.log(2.0 * np.pi * v)
+                    + prior.at(miss))
     # only chances above 1e-4 count (the disc below only lowers them)
     counted = plausible & (log_odds > np.log(1e-4))
     if always is not None:
@@ -555,7 +577,7 @@ def _left_out(k, i, row, f, v, sx, sy, phi, x0, y0, prior, fixes, always=None, s
             # log BF = log(Q / 2 pi) - log E0, E0 by Laplace: exp(-S0/2) (2 pi)^(-3/2) / (s1 s2 sk) 2 pi / sqrt(det0)
             log_e0 = (-0.5 * s0[ft] - 0.5 * np.log(2.0 * np.pi) + 0.5 * np.log(v[two] * v[i1] * v[i2])
                       - 0.5 * np.log(det0[ft]))
-            lo = log_q - np.log(2.0 * np.pi) - log_e0 + prior
+            lo = log_q - np.log(2.0 * np.pi) - log_e0 + (prior.odds if miss is None else prior.at(miss[two]))
         counted = lo > np.log(1e-4)
         if always is not None:
             counted |= always[two]

@@ -1,0 +1,156 @@
+"""How often, and how far, this sheet's bearings go wild: the wild risk weighed at the sheet's own rate.
+
+The wild risk (:mod:`dfkit.locate.wild`) weighs "one bearing of the fix is wild" with a prior: a share
+``wild_share`` of bearings, each equally likely in every direction (density 1 / (2 pi)). A sheet whose wild
+bearings are more common, or come mostly from a few tens of degrees off (a reflection off a ridge, a side lobe),
+has far more of them just where a three-line fix can absorb one: there the uniform prior makes a wrong fix look
+safe. A reviewer's sheet with one line in ten 20-60° off left 181 three-line fixes ``ok`` and wrong (Dec 2026).
+
+What the sheet shows, it shows in its fixes of four or more lines with a known SD: a bearing that misses its fix
+by :data:`CLEAR_SDS` of its SDs or more is wild beyond doubt (a good bearing does so about once in 1.7 million),
+and its miss is how far it went. :func:`learn` counts them in bins of the miss, each bin over the bearings that
+could have shown a miss there (those whose SD puts the bin beyond the cut: the counts are corrected for the misses
+a bearing with a wide SD cannot show), and turns each bin into a density of wild bearings per radian of miss.
+That is the mixing density of a contaminated model estimated from the clear outliers (an empirical Bayes step,
+H. Robbins, 1956, *Proc. Third Berkeley Symposium*, vol. 1, pp. 157-163 [from memory]).
+
+The wild risk then weighs Hk with the larger of the prior's density and the sheet's, at bearing k's miss under Hk
+(:meth:`WildLines.log_raise`): the sheet can only raise a fix's risk, never lower it below what the prior gives,
+and a sheet without enough clear wild bearings (:data:`MIN_WILD`) changes nothing. Every fix with a wild risk is
+then weighed again (:func:`dfkit.locate.core.locate`), and the sheet gets a note saying what was learnt.
+"""
+
+from __future__ import annotations
+
+from dataclasses import dataclass
+
+import numpy as np
+
+#: The ways of weighing the wild risk (:func:`dfkit.locate.locate`'s ``wild_rate``): at the sheet's own rate where
+#: it shows more wild lines than the prior, or at the prior's alone.
+RATES = ("sheet", "prior")
+#: A bearing at least this many of its SDs off its fix is a clear wild line (our choice: the two-sided normal tail
+#: beyond 5 SD is 5.7e-7; the residual of a kept good line at its fix is smaller than its SD, that of a line a
+#: robust fit dropped about its SD times sqrt(1 + h), h < 1).
+CLEAR_SDS = 5.0
+#: Fewest bearings of four-or-more-line fixes a sheet must show before its wild lines are learnt, and fewest clear
+#: wild lines; a bin of the miss needs MIN_BIN of them (our choices: below, a bin's count is too rough to act on).
+MIN_LINES = 200
+MIN_WILD = 20
+MIN_BIN = 5
+#: Bins of the miss [°], either side.
+EDGES_DEG = np.array([0.0, 10.0, 20.0, 30.0, 40.0, 50.0, 60.0, 75.0, 90.0, 120.0, 150.0, 180.0])
+#: Fewest bearings in a fix whose misses are counted (with three, one wild line pulls the fix toward itself and
+#: the other two look as far off as it does).
+MIN_FIX_LINES = 4
+
+
+@dataclass(frozen=True)
+class WildLines:
+    """What a sheet's clear wild bearings say, against the prior ``share`` spread evenly."""
+
+    share: float
+    #: per bin of EDGES_DEG: clear wild lines counted, bearings that could show it (corrected), and the density of
+    #: wild lines there as prior odds per radian
+    counts: np.ndarray
+    exposed: np.ndarray
+    density: np.ndarray
+    #: bearings examined (fixes of MIN_FIX_LINES or more lines with a known SD and a position)
+    examined: int
+
+    @property
+    def floor(self):
+        """The prior's density as odds per radian: share / (1 - share) / (2 pi)."""
+        return self.share / (1.0 - self.share) / (2.0 * np.pi)
+
+    @property
+    def raise_by(self) -> np.ndarray:
+        """Per bin, the factor (at least 1) by which the sheet raises the prior's density."""
+        with np.errstate(divide="ignore", invalid="ignore"):
+            return np.where(self.counts >= MIN_BIN, np.fmax(self.density / self.floor, 1.0), 1.0)
+
+    @property
+    def raises(self) -> bool:
+        return bool(self.counts.sum() >= MIN_WILD and (self.raise_by > 1.0).any())
+
+    def log_raise(self, miss_rad):
+        """log of the factor at each miss [rad] (0 where the sheet says nothing more than the prior)."""
+        b = np.clip(np.searchsorted(EDGES_DEG, np.degrees(np.abs(miss_rad)), side="right") - 1, 0,
+                    len(EDGES_DEG) - 2)
+        return np.log(self.raise_by)[b]
+
+    def note(self) -> str:
+        """The sheet's note: what was learnt and what it changed."""
+        f = self.raise_by
+        up = np.flatnonzero(f > 1.0)
+        lo, hi = EDGES_DEG[up.min()], EDGES_DEG[up.max() + 1]
+        n = int(self.counts.sum())
+        share = n / max(self.examined, 1)
+        return (f"wild lines: {n} of the {self.examined} bearings in fixes of {MIN_FIX_LINES} or more lines with a "
+                f"known SD miss their fix by {CLEAR_SDS:g} SDs or more ({100 * share:.1f} %), most {lo:g}-{hi:g}° off; "
+                f"there wild lines are up to {f.max():.1f} times as common as the {100 * self.share:g} % spread "
+                f"evenly over every direction that dfkit assumes, so every fix's wild risk was weighed at this sheet's "
+                f"own rate (a three-line fix can absorb such a line and still look consistent)")
+
+
+def learn(fixes, share) -> WildLines | None:
+    """The clear wild lines of a located sheet (:class:`dfkit.locate.Fixes`), against the prior ``share``; None when
+    the sheet has too few bearings of fixes of MIN_FIX_LINES or more lines with a known SD to say anything.
+
+    A bearing k's miss is its deleted residual, r_k / (1 - h_k) in the fix's linear model (h_k its leverage, with
+    the fit's weights: a line the fit dropped has h_k = 0 and its residual is its miss), and it is clear when its
+    studentised form r_k / (SD_k sqrt(1 - h_k)) reaches CLEAR_SDS (R. D. Cook & S. Weisberg, *Residuals and
+    Influence in Regression*, 1982, ch. 2 [from memory]): a wild line that carries its fix (h_k near 1) pulls the
+    fix onto itself, and its residual at the fix says little.
+    """
+    t, b = fixes.table, fixes.bearings
+    if share <= 0 or not len(b) or not len(t) or fixes.azimuth_deg is None:
+        return None
+    g = b["fix_id"].to_numpy(np.int64)
+    m = len(t)
+    known = t["sd_source"].isin(("given", "calibration", "given+calibration")).to_numpy()
+    many = t["n_bearings"].to_numpy(np.int64) >= MIN_FIX_LINES
+    sd = b["sd"].to_numpy(float)
+    if "rounding_sd_deg" in b:
+        sd = np.hypot(sd, np.nan_to_num(b["rounding_sd_deg"].to_numpy(float)))
+    r = b["residual_deg"].to_numpy(float)
+    d = b["range_m"].to_numpy(float)
+    w = b["weight"].to_numpy(float)
+    fine = np.isfinite(r) & np.isfinite(sd) & (sd > 0) & np.isfinite(d) & (d > 0) & np.isfinite(w)
+    take = (known & many & np.isfinite(t["lat"].to_numpy(float)))[g] & fine
+    if take.sum() < MIN_LINES:
+        return None
+    # leverages at the fix (the gradient of a bearing is 1 / d across its line of sight): with the fit's weights for
+    # each miss (a dropped line's is 0: its residual is its miss), and with every line at full weight for the cut
+    # (what a wild line there would show against the spread of good ones: the deleted residual's SD is
+    # SD_k / sqrt(1 - h_k))
+    az = np.radians(np.asarray(fixes.azimuth_deg, float))
+    gx, gy = np.where(take, -np.cos(az) / d, 0.0), np.where(take, np.sin(az) / d, 0.0)
+    full = np.where(take, 1.0 / np.radians(np.where(fine, sd, 1.0)) ** 2, 0.0)
+    h_fit = _leverages(g, m, full * np.where(take, w, 0.0), gx, gy)
+    h_full = _leverages(g, m, full, gx, gy)
+    take &= np.isfinite(h_fit) & (h_fit < 1.0 - 1e-9) & np.isfinite(h_full) & (h_full < 1.0 - 1e-9)
+    r, sd = np.abs(r[take]), sd[take]
+    miss = r / (1.0 - np.clip(h_fit[take], 0.0, None))
+    cut = CLEAR_SDS * sd / np.sqrt(1.0 - np.clip(h_full[take], 0.0, None))     # the smallest clear miss
+    clear = miss >= cut
+    lo, hi = EDGES_DEG[:-1], EDGES_DEG[1:]
+    counts = np.histogram(np.fmin(miss[clear], 180.0), EDGES_DEG)[0].astype(float)
+    # each bearing's share of each bin beyond its own cut: where it could have shown a clear miss
+    reach = np.clip((hi[None, :] - np.fmax(lo[None, :], cut[:, None])) / (hi - lo)[None, :], 0.0, 1.0)
+    exposed = reach.sum(0)
+    width = 2.0 * np.radians(hi - lo)                        # either side
+    with np.errstate(divide="ignore", invalid="ignore"):
+        # a bin's count less one Poisson SD: a bin raises the prior only by what it shows beyond its own noise
+        density = np.where(exposed > 0, np.fmax(counts - np.sqrt(counts), 0.0) / (exposed * width), 0.0)
+    wild = float(np.sum(density * width))                   # the share of bearings wild at the learnt misses
+    density = density / max(1.0 - min(wild, 0.5), 0.5)      # as odds against a good bearing
+    return WildLines(float(share), counts, exposed, density, int(take.sum()))
+
+
+def _leverages(g, m, v, gx, gy):
+    """Each bearing's leverage h = v g^T J^-1 g in its fix's linear model, J = sum v g g^T over the fix."""
+    j11, j12, j22 = (np.bincount(g, v * a, m) for a in (gx * gx, gx * gy, gy * gy))
+    det = j11 * j22 - j12 * j12
+    with np.errstate(divide="ignore", invalid="ignore"):
+        return v * (j22[g] * gx * gx - 2.0 * j12[g] * gx * gy + j11[g] * gy * gy) / det[g]
