@@ -136,9 +136,11 @@ def learn(fixes, share) -> WildLines | None:
     clear = miss >= cut
     lo, hi = EDGES_DEG[:-1], EDGES_DEG[1:]
     counts = np.histogram(np.fmin(miss[clear], 180.0), EDGES_DEG)[0].astype(float)
-    # each bearing's share of each bin beyond its own cut: where it could have shown a clear miss
-    reach = np.clip((hi[None, :] - np.fmax(lo[None, :], cut[:, None])) / (hi - lo)[None, :], 0.0, 1.0)
-    exposed = reach.sum(0)
+    if counts.sum() < MIN_WILD:         # nothing to learn: the prior stands
+        return WildLines(float(share), counts, np.zeros(len(lo)), np.zeros(len(lo)), int(take.sum()))
+    # each bearing's share of each bin beyond its own cut, where it could have shown a clear miss (bin by bin: a
+    # (bearings, bins) array would be the largest of the run)
+    exposed = np.array([np.clip((b - np.fmax(a, cut)) / (b - a), 0.0, 1.0).sum() for a, b in zip(lo, hi)])
     width = 2.0 * np.radians(hi - lo)                        # either side
     with np.errstate(divide="ignore", invalid="ignore"):
         # a bin's count less one Poisson SD: a bin raises the prior only by what it shows beyond its own noise
