@@ -107,7 +107,10 @@ class Fixes:
         position, the covariance ellipse (``semi_major_m`` ...), the likelihood
         region (``region_area_m2``, NaN when open; ``region_bounded``;
         ``region_reach_m`` the farthest its edge lies from the fix), ``wild_risk`` (the chance that the
-        region misses because one bearing is wild, :mod:`dfkit.locate.wild`; NaN where not weighed), the east/north
+        region misses because one bearing is wild, :mod:`dfkit.locate.wild`; NaN where not weighed),
+        ``region_level`` (the probability the region and ellipse are drawn at if every bearing is good: the level,
+        or level + wild_risk for an ok fix whose risk is 0.5 % or more, so that it holds the transmitter with the
+        level's probability counting that risk), the east/north
         covariance of the position (``cov_ee_m2``, ``cov_en_m2``, ``cov_nn_m2``),
         ``sd_source`` ('given', 'calibration', 'given+calibration' when every
         bearing has an SD; 'estimated' from the fix's own residuals), status and reason.

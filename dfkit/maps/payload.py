@@ -108,6 +108,8 @@ def build(fixes: Fixes, *, error_polygons: bool = False, title: str = "dfkit fix
         "or": _ints(np.where(has_ell, t["orientation_deg"], np.nan), 10),
         "res": _ints(t["max_residual_deg"], 10), "cross": _ints(t["crossing_deg"], 10),
         "wild": _ints(t["wild_risk"] if "wild_risk" in t else np.full(len(t), np.nan), 1000),
+        # the level the region is drawn at, in 1/10000 (above the level where widened for the wild risk)
+        "rl": _ints(t["region_level"] if "region_level" in t else np.full(len(t), np.nan), 10000),
         "method": _text(t["method"]),
     }
 

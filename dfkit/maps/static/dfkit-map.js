@@ -204,7 +204,9 @@
         [Math.round(100 * D.level) + "% region", ell],
         ["crossing angle", F.cross[i] == null ? "" : fmtNum(F.cross[i], 10, 0) + "\u00b0"],
         ["largest residual", F.res[i] == null ? "" : fmtNum(F.res[i], 10, 1) + "\u00b0"],
-        ["wild risk", F.wild == null || F.wild[i] == null ? "" : fmtNum(F.wild[i], 10, 1) + " %"]]);
+        ["wild risk", F.wild == null || F.wild[i] == null ? "" : fmtNum(F.wild[i], 10, 1) + " %" +
+          (F.rl && F.rl[i] != null && F.rl[i] > Math.round(10000 * D.level) ?
+            " (region drawn at " + fmtNum(F.rl[i], 100, 1) + " % to allow for it)" : "")]]);
     }
     function bearingPopup(j) {
       var i = B.fix[j];
