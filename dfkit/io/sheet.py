@@ -124,6 +124,10 @@ class RawSheet:
     comment_lines: list[int] = field(default_factory=list)
     blank_lines: list[int] = field(default_factory=list)
     numeric: tuple[str, ...] = ()
+    #: The text of a column held as numbers (``number_text("lat")``: its cells as written, stripped, one per row of
+    #: ``table``), parsed again from the file when first asked; None when the sheet holds no such column. The step
+    #: a value was written to needs its trailing zeros (``47.8700``), which the number has lost.
+    number_text: object = field(default=None, repr=False, compare=False)
 
     def __post_init__(self):
         own = [c for c in self.table.columns if str(c).startswith(_OWN)]
@@ -421,6 +425,7 @@ def read_sheet(source, *, name: str | None = None, own_results: str = "recompute
     if own_results not in ("recompute", "keep"):
         raise ValueError(f"own_results='{own_results}' must be 'recompute' or 'keep'")
     columns = _resolve_header(header, header_idx + 1, name, problems, own_results == "keep")
+    header_columns = list(columns)
     width = len(columns)
 
     bounds = dict(numeric) if isinstance(numeric, dict) else dict.fromkeys(numeric)
@@ -431,7 +436,7 @@ def read_sheet(source, *, name: str | None = None, own_results: str = "recompute
         got = _fast_read(text, lines.all, header_idx, delimiter, width, want)
     if got is None:
         got = _careful_read(lines.all, header_idx, delimiter, width, name, problems, "'" in text)
-    line_no, cells, more_comments, more_blanks, n_unguarded = got
+    line_no, cells, more_comments, more_blanks, n_unguarded, *reread = got
     comments += more_comments
     blanks += more_blanks
 
@@ -442,6 +447,10 @@ def read_sheet(source, *, name: str | None = None, own_results: str = "recompute
     table = _drop_empty_unnamed(table, columns, header, header_idx + 1, name, problems)
     columns = [c for c in table.columns if c != "line"]
     held = tuple(c for c in columns if table[c].dtype.kind == "f")    # read as numbers (``numeric``)
+    number_text = None
+    if held and reread and reread[0] is not None:
+        index = {c: j for j, c in enumerate(header_columns) if c in held}
+        number_text = _NumberText(reread[0], index)
     if n_unguarded:
         problems.append(Problem(0, "", f"{n_unguarded} {'cell' if n_unguarded == 1 else 'cells'} began with ' "
                                 "before =, +, -, @, tab or CR (a guard against spreadsheet formulas, as dfkit "
@@ -453,7 +462,22 @@ def read_sheet(source, *, name: str | None = None, own_results: str = "recompute
     _note_skipped(comments, blanks, name, problems)
     return RawSheet(table=table, columns=columns, delimiter=delimiter, decimal_comma=delimiter != ",",
                     problems=problems, skipped_lines=len(comments) + len(blanks), source=name,
-                    comment_lines=comments, blank_lines=blanks, numeric=held)
+                    comment_lines=comments, blank_lines=blanks, numeric=held, number_text=number_text)
+
+
+class _NumberText:
+    """:attr:`RawSheet.number_text`: the cells of a column read as numbers, as text, by column name."""
+
+    def __init__(self, reread, index):
+        self._reread, self._index, self._cache = reread, index, {}
+
+    def __call__(self, name):
+        j = self._index.get(name)
+        if j is None:
+            return None
+        if name not in self._cache:
+            self._cache[name] = self._reread(j)
+        return self._cache[name]
 
 
 def _blank(text) -> bool:
@@ -586,7 +610,6 @@ def _parse_body(body, n_body, numbers, comment, delimiter, width, want):
                 raw[j] = pd.read_csv(body(), usecols=[j], dtype=str, **kw)[j]
     texts = [j for j in range(width) if j not in floats]
     padded, guarded = body.padded(delimiter), body.guarded()
-    del body
     n_rows = len(raw[0])
     tidy, n_unguarded = _tidy([raw[j].to_numpy(dtype=object) for j in texts], padded, guarded)
     del raw
@@ -597,11 +620,19 @@ def _parse_body(body, n_body, numbers, comment, delimiter, width, want):
     for c in tidy:
         blank &= c == ""
     numbers_kept = numbers[~comment] if comment.any() else numbers
-    if not blank.any():       # no blank row (the common case): the columns as they are, not a copy of each
-        return numbers_kept, cells, numbers[comment].tolist(), [], n_unguarded
-    keep = ~blank
+    keep = ~blank if blank.any() else None
+
+    def reread(j):
+        """Column ``j`` (read as numbers) parsed again as text, stripped, one cell per row kept."""
+        col = pd.read_csv(body(), usecols=[j], dtype=str, **kw)[j]
+        col = col.str.strip().to_numpy(dtype=object)
+        return col if keep is None else col[keep]
+
+    reread = reread if floats else None
+    if keep is None:       # no blank row (the common case): the columns as they are, not a copy of each
+        return numbers_kept, cells, numbers[comment].tolist(), [], n_unguarded, reread
     return (numbers_kept[keep], [c[keep] for c in cells], numbers[comment].tolist(),
-            numbers_kept[blank].tolist(), n_unguarded)
+            numbers_kept[blank].tolist(), n_unguarded, reread)
 
 
 class _parser_source:

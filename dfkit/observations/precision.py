@@ -39,6 +39,7 @@ from __future__ import annotations
 import re
 
 import numpy as np
+import pandas as pd
 
 from dfkit.conventions import WGS84_A, WGS84_F
 from dfkit.observations.cells import per_value
@@ -121,15 +122,51 @@ def angle_text_step(text: str, axis: str, decimal_comma: bool = False) -> float:
     return 10.0**-decimals / unit
 
 
-def _angle_steps(cells, axis, decimal_comma, rows):
-    """Step of the angle cells ``rows`` [°]: from the text where the cells are text, from the values where the
-    reader kept the column as numbers (trailing zeros lost)."""
+def _angle_steps(cells, axis, decimal_comma, rows, text=None):
+    """Step of the angle cells ``rows`` [°], twice: as written, and as the value needs (trailing zeros left out).
+
+    As written: from the text where the cells are text, and where the reader kept the column as numbers from the
+    cells as the file wrote them when the reader can give them (``text``: a function returning the column's text
+    cells, :attr:`dfkit.io.sheet.RawSheet.number_text`; a cell ``47.8700`` was written to 4 decimals though its
+    value needs 2), else from the values. As the value needs: the same without the trailing zeros of plain decimal
+    numbers (degrees and minutes or seconds keep theirs). Returns (written, value)."""
     if isinstance(cells, np.ndarray) and cells.dtype.kind == "f":
         # finer than 5 decimals (1.1 m) is below the policy's limit anyway; 5 is looked for so that a position
         # of 5 decimals that lost a trailing zero is seen as one (the fix's step is exactly ten times finer)
-        return decimal_step(cells[rows], VALUE_DECIMALS)
+        value = decimal_step(cells[rows], VALUE_DECIMALS)
+        written = value.copy()
+        coarse = np.flatnonzero(value > 0)          # only these can show more (a GPS position needs 6+ decimals)
+        got = text() if text is not None and len(coarse) else None
+        if got is not None:
+            shown = _shown_decimals(got[rows[coarse]])
+            more = shown > np.rint(-np.log10(value[coarse])).astype(int)
+            # finer than VALUE_DECIMALS: 0, as a value's
+            written[coarse[more]] = np.where(shown[more] > VALUE_DECIMALS, 0.0,
+                                             10.0 ** -shown[more].astype(float))
+        return written, value
     sub = np.asarray(cells, dtype=object)[rows]
-    return np.asarray(per_value(sub, lambda t: angle_text_step(t, axis, decimal_comma)), float)
+    written = np.asarray(per_value(sub, lambda t: angle_text_step(t, axis, decimal_comma)), float)
+    value = written.copy()
+    zeros = np.flatnonzero(_trailing_zero(sub))
+    if len(zeros):
+        value[zeros] = np.asarray(per_value(sub[zeros], lambda t: angle_text_step(str(t).strip().rstrip("0"), axis,
+                                                                                  decimal_comma)), float)
+    return written, value
+
+
+def _shown_decimals(texts) -> np.ndarray:
+    """Decimals each plain decimal text shows (``47.8700`` -> 4, ``47`` -> 0); -1 for any other text (an
+    exponent ...), which then says nothing beyond its value."""
+    s = pd.Series(texts, dtype=object).astype(str)
+    plain = s.str.fullmatch(r"[+-]?\d*\.?\d*") & s.str.contains(r"\d", regex=True)
+    frac = s.str.partition(".")[2].str.len()
+    return np.where(plain.to_numpy(bool), frac.to_numpy(int), -1)
+
+
+def _trailing_zero(texts) -> np.ndarray:
+    """Whether each text is a plain decimal number ending in a zero after its decimal point (``47.870``)."""
+    s = pd.Series(texts, dtype=object).astype(str).str.strip()
+    return s.str.fullmatch(r"[+-]?\d*\.\d*0").fillna(False).to_numpy(bool)
 
 
 #: Share of rows whose latitude and longitude both lose one trailing zero by chance (each ends in 0 one time in ten).
@@ -183,6 +220,33 @@ def _lost_zeros(groups, all_rows, rows, step, plain=None):
     return step
 
 
+def _utm_levels(level, units=None):
+    """UTM rows' steps judged with the other rows of their unit (an observer; the sheet where ``units`` is None).
+
+    ``level`` per row: the largest power of ten (1: 10 m ... 3: 1000 m) that both its easting and northing are
+    multiples of. A position written to a step s lands on multiples of 10 s in both by chance 1 time in 100, of
+    100 s 1 time in 10,000: a few rows of a 100 m sheet read as 1 km. So rows at a level above the unit's commonest
+    finer level take that level while they are no more than chance gives (:func:`_believable`) and fewer than the
+    rows at that level; a unit whose rows mostly sit on 1 km stays 1 km."""
+    level = level.copy()
+    if not len(level):
+        return level
+    codes = np.zeros(len(level), np.int64) if units is None else pd.factorize(pd.Series(units, dtype=object))[0]
+    counts = np.zeros((codes.max() + 1, 4), np.int64)
+    np.add.at(counts, (codes, level), 1)
+    out = level.copy()
+    for u in range(len(counts)):
+        c = counts[u]
+        for top in (3, 2, 1):
+            if not c[top] or not c[:top].any():
+                continue
+            base = int(np.argmax(c[:top]))          # the commonest finer level
+            share = _ONE_ZERO_LOST ** (top - base)   # both coordinates on the coarser multiples by chance
+            if c[top] < c[base] and _believable(c[top], int(c[base:].sum()), share):
+                out[(codes == u) & (level == top)] = base
+    return out
+
+
 def _plain_decimal(cells, rows):
     """Whether the cells ``rows`` are plain decimal numbers (values read as numbers, or text of one number): the
     only ones that can have lost trailing zeros on the way."""
@@ -192,7 +256,8 @@ def _plain_decimal(cells, rows):
     return np.asarray(per_value(sub, lambda t: len(_NUMBER.findall(str(t))) == 1), bool)
 
 
-def position_steps(cells: dict, kind: dict, lat, groups=None, *, decimal_comma: bool = False, mgrs_square_m=None):
+def position_steps(cells: dict, kind: dict, lat, groups=None, *, decimal_comma: bool = False, mgrs_square_m=None,
+                   texts=None, units=None):
     """Each row's position step east and north [m] (0: not rounded, or finer than the policy's limit).
 
     Parameters
@@ -207,6 +272,12 @@ def position_steps(cells: dict, kind: dict, lat, groups=None, *, decimal_comma: 
         Each row's fix (-1 for none), for the trailing-zero rule of values read as numbers.
     mgrs_square_m : array_like, optional
         The square each MGRS row names [m] (NaN elsewhere).
+    texts : dict, optional
+        For the roles ``lat`` and ``lon`` held as numbers: a function giving the column's cells as written (text),
+        or None when the reader has none (:attr:`dfkit.io.sheet.RawSheet.number_text`).
+    units : array_like, optional
+        Each row's unit (an observer), for the UTM rule: the rows of one unit are judged together (the whole sheet
+        where not given).
     """
     lat = np.asarray(lat, float)
     n = len(lat)
@@ -215,16 +286,27 @@ def position_steps(cells: dict, kind: dict, lat, groups=None, *, decimal_comma: 
     rows = np.flatnonzero(kind["lat/lon"])
     if len(rows):
         all_rows = rows
-        s_lat = _angle_steps(cells["lat"], "lat", decimal_comma, rows)
-        rows, s_lat = rows[s_lat != 0], s_lat[s_lat != 0]      # a latitude written finely: the row is not rounded
-        s_lon = _angle_steps(cells["lon"], "lon", decimal_comma, rows)
-        step = np.fmin(s_lat, s_lon)             # the finer of the two (0: not rounded; NaN: none shown)
+        texts = texts or {}
+        w_lat, v_lat = _angle_steps(cells["lat"], "lat", decimal_comma, rows, texts.get("lat"))
+        some = v_lat != 0                       # a latitude written finely: the row is not rounded
+        rows, w_lat, v_lat = rows[some], w_lat[some], v_lat[some]
+        w_lon, v_lon = _angle_steps(cells["lon"], "lon", decimal_comma, rows, texts.get("lon"))
+        written = np.fmin(w_lat, w_lon)          # the finer of the two (0: not rounded; NaN: none shown)
+        value = np.fmin(v_lat, v_lon)
+        # written with more decimals than the values need: both coordinates end in zeros (1 row in 100 by chance
+        # in a sheet written to a fixed number of decimals). Few such rows: the writer meant those decimals, and
+        # they lost none. Many: the zeros pad values written more coarsely (a column formatted to show 4 decimals
+        # of positions taken to 3), and the values' steps stand, with the trailing-zero rules below
+        padded = written < value
+        meant = _believable(int(padded.sum()), len(all_rows), _ONE_ZERO_LOST)
+        step = written if meant else value
         shown = np.flatnonzero(step > 0)         # (most GPS positions are not: only these are looked at further)
-        rows, step = rows[shown], step[shown]
+        rows, step, padded = rows[shown], step[shown], padded[shown]
         # (the rules hold for text too: a spreadsheet's typed numbers reach here as their shortest text, 47.81)
         if groups is not None and len(rows):
+            plain = _plain_decimal(cells["lat"], rows) & _plain_decimal(cells["lon"], rows)
             step = _lost_zeros(np.asarray(groups, np.int64), all_rows, rows, step,
-                               _plain_decimal(cells["lat"], rows) & _plain_decimal(cells["lon"], rows))
+                               plain & ~padded if meant else plain)
         m_n, m_e = metres_per_degree(lat[rows])
         north[rows] = step * m_n
         east[rows] = step * m_e
@@ -234,10 +316,12 @@ def position_steps(cells: dict, kind: dict, lat, groups=None, *, decimal_comma: 
 
         e = numbers(cells["easting"][rows], decimal_comma).values
         nn = numbers(cells["northing"][rows], decimal_comma).values
-        step = np.zeros(len(rows))
-        for size in (10.0, 100.0, 1000.0):
+        level = np.zeros(len(rows), np.int64)       # 0: metres, 1: 10 m, 2: 100 m, 3: 1000 m
+        for k, size in enumerate((10.0, 100.0, 1000.0), start=1):
             fits = (np.abs(e / size - np.round(e / size)) < 1e-9) & (np.abs(nn / size - np.round(nn / size)) < 1e-9)
-            step = np.where(fits, size, step)
+            level = np.where(fits, k, level)
+        level = _utm_levels(level, None if units is None else np.asarray(units, dtype=object)[rows])
+        step = np.where(level > 0, 10.0 ** level.astype(float), 0.0)
         east[rows] = north[rows] = step
     if mgrs_square_m is not None:
         sq = np.asarray(mgrs_square_m, float)
