@@ -281,12 +281,16 @@ def test_trailing_zeros_written_in_a_gps_fix_are_meant(write_sheet):
     assert n[1] == n[2] == 0.0
 
 
-def test_a_fixed_decimals_sheet_keeps_its_step_where_a_fix_ends_in_zeros(write_sheet):
+@pytest.mark.parametrize("padded", [False, True])
+def test_a_fixed_decimals_sheet_keeps_its_step_where_a_fix_ends_in_zeros(write_sheet, padded):
     # a sheet written '%.4f' throughout: fix Z's three rows all happen to end in '00' (written 47.8700 ...), so their
-    # values need 2 decimals and the fix has no finer row to lend its step; as written they have 4 (11 m)
+    # values need 2 decimals and the fix has no finer row to lend its step; as written they have 4 (11 m). (Also
+    # with every cell padded with spaces, which the reader strips.)
     rng = np.random.default_rng(11)
     rows = _fixed_sheet(rng, 30, 4)
     rows += ["Z,47.8700,-91.8100,10,2", "Z,47.8800,-91.8200,130,2", "Z,47.8600,-91.8300,250,2"]
+    if padded:
+        rows = [r.replace(",", " , ") for r in rows]
     e, n = _steps(write_sheet("fix,lat,lon,bearing,sd\n" + "\n".join(rows) + "\n"))
     assert n[-3:] == pytest.approx(np.full(3, 1e-4 * _DEG_N), rel=1e-3)
     # and every other row: 4 decimals (a row whose both values end in 0 takes it as written too)
@@ -370,3 +374,35 @@ def test_utm_steps_are_judged_per_observer(write_sheet):
     rows = _utm_rows(rng, 300, 100, "H", on_km=3) + _utm_rows(rng, 6, 1000, "K")
     e, n = _steps(write_sheet("fix,utm_zone,easting,northing,bearing,sd,observer\n" + "\n".join(rows) + "\n"))
     assert (e[:300] == 100.0).all() and (e[300:] == 1000.0).all()
+
+
+@pytest.mark.parametrize("extra", ["plain", "comment_and_accent", "padded"])
+def test_trailing_zeros_are_read_off_the_right_cells_on_every_read_path(write_sheet, extra):
+    # 300 GPS rows (6 decimals: not rounded) and, on the last line, 47.8700,-91.8100 (4 decimals: 11 m): the
+    # reader's fast paths (ASCII bytes; text with a comment line and a non-ASCII note; cells padded with spaces)
+    # must find that line's cells, and no other row may come out rounded
+    rng = np.random.default_rng(31)
+    rows = [f"F{i // 3},{47.8 + rng.uniform(0, 0.1):.6f},{-91.7 + rng.uniform(0, 0.1):.6f},{rng.uniform(0, 360):.1f},2"
+            for i in range(300)]
+    rows.append("F99,47.8700,-91.8100,10,2")
+    head = "fix,lat,lon,bearing,sd"
+    if extra == "comment_and_accent":
+        rows = [r + ",n" for r in rows]
+        rows.insert(150, "# a comment line")
+        rows[10] = rows[10][:-1] + "é"
+        head += ",note"
+    elif extra == "padded":
+        rows = [r.replace(",", " , ") for r in rows]
+    e, n = _steps(write_sheet(head + "\n" + "\n".join(rows) + "\n"))
+    assert n[-1] == pytest.approx(1e-4 * _DEG_N, rel=1e-6)
+    # a GPS row whose latitude and longitude both end in 00 would show 4 decimals too (1 in 10,000): none here
+    assert (n[:-1] == 0).all()
+
+
+def test_an_exponent_says_nothing_beyond_its_value(write_sheet):
+    # 4.787E1 is 47.87 (2 decimals as a value): its text shows no decimals of its own, so its step stays the
+    # value's, 0.01° (as before); the other cell of the row, -91.81, too
+    p = write_sheet("fix,lat,lon,bearing,sd\nA,4.787E1,-91.81,10,2\nA,47.8812345,-91.8053123,200,2\n"
+                    "A,47.8654321,-91.8412345,100,2\n")
+    e, n = _steps(p)
+    assert n[0] == pytest.approx(1e-2 * _DEG_N, rel=1e-3)

@@ -350,15 +350,20 @@ def test_a_schema_1_store_is_migrated_and_matches_its_sheets_again(tmp_path):
         assert s.migrated == []                                        # once
     validate(old)
     # week1.csv line 5 repeats line 4: the dfkit of schema 1 used both; this one names the copy and leaves it out,
-    # so fix A's result is different now and is reported as changed (never stored twice)
-    for name, changed_fixes in (("teamA.csv", 0), ("week1.csv", 1), ("labels.csv", 0)):
+    # so fix A's result is different now and is reported as changed (never stored twice). Its positions (47.000,
+    # 15.020 ...: every row ends in zeros, so they pad values taken to 0.01°) were stored as exact, which the
+    # schema-1 dfkit took every position for: fix B is changed by its steps, and A says so too. labels.csv's three
+    # fixes are written the same way (teamA.csv's positions have 7 decimals: exact, unchanged)
+    for name, changed_fixes in (("teamA.csv", 0), ("week1.csv", 2), ("labels.csv", 3)):
         r = add(old, V1 / name)
         assert (name, r.fixes_added, r.fixes_changed, r.bearings_added) == (name, 0, changed_fixes, 0)
+        assert all("none (taken as exact) in the store" in d for _, _, d in r.changed)
     r = add(old, V1 / "teamB2.csv")
     assert r.fixes_added == 1 and "'F1' (import 1)" in r.beside[0][2]
     changed = tmp_path / "week1.csv"
     changed.write_text((V1 / "week1.csv").read_text().replace(",45,3,", ",46,3,"))
-    assert add(old, changed).fixes_changed == 1
+    r = add(old, changed)                  # A by its bearing (and its steps), B still by its steps
+    assert r.fixes_changed == 2 and "line 2 differs from the stored bearing" in r.changed[0][2]
     conn = sqlite3.connect(old)
     meta = dict(conn.execute("SELECT key, value FROM dfkit_meta").fetchall())
     assert meta["key_scheme"] == "dfkit-bearing-keys-2" and "store schema 1 -> 2" in meta["migrated_1_to_2"]

@@ -122,28 +122,18 @@ def angle_text_step(text: str, axis: str, decimal_comma: bool = False) -> float:
     return 10.0**-decimals / unit
 
 
-def _angle_steps(cells, axis, decimal_comma, rows, text=None):
+def _angle_steps(cells, axis, decimal_comma, rows):
     """Step of the angle cells ``rows`` [°], twice: as written, and as the value needs (trailing zeros left out).
 
-    As written: from the text where the cells are text, and where the reader kept the column as numbers from the
-    cells as the file wrote them when the reader can give them (``text``: a function returning the column's text
-    cells, :attr:`dfkit.io.sheet.RawSheet.number_text`; a cell ``47.8700`` was written to 4 decimals though its
-    value needs 2), else from the values. As the value needs: the same without the trailing zeros of plain decimal
-    numbers (degrees and minutes or seconds keep theirs). Returns (written, value)."""
+    As written: from the text where the cells are text, from the values where the reader kept the column as
+    numbers (trailing zeros lost; :func:`_as_written` looks at their text where it matters). As the value needs: the
+    same without the trailing zeros of plain decimal numbers (degrees and minutes or seconds keep theirs). Returns
+    (written, value)."""
     if isinstance(cells, np.ndarray) and cells.dtype.kind == "f":
         # finer than 5 decimals (1.1 m) is below the policy's limit anyway; 5 is looked for so that a position
         # of 5 decimals that lost a trailing zero is seen as one (the fix's step is exactly ten times finer)
         value = decimal_step(cells[rows], VALUE_DECIMALS)
-        written = value.copy()
-        coarse = np.flatnonzero(value > 0)          # only these can show more (a GPS position needs 6+ decimals)
-        got = text() if text is not None and len(coarse) else None
-        if got is not None:
-            shown = _shown_decimals(got[rows[coarse]])
-            more = shown > np.rint(-np.log10(value[coarse])).astype(int)
-            # finer than VALUE_DECIMALS: 0, as a value's
-            written[coarse[more]] = np.where(shown[more] > VALUE_DECIMALS, 0.0,
-                                             10.0 ** -shown[more].astype(float))
-        return written, value
+        return value.copy(), value
     sub = np.asarray(cells, dtype=object)[rows]
     written = np.asarray(per_value(sub, lambda t: angle_text_step(t, axis, decimal_comma)), float)
     value = written.copy()
@@ -154,13 +144,35 @@ def _angle_steps(cells, axis, decimal_comma, rows, text=None):
     return written, value
 
 
-def _shown_decimals(texts) -> np.ndarray:
-    """Decimals each plain decimal text shows (``47.8700`` -> 4, ``47`` -> 0); -1 for any other text (an
-    exponent ...), which then says nothing beyond its value."""
-    s = pd.Series(texts, dtype=object).astype(str)
-    plain = s.str.fullmatch(r"[+-]?\d*\.?\d*") & s.str.contains(r"\d", regex=True)
-    frac = s.str.partition(".")[2].str.len()
-    return np.where(plain.to_numpy(bool), frac.to_numpy(int), -1)
+#: Coarsest decimal step whose rounding is always under :data:`~dfkit.policy.POSITION_STEP_IGNORED_M` (0.00001° is
+#: 1.1 m at most): a value needing no more is exact whatever its text shows, so its text is not looked at.
+_TEXT_MATTERS_DEG = 1e-4
+
+
+def _as_written(cells, texts, rows, steps):
+    """The step [°] of the lat/lon rows ``rows`` with the cells the reader kept as numbers taken as written
+    (``texts``: role -> a function giving the decimals the column's cells show on given rows, -1 where that says
+    nothing, :attr:`dfkit.io.sheet.RawSheet.number_decimals`):
+    a cell ``47.8700`` was written to 4 decimals though its value needs 2. ``steps``: (written, value) per role
+    from :func:`_angle_steps`. Only rows whose values alone give a step that counts are looked at; None where there
+    is no text to look at."""
+    held = [role for role in ("lat", "lon") if isinstance(cells[role], np.ndarray) and cells[role].dtype.kind == "f"
+            and texts.get(role) is not None]
+    need = np.flatnonzero(np.fmin(steps["lat"][1], steps["lon"][1]) >= 0.99 * _TEXT_MATTERS_DEG)
+    if not held or not len(need):
+        return None
+    out = []
+    for role in ("lat", "lon"):
+        w = steps[role][0][need].copy()
+        if role in held:
+            shown = np.asarray(texts[role](rows[need]), np.int64)
+            more = (shown > np.rint(-np.log10(w)).astype(int)) & (w > 0)
+            # finer than VALUE_DECIMALS: 0, as a value's
+            w[more] = np.where(shown[more] > VALUE_DECIMALS, 0.0, 10.0 ** -shown[more].astype(float))
+        out.append(w)
+    written = np.fmin(steps["lat"][0], steps["lon"][0])
+    written[need] = np.fmin(*out)
+    return written
 
 
 def _trailing_zero(texts) -> np.ndarray:
@@ -273,8 +285,8 @@ def position_steps(cells: dict, kind: dict, lat, groups=None, *, decimal_comma: 
     mgrs_square_m : array_like, optional
         The square each MGRS row names [m] (NaN elsewhere).
     texts : dict, optional
-        For the roles ``lat`` and ``lon`` held as numbers: a function giving the column's cells as written (text),
-        or None when the reader has none (:attr:`dfkit.io.sheet.RawSheet.number_text`).
+        For the roles ``lat`` and ``lon`` held as numbers: a function giving the decimals the column's cells show
+        on given rows as written, or None when the reader has none (:attr:`dfkit.io.sheet.RawSheet.number_decimals`).
     units : array_like, optional
         Each row's unit (an observer), for the UTM rule: the rows of one unit are judged together (the whole sheet
         where not given).
@@ -286,13 +298,15 @@ def position_steps(cells: dict, kind: dict, lat, groups=None, *, decimal_comma: 
     rows = np.flatnonzero(kind["lat/lon"])
     if len(rows):
         all_rows = rows
-        texts = texts or {}
-        w_lat, v_lat = _angle_steps(cells["lat"], "lat", decimal_comma, rows, texts.get("lat"))
+        w_lat, v_lat = _angle_steps(cells["lat"], "lat", decimal_comma, rows)
         some = v_lat != 0                       # a latitude written finely: the row is not rounded
         rows, w_lat, v_lat = rows[some], w_lat[some], v_lat[some]
-        w_lon, v_lon = _angle_steps(cells["lon"], "lon", decimal_comma, rows, texts.get("lon"))
+        w_lon, v_lon = _angle_steps(cells["lon"], "lon", decimal_comma, rows)
         written = np.fmin(w_lat, w_lon)          # the finer of the two (0: not rounded; NaN: none shown)
         value = np.fmin(v_lat, v_lon)
+        if texts:
+            got = _as_written(cells, texts, rows, {"lat": (w_lat, v_lat), "lon": (w_lon, v_lon)})
+            written = written if got is None else got
         # written with more decimals than the values need: both coordinates end in zeros (1 row in 100 by chance
         # in a sheet written to a fixed number of decimals). Few such rows: the writer meant those decimals, and
         # they lost none. Many: the zeros pad values written more coarsely (a column formatted to show 4 decimals
