@@ -674,7 +674,9 @@ def _parse_body(body, n_body, numbers, comment, delimiter, width, want):
             data = body.data if body.data is not None else body.text.encode("utf-8", "surrogatepass")
             view = np.frombuffer(data, np.uint8)[body.start if body.data is not None else 0:]
             found["view"] = view
-            found["ends"] = np.concatenate([[-1], np.flatnonzero(view == 10), [len(view)]])
+            kind = np.int32 if len(view) < 2**31 - 1 else np.int64     # positions: half the memory of int64
+            found["kind"] = kind
+            found["ends"] = np.concatenate([[-1], np.flatnonzero(view == 10).astype(kind), [len(view)]]).astype(kind)
         view, ends = found["view"], found["ends"]
         if len(which) * 64 < len(ends):      # a few lines (a GPS sheet's rare coarse-looking rows): one by one
             out = np.zeros(len(which), np.int64)
@@ -685,9 +687,13 @@ def _parse_body(body, n_body, numbers, comment, delimiter, width, want):
                                                                    if b"." in cell else 0)
             return out
         if "marks" not in found:
-            found["marks"] = (ends, np.flatnonzero(view == ord(delimiter)), np.flatnonzero(view == 46),
-                              np.flatnonzero((view == 101) | (view == 69)))
-        return _decimals_shown(found["view"], found["marks"], which, j, width)
+            kind = found["kind"]
+            found["marks"] = (ends, np.flatnonzero(view == ord(delimiter)).astype(kind),
+                              np.flatnonzero(view == 46).astype(kind),
+                              np.flatnonzero((view == 101) | (view == 69)).astype(kind))
+        # in chunks of lines, so that the working arrays stay small whatever the sheet's length
+        return np.concatenate([_decimals_shown(view, found["marks"], which[s:s + 65_536], j, width)
+                               for s in range(0, len(which), 65_536)] or [np.zeros(0, np.int64)])
 
     reread = reread if floats else None
     if keep is None:       # no blank row (the common case): the columns as they are, not a copy of each

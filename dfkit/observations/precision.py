@@ -12,10 +12,16 @@ The step of each row is read from what was written, per row (a sheet may mix for
 * latitude/longitude in decimal degrees: the decimals written; degrees and minutes: the minutes' decimals (a step
   of 10^-k / 60 degrees); degrees, minutes and seconds: the seconds' decimals (10^-k / 3600 degrees); packed
   forms (``4751.6N``) likewise. A row takes the finer of its latitude's and longitude's steps, for both axes.
-  Where the sheet reader kept a column as numbers (a plain CSV sheet) the text is gone and the step is that of
-  the value, which keeps no trailing zeros (nor does a spreadsheet's typed number, read as its shortest text):
-  a position whose latitude and longitude both end in 0 (about 1 row in 100 at random) looks one decimal
-  coarser. So a row takes the finest step of the other rows of its fix that came from lat/lon when that is
+  Where the sheet reader kept a column as numbers (a plain CSV sheet) the step is that of the value, which keeps
+  no trailing zeros, and then that of the cell as the file wrote it where the value alone gives a step that counts
+  (:attr:`dfkit.io.sheet.RawSheet.number_decimals`: ``47.8700`` was written to 4 decimals). Written decimals
+  beyond the value's are believed while the rows showing them are about as few as chance makes them (both
+  coordinates end in 0 in 1 row in 100 of a sheet written to a fixed number of decimals); a sheet where nearly
+  every row shows them pads values written more coarsely (a column formatted to 4 decimals of positions taken to
+  3), and the values' steps stand, on either of the reader's paths. A spreadsheet's typed number has no text: it
+  is read as its shortest text (``47.87`` for a cell showing 47.8700), so the trailing zeros its format shows are
+  not seen, and the rules below judge it as a value. Where only the value is known, a position whose latitude and
+  longitude both end in 0 (about 1 row in 100 at random) looks one decimal coarser. So a row takes the finest step of the other rows of its fix that came from lat/lon when that is
   exactly ten or a hundred times finer (1 row in 10,000 loses two zeros from both; a real mix of, say, 3 and 6
   decimals is kept, one of 3 and 4 or 5 decimals is not seen), and in a fix with a row of 5 or more decimals a
   row showing 4 decimals counts as not rounded (two lost zeros from 6 decimals: 1 row in 10,000; a real
@@ -24,8 +30,11 @@ The step of each row is read from what was written, per row (a sheet may mix for
   in its fixes keeps the 3-decimal steps (a user trial: `ok` regions of such sheets held the truth 86-91 % of the
   time when the rule took the coarse rows for exact, 95 % now). Degrees and minutes or seconds, written as text,
   lose no zeros and are never changed.
-* UTM: the largest of 1, 10, 100 and 1000 m that both easting and northing are multiples of (a position to the
-  metre lands on multiples of 100 in both by chance once in 10,000 rows).
+* UTM: the largest of 1, 10, 100 and 1000 m that both easting and northing are multiples of, judged with the
+  other rows of the same observer (the sheet where there is no observer column): a position written to 100 m
+  lands on whole kilometres in both by chance 1 row in 100, so rows on a coarser step than their unit's commonest
+  take that commonest step while they are no more than chance gives (:func:`_utm_levels`); a unit written to 1 km
+  stays 1 km.
 * MGRS: the square its digits name (:func:`dfkit.grids.parse_mgrs`, which places the position at the square's
   centre).
 * a station label or a GPS track: not rounded (0).
