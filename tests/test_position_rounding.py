@@ -406,3 +406,10 @@ def test_an_exponent_says_nothing_beyond_its_value(write_sheet):
                     "A,47.8654321,-91.8412345,100,2\n")
     e, n = _steps(p)
     assert n[0] == pytest.approx(1e-2 * _DEG_N, rel=1e-3)
+
+
+def test_whole_degrees_with_no_point_anywhere(write_sheet):
+    # no decimal point in the whole body: each position is written to whole degrees (a 1° step), as its values say
+    p = write_sheet("fix,lat,lon,bearing\nA,47,15,10\nA,48,16,200\nA,46,14,100\n")
+    e, n = _steps(p)
+    assert n == pytest.approx(metres_per_degree(np.array([47.0, 48.0, 46.0]))[0])

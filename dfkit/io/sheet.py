@@ -495,8 +495,11 @@ def _decimals_shown(view, marks, lines, j, width):
             nxt = next_of(start, delims)
             start = np.where(nxt < stop, nxt + 1, stop)
         stop = np.minimum(stop, next_of(start, delims))
-    k = np.searchsorted(dots, stop) - 1
-    dot = np.where(k >= 0, dots[np.maximum(k, 0)], -1)
+    if len(dots):
+        k = np.searchsorted(dots, stop) - 1
+        dot = np.where(k >= 0, dots[np.maximum(k, 0)], -1)
+    else:                           # whole numbers only
+        dot = np.full(len(lines), -1)
     has_dot = dot >= start
     decimals = np.where(has_dot, stop - dot - 1, 0)
     # a field padded with white space after its digits (rare): counted on its stripped text
