@@ -153,21 +153,18 @@ def _angle_steps(cells, axis, decimal_comma, rows):
     return written, value
 
 
-#: Coarsest decimal step whose rounding is always under :data:`~dfkit.policy.POSITION_STEP_IGNORED_M` (0.00001° is
-#: 1.1 m at most): a value needing no more is exact whatever its text shows, so its text is not looked at.
-_TEXT_MATTERS_DEG = 1e-4
-
-
 def _as_written(cells, texts, rows, steps):
     """The step [°] of the lat/lon rows ``rows`` with the cells the reader kept as numbers taken as written
     (``texts``: role -> a function giving the decimals the column's cells show on given rows, -1 where that says
     nothing, :attr:`dfkit.io.sheet.RawSheet.number_decimals`):
     a cell ``47.8700`` was written to 4 decimals though its value needs 2. ``steps``: (written, value) per role
-    from :func:`_angle_steps`. Only rows whose values alone give a step that counts are looked at; None where there
-    is no text to look at."""
+    from :func:`_angle_steps`. Only rows whose values alone show a step are looked at (a GPS position's value needs
+    6 or more decimals: not rounded, whatever its text), those of 5 decimals too: written to 6, such a row is not
+    the finer row of its fix that the trailing-zero rules measure the others by. None where there is no text to
+    look at."""
     held = [role for role in ("lat", "lon") if isinstance(cells[role], np.ndarray) and cells[role].dtype.kind == "f"
             and texts.get(role) is not None]
-    need = np.flatnonzero(np.fmin(steps["lat"][1], steps["lon"][1]) >= 0.99 * _TEXT_MATTERS_DEG)
+    need = np.flatnonzero(np.fmin(steps["lat"][1], steps["lon"][1]) > 0)
     if not held or not len(need):
         return None
     out = []
