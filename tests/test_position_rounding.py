@@ -253,3 +253,163 @@ def test_a_lost_trailing_zero_in_text_cells_too():
                        "lon": ["-91.723", "-91.7", "-91.715"], "bearing": ["10", "100", "200"], "sd": ["2", "2", "2"]})
     steps = dfkit.read_bearings(df).table["position_step_north_m"].to_numpy(float)
     assert steps == pytest.approx(np.full(3, 0.001 * metres_per_degree(47.816)[0]), rel=1e-4)
+
+
+# --- the step as written: trailing zeros in the cell's text ------------------------------------------------------
+
+_DEG_N = metres_per_degree(47.87)[0]          # length of one degree of latitude there [m]
+
+
+def _fixed_sheet(rng, n_fix, decimals, extra=""):
+    """Fixes of three observers, every cell written with ``decimals`` decimals (a writer's fixed format)."""
+    rows = []
+    for f in range(n_fix):
+        lat, lon = 47.8 + rng.uniform(0, 0.1), -91.7 + rng.uniform(0, 0.1)
+        for j in range(3):
+            rows.append(f"F{f},{lat + rng.uniform(-0.01, 0.01):.{decimals}f},"
+                        f"{lon + rng.uniform(-0.01, 0.01):.{decimals}f},{rng.uniform(0, 360):.1f},2{extra}")
+    return rows
+
+
+def test_trailing_zeros_written_in_a_gps_fix_are_meant(write_sheet):
+    # line 2 is written '47.8700,-91.8100': 4 decimals, a 0.0001° step (11 m north-south), though its value needs
+    # only 2 (0.01°, 1.1 km); the fix's other rows are GPS positions (6 decimals, not rounded)
+    p = write_sheet("fix,lat,lon,bearing,sd\nA,47.8700,-91.8100,10,2\nA,47.881234,-91.805312,200,2\n"
+                    "A,47.865012,-91.840091,100,2\n")
+    e, n = _steps(p)
+    assert n[0] == pytest.approx(1e-4 * _DEG_N, rel=1e-6)
+    assert n[1] == n[2] == 0.0
+
+
+@pytest.mark.parametrize("padded", [False, True])
+def test_a_fixed_decimals_sheet_keeps_its_step_where_a_fix_ends_in_zeros(write_sheet, padded):
+    # a sheet written '%.4f' throughout: fix Z's three rows all happen to end in '00' (written 47.8700 ...), so their
+    # values need 2 decimals and the fix has no finer row to lend its step; as written they have 4 (11 m). (Also
+    # with every cell padded with spaces, which the reader strips.)
+    rng = np.random.default_rng(11)
+    rows = _fixed_sheet(rng, 30, 4)
+    rows += ["Z,47.8700,-91.8100,10,2", "Z,47.8800,-91.8200,130,2", "Z,47.8600,-91.8300,250,2"]
+    if padded:
+        rows = [r.replace(",", " , ") for r in rows]
+    e, n = _steps(write_sheet("fix,lat,lon,bearing,sd\n" + "\n".join(rows) + "\n"))
+    assert n[-3:] == pytest.approx(np.full(3, 1e-4 * _DEG_N), rel=1e-3)
+    # and every other row: 4 decimals (a row whose both values end in 0 takes it as written too)
+    assert n[:-3] == pytest.approx(np.full(90, 1e-4 * _DEG_N), rel=2e-3)
+
+
+@pytest.mark.parametrize("careful", [False, True])
+def test_zeros_that_pad_every_cell_are_not_taken_for_decimals(write_sheet, careful):
+    # positions taken to 3 decimals and written '%.4f' (a column formatted to 4 decimals): every cell ends in 0,
+    # where a writer of 4 real decimals ends both coordinates in 0 one row in 100. The zeros are padding: the step
+    # is 3 decimals (111 m north-south), or 2 where the value ends in 0 too and its fix has no 3-decimal row (none
+    # here by construction: each fix's first row is moved off the 0.01 grid)
+    rng = np.random.default_rng(12)
+    rows = []
+    for f in range(40):
+        lat, lon = 47.8 + rng.uniform(0, 0.1), -91.7 + rng.uniform(0, 0.1)
+        for j in range(3):
+            a, o = round(lat + rng.uniform(-0.01, 0.01), 3), round(lon + rng.uniform(-0.01, 0.01), 3)
+            if j == 0 and round(a * 100) == a * 100:
+                a += 0.001
+            rows.append(f"F{f},{a:.4f},{o:.4f},{rng.uniform(0, 360):.1f},2" + (',"x"' if careful else ""))
+    head = "fix,lat,lon,bearing,sd" + (",note" if careful else "")
+    e, n = _steps(write_sheet(head + "\n" + "\n".join(rows) + "\n"))
+    assert n == pytest.approx(np.full(120, 1e-3 * _DEG_N), rel=3e-3)
+
+
+def test_spreadsheet_numbers_are_read_by_their_values(tmp_path):
+    # an .xlsx cell holds the number 47.87 whatever its format shows: its step is the value's (2 decimals) unless its
+    # fix has a row exactly ten or a hundred times finer (the trailing-zero rules)
+    openpyxl = pytest.importorskip("openpyxl")
+    wb = openpyxl.Workbook()
+    ws = wb.active
+    ws.append(["fix", "lat", "lon", "bearing", "sd"])
+    for r in ([ "A", 47.87, -91.81, 10, 2], ["A", 47.8812, -91.8053, 200, 2], ["A", 47.8651, -91.8413, 100, 2]):
+        ws.append(r)
+    for row in ws.iter_rows(min_row=2, min_col=2, max_col=3):
+        for c in row:
+            c.number_format = "0.0000"
+    p = tmp_path / "s.xlsx"
+    wb.save(p)
+    e, n = _steps(p)
+    assert n == pytest.approx(np.full(3, 1e-4 * _DEG_N), rel=1e-3)
+
+
+# --- UTM: a 100 m sheet's rows that land on 1,000 m by chance ----------------------------------------------------
+
+def _utm_rows(rng, n, step, observer=None, on_km=0):
+    """``n`` UTM rows written to ``step`` m; the first ``on_km`` of them on whole kilometres in both coordinates,
+    the others off them (as chance places 1 row in 100 of a 100 m sheet)."""
+    rows = []
+    for i in range(n):
+        e = 590_000 + step * rng.integers(0, 20_000 // step)
+        nn = 5_300_000 + step * rng.integers(0, 20_000 // step)
+        if i < on_km:
+            e, nn = round(e, -3), round(nn, -3)
+        elif step < 1000 and e % 1000 == 0 and nn % 1000 == 0:
+            e += step
+        rows.append(f"F{i // 3},15T,{e},{nn},{rng.uniform(0, 360):.1f},2" + (f",{observer}" if observer else ""))
+    return rows
+
+
+def test_a_100_m_sheet_with_a_few_rows_on_whole_kilometres_is_100_m(write_sheet):
+    # 300 rows to 100 m, 4 of them on whole km in both coordinates: chance gives 3 (1 in 100), so they are 100 m
+    rng = np.random.default_rng(21)
+    e, n = _steps(write_sheet("fix,utm_zone,easting,northing,bearing,sd\n" + "\n".join(_utm_rows(rng, 300, 100, on_km=4))
+                              + "\n"))
+    assert (e == 100.0).all() and (n == 100.0).all()
+
+
+def test_a_1_km_sheet_stays_1_km(write_sheet):
+    rng = np.random.default_rng(22)
+    e, n = _steps(write_sheet("fix,utm_zone,easting,northing,bearing,sd\n" + "\n".join(_utm_rows(rng, 30, 1000))
+                              + "\n"))
+    assert (e == 1000.0).all() and (n == 1000.0).all()
+
+
+def test_utm_steps_are_judged_per_observer(write_sheet):
+    # observer K writes whole kilometres (6 rows), observer H 100 m (300 rows, 3 on whole km by chance): judged
+    # apart, K's rows are 1 km and all of H's 100 m
+    rng = np.random.default_rng(23)
+    rows = _utm_rows(rng, 300, 100, "H", on_km=3) + _utm_rows(rng, 6, 1000, "K")
+    e, n = _steps(write_sheet("fix,utm_zone,easting,northing,bearing,sd,observer\n" + "\n".join(rows) + "\n"))
+    assert (e[:300] == 100.0).all() and (e[300:] == 1000.0).all()
+
+
+@pytest.mark.parametrize("extra", ["plain", "comment_and_accent", "padded"])
+def test_trailing_zeros_are_read_off_the_right_cells_on_every_read_path(write_sheet, extra):
+    # 300 GPS rows (6 decimals: not rounded) and, on the last line, 47.8700,-91.8100 (4 decimals: 11 m): the
+    # reader's fast paths (ASCII bytes; text with a comment line and a non-ASCII note; cells padded with spaces)
+    # must find that line's cells, and no other row may come out rounded
+    rng = np.random.default_rng(31)
+    rows = [f"F{i // 3},{47.8 + rng.uniform(0, 0.1):.6f},{-91.7 + rng.uniform(0, 0.1):.6f},{rng.uniform(0, 360):.1f},2"
+            for i in range(300)]
+    rows.append("F99,47.8700,-91.8100,10,2")
+    head = "fix,lat,lon,bearing,sd"
+    if extra == "comment_and_accent":
+        rows = [r + ",n" for r in rows]
+        rows.insert(150, "# a comment line")
+        rows[10] = rows[10][:-1] + "é"
+        head += ",note"
+    elif extra == "padded":
+        rows = [r.replace(",", " , ") for r in rows]
+    e, n = _steps(write_sheet(head + "\n" + "\n".join(rows) + "\n"))
+    assert n[-1] == pytest.approx(1e-4 * _DEG_N, rel=1e-6)
+    # a GPS row whose latitude and longitude both end in 00 would show 4 decimals too (1 in 10,000): none here
+    assert (n[:-1] == 0).all()
+
+
+def test_an_exponent_says_nothing_beyond_its_value(write_sheet):
+    # 4.787E1 is 47.87 (2 decimals as a value): its text shows no decimals of its own, so its step stays the
+    # value's, 0.01° (as before); the other cell of the row, -91.81, too
+    p = write_sheet("fix,lat,lon,bearing,sd\nA,4.787E1,-91.81,10,2\nA,47.8812345,-91.8053123,200,2\n"
+                    "A,47.8654321,-91.8412345,100,2\n")
+    e, n = _steps(p)
+    assert n[0] == pytest.approx(1e-2 * _DEG_N, rel=1e-3)
+
+
+def test_whole_degrees_with_no_point_anywhere(write_sheet):
+    # no decimal point in the whole body: each position is written to whole degrees (a 1° step), as its values say
+    p = write_sheet("fix,lat,lon,bearing\nA,47,15,10\nA,48,16,200\nA,46,14,100\n")
+    e, n = _steps(p)
+    assert n == pytest.approx(metres_per_degree(np.array([47.0, 48.0, 46.0]))[0])

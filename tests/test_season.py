@@ -350,15 +350,20 @@ def test_a_schema_1_store_is_migrated_and_matches_its_sheets_again(tmp_path):
         assert s.migrated == []                                        # once
     validate(old)
     # week1.csv line 5 repeats line 4: the dfkit of schema 1 used both; this one names the copy and leaves it out,
-    # so fix A's result is different now and is reported as changed (never stored twice)
-    for name, changed_fixes in (("teamA.csv", 0), ("week1.csv", 1), ("labels.csv", 0)):
+    # so fix A's result is different now and is reported as changed (never stored twice). Its positions (47.000,
+    # 15.020 ...: every row ends in zeros, so they pad values taken to 0.01°) were stored as exact, which the
+    # schema-1 dfkit took every position for: fix B is changed by its steps, and A says so too. labels.csv's three
+    # fixes are written the same way (teamA.csv's positions have 7 decimals: exact, unchanged)
+    for name, changed_fixes in (("teamA.csv", 0), ("week1.csv", 2), ("labels.csv", 3)):
         r = add(old, V1 / name)
         assert (name, r.fixes_added, r.fixes_changed, r.bearings_added) == (name, 0, changed_fixes, 0)
+        assert all("none (taken as exact) in the store" in d for _, _, d in r.changed)
     r = add(old, V1 / "teamB2.csv")
     assert r.fixes_added == 1 and "'F1' (import 1)" in r.beside[0][2]
     changed = tmp_path / "week1.csv"
     changed.write_text((V1 / "week1.csv").read_text().replace(",45,3,", ",46,3,"))
-    assert add(old, changed).fixes_changed == 1
+    r = add(old, changed)                  # A by its bearing (and its steps), B still by its steps
+    assert r.fixes_changed == 2 and "line 2 differs from the stored bearing" in r.changed[0][2]
     conn = sqlite3.connect(old)
     meta = dict(conn.execute("SELECT key, value FROM dfkit_meta").fetchall())
     assert meta["key_scheme"] == "dfkit-bearing-keys-2" and "store schema 1 -> 2" in meta["migrated_1_to_2"]
@@ -767,3 +772,49 @@ def test_many_warnings_of_one_kind_print_as_a_few_and_a_count(tmp_path, capsys):
     assert len(dec) == 4 and "... 9 more warnings like line 4's on declination (lines 5 to 13)" in dec[-1]
     assert [o for o in out if o.startswith("rejected")] == [o for o in out if "999" in o]
     assert len([o for o in out if o.startswith("rejected")]) == 1
+
+
+# ------------------------------------------------------------------ observer positions' steps
+
+ROUNDED = """tag,time,lat,lon,bearing,sd,observer
+A,2026-06-01T06:00:00Z,47.013,15.007,45,2,ana
+A,2026-06-01T06:05:00Z,47.011,15.023,315,2,ana
+A,2026-06-01T06:10:00Z,47.024,15.016,180,2,ben
+B,2026-06-01T07:00:00Z,47.012,15.008,40,2,ana
+B,2026-06-01T07:04:00Z,47.009,15.026,320,2,ana
+B,2026-06-01T07:08:00Z,47.026,15.013,175,2,ben
+"""
+
+
+def test_a_store_keeps_each_positions_step_and_reads_back_the_same_fixes(store_path, write_sheet):
+    # 3-decimal positions: a step of 0.001° (about 111 m north-south), which dfkit fix writes per bearing
+    from dfkit import read_bearings
+    from dfkit.locate import locate
+
+    p = write_sheet(ROUNDED, "rounded.csv")
+    direct = locate(read_bearings(p))
+    add(store_path, p)
+    with SeasonStore.open(store_path) as s:
+        back = s.select()
+    assert (back.bearings["position_step_north_m"].to_numpy(float) > 100).all()
+    got = back.table.set_index(["tag", "fix"])
+    want = direct.table.set_index(["tag", "fix"])
+    assert got.loc[want.index, "status"].tolist() == want["status"].tolist()
+    assert got.loc[want.index, "reason"].tolist() == want["reason"].tolist()
+
+
+def test_a_stored_fix_whose_positions_were_taken_as_exact_is_changed_by_their_steps(store_path, write_sheet):
+    # stored first with positions taken as exact (as a store made before dfkit read steps holds them: no step
+    # columns at all); the same rows read with their 0.001° steps are the same content but not the same fix: both
+    # fixes are reported as changed, saying why, and replaced on request
+    p = write_sheet(ROUNDED, "rounded.csv")
+    add(store_path, p, position_rounding="none")
+    with SeasonStore.open(store_path) as s:
+        assert "position_step_north_m" not in s.bearings(s.fixes()["fid"])
+    r = add(store_path, p)
+    assert r.fixes_added == 0 and r.fixes_known == 0 and r.fixes_changed == 2
+    assert all("none (taken as exact) in the store" in d and "111 m now" in d for _, _, d in r.changed)
+    r = add(store_path, p, replace=True)
+    assert r.fixes_added == 2
+    r = add(store_path, p)
+    assert r.fixes_known == 2 and r.fixes_changed == 0

@@ -124,6 +124,11 @@ class RawSheet:
     comment_lines: list[int] = field(default_factory=list)
     blank_lines: list[int] = field(default_factory=list)
     numeric: tuple[str, ...] = ()
+    #: For a column held as numbers, the decimals each cell shows as the file wrote it (``number_decimals("lat", rows)``:
+    #: on those rows of ``table``; ``47.8700``: 4; -1 with an exponent), counted on the file's bytes when asked;
+    #: None when the sheet holds no such column. The step a value was written to needs its trailing zeros, which
+    #: the number has lost.
+    number_decimals: object = field(default=None, repr=False, compare=False)
 
     def __post_init__(self):
         own = [c for c in self.table.columns if str(c).startswith(_OWN)]
@@ -421,6 +426,7 @@ def read_sheet(source, *, name: str | None = None, own_results: str = "recompute
     if own_results not in ("recompute", "keep"):
         raise ValueError(f"own_results='{own_results}' must be 'recompute' or 'keep'")
     columns = _resolve_header(header, header_idx + 1, name, problems, own_results == "keep")
+    header_columns = list(columns)
     width = len(columns)
 
     bounds = dict(numeric) if isinstance(numeric, dict) else dict.fromkeys(numeric)
@@ -431,7 +437,7 @@ def read_sheet(source, *, name: str | None = None, own_results: str = "recompute
         got = _fast_read(text, lines.all, header_idx, delimiter, width, want)
     if got is None:
         got = _careful_read(lines.all, header_idx, delimiter, width, name, problems, "'" in text)
-    line_no, cells, more_comments, more_blanks, n_unguarded = got
+    line_no, cells, more_comments, more_blanks, n_unguarded, *reread = got
     comments += more_comments
     blanks += more_blanks
 
@@ -442,6 +448,10 @@ def read_sheet(source, *, name: str | None = None, own_results: str = "recompute
     table = _drop_empty_unnamed(table, columns, header, header_idx + 1, name, problems)
     columns = [c for c in table.columns if c != "line"]
     held = tuple(c for c in columns if table[c].dtype.kind == "f")    # read as numbers (``numeric``)
+    number_decimals = None
+    if held and reread and reread[0] is not None:
+        index = {c: j for j, c in enumerate(header_columns) if c in held}
+        number_decimals = _NumberDecimals(reread[0], index)
     if n_unguarded:
         problems.append(Problem(0, "", f"{n_unguarded} {'cell' if n_unguarded == 1 else 'cells'} began with ' "
                                 "before =, +, -, @, tab or CR (a guard against spreadsheet formulas, as dfkit "
@@ -453,7 +463,64 @@ def read_sheet(source, *, name: str | None = None, own_results: str = "recompute
     _note_skipped(comments, blanks, name, problems)
     return RawSheet(table=table, columns=columns, delimiter=delimiter, decimal_comma=delimiter != ",",
                     problems=problems, skipped_lines=len(comments) + len(blanks), source=name,
-                    comment_lines=comments, blank_lines=blanks, numeric=held)
+                    comment_lines=comments, blank_lines=blanks, numeric=held, number_decimals=number_decimals)
+
+
+def _decimals_shown(view, marks, lines, j, width):
+    """Decimals field ``j`` of each of the body's lines ``lines`` shows (digits after its point; 0 without one),
+    -1 where the field holds an exponent (``e``/``E``), vectorised over the lines. ``view``: the body's bytes;
+    ``marks``: positions of the line ends (``-1`` first, the length last), delimiters, points and exponent letters."""
+    ends, delims, dots, exps = marks
+    lines = np.asarray(lines, np.intp)
+    start = ends[lines] + 1
+    stop = ends[lines + 1]
+
+    def next_of(pos, where):
+        if not len(where):
+            return np.full(len(pos), len(view))
+        k = np.searchsorted(where, pos)
+        return np.where(k < len(where), where[np.minimum(k, len(where) - 1)], len(view))
+
+    per_line = width - 1
+    if len(delims) == (len(ends) - 1) * per_line:
+        # every line holds width - 1 delimiters (a held column has a number on every line, and the parser took no
+        # line with more fields): line k's j-th delimiter is the (k (width - 1) + j)-th of the body
+        at = lines * per_line + j
+        if j:
+            start = delims[at - 1] + 1
+        if j < per_line:
+            stop = delims[at]
+    else:
+        for _ in range(j):              # past the j delimiters before the field
+            nxt = next_of(start, delims)
+            start = np.where(nxt < stop, nxt + 1, stop)
+        stop = np.minimum(stop, next_of(start, delims))
+    if len(dots):
+        k = np.searchsorted(dots, stop) - 1
+        dot = np.where(k >= 0, dots[np.maximum(k, 0)], -1)
+    else:                           # whole numbers only
+        dot = np.full(len(lines), -1)
+    has_dot = dot >= start
+    decimals = np.where(has_dot, stop - dot - 1, 0)
+    # a field padded with white space after its digits (rare): counted on its stripped text
+    last = view[np.clip(stop - 1, 0, len(view) - 1)]
+    for i in np.flatnonzero(has_dot & (stop > start) & ((last < 48) | (last > 57))).tolist():
+        cell = bytes(view[start[i]:stop[i]]).strip()
+        decimals[i] = len(cell) - cell.rfind(b".") - 1 if b"." in cell else 0
+    exponent = next_of(start, exps) < stop
+    return np.where(exponent, -1, decimals)
+
+
+class _NumberDecimals:
+    """:attr:`RawSheet.number_decimals`: decimals each cell of a column read as numbers shows as the file wrote it, by
+    column name and table rows."""
+
+    def __init__(self, reread, index):
+        self._reread, self._index = reread, index
+
+    def __call__(self, name, rows):
+        j = self._index.get(name)
+        return None if j is None else self._reread(j, np.asarray(rows, np.intp))
 
 
 def _blank(text) -> bool:
@@ -586,7 +653,6 @@ def _parse_body(body, n_body, numbers, comment, delimiter, width, want):
                 raw[j] = pd.read_csv(body(), usecols=[j], dtype=str, **kw)[j]
     texts = [j for j in range(width) if j not in floats]
     padded, guarded = body.padded(delimiter), body.guarded()
-    del body
     n_rows = len(raw[0])
     tidy, n_unguarded = _tidy([raw[j].to_numpy(dtype=object) for j in texts], padded, guarded)
     del raw
@@ -597,11 +663,46 @@ def _parse_body(body, n_body, numbers, comment, delimiter, width, want):
     for c in tidy:
         blank &= c == ""
     numbers_kept = numbers[~comment] if comment.any() else numbers
-    if not blank.any():       # no blank row (the common case): the columns as they are, not a copy of each
-        return numbers_kept, cells, numbers[comment].tolist(), [], n_unguarded
-    keep = ~blank
+    keep = ~blank if blank.any() else None
+
+    kept = None if keep is None else np.flatnonzero(keep)
+    found = {}
+
+    def reread(j, rows):
+        """Decimals each cell of column ``j`` (read as numbers) shows on table rows ``rows`` as the file wrote it
+        (``47.8700``: 4), -1 where it has an exponent: counted on the body's bytes (no quotes on this path, so a
+        line's fields are its parts between delimiters)."""
+        which = rows if kept is None else kept[rows]
+        if not found:
+            data = body.data if body.data is not None else body.text.encode("utf-8", "surrogatepass")
+            view = np.frombuffer(data, np.uint8)[body.start if body.data is not None else 0:]
+            found["view"] = view
+            kind = np.int32 if len(view) < 2**31 - 1 else np.int64     # positions: half the memory of int64
+            found["kind"] = kind
+            found["ends"] = np.concatenate([[-1], np.flatnonzero(view == 10).astype(kind), [len(view)]]).astype(kind)
+        view, ends = found["view"], found["ends"]
+        if len(which) * 64 < len(ends):      # a few lines (a GPS sheet's rare coarse-looking rows): one by one
+            out = np.zeros(len(which), np.int64)
+            for i, k in enumerate(which.tolist()):
+                parts = bytes(view[ends[k] + 1:ends[k + 1]]).split(delimiter.encode())
+                cell = parts[j].strip() if j < len(parts) else b""
+                out[i] = -1 if (b"e" in cell or b"E" in cell) else (len(cell) - cell.rfind(b".") - 1
+                                                                   if b"." in cell else 0)
+            return out
+        if "marks" not in found:
+            kind = found["kind"]
+            found["marks"] = (ends, np.flatnonzero(view == ord(delimiter)).astype(kind),
+                              np.flatnonzero(view == 46).astype(kind),
+                              np.flatnonzero((view == 101) | (view == 69)).astype(kind))
+        # in chunks of lines, so that the working arrays stay small whatever the sheet's length
+        return np.concatenate([_decimals_shown(view, found["marks"], which[s:s + 65_536], j, width)
+                               for s in range(0, len(which), 65_536)] or [np.zeros(0, np.int64)])
+
+    reread = reread if floats else None
+    if keep is None:       # no blank row (the common case): the columns as they are, not a copy of each
+        return numbers_kept, cells, numbers[comment].tolist(), [], n_unguarded, reread
     return (numbers_kept[keep], [c[keep] for c in cells], numbers[comment].tolist(),
-            numbers_kept[blank].tolist(), n_unguarded)
+            numbers_kept[blank].tolist(), n_unguarded, reread)
 
 
 class _parser_source:

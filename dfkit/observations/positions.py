@@ -126,7 +126,7 @@ def parse_positions(table: pd.DataFrame, *, prefix: str = "", station_column: st
                     lines=None, source: str = "", decimal_comma: bool = False, stations: pd.DataFrame | None = None,
                     track: Track | None = None, times=None, track_gap_s: float = DEFAULT_TRACK_GAP_S,
                     utm_letters: str = "auto", groups=None, required: bool = True,
-                    log: RowLog | None = None, skip=None) -> Positions:
+                    log: RowLog | None = None, skip=None, number_decimals=None) -> Positions:
     """Read the position of every row of a table of text cells.
 
     Parameters
@@ -167,6 +167,9 @@ def parse_positions(table: pd.DataFrame, *, prefix: str = "", station_column: st
         stay rejected (positions are still read on them, as evidence for their fix).
     skip : array_like of bool, optional
         Rows not to read at all (already refused by the file reader).
+    number_decimals : callable, optional
+        For columns the reader held as numbers, their cells as written (:attr:`dfkit.io.sheet.RawSheet.number_decimals`):
+        the step of a position written ``47.8700`` is judged from its text (:mod:`dfkit.observations.precision`).
 
     Returns
     -------
@@ -220,8 +223,12 @@ def parse_positions(table: pd.DataFrame, *, prefix: str = "", station_column: st
     source = p.source.copy()
     source[bad] = ""
     kind = np.where(bad, 0, p.kind)
+    texts = ({role: (lambda rows, name=cols[role]: number_decimals(name, rows)) for role in ("lat", "lon")
+              if role in cols} if number_decimals is not None else None)
+    units = column(table, "observer") if not prefix and "observer" in table.columns else None
     step_e, step_n = position_steps(p.cells, {s: kind == SOURCES.index(s) + 1 for s in ("lat/lon", "utm", "mgrs")},
-                                    lat, groups, decimal_comma=decimal_comma, mgrs_square_m=p.mgrs_square)
+                                    lat, groups, decimal_comma=decimal_comma, mgrs_square_m=p.mgrs_square,
+                                    texts=texts, units=units)
     return Positions(lat, lon, source, p.zone, p.south, bad, list(log.problems),
                      {i: text for i, text in p.doubts.items() if not bad[i]}, step_e, step_n)
 

@@ -12,10 +12,16 @@ The step of each row is read from what was written, per row (a sheet may mix for
 * latitude/longitude in decimal degrees: the decimals written; degrees and minutes: the minutes' decimals (a step
   of 10^-k / 60 degrees); degrees, minutes and seconds: the seconds' decimals (10^-k / 3600 degrees); packed
   forms (``4751.6N``) likewise. A row takes the finer of its latitude's and longitude's steps, for both axes.
-  Where the sheet reader kept a column as numbers (a plain CSV sheet) the text is gone and the step is that of
-  the value, which keeps no trailing zeros (nor does a spreadsheet's typed number, read as its shortest text):
-  a position whose latitude and longitude both end in 0 (about 1 row in 100 at random) looks one decimal
-  coarser. So a row takes the finest step of the other rows of its fix that came from lat/lon when that is
+  Where the sheet reader kept a column as numbers (a plain CSV sheet) the step is that of the value, which keeps
+  no trailing zeros, and then that of the cell as the file wrote it where the value alone gives a step that counts
+  (:attr:`dfkit.io.sheet.RawSheet.number_decimals`: ``47.8700`` was written to 4 decimals). Written decimals
+  beyond the value's are believed while the rows showing them are about as few as chance makes them (both
+  coordinates end in 0 in 1 row in 100 of a sheet written to a fixed number of decimals); a sheet where nearly
+  every row shows them pads values written more coarsely (a column formatted to 4 decimals of positions taken to
+  3), and the values' steps stand, on either of the reader's paths. A spreadsheet's typed number has no text: it
+  is read as its shortest text (``47.87`` for a cell showing 47.8700), so the trailing zeros its format shows are
+  not seen, and the rules below judge it as a value. Where only the value is known, a position whose latitude and
+  longitude both end in 0 (about 1 row in 100 at random) looks one decimal coarser. So a row takes the finest step of the other rows of its fix that came from lat/lon when that is
   exactly ten or a hundred times finer (1 row in 10,000 loses two zeros from both; a real mix of, say, 3 and 6
   decimals is kept, one of 3 and 4 or 5 decimals is not seen), and in a fix with a row of 5 or more decimals a
   row showing 4 decimals counts as not rounded (two lost zeros from 6 decimals: 1 row in 10,000; a real
@@ -24,8 +30,11 @@ The step of each row is read from what was written, per row (a sheet may mix for
   in its fixes keeps the 3-decimal steps (a user trial: `ok` regions of such sheets held the truth 86-91 % of the
   time when the rule took the coarse rows for exact, 95 % now). Degrees and minutes or seconds, written as text,
   lose no zeros and are never changed.
-* UTM: the largest of 1, 10, 100 and 1000 m that both easting and northing are multiples of (a position to the
-  metre lands on multiples of 100 in both by chance once in 10,000 rows).
+* UTM: the largest of 1, 10, 100 and 1000 m that both easting and northing are multiples of, judged with the
+  other rows of the same observer (the sheet where there is no observer column): a position written to 100 m
+  lands on whole kilometres in both by chance 1 row in 100, so rows on a coarser step than their unit's commonest
+  take that commonest step while they are no more than chance gives (:func:`_utm_levels`); a unit written to 1 km
+  stays 1 km.
 * MGRS: the square its digits name (:func:`dfkit.grids.parse_mgrs`, which places the position at the square's
   centre).
 * a station label or a GPS track: not rounded (0).
@@ -39,6 +48,7 @@ from __future__ import annotations
 import re
 
 import numpy as np
+import pandas as pd
 
 from dfkit.conventions import WGS84_A, WGS84_F
 from dfkit.observations.cells import per_value
@@ -122,14 +132,59 @@ def angle_text_step(text: str, axis: str, decimal_comma: bool = False) -> float:
 
 
 def _angle_steps(cells, axis, decimal_comma, rows):
-    """Step of the angle cells ``rows`` [°]: from the text where the cells are text, from the values where the
-    reader kept the column as numbers (trailing zeros lost)."""
+    """Step of the angle cells ``rows`` [°], twice: as written, and as the value needs (trailing zeros left out).
+
+    As written: from the text where the cells are text, from the values where the reader kept the column as
+    numbers (trailing zeros lost; :func:`_as_written` looks at their text where it matters). As the value needs: the
+    same without the trailing zeros of plain decimal numbers (degrees and minutes or seconds keep theirs). Returns
+    (written, value)."""
     if isinstance(cells, np.ndarray) and cells.dtype.kind == "f":
         # finer than 5 decimals (1.1 m) is below the policy's limit anyway; 5 is looked for so that a position
         # of 5 decimals that lost a trailing zero is seen as one (the fix's step is exactly ten times finer)
-        return decimal_step(cells[rows], VALUE_DECIMALS)
+        value = decimal_step(cells[rows], VALUE_DECIMALS)
+        return value.copy(), value
     sub = np.asarray(cells, dtype=object)[rows]
-    return np.asarray(per_value(sub, lambda t: angle_text_step(t, axis, decimal_comma)), float)
+    written = np.asarray(per_value(sub, lambda t: angle_text_step(t, axis, decimal_comma)), float)
+    value = written.copy()
+    zeros = np.flatnonzero(_trailing_zero(sub))
+    if len(zeros):
+        value[zeros] = np.asarray(per_value(sub[zeros], lambda t: angle_text_step(str(t).strip().rstrip("0"), axis,
+                                                                                  decimal_comma)), float)
+    return written, value
+
+
+def _as_written(cells, texts, rows, steps):
+    """The step [°] of the lat/lon rows ``rows`` with the cells the reader kept as numbers taken as written
+    (``texts``: role -> a function giving the decimals the column's cells show on given rows, -1 where that says
+    nothing, :attr:`dfkit.io.sheet.RawSheet.number_decimals`):
+    a cell ``47.8700`` was written to 4 decimals though its value needs 2. ``steps``: (written, value) per role
+    from :func:`_angle_steps`. Only rows whose values alone show a step are looked at (a GPS position's value needs
+    6 or more decimals: not rounded, whatever its text), those of 5 decimals too: written to 6, such a row is not
+    the finer row of its fix that the trailing-zero rules measure the others by. None where there is no text to
+    look at."""
+    held = [role for role in ("lat", "lon") if isinstance(cells[role], np.ndarray) and cells[role].dtype.kind == "f"
+            and texts.get(role) is not None]
+    need = np.flatnonzero(np.fmin(steps["lat"][1], steps["lon"][1]) > 0)
+    if not held or not len(need):
+        return None
+    out = []
+    for role in ("lat", "lon"):
+        w = steps[role][0][need].copy()
+        if role in held:
+            shown = np.asarray(texts[role](rows[need]), np.int64)
+            more = (shown > np.rint(-np.log10(w)).astype(int)) & (w > 0)
+            # finer than VALUE_DECIMALS: 0, as a value's
+            w[more] = np.where(shown[more] > VALUE_DECIMALS, 0.0, 10.0 ** -shown[more].astype(float))
+        out.append(w)
+    written = np.fmin(steps["lat"][0], steps["lon"][0])
+    written[need] = np.fmin(*out)
+    return written
+
+
+def _trailing_zero(texts) -> np.ndarray:
+    """Whether each text is a plain decimal number ending in a zero after its decimal point (``47.870``)."""
+    s = pd.Series(texts, dtype=object).astype(str).str.strip()
+    return s.str.fullmatch(r"[+-]?\d*\.\d*0").fillna(False).to_numpy(bool)
 
 
 #: Share of rows whose latitude and longitude both lose one trailing zero by chance (each ends in 0 one time in ten).
@@ -183,6 +238,33 @@ def _lost_zeros(groups, all_rows, rows, step, plain=None):
     return step
 
 
+def _utm_levels(level, units=None):
+    """UTM rows' steps judged with the other rows of their unit (an observer; the sheet where ``units`` is None).
+
+    ``level`` per row: the largest power of ten (1: 10 m ... 3: 1000 m) that both its easting and northing are
+    multiples of. A position written to a step s lands on multiples of 10 s in both by chance 1 time in 100, of
+    100 s 1 time in 10,000: a few rows of a 100 m sheet read as 1 km. So rows at a level above the unit's commonest
+    finer level take that level while they are no more than chance gives (:func:`_believable`) and fewer than the
+    rows at that level; a unit whose rows mostly sit on 1 km stays 1 km."""
+    level = level.copy()
+    if not len(level):
+        return level
+    codes = np.zeros(len(level), np.int64) if units is None else pd.factorize(pd.Series(units, dtype=object))[0]
+    counts = np.zeros((codes.max() + 1, 4), np.int64)
+    np.add.at(counts, (codes, level), 1)
+    out = level.copy()
+    for u in range(len(counts)):
+        c = counts[u]
+        for top in (3, 2, 1):
+            if not c[top] or not c[:top].any():
+                continue
+            base = int(np.argmax(c[:top]))          # the commonest finer level
+            share = _ONE_ZERO_LOST ** (top - base)   # both coordinates on the coarser multiples by chance
+            if c[top] < c[base] and _believable(c[top], int(c[base:].sum()), share):
+                out[(codes == u) & (level == top)] = base
+    return out
+
+
 def _plain_decimal(cells, rows):
     """Whether the cells ``rows`` are plain decimal numbers (values read as numbers, or text of one number): the
     only ones that can have lost trailing zeros on the way."""
@@ -192,7 +274,8 @@ def _plain_decimal(cells, rows):
     return np.asarray(per_value(sub, lambda t: len(_NUMBER.findall(str(t))) == 1), bool)
 
 
-def position_steps(cells: dict, kind: dict, lat, groups=None, *, decimal_comma: bool = False, mgrs_square_m=None):
+def position_steps(cells: dict, kind: dict, lat, groups=None, *, decimal_comma: bool = False, mgrs_square_m=None,
+                   texts=None, units=None):
     """Each row's position step east and north [m] (0: not rounded, or finer than the policy's limit).
 
     Parameters
@@ -207,6 +290,12 @@ def position_steps(cells: dict, kind: dict, lat, groups=None, *, decimal_comma: 
         Each row's fix (-1 for none), for the trailing-zero rule of values read as numbers.
     mgrs_square_m : array_like, optional
         The square each MGRS row names [m] (NaN elsewhere).
+    texts : dict, optional
+        For the roles ``lat`` and ``lon`` held as numbers: a function giving the decimals the column's cells show
+        on given rows as written, or None when the reader has none (:attr:`dfkit.io.sheet.RawSheet.number_decimals`).
+    units : array_like, optional
+        Each row's unit (an observer), for the UTM rule: the rows of one unit are judged together (the whole sheet
+        where not given).
     """
     lat = np.asarray(lat, float)
     n = len(lat)
@@ -215,16 +304,29 @@ def position_steps(cells: dict, kind: dict, lat, groups=None, *, decimal_comma: 
     rows = np.flatnonzero(kind["lat/lon"])
     if len(rows):
         all_rows = rows
-        s_lat = _angle_steps(cells["lat"], "lat", decimal_comma, rows)
-        rows, s_lat = rows[s_lat != 0], s_lat[s_lat != 0]      # a latitude written finely: the row is not rounded
-        s_lon = _angle_steps(cells["lon"], "lon", decimal_comma, rows)
-        step = np.fmin(s_lat, s_lon)             # the finer of the two (0: not rounded; NaN: none shown)
+        w_lat, v_lat = _angle_steps(cells["lat"], "lat", decimal_comma, rows)
+        some = v_lat != 0                       # a latitude written finely: the row is not rounded
+        rows, w_lat, v_lat = rows[some], w_lat[some], v_lat[some]
+        w_lon, v_lon = _angle_steps(cells["lon"], "lon", decimal_comma, rows)
+        written = np.fmin(w_lat, w_lon)          # the finer of the two (0: not rounded; NaN: none shown)
+        value = np.fmin(v_lat, v_lon)
+        if texts:
+            got = _as_written(cells, texts, rows, {"lat": (w_lat, v_lat), "lon": (w_lon, v_lon)})
+            written = written if got is None else got
+        # written with more decimals than the values need: both coordinates end in zeros (1 row in 100 by chance
+        # in a sheet written to a fixed number of decimals). Few such rows: the writer meant those decimals, and
+        # they lost none. Many: the zeros pad values written more coarsely (a column formatted to show 4 decimals
+        # of positions taken to 3), and the values' steps stand, with the trailing-zero rules below
+        padded = written < value
+        meant = _believable(int(padded.sum()), len(all_rows), _ONE_ZERO_LOST)
+        step = written if meant else value
         shown = np.flatnonzero(step > 0)         # (most GPS positions are not: only these are looked at further)
-        rows, step = rows[shown], step[shown]
+        rows, step, padded = rows[shown], step[shown], padded[shown]
         # (the rules hold for text too: a spreadsheet's typed numbers reach here as their shortest text, 47.81)
         if groups is not None and len(rows):
+            plain = _plain_decimal(cells["lat"], rows) & _plain_decimal(cells["lon"], rows)
             step = _lost_zeros(np.asarray(groups, np.int64), all_rows, rows, step,
-                               _plain_decimal(cells["lat"], rows) & _plain_decimal(cells["lon"], rows))
+                               plain & ~padded if meant else plain)
         m_n, m_e = metres_per_degree(lat[rows])
         north[rows] = step * m_n
         east[rows] = step * m_e
@@ -234,10 +336,12 @@ def position_steps(cells: dict, kind: dict, lat, groups=None, *, decimal_comma: 
 
         e = numbers(cells["easting"][rows], decimal_comma).values
         nn = numbers(cells["northing"][rows], decimal_comma).values
-        step = np.zeros(len(rows))
-        for size in (10.0, 100.0, 1000.0):
+        level = np.zeros(len(rows), np.int64)       # 0: metres, 1: 10 m, 2: 100 m, 3: 1000 m
+        for k, size in enumerate((10.0, 100.0, 1000.0), start=1):
             fits = (np.abs(e / size - np.round(e / size)) < 1e-9) & (np.abs(nn / size - np.round(nn / size)) < 1e-9)
-            step = np.where(fits, size, step)
+            level = np.where(fits, k, level)
+        level = _utm_levels(level, None if units is None else np.asarray(units, dtype=object)[rows])
+        step = np.where(level > 0, 10.0 ** level.astype(float), 0.0)
         east[rows] = north[rows] = step
     if mgrs_square_m is not None:
         sq = np.asarray(mgrs_square_m, float)

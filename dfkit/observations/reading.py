@@ -155,7 +155,10 @@ def read_bearings(sheet, options: ReadOptions | None = None, **kwargs) -> Bearin
     # positions, judged against each row's own fix and the track
     pos = parse_positions(t, lines=lines, source=raw.source, decimal_comma=raw.decimal_comma, stations=stations,
                           track=track, times=np.where(days, np.nan, times), track_gap_s=opts.track_gap_s,
-                          utm_letters=opts.utm_letters, groups=ids, log=log, skip=refused_by_reader)
+                          utm_letters=opts.utm_letters, groups=ids, log=log, skip=refused_by_reader,
+                          number_decimals=getattr(raw, "number_decimals", None))
+    if raw is not sheet:
+        raw.number_decimals = None       # lets the file's text go (held for the positions' trailing zeros)
 
     # magnetic -> true, grid -> true
     model_dec, dec_sd = north_mod.magnetic_declination(log, magnetic_rows & dec_empty, times, column(t, "time"),

@@ -44,6 +44,7 @@ import numpy as np
 import pandas as pd
 
 from dfkit.locate import WITH_POSITION, Fixes
+from dfkit.locate.rounding import STEP_COLUMNS as _STEP_COLUMNS
 from dfkit.problems import Problem
 from dfkit.season import gpkg
 from dfkit.season.keys import KEY_SCHEME, OLD_KEY_SCHEMES, bearing_keys, identity_keys
@@ -444,14 +445,27 @@ class SeasonStore:
                 if f is not None:
                     touched[i].add(f)
         if has_bearings and len(bt):
-            found = pd.DataFrame(self._lookup("bearings", "row_key", "fix_fid, content_key, import_id",
-                                              row_key.tolist()),
-                                 columns=["row_key", "fix_fid", "content_key", "import_id"])
+            have = {col.lower() for col in gpkg.table_columns(c, "bearings")}
+            # the step each observer position was written to (not part of the content key: worked out from the
+            # sheet, dfkit.observations.precision); a store without the columns took every position as exact
+            steps = [f"{gpkg.quote(col)}" if col in have else "NULL" for col in _STEP_COLUMNS]
+            found = pd.DataFrame(self._lookup("bearings", "row_key", "fix_fid, content_key, import_id, "
+                                              + ", ".join(steps), row_key.tolist()),
+                                 columns=["row_key", "fix_fid", "content_key", "import_id", "stored_e", "stored_n"])
             inc = pd.DataFrame({"row_key": row_key, "content": content_key, "fix": fix_of,
                                 "line": bt["line"].to_numpy()})
+            for col, name in zip(_STEP_COLUMNS, ("step_e", "step_n")):
+                inc[name] = bt[col].to_numpy(float) if col in bt else 0.0
             hit = inc.merge(found, on="row_key", how="inner")
             n_known = np.bincount(hit["fix"].to_numpy(np.int64), minlength=m)
-            same_c = (hit["content"] == hit["content_key"]).to_numpy()
+            same_step = np.ones(len(hit), bool)
+            for new_col, old_col in (("step_e", "stored_e"), ("step_n", "stored_n")):
+                a = np.nan_to_num(hit[new_col].to_numpy(float))
+                b = np.nan_to_num(pd.to_numeric(hit[old_col], errors="coerce").to_numpy(float))
+                same_step &= np.isclose(a, b, rtol=1e-6, atol=1e-3)
+            same_c = (hit["content"] == hit["content_key"]).to_numpy() & same_step
+            step_lines = hit.loc[(hit["content"] == hit["content_key"]).to_numpy() & ~same_step]
+            step_diff = {int(f): g for f, g in step_lines.groupby("fix")}
             n_same = np.bincount(hit["fix"].to_numpy(np.int64), weights=same_c, minlength=m).astype(int)
             for fx, ff in zip(hit["fix"].to_numpy(), hit["fix_fid"].to_numpy()):
                 touched[fx].add(int(ff))
@@ -462,7 +476,7 @@ class SeasonStore:
         else:
             n_known = np.zeros(m, int)
             n_same = np.zeros(m, int)
-            stored_n, diff_lines, imports_of = {}, {}, {}
+            stored_n, diff_lines, imports_of, step_diff = {}, {}, {}, {}
         for i in range(m):
             if not touched[i]:
                 continue
@@ -477,7 +491,11 @@ class SeasonStore:
                 continue
             verdict[i] = "changed"
             parts = []
+            steps = step_diff.get(i)
             lines = diff_lines.get(i, [])
+            if steps is not None:
+                lines = [x for x in lines if x not in set(steps["line"].tolist())]
+                parts.append(_step_change(steps))
             if lines:
                 parts.append("line" + ("s " if len(lines) > 1 else " ") + ", ".join(str(x) for x in lines[:6])
                              + (" ..." if len(lines) > 6 else "")
@@ -790,6 +808,22 @@ class SeasonStore:
                 oc.execute("COMMIT")
                 oc.execute("DETACH DATABASE src")
         return int(n)
+
+
+def _step_change(rows) -> str:
+    """What differs where a stored bearing's observer position was written to another step than the sheet's now."""
+    lines = rows["line"].tolist()
+    r = rows.iloc[0]
+    was = np.nan_to_num(pd.to_numeric(pd.Series([r["stored_e"], r["stored_n"]]), errors="coerce").to_numpy(float))
+    now = np.nan_to_num(np.array([r["step_e"], r["step_n"]], float))
+
+    def said(e, n):
+        return "none (taken as exact)" if max(e, n) == 0 else f"{max(e, n):,.0f} m"
+
+    return (f"line{'s' if len(lines) > 1 else ''} {', '.join(str(x) for x in lines[:6])}{' ...' if len(lines) > 6 else ''}: "
+            f"the step {'their observer positions were' if len(lines) > 1 else 'its observer position was'} written "
+            f"to is read as {said(*now)} now, {said(*was)} in the store (line {lines[0]}), so the stored fix's "
+            "region and status did not allow for the same rounding")
 
 
 def _stored_name(col: str) -> str:
