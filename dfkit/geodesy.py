@@ -97,7 +97,7 @@ def group_centroid(lat, lon, group, n_groups, weights=None):
     return np.degrees(np.arctan2(z, np.hypot(x, y))), np.degrees(np.arctan2(y, x))
 
 
-def _unit(lat, lon):
+def unit_vectors(lat, lon):
     """Unit vectors of points on the sphere [deg in]."""
     p, q = np.radians(np.asarray(lat, float)), np.radians(np.asarray(lon, float))
     cp = np.cos(p)
@@ -107,21 +107,35 @@ def _unit(lat, lon):
 def chord_distance_m(lat1, lon1, lat2, lon2):
     """Straight-line (chord) distance on a sphere of radius WGS84 a [m]: cheap, within 0.5 % of the
     geodesic distance for short spans; for thresholds, not for results."""
-    x1, y1, z1 = _unit(lat1, lon1)
-    x2, y2, z2 = _unit(lat2, lon2)
+    return chord_from_unit(unit_vectors(lat1, lon1), lat2, lon2)
+
+
+def chord_from_unit(unit1, lat2, lon2):
+    """:func:`chord_distance_m` from the first points' unit vectors (:func:`unit_vectors`), for points measured
+    from again and again: the same arithmetic."""
+    x1, y1, z1 = unit1
+    x2, y2, z2 = unit_vectors(lat2, lon2)
     return WGS84_A * np.sqrt((x1 - x2) ** 2 + (y1 - y2) ** 2 + (z1 - z2) ** 2)
 
 
 def group_spread_m(lat, lon, group, n_groups):
     """Largest chord distance [m] of a point from its group's centroid: :func:`chord_distance_m` from
     :func:`group_centroid`, the same arithmetic, with each point's unit vector worked out once."""
-    x, y, z = _unit(lat, lon)
+    return group_centroid_spread(lat, lon, group, n_groups)[2]
+
+
+def group_centroid_spread(lat, lon, group, n_groups):
+    """:func:`group_centroid` (without weights) and :func:`group_spread_m` of the same points at once: (centroid
+    lat, lon, spread [m]) per group, each point's unit vector worked out once for both (the same arithmetic as
+    each: the same bits)."""
+    x, y, z = unit_vectors(lat, lon)
     X, Y, Z = (np.bincount(group, v, n_groups) for v in (x, y, z))
-    cx, cy, cz = _unit(np.degrees(np.arctan2(Z, np.hypot(X, Y))), np.degrees(np.arctan2(Y, X)))
+    c_lat, c_lon = np.degrees(np.arctan2(Z, np.hypot(X, Y))), np.degrees(np.arctan2(Y, X))
+    cx, cy, cz = unit_vectors(c_lat, c_lon)
     d = WGS84_A * np.sqrt((cx[group] - x) ** 2 + (cy[group] - y) ** 2 + (cz[group] - z) ** 2)
     spread = np.zeros(n_groups)
     np.maximum.at(spread, group, d)
-    return spread
+    return c_lat, c_lon, spread
 
 
 def geodesic_path(lat, lon, azi_deg, length_m, n_points=64):

@@ -798,11 +798,11 @@ class _Rays:
         B, D = (a.reshape(n, M, K) for a in self._ray)
         f, slope, safe = np.empty((M, K)), np.empty((M, K)), np.empty((M, K))
         rows = max(1, RAY_BLOCK // K)
-        cross, dot, r, vr, t = (np.empty((min(rows, M), K)) for _ in range(5))
+        cross, dot, r, vr, t, u = (np.empty((min(rows, M), K)) for _ in range(6))
         for a in range(0, M, rows):
             z = slice(a, a + rows)
             if a + rows > M:            # the last, shorter block
-                cross, dot, r, vr, t = (x[:M - a] for x in (cross, dot, r, vr, t))
+                cross, dot, r, vr, t, u = (x[:M - a] for x in (cross, dot, r, vr, t, u))
             rho_z, f_z, slope_z, safe_z = rho[z], f[z], slope[z], safe[z]
             for k in range(n):
                 A, C, v = self.A[k][z, None], self.C[k][z, None], self.v[k][z, None]
@@ -822,7 +822,8 @@ class _Rays:
                 cross += dot
                 np.maximum(cross, 1e-18, out=cross)          # |d|^2
                 np.multiply(self.ax[k][z, None], self.cu, out=t)
-                t -= self.ay[k][z, None] * self.su           # E of bearing k
+                np.multiply(self.ay[k][z, None], self.su, out=u)
+                t -= u                                       # E of bearing k
                 t /= cross
                 t *= vr
                 if k == 0:
@@ -1337,7 +1338,16 @@ def _march(sx, sy, phi, v, known, dof, kdof, floor, level, psi, draw, fix_lat, f
     # then the root of S's Taylor polynomial along the ray where that is positive definite.
     pos = _positive(H)[:, None]
     q = np.where(pos, H, J)
-    quad = q[:, :1] * ux * ux + 2 * q[:, 1:2] * ux * uy + q[:, 2:] * uy * uy
+    # q11 ux ux + 2 q12 ux uy + q22 uy uy, in that order, in two (fixes, rays) arrays instead of seven
+    quad = np.multiply(q[:, :1], ux)
+    quad *= ux
+    t = np.multiply(2 * q[:, 1:2], ux)
+    t *= uy
+    quad += t
+    np.multiply(q[:, 2:], uy, out=t)
+    t *= uy
+    quad += t
+    del t
     R = draw[:, None] * np.ones((1, K))
     curv = quad if pos.all() else np.where(pos, quad, np.nan)          # (only read from here on)
     rays = _Rays(trig, sx, sy, v, cx, cy, T, psi)

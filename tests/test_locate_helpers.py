@@ -74,6 +74,11 @@ def test_station_spread_is_the_distance_from_the_stations_centre():
     spread = geodesy.group_spread_m(lat, lon, g, 2)
     assert spread[0] == pytest.approx(500.0, rel=0.005)
     assert spread[1] == pytest.approx(0.0, abs=1e-6)
+    # the solver works the spread out with the stations' centroid and hands it to the statuses: the same
+    # distances, whatever the bearings (here all pointing north: no fix is needed for it)
+    sol = dfkit.estimators.solve(lat, lon, np.zeros(7), g, 2)
+    assert sol.station_spread_m[0] == pytest.approx(500.0, rel=0.005)
+    assert sol.station_spread_m[1] == pytest.approx(0.0, abs=1e-6)
 
 
 def _located(tmp_path, seed=11, n_fix=60):

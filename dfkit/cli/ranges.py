@@ -14,7 +14,7 @@ from dfkit.cli.filters import add_filter_options, filter_from_args
 def add_parser(sub):
     r = sub.add_parser("ranges", help="home ranges per tag (minimum convex polygon or kernel) from fixes or a "
                                       "season file")
-    from dfkit.season.range_files import RANGE_KINDS
+    from dfkit.export import RANGE_KINDS       # not from dfkit.season: every command's start-up builds this parser
 
     r.add_argument("source", help="fixes (.csv, as dfkit fix writes them) or a season file (.gpkg)")
     r.add_argument("-o", "--output", action="append", default=[],

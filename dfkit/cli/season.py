@@ -3,7 +3,6 @@
 from __future__ import annotations
 
 import os
-import sqlite3
 import sys
 import time
 
@@ -48,6 +47,8 @@ def add_parser(sub):
 
 
 def run(a) -> int:
+    import sqlite3        # here, not at the top: every command's start-up imports this module
+
     from dfkit.season.store import StoreError
 
     try:

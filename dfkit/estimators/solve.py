@@ -94,7 +94,9 @@ class Solution:
     points away from the fix: cos r <= 0); ``crossing_deg`` spread of the used
     lines of sight at the fix [°, 0..90] (for two bearings, their crossing
     angle); ``scale_deg`` the scale the robust weights were computed with [°]
-    (the SD when known); ``method``.
+    (the SD when known); ``station_spread_m`` the largest chord distance of a
+    station from the stations' centroid [m] (:func:`dfkit.geodesy.group_spread_m`);
+    ``method``.
 
     Per bearing: ``residual_deg`` observed minus geodesic azimuth [°],
     ``weight`` (robust weight, 1 for the other methods), ``range_m`` distance
@@ -126,6 +128,7 @@ class Solution:
     region_weight: np.ndarray = None
     sd_floor_deg: np.ndarray = None
     sd_estimate_deg: np.ndarray = None
+    station_spread_m: np.ndarray = None
     method: str = "mle"
 
     def ending_name(self, i) -> str:
@@ -235,7 +238,8 @@ def _solve_checked(lat, lon, theta, g, m, sd, floor_b, *, spec, c, tol_m, max_it
     w = np.where(known_b, 1.0 / np.where(known_b, sd_rad, 1.0) ** 2, 1.0)
     w = w / (gsum(g, w, m) / np.maximum(counts, 1))[g]          # O(1) within each fix
 
-    centre_lat, centre_lon = geodesy.group_centroid(lat, lon, g, m)
+    # the stations' centroid, and their spread about it that the statuses read (dfkit.locate.status)
+    centre_lat, centre_lon, station_spread = geodesy.group_centroid_spread(lat, lon, g, m)
     geo0 = geometry(lat, lon, theta, centre_lat[g], centre_lon[g])
     spread = np.zeros(m)
     np.maximum.at(spread, g, geo0.d)
@@ -284,6 +288,7 @@ def _solve_checked(lat, lon, theta, g, m, sd, floor_b, *, spec, c, tol_m, max_it
     ctx = dict(spec=spec, c=c, g=g, m=m, lat=lat, lon=lon, theta=theta, floor_b=floor_b, floor_g=floor_g, w=w,
                s_b=s_b, r_run=r_run,
                spread=spread, centre_lat=centre_lat, centre_lon=centre_lon, geo0=geo0, tol_m=tol_m,
+               station_spread=station_spread,
                max_iter=max_iter, max_outer=max_outer)
     # geo0 stays the first plane of every fix, for later starts; the state's geometry is the first solve's
     state = dict(P_lat=P_lat, P_lon=P_lon, ending=ending, iterations=iterations, geo=None, verified=verified)
@@ -370,8 +375,8 @@ def _attempts(ctx, state, which, n_starts, x0, y0, more=None):
 #: Per-fix entries of the solver's context (the others are per bearing, or shared).
 _CTX_PER_FIX = ("r_run", "spread", "centre_lat", "centre_lon", "floor_g")
 _CTX_PER_BEARING = ("lat", "lon", "theta", "floor_b", "w", "s_b")
-#: Entries set by the retries (per fix, and per bearing) and read only by ``_finish``.
-_CTX_FINISH_ONLY = ("soft", "forced", "forced_out")
+#: Entries read only by ``_finish`` (per fix, and per bearing): the stations' spread, and those set by the retries.
+_CTX_FINISH_ONLY = ("station_spread", "soft", "forced", "forced_out")
 
 
 def _later_starts_together(ctx, state, todo, first, n_starts, x0, y0):
@@ -592,6 +597,7 @@ def _run(ctx, todo, x0, y0, into=None):
         last = into
         last.copy_rows(todo[g], ctx["geo0"])
     tol_in = tol_m / 100.0
+    centre_unit = None          # the first centres' unit vectors, for the runaway test of every round
     for outer in range(ctx["max_outer"]):
         act = todo & ~done & ~failed
         if not act.any():
@@ -649,7 +655,11 @@ def _run(ctx, todo, x0, y0, into=None):
         mv = fixes[ok]
         step = np.hypot(px[ok], py[ok])
         P_lat[mv], P_lon[mv] = geodesy.from_local(P_lat[mv], P_lon[mv], px[ok], py[ok])
-        far = geodesy.chord_distance_m(ctx["centre_lat"][mv], ctx["centre_lon"][mv], P_lat[mv], P_lon[mv]) > r_run[mv]
+        if centre_unit is None:         # the fixes moved in later rounds are among those moved in the first
+            centre_unit = [np.empty(m) for _ in range(3)]
+            for u, part in zip(centre_unit, geodesy.unit_vectors(ctx["centre_lat"][mv], ctx["centre_lon"][mv])):
+                u[mv] = part
+        far = geodesy.chord_from_unit([u[mv] for u in centre_unit], P_lat[mv], P_lon[mv]) > r_run[mv]
         ending[mv[far]] = RUNAWAY
         failed[mv[far]] = True
         done[mv[~far & (step < tol_m)]] = True
@@ -826,5 +836,5 @@ def _finish(ctx, counts, geo, P_lat, P_lon, ending, verified, known_b, known_g, 
         behind=behind, crossing_deg=crossing, residual_deg=np.degrees(r), weight=weight, range_m=d,
         ending=ending, scale_deg=scale, azimuth_from_fix_deg=geodesy.remainder(np.degrees(geo.az), 360.0),
         region_weight=region_weight, sd_floor_deg=np.where(known_g, 0.0, floor_g), sd_estimate_deg=np.degrees(sd_est),
-        method=spec.name,
+        station_spread_m=ctx["station_spread"], method=spec.name,
     )

@@ -45,6 +45,10 @@ class WriteOptions:
     guard_formulas: bool = True
 
 
+#: Extensions :func:`dfkit.season.range_files.write_ranges` understands: here, where the ``ranges`` command's help
+#: reads them without loading the season modules at every command's start-up.
+RANGE_KINDS = (".geojson", ".json", ".gpkg", ".csv")
+
 #: Columns :func:`with_utm` adds after ``lon``.
 UTM_COLUMNS = ("utm_zone", "utm_hemisphere", "utm_band", "easting", "northing")
 

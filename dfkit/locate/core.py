@@ -146,7 +146,8 @@ def locate_chunk(bearings: Bearings, *, method: str, level: float, window_min: f
                                          known_dof=cal_dof, sd_floor_deg=sol.sd_floor_deg, valid=sol.converged)
 
     say("statuses")
-    spread = geodesy.group_spread_m(lat, lon, g, m)
+    # the stations' spread as the solver worked it out with their centroid (the same lat, lon and fixes)
+    spread = sol.station_spread_m if sol.station_spread_m is not None else geodesy.group_spread_m(lat, lon, g, m)
     span_min, tmid = _time_span(b, g, m)
     # A fix goes on while each bearing follows the last within the window (dfkit.observations.grouping):
     # a gap longer than the window, or a chain lasting more than FIX_SPAN_WINDOWS windows, is flagged.

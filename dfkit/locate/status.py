@@ -103,8 +103,8 @@ def classify(f: FixFacts, previous=None, redo=()):
         todo = np.unique(np.asarray(list(redo), dtype=np.int64))
         status[todo] = "ok"
         reasons[todo] = ""
-    for i in todo.tolist():
-        word, texts = _judge(f, a, i, rivals)
+    for i, v in zip(todo.tolist(), _per_fix(f, a, todo)):
+        word, texts = _judge(f, a, i, rivals, v)
         if word is not None:
             status[i] = word
         reasons[i] = "; ".join(t for t in texts if t)
@@ -236,23 +236,33 @@ def _work_out(f: FixFacts) -> _Facts:
                   has_region=has_region, notable=notable, attention=attention)
 
 
-def _judge(f: FixFacts, a: _Facts, i: int, rivals: dict):
-    """Fix ``i``'s status word (None: ok) and its reason texts."""
+def _per_fix(f: FixFacts, a: _Facts, todo) -> list:
+    """What :func:`_judge` reads per fix, for the fixes ``todo``: one tuple of Python numbers and booleans each
+    (taken out of the arrays once for all of them: a numpy scalar read one by one costs several times a list's)."""
     sol, regions = f.sol, f.regions
-    ending, res, w, used = sol.ending, sol.residual_deg, sol.weight, a.used
-    S, p, sd_fix = a.S, a.p, sol.sd_deg
+    star = regions.star_shaped if regions is not None else np.ones(len(f.counts), bool)
+    per_fix = (f.counts, sol.ending, f.spread_m, sol.behind, sol.converged, sol.n_used, a.inconsistent, sol.sd_known,
+               a.near_obs, sol.crossing_deg, a.has_region, a.bounded, a.long_span, sol.dof, a.no_cov, a.notable,
+               a.floored, star, a.mismatch)
+    return list(zip(*(np.asarray(x)[todo].tolist() for x in per_fix)))
+
+
+def _judge(f: FixFacts, a: _Facts, i: int, rivals: dict, v: tuple):
+    """Fix ``i``'s status word (None: ok) and its reason texts (``v``: the fix's :func:`_per_fix`)."""
+    sol, regions = f.sol, f.regions
+    res, w, used = sol.residual_deg, sol.weight, a.used
+    S, p, sd_fix, ratio = a.S, a.p, sol.sd_deg, a.ratio
     behind_b, wild_b, reversed_b, low_b, near_b = a.behind_b, a.wild_b, a.reversed_b, a.low_b, a.near_b
-    inconsistent, no_cov, near_obs, long_span = a.inconsistent, a.no_cov, a.near_obs, a.long_span
-    floored, ratio, mismatch, bounded, has_region = a.floored, a.ratio, a.mismatch, a.bounded, a.has_region
+    (n, ending, spread, behind, converged, n_used, inconsistent, sd_known, near_obs, crossing, has_region, bounded,
+     long_span, dof, no_cov, notable, floored, star, mismatch) = v
     word = None
     texts: list[str] = []
     sel = a.order[a.starts[i]:a.starts[i + 1]]
-    n = f.counts[i]
-    end = ENDINGS[ending[i]]
+    end = ENDINGS[ending]
     flags: list[tuple[str, str]] = []
     if n < 2:
         flags.append(("too_few", f"{n} usable bearing{'s' if n != 1 else ''}; a fix needs at least 2"))
-    elif f.spread_m[i] < ONE_SPOT_M:
+    elif spread < ONE_SPOT_M:
         flags.append(("one_spot", f"all {n} bearings were taken from one spot; bearings from one place "
                                   "cannot cross"))
     elif end == "parallel":
@@ -283,45 +293,45 @@ def _judge(f: FixFacts, a: _Facts, i: int, rivals: dict):
         dropped = sel[~used[sel]]
         flags.append(("collapsed", f"the robust weights kept only {_lines_text(f.lines[kept])} and dropped "
                                    f"{_lines_text(f.lines[dropped])}: too few bearings agree to fix a point"))
-    elif sol.behind[i]:
+    elif behind:
         back = sel[behind_b[sel]]
-        if sol.n_used[i] == 2:
+        if n_used == 2:
             flags.append(("diverging", f"the two lines cross only behind the observer at "
                                        f"{_lines_text(f.lines[back])}: the bearings point apart"))
         else:
             j = back[np.argmax(np.abs(res[back]))]
             flags.append(("behind", f"the best point lies behind the observer at line {f.lines[j]}: its "
                                     f"bearing points away from it (misses by {res[j]:+.0f}°)"))
-    elif not sol.converged[i]:
+    elif not converged:
         flags.append(("no_convergence", f"the estimate did not settle after {sol.iterations[i]} iterations"))
     else:
-        if inconsistent[i]:
-            if sol.sd_known[i]:
+        if inconsistent:
+            if sd_known:
                 flags.append(("inconsistent",
                               f"the bearings disagree more than their SD of {sd_fix[i]:.3g}° allows "
-                              f"(chi-square {S[i]:.1f} on {sol.dof[i]} degree{'s' if sol.dof[i] != 1 else ''} "
+                              f"(chi-square {S[i]:.1f} on {dof} degree{'s' if dof != 1 else ''} "
                               f"of freedom, p = {p[i]:.1g}): a bearing is wild or the SD is too small"))
             else:
                 flags.append(("inconsistent",
                               f"the bearings miss each other widely: their SD is estimated at "
                               f"{sd_fix[i]:.0f}°, more than the {PLAUSIBLE_SD_DEG:g}° a directional "
                               "antenna plausibly gives"))
-        if near_obs[i]:
+        if near_obs:
             j = sel[near_b[sel]][0]
             flags.append(("near_observer", f"the fix lies {sol.range_m[j]:.0f} m from the observer at line "
                                            f"{f.lines[j]}, so close that this bearing hardly constrains it "
                                            "(near its own station a bearing fits almost any point): check "
                                            "that the transmitter is beside that observer, or take another "
                                            "bearing"))
-        if sol.crossing_deg[i] < SHALLOW_CROSSING_DEG:
-            what = "the two bearings cross" if sol.n_used[i] == 2 else "the bearing lines spread only"
-            flags.append(("shallow", f"{what} at {sol.crossing_deg[i]:.0f}° (common-practice limit "
+        if crossing < SHALLOW_CROSSING_DEG:
+            what = "the two bearings cross" if n_used == 2 else "the bearing lines spread only"
+            flags.append(("shallow", f"{what} at {crossing:.0f}° (common-practice limit "
                                      f"{SHALLOW_CROSSING_DEG:.0f}°); the position is weak along the bearings"))
-        if regions is not None and has_region[i] and not bounded[i]:
+        if regions is not None and has_region and not bounded:
             flags.append(("unbounded", f"the {100 * f.level:g}% region is open: it reaches past "
                                        f"{_km(regions.draw_range_m[i])} along the bearings (drawn to "
                                        "there), so a transmitter far along them is not ruled out"))
-        if long_span[i]:
+        if long_span:
             what = (f"{f.gap_min[i]:.0f} min pass between two of its bearings, more than the "
                     f"{f.window_min:g}-min window" if f.gap_min[i] > f.window_min else
                     f"its bearings span {f.span_min[i]:.0f} min, more than {FIX_SPAN_WINDOWS:g} windows of "
@@ -330,17 +340,17 @@ def _judge(f: FixFacts, a: _Facts, i: int, rivals: dict):
                                        "hunt, give a longer --window)"))
         if i in rivals:
             flags.append(("ambiguous", _rival_text(rivals[i], f.lines, sol, i, f.level)))
-        if not sol.sd_known[i] and sol.dof[i] <= 0:
+        if not sd_known and dof <= 0:
             flags.append(("no_region", "two bearings and no known SD: a position but no confidence "
                                        "region (give sd in the sheet or --sd)"))
-        elif no_cov[i] or (regions is not None and not has_region[i]):
+        elif no_cov or (regions is not None and not has_region):
             flags.append(("no_region", "the covariance of this fix is degenerate: no region can be sized"))
     if flags:
         word = flags[0][0]
         texts.extend(text for _, text in flags)
     # what each bearing says about the fix (only where the fix is a verified optimum: elsewhere the
     # residuals are taken at an arbitrary point); most fixes have no such bearing
-    if n >= 2 and sol.converged[i] and a.notable[i]:
+    if n >= 2 and converged and notable:
         hinted = " ".join(f.hints.get(i, []))
         for j in sel[reversed_b[sel]][:3]:
             if "180°" in hinted:
@@ -349,7 +359,7 @@ def _judge(f: FixFacts, a: _Facts, i: int, rivals: dict):
                          "(read from the back of the antenna?); check it and enter it turned by 180°")
         shown = set(sel[reversed_b[sel]][:3].tolist())
         for j in sel[wild_b[sel] & ~reversed_b[sel]][:3]:
-            if sol.sd_known[i] or sol.dof[i] >= 1:
+            if sd_known or dof >= 1:
                 texts.append(f"line {f.lines[j]} misses by {res[j]:+.1f}° (more than {WILD_SD:g} SD)")
                 shown.add(j)
         for j in sel[low_b[sel]][:3]:
@@ -361,12 +371,12 @@ def _judge(f: FixFacts, a: _Facts, i: int, rivals: dict):
             else:
                 texts.append(f"line {f.lines[j]} down-weighted to {w[j]:.2f}")
     texts.extend(f.hints.get(i, []))
-    if floored[i]:
+    if floored:
         texts.append(_floor_text(sol, i, f.step_deg))
-    if regions is not None and has_region[i] and not regions.star_shaped[i]:
+    if regions is not None and has_region and not star:
         texts.append("the region is not star-shaped about its centre: a ray leaves it and comes back; "
                      "it is drawn as its outer envelope")
-    if mismatch[i] and (word or "ok") in ("ok", "shallow", "long_span", "inconsistent"):
+    if mismatch and (word or "ok") in ("ok", "shallow", "long_span", "inconsistent"):
         texts.append(f"the ellipse is a poor summary here: the likelihood region is {ratio[i]:.1f}x its "
                      "area (use the region)")
     rej = f.rejected[i]

@@ -521,11 +521,12 @@ def _one_angle(text, axis, decimal_comma):
     return v, "", False
 
 
-def declinations(cells, decimal_comma: bool = False) -> Cells:
-    """Declination cells: '3.5', '-3.5', '3.5E' or '3.5W' (also with a degree sign) -> degrees east."""
-    cells = np.asarray(cells, dtype=object)
-    if not (cells != "").any():
-        n = len(cells)
+def declinations(cells, decimal_comma: bool = False, n: int | None = None) -> Cells:
+    """Declination cells: '3.5', '-3.5', '3.5E' or '3.5W' (also with a degree sign) -> degrees east. ``cells`` None:
+    a sheet without the column, ``n`` empty cells (no pass over them)."""
+    cells = None if cells is None else np.asarray(cells, dtype=object)
+    if cells is None or not (cells != "").any():
+        n = len(cells) if cells is not None else n
         return Cells(np.full(n, np.nan), np.ones(n, bool), filled(n, ""), known_bad=np.zeros(n, bool))
     s = pd.Series(cells, dtype=object).astype(str).str.strip().str.upper()
     west = s.str.endswith("W").to_numpy()

@@ -32,7 +32,7 @@ from dfkit.observations.lookalike import look_alike
 from dfkit.observations.positions import parse_positions, position_columns, read_places
 from dfkit.observations.repeats import repeated_rows
 from dfkit.observations.rowlog import RowLog
-from dfkit.observations.times import parse_times
+from dfkit.observations.times import no_times, parse_times
 from dfkit.policy import MIN_SD_DEG, PLAUSIBLE_SD_DEG, SPLIT_LABEL_GAP_H
 from dfkit.problems import Problem, SheetError
 
@@ -107,8 +107,11 @@ def read_bearings(sheet, options: ReadOptions | None = None, **kwargs) -> Bearin
         log.problems.extend(track.problems)
 
     # times (each working array is dropped once used: a large sheet holds many at a time)
-    tm = parse_times(column(t, "time"), tz=opts.tz, date_format=opts.date_format, repeated_hour=opts.repeated_hour,
-                     dates=column(t, "date") if "date" in t.columns else None)
+    if "time" in t.columns or "date" in t.columns:
+        tm = parse_times(column(t, "time"), tz=opts.tz, date_format=opts.date_format,
+                         repeated_hour=opts.repeated_hour, dates=column(t, "date") if "date" in t.columns else None)
+    else:       # no time cell at all: what parse_times makes of empty cells, without a pass over them
+        tm = no_times(len(t), tz=opts.tz)
     log.reject(tm.bad, "time" if "time" in t.columns or "date" not in t.columns else "date", tm.error)
     notes.extend(tm.notes)
     times = tm.seconds
@@ -313,7 +316,7 @@ def _sds(t, opts, decimal_comma, log: RowLog, mil, grad, notes):
 
 
 def _declinations(t, opts, decimal_comma, log: RowLog, magnetic, n, notes):
-    c = declinations(column(t, "declination"), decimal_comma)
+    c = declinations(column(t, "declination") if "declination" in t.columns else None, decimal_comma, n=n)
     dec = c.values
     if not c.empty.all():           # no cell: nothing to refuse
         log.reject(c.bad, "declination", c.error)

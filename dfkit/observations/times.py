@@ -164,6 +164,14 @@ def parse_times(cells, *, tz: str | None = None, date_format: str | None = None,
     return Times(out, empty, error, notes, date_only, known_bad=bad)
 
 
+def no_times(n: int, *, tz: str | None = None) -> Times:
+    """:func:`parse_times` of ``n`` empty cells (a sheet with neither a time nor a date column), without a pass
+    over them: every row empty, none refused; ``tz`` is still checked as there."""
+    _zone(tz)
+    return Times(np.full(n, np.nan), np.ones(n, bool), filled(n, ""), [], np.zeros(n, bool),
+                 known_bad=np.zeros(n, bool))
+
+
 def _epoch(t) -> np.ndarray:
     """Seconds since 1970 of a datetime Series/Index (NaN for NaT)."""
     s = pd.Series(t)

@@ -10,13 +10,12 @@ import numpy as np
 import pandas as pd
 
 from dfkit.cautions import CAUTION
+from dfkit.export import RANGE_KINDS
 from dfkit.export.atomic import atomic_write
 from dfkit.export.csv import write_table
 from dfkit.season import gpkg
 from dfkit.season.rings import lonlat_parts
 
-#: Extensions :func:`write_ranges` understands.
-RANGE_KINDS = (".geojson", ".json", ".gpkg", ".csv")
 
 
 def write_ranges(ranges, path) -> None:

@@ -219,3 +219,17 @@ def test_the_day_first_note_quotes_a_date_as_the_sheet_writes_it(write_sheet):
                                   "A,14/05/2026 10:05,47,15.02,315\n"), tz="UTC")
     said = [n for n in b.notes if "read day first" in n]
     assert len(said) == 1 and "'14/05/2026 10:00'" in said[0]
+
+
+def test_a_sheet_without_time_or_date_column_reads_as_empty_cells_and_still_checks_the_zone():
+    import numpy as np
+
+    from dfkit.observations.times import no_times, parse_times
+
+    for tm in (no_times(3), parse_times(["", "", ""])):
+        assert np.isnan(tm.seconds).all() and tm.empty.all() and list(tm.error) == ["", "", ""]
+        assert not tm.bad.any() and not tm.date_only.any() and tm.notes == []
+    with pytest.raises(Exception):
+        no_times(2, tz="Not/AZone")
+    with pytest.raises(Exception):
+        parse_times(["", ""], tz="Not/AZone")
