@@ -7,16 +7,21 @@ has far more of them just where a three-line fix can absorb one: there the unifo
 safe. A reviewer's sheet with one line in ten 20-60° off left 181 three-line fixes ``ok`` and wrong (Dec 2026).
 
 What the sheet shows, it shows in its fixes of four or more lines with a known SD: a bearing that misses its fix
-by :data:`CLEAR_SDS` of its SDs or more is wild beyond doubt (a good bearing does so about once in 1.7 million),
-and its miss is how far it went. :func:`learn` counts them in bins of the miss, each bin over the bearings that
+by :data:`CLEAR_SDS` of its SDs or more while the rest of its fix agrees is wild beyond doubt (a good bearing does
+so about once in 1.7 million), and its miss is how far it went; one a fix, as a fit that keeps a wild line pulls
+the good ones off with it. Wild lines nearer than that cannot be told from good ones and are not counted, so the
+rate learnt is low where they are common (a reviewer's sheets with lines 15-45° off and SDs of 5-8°: the ok
+fixes' risks summed to a fifth of the misses the wild lines caused; Dec 2026). :func:`learn` counts them in bins of the miss, each bin over the bearings that
 could have shown a miss there (those whose SD puts the bin beyond the cut: the counts are corrected for the misses
 a bearing with a wide SD cannot show), and turns each bin into a density of wild bearings per radian of miss.
 That is the mixing density of a contaminated model estimated from the clear outliers (an empirical Bayes step,
 H. Robbins, 1956, *Proc. Third Berkeley Symposium*, vol. 1, pp. 157-163 [from memory]).
 
 The wild risk then weighs Hk with the larger of the prior's density and the sheet's, at bearing k's miss under Hk
-(:meth:`WildLines.log_raise`): the sheet can only raise a fix's risk, never lower it below what the prior gives,
-and a sheet without enough clear wild bearings (:data:`MIN_WILD`) changes nothing. Every fix with a wild risk is
+(:meth:`WildLines.log_raise`): the sheet only raises the prior's density, never lowers it, and only by
+:data:`MIN_RAISE` or more; a sheet without enough clear wild bearings (:data:`MIN_WILD`) changes nothing. A fix's
+risk mostly rises with it, but can fall: where the line a robust fit dropped becomes likelier to be the wild one,
+the other explanations weigh less. Every fix with a wild risk is
 then weighed again (:func:`dfkit.locate.core.locate`), and the sheet gets a note saying what was learnt.
 """
 
@@ -25,6 +30,9 @@ from __future__ import annotations
 from dataclasses import dataclass
 
 import numpy as np
+
+from dfkit.policy import INCONSISTENT_P
+from dfkit.regions import chi2_sf
 
 #: The ways of weighing the wild risk (:func:`dfkit.locate.locate`'s ``wild_rate``): at the sheet's own rate where
 #: it shows more wild lines than the prior, or at the prior's alone.
@@ -38,6 +46,12 @@ CLEAR_SDS = 5.0
 MIN_LINES = 200
 MIN_WILD = 20
 MIN_BIN = 5
+#: A bin raises the prior only by this factor or more (our choice: on sheets wild exactly as the prior says, 5 %
+#: in any direction, bins came out at 1.0-1.8 times by chance).
+MIN_RAISE = 1.5
+#: A group label (observer, team, antenna, receiver) is named in the note when it holds at least this share of the
+#: clear wild lines and at least twice its share of the bearings (our choice).
+LABEL_SHARE = 0.5
 #: Bins of the miss [°], either side.
 EDGES_DEG = np.array([0.0, 10.0, 20.0, 30.0, 40.0, 50.0, 60.0, 75.0, 90.0, 120.0, 150.0, 180.0])
 #: Fewest bearings in a fix whose misses are counted (with three, one wild line pulls the fix toward itself and
@@ -57,6 +71,9 @@ class WildLines:
     density: np.ndarray
     #: bearings examined (fixes of MIN_FIX_LINES or more lines with a known SD and a position)
     examined: int
+    #: (column, label, clear wild lines of that label, its share of the examined bearings) where one label holds
+    #: most of them, else None
+    carrier: tuple | None = None
 
     @property
     def floor(self):
@@ -67,7 +84,8 @@ class WildLines:
     def raise_by(self) -> np.ndarray:
         """Per bin, the factor (at least 1) by which the sheet raises the prior's density."""
         with np.errstate(divide="ignore", invalid="ignore"):
-            return np.where(self.counts >= MIN_BIN, np.fmax(self.density / self.floor, 1.0), 1.0)
+            f = self.density / self.floor
+            return np.where((self.counts >= MIN_BIN) & (f >= MIN_RAISE), f, 1.0)
 
     @property
     def raises(self) -> bool:
@@ -80,17 +98,23 @@ class WildLines:
         return np.log(self.raise_by)[b]
 
     def note(self) -> str:
-        """The sheet's note: what was learnt and what it changed."""
+        """The sheet's note: what was learnt, what it changed, and what it cannot see."""
         f = self.raise_by
         up = np.flatnonzero(f > 1.0)
         lo, hi = EDGES_DEG[up.min()], EDGES_DEG[up.max() + 1]
         n = int(self.counts.sum())
-        share = n / max(self.examined, 1)
-        return (f"wild lines: {n} of the {self.examined} bearings in fixes of {MIN_FIX_LINES} or more lines with a "
-                f"known SD miss their fix by {CLEAR_SDS:g} SDs or more ({100 * share:.1f} %), most {lo:g}-{hi:g}° off; "
-                f"there wild lines are up to {f.max():.1f} times as common as the {100 * self.share:g} % spread "
-                f"evenly over every direction that dfkit assumes, so every fix's wild risk was weighed at this sheet's "
-                f"own rate (a three-line fix can absorb such a line and still look consistent)")
+        text = (f"wild lines: in {n} of the fixes of {MIN_FIX_LINES} or more bearings with a known SD (their "
+                f"{self.examined} bearings), one bearing misses by {CLEAR_SDS:g} SDs or more while the others agree; "
+                f"at misses of {lo:g}-{hi:g}° such lines are up to {f.max():.1f} times as common as the prior "
+                f"(--wild-share {self.share:g}, spread evenly over every direction), so each weighed fix's wild risk "
+                f"was weighed at this sheet's own rate (--wild-rate prior keeps the prior); wild lines less than "
+                f"{CLEAR_SDS:g} SDs off cannot be told from good ones and are not counted, so the rate may still be "
+                f"low where such lines are common")
+        if self.carrier is not None:
+            col, label, k, share = self.carrier
+            text += (f"; {k} of the {n} are {col} {label}'s ({100 * share:.0f} % of the bearings): its bearings may "
+                     f"read off or be less precise than their SD says; calibrate it")
+        return text
 
 
 def learn(fixes, share) -> WildLines | None:
@@ -130,10 +154,11 @@ def learn(fixes, share) -> WildLines | None:
     h_fit = _leverages(g, m, full * np.where(take, w, 0.0), gx, gy)
     h_full = _leverages(g, m, full, gx, gy)
     take &= np.isfinite(h_fit) & (h_fit < 1.0 - 1e-9) & np.isfinite(h_full) & (h_full < 1.0 - 1e-9)
-    r, sd = np.abs(r[take]), sd[take]
-    miss = r / (1.0 - np.clip(h_fit[take], 0.0, None))
+    gt, w, v = g[take], w[take], full[take]
+    r, sd, h = np.abs(r[take]), sd[take], np.clip(h_fit[take], 0.0, None)
+    miss = r / (1.0 - h)
     cut = CLEAR_SDS * sd / np.sqrt(1.0 - np.clip(h_full[take], 0.0, None))     # the smallest clear miss
-    clear = miss >= cut
+    clear = _one_a_fix(gt, m, miss / cut, w, v, np.radians(r), h) & (miss >= cut)
     lo, hi = EDGES_DEG[:-1], EDGES_DEG[1:]
     counts = np.histogram(np.fmin(miss[clear], 180.0), EDGES_DEG)[0].astype(float)
     if counts.sum() < MIN_WILD:         # nothing to learn: the prior stands
@@ -147,7 +172,49 @@ def learn(fixes, share) -> WildLines | None:
         density = np.where(exposed > 0, np.fmax(counts - np.sqrt(counts), 0.0) / (exposed * width), 0.0)
     wild = float(np.sum(density * width))                   # the share of bearings wild at the learnt misses
     density = density / max(1.0 - min(wild, 0.5), 0.5)      # as odds against a good bearing
-    return WildLines(float(share), counts, exposed, density, int(take.sum()))
+    return WildLines(float(share), counts, exposed, density, int(take.sum()),
+                     _carrier(b, np.flatnonzero(take)[clear], np.flatnonzero(take)))
+
+
+def _carrier(b, clear_rows, rows):
+    """(column, label, clear lines, share of the bearings) of a group label holding most of the clear wild lines
+    ``clear_rows`` (rows of ``b``) out of all the examined ``rows``, or None."""
+    from dfkit.locate.offsets import group_columns
+
+    for col in group_columns(b):
+        labels = b[col].astype(str).to_numpy()
+        names, k = np.unique(labels[clear_rows], return_counts=True)
+        if not len(k):
+            continue
+        top = int(np.argmax(k))
+        share = float(np.mean(labels[rows] == names[top]))
+        if names[top].strip() and k[top] >= LABEL_SHARE * len(clear_rows) and k[top] >= 2.0 * share * len(clear_rows):
+            return col, names[top], int(k[top]), share
+    return None
+
+
+def _one_a_fix(g, m, z, w, v, r_rad, h):
+    """Per bearing, whether it is a candidate for a clear wild line: a line the fit dropped, or of those it kept the
+    one with the largest ``z`` (miss over its cut), and the rest of the fix consistent without it (chi-square p at least INCONSISTENT_P on the
+    bearings the fit used, less that one). A fit that keeps a wild line (Lenth's, least squares) pulls the good
+    ones off with it: only the line that explains the misfit counts, once. S without bearing k is the fit's S less
+    v_k w_k r_k^2 / (1 - h_k) (the deletion formula of a linear model; Cook & Weisberg, 1982, ch. 2 [from memory])."""
+    kept = w > 0
+    order = np.lexsort((np.where(kept, z, -np.inf), g))
+    last = np.r_[g[order][1:] != g[order][:-1], True]
+    top = np.zeros(len(g), bool)
+    top[order[last]] = True
+    top &= kept
+    vw = v * np.where(kept, w, 0.0)
+    s_fix = np.bincount(g, vw * r_rad * r_rad, m)
+    used = np.bincount(g, kept.astype(float), m)
+    s_rest = np.where(kept, np.fmax(s_fix[g] - vw * r_rad * r_rad / (1.0 - h), 0.0), s_fix[g])
+    dof = used[g] - kept - 2
+    with np.errstate(invalid="ignore"):
+        fits = (dof >= 1) & (chi2_sf(s_rest, np.maximum(dof, 1).astype(np.int64)) >= INCONSISTENT_P)
+    # a line the fit dropped (a robust fit: Huber's, Andrews') counts as well, each of them, when the lines the fit
+    # kept agree; of the kept ones, the one that explains the misfit
+    return (top | ~kept) & fits
 
 
 def _leverages(g, m, v, gx, gy):
