@@ -158,7 +158,7 @@ def learn(fixes, share) -> WildLines | None:
     r, sd, h = np.abs(r[take]), sd[take], np.clip(h_fit[take], 0.0, None)
     miss = r / (1.0 - h)
     cut = CLEAR_SDS * sd / np.sqrt(1.0 - np.clip(h_full[take], 0.0, None))     # the smallest clear miss
-    clear = _one_a_fix(gt, m, miss / cut, w, v, np.radians(r), h) & (miss >= cut)
+    clear = _one_a_fix(gt, m, miss / cut, w, v, np.radians(r), h, miss >= cut)
     lo, hi = EDGES_DEG[:-1], EDGES_DEG[1:]
     counts = np.histogram(np.fmin(miss[clear], 180.0), EDGES_DEG)[0].astype(float)
     if counts.sum() < MIN_WILD:         # nothing to learn: the prior stands
@@ -193,28 +193,33 @@ def _carrier(b, clear_rows, rows):
     return None
 
 
-def _one_a_fix(g, m, z, w, v, r_rad, h):
+def _one_a_fix(g, m, z, w, v, r_rad, h, far):
     """Per bearing, whether it is a candidate for a clear wild line: a line the fit dropped, or of those it kept the
-    one with the largest ``z`` (miss over its cut), and the rest of the fix consistent without it (chi-square p at least INCONSISTENT_P on the
+    one with the largest ``z`` (miss over its cut); ``far`` (its miss at least its cut), and the rest of the fix
+    consistent without it (chi-square p at least INCONSISTENT_P on the
     bearings the fit used, less that one). A fit that keeps a wild line (Lenth's, least squares) pulls the good
     ones off with it: only the line that explains the misfit counts, once. S without bearing k is the fit's S less
     v_k w_k r_k^2 / (1 - h_k) (the deletion formula of a linear model; Cook & Weisberg, 1982, ch. 2 [from memory])."""
     kept = w > 0
-    order = np.lexsort((np.where(kept, z, -np.inf), g))
-    last = np.r_[g[order][1:] != g[order][:-1], True]
+    # a far line has z >= 1 and the others z < 1: the largest z of a fix, if far, is found among the far ones
+    cand = np.flatnonzero(far & kept)
+    order = cand[np.lexsort((z[cand], g[cand]))]
     top = np.zeros(len(g), bool)
-    top[order[last]] = True
-    top &= kept
+    if len(order):
+        top[order[np.r_[g[order][1:] != g[order][:-1], True]]] = True
     vw = v * np.where(kept, w, 0.0)
     s_fix = np.bincount(g, vw * r_rad * r_rad, m)
     used = np.bincount(g, kept.astype(float), m)
-    s_rest = np.where(kept, np.fmax(s_fix[g] - vw * r_rad * r_rad / (1.0 - h), 0.0), s_fix[g])
-    dof = used[g] - kept - 2
-    with np.errstate(invalid="ignore"):
-        fits = (dof >= 1) & (chi2_sf(s_rest, np.maximum(dof, 1).astype(np.int64)) >= INCONSISTENT_P)
     # a line the fit dropped (a robust fit: Huber's, Andrews') counts as well, each of them, when the lines the fit
-    # kept agree; of the kept ones, the one that explains the misfit
-    return (top | ~kept) & fits
+    # kept agree; of the kept ones, the one that explains the misfit; only those ``far`` enough are tested (few)
+    out = (top | ~kept) & far
+    c = np.flatnonzero(out)
+    k = kept[c]
+    s_rest = np.where(k, np.fmax(s_fix[g[c]] - vw[c] * r_rad[c] ** 2 / (1.0 - h[c]), 0.0), s_fix[g[c]])
+    dof = used[g[c]] - k - 2
+    with np.errstate(invalid="ignore"):
+        out[c] = (dof >= 1) & (chi2_sf(s_rest, np.maximum(dof, 1).astype(np.int64)) >= INCONSISTENT_P)
+    return out
 
 
 def _leverages(g, m, v, gx, gy):
