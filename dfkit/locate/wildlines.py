@@ -148,21 +148,31 @@ def learn(fixes, share) -> WildLines | None:
     # each miss (a dropped line's is 0: its residual is its miss), and with every line at full weight for the cut
     # (what a wild line there would show against the spread of good ones: the deleted residual's SD is
     # SD_k / sqrt(1 - h_k))
-    az = np.radians(np.asarray(fixes.azimuth_deg, float))
-    gx, gy = np.where(take, -np.cos(az) / d, 0.0), np.where(take, np.sin(az) / d, 0.0)
-    full = np.where(take, 1.0 / np.radians(np.where(fine, sd, 1.0)) ** 2, 0.0)
-    h_fit = _leverages(g, m, full * np.where(take, w, 0.0), gx, gy)
-    h_full = _leverages(g, m, full, gx, gy)
-    take &= np.isfinite(h_fit) & (h_fit < 1.0 - 1e-9) & np.isfinite(h_full) & (h_full < 1.0 - 1e-9)
-    gt, w, v = g[take], w[take], full[take]
-    r, sd, h = np.abs(r[take]), sd[take], np.clip(h_fit[take], 0.0, None)
+    # (on the examined bearings only, each array freed once used: this runs while the sheet's tables are held)
+    rows = np.flatnonzero(take)
+    del take, fine
+    gt, w, sd = g[rows], w[rows], sd[rows]
+    az = np.radians(np.asarray(fixes.azimuth_deg, float)[rows])
+    dt = d[rows]
+    gx, gy = -np.cos(az) / dt, np.sin(az) / dt
+    del az, dt
+    v = 1.0 / np.radians(sd) ** 2
+    h_full = _leverages(gt, m, v, gx, gy)
+    h = _leverages(gt, m, v * w, gx, gy)
+    del gx, gy
+    fine = np.isfinite(h) & (h < 1.0 - 1e-9) & np.isfinite(h_full) & (h_full < 1.0 - 1e-9)
+    if not fine.all():
+        rows, gt, w, sd, v, h, h_full = (a[fine] for a in (rows, gt, w, sd, v, h, h_full))
+    r = np.abs(r[rows])
+    h = np.clip(h, 0.0, None)
     miss = r / (1.0 - h)
-    cut = CLEAR_SDS * sd / np.sqrt(1.0 - np.clip(h_full[take], 0.0, None))     # the smallest clear miss
+    cut = CLEAR_SDS * sd / np.sqrt(1.0 - np.clip(h_full, 0.0, None))     # the smallest clear miss
+    del h_full, sd
     clear = _one_a_fix(gt, m, miss / cut, w, v, np.radians(r), h, miss >= cut)
     lo, hi = EDGES_DEG[:-1], EDGES_DEG[1:]
     counts = np.histogram(np.fmin(miss[clear], 180.0), EDGES_DEG)[0].astype(float)
     if counts.sum() < MIN_WILD:         # nothing to learn: the prior stands
-        return WildLines(float(share), counts, np.zeros(len(lo)), np.zeros(len(lo)), int(take.sum()))
+        return WildLines(float(share), counts, np.zeros(len(lo)), np.zeros(len(lo)), len(rows))
     # each bearing's share of each bin beyond its own cut, where it could have shown a clear miss (bin by bin: a
     # (bearings, bins) array would be the largest of the run)
     exposed = np.array([np.clip((b - np.fmax(a, cut)) / (b - a), 0.0, 1.0).sum() for a, b in zip(lo, hi)])
@@ -172,8 +182,7 @@ def learn(fixes, share) -> WildLines | None:
         density = np.where(exposed > 0, np.fmax(counts - np.sqrt(counts), 0.0) / (exposed * width), 0.0)
     wild = float(np.sum(density * width))                   # the share of bearings wild at the learnt misses
     density = density / max(1.0 - min(wild, 0.5), 0.5)      # as odds against a good bearing
-    return WildLines(float(share), counts, exposed, density, int(take.sum()),
-                     _carrier(b, np.flatnonzero(take)[clear], np.flatnonzero(take)))
+    return WildLines(float(share), counts, exposed, density, len(rows), _carrier(b, rows[clear], rows))
 
 
 def _carrier(b, clear_rows, rows):
