@@ -475,9 +475,10 @@ def likelihood_regions(fix_lat, fix_lon, g, station_lat, station_lon, bearing_de
     fix_lat = np.asarray(fix_lat, float)
     fix_lon = np.asarray(fix_lon, float)
     m = len(fix_lat)
-    levels = np.broadcast_to(np.asarray(level, float), (m,))
-    if not ((levels > 0.0) & (levels < 1.0)).all() or not 0.0 < float(np.ravel(level)[0]) < 1.0:
+    given = np.asarray(level, float)
+    if not ((given > 0.0) & (given < 1.0)).all():
         raise ValueError(f"level={level!r} must be a probability between 0 and 1 (e.g. 0.95)")
+    levels = np.broadcast_to(given, (m,))
     g = np.asarray(g, np.int64)
     # the bearings' arrays are converted (weights without NaN, degrees to radians) batch by batch, not as whole
     # copies held through the loop (same values: each is converted element by element)
@@ -585,7 +586,7 @@ def likelihood_regions(fix_lat, fix_lon, g, station_lat, station_lon, bearing_de
         radius_m=rad, ray_azimuth_deg=np.degrees(psi), bounded=bounded,
         area_m2=np.where(bounded, area, np.nan), reach_m=np.where(has, reach, np.nan),
         draw_range_m=out["draw_range_m"], star_shaped=out["star_shaped"] & has, s_min=out["s_min"],
-        threshold=out["threshold"], level=float(np.ravel(level)[0]), g=g, station_lat=np.asarray(station_lat, float),
+        threshold=out["threshold"], level=float(given.flat[0]) if given.size else np.nan, g=g, station_lat=np.asarray(station_lat, float),
         station_lon=np.asarray(station_lon, float), bearing_deg=np.asarray(bearing_deg, float),
         weight=np.nan_to_num(np.where(ok[g], weight, 0.0), copy=False))
 

@@ -77,12 +77,7 @@ def locate(bearings: Bearings, *, method: str = "mle", level: float = 0.95, wind
         raise ValueError(f"wild_rate={wild_rate!r} is not one of {', '.join(map(repr, wildlines.RATES))}")
     options = dict(method=method, level=level, window_min=window_min, robust_c=robust_c, with_regions=with_regions,
                    wild_share=float(wild_share))
-    if jobs != 1:
-        from dfkit.locate.parallel import locate_in_chunks
-
-        fixes = locate_in_chunks(bearings, locate_chunk, jobs=jobs, progress=progress, **options)
-    else:
-        fixes = locate_chunk(bearings, progress=progress, **options)
+    fixes = _located(bearings, jobs, progress=progress, **options)
     if wild_rate == "sheet" and wild_share > 0:
         fixes = _at_sheet_rate(bearings, fixes, jobs, progress, options)
     if sheet_checks:     # what only the whole sheet shows: after the chunks are put back together
@@ -94,6 +89,15 @@ def locate(bearings: Bearings, *, method: str = "mle", level: float = 0.95, wind
         if text:
             fixes.notes.append(text)
     return fixes
+
+
+def _located(bearings, jobs, **options) -> Fixes:
+    """:func:`locate_chunk` on all the fixes of ``bearings``, in chunks on ``jobs`` workers unless one."""
+    if jobs != 1:
+        from dfkit.locate.parallel import locate_in_chunks
+
+        return locate_in_chunks(bearings, locate_chunk, jobs=jobs, **options)
+    return locate_chunk(bearings, **options)
 
 
 def locate_chunk(bearings: Bearings, *, method: str, level: float, window_min: float | None, robust_c: float | None,
@@ -136,8 +140,9 @@ def locate_chunk(bearings: Bearings, *, method: str, level: float, window_min: f
     cal_dof = np.full(m, np.inf)
     if "sd_dof" in b and len(b):
         np.minimum.at(cal_dof, g, b["sd_dof"].astype(float).fillna(np.inf).to_numpy(float))
-    k = regions.scale_factor(level, np.where(sol.sd_known, np.where(np.isfinite(cal_dof), cal_dof, 0), sol.dof))
-    ell = regions.ellipse_axes(sol.cov_en, k)
+    # the ellipses' degrees of freedom: a calibrated SD's trials, 0 for an exact known SD, the fix's own otherwise
+    k_dof = np.where(sol.sd_known, np.where(np.isfinite(cal_dof), cal_dof, 0), sol.dof)
+    ell = regions.ellipse_axes(sol.cov_en, regions.scale_factor(level, k_dof))
     lik = None
     if with_regions:
         say("likelihood regions")
@@ -179,9 +184,7 @@ def locate_chunk(bearings: Bearings, *, method: str, level: float, window_min: f
     # level's probability counting that chance (_widened)
     lik, level_used = _widened(lik, status, reasons, wild_risk, level, sol, g, lat, lon, theta, cal_dof)
     if (level_used > level).any():
-        k = regions.scale_factor(level_used, np.where(sol.sd_known, np.where(np.isfinite(cal_dof), cal_dof, 0),
-                                                      sol.dof))
-        ell = regions.ellipse_axes(sol.cov_en, k)
+        ell = regions.ellipse_axes(sol.cov_en, regions.scale_factor(level_used, k_dof))
 
     # an observer, team, antenna or receiver whose bearings in this fix read off the others (dfkit.locate.offsets)
     for i, text in fix_offsets(b if added is None else b.assign(sd=sd), g, m, sol).items():
@@ -269,13 +272,10 @@ def _at_sheet_rate(bearings, fixes, jobs, progress, options):
     if not len(redo):
         return replace(fixes, notes=notes)
     (progress or (lambda text: None))(f"weighing {len(redo)} fixes' wild risk again at the sheet's own rate")
-    from dfkit.locate.parallel import locate_in_chunks, subset
+    from dfkit.locate.parallel import subset
 
     part_b, rows = subset(bearings, redo)
-    if jobs != 1:
-        part = locate_in_chunks(part_b, locate_chunk, jobs=jobs, wild_lines=lines, **options)
-    else:
-        part = locate_chunk(part_b, wild_lines=lines, **options)
+    part = _located(part_b, jobs, wild_lines=lines, **options)
     t = fixes.table.copy(deep=False)        # the weighed columns replaced, the others shared
     for c in WEIGHED_COLUMNS:
         col = t[c].to_numpy(copy=True)
