@@ -73,6 +73,8 @@ STATUS_MEANING = {
     "no_convergence": "the estimate did not settle",
 }
 #: Statuses that come with a position.
+#: The ``sd_source`` values of a fix whose SD is known (given or calibrated), not estimated from its residuals.
+KNOWN_SD_SOURCES = ("given", "calibration", "given+calibration")
 WITH_POSITION = ("ok", "ambiguous", "inconsistent", "near_observer", "unbounded", "no_region", "shallow", "long_span")
 
 

@@ -62,6 +62,8 @@ from dataclasses import dataclass
 
 import numpy as np
 
+from dfkit.locate.fixes import KNOWN_SD_SOURCES
+
 #: Columns whose values name who or what took a bearing (their lower-cased names, as the sheet writes them).
 GROUP_COLUMNS = ("observer", "team", "antenna", "receiver")
 #: Fewest bearings of one group in a fix for the fix's own test (one bearing alone is a wild-line question).
@@ -801,7 +803,7 @@ def sheet_offsets(table, bearings, with_position, azimuth_deg=None) -> list[Shee
         cols = [WHOLE_SHEET]
     g = b["fix_id"].to_numpy(dtype=np.int64)
     az = fix_azimuths(table, b, g, azimuth_deg)
-    known = table["sd_source"].isin(["given", "calibration", "given+calibration"]).to_numpy()
+    known = table["sd_source"].isin(KNOWN_SD_SOURCES).to_numpy()
     # an estimated SD is one value for the whole sheet (the fixes' median): weighting each fix by its own estimate
     # would down-weight the fixes where the offset shows most (it inflates their estimate) and bias the pooled offset
     est = table["sd_deg"].to_numpy(float)[~known & with_position]

@@ -30,7 +30,7 @@ from math import lgamma
 import numpy as np
 import pandas as pd
 
-from dfkit.locate.fixes import WITH_POSITION, has_position, per_bearing
+from dfkit.locate.fixes import KNOWN_SD_SOURCES, WITH_POSITION, has_position, per_bearing
 from dfkit.locate.offsets import WHOLE_SHEET, sheet_offsets, whitened_gradients
 from dfkit.locate.status import at_minimum
 from dfkit.policy import INCONSISTENT_P
@@ -45,7 +45,6 @@ SD_CHECK_P = 0.001
 #: with an SD 1/1.2 of the true one holds the truth about 87 % of the time (chi-square with 2 dof at
 #: 5.99 / 1.44; our choice).
 SD_TOO_SMALL = 1.2
-_KNOWN = ("given", "calibration", "given+calibration")
 #: Two group columns "go together" when this share of the bearings of each label of one is with a single label of
 #: the other (our choice: four in five).
 TIED_SHARE = 0.8
@@ -359,7 +358,7 @@ def fix_misfits(table, bearings, residual_deg=None, likelihood=None):
     with np.errstate(invalid="ignore", divide="ignore"):
         use = use & np.isfinite(bearings["residual_deg"].to_numpy(float) / sd)
     n = np.bincount(g, use.astype(float), m)
-    known = table["sd_source"].isin(_KNOWN).to_numpy()
+    known = table["sd_source"].isin(KNOWN_SD_SOURCES).to_numpy()
     dof = np.where(known & table["status"].isin(WITH_POSITION).to_numpy(), n - 2, 0).astype(int)
     return np.where(dof >= 1, S, np.nan), dof
 

@@ -31,6 +31,7 @@ from dataclasses import dataclass
 
 import numpy as np
 
+from dfkit.locate.fixes import KNOWN_SD_SOURCES
 from dfkit.policy import INCONSISTENT_P
 from dfkit.regions import chi2_sf
 
@@ -132,7 +133,7 @@ def learn(fixes, share) -> WildLines | None:
         return None
     g = b["fix_id"].to_numpy(np.int64)
     m = len(t)
-    known = t["sd_source"].isin(("given", "calibration", "given+calibration")).to_numpy()
+    known = t["sd_source"].isin(KNOWN_SD_SOURCES).to_numpy()
     many = t["n_bearings"].to_numpy(np.int64) >= MIN_FIX_LINES
     sd = b["sd"].to_numpy(float)
     if "rounding_sd_deg" in b:
