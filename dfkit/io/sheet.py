@@ -505,10 +505,18 @@ def _decimals_shown(view, marks, lines, j, width):
     # a field padded with white space after its digits (rare): counted on its stripped text
     last = view[np.clip(stop - 1, 0, len(view) - 1)]
     for i in np.flatnonzero(has_dot & (stop > start) & ((last < 48) | (last > 57))).tolist():
-        cell = bytes(view[start[i]:stop[i]]).strip()
-        decimals[i] = len(cell) - cell.rfind(b".") - 1 if b"." in cell else 0
+        decimals[i] = _cell_decimals(bytes(view[start[i]:stop[i]]))
     exponent = next_of(start, exps) < stop
     return np.where(exponent, -1, decimals)
+
+
+def _cell_decimals(cell: bytes) -> int:
+    """Decimals one number's bytes show (digits after its point, white space aside; 0 without one), -1 with an
+    exponent."""
+    cell = cell.strip()
+    if b"e" in cell or b"E" in cell:
+        return -1
+    return len(cell) - cell.rfind(b".") - 1 if b"." in cell else 0
 
 
 class _NumberDecimals:
@@ -685,9 +693,7 @@ def _parse_body(body, n_body, numbers, comment, delimiter, width, want):
             out = np.zeros(len(which), np.int64)
             for i, k in enumerate(which.tolist()):
                 parts = bytes(view[ends[k] + 1:ends[k + 1]]).split(delimiter.encode())
-                cell = parts[j].strip() if j < len(parts) else b""
-                out[i] = -1 if (b"e" in cell or b"E" in cell) else (len(cell) - cell.rfind(b".") - 1
-                                                                   if b"." in cell else 0)
+                out[i] = _cell_decimals(parts[j] if j < len(parts) else b"")
             return out
         if "marks" not in found:
             kind = found["kind"]
